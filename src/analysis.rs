@@ -1,0 +1,649 @@
+//! From a table and settings to a [`FitReport`]: the `pondus fit` job.
+
+use crate::effect::{self, ColumnMap, Measure, ReadingScale, RowEffect};
+use crate::error::{Error, Result};
+use crate::input::{self, ColumnRequest, Table};
+use crate::model::design::{self, ModeratorKind, ModeratorSpec, RawModerator, Value};
+use crate::model::inference::{self, PredictionInference};
+use crate::model::tau2::Tau2Method;
+use crate::model::{self, FitOptions, Inference, ModelFit};
+use crate::result::*;
+use std::collections::{BTreeMap, HashMap};
+
+/// Checked settings of one `fit` job (the library's view; the CLI builds them).
+#[derive(Debug, Clone)]
+pub struct FitSettings {
+    /// Effect measure.
+    pub measure: Measure,
+    /// Role-to-header overrides.
+    pub columns: ColumnMap,
+    /// Label column header, and whether the user named it (then it must exist).
+    pub label: (String, bool),
+    /// Moderators in the order given.
+    pub moderators: Vec<ModeratorSpec>,
+    /// Product terms, by moderator name.
+    pub interactions: Vec<(String, String)>,
+    /// Estimator, inference, level.
+    pub options: FitOptions,
+    /// Prediction points: (moderator name, value text) lists.
+    pub predictions: Vec<Vec<(String, String)>>,
+}
+
+/// Minimum studies per moderator term below which the output cautions
+/// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
+/// "at least ten studies for each characteristic modelled"; common practice, cited from memory).
+pub const STUDIES_PER_TERM: usize = 10;
+
+/// Runs the analysis on CSV bytes from the source named `source`.
+///
+/// # Errors
+/// Any input, usage, model or convergence error, with file, line and column where they apply.
+pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitReport> {
+    let measure = settings.measure;
+    let mut requests = vec![ColumnRequest {
+        header: settings.label.0.clone(),
+        required: settings.label.1,
+        purpose: "study labels".into(),
+        hint: "Name the label column with --label <header>.".into(),
+    }];
+    let first_measure = requests.len();
+    requests.extend(settings.columns.requests(measure));
+    let first_mod = requests.len();
+    for m in &settings.moderators {
+        requests.push(ColumnRequest {
+            header: m.name.clone(),
+            required: true,
+            purpose: "a moderator (--moderator)".into(),
+            hint: "Check the spelling of --moderator; headers are matched exactly, or ignoring case when unique.".into(),
+        });
+    }
+    let table = input::parse_table(source, bytes, &requests)?;
+    let effects = effect::compute(measure, &settings.columns, &table, first_measure)?;
+    let labels = labels(&table);
+
+    // Moderators: type detection over all rows.
+    let mut raw = Vec::with_capacity(settings.moderators.len());
+    for (j, spec) in settings.moderators.iter().enumerate() {
+        let col = table
+            .column(first_mod + j)
+            .expect("required column present");
+        let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
+        raw.push(design::classify(spec, &cells, &table.lines, source)?);
+    }
+
+    // Inclusion.
+    let mut included = Vec::new();
+    let mut excluded = Vec::new();
+    let mut notes = Vec::new();
+    for (i, row) in effects.rows.iter().enumerate() {
+        let reason = match row {
+            RowEffect::Excluded(why) => Some(why.clone()),
+            RowEffect::Value { .. } => settings
+                .moderators
+                .iter()
+                .zip(&raw)
+                .find(|(_, r)| !r.present(i))
+                .map(|(m, _)| format!("missing moderator {}", m.name)),
+        };
+        match reason {
+            Some(reason) => excluded.push(Excluded {
+                study: labels[i].clone(),
+                line: table.lines[i],
+                reason,
+            }),
+            None => included.push(i),
+        }
+    }
+    if included.is_empty() {
+        return Err(Error::Model(format!(
+            "{source}: no study has every value the model needs ({} rows left out; the first: line {}, {})",
+            excluded.len(),
+            excluded[0].line,
+            excluded[0].reason
+        )));
+    }
+    let k = included.len();
+    if k == 1 {
+        return Err(Error::Model(format!(
+            "{source}: only one study is usable; no between-study heterogeneity can be estimated and \
+             there is nothing to pool. At least 2 studies are needed (3 or more to say much)"
+        )));
+    }
+
+    let index_of = |name: &str| settings.moderators.iter().position(|m| m.name == name);
+    let mut pairs = Vec::new();
+    for (a, b) in &settings.interactions {
+        let ia = index_of(a);
+        let ib = index_of(b);
+        match (ia, ib) {
+            (Some(x), Some(y)) if x != y => pairs.push((x, y)),
+            (Some(_), Some(_)) => {
+                return Err(Error::usage(
+                    "--interaction",
+                    format!(
+                        "'{a},{b}' names the same moderator twice; give two different moderators"
+                    ),
+                ))
+            }
+            _ => {
+                let missing = if ia.is_none() { a } else { b };
+                return Err(Error::usage(
+                    "--interaction",
+                    format!(
+                        "'{missing}' is not a moderator of this model; add --moderator {missing} \
+                         (a product term needs both of its moderators in the model)"
+                    ),
+                ));
+            }
+        }
+    }
+    let design = design::build(&settings.moderators, &raw, &included, &pairs)?;
+
+    let y: Vec<f64> = included
+        .iter()
+        .map(|&i| value(&effects.rows[i]).0)
+        .collect();
+    let v: Vec<f64> = included
+        .iter()
+        .map(|&i| value(&effects.rows[i]).1)
+        .collect();
+    let fit = model::fit(&y, &v, &design.x, design.p, settings.options)?;
+    let null_fit = if design.p == 1 {
+        None
+    } else {
+        let ones = vec![1.0; k];
+        Some(model::fit(&y, &v, &ones, 1, settings.options)?)
+    };
+    let base = null_fit.as_ref().unwrap_or(&fit);
+
+    let scale = measure.reading_scale();
+    let level = settings.options.level;
+    let coefs = inference::coefficients(&fit);
+    let coefficients: Vec<Coefficient> = design
+        .terms
+        .iter()
+        .zip(&coefs)
+        .map(|(t, c)| Coefficient {
+            term: t.name.clone(),
+            estimate: c.estimate,
+            se: c.se,
+            ci_low: c.ci_low,
+            ci_high: c.ci_high,
+            statistic: c.statistic,
+            df: c.df,
+            p: c.p,
+        })
+        .collect();
+    let mod_names: Vec<&str> = settings
+        .moderators
+        .iter()
+        .map(|m| m.name.as_str())
+        .collect();
+    let moderator_test = inference::omnibus(&fit).map(|t| {
+        let significant = t.p < 1.0 - level;
+        ModeratorTest {
+            statistic: t.statistic,
+            df1: t.df1,
+            df2: t.df2,
+            p: t.p,
+            distribution: if t.df2.is_some() { "F" } else { "chi-square" }.into(),
+            significant,
+            answer: answer(
+                significant,
+                &mod_names,
+                &fit,
+                t.statistic,
+                t.df1,
+                t.df2,
+                t.p,
+                level,
+            ),
+        }
+    });
+
+    let heterogeneity = heterogeneity(&fit, null_fit.as_ref());
+    let average = estimate(inference::predict(base, &[1.0]), scale);
+
+    let mut predictions = Vec::new();
+    for spec in &settings.predictions {
+        predictions.push(prediction(&design, &fit, spec, scale)?);
+    }
+
+    let total_w: f64 = fit.weights.iter().sum();
+    let mut studies = Vec::with_capacity(k);
+    let mut corrected = Vec::new();
+    for (pos, &i) in included.iter().enumerate() {
+        let (yi, vi, note) = match &effects.rows[i] {
+            RowEffect::Value { y, v, note } => (*y, *v, note.clone()),
+            RowEffect::Excluded(_) => unreachable!("included rows have effects"),
+        };
+        if note.is_some() {
+            corrected.push(labels[i].clone());
+        }
+        let moderators = design
+            .moderators
+            .iter()
+            .zip(&raw)
+            .map(|(m, r)| {
+                let v = match r {
+                    RawModerator::Numeric(x) => AtValue::Number(x[i].unwrap_or(f64::NAN)),
+                    RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
+                };
+                (m.name.clone(), v)
+            })
+            .collect();
+        studies.push(Study {
+            study: labels[i].clone(),
+            line: table.lines[i],
+            effect: yi,
+            variance: vi,
+            weight: 100.0 * fit.weights[pos] / total_w,
+            fitted: fit.fitted[pos],
+            residual: yi - fit.fitted[pos],
+            std_residual: fit.std_resid[pos],
+            moderators,
+            note,
+        });
+    }
+
+    if !corrected.is_empty() {
+        notes.push(format!(
+            "{} {} a zero cell: 0.5 was added to each of {} cells ({}).",
+            corrected.len(),
+            if corrected.len() == 1 {
+                "study had"
+            } else {
+                "studies had"
+            },
+            if corrected.len() == 1 { "its" } else { "their" },
+            list(&corrected, 5)
+        ));
+    }
+    if table.blank_rows > 0 {
+        notes.push(format!("{} blank rows were skipped.", table.blank_rows));
+    }
+    if !table
+        .headers
+        .iter()
+        .any(|h| h.eq_ignore_ascii_case(&settings.label.0))
+    {
+        notes.push(format!(
+            "No '{}' column: studies are labelled by their line in the file. Name the label column with --label.",
+            settings.label.0
+        ));
+    }
+    let mut warnings = duplicate_label_warnings(&included, &labels);
+    if fit.tau2.estimate == 0.0 && settings.options.method != Tau2Method::None {
+        notes.push(
+            "The τ² estimate is 0: the observed spread of the effects is no larger than their \
+             sampling error alone would produce. This does not show that the true effects are \
+             identical."
+                .into(),
+        );
+    }
+    if let Some(s2) = fit.kh_scale {
+        if s2 < 1.0 && design.p > 1 {
+            notes.push(format!(
+                "The Knapp–Hartung scale factor is {s2:.3} (< 1), so its intervals are narrower \
+                 than the z-based ones."
+            ));
+        }
+    }
+    for p in &predictions {
+        if !p.outside_range.is_empty() {
+            warnings.push(format!(
+                "A prediction is outside the range of the studies for {}: it is an extrapolation.",
+                p.outside_range.join(", ")
+            ));
+        }
+    }
+    let cautions = cautions(k, design.p, settings.options.inference);
+
+    Ok(FitReport {
+        tool: ToolInfo {
+            name: "pondus".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+        },
+        input: InputInfo {
+            file: source.to_string(),
+            delimiter: table.delimiter_name().into(),
+            rows: table.len(),
+            label_column: table.column(0).map(|c| c.header.clone()),
+        },
+        measure: MeasureInfo {
+            id: measure.id().into(),
+            description: measure.describe().into(),
+            reading_scale: scale,
+            reading_name: measure.reading_name().map(String::from),
+            null_value: 0.0,
+        },
+        k,
+        excluded,
+        model: ModelInfo {
+            tau2_method: settings.options.method.id().into(),
+            tau2_description: settings.options.method.describe().into(),
+            inference_description: settings.options.inference.describe().into(),
+            inference: match settings.options.inference {
+                Inference::Kh => "kh",
+                Inference::Z => "z",
+            }
+            .into(),
+            level,
+            terms: design.terms.iter().map(|t| t.name.clone()).collect(),
+            moderators: design.moderators.clone(),
+            interactions: design
+                .interactions
+                .iter()
+                .map(|&(a, b)| {
+                    [
+                        settings.moderators[a].name.clone(),
+                        settings.moderators[b].name.clone(),
+                    ]
+                })
+                .collect(),
+            kh_scale: fit.kh_scale,
+            log_likelihood: fit.log_likelihood,
+        },
+        tau2: Tau2Report {
+            method: settings.options.method.id().into(),
+            estimate: fit.tau2.estimate,
+            tau: fit.tau2.estimate.sqrt(),
+            ci_low: fit.tau2_ci.map(|c| c.0),
+            ci_high: fit.tau2_ci.map(|c| c.1),
+            ending: fit.tau2.ending,
+            evaluations: fit.tau2.evaluations,
+        },
+        coefficients,
+        moderator_test,
+        heterogeneity,
+        average,
+        predictions,
+        studies,
+        warnings,
+        cautions,
+        notes,
+    })
+}
+
+fn value(e: &RowEffect) -> (f64, f64) {
+    match e {
+        RowEffect::Value { y, v, .. } => (*y, *v),
+        RowEffect::Excluded(_) => (f64::NAN, f64::NAN),
+    }
+}
+
+fn labels(table: &Table) -> Vec<String> {
+    match table.column(0) {
+        Some(c) => (0..table.len())
+            .map(|i| {
+                let l = c.get(i);
+                if l.is_empty() {
+                    format!("line {}", table.lines[i])
+                } else {
+                    l.to_string()
+                }
+            })
+            .collect(),
+        None => table.lines.iter().map(|l| format!("line {l}")).collect(),
+    }
+}
+
+fn list(items: &[String], max: usize) -> String {
+    let mut s = items
+        .iter()
+        .take(max)
+        .cloned()
+        .collect::<Vec<_>>()
+        .join(", ");
+    if items.len() > max {
+        s.push_str(&format!(" and {} more", items.len() - max));
+    }
+    s
+}
+
+fn duplicate_label_warnings(included: &[usize], labels: &[String]) -> Vec<String> {
+    let mut seen: HashMap<&str, usize> = HashMap::new();
+    for &i in included {
+        *seen.entry(labels[i].as_str()).or_default() += 1;
+    }
+    let mut dups: Vec<String> = seen
+        .into_iter()
+        .filter(|(_, n)| *n > 1)
+        .map(|(l, n)| format!("'{l}' ({n}×)"))
+        .collect();
+    if dups.is_empty() {
+        return Vec::new();
+    }
+    dups.sort();
+    vec![format!(
+        "Study labels used more than once: {}. If these are the same study entered twice, remove \
+         the copies; if they are separate samples, give them distinct labels.",
+        list(&dups, 5)
+    )]
+}
+
+fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
+    (scale != ReadingScale::Same).then(|| Reading {
+        estimate: scale.apply(p.estimate),
+        ci_low: scale.apply(p.ci_low),
+        ci_high: scale.apply(p.ci_high),
+        pi_low: scale.apply(p.pi_low),
+        pi_high: scale.apply(p.pi_high),
+    })
+}
+
+fn estimate(p: PredictionInference, scale: ReadingScale) -> Estimate {
+    Estimate {
+        estimate: p.estimate,
+        se: p.se,
+        ci_low: p.ci_low,
+        ci_high: p.ci_high,
+        pi_low: p.pi_low,
+        pi_high: p.pi_high,
+        reading: reading(&p, scale),
+    }
+}
+
+fn prediction(
+    design: &design::Design,
+    fit: &ModelFit,
+    spec: &[(String, String)],
+    scale: ReadingScale,
+) -> Result<Prediction> {
+    if design.moderators.is_empty() {
+        return Err(Error::usage(
+            "--at",
+            "the model has no moderators; the average effect and its prediction interval are \
+             reported without --at",
+        ));
+    }
+    let given: BTreeMap<&str, &str> = spec.iter().map(|(n, v)| (n.as_str(), v.as_str())).collect();
+    for name in given.keys() {
+        if !design.moderators.iter().any(|m| m.name == *name) {
+            let names: Vec<&str> = design.moderators.iter().map(|m| m.name.as_str()).collect();
+            return Err(Error::usage(
+                "--at",
+                format!(
+                    "'{name}' is not a moderator of this model; the moderators are: {}",
+                    names.join(", ")
+                ),
+            ));
+        }
+    }
+    let mut values = Vec::new();
+    let mut at = BTreeMap::new();
+    let mut outside = Vec::new();
+    for m in &design.moderators {
+        let Some(text) = given.get(m.name.as_str()) else {
+            return Err(Error::usage(
+                "--at",
+                format!(
+                    "give a value for every moderator; '{}' is missing (for example --at {}=<value>,...)",
+                    m.name, m.name
+                ),
+            ));
+        };
+        match &m.kind {
+            ModeratorKind::Numeric { min, max, .. } => {
+                let x: f64 = text
+                    .trim()
+                    .parse()
+                    .ok()
+                    .filter(|x: &f64| x.is_finite())
+                    .ok_or_else(|| {
+                        Error::usage(
+                            "--at",
+                            format!(
+                                "'{text}' is not a number (moderator '{}' is numeric)",
+                                m.name
+                            ),
+                        )
+                    })?;
+                if x < *min || x > *max {
+                    outside.push(format!("{} = {x} (studies: {min} to {max})", m.name));
+                }
+                values.push(Value::Number(x));
+                at.insert(m.name.clone(), AtValue::Number(x));
+            }
+            ModeratorKind::Categorical { .. } => {
+                values.push(Value::Label(text.trim().to_string()));
+                at.insert(m.name.clone(), AtValue::Level(text.trim().to_string()));
+            }
+        }
+    }
+    let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
+    let p = inference::predict(fit, &x0);
+    Ok(Prediction {
+        at,
+        estimate: p.estimate,
+        se: p.se,
+        ci_low: p.ci_low,
+        ci_high: p.ci_high,
+        pi_low: p.pi_low,
+        pi_high: p.pi_high,
+        reading: reading(&p, scale),
+        outside_range: outside,
+    })
+}
+
+/// Residual heterogeneity statistics.
+///
+/// # Formula
+/// Q_E = Σ (y_i − x_i'β̂₀)²/v_i with the common-effect fit β̂₀, df = k − p;
+/// ṽ = (k − p)/tr P₀; I² = τ̂²/(τ̂² + ṽ), H² = (τ̂² + ṽ)/ṽ (Higgins & Thompson
+/// 2002, *Stat. Med.* 21:1539, generalised to meta-regression). For the
+/// common-effect model (τ² fixed at 0) the Q-based forms are used instead:
+/// H² = Q/df, I² = max(0, (Q − df)/Q). R² = (τ̂²₀ − τ̂²)/τ̂²₀ truncated to
+/// [0, 1], with τ̂²₀ from the same estimator without moderators (Raudenbush 2009).
+fn heterogeneity(fit: &ModelFit, null_fit: Option<&ModelFit>) -> Heterogeneity {
+    let df = (fit.k - fit.p) as f64;
+    let t = fit.tau2.estimate;
+    let (i2, h2) = if fit.options.method == Tau2Method::None {
+        let i2 = if fit.q_e > 0.0 {
+            ((fit.q_e - df) / fit.q_e).max(0.0)
+        } else {
+            0.0
+        };
+        (i2, 1.0 / (1.0 - i2))
+    } else {
+        (t / (t + fit.v_typical), (t + fit.v_typical) / fit.v_typical)
+    };
+    let tau2_0 = null_fit.map(|f| f.tau2.estimate).unwrap_or(t);
+    let r2 = match null_fit {
+        Some(_) if tau2_0 > 0.0 => Some(((tau2_0 - t) / tau2_0).clamp(0.0, 1.0)),
+        _ => None,
+    };
+    Heterogeneity {
+        q: fit.q_e,
+        df,
+        p: crate::dist::chi2_sf(fit.q_e, df),
+        i2,
+        h2,
+        r2,
+        tau2_without_moderators: tau2_0,
+        typical_variance: fit.v_typical,
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn answer(
+    significant: bool,
+    moderators: &[&str],
+    fit: &ModelFit,
+    stat: f64,
+    df1: f64,
+    df2: Option<f64>,
+    p: f64,
+    level: f64,
+) -> String {
+    let test = match df2 {
+        Some(d2) => format!("F({df1}, {d2}) = {stat:.2}"),
+        None => format!("chi-square({df1}) = {stat:.2}"),
+    };
+    let alpha = 1.0 - level;
+    let names = moderators.join(", ");
+    let p_txt = crate::report::format_p(p);
+    if significant {
+        format!(
+            "Yes: across these {} studies the effect differs with {names} ({test}, p {p_txt}; \
+             tested at α = {alpha:.2}). This is an association across studies, not proof that \
+             {names} causes the difference.",
+            fit.k
+        )
+    } else {
+        format!(
+            "No clear evidence that the effect changes with {names} ({test}, p {p_txt}; tested at \
+             α = {alpha:.2}). This is not evidence of no change: with {} studies the test may \
+             have little power.",
+            fit.k
+        )
+    }
+}
+
+fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
+    let mut c = Vec::new();
+    let terms = p - 1;
+    if terms > 0 {
+        if k < STUDIES_PER_TERM * terms {
+            c.push(format!(
+                "Only {k} studies for {terms} moderator term{}: fewer than {STUDIES_PER_TERM} studies \
+                 per term (a common rule of thumb, Cochrane Handbook section 10.11.5.1). Treat the \
+                 moderator results as exploratory; estimates are unstable and tests have little power.",
+                if terms == 1 { "" } else { "s" }
+            ));
+        }
+        c.push(
+            "Moderator effects are associations across studies: they are observational even when \
+             every study is a randomised trial, can be confounded by other study characteristics, \
+             and do not show how the effect changes for individuals (Thompson & Higgins 2002, \
+             Stat. Med. 21:1559)."
+                .into(),
+        );
+        if terms > 1 {
+            c.push(
+                "Several coefficients are tested: their individual p-values are not adjusted for \
+                 multiple testing. The omnibus moderator test is the single test of whether the \
+                 moderators matter."
+                    .into(),
+            );
+        }
+    }
+    if k < 10 {
+        c.push(format!(
+            "With {k} studies, τ² and the prediction interval are estimated imprecisely{}.",
+            if inference == Inference::Z {
+                "; z-based intervals are also too narrow with few studies (the default Knapp–Hartung \
+                 method is safer)"
+            } else {
+                ""
+            }
+        ));
+    }
+    c.push(
+        "These results summarise published or supplied estimates. Decisions about patients, pupils, \
+         programmes or policy rest with the responsible professionals and local guidance, not with \
+         this output."
+            .into(),
+    );
+    c
+}

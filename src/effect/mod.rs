@@ -1,0 +1,449 @@
+//! Effect sizes and their sampling variances, one file per family.
+//!
+//! A [`Measure`] names the roles (input columns) it reads; [`compute`] turns
+//! each row of a [`Table`] into an effect on the analysis scale with its
+//! sampling variance, an exclusion with its reason, or a cell problem.
+
+pub mod binary;
+pub mod correlation;
+pub mod generic;
+pub mod smd;
+
+use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::input::{ColumnRequest, Table};
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// How each row becomes an effect and a sampling variance.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Measure {
+    /// A precomputed effect with its variance, SE or 95% CI.
+    Effect,
+    /// A Pearson correlation, analysed as Fisher's z.
+    R,
+    /// A partial correlation from a regression t statistic, analysed as Fisher's z.
+    PartialR,
+    /// An unstandardised regression slope with its SE.
+    Slope,
+    /// Hedges' g from group means, SDs and sizes.
+    Smd,
+    /// Log odds ratio from a 2×2 table.
+    LogOr,
+    /// Log risk ratio from a 2×2 table.
+    LogRr,
+    /// Risk difference from a 2×2 table.
+    RiskDiff,
+}
+
+/// How analysis-scale values are shown back to readers.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReadingScale {
+    /// Shown as analysed.
+    Same,
+    /// Fisher z shown as a correlation, r = tanh(z).
+    Correlation,
+    /// A log ratio shown as a ratio, exp(y).
+    Ratio,
+}
+
+impl ReadingScale {
+    /// Maps an analysis-scale value to the reading scale.
+    pub fn apply(self, x: f64) -> f64 {
+        match self {
+            ReadingScale::Same => x,
+            ReadingScale::Correlation => x.tanh(),
+            ReadingScale::Ratio => x.exp(),
+        }
+    }
+}
+
+/// One input role of a measure.
+#[derive(Debug, Clone, Copy)]
+pub struct Role {
+    /// The role name, also the default column header.
+    pub name: &'static str,
+    /// What the column holds.
+    pub meaning: &'static str,
+    /// Whether every row needs it (the precision roles of `effect` are alternatives).
+    pub required: bool,
+}
+
+const fn role(name: &'static str, meaning: &'static str) -> Role {
+    Role {
+        name,
+        meaning,
+        required: true,
+    }
+}
+
+const fn alt(name: &'static str, meaning: &'static str) -> Role {
+    Role {
+        name,
+        meaning,
+        required: false,
+    }
+}
+
+const EFFECT_ROLES: &[Role] = &[
+    role("effect", "the effect estimate on the analysis scale"),
+    alt("variance", "its sampling variance"),
+    alt("se", "its standard error"),
+    alt("ci_low", "the lower end of its 95% confidence interval"),
+    alt("ci_high", "the upper end of its 95% confidence interval"),
+];
+const R_ROLES: &[Role] = &[role("r", "Pearson correlation"), role("n", "sample size")];
+const PARTIAL_ROLES: &[Role] = &[
+    role("t", "t statistic of the focal predictor"),
+    role("n", "sample size"),
+    role("covariates", "number of other predictors in the regression"),
+];
+const SLOPE_ROLES: &[Role] = &[
+    role("slope", "unstandardised regression slope"),
+    role("se", "its standard error"),
+];
+const SMD_ROLES: &[Role] = &[
+    role("treat_mean", "mean of the treated group"),
+    role("treat_sd", "SD of the treated group"),
+    role("treat_n", "size of the treated group"),
+    role("ctrl_mean", "mean of the control group"),
+    role("ctrl_sd", "SD of the control group"),
+    role("ctrl_n", "size of the control group"),
+];
+const BINARY_ROLES: &[Role] = &[
+    role("treat_events", "events in the treated group"),
+    role("treat_n", "size of the treated group"),
+    role("ctrl_events", "events in the control group"),
+    role("ctrl_n", "size of the control group"),
+];
+
+impl Measure {
+    /// Every measure, in the order the help lists them.
+    pub const ALL: [Measure; 8] = [
+        Measure::Effect,
+        Measure::R,
+        Measure::PartialR,
+        Measure::Slope,
+        Measure::Smd,
+        Measure::LogOr,
+        Measure::LogRr,
+        Measure::RiskDiff,
+    ];
+
+    /// The name used on the command line and in JSON.
+    pub fn id(self) -> &'static str {
+        match self {
+            Measure::Effect => "effect",
+            Measure::R => "r",
+            Measure::PartialR => "partial-r",
+            Measure::Slope => "slope",
+            Measure::Smd => "smd",
+            Measure::LogOr => "log-or",
+            Measure::LogRr => "log-rr",
+            Measure::RiskDiff => "risk-diff",
+        }
+    }
+
+    /// What the analysed numbers are, in words.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Measure::Effect => "effects as supplied",
+            Measure::R => "Fisher z of Pearson correlations",
+            Measure::PartialR => "Fisher z of partial correlations",
+            Measure::Slope => "unstandardised slopes",
+            Measure::Smd => "standardised mean differences (Hedges' g)",
+            Measure::LogOr => "log odds ratios",
+            Measure::LogRr => "log risk ratios",
+            Measure::RiskDiff => "risk differences",
+        }
+    }
+
+    /// The input roles, whose names are also the default headers.
+    pub fn roles(self) -> &'static [Role] {
+        match self {
+            Measure::Effect => EFFECT_ROLES,
+            Measure::R => R_ROLES,
+            Measure::PartialR => PARTIAL_ROLES,
+            Measure::Slope => SLOPE_ROLES,
+            Measure::Smd => SMD_ROLES,
+            Measure::LogOr | Measure::LogRr | Measure::RiskDiff => BINARY_ROLES,
+        }
+    }
+
+    /// How results are shown back to readers.
+    pub fn reading_scale(self) -> ReadingScale {
+        match self {
+            Measure::R | Measure::PartialR => ReadingScale::Correlation,
+            Measure::LogOr | Measure::LogRr => ReadingScale::Ratio,
+            _ => ReadingScale::Same,
+        }
+    }
+
+    /// Name of the reading-scale quantity, where it differs from the analysis scale.
+    pub fn reading_name(self) -> Option<&'static str> {
+        match self {
+            Measure::R => Some("r"),
+            Measure::PartialR => Some("partial r"),
+            Measure::LogOr => Some("odds ratio"),
+            Measure::LogRr => Some("risk ratio"),
+            _ => None,
+        }
+    }
+}
+
+/// One row turned into an effect, or the reason it is left out.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RowEffect {
+    /// A usable effect.
+    Value {
+        /// Effect on the analysis scale.
+        y: f64,
+        /// Sampling variance (> 0).
+        v: f64,
+        /// An adjustment that was made, in words (for example a zero-cell correction).
+        note: Option<String>,
+    },
+    /// The row cannot give an effect; the reason in words.
+    Excluded(String),
+}
+
+/// What one row's values are wrong about: the role and the message.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RowProblem {
+    /// The role whose value is wrong.
+    pub role: &'static str,
+    /// What is wrong and how to fix it.
+    pub message: String,
+}
+
+impl RowProblem {
+    /// A problem with role `role`.
+    pub fn new(role: &'static str, message: impl Into<String>) -> Self {
+        RowProblem {
+            role,
+            message: message.into(),
+        }
+    }
+}
+
+/// Result of one row's computation.
+pub type RowResult = std::result::Result<RowEffect, RowProblem>;
+
+/// The per-role values of one row, as parsed numbers or missing.
+#[derive(Debug, Clone, Copy)]
+pub struct RowValues<'a> {
+    roles: &'a [Role],
+    values: &'a [Option<f64>],
+}
+
+impl<'a> RowValues<'a> {
+    /// Builds the view; `values` has one entry per role (None: missing or column absent).
+    pub fn new(roles: &'a [Role], values: &'a [Option<f64>]) -> Self {
+        RowValues { roles, values }
+    }
+
+    /// The value of role `name`, if present.
+    pub fn get(&self, name: &str) -> Option<f64> {
+        self.roles
+            .iter()
+            .position(|r| r.name == name)
+            .and_then(|i| self.values[i])
+    }
+}
+
+/// Computes one row's effect for `measure` from its role values.
+pub fn compute_row(measure: Measure, row: RowValues<'_>) -> RowResult {
+    match measure {
+        Measure::Effect => generic::precomputed(row),
+        Measure::Slope => generic::slope(row),
+        Measure::R => correlation::fisher_z_row(row),
+        Measure::PartialR => correlation::partial_row(row),
+        Measure::Smd => smd::hedges_g_row(row),
+        Measure::LogOr => binary::row(row, binary::Kind::LogOddsRatio),
+        Measure::LogRr => binary::row(row, binary::Kind::LogRiskRatio),
+        Measure::RiskDiff => binary::row(row, binary::Kind::RiskDifference),
+    }
+}
+
+/// Returns the first missing required role, for the exclusion reason.
+pub(crate) fn first_missing(row: RowValues<'_>, names: &[&'static str]) -> Option<&'static str> {
+    names.iter().copied().find(|n| row.get(n).is_none())
+}
+
+/// Maps measure roles to the headers the user's file uses.
+#[derive(Debug, Clone, Default)]
+pub struct ColumnMap {
+    overrides: BTreeMap<String, String>,
+}
+
+impl ColumnMap {
+    /// A map with the given `ROLE -> HEADER` overrides.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] when a role is not one of the measure's roles.
+    pub fn new(measure: Measure, overrides: BTreeMap<String, String>) -> Result<Self> {
+        for role in overrides.keys() {
+            if !measure.roles().iter().any(|r| r.name == role) {
+                let names: Vec<&str> = measure.roles().iter().map(|r| r.name).collect();
+                return Err(Error::usage(
+                    "--col",
+                    format!(
+                        "'{role}' is not an input of measure '{}'; its inputs are: {}",
+                        measure.id(),
+                        names.join(", ")
+                    ),
+                ));
+            }
+        }
+        Ok(ColumnMap { overrides })
+    }
+
+    /// The header used for `role`.
+    pub fn header(&self, role: &str) -> String {
+        self.overrides
+            .get(role)
+            .cloned()
+            .unwrap_or_else(|| role.to_string())
+    }
+
+    /// Column requests for the measure's roles, in role order.
+    pub fn requests(&self, measure: Measure) -> Vec<ColumnRequest> {
+        measure
+            .roles()
+            .iter()
+            .map(|r| ColumnRequest {
+                header: self.header(r.name),
+                required: r.required,
+                purpose: format!("{} ({}) with --measure {}", r.meaning, r.name, measure.id()),
+                hint: format!(
+                    "Rename the column, or map it with --col {}=<header>.",
+                    r.name
+                ),
+            })
+            .collect()
+    }
+}
+
+/// Effects of every row of a table.
+#[derive(Debug, Clone)]
+pub struct EffectColumn {
+    /// One entry per table row.
+    pub rows: Vec<RowEffect>,
+}
+
+/// Computes effects for every row. `first` is the index of the first measure
+/// column in the table's requests (the measure's roles are consecutive).
+///
+/// # Errors
+/// [`Error::MissingColumn`] when `effect` has none of its precision columns;
+/// [`Error::Cells`] listing every cell that is not a number or is out of range.
+pub fn compute(
+    measure: Measure,
+    map: &ColumnMap,
+    table: &Table,
+    first: usize,
+) -> Result<EffectColumn> {
+    let roles = measure.roles();
+    if measure == Measure::Effect {
+        let has = |name: &str| {
+            let i = roles.iter().position(|r| r.name == name).unwrap_or(0);
+            table.column(first + i).is_some()
+        };
+        if !(has("variance") || has("se") || (has("ci_low") && has("ci_high"))) {
+            return Err(Error::MissingColumn {
+                source_name: table.source.clone(),
+                column: map.header("variance"),
+                purpose: "the precision of each effect with --measure effect".into(),
+                available: table.headers.join(", "),
+                hint: format!(
+                    "Give one of the columns '{}', '{}', or '{}' with '{}' (95% CI), or map them with --col.",
+                    map.header("variance"),
+                    map.header("se"),
+                    map.header("ci_low"),
+                    map.header("ci_high")
+                ),
+            });
+        }
+    }
+    let mut rows = Vec::with_capacity(table.len());
+    let mut problems = Vec::new();
+    let mut total = 0usize;
+    let mut values = vec![None; roles.len()];
+    let mut push_problem = |p: CellProblem, total: &mut usize| {
+        *total += 1;
+        if problems.len() < CellProblems::MAX_LISTED {
+            problems.push(p);
+        }
+    };
+    for row in 0..table.len() {
+        let mut bad = false;
+        for (j, r) in roles.iter().enumerate() {
+            values[j] = None;
+            let Some(col) = table.column(first + j) else {
+                continue;
+            };
+            let text = col.get(row);
+            match parse_cell(text) {
+                Cell::Missing => {}
+                Cell::Value(x) => values[j] = Some(x),
+                Cell::Invalid => {
+                    bad = true;
+                    push_problem(
+                        CellProblem {
+                            line: table.lines[row],
+                            column: col.header.clone(),
+                            value: shorten(text),
+                            message: format!("{} for {}", invalid_hint(text), r.name),
+                        },
+                        &mut total,
+                    );
+                }
+            }
+        }
+        if bad {
+            rows.push(RowEffect::Excluded("invalid value".into()));
+            continue;
+        }
+        match compute_row(measure, RowValues::new(roles, &values)) {
+            Ok(e) => rows.push(e),
+            Err(p) => {
+                let j = roles.iter().position(|r| r.name == p.role).unwrap_or(0);
+                let (column, value) = match table.column(first + j) {
+                    Some(c) => (c.header.clone(), shorten(c.get(row))),
+                    None => (map.header(p.role), String::new()),
+                };
+                push_problem(
+                    CellProblem {
+                        line: table.lines[row],
+                        column,
+                        value,
+                        message: p.message,
+                    },
+                    &mut total,
+                );
+                rows.push(RowEffect::Excluded("invalid value".into()));
+            }
+        }
+    }
+    if total > 0 {
+        return Err(Error::Cells(CellProblems {
+            source: table.source.clone(),
+            problems,
+            total,
+        }));
+    }
+    Ok(EffectColumn { rows })
+}
+
+/// Shortens a cell's text for messages.
+pub(crate) fn shorten(text: &str) -> String {
+    const MAX: usize = 40;
+    if text.chars().count() <= MAX {
+        text.to_string()
+    } else {
+        let s: String = text.chars().take(MAX - 1).collect();
+        format!("{s}…")
+    }
+}

@@ -1,0 +1,456 @@
+//! Reading CSV tables: delimiter detection, encoding checks, column lookup.
+//!
+//! Only the columns an analysis asks for are kept, in a compact text arena,
+//! so a million-row file costs little more than its requested cells.
+
+pub mod number;
+
+use crate::error::{Error, Result};
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+/// Where a table comes from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Source {
+    /// A file on disk.
+    File(PathBuf),
+    /// Standard input (`-` on the command line).
+    Stdin,
+}
+
+impl Source {
+    /// `-` means standard input; anything else is a path.
+    pub fn from_arg(arg: &Path) -> Self {
+        if arg.as_os_str() == "-" {
+            Source::Stdin
+        } else {
+            Source::File(arg.to_path_buf())
+        }
+    }
+
+    /// How the source is named in messages.
+    pub fn name(&self) -> String {
+        match self {
+            Source::File(p) => p.display().to_string(),
+            Source::Stdin => "<stdin>".to_string(),
+        }
+    }
+
+    /// Reads the whole source.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when the file is missing, unreadable or a directory.
+    pub fn read_all(&self) -> Result<Vec<u8>> {
+        let io = |source| Error::Io {
+            path: self.name(),
+            action: "reading",
+            source,
+        };
+        match self {
+            Source::File(p) => {
+                if p.is_dir() {
+                    return Err(Error::Format {
+                        source_name: self.name(),
+                        message: "is a directory, not a CSV file".into(),
+                    });
+                }
+                std::fs::read(p).map_err(io)
+            }
+            Source::Stdin => {
+                let mut buf = Vec::new();
+                std::io::stdin().read_to_end(&mut buf).map_err(io)?;
+                Ok(buf)
+            }
+        }
+    }
+}
+
+/// A column the caller wants from the table.
+#[derive(Debug, Clone)]
+pub struct ColumnRequest {
+    /// The header to look for.
+    pub header: String,
+    /// Whether a missing column is an error.
+    pub required: bool,
+    /// What the column is for (used in messages).
+    pub purpose: String,
+    /// How to fix a missing column (used in messages).
+    pub hint: String,
+}
+
+/// One requested column's cells, stored back to back.
+#[derive(Debug, Clone, Default)]
+pub struct Column {
+    /// The header as written in the file.
+    pub header: String,
+    text: String,
+    ends: Vec<usize>,
+}
+
+impl Column {
+    /// The cell of data row `row` (0-based).
+    pub fn get(&self, row: usize) -> &str {
+        let start = if row == 0 { 0 } else { self.ends[row - 1] };
+        &self.text[start..self.ends[row]]
+    }
+
+    fn push(&mut self, cell: &str) {
+        self.text.push_str(cell);
+        self.ends.push(self.text.len());
+    }
+}
+
+/// The requested columns of a CSV table.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// Name of the source, for messages.
+    pub source: String,
+    /// The detected delimiter.
+    pub delimiter: u8,
+    /// All headers of the file, trimmed.
+    pub headers: Vec<String>,
+    /// One entry per request: `None` when an optional column is absent.
+    pub columns: Vec<Option<Column>>,
+    /// File line number (1-based) of each data row.
+    pub lines: Vec<u64>,
+    /// How many wholly blank rows were skipped.
+    pub blank_rows: usize,
+}
+
+impl Table {
+    /// Number of data rows.
+    pub fn len(&self) -> usize {
+        self.lines.len()
+    }
+
+    /// Whether there are no data rows.
+    pub fn is_empty(&self) -> bool {
+        self.lines.is_empty()
+    }
+
+    /// The column for request `i`, if present.
+    pub fn column(&self, i: usize) -> Option<&Column> {
+        self.columns.get(i).and_then(|c| c.as_ref())
+    }
+
+    /// The delimiter in words.
+    pub fn delimiter_name(&self) -> &'static str {
+        match self.delimiter {
+            b';' => "semicolon",
+            b'\t' => "tab",
+            _ => "comma",
+        }
+    }
+}
+
+/// Chooses the delimiter from the header line: the most frequent of comma,
+/// semicolon and tab outside double quotes (comma when none occurs).
+pub fn detect_delimiter(bytes: &[u8]) -> u8 {
+    let mut counts = [0usize; 3];
+    let mut quoted = false;
+    for &b in bytes {
+        match b {
+            b'"' => quoted = !quoted,
+            b'\n' | b'\r' if !quoted => break,
+            b',' if !quoted => counts[0] += 1,
+            b';' if !quoted => counts[1] += 1,
+            b'\t' if !quoted => counts[2] += 1,
+            _ => {}
+        }
+    }
+    let candidates = [b',', b';', b'\t'];
+    let mut best = 0;
+    for i in 1..3 {
+        if counts[i] > counts[best] {
+            best = i;
+        }
+    }
+    candidates[best]
+}
+
+fn find_header(headers: &[String], wanted: &str) -> Option<usize> {
+    let wanted = wanted.trim();
+    if let Some(i) = headers.iter().position(|h| h == wanted) {
+        return Some(i);
+    }
+    let mut matches = headers
+        .iter()
+        .enumerate()
+        .filter(|(_, h)| h.to_lowercase() == wanted.to_lowercase());
+    match (matches.next(), matches.next()) {
+        (Some((i, _)), None) => Some(i),
+        _ => None,
+    }
+}
+
+fn format_error(source: &str, message: impl Into<String>) -> Error {
+    Error::Format {
+        source_name: source.to_string(),
+        message: message.into(),
+    }
+}
+
+/// Parses CSV bytes and keeps the requested columns.
+///
+/// Accepts UTF-8 with or without a byte-order mark, comma, semicolon or tab
+/// delimiters (see [`detect_delimiter`]) and quoted fields. Header names are
+/// matched exactly after trimming, or case-insensitively when that is unique.
+///
+/// # Errors
+/// [`Error::Format`] for an empty file, a file with no data rows, text that
+/// is not UTF-8, a repeated header or a row whose field count differs from
+/// the header's; [`Error::MissingColumn`] when a required column is absent.
+pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Result<Table> {
+    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    if bytes.iter().all(|b| b.is_ascii_whitespace()) {
+        return Err(format_error(
+            source,
+            "the file is empty; it needs a header row and one row per study",
+        ));
+    }
+    let delimiter = detect_delimiter(bytes);
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(bytes);
+    let header_record = reader
+        .byte_headers()
+        .map_err(|e| format_error(source, format!("the header row cannot be read: {e}")))?
+        .clone();
+    let mut headers = Vec::with_capacity(header_record.len());
+    for (i, field) in header_record.iter().enumerate() {
+        let text = std::str::from_utf8(field).map_err(|_| {
+            format_error(
+                source,
+                format!(
+                    "header field {} is not valid UTF-8; save the file as UTF-8",
+                    i + 1
+                ),
+            )
+        })?;
+        headers.push(text.trim().to_string());
+    }
+
+    let mut indices = Vec::with_capacity(requests.len());
+    for req in requests {
+        match find_header(&headers, &req.header) {
+            Some(i) => {
+                let dup = headers.iter().filter(|h| **h == headers[i]).count();
+                if dup > 1 {
+                    return Err(format_error(
+                        source,
+                        format!(
+                            "the header has {dup} columns named '{}'; rename them so each is unique",
+                            headers[i]
+                        ),
+                    ));
+                }
+                indices.push(Some(i));
+            }
+            None if req.required => {
+                return Err(Error::MissingColumn {
+                    source_name: source.to_string(),
+                    column: req.header.clone(),
+                    purpose: req.purpose.clone(),
+                    available: headers.join(", "),
+                    hint: req.hint.clone(),
+                })
+            }
+            None => indices.push(None),
+        }
+    }
+    let mut columns: Vec<Option<Column>> = indices
+        .iter()
+        .map(|ix| {
+            ix.map(|i| Column {
+                header: headers[i].clone(),
+                ..Column::default()
+            })
+        })
+        .collect();
+
+    let mut lines = Vec::new();
+    let mut blank_rows = 0;
+    let mut record = csv::ByteRecord::new();
+    // Line numbers are counted from byte offsets: the csv crate's own line
+    // count skips blank lines and miscounts CRLF files, and its offset points
+    // at the line breaks before a record, which are skipped here.
+    let mut counted_to = 0usize;
+    let mut line_no = 1u64;
+    let mut line_at = |offset: usize| {
+        let mut end = offset.min(bytes.len());
+        while end < bytes.len() && (bytes[end] == b'\n' || bytes[end] == b'\r') {
+            end += 1;
+        }
+        if end > counted_to {
+            line_no += bytes[counted_to..end]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count() as u64;
+            counted_to = end;
+        }
+        line_no
+    };
+    loop {
+        match reader.read_byte_record(&mut record) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => {
+                let line = e
+                    .position()
+                    .map(|p| line_at(p.byte() as usize))
+                    .unwrap_or(0);
+                return Err(format_error(
+                    source,
+                    format!("line {line} cannot be read as CSV: {e}"),
+                ));
+            }
+        }
+        let line = record
+            .position()
+            .map(|p| line_at(p.byte() as usize))
+            .unwrap_or(0);
+        if record
+            .iter()
+            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
+        {
+            blank_rows += 1;
+            continue;
+        }
+        if record.len() != headers.len() {
+            return Err(format_error(
+                source,
+                format!(
+                    "line {line} has {} fields but the header has {}; check for a missing value \
+                     or an unquoted '{}' inside a value",
+                    record.len(),
+                    headers.len(),
+                    delimiter as char
+                ),
+            ));
+        }
+        for (col, ix) in columns.iter_mut().zip(&indices) {
+            if let (Some(col), Some(i)) = (col.as_mut(), ix) {
+                let text = std::str::from_utf8(&record[*i]).map_err(|_| {
+                    format_error(
+                        source,
+                        format!(
+                            "line {line}, column '{}' is not valid UTF-8; save the file as UTF-8",
+                            col.header
+                        ),
+                    )
+                })?;
+                col.push(text.trim());
+            }
+        }
+        lines.push(line);
+    }
+    if lines.is_empty() {
+        return Err(format_error(
+            source,
+            "the file has a header row but no data rows; add one row per study",
+        ));
+    }
+    Ok(Table {
+        source: source.to_string(),
+        delimiter,
+        headers,
+        columns,
+        lines,
+        blank_rows,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn req(h: &str, required: bool) -> ColumnRequest {
+        ColumnRequest {
+            header: h.into(),
+            required,
+            purpose: "test".into(),
+            hint: String::new(),
+        }
+    }
+
+    #[test]
+    fn delimiters_detected() {
+        assert_eq!(detect_delimiter(b"a,b,c\n1,2,3"), b',');
+        assert_eq!(detect_delimiter(b"a;b;c\n1,2;3"), b';');
+        assert_eq!(detect_delimiter(b"a\tb\n"), b'\t');
+        assert_eq!(detect_delimiter(b"\"x;y\",b\n"), b',');
+        assert_eq!(detect_delimiter(b"single\n1\n"), b',');
+    }
+
+    #[test]
+    fn bom_quotes_unicode_and_semicolons() {
+        let data = "\u{feff}study;r;n\n\"Lab Ø; Oslo\";0,3;50\nŁódź;0.2;40\n";
+        let t = parse_table(
+            "x.csv",
+            data.as_bytes(),
+            &[req("study", true), req("n", true)],
+        )
+        .unwrap();
+        assert_eq!(t.delimiter, b';');
+        let s = t.column(0).unwrap();
+        assert_eq!(s.get(0), "Lab Ø; Oslo");
+        assert_eq!(s.get(1), "Łódź");
+        assert_eq!(t.column(1).unwrap().get(1), "40");
+        assert_eq!(t.lines, vec![2, 3]);
+    }
+
+    #[test]
+    fn case_insensitive_and_optional() {
+        let t = parse_table(
+            "x",
+            b"Study,R\na,0.1\n",
+            &[req("study", true), req("se", false)],
+        )
+        .unwrap();
+        assert_eq!(t.column(0).unwrap().get(0), "a");
+        assert!(t.column(1).is_none());
+    }
+
+    #[test]
+    fn errors_are_clear() {
+        let e = parse_table("f.csv", b"", &[]).unwrap_err().to_string();
+        assert!(e.contains("empty"), "{e}");
+        let e = parse_table("f.csv", b"a,b\n", &[]).unwrap_err().to_string();
+        assert!(e.contains("no data rows"), "{e}");
+        let e = parse_table("f.csv", b"a,b\n1,2\n3\n", &[])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 3 has 1 fields"), "{e}");
+        let e = parse_table("f.csv", b"a,b\n1,2\n", &[req("r", true)])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("no column 'r'") && e.contains("a, b"), "{e}");
+        let e = parse_table("f.csv", b"a,b\n\xff,2\n", &[req("a", true)])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("UTF-8"), "{e}");
+        let e = parse_table("f.csv", b"a,a\n1,2\n", &[req("a", true)])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("unique"), "{e}");
+    }
+
+    #[test]
+    fn blank_rows_skipped_and_counted() {
+        let t = parse_table("x", b"a,b\n1,2\n,\n\n3,4\n", &[req("a", true)]).unwrap();
+        assert_eq!(t.len(), 2);
+        assert_eq!(t.blank_rows, 1);
+        assert_eq!(t.lines, vec![2, 5]);
+    }
+
+    #[test]
+    fn line_numbers_with_crlf_and_quoted_newlines() {
+        let t = parse_table("x", b"a,b\r\n1,2\r\n\r\n3,4\r\n", &[req("a", true)]).unwrap();
+        assert_eq!(t.lines, vec![2, 4]);
+        let t = parse_table("x", b"a,b\n\"x\ny\",2\n3,4\n", &[req("a", true)]).unwrap();
+        assert_eq!(t.lines, vec![2, 4]);
+        assert_eq!(t.column(0).unwrap().get(0), "x\ny");
+    }
+}

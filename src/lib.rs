@@ -1,0 +1,42 @@
+//! # pondus
+//!
+//! Random-effects meta-analysis and meta-regression with moderators: effect
+//! sizes from per-study summaries, τ² by REML (and other estimators),
+//! small-sample-correct moderator tests, heterogeneity, predictions for a
+//! new study, and plain renderers of the result.
+//!
+//! The command-line tool `pondus` is a thin shell around this library.
+//!
+//! ```
+//! use pondus::analysis::{run, FitSettings};
+//! use pondus::effect::{ColumnMap, Measure};
+//! use pondus::model::{FitOptions, Inference, tau2::Tau2Method};
+//!
+//! let csv = "study,effect,variance\nA,0.30,0.01\nB,0.10,0.02\nC,0.45,0.015\nD,0.20,0.01\n";
+//! let settings = FitSettings {
+//!     measure: Measure::Effect,
+//!     columns: ColumnMap::default(),
+//!     label: ("study".into(), false),
+//!     moderators: vec![],
+//!     interactions: vec![],
+//!     options: FitOptions { method: Tau2Method::Reml, inference: Inference::Kh, level: 0.95 },
+//!     predictions: vec![],
+//! };
+//! let report = run(&settings, "example", csv.as_bytes()).unwrap();
+//! assert_eq!(report.k, 4);
+//! assert!(report.tau2.estimate >= 0.0);
+//! ```
+
+pub mod analysis;
+pub mod cli;
+pub mod dist;
+pub mod effect;
+pub mod error;
+pub mod input;
+pub mod model;
+pub mod output;
+pub mod report;
+pub mod result;
+pub mod tolerance;
+
+pub use error::{Error, Result};

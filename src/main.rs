@@ -1,0 +1,35 @@
+//! The `pondus` command: parse, run, report errors, exit.
+
+use clap::Parser;
+use pondus::cli::{Cli, Command};
+use std::process::ExitCode;
+
+fn run() -> anyhow::Result<()> {
+    let cli = Cli::parse();
+    match cli.command {
+        Command::Fit(args) => {
+            let run = args.check()?;
+            pondus::cli::run_fit(&run)?;
+        }
+    }
+    Ok(())
+}
+
+fn main() -> ExitCode {
+    match run() {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(err) => {
+            if let Some(pondus::Error::Io { source, .. }) = err.downcast_ref::<pondus::Error>() {
+                if source.kind() == std::io::ErrorKind::BrokenPipe {
+                    return ExitCode::SUCCESS;
+                }
+            }
+            eprintln!("pondus: error: {err:#}");
+            let code = err
+                .downcast_ref::<pondus::Error>()
+                .map(|e| e.exit_code())
+                .unwrap_or(1);
+            ExitCode::from(code)
+        }
+    }
+}

@@ -1,0 +1,517 @@
+//! From moderator columns to a design matrix: type detection, dummy coding,
+//! centring, product terms, and the checks that the model can be estimated.
+
+use crate::error::{Error, Result};
+use crate::input::number::{is_missing, parse_cell, Cell};
+use crate::tolerance;
+use serde::Serialize;
+
+/// What the user asked for one moderator.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ModeratorSpec {
+    /// Column header.
+    pub name: String,
+    /// Treat as categorical even when every value is a number.
+    pub categorical: bool,
+    /// Reference level of a categorical moderator.
+    pub reference: Option<String>,
+    /// Mean-centre a numeric moderator.
+    pub center: bool,
+}
+
+/// The kind of a moderator, as found in the data.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "type", rename_all = "lowercase")]
+pub enum ModeratorKind {
+    /// A number per study.
+    Numeric {
+        /// Mean over the included studies.
+        mean: f64,
+        /// SD over the included studies (divisor k − 1).
+        sd: f64,
+        /// Smallest included value.
+        min: f64,
+        /// Largest included value.
+        max: f64,
+        /// Whether the mean was subtracted before fitting.
+        centered: bool,
+    },
+    /// A label per study, dummy-coded against a reference level.
+    Categorical {
+        /// Levels in sorted order.
+        levels: Vec<String>,
+        /// Studies per level, in the order of `levels`.
+        counts: Vec<usize>,
+        /// The reference level.
+        reference: String,
+    },
+}
+
+/// A moderator as used in the model.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Moderator {
+    /// Column header.
+    pub name: String,
+    /// Numeric or categorical, with its summary.
+    pub kind: ModeratorKind,
+}
+
+/// The per-row raw values of one moderator (all rows of the table).
+#[derive(Debug, Clone)]
+pub enum RawModerator {
+    /// Every non-missing value parsed as a number (None = missing).
+    Numeric(Vec<Option<f64>>),
+    /// Labels (None = missing).
+    Text(Vec<Option<String>>),
+}
+
+impl RawModerator {
+    /// Whether row `i` has a value.
+    pub fn present(&self, i: usize) -> bool {
+        match self {
+            RawModerator::Numeric(v) => v[i].is_some(),
+            RawModerator::Text(v) => v[i].is_some(),
+        }
+    }
+}
+
+/// Reads a moderator's cells and decides its type.
+///
+/// # Errors
+/// [`Error::Usage`] when a column is mostly numbers but has a few cells that
+/// are not, which is far more often a typo than a categorical moderator.
+pub fn classify(
+    spec: &ModeratorSpec,
+    cells: &[&str],
+    lines: &[u64],
+    source: &str,
+) -> Result<RawModerator> {
+    let mut numeric = Vec::with_capacity(cells.len());
+    let mut bad: Vec<usize> = Vec::new();
+    let mut present = 0usize;
+    for (i, c) in cells.iter().enumerate() {
+        match parse_cell(c) {
+            Cell::Missing => numeric.push(None),
+            Cell::Value(x) => {
+                present += 1;
+                numeric.push(Some(x));
+            }
+            Cell::Invalid => {
+                present += 1;
+                bad.push(i);
+                numeric.push(None);
+            }
+        }
+    }
+    if spec.categorical || !bad.is_empty() {
+        let good = present - bad.len();
+        if !spec.categorical && good * 2 > present {
+            let shown: Vec<String> = bad
+                .iter()
+                .take(5)
+                .map(|&i| format!("line {} ('{}')", lines[i], cells[i]))
+                .collect();
+            return Err(Error::usage(
+                "--moderator",
+                format!(
+                    "{source}: column '{}' is mostly numbers but not at {}; fix those cells, or pass \
+                     --categorical {} to treat every value as a category label",
+                    spec.name,
+                    shown.join(", "),
+                    spec.name
+                ),
+            ));
+        }
+        let text = cells
+            .iter()
+            .map(|c| (!is_missing(c)).then(|| c.trim().to_string()))
+            .collect();
+        return Ok(RawModerator::Text(text));
+    }
+    Ok(RawModerator::Numeric(numeric))
+}
+
+/// A term of the model.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Term {
+    /// Label, e.g. `intercept`, `dose`, `region=south`, `dose×region=south`.
+    pub name: String,
+}
+
+/// The design matrix and what it is made of.
+#[derive(Debug, Clone)]
+pub struct Design {
+    /// Row-major k × p.
+    pub x: Vec<f64>,
+    /// Number of columns.
+    pub p: usize,
+    /// Terms, intercept first.
+    pub terms: Vec<Term>,
+    /// Moderators in the order given.
+    pub moderators: Vec<Moderator>,
+    /// Interactions as moderator-index pairs.
+    pub interactions: Vec<(usize, usize)>,
+}
+
+/// Columns a moderator contributes for one study: its value(s) by term.
+fn columns_for(m: &Moderator, numeric: Option<f64>, label: Option<&str>) -> Result<Vec<f64>> {
+    match &m.kind {
+        ModeratorKind::Numeric { mean, centered, .. } => {
+            let x = numeric.unwrap_or(f64::NAN);
+            Ok(vec![if *centered { x - mean } else { x }])
+        }
+        ModeratorKind::Categorical {
+            levels, reference, ..
+        } => {
+            let l = label.unwrap_or("");
+            if !levels.iter().any(|x| x == l) {
+                return Err(Error::usage(
+                    "--at",
+                    format!(
+                        "'{l}' is not a level of moderator '{}'; its levels are: {}",
+                        m.name,
+                        levels.join(", ")
+                    ),
+                ));
+            }
+            Ok(levels
+                .iter()
+                .filter(|x| *x != reference)
+                .map(|x| if x == l { 1.0 } else { 0.0 })
+                .collect())
+        }
+    }
+}
+
+fn term_names(m: &Moderator) -> Vec<String> {
+    match &m.kind {
+        ModeratorKind::Numeric { .. } => vec![m.name.clone()],
+        ModeratorKind::Categorical {
+            levels, reference, ..
+        } => levels
+            .iter()
+            .filter(|x| *x != reference)
+            .map(|x| format!("{}={}", m.name, x))
+            .collect(),
+    }
+}
+
+/// One study's values of every moderator: a number or a label.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Value {
+    /// For a numeric moderator (on the original scale).
+    Number(f64),
+    /// For a categorical moderator.
+    Label(String),
+}
+
+/// Builds the design row for one study from its moderator values (in moderator order).
+///
+/// # Errors
+/// [`Error::Usage`] for a label that is not a level, or a number for a categorical moderator.
+pub fn design_row(
+    design_mods: &[Moderator],
+    interactions: &[(usize, usize)],
+    values: &[Value],
+) -> Result<Vec<f64>> {
+    let mut per_mod = Vec::with_capacity(design_mods.len());
+    for (m, v) in design_mods.iter().zip(values) {
+        let cols = match v {
+            Value::Number(x) => columns_for(m, Some(*x), None)?,
+            Value::Label(l) => columns_for(m, None, Some(l))?,
+        };
+        per_mod.push(cols);
+    }
+    let mut row = vec![1.0];
+    for cols in &per_mod {
+        row.extend_from_slice(cols);
+    }
+    for &(a, b) in interactions {
+        for xa in &per_mod[a] {
+            for xb in &per_mod[b] {
+                row.push(xa * xb);
+            }
+        }
+    }
+    Ok(row)
+}
+
+/// Builds the design from the included rows' raw moderator values.
+///
+/// # Errors
+/// [`Error::Model`] for a moderator with a single value, an unknown reference
+/// level, too many terms for the studies, or collinear terms.
+pub fn build(
+    specs: &[ModeratorSpec],
+    raw: &[RawModerator],
+    included: &[usize],
+    interactions: &[(usize, usize)],
+) -> Result<Design> {
+    let k = included.len();
+    let mut moderators = Vec::with_capacity(specs.len());
+    for (spec, r) in specs.iter().zip(raw) {
+        let kind = match r {
+            RawModerator::Numeric(v) => {
+                let xs: Vec<f64> = included.iter().map(|&i| v[i].unwrap_or(f64::NAN)).collect();
+                let mean = xs.iter().sum::<f64>() / k as f64;
+                let var =
+                    xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
+                let min = xs.iter().copied().fold(f64::INFINITY, f64::min);
+                let max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                if min == max {
+                    return Err(Error::Model(format!(
+                        "moderator '{}' has the same value ({min}) in every included study, so its \
+                         effect cannot be estimated; drop it",
+                        spec.name
+                    )));
+                }
+                ModeratorKind::Numeric {
+                    mean,
+                    sd: var.sqrt(),
+                    min,
+                    max,
+                    centered: spec.center,
+                }
+            }
+            RawModerator::Text(v) => {
+                if spec.center {
+                    return Err(Error::usage(
+                        "--center",
+                        format!(
+                            "moderator '{}' is categorical and cannot be centred",
+                            spec.name
+                        ),
+                    ));
+                }
+                let mut levels: Vec<String> =
+                    included.iter().filter_map(|&i| v[i].clone()).collect();
+                sort_levels(&mut levels);
+                levels.dedup();
+                if levels.len() < 2 {
+                    return Err(Error::Model(format!(
+                        "moderator '{}' has only one level ('{}') among the included studies, so its \
+                         effect cannot be estimated; drop it",
+                        spec.name,
+                        levels.first().cloned().unwrap_or_default()
+                    )));
+                }
+                let counts = levels
+                    .iter()
+                    .map(|l| {
+                        included
+                            .iter()
+                            .filter(|&&i| v[i].as_deref() == Some(l))
+                            .count()
+                    })
+                    .collect();
+                let reference = match &spec.reference {
+                    Some(r) if levels.contains(r) => r.clone(),
+                    Some(r) => {
+                        return Err(Error::usage(
+                            "--reference",
+                            format!(
+                            "'{r}' is not a level of moderator '{}' among the included studies; \
+                                 its levels are: {}",
+                            spec.name,
+                            levels.join(", ")
+                        ),
+                        ))
+                    }
+                    None => levels[0].clone(),
+                };
+                ModeratorKind::Categorical {
+                    levels,
+                    counts,
+                    reference,
+                }
+            }
+        };
+        moderators.push(Moderator {
+            name: spec.name.clone(),
+            kind,
+        });
+    }
+
+    let mut terms = vec![Term {
+        name: "intercept".into(),
+    }];
+    for m in &moderators {
+        terms.extend(term_names(m).into_iter().map(|name| Term { name }));
+    }
+    for &(a, b) in interactions {
+        for na in term_names(&moderators[a]) {
+            for nb in term_names(&moderators[b]) {
+                terms.push(Term {
+                    name: format!("{na}×{nb}"),
+                });
+            }
+        }
+    }
+    let p = terms.len();
+    if k <= p {
+        return Err(Error::Model(format!(
+            "the model has {p} coefficients ({}) but only {k} studies are included; it needs at \
+             least {} studies (one more than the coefficients) to estimate the residual \
+             heterogeneity. Use fewer moderators or levels",
+            terms
+                .iter()
+                .map(|t| t.name.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
+            p + 1
+        )));
+    }
+    let mut x = Vec::with_capacity(k * p);
+    for &i in included {
+        let values: Vec<Value> = raw
+            .iter()
+            .map(|r| match r {
+                RawModerator::Numeric(v) => Value::Number(v[i].unwrap_or(f64::NAN)),
+                RawModerator::Text(v) => Value::Label(v[i].clone().unwrap_or_default()),
+            })
+            .collect();
+        x.extend(design_row(&moderators, interactions, &values)?);
+    }
+    check_rank(&x, k, p, &terms)?;
+    Ok(Design {
+        x,
+        p,
+        terms,
+        moderators,
+        interactions: interactions.to_vec(),
+    })
+}
+
+/// Sorts levels: numerically when every level is a number, else by text.
+fn sort_levels(levels: &mut [String]) {
+    let all_numbers = levels.iter().all(|l| l.parse::<f64>().is_ok());
+    if all_numbers {
+        levels.sort_by(|a, b| {
+            let (x, y) = (
+                a.parse::<f64>().unwrap_or(0.0),
+                b.parse::<f64>().unwrap_or(0.0),
+            );
+            x.total_cmp(&y)
+        });
+    } else {
+        levels.sort();
+    }
+}
+
+/// Modified Gram–Schmidt over the columns: a column whose remainder after
+/// projecting out the earlier ones keeps less than [`tolerance::COLLINEAR`]
+/// of its squared norm is a linear combination of them.
+fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
+    let mut q: Vec<Vec<f64>> = Vec::with_capacity(p);
+    for j in 0..p {
+        let mut col: Vec<f64> = (0..k).map(|i| x[i * p + j]).collect();
+        let norm0: f64 = col.iter().map(|c| c * c).sum();
+        for b in &q {
+            let dot: f64 = col.iter().zip(b).map(|(c, b)| c * b).sum();
+            for (c, b) in col.iter_mut().zip(b) {
+                *c -= dot * b;
+            }
+        }
+        let norm: f64 = col.iter().map(|c| c * c).sum();
+        if norm.is_nan() || norm <= tolerance::COLLINEAR * norm0 {
+            let earlier: Vec<&str> = terms[..j].iter().map(|t| t.name.as_str()).collect();
+            return Err(Error::Model(format!(
+                "term '{}' is a linear combination of the terms before it ({}) in the included \
+                 studies (collinear moderators), so the coefficients cannot be separated; drop one \
+                 of the moderators involved",
+                terms[j].name,
+                earlier.join(", ")
+            )));
+        }
+        let n = norm.sqrt();
+        q.push(col.into_iter().map(|c| c / n).collect());
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn spec(name: &str) -> ModeratorSpec {
+        ModeratorSpec {
+            name: name.into(),
+            categorical: false,
+            reference: None,
+            center: false,
+        }
+    }
+
+    #[test]
+    fn type_detection() {
+        let lines = [2, 3, 4, 5];
+        let r = classify(&spec("a"), &["1", "2", "", "3.5"], &lines, "f").unwrap();
+        assert!(matches!(r, RawModerator::Numeric(ref v) if v[2].is_none() && v[3] == Some(3.5)));
+        let r = classify(&spec("a"), &["x", "y", "NA", "x"], &lines, "f").unwrap();
+        assert!(matches!(r, RawModerator::Text(_)));
+        let e = classify(&spec("a"), &["1", "2", "1O", "3"], &lines, "f").unwrap_err();
+        assert!(e.to_string().contains("line 4 ('1O')"), "{e}");
+        let mut s = spec("a");
+        s.categorical = true;
+        assert!(matches!(
+            classify(&s, &["1", "2", "1O", "3"], &lines, "f").unwrap(),
+            RawModerator::Text(_)
+        ));
+    }
+
+    #[test]
+    fn dummy_coding_and_interaction() {
+        let raw = vec![
+            RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0), Some(5.0)]),
+            RawModerator::Text(
+                ["b", "a", "c", "a", "b"]
+                    .iter()
+                    .map(|s| Some(s.to_string()))
+                    .collect(),
+            ),
+        ];
+        let specs = vec![spec("dose"), spec("arm")];
+        let d = build(&specs, &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        let names: Vec<&str> = d.terms.iter().map(|t| t.name.as_str()).collect();
+        assert_eq!(names, ["intercept", "dose", "arm=b", "arm=c"]);
+        assert_eq!(&d.x[0..4], &[1.0, 1.0, 1.0, 0.0]);
+        assert_eq!(&d.x[8..12], &[1.0, 3.0, 0.0, 1.0]);
+        // Five studies cannot carry an interaction on top (p = 6).
+        assert!(build(&specs, &raw, &[0, 1, 2, 3, 4], &[(0, 1)]).is_err());
+    }
+
+    #[test]
+    fn constant_and_collinear_moderators() {
+        let raw = vec![RawModerator::Numeric(vec![Some(2.0); 4])];
+        let e = build(&[spec("c")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
+        assert!(e.to_string().contains("same value"), "{e}");
+        let raw = vec![
+            RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0)]),
+            RawModerator::Numeric(vec![Some(2.0), Some(4.0), Some(6.0), Some(8.0)]),
+        ];
+        let e = build(&[spec("a"), spec("b")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
+        assert!(
+            e.to_string().contains("term 'b' is a linear combination"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn reference_and_numeric_level_order() {
+        let raw = vec![RawModerator::Text(
+            ["10", "2", "10", "2", "3"]
+                .iter()
+                .map(|s| Some(s.to_string()))
+                .collect(),
+        )];
+        let mut s = spec("g");
+        s.categorical = true;
+        let d = build(std::slice::from_ref(&s), &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        assert_eq!(d.terms[1].name, "g=3");
+        s.reference = Some("10".into());
+        let d = build(std::slice::from_ref(&s), &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        assert_eq!(d.terms[1].name, "g=2");
+        s.reference = Some("7".into());
+        assert!(build(&[s], &raw, &[0, 1, 2, 3, 4], &[]).is_err());
+    }
+}

@@ -1,0 +1,151 @@
+//! Tests, intervals and predictions from a fitted model.
+
+use super::{Inference, ModelFit};
+use crate::dist;
+use nalgebra::{DMatrix, DVector};
+
+/// One coefficient's inference.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CoefInference {
+    /// Estimate.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Lower confidence limit.
+    pub ci_low: f64,
+    /// Upper confidence limit.
+    pub ci_high: f64,
+    /// t (kh) or z statistic.
+    pub statistic: f64,
+    /// Degrees of freedom (kh only).
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: f64,
+}
+
+/// The omnibus test of all non-intercept coefficients.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OmnibusTest {
+    /// F (kh) or chi-square (z) statistic.
+    pub statistic: f64,
+    /// Numerator df (the number of tested coefficients).
+    pub df1: f64,
+    /// Denominator df (kh only).
+    pub df2: Option<f64>,
+    /// p-value.
+    pub p: f64,
+}
+
+/// A prediction for a new study at a design row.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PredictionInference {
+    /// Predicted mean effect x0'β̂.
+    pub estimate: f64,
+    /// Its standard error √(x0' Cov x0).
+    pub se: f64,
+    /// Confidence interval for the mean effect.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval for a new study's true effect: estimate ± crit·√(se² + τ²).
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
+}
+
+/// The critical value of the two-sided interval at `level`: t(k − p) under
+/// Knapp–Hartung, normal under z.
+pub fn critical(fit: &ModelFit) -> f64 {
+    let q = 1.0 - (1.0 - fit.options.level) / 2.0;
+    match fit.options.inference {
+        Inference::Kh => dist::t_quantile(q, (fit.k - fit.p) as f64),
+        Inference::Z => dist::normal_quantile(q),
+    }
+}
+
+fn two_sided_p(fit: &ModelFit, stat: f64) -> f64 {
+    match fit.options.inference {
+        Inference::Kh => dist::t_two_sided_p(stat, (fit.k - fit.p) as f64),
+        Inference::Z => dist::normal_two_sided_p(stat),
+    }
+}
+
+/// Per-coefficient estimate, SE, interval, statistic and p.
+pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
+    let crit = critical(fit);
+    let df = match fit.options.inference {
+        Inference::Kh => Some((fit.k - fit.p) as f64),
+        Inference::Z => None,
+    };
+    (0..fit.p)
+        .map(|j| {
+            let b = fit.beta[j];
+            let se = fit.cov[(j, j)].max(0.0).sqrt();
+            let stat = b / se;
+            CoefInference {
+                estimate: b,
+                se,
+                ci_low: b - crit * se,
+                ci_high: b + crit * se,
+                statistic: stat,
+                df,
+                p: two_sided_p(fit, stat),
+            }
+        })
+        .collect()
+}
+
+/// Wald-type test that the coefficients `terms` are all zero:
+/// X² = b' V⁻¹ b on df1 = |terms|; under Knapp–Hartung F = X²/df1 on (df1, k − p).
+pub fn wald_test(fit: &ModelFit, terms: &[usize]) -> Option<OmnibusTest> {
+    let m = terms.len();
+    if m == 0 {
+        return None;
+    }
+    let b = DVector::from_iterator(m, terms.iter().map(|&j| fit.beta[j]));
+    let v = DMatrix::from_fn(m, m, |r, c| fit.cov[(terms[r], terms[c])]);
+    let chol = v.cholesky()?;
+    let x2 = b.dot(&chol.solve(&b));
+    let df1 = m as f64;
+    Some(match fit.options.inference {
+        Inference::Kh => {
+            let df2 = (fit.k - fit.p) as f64;
+            let f = x2 / df1;
+            OmnibusTest {
+                statistic: f,
+                df1,
+                df2: Some(df2),
+                p: dist::f_sf(f, df1, df2),
+            }
+        }
+        Inference::Z => OmnibusTest {
+            statistic: x2,
+            df1,
+            df2: None,
+            p: dist::chi2_sf(x2, df1),
+        },
+    })
+}
+
+/// Test of every non-intercept coefficient (None for an intercept-only model).
+pub fn omnibus(fit: &ModelFit) -> Option<OmnibusTest> {
+    let terms: Vec<usize> = (1..fit.p).collect();
+    wald_test(fit, &terms)
+}
+
+/// Prediction at design row `x0` (including the leading 1 for the intercept).
+pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
+    let x = DVector::from_column_slice(x0);
+    let est = x.dot(&fit.beta);
+    let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
+    let crit = critical(fit);
+    let pi_half = crit * (se * se + fit.tau2.estimate).sqrt();
+    PredictionInference {
+        estimate: est,
+        se,
+        ci_low: est - crit * se,
+        ci_high: est + crit * se,
+        pi_low: est - pi_half,
+        pi_high: est + pi_half,
+    }
+}

@@ -1,0 +1,196 @@
+//! The random-effects meta-regression model y = Xβ + u + e, u ~ N(0, τ²),
+//! e ~ N(0, v) with v known: τ² estimation, coefficients, tests,
+//! heterogeneity, predictions.
+
+pub mod design;
+pub mod inference;
+pub mod tau2;
+pub mod wls;
+
+use crate::error::{Error, Result};
+use nalgebra::{DMatrix, DVector};
+use serde::Serialize;
+use tau2::{Tau2Fit, Tau2Method};
+use wls::{fit_at, Data};
+
+/// How coefficients are tested.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Inference {
+    /// Knapp & Hartung (2003): t and F with the covariance scaled by the
+    /// weighted residual mean square.
+    Kh,
+    /// Wald tests with the normal and chi-square distributions.
+    Z,
+}
+
+impl Inference {
+    /// The method in words.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Inference::Kh => "Knapp–Hartung t and F tests",
+            Inference::Z => "Wald z and chi-square tests",
+        }
+    }
+}
+
+/// Options of one fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FitOptions {
+    /// τ² estimator.
+    pub method: Tau2Method,
+    /// Test distribution.
+    pub inference: Inference,
+    /// Confidence level, in (0, 1).
+    pub level: f64,
+}
+
+/// A fitted model (internal; the public result is built from it).
+#[derive(Debug, Clone)]
+pub struct ModelFit {
+    /// τ² and how it was found.
+    pub tau2: Tau2Fit,
+    /// Q-profile interval for τ² (None for the common-effect model).
+    pub tau2_ci: Option<(f64, f64)>,
+    /// Coefficients.
+    pub beta: DVector<f64>,
+    /// Covariance used for inference (scaled under Knapp–Hartung).
+    pub cov: DMatrix<f64>,
+    /// The Knapp–Hartung scale factor s² = Q(τ̂²)/(k − p), under `kh`.
+    pub kh_scale: Option<f64>,
+    /// Number of studies.
+    pub k: usize,
+    /// Number of coefficients.
+    pub p: usize,
+    /// Random-effects weights 1/(v_i + τ̂²).
+    pub weights: Vec<f64>,
+    /// Fitted values x_i'β̂.
+    pub fitted: Vec<f64>,
+    /// Standardised residuals r_i / √(1/w_i − x_i'M⁻¹x_i) (None where the variance is 0).
+    pub std_resid: Vec<Option<f64>>,
+    /// Residual heterogeneity test at the common-effect weights.
+    pub q_e: f64,
+    /// Typical within-study variance (k − p)/tr P₀.
+    pub v_typical: f64,
+    /// Log-likelihood (ML) or restricted log-likelihood (REML), constants included.
+    pub log_likelihood: Option<f64>,
+    /// The options used.
+    pub options: FitOptions,
+}
+
+/// Internal standardisation of the design: X̃ = XA with every non-intercept
+/// column centred and scaled to unit SD, so the normal equations stay well
+/// conditioned (for example with a calendar year beside the intercept).
+/// The fit is invariant to this: β = Aβ̃, Cov(β) = A Cov(β̃) A'.
+struct Standardised {
+    x: Vec<f64>,
+    a: DMatrix<f64>,
+    log_det_a: f64,
+}
+
+fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
+    let mut a = DMatrix::identity(p, p);
+    let mut xs = x.to_vec();
+    let mut log_det_a = 0.0;
+    for j in 1..p {
+        let mean = (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64;
+        let ss = (0..k).map(|i| (x[i * p + j] - mean).powi(2)).sum::<f64>();
+        let sd = (ss / k as f64).sqrt();
+        let sd = if sd > 0.0 { sd } else { 1.0 };
+        for i in 0..k {
+            xs[i * p + j] = (x[i * p + j] - mean) / sd;
+        }
+        a[(j, j)] = 1.0 / sd;
+        a[(0, j)] = -mean / sd;
+        log_det_a -= sd.ln();
+    }
+    Standardised {
+        x: xs,
+        a,
+        log_det_a,
+    }
+}
+
+/// Fits the model.
+///
+/// # Errors
+/// [`Error::Model`] when k ≤ p or the design is singular;
+/// [`Error::NoConvergence`] when an estimator's root search fails.
+pub fn fit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Result<ModelFit> {
+    let k = y.len();
+    if k <= p {
+        return Err(Error::Model(format!(
+            "{k} studies cannot support {p} coefficients; at least {} are needed",
+            p + 1
+        )));
+    }
+    let st = standardise(x, k, p);
+    let data = Data { y, v, x: &st.x, p };
+    let tau2 = tau2::estimate(&data, options.method)?;
+    let t = tau2.estimate;
+    let singular = || {
+        Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
+    };
+    let f = fit_at(&data, t, false).ok_or_else(singular)?;
+    let df = (k - p) as f64;
+    let kh_scale = match options.inference {
+        Inference::Kh => Some(f.q / df),
+        Inference::Z => None,
+    };
+    let beta = &st.a * &f.beta;
+    let cov_model = &st.a * &f.m_inv * st.a.transpose();
+    let cov = match kh_scale {
+        Some(s2) => &cov_model * s2,
+        None => cov_model.clone(),
+    };
+    let orig = Data { y, v, x, p };
+    let mut weights = Vec::with_capacity(k);
+    let mut fitted = Vec::with_capacity(k);
+    let mut std_resid = Vec::with_capacity(k);
+    for i in 0..k {
+        let w = 1.0 / (v[i] + t);
+        let fi = wls::fitted(&orig, &beta, i);
+        let var_r = 1.0 / w - wls::quad_form(&orig, &cov_model, i);
+        weights.push(w);
+        fitted.push(fi);
+        std_resid.push((var_r > 1e-12 / w).then(|| (y[i] - fi) / var_r.sqrt()));
+    }
+    let fe = fit_at(&data, 0.0, true).ok_or_else(singular)?;
+    let v_typical = df / fe.tr_p;
+    let tau2_ci = match options.method {
+        Tau2Method::None => None,
+        _ => Some(tau2::q_profile(&data, options.level)?),
+    };
+    let log_likelihood = match options.method {
+        Tau2Method::Reml | Tau2Method::Ml => {
+            let restricted = options.method == Tau2Method::Reml;
+            let with_trace = fit_at(&data, t, false).ok_or_else(singular)?;
+            let mut ll = tau2::log_likelihood(&with_trace, restricted);
+            let two_pi = (2.0 * std::f64::consts::PI).ln();
+            if restricted {
+                // ln det(X'WX) in the original parametrisation = ln det(X̃'WX̃) − 2 ln|det A|.
+                ll += st.log_det_a - 0.5 * df * two_pi;
+            } else {
+                ll -= 0.5 * k as f64 * two_pi;
+            }
+            Some(ll)
+        }
+        _ => None,
+    };
+    Ok(ModelFit {
+        tau2,
+        tau2_ci,
+        beta,
+        cov,
+        kh_scale,
+        k,
+        p,
+        weights,
+        fitted,
+        std_resid,
+        q_e: fe.q,
+        v_typical,
+        log_likelihood,
+        options,
+    })
+}

@@ -1,0 +1,477 @@
+//! Estimators of the between-study variance τ², and the Q-profile interval.
+//!
+//! Likelihood estimators maximise over τ² ≥ 0 by solving the score
+//! equation with argmin's Brent root finder inside brackets found by a scan;
+//! moment estimators are the meta-regression (residual-based) forms.
+
+use super::wls::{fit_at, ols, Data, Wls};
+use crate::error::{Error, Result};
+use crate::tolerance;
+use argmin::core::{CostFunction, Executor, State, TerminationReason, TerminationStatus};
+use argmin::solver::brent::BrentRoot;
+use serde::Serialize;
+
+/// Which τ² estimator.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Tau2Method {
+    /// Restricted maximum likelihood.
+    Reml,
+    /// Maximum likelihood.
+    Ml,
+    /// DerSimonian–Laird (generalised method of moments).
+    Dl,
+    /// Paule–Mandel.
+    Pm,
+    /// Hedges' OLS-based moment estimator.
+    He,
+    /// Sidik–Jonkman.
+    Sj,
+    /// τ² fixed at 0 (common-effect model).
+    None,
+}
+
+impl Tau2Method {
+    /// The command-line name.
+    pub fn id(self) -> &'static str {
+        match self {
+            Tau2Method::Reml => "reml",
+            Tau2Method::Ml => "ml",
+            Tau2Method::Dl => "dl",
+            Tau2Method::Pm => "pm",
+            Tau2Method::He => "he",
+            Tau2Method::Sj => "sj",
+            Tau2Method::None => "none",
+        }
+    }
+
+    /// The estimator in words.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Tau2Method::Reml => "restricted maximum likelihood (REML)",
+            Tau2Method::Ml => "maximum likelihood (ML)",
+            Tau2Method::Dl => "DerSimonian–Laird moments",
+            Tau2Method::Pm => "Paule–Mandel",
+            Tau2Method::He => "Hedges' OLS-based moments",
+            Tau2Method::Sj => "Sidik–Jonkman",
+            Tau2Method::None => "none (common-effect model, τ² = 0)",
+        }
+    }
+}
+
+/// How the τ² estimate was reached.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Ending {
+    /// A closed-form estimate, positive.
+    ClosedForm,
+    /// A closed-form estimate that was negative and set to 0.
+    TruncatedAtZero,
+    /// The root search converged inside (0, ∞).
+    Converged,
+    /// The maximum (or root) lies on the boundary τ² = 0.
+    Boundary,
+    /// Fixed by the user's choice of model.
+    Fixed,
+}
+
+/// A τ² estimate and how it was reached.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Tau2Fit {
+    /// The estimate (≥ 0).
+    pub estimate: f64,
+    /// The estimator.
+    pub method: Tau2Method,
+    /// How the estimate was reached.
+    pub ending: Ending,
+    /// Objective evaluations used (0 for closed forms).
+    pub evaluations: u64,
+}
+
+struct Scalar<F: Fn(f64) -> f64>(F);
+
+impl<F: Fn(f64) -> f64> CostFunction for Scalar<F> {
+    type Param = f64;
+    type Output = f64;
+    fn cost(&self, x: &f64) -> std::result::Result<f64, argmin::core::Error> {
+        Ok((self.0)(*x))
+    }
+}
+
+/// Root of `f` in [lo, hi] (f(lo) and f(hi) of opposite signs) by Brent's
+/// method (argmin's `BrentRoot`). Returns the root and the iterations used.
+///
+/// # Errors
+/// [`Error::NoConvergence`] when the solver stops for any reason other than convergence.
+pub fn brent_root<F: Fn(f64) -> f64>(f: F, lo: f64, hi: f64, what: &str) -> Result<(f64, u64)> {
+    let tol = tolerance::ROOT_REL * hi.abs().max(f64::MIN_POSITIVE);
+    let solver = BrentRoot::new(lo, hi, tol);
+    let fail = |detail: String| Error::NoConvergence {
+        what: what.to_string(),
+        detail,
+        hint: "check the data for extreme values, or try another --tau2 estimator".into(),
+    };
+    let res = Executor::new(Scalar(f), solver)
+        .configure(|s| {
+            s.param((lo + hi) / 2.0)
+                .max_iters(tolerance::ROOT_MAX_ITERS)
+        })
+        .run()
+        .map_err(|e| fail(e.to_string()))?;
+    let state = res.state();
+    match state.get_termination_status() {
+        TerminationStatus::Terminated(TerminationReason::SolverConverged) => {}
+        other => return Err(fail(format!("the root search ended with '{other:?}'"))),
+    }
+    let x = *state
+        .get_param()
+        .ok_or_else(|| fail("no estimate".into()))?;
+    if !x.is_finite() {
+        return Err(fail("a non-finite estimate".into()));
+    }
+    Ok((x, state.get_iter()))
+}
+
+fn wls(data: &Data<'_>, tau2: f64, trace: bool) -> Result<Wls> {
+    fit_at(data, tau2, trace).ok_or_else(|| {
+        Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
+    })
+}
+
+/// A starting scale for τ² brackets: the OLS residual variance (or the mean
+/// sampling variance when the OLS fit is exact).
+fn scale_hint(data: &Data<'_>) -> f64 {
+    let k = data.k() as f64;
+    let df = (data.k() - data.p).max(1) as f64;
+    let rss = ols(data).map(|(_, _, rss)| rss).unwrap_or(0.0);
+    let mean_v = data.v.iter().sum::<f64>() / k;
+    let s = rss / df;
+    if s > 0.0 && s.is_finite() {
+        s
+    } else {
+        mean_v.max(f64::MIN_POSITIVE)
+    }
+}
+
+/// Smallest `hi = start·2^j` with `f(hi) < 0`.
+fn bracket_above<F: Fn(f64) -> f64>(f: &F, start: f64, what: &str) -> Result<f64> {
+    let mut hi = start;
+    for _ in 0..tolerance::BRACKET_DOUBLINGS {
+        if f(hi) < 0.0 {
+            return Ok(hi);
+        }
+        hi *= 2.0;
+    }
+    Err(Error::NoConvergence {
+        what: what.to_string(),
+        detail: format!("no upper bound for τ² found up to {hi:e}"),
+        hint: "check the data for extreme values, or try another --tau2 estimator".into(),
+    })
+}
+
+/// Estimates τ² with `method`.
+///
+/// # Errors
+/// [`Error::NoConvergence`] when a root search fails; [`Error::Model`] for a
+/// singular design.
+pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
+    let k = data.k() as f64;
+    let df = (data.k() - data.p) as f64;
+    let closed = |t: f64| Tau2Fit {
+        estimate: t.max(0.0),
+        method,
+        ending: if t > 0.0 {
+            Ending::ClosedForm
+        } else {
+            Ending::TruncatedAtZero
+        },
+        evaluations: 0,
+    };
+    match method {
+        Tau2Method::None => Ok(Tau2Fit {
+            estimate: 0.0,
+            method,
+            ending: Ending::Fixed,
+            evaluations: 0,
+        }),
+        // Generalised DerSimonian–Laird (Raudenbush 2009, in Cooper, Hedges &
+        // Valentine, *Handbook of Research Synthesis*, 2nd ed., ch. 16):
+        // τ² = (Q_E − (k − p)) / tr P₀, with P₀ at the common-effect weights.
+        Tau2Method::Dl => {
+            let fe = wls(data, 0.0, true)?;
+            Ok(closed((fe.q - df) / fe.tr_p))
+        }
+        // Hedges (1983) / Raudenbush (2009) OLS-based estimator:
+        // τ² = (RSS_OLS − (Σv − tr((X'X)⁻¹X'VX))) / (k − p).
+        Tau2Method::He => {
+            let (_, xtx_inv, rss) = ols(data).ok_or_else(|| {
+                Error::Model("the design matrix is singular; the moderators are collinear".into())
+            })?;
+            let p = data.p;
+            let mut xvx = vec![0.0; p * p];
+            for i in 0..data.k() {
+                let xi = &data.x[i * p..(i + 1) * p];
+                for a in 0..p {
+                    for c in 0..p {
+                        xvx[a * p + c] += data.v[i] * xi[a] * xi[c];
+                    }
+                }
+            }
+            let mut tr = 0.0;
+            for a in 0..p {
+                for c in 0..p {
+                    tr += xtx_inv[(a, c)] * xvx[c * p + a];
+                }
+            }
+            let sum_v: f64 = data.v.iter().sum();
+            Ok(closed((rss - (sum_v - tr)) / df))
+        }
+        // Sidik & Jonkman (2005, *J. Biopharm. Stat.* 15:823): start from
+        // τ₀² = RSS_OLS / k, then τ² = τ₀² · Q(τ₀²)/(k − p).
+        Tau2Method::Sj => {
+            let (_, _, rss) = ols(data).ok_or_else(|| {
+                Error::Model("the design matrix is singular; the moderators are collinear".into())
+            })?;
+            let t0 = rss / k;
+            if t0 <= 0.0 {
+                return Ok(closed(0.0));
+            }
+            let f = wls(data, t0, false)?;
+            Ok(closed(t0 * f.q / df))
+        }
+        // Paule & Mandel (1982); meta-regression form: Q(τ²) = k − p.
+        Tau2Method::Pm => {
+            let (t, evaluations) = solve_q(data, df, "the Paule–Mandel estimate of τ²")?;
+            Ok(Tau2Fit {
+                estimate: t,
+                method,
+                ending: if t > 0.0 {
+                    Ending::Converged
+                } else {
+                    Ending::Boundary
+                },
+                evaluations,
+            })
+        }
+        Tau2Method::Reml | Tau2Method::Ml => maximise_likelihood(data, method),
+    }
+}
+
+/// Solves Q(τ²) = `target` for τ² ≥ 0, where Q(τ²) = Σ w_i r_i² decreases in τ².
+/// Returns 0 when Q(0) ≤ target already.
+///
+/// # Errors
+/// [`Error::NoConvergence`] when no bracket or root is found.
+pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
+    let q = |t: f64| fit_at(data, t, false).map(|f| f.q).unwrap_or(f64::NAN) - target;
+    let q0 = q(0.0);
+    if q0.is_nan() {
+        return Err(Error::Model(
+            "the weighted design matrix is singular; the moderators are collinear".into(),
+        ));
+    }
+    if q0 <= 0.0 {
+        return Ok((0.0, 1));
+    }
+    let hi = bracket_above(&q, scale_hint(data), what)?;
+    let (t, iters) = brent_root(q, 0.0, hi, what)?;
+    Ok((t.max(0.0), iters))
+}
+
+/// Restricted (REML) or ordinary (ML) log-likelihood at τ², up to the
+/// constant −½(k − p)·ln 2π (REML) or −½k·ln 2π (ML):
+/// ℓ_R = −½[Σ ln(v_i + τ²) + ln det X'WX + Q(τ²)],  ℓ = −½[Σ ln(v_i + τ²) + Q(τ²)]
+/// (Viechtbauer 2005, *J. Educ. Behav. Stat.* 30:261).
+pub fn log_likelihood(f: &Wls, restricted: bool) -> f64 {
+    let extra = if restricted { f.logdet_m } else { 0.0 };
+    -0.5 * (f.sum_log_vt + extra + f.q)
+}
+
+/// Score (first derivative in τ²) of the log-likelihood:
+/// REML ½[y'PPy − tr P], ML ½[Σ w_i² r_i² − Σ w_i].
+fn score(f: &Wls, restricted: bool) -> f64 {
+    let t = if restricted { f.tr_p } else { f.sum_w };
+    0.5 * (f.sum_w2r2 - t)
+}
+
+fn maximise_likelihood(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
+    let restricted = method == Tau2Method::Reml;
+    let what = if restricted {
+        "the REML estimate of τ²"
+    } else {
+        "the ML estimate of τ²"
+    };
+    let evals = std::cell::Cell::new(0u64);
+    let at = |t: f64| {
+        evals.set(evals.get() + 1);
+        fit_at(data, t, true)
+    };
+    let s = |t: f64| at(t).map(|f| score(&f, restricted)).unwrap_or(f64::NAN);
+    let ll = |t: f64| {
+        at(t)
+            .map(|f| log_likelihood(&f, restricted))
+            .unwrap_or(f64::NAN)
+    };
+
+    let s0 = s(0.0);
+    if s0.is_nan() {
+        return Err(Error::Model(
+            "the weighted design matrix is singular; the moderators are collinear".into(),
+        ));
+    }
+    let hi = bracket_above(&s, 2.0 * scale_hint(data), what)?;
+    // Scan [0, hi] (points denser near 0) for sign changes of the score from + to −:
+    // each brackets a local maximum.
+    let g = tolerance::LIKELIHOOD_SCAN_POINTS;
+    let mut grid = Vec::with_capacity(g + 1);
+    for j in 0..=g {
+        let u = j as f64 / g as f64;
+        let t = hi * u * u;
+        let sv = if j == 0 { s0 } else { s(t) };
+        grid.push((t, sv));
+    }
+    let mut candidates: Vec<(f64, f64)> = Vec::new();
+    if s0 <= 0.0 {
+        candidates.push((0.0, ll(0.0)));
+    }
+    for pair in grid.windows(2) {
+        let ((t1, s1), (t2, s2)) = (pair[0], pair[1]);
+        if s1 > 0.0 && s2 <= 0.0 {
+            let root = if s2 == 0.0 {
+                t2
+            } else {
+                brent_root(s, t1, t2, what)?.0
+            };
+            candidates.push((root, ll(root)));
+        }
+    }
+    let best = candidates
+        .iter()
+        .copied()
+        .filter(|(_, l)| l.is_finite())
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .ok_or_else(|| Error::NoConvergence {
+            what: what.to_string(),
+            detail: "no maximum of the likelihood was found".into(),
+            hint: "check the data for extreme values, or try another --tau2 estimator".into(),
+        })?;
+    Ok(Tau2Fit {
+        estimate: best.0,
+        method,
+        ending: if best.0 == 0.0 {
+            Ending::Boundary
+        } else {
+            Ending::Converged
+        },
+        evaluations: evals.get(),
+    })
+}
+
+/// Q-profile confidence interval for τ² (Viechtbauer 2007, *Stat. Med.* 26:37):
+/// the τ² values where Q(τ²) equals the upper and the lower α/2 points of
+/// χ²(k − p). A bound is 0 when Q(0) is already below its target.
+///
+/// # Errors
+/// [`Error::NoConvergence`] when a root search fails.
+pub fn q_profile(data: &Data<'_>, level: f64) -> Result<(f64, f64)> {
+    use crate::dist::{chi2_quantile, Tail};
+    let df = (data.k() - data.p) as f64;
+    let alpha = 1.0 - level;
+    let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
+    let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
+    let (lo, _) = solve_q(data, upper_point, "the lower Q-profile bound for τ²")?;
+    let (hi, _) = solve_q(data, lower_point, "the upper Q-profile bound for τ²")?;
+    Ok((lo, hi))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn intercept(k: usize) -> Vec<f64> {
+        vec![1.0; k]
+    }
+
+    #[test]
+    fn equal_variances_reml_is_moment_formula() {
+        // With all v equal, REML τ² = max(0, s² − v), s² the residual variance (k − p).
+        let y = [0.1, 0.5, -0.2, 0.9, 0.3, 0.45];
+        let v = [0.02; 6];
+        let x = intercept(6);
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        let mean = y.iter().sum::<f64>() / 6.0;
+        let s2 = y.iter().map(|y| (y - mean).powi(2)).sum::<f64>() / 5.0;
+        let f = estimate(&d, Tau2Method::Reml).unwrap();
+        assert!((f.estimate - (s2 - 0.02)).abs() < 1e-12, "{f:?}");
+        assert_eq!(f.ending, Ending::Converged);
+        // And for ML the divisor is k.
+        let f = estimate(&d, Tau2Method::Ml).unwrap();
+        assert!(
+            (f.estimate - (s2 * 5.0 / 6.0 - 0.02)).abs() < 1e-12,
+            "{f:?}"
+        );
+    }
+
+    #[test]
+    fn boundary_is_exactly_zero() {
+        let y = [0.1, 0.12, 0.09, 0.11];
+        let v = [0.05; 4];
+        let x = intercept(4);
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        for m in [
+            Tau2Method::Reml,
+            Tau2Method::Ml,
+            Tau2Method::Pm,
+            Tau2Method::Dl,
+        ] {
+            let f = estimate(&d, m).unwrap();
+            assert_eq!(f.estimate, 0.0, "{m:?}");
+        }
+    }
+
+    #[test]
+    fn paule_mandel_sets_q_to_df() {
+        let y = [0.1, 0.8, -0.3, 0.5, 1.2];
+        let v = [0.01, 0.05, 0.02, 0.1, 0.03];
+        let x = intercept(5);
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        let f = estimate(&d, Tau2Method::Pm).unwrap();
+        let q = fit_at(&d, f.estimate, false).unwrap().q;
+        assert!((q - 4.0).abs() < 1e-10, "Q = {q}");
+    }
+
+    #[test]
+    fn q_profile_bounds_hit_their_targets() {
+        let y = [0.1, 0.8, -0.3, 0.5, 1.2, 0.4, 0.0];
+        let v = [0.01, 0.05, 0.02, 0.1, 0.03, 0.02, 0.04];
+        let x = intercept(7);
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        let (lo, hi) = q_profile(&d, 0.95).unwrap();
+        assert!(0.0 < lo && lo < hi);
+        use crate::dist::{chi2_quantile, Tail};
+        let q_lo = fit_at(&d, lo, false).unwrap().q;
+        let q_hi = fit_at(&d, hi, false).unwrap().q;
+        assert!((q_lo - chi2_quantile(0.025, 6.0, Tail::Upper)).abs() < 1e-9);
+        assert!((q_hi - chi2_quantile(0.025, 6.0, Tail::Lower)).abs() < 1e-9);
+    }
+}

@@ -1,0 +1,393 @@
+//! The terminal report: plain words, aligned columns, no colour.
+
+use super::{format_num as num, format_p, format_percent};
+use crate::result::{AtValue, Estimate, FitReport, Reading};
+use std::fmt::Write as _;
+use std::io::Write;
+
+/// Studies listed one by one in the terminal at most; above this, `--table` has them.
+pub const MAX_LISTED_STUDIES: usize = 40;
+
+fn width(s: &str) -> usize {
+    s.chars().count()
+}
+
+fn pad(s: &str, w: usize) -> String {
+    let n = width(s);
+    if n >= w {
+        s.to_string()
+    } else {
+        format!("{s}{}", " ".repeat(w - n))
+    }
+}
+
+fn lpad(s: &str, w: usize) -> String {
+    let n = width(s);
+    if n >= w {
+        s.to_string()
+    } else {
+        format!("{}{s}", " ".repeat(w - n))
+    }
+}
+
+fn clip(s: &str, w: usize) -> String {
+    if width(s) <= w {
+        s.to_string()
+    } else {
+        let t: String = s.chars().take(w.saturating_sub(1)).collect();
+        format!("{t}…")
+    }
+}
+
+fn interval(lo: f64, hi: f64) -> String {
+    format!("[{}, {}]", num(lo), num(hi))
+}
+
+fn wrap(text: &str, indent: &str, width: usize) -> String {
+    let mut out = String::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+            let _ = writeln!(out, "{indent}{line}");
+            line.clear();
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        let _ = writeln!(out, "{indent}{line}");
+    }
+    out
+}
+
+fn reading_line(r: &Reading, name: &str) -> String {
+    format!(
+        "as {name}: {}  CI {}  new study {}",
+        num(r.estimate),
+        interval(r.ci_low, r.ci_high),
+        interval(r.pi_low, r.pi_high)
+    )
+}
+
+fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name: Option<&str>) {
+    let _ = writeln!(
+        out,
+        "  {}  ({level_pct} CI {}, SE {})",
+        num(e.estimate),
+        interval(e.ci_low, e.ci_high),
+        num(e.se)
+    );
+    let _ = writeln!(
+        out,
+        "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
+        interval(e.pi_low, e.pi_high)
+    );
+    if let (Some(r), Some(name)) = (&e.reading, reading_name) {
+        let _ = writeln!(out, "  {}", reading_line(r, name));
+    }
+}
+
+fn at_text(at: &std::collections::BTreeMap<String, AtValue>) -> String {
+    at.iter()
+        .map(|(k, v)| match v {
+            AtValue::Number(x) => format!("{k} = {x}"),
+            AtValue::Level(l) => format!("{k} = {l}"),
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Renders the report as text.
+pub fn render(r: &FitReport) -> String {
+    let mut o = String::new();
+    let level_pct = format!("{}%", (r.model.level * 100.0 * 1e6).round() / 1e6);
+    let rule = "─".repeat(72);
+    let has_mods = !r.model.moderators.is_empty();
+    let title = if has_mods {
+        "random-effects meta-regression"
+    } else {
+        "random-effects meta-analysis"
+    };
+    let _ = writeln!(o, "pondus {} · {title}", r.tool.version);
+    let _ = writeln!(o, "{rule}");
+    let _ = writeln!(
+        o,
+        "Data        {} ({}-separated, {} rows)",
+        r.input.file, r.input.delimiter, r.input.rows
+    );
+    let mut effects = r.measure.description.clone();
+    if let Some(n) = &r.measure.reading_name {
+        let _ = write!(effects, "; summaries also shown as {n}");
+    }
+    let _ = writeln!(o, "Effects     {effects}");
+    let _ = writeln!(
+        o,
+        "Studies     {} used{}",
+        r.k,
+        if r.excluded.is_empty() {
+            String::new()
+        } else {
+            format!(", {} left out (listed below)", r.excluded.len())
+        }
+    );
+    let _ = writeln!(
+        o,
+        "Model       τ² by {}; {}; {level_pct} intervals",
+        r.model.tau2_description, r.model.inference_description
+    );
+    if has_mods {
+        let mods: Vec<String> = r
+            .model
+            .moderators
+            .iter()
+            .map(|m| match &m.kind {
+                crate::model::design::ModeratorKind::Numeric { centered, .. } => {
+                    format!(
+                        "{} (numeric{})",
+                        m.name,
+                        if *centered { ", centred" } else { "" }
+                    )
+                }
+                crate::model::design::ModeratorKind::Categorical {
+                    levels, reference, ..
+                } => format!(
+                    "{} ({} levels, reference {})",
+                    m.name,
+                    levels.len(),
+                    reference
+                ),
+            })
+            .collect();
+        let _ = writeln!(o, "Moderators  {}", mods.join("; "));
+        for [a, b] in &r.model.interactions {
+            let _ = writeln!(o, "            with the product term {a}×{b}");
+        }
+    }
+    let _ = writeln!(o);
+
+    if let Some(t) = &r.moderator_test {
+        let _ = writeln!(o, "Does the effect change with the moderators?");
+        o.push_str(&wrap(&t.answer, "  ", 70));
+        let _ = writeln!(o);
+    }
+
+    let scale = match &r.measure.reading_name {
+        Some(_) if r.measure.id == "r" || r.measure.id == "partial-r" => " (Fisher z scale)",
+        Some(_) => " (log scale)",
+        None => "",
+    };
+    let _ = writeln!(o, "Coefficients{scale}");
+    let tw = r
+        .coefficients
+        .iter()
+        .map(|c| width(&c.term))
+        .max()
+        .unwrap_or(4)
+        .clamp(9, 28);
+    let stat = if r.model.inference == "kh" { "t" } else { "z" };
+    let _ = writeln!(
+        o,
+        "  {}  {}  {}  {}  {}  p",
+        pad("term", tw),
+        lpad("estimate", 10),
+        lpad("SE", 9),
+        pad(&format!("{level_pct} CI"), 22),
+        lpad(stat, 7),
+    );
+    for c in &r.coefficients {
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  {}  {}",
+            pad(&clip(&c.term, tw), tw),
+            lpad(&num(c.estimate), 10),
+            lpad(&num(c.se), 9),
+            pad(&interval(c.ci_low, c.ci_high), 22),
+            lpad(&format!("{:.2}", c.statistic), 7),
+            format_p(c.p).trim_start_matches("= ")
+        );
+    }
+    if let Some(c) = r.coefficients.first() {
+        if let Some(df) = c.df {
+            let _ = writeln!(o, "  (t tests on {df} degrees of freedom)");
+        }
+    }
+    let _ = writeln!(o);
+
+    let h = &r.heterogeneity;
+    let _ = writeln!(
+        o,
+        "{}",
+        if has_mods {
+            "Heterogeneity left after the moderators"
+        } else {
+            "Heterogeneity"
+        }
+    );
+    let ci = match (r.tau2.ci_low, r.tau2.ci_high) {
+        (Some(a), Some(b)) => format!("  ({level_pct} CI {})", interval(a, b)),
+        _ => "  (fixed by the common-effect model)".into(),
+    };
+    let _ = writeln!(
+        o,
+        "  between-study variance τ²   {}{ci}",
+        num(r.tau2.estimate)
+    );
+    let _ = writeln!(o, "  between-study SD τ          {}", num(r.tau2.tau));
+    let _ = writeln!(
+        o,
+        "  I², beyond sampling error   {}   (H² = {:.2})",
+        format_percent(h.i2),
+        h.h2
+    );
+    let _ = writeln!(
+        o,
+        "  Cochran's Q                 {:.2} on {} df, p {}",
+        h.q,
+        h.df,
+        format_p(h.p)
+    );
+    if has_mods {
+        match h.r2 {
+            Some(r2) => {
+                let _ = writeln!(
+                    o,
+                    "  explained by moderators     {}   (τ² without them: {})",
+                    format_percent(r2),
+                    num(h.tau2_without_moderators)
+                );
+            }
+            None => {
+                let _ = writeln!(
+                    o,
+                    "  explained by moderators     not defined (τ² without moderators is 0)"
+                );
+            }
+        }
+    }
+    let _ = writeln!(o);
+
+    let _ = writeln!(
+        o,
+        "{}",
+        if has_mods {
+            "Average effect (same estimator, no moderators)"
+        } else {
+            "Average effect"
+        }
+    );
+    estimate_lines(
+        &mut o,
+        &r.average,
+        &level_pct,
+        r.measure.reading_name.as_deref(),
+    );
+    let _ = writeln!(o);
+
+    if !r.predictions.is_empty() {
+        let _ = writeln!(o, "Predicted effects");
+        for p in &r.predictions {
+            let _ = writeln!(o, "  at {}:", at_text(&p.at));
+            let _ = writeln!(
+                o,
+                "    {}  ({level_pct} CI {}, SE {}); new study {}",
+                num(p.estimate),
+                interval(p.ci_low, p.ci_high),
+                num(p.se),
+                interval(p.pi_low, p.pi_high)
+            );
+            if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
+                let _ = writeln!(o, "    {}", reading_line(rd, name));
+            }
+        }
+        let _ = writeln!(o);
+    }
+
+    if r.studies.len() <= MAX_LISTED_STUDIES {
+        let _ = writeln!(o, "Studies");
+        let lw = r
+            .studies
+            .iter()
+            .map(|s| width(&s.study))
+            .max()
+            .unwrap_or(5)
+            .clamp(5, 30);
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  {}",
+            pad("study", lw),
+            lpad("effect", 10),
+            lpad("variance", 10),
+            lpad("weight", 7),
+            lpad("std. resid.", 11)
+        );
+        for s in &r.studies {
+            let _ = writeln!(
+                o,
+                "  {}  {}  {}  {}  {}{}",
+                pad(&clip(&s.study, lw), lw),
+                lpad(&num(s.effect), 10),
+                lpad(&num(s.variance), 10),
+                lpad(&format!("{:.1}%", s.weight), 7),
+                lpad(
+                    &s.std_residual
+                        .map(|x| format!("{x:.2}"))
+                        .unwrap_or("—".into()),
+                    11
+                ),
+                if s.note.is_some() { "  *" } else { "" }
+            );
+        }
+        if r.studies.iter().any(|s| s.note.is_some()) {
+            let _ = writeln!(o, "  * adjusted, see the notes");
+        }
+        let _ = writeln!(o);
+    } else {
+        let _ = writeln!(
+            o,
+            "Studies: {} used; write them all with --table FILE.csv\n",
+            r.studies.len()
+        );
+    }
+
+    if !r.excluded.is_empty() {
+        let _ = writeln!(o, "Left out");
+        for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
+            let _ = writeln!(o, "  line {}  {}: {}", e.line, e.study, e.reason);
+        }
+        if r.excluded.len() > MAX_LISTED_STUDIES {
+            let _ = writeln!(
+                o,
+                "  ... and {} more (all are in --table and --json)",
+                r.excluded.len() - MAX_LISTED_STUDIES
+            );
+        }
+        let _ = writeln!(o);
+    }
+    for (title, items) in [
+        ("Warnings", &r.warnings),
+        ("Notes", &r.notes),
+        ("Cautions", &r.cautions),
+    ] {
+        if items.is_empty() {
+            continue;
+        }
+        let _ = writeln!(o, "{title}");
+        for it in items {
+            let w = wrap(it, "    ", 68);
+            let first = w.trim_start();
+            let _ = write!(o, "  - {first}");
+        }
+        let _ = writeln!(o);
+    }
+    o
+}
+
+/// Writes the text report.
+///
+/// # Errors
+/// Any error of the writer.
+pub fn write<W: Write>(report: &FitReport, mut out: W) -> std::io::Result<()> {
+    out.write_all(render(report).as_bytes())
+}

@@ -1,0 +1,289 @@
+//! The public result of `pondus fit`: plain structs that every renderer and
+//! plot reads. Their JSON form (field docs below) is the stable schema.
+
+use crate::effect::ReadingScale;
+use crate::model::design::Moderator;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// Everything `pondus fit` reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitReport {
+    /// Tool name and version.
+    pub tool: ToolInfo,
+    /// Where the data came from.
+    pub input: InputInfo,
+    /// The effect measure.
+    pub measure: MeasureInfo,
+    /// Number of studies used in the model.
+    pub k: usize,
+    /// Rows left out, with the reason, in file order.
+    pub excluded: Vec<Excluded>,
+    /// The model that was fitted.
+    pub model: ModelInfo,
+    /// Residual between-study variance.
+    pub tau2: Tau2Report,
+    /// Coefficients, intercept first, then the terms in the order given.
+    pub coefficients: Vec<Coefficient>,
+    /// Omnibus test of every moderator term (null without moderators).
+    pub moderator_test: Option<ModeratorTest>,
+    /// Residual heterogeneity.
+    pub heterogeneity: Heterogeneity,
+    /// The average effect from the same estimator with no moderators.
+    pub average: Estimate,
+    /// Predicted effects at the `--at` values.
+    pub predictions: Vec<Prediction>,
+    /// One entry per included study, in input order.
+    pub studies: Vec<Study>,
+    /// Things that may make a result unreliable.
+    pub warnings: Vec<String>,
+    /// How to read the results responsibly.
+    pub cautions: Vec<String>,
+    /// Adjustments and facts worth knowing (corrections applied, skipped blank rows, ...).
+    pub notes: Vec<String>,
+}
+
+/// Tool name and version.
+#[derive(Debug, Clone, Serialize)]
+pub struct ToolInfo {
+    /// Always "pondus".
+    pub name: String,
+    /// The crate version.
+    pub version: String,
+}
+
+/// Where the data came from.
+#[derive(Debug, Clone, Serialize)]
+pub struct InputInfo {
+    /// File name as given (`<stdin>` for standard input).
+    pub file: String,
+    /// Detected delimiter: "comma", "semicolon" or "tab".
+    pub delimiter: String,
+    /// Data rows read (blank rows not counted).
+    pub rows: usize,
+    /// Header of the column used for study labels (null: labels made from line numbers).
+    pub label_column: Option<String>,
+}
+
+/// The effect measure.
+#[derive(Debug, Clone, Serialize)]
+pub struct MeasureInfo {
+    /// Command-line name, e.g. "r" or "log-or".
+    pub id: String,
+    /// What the analysed numbers are.
+    pub description: String,
+    /// How results are shown back: "same", "correlation" (tanh) or "ratio" (exp).
+    pub reading_scale: ReadingScale,
+    /// Name of the back-transformed quantity (null when the same).
+    pub reading_name: Option<String>,
+    /// The value of "no effect" on the analysis scale (always 0).
+    pub null_value: f64,
+}
+
+/// A row left out of the model.
+#[derive(Debug, Clone, Serialize)]
+pub struct Excluded {
+    /// Study label.
+    pub study: String,
+    /// Line in the file.
+    pub line: u64,
+    /// Why it was left out.
+    pub reason: String,
+}
+
+/// The model that was fitted.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelInfo {
+    /// τ² estimator id ("reml", "ml", "dl", "pm", "he", "sj", "none").
+    pub tau2_method: String,
+    /// The estimator in words.
+    pub tau2_description: String,
+    /// "kh" or "z".
+    pub inference: String,
+    /// The inference method in words.
+    pub inference_description: String,
+    /// Confidence level of every interval.
+    pub level: f64,
+    /// Term labels in coefficient order.
+    pub terms: Vec<String>,
+    /// Moderators with their type and summary.
+    pub moderators: Vec<Moderator>,
+    /// Product terms as moderator-name pairs.
+    pub interactions: Vec<[String; 2]>,
+    /// Knapp–Hartung scale factor s² (null under z).
+    pub kh_scale: Option<f64>,
+    /// Log-likelihood at the estimate for "ml", restricted log-likelihood for "reml" (else null).
+    pub log_likelihood: Option<f64>,
+}
+
+/// Residual between-study variance.
+#[derive(Debug, Clone, Serialize)]
+pub struct Tau2Report {
+    /// Estimator id.
+    pub method: String,
+    /// Estimate (≥ 0).
+    pub estimate: f64,
+    /// √τ², on the analysis scale.
+    pub tau: f64,
+    /// Q-profile lower limit (null for "none").
+    pub ci_low: Option<f64>,
+    /// Q-profile upper limit (null for "none").
+    pub ci_high: Option<f64>,
+    /// How the estimate was reached: "closed-form", "truncated-at-zero", "converged", "boundary", "fixed".
+    pub ending: crate::model::tau2::Ending,
+    /// Objective evaluations used by an iterative estimator.
+    pub evaluations: u64,
+}
+
+/// One coefficient.
+#[derive(Debug, Clone, Serialize)]
+pub struct Coefficient {
+    /// Term label.
+    pub term: String,
+    /// Estimate.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Lower confidence limit.
+    pub ci_low: f64,
+    /// Upper confidence limit.
+    pub ci_high: f64,
+    /// t (kh) or z statistic.
+    pub statistic: f64,
+    /// Degrees of freedom of t (null under z).
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: f64,
+}
+
+/// The omnibus moderator test.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModeratorTest {
+    /// F (kh) or chi-square (z).
+    pub statistic: f64,
+    /// Numerator df.
+    pub df1: f64,
+    /// Denominator df (null under z).
+    pub df2: Option<f64>,
+    /// p-value.
+    pub p: f64,
+    /// "F" or "chi-square".
+    pub distribution: String,
+    /// Whether p < 1 − level.
+    pub significant: bool,
+    /// The plain answer in words.
+    pub answer: String,
+}
+
+/// Residual heterogeneity.
+#[derive(Debug, Clone, Serialize)]
+pub struct Heterogeneity {
+    /// Cochran's Q on the residuals with common-effect weights.
+    pub q: f64,
+    /// Its df, k − p.
+    pub df: f64,
+    /// Its chi-square p-value.
+    pub p: f64,
+    /// I² as a fraction: τ²/(τ² + ṽ) (Q-based for "none").
+    pub i2: f64,
+    /// H² = 1/(1 − I²).
+    pub h2: f64,
+    /// Share of τ² explained by the moderators, in [0, 1] (null without moderators or when τ²₀ = 0).
+    pub r2: Option<f64>,
+    /// τ² of the same estimator with no moderators.
+    pub tau2_without_moderators: f64,
+    /// Typical within-study variance ṽ = (k − p)/tr P₀.
+    pub typical_variance: f64,
+}
+
+/// An estimate with confidence and prediction intervals.
+#[derive(Debug, Clone, Serialize)]
+pub struct Estimate {
+    /// Estimate on the analysis scale.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Confidence interval.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval for a new study's true effect.
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
+    /// The same on the reading scale (null when the same as analysed).
+    pub reading: Option<Reading>,
+}
+
+/// Values on the reading scale (r or a ratio).
+#[derive(Debug, Clone, Serialize)]
+pub struct Reading {
+    /// Estimate.
+    pub estimate: f64,
+    /// Confidence interval.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval.
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
+}
+
+/// A moderator value in a prediction: a number or a level.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(untagged)]
+pub enum AtValue {
+    /// A numeric moderator's value (original scale).
+    Number(f64),
+    /// A categorical moderator's level.
+    Level(String),
+}
+
+/// A predicted effect at given moderator values.
+#[derive(Debug, Clone, Serialize)]
+pub struct Prediction {
+    /// Moderator values.
+    pub at: BTreeMap<String, AtValue>,
+    /// Estimate on the analysis scale.
+    pub estimate: f64,
+    /// Standard error of the mean effect there.
+    pub se: f64,
+    /// Confidence interval.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval.
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
+    /// The same on the reading scale.
+    pub reading: Option<Reading>,
+    /// Moderator values outside the range of the studies (extrapolation).
+    pub outside_range: Vec<String>,
+}
+
+/// One included study.
+#[derive(Debug, Clone, Serialize)]
+pub struct Study {
+    /// Label.
+    pub study: String,
+    /// Line in the file.
+    pub line: u64,
+    /// Effect on the analysis scale.
+    pub effect: f64,
+    /// Sampling variance.
+    pub variance: f64,
+    /// Share of the total weight, in percent.
+    pub weight: f64,
+    /// Fitted value x_i'β̂.
+    pub fitted: f64,
+    /// Residual effect − fitted.
+    pub residual: f64,
+    /// Standardised residual (null when undefined).
+    pub std_residual: Option<f64>,
+    /// Moderator values of the study.
+    pub moderators: BTreeMap<String, AtValue>,
+    /// An adjustment made to this study's data.
+    pub note: Option<String>,
+}

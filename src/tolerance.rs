@@ -1,0 +1,35 @@
+//! Every numerical tolerance of the project, in one place.
+//!
+//! Solver settings first, then the tolerances the tests compare with.
+
+/// Relative accuracy asked of every one-dimensional root search (τ² by
+/// REML/ML score, Paule–Mandel, Q-profile bounds): a few machine epsilons.
+pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
+
+/// Iteration limit of each root search; Brent's method needs far fewer
+/// (it converges superlinearly, and bisection alone halves a bracket 1,000
+/// times long before that).
+pub const ROOT_MAX_ITERS: u64 = 500;
+
+/// Points of the scan that brackets the (restricted) likelihood's maxima
+/// before the root search. A scan, not only a local search from one start,
+/// so that a second local maximum is not missed.
+pub const LIKELIHOOD_SCAN_POINTS: usize = 10;
+
+/// How many times the upper end of a τ² bracket may be doubled.
+pub const BRACKET_DOUBLINGS: usize = 200;
+
+/// A design column whose part not explained by the earlier columns has a
+/// squared norm below this share of its own is treated as collinear.
+pub const COLLINEAR: f64 = 1e-10;
+
+/// Test tolerance against independent reference libraries that compute the
+/// same definitions in double precision (numpy/scipy/statsmodels).
+pub const REFERENCE_REL: f64 = 1e-7;
+
+/// Test tolerance against values published to 4 decimals: half a unit in
+/// the last place, plus a little for the rounding of inputs.
+pub const PUBLISHED_4DP: f64 = 6e-5;
+
+/// Tolerance of exact identities checked in property tests.
+pub const IDENTITY_REL: f64 = 1e-8;

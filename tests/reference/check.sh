@@ -1,0 +1,49 @@
+#!/usr/bin/env bash
+# Regenerate the reference fixtures with the pinned Python environment and
+# compare them with the committed tests/data/reference/*.json and *.csv.
+#
+#   bash tests/reference/check.sh            # check
+#   REFERENCE_VENV=/some/dir bash tests/reference/check.sh
+#   PYTHON=python3.11 bash tests/reference/check.sh
+#
+# Needs only python3.11 with the venv module and pip (PyPI reachable the first
+# time). The venv is created at ${REFERENCE_VENV:-target/reference-venv}
+# (relative to the repository root) and reused when present.
+set -euo pipefail
+
+here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+root="$(cd "$here/../.." && pwd)"
+cd "$root"
+
+python="${PYTHON:-python3.11}"
+venv="${REFERENCE_VENV:-target/reference-venv}"
+committed="$root/tests/data/reference"
+
+die() { echo "check.sh: $*" >&2; exit 1; }
+
+command -v "$python" >/dev/null 2>&1 || die "$python not found (set PYTHON=...)"
+
+if [ ! -x "$venv/bin/python" ]; then
+    echo "creating venv at $venv"
+    mkdir -p "$(dirname "$venv")"
+    "$python" -m venv "$venv" || die "could not create venv at $venv"
+fi
+"$venv/bin/python" -m pip install --quiet --disable-pip-version-check \
+    -r "$here/requirements.txt" || die "pip install -r tests/reference/requirements.txt failed"
+
+[ -d "$committed" ] || die "no committed fixtures: $committed does not exist"
+
+tmp="$(mktemp -d)"
+trap 'rm -rf "$tmp"' EXIT
+
+"$venv/bin/python" "$here/generate.py" "$tmp/out" > "$tmp/generate.log" 2>&1 || {
+    cat "$tmp/generate.log" >&2
+    die "generate.py failed (see above)"
+}
+
+"$venv/bin/python" "$here/compare.py" "$committed" "$tmp/out" || {
+    echo "check.sh: the regenerated reference values differ from tests/data/reference/ (see above)." >&2
+    echo "check.sh: if the change is intended, regenerate with:" >&2
+    echo "          $venv/bin/python tests/reference/generate.py tests/data/reference" >&2
+    exit 1
+}
