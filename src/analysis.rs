@@ -531,23 +531,14 @@ fn prediction(
 /// # Formula
 /// Q_E = Σ (y_i − x_i'β̂₀)²/v_i with the common-effect fit β̂₀, df = k − p;
 /// ṽ = (k − p)/tr P₀; I² = τ̂²/(τ̂² + ṽ), H² = (τ̂² + ṽ)/ṽ (Higgins & Thompson
-/// 2002, *Stat. Med.* 21:1539, generalised to meta-regression). For the
-/// common-effect model (τ² fixed at 0) the Q-based forms are used instead:
-/// H² = Q/df, I² = max(0, (Q − df)/Q). R² = (τ̂²₀ − τ̂²)/τ̂²₀ truncated to
+/// 2002, *Stat. Med.* 21:1539, generalised to meta-regression), so the
+/// common-effect model (τ² fixed at 0) has I² = 0 and H² = 1 by definition;
+/// its Q test still shows any excess variation. R² = (τ̂²₀ − τ̂²)/τ̂²₀ truncated to
 /// [0, 1], with τ̂²₀ from the same estimator without moderators (Raudenbush 2009).
 fn heterogeneity(fit: &ModelFit, null_fit: Option<&ModelFit>) -> Heterogeneity {
     let df = (fit.k - fit.p) as f64;
     let t = fit.tau2.estimate;
-    let (i2, h2) = if fit.options.method == Tau2Method::None {
-        let i2 = if fit.q_e > 0.0 {
-            ((fit.q_e - df) / fit.q_e).max(0.0)
-        } else {
-            0.0
-        };
-        (i2, 1.0 / (1.0 - i2))
-    } else {
-        (t / (t + fit.v_typical), (t + fit.v_typical) / fit.v_typical)
-    };
+    let (i2, h2) = (t / (t + fit.v_typical), (t + fit.v_typical) / fit.v_typical);
     let tau2_0 = null_fit.map(|f| f.tau2.estimate).unwrap_or(t);
     let r2 = match null_fit {
         Some(_) if tau2_0 > 0.0 => Some(((tau2_0 - t) / tau2_0).clamp(0.0, 1.0)),

@@ -184,7 +184,7 @@ pub struct Heterogeneity {
     pub df: f64,
     /// Its chi-square p-value.
     pub p: f64,
-    /// I² as a fraction: τ²/(τ² + ṽ) (Q-based for "none").
+    /// I² as a fraction: τ²/(τ² + ṽ) (0 for "none", whose τ² is fixed at 0).
     pub i2: f64,
     /// H² = 1/(1 − I²).
     pub h2: f64,

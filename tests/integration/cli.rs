@@ -1,0 +1,1 @@
+//! Tests that run the `pondus` binary.

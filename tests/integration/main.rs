@@ -1,0 +1,6 @@
+//! The integration test binary: reference checks, CLI tests, property tests.
+
+mod cli;
+mod properties;
+mod reference;
+mod util;
