@@ -8,7 +8,7 @@ use crate::model::inference::{self, PredictionInference};
 use crate::model::tau2::Tau2Method;
 use crate::model::{self, FitOptions, Inference, ModelFit};
 use crate::result::*;
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 
 /// Checked settings of one `fit` job (the library's view; the CLI builds them).
 #[derive(Debug, Clone)]
@@ -57,9 +57,9 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             hint: "Check the spelling of --moderator; headers are matched exactly, or ignoring case when unique.".into(),
         });
     }
-    let table = input::parse_table(source, bytes, &requests)?;
+    let mut table = input::parse_table(source, bytes, &requests)?;
     let effects = effect::compute(measure, &settings.columns, &table, first_measure)?;
-    let labels = labels(&table);
+    let mut labels = labels(&table);
 
     // Moderators: type detection over all rows.
     let mut raw = Vec::with_capacity(settings.moderators.len());
@@ -70,6 +70,9 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
         raw.push(design::classify(spec, &cells, &table.lines, source)?);
     }
+    // The cells are no longer needed: free them before the model's arrays exist.
+    let label_column = table.column(0).map(|c| c.header.clone());
+    table.columns = Vec::new();
 
     // Inclusion.
     let mut included = Vec::new();
@@ -137,7 +140,8 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             }
         }
     }
-    let design = design::build(&settings.moderators, &raw, &included, &pairs)?;
+    let mut design = design::build(&settings.moderators, &raw, &included, &pairs)
+        .map_err(|e| in_file(source, e))?;
 
     let y: Vec<f64> = included
         .iter()
@@ -147,12 +151,23 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         .iter()
         .map(|&i| value(&effects.rows[i]).1)
         .collect();
-    let fit = model::fit(&y, &v, &design.x, design.p, settings.options)?;
+    let mut notes_by_row: BTreeMap<usize, String> = BTreeMap::new();
+    for &i in &included {
+        if let RowEffect::Value { note: Some(n), .. } = &effects.rows[i] {
+            notes_by_row.insert(i, n.clone());
+        }
+    }
+    drop(effects);
+    let fit = model::fit(&y, &v, &design.x, design.p, settings.options)
+        .map_err(|e| in_file(source, e))?;
     let null_fit = if design.p == 1 {
         None
     } else {
         let ones = vec![1.0; k];
-        Some(model::fit(&y, &v, &ones, 1, settings.options)?)
+        Some(
+            model::fit_parts(&y, &v, &ones, 1, settings.options, false)
+                .map_err(|e| in_file(source, e))?,
+        )
     };
     let base = null_fit.as_ref().unwrap_or(&fit);
 
@@ -209,31 +224,25 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         predictions.push(prediction(&design, &fit, spec, scale)?);
     }
 
+    design.x = Vec::new();
+    let duplicate_warnings = duplicate_label_warnings(&included, &labels);
     let total_w: f64 = fit.weights.iter().sum();
     let mut studies = Vec::with_capacity(k);
     let mut corrected = Vec::new();
     for (pos, &i) in included.iter().enumerate() {
-        let (yi, vi, note) = match &effects.rows[i] {
-            RowEffect::Value { y, v, note } => (*y, *v, note.clone()),
-            RowEffect::Excluded(_) => unreachable!("included rows have effects"),
-        };
+        let (yi, vi, note) = (y[pos], v[pos], notes_by_row.remove(&i));
         if note.is_some() {
             corrected.push(labels[i].clone());
         }
-        let moderators = design
-            .moderators
+        let moderators = raw
             .iter()
-            .zip(&raw)
-            .map(|(m, r)| {
-                let v = match r {
-                    RawModerator::Numeric(x) => AtValue::Number(x[i].unwrap_or(f64::NAN)),
-                    RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
-                };
-                (m.name.clone(), v)
+            .map(|r| match r {
+                RawModerator::Numeric(x) => AtValue::Number(x[i].unwrap_or(f64::NAN)),
+                RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
             })
             .collect();
         studies.push(Study {
-            study: labels[i].clone(),
+            study: std::mem::take(&mut labels[i]),
             line: table.lines[i],
             effect: yi,
             variance: vi,
@@ -272,7 +281,7 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             settings.label.0
         ));
     }
-    let mut warnings = duplicate_label_warnings(&included, &labels);
+    let mut warnings = duplicate_warnings;
     if fit.tau2.estimate == 0.0 && settings.options.method != Tau2Method::None {
         notes.push(
             "The τ² estimate is 0: the observed spread of the effects is no larger than their \
@@ -308,7 +317,7 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             file: source.to_string(),
             delimiter: table.delimiter_name().into(),
             rows: table.len(),
-            label_column: table.column(0).map(|c| c.header.clone()),
+            label_column,
         },
         measure: MeasureInfo {
             id: measure.id().into(),
@@ -365,6 +374,14 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     })
 }
 
+/// Prefixes a model error with the file it concerns.
+fn in_file(source: &str, e: Error) -> Error {
+    match e {
+        Error::Model(m) => Error::Model(format!("{source}: {m}")),
+        other => other,
+    }
+}
+
 fn value(e: &RowEffect) -> (f64, f64) {
     match e {
         RowEffect::Value { y, v, .. } => (*y, *v),
@@ -401,14 +418,48 @@ fn list(items: &[String], max: usize) -> String {
     s
 }
 
-fn duplicate_label_warnings(included: &[usize], labels: &[String]) -> Vec<String> {
-    let mut seen: HashMap<&str, usize> = HashMap::new();
-    for &i in included {
-        *seen.entry(labels[i].as_str()).or_default() += 1;
+/// FNV-1a hash of a label (a fast, fixed hash: the duplicate check only
+/// needs equal labels to meet, and compares candidates exactly).
+fn fnv1a(text: &str) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in text.bytes() {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
     }
-    let mut dups: Vec<String> = seen
-        .into_iter()
-        .filter(|(_, n)| *n > 1)
+    h
+}
+
+fn duplicate_label_warnings(included: &[usize], labels: &[String]) -> Vec<String> {
+    // Sort (hash, row) pairs: equal labels have equal hashes and end up
+    // adjacent; labels are compared exactly within a run of equal hashes.
+    let mut keyed: Vec<(u64, usize)> = included.iter().map(|&i| (fnv1a(&labels[i]), i)).collect();
+    keyed.sort_unstable();
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    let mut start = 0;
+    while start < keyed.len() {
+        let mut end = start + 1;
+        while end < keyed.len() && keyed[end].0 == keyed[start].0 {
+            end += 1;
+        }
+        if end - start > 1 {
+            let mut run: Vec<&str> = keyed[start..end]
+                .iter()
+                .map(|&(_, i)| labels[i].as_str())
+                .collect();
+            run.sort_unstable();
+            let mut a = 0;
+            while a < run.len() {
+                let b = a + run[a..].iter().take_while(|l| **l == run[a]).count();
+                if b - a > 1 {
+                    counts.push((run[a], b - a));
+                }
+                a = b;
+            }
+        }
+        start = end;
+    }
+    let mut dups: Vec<String> = counts
+        .iter()
         .map(|(l, n)| format!("'{l}' ({n}×)"))
         .collect();
     if dups.is_empty() {

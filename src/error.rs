@@ -71,7 +71,7 @@ impl fmt::Display for CellProblems {
 #[non_exhaustive]
 pub enum Error {
     /// A file could not be read or written.
-    #[error("{path}: {action} failed: {source}")]
+    #[error("{path}: {action} failed")]
     Io {
         /// The path involved.
         path: String,

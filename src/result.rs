@@ -282,8 +282,8 @@ pub struct Study {
     pub residual: f64,
     /// Standardised residual (null when undefined).
     pub std_residual: Option<f64>,
-    /// Moderator values of the study.
-    pub moderators: BTreeMap<String, AtValue>,
+    /// The study's moderator values, in the order of `model.moderators`.
+    pub moderators: Vec<AtValue>,
     /// An adjustment made to this study's data.
     pub note: Option<String>,
 }

@@ -14,7 +14,7 @@ pub const ROOT_MAX_ITERS: u64 = 500;
 /// Points of the scan that brackets the (restricted) likelihood's maxima
 /// before the root search. A scan, not only a local search from one start,
 /// so that a second local maximum is not missed.
-pub const LIKELIHOOD_SCAN_POINTS: usize = 10;
+pub const LIKELIHOOD_SCAN_POINTS: usize = 8;
 
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;

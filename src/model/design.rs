@@ -153,32 +153,59 @@ pub struct Design {
     pub interactions: Vec<(usize, usize)>,
 }
 
-/// Columns a moderator contributes for one study: its value(s) by term.
-fn columns_for(m: &Moderator, numeric: Option<f64>, label: Option<&str>) -> Result<Vec<f64>> {
-    match &m.kind {
-        ModeratorKind::Numeric { mean, centered, .. } => {
-            let x = numeric.unwrap_or(f64::NAN);
-            Ok(vec![if *centered { x - mean } else { x }])
-        }
-        ModeratorKind::Categorical {
-            levels, reference, ..
-        } => {
-            let l = label.unwrap_or("");
-            if !levels.iter().any(|x| x == l) {
-                return Err(Error::usage(
-                    "--at",
-                    format!(
-                        "'{l}' is not a level of moderator '{}'; its levels are: {}",
-                        m.name,
-                        levels.join(", ")
-                    ),
-                ));
+/// One study's value of one moderator, ready for coding: a number on the
+/// original scale, or the index of a level in the moderator's sorted levels.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Coded {
+    Number(f64),
+    Level(usize),
+}
+
+/// Appends one design row to `out`: 1, each moderator's columns (a centred
+/// or plain number, or dummies against the reference level), then the
+/// products of the paired moderators' columns. `spans` is scratch space.
+fn encode_row(
+    mods: &[Moderator],
+    interactions: &[(usize, usize)],
+    value: impl Fn(usize) -> Coded,
+    spans: &mut Vec<(usize, usize)>,
+    out: &mut Vec<f64>,
+) {
+    let base = out.len();
+    out.push(1.0);
+    spans.clear();
+    for (j, m) in mods.iter().enumerate() {
+        let start = out.len() - base;
+        match (&m.kind, value(j)) {
+            (ModeratorKind::Numeric { mean, centered, .. }, Coded::Number(x)) => {
+                out.push(if *centered { x - mean } else { x });
             }
-            Ok(levels
-                .iter()
-                .filter(|x| *x != reference)
-                .map(|x| if x == l { 1.0 } else { 0.0 })
-                .collect())
+            (
+                ModeratorKind::Categorical {
+                    levels, reference, ..
+                },
+                Coded::Level(code),
+            ) => {
+                for (l, name) in levels.iter().enumerate() {
+                    if name != reference {
+                        out.push(if l == code { 1.0 } else { 0.0 });
+                    }
+                }
+            }
+            // A number for a categorical moderator or a level for a numeric
+            // one cannot be built by the callers below.
+            _ => out.push(f64::NAN),
+        }
+        spans.push((start, out.len() - base));
+    }
+    for &(a, b) in interactions {
+        let (sa, ea) = spans[a];
+        let (sb, eb) = spans[b];
+        for ia in sa..ea {
+            for ib in sb..eb {
+                let prod = out[base + ia] * out[base + ib];
+                out.push(prod);
+            }
         }
     }
 }
@@ -208,31 +235,55 @@ pub enum Value {
 /// Builds the design row for one study from its moderator values (in moderator order).
 ///
 /// # Errors
-/// [`Error::Usage`] for a label that is not a level, or a number for a categorical moderator.
+/// [`Error::Usage`] for a label that is not a level, or a value of the wrong kind.
 pub fn design_row(
     design_mods: &[Moderator],
     interactions: &[(usize, usize)],
     values: &[Value],
 ) -> Result<Vec<f64>> {
-    let mut per_mod = Vec::with_capacity(design_mods.len());
+    let mut coded = Vec::with_capacity(values.len());
     for (m, v) in design_mods.iter().zip(values) {
-        let cols = match v {
-            Value::Number(x) => columns_for(m, Some(*x), None)?,
-            Value::Label(l) => columns_for(m, None, Some(l))?,
-        };
-        per_mod.push(cols);
-    }
-    let mut row = vec![1.0];
-    for cols in &per_mod {
-        row.extend_from_slice(cols);
-    }
-    for &(a, b) in interactions {
-        for xa in &per_mod[a] {
-            for xb in &per_mod[b] {
-                row.push(xa * xb);
+        coded.push(match (&m.kind, v) {
+            (ModeratorKind::Numeric { .. }, Value::Number(x)) => Coded::Number(*x),
+            (ModeratorKind::Categorical { levels, .. }, Value::Label(l)) => {
+                let code = levels.iter().position(|x| x == l).ok_or_else(|| {
+                    Error::usage(
+                        "--at",
+                        format!(
+                            "'{l}' is not a level of moderator '{}'; its levels are: {}",
+                            m.name,
+                            levels.join(", ")
+                        ),
+                    )
+                })?;
+                Coded::Level(code)
             }
-        }
+            (ModeratorKind::Numeric { .. }, Value::Label(l)) => {
+                return Err(Error::usage(
+                    "--at",
+                    format!("'{l}' is not a number (moderator '{}' is numeric)", m.name),
+                ))
+            }
+            (ModeratorKind::Categorical { levels, .. }, Value::Number(x)) => {
+                return Err(Error::usage(
+                    "--at",
+                    format!(
+                        "moderator '{}' is categorical; give one of its levels ({}) instead of {x}",
+                        m.name,
+                        levels.join(", ")
+                    ),
+                ))
+            }
+        });
     }
+    let mut row = Vec::new();
+    encode_row(
+        design_mods,
+        interactions,
+        |j| coded[j],
+        &mut Vec::new(),
+        &mut row,
+    );
     Ok(row)
 }
 
@@ -361,16 +412,39 @@ pub fn build(
             p + 1
         )));
     }
+    // Level codes of every categorical moderator, by row.
+    let codes: Vec<Option<Vec<usize>>> = raw
+        .iter()
+        .zip(&moderators)
+        .map(|(r, m)| match (r, &m.kind) {
+            (RawModerator::Text(v), ModeratorKind::Categorical { levels, .. }) => {
+                let index: std::collections::HashMap<&str, usize> = levels
+                    .iter()
+                    .enumerate()
+                    .map(|(i, l)| (l.as_str(), i))
+                    .collect();
+                Some(
+                    v.iter()
+                        .map(|l| {
+                            l.as_deref()
+                                .and_then(|l| index.get(l).copied())
+                                .unwrap_or(0)
+                        })
+                        .collect(),
+                )
+            }
+            _ => None,
+        })
+        .collect();
     let mut x = Vec::with_capacity(k * p);
+    let mut spans = Vec::with_capacity(moderators.len());
     for &i in included {
-        let values: Vec<Value> = raw
-            .iter()
-            .map(|r| match r {
-                RawModerator::Numeric(v) => Value::Number(v[i].unwrap_or(f64::NAN)),
-                RawModerator::Text(v) => Value::Label(v[i].clone().unwrap_or_default()),
-            })
-            .collect();
-        x.extend(design_row(&moderators, interactions, &values)?);
+        let value = |j: usize| match (&raw[j], &codes[j]) {
+            (RawModerator::Numeric(v), _) => Coded::Number(v[i].unwrap_or(f64::NAN)),
+            (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
+            (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
+        };
+        encode_row(&moderators, interactions, value, &mut spans, &mut x);
     }
     check_rank(&x, k, p, &terms)?;
     Ok(Design {

@@ -11,7 +11,7 @@ use crate::error::{Error, Result};
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 use tau2::{Tau2Fit, Tau2Method};
-use wls::{fit_at, Data};
+use wls::{fit_with, Data, Want};
 
 /// How coefficients are tested.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -117,6 +117,22 @@ fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
 /// [`Error::Model`] when k ≤ p or the design is singular;
 /// [`Error::NoConvergence`] when an estimator's root search fails.
 pub fn fit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Result<ModelFit> {
+    fit_parts(y, v, x, p, options, true)
+}
+
+/// [`fit`], optionally without the Q-profile interval for τ² (which costs
+/// two root searches), for fits whose interval nobody reads.
+///
+/// # Errors
+/// As [`fit`].
+pub fn fit_parts(
+    y: &[f64],
+    v: &[f64],
+    x: &[f64],
+    p: usize,
+    options: FitOptions,
+    with_ci: bool,
+) -> Result<ModelFit> {
     let k = y.len();
     if k <= p {
         return Err(Error::Model(format!(
@@ -126,12 +142,15 @@ pub fn fit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Re
     }
     let st = standardise(x, k, p);
     let data = Data { y, v, x: &st.x, p };
-    let tau2 = tau2::estimate(&data, options.method)?;
+    let hint = tau2::scale_hint(&data);
+    let tau2 = tau2::estimate_hinted(&data, options.method, hint)?;
     let t = tau2.estimate;
     let singular = || {
         Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
     };
-    let f = fit_at(&data, t, false).ok_or_else(singular)?;
+    let likelihood = matches!(options.method, Tau2Method::Reml | Tau2Method::Ml);
+    let want = if likelihood { Want::ALL } else { Want::Q };
+    let f = fit_with(&data, t, want).ok_or_else(singular)?;
     let df = (k - p) as f64;
     let kh_scale = match options.inference {
         Inference::Kh => Some(f.q / df),
@@ -155,17 +174,17 @@ pub fn fit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Re
         fitted.push(fi);
         std_resid.push((var_r > 1e-12 / w).then(|| (y[i] - fi) / var_r.sqrt()));
     }
-    let fe = fit_at(&data, 0.0, true).ok_or_else(singular)?;
+    let fe = fit_with(&data, 0.0, Want::SCORE).ok_or_else(singular)?;
     let v_typical = df / fe.tr_p;
     let tau2_ci = match options.method {
         Tau2Method::None => None,
-        _ => Some(tau2::q_profile(&data, options.level)?),
+        _ if !with_ci => None,
+        _ => Some(tau2::q_profile_hinted(&data, options.level, hint)?),
     };
     let log_likelihood = match options.method {
         Tau2Method::Reml | Tau2Method::Ml => {
             let restricted = options.method == Tau2Method::Reml;
-            let with_trace = fit_at(&data, t, false).ok_or_else(singular)?;
-            let mut ll = tau2::log_likelihood(&with_trace, restricted);
+            let mut ll = tau2::log_likelihood(&f, restricted);
             let two_pi = (2.0 * std::f64::consts::PI).ln();
             if restricted {
                 // ln det(X'WX) in the original parametrisation = ln det(X̃'WX̃) − 2 ln|det A|.

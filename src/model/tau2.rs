@@ -4,7 +4,7 @@
 //! equation with argmin's Brent root finder inside brackets found by a scan;
 //! moment estimators are the meta-regression (residual-based) forms.
 
-use super::wls::{fit_at, ols, Data, Wls};
+use super::wls::{fit_with, ols, Data, Want, Wls};
 use crate::error::{Error, Result};
 use crate::tolerance;
 use argmin::core::{CostFunction, Executor, State, TerminationReason, TerminationStatus};
@@ -132,15 +132,15 @@ pub fn brent_root<F: Fn(f64) -> f64>(f: F, lo: f64, hi: f64, what: &str) -> Resu
     Ok((x, state.get_iter()))
 }
 
-fn wls(data: &Data<'_>, tau2: f64, trace: bool) -> Result<Wls> {
-    fit_at(data, tau2, trace).ok_or_else(|| {
+fn wls(data: &Data<'_>, tau2: f64, want: Want) -> Result<Wls> {
+    fit_with(data, tau2, want).ok_or_else(|| {
         Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
     })
 }
 
 /// A starting scale for τ² brackets: the OLS residual variance (or the mean
 /// sampling variance when the OLS fit is exact).
-fn scale_hint(data: &Data<'_>) -> f64 {
+pub fn scale_hint(data: &Data<'_>) -> f64 {
     let k = data.k() as f64;
     let df = (data.k() - data.p).max(1) as f64;
     let rss = ols(data).map(|(_, _, rss)| rss).unwrap_or(0.0);
@@ -150,6 +150,36 @@ fn scale_hint(data: &Data<'_>) -> f64 {
         s
     } else {
         mean_v.max(f64::MIN_POSITIVE)
+    }
+}
+
+/// Remembers the values of an expensive function of τ², so that a root
+/// search does not recompute the bracket ends the scan already evaluated.
+struct Memo<F: Fn(f64) -> f64> {
+    f: F,
+    seen: std::cell::RefCell<Vec<(f64, f64)>>,
+}
+
+impl<F: Fn(f64) -> f64> Memo<F> {
+    fn new(f: F) -> Self {
+        Memo {
+            f,
+            seen: std::cell::RefCell::new(Vec::new()),
+        }
+    }
+
+    fn call(&self, t: f64) -> f64 {
+        if let Some(&(_, v)) = self
+            .seen
+            .borrow()
+            .iter()
+            .find(|(x, _)| x.to_bits() == t.to_bits())
+        {
+            return v;
+        }
+        let v = (self.f)(t);
+        self.seen.borrow_mut().push((t, v));
+        v
     }
 }
 
@@ -175,6 +205,14 @@ fn bracket_above<F: Fn(f64) -> f64>(f: &F, start: f64, what: &str) -> Result<f64
 /// [`Error::NoConvergence`] when a root search fails; [`Error::Model`] for a
 /// singular design.
 pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
+    estimate_hinted(data, method, scale_hint(data))
+}
+
+/// [`estimate`] with the bracket scale from [`scale_hint`] already computed.
+///
+/// # Errors
+/// As [`estimate`].
+pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
     let k = data.k() as f64;
     let df = (data.k() - data.p) as f64;
     let closed = |t: f64| Tau2Fit {
@@ -198,7 +236,7 @@ pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
         // Valentine, *Handbook of Research Synthesis*, 2nd ed., ch. 16):
         // τ² = (Q_E − (k − p)) / tr P₀, with P₀ at the common-effect weights.
         Tau2Method::Dl => {
-            let fe = wls(data, 0.0, true)?;
+            let fe = wls(data, 0.0, Want::SCORE)?;
             Ok(closed((fe.q - df) / fe.tr_p))
         }
         // Hedges (1983) / Raudenbush (2009) OLS-based estimator:
@@ -236,12 +274,13 @@ pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
             if t0 <= 0.0 {
                 return Ok(closed(0.0));
             }
-            let f = wls(data, t0, false)?;
+            let f = wls(data, t0, Want::Q)?;
             Ok(closed(t0 * f.q / df))
         }
         // Paule & Mandel (1982); meta-regression form: Q(τ²) = k − p.
         Tau2Method::Pm => {
-            let (t, evaluations) = solve_q(data, df, "the Paule–Mandel estimate of τ²")?;
+            let (t, evaluations) =
+                solve_q_hinted(data, df, hint, "the Paule–Mandel estimate of τ²")?;
             Ok(Tau2Fit {
                 estimate: t,
                 method,
@@ -253,7 +292,7 @@ pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
                 evaluations,
             })
         }
-        Tau2Method::Reml | Tau2Method::Ml => maximise_likelihood(data, method),
+        Tau2Method::Reml | Tau2Method::Ml => maximise_likelihood(data, method, hint),
     }
 }
 
@@ -263,7 +302,13 @@ pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
 /// # Errors
 /// [`Error::NoConvergence`] when no bracket or root is found.
 pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
-    let q = |t: f64| fit_at(data, t, false).map(|f| f.q).unwrap_or(f64::NAN) - target;
+    solve_q_hinted(data, target, scale_hint(data), what)
+}
+
+fn solve_q_hinted(data: &Data<'_>, target: f64, hint: f64, what: &str) -> Result<(f64, u64)> {
+    let memo =
+        Memo::new(|t: f64| fit_with(data, t, Want::Q).map(|f| f.q).unwrap_or(f64::NAN) - target);
+    let q = |t: f64| memo.call(t);
     let q0 = q(0.0);
     if q0.is_nan() {
         return Err(Error::Model(
@@ -273,7 +318,7 @@ pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
     if q0 <= 0.0 {
         return Ok((0.0, 1));
     }
-    let hi = bracket_above(&q, scale_hint(data), what)?;
+    let hi = bracket_above(&q, hint, what)?;
     let (t, iters) = brent_root(q, 0.0, hi, what)?;
     Ok((t.max(0.0), iters))
 }
@@ -294,7 +339,7 @@ fn score(f: &Wls, restricted: bool) -> f64 {
     0.5 * (f.sum_w2r2 - t)
 }
 
-fn maximise_likelihood(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
+fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
     let restricted = method == Tau2Method::Reml;
     let what = if restricted {
         "the REML estimate of τ²"
@@ -302,13 +347,18 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
         "the ML estimate of τ²"
     };
     let evals = std::cell::Cell::new(0u64);
-    let at = |t: f64| {
+    let at = |t: f64, want: Want| {
         evals.set(evals.get() + 1);
-        fit_at(data, t, true)
+        fit_with(data, t, want)
     };
-    let s = |t: f64| at(t).map(|f| score(&f, restricted)).unwrap_or(f64::NAN);
+    let score_memo = Memo::new(|t: f64| {
+        at(t, Want::SCORE)
+            .map(|f| score(&f, restricted))
+            .unwrap_or(f64::NAN)
+    });
+    let s = |t: f64| score_memo.call(t);
     let ll = |t: f64| {
-        at(t)
+        at(t, Want::ALL)
             .map(|f| log_likelihood(&f, restricted))
             .unwrap_or(f64::NAN)
     };
@@ -319,7 +369,7 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
             "the weighted design matrix is singular; the moderators are collinear".into(),
         ));
     }
-    let hi = bracket_above(&s, 2.0 * scale_hint(data), what)?;
+    let hi = bracket_above(&s, 2.0 * hint, what)?;
     // Scan [0, hi] (points denser near 0) for sign changes of the score from + to −:
     // each brackets a local maximum.
     let g = tolerance::LIKELIHOOD_SCAN_POINTS;
@@ -374,13 +424,21 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
 /// # Errors
 /// [`Error::NoConvergence`] when a root search fails.
 pub fn q_profile(data: &Data<'_>, level: f64) -> Result<(f64, f64)> {
+    q_profile_hinted(data, level, scale_hint(data))
+}
+
+/// [`q_profile`] with the bracket scale already computed.
+///
+/// # Errors
+/// As [`q_profile`].
+pub fn q_profile_hinted(data: &Data<'_>, level: f64, hint: f64) -> Result<(f64, f64)> {
     use crate::dist::{chi2_quantile, Tail};
     let df = (data.k() - data.p) as f64;
     let alpha = 1.0 - level;
     let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
     let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
-    let (lo, _) = solve_q(data, upper_point, "the lower Q-profile bound for τ²")?;
-    let (hi, _) = solve_q(data, lower_point, "the upper Q-profile bound for τ²")?;
+    let (lo, _) = solve_q_hinted(data, upper_point, hint, "the lower Q-profile bound for τ²")?;
+    let (hi, _) = solve_q_hinted(data, lower_point, hint, "the upper Q-profile bound for τ²")?;
     Ok((lo, hi))
 }
 
@@ -451,7 +509,7 @@ mod tests {
             p: 1,
         };
         let f = estimate(&d, Tau2Method::Pm).unwrap();
-        let q = fit_at(&d, f.estimate, false).unwrap().q;
+        let q = super::super::wls::fit_at(&d, f.estimate, false).unwrap().q;
         assert!((q - 4.0).abs() < 1e-10, "Q = {q}");
     }
 
@@ -469,8 +527,8 @@ mod tests {
         let (lo, hi) = q_profile(&d, 0.95).unwrap();
         assert!(0.0 < lo && lo < hi);
         use crate::dist::{chi2_quantile, Tail};
-        let q_lo = fit_at(&d, lo, false).unwrap().q;
-        let q_hi = fit_at(&d, hi, false).unwrap().q;
+        let q_lo = super::super::wls::fit_at(&d, lo, false).unwrap().q;
+        let q_hi = super::super::wls::fit_at(&d, hi, false).unwrap().q;
         assert!((q_lo - chi2_quantile(0.025, 6.0, Tail::Upper)).abs() < 1e-9);
         assert!((q_hi - chi2_quantile(0.025, 6.0, Tail::Lower)).abs() < 1e-9);
     }

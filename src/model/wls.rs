@@ -46,84 +46,321 @@ pub struct Wls {
     pub sum_w: f64,
     /// Σ w_i² r_i² = y'PPy.
     pub sum_w2r2: f64,
-    /// tr P (only when asked for; NaN otherwise).
+    /// tr P (NaN unless asked for).
     pub tr_p: f64,
-    /// Σ ln(v_i + τ²).
+    /// Σ ln(v_i + τ²) (NaN unless asked for).
     pub sum_log_vt: f64,
-    /// ln det M.
+    /// ln det M (NaN unless asked for).
     pub logdet_m: f64,
 }
 
-/// Fits β by weighted least squares at `tau2`.
+/// Which optional parts of a weighted fit to compute.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Want {
+    /// tr P (needs one more p×p accumulation).
+    pub trace: bool,
+    /// Σ ln(v_i + τ²) and ln det M (a logarithm per study).
+    pub log_terms: bool,
+}
+
+impl Want {
+    /// Only β̂, M⁻¹ and Q.
+    pub const Q: Want = Want {
+        trace: false,
+        log_terms: false,
+    };
+    /// Enough for the likelihood score.
+    pub const SCORE: Want = Want {
+        trace: true,
+        log_terms: false,
+    };
+    /// Everything.
+    pub const ALL: Want = Want {
+        trace: true,
+        log_terms: true,
+    };
+}
+
+/// Fits β by weighted least squares at `tau2`, computing everything
+/// (with `trace`, also tr P). See [`fit_with`] for the fast variants.
 ///
 /// Returns `None` when X'WX is not positive definite (collinear design).
-/// With `trace`, also computes tr P (one more p×p accumulation).
 pub fn fit_at(data: &Data<'_>, tau2: f64, trace: bool) -> Option<Wls> {
+    fit_with(
+        data,
+        tau2,
+        Want {
+            trace,
+            log_terms: true,
+        },
+    )
+}
+
+/// Sums over the studies for one τ²: M = X'WX (upper triangle), X'Wy,
+/// X'W²X (upper triangle, with trace), Σw, Σ ln(v + τ²) (with log terms).
+struct Sums {
+    m: Vec<f64>,
+    n2: Vec<f64>,
+    b: Vec<f64>,
+    sum_w: f64,
+    sum_log_vt: f64,
+}
+
+/// Rows per chunk of the parallel sums. The chunking depends on k only,
+/// never on the number of threads, and chunk sums are added in chunk
+/// order, so results are identical whatever the thread count.
+const CHUNK_ROWS: usize = 16_384;
+
+/// Below this many studies the sums run on one thread.
+const PARALLEL_MIN_ROWS: usize = 4 * CHUNK_ROWS;
+
+/// Splits the data into fixed chunks of rows.
+fn chunks<'a>(data: &Data<'a>) -> Vec<Data<'a>> {
     let p = data.p;
-    let k = data.k();
-    let mut m = vec![0.0; p * p];
-    let mut n2 = if trace { vec![0.0; p * p] } else { Vec::new() };
-    let mut b = vec![0.0; p];
+    data.y
+        .chunks(CHUNK_ROWS)
+        .zip(data.v.chunks(CHUNK_ROWS))
+        .zip(data.x.chunks(CHUNK_ROWS * p))
+        .map(|((y, v), x)| Data { y, v, x, p })
+        .collect()
+}
+
+fn accumulate(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
+    use rayon::prelude::*;
+    if data.k() < PARALLEL_MIN_ROWS {
+        return accumulate_serial(data, tau2, want);
+    }
+    let parts: Vec<Sums> = chunks(data)
+        .par_iter()
+        .map(|d| accumulate_serial(d, tau2, want))
+        .collect();
+    let mut total = Sums {
+        m: vec![0.0; data.p * data.p],
+        n2: if want.trace {
+            vec![0.0; data.p * data.p]
+        } else {
+            Vec::new()
+        },
+        b: vec![0.0; data.p],
+        sum_w: 0.0,
+        sum_log_vt: 0.0,
+    };
+    for part in parts {
+        for (t, x) in total.m.iter_mut().zip(&part.m) {
+            *t += x;
+        }
+        for (t, x) in total.n2.iter_mut().zip(&part.n2) {
+            *t += x;
+        }
+        for (t, x) in total.b.iter_mut().zip(&part.b) {
+            *t += x;
+        }
+        total.sum_w += part.sum_w;
+        total.sum_log_vt += part.sum_log_vt;
+    }
+    total
+}
+
+/// Σ w r² and Σ w² r² at β̂, over fixed chunks in parallel for large k.
+fn residual_sums(data: &Data<'_>, tau2: f64, beta: &DVector<f64>) -> (f64, f64) {
+    use rayon::prelude::*;
+    let b = beta.as_slice();
+    let serial = |d: &Data<'_>| match d.p {
+        1 => residual_serial::<1>(d, tau2, b),
+        2 => residual_serial::<2>(d, tau2, b),
+        3 => residual_serial::<3>(d, tau2, b),
+        4 => residual_serial::<4>(d, tau2, b),
+        5 => residual_serial::<5>(d, tau2, b),
+        6 => residual_serial::<6>(d, tau2, b),
+        _ => residual_any(d, tau2, b),
+    };
+    if data.k() < PARALLEL_MIN_ROWS {
+        return serial(data);
+    }
+    let parts: Vec<(f64, f64)> = chunks(data).par_iter().map(serial).collect();
+    parts
+        .iter()
+        .fold((0.0, 0.0), |acc, x| (acc.0 + x.0, acc.1 + x.1))
+}
+
+fn residual_serial<const P: usize>(d: &Data<'_>, tau2: f64, beta: &[f64]) -> (f64, f64) {
+    let beta: &[f64; P] = beta.try_into().expect("p coefficients");
+    let mut q = 0.0;
+    let mut sum_w2r2 = 0.0;
+    for ((xi, &vi), &yi) in d.x.chunks_exact(P).zip(d.v).zip(d.y) {
+        let xi: &[f64; P] = xi.try_into().expect("rows have p entries");
+        let w = 1.0 / (vi + tau2);
+        let mut fit = 0.0;
+        for a in 0..P {
+            fit += xi[a] * beta[a];
+        }
+        let r = yi - fit;
+        let wr2 = w * r * r;
+        q += wr2;
+        sum_w2r2 += w * wr2;
+    }
+    (q, sum_w2r2)
+}
+
+fn residual_any(d: &Data<'_>, tau2: f64, beta: &[f64]) -> (f64, f64) {
+    let mut q = 0.0;
+    let mut sum_w2r2 = 0.0;
+    for ((xi, &vi), &yi) in d.x.chunks_exact(d.p).zip(d.v).zip(d.y) {
+        let w = 1.0 / (vi + tau2);
+        let fit: f64 = xi.iter().zip(beta).map(|(x, b)| x * b).sum();
+        let r = yi - fit;
+        let wr2 = w * r * r;
+        q += wr2;
+        sum_w2r2 += w * wr2;
+    }
+    (q, sum_w2r2)
+}
+
+fn accumulate_serial(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
+    // Fixed sizes let the compiler unroll the p × p updates; the general
+    // loop serves larger designs.
+    match data.p {
+        1 => accumulate_fixed::<1>(data, tau2, want),
+        2 => accumulate_fixed::<2>(data, tau2, want),
+        3 => accumulate_fixed::<3>(data, tau2, want),
+        4 => accumulate_fixed::<4>(data, tau2, want),
+        5 => accumulate_fixed::<5>(data, tau2, want),
+        6 => accumulate_fixed::<6>(data, tau2, want),
+        7 => accumulate_fixed::<7>(data, tau2, want),
+        8 => accumulate_fixed::<8>(data, tau2, want),
+        _ => accumulate_any(data, tau2, want),
+    }
+}
+
+fn accumulate_fixed<const P: usize>(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
+    let mut m = [[0.0f64; P]; P];
+    let mut n2 = [[0.0f64; P]; P];
+    let mut b = [0.0f64; P];
     let mut sum_w = 0.0;
     let mut sum_log_vt = 0.0;
-    for i in 0..k {
-        let vt = data.v[i] + tau2;
+    for ((xi, &vi), &yi) in data.x.chunks_exact(P).zip(data.v).zip(data.y) {
+        let xi: &[f64; P] = xi.try_into().expect("rows have p entries");
+        let vt = vi + tau2;
         let w = 1.0 / vt;
         sum_w += w;
-        sum_log_vt += vt.ln();
-        let xi = data.row(i);
-        let wy = w * data.y[i];
-        for a in 0..p {
+        if want.log_terms {
+            sum_log_vt += vt.ln();
+        }
+        let wy = w * yi;
+        for a in 0..P {
             let wxa = w * xi[a];
             b[a] += xi[a] * wy;
-            for c in a..p {
-                m[a * p + c] += wxa * xi[c];
+            for c in a..P {
+                m[a][c] += wxa * xi[c];
             }
-            if trace {
-                let w2xa = wxa * w;
-                for c in a..p {
-                    n2[a * p + c] += w2xa * xi[c];
+        }
+        if want.trace {
+            let w2 = w * w;
+            for a in 0..P {
+                let w2xa = w2 * xi[a];
+                for c in a..P {
+                    n2[a][c] += w2xa * xi[c];
                 }
             }
         }
     }
+    Sums {
+        m: m.iter().flatten().copied().collect(),
+        n2: if want.trace {
+            n2.iter().flatten().copied().collect()
+        } else {
+            Vec::new()
+        },
+        b: b.to_vec(),
+        sum_w,
+        sum_log_vt,
+    }
+}
+
+fn accumulate_any(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
+    let p = data.p;
+    let mut m = vec![0.0; p * p];
+    let mut n2 = if want.trace {
+        vec![0.0; p * p]
+    } else {
+        Vec::new()
+    };
+    let mut b = vec![0.0; p];
+    let mut sum_w = 0.0;
+    let mut sum_log_vt = 0.0;
+    for ((xi, &vi), &yi) in data.x.chunks_exact(p).zip(data.v).zip(data.y) {
+        let vt = vi + tau2;
+        let w = 1.0 / vt;
+        sum_w += w;
+        if want.log_terms {
+            sum_log_vt += vt.ln();
+        }
+        let wy = w * yi;
+        for a in 0..p {
+            let wxa = w * xi[a];
+            b[a] += xi[a] * wy;
+            let row = &mut m[a * p..(a + 1) * p];
+            for c in a..p {
+                row[c] += wxa * xi[c];
+            }
+            if want.trace {
+                let w2xa = wxa * w;
+                let row = &mut n2[a * p..(a + 1) * p];
+                for c in a..p {
+                    row[c] += w2xa * xi[c];
+                }
+            }
+        }
+    }
+    Sums {
+        m,
+        n2,
+        b,
+        sum_w,
+        sum_log_vt,
+    }
+}
+
+/// Fits β by weighted least squares at `tau2`, computing the parts in `want`
+/// (the others are NaN).
+///
+/// Returns `None` when X'WX is not positive definite (collinear design).
+pub fn fit_with(data: &Data<'_>, tau2: f64, want: Want) -> Option<Wls> {
+    let p = data.p;
+    let Sums {
+        mut m,
+        mut n2,
+        b,
+        sum_w,
+        sum_log_vt,
+    } = accumulate(data, tau2, want);
     for a in 0..p {
         for c in 0..a {
             m[a * p + c] = m[c * p + a];
-            if trace {
+            if want.trace {
                 n2[a * p + c] = n2[c * p + a];
             }
         }
     }
     let mm = DMatrix::from_row_slice(p, p, &m);
     let chol = mm.cholesky()?;
-    let logdet_m = 2.0
-        * chol
+    let logdet_m = if want.log_terms {
+        2.0 * chol
             .l_dirty()
             .diagonal()
             .iter()
             .map(|d| d.ln())
-            .sum::<f64>();
+            .sum::<f64>()
+    } else {
+        f64::NAN
+    };
     let beta = chol.solve(&DVector::from_column_slice(&b));
     let m_inv = chol.inverse();
-    if !beta.iter().all(|x| x.is_finite()) || !logdet_m.is_finite() {
+    if !beta.iter().all(|x| x.is_finite()) {
         return None;
     }
-    let mut q = 0.0;
-    let mut sum_w2r2 = 0.0;
-    for i in 0..k {
-        let w = 1.0 / (data.v[i] + tau2);
-        let xi = data.row(i);
-        let mut fit = 0.0;
-        for a in 0..p {
-            fit += xi[a] * beta[a];
-        }
-        let r = data.y[i] - fit;
-        let wr2 = w * r * r;
-        q += wr2;
-        sum_w2r2 += w * wr2;
-    }
-    let tr_p = if trace {
+    let (q, sum_w2r2) = residual_sums(data, tau2, &beta);
+    let tr_p = if want.trace {
         let mut t = 0.0;
         for a in 0..p {
             for c in 0..p {
@@ -142,7 +379,7 @@ pub fn fit_at(data: &Data<'_>, tau2: f64, trace: bool) -> Option<Wls> {
         sum_w,
         sum_w2r2,
         tr_p,
-        sum_log_vt,
+        sum_log_vt: if want.log_terms { sum_log_vt } else { f64::NAN },
         logdet_m,
     })
 }
@@ -181,7 +418,7 @@ pub fn ols(data: &Data<'_>) -> Option<(DVector<f64>, DMatrix<f64>, f64)> {
         x: data.x,
         p: data.p,
     };
-    let f = fit_at(&unit, 0.0, false)?;
+    let f = fit_with(&unit, 0.0, Want::Q)?;
     Some((f.beta, f.m_inv, f.q))
 }
 
