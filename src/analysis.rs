@@ -623,7 +623,11 @@ fn answer(
         None => format!("chi-square({df1}) = {stat:.2}"),
     };
     let alpha = 1.0 - level;
-    let names = moderators.join(", ");
+    let names = match moderators {
+        [] => String::new(),
+        [one] => one.to_string(),
+        [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
+    };
     let p_txt = crate::report::format_p(p);
     if significant {
         format!(

@@ -12,7 +12,7 @@ pub fn format_num(x: f64) -> String {
         return "—".into();
     }
     if x == 0.0 {
-        return "0".into();
+        return "0.0000".into();
     }
     let a = x.abs();
     if !(1e-4..1e6).contains(&a) {
@@ -44,7 +44,7 @@ mod tests {
     fn numbers() {
         assert_eq!(format_num(0.12345), "0.1235");
         assert_eq!(format_num(-2.0), "-2.0000");
-        assert_eq!(format_num(0.0), "0");
+        assert_eq!(format_num(0.0), "0.0000");
         assert_eq!(format_num(0.00001234), "1.234e-5");
         assert_eq!(format_p(0.00001), "< 0.0001");
         assert_eq!(format_p(0.04567), "= 0.0457");

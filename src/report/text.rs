@@ -187,13 +187,20 @@ pub fn render(r: &FitReport) -> String {
         .unwrap_or(4)
         .clamp(9, 28);
     let stat = if r.model.inference == "kh" { "t" } else { "z" };
+    let cw = r
+        .coefficients
+        .iter()
+        .map(|c| width(&interval(c.ci_low, c.ci_high)))
+        .max()
+        .unwrap_or(10)
+        .max(width(&format!("{level_pct} CI")));
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}  p",
         pad("term", tw),
         lpad("estimate", 10),
         lpad("SE", 9),
-        pad(&format!("{level_pct} CI"), 22),
+        pad(&format!("{level_pct} CI"), cw),
         lpad(stat, 7),
     );
     for c in &r.coefficients {
@@ -203,7 +210,7 @@ pub fn render(r: &FitReport) -> String {
             pad(&clip(&c.term, tw), tw),
             lpad(&num(c.estimate), 10),
             lpad(&num(c.se), 9),
-            pad(&interval(c.ci_low, c.ci_high), 22),
+            pad(&interval(c.ci_low, c.ci_high), cw),
             lpad(&format!("{:.2}", c.statistic), 7),
             format_p(c.p).trim_start_matches("= ")
         );

@@ -946,3 +946,40 @@ fn help_and_unknown_subcommand() {
     );
     has_all(&fails(pondus().arg("frobnicate"), 2), &["frobnicate"]);
 }
+
+/// A data set large enough (70,000 studies) that the per-study sums run in
+/// parallel chunks; the numbers are invented (a fixed linear congruential
+/// sequence) and serve only this test.
+fn large_csv() -> String {
+    let mut state: u64 = 12_345;
+    let mut next = || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let mut csv = String::from("study,effect,variance,dose\n");
+    for i in 0..70_000 {
+        let dose = 10.0 * next();
+        let v = 0.01 + 0.2 * next();
+        let y = 0.1 + 0.02 * dose + (next() - 0.5) * 0.8;
+        csv.push_str(&format!("s{i},{y:.6},{v:.6},{dose:.4}\n"));
+    }
+    csv
+}
+
+#[test]
+fn json_is_byte_identical_whatever_the_thread_count() {
+    let (_dir, path) = temp_file("large.csv", large_csv().as_bytes());
+    let run = |threads: &str| {
+        let mut cmd = fit_cmd(&path, "--moderator dose --json -");
+        cmd.env("RAYON_NUM_THREADS", threads);
+        succeeds(&mut cmd)
+    };
+    let one = run("1");
+    let two = run("2");
+    let four = run("4");
+    assert!(!one.is_empty());
+    assert_eq!(one, two, "1 thread vs 2 threads");
+    assert_eq!(one, four, "1 thread vs 4 threads");
+}
