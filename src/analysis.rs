@@ -293,8 +293,8 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     if let Some(s2) = fit.kh_scale {
         if s2 < 1.0 && design.p > 1 {
             notes.push(format!(
-                "The Knapp–Hartung scale factor is {s2:.3} (< 1), so its intervals are narrower \
-                 than the z-based ones."
+                "The Knapp–Hartung scale factor is {s2:.3} (< 1), so its standard errors are smaller \
+                 than the z-based ones (its intervals also use t quantiles, which widens them)."
             ));
         }
     }

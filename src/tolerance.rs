@@ -11,9 +11,11 @@ pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
 /// times long before that).
 pub const ROOT_MAX_ITERS: u64 = 500;
 
-/// Points of the scan that brackets the (restricted) likelihood's maxima
-/// before the root search. A scan, not only a local search from one start,
-/// so that a second local maximum is not missed.
+/// Intervals of the scan of the likelihood score over [0, hi] (so one more
+/// point than this) that brackets the (restricted) likelihood's maxima
+/// before the root search. A scan rather than one local search, so that a
+/// second local maximum inside [0, hi] is found unless two sign changes
+/// fall into one interval; a heuristic, not a guarantee.
 pub const LIKELIHOOD_SCAN_POINTS: usize = 8;
 
 /// How many times the upper end of a τ² bracket may be doubled.
@@ -22,6 +24,23 @@ pub const BRACKET_DOUBLINGS: usize = 200;
 /// A design column whose part not explained by the earlier columns has a
 /// squared norm below this share of its own is treated as collinear.
 pub const COLLINEAR: f64 = 1e-10;
+
+/// A residual whose variance 1/w_i − x_i'M⁻¹x_i is below this share of the
+/// study's total variance 1/w_i has no standardised residual (a study that
+/// alone determines a coefficient).
+pub const RESIDUAL_VARIANCE_FLOOR: f64 = 1e-12;
+
+/// Above this many degrees of freedom the t distribution is replaced by the
+/// normal: statrs 0.19's t quantiles lose accuracy there, and the 97.5%
+/// points differ by about 2.4e-5 (1.2e-5 relative) at 1e5 df, less beyond.
+pub const T_AS_NORMAL_DF: f64 = 1e5;
+
+/// Iteration limit of the safeguarded Newton refinement of chi-square
+/// quantiles (each step at least halves the bracket or converges quadratically).
+pub const QUANTILE_MAX_ITERS: usize = 200;
+
+/// Relative step below which that refinement stops.
+pub const QUANTILE_REL_STEP: f64 = 2.0 * f64::EPSILON;
 
 /// Test tolerance against independent reference libraries that compute the
 /// same definitions in double precision (numpy/scipy/statsmodels): both sides

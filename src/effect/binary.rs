@@ -26,8 +26,8 @@ pub const ZERO_CELL_ADD: f64 = 0.5;
 /// - log RR: y = ln((a/n₁)/(c/n₂)), v = 1/a − 1/n₁ + 1/c − 1/n₂
 /// - RD: y = a/n₁ − c/n₂, v = p₁(1 − p₁)/n₁ + p₂(1 − p₂)/n₂
 ///
-/// (Borenstein et al. 2009, *Introduction to Meta-Analysis*, ch. 5; Deeks &
-/// Higgins, Cochrane Handbook ch. 10). When any cell is zero, 0.5 is added to
+/// (Borenstein et al. 2009, *Introduction to Meta-Analysis*, ch. 5; Cochrane
+/// Handbook, ch. 6; both cited from memory). When any cell is zero, 0.5 is added to
 /// all four cells first (so each group grows by 1). A table with no events in
 /// either group (or, for the odds ratio, no non-events in either group) carries
 /// no information on a ratio and is excluded.

@@ -7,7 +7,8 @@ use super::{first_missing, RowEffect, RowProblem, RowResult, RowValues};
 pub const Z_975: f64 = 1.959_963_984_540_054;
 
 /// A precomputed effect. Precision from `variance`, else `se` (v = se²),
-/// else a 95% CI: v = ((ci_high − ci_low) / (2 · 1.96))², the first that
+/// else a 95% CI: v = ((ci_high − ci_low) / (2 · z₀.₉₇₅))² with z₀.₉₇₅ =
+/// 1.959963984540054, the first that
 /// the row has (Cochrane Handbook, section 6.3.1, for the CI route).
 ///
 /// # Errors

@@ -134,6 +134,14 @@ pub fn omnibus(fit: &ModelFit) -> Option<OmnibusTest> {
 }
 
 /// Prediction at design row `x0` (including the leading 1 for the intercept).
+///
+/// # Formula
+/// μ̂ = x0'β̂, SE = √(x0' Cov x0), CI μ̂ ± c·SE, prediction interval for a new
+/// study's true effect μ̂ ± c·√(SE² + τ̂²), with c the t(k − p) quantile under
+/// Knapp–Hartung and the normal quantile under z (the interval of Higgins,
+/// Thompson & Spiegelhalter 2009, *J. R. Stat. Soc. A* 172:137, cited from
+/// memory, who use t(k − 2) without moderators; the reference distribution
+/// here is the one of the coefficient intervals).
 pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
     let x = DVector::from_column_slice(x0);
     let est = x.dot(&fit.beta);

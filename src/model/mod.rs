@@ -66,7 +66,11 @@ pub struct ModelFit {
     pub weights: Vec<f64>,
     /// Fitted values x_i'β̂.
     pub fitted: Vec<f64>,
-    /// Standardised residuals r_i / √(1/w_i − x_i'M⁻¹x_i) (None where the variance is 0).
+    /// Standardised residuals r_i / √(1/w_i − x_i'M⁻¹x_i), with the model-based
+    /// (unscaled) M⁻¹ under either inference: the residual divided by its
+    /// standard deviation under the model (internally studentised; Viechtbauer
+    /// & Cheung 2010, *Res. Synth. Methods* 1:112, cited from memory).
+    /// None where that variance is 0.
     pub std_resid: Vec<Option<f64>>,
     /// Residual heterogeneity test at the common-effect weights.
     pub q_e: f64,
@@ -79,7 +83,7 @@ pub struct ModelFit {
 }
 
 /// Internal standardisation of the design: X̃ = XA with every non-intercept
-/// column centred and scaled to unit SD, so the normal equations stay well
+/// column centred (when column 0 is the intercept) and scaled to unit SD, so the normal equations stay well
 /// conditioned (for example with a calendar year beside the intercept).
 /// The fit is invariant to this: β = Aβ̃, Cov(β) = A Cov(β̃) A'.
 struct Standardised {
@@ -89,19 +93,30 @@ struct Standardised {
 }
 
 fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
+    // Centring needs a column of ones to move the means into; without one
+    // (a design without intercept, possible through the library) columns
+    // are only scaled.
+    let has_intercept = p > 0 && (0..k).all(|i| x[i * p] == 1.0);
+    let first = usize::from(has_intercept);
     let mut a = DMatrix::identity(p, p);
     let mut xs = x.to_vec();
     let mut log_det_a = 0.0;
-    for j in 1..p {
-        let mean = (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64;
+    for j in first..p {
+        let mean = if has_intercept {
+            (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64
+        } else {
+            0.0
+        };
         let ss = (0..k).map(|i| (x[i * p + j] - mean).powi(2)).sum::<f64>();
         let sd = (ss / k as f64).sqrt();
-        let sd = if sd > 0.0 { sd } else { 1.0 };
+        let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
         for i in 0..k {
             xs[i * p + j] = (x[i * p + j] - mean) / sd;
         }
         a[(j, j)] = 1.0 / sd;
-        a[(0, j)] = -mean / sd;
+        if has_intercept {
+            a[(0, j)] = -mean / sd;
+        }
         log_det_a -= sd.ln();
     }
     Standardised {
@@ -172,7 +187,10 @@ pub fn fit_parts(
         let var_r = 1.0 / w - wls::quad_form(&orig, &cov_model, i);
         weights.push(w);
         fitted.push(fi);
-        std_resid.push((var_r > 1e-12 / w).then(|| (y[i] - fi) / var_r.sqrt()));
+        std_resid.push(
+            (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
+                .then(|| (y[i] - fi) / var_r.sqrt()),
+        );
     }
     let fe = fit_with(&data, 0.0, Want::SCORE).ok_or_else(singular)?;
     let v_typical = df / fe.tr_p;
@@ -212,4 +230,46 @@ pub fn fit_parts(
         log_likelihood,
         options,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn opts(method: Tau2Method) -> FitOptions {
+        FitOptions {
+            method,
+            inference: Inference::Z,
+            level: 0.95,
+        }
+    }
+
+    #[test]
+    fn design_without_intercept_is_plain_weighted_regression() {
+        // One column, no intercept, τ² = 0: β = Σ w x y / Σ w x².
+        let y = [0.2, 0.5, 0.9, 1.1];
+        let v = [0.1, 0.2, 0.1, 0.4];
+        let x = [1.0, 2.0, 3.0, 4.0];
+        let f = fit(&y, &v, &x, 1, opts(Tau2Method::None)).unwrap();
+        let num: f64 = (0..4).map(|i| x[i] * y[i] / v[i]).sum();
+        let den: f64 = (0..4).map(|i| x[i] * x[i] / v[i]).sum();
+        assert!((f.beta[0] - num / den).abs() < 1e-14);
+        assert!((f.cov[(0, 0)] - 1.0 / den).abs() < 1e-14);
+    }
+
+    #[test]
+    fn a_calendar_year_column_is_handled_without_loss() {
+        // Shifting a moderator by 2000 changes only the intercept (by −2000·slope).
+        let y = [0.1, 0.4, 0.35, 0.8, 0.7, 1.1];
+        let v = [0.02, 0.03, 0.01, 0.05, 0.02, 0.04];
+        let t: Vec<f64> = (0..6).map(|i| i as f64 * 1.5).collect();
+        let x0: Vec<f64> = t.iter().flat_map(|t| [1.0, *t]).collect();
+        let x1: Vec<f64> = t.iter().flat_map(|t| [1.0, t + 2000.0]).collect();
+        let a = fit(&y, &v, &x0, 2, opts(Tau2Method::Reml)).unwrap();
+        let b = fit(&y, &v, &x1, 2, opts(Tau2Method::Reml)).unwrap();
+        assert!((a.tau2.estimate - b.tau2.estimate).abs() < 1e-12);
+        assert!((a.beta[1] - b.beta[1]).abs() < 1e-12);
+        assert!((a.beta[0] - (b.beta[0] + 2000.0 * b.beta[1])).abs() < 1e-9);
+        assert!((a.cov[(1, 1)] - b.cov[(1, 1)]).abs() < 1e-15);
+    }
 }

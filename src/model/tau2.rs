@@ -233,7 +233,7 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
             evaluations: 0,
         }),
         // Generalised DerSimonian–Laird (Raudenbush 2009, in Cooper, Hedges &
-        // Valentine, *Handbook of Research Synthesis*, 2nd ed., ch. 16):
+        // Valentine, *The Handbook of Research Synthesis and Meta-Analysis*, 2nd ed., ch. 16):
         // τ² = (Q_E − (k − p)) / tr P₀, with P₀ at the common-effect weights.
         Tau2Method::Dl => {
             let fe = wls(data, 0.0, Want::SCORE)?;
@@ -264,7 +264,8 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
             let sum_v: f64 = data.v.iter().sum();
             Ok(closed((rss - (sum_v - tr)) / df))
         }
-        // Sidik & Jonkman (2005, *J. Biopharm. Stat.* 15:823): start from
+        // Sidik & Jonkman (2005, *J. R. Stat. Soc. C* 54:367; meta-regression form
+        // as in Sidik & Jonkman 2005, *J. Biopharm. Stat.* 15:823; both cited from memory): start from
         // τ₀² = RSS_OLS / k, then τ² = τ₀² · Q(τ₀²)/(k − p).
         Tau2Method::Sj => {
             let (_, _, rss) = ols(data).ok_or_else(|| {
@@ -326,7 +327,8 @@ fn solve_q_hinted(data: &Data<'_>, target: f64, hint: f64, what: &str) -> Result
 /// Restricted (REML) or ordinary (ML) log-likelihood at τ², up to the
 /// constant −½(k − p)·ln 2π (REML) or −½k·ln 2π (ML):
 /// ℓ_R = −½[Σ ln(v_i + τ²) + ln det X'WX + Q(τ²)],  ℓ = −½[Σ ln(v_i + τ²) + Q(τ²)]
-/// (Viechtbauer 2005, *J. Educ. Behav. Stat.* 30:261).
+/// (Viechtbauer 2005, *J. Educ. Behav. Stat.* 30:261, for the model without
+/// moderators; the meta-regression form is the usual generalisation).
 pub fn log_likelihood(f: &Wls, restricted: bool) -> f64 {
     let extra = if restricted { f.logdet_m } else { 0.0 };
     -0.5 * (f.sum_log_vt + extra + f.q)

@@ -31,7 +31,8 @@ impl Data<'_> {
 /// With w_i = 1/(v_i + τ²), W = diag(w), M = X'WX:
 /// β̂ = M⁻¹X'Wy, r = y − Xβ̂, Q = Σ w_i r_i²,
 /// tr P = Σ w_i − tr(M⁻¹ X'W²X) where P = W − WXM⁻¹X'W
-/// (Viechtbauer 2005, *J. Educ. Behav. Stat.* 30:261, eq. for the REML score).
+/// (the REML score of Viechtbauer 2005, *J. Educ. Behav. Stat.* 30:261,
+/// generalised to meta-regression).
 #[derive(Debug, Clone)]
 pub struct Wls {
     /// The τ² the fit was made at.

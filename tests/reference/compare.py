@@ -23,6 +23,11 @@ import sys
 
 RTOL = 1e-9
 ATOL = 1e-12
+# Values found by scipy's bounded minimiser are accurate only to its own
+# stopping tolerance (about 1e-8 relative here), which a different CPU or
+# libm can move; they are cross-checks, not fixture values.
+LOOSE_KEYS = ("minimize_scalar",)
+LOOSE_RTOL = 1e-6
 MAX_REPORT = 50
 
 
@@ -53,6 +58,9 @@ class Comparer:
                 self.problem(f"{path}: committed {a!r}, generated {b!r}")
                 return
             self.numbers += 1
+            loose = any(k in path for k in LOOSE_KEYS)
+            if loose and math.isfinite(a) and math.isfinite(b) and abs(a - b) <= LOOSE_RTOL * max(abs(a), abs(b), 1e-300):
+                return
             if not self.num_ok(float(a), float(b)):
                 rel = abs(a - b) / max(abs(a), abs(b))
                 self.problem(f"{path}: committed {a!r}, generated {b!r} (abs diff {abs(a - b):.3e}, rel {rel:.3e})")
