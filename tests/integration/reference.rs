@@ -401,3 +401,56 @@ fn effect_sizes_match_reference() {
         );
     }
 }
+
+/// statsmodels 0.14.6 directly (values stored by the generator from the
+/// library calls themselves): `combine_effects` for the DerSimonian–Laird
+/// (`method_re="chi2"`) and Paule–Mandel (`method_re="iterated"`, atol 1e-13)
+/// pooled estimates, and `WLS` for β and its SEs at the estimated τ².
+#[test]
+fn statsmodels_pooled_estimates_and_wls() {
+    let mut checked = 0;
+    for name in ["bcg", "sim_k20"] {
+        let fixture = load(&format!("{name}.json"));
+        let csv = std::fs::read_to_string(repo(&format!("tests/data/reference/{name}.csv"))).unwrap();
+        let measure = if name == "bcg" { Measure::LogRr } else { Measure::Effect };
+        let cross = &fixture["models"]["intercept_only"]["crosschecks"]["statsmodels_combine_effects"];
+        for (key, method, kh) in [
+            ("dl_chi2_default_tolerance", Tau2Method::Dl, false),
+            ("pm_iterated_atol1e-13", Tau2Method::Pm, false),
+            ("dl_chi2_default_tolerance", Tau2Method::Dl, true),
+        ] {
+            let e = &cross[key];
+            let inference = if kh { Inference::Kh } else { Inference::Z };
+            let r = fit_text(&settings(measure, &[], method, inference), &csv);
+            let l = format!("{name} statsmodels {key}");
+            // statsmodels does not truncate a negative DL τ² at 0; both data sets here have τ² > 0.
+            assert!(num(&e["tau2"], "tau2") > 0.0, "{l}");
+            v(&format!("{l} tau2"), r.tau2.estimate, &e["tau2"]);
+            v(&format!("{l} mean"), r.average.estimate, &e["mean_effect_re"]);
+            let se_key = if kh { "sd_eff_w_re_hksj" } else { "sd_eff_w_re" };
+            v(&format!("{l} se"), r.average.se, &e[se_key]);
+            checked += 1;
+        }
+        for (model_name, model) in fixture["models"].as_object().unwrap() {
+            let mods: Vec<&str> = model["moderators"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|m| m.as_str().unwrap())
+                .collect();
+            for (est, by_inf) in model["crosschecks"]["statsmodels_wls"].as_object().unwrap() {
+                for (inf, e) in by_inf.as_object().unwrap() {
+                    let inference = if inf == "kh" { Inference::Kh } else { Inference::Z };
+                    let r = fit_text(&settings(measure, &mods, method(est), inference), &csv);
+                    for (j, c) in r.coefficients.iter().enumerate() {
+                        let l = format!("{name}/{model_name}/{est}/{inf} statsmodels WLS {}", c.term);
+                        v(&format!("{l} estimate"), c.estimate, &e["estimate"][j]);
+                        v(&format!("{l} se"), c.se, &e["se"][j]);
+                    }
+                    checked += 1;
+                }
+            }
+        }
+    }
+    assert!(checked >= 6 + 2 * 7 * 7, "only {checked} statsmodels comparisons");
+}
