@@ -187,6 +187,11 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             statistic: c.statistic,
             df: c.df,
             p: c.p,
+            ratio: (scale == ReadingScale::Ratio).then(|| RatioCoefficient {
+                estimate: c.estimate.exp(),
+                ci_low: c.ci_low.exp(),
+                ci_high: c.ci_high.exp(),
+            }),
         })
         .collect();
     let mod_names: Vec<&str> = settings

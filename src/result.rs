@@ -154,6 +154,21 @@ pub struct Coefficient {
     pub df: Option<f64>,
     /// Two-sided p-value.
     pub p: f64,
+    /// For log-ratio measures, exp(estimate) and exp(CI): the ratio itself for
+    /// the intercept, the factor by which the ratio changes for a moderator
+    /// term (null for other measures).
+    pub ratio: Option<RatioCoefficient>,
+}
+
+/// A log-ratio coefficient shown as a ratio.
+#[derive(Debug, Clone, Serialize)]
+pub struct RatioCoefficient {
+    /// exp(estimate).
+    pub estimate: f64,
+    /// exp(ci_low).
+    pub ci_low: f64,
+    /// exp(ci_high).
+    pub ci_high: f64,
 }
 
 /// The omnibus moderator test.

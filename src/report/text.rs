@@ -194,31 +194,50 @@ pub fn render(r: &FitReport) -> String {
         .max()
         .unwrap_or(10)
         .max(width(&format!("{level_pct} CI")));
+    let ratio_name = r.measure.reading_name.as_deref().unwrap_or("ratio");
+    let has_ratio = r.coefficients.iter().any(|c| c.ratio.is_some());
     let _ = writeln!(
         o,
-        "  {}  {}  {}  {}  {}  p",
+        "  {}  {}  {}  {}  {}  {}{}",
         pad("term", tw),
         lpad("estimate", 10),
         lpad("SE", 9),
         pad(&format!("{level_pct} CI"), cw),
         lpad(stat, 7),
+        pad("p", 8),
+        if has_ratio { "exp(estimate) [CI]" } else { "" }
     );
     for c in &r.coefficients {
         let _ = writeln!(
             o,
-            "  {}  {}  {}  {}  {}  {}",
+            "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
             lpad(&num(c.estimate), 10),
             lpad(&num(c.se), 9),
             pad(&interval(c.ci_low, c.ci_high), cw),
             lpad(&format!("{:.2}", c.statistic), 7),
-            format_p(c.p).trim_start_matches("= ")
+            pad(format_p(c.p).trim_start_matches("= "), 8),
+            c.ratio
+                .as_ref()
+                .map(|x| format!("{} {}", num(x.estimate), interval(x.ci_low, x.ci_high)))
+                .unwrap_or_default()
         );
     }
     if let Some(c) = r.coefficients.first() {
         if let Some(df) = c.df {
             let _ = writeln!(o, "  (t tests on {df} degrees of freedom)");
         }
+    }
+    if has_ratio {
+        o.push_str(&wrap(
+            &format!(
+                "(exp(estimate) is the {ratio_name} at the intercept and, for a moderator \
+                 term, the factor by which the {ratio_name} changes per unit or versus the \
+                 reference level)"
+            ),
+            "  ",
+            70,
+        ));
     }
     let _ = writeln!(o);
 

@@ -983,3 +983,33 @@ fn json_is_byte_identical_whatever_the_thread_count() {
     assert_eq!(one, two, "1 thread vs 2 threads");
     assert_eq!(one, four, "1 thread vs 4 threads");
 }
+
+#[test]
+fn log_ratio_coefficients_are_also_given_as_ratios() {
+    let j = fit(
+        example("trial-events.csv"),
+        "--measure log-or --moderator followup_months",
+    );
+    for c in list(&j["coefficients"]) {
+        let ratio = &c["ratio"];
+        same(
+            "exp(estimate)",
+            num(&ratio["estimate"]),
+            num(&c["estimate"]).exp(),
+        );
+        same(
+            "exp(ci_low)",
+            num(&ratio["ci_low"]),
+            num(&c["ci_low"]).exp(),
+        );
+        same(
+            "exp(ci_high)",
+            num(&ratio["ci_high"]),
+            num(&c["ci_high"]).exp(),
+        );
+    }
+    let j = consortium("");
+    assert!(list(&j["coefficients"])
+        .iter()
+        .all(|c| c["ratio"].is_null()));
+}

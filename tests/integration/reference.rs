@@ -411,9 +411,15 @@ fn statsmodels_pooled_estimates_and_wls() {
     let mut checked = 0;
     for name in ["bcg", "sim_k20"] {
         let fixture = load(&format!("{name}.json"));
-        let csv = std::fs::read_to_string(repo(&format!("tests/data/reference/{name}.csv"))).unwrap();
-        let measure = if name == "bcg" { Measure::LogRr } else { Measure::Effect };
-        let cross = &fixture["models"]["intercept_only"]["crosschecks"]["statsmodels_combine_effects"];
+        let csv =
+            std::fs::read_to_string(repo(&format!("tests/data/reference/{name}.csv"))).unwrap();
+        let measure = if name == "bcg" {
+            Measure::LogRr
+        } else {
+            Measure::Effect
+        };
+        let cross =
+            &fixture["models"]["intercept_only"]["crosschecks"]["statsmodels_combine_effects"];
         for (key, method, kh) in [
             ("dl_chi2_default_tolerance", Tau2Method::Dl, false),
             ("pm_iterated_atol1e-13", Tau2Method::Pm, false),
@@ -426,8 +432,16 @@ fn statsmodels_pooled_estimates_and_wls() {
             // statsmodels does not truncate a negative DL τ² at 0; both data sets here have τ² > 0.
             assert!(num(&e["tau2"], "tau2") > 0.0, "{l}");
             v(&format!("{l} tau2"), r.tau2.estimate, &e["tau2"]);
-            v(&format!("{l} mean"), r.average.estimate, &e["mean_effect_re"]);
-            let se_key = if kh { "sd_eff_w_re_hksj" } else { "sd_eff_w_re" };
+            v(
+                &format!("{l} mean"),
+                r.average.estimate,
+                &e["mean_effect_re"],
+            );
+            let se_key = if kh {
+                "sd_eff_w_re_hksj"
+            } else {
+                "sd_eff_w_re"
+            };
             v(&format!("{l} se"), r.average.se, &e[se_key]);
             checked += 1;
         }
@@ -440,10 +454,15 @@ fn statsmodels_pooled_estimates_and_wls() {
                 .collect();
             for (est, by_inf) in model["crosschecks"]["statsmodels_wls"].as_object().unwrap() {
                 for (inf, e) in by_inf.as_object().unwrap() {
-                    let inference = if inf == "kh" { Inference::Kh } else { Inference::Z };
+                    let inference = if inf == "kh" {
+                        Inference::Kh
+                    } else {
+                        Inference::Z
+                    };
                     let r = fit_text(&settings(measure, &mods, method(est), inference), &csv);
                     for (j, c) in r.coefficients.iter().enumerate() {
-                        let l = format!("{name}/{model_name}/{est}/{inf} statsmodels WLS {}", c.term);
+                        let l =
+                            format!("{name}/{model_name}/{est}/{inf} statsmodels WLS {}", c.term);
                         v(&format!("{l} estimate"), c.estimate, &e["estimate"][j]);
                         v(&format!("{l} se"), c.se, &e["se"][j]);
                     }
@@ -452,5 +471,8 @@ fn statsmodels_pooled_estimates_and_wls() {
             }
         }
     }
-    assert!(checked >= 6 + 2 * 7 * 7, "only {checked} statsmodels comparisons");
+    assert!(
+        checked >= 6 + 2 * 7 * 7,
+        "only {checked} statsmodels comparisons"
+    );
 }
