@@ -634,19 +634,31 @@ fn answer(
         [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
     };
     let p_txt = crate::report::format_p(p);
-    if significant {
+    let k = fit.k;
+    let several = fit.p > 2;
+    if significant && several {
         format!(
-            "Yes: across these {} studies the effect differs with {names} ({test}, p {p_txt}; \
-             tested at α = {alpha:.2}). This is an association across studies, not proof that \
-             {names} causes the difference.",
-            fit.k
+            "Yes. Taken together, the moderator terms ({names}) are associated with the effect \
+             across these {k} studies: {test}, p {p_txt}, tested at α = {alpha:.2}. The \
+             coefficients below show which terms carry the association. An association across \
+             studies is not proof that a moderator causes the difference."
+        )
+    } else if significant {
+        format!(
+            "Yes. The effect changes with {names} across these {k} studies: {test}, p {p_txt}, \
+             tested at α = {alpha:.2}. An association across studies is not proof that {names} \
+             causes the difference."
         )
     } else {
+        let what = if several {
+            format!("the moderator terms ({names}), taken together")
+        } else {
+            names.clone()
+        };
         format!(
-            "No clear evidence that the effect changes with {names} ({test}, p {p_txt}; tested at \
-             α = {alpha:.2}). This is not evidence of no change: with {} studies the test may \
-             have little power.",
-            fit.k
+            "No clear evidence that the effect changes with {what}: {test}, p {p_txt}, tested at \
+             α = {alpha:.2}. This is not evidence of no change: with {k} studies the test may \
+             have little power."
         )
     }
 }

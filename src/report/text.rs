@@ -407,7 +407,13 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
-    o
+    // Padding of the last column leaves trailing blanks: drop them.
+    let mut out = String::with_capacity(o.len());
+    for line in o.lines() {
+        out.push_str(line.trim_end());
+        out.push('\n');
+    }
+    out
 }
 
 /// Writes the text report.
