@@ -160,6 +160,13 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     drop(effects);
     let fit = model::fit(&y, &v, &design.x, design.p, settings.options)
         .map_err(|e| in_file(source, e))?;
+    if fit.kh_scale == Some(0.0) {
+        return Err(Error::Model(format!(
+            "{source}: the model fits every effect exactly (residual Q = 0, for example because \
+             all effects are identical), so the Knapp–Hartung standard errors would be 0. Use \
+             --inference z, which does not scale by the residual variation"
+        )));
+    }
     let null_fit = if design.p == 1 {
         None
     } else {
@@ -313,7 +320,7 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     }
     let cautions = cautions(k, design.p, settings.options.inference);
 
-    Ok(FitReport {
+    let report = FitReport {
         tool: ToolInfo {
             name: "pondus".into(),
             version: env!("CARGO_PKG_VERSION").into(),
@@ -376,7 +383,60 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         warnings,
         cautions,
         notes,
-    })
+    };
+    check_finite(&report)?;
+    Ok(report)
+}
+
+/// Refuses a report with a NaN or infinite number in a reported result: an
+/// error instead of a confident wrong number.
+fn check_finite(r: &FitReport) -> Result<()> {
+    let mut bad = Vec::new();
+    let mut check = |what: String, x: f64| {
+        if !x.is_finite() && bad.len() < 5 {
+            bad.push(what);
+        }
+    };
+    check("τ²".into(), r.tau2.estimate);
+    for c in &r.coefficients {
+        for (n, x) in [
+            ("estimate", c.estimate),
+            ("SE", c.se),
+            ("statistic", c.statistic),
+            ("p", c.p),
+        ] {
+            check(format!("{} {n}", c.term), x);
+        }
+    }
+    if let Some(t) = &r.moderator_test {
+        check("moderator test".into(), t.statistic);
+        check("moderator test p".into(), t.p);
+    }
+    let h = &r.heterogeneity;
+    for (n, x) in [("Q", h.q), ("Q p", h.p), ("I²", h.i2), ("H²", h.h2)] {
+        check(n.into(), x);
+    }
+    let a = &r.average;
+    for (n, x) in [
+        ("average", a.estimate),
+        ("average SE", a.se),
+        ("prediction interval", a.pi_low),
+    ] {
+        check(n.into(), x);
+    }
+    for p in &r.predictions {
+        check("prediction".into(), p.estimate);
+        check("prediction SE".into(), p.se);
+    }
+    if bad.is_empty() {
+        Ok(())
+    } else {
+        Err(Error::NoConvergence {
+            what: "the fit".into(),
+            detail: format!("these results are not finite numbers: {}", bad.join(", ")),
+            hint: "check the data for extreme or identical values, or try --inference z or another --tau2 estimator".into(),
+        })
+    }
 }
 
 /// Prefixes a model error with the file it concerns.

@@ -15,12 +15,21 @@ fn std_normal() -> Normal {
 }
 
 /// Quantile of the standard normal distribution; `p` must lie in (0, 1).
+///
+/// Every function here returns NaN for NaN or out-of-range arguments rather
+/// than panicking inside statrs; callers turn a NaN into an error.
 pub fn normal_quantile(p: f64) -> f64 {
+    if !(p > 0.0 && p < 1.0) {
+        return f64::NAN;
+    }
     std_normal().inverse_cdf(p)
 }
 
 /// Quantile of Student's t with `df` degrees of freedom; `p` in (0, 1), `df` > 0.
 pub fn t_quantile(p: f64, df: f64) -> f64 {
+    if !(p > 0.0 && p < 1.0 && df > 0.0) {
+        return f64::NAN;
+    }
     if df > T_AS_NORMAL_DF {
         return normal_quantile(p);
     }
@@ -32,11 +41,17 @@ pub fn t_quantile(p: f64, df: f64) -> f64 {
 
 /// Two-sided p-value of a z statistic.
 pub fn normal_two_sided_p(z: f64) -> f64 {
+    if z.is_nan() {
+        return f64::NAN;
+    }
     (2.0 * std_normal().sf(z.abs())).min(1.0)
 }
 
 /// Two-sided p-value of a t statistic with `df` degrees of freedom.
 pub fn t_two_sided_p(t: f64, df: f64) -> f64 {
+    if t.is_nan() || df.is_nan() || df <= 0.0 {
+        return f64::NAN;
+    }
     if df > T_AS_NORMAL_DF {
         return normal_two_sided_p(t);
     }
@@ -48,6 +63,9 @@ pub fn t_two_sided_p(t: f64, df: f64) -> f64 {
 
 /// Upper-tail probability P(X > x) of chi-square with `df` degrees of freedom.
 pub fn chi2_sf(x: f64, df: f64) -> f64 {
+    if x.is_nan() {
+        return f64::NAN;
+    }
     match ChiSquared::new(df) {
         Ok(d) => d.sf(x.max(0.0)),
         Err(_) => f64::NAN,
@@ -56,6 +74,9 @@ pub fn chi2_sf(x: f64, df: f64) -> f64 {
 
 /// Upper-tail probability P(X > x) of F with (`df1`, `df2`) degrees of freedom.
 pub fn f_sf(x: f64, df1: f64, df2: f64) -> f64 {
+    if x.is_nan() {
+        return f64::NAN;
+    }
     match FisherSnedecor::new(df1, df2) {
         Ok(d) => d.sf(x.max(0.0)),
         Err(_) => f64::NAN,
@@ -156,6 +177,16 @@ mod tests {
             let back = ChiSquared::new(df).unwrap().cdf(x);
             assert!(((back - a) / a).abs() < 1e-10, "area {a}, df {df}: {back}");
         }
+    }
+
+    #[test]
+    fn nan_in_gives_nan_out_not_a_panic() {
+        assert!(t_two_sided_p(f64::NAN, 5.0).is_nan());
+        assert!(normal_two_sided_p(f64::NAN).is_nan());
+        assert!(f_sf(f64::NAN, 1.0, 5.0).is_nan());
+        assert!(chi2_sf(f64::NAN, 3.0).is_nan());
+        assert!(t_quantile(f64::NAN, 5.0).is_nan());
+        assert!(normal_quantile(1.5).is_nan());
     }
 
     #[test]

@@ -18,6 +18,11 @@ pub const ROOT_MAX_ITERS: u64 = 500;
 /// fall into one interval; a heuristic, not a guarantee.
 pub const LIKELIHOOD_SCAN_POINTS: usize = 8;
 
+/// When the score at τ² = 0 is not positive, the first scan interval is
+/// also scanned at this many log-spaced points (one per decade below the
+/// first quadratic point), where a second maximum close to 0 can hide.
+pub const LIKELIHOOD_NEAR_ZERO_DECADES: usize = 6;
+
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;
 

@@ -184,7 +184,7 @@ pub fn fit_parts(
     for i in 0..k {
         let w = 1.0 / (v[i] + t);
         let fi = wls::fitted(&orig, &beta, i);
-        let var_r = 1.0 / w - wls::quad_form(&orig, &cov_model, i);
+        let var_r = 1.0 / w - wls::quad_form(&data, &f.m_inv, i);
         weights.push(w);
         fitted.push(fi);
         std_resid.push(

@@ -375,13 +375,26 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
     // Scan [0, hi] (points denser near 0) for sign changes of the score from + to −:
     // each brackets a local maximum.
     let g = tolerance::LIKELIHOOD_SCAN_POINTS;
-    let mut grid = Vec::with_capacity(g + 1);
-    for j in 0..=g {
-        let u = j as f64 / g as f64;
-        let t = hi * u * u;
-        let sv = if j == 0 { s0 } else { s(t) };
-        grid.push((t, sv));
+    let mut points: Vec<f64> = (0..=g)
+        .map(|j| {
+            let u = j as f64 / g as f64;
+            hi * u * u
+        })
+        .collect();
+    // When the score at 0 is not positive, 0 is a local maximum; a second,
+    // higher one may hide close to 0, below the first quadratic point, so
+    // that interval is also scanned on a log scale.
+    if s0 <= 0.0 {
+        let first = points[1];
+        points.extend(
+            (1..=tolerance::LIKELIHOOD_NEAR_ZERO_DECADES).map(|d| first * 10f64.powi(-(d as i32))),
+        );
+        points.sort_by(f64::total_cmp);
     }
+    let grid: Vec<(f64, f64)> = points
+        .iter()
+        .map(|&t| (t, if t == 0.0 { s0 } else { s(t) }))
+        .collect();
     let mut candidates: Vec<(f64, f64)> = Vec::new();
     if s0 <= 0.0 {
         candidates.push((0.0, ll(0.0)));

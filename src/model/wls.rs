@@ -220,20 +220,35 @@ fn residual_any(d: &Data<'_>, tau2: f64, beta: &[f64]) -> (f64, f64) {
 fn accumulate_serial(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
     // Fixed sizes let the compiler unroll the p × p updates; the general
     // loop serves larger designs.
+    macro_rules! fixed {
+        ($p:literal) => {
+            match (want.trace, want.log_terms) {
+                (false, false) => accumulate_fixed::<$p, false, false>(data, tau2),
+                (true, false) => accumulate_fixed::<$p, true, false>(data, tau2),
+                (false, true) => accumulate_fixed::<$p, false, true>(data, tau2),
+                (true, true) => accumulate_fixed::<$p, true, true>(data, tau2),
+            }
+        };
+    }
     match data.p {
-        1 => accumulate_fixed::<1>(data, tau2, want),
-        2 => accumulate_fixed::<2>(data, tau2, want),
-        3 => accumulate_fixed::<3>(data, tau2, want),
-        4 => accumulate_fixed::<4>(data, tau2, want),
-        5 => accumulate_fixed::<5>(data, tau2, want),
-        6 => accumulate_fixed::<6>(data, tau2, want),
-        7 => accumulate_fixed::<7>(data, tau2, want),
-        8 => accumulate_fixed::<8>(data, tau2, want),
+        1 => fixed!(1),
+        2 => fixed!(2),
+        3 => fixed!(3),
+        4 => fixed!(4),
+        5 => fixed!(5),
+        6 => fixed!(6),
+        7 => fixed!(7),
+        8 => fixed!(8),
         _ => accumulate_any(data, tau2, want),
     }
 }
 
-fn accumulate_fixed<const P: usize>(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
+/// The sums for a design with `P` columns; `TRACE` and `LOG` choose the
+/// optional parts at compile time, so the loop has no branches.
+fn accumulate_fixed<const P: usize, const TRACE: bool, const LOG: bool>(
+    data: &Data<'_>,
+    tau2: f64,
+) -> Sums {
     let mut m = [[0.0f64; P]; P];
     let mut n2 = [[0.0f64; P]; P];
     let mut b = [0.0f64; P];
@@ -244,7 +259,7 @@ fn accumulate_fixed<const P: usize>(data: &Data<'_>, tau2: f64, want: Want) -> S
         let vt = vi + tau2;
         let w = 1.0 / vt;
         sum_w += w;
-        if want.log_terms {
+        if LOG {
             sum_log_vt += vt.ln();
         }
         let wy = w * yi;
@@ -255,7 +270,7 @@ fn accumulate_fixed<const P: usize>(data: &Data<'_>, tau2: f64, want: Want) -> S
                 m[a][c] += wxa * xi[c];
             }
         }
-        if want.trace {
+        if TRACE {
             let w2 = w * w;
             for a in 0..P {
                 let w2xa = w2 * xi[a];
@@ -267,7 +282,7 @@ fn accumulate_fixed<const P: usize>(data: &Data<'_>, tau2: f64, want: Want) -> S
     }
     Sums {
         m: m.iter().flatten().copied().collect(),
-        n2: if want.trace {
+        n2: if TRACE {
             n2.iter().flatten().copied().collect()
         } else {
             Vec::new()

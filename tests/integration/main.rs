@@ -3,4 +3,5 @@
 mod cli;
 mod properties;
 mod reference;
+mod regression;
 mod util;
