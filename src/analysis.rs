@@ -239,6 +239,7 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     design.x = Vec::new();
     let duplicate_warnings = duplicate_label_warnings(&included, &labels);
     let total_w: f64 = fit.weights.iter().sum();
+    let study_z = crate::dist::normal_quantile(1.0 - (1.0 - level) / 2.0);
     let mut studies = Vec::with_capacity(k);
     let mut corrected = Vec::new();
     for (pos, &i) in included.iter().enumerate() {
@@ -253,11 +254,14 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
                 RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
             })
             .collect();
+        let half = study_z * vi.sqrt();
         studies.push(Study {
             study: std::mem::take(&mut labels[i]),
             line: table.lines[i],
             effect: yi,
             variance: vi,
+            ci_low: yi - half,
+            ci_high: yi + half,
             weight: 100.0 * fit.weights[pos] / total_w,
             fitted: fit.fitted[pos],
             residual: yi - fit.fitted[pos],

@@ -289,6 +289,11 @@ pub struct Study {
     pub effect: f64,
     /// Sampling variance.
     pub variance: f64,
+    /// Lower end of the study's own confidence interval, effect − z·√variance
+    /// (normal quantile at the model's level).
+    pub ci_low: f64,
+    /// Upper end of the study's own confidence interval.
+    pub ci_high: f64,
     /// Share of the total weight, in percent.
     pub weight: f64,
     /// Fitted value x_i'β̂.
