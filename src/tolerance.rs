@@ -23,6 +23,10 @@ pub const LIKELIHOOD_SCAN_POINTS: usize = 8;
 /// first quadratic point), where a second maximum close to 0 can hide.
 pub const LIKELIHOOD_NEAR_ZERO_DECADES: usize = 6;
 
+/// An OLS residual mean square below this share of the mean squared effect
+/// is rounding, not variation: (4ε)², for residuals of a few ε·|y|.
+pub const EXACT_FIT_REL: f64 = 16.0 * f64::EPSILON * f64::EPSILON;
+
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;
 

@@ -272,7 +272,10 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
                 Error::Model("the design matrix is singular; the moderators are collinear".into())
             })?;
             let t0 = rss / k;
-            if t0 <= 0.0 {
+            // An exact OLS fit leaves only rounding in the residuals, of the
+            // order of ε·|y|; such a τ₀² is 0, not a tiny positive number.
+            let mean_y2 = data.y.iter().map(|y| y * y).sum::<f64>() / k;
+            if t0 <= tolerance::EXACT_FIT_REL * mean_y2 {
                 return Ok(closed(0.0));
             }
             let f = wls(data, t0, Want::Q)?;
@@ -510,6 +513,26 @@ mod tests {
             let f = estimate(&d, m).unwrap();
             assert_eq!(f.estimate, 0.0, "{m:?}");
         }
+    }
+
+    #[test]
+    fn sidik_jonkman_is_zero_for_identical_effects() {
+        // The mean of three 1.1s is not exactly 1.1 in binary: the OLS residuals are
+        // rounding errors of about 1e-16, which must not become a τ².
+        let y = [1.1; 3];
+        let v = [0.01, 0.02, 0.03];
+        let x = intercept(3);
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        assert!(
+            ols(&d).unwrap().2 > 0.0,
+            "the test needs a rounding residual"
+        );
+        assert_eq!(estimate(&d, Tau2Method::Sj).unwrap().estimate, 0.0);
     }
 
     #[test]
