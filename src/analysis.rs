@@ -236,6 +236,18 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         predictions.push(prediction(&design, &fit, spec, scale)?);
     }
 
+    let subgroups = subgroups(
+        &design,
+        &fit,
+        &raw,
+        &included,
+        &y,
+        &v,
+        settings.options,
+        scale,
+    )?;
+    let curves = curves(&design, &fit)?;
+
     design.x = Vec::new();
     let duplicate_warnings = duplicate_label_warnings(&included, &labels);
     let total_w: f64 = fit.weights.iter().sum();
@@ -384,6 +396,8 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         average,
         predictions,
         studies,
+        subgroups,
+        curves,
         warnings,
         cautions,
         notes,
@@ -644,6 +658,151 @@ fn prediction(
         reading: reading(&p, scale),
         outside_range: outside,
     })
+}
+
+/// Number of points of each fitted line in [`FitReport::curves`].
+pub const CURVE_POINTS: usize = 61;
+
+/// The values at which the moderators other than `except` are held for a
+/// line or a per-level prediction: numeric ones at their means, categorical
+/// ones at their reference levels; with the words saying so.
+fn held_values(design: &design::Design, except: usize) -> (Vec<Value>, String) {
+    let mut values = Vec::new();
+    let mut numeric = Vec::new();
+    let mut categorical = Vec::new();
+    for (j, m) in design.moderators.iter().enumerate() {
+        match &m.kind {
+            ModeratorKind::Numeric { mean, .. } => {
+                values.push(Value::Number(*mean));
+                if j != except {
+                    numeric.push(format!("{} = {}", m.name, short(*mean)));
+                }
+            }
+            ModeratorKind::Categorical { reference, .. } => {
+                values.push(Value::Label(reference.clone()));
+                if j != except {
+                    categorical.push(format!("{} = {reference}", m.name));
+                }
+            }
+        }
+    }
+    let mut parts = Vec::new();
+    if !numeric.is_empty() {
+        parts.push(format!("at the mean of {}", numeric.join(", ")));
+    }
+    if !categorical.is_empty() {
+        parts.push(format!("at the reference level {}", categorical.join(", ")));
+    }
+    (values, parts.join("; "))
+}
+
+/// A number in words: at most 3 decimals, trailing zeros dropped.
+fn short(x: f64) -> String {
+    let s = format!("{x:.3}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.into()
+    }
+}
+
+/// Per-level summaries of every categorical moderator.
+///
+/// # Formula
+/// `pooled`: the intercept-only random-effects model fitted to the level's
+/// studies alone, with the main model's τ² estimator, inference and level
+/// (its own τ²). `predicted`: x0'β̂ of the main model at the level, the other
+/// moderators held as in [`held_values`], with [`inference::predict`].
+#[allow(clippy::too_many_arguments)]
+fn subgroups(
+    design: &design::Design,
+    fit: &ModelFit,
+    raw: &[RawModerator],
+    included: &[usize],
+    y: &[f64],
+    v: &[f64],
+    options: FitOptions,
+    scale: ReadingScale,
+) -> Result<Vec<Subgroups>> {
+    let mut out = Vec::new();
+    for (j, m) in design.moderators.iter().enumerate() {
+        let (ModeratorKind::Categorical { levels, counts, .. }, RawModerator::Text(cells)) =
+            (&m.kind, &raw[j])
+        else {
+            continue;
+        };
+        let (mut values, held) = held_values(design, j);
+        let mut summaries = Vec::new();
+        for (level, &count) in levels.iter().zip(counts) {
+            let (mut yl, mut vl) = (Vec::new(), Vec::new());
+            for (pos, &i) in included.iter().enumerate() {
+                if cells[i].as_deref() == Some(level.as_str()) {
+                    yl.push(y[pos]);
+                    vl.push(v[pos]);
+                }
+            }
+            let own = if yl.len() >= 2 {
+                let ones = vec![1.0; yl.len()];
+                model::fit_parts(&yl, &vl, &ones, 1, options, false)
+                    .ok()
+                    .filter(|f| f.kh_scale != Some(0.0))
+                    .map(|f| (inference::predict(&f, &[1.0]), f.tau2.estimate))
+                    .filter(|(p, _)| p.se.is_finite() && p.pi_low.is_finite())
+            } else {
+                None
+            };
+            values[j] = Value::Label(level.clone());
+            let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
+            summaries.push(LevelSummary {
+                level: level.clone(),
+                k: count,
+                pooled: own.map(|(p, _)| estimate(p, scale)),
+                tau2: own.map(|(_, t)| t),
+                predicted: estimate(inference::predict(fit, &x0), scale),
+            });
+        }
+        out.push(Subgroups {
+            moderator: m.name.clone(),
+            held,
+            levels: summaries,
+        });
+    }
+    Ok(out)
+}
+
+/// The fitted line along every numeric moderator: [`CURVE_POINTS`]
+/// predictions ([`inference::predict`]) evenly spaced from the studies'
+/// minimum to maximum, the other moderators held as in [`held_values`].
+fn curves(design: &design::Design, fit: &ModelFit) -> Result<Vec<Curve>> {
+    let mut out = Vec::new();
+    for (j, m) in design.moderators.iter().enumerate() {
+        let ModeratorKind::Numeric { min, max, .. } = m.kind else {
+            continue;
+        };
+        let (mut values, held) = held_values(design, j);
+        let mut points = Vec::with_capacity(CURVE_POINTS);
+        for s in 0..CURVE_POINTS {
+            let x = min + (max - min) * s as f64 / (CURVE_POINTS - 1) as f64;
+            values[j] = Value::Number(x);
+            let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
+            let p = inference::predict(fit, &x0);
+            points.push(CurvePoint {
+                x,
+                estimate: p.estimate,
+                ci_low: p.ci_low,
+                ci_high: p.ci_high,
+                pi_low: p.pi_low,
+                pi_high: p.pi_high,
+            });
+        }
+        out.push(Curve {
+            moderator: m.name.clone(),
+            held,
+            points,
+        });
+    }
+    Ok(out)
 }
 
 /// Residual heterogeneity statistics.

@@ -8,6 +8,7 @@ use crate::model::design::ModeratorSpec;
 use crate::model::tau2::Tau2Method;
 use crate::model::{FitOptions, Inference};
 use crate::output::{self, Target};
+use crate::plot;
 use crate::report;
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use std::collections::BTreeMap;
@@ -154,9 +155,58 @@ pub struct FitArgs {
     /// Write one CSV row per input row: effect, weight, fitted value, residuals, exclusions.
     #[arg(long, value_name = "PATH")]
     pub table: Option<PathBuf>,
+    /// Draw a forest plot into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub forest: Option<PathBuf>,
+    /// Order of the forest plot's rows: input, effect, precision, or a moderator's name.
+    #[arg(long, value_name = "KEY")]
+    pub sort: Option<String>,
+    /// Mark each study's fitted value (from the moderators) in the forest plot.
+    #[arg(long)]
+    pub show_fitted: bool,
+    /// Draw a bubble plot (effect against a moderator, with the fitted line) into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub bubble: Option<PathBuf>,
+    /// The moderator on the bubble plot's x axis [default: the first numeric one].
+    #[arg(long, value_name = "NAME")]
+    pub bubble_x: Option<String>,
+    /// Draw a funnel plot (effect or residual against its standard error) into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub funnel: Option<PathBuf>,
+    /// Shade the funnel plot's significance contours (p = 0.10, 0.05, 0.01).
+    #[arg(long)]
+    pub contours: bool,
+    /// Width of every plot in pixels [default: automatic].
+    #[arg(long, value_name = "PIXELS")]
+    pub width: Option<u32>,
+    /// Height of every plot in pixels [default: automatic; a forest plot grows with its rows].
+    #[arg(long, value_name = "PIXELS")]
+    pub height: Option<u32>,
     /// Do not print the terminal report.
     #[arg(long, short)]
     pub quiet: bool,
+}
+
+/// A plot kind.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlotKind {
+    /// `--forest`.
+    Forest,
+    /// `--bubble`.
+    Bubble,
+    /// `--funnel`.
+    Funnel,
+}
+
+/// One requested plot.
+#[derive(Debug, Clone)]
+pub struct PlotRequest {
+    /// Which plot.
+    pub kind: PlotKind,
+    /// Where it goes (always a file).
+    pub target: Target,
+    /// SVG or PNG, from the extension.
+    pub format: plot::Format,
 }
 
 fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a str)> {
@@ -180,6 +230,10 @@ pub struct FitRun {
     pub json: Option<Target>,
     /// Per-study CSV output.
     pub table: Option<Target>,
+    /// Plots to draw.
+    pub plots: Vec<PlotRequest>,
+    /// Plot settings.
+    pub plot_options: plot::PlotOptions,
     /// Whether to print the terminal report.
     pub text: bool,
 }
@@ -276,6 +330,81 @@ impl FitArgs {
         if let Some(t) = &table {
             outs.push(("--table", t));
         }
+        let mut plots = Vec::new();
+        for (flag, kind, path) in [
+            ("--forest", PlotKind::Forest, &self.forest),
+            ("--bubble", PlotKind::Bubble, &self.bubble),
+            ("--funnel", PlotKind::Funnel, &self.funnel),
+        ] {
+            if let Some(p) = path {
+                plots.push((
+                    flag,
+                    PlotRequest {
+                        kind,
+                        target: Target::from_arg(p),
+                        format: plot::Format::from_path(flag, p)?,
+                    },
+                ));
+            }
+        }
+        let needs = |flag: &str, given: bool, plot: &str, present: bool| -> Result<()> {
+            if given && !present {
+                Err(Error::usage(
+                    flag,
+                    format!("applies to a plot; add {plot} FILE.svg (or .png)"),
+                ))
+            } else {
+                Ok(())
+            }
+        };
+        needs(
+            "--sort",
+            self.sort.is_some(),
+            "--forest",
+            self.forest.is_some(),
+        )?;
+        needs(
+            "--show-fitted",
+            self.show_fitted,
+            "--forest",
+            self.forest.is_some(),
+        )?;
+        needs(
+            "--bubble-x",
+            self.bubble_x.is_some(),
+            "--bubble",
+            self.bubble.is_some(),
+        )?;
+        needs(
+            "--contours",
+            self.contours,
+            "--funnel",
+            self.funnel.is_some(),
+        )?;
+        let any_plot = !plots.is_empty();
+        for (flag, v) in [("--width", self.width), ("--height", self.height)] {
+            needs(
+                flag,
+                v.is_some(),
+                "--forest, --bubble or --funnel",
+                any_plot,
+            )?;
+            if let Some(v) = v {
+                let (lo, hi) = plot::SIZE_RANGE;
+                if !(lo..=hi).contains(&v) {
+                    return Err(Error::usage(
+                        flag,
+                        format!("{v} pixels is outside {lo} to {hi}"),
+                    ));
+                }
+            }
+        }
+        if let Some(name) = &self.bubble_x {
+            known("--bubble-x", name)?;
+        }
+        for (flag, p) in &plots {
+            outs.push((flag, &p.target));
+        }
         let input_path = match &source {
             Source::File(p) => Some(p.as_path()),
             Source::Stdin => None,
@@ -305,6 +434,19 @@ impl FitArgs {
             },
             json,
             table,
+            plots: plots.into_iter().map(|(_, p)| p).collect(),
+            plot_options: plot::PlotOptions {
+                width: self.width,
+                height: self.height,
+                sort: self
+                    .sort
+                    .as_deref()
+                    .map(plot::SortKey::parse)
+                    .unwrap_or_default(),
+                show_fitted: self.show_fitted,
+                bubble_x: self.bubble_x.clone(),
+                contours: self.contours,
+            },
             text: !self.quiet && !to_stdout,
         })
     }
@@ -317,6 +459,18 @@ impl FitArgs {
 pub fn run_fit(run: &FitRun) -> Result<()> {
     let bytes = run.source.read_all()?;
     let report = analysis::run(&run.settings, &run.source.name(), &bytes)?;
+    // Every plot is drawn before anything is written, so a plot the model
+    // cannot support leaves no partial set of outputs behind.
+    let mut drawn = Vec::with_capacity(run.plots.len());
+    for p in &run.plots {
+        let o = &run.plot_options;
+        let bytes = match p.kind {
+            PlotKind::Forest => plot::forest_plot(&report, o, p.format)?,
+            PlotKind::Bubble => plot::bubble_plot(&report, o, p.format)?,
+            PlotKind::Funnel => plot::funnel_plot(&report, o, p.format)?,
+        };
+        drawn.push((&p.target, bytes));
+    }
     if let Some(t) = &run.json {
         let mut buf = Vec::new();
         report::json::write(&report, &mut buf).map_err(|e| io_err("JSON", e))?;
@@ -326,6 +480,9 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         let mut buf = Vec::new();
         report::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
         output::emit(t, &buf)?;
+    }
+    for (target, bytes) in drawn {
+        output::emit(target, &bytes)?;
     }
     if run.text {
         output::emit(&Target::Stdout, report::text::render(&report).as_bytes())?;
@@ -385,6 +542,38 @@ mod tests {
         assert!(args(&["--col", "nope=x", "--measure", "r"]).is_err());
         assert!(args(&["--at", "dose"]).is_err());
         assert!(args(&["--json", "in.csv"]).is_err());
+        let p = args(&[
+            "--forest",
+            "f.svg",
+            "--funnel",
+            "u.PNG",
+            "--sort",
+            "precision",
+            "--contours",
+            "--width",
+            "800",
+        ])
+        .unwrap();
+        assert_eq!(p.plots.len(), 2);
+        assert_eq!(p.plots[1].format, plot::Format::Png);
+        assert_eq!(p.plot_options.sort, plot::SortKey::Precision);
+        assert_eq!(p.plot_options.width, Some(800));
+        assert!(p.plot_options.contours && !p.plot_options.show_fitted);
+        for bad in [
+            &["--forest", "f.jpg"][..],
+            &["--forest", "-"],
+            &["--bubble-x", "dose"],
+            &["--show-fitted"],
+            &["--width", "800"],
+            &["--forest", "f.svg", "--height", "50"],
+            &["--forest", "f.svg", "--funnel", "f.svg"],
+            &["--bubble", "b.svg", "--bubble-x", "dose"],
+        ] {
+            assert!(
+                matches!(args(bad), Err(Error::Usage { .. })),
+                "{bad:?} is refused"
+            );
+        }
         assert!(!args(&["--json", "-"]).unwrap().text);
     }
 }

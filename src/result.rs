@@ -35,6 +35,10 @@ pub struct FitReport {
     pub predictions: Vec<Prediction>,
     /// One entry per included study, in input order.
     pub studies: Vec<Study>,
+    /// Per-level summaries of each categorical moderator, in moderator order.
+    pub subgroups: Vec<Subgroups>,
+    /// The fitted line with its bands along each numeric moderator, in moderator order.
+    pub curves: Vec<Curve>,
     /// Things that may make a result unreliable.
     pub warnings: Vec<String>,
     /// How to read the results responsibly.
@@ -306,4 +310,63 @@ pub struct Study {
     pub moderators: Vec<AtValue>,
     /// An adjustment made to this study's data.
     pub note: Option<String>,
+}
+
+/// Per-level summaries of one categorical moderator (for grouped forest
+/// plots and per-level bubble plots).
+#[derive(Debug, Clone, Serialize)]
+pub struct Subgroups {
+    /// The moderator's name.
+    pub moderator: String,
+    /// Where the other moderators are held for `predicted`, in words (empty when there are none).
+    pub held: String,
+    /// One entry per level, in the order of the moderator's `levels`.
+    pub levels: Vec<LevelSummary>,
+}
+
+/// One level of a categorical moderator.
+#[derive(Debug, Clone, Serialize)]
+pub struct LevelSummary {
+    /// The level.
+    pub level: String,
+    /// Included studies at this level.
+    pub k: usize,
+    /// A separate random-effects average of this level's studies alone (same
+    /// τ² estimator, inference and level as the main model; null when the
+    /// level has fewer than 2 studies or that fit has no answer).
+    pub pooled: Option<Estimate>,
+    /// τ² of that separate fit (null with `pooled`).
+    pub tau2: Option<f64>,
+    /// The main model's predicted mean effect at this level, with the other
+    /// numeric moderators at their means and the other categorical moderators
+    /// at their reference levels. Its prediction interval uses the model's τ².
+    pub predicted: Estimate,
+}
+
+/// The fitted meta-regression line along one numeric moderator.
+#[derive(Debug, Clone, Serialize)]
+pub struct Curve {
+    /// The moderator's name.
+    pub moderator: String,
+    /// Where the other moderators are held, in words (empty when there are none).
+    pub held: String,
+    /// Predictions at evenly spaced values from the studies' minimum to maximum.
+    pub points: Vec<CurvePoint>,
+}
+
+/// One point of a [`Curve`], on the analysis scale.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct CurvePoint {
+    /// The moderator's value.
+    pub x: f64,
+    /// Predicted mean effect.
+    pub estimate: f64,
+    /// Confidence interval of the mean effect.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval for a new study's true effect.
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
 }

@@ -1,0 +1,116 @@
+//! Benchmark of the plots: forest plots of k = 30, 300 and 1,000 studies
+//! (with a categorical moderator, so with subgroup rows) and bubble and
+//! funnel plots of 1,000 studies, as SVG and PNG, from a `FitReport` already
+//! in memory. Run with `cargo bench --bench plot`; the results are recorded
+//! in docs/performance.md. Not a test: nothing here asserts a time.
+//!
+//! The data are invented (a seeded xorshift generator), for timing only.
+
+use pondus::analysis::{run, FitSettings};
+use pondus::effect::{ColumnMap, Measure};
+use pondus::model::design::ModeratorSpec;
+use pondus::model::tau2::Tau2Method;
+use pondus::model::{FitOptions, Inference};
+use pondus::plot::{self, Format, PlotOptions};
+use std::hint::black_box;
+use std::time::{Duration, Instant};
+
+/// A plot renderer of the library.
+type Draw = fn(&pondus::result::FitReport, &PlotOptions, Format) -> pondus::Result<Vec<u8>>;
+
+struct Rng(u64);
+
+impl Rng {
+    fn next(&mut self) -> f64 {
+        // xorshift64*; uniform in [0, 1).
+        self.0 ^= self.0 >> 12;
+        self.0 ^= self.0 << 25;
+        self.0 ^= self.0 >> 27;
+        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
+    }
+}
+
+fn csv(k: usize, seed: u64) -> String {
+    let mut r = Rng(seed);
+    let mut s = String::from("study,effect,variance,dose,arm\n");
+    for i in 0..k {
+        let dose = r.next() * 10.0;
+        let v = 0.01 + 0.2 * r.next();
+        let y = 0.1 + 0.03 * dose + 0.3 * (r.next() - 0.5) + v.sqrt() * (r.next() - 0.5);
+        let arm = if i % 3 == 0 { "b" } else { "a" };
+        s.push_str(&format!(
+            "Invented study {i},{y:.5},{v:.5},{dose:.3},{arm}\n"
+        ));
+    }
+    s
+}
+
+fn median_time<F: FnMut()>(mut f: F, runs: usize) -> Duration {
+    let mut t: Vec<Duration> = (0..runs)
+        .map(|_| {
+            let s = Instant::now();
+            f();
+            s.elapsed()
+        })
+        .collect();
+    t.sort();
+    t[t.len() / 2]
+}
+
+fn main() {
+    let moderator = |name: &str, categorical: bool| ModeratorSpec {
+        name: name.into(),
+        categorical,
+        reference: None,
+        center: false,
+    };
+    let settings = FitSettings {
+        measure: Measure::Effect,
+        columns: ColumnMap::default(),
+        label: ("study".into(), false),
+        moderators: vec![moderator("dose", false), moderator("arm", true)],
+        interactions: vec![],
+        options: FitOptions {
+            method: Tau2Method::Reml,
+            inference: Inference::Kh,
+            level: 0.95,
+        },
+        predictions: vec![],
+    };
+    let opts = PlotOptions::default();
+    println!(
+        "{:>6}  {:>8}  {:>8}  {:>12}  {:>12}  {:>10}",
+        "k", "plot", "format", "size (px)", "median", "bytes"
+    );
+    for &k in &[30usize, 300, 1_000] {
+        let report = run(&settings, "bench", csv(k, 7 + k as u64).as_bytes()).unwrap();
+        let mut kinds: Vec<(&str, Draw)> = vec![("forest", plot::forest_plot)];
+        if k == 1_000 {
+            kinds.push(("bubble", plot::bubble_plot));
+            kinds.push(("funnel", plot::funnel_plot));
+        }
+        for (name, draw) in kinds {
+            for (format, label) in [(Format::Svg, "svg"), (Format::Png, "png")] {
+                let bytes = draw(&report, &opts, format).unwrap();
+                let dims = if format == Format::Png {
+                    let w = u32::from_be_bytes(bytes[16..20].try_into().unwrap());
+                    let h = u32::from_be_bytes(bytes[20..24].try_into().unwrap());
+                    format!("{w}×{h}")
+                } else {
+                    "-".into()
+                };
+                let t = median_time(
+                    || {
+                        black_box(draw(&report, &opts, format).unwrap());
+                    },
+                    5,
+                );
+                println!(
+                    "{k:>6}  {name:>8}  {label:>8}  {dims:>12}  {:>9.1} ms  {:>10}",
+                    t.as_secs_f64() * 1e3,
+                    bytes.len()
+                );
+            }
+        }
+    }
+}

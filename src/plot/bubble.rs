@@ -1,0 +1,331 @@
+//! The bubble plot: each study's effect against a moderator, bubble area
+//! proportional to its weight, with the fitted meta-regression line, its
+//! confidence band (shaded) and prediction band (dashed lines). For a
+//! categorical moderator: the studies of each level side by side, with the
+//! level's predicted effect, its confidence interval and prediction interval.
+
+use super::forest::{effect_axis_title, wrap};
+use super::palette::*;
+use super::{
+    decimals_for, level_pct, model_line, num, size, Align, Axis, Frame, PlotOptions, Scene,
+};
+use crate::effect::ReadingScale;
+use crate::error::{Error, Result};
+use crate::model::design::ModeratorKind;
+use crate::result::{AtValue, FitReport};
+
+/// Builds the bubble plot.
+///
+/// # Errors
+/// [`Error::Usage`] naming `--bubble` when the model has no moderator, or
+/// `--bubble-x` when it names none of the model's moderators.
+pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
+    let mods = &report.model.moderators;
+    if mods.is_empty() {
+        return Err(Error::usage(
+            "--bubble",
+            "a bubble plot draws the effect against a moderator, and this model has none; add \
+             --moderator NAME (a numeric one for a fitted line)",
+        ));
+    }
+    let j = match &opts.bubble_x {
+        Some(name) => mods.iter().position(|m| &m.name == name).ok_or_else(|| {
+            Error::usage(
+                "--bubble-x",
+                format!(
+                    "'{name}' is not a moderator of this model; the moderators are: {}",
+                    mods.iter()
+                        .map(|m| m.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )
+        })?,
+        None => mods
+            .iter()
+            .position(|m| matches!(m.kind, ModeratorKind::Numeric { .. }))
+            .unwrap_or(0),
+    };
+    let scale = report.measure.reading_scale;
+    let tp = |y: f64| Axis::to_plot(scale, y);
+    let width = f64::from(opts.width.unwrap_or(900));
+    let height = f64::from(opts.height.unwrap_or(620));
+    let name = &mods[j].name;
+    let studies = &report.studies;
+    let lv = level_pct(report);
+
+    // Caption first: its height fixes the plot area.
+    let mut caption = Vec::new();
+    let numeric = matches!(mods[j].kind, ModeratorKind::Numeric { .. });
+    let curve = report.curves.iter().find(|c| &c.moderator == name);
+    let held = if numeric {
+        curve.map(|c| c.held.clone()).unwrap_or_default()
+    } else {
+        report
+            .subgroups
+            .iter()
+            .find(|g| &g.moderator == name)
+            .map(|g| g.held.clone())
+            .unwrap_or_default()
+    };
+    if numeric {
+        caption.push(format!(
+            "○ study (area proportional to its weight); solid line: fitted mean effect; shaded: \
+             its {lv} confidence band; dashed lines: {lv} prediction band for a new study's true effect."
+        ));
+        if report.model.interactions.is_empty() {
+            if let Some(c) = report.coefficients.iter().find(|c| &c.term == name) {
+                let d = decimals_for(c.ci_high - c.ci_low).max(2);
+                let ratio = match &c.ratio {
+                    Some(r) => format!(
+                        " (the ratio is multiplied by {} [{}, {}])",
+                        num(r.estimate, d.max(3)),
+                        num(r.ci_low, d.max(3)),
+                        num(r.ci_high, d.max(3))
+                    ),
+                    None => String::new(),
+                };
+                caption.push(format!(
+                    "Change in the analysed effect per unit of {name}: {} [{}, {}]{ratio}, p {}.",
+                    num(c.estimate, d),
+                    num(c.ci_low, d),
+                    num(c.ci_high, d),
+                    crate::report::format_p(c.p)
+                ));
+            }
+        }
+    } else {
+        caption.push(format!(
+            "○ study (area proportional to its weight); ◆ the model's predicted mean effect for \
+             the level with its {lv} CI (solid bar); dashed bar: {lv} prediction interval."
+        ));
+    }
+    if !held.is_empty() {
+        caption.push(format!("Other moderators are held {held}."));
+    }
+    if report.tau2.estimate == 0.0 {
+        caption.push(
+            "τ² is estimated as 0, so the prediction band coincides with the confidence band."
+                .into(),
+        );
+    }
+    caption.push(model_line(report));
+    let margin = 18.0;
+    let cap_lines: Vec<String> = caption
+        .iter()
+        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .collect();
+    let top = 92.0;
+    let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
+    if height - top - bottom < 120.0 {
+        return Err(Error::usage(
+            "--height",
+            format!(
+                "{height} pixels leave no room for the bubble plot; use at least {:.0}",
+                top + bottom + 120.0
+            ),
+        ));
+    }
+
+    // y range in plot space.
+    let mut ys: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
+    ys.push(0.0);
+    if numeric {
+        if let Some(c) = curve {
+            for p in &c.points {
+                ys.extend([tp(p.pi_low), tp(p.pi_high)]);
+            }
+        }
+    } else if let Some(g) = report.subgroups.iter().find(|g| &g.moderator == name) {
+        for l in &g.levels {
+            ys.extend([tp(l.predicted.pi_low), tp(l.predicted.pi_high)]);
+        }
+    }
+    let ymin = ys.iter().copied().fold(f64::INFINITY, f64::min);
+    let ymax = ys.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let pad = 0.05 * (ymax - ymin).max(1e-6);
+    let (mut lo, mut hi) = (ymin - pad, ymax + pad);
+    if scale == ReadingScale::Correlation {
+        lo = lo.max(-1.0);
+        hi = hi.min(1.0);
+    }
+    let ya = Axis::new(lo, hi, scale == ReadingScale::Ratio, 7).snapped();
+    let levels: Vec<String> = match &mods[j].kind {
+        ModeratorKind::Categorical { levels, .. } => levels.clone(),
+        ModeratorKind::Numeric { .. } => Vec::new(),
+    };
+    let xa = match &mods[j].kind {
+        ModeratorKind::Numeric { min, max, .. } => {
+            let pad = 0.04 * (max - min);
+            Axis::new(min - pad, max + pad, false, 8).snapped()
+        }
+        ModeratorKind::Categorical { .. } => Axis {
+            lo: -0.5,
+            hi: levels.len() as f64 - 0.5,
+            ticks: Vec::new(),
+        },
+    };
+    let y_label_w = ya
+        .ticks
+        .iter()
+        .map(|t| super::scene::text_width(&t.1, size::SMALL))
+        .fold(0.0, f64::max);
+    let f = Frame {
+        x0: margin + y_label_w + 14.0,
+        y0: top,
+        x1: width - margin - 10.0,
+        y1: height - bottom,
+        xa,
+        ya,
+        y_down: false,
+    };
+    let mut sc = Scene::new(width as u32, height as u32);
+    sc.text(
+        (margin, 20.0),
+        super::scene::fit_text(
+            &format!("Effect by {name}"),
+            size::TITLE,
+            width - 2.0 * margin,
+        ),
+        size::TITLE,
+        INK,
+        Align::Left,
+    );
+    sc.text(
+        (margin, 44.0),
+        super::scene::fit_text(
+            &format!("{} · {}", report.measure.description, report.input.file),
+            size::SMALL,
+            width - 2.0 * margin,
+        ),
+        size::SMALL,
+        MUTED,
+        Align::Left,
+    );
+    f.grid(&mut sc);
+    if (f.ya.lo..=f.ya.hi).contains(&0.0) {
+        let y = f.y(0.0);
+        sc.dashed(vec![(f.x0, y), (f.x1, y)], GUIDE, 1, (4.0, 4.0));
+    }
+
+    let w_max = studies.iter().map(|s| s.weight).fold(0.0, f64::max);
+    let r_max = ((f.y1 - f.y0).min(f.x1 - f.x0) * 0.045).clamp(8.0, 30.0);
+    let radius = |w: f64| (r_max * (w / w_max).sqrt()).max(2.0);
+    // Largest bubbles first, so small ones stay visible on top.
+    let mut by_weight: Vec<usize> = (0..studies.len()).collect();
+    by_weight.sort_by(|&a, &b| studies[b].weight.total_cmp(&studies[a].weight));
+    let y_in = |v: f64| v.clamp(f.ya.lo, f.ya.hi);
+
+    if numeric {
+        if let Some(c) = curve {
+            let upper: Vec<(f64, f64)> = c
+                .points
+                .iter()
+                .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci_high)))))
+                .collect();
+            let mut band = upper.clone();
+            band.extend(
+                c.points
+                    .iter()
+                    .rev()
+                    .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci_low))))),
+            );
+            sc.poly(band, Some((FIT, 0.2)), None);
+            for pick in [
+                |p: &crate::result::CurvePoint| p.pi_low,
+                |p: &crate::result::CurvePoint| p.pi_high,
+            ] {
+                let line: Vec<(f64, f64)> = c
+                    .points
+                    .iter()
+                    .map(|p| (f.x(p.x), f.y(y_in(tp(pick(p))))))
+                    .collect();
+                sc.dashed(line, PREDICT, 2, (8.0, 5.0));
+            }
+        }
+        for &i in &by_weight {
+            let s = &studies[i];
+            let AtValue::Number(x) = s.moderators[j] else {
+                continue;
+            };
+            sc.circle(
+                (f.x(x), f.y(y_in(tp(s.effect)))),
+                radius(s.weight),
+                Some((STUDY, 0.35)),
+                Some((STUDY, 1)),
+            );
+        }
+        if let Some(c) = curve {
+            let line: Vec<(f64, f64)> = c
+                .points
+                .iter()
+                .map(|p| (f.x(p.x), f.y(y_in(tp(p.estimate)))))
+                .collect();
+            sc.line(line, FIT, 3);
+        }
+    } else {
+        let group = report.subgroups.iter().find(|g| &g.moderator == name);
+        let band_w = (f.x(1.0) - f.x(0.0)).abs();
+        for (l, level) in levels.iter().enumerate() {
+            let cx = f.x(l as f64);
+            let members: Vec<usize> = by_weight
+                .iter()
+                .copied()
+                .filter(|&i| matches!(&studies[i].moderators[j], AtValue::Level(v) if v == level))
+                .collect();
+            for (n, &i) in members.iter().enumerate() {
+                let s = &studies[i];
+                // Deterministic spread: golden-ratio offsets in the left part of the band.
+                let off = ((n as f64 * 0.618_034).fract() - 0.5) * 0.34 * band_w;
+                sc.circle(
+                    (cx - 0.12 * band_w + off, f.y(y_in(tp(s.effect)))),
+                    radius(s.weight),
+                    Some((STUDY, 0.35)),
+                    Some((STUDY, 1)),
+                );
+            }
+            let k = members.len();
+            sc.text(
+                (cx, f.y1 + 15.0),
+                format!("{level} (k = {k})"),
+                size::SMALL,
+                INK,
+                Align::Center,
+            );
+            if let Some(lvl) = group.and_then(|g| g.levels.iter().find(|x| &x.level == level)) {
+                let p = &lvl.predicted;
+                let x = cx + 0.24 * band_w;
+                let (pl, ph) = (f.y(y_in(tp(p.pi_low))), f.y(y_in(tp(p.pi_high))));
+                sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
+                sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);
+                sc.line(vec![(x + 5.0, ph), (x + 15.0, ph)], PREDICT, 2);
+                let (cl, ch) = (f.y(y_in(tp(p.ci_low))), f.y(y_in(tp(p.ci_high))));
+                sc.line(
+                    vec![
+                        (x - 5.0, cl),
+                        (x + 5.0, cl),
+                        (x, cl),
+                        (x, ch),
+                        (x - 5.0, ch),
+                        (x + 5.0, ch),
+                    ],
+                    FIT,
+                    3,
+                );
+                let y = f.y(y_in(tp(p.estimate)));
+                sc.poly(
+                    vec![(x - 8.0, y), (x, y - 8.0), (x + 8.0, y), (x, y + 8.0)],
+                    Some((FIT, 1.0)),
+                    Some((INK, 1)),
+                );
+            }
+        }
+    }
+    f.axes(&mut sc, name, &effect_axis_title(report));
+    let mut cy = f.y1 + 64.0;
+    for line in cap_lines {
+        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
+        cy += 17.0;
+    }
+    Ok(sc)
+}

@@ -1,0 +1,244 @@
+//! The funnel plot: each study's effect (or, with moderators, its residual)
+//! against its standard error, the standard-error axis pointing down, the
+//! pseudo-confidence region around the estimate (around 0 for residuals),
+//! and optional significance contours around no effect.
+
+use super::forest::wrap;
+use super::palette::*;
+use super::{level_pct, measure_name, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use crate::effect::ReadingScale;
+use crate::error::Result;
+use crate::result::FitReport;
+use plotters::style::RGBColor;
+
+/// The contour levels (two-sided p) and their fills, lightest first.
+const CONTOURS: [(f64, RGBColor, &str); 3] = [
+    (0.10, RGBColor(0xE4, 0xE7, 0xEB), "0.05 ≤ p < 0.10"),
+    (0.05, RGBColor(0xC5, 0xCA, 0xD2), "0.01 ≤ p < 0.05"),
+    (0.01, RGBColor(0x9A, 0xA1, 0xAC), "p < 0.01"),
+];
+
+/// Builds the funnel plot.
+///
+/// # Errors
+/// None at present beyond the shared drawing errors; the signature matches the other plots.
+pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
+    let residuals = !report.model.moderators.is_empty();
+    let scale = report.measure.reading_scale;
+    let ratio_axis = scale == ReadingScale::Ratio && !residuals;
+    let width = f64::from(opts.width.unwrap_or(820));
+    let height = f64::from(opts.height.unwrap_or(640));
+    let studies = &report.studies;
+    let lv = level_pct(report);
+    let z = crate::dist::normal_quantile(1.0 - (1.0 - report.model.level) / 2.0);
+    let centre = if residuals {
+        0.0
+    } else {
+        report.average.estimate
+    };
+    let xs: Vec<f64> = studies
+        .iter()
+        .map(|s| if residuals { s.residual } else { s.effect })
+        .collect();
+    let ses: Vec<f64> = studies.iter().map(|s| s.variance.sqrt()).collect();
+    let se_max = ses.iter().copied().fold(0.0, f64::max) * 1.08;
+
+    let analysed = match scale {
+        ReadingScale::Ratio => format!("log {}", measure_name(report)),
+        ReadingScale::Correlation => format!("Fisher's z of {}", measure_name(report)),
+        ReadingScale::Same => measure_name(report),
+    };
+    let x_title = if residuals {
+        format!("residual ({analysed}, effect minus the model's fitted value)")
+    } else if ratio_axis {
+        format!("{} (log scale)", measure_name(report))
+    } else {
+        analysed.clone()
+    };
+
+    let mut caption = vec![if residuals {
+        format!(
+            "● study residual; the model has moderators, so the funnel is centred on 0 (the fitted \
+             value); dashed: the {lv} pseudo-confidence region 0 ± {:.2}·SE.",
+            z
+        )
+    } else {
+        format!(
+            "● study; solid vertical line: the average; dotted: no effect; dashed: the {lv} \
+             pseudo-confidence region average ± {:.2}·SE.",
+            z
+        )
+    }];
+    if opts.contours {
+        caption.push(
+            "Shaded bands: where a study alone would be significant against no effect (two-sided \
+             z test), lighter to darker; the legend gives the p-value of each band."
+                .into(),
+        );
+    }
+    caption.push(
+        "Asymmetry can have many causes (small-study effects, heterogeneity, chance); it does \
+         not by itself show publication bias."
+            .into(),
+    );
+    caption.push(model_line(report));
+    let margin = 18.0;
+    let cap_lines: Vec<String> = caption
+        .iter()
+        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .collect();
+
+    // x range: the studies, the region at the largest SE, and 0.
+    let ya = Axis::new(0.0, se_max, false, 6).snapped();
+    let se_bottom = ya.hi;
+    let mut lo = xs.iter().copied().fold(f64::INFINITY, f64::min);
+    let mut hi = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    lo = lo.min(centre - z * se_bottom).min(0.0);
+    hi = hi.max(centre + z * se_bottom).max(0.0);
+    let pad = 0.04 * (hi - lo).max(1e-6);
+    let xa = Axis::new(lo - pad, hi + pad, ratio_axis, 8).snapped();
+    let y_label_w = ya
+        .ticks
+        .iter()
+        .map(|t| super::scene::text_width(&t.1, size::SMALL))
+        .fold(0.0, f64::max);
+    let top = 92.0;
+    let legend_h = if opts.contours { 24.0 } else { 0.0 };
+    let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
+    if height - top - bottom < 120.0 {
+        return Err(crate::error::Error::usage(
+            "--height",
+            format!(
+                "{height} pixels leave no room for the funnel plot; use at least {:.0}",
+                top + bottom + 120.0
+            ),
+        ));
+    }
+    let f = Frame {
+        x0: margin + y_label_w + 14.0,
+        y0: top,
+        x1: width - margin - 10.0,
+        y1: height - bottom,
+        xa,
+        ya,
+        y_down: true,
+    };
+    let mut sc = Scene::new(width as u32, height as u32);
+    sc.text(
+        (margin, 20.0),
+        if residuals {
+            "Residuals against their standard error"
+        } else {
+            "Effects against their standard error"
+        },
+        size::TITLE,
+        INK,
+        Align::Left,
+    );
+    sc.text(
+        (margin, 44.0),
+        super::scene::fit_text(
+            &format!("{} · {}", report.measure.description, report.input.file),
+            size::SMALL,
+            width - 2.0 * margin,
+        ),
+        size::SMALL,
+        MUTED,
+        Align::Left,
+    );
+    let clamp_x = |x: f64| x.clamp(f.xa.lo, f.xa.hi);
+    let (top_se, bottom_se) = (f.ya.lo, f.ya.hi);
+
+    if opts.contours {
+        // Each band: |x| between z_outer·se and z_inner·se on each side, as polygons.
+        let zs: Vec<f64> = CONTOURS
+            .iter()
+            .map(|(p, _, _)| crate::dist::normal_quantile(1.0 - p / 2.0))
+            .collect();
+        for (c, (_, fill, _)) in CONTOURS.iter().enumerate() {
+            let inner = zs[c];
+            let outer = zs.get(c + 1).copied();
+            for sign in [-1.0, 1.0] {
+                let lim = if sign < 0.0 { f.xa.lo } else { f.xa.hi };
+                // An edge x = sign·zq·se from the top to the bottom of the
+                // frame, bent along the frame's side where it leaves it.
+                let edge = |zq: Option<f64>| -> Vec<(f64, f64)> {
+                    match zq {
+                        None => vec![(lim, top_se), (lim, bottom_se)],
+                        Some(zq) => {
+                            let x_bottom = sign * zq * bottom_se;
+                            if x_bottom.abs() <= lim.abs() {
+                                vec![(0.0, top_se), (x_bottom, bottom_se)]
+                            } else {
+                                let se_hit = lim.abs() / zq;
+                                vec![(0.0, top_se), (lim, se_hit), (lim, bottom_se)]
+                            }
+                        }
+                    }
+                };
+                let mut pts = edge(Some(inner));
+                pts.extend(edge(outer).into_iter().rev());
+                let pts = pts.into_iter().map(|(x, se)| (f.x(x), f.y(se))).collect();
+                sc.poly(pts, Some((*fill, 1.0)), None);
+            }
+        }
+    } else {
+        f.grid(&mut sc);
+    }
+    // Pseudo-confidence region.
+    let apex = (f.x(clamp_x(centre)), f.y(top_se));
+    let left = (f.x(clamp_x(centre - z * bottom_se)), f.y(bottom_se));
+    let right = (f.x(clamp_x(centre + z * bottom_se)), f.y(bottom_se));
+    if !opts.contours {
+        sc.poly(vec![apex, left, right], Some((BAND, 1.0)), None);
+    }
+    sc.dashed(vec![left, apex, right], INK, 1, (6.0, 4.0));
+    sc.line(
+        vec![(apex.0, f.y(top_se)), (apex.0, f.y(bottom_se))],
+        if residuals { INK } else { POOLED },
+        2,
+    );
+    if !residuals && (f.xa.lo..=f.xa.hi).contains(&0.0) && centre != 0.0 {
+        sc.dashed(
+            vec![(f.x(0.0), f.y(top_se)), (f.x(0.0), f.y(bottom_se))],
+            MUTED,
+            1,
+            (2.0, 3.0),
+        );
+    }
+    for (x, se) in xs.iter().zip(&ses) {
+        sc.circle(
+            (f.x(clamp_x(*x)), f.y(*se)),
+            4.5,
+            Some((STUDY, 1.0)),
+            Some((PAPER, 1)),
+        );
+    }
+    f.axes(&mut sc, &x_title, "standard error");
+    let mut cy = f.y1 + 64.0;
+    if opts.contours {
+        let mut x = margin;
+        for (_, fill, label) in CONTOURS {
+            sc.rect(x, cy - 7.0, x + 22.0, cy + 7.0, fill);
+            sc.poly(
+                vec![
+                    (x, cy - 7.0),
+                    (x + 22.0, cy - 7.0),
+                    (x + 22.0, cy + 7.0),
+                    (x, cy + 7.0),
+                ],
+                None,
+                Some((MUTED, 1)),
+            );
+            sc.text((x + 28.0, cy), label, size::SMALL, INK, Align::Left);
+            x += 40.0 + super::scene::text_width(label, size::SMALL);
+        }
+        sc.text((x, cy), "white: p ≥ 0.10", size::SMALL, INK, Align::Left);
+        cy += legend_h;
+    }
+    for line in cap_lines {
+        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
+        cy += 17.0;
+    }
+    Ok(sc)
+}

@@ -1,0 +1,526 @@
+//! Plots of a [`FitReport`]: forest, bubble and funnel plots as SVG or PNG.
+//!
+//! Every plot is drawn from the public result only. Each plot module builds
+//! a [`Scene`] (shapes in pixel coordinates, backend-independent); [`encode`]
+//! draws the scene with plotters into SVG text or PNG bytes. Text uses the
+//! bundled DejaVu Sans (`assets/fonts/`, Bitstream Vera licence with
+//! public-domain DejaVu changes), so PNG text looks the same on every
+//! machine; SVG names the family `DejaVu Sans, sans-serif`.
+
+pub mod bubble;
+pub mod forest;
+pub mod funnel;
+pub mod scene;
+
+pub use scene::{Align, Scene};
+
+use crate::effect::ReadingScale;
+use crate::error::{Error, Result};
+use crate::result::FitReport;
+use std::path::Path;
+
+/// The bundled font (DejaVu Sans; licence in `assets/fonts/LICENSE-DejaVu.txt`).
+pub static FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+
+/// The output format of a plot.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// Scalable vector graphics (text).
+    Svg,
+    /// Portable network graphics (RGB).
+    Png,
+}
+
+impl Format {
+    /// The format named by a path's extension (`.svg` or `.png`, any case).
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming `flag` for standard output or any other extension.
+    pub fn from_path(flag: &str, path: &Path) -> Result<Format> {
+        if path.as_os_str() == "-" {
+            return Err(Error::usage(
+                flag,
+                "a plot needs a file path ending in .svg or .png, not standard output ('-')",
+            ));
+        }
+        let ext = path
+            .extension()
+            .map(|e| e.to_string_lossy().to_ascii_lowercase());
+        match ext.as_deref() {
+            Some("svg") => Ok(Format::Svg),
+            Some("png") => Ok(Format::Png),
+            _ => Err(Error::usage(
+                flag,
+                format!(
+                    "'{}': the plot format follows the file extension; use .svg or .png",
+                    path.display()
+                ),
+            )),
+        }
+    }
+}
+
+/// How the rows of a forest plot are ordered.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub enum SortKey {
+    /// As in the input file.
+    #[default]
+    Input,
+    /// By effect, smallest first.
+    Effect,
+    /// Most precise (smallest variance) first.
+    Precision,
+    /// By a moderator's value (numbers ascending, levels in their order).
+    Moderator(String),
+}
+
+impl SortKey {
+    /// Parses `effect`, `precision`, `input` or a moderator name.
+    pub fn parse(text: &str) -> SortKey {
+        match text {
+            "input" => SortKey::Input,
+            "effect" => SortKey::Effect,
+            "precision" => SortKey::Precision,
+            name => SortKey::Moderator(name.to_string()),
+        }
+    }
+}
+
+/// Options shared by the plots.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct PlotOptions {
+    /// Width in pixels (None: automatic).
+    pub width: Option<u32>,
+    /// Height in pixels (None: automatic, growing with the rows of a forest plot).
+    pub height: Option<u32>,
+    /// Row order of the forest plot.
+    pub sort: SortKey,
+    /// Show each study's fitted value in the forest plot.
+    pub show_fitted: bool,
+    /// The moderator on the x axis of the bubble plot (None: the first numeric one).
+    pub bubble_x: Option<String>,
+    /// Draw significance contours in the funnel plot.
+    pub contours: bool,
+}
+
+/// Smallest and largest accepted width or height in pixels.
+pub const SIZE_RANGE: (u32, u32) = (200, 30_000);
+
+/// Draws a scene as SVG text or PNG bytes.
+///
+/// # Errors
+/// [`Error::Io`] (action "drawing") when plotters or the PNG encoder fails;
+/// [`Error::Usage`] for a PNG of more than [`scene::MAX_PNG_PIXELS`] pixels.
+pub fn encode(scene: &Scene, format: Format) -> Result<Vec<u8>> {
+    scene::encode(scene, format, "--width")
+}
+
+/// Renders the forest plot of `report`.
+///
+/// # Errors
+/// [`Error::Usage`] for an option the model cannot support; drawing errors.
+pub fn forest_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
+    scene::encode(&forest::scene(report, opts)?, format, "--forest")
+}
+
+/// Renders the bubble plot of `report`.
+///
+/// # Errors
+/// [`Error::Usage`] naming `--bubble` or `--bubble-x` when the model has no
+/// moderator to draw against; drawing errors.
+pub fn bubble_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
+    scene::encode(&bubble::scene(report, opts)?, format, "--bubble")
+}
+
+/// Renders the funnel plot of `report`.
+///
+/// # Errors
+/// Drawing errors.
+pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
+    scene::encode(&funnel::scene(report, opts)?, format, "--funnel")
+}
+
+// ------------------------------------------------------------- shared look
+
+/// The palette (Okabe & Ito's colour-blind-safe set, plus greys). Every
+/// meaning also has a shape or line style, so no information is carried by
+/// colour alone.
+pub(crate) mod palette {
+    use plotters::style::RGBColor;
+    /// Text and axes.
+    pub const INK: RGBColor = RGBColor(0x22, 0x27, 0x33);
+    /// Secondary text.
+    pub const MUTED: RGBColor = RGBColor(0x5C, 0x63, 0x70);
+    /// Grid and guide lines.
+    pub const GUIDE: RGBColor = RGBColor(0xB4, 0xB9, 0xC2);
+    /// Zebra band behind alternate rows.
+    pub const BAND: RGBColor = RGBColor(0xF1, 0xF3, 0xF6);
+    /// Studies (discs).
+    pub const STUDY: RGBColor = RGBColor(0x00, 0x72, 0xB2);
+    /// The overall estimate (diamond).
+    pub const POOLED: RGBColor = RGBColor(0xD5, 0x5E, 0x00);
+    /// Subgroup estimates (outlined diamonds).
+    pub const GROUP: RGBColor = RGBColor(0xE6, 0x9F, 0x00);
+    /// Prediction intervals (dashed).
+    pub const PREDICT: RGBColor = RGBColor(0xCC, 0x79, 0xA7);
+    /// Fitted values and the regression line.
+    pub const FIT: RGBColor = RGBColor(0x00, 0x9E, 0x73);
+    /// Background.
+    pub const PAPER: RGBColor = RGBColor(0xFF, 0xFF, 0xFF);
+}
+
+/// Text sizes in plotters units (pixels of the line height).
+pub(crate) mod size {
+    /// Title.
+    pub const TITLE: f64 = 19.0;
+    /// Subtitle, axis titles.
+    pub const LABEL: f64 = 14.0;
+    /// Tick labels, captions.
+    pub const SMALL: f64 = 12.5;
+}
+
+/// A number for a plot: `decimals` places, with a true minus sign.
+pub(crate) fn num(x: f64, decimals: usize) -> String {
+    let s = format!("{x:.decimals$}");
+    let zero = s
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.');
+    if zero {
+        s.trim_start_matches('-').to_string()
+    } else if let Some(rest) = s.strip_prefix('-') {
+        format!("\u{2212}{rest}")
+    } else {
+        s
+    }
+}
+
+/// Decimals that show values spread over `span` with about three significant digits.
+pub(crate) fn decimals_for(span: f64) -> usize {
+    if !(span.is_finite() && span > 0.0) {
+        return 2;
+    }
+    (1.0 - span.log10().floor()).clamp(1.0, 5.0) as usize
+}
+
+/// What the effect is called on its reading scale, for axis titles.
+pub(crate) fn measure_name(report: &FitReport) -> String {
+    if let Some(r) = &report.measure.reading_name {
+        return r.clone();
+    }
+    match report.measure.id.as_str() {
+        "smd" => "Hedges' g".into(),
+        "risk-diff" => "risk difference".into(),
+        "slope" => "slope".into(),
+        _ => "effect".into(),
+    }
+}
+
+/// A value axis: a data range in plot space and its ticks.
+#[derive(Debug, Clone)]
+pub(crate) struct Axis {
+    /// Lower end (plot space).
+    pub lo: f64,
+    /// Upper end.
+    pub hi: f64,
+    /// Ticks: position in plot space and label.
+    pub ticks: Vec<(f64, String)>,
+}
+
+impl Axis {
+    /// Maps an analysis-scale value to plot space: tanh for correlations,
+    /// unchanged otherwise (ratios stay logs on a log axis).
+    pub fn to_plot(scale: ReadingScale, y: f64) -> f64 {
+        match scale {
+            ReadingScale::Correlation => y.tanh(),
+            _ => y,
+        }
+    }
+
+    /// An axis covering `lo..hi` (plot space) with about `target` ticks.
+    pub fn new(lo: f64, hi: f64, log: bool, target: usize) -> Axis {
+        let (mut lo, mut hi) = if lo.is_finite() && hi.is_finite() {
+            (lo.min(hi), lo.max(hi))
+        } else {
+            (-1.0, 1.0)
+        };
+        if hi - lo < 1e-12 {
+            let pad = if lo.abs() > 0.0 { lo.abs() * 0.1 } else { 0.1 };
+            lo -= pad;
+            hi += pad;
+        }
+        let ticks = if log {
+            log_ticks(lo, hi, target)
+        } else {
+            linear_ticks(lo, hi, target)
+        };
+        Axis { lo, hi, ticks }
+    }
+
+    /// Extends the range to its outer ticks (only when they are close).
+    pub fn snapped(mut self) -> Axis {
+        if let (Some(first), Some(last)) = (self.ticks.first(), self.ticks.last()) {
+            let span = self.hi - self.lo;
+            if first.0 < self.lo && self.lo - first.0 < 0.15 * span {
+                self.lo = first.0;
+            }
+            if last.0 - self.hi > 0.0 && last.0 - self.hi < 0.15 * span {
+                self.hi = last.0;
+            }
+        }
+        let (lo, hi) = (self.lo - 1e-9, self.hi + 1e-9);
+        self.ticks.retain(|t| t.0 >= lo && t.0 <= hi);
+        self
+    }
+}
+
+fn nice_step(span: f64, target: usize) -> f64 {
+    let raw = span / target.max(1) as f64;
+    let mag = 10f64.powf(raw.log10().floor());
+    let f = raw / mag;
+    let nice = if f < 1.5 {
+        1.0
+    } else if f < 3.0 {
+        2.0
+    } else if f < 7.0 {
+        5.0
+    } else {
+        10.0
+    };
+    nice * mag
+}
+
+fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
+    let step = nice_step(hi - lo, target);
+    let decimals = (-(step.log10().floor())).max(0.0) as usize;
+    let first = (lo / step).floor() as i64;
+    let last = (hi / step).ceil() as i64;
+    (first..=last)
+        .map(|i| {
+            let x = i as f64 * step;
+            (x, num(x, decimals))
+        })
+        .collect()
+}
+
+/// Ticks on a log axis at 1, 2, 5 × powers of ten (or only powers of ten
+/// for wide ranges), labelled with the ratio itself.
+fn log_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
+    let decades = (hi - lo) / std::f64::consts::LN_10;
+    let mantissas: &[f64] = if decades > 4.0 {
+        &[1.0]
+    } else if decades > 2.5 {
+        &[1.0, 3.0]
+    } else if decades > 0.6 {
+        &[1.0, 2.0, 5.0]
+    } else {
+        &[1.0, 1.25, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0]
+    };
+    let mut out = Vec::new();
+    let e0 = (lo / std::f64::consts::LN_10).floor() as i32 - 1;
+    let e1 = (hi / std::f64::consts::LN_10).ceil() as i32 + 1;
+    for e in e0..=e1 {
+        for m in mantissas {
+            let v = m * 10f64.powi(e);
+            let x = v.ln();
+            let decimals = if v >= 1.0 {
+                if (v - v.round()).abs() < 1e-9 {
+                    0
+                } else {
+                    2
+                }
+            } else {
+                (-(v.log10().floor()) as usize) + usize::from(m.fract() != 0.0)
+            };
+            let label = format!("{v:.decimals$}");
+            out.push((x, label));
+        }
+    }
+    out.sort_by(|a, b| a.0.total_cmp(&b.0));
+    // Thin to about the target count, always keeping 1.
+    // Ticks just beyond the ends are kept too, so that `snapped` can extend to them.
+    let reach = 0.15 * (hi - lo);
+    let inside: Vec<(f64, String)> = out
+        .into_iter()
+        .filter(|t| t.0 >= lo - reach && t.0 <= hi + reach)
+        .collect();
+    if inside.len() <= target + 2 {
+        return inside;
+    }
+    let keep = inside.len().div_ceil(target);
+    inside
+        .into_iter()
+        .enumerate()
+        .filter(|(i, t)| i % keep == 0 || t.0.abs() < 1e-12)
+        .map(|(_, t)| t)
+        .collect()
+}
+
+/// A rectangular chart area with an x and a y axis.
+pub(crate) struct Frame {
+    /// Left edge in pixels.
+    pub x0: f64,
+    /// Top edge.
+    pub y0: f64,
+    /// Right edge.
+    pub x1: f64,
+    /// Bottom edge.
+    pub y1: f64,
+    /// Horizontal axis.
+    pub xa: Axis,
+    /// Vertical axis.
+    pub ya: Axis,
+    /// Whether the y axis grows downwards (the funnel plot's standard error).
+    pub y_down: bool,
+}
+
+impl Frame {
+    /// Pixel column of an x value (plot space).
+    pub fn x(&self, v: f64) -> f64 {
+        self.x0 + (v - self.xa.lo) / (self.xa.hi - self.xa.lo) * (self.x1 - self.x0)
+    }
+
+    /// Pixel row of a y value (plot space).
+    pub fn y(&self, v: f64) -> f64 {
+        let t = (v - self.ya.lo) / (self.ya.hi - self.ya.lo);
+        if self.y_down {
+            self.y0 + t * (self.y1 - self.y0)
+        } else {
+            self.y1 - t * (self.y1 - self.y0)
+        }
+    }
+
+    /// Light grid lines at the y ticks.
+    pub fn grid(&self, sc: &mut Scene) {
+        for (v, _) in &self.ya.ticks {
+            let y = self.y(*v);
+            sc.line(vec![(self.x0, y), (self.x1, y)], palette::BAND, 1);
+        }
+    }
+
+    /// Axis lines, ticks, tick labels and titles (the y title sits above the axis, horizontally).
+    pub fn axes(&self, sc: &mut Scene, x_title: &str, y_title: &str) {
+        use palette::INK;
+        sc.line(vec![(self.x0, self.y1), (self.x1, self.y1)], INK, 1);
+        sc.line(vec![(self.x0, self.y0), (self.x0, self.y1)], INK, 1);
+        for (v, label) in &self.xa.ticks {
+            let x = self.x(*v);
+            sc.line(vec![(x, self.y1), (x, self.y1 + 5.0)], INK, 1);
+            sc.text(
+                (x, self.y1 + 15.0),
+                label.clone(),
+                size::SMALL,
+                INK,
+                Align::Center,
+            );
+        }
+        for (v, label) in &self.ya.ticks {
+            let y = self.y(*v);
+            sc.line(vec![(self.x0 - 5.0, y), (self.x0, y)], INK, 1);
+            sc.text(
+                (self.x0 - 8.0, y),
+                label.clone(),
+                size::SMALL,
+                INK,
+                Align::Right,
+            );
+        }
+        sc.text(
+            ((self.x0 + self.x1) / 2.0, self.y1 + 38.0),
+            x_title,
+            size::LABEL,
+            INK,
+            Align::Center,
+        );
+        sc.text(
+            (self.x0 - 8.0, self.y0 - 18.0),
+            y_title,
+            size::LABEL,
+            INK,
+            Align::Left,
+        );
+    }
+}
+
+/// The caption line describing the model (estimator, τ², inference).
+pub(crate) fn model_line(report: &FitReport) -> String {
+    let method = match report.model.tau2_method.as_str() {
+        "none" => "common-effect model (τ² = 0)".to_string(),
+        m => format!(
+            "τ² = {} ({})",
+            num(
+                report.tau2.estimate,
+                decimals_for(report.tau2.estimate).max(3)
+            ),
+            m.to_uppercase()
+        ),
+    };
+    let inference = if report.model.inference == "kh" {
+        "Knapp–Hartung intervals"
+    } else {
+        "z-based intervals"
+    };
+    let residual = if report.model.moderators.is_empty() {
+        ""
+    } else {
+        "residual "
+    };
+    let mut line = format!(
+        "k = {} · {residual}{method} · {residual}I² = {:.0}% · {inference}",
+        report.k,
+        100.0 * report.heterogeneity.i2
+    );
+    match report.excluded.len() {
+        0 => {}
+        1 => line.push_str(" · 1 row left out (see the report)"),
+        n => line.push_str(&format!(" · {n} rows left out (see the report)")),
+    }
+    line
+}
+
+/// The confidence level as a percentage, e.g. "95%".
+pub(crate) fn level_pct(report: &FitReport) -> String {
+    let p = 100.0 * report.model.level;
+    if (p - p.round()).abs() < 1e-9 {
+        format!("{p:.0}%")
+    } else {
+        format!("{p}%")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_use_a_true_minus() {
+        assert_eq!(num(-0.25, 2), "\u{2212}0.25");
+        assert_eq!(num(-0.001, 2), "0.00");
+        assert_eq!(num(1.5, 1), "1.5");
+    }
+
+    #[test]
+    fn ticks_cover_the_range() {
+        let a = Axis::new(-0.33, 0.71, false, 6);
+        assert!(a.ticks.first().unwrap().0 <= -0.33 && a.ticks.last().unwrap().0 >= 0.71);
+        assert!(a.ticks.iter().any(|t| t.1 == "0.0" || t.1 == "0"));
+        let l = Axis::new(0.2f64.ln(), 3f64.ln(), true, 6);
+        assert!(l.ticks.iter().any(|t| t.1 == "1"), "{:?}", l.ticks);
+        assert!(l.ticks.iter().any(|t| t.1 == "0.5"), "{:?}", l.ticks);
+    }
+
+    #[test]
+    fn format_follows_the_extension() {
+        assert_eq!(
+            Format::from_path("--forest", Path::new("a/b.SVG")).unwrap(),
+            Format::Svg
+        );
+        assert_eq!(
+            Format::from_path("--forest", Path::new("b.png")).unwrap(),
+            Format::Png
+        );
+        let e = Format::from_path("--forest", Path::new("b.pdf")).unwrap_err();
+        assert!(e.to_string().contains("--forest") && e.to_string().contains(".svg"));
+        assert!(Format::from_path("--forest", Path::new("-")).is_err());
+    }
+}
