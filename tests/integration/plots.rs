@@ -751,3 +751,19 @@ fn funnel_plot_with_moderators_shows_residuals() {
     assert!(has_text(&svg, "Residuals against their standard error"));
     assert!(has_text(&svg, "residual (slope"));
 }
+
+#[test]
+fn svg_carries_the_bundled_font_so_it_renders_like_the_png() {
+    let (_, svg) = plot(
+        &example("published-slopes.csv"),
+        "--measure slope --moderator mean_age --funnel OUT",
+        "funnel.svg",
+    );
+    let text = String::from_utf8(svg).unwrap();
+    let font = std::fs::read(repo("assets/fonts/DejaVuSans.ttf")).unwrap();
+    assert!(text.contains("@font-face{font-family:\"DejaVu Sans\";src:url(data:font/ttf;base64,"));
+    // The inline font is the whole bundled file: 4 base64 characters per 3 bytes.
+    let start = text.find("base64,").unwrap() + "base64,".len();
+    let len = text[start..].find(')').unwrap();
+    assert_eq!(len, font.len().div_ceil(3) * 4);
+}
