@@ -180,28 +180,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         y_down: false,
     };
     let mut sc = Scene::new(width as u32, height as u32);
-    sc.text(
-        (margin, 20.0),
-        super::scene::fit_text(
-            &format!("Effect by {name}"),
-            size::TITLE,
-            width - 2.0 * margin,
-        ),
-        size::TITLE,
-        INK,
-        Align::Left,
-    );
-    sc.text(
-        (margin, 44.0),
-        super::scene::fit_text(
-            &format!("{} · {}", report.measure.description, report.input.file),
-            size::SMALL,
-            width - 2.0 * margin,
-        ),
-        size::SMALL,
-        MUTED,
-        Align::Left,
-    );
+    super::heading(&mut sc, report, &format!("Effect by {name}"), width, margin);
     f.grid(&mut sc);
     if (f.ya.lo..=f.ya.hi).contains(&0.0) {
         let y = f.y(0.0);

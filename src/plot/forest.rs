@@ -391,18 +391,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     } else {
         "Study effects and their average"
     };
-    sc.text((margin, 20.0), title, size::TITLE, INK, Align::Left);
-    sc.text(
-        (margin, 44.0),
-        super::scene::fit_text(
-            &format!("{} · {}", report.measure.description, report.input.file),
-            size::SMALL,
-            width - 2.0 * margin,
-        ),
-        size::SMALL,
-        MUTED,
-        Align::Left,
-    );
+    super::heading(&mut sc, report, title, width, margin);
     let hy = 70.0;
     let head = fs_max.min(13.0);
     sc.text((margin, hy), "Study", head, INK, Align::Left);

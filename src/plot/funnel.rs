@@ -124,28 +124,12 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         y_down: true,
     };
     let mut sc = Scene::new(width as u32, height as u32);
-    sc.text(
-        (margin, 20.0),
-        if residuals {
-            "Residuals against their standard error"
-        } else {
-            "Effects against their standard error"
-        },
-        size::TITLE,
-        INK,
-        Align::Left,
-    );
-    sc.text(
-        (margin, 44.0),
-        super::scene::fit_text(
-            &format!("{} · {}", report.measure.description, report.input.file),
-            size::SMALL,
-            width - 2.0 * margin,
-        ),
-        size::SMALL,
-        MUTED,
-        Align::Left,
-    );
+    let title = if residuals {
+        "Residuals against their standard error"
+    } else {
+        "Effects against their standard error"
+    };
+    super::heading(&mut sc, report, title, width, margin);
     let clamp_x = |x: f64| x.clamp(f.xa.lo, f.xa.hi);
     let (top_se, bottom_se) = (f.ya.lo, f.ya.hi);
 

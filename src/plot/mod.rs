@@ -145,6 +145,29 @@ pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// The palette (Okabe & Ito's colour-blind-safe set, plus greys). Every
 /// meaning also has a shape or line style, so no information is carried by
 /// colour alone.
+/// The title (shortened to fit) and the subtitle naming the measure and the
+/// input file, at the top left of every plot.
+pub(crate) fn heading(sc: &mut Scene, report: &FitReport, title: &str, width: f64, margin: f64) {
+    let fit = |text: &str, size: f64| scene::fit_text(text, size, width - 2.0 * margin);
+    sc.text(
+        (margin, 20.0),
+        fit(title, size::TITLE),
+        size::TITLE,
+        palette::INK,
+        Align::Left,
+    );
+    sc.text(
+        (margin, 44.0),
+        fit(
+            &format!("{} · {}", report.measure.description, report.input.file),
+            size::SMALL,
+        ),
+        size::SMALL,
+        palette::MUTED,
+        Align::Left,
+    );
+}
+
 pub(crate) mod palette {
     use plotters::style::RGBColor;
     /// Text and axes.
