@@ -8,6 +8,11 @@ use crate::model::design::ModeratorSpec;
 use crate::model::tau2::Tau2Method;
 use crate::model::{FitOptions, Inference};
 use crate::output::{self, Target};
+use crate::plan::{
+    self,
+    report::{PlanRequest, SolveFor},
+    ModeratorDesign, Plan, PlanMeasure, PlanTest,
+};
 use crate::plot;
 use crate::report;
 use clap::{Args, Parser, Subcommand, ValueEnum};
@@ -28,6 +33,8 @@ pub struct Cli {
 pub enum Command {
     /// Pool per-study effects and test whether study characteristics (moderators) change them.
     Fit(FitArgs),
+    /// Plan a study: the power of a moderator test before the data exist, and the sites needed.
+    Plan(PlanArgs),
 }
 
 /// Effect measures as typed on the command line.
@@ -490,6 +497,416 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
     Ok(())
 }
 
+/// Measures of `pondus plan`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum PlanMeasureArg {
+    /// Correlations, analysed as Fisher's z (variance 1/(n − 3)); needs --n.
+    R,
+    /// Hedges' g, two equal groups of n/2, g = 0 for planning (variance 4/n); needs --n.
+    Smd,
+    /// Unstandardised slopes; needs --variance (the planned se²).
+    Slope,
+    /// A generic effect; needs --variance (the planned within-study variance).
+    Effect,
+}
+
+/// Tests of `pondus plan`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum PlanTestArg {
+    /// Knapp–Hartung t test after REML (default, as in `pondus fit`): power by simulation.
+    Kh,
+    /// Wald z test: exact power from the noncentral chi-square.
+    Z,
+}
+
+/// What `pondus plan --target-power` solves for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SolveArg {
+    /// The number of sites.
+    K,
+    /// The participants per site, at the planned number of sites (r and smd only).
+    N,
+}
+
+/// Options of `pondus plan`.
+#[derive(Debug, Args)]
+#[command(group(clap::ArgGroup::new("design").required(true).args(["moderator_sd", "share", "moderator_values"])))]
+pub struct PlanArgs {
+    /// The effect measure of the planned analysis.
+    #[arg(long, value_enum)]
+    pub measure: PlanMeasureArg,
+    /// Planned number of sites.
+    #[arg(long, value_name = "K")]
+    pub k: usize,
+    /// Planned participants per site (r and smd), or a comma-separated list of site sizes (repeated in order up to k).
+    #[arg(long, value_name = "N[,N...]")]
+    pub n: Option<String>,
+    /// Planned within-site sampling variance (slope and effect; required for them).
+    #[arg(long, value_name = "V")]
+    pub variance: Option<f64>,
+    /// Assumed residual between-site variance τ² (analysis scale).
+    #[arg(long, value_name = "T")]
+    pub tau2: f64,
+    /// SD across sites of a numeric moderator (divisor k − 1).
+    #[arg(long, value_name = "S")]
+    pub moderator_sd: Option<f64>,
+    /// Share of sites in the second level of a two-level moderator.
+    #[arg(long, value_name = "P")]
+    pub share: Option<f64>,
+    /// File of planned moderator values, one number per line (a first non-numeric line is a header); repeated in order when k differs.
+    #[arg(long, value_name = "FILE")]
+    pub moderator_values: Option<PathBuf>,
+    /// Moderator coefficient to detect, on the analysis scale (Fisher z for r, g for smd).
+    #[arg(long, value_name = "B", allow_negative_numbers = true)]
+    pub moderator_effect: f64,
+    /// Two-sided significance level.
+    #[arg(long, default_value_t = 0.05)]
+    pub alpha: f64,
+    /// The moderator test.
+    #[arg(long, value_enum, default_value_t = PlanTestArg::Kh)]
+    pub test: PlanTestArg,
+    /// Solve for the smallest k (or n, with --solve n) reaching this power.
+    #[arg(long, value_name = "POWER")]
+    pub target_power: Option<f64>,
+    /// What --target-power solves for.
+    #[arg(long, value_enum, default_value_t = SolveArg::K)]
+    pub solve: SolveArg,
+    /// Largest number of sites searched.
+    #[arg(long, default_value_t = 1000)]
+    pub max_k: usize,
+    /// Largest per-site n searched with --solve n.
+    #[arg(long, default_value_t = 100_000.0)]
+    pub max_n: f64,
+    /// Simulated data sets for --test kh [default: 2000].
+    #[arg(long, value_name = "N")]
+    pub simulations: Option<usize>,
+    /// Seed of the simulation for --test kh [default: 1].
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Draw the power curve over k into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub curve: Option<PathBuf>,
+    /// Write the result as JSON ('-' for standard output).
+    #[arg(long, value_name = "PATH")]
+    pub json: Option<PathBuf>,
+    /// Do not print the terminal report.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+/// Checked settings of a `plan` run.
+#[derive(Debug, Clone)]
+pub struct PlanRun {
+    /// The computation.
+    pub request: PlanRequest,
+    /// JSON output.
+    pub json: Option<Target>,
+    /// Power curve output and its format.
+    pub curve: Option<(Target, plot::Format)>,
+    /// Whether to print the terminal report.
+    pub text: bool,
+}
+
+/// Largest k accepted by `--k` and `--max-k`.
+pub const PLAN_MAX_K: usize = 100_000;
+
+impl PlanArgs {
+    /// Turns the raw flags into checked settings.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag and how to fix it.
+    pub fn check(&self) -> Result<PlanRun> {
+        let finite = |flag: &str, v: f64, ok: bool, what: &str| -> Result<()> {
+            if v.is_finite() && ok {
+                Ok(())
+            } else {
+                Err(Error::usage(flag, format!("{v} is not valid: {what}")))
+            }
+        };
+        let uses_n = matches!(self.measure, PlanMeasureArg::R | PlanMeasureArg::Smd);
+        let name = format!("{:?}", self.measure).to_lowercase();
+        let measure = if uses_n {
+            if self.variance.is_some() {
+                return Err(Error::usage(
+                    "--variance",
+                    format!("applies to --measure slope or effect; for {name} the variance follows from --n"),
+                ));
+            }
+            match self.measure {
+                PlanMeasureArg::R => PlanMeasure::R,
+                _ => PlanMeasure::Smd,
+            }
+        } else {
+            let Some(v) = self.variance else {
+                return Err(Error::usage(
+                    "--variance",
+                    format!("--measure {name} needs the planned within-site sampling variance, e.g. --variance 0.01"),
+                ));
+            };
+            finite("--variance", v, v > 0.0, "give a positive variance")?;
+            if self.n.is_some() {
+                return Err(Error::usage(
+                    "--n",
+                    format!("applies to --measure r or smd; for {name} give --variance"),
+                ));
+            }
+            match self.measure {
+                PlanMeasureArg::Slope => PlanMeasure::Slope { variance: v },
+                _ => PlanMeasure::Effect { variance: v },
+            }
+        };
+        let mut n_list = Vec::new();
+        if let Some(text) = &self.n {
+            for part in text.split(',') {
+                let part = part.trim();
+                let n: f64 = part.parse().map_err(|_| {
+                    Error::usage(
+                        "--n",
+                        format!("'{part}' is not a number; give e.g. --n 60 or --n 40,60,80"),
+                    )
+                })?;
+                finite(
+                    "--n",
+                    n,
+                    (4.0..=1e9).contains(&n),
+                    "participants per site must be at least 4 (and at most 1e9)",
+                )?;
+                n_list.push(n);
+            }
+        }
+        let (n, n_sites) = match (uses_n, n_list.len()) {
+            (true, 0) => {
+                return Err(Error::usage(
+                    "--n",
+                    format!(
+                        "--measure {name} needs the planned participants per site, e.g. --n 60"
+                    ),
+                ))
+            }
+            (true, 1) => (n_list[0], None),
+            (true, _) => (f64::NAN, Some(n_list)),
+            (false, _) => (f64::NAN, None),
+        };
+        if n_sites.is_some() && self.solve == SolveArg::N {
+            return Err(Error::usage(
+                "--solve",
+                "n solves for one common site size; give a single --n with --solve n",
+            ));
+        }
+        if !(3..=PLAN_MAX_K).contains(&self.k) {
+            return Err(Error::usage(
+                "--k",
+                format!(
+                    "{} sites: give 3 to {PLAN_MAX_K} (a moderator test needs at least 3)",
+                    self.k
+                ),
+            ));
+        }
+        if !(3..=PLAN_MAX_K).contains(&self.max_k) {
+            return Err(Error::usage("--max-k", format!("give 3 to {PLAN_MAX_K}")));
+        }
+        finite(
+            "--tau2",
+            self.tau2,
+            self.tau2 >= 0.0,
+            "τ² is a variance, 0 or more",
+        )?;
+        finite(
+            "--moderator-effect",
+            self.moderator_effect,
+            true,
+            "give a finite number",
+        )?;
+        finite(
+            "--alpha",
+            self.alpha,
+            self.alpha > 0.0 && self.alpha <= 0.5,
+            "give a level between 0 and 0.5, e.g. --alpha 0.05",
+        )?;
+        let design = match (self.moderator_sd, self.share, &self.moderator_values) {
+            (Some(sd), None, None) => {
+                finite("--moderator-sd", sd, sd > 0.0, "give a positive SD")?;
+                ModeratorDesign::Numeric { sd }
+            }
+            (None, Some(share), None) => {
+                finite("--share", share, share > 0.0 && share < 1.0, "give a share between 0 and 1, e.g. --share 0.5")?;
+                ModeratorDesign::TwoLevel { share }
+            }
+            (None, None, Some(path)) => ModeratorDesign::Values(read_moderator_values(path)?),
+            _ => {
+                return Err(Error::usage(
+                    "--moderator-sd",
+                    "give one of --moderator-sd (numeric moderator), --share (two-level moderator) or --moderator-values FILE",
+                ))
+            }
+        };
+        if let Some(t) = self.target_power {
+            finite(
+                "--target-power",
+                t,
+                t > self.alpha && t < 1.0,
+                "give a power above --alpha and below 1, e.g. --target-power 0.8",
+            )?;
+        } else if self.solve == SolveArg::N {
+            return Err(Error::usage("--solve", "applies with --target-power"));
+        }
+        if self.solve == SolveArg::N && !uses_n {
+            return Err(Error::usage(
+                "--solve",
+                format!(
+                    "n applies to --measure r or smd; for {name} the variance is given directly"
+                ),
+            ));
+        }
+        finite("--max-n", self.max_n, self.max_n >= 4.0, "give at least 4")?;
+        let test = match self.test {
+            PlanTestArg::Z => PlanTest::Z,
+            PlanTestArg::Kh => PlanTest::Kh,
+        };
+        if test == PlanTest::Z {
+            for (flag, given) in [
+                ("--simulations", self.simulations.is_some()),
+                ("--seed", self.seed.is_some()),
+            ] {
+                if given {
+                    return Err(Error::usage(
+                        flag,
+                        "applies to --test kh (the z test's power is exact)",
+                    ));
+                }
+            }
+        }
+        let simulations = self.simulations.unwrap_or(2000);
+        if !(100..=1_000_000).contains(&simulations) {
+            return Err(Error::usage("--simulations", "give 100 to 1000000"));
+        }
+        let json = self.json.as_deref().map(Target::from_arg);
+        let curve = match &self.curve {
+            Some(p) => Some((Target::from_arg(p), plot::Format::from_path("--curve", p)?)),
+            None => None,
+        };
+        let mut outs: Vec<(&str, &Target)> = Vec::new();
+        if let Some(j) = &json {
+            outs.push(("--json", j));
+        }
+        if let Some((c, _)) = &curve {
+            outs.push(("--curve", c));
+        }
+        output::check_targets(self.moderator_values.as_deref(), &outs)?;
+        let plan = Plan {
+            measure,
+            k: self.k,
+            n,
+            n_sites,
+            tau2: self.tau2,
+            design,
+            beta: self.moderator_effect,
+            alpha: self.alpha,
+            test,
+        };
+        if plan.information().is_none() {
+            return Err(match &plan.design {
+                ModeratorDesign::Values(_) => Error::usage(
+                    "--moderator-values",
+                    format!("the planned values do not vary across the first {} sites; give at least two different values", self.k),
+                ),
+                _ => Error::usage(
+                    "--share",
+                    format!("with k = {} sites a share of {} leaves a level without sites; choose a share between 1/k and 1 − 1/k", self.k, self.share.unwrap_or(f64::NAN)),
+                ),
+            });
+        }
+        Ok(PlanRun {
+            request: PlanRequest {
+                plan,
+                target_power: self.target_power,
+                solve: match self.solve {
+                    SolveArg::K => SolveFor::K,
+                    SolveArg::N => SolveFor::N,
+                },
+                max_k: self.max_k,
+                max_n: self.max_n,
+                simulations,
+                seed: self.seed.unwrap_or(1),
+            },
+            text: !self.quiet && json != Some(Target::Stdout),
+            json,
+            curve,
+        })
+    }
+}
+
+/// Reads planned moderator values: one number per line, blank lines
+/// skipped, a first line that is not a number taken as a header.
+fn read_moderator_values(path: &std::path::Path) -> Result<Vec<f64>> {
+    const FLAG: &str = "--moderator-values";
+    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
+        path: path.display().to_string(),
+        action: "reading",
+        source,
+    })?;
+    let mut values = Vec::new();
+    for (i, line) in text.lines().enumerate() {
+        let cell = line.trim().trim_start_matches('\u{feff}').trim();
+        if cell.is_empty() {
+            continue;
+        }
+        match cell.parse::<f64>() {
+            Ok(v) if v.is_finite() => values.push(v),
+            _ if i == 0 => {}
+            _ => {
+                return Err(Error::usage(
+                    FLAG,
+                    format!(
+                        "{}, line {}: '{cell}' is not a finite number; give one number per line",
+                        path.display(),
+                        i + 1
+                    ),
+                ))
+            }
+        }
+    }
+    if values.len() < 2 {
+        return Err(Error::usage(
+            FLAG,
+            format!(
+                "{}: needs at least two planned values, found {}",
+                path.display(),
+                values.len()
+            ),
+        ));
+    }
+    Ok(values)
+}
+
+/// Runs a checked `plan`: compute, draw, write.
+///
+/// # Errors
+/// Any library error.
+pub fn run_plan(run: &PlanRun) -> Result<()> {
+    let report = plan::report::build(&run.request)?;
+    let curve = match &run.curve {
+        Some((t, f)) => Some((t, plan::report::curve_plot(&report, *f)?)),
+        None => None,
+    };
+    if let Some(t) = &run.json {
+        let mut buf = serde_json::to_vec_pretty(&report)
+            .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
+        buf.push(b'\n');
+        output::emit(t, &buf)?;
+    }
+    if let Some((t, bytes)) = curve {
+        output::emit(t, &bytes)?;
+    }
+    if run.text {
+        output::emit(
+            &Target::Stdout,
+            plan::report::render_text(&report).as_bytes(),
+        )?;
+    }
+    Ok(())
+}
+
 fn io_err(what: &str, source: std::io::Error) -> Error {
     Error::Io {
         path: format!("<{what} output>"),
@@ -511,7 +928,9 @@ mod tests {
     fn args(extra: &[&str]) -> Result<FitRun> {
         let mut v = vec!["pondus", "fit", "in.csv"];
         v.extend_from_slice(extra);
-        let Command::Fit(a) = Cli::try_parse_from(v).unwrap().command;
+        let Command::Fit(a) = Cli::try_parse_from(v).unwrap().command else {
+            panic!("parsed as fit")
+        };
         a.check()
     }
 

@@ -35,6 +35,7 @@ pub mod error;
 pub mod input;
 pub mod model;
 pub mod output;
+pub mod plan;
 pub mod plot;
 pub mod report;
 pub mod result;

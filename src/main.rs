@@ -11,6 +11,10 @@ fn run() -> anyhow::Result<()> {
             let run = args.check()?;
             pondus::cli::run_fit(&run)?;
         }
+        Command::Plan(args) => {
+            let run = args.check()?;
+            pondus::cli::run_plan(&run)?;
+        }
     }
     Ok(())
 }

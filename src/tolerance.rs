@@ -71,3 +71,24 @@ pub const REFERENCE_ABS: f64 = 1e-10;
 /// Relative tolerance for p-values against the reference (statrs' tails
 /// carry about 3e-11 relative error; tiny p-values come from long tails).
 pub const REFERENCE_P_REL: f64 = 1e-6;
+
+/// The Poisson mixtures of the noncentral chi-square and F tails stop when
+/// the Poisson mass not yet summed is below this (each omitted term is a
+/// probability ≤ 1 times its Poisson weight, so this bounds the absolute
+/// error of the tail).
+pub const NONCENTRAL_TAIL_MASS: f64 = 1e-15;
+
+/// Most Poisson terms those mixtures may sum before giving up (NaN); the
+/// terms needed grow like √λ, so this allows λ far beyond any planning use.
+pub const NONCENTRAL_MAX_TERMS: usize = 1_000_000;
+
+/// Largest noncentrality the Poisson mixtures accept (NaN beyond): the
+/// number of terms grows like √λ and the log Poisson weights lose accuracy
+/// as λ grows; at λ = 1e6 they still agree with scipy to about 2e-10 (one
+/// standard error is then a thousandth of the effect, far beyond planning).
+pub const NONCENTRAL_LAMBDA_MAX: f64 = 1e6;
+
+/// Test tolerance of the noncentral tails against scipy 1.16.3: both sides
+/// are double-precision series, the central pieces (statrs' incomplete gamma
+/// and beta) carry about 1e-12 to 1e-11 relative error.
+pub const NONCENTRAL_REF_ABS: f64 = 1e-10;

@@ -1,0 +1,234 @@
+//! Tests of `pondus plan` through the binary.
+//!
+//! Reference values come from tests/reference/power_values.py, computed
+//! independently with numpy and scipy 1.16.3 (scipy.stats.norm for the
+//! closed-form z power, scipy.stats.ncf for the noncentral F approximation).
+
+use assert_cmd::Command;
+use pondus::tolerance::NONCENTRAL_REF_ABS;
+use serde_json::Value;
+use tempfile::TempDir;
+
+/// The first planning problem of power_values.py.
+const BASE: &str = "--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2";
+/// scipy 1.16.3: closed-form z power Φ(δ − z) + Φ(−δ − z) for BASE.
+const Z_POWER: f64 = 0.5953367183203992;
+/// scipy 1.16.3: noncentral F approximation P(F₁,₁₈(λ) > F₁,₁₈;.95) for BASE.
+const F_POWER: f64 = 0.5490093886325786;
+/// power_values.py: smallest k with z power ≥ 0.8 for BASE, and smallest n at k = 20.
+const K_NEEDED: u64 = 33;
+const N_NEEDED: f64 = 186.0;
+
+fn plan(args: &str) -> Command {
+    let mut c = Command::cargo_bin("pondus").expect("the pondus binary is built");
+    c.arg("plan").args(args.split_whitespace());
+    c
+}
+
+fn json(args: &str) -> Value {
+    let out = plan(&format!("{args} --json -")).output().unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+fn num(v: &Value, key: &str) -> f64 {
+    v[key].as_f64().unwrap_or_else(|| panic!("{key} in {v}"))
+}
+
+#[test]
+fn z_power_and_sites_needed_match_scipy() {
+    let v = json(&format!("{BASE} --test z --target-power 0.8"));
+    assert!(
+        (num(&v, "power") - Z_POWER).abs() < NONCENTRAL_REF_ABS,
+        "{v}"
+    );
+    assert_eq!(v["k_needed"].as_u64(), Some(K_NEEDED));
+    let rows = v["table"].as_array().unwrap();
+    assert!(rows
+        .iter()
+        .any(|r| r["k"] == 20 && (num(r, "power") - Z_POWER).abs() < NONCENTRAL_REF_ABS));
+    assert!(v["cautions"].as_array().unwrap().len() >= 3);
+    let v = json(&format!("{BASE} --test z --target-power 0.8 --solve n"));
+    assert_eq!(v["n_needed"].as_f64(), Some(N_NEEDED));
+    assert!(v["k_needed"].is_null());
+}
+
+#[test]
+fn kh_power_is_simulated_with_a_seed_and_the_f_approximation_matches_scipy() {
+    let args = format!("{BASE} --simulations 500 --seed 9");
+    let a = json(&args);
+    let b = json(&args);
+    assert_eq!(a["power"], b["power"], "same seed, same answer");
+    assert!((num(&a, "power_f_approximation") - F_POWER).abs() < NONCENTRAL_REF_ABS);
+    let sim = &a["simulation"];
+    assert_eq!(sim["simulations"], 500);
+    let se = num(sim, "monte_carlo_se");
+    assert!((num(&a, "power") - F_POWER).abs() < 5.0 * se + 0.05, "{a}");
+    let c = json(&format!("{BASE} --simulations 500 --seed 10"));
+    assert_ne!(a["power"], c["power"], "another seed, another stream");
+}
+
+#[test]
+fn unreachable_target_says_so() {
+    let v = json("--measure effect --variance 0.05 --k 10 --tau2 0.5 --moderator-sd 1 --moderator-effect 0.01 --test z --target-power 0.8 --max-k 200");
+    assert!(v["k_needed"].is_null());
+    let notes = v["notes"].to_string();
+    assert!(notes.contains("up to 200"), "{notes}");
+}
+
+#[test]
+fn terminal_report_and_curve() {
+    let dir = TempDir::new().unwrap();
+    let svg = dir.path().join("curve.svg");
+    let png = dir.path().join("curve.png");
+    let out = plan(&format!(
+        "{BASE} --test z --target-power 0.8 --curve {}",
+        svg.display()
+    ))
+    .output()
+    .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("Sites needed for power 0.8: k = 33."),
+        "{text}"
+    );
+    assert!(text.contains("Cautions:") && text.contains("observational"));
+    let s = std::fs::read_to_string(&svg).unwrap();
+    assert!(s.starts_with("<svg") || s.contains("<svg"));
+    plan(&format!(
+        "{BASE} --simulations 100 --curve {} -q",
+        png.display()
+    ))
+    .assert()
+    .success()
+    .stdout("");
+    let bytes = std::fs::read(&png).unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
+}
+
+#[test]
+fn bad_input_names_the_flag_and_exits_2() {
+    for (args, flag) in [
+        ("--measure slope --k 20 --tau2 0.02 --share 0.5 --moderator-effect 0.2", "--variance"),
+        ("--measure r --k 20 --tau2 0.02 --share 0.5 --moderator-effect 0.2", "--n"),
+        ("--measure r --k 20 --n 50 --variance 0.1 --tau2 0.02 --share 0.5 --moderator-effect 0.2", "--variance"),
+        ("--measure r --k 2 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2", "--k"),
+        ("--measure r --k 20 --n 50 --tau2 -1 --share 0.5 --moderator-effect 0.2", "--tau2"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 1.5 --moderator-effect 0.2", "--share"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.01 --moderator-effect 0.2", "--share"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --alpha 5", "--alpha"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --test z --seed 3", "--seed"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --target-power 0.01", "--target-power"),
+        ("--measure effect --variance 0.1 --k 20 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --target-power 0.8 --solve n", "--solve"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --curve c.jpg", "--curve"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --simulations 5", "--simulations"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-sd 1 --moderator-effect 0.2", "--moderator-sd"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --moderator-effect 0.2", "--moderator-sd"),
+    ] {
+        let out = plan(args).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{args}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(flag), "{args}: {err}");
+        assert!(!err.contains("panicked"), "{args}: {err}");
+    }
+}
+
+#[test]
+fn enormous_noncentrality_gives_power_one_not_a_failure() {
+    // λ = 49·1e9 is far beyond the Poisson mixture's range; the z power uses
+    // the identical normal form there, Φ(δ − z) + Φ(−δ − z) = 1 to double precision.
+    let v = json("--measure effect --variance 1e-9 --k 50 --tau2 0 --moderator-sd 1 --moderator-effect 1 --test z --target-power 0.8");
+    assert_eq!(num(&v, "power"), 1.0);
+    assert_eq!(v["k_needed"].as_u64(), Some(3));
+}
+
+/// scipy 1.16.3 (power_values.py): z power for r, k 40, n 100, τ² 0, and the
+/// numeric moderator np.linspace(-1, 1, 40) scaled to SD 1, effect 0.05.
+const Z_POWER_VALUES: f64 = 0.8676480514753485;
+
+#[test]
+fn moderator_values_from_a_file() {
+    let dir = TempDir::new().unwrap();
+    let path = dir.path().join("x.txt");
+    let raw: Vec<f64> = (0..40).map(|i| -1.0 + 2.0 * i as f64 / 39.0).collect();
+    let ss: f64 = raw.iter().map(|x| x * x).sum();
+    let sd = (ss / 39.0).sqrt();
+    let mut text = String::from("planned_x\n");
+    for x in &raw {
+        text.push_str(&format!("{:?}\n", x / sd));
+    }
+    std::fs::write(&path, text).unwrap();
+    let base = format!(
+        "--measure r --k 40 --n 100 --tau2 0 --moderator-effect 0.05 --test z --moderator-values {}",
+        path.display()
+    );
+    let v = json(&base);
+    assert!(
+        (num(&v, "power") - Z_POWER_VALUES).abs() < NONCENTRAL_REF_ABS,
+        "{v}"
+    );
+    assert_eq!(v["notes"].as_array().unwrap().len(), 0);
+    // Another k repeats the values, and says so.
+    let v = json(&base.replace("--k 40", "--k 80"));
+    assert!(v["notes"].to_string().contains("repeated"));
+    // Bad files name the flag and the line.
+    std::fs::write(&path, "x\n1\n2\nabc\n").unwrap();
+    let out = plan(&base).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--moderator-values") && err.contains("line 4"),
+        "{err}"
+    );
+    std::fs::write(&path, "2\n2\n2\n").unwrap();
+    let out = plan(&base).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--moderator-values"));
+    let missing = dir.path().join("none.txt");
+    let out = plan(&base.replace(&path.display().to_string(), &missing.display().to_string()))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    // The output may not overwrite the values file.
+    std::fs::write(&path, "1\n2\n3\n").unwrap();
+    let out = plan(&format!("{base} --json {}", path.display()))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(std::fs::read_to_string(&path).unwrap(), "1\n2\n3\n");
+}
+
+/// scipy 1.16.3 (power_values.py): r, n = 30, 60, 120 repeated in order,
+/// τ² = 0.01, share 0.5, β = 0.3, k = 10.
+const Z_POWER_N_LIST: f64 = 0.8066457369324039;
+
+#[test]
+fn a_list_of_site_sizes() {
+    let base =
+        "--measure r --k 10 --n 30,60,120 --tau2 0.01 --share 0.5 --moderator-effect 0.3 --test z";
+    let v = json(base);
+    assert!(
+        (num(&v, "power") - Z_POWER_N_LIST).abs() < NONCENTRAL_REF_ABS,
+        "{v}"
+    );
+    assert_eq!(v["n_sites"], serde_json::json!([30.0, 60.0, 120.0]));
+    assert!(v["n"].is_null());
+    assert!(v["notes"].to_string().contains("repeated"));
+    for (args, flag) in [
+        (base.replace("30,60,120", "30,abc"), "--n"),
+        (base.replace("30,60,120", "30,2"), "--n"),
+        (format!("{base} --target-power 0.8 --solve n"), "--solve"),
+    ] {
+        let out = plan(&args).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{args}");
+        assert!(
+            String::from_utf8_lossy(&out.stderr).contains(flag),
+            "{args}"
+        );
+    }
+}
