@@ -110,3 +110,28 @@ fn a_study_alone_in_its_level_has_no_standardised_residual() {
         .filter(|s| s.study != "s3")
         .all(|s| s.std_residual.is_some()));
 }
+
+/// Guards against an emptied or edited README (it once lost its content in
+/// a faulty edit while every other check stayed green): the two set-up
+/// commands are there, and the test command is the one `.ci/run` calls.
+#[test]
+fn readme_keeps_its_two_set_up_commands() {
+    let readme = std::fs::read_to_string(repo("README.md")).unwrap();
+    let ci = std::fs::read_to_string(repo(".ci/run")).unwrap();
+    let demo = "cargo run --release -- fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode";
+    let setup = &readme[readme.find("## Set up").expect("a set-up section")..];
+    let setup = &setup[..setup.find("\n## Usage").expect("usage after set-up")];
+    let blocks: Vec<&str> = setup
+        .split("```sh\n")
+        .skip(1)
+        .map(|b| b.split("```").next().unwrap().trim())
+        .collect();
+    assert_eq!(blocks, [demo, "cargo test"], "README set-up commands");
+    assert!(
+        ci.lines().any(|l| l.trim() == "cargo test"),
+        ".ci/run runs the README's test command"
+    );
+    for file in ["data-examples/consortium-correlations.csv"] {
+        assert!(repo(file).exists(), "{file} is bundled");
+    }
+}
