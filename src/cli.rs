@@ -560,13 +560,13 @@ pub struct PlanArgs {
     #[arg(long, value_name = "B", allow_negative_numbers = true)]
     pub moderator_effect: f64,
     /// Two-sided significance level.
-    #[arg(long, default_value_t = 0.05)]
+    #[arg(long, default_value_t = 0.05, allow_negative_numbers = true)]
     pub alpha: f64,
     /// The moderator test.
     #[arg(long, value_enum, default_value_t = PlanTestArg::Kh)]
     pub test: PlanTestArg,
     /// Solve for the smallest k (or n, with --solve n) reaching this power.
-    #[arg(long, value_name = "POWER")]
+    #[arg(long, value_name = "POWER", allow_negative_numbers = true)]
     pub target_power: Option<f64>,
     /// What --target-power solves for.
     #[arg(long, value_enum, default_value_t = SolveArg::K)]
@@ -577,11 +577,11 @@ pub struct PlanArgs {
     /// Largest per-site n searched with --solve n.
     #[arg(long, default_value_t = 100_000.0)]
     pub max_n: f64,
-    /// Simulated data sets for --test kh [default: 2000].
-    #[arg(long, value_name = "N")]
-    pub simulations: Option<usize>,
-    /// Seed of the simulation for --test kh [default: 1].
-    #[arg(long)]
+    /// Simulate N data sets under the planned design, fit each by REML with the chosen test, and show the realised rejection rate beside the analytic power (--test kh always simulates, default 2000; also confirms the k needed).
+    #[arg(long = "simulate", visible_alias = "simulations", value_name = "N")]
+    pub simulate: Option<usize>,
+    /// Seed of the simulation [default: 1]; the result does not depend on the number of threads.
+    #[arg(long, value_name = "S")]
     pub seed: Option<u64>,
     /// Draw the power curve over k into this file (.svg or .png).
     #[arg(long, value_name = "FILE")]
@@ -606,6 +606,9 @@ pub struct PlanRun {
     /// Whether to print the terminal report.
     pub text: bool,
 }
+
+/// Simulated data sets for `--test kh` without `--simulate`.
+pub const PLAN_DEFAULT_SIMULATIONS: usize = 2000;
 
 /// Largest k accepted by `--k` and `--max-k`.
 pub const PLAN_MAX_K: usize = 100_000;
@@ -763,22 +766,24 @@ impl PlanArgs {
             PlanTestArg::Z => PlanTest::Z,
             PlanTestArg::Kh => PlanTest::Kh,
         };
-        if test == PlanTest::Z {
-            for (flag, given) in [
-                ("--simulations", self.simulations.is_some()),
-                ("--seed", self.seed.is_some()),
-            ] {
-                if given {
-                    return Err(Error::usage(
-                        flag,
-                        "applies to --test kh (the z test's power is exact)",
-                    ));
-                }
-            }
+        if test == PlanTest::Z && self.simulate.is_none() && self.seed.is_some() {
+            return Err(Error::usage(
+                "--seed",
+                "applies with --simulate N (or --test kh); the z test's analytic power needs no seed",
+            ));
         }
-        let simulations = self.simulations.unwrap_or(2000);
-        if !(100..=1_000_000).contains(&simulations) {
-            return Err(Error::usage("--simulations", "give 100 to 1000000"));
+        let simulations = match (test, self.simulate) {
+            (_, Some(n)) => Some(n),
+            (PlanTest::Kh, None) => Some(PLAN_DEFAULT_SIMULATIONS),
+            (PlanTest::Z, None) => None,
+        };
+        if let Some(n) = simulations {
+            if !(100..=1_000_000).contains(&n) {
+                return Err(Error::usage(
+                    "--simulate",
+                    format!("{n} data sets: give 100 to 1000000"),
+                ));
+            }
         }
         let json = self.json.as_deref().map(Target::from_arg);
         let curve = match &self.curve {
@@ -884,7 +889,35 @@ fn read_moderator_values(path: &std::path::Path) -> Result<Vec<f64>> {
 /// # Errors
 /// Any library error.
 pub fn run_plan(run: &PlanRun) -> Result<()> {
-    let report = plan::report::build(&run.request)?;
+    use std::io::IsTerminal;
+    let req = &run.request;
+    let bar = match req.simulations {
+        Some(n) if std::io::stderr().is_terminal() => {
+            let confirm = req.plan.test == PlanTest::Kh
+                && req.target_power.is_some()
+                && req.solve == SolveFor::K;
+            let rounds = 1 + if confirm { plan::MAX_SIMULATED_K } else { 0 };
+            let bar = indicatif::ProgressBar::new((n * rounds) as u64);
+            bar.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "simulating {bar:30} {pos}/{len} data sets ({eta})",
+                )
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+            );
+            Some(bar)
+        }
+        _ => None,
+    };
+    let tick = |n: u64| {
+        if let Some(b) = &bar {
+            b.inc(n);
+        }
+    };
+    let report = plan::report::build_with_progress(req, &tick);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let report = report?;
     let curve = match &run.curve {
         Some((t, f)) => Some((t, plan::report::curve_plot(&report, *f)?)),
         None => None,

@@ -2,7 +2,8 @@
 //! are the JSON schema), the terminal text, and the power curve plot.
 
 use super::{
-    power_ceiling_in_n, simulate_kh, solve_k, solve_n, ModeratorDesign, Plan, PlanTest, Simulated,
+    confirm_k, no_progress, power_ceiling_in_n, simulate, solve_k, solve_n, ModeratorDesign, Plan,
+    PlanTest, Simulated, SimulatedK,
 };
 use crate::error::{Error, Result};
 use crate::plot::scene::{Align, Scene};
@@ -32,8 +33,9 @@ pub struct PlanRequest {
     pub max_k: usize,
     /// Largest per-site n searched.
     pub max_n: f64,
-    /// Simulated data sets (Knapp–Hartung only).
-    pub simulations: usize,
+    /// Simulated data sets, or None for no simulation (the z test without
+    /// `--simulate`); `--test kh` always simulates.
+    pub simulations: Option<usize>,
     /// Seed of the simulation.
     pub seed: u64,
 }
@@ -79,14 +81,24 @@ pub struct PlanReport {
     pub power: f64,
     /// How `power` was obtained.
     pub power_method: String,
-    /// For `kh`: the simulation (Monte-Carlo SE, seed, failures).
+    /// The analytic power at the planned k: noncentral chi-square for `z`,
+    /// the noncentral F approximation for `kh` (null when not computable).
+    pub power_analytic: Option<f64>,
+    /// How `power_analytic` was obtained.
+    pub power_analytic_method: String,
+    /// The simulation at the planned k (realised rejection rate, Monte-Carlo
+    /// SE, seed, failures): always for `kh`, with `--simulate` for `z`.
     pub simulation: Option<Simulated>,
     /// For `kh`: the noncentral F approximation at the planned k (a quick estimate only).
     pub power_f_approximation: Option<f64>,
     /// The target power, when given.
     pub target_power: Option<f64>,
-    /// Smallest k reaching the target power (null when none up to `max_k`, or with `--solve n`).
+    /// Smallest k reaching the target power (null when none up to `max_k`, or with `--solve n`):
+    /// from the closed form (exact for `z`, the noncentral F approximation for `kh`).
     pub k_needed: Option<usize>,
+    /// For `kh` with `--target-power` (solving for k): the k needed
+    /// confirmed by simulation, starting from `k_needed`.
+    pub k_needed_simulated: Option<SimulatedK>,
     /// Smallest per-site n reaching the target power at the planned k (`--solve n`).
     pub n_needed: Option<f64>,
     /// Largest k searched.
@@ -127,6 +139,18 @@ fn design_words(d: &ModeratorDesign) -> String {
 /// [`Error::Usage`] when the moderator design cannot be realised at the
 /// planned k; [`Error::Model`] when no simulated data set can be fitted.
 pub fn build(req: &PlanRequest) -> Result<PlanReport> {
+    build_with_progress(req, &no_progress)
+}
+
+/// [`build`], calling `progress` with the number of simulated data sets of
+/// each finished block (for a progress bar).
+///
+/// # Errors
+/// Those of [`build`].
+pub fn build_with_progress(
+    req: &PlanRequest,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<PlanReport> {
     let plan = &req.plan;
     let info = plan.information().ok_or_else(|| match &plan.design {
         ModeratorDesign::Values(_) => Error::usage(
@@ -157,31 +181,43 @@ pub fn build(req: &PlanRequest) -> Result<PlanReport> {
             ));
         }
     }
-    let (power, power_method, simulation, f_approx) = match plan.test {
-        PlanTest::Z => (
-            plan.z_power().unwrap_or(f64::NAN),
-            "noncentral chi-square (exact for the z test with τ² known)".to_string(),
-            None,
-            None,
-        ),
-        PlanTest::Kh => {
-            let sim = simulate_kh(plan, req.simulations, req.seed)?;
+    let simulation = match req.simulations {
+        Some(n) => {
+            let sim = simulate(plan, n, req.seed, progress)?;
             if sim.failed_fits > 0 {
                 notes.push(format!(
                     "{} of {} simulated data sets could not be fitted and are left out of the power",
                     sim.failed_fits, sim.simulations
                 ));
             }
-            (
-                sim.power,
-                format!(
-                    "simulation: {} data sets, REML + Knapp–Hartung, seed {}",
-                    sim.simulations, sim.seed
-                ),
-                Some(sim),
-                plan.f_power_approx().filter(|p| p.is_finite()),
-            )
+            Some(sim)
         }
+        None => None,
+    };
+    let power_analytic = plan.quick_power().filter(|p| p.is_finite());
+    let power_analytic_method = match plan.test {
+        PlanTest::Z => "noncentral chi-square (exact for the z test with τ² known)",
+        PlanTest::Kh => "noncentral F approximation (a quick estimate)",
+    }
+    .to_string();
+    let sim_words = |s: &Simulated| {
+        format!(
+            "simulation: {} data sets, REML + {}, seed {}",
+            s.simulations,
+            match plan.test {
+                PlanTest::Z => "Wald z",
+                PlanTest::Kh => "Knapp–Hartung",
+            },
+            s.seed
+        )
+    };
+    let (power, power_method, f_approx) = match (plan.test, &simulation) {
+        (PlanTest::Kh, Some(sim)) => (sim.power, sim_words(sim), power_analytic),
+        _ => (
+            plan.z_power().unwrap_or(f64::NAN),
+            power_analytic_method.clone(),
+            None,
+        ),
     };
     let huge = plan
         .noncentrality()
@@ -219,9 +255,33 @@ pub fn build(req: &PlanRequest) -> Result<PlanReport> {
                 }
             }
         }
-        if plan.test == PlanTest::Kh {
-            notes.push("with --test kh the sites (or n) needed come from the noncentral F approximation, not from simulation; check the simulated power at that value by running again with it".into());
+        if plan.test == PlanTest::Kh && req.solve == SolveFor::N {
+            notes.push("with --test kh the n needed comes from the noncentral F approximation, not from simulation; check the simulated power at that value by running again with it".into());
         }
+    }
+    let mut k_needed_simulated = None;
+    if let (PlanTest::Kh, Some(target), SolveFor::K, Some(n)) =
+        (plan.test, req.target_power, req.solve, req.simulations)
+    {
+        // Start from the approximation's k, or from the planned k when it
+        // found none (or could not be computed).
+        let start = k_needed.unwrap_or(plan.k);
+        let c = confirm_k(plan, target, start, req.max_k, n, req.seed, progress)?;
+        match (c.k, c.bracketed) {
+            (Some(k), true) => notes.push(format!(
+                "the noncentral F approximation proposes k = {}; simulation ({} data sets per k, seed {}) puts the crossing at k = {k}",
+                k_needed.map_or("none".into(), |k| k.to_string()), n, req.seed
+            )),
+            (Some(k), false) => notes.push(format!(
+                "simulation reached the target at k = {k} but the search stopped after {} simulated values of k before confirming that k − 1 falls short",
+                c.evaluated.len()
+            )),
+            (None, _) => notes.push(format!(
+                "no simulated k reached power {target} within {} simulated values of k (up to --max-k {})",
+                c.evaluated.len(), req.max_k
+            )),
+        }
+        k_needed_simulated = Some(c);
     }
     let upper = [2 * plan.k, k_needed.map_or(0, |k| k + k / 4 + 1), 10]
         .into_iter()
@@ -254,10 +314,13 @@ pub fn build(req: &PlanRequest) -> Result<PlanReport> {
         noncentrality: plan.beta * plan.beta * info,
         power,
         power_method,
+        power_analytic,
+        power_analytic_method,
         simulation,
         power_f_approximation: f_approx,
         target_power: req.target_power,
         k_needed,
+        k_needed_simulated,
         n_needed,
         max_k: req.max_k,
         table,
@@ -312,16 +375,36 @@ pub fn render_text(r: &PlanReport) -> String {
             format!("moderator effect {}", r.moderator_effect)
         },
         r.power,
-        r.simulation.map_or(String::new(), |s| format!(
-            " (Monte-Carlo SE {:.3})",
-            s.monte_carlo_se
-        ))
+        r.simulation
+            .filter(|_| r.test == PlanTest::Kh)
+            .map_or(String::new(), |s| format!(
+                " (Monte-Carlo SE {:.3})",
+                s.monte_carlo_se
+            ))
     );
-    if let Some(f) = r.power_f_approximation {
+    if let Some(sim) = &r.simulation {
+        let _ = writeln!(s, "\nAnalytic and simulated power side by side:");
         let _ = writeln!(
             s,
-            "Quick estimate from the noncentral F approximation: {f:.3} (approximation)."
+            "  analytic   {:>7}  {}",
+            r.power_analytic
+                .map_or("n/a".to_string(), |p| format!("{p:.3}")),
+            r.power_analytic_method
         );
+        let _ = writeln!(
+            s,
+            "  simulated  {:>7.3}  Monte-Carlo SE {:.3}; {} data sets, seed {}{}",
+            sim.power,
+            sim.monte_carlo_se,
+            sim.simulations,
+            sim.seed,
+            if sim.failed_fits > 0 {
+                format!(", {} fits failed", sim.failed_fits)
+            } else {
+                String::new()
+            }
+        );
+        let _ = writeln!(s);
     }
     let _ = writeln!(s, "  power from     {}", r.power_method);
     let _ = writeln!(
@@ -359,7 +442,48 @@ pub fn render_text(r: &PlanReport) -> String {
     );
     if let Some(t) = r.target_power {
         if let Some(k) = r.k_needed {
-            let _ = writeln!(s, "\nSites needed for power {t}: k = {k}.");
+            match r.test {
+                PlanTest::Z => {
+                    let _ = writeln!(s, "\nSites needed for power {t}: k = {k}.");
+                }
+                PlanTest::Kh => {
+                    let _ = writeln!(
+                        s,
+                        "\nSites needed for power {t}: k = {k} (noncentral F approximation)."
+                    );
+                }
+            }
+        }
+        if let Some(c) = &r.k_needed_simulated {
+            let _ = match (c.k, c.bracketed) {
+                (Some(3), true) => writeln!(
+                    s,
+                    "Sites needed for power {t}: k = 3 (simulated; 3 is the smallest k allowed)."
+                ),
+                (Some(k), true) => writeln!(
+                    s,
+                    "Sites needed for power {t}: k = {k} (simulated; confirmed by simulating k − 1)."
+                ),
+                (Some(k), false) => writeln!(
+                    s,
+                    "Sites needed for power {t}: k ≤ {k} (simulated; the search stopped before confirming k − 1)."
+                ),
+                (None, _) => writeln!(
+                    s,
+                    "Sites needed for power {t}: not reached by simulation in {} values of k.",
+                    c.evaluated.len()
+                ),
+            };
+            let _ = writeln!(
+                s,
+                "  simulated k: {} (at most {} values of k are simulated)",
+                c.evaluated
+                    .iter()
+                    .map(|e| format!("{} → {:.3}", e.k, e.power))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                c.max_evaluations
+            );
         }
         if let Some(n) = r.n_needed {
             let _ = writeln!(

@@ -59,7 +59,7 @@ fn z_power_and_sites_needed_match_scipy() {
 
 #[test]
 fn kh_power_is_simulated_with_a_seed_and_the_f_approximation_matches_scipy() {
-    let args = format!("{BASE} --simulations 500 --seed 9");
+    let args = format!("{BASE} --simulate 500 --seed 9");
     let a = json(&args);
     let b = json(&args);
     assert_eq!(a["power"], b["power"], "same seed, same answer");
@@ -68,7 +68,7 @@ fn kh_power_is_simulated_with_a_seed_and_the_f_approximation_matches_scipy() {
     assert_eq!(sim["simulations"], 500);
     let se = num(sim, "monte_carlo_se");
     assert!((num(&a, "power") - F_POWER).abs() < 5.0 * se + 0.05, "{a}");
-    let c = json(&format!("{BASE} --simulations 500 --seed 10"));
+    let c = json(&format!("{BASE} --simulate 500 --seed 10"));
     assert_ne!(a["power"], c["power"], "another seed, another stream");
 }
 
@@ -101,7 +101,7 @@ fn terminal_report_and_curve() {
     let s = std::fs::read_to_string(&svg).unwrap();
     assert!(s.starts_with("<svg") || s.contains("<svg"));
     plan(&format!(
-        "{BASE} --simulations 100 --curve {} -q",
+        "{BASE} --simulate 100 --curve {} -q",
         png.display()
     ))
     .assert()
@@ -126,7 +126,7 @@ fn bad_input_names_the_flag_and_exits_2() {
         ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --target-power 0.01", "--target-power"),
         ("--measure effect --variance 0.1 --k 20 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --target-power 0.8 --solve n", "--solve"),
         ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --curve c.jpg", "--curve"),
-        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --simulations 5", "--simulations"),
+        ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --simulate 5", "--simulate"),
         ("--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-sd 1 --moderator-effect 0.2", "--moderator-sd"),
         ("--measure r --k 20 --n 50 --tau2 0.02 --moderator-effect 0.2", "--moderator-sd"),
     ] {
@@ -145,6 +145,13 @@ fn enormous_noncentrality_gives_power_one_not_a_failure() {
     let v = json("--measure effect --variance 1e-9 --k 50 --tau2 0 --moderator-sd 1 --moderator-effect 1 --test z --target-power 0.8");
     assert_eq!(num(&v, "power"), 1.0);
     assert_eq!(v["k_needed"].as_u64(), Some(3));
+    // Under kh the F approximation is not computed there; the simulated
+    // search starts at the planned k and steps down to 3 within its bound.
+    let v = json("--measure effect --variance 1e-9 --k 50 --tau2 0 --moderator-sd 1 --moderator-effect 1 --simulate 100 --target-power 0.8");
+    assert!(v["k_needed"].is_null());
+    let c = &v["k_needed_simulated"];
+    assert_eq!(c["k"].as_u64(), Some(3), "{c}");
+    assert!(c["evaluated"].as_array().unwrap().len() <= 10);
 }
 
 /// scipy 1.16.3 (power_values.py): z power for r, k 40, n 100, τ² 0, and the
@@ -231,4 +238,165 @@ fn a_list_of_site_sizes() {
             "{args}"
         );
     }
+}
+
+#[test]
+fn z_test_simulated_beside_the_analytic_power() {
+    let v = json(&format!("{BASE} --test z --simulate 2000 --seed 4"));
+    // The headline power stays the exact one; the simulation sits beside it.
+    assert!(
+        (num(&v, "power") - Z_POWER).abs() < NONCENTRAL_REF_ABS,
+        "{v}"
+    );
+    assert!((num(&v, "power_analytic") - Z_POWER).abs() < NONCENTRAL_REF_ABS);
+    let sim = &v["simulation"];
+    assert_eq!(sim["simulations"], 2000);
+    assert_eq!(sim["seed"], 4);
+    let (p, se) = (num(sim, "power"), num(sim, "monte_carlo_se"));
+    assert!(se > 0.0 && se < 0.02, "{sim}");
+    // REML's τ̂² is noisy at k = 20, so the realised z rate may differ from the
+    // τ²-known figure a little beyond Monte-Carlo error.
+    assert!((p - Z_POWER).abs() < 5.0 * se + 0.03, "{v}");
+    assert!(json(&format!("{BASE} --test z"))["simulation"].is_null());
+    let text = plan(&format!("{BASE} --test z --simulate 500"))
+        .output()
+        .unwrap();
+    let text = String::from_utf8(text.stdout).unwrap();
+    assert!(
+        text.contains("analytic     0.595")
+            && text.contains("simulated ")
+            && text.contains("Monte-Carlo SE"),
+        "{text}"
+    );
+    // The old spelling still works.
+    let a = json(&format!("{BASE} --test z --simulations 300 --seed 2"));
+    let b = json(&format!("{BASE} --test z --simulate 300 --seed 2"));
+    assert_eq!(a, b);
+}
+
+#[test]
+fn kh_side_by_side_and_default_simulation_count() {
+    let v = json(BASE);
+    assert_eq!(v["simulation"]["simulations"], 2000);
+    assert!((num(&v, "power_analytic") - F_POWER).abs() < NONCENTRAL_REF_ABS);
+    assert_eq!(v["power"], v["simulation"]["power"]);
+}
+
+fn run_with_threads(args: &str, threads: &str) -> Vec<u8> {
+    let out = plan(&format!("{args} --json -"))
+        .env("RAYON_NUM_THREADS", threads)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // Not a terminal: no progress bar on stderr.
+    assert!(
+        out.stderr.is_empty(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out.stdout
+}
+
+#[test]
+fn the_answer_does_not_depend_on_the_number_of_threads() {
+    for args in [
+        format!("{BASE} --test z --simulate 1100 --seed 7"),
+        format!("{BASE} --simulate 600 --seed 7 --target-power 0.7"),
+    ] {
+        let one = run_with_threads(&args, "1");
+        let two = run_with_threads(&args, "2");
+        assert_eq!(one, two, "{args}");
+    }
+}
+
+#[test]
+fn kh_k_needed_is_confirmed_by_simulation() {
+    let v = json(&format!(
+        "{BASE} --simulate 1000 --seed 3 --target-power 0.8"
+    ));
+    let approx = v["k_needed"].as_u64().unwrap() as usize;
+    let c = &v["k_needed_simulated"];
+    let evaluated = c["evaluated"].as_array().unwrap();
+    assert!(!evaluated.is_empty() && evaluated.len() <= 10, "{c}");
+    assert_eq!(c["max_evaluations"], 10);
+    // The search starts at the approximate k.
+    assert_eq!(evaluated[0]["k"].as_u64(), Some(approx as u64));
+    let k = c["k"].as_u64().unwrap();
+    let at = |j: u64| {
+        evaluated
+            .iter()
+            .find(|e| e["k"].as_u64() == Some(j))
+            .map(|e| num(e, "power"))
+    };
+    assert!(at(k).unwrap() >= 0.8, "{c}");
+    assert_eq!(c["bracketed"], true, "{c}");
+    assert!(at(k - 1).unwrap() < 0.8, "{c}");
+    // The simulated crossing is near the approximate one here (F ≈ 0.807 at k = 35).
+    assert!((k as i64 - approx as i64).abs() <= 4, "{c}");
+    let text = String::from_utf8(
+        plan(&format!(
+            "{BASE} --simulate 1000 --seed 3 --target-power 0.8"
+        ))
+        .output()
+        .unwrap()
+        .stdout,
+    )
+    .unwrap();
+    assert!(
+        text.contains("(noncentral F approximation)") && text.contains("(simulated;"),
+        "{text}"
+    );
+    // The z test has no such search.
+    assert!(json(&format!(
+        "{BASE} --test z --simulate 300 --target-power 0.8"
+    ))["k_needed_simulated"]
+        .is_null());
+}
+
+#[test]
+fn each_bad_value_exits_2_naming_its_flag() {
+    let ok = "--measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --test z";
+    for (from, to, flag) in [
+        ("--tau2 0.02", "--tau2 -0.01", "--tau2"),
+        ("--n 50", "--n 3", "--n"),
+        ("--n 50", "--n 2", "--n"),
+        ("--measure r", "--measure smd", ""),
+        ("--k 20", "--k 2", "--k"),
+        ("--k 20", "--k 1", "--k"),
+        ("--test z", "--test z --target-power 0", "--target-power"),
+        ("--test z", "--test z --target-power 1", "--target-power"),
+        ("--test z", "--test z --target-power 1.2", "--target-power"),
+        ("--test z", "--test z --target-power -0.5", "--target-power"),
+        ("--test z", "--test z --alpha 0", "--alpha"),
+        ("--test z", "--test z --alpha 1", "--alpha"),
+        ("--test z", "--test z --alpha -0.05", "--alpha"),
+        ("--test z", "--test z --seed 3", "--seed"),
+        ("--test z", "--test z --simulate 0", "--simulate"),
+    ] {
+        if flag.is_empty() {
+            // smd at n = 50 is fine; n = 3 is below its 4.
+            let args = ok.replace(from, to).replace("--n 50", "--n 3");
+            let out = plan(&args).output().unwrap();
+            assert_eq!(out.status.code(), Some(2), "{args}");
+            assert!(
+                String::from_utf8_lossy(&out.stderr).contains("--n"),
+                "{args}"
+            );
+            assert!(json(&ok.replace(from, to).replace("--n 50", "--n 4"))["power"].is_number());
+            continue;
+        }
+        let args = ok.replace(from, to);
+        assert_ne!(args, ok);
+        let out = plan(&args).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{args}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(flag), "{args}: {err}");
+        assert!(!err.contains("panicked"), "{args}: {err}");
+    }
+    // The same plan with good values runs.
+    assert!(json(ok)["power"].is_number());
 }
