@@ -778,9 +778,10 @@ mod tests {
         assert!(solve_k(&Plan { beta: 0.001, ..p }, 0.8, 1000).is_none());
     }
 
-    #[test]
-    fn kh_simulation_is_seeded_and_close_to_the_f_approximation() {
-        let p = Plan {
+    /// The Knapp–Hartung plan the simulation tests share: r, k = 20, n = 50,
+    /// τ² = 0.02, a two-level moderator split evenly, effect 0.2, α = 0.05.
+    fn kh_two_level() -> Plan {
+        Plan {
             test: PlanTest::Kh,
             ..plan(
                 PlanMeasure::R,
@@ -791,7 +792,12 @@ mod tests {
                 0.2,
                 0.05,
             )
-        };
+        }
+    }
+
+    #[test]
+    fn kh_simulation_is_seeded_and_close_to_the_f_approximation() {
+        let p = kh_two_level();
         let a = simulate(&p, 400, 11, &no_progress).unwrap();
         let b = simulate(&p, 400, 11, &no_progress).unwrap();
         assert_eq!(a, b);
@@ -842,18 +848,7 @@ mod tests {
 
     #[test]
     fn confirm_k_brackets_the_crossing_within_its_bound() {
-        let p = Plan {
-            test: PlanTest::Kh,
-            ..plan(
-                PlanMeasure::R,
-                20,
-                50.0,
-                0.02,
-                ModeratorDesign::TwoLevel { share: 0.5 },
-                0.2,
-                0.05,
-            )
-        };
+        let p = kh_two_level();
         // Start far too low: the search must step up and still stay bounded.
         let c = confirm_k(&p, 0.8, 10, 1000, 400, 5, &no_progress).unwrap();
         assert!(c.evaluated.len() <= MAX_SIMULATED_K, "{c:?}");
