@@ -346,6 +346,7 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             delimiter: table.delimiter_name().into(),
             rows: table.len(),
             label_column,
+            sha256: sha256_hex(bytes),
         },
         measure: MeasureInfo {
             id: measure.id().into(),
@@ -932,4 +933,15 @@ fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
             .into(),
     );
     c
+}
+
+/// SHA-256 of `bytes` as lowercase hex (FIPS 180-4, through the `sha2` crate).
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::{Digest, Sha256};
+    let digest = Sha256::digest(bytes);
+    let mut out = String::with_capacity(64);
+    for b in digest {
+        out.push_str(&format!("{b:02x}"));
+    }
+    out
 }

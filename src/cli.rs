@@ -192,6 +192,9 @@ pub struct FitArgs {
     /// Do not print the terminal report.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Write one self-contained HTML page (tables, plots, cautions, how to reproduce) into this .html file ('-' for standard output).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
 }
 
 /// A plot kind.
@@ -243,6 +246,56 @@ pub struct FitRun {
     pub plot_options: plot::PlotOptions,
     /// Whether to print the terminal report.
     pub text: bool,
+    /// The HTML report's target.
+    pub report: Option<Target>,
+    /// The command line, quoted for a shell (for the report's reproducibility block).
+    pub invocation: String,
+}
+
+/// A `--report` target: standard output or a path ending in `.html` or `.htm`.
+fn report_target(flag: &str, path: &std::path::Path) -> Result<Target> {
+    if path.as_os_str() == "-" {
+        return Ok(Target::Stdout);
+    }
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    match ext.as_deref() {
+        Some("html") | Some("htm") => Ok(Target::from_arg(path)),
+        _ => Err(Error::usage(
+            flag,
+            format!(
+                "'{}': the report is an HTML page; give a file name ending in .html (or '-' for standard output)",
+                path.display()
+            ),
+        )),
+    }
+}
+
+/// This process's command line quoted for a POSIX shell, the program shown
+/// as `pondus` (its path on this machine says nothing about the analysis).
+pub fn invocation() -> String {
+    let mut parts = vec!["pondus".to_string()];
+    parts.extend(
+        std::env::args_os()
+            .skip(1)
+            .map(|a| shell_quote(&a.to_string_lossy())),
+    );
+    parts.join(" ")
+}
+
+/// Quotes one word for a POSIX shell: unchanged when it is made of safe
+/// characters only, otherwise in single quotes with `'` written as `'\''`.
+pub fn shell_quote(word: &str) -> String {
+    let safe = !word.is_empty()
+        && word
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "_-./=,:+@%".contains(c));
+    if safe {
+        word.to_string()
+    } else {
+        format!("'{}'", word.replace('\'', "'\\''"))
+    }
 }
 
 impl FitArgs {
@@ -368,32 +421,37 @@ impl FitArgs {
             "--sort",
             self.sort.is_some(),
             "--forest",
-            self.forest.is_some(),
+            self.forest.is_some() || self.report.is_some(),
         )?;
         needs(
             "--show-fitted",
             self.show_fitted,
             "--forest",
-            self.forest.is_some(),
+            self.forest.is_some() || self.report.is_some(),
         )?;
         needs(
             "--bubble-x",
             self.bubble_x.is_some(),
             "--bubble",
-            self.bubble.is_some(),
+            self.bubble.is_some() || self.report.is_some(),
         )?;
         needs(
             "--contours",
             self.contours,
             "--funnel",
-            self.funnel.is_some(),
+            self.funnel.is_some() || self.report.is_some(),
         )?;
-        let any_plot = !plots.is_empty();
+        let report = self
+            .report
+            .as_deref()
+            .map(|p| report_target("--report", p))
+            .transpose()?;
+        let any_plot = !plots.is_empty() || report.is_some();
         for (flag, v) in [("--width", self.width), ("--height", self.height)] {
             needs(
                 flag,
                 v.is_some(),
-                "--forest, --bubble or --funnel",
+                "--forest, --bubble, --funnel or --report",
                 any_plot,
             )?;
             if let Some(v) = v {
@@ -411,6 +469,9 @@ impl FitArgs {
         }
         for (flag, p) in &plots {
             outs.push((flag, &p.target));
+        }
+        if let Some(t) = &report {
+            outs.push(("--report", t));
         }
         let input_path = match &source {
             Source::File(p) => Some(p.as_path()),
@@ -455,6 +516,8 @@ impl FitArgs {
                 contours: self.contours,
             },
             text: !self.quiet && !to_stdout,
+            report,
+            invocation: invocation(),
         })
     }
 }
@@ -488,8 +551,27 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         report::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
         output::emit(t, &buf)?;
     }
+    let page = match &run.report {
+        Some(t) => {
+            let (figures, figure_notes) = plot::page_figures(&report, &run.plot_options)?;
+            let prov = report::html::Provenance {
+                command: run.invocation.clone(),
+                version: report.tool.version.clone(),
+                input_sha256: Some(report.input.sha256.clone()),
+                seed: None,
+            };
+            Some((
+                t,
+                report::html::fit_page(&report, &figures, &figure_notes, &prov),
+            ))
+        }
+        None => None,
+    };
     for (target, bytes) in drawn {
         output::emit(target, &bytes)?;
+    }
+    if let Some((t, page)) = page {
+        output::emit(t, page.as_bytes())?;
     }
     if run.text {
         output::emit(&Target::Stdout, report::text::render(&report).as_bytes())?;
@@ -592,6 +674,9 @@ pub struct PlanArgs {
     /// Do not print the terminal report.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Write one self-contained HTML page (assumptions, power table, curve, cautions) into this .html file ('-' for standard output).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
 }
 
 /// Checked settings of a `plan` run.
@@ -605,6 +690,10 @@ pub struct PlanRun {
     pub curve: Option<(Target, plot::Format)>,
     /// Whether to print the terminal report.
     pub text: bool,
+    /// The HTML report's target.
+    pub report: Option<Target>,
+    /// The command line, quoted for a shell.
+    pub invocation: String,
 }
 
 /// Simulated data sets for `--test kh` without `--simulate`.
@@ -797,6 +886,14 @@ impl PlanArgs {
         if let Some((c, _)) = &curve {
             outs.push(("--curve", c));
         }
+        let report = self
+            .report
+            .as_deref()
+            .map(|p| report_target("--report", p))
+            .transpose()?;
+        if let Some(r) = &report {
+            outs.push(("--report", r));
+        }
         output::check_targets(self.moderator_values.as_deref(), &outs)?;
         let plan = Plan {
             measure,
@@ -834,9 +931,11 @@ impl PlanArgs {
                 simulations,
                 seed: self.seed.unwrap_or(1),
             },
-            text: !self.quiet && json != Some(Target::Stdout),
+            text: !self.quiet && json != Some(Target::Stdout) && report != Some(Target::Stdout),
             json,
             curve,
+            report,
+            invocation: invocation(),
         })
     }
 }
@@ -928,8 +1027,24 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         buf.push(b'\n');
         output::emit(t, &buf)?;
     }
+    let page = match &run.report {
+        Some(t) => {
+            let figure = plan::report::curve_figure(&report)?;
+            let prov = report::html::Provenance {
+                command: run.invocation.clone(),
+                version: env!("CARGO_PKG_VERSION").to_string(),
+                input_sha256: None,
+                seed: report.simulation.map(|s| s.seed),
+            };
+            Some((t, report::html::plan_page(&report, Some(&figure), &prov)))
+        }
+        None => None,
+    };
     if let Some((t, bytes)) = curve {
         output::emit(t, &bytes)?;
+    }
+    if let Some((t, page)) = page {
+        output::emit(t, page.as_bytes())?;
     }
     if run.text {
         output::emit(

@@ -67,6 +67,9 @@ pub struct InputInfo {
     pub rows: usize,
     /// Header of the column used for study labels (null: labels made from line numbers).
     pub label_column: Option<String>,
+    /// SHA-256 of the input bytes exactly as read, lowercase hex (FIPS 180-4),
+    /// so a reader can check that a result belongs to a file.
+    pub sha256: String,
 }
 
 /// The effect measure.

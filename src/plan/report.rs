@@ -517,6 +517,28 @@ pub fn render_text(r: &PlanReport) -> String {
 /// # Errors
 /// Drawing errors.
 pub fn curve_plot(r: &PlanReport, format: Format) -> Result<Vec<u8>> {
+    encode(&curve_scene(r), format)
+}
+
+/// The power curve as an inline SVG figure for the HTML report.
+///
+/// # Errors
+/// Drawing errors.
+pub fn curve_figure(r: &PlanReport) -> Result<crate::plot::PageFigure> {
+    Ok(crate::plot::PageFigure {
+        kind: "power",
+        title: "Power of the moderator test by number of sites".into(),
+        description: format!(
+            "Power curve: the power of the moderator test for 3 to {} sites, with the target \
+             power as a dashed line and the planned {} sites marked.",
+            r.table.last().map_or(r.k, |p| p.k),
+            r.k
+        ),
+        svg: crate::plot::scene::encode_inline(&curve_scene(r))?,
+    })
+}
+
+fn curve_scene(r: &PlanReport) -> Scene {
     let (w, h) = (720u32, 460u32);
     let mut sc = Scene::new(w, h);
     sc.rect(0.0, 0.0, w as f64, h as f64, palette::PAPER);
@@ -599,5 +621,5 @@ pub fn curve_plot(r: &PlanReport, format: Format) -> Result<Vec<u8>> {
         Align::Left,
     );
     frame.axes(&mut sc, "number of sites k", "power");
-    encode(&sc, format)
+    sc
 }

@@ -140,6 +140,88 @@ pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
     scene::encode(&funnel::scene(report, opts)?, format, "--funnel")
 }
 
+/// One picture for a page (the HTML report): inline SVG markup and words
+/// describing it for readers who cannot see it.
+#[derive(Debug, Clone)]
+pub struct PageFigure {
+    /// Which plot ("forest", "bubble" or "funnel").
+    pub kind: &'static str,
+    /// A short title.
+    pub title: String,
+    /// What the picture shows, in words (used as its accessible description).
+    pub description: String,
+    /// The SVG element, without XML declaration or namespace attribute.
+    pub svg: String,
+}
+
+/// The forest, bubble (when the model has a moderator) and funnel plots of
+/// `report` as inline SVG for a page. A plot the model cannot support is left
+/// out with the reason in the returned notes.
+///
+/// # Errors
+/// Drawing errors.
+pub fn page_figures(
+    report: &FitReport,
+    opts: &PlotOptions,
+) -> Result<(Vec<PageFigure>, Vec<String>)> {
+    let mut figures = Vec::new();
+    let mut notes = Vec::new();
+    let k = report.k;
+    let measure = &report.measure.description;
+    figures.push(PageFigure {
+        kind: "forest",
+        title: "Forest plot".into(),
+        description: format!(
+            "Forest plot: each of the {k} studies' effects ({measure}) with its confidence interval,              marker size by weight, and the pooled result at the bottom."
+        ),
+        svg: scene::encode_inline(&forest::scene(report, opts)?)?,
+    });
+    match bubble::scene(report, opts) {
+        Ok(sc) => {
+            let name = opts
+                .bubble_x
+                .clone()
+                .or_else(|| {
+                    report
+                        .model
+                        .moderators
+                        .iter()
+                        .find(|m| {
+                            matches!(m.kind, crate::model::design::ModeratorKind::Numeric { .. })
+                        })
+                        .or(report.model.moderators.first())
+                        .map(|m| m.name.clone())
+                })
+                .unwrap_or_default();
+            figures.push(PageFigure {
+                kind: "bubble",
+                title: format!("Effect against {name}"),
+                description: format!(
+                    "Bubble plot: each study's effect against its value of {name}, circle area by                      weight, with the fitted meta-regression and its bands."
+                ),
+                svg: scene::encode_inline(&sc)?,
+            });
+        }
+        Err(Error::Usage { message, .. }) => notes.push(format!("No bubble plot: {message}.")),
+        Err(e) => return Err(e),
+    }
+    figures.push(PageFigure {
+        kind: "funnel",
+        title: "Funnel plot".into(),
+        description: format!(
+            "Funnel plot: each study's {} against its standard error, with the dashed \
+             pseudo-confidence region where studies would fall from sampling error alone.",
+            if report.model.moderators.is_empty() {
+                "effect"
+            } else {
+                "residual from the model"
+            }
+        ),
+        svg: scene::encode_inline(&funnel::scene(report, opts)?)?,
+    });
+    Ok((figures, notes))
+}
+
 // ------------------------------------------------------------- shared look
 
 /// The palette (Okabe & Ito's colour-blind-safe set, plus greys). Every

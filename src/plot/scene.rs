@@ -367,6 +367,35 @@ const LARGE_PIXELS: u64 = 4_000_000;
 
 /// Draws `scene` into SVG text or PNG bytes.
 /// `flag` is the plot's option, named in the error for a PNG too large to draw.
+/// Draws a scene as SVG markup for embedding in an HTML page: no XML
+/// namespace attribute (inline SVG in HTML needs none, and the page then
+/// names no web address at all) and no embedded font (the page carries
+/// [`font_face_css`] once for all its pictures).
+///
+/// # Errors
+/// [`Error::Io`] (action "drawing") when plotters fails.
+pub(crate) fn encode_inline(scene: &Scene) -> Result<String> {
+    if !font_ready() {
+        return Err(drawing_error("the bundled font could not be loaded"));
+    }
+    let mut out = String::new();
+    {
+        let area =
+            SVGBackend::with_string(&mut out, (scene.width, scene.height)).into_drawing_area();
+        draw(&area, scene)?;
+    }
+    Ok(out.replacen(" xmlns=\"http://www.w3.org/2000/svg\"", "", 1))
+}
+
+/// The bundled font as a CSS `@font-face` rule (TTF inline, base64), for a
+/// page that embeds several pictures drawn by [`encode_inline`].
+pub fn font_face_css() -> String {
+    format!(
+        "@font-face{{font-family:\"DejaVu Sans\";src:url(data:font/ttf;base64,{}) format(\"truetype\");}}",
+        base64(FONT)
+    )
+}
+
 pub(crate) fn encode(scene: &Scene, format: Format, flag: &str) -> Result<Vec<u8>> {
     if !font_ready() {
         return Err(drawing_error("the bundled font could not be loaded"));

@@ -1,9 +1,11 @@
 //! The integration test binary: reference checks, CLI tests, property tests.
 
+mod browser;
 mod cli;
 mod plan;
 mod plots;
 mod properties;
 mod reference;
 mod regression;
+mod report;
 mod util;

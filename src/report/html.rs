@@ -1,0 +1,897 @@
+//! The shareable report: one self-contained HTML page (inline CSS, inline
+//! SVG pictures, the bundled font as a data URL; no scripts, no web
+//! addresses), readable on a screen and on paper. A pure renderer of the
+//! public results.
+//!
+//! Every piece of text that comes from the data (study labels, column
+//! names, levels, file names, the command line) goes through [`esc`], so a
+//! label such as `<script>` is shown as text. The page also declares a
+//! Content-Security-Policy that allows no scripts and no fetches, so even a
+//! mistake in escaping could not run anything or reach the network.
+
+use super::{format_num as num, format_p, format_percent};
+use crate::plan::report::PlanReport;
+use crate::plot::PageFigure;
+use crate::result::{AtValue, Estimate, FitReport};
+use std::fmt::Write as _;
+
+/// Where a result came from, for the reproducibility block.
+#[derive(Debug, Clone, Default)]
+pub struct Provenance {
+    /// The command line, quoted for a POSIX shell.
+    pub command: String,
+    /// The tool's version.
+    pub version: String,
+    /// SHA-256 of the input bytes, lowercase hex (None when there was no input file).
+    pub input_sha256: Option<String>,
+    /// The random seed, where one was used.
+    pub seed: Option<u64>,
+}
+
+/// Escapes text for HTML element content and double-quoted attributes.
+pub fn esc(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+/// The page's style sheet: this project's own look (warm paper, mulberry
+/// accents, framed figures), a print style, and tabular figures in tables.
+const STYLE: &str = r#"
+:root{--ink:#1f2633;--muted:#5c6370;--accent:#7a3b69;--accent-soft:#f4edf2;--rule:#d9d3ca;--paper:#fbfaf7;--head:#efebe4;--frame:#9c8f80;--warn:#8a4b08;--warn-soft:#fbf1e2}
+html{background:var(--paper)}
+body{font-family:"DejaVu Sans",system-ui,sans-serif;color:var(--ink);background:var(--paper);max-width:62rem;margin:0 auto;padding:1.5rem 1.25rem 3rem;line-height:1.5;font-size:15px}
+header{border-top:6px solid var(--accent);padding-top:.75rem;margin-bottom:1.5rem}
+h1{font-size:1.55rem;margin:.2rem 0 .3rem;line-height:1.25}
+h2{font-size:1.15rem;margin:2.2rem 0 .6rem;padding-bottom:.2rem;border-bottom:1px solid var(--rule);color:var(--accent)}
+h3{font-size:1rem;margin:1.4rem 0 .4rem}
+p.sub{color:var(--muted);margin:0}
+nav ol{columns:2;margin:.5rem 0;padding-left:1.4rem;color:var(--muted)}
+nav a{color:var(--accent)}
+.answer{background:var(--accent-soft);border-left:6px solid var(--accent);padding:.8rem 1rem;margin:1rem 0;font-size:1.05rem}
+.care{background:var(--warn-soft);border-left:6px solid var(--warn);padding:.6rem 1rem;margin:1rem 0}
+.care h2{border:none;color:var(--warn);margin:.2rem 0 .3rem;font-size:1.05rem}
+.care ul{margin:.2rem 0;padding-left:1.2rem}
+table{border-collapse:collapse;margin:.5rem 0 1rem;font-variant-numeric:tabular-nums;background:#fff}
+caption{caption-side:top;text-align:left;color:var(--muted);font-size:.9rem;padding:.2rem 0}
+th,td{border:1px solid var(--rule);padding:.25rem .55rem;vertical-align:top}
+thead th{background:var(--head);text-align:left;font-weight:600}
+tbody th{text-align:left;font-weight:normal}
+td.n{text-align:right;white-space:nowrap}
+dl.facts{display:grid;grid-template-columns:max-content 1fr;gap:.15rem 1rem;margin:.5rem 0}
+dl.facts dt{color:var(--muted)}
+dl.facts dd{margin:0}
+figure.plot{border:3px solid var(--frame);background:#fff;padding:.6rem;margin:1rem 0}
+figure.plot svg{display:block;max-width:100%;height:auto}
+figcaption{color:var(--muted);font-size:.9rem;margin-top:.4rem}
+code,pre{font-family:"DejaVu Sans Mono",ui-monospace,monospace;font-size:.88rem}
+pre{background:#fff;border:1px solid var(--rule);padding:.6rem;white-space:pre-wrap;overflow-wrap:break-word}
+footer{margin-top:2.5rem;color:var(--muted);font-size:.85rem;border-top:1px solid var(--rule);padding-top:.5rem}
+@media print{
+ html,body{background:#fff}
+ body{max-width:none;padding:0;font-size:10pt}
+ nav{display:none}
+ h2{break-after:avoid}
+ figure.plot{break-inside:avoid;border-width:1px}
+ tr{break-inside:avoid}
+ .answer,.care{break-inside:avoid}
+}
+"#;
+
+/// Page builder: a string with helpers for the few elements the report uses.
+struct Page {
+    out: String,
+}
+
+impl Page {
+    fn new(title: &str) -> Page {
+        let mut out = String::with_capacity(64 * 1024);
+        out.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n");
+        out.push_str(
+            "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; \
+             style-src 'unsafe-inline'; font-src data:; img-src data:\">\n",
+        );
+        out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n");
+        let _ = writeln!(out, "<title>{}</title>", esc(title));
+        out.push_str("<style>");
+        out.push_str(&crate::plot::scene::font_face_css());
+        out.push_str(STYLE);
+        out.push_str("</style>\n</head>\n<body>\n");
+        Page { out }
+    }
+
+    fn raw(&mut self, html: &str) {
+        self.out.push_str(html);
+    }
+
+    fn h2(&mut self, id: &str, text: &str) {
+        let _ = writeln!(self.out, "<h2 id=\"{id}\">{}</h2>", esc(text));
+    }
+
+    fn h3(&mut self, text: &str) {
+        let _ = writeln!(self.out, "<h3>{}</h3>", esc(text));
+    }
+
+    fn p(&mut self, text: &str) {
+        let _ = writeln!(self.out, "<p>{}</p>", esc(text));
+    }
+
+    fn list(&mut self, items: &[String]) {
+        self.out.push_str("<ul>\n");
+        for i in items {
+            let _ = writeln!(self.out, "<li>{}</li>", esc(i));
+        }
+        self.out.push_str("</ul>\n");
+    }
+
+    fn facts(&mut self, rows: &[(&str, String)]) {
+        self.out.push_str("<dl class=\"facts\">\n");
+        for (k, v) in rows {
+            let _ = writeln!(self.out, "<dt>{}</dt><dd>{}</dd>", esc(k), esc(v));
+        }
+        self.out.push_str("</dl>\n");
+    }
+
+    /// A table: the first cell of each row is a row header; cells that
+    /// look like numbers are right-aligned.
+    fn table(&mut self, caption: &str, head: &[&str], rows: &[Vec<String>]) {
+        self.out.push_str("<table>\n");
+        if !caption.is_empty() {
+            let _ = writeln!(self.out, "<caption>{}</caption>", esc(caption));
+        }
+        self.out.push_str("<thead><tr>");
+        for h in head {
+            let _ = write!(self.out, "<th scope=\"col\">{}</th>", esc(h));
+        }
+        self.out.push_str("</tr></thead>\n<tbody>\n");
+        for r in rows {
+            self.out.push_str("<tr>");
+            for (j, c) in r.iter().enumerate() {
+                if j == 0 {
+                    let _ = write!(self.out, "<th scope=\"row\">{}</th>", esc(c));
+                } else if numeric_looking(c) {
+                    let _ = write!(self.out, "<td class=\"n\">{}</td>", esc(c));
+                } else {
+                    let _ = write!(self.out, "<td>{}</td>", esc(c));
+                }
+            }
+            self.out.push_str("</tr>\n");
+        }
+        self.out.push_str("</tbody>\n</table>\n");
+    }
+
+    fn figure(&mut self, id: &str, f: &PageFigure) {
+        let _ = writeln!(
+            self.out,
+            "<figure class=\"plot\" id=\"{id}\" data-plot=\"{}\">",
+            f.kind
+        );
+        self.out.push_str(&labelled_svg(f, id));
+        let _ = writeln!(
+            self.out,
+            "\n<figcaption>{}</figcaption>\n</figure>",
+            esc(&f.description)
+        );
+    }
+
+    fn finish(mut self, prov: &Provenance) -> String {
+        let _ = writeln!(
+            self.out,
+            "<footer>Made by pondus {}. This page is self-contained: it loads nothing from the \
+             network and runs no scripts.</footer>\n</body>\n</html>",
+            esc(&prov.version)
+        );
+        self.out
+    }
+}
+
+fn numeric_looking(c: &str) -> bool {
+    let t = c.trim_start_matches(['<', '=', ' ', '[', '−', '-']);
+    !t.is_empty()
+        && t.chars().next().is_some_and(|ch| ch.is_ascii_digit())
+        && c.chars()
+            .all(|ch| ch.is_ascii_digit() || " .,-+−e%[]<=".contains(ch) || ch == '—' || ch == '×')
+}
+
+/// The SVG with an accessible name and description: `role="img"`, and
+/// `<title>`/`<desc>` children referenced by `aria-labelledby`.
+fn labelled_svg(f: &PageFigure, id: &str) -> String {
+    let svg = f.svg.trim_start();
+    let svg = match svg.find("<svg") {
+        Some(i) => &svg[i..],
+        None => svg,
+    };
+    match svg.find('>') {
+        Some(end) if svg.starts_with("<svg") => {
+            let (open, rest) = svg.split_at(end);
+            format!(
+                "{open} role=\"img\" aria-labelledby=\"{id}-title {id}-desc\"><title id=\"{id}-title\">{}</title><desc id=\"{id}-desc\">{}</desc>{}",
+                esc(&f.title),
+                esc(&f.description),
+                &rest[1..]
+            )
+        }
+        _ => esc(svg),
+    }
+}
+
+fn interval(lo: f64, hi: f64) -> String {
+    format!("[{}, {}]", num(lo), num(hi))
+}
+
+fn level_pct(level: f64) -> String {
+    let pct = 100.0 * level;
+    if (pct - pct.round()).abs() < 1e-9 {
+        format!("{pct:.0}%")
+    } else {
+        format!("{pct}%")
+    }
+}
+
+fn words_and(items: &[String]) -> String {
+    match items.len() {
+        0 => String::new(),
+        1 => items[0].clone(),
+        2 => format!("{} and {}", items[0], items[1]),
+        n => format!("{}, and {}", items[..n - 1].join(", "), items[n - 1]),
+    }
+}
+
+/// Degrees of freedom: whole numbers without decimals.
+fn df_text(x: f64) -> String {
+    if x.fract() == 0.0 && x.abs() < 1e15 {
+        format!("{x:.0}")
+    } else {
+        format!("{x:.2}")
+    }
+}
+
+/// A moderator value as the user would write it: whole numbers without
+/// decimals, others as in the tables.
+fn value_text(x: f64) -> String {
+    if x.fract() == 0.0 && x.abs() < 1e15 {
+        format!("{x:.0}")
+    } else {
+        num(x)
+    }
+}
+
+fn at_text(v: &AtValue) -> String {
+    match v {
+        AtValue::Number(x) => value_text(*x),
+        AtValue::Level(l) => l.clone(),
+    }
+}
+
+fn estimate_rows(
+    rows: &mut Vec<Vec<String>>,
+    name: &str,
+    e: &Estimate,
+    reading_name: Option<&str>,
+) {
+    rows.push(vec![
+        name.to_string(),
+        num(e.estimate),
+        interval(e.ci_low, e.ci_high),
+        interval(e.pi_low, e.pi_high),
+        num(e.se),
+    ]);
+    if let (Some(r), Some(rn)) = (&e.reading, reading_name) {
+        rows.push(vec![
+            format!("{name}, as {rn}"),
+            num(r.estimate),
+            interval(r.ci_low, r.ci_high),
+            interval(r.pi_low, r.pi_high),
+            "—".into(),
+        ]);
+    }
+}
+
+/// The whole `pondus fit` report as one HTML page.
+pub fn fit_page(
+    report: &FitReport,
+    figures: &[PageFigure],
+    figure_notes: &[String],
+    prov: &Provenance,
+) -> String {
+    let mods: Vec<String> = report
+        .model
+        .moderators
+        .iter()
+        .map(|m| m.name.clone())
+        .collect();
+    let lv = level_pct(report.model.level);
+    let title = if mods.is_empty() {
+        format!("Pooled effect across {} studies", report.k)
+    } else {
+        format!("Does {} change the effect?", words_and(&mods))
+    };
+    let mut page = Page::new(&format!("{title} — pondus report"));
+    page.raw("<header>\n");
+    let _ = writeln!(page.out, "<h1>{}</h1>", esc(&title));
+    let _ = writeln!(
+        page.out,
+        "<p class=\"sub\">{} · {} studies · {} · made by pondus {}</p>",
+        esc(&report.measure.description),
+        report.k,
+        esc(&report.input.file),
+        esc(&prov.version)
+    );
+    page.raw("</header>\n");
+
+    // The question in words.
+    page.h2("question", "The question");
+    let question = if mods.is_empty() {
+        format!(
+            "What is the average effect ({}) across these {} studies, how much do their true \
+             effects differ, and what effect should a new study expect?",
+            report.measure.description, report.k
+        )
+    } else {
+        format!(
+            "Across these {} studies, is the effect ({}) associated with {}? And how much \
+             variation between studies is left once the moderators are taken into account?",
+            report.k,
+            report.measure.description,
+            words_and(&mods)
+        )
+    };
+    page.p(&question);
+    let answer = match &report.moderator_test {
+        Some(t) => t.answer.clone(),
+        None => {
+            let a = &report.average;
+            format!(
+                "The average effect is {} ({lv} CI {}); a new study's true effect is expected in {} \
+                 ({lv} prediction interval).",
+                num(a.estimate),
+                interval(a.ci_low, a.ci_high),
+                interval(a.pi_low, a.pi_high)
+            )
+        }
+    };
+    let _ = writeln!(
+        page.out,
+        "<div class=\"answer\" role=\"note\">{}</div>",
+        esc(&answer)
+    );
+    if !report.cautions.is_empty() || !report.warnings.is_empty() {
+        page.raw("<section class=\"care\" aria-labelledby=\"care\">\n");
+        let _ = writeln!(page.out, "<h2 id=\"care\">Read with care</h2>");
+        let mut items = report.warnings.clone();
+        items.extend(report.cautions.iter().cloned());
+        page.list(&items);
+        page.raw("</section>\n");
+    }
+
+    page.raw(
+        "<nav aria-label=\"Contents\"><ol>\
+         <li><a href=\"#data\">Data used</a></li>\
+         <li><a href=\"#pooled\">Average effect and heterogeneity</a></li>\
+         <li><a href=\"#moderators\">Moderators</a></li>\
+         <li><a href=\"#plots\">Plots</a></li>\
+         <li><a href=\"#studies\">Studies</a></li>\
+         <li><a href=\"#reproduce\">Reproduce this analysis</a></li>\
+         </ol></nav>\n",
+    );
+
+    // Data.
+    page.h2("data", "Data used");
+    page.facts(&[
+        ("File", report.input.file.clone()),
+        (
+            "Rows read",
+            format!(
+                "{} ({}-separated)",
+                report.input.rows, report.input.delimiter
+            ),
+        ),
+        ("Studies in the model", report.k.to_string()),
+        ("Rows left out", report.excluded.len().to_string()),
+        ("Effect measure", report.measure.description.clone()),
+        (
+            "Model",
+            format!(
+                "{}; {}; {lv} intervals",
+                report.model.tau2_description, report.model.inference_description
+            ),
+        ),
+    ]);
+    if !report.excluded.is_empty() {
+        let rows: Vec<Vec<String>> = report
+            .excluded
+            .iter()
+            .map(|e| vec![e.study.clone(), e.line.to_string(), e.reason.clone()])
+            .collect();
+        page.table(
+            "Rows left out of the model, with the reason",
+            &["study", "line", "reason"],
+            &rows,
+        );
+    }
+    if !report.notes.is_empty() {
+        page.h3("Notes");
+        page.list(&report.notes);
+    }
+
+    // Pooled result and heterogeneity.
+    page.h2("pooled", "Average effect and heterogeneity");
+    let reading = report.measure.reading_name.as_deref();
+    let mut rows = Vec::new();
+    estimate_rows(&mut rows, "average effect", &report.average, reading);
+    page.table(
+        "The average effect from the same estimator with no moderators",
+        &[
+            "",
+            "estimate",
+            &format!("{lv} CI"),
+            &format!("{lv} prediction interval"),
+            "SE",
+        ],
+        &rows,
+    );
+    let h = &report.heterogeneity;
+    let t = &report.tau2;
+    let mut het = vec![
+        vec![
+            if mods.is_empty() {
+                "τ² (between-study variance)"
+            } else {
+                "residual τ² (between-study variance left)"
+            }
+            .to_string(),
+            num(t.estimate),
+            match (t.ci_low, t.ci_high) {
+                (Some(a), Some(b)) => format!("{lv} CI {}", interval(a, b)),
+                _ => "—".into(),
+            },
+        ],
+        vec!["τ (between-study SD)".into(), num(t.tau), String::new()],
+        vec![
+            "I² (share of variation beyond sampling error)".into(),
+            format_percent(h.i2),
+            format!("H² = {}", num(h.h2)),
+        ],
+        vec![
+            "Cochran's Q".into(),
+            num(h.q),
+            format!("{} df, p {}", df_text(h.df), format_p(h.p)),
+        ],
+    ];
+    if let Some(r2) = h.r2 {
+        het.push(vec![
+            "τ² explained by the moderators (R²)".into(),
+            format_percent(r2),
+            format!("τ² without them: {}", num(h.tau2_without_moderators)),
+        ]);
+    }
+    page.table("Heterogeneity", &["quantity", "value", "detail"], &het);
+
+    // Moderators.
+    page.h2("moderators", "Moderators");
+    match &report.moderator_test {
+        Some(mt) => {
+            let stat = match mt.df2 {
+                Some(d2) => format!(
+                    "F({}, {}) = {:.2}",
+                    df_text(mt.df1),
+                    df_text(d2),
+                    mt.statistic
+                ),
+                None => format!("χ²({}) = {:.2}", df_text(mt.df1), mt.statistic),
+            };
+            page.facts(&[
+                ("Omnibus test of the moderators", stat),
+                ("p", format_p(mt.p).trim_start_matches("= ").to_string()),
+                (
+                    "Answer",
+                    if mt.significant {
+                        "associated"
+                    } else {
+                        "no clear association"
+                    }
+                    .into(),
+                ),
+            ]);
+            let described: Vec<String> = report
+                .model
+                .moderators
+                .iter()
+                .map(|m| format!("{}: {}", m.name, describe_moderator(m)))
+                .collect();
+            page.list(&described);
+        }
+        None => page.p("This model has no moderators: it estimates the average effect only."),
+    }
+    let ratio = report.coefficients.iter().any(|c| c.ratio.is_some());
+    let stat_name = if report.model.inference == "kh" {
+        "t"
+    } else {
+        "z"
+    };
+    let mut head = vec!["term", "estimate", "SE"];
+    let ci_head = format!("{lv} CI");
+    head.push(&ci_head);
+    head.push(stat_name);
+    head.push("p");
+    if ratio {
+        head.push("as ratio");
+        head.push("ratio CI");
+    }
+    let rows: Vec<Vec<String>> = report
+        .coefficients
+        .iter()
+        .map(|c| {
+            let mut r = vec![
+                c.term.clone(),
+                num(c.estimate),
+                num(c.se),
+                interval(c.ci_low, c.ci_high),
+                format!("{:.2}", c.statistic),
+                format_p(c.p).trim_start_matches("= ").to_string(),
+            ];
+            if let Some(q) = &c.ratio {
+                r.push(num(q.estimate));
+                r.push(interval(q.ci_low, q.ci_high));
+            } else if ratio {
+                r.push("—".into());
+                r.push("—".into());
+            }
+            r
+        })
+        .collect();
+    let df_note = report
+        .coefficients
+        .first()
+        .and_then(|c| c.df)
+        .map(|d| format!(" (t tests on {} degrees of freedom)", df_text(d)))
+        .unwrap_or_default();
+    page.table(
+        &format!("Coefficients on the analysis scale{df_note}"),
+        &head,
+        &rows,
+    );
+    if !report.predictions.is_empty() {
+        page.h3("Predicted effects");
+        let rows: Vec<Vec<String>> = report
+            .predictions
+            .iter()
+            .map(|p| {
+                let at: Vec<String> =
+                    p.at.iter()
+                        .map(|(k, v)| format!("{k} = {}", at_text(v)))
+                        .collect();
+                let mut at = at.join(", ");
+                if !p.outside_range.is_empty() {
+                    at.push_str(&format!(
+                        " (outside the studies' range: {})",
+                        p.outside_range.join(", ")
+                    ));
+                }
+                vec![
+                    at,
+                    num(p.estimate),
+                    interval(p.ci_low, p.ci_high),
+                    interval(p.pi_low, p.pi_high),
+                    num(p.se),
+                ]
+            })
+            .collect();
+        page.table(
+            "The expected mean effect at given moderator values, and the range for a new study's true effect",
+            &["at", "estimate", &format!("{lv} CI"), &format!("{lv} prediction interval"), "SE"],
+            &rows,
+        );
+    }
+    for g in &report.subgroups {
+        page.h3(&format!("Levels of {}", g.moderator));
+        let rows: Vec<Vec<String>> = g
+            .levels
+            .iter()
+            .map(|l| {
+                vec![
+                    l.level.clone(),
+                    l.k.to_string(),
+                    num(l.predicted.estimate),
+                    interval(l.predicted.ci_low, l.predicted.ci_high),
+                    l.pooled
+                        .as_ref()
+                        .map(|e| format!("{} {}", num(e.estimate), interval(e.ci_low, e.ci_high)))
+                        .unwrap_or_else(|| "—".into()),
+                ]
+            })
+            .collect();
+        let held = if g.held.is_empty() {
+            String::new()
+        } else {
+            format!("; model predictions with {}", g.held)
+        };
+        page.table(
+            &format!(
+                "Each level: the model's prediction and a separate pooling of its studies{held}"
+            ),
+            &[
+                "level",
+                "studies",
+                "model estimate",
+                &format!("{lv} CI"),
+                "separate pooling",
+            ],
+            &rows,
+        );
+    }
+
+    // Plots.
+    page.h2("plots", "Plots");
+    for (i, f) in figures.iter().enumerate() {
+        page.figure(&format!("fig-{}-{i}", f.kind), f);
+    }
+    if !figure_notes.is_empty() {
+        page.list(figure_notes);
+    }
+
+    // Studies.
+    page.h2("studies", "Studies");
+    let mut head: Vec<String> = [
+        "study",
+        "line",
+        "effect",
+        "variance",
+        &format!("{lv} CI"),
+        "weight",
+        "std. residual",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    head.extend(mods.iter().cloned());
+    head.push("note".into());
+    let head_ref: Vec<&str> = head.iter().map(String::as_str).collect();
+    let rows: Vec<Vec<String>> = report
+        .studies
+        .iter()
+        .map(|s| {
+            let mut r = vec![
+                s.study.clone(),
+                s.line.to_string(),
+                num(s.effect),
+                num(s.variance),
+                interval(s.ci_low, s.ci_high),
+                format!("{:.1}%", s.weight),
+                s.std_residual
+                    .map(|z| format!("{z:.2}"))
+                    .unwrap_or_else(|| "—".into()),
+            ];
+            r.extend(s.moderators.iter().map(at_text));
+            r.push(s.note.clone().unwrap_or_default());
+            r
+        })
+        .collect();
+    page.table(
+        "Every study in the model, in input order (effects on the analysis scale)",
+        &head_ref,
+        &rows,
+    );
+
+    reproduce(&mut page, prov);
+    page.finish(prov)
+}
+
+fn describe_moderator(m: &crate::model::design::Moderator) -> String {
+    use crate::model::design::ModeratorKind;
+    match &m.kind {
+        ModeratorKind::Numeric { .. } => "numeric".into(),
+        ModeratorKind::Categorical {
+            levels, reference, ..
+        } => format!(
+            "categorical with {} levels ({}), compared with the reference level {}",
+            levels.len(),
+            levels.join(", "),
+            reference
+        ),
+    }
+}
+
+fn test_words(t: crate::plan::PlanTest) -> &'static str {
+    match t {
+        crate::plan::PlanTest::Z => "Wald z test",
+        crate::plan::PlanTest::Kh => "Knapp–Hartung t test",
+    }
+}
+
+fn reproduce(page: &mut Page, prov: &Provenance) {
+    page.h2("reproduce", "Reproduce this analysis");
+    let mut facts = vec![("Tool", format!("pondus {}", prov.version))];
+    if let Some(h) = &prov.input_sha256 {
+        facts.push(("Input SHA-256", h.clone()));
+    }
+    if let Some(s) = prov.seed {
+        facts.push(("Random seed", s.to_string()));
+    }
+    page.facts(&facts);
+    page.p("The command that made this page:");
+    let _ = writeln!(page.out, "<pre><code>{}</code></pre>", esc(&prov.command));
+}
+
+/// The `pondus plan` report as one HTML page.
+pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Provenance) -> String {
+    let title = "Planning a moderator analysis: power of the moderator test";
+    let mut page = Page::new(&format!("{title} — pondus report"));
+    page.raw("<header>\n");
+    let _ = writeln!(page.out, "<h1>{}</h1>", esc(title));
+    let _ = writeln!(
+        page.out,
+        "<p class=\"sub\">measure {} · {} sites planned · made by pondus {}</p>",
+        esc(report.measure),
+        report.k,
+        esc(&prov.version)
+    );
+    page.raw("</header>\n");
+    page.h2("question", "The question");
+    page.p(&format!(
+        "If the moderator ({}) changes the effect by {} per unit on the analysis scale, with a \
+         residual between-site variance τ² = {}, how likely is the moderator test ({}) at α = {} \
+         to detect it with {} sites?",
+        report.moderator,
+        num(report.moderator_effect),
+        num(report.tau2),
+        test_words(report.test),
+        report.alpha,
+        report.k
+    ));
+    let mut answer = format!(
+        "Power with {} sites: {} ({}).",
+        report.k,
+        format_percent(report.power),
+        report.power_method
+    );
+    if let Some(tp) = report.target_power {
+        match report.k_needed {
+            Some(k) => answer.push_str(&format!(
+                " The target power {} needs about {k} sites.",
+                format_percent(tp)
+            )),
+            None if report.n_needed.is_none() => answer.push_str(&format!(
+                " The target power {} is not reached with up to {} sites.",
+                format_percent(tp),
+                report.max_k
+            )),
+            None => {}
+        }
+        if let Some(n) = report.n_needed {
+            answer.push_str(&format!(
+                " At {} sites, about {} participants per site are needed.",
+                report.k,
+                n.ceil()
+            ));
+        }
+        if let Some(s) = &report.k_needed_simulated {
+            answer.push_str(&format!(
+                " Confirmed by simulation: {} sites.",
+                s.k.map(|k| k.to_string())
+                    .unwrap_or_else(|| "not within the simulated range".into())
+            ));
+        }
+    }
+    let _ = writeln!(
+        page.out,
+        "<div class=\"answer\" role=\"note\">{}</div>",
+        esc(&answer)
+    );
+    if !report.cautions.is_empty() {
+        page.raw("<section class=\"care\" aria-labelledby=\"care\">\n");
+        let _ = writeln!(page.out, "<h2 id=\"care\">Read with care</h2>");
+        page.list(&report.cautions);
+        page.raw("</section>\n");
+    }
+    page.h2("assumptions", "Assumptions");
+    let mut facts = vec![
+        ("Measure", report.measure.to_string()),
+        ("Sites", report.k.to_string()),
+        ("Within-site sampling variance", num(report.within_variance)),
+        ("Between-site variance τ²", num(report.tau2)),
+        ("Moderator", report.moderator.clone()),
+        ("Moderator coefficient", num(report.moderator_effect)),
+        ("Significance level", report.alpha.to_string()),
+        ("Test", test_words(report.test).to_string()),
+        ("SE of the moderator coefficient", num(report.se)),
+        ("Noncentrality λ", num(report.noncentrality)),
+    ];
+    if let Some(n) = report.n {
+        facts.insert(2, ("Participants per site", num(n)));
+    }
+    if let Some(p) = report.power_analytic {
+        facts.push((
+            "Analytic power",
+            format!("{} ({})", format_percent(p), report.power_analytic_method),
+        ));
+    }
+    if let Some(s) = &report.simulation {
+        facts.push((
+            "Simulated power",
+            format!(
+                "{} ± {} (Monte-Carlo SE), {} simulations, seed {}",
+                format_percent(s.power),
+                format_percent(s.monte_carlo_se),
+                s.simulations,
+                s.seed
+            ),
+        ));
+    }
+    page.facts(&facts);
+    page.h2("table", "Power by number of sites");
+    let rows: Vec<Vec<String>> = report
+        .table
+        .iter()
+        .map(|r| vec![r.k.to_string(), format_percent(r.power)])
+        .collect();
+    page.table(&report.table_method, &["sites", "power"], &rows);
+    if let Some(f) = figure {
+        page.h2("plots", "Power curve");
+        page.figure("fig-power-0", f);
+    }
+    if !report.notes.is_empty() {
+        page.h2("notes", "Notes");
+        page.list(&report.notes);
+    }
+    reproduce(&mut page, prov);
+    page.finish(prov)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sha256_matches_the_fips_180_example() {
+        // FIPS 180-2, appendix B.1: SHA-256("abc").
+        assert_eq!(
+            crate::analysis::sha256_hex(b"abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+    }
+
+    #[test]
+    fn escaping_covers_markup_and_quotes() {
+        assert_eq!(
+            esc("<script>alert(\"x\")</script> & 'y'"),
+            "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; &#39;y&#39;"
+        );
+        assert_eq!(esc("Ødegård"), "Ødegård");
+    }
+
+    #[test]
+    fn numbers_are_right_aligned_and_words_are_not() {
+        assert!(numeric_looking("0.2311"));
+        assert!(numeric_looking("-1.5000"));
+        assert!(numeric_looking("[0.1, 0.2]"));
+        assert!(numeric_looking("< 0.0001"));
+        assert!(numeric_looking("59.3%"));
+        assert!(!numeric_looking("mode=online"));
+        assert!(!numeric_looking("Lab 12"));
+        assert!(!numeric_looking(""));
+    }
+
+    #[test]
+    fn svg_gets_role_title_and_description() {
+        let f = PageFigure {
+            kind: "forest",
+            title: "A <b>".into(),
+            description: "d & e".into(),
+            svg: "<svg width=\"10\" height=\"10\"><rect/></svg>".into(),
+        };
+        let s = labelled_svg(&f, "fig");
+        assert!(s.starts_with(
+            "<svg width=\"10\" height=\"10\" role=\"img\" aria-labelledby=\"fig-title fig-desc\"><title id=\"fig-title\">A &lt;b&gt;</title><desc id=\"fig-desc\">d &amp; e</desc><rect/>"
+        ));
+    }
+}

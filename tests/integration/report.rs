@@ -1,0 +1,280 @@
+//! The HTML report (`--report`): built for every data example, checked for
+//! self-containment (no web addresses, no scripts), escaping of data, the
+//! sections a reader needs, and accessible markup. The rendering in a real
+//! browser is checked in `browser.rs`.
+
+use crate::util::repo;
+use assert_cmd::Command;
+use std::path::{Path, PathBuf};
+
+/// Every data example with the options its README line describes.
+pub const EXAMPLES: &[(&str, &str)] = &[
+    (
+        "consortium-correlations.csv",
+        "--measure r --moderator session_minutes --moderator mode",
+    ),
+    (
+        "programme-sites.csv",
+        "--measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=40,delivery=staff",
+    ),
+    ("published-slopes.csv", "--measure slope --moderator mean_age"),
+    (
+        "trial-events.csv",
+        "--measure log-or --moderator followup_months --moderator setting",
+    ),
+    ("precomputed-effects.csv", "--measure effect --moderator duration_weeks"),
+    ("partial-correlations.csv", "--measure partial-r --moderator remote_share"),
+];
+
+/// Runs `pondus fit FILE ARGS --report DIR/report.html -q` and returns the page.
+pub fn fit_report(file: &Path, args: &str, dir: &Path) -> (PathBuf, String) {
+    let out = dir.join("report.html");
+    let o = Command::cargo_bin("pondus")
+        .expect("the pondus binary is built")
+        .arg("fit")
+        .arg(file)
+        .args(args.split_whitespace())
+        .arg("--report")
+        .arg(&out)
+        .arg("-q")
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "pondus fit {} {args} --report failed: {}",
+        file.display(),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let page = std::fs::read_to_string(&out).expect("the report is written");
+    (out, page)
+}
+
+/// Runs `pondus plan ARGS --report DIR/plan.html -q` and returns the page.
+pub fn plan_report(args: &str, dir: &Path) -> (PathBuf, String) {
+    let out = dir.join("plan.html");
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .arg("plan")
+        .args(args.split_whitespace())
+        .arg("--report")
+        .arg(&out)
+        .arg("-q")
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "pondus plan {args} --report failed: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    (out.clone(), std::fs::read_to_string(&out).unwrap())
+}
+
+/// The planning run the report tests use (a quick z-test plan).
+pub const PLAN_ARGS: &str =
+    "--measure r --k 20 --n 80 --tau2 0.01 --moderator-effect 0.1 --moderator-sd 1 --target-power 0.8 --simulate 200 --seed 7";
+
+fn example(name: &str) -> PathBuf {
+    repo(&format!("data-examples/{name}"))
+}
+
+/// Asserts the page names no web address in any form a browser would fetch
+/// or follow, and carries no script.
+fn assert_self_contained(what: &str, page: &str) {
+    assert!(
+        !page.contains("http://") && !page.contains("https://"),
+        "{what}: the report contains a web address"
+    );
+    let lower = page.to_ascii_lowercase();
+    assert!(
+        !lower.contains("<script"),
+        "{what}: the report has a script"
+    );
+    assert!(
+        !lower.contains("<link"),
+        "{what}: the report links a resource"
+    );
+    assert!(
+        !lower.contains("<iframe"),
+        "{what}: the report embeds a frame"
+    );
+    for attr in [" src=\"", " href=\"//", "url(//", "@import"] {
+        assert!(!lower.contains(attr), "{what}: the report has `{attr}`");
+    }
+    // Every url(...) in the style sheet is a data URL (the font).
+    for (i, _) in lower.match_indices("url(") {
+        assert!(
+            lower[i..].starts_with("url(data:"),
+            "{what}: a url() that is not a data URL at byte {i}"
+        );
+    }
+    // Internal links only.
+    for (i, _) in lower.match_indices("href=\"") {
+        assert!(
+            lower[i + 6..].starts_with('#'),
+            "{what}: a link that leaves the page at byte {i}"
+        );
+    }
+}
+
+#[test]
+fn every_example_report_is_self_contained_and_has_every_section() {
+    let dir = tempfile::tempdir().unwrap();
+    for (name, args) in EXAMPLES {
+        let (_, page) = fit_report(&example(name), args, dir.path());
+        assert_self_contained(name, &page);
+        assert!(page.starts_with("<!DOCTYPE html>"), "{name}");
+        assert!(page.contains("Content-Security-Policy"), "{name}");
+        for id in [
+            "question",
+            "care",
+            "data",
+            "pooled",
+            "moderators",
+            "plots",
+            "studies",
+            "reproduce",
+        ] {
+            assert!(
+                page.contains(&format!("id=\"{id}\"")),
+                "{name}: no section {id}"
+            );
+        }
+        // Three pictures (each model has a moderator), each an accessible SVG.
+        assert_eq!(page.matches("<figure class=\"plot\"").count(), 3, "{name}");
+        assert_eq!(page.matches("<svg ").count(), 3, "{name}");
+        assert_eq!(
+            page.matches("role=\"img\" aria-labelledby=").count(),
+            3,
+            "{name}"
+        );
+        assert_eq!(page.matches("<title id=\"fig-").count(), 3, "{name}");
+        // Tables have header cells with scope.
+        assert!(page.contains("<th scope=\"col\">"), "{name}");
+        // Reproducibility: the command, the version and the input's SHA-256.
+        let bytes = std::fs::read(example(name)).unwrap();
+        assert!(
+            page.contains(&pondus::analysis::sha256_hex(&bytes)),
+            "{name}: no input SHA-256"
+        );
+        assert!(page.contains(&format!("pondus {}", env!("CARGO_PKG_VERSION"))));
+        assert!(page.contains(&format!("pondus fit {}", example(name).display())));
+        // The cautions are on the page.
+        assert!(page.contains("observational"), "{name}: no caution");
+    }
+}
+
+#[test]
+fn excluded_rows_appear_with_their_reason() {
+    // programme-sites.csv: Site 11 has no dosage (data-examples/README.md).
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = fit_report(
+        &example("programme-sites.csv"),
+        "--measure smd --moderator dosage_hours --moderator delivery",
+        dir.path(),
+    );
+    assert!(page.contains("Rows left out of the model, with the reason"));
+    assert!(page.contains("missing moderator dosage_hours"));
+}
+
+#[test]
+fn labels_and_headers_are_escaped_as_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("hostile.csv");
+    std::fs::write(
+        &csv,
+        "study,effect,variance,<b>dose</b>\n\
+         \"<script>alert('x')</script>\",0.1,0.01,1\n\
+         \"<img src=x onerror=alert(1)>\",0.3,0.02,2\n\
+         \"A & B \"\"quoted\"\"\",0.2,0.015,3\n\
+         plain,0.25,0.01,4\n",
+    )
+    .unwrap();
+    let (_, page) = fit_report(&csv, "--moderator <b>dose</b> --inference z", dir.path());
+    assert_self_contained("hostile", &page);
+    assert!(page.contains("&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt;"));
+    assert!(page.contains("&lt;img src=x onerror=alert(1)&gt;"));
+    assert!(page.contains("A &amp; B &quot;quoted&quot;"));
+    assert!(page.contains("&lt;b&gt;dose&lt;/b&gt;"));
+    assert!(!page.contains("<b>dose</b>"));
+    assert!(!page.contains("<img"));
+}
+
+#[test]
+fn report_without_moderators_has_no_bubble_plot_and_says_why() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = fit_report(
+        &example("consortium-correlations.csv"),
+        "--measure r",
+        dir.path(),
+    );
+    assert_eq!(page.matches("<figure class=\"plot\"").count(), 2);
+    assert!(page.contains("No bubble plot"));
+    assert!(page.contains("This model has no moderators"));
+}
+
+#[test]
+fn plan_report_is_self_contained_with_table_curve_and_seed() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = plan_report(PLAN_ARGS, dir.path());
+    assert_self_contained("plan", &page);
+    assert!(page.contains("id=\"table\""));
+    assert_eq!(page.matches("<figure class=\"plot\"").count(), 1);
+    assert!(page.contains("Random seed"));
+    assert!(page.contains("<dd>7</dd>"));
+}
+
+#[test]
+fn report_needs_an_html_name_and_never_overwrites_the_input() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .args(["fit"])
+        .arg(example("published-slopes.csv"))
+        .args(["--measure", "slope", "--report"])
+        .arg(dir.path().join("out.txt"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("--report") && err.contains(".html"), "{err}");
+
+    let csv = dir.path().join("data.html");
+    std::fs::copy(example("published-slopes.csv"), &csv).unwrap();
+    let before = std::fs::read(&csv).unwrap();
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .arg("fit")
+        .arg(&csv)
+        .args(["--measure", "slope", "--report"])
+        .arg(&csv)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(
+        std::fs::read(&csv).unwrap(),
+        before,
+        "the input was changed"
+    );
+}
+
+#[test]
+fn report_to_standard_output_replaces_the_terminal_text() {
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .arg("fit")
+        .arg(example("published-slopes.csv"))
+        .args([
+            "--measure",
+            "slope",
+            "--moderator",
+            "mean_age",
+            "--report",
+            "-",
+        ])
+        .output()
+        .unwrap();
+    assert!(o.status.success());
+    let out = String::from_utf8(o.stdout).unwrap();
+    assert!(out.starts_with("<!DOCTYPE html>"));
+    assert!(out.trim_end().ends_with("</html>"));
+}
