@@ -807,7 +807,7 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
         ("Noncentrality λ", num(report.noncentrality)),
     ];
     if let Some(n) = report.n {
-        facts.insert(2, ("Participants per site", num(n)));
+        facts.insert(2, ("Participants per site", value_text(n)));
     }
     if let Some(p) = report.power_analytic {
         facts.push((
@@ -834,7 +834,8 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
         .iter()
         .map(|r| vec![r.k.to_string(), format_percent(r.power)])
         .collect();
-    page.table(&report.table_method, &["sites", "power"], &rows);
+    page.p(&format!("Power from the {}.", report.table_method));
+    page.table("", &["sites", "power"], &rows);
     if let Some(f) = figure {
         page.h2("plots", "Power curve");
         page.figure("fig-power-0", f);
