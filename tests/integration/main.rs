@@ -2,6 +2,7 @@
 
 mod browser;
 mod cli;
+mod determinism;
 mod plan;
 mod plots;
 mod properties;
