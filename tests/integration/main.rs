@@ -1,6 +1,7 @@
 //! The integration test binary: reference checks, CLI tests, property tests.
 
 mod cli;
+mod interpret;
 mod plan;
 mod plots;
 mod properties;
