@@ -654,3 +654,39 @@ fn attenuation_only_is_the_linear_correction() {
         0.0,
     );
 }
+
+#[test]
+fn bubble_plot_tints_the_region_only_with_regions() {
+    // The caption states the region, and the SVG has the bound's label.
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("b.svg");
+    let run = |extra: &str| {
+        let out = Command::cargo_bin("pondus")
+            .unwrap()
+            .arg("fit")
+            .arg(example("consortium-correlations.csv"))
+            .args(
+                format!(
+                    "--measure r --moderator session_minutes --moderator mode -q {extra} --bubble"
+                )
+                .split_whitespace(),
+            )
+            .arg(&svg)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        std::fs::read_to_string(&svg).unwrap()
+    };
+    let with = run("--regions");
+    assert!(
+        with.contains("Johnson–Neyman region: 15.06 to 60"),
+        "caption missing"
+    );
+    assert!(with.contains(">\n15.06\n</text>"), "bound label missing");
+    let without = run("");
+    assert!(!without.contains("Johnson–Neyman"));
+}
