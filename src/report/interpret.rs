@@ -74,11 +74,10 @@ pub fn render(r: &FitReport) -> String {
         );
         let _ = writeln!(
             o,
-            "  {}{}{}{}",
+            "  {}{}{}SE factor",
             pad("study", 28),
             pad("observed r", 12),
-            pad("corrected r", 13),
-            "SE factor"
+            pad("corrected r", 13)
         );
         for s in a.studies.iter().take(super::text::MAX_LISTED_STUDIES) {
             let label: String = s.study.chars().take(26).collect();
