@@ -512,6 +512,18 @@ fn check_finite(r: &FitReport) -> Result<()> {
         check("prediction".into(), p.estimate);
         check("prediction SE".into(), p.se);
     }
+    for e in &r.interpretation.conditional_effects {
+        check(format!("conditional effect at {}", e.moderator), e.estimate);
+        check(format!("conditional effect SE at {}", e.moderator), e.se);
+    }
+    for s in &r.interpretation.simple_slopes {
+        check(format!("simple slope of {}", s.of), s.test.se);
+    }
+    for g in &r.interpretation.regions_of_significance {
+        for b in &g.bounds {
+            check(format!("Johnson–Neyman bound along {}", g.moderator), *b);
+        }
+    }
     if bad.is_empty() {
         Ok(())
     } else {

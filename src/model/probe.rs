@@ -768,7 +768,7 @@ fn region(
             .collect();
         parts.join(" and ")
     };
-    let rest = if observed_region == "everywhere" {
+    let rest = if observed_region == "everywhere" || observed_region == "nowhere" {
         ""
     } else {
         " Elsewhere in that range the data cannot tell it from 0."

@@ -208,22 +208,25 @@ pub fn render(r: &FitReport) -> String {
         let _ = writeln!(o, "Regions of significance (Johnson–Neyman)");
         for g in &it.regions_of_significance {
             let bounds = if g.bounds.is_empty() {
-                "no bound".to_string()
+                "no bounds".to_string()
             } else {
-                g.bounds
-                    .iter()
-                    .map(|b| num(*b))
-                    .collect::<Vec<_>>()
-                    .join(" and ")
+                format!(
+                    "bounds {}",
+                    g.bounds
+                        .iter()
+                        .map(|b| num(*b))
+                        .collect::<Vec<_>>()
+                        .join(" and ")
+                )
             };
             let _ = writeln!(
                 o,
-                "  {} along {}: bounds {bounds} (significant {}); in the observed range {} to {}: {}{}",
+                "  {} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
                 g.quantity,
                 g.moderator,
                 g.significant,
-                num(g.observed_min),
-                num(g.observed_max),
+                crate::model::probe::short(g.observed_min),
+                crate::model::probe::short(g.observed_max),
                 g.observed_region,
                 if g.observed_bounds.is_empty() {
                     String::new()
