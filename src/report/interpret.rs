@@ -222,7 +222,13 @@ pub fn render(r: &FitReport) -> String {
             let _ = writeln!(
                 o,
                 "  {} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
-                g.quantity,
+                if g.quantity == "effect" {
+                    "mean effect".to_string()
+                } else if g.quantity.contains(':') {
+                    format!("difference {}", g.quantity)
+                } else {
+                    format!("slope of {}", g.quantity)
+                },
                 g.moderator,
                 g.significant,
                 crate::model::probe::short(g.observed_min),

@@ -690,3 +690,50 @@ fn bubble_plot_tints_the_region_only_with_regions() {
     let without = run("");
     assert!(!without.contains("Johnson–Neyman"));
 }
+
+#[test]
+fn numeric_by_numeric_slopes_match_the_reference_and_do_not_depend_on_centring() {
+    // Reference: statsmodels t_test of [0, 1, 0, n] (slope of session at n)
+    // and numpy.roots for the JN bounds of that slope along n. Centring both
+    // moderators reparametrises the model; the slopes at given original-scale
+    // values must not change.
+    let fx = fixture();
+    for inference in ["kh", "z"] {
+        let want = &fx["consortium"][inference]["numeric_interaction"];
+        for center in ["", "--center n --center session_minutes"] {
+            let j = json(
+                example("consortium-correlations.csv"),
+                &format!(
+                    "--measure r --moderator session_minutes --moderator n --interaction \
+                     session_minutes,n --inference {inference} --probe n=100,300 --regions {center}"
+                ),
+            );
+            same("τ²", &j["tau2"]["estimate"], &want["tau2"]);
+            let slopes = j["simple_slopes"].as_array().unwrap();
+            assert_eq!(slopes.len(), 2);
+            for (g, w) in slopes
+                .iter()
+                .zip(want["slopes_session_at_n"].as_array().unwrap())
+            {
+                assert_eq!(g["of"], "session_minutes");
+                same("at", &g["at"], &w["at"]);
+                for k in CONTRAST_KEYS {
+                    // Centring changes the rounding path: compare at IDENTITY_REL.
+                    close(k, f(&g["test"][k]), f(&w[k]), IDENTITY_REL, REFERENCE_ABS);
+                }
+            }
+            let r = region(&j, "n", "session_minutes");
+            assert_eq!(
+                r["significant"],
+                want["jn_slope_session_along_n"]["significant"]
+            );
+            for (a, b) in r["bounds"].as_array().unwrap().iter().zip(
+                want["jn_slope_session_along_n"]["bounds"]
+                    .as_array()
+                    .unwrap(),
+            ) {
+                close("JN bound", f(a), f(b), IDENTITY_REL, REFERENCE_ABS);
+            }
+        }
+    }
+}

@@ -150,6 +150,15 @@ def consortium():
             "jn_effect_session": jn(fi, [1, 0, 0, 0], [0, 1, 0, 0]),
             "jn_diff_online_session": jn(fi, [0, 0, 1, 0], [0, 0, 0, 1]),
         }
+        # numeric x numeric: session x n (n is the sample size column, used
+        # here only as a second numeric study characteristic)
+        Xn = np.column_stack([np.ones_like(s), s, n, s * n])
+        fn = fit(y, v, Xn, inference)
+        case["numeric_interaction"] = {
+            "tau2": fn["tau2"],
+            "slopes_session_at_n": [dict(at=m, **contrast(fn, [0, 1, 0, m])) for m in (100.0, 300.0)],
+            "jn_slope_session_along_n": jn(fn, [0, 1, 0, 0], [0, 0, 0, 1]),
+        }
         out[inference] = case
     return out
 
