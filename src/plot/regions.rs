@@ -39,8 +39,13 @@ pub(crate) fn caption(report: &FitReport, name: &str, level_pct: &str) -> Option
     } else {
         format!(
             "Tinted: values of {name} where the {level_pct} CI of the mean effect excludes 0 \
-             (Johnson–Neyman region: {}); dotted lines mark the bounds.",
-            spans.join(" and ")
+             (Johnson–Neyman region: {}){}.",
+            spans.join(" and "),
+            if r.observed_bounds.is_empty() {
+                ", the whole observed range"
+            } else {
+                "; dotted lines mark the bounds"
+            }
         )
     })
 }
