@@ -627,13 +627,10 @@ pub fn interpret(
         let level = fit.options.level;
         for &m in &numeric {
             let (values, held_words) = held(design, &[m]);
-            let at = |x: f64, f: Option<(usize, usize)>| -> Result<Vec<f64>> {
+            let effect_at = |x: f64| -> Result<Vec<f64>> {
                 let mut v = values.clone();
                 v[m] = Value::Number(x);
-                match f {
-                    None => row(design, &v),
-                    Some((f, which)) => Ok(partner_contrasts(design, f, &v)?.swap_remove(which).1),
-                }
+                row(design, &v)
             };
             out.regions_of_significance.push(region(
                 design,
@@ -642,7 +639,7 @@ pub fn interpret(
                 "effect".into(),
                 held_words,
                 level,
-                |x| at(x, None),
+                effect_at,
             )?);
             for &(a, b) in &design.interactions {
                 let f = match (a == m, b == m) {
