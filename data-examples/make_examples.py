@@ -82,6 +82,17 @@ PARAMS = {
         "remote_share": 0.25,        # per unit (0..1) share of remote workers
         "tau2": 0.005,
     },
+    "hiring-validity.csv": {
+        "scale": "correlation r (true-score validity in the applicant pool)",
+        "model": "rho_i = rho + N(0, tau^2); attenuated by sqrt(rxx_a) (x unreliable in the "
+                 "applicant pool), restricted by u (inverse Thorndike Case II), attenuated by "
+                 "sqrt(ryy) (y unreliable among the hired); r = that + N(0, (1-r^2)^2/(n-1)); "
+                 "rxx in the file is the reliability among the hired, 1-(1-rxx_a)/u^2; "
+                 "u = 0.35 + 0.6*selectivity + N(0, 0.04^2), clipped to [0.3, 0.98]",
+        "rho": 0.45,
+        "tau": 0.05,
+        "selectivity_true_effect": 0.0,  # selectivity does not change rho
+    },
 }
 
 
@@ -369,6 +380,51 @@ def make_partial():
               ["study", "t", "n", "covariates", "remote_share"], rows)
 
 
+# ------------------------------------------------ 7. hiring validity
+# Invented scenario: 18 fictional regional offices of an invented logistics
+# firm, "Brightwater Freight", score job applicants on a work-sample
+# exercise; after six months supervisors rate the performance of those
+# hired.  r is the exercise-rating correlation among the hired.  Offices
+# differ in how selective they are (hired_share = share of applicants
+# hired), so the hired group's spread of exercise scores (range_ratio =
+# SD among the hired / SD among all applicants) differs too.  The true-score
+# validity in the applicant pool does not depend on selectivity: any
+# moderation by selectivity in the observed r is an artifact of range
+# restriction.
+
+HIRING_OFFICES = [
+    "Office Valdenor", "Office Marrowick", "Office Kestel Bay", "Office Pellinore",
+    "Office Ashcombe", "Office Løvstrand", "Office Quillon", "Office Brennet",
+    "Office Saint-Évrard", "Office Dunmarrow", "Office Tovey", "Office Osterfjell",
+    "Office Grünwick", "Office Harlow Fen", "Office Zabłocie", "Office Carrickmoor",
+    "Office Nørrebrink", "Office Łąkowa",
+]
+
+
+def make_hiring():
+    p = PARAMS["hiring-validity.csv"]
+    rng = rng_for(7)
+    rows = []
+    for office in HIRING_OFFICES:
+        n = rng.randint(45, 320)
+        selectivity = rng.uniform(0.1, 0.9)
+        u = min(0.98, max(0.3, 0.35 + 0.6 * selectivity + rng.gauss(0.0, 0.04)))
+        rxx_a = rng.uniform(0.80, 0.92)
+        ryy = rng.uniform(0.50, 0.75)
+        rho = p["rho"] + rng.gauss(0.0, p["tau"])
+        r_pool = rho * math.sqrt(rxx_a)
+        r_hired = u * r_pool / math.sqrt((u * u - 1.0) * r_pool * r_pool + 1.0)
+        r_true = r_hired * math.sqrt(ryy)
+        r = r_true + rng.gauss(0.0, (1.0 - r_true ** 2) / math.sqrt(n - 1))
+        rxx = 1.0 - (1.0 - rxx_a) / (u * u)
+        assert abs(r) < 1 and 0 < rxx < 1
+        rows.append([office, fmt(r, 3), str(n), fmt(rxx, 2), fmt(ryy, 2),
+                     fmt(u, 2), fmt(selectivity, 2)])
+    write_csv("hiring-validity.csv",
+              ["study", "r", "n", "rel_exercise", "rel_rating", "range_ratio",
+               "hired_share"], rows)
+
+
 def main():
     make_consortium()
     make_programme()
@@ -376,6 +432,7 @@ def main():
     make_trials()
     make_precomputed()
     make_partial()
+    make_hiring()
 
 
 if __name__ == "__main__":

@@ -1,10 +1,12 @@
 //! From a table and settings to a [`FitReport`]: the `pondus fit` job.
 
+use crate::effect::artifact;
 use crate::effect::{self, ColumnMap, Measure, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
 use crate::input::{self, ColumnRequest, Table};
 use crate::model::design::{self, ModeratorKind, ModeratorSpec, RawModerator, Value};
 use crate::model::inference::{self, PredictionInference};
+use crate::model::probe;
 use crate::model::tau2::Tau2Method;
 use crate::model::{self, FitOptions, Inference, ModelFit};
 use crate::result::*;
@@ -27,6 +29,9 @@ pub struct FitSettings {
     pub options: FitOptions,
     /// Prediction points: (moderator name, value text) lists.
     pub predictions: Vec<Vec<(String, String)>>,
+    /// Conditional effects, level contrasts, regions of significance and
+    /// artifact corrections (see [`crate::model::probe`], [`crate::effect::artifact`]).
+    pub interpret: probe::InterpretSettings,
 }
 
 /// Minimum studies per moderator term below which the output cautions
@@ -57,8 +62,19 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             hint: "Check the spelling of --moderator; headers are matched exactly, or ignoring case when unique.".into(),
         });
     }
+    let first_art = requests.len();
+    let artifacts = &settings.interpret.artifacts;
+    requests.extend(artifact::requests(artifacts, measure)?);
     let mut table = input::parse_table(source, bytes, &requests)?;
-    let effects = effect::compute(measure, &settings.columns, &table, first_measure)?;
+    let mut effects = effect::compute(measure, &settings.columns, &table, first_measure)?;
+    let corrections = artifact::apply(
+        artifacts,
+        &table,
+        first_measure,
+        first_measure + 1,
+        first_art,
+        &mut effects,
+    )?;
     let mut labels = labels(&table);
 
     // Moderators: type detection over all rows.
@@ -178,7 +194,11 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     };
     let base = null_fit.as_ref().unwrap_or(&fit);
 
-    let scale = measure.reading_scale();
+    let scale = if artifacts.any() {
+        ReadingScale::Same
+    } else {
+        measure.reading_scale()
+    };
     let level = settings.options.level;
     let coefs = inference::coefficients(&fit);
     let coefficients: Vec<Coefficient> = design
@@ -247,6 +267,17 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         scale,
     )?;
     let curves = curves(&design, &fit)?;
+    let interpretation = probe::interpret(
+        &design,
+        &fit,
+        &settings.interpret,
+        scale,
+        probe::Baseline {
+            pooled: average.clone(),
+            tau2_without: heterogeneity.tau2_without_moderators,
+            r2: heterogeneity.r2,
+        },
+    )?;
 
     design.x = Vec::new();
     let duplicate_warnings = duplicate_label_warnings(&included, &labels);
@@ -334,7 +365,28 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             ));
         }
     }
-    let cautions = cautions(k, design.p, settings.options.inference);
+    let mut cautions = cautions(k, design.p, settings.options.inference);
+    let artifact_report = artifact_report(artifacts, &corrections, &included, &studies);
+    if artifact_report.is_some() {
+        artifact_cautions(
+            artifacts,
+            &settings.moderators,
+            &mut cautions,
+            &mut warnings,
+            &studies,
+        );
+    }
+    if !interpretation.conditional_effects.is_empty()
+        || !interpretation.regions_of_significance.is_empty()
+    {
+        cautions.push(
+            "Conditional effects and regions of significance read the fitted line at chosen \
+             values: they are as observational as the moderator test itself, each value or \
+             region is a further test (not adjusted for multiplicity), and values outside the \
+             studies' range are extrapolations."
+                .into(),
+        );
+    }
 
     let report = FitReport {
         tool: ToolInfo {
@@ -402,7 +454,21 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         warnings,
         cautions,
         notes,
+        interpretation,
+        artifacts: artifact_report,
     };
+    let mut report = report;
+    if report.artifacts.is_some() {
+        report.measure = MeasureInfo {
+            id: "r-corrected".into(),
+            description: "Pearson correlations corrected for artifacts (Hunter–Schmidt), \
+                          analysed on the r scale"
+                .into(),
+            reading_scale: ReadingScale::Same,
+            reading_name: None,
+            null_value: 0.0,
+        };
+    }
     check_finite(&report)?;
     Ok(report)
 }
@@ -446,6 +512,18 @@ fn check_finite(r: &FitReport) -> Result<()> {
     for p in &r.predictions {
         check("prediction".into(), p.estimate);
         check("prediction SE".into(), p.se);
+    }
+    for e in &r.interpretation.conditional_effects {
+        check(format!("conditional effect at {}", e.moderator), e.estimate);
+        check(format!("conditional effect SE at {}", e.moderator), e.se);
+    }
+    for s in &r.interpretation.simple_slopes {
+        check(format!("simple slope of {}", s.of), s.test.se);
+    }
+    for g in &r.interpretation.regions_of_significance {
+        for b in &g.bounds {
+            check(format!("Johnson–Neyman bound along {}", g.moderator), *b);
+        }
     }
     if bad.is_empty() {
         Ok(())
@@ -944,4 +1022,80 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         out.push_str(&format!("{b:02x}"));
     }
     out
+}
+
+/// The per-study record of the artifact corrections (None without any).
+fn artifact_report(
+    settings: &artifact::ArtifactSettings,
+    corrections: &[Option<artifact::Corrected>],
+    included: &[usize],
+    studies: &[Study],
+) -> Option<ArtifactReport> {
+    if !settings.any() {
+        return None;
+    }
+    let (applied, method) = artifact::describe(settings);
+    let mut rows = Vec::with_capacity(included.len());
+    for (pos, &i) in included.iter().enumerate() {
+        let c = corrections[i]?;
+        rows.push(ArtifactStudy {
+            study: studies[pos].study.clone(),
+            observed_r: c.r_obs,
+            corrected_r: c.r,
+            observed_variance: c.v_obs,
+            corrected_variance: c.v,
+            se_factor: c.factor,
+        });
+    }
+    let k = rows.len().max(1) as f64;
+    Some(ArtifactReport {
+        corrections: applied,
+        method,
+        mean_observed_r: rows.iter().map(|r| r.observed_r).sum::<f64>() / k,
+        mean_corrected_r: rows.iter().map(|r| r.corrected_r).sum::<f64>() / k,
+        studies: rows,
+    })
+}
+
+/// Cautions and warnings that come with artifact corrections.
+fn artifact_cautions(
+    settings: &artifact::ArtifactSettings,
+    moderators: &[ModeratorSpec],
+    cautions: &mut Vec<String>,
+    warnings: &mut Vec<String>,
+    studies: &[Study],
+) {
+    let over: Vec<String> = studies
+        .iter()
+        .filter(|s| s.effect.abs() > 1.0)
+        .map(|s| s.study.clone())
+        .collect();
+    if !over.is_empty() {
+        warnings.push(format!(
+            "{} corrected correlation{} above 1 in absolute value ({}): sampling error in r or in \
+             the artifact values; they are kept uncapped, as capping would bias the mean.",
+            over.len(),
+            if over.len() == 1 { " is" } else { "s are" },
+            list(&over, 5)
+        ));
+    }
+    if let Some(col) = &settings.range_ratio {
+        let checked = moderators.iter().any(|m| &m.name == col);
+        cautions.push(format!(
+            "Range restriction differs between studies: a moderator that goes together with it (for \
+             example how selective a site is) can show an artifactual moderation, and an imperfect \
+             correction leaves part of it in the corrected r. {}",
+            if checked {
+                format!("The range ratio '{col}' is itself a moderator here: its coefficient is the check.")
+            } else {
+                format!("As a check, fit with --moderator {col} (the range ratio itself) and see whether it predicts the corrected effects.")
+            }
+        ));
+    }
+    cautions.push(
+        "Corrected correlations estimate the relation between true scores in the unrestricted \
+         population; they rest on the supplied reliabilities and range ratios, whose own errors are \
+         not in the intervals."
+            .into(),
+    );
 }

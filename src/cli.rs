@@ -29,6 +29,8 @@ pub struct Cli {
 }
 
 /// The subcommands.
+// Parsed once per run: the size of the larger variant does not matter.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Pool per-study effects and test whether study characteristics (moderators) change them.
@@ -195,6 +197,24 @@ pub struct FitArgs {
     /// Write one self-contained HTML page (tables, plots, cautions, how to reproduce) into this .html file ('-' for standard output).
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+    /// Read the model at values of a moderator: `--probe dose=10,20`; alone, a numeric moderator's mean and mean ± 1 SD, a categorical one's every level (repeatable).
+    #[arg(long, value_name = "NAME[=V,...]")]
+    pub probe: Vec<String>,
+    /// Pairwise differences between the levels of the probed (else every) categorical moderator, with tests.
+    #[arg(long)]
+    pub compare_levels: bool,
+    /// Johnson–Neyman regions of significance along every numeric moderator (and for simple slopes).
+    #[arg(long)]
+    pub regions: bool,
+    /// Correct each r for the unreliability of x, with its reliability from this column (--measure r).
+    #[arg(long, value_name = "COL")]
+    pub reliability_x: Option<String>,
+    /// Correct each r for the unreliability of y, with its reliability from this column (--measure r).
+    #[arg(long, value_name = "COL")]
+    pub reliability_y: Option<String>,
+    /// Correct each r for direct range restriction on x (Thorndike Case II); u = restricted SD / unrestricted SD from this column (--measure r).
+    #[arg(long, value_name = "COL")]
+    pub range_ratio: Option<String>,
 }
 
 /// A plot kind.
@@ -499,6 +519,7 @@ impl FitArgs {
                     level: self.level,
                 },
                 predictions,
+                interpret: self.interpret_settings()?,
             },
             json,
             table,
@@ -518,6 +539,63 @@ impl FitArgs {
             text: !self.quiet && !to_stdout,
             report,
             invocation: invocation(),
+        })
+    }
+}
+
+impl FitArgs {
+    /// The checked `--probe`, `--compare-levels`, `--regions` and artifact settings.
+    fn interpret_settings(&self) -> Result<crate::model::probe::InterpretSettings> {
+        use crate::model::probe::{InterpretSettings, ProbeSpec};
+        let mut probes = Vec::new();
+        for p in &self.probe {
+            let (name, values) = match p.split_once('=') {
+                None => (p.trim(), None),
+                Some((n, v)) => {
+                    let vals: Vec<String> = v.split(',').map(|x| x.trim().to_string()).collect();
+                    if n.trim().is_empty() || vals.iter().any(|x| x.is_empty()) {
+                        return Err(Error::usage(
+                            "--probe",
+                            format!("'{p}' is not of the form NAME or NAME=V1,V2,..."),
+                        ));
+                    }
+                    (n.trim(), Some(vals))
+                }
+            };
+            if name.is_empty() {
+                return Err(Error::usage(
+                    "--probe",
+                    "give a moderator name, e.g. --probe dose",
+                ));
+            }
+            if !self.moderators.iter().any(|m| m == name) {
+                return Err(Error::usage(
+                    "--probe",
+                    format!("'{name}' is not a moderator; add --moderator {name} first"),
+                ));
+            }
+            probes.push(ProbeSpec {
+                name: name.to_string(),
+                values,
+            });
+        }
+        let artifacts = crate::effect::artifact::ArtifactSettings {
+            reliability_x: self.reliability_x.clone(),
+            reliability_y: self.reliability_y.clone(),
+            range_ratio: self.range_ratio.clone(),
+        };
+        if artifacts.any() && self.measure != MeasureArg::R {
+            let flag = artifacts.columns()[0].0;
+            return Err(Error::usage(
+                flag,
+                "artifact corrections apply to Pearson correlations; use --measure r",
+            ));
+        }
+        Ok(InterpretSettings {
+            probes,
+            compare_levels: self.compare_levels,
+            regions: self.regions,
+            artifacts,
         })
     }
 }

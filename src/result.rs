@@ -45,6 +45,13 @@ pub struct FitReport {
     pub cautions: Vec<String>,
     /// Adjustments and facts worth knowing (corrections applied, skipped blank rows, ...).
     pub notes: Vec<String>,
+    /// Conditional effects, simple slopes, level contrasts and regions of
+    /// significance (empty lists without --probe / --compare-levels / --regions).
+    #[serde(flatten)]
+    pub interpretation: Interpretation,
+    /// Artifact corrections of the correlations (null without --reliability-x,
+    /// --reliability-y or --range-ratio).
+    pub artifacts: Option<ArtifactReport>,
 }
 
 /// Tool name and version.
@@ -372,4 +379,200 @@ pub struct CurvePoint {
     pub pi_low: f64,
     /// Upper end.
     pub pi_high: f64,
+}
+
+/// What `--probe`, `--compare-levels` and `--regions` report: the model read
+/// at chosen moderator values (see docs/interpretation.md).
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Interpretation {
+    /// Predicted mean effect at each probed value of each probed moderator.
+    pub conditional_effects: Vec<ConditionalEffect>,
+    /// In a model with a product term: the conditional effect (slope of a
+    /// numeric moderator, or difference of a level from the reference) of the
+    /// probed moderator's partner at each probed value (simple slopes).
+    pub simple_slopes: Vec<SimpleSlope>,
+    /// Pairwise differences between the levels of each compared categorical moderator.
+    pub level_contrasts: Vec<LevelContrast>,
+    /// Johnson–Neyman regions of significance.
+    pub regions_of_significance: Vec<RegionOfSignificance>,
+    /// The pooled effect and τ² without moderators beside the conditional
+    /// effects and residual τ² with them (null when nothing was probed).
+    pub picture: Option<PictureChange>,
+}
+
+/// The predicted mean effect at one value of one moderator.
+#[derive(Debug, Clone, Serialize)]
+pub struct ConditionalEffect {
+    /// The probed moderator.
+    pub moderator: String,
+    /// Its value: a number or a level.
+    pub at: AtValue,
+    /// Where the value comes from: "given", "mean − 1 SD", "mean", "mean + 1 SD" or "level".
+    pub point: String,
+    /// Where the other moderators are held, in words (empty when there are none).
+    pub held: String,
+    /// Predicted mean effect x0'β̂ (analysis scale).
+    pub estimate: f64,
+    /// Its standard error √(x0' Cov x0).
+    pub se: f64,
+    /// Confidence interval of the mean effect.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Prediction interval for a new study's true effect, with the model's residual τ².
+    pub pi_low: f64,
+    /// Upper end.
+    pub pi_high: f64,
+    /// t (kh) or z statistic of the test that the mean effect there is 0.
+    pub statistic: f64,
+    /// Degrees of freedom of t (null under z).
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: f64,
+    /// The same on the reading scale (null when the same as analysed).
+    pub reading: Option<Reading>,
+    /// Whether the value lies outside the studies' range (extrapolation).
+    pub outside_range: bool,
+}
+
+/// A linear contrast c'β̂ with its test (no prediction interval).
+#[derive(Debug, Clone, Serialize)]
+pub struct ContrastTest {
+    /// Estimate c'β̂ (analysis scale).
+    pub estimate: f64,
+    /// Standard error √(c' Cov c).
+    pub se: f64,
+    /// Confidence interval.
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// t (kh) or z statistic.
+    pub statistic: f64,
+    /// Degrees of freedom of t (null under z).
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: f64,
+}
+
+/// The conditional effect of one moderator at a value of another it interacts with.
+#[derive(Debug, Clone, Serialize)]
+pub struct SimpleSlope {
+    /// What changes: a numeric moderator's name (the slope per unit), or
+    /// "NAME: LEVEL − REFERENCE" for a level of a categorical moderator.
+    pub of: String,
+    /// The probed moderator it is conditional on.
+    pub moderator: String,
+    /// The probed moderator's value.
+    pub at: AtValue,
+    /// Where the value comes from (as in [`ConditionalEffect::point`]).
+    pub point: String,
+    /// Where the remaining moderators are held, in words.
+    pub held: String,
+    /// The slope or difference with its test.
+    pub test: ContrastTest,
+}
+
+/// The difference between two levels of a categorical moderator.
+#[derive(Debug, Clone, Serialize)]
+pub struct LevelContrast {
+    /// The moderator.
+    pub moderator: String,
+    /// The level subtracted from.
+    pub level: String,
+    /// The level subtracted.
+    pub minus: String,
+    /// Where the other moderators are held, in words.
+    pub held: String,
+    /// The difference with its test.
+    pub test: ContrastTest,
+    /// Holm's step-down adjusted p over all pairs of this moderator.
+    pub p_holm: f64,
+}
+
+/// A Johnson–Neyman region of significance along one numeric moderator.
+#[derive(Debug, Clone, Serialize)]
+pub struct RegionOfSignificance {
+    /// The numeric moderator along which the quantity changes.
+    pub moderator: String,
+    /// What is tested: "effect" (the conditional mean effect), or the simple
+    /// slope / level difference, as in [`SimpleSlope::of`].
+    pub quantity: String,
+    /// Where the other moderators are held, in words.
+    pub held: String,
+    /// The Johnson–Neyman values over the whole real line, where the
+    /// confidence interval of the quantity just touches 0 (zero, one or two,
+    /// ascending). A straight line crosses 0 somewhere, so over the whole line
+    /// "everywhere" arises only when the quantity does not change with the
+    /// moderator at all; the observed range is what `observed_region` describes.
+    pub bounds: Vec<f64>,
+    /// Where the interval excludes 0: "outside" or "inside" the bounds,
+    /// "everywhere", "nowhere"; "above" or "below" the single bound when the
+    /// quantity's slope along the moderator is exactly on the edge of significance.
+    pub significant: String,
+    /// Smallest value of the moderator among the studies.
+    pub observed_min: f64,
+    /// Largest value.
+    pub observed_max: f64,
+    /// The Johnson–Neyman values that lie within [observed_min, observed_max].
+    pub observed_bounds: Vec<f64>,
+    /// Within the observed range: "everywhere", "nowhere", "outside" or
+    /// "inside" the observed bounds, or "above"/"below" a single one.
+    pub observed_region: String,
+    /// The parts of [observed_min, observed_max] where the interval excludes 0.
+    pub observed_significant: Vec<[f64; 2]>,
+    /// The region in words, over all values and within the observed range.
+    pub words: String,
+}
+
+/// How the picture changes once the moderators are in the model.
+#[derive(Debug, Clone, Serialize)]
+pub struct PictureChange {
+    /// Pooled effect without moderators.
+    pub pooled: Estimate,
+    /// τ² without moderators.
+    pub tau2_without: f64,
+    /// Residual τ² with the moderators.
+    pub tau2_with: f64,
+    /// Share of τ² the moderators account for (as in `heterogeneity.r2`).
+    pub r2: Option<f64>,
+    /// Smallest conditional effect estimate.
+    pub conditional_min: f64,
+    /// Largest conditional effect estimate.
+    pub conditional_max: f64,
+    /// Whether the conditional estimates take both signs.
+    pub sign_changes: bool,
+    /// The comparison in words.
+    pub words: String,
+}
+
+/// Hunter–Schmidt artifact corrections applied to the correlations.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArtifactReport {
+    /// Which corrections were applied, in the order applied.
+    pub corrections: Vec<String>,
+    /// The formulas in words (and their source).
+    pub method: String,
+    /// Per included study, in the order of `studies`.
+    pub studies: Vec<ArtifactStudy>,
+    /// Mean observed r and mean corrected r (unweighted) over the included studies.
+    pub mean_observed_r: f64,
+    /// Unweighted mean corrected r.
+    pub mean_corrected_r: f64,
+}
+
+/// One study's artifact correction.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArtifactStudy {
+    /// Label.
+    pub study: String,
+    /// Observed correlation.
+    pub observed_r: f64,
+    /// Corrected correlation (the analysed effect).
+    pub corrected_r: f64,
+    /// Sampling variance of the observed r, (1 − r²)²/(n − 1).
+    pub observed_variance: f64,
+    /// Sampling variance of the corrected r (the analysed variance).
+    pub corrected_variance: f64,
+    /// The factor dr_c/dr by which the standard error is multiplied.
+    pub se_factor: f64,
 }

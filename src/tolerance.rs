@@ -92,3 +92,9 @@ pub const NONCENTRAL_LAMBDA_MAX: f64 = 1e6;
 /// are double-precision series, the central pieces (statrs' incomplete gamma
 /// and beta) carry about 1e-12 to 1e-11 relative error.
 pub const NONCENTRAL_REF_ABS: f64 = 1e-10;
+
+/// Johnson–Neyman bounds: the quadratic coefficient b² − c²·v11 counts as 0
+/// (one bound, a linear inequality) when it is below this fraction of
+/// b² + c²·v11, i.e. when the slope's test statistic is within about 1e-12
+/// (relative) of the critical value.
+pub const JN_DEGENERATE: f64 = 1e-12;

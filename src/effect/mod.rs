@@ -4,6 +4,7 @@
 //! each row of a [`Table`] into an effect on the analysis scale with its
 //! sampling variance, an exclusion with its reason, or a cell problem.
 
+pub mod artifact;
 pub mod binary;
 pub mod correlation;
 pub mod generic;

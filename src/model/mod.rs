@@ -4,6 +4,7 @@
 
 pub mod design;
 pub mod inference;
+pub mod probe;
 pub mod tau2;
 pub mod wls;
 

@@ -103,6 +103,9 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     if !held.is_empty() {
         caption.push(format!("Other moderators are held {held}."));
     }
+    if numeric {
+        caption.extend(super::regions::caption(report, name, &lv));
+    }
     if report.tau2.estimate == 0.0 {
         caption.push(
             "τ² is estimated as 0, so the prediction band coincides with the confidence band."
@@ -196,6 +199,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let y_in = |v: f64| v.clamp(f.ya.lo, f.ya.hi);
 
     if numeric {
+        super::regions::shade(&mut sc, &f, report, name);
         if let Some(c) = curve {
             let upper: Vec<(f64, f64)> = c
                 .points

@@ -10,6 +10,7 @@
 pub mod bubble;
 pub mod forest;
 pub mod funnel;
+mod regions;
 pub mod scene;
 
 pub use scene::{Align, Scene};

@@ -2,6 +2,7 @@
 //! JSON and a per-study CSV. Pure functions of the result, no computation.
 
 pub mod html;
+pub mod interpret;
 pub mod json;
 pub mod table;
 pub mod text;

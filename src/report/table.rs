@@ -25,7 +25,15 @@ pub const HEADER: [&str; 11] = [
 /// Any error of the writer.
 pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     let mut w = csv::Writer::from_writer(out);
-    w.write_record(HEADER)?;
+    // With artifact corrections, two columns more: the observed r and the SE factor.
+    let art = report.artifacts.as_ref();
+    if art.is_some() {
+        let mut h: Vec<&str> = HEADER.to_vec();
+        h.extend(["observed_r", "se_factor"]);
+        w.write_record(h)?;
+    } else {
+        w.write_record(HEADER)?;
+    }
     let mut rows: Vec<(u64, Vec<String>)> = Vec::new();
     for s in &report.studies {
         rows.push((
@@ -45,6 +53,12 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             ],
         ));
     }
+    if let Some(a) = art {
+        for (row, s) in rows.iter_mut().zip(&a.studies) {
+            row.1
+                .extend([s.observed_r.to_string(), s.se_factor.to_string()]);
+        }
+    }
     for e in &report.excluded {
         let mut row = vec![
             e.study.clone(),
@@ -52,7 +66,10 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             "no".into(),
             e.reason.clone(),
         ];
-        row.extend(std::iter::repeat_n(String::new(), 7));
+        row.extend(std::iter::repeat_n(
+            String::new(),
+            if art.is_some() { 9 } else { 7 },
+        ));
         rows.push((e.line, row));
     }
     rows.sort_by_key(|r| r.0);

@@ -391,6 +391,7 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
+    o.push_str(&super::interpret::render(r));
     for (title, items) in [
         ("Warnings", &r.warnings),
         ("Notes", &r.notes),

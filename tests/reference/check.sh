@@ -40,10 +40,16 @@ trap 'rm -rf "$tmp"' EXIT
     cat "$tmp/generate.log" >&2
     die "generate.py failed (see above)"
 }
+# Conditional effects, Johnson–Neyman bounds, artifact corrections (interpret.json).
+"$venv/bin/python" "$here/interpret.py" "$tmp/out" > "$tmp/interpret.log" 2>&1 || {
+    cat "$tmp/interpret.log" >&2
+    die "interpret.py failed (see above)"
+}
 
 "$venv/bin/python" "$here/compare.py" "$committed" "$tmp/out" || {
     echo "check.sh: the regenerated reference values differ from tests/data/reference/ (see above)." >&2
     echo "check.sh: if the change is intended, regenerate with:" >&2
     echo "          $venv/bin/python tests/reference/generate.py tests/data/reference" >&2
+    echo "          $venv/bin/python tests/reference/interpret.py tests/data/reference" >&2
     exit 1
 }

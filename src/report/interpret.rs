@@ -1,0 +1,295 @@
+//! The terminal sections of `--probe`, `--compare-levels`, `--regions` and
+//! the artifact corrections (part of the text report; pure function of the result).
+
+use super::{format_num as num, format_p};
+use crate::result::{AtValue, ContrastTest, FitReport};
+use std::fmt::Write as _;
+
+fn interval(lo: f64, hi: f64) -> String {
+    format!("[{}, {}]", num(lo), num(hi))
+}
+
+fn pad(s: &str, w: usize) -> String {
+    let n = s.chars().count();
+    if n >= w {
+        format!("{s} ")
+    } else {
+        format!("{s}{}", " ".repeat(w - n))
+    }
+}
+
+fn wrap(out: &mut String, text: &str, indent: &str, width: usize) {
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+            let _ = writeln!(out, "{indent}{line}");
+            line.clear();
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        let _ = writeln!(out, "{indent}{line}");
+    }
+}
+
+fn at(v: &AtValue) -> String {
+    match v {
+        AtValue::Number(x) => crate::model::probe::short(*x),
+        AtValue::Level(l) => l.clone(),
+    }
+}
+
+fn test_text(t: &ContrastTest) -> String {
+    let stat = match t.df {
+        Some(df) => format!("t({df}) = {:.2}", t.statistic),
+        None => format!("z = {:.2}", t.statistic),
+    };
+    format!("{stat}, p {}", format_p(t.p))
+}
+
+/// The interpretation and artifact sections (empty when none was asked for).
+pub fn render(r: &FitReport) -> String {
+    let mut o = String::new();
+    let lv = format!("{}%", (r.model.level * 100.0 * 1e6).round() / 1e6);
+    let it = &r.interpretation;
+    let reading = r.measure.reading_name.as_deref();
+
+    if let Some(a) = &r.artifacts {
+        let _ = writeln!(
+            o,
+            "Artifact corrections (measure r-corrected, analysed on the r scale)"
+        );
+        for c in &a.corrections {
+            let _ = writeln!(o, "  - {c}");
+        }
+        wrap(&mut o, &a.method, "  ", 70);
+        let _ = writeln!(
+            o,
+            "  mean r over the studies (unweighted): observed {}, corrected {}",
+            num(a.mean_observed_r),
+            num(a.mean_corrected_r)
+        );
+        let _ = writeln!(
+            o,
+            "  {}{}{}SE factor",
+            pad("study", 28),
+            pad("observed r", 12),
+            pad("corrected r", 13)
+        );
+        for s in a.studies.iter().take(super::text::MAX_LISTED_STUDIES) {
+            let label: String = s.study.chars().take(26).collect();
+            let _ = writeln!(
+                o,
+                "  {}{}{}{}",
+                pad(&label, 28),
+                pad(&num(s.observed_r), 12),
+                pad(&num(s.corrected_r), 13),
+                num(s.se_factor)
+            );
+        }
+        let _ = writeln!(o);
+    }
+
+    if !it.conditional_effects.is_empty() {
+        let _ = writeln!(
+            o,
+            "Conditional effects (mean effect at chosen moderator values; {lv} CI; new study = {lv} prediction interval)"
+        );
+        let mut last = None;
+        for e in &it.conditional_effects {
+            if last != Some((&e.moderator, &e.held)) {
+                let held = if e.held.is_empty() {
+                    String::new()
+                } else {
+                    format!("; held: {}", e.held)
+                };
+                let _ = writeln!(o, "  {}{held}", e.moderator);
+                let _ = writeln!(
+                    o,
+                    "    {}{}{}{}{}p",
+                    pad("at", 14),
+                    pad("", 13),
+                    pad("effect", 10),
+                    pad("CI", 20),
+                    pad("new study", 20)
+                );
+                last = Some((&e.moderator, &e.held));
+            }
+            let mark = if e.outside_range {
+                " (outside the studies' range)"
+            } else {
+                ""
+            };
+            let _ = writeln!(
+                o,
+                "    {}{}{}{}{}{}{mark}",
+                pad(&at(&e.at), 14),
+                pad(&e.point, 13),
+                pad(&num(e.estimate), 10),
+                pad(&interval(e.ci_low, e.ci_high), 20),
+                pad(&interval(e.pi_low, e.pi_high), 20),
+                format_p(e.p)
+            );
+            if let (Some(rd), Some(name)) = (&e.reading, reading) {
+                let _ = writeln!(
+                    o,
+                    "    {}as {name}: {}  CI {}  new study {}",
+                    pad("", 27),
+                    num(rd.estimate),
+                    interval(rd.ci_low, rd.ci_high),
+                    interval(rd.pi_low, rd.pi_high)
+                );
+            }
+        }
+        let _ = writeln!(o);
+    }
+
+    if !it.simple_slopes.is_empty() {
+        let _ = writeln!(
+            o,
+            "Simple slopes (how the partner in a product term changes the effect, at each probed value; {lv} CI)"
+        );
+        for s in &it.simple_slopes {
+            let what = if s.of.contains(':') {
+                format!("difference {}", s.of)
+            } else {
+                format!("slope of {} (per unit)", s.of)
+            };
+            let _ = writeln!(
+                o,
+                "  {what} at {} = {} ({}): {}  CI {}  SE {}  {}",
+                s.moderator,
+                at(&s.at),
+                s.point,
+                num(s.test.estimate),
+                interval(s.test.ci_low, s.test.ci_high),
+                num(s.test.se),
+                test_text(&s.test)
+            );
+        }
+        if let Some(s) = it.simple_slopes.first() {
+            if !s.held.is_empty() {
+                let _ = writeln!(o, "  held: {}", s.held);
+            }
+        }
+        let _ = writeln!(o);
+    }
+
+    if !it.level_contrasts.is_empty() {
+        let _ = writeln!(
+            o,
+            "Level contrasts (difference between two levels; {lv} CI; Holm-adjusted p over the pairs of each moderator)"
+        );
+        for c in &it.level_contrasts {
+            let _ = writeln!(
+                o,
+                "  {}: {} − {}: {}  CI {}  {}, Holm p {}",
+                c.moderator,
+                c.level,
+                c.minus,
+                num(c.test.estimate),
+                interval(c.test.ci_low, c.test.ci_high),
+                test_text(&c.test),
+                format_p(c.p_holm)
+            );
+        }
+        if let Some(c) = it.level_contrasts.first() {
+            if !c.held.is_empty() {
+                let _ = writeln!(o, "  held: {}", c.held);
+            }
+        }
+        let _ = writeln!(o);
+    }
+
+    if !it.regions_of_significance.is_empty() {
+        let _ = writeln!(o, "Regions of significance (Johnson–Neyman)");
+        for g in &it.regions_of_significance {
+            let bounds = if g.bounds.is_empty() {
+                "no bounds".to_string()
+            } else {
+                format!(
+                    "bounds {}",
+                    g.bounds
+                        .iter()
+                        .map(|b| num(*b))
+                        .collect::<Vec<_>>()
+                        .join(" and ")
+                )
+            };
+            let _ = writeln!(
+                o,
+                "  {} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
+                if g.quantity == "effect" {
+                    "mean effect".to_string()
+                } else if g.quantity.contains(':') {
+                    format!("difference {}", g.quantity)
+                } else {
+                    format!("slope of {}", g.quantity)
+                },
+                g.moderator,
+                g.significant,
+                crate::model::probe::short(g.observed_min),
+                crate::model::probe::short(g.observed_max),
+                g.observed_region,
+                if g.observed_bounds.is_empty() {
+                    String::new()
+                } else {
+                    format!(
+                        " {}",
+                        g.observed_bounds
+                            .iter()
+                            .map(|b| num(*b))
+                            .collect::<Vec<_>>()
+                            .join(" and ")
+                    )
+                }
+            );
+            wrap(&mut o, &g.words, "    ", 68);
+            if !g.held.is_empty() {
+                let _ = writeln!(o, "    held: {}", g.held);
+            }
+        }
+        let _ = writeln!(o);
+    }
+
+    if let Some(p) = &it.picture {
+        let _ = writeln!(o, "How the picture changes");
+        let _ = writeln!(
+            o,
+            "  {}{}with moderators",
+            pad("", 16),
+            pad("without moderators", 32)
+        );
+        let _ = writeln!(
+            o,
+            "  {}{}{} to {} (probed values)",
+            pad("mean effect", 16),
+            pad(
+                &format!(
+                    "{} {}",
+                    num(p.pooled.estimate),
+                    interval(p.pooled.ci_low, p.pooled.ci_high)
+                ),
+                32
+            ),
+            num(p.conditional_min),
+            num(p.conditional_max)
+        );
+        let r2 =
+            p.r2.map(|x| format!(" (R² = {:.0}%)", 100.0 * x))
+                .unwrap_or_default();
+        let _ = writeln!(
+            o,
+            "  {}{}{}{r2}",
+            pad("τ²", 16),
+            pad(&num(p.tau2_without), 32),
+            num(p.tau2_with)
+        );
+        wrap(&mut o, &p.words, "  ", 70);
+        let _ = writeln!(o);
+    }
+    o
+}
