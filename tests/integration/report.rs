@@ -11,7 +11,7 @@ use std::path::{Path, PathBuf};
 pub const EXAMPLES: &[(&str, &str)] = &[
     (
         "consortium-correlations.csv",
-        "--measure r --moderator session_minutes --moderator mode",
+        "--measure r --moderator session_minutes --moderator mode --probe session_minutes --regions --compare-levels",
     ),
     (
         "programme-sites.csv",
@@ -161,6 +161,42 @@ fn every_example_report_is_self_contained_and_has_every_section() {
         // The cautions are on the page.
         assert!(page.contains("observational"), "{name}: no caution");
     }
+}
+
+#[test]
+fn probes_regions_and_contrasts_get_their_own_section() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = fit_report(&example(EXAMPLES[0].0), EXAMPLES[0].1, dir.path());
+    assert!(page.contains("id=\"interpretation\""));
+    assert!(page.contains("href=\"#interpretation\""));
+    for heading in [
+        "Conditional effects",
+        "Differences between levels",
+        "Regions of significance (Johnson–Neyman)",
+        "How the picture changes",
+    ] {
+        assert!(page.contains(heading), "no {heading}");
+    }
+    assert!(page.contains("(mean − 1 SD)"));
+    // Without those flags the section is absent.
+    let (_, plain) = fit_report(
+        &example(EXAMPLES[0].0),
+        "--measure r --moderator session_minutes",
+        dir.path(),
+    );
+    assert!(!plain.contains("id=\"interpretation\""));
+}
+
+#[test]
+fn artifact_corrections_are_listed_per_study() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = fit_report(
+        &example("hiring-validity.csv"),
+        "--measure r --reliability-x rel_exercise --reliability-y rel_rating --range-ratio range_ratio --moderator hired_share",
+        dir.path(),
+    );
+    assert!(page.contains("Artifact corrections"));
+    assert!(page.contains("corrected r"));
 }
 
 #[test]
