@@ -1055,3 +1055,58 @@ fn likelihood_estimates_at_the_boundary_match_a_grid_search() {
         2 * cases
     );
 }
+
+/// Numerical edge cases against the same grid search (issue: hardening):
+/// sampling variances spanning 1e-12 to 1e6 in one data set, a τ² far
+/// larger than every v, k = 2 and k = 3 with a moderator, near-identical
+/// effects. REML and ML must reach the grid's maximum in each.
+#[test]
+fn edge_cases_match_a_grid_search() {
+    let cases = [
+        // Variances over 18 orders of magnitude.
+        Dataset {
+            y: vec![0.1, 0.5, 0.3, 0.2, 0.25, -0.1],
+            v: vec![1e-12, 1e6, 1e-2, 1e-6, 1e2, 1e-9],
+            x: vec![],
+            g: None,
+        },
+        // The same with a moderator.
+        Dataset {
+            y: vec![0.1, 0.5, 0.3, 0.2, 0.25, -0.1],
+            v: vec![1e-12, 1e6, 1e-2, 1e-6, 1e2, 1e-9],
+            x: vec![vec![1.0, 2.0, 3.0, 4.0, 5.0, 6.0]],
+            g: None,
+        },
+        // τ² (about 60) far above every v (about 1e-4).
+        Dataset {
+            y: vec![10.0, -10.0, 5.0, -3.0, 1.0],
+            v: vec![1e-4, 1e-4, 1e-4, 2e-4, 1.5e-4],
+            x: vec![],
+            g: None,
+        },
+        // k = 2.
+        Dataset {
+            y: vec![0.1, 0.5],
+            v: vec![0.01, 0.02],
+            x: vec![],
+            g: None,
+        },
+        // k = 3 with a moderator (one residual df).
+        Dataset {
+            y: vec![0.1, 0.5, 0.2],
+            v: vec![0.01, 0.02, 0.015],
+            x: vec![vec![1.0, 2.0, 4.0]],
+            g: None,
+        },
+        // Effects equal up to rounding noise: τ̂² = 0 at the boundary.
+        Dataset {
+            y: vec![0.3, 0.3 + 1e-12, 0.3 - 1e-12, 0.3],
+            v: vec![0.01, 0.02, 0.03, 0.04],
+            x: vec![],
+            g: None,
+        },
+    ];
+    for d in &cases {
+        check_against_grid(d);
+    }
+}
