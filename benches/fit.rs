@@ -101,6 +101,7 @@ fn main() {
         interactions: vec![],
         options,
         predictions: vec![],
+        diagnostics: Default::default(),
     };
     println!(
         "{:>9}  {:>16}  {:>16}  {:>22}",

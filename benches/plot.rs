@@ -76,6 +76,7 @@ fn main() {
             level: 0.95,
         },
         predictions: vec![],
+        diagnostics: Default::default(),
     };
     let opts = PlotOptions::default();
     println!(

@@ -21,6 +21,7 @@
 //!     interactions: vec![],
 //!     options: FitOptions { method: Tau2Method::Reml, inference: Inference::Kh, level: 0.95 },
 //!     predictions: vec![],
+//!     diagnostics: Default::default(),
 //! };
 //! let report = run(&settings, "example", csv.as_bytes()).unwrap();
 //! assert_eq!(report.k, 4);
@@ -29,6 +30,7 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod diagnose;
 pub mod dist;
 pub mod effect;
 pub mod error;

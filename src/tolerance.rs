@@ -92,3 +92,12 @@ pub const NONCENTRAL_LAMBDA_MAX: f64 = 1e6;
 /// are double-precision series, the central pieces (statrs' incomplete gamma
 /// and beta) carry about 1e-12 to 1e-11 relative error.
 pub const NONCENTRAL_REF_ABS: f64 = 1e-10;
+
+/// A permuted statistic within this share of the observed one counts as at
+/// least as extreme: arrangements that are the same up to symmetry give the
+/// same statistic up to rounding in the refit.
+pub const PERMUTATION_TIE_REL: f64 = 1e-10;
+
+/// Most iterations of the trim-and-fill L0 estimate before it is declared
+/// not to settle (it usually settles in a handful).
+pub const TRIM_FILL_MAX_ITERS: usize = 100;

@@ -40,6 +40,7 @@ pub fn settings(
             level: 0.95,
         },
         predictions: vec![],
+        diagnostics: Default::default(),
     }
 }
 
