@@ -1,6 +1,7 @@
 //! The integration test binary: reference checks, CLI tests, property tests.
 
 mod cli;
+mod diagnose;
 mod plan;
 mod plots;
 mod properties;
