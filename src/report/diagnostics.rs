@@ -102,7 +102,8 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
         o.push_str(&wrap(
             &format!(
                 "{flagged} of {} removals flagged ({what} α = {alpha:.2}); {tested} from the \
-                 model's own inference.",
+                 model's own inference. A flagged study is a reason to check its data and \
+                 design, not to drop it.",
                 loo.len()
             ),
             "  ",

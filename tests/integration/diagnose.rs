@@ -737,3 +737,43 @@ fn the_table_gains_the_diagnostic_columns_when_asked() {
     assert_eq!(rows.len(), 13);
     assert!(rows.iter().all(|r| r.len() == header.len()));
 }
+
+#[test]
+fn the_funnel_plot_draws_the_filled_studies_only_with_small_study() {
+    let dir = tempfile::tempdir().unwrap();
+    let draw = |extra: &[&str], name: &str| -> (Value, String) {
+        let path = dir.path().join(name);
+        let out = pondus()
+            .args([
+                "fit",
+                &bcg(),
+                "--measure",
+                "log-rr",
+                "--json",
+                "-",
+                "--funnel",
+            ])
+            .arg(&path)
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        (
+            serde_json::from_slice(&out.stdout).unwrap(),
+            std::fs::read_to_string(&path).unwrap(),
+        )
+    };
+    let (_, plain) = draw(&[], "plain.svg");
+    let (json, with) = draw(&["--small-study"], "tf.svg");
+    let filled = json["small_study"]["trim_fill"]["filled"].as_u64().unwrap() as usize;
+    assert!(filled > 0, "the BCG funnel gets a filled study");
+    assert_eq!(
+        with.matches("<circle").count(),
+        plain.matches("<circle").count() + filled
+    );
+    assert!(with.contains("trim-and-fill"));
+}
