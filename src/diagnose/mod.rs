@@ -137,6 +137,13 @@ pub fn model_cov(fit: &ModelFit) -> nalgebra::DMatrix<f64> {
     }
 }
 
+/// Most studies accepted by `--loo` and `--influence` (k refits of k − 1
+/// studies: the time grows with k²).
+pub const MAX_REFIT_STUDIES: usize = 20_000;
+
+/// Most studies accepted by `--small-study` (the rank test counts all k²/2 pairs).
+pub const MAX_RANK_TEST_STUDIES: usize = 200_000;
+
 /// Everything the diagnostics add to the report.
 #[derive(Debug, Clone, Default)]
 pub struct Outputs {
@@ -205,6 +212,18 @@ pub fn run(
                 ),
             ));
         }
+        if k > MAX_REFIT_STUDIES {
+            let flag = if settings.loo { "--loo" } else { "--influence" };
+            return Err(Error::usage(
+                flag,
+                format!(
+                    "{k} studies would need {k} refits of {} studies each (the time grows with \
+                     the square of k; about a second at 1,000 studies); at most \
+                     {MAX_REFIT_STUDIES} studies are accepted",
+                    k - 1
+                ),
+            ));
+        }
         let deleted = deleted_fits(d);
         let failed = deleted.iter().filter(|x| x.is_err()).count();
         if failed > 0 {
@@ -224,6 +243,15 @@ pub fn run(
     }
     if let Some(ps) = settings.permutations {
         out.permutation = Some(permutation::test(d, ps, progress)?);
+    }
+    if settings.small_study && k > MAX_RANK_TEST_STUDIES {
+        return Err(Error::usage(
+            "--small-study",
+            format!(
+                "the rank-correlation test compares every pair of studies, and {k} studies are \
+                 more than the {MAX_RANK_TEST_STUDIES} accepted"
+            ),
+        ));
     }
     if settings.small_study {
         let (s, notes) = small_study::analyse(d, scale)?;

@@ -14,6 +14,9 @@ use crate::tolerance::PERMUTATION_TIE_REL;
 /// threads.
 pub const PERM_BLOCK: usize = 250;
 
+/// Blocks of arrangements generated at a time under exact enumeration.
+const EXACT_BATCH_BLOCKS: usize = 64;
+
 /// Distinct arrangements above this are not counted exactly.
 const ARRANGEMENTS_MAX: u128 = 1_000_000_000_000_000_000;
 
@@ -225,21 +228,28 @@ pub fn test(
         for (i, &g) in groups.iter().enumerate().rev() {
             rep[g as usize] = i as u32;
         }
-        let mut all: Vec<u32> = Vec::new();
-        loop {
-            all.extend(a.iter().map(|&g| rep[g as usize]));
-            if !next_arrangement(&mut a) {
-                break;
+        // Arrangements are generated in batches of whole blocks, so memory
+        // stays bounded however many there are; counts are integers, so
+        // the order of summation cannot change them.
+        let mut parts = Vec::new();
+        let mut batch: Vec<u32> = Vec::with_capacity(EXACT_BATCH_BLOCKS * PERM_BLOCK * k);
+        let mut more = true;
+        while more {
+            batch.clear();
+            while more && batch.len() < EXACT_BATCH_BLOCKS * PERM_BLOCK * k {
+                batch.extend(a.iter().map(|&g| rep[g as usize]));
+                more = next_arrangement(&mut a);
             }
+            let counts: Vec<Counts> = batch
+                .par_chunks(PERM_BLOCK * k)
+                .map(|chunk| {
+                    let c = evaluate(d, &observed, chunk.chunks_exact(k));
+                    progress((chunk.len() / k) as u64);
+                    c
+                })
+                .collect();
+            parts.extend(counts);
         }
-        let parts: Vec<Counts> = all
-            .par_chunks(PERM_BLOCK * k)
-            .map(|chunk| {
-                let c = evaluate(d, &observed, chunk.chunks_exact(k));
-                progress((chunk.len() / k) as u64);
-                c
-            })
-            .collect();
         parts
     } else {
         let blocks = n.div_ceil(PERM_BLOCK);

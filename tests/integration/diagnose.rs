@@ -771,9 +771,32 @@ fn the_funnel_plot_draws_the_filled_studies_only_with_small_study() {
     let (json, with) = draw(&["--small-study"], "tf.svg");
     let filled = json["small_study"]["trim_fill"]["filled"].as_u64().unwrap() as usize;
     assert!(filled > 0, "the BCG funnel gets a filled study");
+    // Every marker is written as two circle elements (its fill, its outline).
     assert_eq!(
         with.matches("<circle").count(),
-        plain.matches("<circle").count() + filled
+        plain.matches("<circle").count() + 2 * filled
     );
+    // The filled studies are open: paper-white inside.
+    let open = |svg: &str| svg.matches(r##"fill="#FFFFFF" stroke="none""##).count();
+    assert_eq!(open(&with), open(&plain) + filled);
     assert!(with.contains("trim-and-fill"));
+}
+
+#[test]
+fn exact_enumeration_runs_through_every_arrangement_in_batches() {
+    // 8 distinct moderator values: 8! = 40,320 arrangements, more than one
+    // batch of generated arrangements; every one is evaluated once.
+    let data = "study,effect,variance,x\nA,0.1,0.02,1\nB,0.3,0.03,2\nC,0.2,0.05,3\nD,0.4,0.02,4\n\
+                E,0.2,0.04,5\nF,0.5,0.03,6\nG,0.3,0.06,7\nH,0.6,0.02,8\n";
+    let s = tiny_settings("x", Tau2Method::Dl, Inference::Z, 50_000, 1);
+    let perm = run(&s, "eight.csv", data.as_bytes())
+        .unwrap()
+        .permutation
+        .unwrap();
+    assert!(perm.exact);
+    assert_eq!(perm.permutations, 40_320);
+    assert_eq!(perm.failed, 0);
+    // b/M with the observed arrangement among the M: a whole count ≥ 1.
+    let b = perm.moderator_p * 40_320.0;
+    assert!((b - b.round()).abs() < 1e-6 && b >= 1.0, "{b}");
 }
