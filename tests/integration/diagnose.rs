@@ -800,3 +800,19 @@ fn exact_enumeration_runs_through_every_arrangement_in_batches() {
     let b = perm.moderator_p * 40_320.0;
     assert!((b - b.round()).abs() < 1e-6 && b >= 1.0, "{b}");
 }
+
+#[test]
+fn leave_one_out_beyond_its_size_limit_is_refused_before_it_starts() {
+    use pondus::diagnose::MAX_REFIT_STUDIES;
+    let mut text = String::from("study,effect,variance\n");
+    for i in 0..=MAX_REFIT_STUDIES {
+        let e = ((i * 37) % 101) as f64 / 100.0 - 0.5;
+        text.push_str(&format!("s{i},{e},0.05\n"));
+    }
+    let (_d, f) = temp_csv(&text);
+    let err = fails(&f, "--loo");
+    assert!(
+        err.contains("--loo") && err.contains("at most 20000"),
+        "{err}"
+    );
+}
