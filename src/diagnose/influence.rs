@@ -123,3 +123,47 @@ pub fn table(
         .collect();
     (out, cut)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::tau2::Tau2Method;
+    use crate::model::{FitOptions, Inference};
+
+    #[test]
+    fn common_effect_with_equal_variances_has_textbook_values() {
+        // Intercept only, τ² = 0, all v = 0.1: β̂ is the mean, h_i = 1/k,
+        // β̂₍₋ᵢ₎ the mean of the others, Cook's D = (β̂ − β̂₍₋ᵢ₎)²·k/v and
+        // COVRATIO = k/(k − 1) (worked by hand from the formulas).
+        let y = [0.1, 0.4, 0.2, 0.9, 0.3];
+        let v = [0.1; 5];
+        let x = [1.0; 5];
+        let options = FitOptions {
+            method: Tau2Method::None,
+            inference: Inference::Z,
+            level: 0.95,
+        };
+        let d = ModelData {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+            options,
+        };
+        let full = crate::model::fit(&y, &v, &x, 1, options).unwrap();
+        let del = super::super::deleted_fits(&d);
+        let labels: Vec<String> = (0..5).map(|i| i.to_string()).collect();
+        let (t, _) = table(&d, &full, &del, &labels, &[2, 3, 4, 5, 6]);
+        let mean = y.iter().sum::<f64>() / 5.0;
+        for (i, s) in t.iter().enumerate() {
+            let others = (y.iter().sum::<f64>() - y[i]) / 4.0;
+            assert!((s.hat - 0.2).abs() < 1e-14);
+            let cook = (mean - others).powi(2) * 5.0 / 0.1;
+            assert!((s.cooks_distance.unwrap() - cook).abs() < 1e-12);
+            assert!((s.cov_ratio.unwrap() - 1.25).abs() < 1e-12);
+            // rstudent: (y_i − mean of others)/√(v + v/4).
+            let rs = (y[i] - others) / (0.1f64 * 1.25).sqrt();
+            assert!((s.rstudent.unwrap() - rs).abs() < 1e-12);
+        }
+    }
+}

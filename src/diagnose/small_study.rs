@@ -376,3 +376,21 @@ mod tests {
         assert!((t.estimate - 0.2).abs() < 1e-12);
     }
 }
+
+#[cfg(test)]
+mod rank_tests {
+    use super::*;
+
+    #[test]
+    fn perfectly_concordant_ranks_give_tau_one_and_the_untied_variance() {
+        // t* rises with v here (worked by hand: θ̂ = −0.08, t* ≈ −12.8, 0.65,
+        // 6.8, 11.1), so all 6 pairs are concordant: S = 6, τ = 1,
+        // Var(S) = 4·3·13/18, p = 2(1 − Φ(6/√(26/3))).
+        let y = [-1.0, 0.0, 1.0, 2.0];
+        let v = [0.01, 0.02, 0.03, 0.04];
+        let r = rank_test(&y, &v).unwrap();
+        assert!((r.tau - 1.0).abs() < 1e-15, "{}", r.tau);
+        let want = dist::normal_two_sided_p(6.0 / (26.0f64 / 3.0).sqrt());
+        assert!((r.p - want).abs() < 1e-15, "{} vs {want}", r.p);
+    }
+}
