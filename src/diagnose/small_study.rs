@@ -133,7 +133,8 @@ pub fn rank_test(y: &[f64], v: &[f64]) -> Result<RankTest> {
     let total = nf * (nf - 1.0) / 2.0;
     let (xt, x0, x1) = ties(&t);
     let (yt, y0, y1) = ties(v);
-    let tau = s / ((total - xt).sqrt() * (total - yt).sqrt());
+    // Rounding in the square roots can leave |τ| a few ε above 1.
+    let tau = (s / ((total - xt).sqrt() * (total - yt).sqrt())).clamp(-1.0, 1.0);
     let m = nf * (nf - 1.0);
     let var = (m * (2.0 * nf + 5.0) - x1 - y1) / 18.0
         + 2.0 * xt * yt / m
