@@ -102,6 +102,7 @@ fn main() {
         options,
         predictions: vec![],
         interpret: Default::default(),
+        diagnostics: Default::default(),
     };
     println!(
         "{:>9}  {:>16}  {:>16}  {:>22}",

@@ -77,6 +77,7 @@ fn main() {
         },
         predictions: vec![],
         interpret: Default::default(),
+        diagnostics: Default::default(),
     };
     let opts = PlotOptions::default();
     println!(

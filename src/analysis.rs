@@ -32,6 +32,9 @@ pub struct FitSettings {
     /// Conditional effects, level contrasts, regions of significance and
     /// artifact corrections (see [`crate::model::probe`], [`crate::effect::artifact`]).
     pub interpret: probe::InterpretSettings,
+    /// Robustness diagnostics to add (leave-one-out, influence, permutation
+    /// test, small-study effects, cumulative meta-analysis).
+    pub diagnostics: crate::diagnose::DiagnoseSettings,
 }
 
 /// Minimum studies per moderator term below which the output cautions
@@ -44,6 +47,20 @@ pub const STUDIES_PER_TERM: usize = 10;
 /// # Errors
 /// Any input, usage, model or convergence error, with file, line and column where they apply.
 pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitReport> {
+    run_with_progress(settings, source, bytes, &|_| {})
+}
+
+/// [`run`], calling `progress` with the number of permuted arrangements of
+/// each finished block of the permutation test (for a progress bar).
+///
+/// # Errors
+/// As [`run`].
+pub fn run_with_progress(
+    settings: &FitSettings,
+    source: &str,
+    bytes: &[u8],
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<FitReport> {
     let measure = settings.measure;
     let mut requests = vec![ColumnRequest {
         header: settings.label.0.clone(),
@@ -65,7 +82,23 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     let first_art = requests.len();
     let artifacts = &settings.interpret.artifacts;
     requests.extend(artifact::requests(artifacts, measure)?);
+    let order_request = settings.diagnostics.cumulative_by.as_ref().map(|h| {
+        requests.push(ColumnRequest {
+            header: h.clone(),
+            required: true,
+            purpose: "the order of the cumulative meta-analysis (--cumulative-by)".into(),
+            hint: "Check the spelling of --cumulative-by; headers are matched exactly, or ignoring case when unique.".into(),
+        });
+        requests.len() - 1
+    });
     let mut table = input::parse_table(source, bytes, &requests)?;
+    let order_cells: Option<(String, Vec<String>)> = order_request.map(|j| {
+        let col = table.column(j).expect("required column present");
+        (
+            col.header.clone(),
+            (0..table.len()).map(|i| col.get(i).to_string()).collect(),
+        )
+    });
     let mut effects = effect::compute(measure, &settings.columns, &table, first_measure)?;
     let corrections = artifact::apply(
         artifacts,
@@ -279,6 +312,36 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         },
     )?;
 
+    let diag = if settings.diagnostics.any() {
+        let d = crate::diagnose::ModelData {
+            y: &y,
+            v: &v,
+            x: &design.x,
+            p: design.p,
+            options: settings.options,
+        };
+        let study_labels: Vec<String> = included.iter().map(|&i| labels[i].clone()).collect();
+        let study_lines: Vec<u64> = included.iter().map(|&i| table.lines[i]).collect();
+        let order = order_cells.map(|(header, cells)| crate::diagnose::OrderColumn {
+            header,
+            cells: included.iter().map(|&i| cells[i].clone()).collect(),
+            lines: study_lines.clone(),
+        });
+        crate::diagnose::run(
+            &settings.diagnostics,
+            &d,
+            &fit,
+            &study_labels,
+            &study_lines,
+            order.as_ref(),
+            scale,
+            source,
+            progress,
+        )
+        .map_err(|e| in_file(source, e))?
+    } else {
+        crate::diagnose::Outputs::default()
+    };
     design.x = Vec::new();
     let duplicate_warnings = duplicate_label_warnings(&included, &labels);
     let total_w: f64 = fit.weights.iter().sum();
@@ -365,6 +428,8 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
             ));
         }
     }
+    warnings.extend(diag.warnings.iter().cloned());
+    notes.extend(diag.notes.iter().cloned());
     let mut cautions = cautions(k, design.p, settings.options.inference);
     let artifact_report = artifact_report(artifacts, &corrections, &included, &studies);
     if artifact_report.is_some() {
@@ -456,6 +521,13 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
         notes,
         interpretation,
         artifacts: artifact_report,
+        leave_one_out: diag.leave_one_out,
+        influence: diag.influence,
+        permutation: diag.permutation,
+        small_study: diag.small_study,
+        cumulative: diag.cumulative,
+        influence_cutoffs: diag.influence_cutoffs,
+        cumulative_order: diag.cumulative_order,
     };
     let mut report = report;
     if report.artifacts.is_some() {

@@ -29,7 +29,7 @@ pub struct Cli {
 }
 
 /// The subcommands.
-// Parsed once per run: the size of the larger variant does not matter.
+// `fit` has many flags; the enum is built once per run, so its size does not matter.
 #[allow(clippy::large_enum_variant)]
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -215,9 +215,26 @@ pub struct FitArgs {
     /// Correct each r for direct range restriction on x (Thorndike Case II); u = restricted SD / unrestricted SD from this column (--measure r).
     #[arg(long, value_name = "COL")]
     pub range_ratio: Option<String>,
+    /// Refit without each study in turn: coefficients, τ², I² and the moderator test's p; flag removals that change a sign or the significance.
+    #[arg(long)]
+    pub loo: bool,
+    /// Influence measures per study (studentised residuals, DFFITS, Cook's distance, covariance ratio, hat values) with their cut-offs.
+    #[arg(long)]
+    pub influence: bool,
+    /// Permutation test of the moderators with N random permutations (all arrangements when there are at most N).
+    #[arg(long, value_name = "N")]
+    pub permutations: Option<usize>,
+    /// Seed of the permutations [default: 1]; the result does not depend on the number of threads.
+    #[arg(long, value_name = "S")]
+    pub seed: Option<u64>,
+    /// Small-study effects: regression test for funnel-plot asymmetry, rank-correlation test, trim-and-fill.
+    #[arg(long)]
+    pub small_study: bool,
+    /// Cumulative meta-analysis, adding the studies in the order of this column (numbers ascending; text in code-point order).
+    #[arg(long, value_name = "COL")]
+    pub cumulative_by: Option<String>,
 }
 
-/// A plot kind.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum PlotKind {
     /// `--forest`.
@@ -520,6 +537,7 @@ impl FitArgs {
                 },
                 predictions,
                 interpret: self.interpret_settings()?,
+                diagnostics: self.diagnostics()?,
             },
             json,
             table,
@@ -600,13 +618,95 @@ impl FitArgs {
     }
 }
 
+/// Most permutations `--permutations` accepts.
+pub const MAX_PERMUTATIONS: usize = 10_000_000;
+
+impl FitArgs {
+    /// The checked diagnostic flags.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag and how to fix it.
+    fn diagnostics(&self) -> Result<crate::diagnose::DiagnoseSettings> {
+        use crate::diagnose::{DiagnoseSettings, PermutationSettings};
+        let permutations = match (self.permutations, self.seed) {
+            (None, Some(_)) => return Err(Error::usage(
+                "--seed",
+                "applies to the permutation test; add --permutations N (e.g. --permutations 999)",
+            )),
+            (None, None) => None,
+            (Some(0), _) => {
+                return Err(Error::usage(
+                    "--permutations",
+                    "0 permutations test nothing; give at least 1 (999 or more is usual)",
+                ))
+            }
+            (Some(n), _) if n > MAX_PERMUTATIONS => {
+                return Err(Error::usage(
+                    "--permutations",
+                    format!("{n} is more than {MAX_PERMUTATIONS}; give fewer"),
+                ))
+            }
+            (Some(n), seed) => {
+                if self.moderators.is_empty() {
+                    return Err(Error::usage(
+                        "--permutations",
+                        "permutes the moderators, and the model has none; add --moderator NAME",
+                    ));
+                }
+                Some(PermutationSettings {
+                    permutations: n,
+                    seed: seed.unwrap_or(1),
+                })
+            }
+        };
+        if let Some(c) = &self.cumulative_by {
+            if c.trim().is_empty() {
+                return Err(Error::usage(
+                    "--cumulative-by",
+                    "give the header of the column that orders the studies, e.g. --cumulative-by year",
+                ));
+            }
+        }
+        Ok(DiagnoseSettings {
+            loo: self.loo,
+            influence: self.influence,
+            permutations,
+            small_study: self.small_study,
+            cumulative_by: self.cumulative_by.clone(),
+        })
+    }
+}
+
 /// Runs a checked `fit`: read, analyse, write every requested output.
 ///
 /// # Errors
 /// Any library error.
 pub fn run_fit(run: &FitRun) -> Result<()> {
+    use std::io::IsTerminal;
     let bytes = run.source.read_all()?;
-    let report = analysis::run(&run.settings, &run.source.name(), &bytes)?;
+    let bar = match run.settings.diagnostics.permutations {
+        Some(p) if std::io::stderr().is_terminal() => {
+            let bar = indicatif::ProgressBar::new(p.permutations as u64);
+            bar.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "permuting {bar:30} {pos}/{len} arrangements ({eta})",
+                )
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+            );
+            Some(bar)
+        }
+        _ => None,
+    };
+    let tick = |n: u64| {
+        if let Some(b) = &bar {
+            b.inc(n);
+        }
+    };
+    let report = analysis::run_with_progress(&run.settings, &run.source.name(), &bytes, &tick);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let report = report?;
     // Every plot is drawn before anything is written, so a plot the model
     // cannot support leaves no partial set of outputs behind.
     let mut drawn = Vec::with_capacity(run.plots.len());

@@ -22,6 +22,7 @@
 //!     options: FitOptions { method: Tau2Method::Reml, inference: Inference::Kh, level: 0.95 },
 //!     predictions: vec![],
 //!     interpret: Default::default(),
+//!     diagnostics: Default::default(),
 //! };
 //! let report = run(&settings, "example", csv.as_bytes()).unwrap();
 //! assert_eq!(report.k, 4);
@@ -30,6 +31,7 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod diagnose;
 pub mod dist;
 pub mod effect;
 pub mod error;

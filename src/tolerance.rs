@@ -98,3 +98,11 @@ pub const NONCENTRAL_REF_ABS: f64 = 1e-10;
 /// b² + c²·v11, i.e. when the slope's test statistic is within about 1e-12
 /// (relative) of the critical value.
 pub const JN_DEGENERATE: f64 = 1e-12;
+/// A permuted statistic within this share of the observed one counts as at
+/// least as extreme: arrangements that are the same up to symmetry give the
+/// same statistic up to rounding in the refit.
+pub const PERMUTATION_TIE_REL: f64 = 1e-10;
+
+/// Most iterations of the trim-and-fill L0 estimate before it is declared
+/// not to settle (it usually settles in a handful).
+pub const TRIM_FILL_MAX_ITERS: usize = 100;

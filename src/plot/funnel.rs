@@ -41,6 +41,17 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         .map(|s| if residuals { s.residual } else { s.effect })
         .collect();
     let ses: Vec<f64> = studies.iter().map(|s| s.variance.sqrt()).collect();
+    // Studies filled in by trim-and-fill (`--small-study`), drawn only on a
+    // funnel of effects: trim-and-fill works on the model without moderators.
+    let filled: Vec<(f64, f64)> = match (&report.small_study, residuals) {
+        (Some(s), false) => s
+            .trim_fill
+            .filled_studies
+            .iter()
+            .map(|f| (f.effect, f.variance.sqrt()))
+            .collect(),
+        _ => Vec::new(),
+    };
     let se_max = ses.iter().copied().fold(0.0, f64::max) * 1.08;
 
     let analysed = match scale {
@@ -76,6 +87,27 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                 .into(),
         );
     }
+    if let Some(s) = &report.small_study {
+        caption.push(if residuals {
+            "Trim-and-fill's filled studies are not drawn: this funnel shows residuals of the \
+             model with moderators, and trim-and-fill used the model without them."
+                .to_string()
+        } else {
+            format!(
+                "○ {} filled in by trim-and-fill (mirrored images, not observed data); average \
+                 with them {:.3}.",
+                if s.trim_fill.filled == 1 {
+                    "study".to_string()
+                } else {
+                    format!("{} studies", s.trim_fill.filled)
+                },
+                match (&s.trim_fill.reading, ratio_axis) {
+                    (Some(r), true) => r.estimate,
+                    _ => s.trim_fill.estimate,
+                }
+            )
+        });
+    }
     caption.push(
         "Asymmetry can have many causes (small-study effects, heterogeneity, chance); it does \
          not by itself show publication bias."
@@ -91,8 +123,9 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     // x range: the studies, the region at the largest SE, and 0.
     let ya = Axis::new(0.0, se_max, false, 6).snapped();
     let se_bottom = ya.hi;
-    let mut lo = xs.iter().copied().fold(f64::INFINITY, f64::min);
-    let mut hi = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let all_x = || xs.iter().copied().chain(filled.iter().map(|f| f.0));
+    let mut lo = all_x().fold(f64::INFINITY, f64::min);
+    let mut hi = all_x().fold(f64::NEG_INFINITY, f64::max);
     lo = lo.min(centre - z * se_bottom).min(0.0);
     hi = hi.max(centre + z * se_bottom).max(0.0);
     let pad = 0.04 * (hi - lo).max(1e-6);
@@ -196,6 +229,14 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             4.5,
             Some((STUDY, 1.0)),
             Some((PAPER, 1)),
+        );
+    }
+    for (x, se) in &filled {
+        sc.circle(
+            (f.x(clamp_x(*x)), f.y(*se)),
+            4.5,
+            Some((PAPER, 1.0)),
+            Some((STUDY, 2)),
         );
     }
     f.axes(&mut sc, &x_title, "standard error");

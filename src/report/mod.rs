@@ -1,6 +1,7 @@
 //! Renderers of a [`FitReport`](crate::result::FitReport): terminal text,
 //! JSON and a per-study CSV. Pure functions of the result, no computation.
 
+pub mod diagnostics;
 pub mod html;
 pub mod interpret;
 pub mod json;

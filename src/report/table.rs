@@ -18,6 +18,25 @@ pub const HEADER: [&str; 11] = [
     "note",
 ];
 
+/// Columns added after [`HEADER`] with `--loo` (τ² and the tested p without the study).
+pub const LOO_COLUMNS: [&str; 3] = ["loo_tau2", "loo_p", "loo_flag"];
+
+/// Columns added after [`HEADER`] (and the leave-one-out columns) with `--influence`.
+pub const INFLUENCE_COLUMNS: [&str; 8] = [
+    "rstudent",
+    "dffits",
+    "cooks_distance",
+    "cov_ratio",
+    "hat",
+    "tau2_deleted",
+    "q_deleted",
+    "influential",
+];
+
+fn opt(x: Option<f64>) -> String {
+    x.map(|x| x.to_string()).unwrap_or_default()
+}
+
 /// Writes one row per input row (included and excluded, in file order).
 /// Numbers are written with full precision (shortest round-trip form).
 ///
@@ -25,33 +44,59 @@ pub const HEADER: [&str; 11] = [
 /// Any error of the writer.
 pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     let mut w = csv::Writer::from_writer(out);
-    // With artifact corrections, two columns more: the observed r and the SE factor.
     let art = report.artifacts.as_ref();
-    if art.is_some() {
-        let mut h: Vec<&str> = HEADER.to_vec();
-        h.extend(["observed_r", "se_factor"]);
-        w.write_record(h)?;
-    } else {
-        w.write_record(HEADER)?;
+    let mut header: Vec<&str> = HEADER.to_vec();
+    if report.leave_one_out.is_some() {
+        header.extend(LOO_COLUMNS);
     }
+    if report.influence.is_some() {
+        header.extend(INFLUENCE_COLUMNS);
+    }
+    // With artifact corrections, two columns more: the observed r and the SE factor.
+    if art.is_some() {
+        header.extend(["observed_r", "se_factor"]);
+    }
+    let extra = header.len() - HEADER.len();
+    w.write_record(&header)?;
     let mut rows: Vec<(u64, Vec<String>)> = Vec::new();
-    for s in &report.studies {
-        rows.push((
-            s.line,
-            vec![
-                s.study.clone(),
-                s.line.to_string(),
-                "yes".into(),
-                String::new(),
-                s.effect.to_string(),
-                s.variance.to_string(),
-                s.weight.to_string(),
-                s.fitted.to_string(),
-                s.residual.to_string(),
-                s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
-                s.note.clone().unwrap_or_default(),
-            ],
-        ));
+    for (n, s) in report.studies.iter().enumerate() {
+        let mut more = Vec::with_capacity(extra);
+        if let Some(l) = report.leave_one_out.as_ref().and_then(|x| x.get(n)) {
+            let flag = match (l.sign_changed, l.significance_changed) {
+                (true, true) => "sign+significance",
+                (true, false) => "sign",
+                (false, true) => "significance",
+                (false, false) => "",
+            };
+            more.extend([opt(l.tau2), opt(l.moderator_p.or(l.average_p)), flag.into()]);
+        }
+        if let Some(i) = report.influence.as_ref().and_then(|x| x.get(n)) {
+            more.extend([
+                opt(i.rstudent),
+                opt(i.dffits),
+                opt(i.cooks_distance),
+                opt(i.cov_ratio),
+                i.hat.to_string(),
+                opt(i.tau2_deleted),
+                opt(i.q_deleted),
+                if i.influential { "yes" } else { "no" }.into(),
+            ]);
+        }
+        let mut row = vec![
+            s.study.clone(),
+            s.line.to_string(),
+            "yes".into(),
+            String::new(),
+            s.effect.to_string(),
+            s.variance.to_string(),
+            s.weight.to_string(),
+            s.fitted.to_string(),
+            s.residual.to_string(),
+            s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
+            s.note.clone().unwrap_or_default(),
+        ];
+        row.extend(more);
+        rows.push((s.line, row));
     }
     if let Some(a) = art {
         for (row, s) in rows.iter_mut().zip(&a.studies) {
@@ -66,10 +111,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             "no".into(),
             e.reason.clone(),
         ];
-        row.extend(std::iter::repeat_n(
-            String::new(),
-            if art.is_some() { 9 } else { 7 },
-        ));
+        row.extend(std::iter::repeat_n(String::new(), 7 + extra));
         rows.push((e.line, row));
     }
     rows.sort_by_key(|r| r.0);

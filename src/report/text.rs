@@ -8,11 +8,11 @@ use std::io::Write;
 /// Studies listed one by one in the terminal at most; above this, `--table` has them.
 pub const MAX_LISTED_STUDIES: usize = 40;
 
-fn width(s: &str) -> usize {
+pub(super) fn width(s: &str) -> usize {
     s.chars().count()
 }
 
-fn pad(s: &str, w: usize) -> String {
+pub(super) fn pad(s: &str, w: usize) -> String {
     let n = width(s);
     if n >= w {
         s.to_string()
@@ -21,7 +21,7 @@ fn pad(s: &str, w: usize) -> String {
     }
 }
 
-fn lpad(s: &str, w: usize) -> String {
+pub(super) fn lpad(s: &str, w: usize) -> String {
     let n = width(s);
     if n >= w {
         s.to_string()
@@ -30,7 +30,7 @@ fn lpad(s: &str, w: usize) -> String {
     }
 }
 
-fn clip(s: &str, w: usize) -> String {
+pub(super) fn clip(s: &str, w: usize) -> String {
     if width(s) <= w {
         s.to_string()
     } else {
@@ -39,11 +39,11 @@ fn clip(s: &str, w: usize) -> String {
     }
 }
 
-fn interval(lo: f64, hi: f64) -> String {
+pub(super) fn interval(lo: f64, hi: f64) -> String {
     format!("[{}, {}]", num(lo), num(hi))
 }
 
-fn wrap(text: &str, indent: &str, width: usize) -> String {
+pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
     let mut out = String::new();
     let mut line = String::new();
     for word in text.split_whitespace() {
@@ -392,6 +392,7 @@ pub fn render(r: &FitReport) -> String {
         let _ = writeln!(o);
     }
     o.push_str(&super::interpret::render(r));
+    super::diagnostics::render(r, &level_pct, &mut o);
     for (title, items) in [
         ("Warnings", &r.warnings),
         ("Notes", &r.notes),

@@ -3,6 +3,7 @@
 mod browser;
 mod cli;
 mod determinism;
+mod diagnose;
 mod interpret;
 mod plan;
 mod plots;

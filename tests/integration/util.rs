@@ -41,6 +41,7 @@ pub fn settings(
         },
         predictions: vec![],
         interpret: Default::default(),
+        diagnostics: Default::default(),
     }
 }
 

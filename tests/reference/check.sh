@@ -53,3 +53,16 @@ trap 'rm -rf "$tmp"' EXIT
     echo "          $venv/bin/python tests/reference/interpret.py tests/data/reference" >&2
     exit 1
 }
+
+# The diagnostics fixtures (tests/reference/diagnose.py, an independent
+# script) live in their own folder and are compared the same way.
+"$venv/bin/python" "$here/diagnose.py" "$tmp/diagnose" > "$tmp/diagnose.log" 2>&1 || {
+    cat "$tmp/diagnose.log" >&2
+    die "diagnose.py failed (see above)"
+}
+"$venv/bin/python" "$here/compare.py" "$committed/diagnose" "$tmp/diagnose" || {
+    echo "check.sh: the regenerated diagnostics reference values differ from tests/data/reference/diagnose/." >&2
+    echo "check.sh: if the change is intended, regenerate with:" >&2
+    echo "          $venv/bin/python tests/reference/diagnose.py tests/data/reference/diagnose" >&2
+    exit 1
+}

@@ -1,0 +1,371 @@
+//! Terminal sections of the robustness diagnostics (`--loo`, `--influence`,
+//! `--permutations`, `--small-study`, `--cumulative-by`), rendered from the
+//! public result only.
+
+use super::text::{clip, interval, lpad, pad, width, wrap, MAX_LISTED_STUDIES};
+use super::{format_num as num, format_p, format_percent};
+use crate::result::{AtValue, FitReport};
+use std::fmt::Write as _;
+
+fn p_short(p: f64) -> String {
+    format_p(p).trim_start_matches("= ").to_string()
+}
+
+fn opt(x: Option<f64>) -> String {
+    x.map(num).unwrap_or_else(|| "—".into())
+}
+
+fn label_width(labels: impl Iterator<Item = usize>) -> usize {
+    labels.max().unwrap_or(5).clamp(5, 28)
+}
+
+/// Appends the diagnostic sections that are present in the report.
+pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
+    let alpha = 1.0 - r.model.level;
+    let has_mods = r.model.terms.len() > 1;
+    if let Some(loo) = &r.leave_one_out {
+        let _ = writeln!(o, "Leave-one-out (the model refitted without each study)");
+        let tested = if has_mods {
+            "moderator test p"
+        } else {
+            "average effect p"
+        };
+        let terms: Vec<&String> = if has_mods {
+            r.model.terms.iter().skip(1).take(3).collect()
+        } else {
+            r.model.terms.iter().take(1).collect()
+        };
+        let first = usize::from(has_mods);
+        let flagged = loo
+            .iter()
+            .filter(|l| l.sign_changed || l.significance_changed)
+            .count();
+        let list_all = loo.len() <= MAX_LISTED_STUDIES;
+        let lw = label_width(loo.iter().map(|l| width(&l.study)));
+        let mut head = format!("  {}", pad("without", lw));
+        for t in &terms {
+            let _ = write!(head, "  {}", lpad(&clip(t, 10), 10));
+        }
+        let _ = write!(
+            head,
+            "  {}  {}  {}  flag",
+            lpad("τ²", 10),
+            lpad("I²", 6),
+            lpad("p", 8)
+        );
+        let _ = writeln!(o, "{head}");
+        for l in loo {
+            let flag = match (l.sign_changed, l.significance_changed) {
+                (true, true) => "sign, significance",
+                (true, false) => "sign",
+                (false, true) => "significance",
+                (false, false) => "",
+            };
+            if !list_all && flag.is_empty() {
+                continue;
+            }
+            let mut line = format!("  {}", pad(&clip(&l.study, lw), lw));
+            if l.problem.is_some() {
+                let _ = writeln!(
+                    o,
+                    "{line}  no answer: {}",
+                    l.problem.as_deref().unwrap_or("")
+                );
+                continue;
+            }
+            for j in 0..terms.len() {
+                let c = l.coefficients.get(first + j).copied();
+                let _ = write!(line, "  {}", lpad(&opt(c), 10));
+            }
+            let p = l.moderator_p.or(l.average_p);
+            let _ = write!(
+                line,
+                "  {}  {}  {}  {flag}",
+                lpad(&opt(l.tau2), 10),
+                lpad(&l.i2.map(format_percent).unwrap_or("—".into()), 6),
+                lpad(&p.map(p_short).unwrap_or("—".into()), 8)
+            );
+            let _ = writeln!(o, "{line}");
+        }
+        if !list_all {
+            let _ = writeln!(
+                o,
+                "  (only the flagged studies are listed; --json and --table have all {})",
+                loo.len()
+            );
+        }
+        let what = if has_mods {
+            "a moderator coefficient changes sign, or the moderator test crosses"
+        } else {
+            "the average effect changes sign, or its test crosses"
+        };
+        o.push_str(&wrap(
+            &format!(
+                "{flagged} of {} removals flagged ({what} α = {alpha:.2}); {tested} from the \
+                 model's own inference. A flagged study is a reason to check its data and \
+                 design, not to drop it.",
+                loo.len()
+            ),
+            "  ",
+            70,
+        ));
+        let _ = writeln!(o);
+    }
+    if let (Some(inf), Some(cut)) = (&r.influence, &r.influence_cutoffs) {
+        let _ = writeln!(o, "Influence of each study (Viechtbauer & Cheung 2010)");
+        let list_all = inf.len() <= MAX_LISTED_STUDIES;
+        let lw = label_width(inf.iter().map(|l| width(&l.study)));
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  {}  {}  {}  {}  cut-offs exceeded",
+            pad("study", lw),
+            lpad("rstudent", 8),
+            lpad("DFFITS", 7),
+            lpad("Cook's D", 8),
+            lpad("COVRATIO", 8),
+            lpad("hat", 6),
+            lpad("τ² (−i)", 9),
+            lpad("Q (−i)", 8)
+        );
+        let f2 = |x: Option<f64>| x.map(|x| format!("{x:.3}")).unwrap_or("—".into());
+        for s in inf {
+            if !list_all && !s.influential {
+                continue;
+            }
+            let _ = writeln!(
+                o,
+                "  {}  {}  {}  {}  {}  {}  {}  {}  {}{}",
+                pad(&clip(&s.study, lw), lw),
+                lpad(&f2(s.rstudent), 8),
+                lpad(&f2(s.dffits), 7),
+                lpad(&f2(s.cooks_distance), 8),
+                lpad(&f2(s.cov_ratio), 8),
+                lpad(&format!("{:.3}", s.hat), 6),
+                lpad(&opt(s.tau2_deleted), 9),
+                lpad(
+                    &s.q_deleted.map(|q| format!("{q:.2}")).unwrap_or("—".into()),
+                    8
+                ),
+                s.exceeded.join(", "),
+                if s.influential {
+                    "  ← influential"
+                } else {
+                    ""
+                }
+            );
+        }
+        if !list_all {
+            let _ = writeln!(
+                o,
+                "  (only the influential studies are listed; --json and --table have all {})",
+                inf.len()
+            );
+        }
+        let n = inf.iter().filter(|s| s.influential).count();
+        o.push_str(&wrap(
+            &format!(
+                "{n} of {} studies influential by the cut-offs |DFFITS| > {:.3}, Cook's D > {:.3}, \
+                 hat > {:.3} (rules of thumb in common practice); |rstudent| > {:.2} marks an \
+                 outlying effect. An influential study deserves a second look, not removal.",
+                inf.len(),
+                cut.dffits,
+                cut.cooks_distance,
+                cut.hat,
+                cut.rstudent
+            ),
+            "  ",
+            70,
+        ));
+        let _ = writeln!(o);
+    }
+    if let Some(p) = &r.permutation {
+        let how = if p.exact {
+            format!(
+                "all {} distinct arrangements of the moderator values",
+                p.permutations
+            )
+        } else {
+            format!(
+                "{} random permutations of the moderator values, seed {}",
+                p.permutations,
+                p.seed.unwrap_or_default()
+            )
+        };
+        let _ = writeln!(o, "Permutation test of the moderators");
+        let _ = writeln!(o, "  {how}");
+        let model_p = r
+            .moderator_test
+            .as_ref()
+            .map(|t| {
+                format!(
+                    " (from the {} distribution: p {})",
+                    t.distribution,
+                    format_p(t.p)
+                )
+            })
+            .unwrap_or_default();
+        let _ = writeln!(
+            o,
+            "  moderator test        permutation p {}{model_p}",
+            format_p(p.moderator_p)
+        );
+        for (c, cp) in r.coefficients.iter().zip(&p.coefficient_p) {
+            if let Some(cp) = cp {
+                let _ = writeln!(
+                    o,
+                    "  {}  permutation p {}",
+                    pad(&clip(&c.term, 20), 20),
+                    format_p(*cp)
+                );
+            }
+        }
+        if p.failed > 0 {
+            let _ = writeln!(
+                o,
+                "  ({} arrangements could not be refitted and are left out)",
+                p.failed
+            );
+        }
+        let smallest = if p.exact {
+            1.0 / p.permutations as f64
+        } else {
+            1.0 / (p.permutations as f64 + 1.0)
+        };
+        o.push_str(&wrap(
+            &format!(
+                "The permutation p does not rely on the F or normal distribution; with these \
+                 arrangements it cannot be smaller than {}.",
+                num(smallest)
+            ),
+            "  ",
+            70,
+        ));
+        let _ = writeln!(o);
+    }
+    if let Some(s) = &r.small_study {
+        let _ = writeln!(o, "Small-study effects");
+        let a = &s.asymmetry_test;
+        o.push_str(&wrap(
+            &format!(
+                "regression test (effect on its standard error, weights 1/variance{}): slope {} \
+                 (SE {}), t({}) = {:.2}, p {}",
+                if a.with_moderators {
+                    ", with the moderators"
+                } else {
+                    ""
+                },
+                num(a.slope),
+                num(a.se),
+                a.df,
+                a.statistic,
+                format_p(a.p)
+            ),
+            "  ",
+            70,
+        ));
+        o.push_str(&wrap(
+            &format!(
+                "rank correlation (Kendall's τ between standardised effects and variances): \
+                 τ = {:.3}, p {}",
+                s.rank_test.tau,
+                format_p(s.rank_test.p)
+            ),
+            "  ",
+            70,
+        ));
+        let t = &s.trim_fill;
+        let mut tf = format!(
+            "trim-and-fill (average effect, no moderators): {} {} filled on the {}; average \
+             with them {} ({level_pct} CI {}), observed studies alone {}",
+            t.filled,
+            if t.filled == 1 { "study" } else { "studies" },
+            t.side,
+            num(t.estimate),
+            interval(t.ci_low, t.ci_high),
+            num(t.estimate_observed)
+        );
+        if let (Some(rd), Some(name)) = (&t.reading, &r.measure.reading_name) {
+            let _ = write!(
+                tf,
+                "; as {name}: {} {}",
+                num(rd.estimate),
+                interval(rd.ci_low, rd.ci_high)
+            );
+        }
+        o.push_str(&wrap(&tf, "  ", 70));
+        for c in &s.cautions {
+            let w = wrap(c, "    ", 68);
+            let _ = write!(o, "  - {}", w.trim_start());
+        }
+        let _ = writeln!(o);
+    }
+    if let (Some(steps), Some(ord)) = (&r.cumulative, &r.cumulative_order) {
+        let _ = writeln!(
+            o,
+            "Cumulative meta-analysis (average effect, studies added by {}, {})",
+            ord.column,
+            if ord.order == "numeric" {
+                "ascending numbers"
+            } else {
+                "text in code-point order"
+            }
+        );
+        let lw = label_width(steps.iter().map(|s| width(&s.study)));
+        let vw = steps
+            .iter()
+            .map(|s| width(&value_text(&s.value)))
+            .max()
+            .unwrap_or(5)
+            .clamp(5, 16);
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  {}  {}  {}",
+            pad("adding", lw),
+            pad(&clip(&ord.column, vw), vw),
+            lpad("k", 4),
+            lpad("average", 9),
+            pad(&format!("{level_pct} CI"), 19),
+            lpad("p", 8),
+            lpad("τ²", 9)
+        );
+        let many = steps.len() > MAX_LISTED_STUDIES;
+        for (n, s) in steps.iter().enumerate() {
+            if many && n >= MAX_LISTED_STUDIES / 2 && n + MAX_LISTED_STUDIES / 2 < steps.len() {
+                if n == MAX_LISTED_STUDIES / 2 {
+                    let _ = writeln!(o, "  ... (all steps are in --json)");
+                }
+                continue;
+            }
+            let ci = match (s.ci_low, s.ci_high) {
+                (Some(a), Some(b)) => interval(a, b),
+                _ => "—".into(),
+            };
+            let _ = writeln!(
+                o,
+                "  {}  {}  {}  {}  {}  {}  {}",
+                pad(&clip(&s.study, lw), lw),
+                pad(&clip(&value_text(&s.value), vw), vw),
+                lpad(&s.k.to_string(), 4),
+                lpad(&opt(s.estimate), 9),
+                pad(&ci, 19),
+                lpad(&s.p.map(p_short).unwrap_or("—".into()), 8),
+                lpad(&opt(s.tau2), 9)
+            );
+        }
+        o.push_str(&wrap(
+            "The first row is the first study alone (normal interval). A cumulative analysis \
+             shows how the evidence built up; its p-values are repeated looks at growing data \
+             and are not adjusted for that.",
+            "  ",
+            70,
+        ));
+        let _ = writeln!(o);
+    }
+}
+
+fn value_text(v: &AtValue) -> String {
+    match v {
+        AtValue::Number(x) => format!("{x}"),
+        AtValue::Level(l) => l.clone(),
+    }
+}

@@ -1,0 +1,818 @@
+//! The robustness diagnostics of `pondus fit` (`--loo`, `--influence`,
+//! `--permutations`, `--small-study`, `--cumulative-by`).
+//!
+//! Outside sources:
+//! - `tests/data/reference/diagnose/*.json`: an independent numpy 2.3.5 /
+//!   scipy 1.16.3 / statsmodels 0.14.6 script, `tests/reference/diagnose.py`
+//!   (own REML and DerSimonian–Laird fits; influence measures after
+//!   Viechtbauer & Cheung 2010; the regression test with statsmodels WLS;
+//!   the rank test with scipy.stats.kendalltau; trim-and-fill L0 written
+//!   from Duval & Tweedie 2000; the exact permutation p by enumerating all
+//!   720 orderings with itertools), regenerated and compared by
+//!   `tests/reference/check.sh`.
+//! - Simulation of the published finding of Higgins & Thompson (2004, Stat.
+//!   Med. 23:1663) and IntHout et al. (2014, BMC Med. Res. Methodol. 14:25):
+//!   with k = 10 and large τ², the permutation test and the Knapp–Hartung
+//!   test keep their type I error near 5 %, the z test rejects too often.
+//!   Fixed seed, tolerances from the Monte-Carlo error.
+//!
+//! The data sets written in this file are invented for the tests.
+
+use crate::util::{close, repo, settings};
+use assert_cmd::Command;
+use pondus::analysis::{run, FitSettings};
+use pondus::diagnose::{DiagnoseSettings, PermutationSettings};
+use pondus::effect::Measure;
+use pondus::model::tau2::Tau2Method;
+use pondus::model::{FitOptions, Inference};
+use pondus::result::FitReport;
+use pondus::tolerance::{REFERENCE_ABS, REFERENCE_P_REL, REFERENCE_REL};
+use serde_json::Value;
+
+fn load(name: &str) -> Value {
+    let text =
+        std::fs::read_to_string(repo(&format!("tests/data/reference/diagnose/{name}"))).unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+fn csv(name: &str) -> String {
+    std::fs::read_to_string(repo(&format!("tests/data/reference/{name}"))).unwrap()
+}
+
+fn num(v: &Value, what: &str) -> f64 {
+    v.as_f64()
+        .unwrap_or_else(|| panic!("{what}: not a number: {v}"))
+}
+
+#[track_caller]
+fn v(what: &str, a: f64, b: &Value) {
+    close(what, a, num(b, what), REFERENCE_REL, REFERENCE_ABS);
+}
+
+#[track_caller]
+fn p(what: &str, a: f64, b: &Value) {
+    close(what, a, num(b, what), REFERENCE_P_REL, 1e-300);
+}
+
+#[track_caller]
+fn ov(what: &str, a: Option<f64>, b: &Value) {
+    match a {
+        None => assert!(b.is_null(), "{what}: pondus null, reference {b}"),
+        Some(a) => v(what, a, b),
+    }
+}
+
+fn method(id: &str) -> Tau2Method {
+    match id {
+        "reml" => Tau2Method::Reml,
+        "dl" => Tau2Method::Dl,
+        other => panic!("unknown estimator {other}"),
+    }
+}
+
+fn inference(id: &str) -> Inference {
+    match id {
+        "kh" => Inference::Kh,
+        "z" => Inference::Z,
+        other => panic!("unknown inference {other}"),
+    }
+}
+
+fn all_diagnostics(order: Option<&str>) -> DiagnoseSettings {
+    DiagnoseSettings {
+        loo: true,
+        influence: true,
+        permutations: None,
+        small_study: true,
+        cumulative_by: order.map(String::from),
+    }
+}
+
+fn run_fixture(run_ref: &Value, measure: Measure, data: &str) -> FitReport {
+    let mods: Vec<&str> = run_ref["moderators"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| m.as_str().unwrap())
+        .collect();
+    let mut s = settings(
+        measure,
+        &mods,
+        method(run_ref["method"].as_str().unwrap()),
+        inference(run_ref["inference"].as_str().unwrap()),
+    );
+    s.diagnostics = all_diagnostics(run_ref["cumulative_by"].as_str());
+    run(&s, "reference.csv", data.as_bytes()).unwrap_or_else(|e| panic!("fit failed: {e}"))
+}
+
+fn check_reference(file: &str, measure: Measure, data: &str) {
+    let fixture = load(file);
+    for run_ref in fixture["runs"].as_array().unwrap() {
+        let label = format!(
+            "{file} {}/{}",
+            run_ref["method"].as_str().unwrap(),
+            run_ref["inference"].as_str().unwrap()
+        );
+        let r = run_fixture(run_ref, measure, data);
+        for (c, e) in r
+            .coefficients
+            .iter()
+            .zip(run_ref["coefficients"].as_array().unwrap())
+        {
+            v(&format!("{label} coefficient {}", c.term), c.estimate, e);
+        }
+
+        let loo = r.leave_one_out.as_ref().expect("leave_one_out");
+        let loo_ref = run_ref["leave_one_out"].as_array().unwrap();
+        assert_eq!(loo.len(), loo_ref.len(), "{label}: LOO rows");
+        for (l, e) in loo.iter().zip(loo_ref) {
+            let w = format!("{label} LOO without {}", l.study);
+            assert!(l.problem.is_none(), "{w}: {:?}", l.problem);
+            for (j, (a, b)) in l
+                .coefficients
+                .iter()
+                .zip(e["coefficients"].as_array().unwrap())
+                .enumerate()
+            {
+                v(&format!("{w} coefficient {j}"), *a, b);
+            }
+            ov(&format!("{w} tau2"), l.tau2, &e["tau2"]);
+            ov(&format!("{w} i2"), l.i2, &e["i2"]);
+            match (l.moderator_p, l.average_p) {
+                (Some(a), None) => p(&format!("{w} moderator p"), a, &e["moderator_p"]),
+                (None, Some(a)) => p(&format!("{w} average p"), a, &e["average_p"]),
+                other => panic!("{w}: p fields {other:?}"),
+            }
+            assert_eq!(Some(l.sign_changed), e["sign_changed"].as_bool(), "{w}");
+            assert_eq!(
+                Some(l.significance_changed),
+                e["significance_changed"].as_bool(),
+                "{w}"
+            );
+        }
+
+        let inf = r.influence.as_ref().expect("influence");
+        let inf_ref = run_ref["influence"].as_array().unwrap();
+        assert_eq!(inf.len(), inf_ref.len());
+        for (s, e) in inf.iter().zip(inf_ref) {
+            let w = format!("{label} influence {}", s.study);
+            ov(&format!("{w} rstudent"), s.rstudent, &e["rstudent"]);
+            ov(&format!("{w} dffits"), s.dffits, &e["dffits"]);
+            ov(
+                &format!("{w} cooks"),
+                s.cooks_distance,
+                &e["cooks_distance"],
+            );
+            ov(&format!("{w} cov_ratio"), s.cov_ratio, &e["cov_ratio"]);
+            v(&format!("{w} hat"), s.hat, &e["hat"]);
+            ov(
+                &format!("{w} tau2_deleted"),
+                s.tau2_deleted,
+                &e["tau2_deleted"],
+            );
+            ov(&format!("{w} q_deleted"), s.q_deleted, &e["q_deleted"]);
+            assert_eq!(Some(s.influential), e["influential"].as_bool(), "{w}");
+            let fired: Vec<&str> = e["exceeded"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x.as_str().unwrap())
+                .collect();
+            assert_eq!(s.exceeded, fired, "{w}");
+        }
+        let cut = r.influence_cutoffs.as_ref().unwrap();
+        let cut_ref = &run_ref["influence_cutoffs"];
+        v("dffits cut-off", cut.dffits, &cut_ref["dffits"]);
+        v(
+            "Cook cut-off",
+            cut.cooks_distance,
+            &cut_ref["cooks_distance"],
+        );
+        v("hat cut-off", cut.hat, &cut_ref["hat"]);
+        v("rstudent cut-off", cut.rstudent, &cut_ref["rstudent"]);
+
+        let ss = r.small_study.as_ref().expect("small_study");
+        let a = &ss.asymmetry_test;
+        let a_ref = &run_ref["asymmetry_test"];
+        v(
+            &format!("{label} Egger t"),
+            a.statistic,
+            &a_ref["statistic"],
+        );
+        v(&format!("{label} Egger df"), a.df, &a_ref["df"]);
+        p(&format!("{label} Egger p"), a.p, &a_ref["p"]);
+        v(&format!("{label} Egger slope"), a.slope, &a_ref["slope"]);
+        v(&format!("{label} Egger se"), a.se, &a_ref["se"]);
+        v(
+            &format!("{label} Kendall tau"),
+            ss.rank_test.tau,
+            &run_ref["rank_test"]["tau"],
+        );
+        p(
+            &format!("{label} Begg p"),
+            ss.rank_test.p,
+            &run_ref["rank_test"]["p"],
+        );
+        let t = &ss.trim_fill;
+        let t_ref = &run_ref["trim_fill"];
+        assert_eq!(
+            Some(t.filled as u64),
+            t_ref["filled"].as_u64(),
+            "{label} filled"
+        );
+        assert_eq!(
+            Some(t.side.as_str()),
+            t_ref["side"].as_str(),
+            "{label} side"
+        );
+        assert_eq!(Some(t.iterations as u64), t_ref["iterations"].as_u64());
+        v(
+            &format!("{label} TF estimate"),
+            t.estimate,
+            &t_ref["estimate"],
+        );
+        v(&format!("{label} TF ci_low"), t.ci_low, &t_ref["ci_low"]);
+        v(&format!("{label} TF ci_high"), t.ci_high, &t_ref["ci_high"]);
+        v(
+            &format!("{label} TF observed"),
+            t.estimate_observed,
+            &t_ref["estimate_observed"],
+        );
+        for (f, e) in t
+            .filled_studies
+            .iter()
+            .zip(t_ref["filled_studies"].as_array().unwrap())
+        {
+            v("filled effect", f.effect, &e["effect"]);
+            v("filled variance", f.variance, &e["variance"]);
+        }
+
+        if let Some(steps_ref) = run_ref["cumulative"].as_array() {
+            let steps = r.cumulative.as_ref().expect("cumulative");
+            assert_eq!(steps.len(), steps_ref.len());
+            for (s, e) in steps.iter().zip(steps_ref) {
+                let w = format!("{label} cumulative step {}", s.k);
+                let idx = e["index"].as_u64().unwrap() as usize;
+                assert_eq!(s.study, r.studies[idx].study, "{w}: order");
+                assert_eq!(Some(s.k as u64), e["k"].as_u64());
+                ov(&format!("{w} estimate"), s.estimate, &e["estimate"]);
+                ov(&format!("{w} se"), s.se, &e["se"]);
+                ov(&format!("{w} ci_low"), s.ci_low, &e["ci_low"]);
+                ov(&format!("{w} ci_high"), s.ci_high, &e["ci_high"]);
+                p(&format!("{w} p"), s.p.unwrap(), &e["p"]);
+                ov(&format!("{w} tau2"), s.tau2, &e["tau2"]);
+                ov(&format!("{w} i2"), s.i2, &e["i2"]);
+            }
+        }
+    }
+}
+
+#[test]
+fn bcg_with_latitude_matches_the_independent_script() {
+    check_reference("diagnose_bcg.json", Measure::LogRr, &csv("bcg.csv"));
+}
+
+#[test]
+fn bcg_without_moderators_matches_the_independent_script() {
+    check_reference("diagnose_bcg_plain.json", Measure::LogRr, &csv("bcg.csv"));
+}
+
+#[test]
+fn simulated_k20_with_dose_and_region_matches_the_independent_script() {
+    check_reference(
+        "diagnose_sim_k20.json",
+        Measure::Effect,
+        &csv("sim_k20.csv"),
+    );
+}
+
+#[test]
+fn simulated_k8_at_the_boundary_matches_the_independent_script() {
+    // Ordered by the text column `study` (code-point order).
+    check_reference(
+        "diagnose_sim_k8.json",
+        Measure::Effect,
+        &csv("sim_k8_boundary.csv"),
+    );
+}
+
+fn tiny_settings(
+    moderator: &str,
+    m: Tau2Method,
+    inf: Inference,
+    n: usize,
+    seed: u64,
+) -> FitSettings {
+    let mut s = settings(Measure::Effect, &[moderator], m, inf);
+    s.diagnostics.permutations = Some(PermutationSettings {
+        permutations: n,
+        seed,
+    });
+    s
+}
+
+#[test]
+fn exact_permutation_p_matches_full_enumeration() {
+    let data =
+        std::fs::read_to_string(repo("tests/data/reference/diagnose/diagnose_tiny.csv")).unwrap();
+    let fixture = load("diagnose_tiny.json");
+    for e in fixture["runs"].as_array().unwrap() {
+        let m = e["moderator"].as_str().unwrap();
+        let s = tiny_settings(
+            m,
+            method(e["method"].as_str().unwrap()),
+            inference(e["inference"].as_str().unwrap()),
+            1000,
+            1,
+        );
+        let r = run(&s, "tiny.csv", data.as_bytes()).unwrap();
+        let perm = r.permutation.unwrap();
+        assert!(perm.exact, "{m}: fewer arrangements than permutations");
+        assert_eq!(perm.seed, None);
+        assert_eq!(Some(perm.permutations as u64), e["arrangements"].as_u64());
+        assert_eq!(perm.arrangements, e["arrangements"].as_f64());
+        // Counts over the same arrangements: equal up to rounding of a share.
+        close(
+            &format!("{m} moderator p"),
+            perm.moderator_p,
+            num(&e["moderator_p"], "p"),
+            1e-12,
+            0.0,
+        );
+        assert_eq!(perm.coefficient_p[0], None);
+        close(
+            &format!("{m} coefficient p"),
+            perm.coefficient_p[1].unwrap(),
+            num(&e["coefficient_p"][1], "p"),
+            1e-12,
+            0.0,
+        );
+    }
+}
+
+const TWELVE: &str = "study,effect,variance,x\n\
+    A,0.10,0.02,1\nB,0.32,0.03,2\nC,0.15,0.05,3\nD,0.40,0.02,4\nE,0.22,0.04,5\nF,0.51,0.03,6\n\
+    G,0.38,0.06,7\nH,0.62,0.02,8\nI,0.35,0.05,9\nJ,0.70,0.03,10\nK,0.58,0.04,11\nL,0.81,0.02,12\n";
+
+#[test]
+fn random_permutations_do_not_depend_on_the_number_of_threads() {
+    // 12! arrangements ≫ 600 permutations: random; three blocks, the last partial.
+    let s = tiny_settings("x", Tau2Method::Reml, Inference::Kh, 600, 42);
+    let go = |threads: usize| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| run(&s, "twelve.csv", TWELVE.as_bytes()).unwrap())
+            .permutation
+            .unwrap()
+    };
+    let one = go(1);
+    for t in [2, 3] {
+        let other = go(t);
+        assert_eq!(one.moderator_p, other.moderator_p, "{t} threads");
+        assert_eq!(one.coefficient_p, other.coefficient_p, "{t} threads");
+    }
+    assert!(!one.exact);
+    assert_eq!(one.seed, Some(42));
+    assert_eq!(one.permutations, 600);
+    // p = (b + 1)/(N + 1): an integer count over 601.
+    let b = one.moderator_p * 601.0 - 1.0;
+    assert!((b - b.round()).abs() < 1e-9 && b >= 0.0, "{b}");
+    // A strong linear trend: few permutations reach the observed statistic.
+    assert!(one.moderator_p < 0.01, "{}", one.moderator_p);
+    // Another seed draws other permutations.
+    let s2 = tiny_settings("x", Tau2Method::Reml, Inference::Kh, 600, 43);
+    let two = run(&s2, "twelve.csv", TWELVE.as_bytes()).unwrap();
+    assert_eq!(two.permutation.unwrap().seed, Some(43));
+}
+
+/// Rejection rates under the null hypothesis (β₁ = 0) with k = 10 and a
+/// large τ², after Higgins & Thompson (2004) and IntHout et al. (2014):
+/// the Knapp–Hartung t test and the permutation test hold about 5 %, the
+/// Wald z test rejects too often.
+///
+/// Each data set: v_i spread from 0.01 to 0.1, τ² = 0.5 (I² near 0.9),
+/// x_i = 1..10, y_i ~ N(0, v_i + τ²), xoshiro256** from the project's seeded
+/// generator, REML. 2,000 data sets for z and Knapp–Hartung (one fit gives
+/// both: the z covariance is the Knapp–Hartung one without its factor);
+/// 150 of them also get a permutation test with 19 permutations, whose
+/// p = (b + 1)/20 ≤ 0.05 exactly when no permutation reaches the observed
+/// statistic, so its size is 1/20 under exchangeability.
+///
+/// Tolerances: 3.5 Monte-Carlo standard errors at the nominal 5 %:
+/// √(0.05·0.95/2000) = 0.0049 and √(0.05·0.95/150) = 0.0178.
+#[test]
+fn permutation_and_knapp_hartung_hold_their_size_while_z_does_not() {
+    use pondus::diagnose::{permutation, ModelData};
+    use pondus::model::{self, inference};
+    use pondus::plan::block_rng;
+    let k = 10;
+    let tau2 = 0.5;
+    let v: Vec<f64> = (0..k).map(|i| 0.01 + 0.01 * i as f64).collect();
+    let x: Vec<f64> = (0..k).flat_map(|i| [1.0, (i + 1) as f64]).collect();
+    let options = FitOptions {
+        method: Tau2Method::Reml,
+        inference: Inference::Kh,
+        level: 0.95,
+    };
+    let z_crit = pondus::dist::normal_quantile(0.975);
+    let mut rng = block_rng(20_040_623, 0);
+    let (reps, perm_reps) = (2000usize, 150usize);
+    let (mut kh_rej, mut z_rej, mut perm_rej) = (0usize, 0usize, 0usize);
+    for rep in 0..reps {
+        let y: Vec<f64> = v
+            .iter()
+            .map(|vi| (vi + tau2).sqrt() * rng.next_normal())
+            .collect();
+        let f = model::fit_parts(&y, &v, &x, 2, options, false).unwrap();
+        let c = &inference::coefficients(&f)[1];
+        if c.p < 0.05 {
+            kh_rej += 1;
+        }
+        let z = c.estimate / (f.cov[(1, 1)] / f.kh_scale.unwrap()).sqrt();
+        if z.abs() > z_crit {
+            z_rej += 1;
+        }
+        if rep < perm_reps {
+            let d = ModelData {
+                y: &y,
+                v: &v,
+                x: &x,
+                p: 2,
+                options,
+            };
+            let ps = PermutationSettings {
+                permutations: 19,
+                seed: rep as u64,
+            };
+            let t = permutation::test(&d, ps, &|_| {}).unwrap();
+            if t.moderator_p <= 0.05 {
+                perm_rej += 1;
+            }
+        }
+    }
+    let kh = kh_rej as f64 / reps as f64;
+    let z = z_rej as f64 / reps as f64;
+    let perm = perm_rej as f64 / perm_reps as f64;
+    let se = (0.05f64 * 0.95 / reps as f64).sqrt();
+    let se_perm = (0.05f64 * 0.95 / perm_reps as f64).sqrt();
+    assert!((kh - 0.05).abs() < 3.5 * se, "Knapp–Hartung size {kh}");
+    assert!(z > 0.05 + 3.5 * se, "z size {z} should exceed 5 % clearly");
+    assert!(
+        (perm - 0.05).abs() < 3.5 * se_perm,
+        "permutation size {perm}"
+    );
+}
+
+// ---------------------------------------------------------------- the command line
+
+fn pondus() -> Command {
+    Command::cargo_bin("pondus").expect("the pondus binary is built")
+}
+
+fn bcg() -> String {
+    repo("tests/data/reference/bcg.csv").display().to_string()
+}
+
+/// Runs `pondus fit FILE ARGS`, expects exit 2 and returns stderr.
+fn fails(file: &str, args: &str) -> String {
+    let out = pondus()
+        .arg("fit")
+        .arg(file)
+        .args(args.split_whitespace())
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr).to_string();
+    assert_eq!(out.status.code(), Some(2), "{args}: {err}");
+    assert!(!err.contains("panicked"), "{err}");
+    err
+}
+
+fn temp_csv(text: &str) -> (tempfile::TempDir, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("data.csv");
+    std::fs::write(&path, text).unwrap();
+    let s = path.display().to_string();
+    (dir, s)
+}
+
+#[test]
+fn zero_permutations_are_refused() {
+    let err = fails(
+        &bcg(),
+        "--measure log-rr --moderator ablat --permutations 0",
+    );
+    assert!(
+        err.contains("--permutations") && err.contains("at least 1"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_seed_without_permutations_is_refused() {
+    let err = fails(&bcg(), "--measure log-rr --moderator ablat --seed 3");
+    assert!(
+        err.contains("--seed") && err.contains("--permutations N"),
+        "{err}"
+    );
+}
+
+#[test]
+fn permutations_without_moderators_are_refused() {
+    let err = fails(&bcg(), "--measure log-rr --permutations 99");
+    assert!(err.contains("--moderator"), "{err}");
+}
+
+#[test]
+fn cumulative_by_a_missing_column_names_it() {
+    let err = fails(&bcg(), "--measure log-rr --cumulative-by decade");
+    assert!(
+        err.contains("decade") && err.contains("--cumulative-by"),
+        "{err}"
+    );
+}
+
+#[test]
+fn cumulative_by_a_column_with_a_missing_value_names_the_line() {
+    let (_d, f) =
+        temp_csv("study,effect,variance,year\nA,0.1,0.01,2001\nB,0.3,0.02,NA\nC,0.2,0.01,2003\n");
+    let err = fails(&f, "--cumulative-by year");
+    assert!(err.contains("line 3") && err.contains("'year'"), "{err}");
+}
+
+#[test]
+fn cumulative_by_text_sorts_by_code_points_and_numbers_numerically() {
+    // Numbers: 9 < 10 (numerically; as text "10" < "9").
+    let (_d, f) = temp_csv(
+        "study,effect,variance,wave,code\nA,0.1,0.01,10,b2\nB,0.3,0.02,9,a7\nC,0.2,0.01,11,B1\n",
+    );
+    let json = |col: &str| -> Value {
+        let out = pondus()
+            .args(["fit", &f, "--cumulative-by", col, "--json", "-"])
+            .output()
+            .unwrap();
+        assert!(out.status.success());
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let order = |v: &Value| -> Vec<String> {
+        v["cumulative"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|s| s["study"].as_str().unwrap().to_string())
+            .collect()
+    };
+    let w = json("wave");
+    assert_eq!(order(&w), ["B", "A", "C"]);
+    assert_eq!(w["cumulative_order"]["order"], "numeric");
+    let c = json("code");
+    // Code points: "B1" < "a7" < "b2".
+    assert_eq!(order(&c), ["C", "B", "A"]);
+    assert_eq!(c["cumulative_order"]["order"], "text");
+}
+
+#[test]
+fn small_study_with_two_studies_is_refused() {
+    let (_d, f) = temp_csv("study,effect,variance\nA,0.1,0.01\nB,0.3,0.02\n");
+    let err = fails(&f, "--small-study");
+    assert!(
+        err.contains("--small-study") && err.contains("at least 3"),
+        "{err}"
+    );
+}
+
+#[test]
+fn loo_with_too_few_studies_is_refused() {
+    let (_d, f) = temp_csv("study,effect,variance,x\nA,0.1,0.01,1\nB,0.3,0.02,2\nC,0.2,0.01,3\n");
+    let err = fails(&f, "--moderator x --loo");
+    assert!(err.contains("--loo") && err.contains("at least 4"), "{err}");
+}
+
+#[test]
+fn trim_and_fill_with_moderators_says_it_used_the_model_without_them() {
+    let out = pondus()
+        .args([
+            "fit",
+            &bcg(),
+            "--measure",
+            "log-rr",
+            "--moderator",
+            "ablat",
+            "--small-study",
+        ])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("Small-study effects"), "{text}");
+    assert!(
+        text.contains("Trim-and-fill was done on the model without moderators"),
+        "{text}"
+    );
+    assert!(
+        text.contains("causes other than publication bias"),
+        "{text}"
+    );
+}
+
+#[test]
+fn json_omits_diagnostics_not_asked_for_and_uses_the_issue_keys() {
+    let out = pondus()
+        .args(["fit", &bcg(), "--measure", "log-rr", "--json", "-"])
+        .output()
+        .unwrap();
+    let plain: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in [
+        "leave_one_out",
+        "influence",
+        "permutation",
+        "small_study",
+        "cumulative",
+    ] {
+        assert!(plain.get(key).is_none(), "{key} present without its flag");
+    }
+    let out = pondus()
+        .args([
+            "fit",
+            &bcg(),
+            "--measure",
+            "log-rr",
+            "--moderator",
+            "ablat",
+            "--loo",
+            "--influence",
+            "--permutations",
+            "99",
+            "--seed",
+            "5",
+            "--small-study",
+            "--cumulative-by",
+            "year",
+            "--json",
+            "-",
+        ])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let j: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in ["study", "coefficients", "tau2", "moderator_p"] {
+        assert!(
+            j["leave_one_out"][0].get(key).is_some(),
+            "leave_one_out.{key}"
+        );
+    }
+    for key in [
+        "study",
+        "rstudent",
+        "dffits",
+        "cooks_distance",
+        "cov_ratio",
+        "hat",
+        "tau2_deleted",
+        "q_deleted",
+        "influential",
+    ] {
+        assert!(j["influence"][0].get(key).is_some(), "influence.{key}");
+    }
+    for key in ["permutations", "seed", "moderator_p", "coefficient_p"] {
+        assert!(j["permutation"].get(key).is_some(), "permutation.{key}");
+    }
+    assert_eq!(j["permutation"]["seed"], 5);
+    for (part, keys) in [
+        ("asymmetry_test", &["statistic", "df", "p"][..]),
+        ("rank_test", &["tau", "p"][..]),
+        (
+            "trim_fill",
+            &["filled", "side", "estimate", "ci_low", "ci_high"][..],
+        ),
+    ] {
+        for key in keys {
+            assert!(
+                j["small_study"][part].get(key).is_some(),
+                "small_study.{part}.{key}"
+            );
+        }
+    }
+    assert_eq!(j["cumulative"].as_array().unwrap().len(), 13);
+}
+
+#[test]
+fn the_table_gains_the_diagnostic_columns_when_asked() {
+    let dir = tempfile::tempdir().unwrap();
+    let t = dir.path().join("t.csv");
+    let out = pondus()
+        .args([
+            "fit",
+            &bcg(),
+            "--measure",
+            "log-rr",
+            "--moderator",
+            "ablat",
+            "--loo",
+            "--influence",
+            "-q",
+            "--table",
+        ])
+        .arg(&t)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = std::fs::read_to_string(&t).unwrap();
+    let mut rdr = csv::Reader::from_reader(text.as_bytes());
+    let header: Vec<String> = rdr.headers().unwrap().iter().map(String::from).collect();
+    for col in [
+        "loo_tau2",
+        "loo_p",
+        "loo_flag",
+        "rstudent",
+        "dffits",
+        "cooks_distance",
+        "hat",
+        "influential",
+    ] {
+        assert!(header.iter().any(|h| h == col), "{col} missing: {header:?}");
+    }
+    let rows: Vec<csv::StringRecord> = rdr.records().map(|r| r.unwrap()).collect();
+    assert_eq!(rows.len(), 13);
+    assert!(rows.iter().all(|r| r.len() == header.len()));
+}
+
+#[test]
+fn the_funnel_plot_draws_the_filled_studies_only_with_small_study() {
+    let dir = tempfile::tempdir().unwrap();
+    let draw = |extra: &[&str], name: &str| -> (Value, String) {
+        let path = dir.path().join(name);
+        let out = pondus()
+            .args([
+                "fit",
+                &bcg(),
+                "--measure",
+                "log-rr",
+                "--json",
+                "-",
+                "--funnel",
+            ])
+            .arg(&path)
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        (
+            serde_json::from_slice(&out.stdout).unwrap(),
+            std::fs::read_to_string(&path).unwrap(),
+        )
+    };
+    let (_, plain) = draw(&[], "plain.svg");
+    let (json, with) = draw(&["--small-study"], "tf.svg");
+    let filled = json["small_study"]["trim_fill"]["filled"].as_u64().unwrap() as usize;
+    assert!(filled > 0, "the BCG funnel gets a filled study");
+    // Every marker is written as two circle elements (its fill, its outline).
+    assert_eq!(
+        with.matches("<circle").count(),
+        plain.matches("<circle").count() + 2 * filled
+    );
+    // The filled studies are open: paper-white inside.
+    let open = |svg: &str| svg.matches(r##"fill="#FFFFFF" stroke="none""##).count();
+    assert_eq!(open(&with), open(&plain) + filled);
+    assert!(with.contains("trim-and-fill"));
+}
+
+#[test]
+fn exact_enumeration_runs_through_every_arrangement_in_batches() {
+    // 8 distinct moderator values: 8! = 40,320 arrangements, more than one
+    // batch of generated arrangements; every one is evaluated once.
+    let data = "study,effect,variance,x\nA,0.1,0.02,1\nB,0.3,0.03,2\nC,0.2,0.05,3\nD,0.4,0.02,4\n\
+                E,0.2,0.04,5\nF,0.5,0.03,6\nG,0.3,0.06,7\nH,0.6,0.02,8\n";
+    let s = tiny_settings("x", Tau2Method::Dl, Inference::Z, 50_000, 1);
+    let perm = run(&s, "eight.csv", data.as_bytes())
+        .unwrap()
+        .permutation
+        .unwrap();
+    assert!(perm.exact);
+    assert_eq!(perm.permutations, 40_320);
+    assert_eq!(perm.failed, 0);
+    // b/M with the observed arrangement among the M: a whole count ≥ 1.
+    let b = perm.moderator_p * 40_320.0;
+    assert!((b - b.round()).abs() < 1e-6 && b >= 1.0, "{b}");
+}
+
+#[test]
+fn leave_one_out_beyond_its_size_limit_is_refused_before_it_starts() {
+    use pondus::diagnose::MAX_REFIT_STUDIES;
+    let mut text = String::from("study,effect,variance\n");
+    for i in 0..=MAX_REFIT_STUDIES {
+        let e = ((i * 37) % 101) as f64 / 100.0 - 0.5;
+        text.push_str(&format!("s{i},{e},0.05\n"));
+    }
+    let (_d, f) = temp_csv(&text);
+    let err = fails(&f, "--loo");
+    assert!(
+        err.contains("--loo") && err.contains("at most 20000"),
+        "{err}"
+    );
+}
