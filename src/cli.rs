@@ -736,7 +736,7 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
                 command: run.invocation.clone(),
                 version: report.tool.version.clone(),
                 input_sha256: Some(report.input.sha256.clone()),
-                seed: None,
+                seed: report.permutation.as_ref().and_then(|p| p.seed),
             };
             Some((
                 t,

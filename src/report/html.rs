@@ -387,6 +387,9 @@ pub fn fit_page(
     if interpreted {
         contents.push(("interpretation", "Reading the moderation"));
     }
+    if has_diagnostics(report) {
+        contents.push(("robustness", "Robustness checks"));
+    }
     contents.extend([
         ("plots", "Plots"),
         ("studies", "Studies"),
@@ -645,6 +648,7 @@ pub fn fit_page(
     }
 
     interpretation(&mut page, report, &lv);
+    diagnostics(&mut page, report, &lv);
 
     // Plots.
     page.h2("plots", "Plots");
@@ -935,6 +939,273 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 num(a.mean_corrected_r)
             ),
             &["study", "observed r", "corrected r", "observed variance", "corrected variance", "SE factor"],
+            &rows,
+        );
+    }
+}
+
+fn opt_num(x: Option<f64>) -> String {
+    x.map(num).unwrap_or_else(|| "—".into())
+}
+
+fn opt_p(x: Option<f64>) -> String {
+    x.map(|p| format_p(p).trim_start_matches("= ").to_string())
+        .unwrap_or_else(|| "—".into())
+}
+
+/// Studies listed one by one in the robustness tables at most; above this,
+/// only the flagged studies are listed (all of them are in `--table`).
+const MAX_LISTED: usize = 60;
+
+/// Whether the report carries any robustness check.
+fn has_diagnostics(report: &FitReport) -> bool {
+    report.leave_one_out.is_some()
+        || report.influence.is_some()
+        || report.permutation.is_some()
+        || report.small_study.is_some()
+        || report.cumulative.is_some()
+}
+
+/// Leave-one-out, influence, permutation test, small-study effects and the
+/// cumulative meta-analysis — each only when it was run.
+fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
+    if !has_diagnostics(report) {
+        return;
+    }
+    page.h2("robustness", "Robustness checks");
+    let terms = &report.model.terms;
+    if let Some(perm) = &report.permutation {
+        page.h3("Permutation test of the moderators");
+        let how = if perm.exact {
+            format!(
+                "every one of the {} distinct arrangements of the moderator rows",
+                perm.permutations
+            )
+        } else {
+            format!(
+                "{} random permutations of the moderator rows (seed {})",
+                perm.permutations,
+                perm.seed
+                    .map(|s| s.to_string())
+                    .unwrap_or_else(|| "—".into())
+            )
+        };
+        page.facts(&[
+            ("Arrangements", how),
+            (
+                "Permutation p of the moderator test",
+                format_p(perm.moderator_p)
+                    .trim_start_matches("= ")
+                    .to_string(),
+            ),
+            ("Refits without an answer", perm.failed.to_string()),
+        ]);
+        let rows: Vec<Vec<String>> = terms
+            .iter()
+            .zip(&perm.coefficient_p)
+            .zip(&report.coefficients)
+            .map(|((t, pp), c)| {
+                vec![
+                    t.clone(),
+                    opt_p(*pp),
+                    format_p(c.p).trim_start_matches("= ").to_string(),
+                ]
+            })
+            .collect();
+        page.table(
+            "Each coefficient: the permutation p beside the model's p",
+            &["term", "permutation p", "model p"],
+            &rows,
+        );
+    }
+    if let Some(loo) = &report.leave_one_out {
+        page.h3("Leaving out one study at a time");
+        let flagged: Vec<String> = loo
+            .iter()
+            .filter(|l| l.sign_changed || l.significance_changed)
+            .map(|l| {
+                let what = match (l.sign_changed, l.significance_changed) {
+                    (true, true) => "a sign and the significance",
+                    (true, false) => "a sign",
+                    _ => "the significance",
+                };
+                format!("{} (changes {what})", l.study)
+            })
+            .collect();
+        if flagged.is_empty() {
+            page.p("No single study changes the sign of a coefficient or the significance of the test when left out.");
+        } else {
+            page.p(&format!(
+                "Leaving out one of these studies changes the conclusion: {}.",
+                flagged.join("; ")
+            ));
+        }
+        let mut head: Vec<String> = vec!["study left out".into()];
+        head.extend(terms.iter().cloned());
+        head.extend(["τ²".into(), "I²".into(), "test p".into(), "flag".into()]);
+        let head_ref: Vec<&str> = head.iter().map(String::as_str).collect();
+        let rows: Vec<Vec<String>> = loo
+            .iter()
+            .filter(|l| loo.len() <= MAX_LISTED || l.sign_changed || l.significance_changed)
+            .map(|l| {
+                let mut r = vec![l.study.clone()];
+                if l.coefficients.is_empty() {
+                    r.extend(terms.iter().map(|_| "—".to_string()));
+                } else {
+                    r.extend(l.coefficients.iter().map(|c| num(*c)));
+                }
+                r.push(opt_num(l.tau2));
+                r.push(l.i2.map(format_percent).unwrap_or_else(|| "—".into()));
+                r.push(opt_p(l.moderator_p.or(l.average_p)));
+                r.push(match (l.sign_changed, l.significance_changed) {
+                    (true, true) => "sign, significance".into(),
+                    (true, false) => "sign".into(),
+                    (false, true) => "significance".into(),
+                    _ => l.problem.clone().unwrap_or_default(),
+                });
+                r
+            })
+            .collect();
+        let caption = if loo.len() <= MAX_LISTED {
+            "The model refitted without each study".to_string()
+        } else {
+            format!(
+                "The flagged studies among {} refits (all are in --table)",
+                loo.len()
+            )
+        };
+        page.table(&caption, &head_ref, &rows);
+    }
+    if let Some(inf) = &report.influence {
+        page.h3("Influence of each study");
+        if let Some(c) = &report.influence_cutoffs {
+            page.p(&format!(
+                "A study is marked influential when |DFFITS| > {}, Cook's distance > {} or its hat value > {} \
+                 (cut-offs in common use, after Viechtbauer & Cheung 2010); a studentised residual beyond ±{} is \
+                 noted but does not by itself make a study influential.",
+                num(c.dffits),
+                num(c.cooks_distance),
+                num(c.hat),
+                num(c.rstudent)
+            ));
+        }
+        let rows: Vec<Vec<String>> = inf
+            .iter()
+            .filter(|i| inf.len() <= MAX_LISTED || i.influential)
+            .map(|i| {
+                vec![
+                    i.study.clone(),
+                    opt_num(i.rstudent),
+                    opt_num(i.dffits),
+                    opt_num(i.cooks_distance),
+                    opt_num(i.cov_ratio),
+                    num(i.hat),
+                    opt_num(i.tau2_deleted),
+                    opt_num(i.q_deleted),
+                    if i.exceeded.is_empty() {
+                        if i.influential {
+                            "yes".into()
+                        } else {
+                            String::new()
+                        }
+                    } else {
+                        i.exceeded.join(", ")
+                    },
+                ]
+            })
+            .collect();
+        page.table(
+            if inf.len() <= MAX_LISTED {
+                "Influence measures (cut-offs exceeded in the last column)"
+            } else {
+                "The influential studies (all are in --table)"
+            },
+            &[
+                "study",
+                "studentised residual",
+                "DFFITS",
+                "Cook's distance",
+                "covariance ratio",
+                "hat",
+                "τ² without it",
+                "Q without it",
+                "exceeded",
+            ],
+            &rows,
+        );
+    }
+    if let Some(ss) = &report.small_study {
+        page.h3("Small-study effects");
+        let a = &ss.asymmetry_test;
+        let r = &ss.rank_test;
+        let t = &ss.trim_fill;
+        page.facts(&[
+            (
+                "Regression test for funnel asymmetry",
+                format!(
+                    "slope on the standard error {} (SE {}), t({}) = {:.2}, p {}{}",
+                    num(a.slope),
+                    num(a.se),
+                    df_text(a.df),
+                    a.statistic,
+                    format_p(a.p),
+                    if a.with_moderators { ", with the moderators in the model" } else { "" }
+                ),
+            ),
+            (
+                "Rank correlation test",
+                format!("Kendall's τ = {}, p {}", num(r.tau), format_p(r.p)),
+            ),
+            (
+                "Trim-and-fill",
+                format!(
+                    "{} {} filled on the {}; average {} ({lv} CI {}) against {} from the observed studies",
+                    t.filled,
+                    if t.filled == 1 { "study" } else { "studies" },
+                    t.side,
+                    num(t.estimate),
+                    interval(t.ci_low, t.ci_high),
+                    num(t.estimate_observed)
+                ),
+            ),
+        ]);
+        page.list(&ss.cautions);
+    }
+    if let Some(steps) = &report.cumulative {
+        page.h3("Cumulative meta-analysis");
+        let rows: Vec<Vec<String>> = steps
+            .iter()
+            .map(|c| {
+                vec![
+                    format!("+ {}", c.study),
+                    at_text(&c.value),
+                    c.k.to_string(),
+                    opt_num(c.estimate),
+                    match (c.ci_low, c.ci_high) {
+                        (Some(a), Some(b)) => interval(a, b),
+                        _ => "—".into(),
+                    },
+                    opt_num(c.tau2),
+                    c.i2.map(format_percent).unwrap_or_else(|| "—".into()),
+                ]
+            })
+            .collect();
+        let order = report
+            .cumulative_order
+            .as_ref()
+            .map(|o| format!(" by {} ({} order)", o.column, o.order))
+            .unwrap_or_default();
+        page.table(
+            &format!("The average effect as studies are added{order}"),
+            &[
+                "study added",
+                "value",
+                "studies",
+                "average",
+                &format!("{lv} CI"),
+                "τ²",
+                "I²",
+            ],
             &rows,
         );
     }

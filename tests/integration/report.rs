@@ -17,10 +17,13 @@ pub const EXAMPLES: &[(&str, &str)] = &[
         "programme-sites.csv",
         "--measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=40,delivery=staff",
     ),
-    ("published-slopes.csv", "--measure slope --moderator mean_age"),
+    (
+        "published-slopes.csv",
+        "--measure slope --moderator mean_age --loo --influence --small-study --cumulative-by study",
+    ),
     (
         "trial-events.csv",
-        "--measure log-or --moderator followup_months --moderator setting",
+        "--measure log-or --moderator followup_months --moderator setting --permutations 199 --seed 11",
     ),
     ("precomputed-effects.csv", "--measure effect --moderator duration_weeks"),
     ("partial-correlations.csv", "--measure partial-r --moderator remote_share"),
@@ -197,6 +200,28 @@ fn artifact_corrections_are_listed_per_study() {
     );
     assert!(page.contains("Artifact corrections"));
     assert!(page.contains("corrected r"));
+}
+
+#[test]
+fn robustness_checks_get_their_own_section_and_the_seed_is_recorded() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = fit_report(&example(EXAMPLES[2].0), EXAMPLES[2].1, dir.path());
+    assert!(page.contains("id=\"robustness\"") && page.contains("href=\"#robustness\""));
+    for heading in [
+        "Leaving out one study at a time",
+        "Influence of each study",
+        "Small-study effects",
+        "Cumulative meta-analysis",
+    ] {
+        assert!(page.contains(heading), "no {heading}");
+    }
+    assert!(page.contains("asymmetry has causes other than publication bias"));
+    let (_, page) = fit_report(&example(EXAMPLES[3].0), EXAMPLES[3].1, dir.path());
+    assert!(page.contains("Permutation test of the moderators"));
+    assert!(page.contains("199 random permutations of the moderator rows (seed 11)"));
+    assert!(page.contains("<dt>Random seed</dt><dd>11</dd>"));
+    let (_, plain) = fit_report(&example(EXAMPLES[3].0), "--measure log-or", dir.path());
+    assert!(!plain.contains("id=\"robustness\"") && !plain.contains("Random seed"));
 }
 
 #[test]
