@@ -313,7 +313,11 @@ pub fn fit_page(
     let title = if mods.is_empty() {
         format!("Pooled effect across {} studies", report.k)
     } else {
-        format!("Does {} change the effect?", words_and(&mods))
+        format!(
+            "{} {} change the effect?",
+            if mods.len() == 1 { "Does" } else { "Do" },
+            words_and(&mods)
+        )
     };
     let mut page = Page::new(&format!("{title} — pondus report"));
     page.raw("<header>\n");
@@ -332,13 +336,13 @@ pub fn fit_page(
     page.h2("question", "The question");
     let question = if mods.is_empty() {
         format!(
-            "What is the average effect ({}) across these {} studies, how much do their true \
+            "What is the average effect — {} — across these {} studies, how much do their true \
              effects differ, and what effect should a new study expect?",
             report.measure.description, report.k
         )
     } else {
         format!(
-            "Across these {} studies, is the effect ({}) associated with {}? And how much \
+            "Across these {} studies, is the effect — {} — associated with {}? And how much \
              variation between studies is left once the moderators are taken into account?",
             report.k,
             report.measure.description,
