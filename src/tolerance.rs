@@ -92,3 +92,19 @@ pub const NONCENTRAL_LAMBDA_MAX: f64 = 1e6;
 /// are double-precision series, the central pieces (statrs' incomplete gamma
 /// and beta) carry about 1e-12 to 1e-11 relative error.
 pub const NONCENTRAL_REF_ABS: f64 = 1e-10;
+
+/// A row whose leverage hᵢ leaves 1 − hᵢ below this has leverage 1 in
+/// floating point: it alone determines a coefficient and HC3, which divides
+/// by (1 − hᵢ)², is undefined for its site (rounding in hᵢ is a few ε).
+pub const LEVERAGE_ONE: f64 = 1e-10;
+
+/// Test tolerance between the two routes to per-site effects (streaming
+/// rows in Rust, aggregates in a SQL engine): both compute the same
+/// moments in double precision by different stable algorithms.
+pub const SQL_ROUTE_REL: f64 = 1e-9;
+
+/// Test tolerance of the per-site OLS and HC3 against statsmodels on the
+/// large-offset data (x, y around 1e9): the offset costs about 9 of the 16
+/// digits of every value before any algorithm sees it, so agreement is
+/// limited to about 1e-7 relative for both implementations.
+pub const LARGE_OFFSET_REL: f64 = 1e-6;

@@ -2,6 +2,7 @@
 //! JSON and a per-study CSV. Pure functions of the result, no computation.
 
 pub mod json;
+pub mod sites;
 pub mod table;
 pub mod text;
 
