@@ -249,14 +249,24 @@ mod tests {
 
     #[test]
     fn problems_are_named() {
-        let m = moments(&[[1.0, 2.0, 1.0], [1.0, 3.0, 2.0], [1.0, 4.0, 4.0], [1.0, 1.0, 0.0]]);
+        let m = moments(&[
+            [1.0, 2.0, 1.0],
+            [1.0, 3.0, 2.0],
+            [1.0, 4.0, 4.0],
+            [1.0, 1.0, 0.0],
+        ]);
         assert_eq!(fit(&m, &[0], 2).unwrap_err(), OlsProblem::Constant(0));
         assert_eq!(
             fit(&m, &[1, 0], 2).unwrap_err(),
             OlsProblem::Constant(0),
             "constant checked before collinearity"
         );
-        let m = moments(&[[1.0, 2.0, 1.0], [2.0, 4.0, 2.0], [3.0, 6.0, 4.0], [4.0, 8.0, 3.0]]);
+        let m = moments(&[
+            [1.0, 2.0, 1.0],
+            [2.0, 4.0, 2.0],
+            [3.0, 6.0, 4.0],
+            [4.0, 8.0, 3.0],
+        ]);
         assert_eq!(fit(&m, &[0, 1], 2).unwrap_err(), OlsProblem::Collinear(1));
         let m = moments(&[[1.0, 0.0, 1.0], [2.0, 0.0, 2.0]]);
         assert_eq!(

@@ -6,4 +6,5 @@ mod plots;
 mod properties;
 mod reference;
 mod regression;
+mod sites;
 mod util;
