@@ -479,6 +479,16 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
     }
     let table = sql::read_moments(source, bytes)?;
     let layout = table.layout;
+    // The moments table names its variables by role (x, c1…, w, y).
+    let s = &SitesSettings {
+        site: "site".into(),
+        x: "x".into(),
+        y: "y".into(),
+        w: layout.with_w.then(|| "w".into()),
+        covariates: (1..=layout.covariates).map(|i| format!("c{i}")).collect(),
+        robust: false,
+        center_within: s.center_within,
+    };
     let (fitted, excluded) = fit_sites(table.sites, layout, s);
     let input_info = SitesInput {
         file: source.to_string(),
