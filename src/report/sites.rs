@@ -193,7 +193,7 @@ pub fn render(r: &SitesReport) -> String {
         let with_w = m.w.is_some();
         let _ = writeln!(o);
         let mut head = format!(
-            "  {:<16} {:>7} {:>11} {:>10} {:>8}",
+            "  {:<20} {:>7} {:>11} {:>10} {:>8}",
             "site", "n", "slope", "se", "r"
         );
         if with_w {
@@ -201,9 +201,9 @@ pub fn render(r: &SitesReport) -> String {
         }
         let _ = writeln!(o, "{head}");
         for s in &r.sites {
-            let id: String = s.study.chars().take(16).collect();
+            let id: String = s.study.chars().take(20).collect();
             let mut line = format!(
-                "  {:<16} {:>7} {:>11} {:>10} {:>8.3}",
+                "  {:<20} {:>7} {:>11} {:>10} {:>8.3}",
                 id,
                 s.n,
                 num(s.slope),
@@ -249,7 +249,7 @@ pub fn render(r: &SitesReport) -> String {
             if let Some(c) = f.coefficients.iter().find(|c| c.term == "mean_w") {
                 coefficient_line(
                     &mut o,
-                    "change in slope per unit of mean_w",
+                    &format!("slope change per unit of mean {w}"),
                     c,
                     f.model.level,
                 );

@@ -267,7 +267,7 @@ fn display_names(layout: Layout, s: &SitesSettings) -> Vec<String> {
     if layout.with_w {
         let w = s.w.as_deref().unwrap_or("w");
         v.push(format!("w ('{w}')"));
-        v.push(format!("the product x·w"));
+        v.push("the product x·w".to_string());
     }
     v.push(format!("y ('{}')", s.y));
     v

@@ -195,10 +195,11 @@ impl Hc3 {
         let mut h = self.inv_n;
         let mut a = 0.0;
         for i in 0..p {
-            let mut row = 0.0;
-            for j in 0..p {
-                row += self.s_inv[i * p + j] * zc[j];
-            }
+            let row: f64 = self.s_inv[i * p..(i + 1) * p]
+                .iter()
+                .zip(&zc[..p])
+                .map(|(s, z)| s * z)
+                .sum();
             h += zc[i] * row;
             if i == self.target {
                 a = row;

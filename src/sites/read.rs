@@ -47,7 +47,7 @@ impl<R> BreakCounter<R> {
         let mut end = offset;
         while let Some(&b) = self.breaks.front() {
             let at = b >> 1;
-            if at < end || at == end {
+            if at <= end {
                 if at == end {
                     end += 1;
                 }
@@ -164,7 +164,7 @@ pub fn for_each_row<R: Read>(
         let i = find_header(&headers, wanted).ok_or_else(|| Error::MissingColumn {
             source_name: source.to_string(),
             column: wanted.to_string(),
-            purpose: format!("{flag}"),
+            purpose: flag.to_string(),
             available: headers.join(", "),
             hint: format!("Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."),
         })?;

@@ -86,14 +86,14 @@ pub fn run(
     let mut answers = Vec::new();
     if with_w {
         answers.push(format!(
-            "Within sites: the pooled product term asks whether, inside a site, the {x}→{y} slope is \
-             steeper for participants with higher {w}. It compares participants of the same site, so \
+            "Within sites: the pooled product term asks whether, inside a site, the {x}→{y} slope \
+             changes with a participant's own {w}. It compares participants of the same site, so \
              differences between sites cannot bias it.",
             y = report.model.y
         ));
         answers.push(format!(
             "Across sites: the regression of the site slopes on the site mean of {w} asks whether sites \
-             whose participants have higher {w} on average have steeper slopes. It compares sites, so \
+             whose participants have a higher {w} on average have different slopes. It compares sites, so \
              anything else that differs between those sites can produce it (ecological bias); it does \
              not show what happens to an individual."
         ));
