@@ -139,9 +139,36 @@ fn moment_vector(layout: Layout, values: &[f64], v: &mut [f64]) {
     v[layout.y()] = values[values.len() - 1];
 }
 
+/// A fast multiplicative hash of site ids (the rotate-xor-multiply step of
+/// the hash used inside the Rust compiler). Not collision-resistant against
+/// crafted ids, which can only slow a run down, never change its result.
+#[derive(Default, Clone, Copy)]
+struct IdHasher(u64);
+
+impl std::hash::Hasher for IdHasher {
+    #[inline]
+    fn write(&mut self, bytes: &[u8]) {
+        for chunk in bytes.chunks(8) {
+            let mut b = [0u8; 8];
+            b[..chunk.len()].copy_from_slice(chunk);
+            self.0 =
+                (self.0.rotate_left(5) ^ u64::from_le_bytes(b)).wrapping_mul(0x517c_c1b7_2722_0a95);
+        }
+    }
+    #[inline]
+    fn write_usize(&mut self, n: usize) {
+        self.0 = (self.0.rotate_left(5) ^ n as u64).wrapping_mul(0x517c_c1b7_2722_0a95);
+    }
+    fn finish(&self) -> u64 {
+        self.0
+    }
+}
+
+type IdMap = HashMap<Vec<u8>, usize, std::hash::BuildHasherDefault<IdHasher>>;
+
 /// Looks a site up, trying the previous row's site first (rows usually come in runs).
 struct SiteIndex {
-    map: HashMap<Vec<u8>, usize>,
+    map: IdMap,
     last: Vec<u8>,
     last_ix: usize,
 }
@@ -149,7 +176,7 @@ struct SiteIndex {
 impl SiteIndex {
     fn new() -> Self {
         SiteIndex {
-            map: HashMap::new(),
+            map: IdMap::default(),
             last: Vec::new(),
             last_ix: usize::MAX,
         }

@@ -86,6 +86,19 @@ pub struct PassSummary {
     pub blank_rows: u64,
 }
 
+/// Parses a numeric cell: a plain number directly (the common case), anything
+/// else (blanks, missing marks, text) through [`parse_cell`].
+#[inline]
+fn parse_number(cell: &[u8]) -> Cell {
+    match std::str::from_utf8(cell) {
+        Ok(t) => match t.parse::<f64>() {
+            Ok(v) if v.is_finite() => Cell::Value(v),
+            _ => parse_cell(t),
+        },
+        Err(_) => Cell::Invalid,
+    }
+}
+
 #[derive(Default)]
 struct Problems {
     list: Vec<CellProblem>,
@@ -246,10 +259,7 @@ pub fn for_each_row<R: Read>(
         let mut missing = false;
         for (k, &i) in num_ix.iter().enumerate() {
             let cell = &record[i];
-            let parsed = match std::str::from_utf8(cell) {
-                Ok(t) => parse_cell(t),
-                Err(_) => Cell::Invalid,
-            };
+            let parsed = parse_number(cell);
             match parsed {
                 Cell::Value(v) => values[k] = v,
                 Cell::Missing => missing = true,
