@@ -374,6 +374,7 @@ fn fit_sites(
 struct RobustSite {
     slope: Hc3,
     interaction: Option<(Hc3, f64, f64)>,
+    rows: u64,
 }
 
 /// The second pass: HC3 sums for every fitted site.
@@ -383,6 +384,7 @@ fn robust_pass<R: Read>(
     s: &SitesSettings,
     layout: Layout,
     fitted: &[Fitted],
+    first: &PassSummary,
 ) -> Result<Vec<RobustSite>> {
     let mut robust: Vec<RobustSite> = fitted
         .iter()
@@ -395,6 +397,7 @@ fn robust_pass<R: Read>(
                     f.moments.mean(layout.w()),
                 )
             }),
+            rows: 0,
         })
         .collect();
     let mut index = SiteIndex::new();
@@ -406,7 +409,7 @@ fn robust_pass<R: Read>(
     let k = layout.covariates;
     let mut z = vec![0.0; layout.dim()];
     let center = s.center_within;
-    read::for_each_row(source, input, &row_columns(s), |_, id, values| {
+    let pass = read::for_each_row(source, input, &row_columns(s), |_, id, values| {
         let ix = index.find_or_insert(id, |id| {
             std::str::from_utf8(id)
                 .ok()
@@ -417,6 +420,7 @@ fn robust_pass<R: Read>(
             return Ok(());
         }
         let site = &mut robust[ix];
+        site.rows += 1;
         let y = values[values.len() - 1];
         site.slope.add(&values[..=k], y);
         if let Some((h, mx, mw)) = &mut site.interaction {
@@ -428,6 +432,23 @@ fn robust_pass<R: Read>(
         }
         Ok(())
     })?;
+    // The two passes must see the same rows: a file rewritten in between
+    // would mix two data sets silently.
+    let changed = pass.rows != first.rows
+        || pass.missing_rows != first.missing_rows
+        || robust
+            .iter()
+            .zip(fitted)
+            .any(|(r, f)| r.rows != f.moments.n());
+    if changed {
+        return Err(Error::Format {
+            source_name: source.to_string(),
+            message:
+                "the file changed between the two passes that --robust makes (its rows differ \
+                      from the first reading); run again on a file that is not being written to"
+                    .into(),
+        });
+    }
     Ok(robust)
 }
 
@@ -477,7 +498,7 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
     let pass = summaries.pass.clone();
     let (fitted, excluded) = fit_sites(summaries.sites, layout, s);
     let robust = match (&path, s.robust) {
-        (Some(p), true) => Some(robust_pass(source, open(p)?, s, layout, &fitted)?),
+        (Some(p), true) => Some(robust_pass(source, open(p)?, s, layout, &fitted, &pass)?),
         _ => None,
     };
     let input_info = SitesInput {
