@@ -108,3 +108,9 @@ pub const SQL_ROUTE_REL: f64 = 1e-9;
 /// digits of every value before any algorithm sees it, so agreement is
 /// limited to about 1e-7 relative for both implementations.
 pub const LARGE_OFFSET_REL: f64 = 1e-6;
+
+/// A per-site residual sum of squares below this share of the outcome's
+/// co-moment Σ(y − ȳ)² is rounding: RSS = Σ(y − ȳ)² − sᵀb is a difference
+/// whose error is a few ε of Σ(y − ȳ)², so an exact fit shows up as
+/// RSS ≈ 1e-16·Σ(y − ȳ)² rather than 0; such a slope has no standard error.
+pub const EXACT_FIT_RSS: f64 = 64.0 * f64::EPSILON;

@@ -284,6 +284,9 @@ fn problem_text(p: &OlsProblem, names: &[String], what: &str) -> String {
         OlsProblem::ConstantResponse => {
             format!("{} is constant in this site", names[names.len() - 1])
         }
+        OlsProblem::ExactFit => format!(
+            "the {what} fits this site's rows exactly (no residual variation), so it has no standard error"
+        ),
     }
 }
 

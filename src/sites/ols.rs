@@ -20,6 +20,9 @@ pub enum OlsProblem {
     Collinear(usize),
     /// The response takes one value only.
     ConstantResponse,
+    /// The predictors reproduce the response exactly (RSS is rounding), so
+    /// the slopes have no standard error.
+    ExactFit,
 }
 
 /// An OLS fit with an intercept, from moments.
@@ -134,6 +137,9 @@ pub fn fit(m: &Moments, predictors: &[usize], response: usize) -> Result<OlsFit,
         .collect();
     let explained: f64 = beta.iter().zip(&sy).map(|(b, s)| b * s).sum();
     let rss = (syy - explained).max(0.0);
+    if rss <= tolerance::EXACT_FIT_RSS * syy {
+        return Err(OlsProblem::ExactFit);
+    }
     Ok(OlsFit {
         predictors: predictors.to_vec(),
         response,
@@ -276,6 +282,13 @@ mod tests {
         );
         let m = moments(&[[1.0, 0.0, 1.0], [2.0, 0.0, 1.0], [3.0, 0.0, 1.0]]);
         assert_eq!(fit(&m, &[0], 2).unwrap_err(), OlsProblem::ConstantResponse);
+        let m = moments(&[
+            [1.0, 0.0, 3.0],
+            [2.0, 0.0, 5.0],
+            [3.0, 0.0, 7.0],
+            [5.0, 0.0, 11.0],
+        ]);
+        assert_eq!(fit(&m, &[0], 2).unwrap_err(), OlsProblem::ExactFit);
     }
 
     /// HC3 of a slope in simple regression, worked by hand on the data of
