@@ -37,6 +37,10 @@ pub enum Command {
     Fit(FitArgs),
     /// Plan a study: the power of a moderator test before the data exist, and the sites needed.
     Plan(PlanArgs),
+    /// Per-site regressions from participant rows of many sites, streamed; the effects file for `fit`.
+    Sites(SitesArgs),
+    /// Print a SQL query that computes the per-site moments inside a database (for `sites --moments`).
+    Sql(SqlArgs),
 }
 
 /// Effect measures as typed on the command line.
@@ -1320,5 +1324,304 @@ mod tests {
             );
         }
         assert!(!args(&["--json", "-"]).unwrap().text);
+    }
+}
+
+/// Options of `pondus sites`.
+#[derive(Debug, Args)]
+pub struct SitesArgs {
+    /// CSV file of participant rows: a site id, x, y and optional w and covariates ('-' reads standard input).
+    #[arg(required_unless_present = "moments", conflicts_with = "moments")]
+    pub file: Option<PathBuf>,
+    /// Column of the site ids.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub site: Option<String>,
+    /// Column of the predictor whose slope each site estimates.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub x: Option<String>,
+    /// Column of the outcome.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub y: Option<String>,
+    /// Column of a participant-level moderator: adds the product term x·w in each site.
+    #[arg(long, value_name = "COL")]
+    pub w: Option<String>,
+    /// A covariate to adjust for in every site's regression (repeatable).
+    #[arg(long = "covariate", value_name = "COL")]
+    pub covariates: Vec<String>,
+    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
+    #[arg(long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
+    pub moments: Option<PathBuf>,
+    /// CSV file of site characteristics, one row per site, joined by site id.
+    #[arg(long, value_name = "SITES.csv")]
+    pub info: Option<PathBuf>,
+    /// Id column of the --info table [default: the --site column's name, or 'site' with --moments].
+    #[arg(long, value_name = "COL", requires = "info")]
+    pub info_key: Option<String>,
+    /// Write the per-site effects (readable by `pondus fit --measure slope`) here ('-' for standard output).
+    #[arg(long, value_name = "EFFECTS.csv")]
+    pub out: Option<PathBuf>,
+    /// HC3 standard errors instead of classical ones (reads the file a second time; not for standard input).
+    #[arg(long)]
+    pub robust: bool,
+    /// Centre x and w at their site means in the product-term model (same product term, better conditioning).
+    #[arg(long, requires = "w")]
+    pub center_within: bool,
+    /// Also run the second stage: pooled product term (within sites) beside the slope-on-mean-w meta-regression (across sites).
+    #[arg(long)]
+    pub fit: bool,
+    /// A site characteristic (a column of --info) to regress the site slopes on (repeatable; with --fit).
+    #[arg(long = "moderator", value_name = "NAME", requires = "fit")]
+    pub moderators: Vec<String>,
+    /// Estimator of the between-site variance τ² in the second stage.
+    #[arg(long, value_enum, default_value_t = Tau2Arg::Reml, requires = "fit")]
+    pub tau2: Tau2Arg,
+    /// Tests and intervals of the second stage.
+    #[arg(long, value_enum, default_value_t = InferenceArg::Kh, requires = "fit")]
+    pub inference: InferenceArg,
+    /// Confidence level of the second stage's intervals.
+    #[arg(long, default_value_t = 0.95, requires = "fit")]
+    pub level: f64,
+    /// Write the whole result (sites, exclusions, join, second stage) as JSON ('-' for standard output).
+    #[arg(long, value_name = "PATH")]
+    pub json: Option<PathBuf>,
+    /// Do not print the terminal summary.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+/// Where `pondus sites` reads from.
+#[derive(Debug, Clone)]
+pub enum SitesInputArg {
+    /// Participant rows.
+    Rows(Source),
+    /// A moments table.
+    Moments(PathBuf),
+}
+
+/// Checked settings of a `sites` run.
+#[derive(Debug, Clone)]
+pub struct SitesRun {
+    /// The input.
+    pub input: SitesInputArg,
+    /// First-stage settings.
+    pub settings: crate::sites::SitesSettings,
+    /// Site table and its id column.
+    pub info: Option<(PathBuf, String)>,
+    /// Effects file.
+    pub out: Option<Target>,
+    /// JSON output.
+    pub json: Option<Target>,
+    /// Second stage: options and site characteristics.
+    pub fit: Option<(FitOptions, Vec<ModeratorSpec>)>,
+    /// Whether to print the terminal summary.
+    pub text: bool,
+}
+
+impl SitesArgs {
+    /// Turns the raw flags into checked settings.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag and how to fix it.
+    pub fn check(&self) -> Result<SitesRun> {
+        let input = match (&self.moments, &self.file) {
+            (Some(m), _) => SitesInputArg::Moments(m.clone()),
+            (None, Some(f)) => SitesInputArg::Rows(Source::from_arg(f)),
+            (None, None) => {
+                return Err(Error::usage(
+                    "FILE",
+                    "give the participant rows file, or --moments MOMENTS.csv",
+                ))
+            }
+        };
+        let name = |flag: &str, v: &Option<String>| -> Result<String> {
+            match v.as_deref().map(str::trim) {
+                Some(s) if !s.is_empty() => Ok(s.to_string()),
+                _ if self.moments.is_some() => Ok(String::new()),
+                _ => Err(Error::usage(flag, "give a column name")),
+            }
+        };
+        let site = name("--site", &self.site)?;
+        let x = name("--x", &self.x)?;
+        let y = name("--y", &self.y)?;
+        let mut used: Vec<(&str, &str)> = vec![("--site", &site), ("--x", &x), ("--y", &y)];
+        if let Some(w) = &self.w {
+            used.push(("--w", w));
+        }
+        for c in &self.covariates {
+            used.push(("--covariate", c));
+        }
+        if self.moments.is_none() {
+            for (i, (flag, col)) in used.iter().enumerate() {
+                if let Some((other, _)) = used[..i].iter().find(|(_, c)| c == col) {
+                    return Err(Error::usage(
+                        *flag,
+                        format!("column '{col}' is already given to {other}; each role needs its own column"),
+                    ));
+                }
+            }
+        }
+        if !(self.level > 0.0 && self.level < 1.0) {
+            return Err(Error::usage(
+                "--level",
+                "must lie between 0 and 1, e.g. 0.95",
+            ));
+        }
+        if !self.moderators.is_empty() && self.info.is_none() {
+            return Err(Error::usage(
+                "--moderator",
+                "site characteristics come from the site table; add --info SITES.csv",
+            ));
+        }
+        let out = self.out.as_deref().map(Target::from_arg);
+        let json = self.json.as_deref().map(Target::from_arg);
+        if out.is_none() && json.is_none() && !self.fit {
+            return Err(Error::usage(
+                "--out",
+                "nothing to do: add --out EFFECTS.csv (and/or --fit, --json)",
+            ));
+        }
+        let mut outs: Vec<(&str, &Target)> = Vec::new();
+        if let Some(o) = &out {
+            outs.push(("--out", o));
+        }
+        if let Some(j) = &json {
+            outs.push(("--json", j));
+        }
+        let input_path = match &input {
+            SitesInputArg::Rows(Source::File(p)) => Some(p.as_path()),
+            SitesInputArg::Rows(Source::Stdin) => None,
+            SitesInputArg::Moments(p) => Some(p.as_path()),
+        };
+        output::check_targets(input_path, &outs)?;
+        if let Some(info) = &self.info {
+            output::check_targets(Some(info.as_path()), &outs)?;
+        }
+        let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
+        let info_key = self.info_key.clone().unwrap_or_else(|| {
+            if self.moments.is_some() {
+                "site".into()
+            } else {
+                site.clone()
+            }
+        });
+        Ok(SitesRun {
+            input,
+            settings: crate::sites::SitesSettings {
+                site,
+                x,
+                y,
+                w: self.w.clone(),
+                covariates: self.covariates.clone(),
+                robust: self.robust,
+                center_within: self.center_within,
+            },
+            info: self.info.clone().map(|p| (p, info_key)),
+            out,
+            json,
+            fit: self.fit.then(|| {
+                (
+                    FitOptions {
+                        method: self.tau2.into(),
+                        inference: match self.inference {
+                            InferenceArg::Kh => Inference::Kh,
+                            InferenceArg::Z => Inference::Z,
+                        },
+                        level: self.level,
+                    },
+                    self.moderators
+                        .iter()
+                        .map(|m| ModeratorSpec {
+                            name: m.clone(),
+                            categorical: false,
+                            reference: None,
+                            center: false,
+                        })
+                        .collect(),
+                )
+            }),
+            text: !self.quiet && !to_stdout,
+        })
+    }
+}
+
+/// Runs a checked `sites`: summarise, estimate, join, second stage, write.
+///
+/// # Errors
+/// Any library error.
+pub fn run_sites(run: &SitesRun) -> Result<()> {
+    use crate::sites::{self, RowInput};
+    let mut report = match &run.input {
+        SitesInputArg::Rows(Source::File(p)) => {
+            sites::from_rows(&p.display().to_string(), RowInput::File(p), &run.settings)?
+        }
+        SitesInputArg::Rows(Source::Stdin) => sites::from_rows(
+            "<stdin>",
+            RowInput::Stream(Box::new(std::io::stdin().lock())),
+            &run.settings,
+        )?,
+        SitesInputArg::Moments(p) => {
+            let src = Source::File(p.clone());
+            sites::from_moments(&src.name(), &src.read_all()?, &run.settings)?
+        }
+    };
+    if let Some((path, key)) = &run.info {
+        let src = Source::File(path.clone());
+        sites::join::join(&mut report, &src.name(), &src.read_all()?, key)?;
+    }
+    if let Some((options, chars)) = &run.fit {
+        report.stages = Some(sites::stages::run(&report, *options, chars)?);
+    }
+    if let Some(t) = &run.out {
+        output::emit(t, &sites::effects_bytes(&report))?;
+    }
+    if let Some(t) = &run.json {
+        let mut buf = serde_json::to_vec_pretty(&report)
+            .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
+        buf.push(b'\n');
+        output::emit(t, &buf)?;
+    }
+    if run.text {
+        output::emit(&Target::Stdout, report::sites::render(&report).as_bytes())?;
+    }
+    Ok(())
+}
+
+/// Options of `pondus sql`.
+#[derive(Debug, Args)]
+pub struct SqlArgs {
+    /// Table or view holding the participant rows (dots separate schema parts).
+    #[arg(long, value_name = "NAME")]
+    pub table: String,
+    /// Column of the site ids.
+    #[arg(long, value_name = "COL")]
+    pub site: String,
+    /// Column of the predictor.
+    #[arg(long, value_name = "COL")]
+    pub x: String,
+    /// Column of the outcome.
+    #[arg(long, value_name = "COL")]
+    pub y: String,
+    /// Column of a participant-level moderator (adds the x·w moments).
+    #[arg(long, value_name = "COL")]
+    pub w: Option<String>,
+    /// A covariate column (repeatable).
+    #[arg(long = "covariate", value_name = "COL")]
+    pub covariates: Vec<String>,
+}
+
+impl SqlArgs {
+    /// The query text.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] for an unusable name.
+    pub fn query(&self) -> Result<String> {
+        crate::sites::sql::query(&crate::sites::sql::QuerySpec {
+            table: self.table.clone(),
+            site: self.site.clone(),
+            x: self.x.clone(),
+            y: self.y.clone(),
+            w: self.w.clone(),
+            covariates: self.covariates.clone(),
+        })
     }
 }

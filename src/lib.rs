@@ -42,6 +42,7 @@ pub mod plan;
 pub mod plot;
 pub mod report;
 pub mod result;
+pub mod sites;
 pub mod tolerance;
 
 pub use error::{Error, Result};

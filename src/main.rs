@@ -15,6 +15,14 @@ fn run() -> anyhow::Result<()> {
             let run = args.check()?;
             pondus::cli::run_plan(&run)?;
         }
+        Command::Sites(args) => {
+            let run = args.check()?;
+            pondus::cli::run_sites(&run)?;
+        }
+        Command::Sql(args) => {
+            let q = args.query()?;
+            pondus::output::emit(&pondus::output::Target::Stdout, q.as_bytes())?;
+        }
     }
     Ok(())
 }

@@ -106,3 +106,25 @@ pub const PERMUTATION_TIE_REL: f64 = 1e-10;
 /// Most iterations of the trim-and-fill L0 estimate before it is declared
 /// not to settle (it usually settles in a handful).
 pub const TRIM_FILL_MAX_ITERS: usize = 100;
+
+/// A row whose leverage hᵢ leaves 1 − hᵢ below this has leverage 1 in
+/// floating point: it alone determines a coefficient and HC3, which divides
+/// by (1 − hᵢ)², is undefined for its site (rounding in hᵢ is a few ε).
+pub const LEVERAGE_ONE: f64 = 1e-10;
+
+/// Test tolerance between the two routes to per-site effects (streaming
+/// rows in Rust, aggregates in a SQL engine): both compute the same
+/// moments in double precision by different stable algorithms.
+pub const SQL_ROUTE_REL: f64 = 1e-9;
+
+/// Test tolerance of the per-site OLS and HC3 against statsmodels on the
+/// large-offset data (x, y around 1e9): the offset costs about 9 of the 16
+/// digits of every value before any algorithm sees it, so agreement is
+/// limited to about 1e-7 relative for both implementations.
+pub const LARGE_OFFSET_REL: f64 = 1e-6;
+
+/// A per-site residual sum of squares below this share of the outcome's
+/// co-moment Σ(y − ȳ)² is rounding: RSS = Σ(y − ȳ)² − sᵀb is a difference
+/// whose error is a few ε of Σ(y − ȳ)², so an exact fit shows up as
+/// RSS ≈ 1e-16·Σ(y − ȳ)² rather than 0; such a slope has no standard error.
+pub const EXACT_FIT_RSS: f64 = 64.0 * f64::EPSILON;

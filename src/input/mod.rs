@@ -168,7 +168,8 @@ pub fn detect_delimiter(bytes: &[u8]) -> u8 {
     candidates[best]
 }
 
-fn find_header(headers: &[String], wanted: &str) -> Option<usize> {
+/// Finds a header: exact match after trimming, else a unique case-insensitive match.
+pub fn find_header(headers: &[String], wanted: &str) -> Option<usize> {
     let wanted = wanted.trim();
     if let Some(i) = headers.iter().position(|h| h == wanted) {
         return Some(i);

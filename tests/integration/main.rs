@@ -11,4 +11,5 @@ mod properties;
 mod reference;
 mod regression;
 mod report;
+mod sites;
 mod util;

@@ -66,3 +66,7 @@ trap 'rm -rf "$tmp"' EXIT
     echo "          $venv/bin/python tests/reference/diagnose.py tests/data/reference/diagnose" >&2
     exit 1
 }
+
+# pondus sites: per-site OLS and HC3 with statsmodels (tests/reference/sites.py -> tests/data/reference/sites/)
+"$venv/bin/python" "$here/sites.py" "$tmp/sites" > "$tmp/sites.log" 2>&1 || { cat "$tmp/sites.log" >&2; die "sites.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/sites" "$tmp/sites" || die "sites fixtures differ; regenerate with: $venv/bin/python tests/reference/sites.py tests/data/reference/sites"

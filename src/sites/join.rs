@@ -1,0 +1,150 @@
+//! Joining the site-characteristics table to the per-site effects by site id.
+
+use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::input::{self, ColumnRequest};
+use crate::result::{SiteJoin, SitesReport};
+use std::collections::HashMap;
+
+/// Columns of the effects file that a characteristic may not be named like.
+const RESERVED: [&str; 9] = [
+    "study",
+    "n",
+    "slope",
+    "se",
+    "r",
+    "interaction",
+    "interaction_se",
+    "mean_x",
+    "mean_w",
+];
+
+/// Appends every other column of the site table `bytes` (named `source`)
+/// to the sites of `report`, matched on the column `key`.
+///
+/// Sites without a row in the table keep their estimates with empty
+/// characteristics; table ids without an estimated site are listed. Both
+/// lists go into [`SiteJoin`]; nothing is dropped silently.
+///
+/// # Errors
+/// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
+/// missing or repeated id (with both lines); [`Error::Format`] when a
+/// characteristic would shadow an effects column.
+pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> Result<()> {
+    let probe = input::parse_table(
+        source,
+        bytes,
+        &[ColumnRequest {
+            header: key.to_string(),
+            required: true,
+            purpose: "the site ids of the site table".into(),
+            hint:
+                "Name the id column with --info-key <header> (default: the --site column's name)."
+                    .into(),
+        }],
+    )?;
+    let key_header = probe
+        .column(0)
+        .map(|c| c.header.clone())
+        .unwrap_or_default();
+    let others: Vec<String> = probe
+        .headers
+        .iter()
+        .filter(|h| **h != key_header)
+        .cloned()
+        .collect();
+    for h in &others {
+        if RESERVED.contains(&h.to_lowercase().as_str()) {
+            return Err(Error::Format {
+                source_name: source.to_string(),
+                message: format!(
+                    "the site table has a column '{h}', which is also a column of the effects file; rename it in the site table"
+                ),
+            });
+        }
+        if h.is_empty() {
+            return Err(Error::Format {
+                source_name: source.to_string(),
+                message: "the site table has a column without a header; name every column".into(),
+            });
+        }
+    }
+    let mut requests = vec![ColumnRequest {
+        header: key_header.clone(),
+        required: true,
+        purpose: "site ids".into(),
+        hint: String::new(),
+    }];
+    requests.extend(others.iter().map(|h| ColumnRequest {
+        header: h.clone(),
+        required: true,
+        purpose: "a site characteristic".into(),
+        hint: String::new(),
+    }));
+    let table = input::parse_table(source, bytes, &requests)?;
+    let ids = table.column(0).expect("required");
+    let mut rows: HashMap<&str, usize> = HashMap::new();
+    let mut problems = Vec::new();
+    for i in 0..table.len() {
+        let id = ids.get(i);
+        if id.is_empty() {
+            problems.push(CellProblem {
+                line: table.lines[i],
+                column: key_header.clone(),
+                value: String::new(),
+                message: "the site id is missing; give every row of the site table its id".into(),
+            });
+            continue;
+        }
+        if let Some(&first) = rows.get(id) {
+            problems.push(CellProblem {
+                line: table.lines[i],
+                column: key_header.clone(),
+                value: id.to_string(),
+                message: format!(
+                    "site '{id}' already has a row on line {}; give each site one row (merge or delete the repeated one)",
+                    table.lines[first]
+                ),
+            });
+            continue;
+        }
+        rows.insert(id, i);
+    }
+    if !problems.is_empty() {
+        let total = problems.len();
+        problems.truncate(CellProblems::MAX_LISTED);
+        return Err(Error::Cells(CellProblems {
+            source: source.to_string(),
+            problems,
+            total,
+        }));
+    }
+    let mut without_info = Vec::new();
+    let mut used = vec![false; table.len()];
+    for site in &mut report.sites {
+        match rows.get(site.study.as_str()) {
+            Some(&i) => {
+                used[i] = true;
+                site.characteristics = (1..requests.len())
+                    .map(|c| table.column(c).expect("required").get(i).to_string())
+                    .collect();
+            }
+            None => {
+                without_info.push(site.study.clone());
+                site.characteristics = vec![String::new(); others.len()];
+            }
+        }
+    }
+    let mut info_only: Vec<String> = (0..table.len())
+        .filter(|&i| !used[i] && !ids.get(i).is_empty())
+        .map(|i| ids.get(i).to_string())
+        .collect();
+    super::sort_ids(&mut info_only, |s| s.as_str());
+    report.join = Some(SiteJoin {
+        file: source.to_string(),
+        key: key_header,
+        columns: others,
+        without_info,
+        info_only,
+    });
+    Ok(())
+}

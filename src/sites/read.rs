@@ -1,0 +1,425 @@
+//! Streaming the raw participant rows: one record at a time, with the file's
+//! own line numbers.
+
+use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::input::{detect_delimiter, find_header};
+use std::collections::VecDeque;
+use std::io::{BufRead, BufReader, Read};
+
+/// A reader that notes the byte offsets of every line break it passes on,
+/// so that a record's line number can be found from its byte offset.
+///
+/// The csv crate's own line count skips blank lines and miscounts CRLF
+/// files (see `crate::input::parse_table`, which counts from byte offsets
+/// in memory). Here the bytes stream through, so the offsets of `\n` and
+/// `\r` are queued as they pass and dropped once the parser is beyond
+/// them: memory stays within the parser's look-ahead buffer.
+struct BreakCounter<R> {
+    inner: R,
+    offset: u64,
+    /// Offsets of line-break bytes not yet counted, shifted left by one; the
+    /// low bit is 1 for `\n`, 0 for `\r`.
+    breaks: VecDeque<u64>,
+    line: u64,
+}
+
+impl<R: Read> Read for BreakCounter<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let got = self.inner.read(buf)?;
+        for (i, &b) in buf[..got].iter().enumerate() {
+            if b == b'\n' || b == b'\r' {
+                self.breaks
+                    .push_back(((self.offset + i as u64) << 1) | u64::from(b == b'\n'));
+            }
+        }
+        self.offset += got as u64;
+        Ok(got)
+    }
+}
+
+impl<R> BreakCounter<R> {
+    /// The 1-based line of a record that the parser says starts at byte
+    /// `offset`: line breaks before it are counted, and so are the breaks
+    /// right at `offset` (the parser's offset can point at the terminators
+    /// of blank lines before the record).
+    fn line_at(&mut self, offset: u64) -> u64 {
+        let mut end = offset;
+        while let Some(&b) = self.breaks.front() {
+            let at = b >> 1;
+            if at <= end {
+                if at == end {
+                    end += 1;
+                }
+                self.line += b & 1;
+                self.breaks.pop_front();
+            } else {
+                break;
+            }
+        }
+        self.line
+    }
+}
+
+/// The columns a pass needs, by header.
+#[derive(Debug, Clone)]
+pub struct RowColumns {
+    /// Site id header.
+    pub site: String,
+    /// Numeric headers in the order of the values handed to the caller, with
+    /// the flag each was given as (for messages).
+    pub numeric: Vec<(String, &'static str)>,
+}
+
+/// What a pass saw besides the rows it handed on.
+#[derive(Debug, Clone, Default)]
+pub struct PassSummary {
+    /// The delimiter found.
+    pub delimiter: u8,
+    /// Data rows read (blank rows not counted).
+    pub rows: u64,
+    /// Rows left out because a numeric cell was empty or a missing mark.
+    pub missing_rows: u64,
+    /// The first of those rows' lines.
+    pub missing_lines: Vec<u64>,
+    /// Wholly blank rows skipped.
+    pub blank_rows: u64,
+}
+
+/// Parses a numeric cell: a plain number directly (the common case), anything
+/// else (blanks, missing marks, text) through [`parse_cell`].
+#[inline]
+fn parse_number(cell: &[u8]) -> Cell {
+    match std::str::from_utf8(cell) {
+        Ok(t) => match t.parse::<f64>() {
+            Ok(v) if v.is_finite() => Cell::Value(v),
+            _ => parse_cell(t),
+        },
+        Err(_) => Cell::Invalid,
+    }
+}
+
+#[derive(Default)]
+struct Problems {
+    list: Vec<CellProblem>,
+    total: usize,
+}
+
+/// How many line numbers of rows with missing values are kept for display.
+pub const MISSING_LINES_KEPT: usize = 20;
+
+/// Reads CSV rows from `input` and hands each usable row to `row` as
+/// (line, site id bytes, numeric values in `cols.numeric` order).
+///
+/// Rows with an empty (or missing-mark) numeric cell are skipped and counted;
+/// a missing site id, text that is not a number, or a field count different
+/// from the header's are problems: they are collected (the first
+/// [`CellProblems::MAX_LISTED`] kept) and returned together after the pass.
+///
+/// # Errors
+/// [`Error::Format`], [`Error::MissingColumn`], [`Error::Cells`] naming the
+/// file, line and column; [`Error::Io`] when reading fails.
+pub fn for_each_row<R: Read>(
+    source: &str,
+    input: R,
+    cols: &RowColumns,
+    mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<PassSummary> {
+    let fmt = |message: String| Error::Format {
+        source_name: source.to_string(),
+        message,
+    };
+    let io = |e: std::io::Error| Error::Io {
+        path: source.to_string(),
+        action: "reading",
+        source: e,
+    };
+    let mut buffered = BufReader::with_capacity(1 << 16, input);
+    let head = buffered.fill_buf().map_err(io)?;
+    let bom = head.starts_with(b"\xEF\xBB\xBF");
+    if bom {
+        buffered.consume(3);
+    }
+    let head = buffered.fill_buf().map_err(io)?;
+    if head.iter().all(|b| b.is_ascii_whitespace()) {
+        return Err(fmt(
+            "the file is empty; it needs a header row and one row per participant".into(),
+        ));
+    }
+    let delimiter = detect_delimiter(head);
+    let counter = BreakCounter {
+        inner: buffered,
+        offset: 0,
+        breaks: VecDeque::new(),
+        line: 1,
+    };
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .buffer_capacity(1 << 16)
+        .from_reader(counter);
+    let header_record = reader
+        .byte_headers()
+        .map_err(|e| fmt(format!("the header row cannot be read: {e}")))?
+        .clone();
+    let mut headers = Vec::with_capacity(header_record.len());
+    for (i, field) in header_record.iter().enumerate() {
+        let text = std::str::from_utf8(field).map_err(|_| {
+            fmt(format!(
+                "header field {} is not valid UTF-8; save the file as UTF-8",
+                i + 1
+            ))
+        })?;
+        headers.push(text.trim().to_string());
+    }
+    let locate = |wanted: &str, flag: &str| -> Result<usize> {
+        let i = find_header(&headers, wanted).ok_or_else(|| Error::MissingColumn {
+            source_name: source.to_string(),
+            column: wanted.to_string(),
+            purpose: flag.to_string(),
+            available: headers.join(", "),
+            hint: format!("Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."),
+        })?;
+        let dup = headers.iter().filter(|h| **h == headers[i]).count();
+        if dup > 1 {
+            return Err(fmt(format!(
+                "the header has {dup} columns named '{}'; rename them so each is unique",
+                headers[i]
+            )));
+        }
+        Ok(i)
+    };
+    let site_ix = locate(&cols.site, "--site")?;
+    let mut num_ix = Vec::with_capacity(cols.numeric.len());
+    for (h, flag) in &cols.numeric {
+        num_ix.push(locate(h, flag)?);
+    }
+    let mut summary = PassSummary {
+        delimiter,
+        ..PassSummary::default()
+    };
+    let mut problems = Problems::default();
+    let problem = |p: &mut Problems, line: u64, column: &str, value: &[u8], message: String| {
+        p.total += 1;
+        if p.list.len() < CellProblems::MAX_LISTED {
+            let text = String::from_utf8_lossy(value);
+            let value: String = text.trim().chars().take(40).collect();
+            p.list.push(CellProblem {
+                line,
+                column: column.to_string(),
+                value,
+                message,
+            });
+        }
+    };
+    let mut record = csv::ByteRecord::new();
+    let mut values = vec![0.0; num_ix.len()];
+    let width = headers.len();
+    loop {
+        match reader.read_byte_record(&mut record) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => {
+                let line = match e.position() {
+                    Some(p) => reader.get_mut().line_at(p.byte()),
+                    None => 0,
+                };
+                if let csv::ErrorKind::Io(_) = e.kind() {
+                    let csv::ErrorKind::Io(inner) = e.into_kind() else {
+                        unreachable!("matched above")
+                    };
+                    return Err(io(inner));
+                }
+                return Err(fmt(format!("line {line} cannot be read as CSV: {e}")));
+            }
+        }
+        let line = match record.position() {
+            Some(p) => reader.get_mut().line_at(p.byte()),
+            None => 0,
+        };
+        if record.len() != width {
+            if record
+                .iter()
+                .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
+            {
+                summary.blank_rows += 1;
+                continue;
+            }
+            return Err(fmt(format!(
+                "line {line} has {} fields but the header has {width}; check for a missing value \
+                 or an unquoted '{}' inside a value",
+                record.len(),
+                delimiter as char
+            )));
+        }
+        summary.rows += 1;
+        let site = record[site_ix].trim_ascii();
+        let mut bad = false;
+        let mut missing = false;
+        for (k, &i) in num_ix.iter().enumerate() {
+            let cell = &record[i];
+            let parsed = parse_number(cell);
+            match parsed {
+                Cell::Value(v) => values[k] = v,
+                Cell::Missing => missing = true,
+                Cell::Invalid => {
+                    bad = true;
+                    let text = String::from_utf8_lossy(cell);
+                    problem(
+                        &mut problems,
+                        line,
+                        &headers[i],
+                        cell,
+                        format!(
+                            "{}; fix the cell, or empty it to leave this row out",
+                            invalid_hint(&text)
+                        ),
+                    );
+                }
+            }
+        }
+        if site.is_empty() {
+            if num_ix.iter().all(|&i| record[i].trim_ascii().is_empty())
+                && record.iter().all(|f| f.trim_ascii().is_empty())
+            {
+                summary.rows -= 1;
+                summary.blank_rows += 1;
+                continue;
+            }
+            problem(
+                &mut problems,
+                line,
+                &headers[site_ix],
+                site,
+                "the site id is missing; give every row its site id, or delete the row".into(),
+            );
+            continue;
+        }
+        if std::str::from_utf8(site).is_err() {
+            problem(
+                &mut problems,
+                line,
+                &headers[site_ix],
+                site,
+                "the site id is not valid UTF-8; save the file as UTF-8".into(),
+            );
+            continue;
+        }
+        if bad {
+            continue;
+        }
+        if missing {
+            summary.missing_rows += 1;
+            if summary.missing_lines.len() < MISSING_LINES_KEPT {
+                summary.missing_lines.push(line);
+            }
+            continue;
+        }
+        if problems.total == 0 {
+            row(line, site, &values)?;
+        }
+    }
+    if problems.total > 0 {
+        return Err(Error::Cells(CellProblems {
+            source: source.to_string(),
+            problems: problems.list,
+            total: problems.total,
+        }));
+    }
+    if summary.rows == 0 {
+        return Err(fmt(
+            "the file has a header row but no data rows; add one row per participant".into(),
+        ));
+    }
+    Ok(summary)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cols() -> RowColumns {
+        RowColumns {
+            site: "site".into(),
+            numeric: vec![("x".into(), "--x"), ("y".into(), "--y")],
+        }
+    }
+
+    fn lines(data: &[u8]) -> Vec<u64> {
+        let mut out = Vec::new();
+        for_each_row("t.csv", data, &cols(), |l, _, _| {
+            out.push(l);
+            Ok(())
+        })
+        .unwrap();
+        out
+    }
+
+    #[test]
+    fn line_numbers_survive_blank_lines_crlf_and_quotes() {
+        assert_eq!(lines(b"site,x,y\na,1,2\n\n\nb,3,4\n"), vec![2, 5]);
+        assert_eq!(lines(b"site,x,y\r\na,1,2\r\n\r\nb,3,4\r\n"), vec![2, 4]);
+        assert_eq!(lines(b"site,x,y\n\"a\nb\",1,2\nc,3,4"), vec![2, 4]);
+        assert_eq!(
+            lines(b"\xEF\xBB\xBFsite;x;y\na;1;2\n;;\nb;3;4\n"),
+            vec![2, 4]
+        );
+    }
+
+    #[test]
+    fn line_numbers_across_buffer_refills() {
+        let mut data = b"site,x,y\n".to_vec();
+        for i in 0..30_000 {
+            if i % 1000 == 7 {
+                data.extend_from_slice(b"\r\n\n");
+            }
+            data.extend_from_slice(format!("s{},{i},{}\n", i % 13, i * 2).as_bytes());
+        }
+        let got = lines(&data);
+        // Reference: count lines in memory.
+        let text = std::str::from_utf8(&data).unwrap();
+        let want: Vec<u64> = text
+            .split('\n')
+            .enumerate()
+            .filter(|(i, l)| *i > 0 && l.starts_with('s'))
+            .map(|(i, _)| i as u64 + 1)
+            .collect();
+        assert_eq!(got, want);
+    }
+
+    #[test]
+    fn problems_are_collected_with_lines() {
+        let e = for_each_row(
+            "t.csv",
+            &b"site,x,y\na,1,2\n,3,4\nb,1;5,3\nc,abc,1\n"[..],
+            &cols(),
+            |_, _, _| Ok(()),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("3 problems"), "{e}");
+        assert!(
+            e.contains("line 3, column 'site'") && e.contains("site id is missing"),
+            "{e}"
+        );
+        assert!(e.contains("line 5, column 'x' (value 'abc')"), "{e}");
+    }
+
+    #[test]
+    fn missing_values_skip_the_row_and_are_counted() {
+        let mut n = 0;
+        let s = for_each_row(
+            "t.csv",
+            &b"site,x,y\na,1,2\na,NA,3\na,,4\nb,1,2\n"[..],
+            &cols(),
+            |_, _, _| {
+                n += 1;
+                Ok(())
+            },
+        )
+        .unwrap();
+        assert_eq!((n, s.rows, s.missing_rows), (2, 4, 2));
+        assert_eq!(s.missing_lines, vec![3, 4]);
+    }
+}
