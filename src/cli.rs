@@ -1387,6 +1387,9 @@ pub struct SitesArgs {
     /// Do not print the terminal summary.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Write one self-contained HTML page (sites, exclusions, join, both stages, plots, cautions) into this .html file ('-' for standard output).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
 }
 
 /// Where `pondus sites` reads from.
@@ -1415,6 +1418,10 @@ pub struct SitesRun {
     pub fit: Option<(FitOptions, Vec<ModeratorSpec>)>,
     /// Whether to print the terminal summary.
     pub text: bool,
+    /// The HTML report's target.
+    pub report: Option<Target>,
+    /// The command line, quoted for a shell.
+    pub invocation: String,
 }
 
 impl SitesArgs {
@@ -1474,7 +1481,12 @@ impl SitesArgs {
         }
         let out = self.out.as_deref().map(Target::from_arg);
         let json = self.json.as_deref().map(Target::from_arg);
-        if out.is_none() && json.is_none() && !self.fit {
+        let report = self
+            .report
+            .as_deref()
+            .map(|p| report_target("--report", p))
+            .transpose()?;
+        if out.is_none() && json.is_none() && report.is_none() && !self.fit {
             return Err(Error::usage(
                 "--out",
                 "nothing to do: add --out EFFECTS.csv (and/or --fit, --json)",
@@ -1486,6 +1498,9 @@ impl SitesArgs {
         }
         if let Some(j) = &json {
             outs.push(("--json", j));
+        }
+        if let Some(r) = &report {
+            outs.push(("--report", r));
         }
         let input_path = match &input {
             SitesInputArg::Rows(Source::File(p)) => Some(p.as_path()),
@@ -1540,6 +1555,8 @@ impl SitesArgs {
                 )
             }),
             text: !self.quiet && !to_stdout,
+            report,
+            invocation: invocation(),
         })
     }
 }
@@ -1579,6 +1596,32 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
             .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
         buf.push(b'\n');
         output::emit(t, &buf)?;
+    }
+    if let Some(t) = &run.report {
+        let input_sha256 = match &run.input {
+            SitesInputArg::Rows(Source::File(p)) | SitesInputArg::Moments(p) => {
+                Some(crate::sites::sha256_file(p)?)
+            }
+            SitesInputArg::Rows(Source::Stdin) => None,
+        };
+        let source = match &report.stages {
+            Some(st) => st.characteristics.as_ref().or(st.across.as_ref()),
+            None => None,
+        };
+        let (figures, figure_notes) = match source {
+            Some(fit) => plot::page_figures(fit, &plot::PlotOptions::default())?,
+            None => (Vec::new(), Vec::new()),
+        };
+        let prov = report::html::Provenance {
+            command: run.invocation.clone(),
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            input_sha256,
+            seed: None,
+        };
+        output::emit(
+            t,
+            report::html::sites_page(&report, &figures, &figure_notes, &prov).as_bytes(),
+        )?;
     }
     if run.text {
         output::emit(&Target::Stdout, report::sites::render(&report).as_bytes())?;

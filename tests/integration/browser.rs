@@ -1,6 +1,6 @@
 //! The HTML report in a real browser: headless Chromium (Debian's
 //! `chromium` package; `.ci/run` installs it) loads the report of every data
-//! example and of a planning run, takes a screenshot, and the test checks
+//! example, of a planning run and of a two-stage `pondus sites` run, takes a screenshot, and the test checks
 //! that the page logged nothing to the console (the page has no scripts, so
 //! any console line is an error: a blocked resource, a policy violation, a
 //! parse failure) and that every plot is visible: each figure's frame is
@@ -11,7 +11,7 @@
 //! with `PONDUS_REQUIRE_BROWSER=1` (set by `.ci/run`) a missing browser is
 //! a failure.
 
-use crate::report::{fit_report, plan_report, EXAMPLES, PLAN_ARGS};
+use crate::report::{fit_report, plan_report, sites_report, EXAMPLES, PLAN_ARGS};
 use crate::util::repo;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -248,6 +248,8 @@ fn every_example_report_renders_in_chromium_without_console_errors() {
     }
     let (page, html) = plan_report(PLAN_ARGS, work.path());
     check_page(&browser, "plan", &page, &html, work.path());
+    let (page, html) = sites_report(work.path());
+    check_page(&browser, "sites", &page, &html, work.path());
 }
 
 #[test]

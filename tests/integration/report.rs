@@ -339,3 +339,52 @@ fn report_to_standard_output_replaces_the_terminal_text() {
     assert!(out.starts_with("<!DOCTYPE html>"));
     assert!(out.trim_end().ends_with("</html>"));
 }
+
+/// The `pondus sites` run the report tests use: the invented choir data
+/// with both stages and a site characteristic.
+pub const SITES_ARGS: &str = "--site choir --x rehearsal_hours --y breath_hold_s --w age --covariate wind --fit --moderator conductor_years";
+
+/// Runs `pondus sites` on the choir example with `--report DIR/sites.html`.
+pub fn sites_report(dir: &Path) -> (PathBuf, String) {
+    let out = dir.join("sites.html");
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .arg("sites")
+        .arg(example("choir-participants.csv"))
+        .args(SITES_ARGS.split_whitespace())
+        .arg("--info")
+        .arg(example("choir-sites.csv"))
+        .arg("--report")
+        .arg(&out)
+        .arg("-q")
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "pondus sites --report failed: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    (out.clone(), std::fs::read_to_string(&out).unwrap())
+}
+
+#[test]
+fn sites_report_has_both_stages_exclusions_join_and_digest() {
+    let dir = tempfile::tempdir().unwrap();
+    let (_, page) = sites_report(dir.path());
+    assert_self_contained("sites", &page);
+    for needle in [
+        "Within sites</strong>: the pooled product term rehearsal_hours·age is",
+        "Across sites</strong>: the site slope changes by",
+        "Within sites: the pooled product term",
+        "Across sites: the slopes on the site characteristics",
+        "Sites left out, with the reason",
+        "Hollowcombe Choir",
+        "Mirefield Choir",
+        "ecological bias",
+    ] {
+        assert!(page.contains(needle), "no '{needle}'");
+    }
+    let bytes = std::fs::read(example("choir-participants.csv")).unwrap();
+    assert!(page.contains(&pondus::analysis::sha256_hex(&bytes)));
+    assert_eq!(page.matches("<figure class=\"plot\"").count(), 3);
+}
