@@ -707,7 +707,8 @@ fn duplicate_label_warnings(included: &[usize], labels: &[String]) -> Vec<String
     )]
 }
 
-fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
+/// The values of a prediction on the reading scale (None when it is the analysis scale).
+pub(crate) fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
     (scale != ReadingScale::Same).then(|| Reading {
         estimate: scale.apply(p.estimate),
         ci_low: scale.apply(p.ci_low),

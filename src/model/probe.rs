@@ -12,7 +12,7 @@
 //! handled exactly as in the fit.
 
 use super::design::{self, Design, ModeratorKind, Value};
-use super::inference::{self, PredictionInference};
+use super::inference;
 use super::{Inference, ModelFit};
 use crate::dist;
 use crate::effect::artifact::ArtifactSettings;
@@ -20,7 +20,7 @@ use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{
     AtValue, ConditionalEffect, ContrastTest, Estimate, Interpretation, LevelContrast,
-    PictureChange, Reading, RegionOfSignificance, SimpleSlope,
+    PictureChange, RegionOfSignificance, SimpleSlope,
 };
 use crate::tolerance;
 use nalgebra::DVector;
@@ -432,16 +432,6 @@ fn partner_contrasts(
     Ok(out)
 }
 
-fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
-    (scale != ReadingScale::Same).then(|| Reading {
-        estimate: scale.apply(p.estimate),
-        ci_low: scale.apply(p.ci_low),
-        ci_high: scale.apply(p.ci_high),
-        pi_low: scale.apply(p.pi_low),
-        pi_high: scale.apply(p.pi_high),
-    })
-}
-
 /// What the model needs besides the fit for the "how the picture changes" comparison.
 #[derive(Debug, Clone)]
 pub struct Baseline {
@@ -532,7 +522,7 @@ pub fn interpret(
                 statistic: stat,
                 df: df(fit),
                 p: p_value(fit, stat),
-                reading: reading(&p, scale),
+                reading: crate::analysis::reading(&p, scale),
                 outside_range: pt.outside,
             });
         }

@@ -18,23 +18,6 @@ fn pad(s: &str, w: usize) -> String {
     }
 }
 
-fn wrap(out: &mut String, text: &str, indent: &str, width: usize) {
-    let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
-            let _ = writeln!(out, "{indent}{line}");
-            line.clear();
-        }
-        if !line.is_empty() {
-            line.push(' ');
-        }
-        line.push_str(word);
-    }
-    if !line.is_empty() {
-        let _ = writeln!(out, "{indent}{line}");
-    }
-}
-
 fn at(v: &AtValue) -> String {
     match v {
         AtValue::Number(x) => crate::model::probe::short(*x),
@@ -65,7 +48,7 @@ pub fn render(r: &FitReport) -> String {
         for c in &a.corrections {
             let _ = writeln!(o, "  - {c}");
         }
-        wrap(&mut o, &a.method, "  ", 70);
+        o.push_str(&super::text::wrap(&a.method, "  ", 70));
         let _ = writeln!(
             o,
             "  mean r over the studies (unweighted): observed {}, corrected {}",
@@ -247,7 +230,7 @@ pub fn render(r: &FitReport) -> String {
                     )
                 }
             );
-            wrap(&mut o, &g.words, "    ", 68);
+            o.push_str(&super::text::wrap(&g.words, "    ", 68));
             if !g.held.is_empty() {
                 let _ = writeln!(o, "    held: {}", g.held);
             }
@@ -288,7 +271,7 @@ pub fn render(r: &FitReport) -> String {
             pad(&num(p.tau2_without), 32),
             num(p.tau2_with)
         );
-        wrap(&mut o, &p.words, "  ", 70);
+        o.push_str(&super::text::wrap(&p.words, "  ", 70));
         let _ = writeln!(o);
     }
     o

@@ -8,23 +8,6 @@ use std::fmt::Write as _;
 /// Sites listed one by one at most; the effects file has them all.
 pub const MAX_LISTED_SITES: usize = 40;
 
-fn wrap(out: &mut String, text: &str, indent: &str) {
-    let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > 88 {
-            let _ = writeln!(out, "{indent}{line}");
-            line.clear();
-        }
-        if !line.is_empty() {
-            line.push(' ');
-        }
-        line.push_str(word);
-    }
-    if !line.is_empty() {
-        let _ = writeln!(out, "{indent}{line}");
-    }
-}
-
 fn list(items: &[String], max: usize) -> String {
     let mut s = items
         .iter()
@@ -224,7 +207,7 @@ pub fn render(r: &SitesReport) -> String {
     if !r.notes.is_empty() {
         let _ = writeln!(o);
         for n in &r.notes {
-            wrap(&mut o, n, "  ");
+            o.push_str(&super::text::wrap(n, "  ", 88));
         }
     }
     if let Some(st) = &r.stages {
@@ -258,7 +241,7 @@ pub fn render(r: &SitesReport) -> String {
         if !st.answers.is_empty() {
             let _ = writeln!(o, "\nWhich answer is which:");
             for a in &st.answers {
-                wrap(&mut o, a, "  ");
+                o.push_str(&super::text::wrap(a, "  ", 88));
             }
         }
         if let Some(f) = &st.characteristics {
@@ -267,7 +250,7 @@ pub fn render(r: &SitesReport) -> String {
         }
         let _ = writeln!(o, "\nCautions:");
         for c in &st.cautions {
-            wrap(&mut o, &format!("- {c}"), "  ");
+            o.push_str(&super::text::wrap(&format!("- {c}"), "  ", 88));
         }
     }
     o
