@@ -189,6 +189,7 @@ pub fn run_with_progress(
             }
         }
     }
+    check_moderator_scale(source, &settings.moderators, &raw, &included)?;
     let mut design = design::build(&settings.moderators, &raw, &included, &pairs)
         .map_err(|e| in_file(source, e))?;
 
@@ -1084,6 +1085,38 @@ fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
             .into(),
     );
     c
+}
+
+/// Refuses a numeric moderator whose values are so large, or whose spread
+/// is so small, that its coefficient's variance would leave the range of
+/// floating point (it scales with 1/spread²): the fix is to express the
+/// moderator in other units.
+fn check_moderator_scale(
+    source: &str,
+    specs: &[ModeratorSpec],
+    raw: &[RawModerator],
+    included: &[usize],
+) -> Result<()> {
+    use crate::tolerance::MODERATOR_MAGNITUDE;
+    for (spec, r) in specs.iter().zip(raw) {
+        let RawModerator::Numeric(x) = r else {
+            continue;
+        };
+        let vals: Vec<f64> = included.iter().filter_map(|&i| x[i]).collect();
+        let lo = vals.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = vals.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let big = lo.abs().max(hi.abs());
+        let spread = hi - lo;
+        if big > MODERATOR_MAGNITUDE || (spread > 0.0 && spread < 1.0 / MODERATOR_MAGNITUDE) {
+            return Err(Error::Model(format!(
+                "{source}: moderator '{}' runs from {lo:e} to {hi:e}; at this scale its coefficient \
+                 and standard error leave the range of floating-point numbers. Express it in other \
+                 units (for example divide or multiply the column by a power of ten) and run again",
+                spec.name
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// SHA-256 of `bytes` as lowercase hex (FIPS 180-4, through the `sha2` crate).

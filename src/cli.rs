@@ -349,7 +349,14 @@ impl FitArgs {
         let mut overrides = BTreeMap::new();
         for c in &self.col {
             let (role, header) = split_pair("--col", c, "ROLE=HEADER")?;
-            overrides.insert(role.to_string(), header.to_string());
+            if let Some(before) = overrides.insert(role.to_string(), header.to_string()) {
+                return Err(Error::usage(
+                    "--col",
+                    format!(
+                        "the role '{role}' is given twice ('{role}={before}' and '{c}'); give each role once"
+                    ),
+                ));
+            }
         }
         let columns = ColumnMap::new(measure, overrides)?;
         if !(self.level > 0.0 && self.level < 1.0) {

@@ -128,3 +128,9 @@ pub const LARGE_OFFSET_REL: f64 = 1e-6;
 /// whose error is a few ε of Σ(y − ȳ)², so an exact fit shows up as
 /// RSS ≈ 1e-16·Σ(y − ȳ)² rather than 0; such a slope has no standard error.
 pub const EXACT_FIT_RSS: f64 = 64.0 * f64::EPSILON;
+
+/// A numeric moderator with a value beyond this magnitude, or with a spread
+/// below its reciprocal, is refused with a request to rescale it: its
+/// coefficient's variance, which scales with 1/spread², would overflow or
+/// underflow double precision (about 1e±308) in the fit.
+pub const MODERATOR_MAGNITUDE: f64 = 1e100;

@@ -479,6 +479,15 @@ fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
     let mut q: Vec<Vec<f64>> = Vec::with_capacity(p);
     for j in 0..p {
         let mut col: Vec<f64> = (0..k).map(|i| x[i * p + j]).collect();
+        // Scaling a column does not change the rank; scaling it to a largest
+        // magnitude of 1 keeps the squares below from underflowing (values
+        // near 1e-300) or overflowing (near 1e300).
+        let scale = col.iter().fold(0.0f64, |m, c| m.max(c.abs()));
+        if scale > 0.0 && scale.is_finite() {
+            for c in &mut col {
+                *c /= scale;
+            }
+        }
         let norm0: f64 = col.iter().map(|c| c * c).sum();
         for b in &q {
             let dot: f64 = col.iter().zip(b).map(|(c, b)| c * b).sum();

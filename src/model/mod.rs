@@ -108,8 +108,17 @@ fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
         } else {
             0.0
         };
-        let ss = (0..k).map(|i| (x[i * p + j] - mean).powi(2)).sum::<f64>();
-        let sd = (ss / k as f64).sqrt();
+        // The SD through the largest deviation, so the squares neither
+        // underflow (values near 1e-300) nor overflow (near 1e300).
+        let big = (0..k).fold(0.0f64, |m, i| m.max((x[i * p + j] - mean).abs()));
+        let sd = if big > 0.0 && big.is_finite() {
+            let ss = (0..k)
+                .map(|i| ((x[i * p + j] - mean) / big).powi(2))
+                .sum::<f64>();
+            big * (ss / k as f64).sqrt()
+        } else {
+            0.0
+        };
         let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
         for i in 0..k {
             xs[i * p + j] = (x[i * p + j] - mean) / sd;

@@ -136,3 +136,82 @@ fn readme_keeps_its_two_set_up_commands() {
         "the demo data are bundled"
     );
 }
+
+fn fit_bin(csv: &str, args: &[&str]) -> (Option<i32>, String, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("data.csv");
+    std::fs::write(&path, csv).unwrap();
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .arg("fit")
+        .arg(&path)
+        .args(args)
+        .output()
+        .unwrap();
+    (
+        o.status.code(),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
+/// Moderator values near 1e-300 were called "collinear" (their squares
+/// underflow in the rank check); now the rank check is scale-free and the
+/// user is asked to rescale, since the coefficient's variance (∝ 1/spread²)
+/// cannot be represented.
+#[test]
+fn tiny_moderator_values_ask_for_rescaling_not_collinearity() {
+    let csv = "study,effect,variance,m\na,0.1,0.01,1e-300\nb,0.3,0.02,2e-300\nc,0.2,0.01,3e-300\nd,0.25,0.01,4e-300\n";
+    let (code, _, err) = fit_bin(csv, &["--moderator", "m"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("moderator 'm'") && err.contains("other units"),
+        "{err}"
+    );
+    assert!(!err.contains("collinear"), "{err}");
+    let huge = csv.replace("e-300", "e300");
+    let (code, _, err) = fit_bin(&huge, &["--moderator", "m"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("other units"), "{err}");
+}
+
+/// A moderator that is small but well inside floating point (1e-8 units)
+/// gives the same test as the same moderator in units of 1: the rank check
+/// and the internal standardisation do not depend on the scale.
+#[test]
+fn moderator_scale_does_not_change_the_test() {
+    let base = "study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\nd,0.25,0.01,4\ne,0.4,0.03,5\n";
+    let small = base
+        .lines()
+        .enumerate()
+        .map(|(i, l)| {
+            if i == 0 {
+                l.to_string()
+            } else {
+                let (head, m) = l.rsplit_once(',').unwrap();
+                format!("{head},{m}e-8")
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    let json = |csv: &str| {
+        let (code, out, err) = fit_bin(csv, &["--moderator", "m", "--json", "-"]);
+        assert_eq!(code, Some(0), "{err}");
+        let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+        v["moderator_test"]["p"].as_f64().unwrap()
+    };
+    let (a, b) = (json(base), json(&small));
+    assert!((a - b).abs() <= 1e-9 * a.abs(), "{a} vs {b}");
+}
+
+/// `--col effect=a --col effect=b` used to keep the last silently.
+#[test]
+fn a_role_given_twice_in_col_is_refused() {
+    let csv = "study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\n";
+    let (code, _, err) = fit_bin(csv, &["--col", "effect=variance", "--col", "effect=m"]);
+    assert_eq!(code, Some(2));
+    assert!(
+        err.contains("--col") && err.contains("given twice"),
+        "{err}"
+    );
+}
