@@ -360,7 +360,7 @@ impl FitArgs {
         }
         let columns = ColumnMap::new(measure, overrides)?;
         if !(self.level > 0.0 && self.level < 1.0) {
-            let hint = if self.level > 1.0 && self.level < 100.0 {
+            let hint = if self.level >= 50.0 && self.level < 100.0 {
                 format!("; give a fraction, e.g. --level {}", self.level / 100.0)
             } else {
                 String::new()

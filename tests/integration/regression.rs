@@ -215,3 +215,33 @@ fn a_role_given_twice_in_col_is_refused() {
         "{err}"
     );
 }
+
+/// Correlations of ±0.999999 from 100,000 people and one from 10¹² people:
+/// Fisher's z = atanh(r) and its variance 1/(n − 3) stay finite and exact
+/// (checked against the closed form), and the fit reports finite numbers.
+#[test]
+fn extreme_correlations_and_huge_n_stay_finite() {
+    let csv = "study,r,n\na,0.999999,100000\nb,-0.999999,100000\nc,0.5,1000000000000\nd,0.3,50\n";
+    let (code, out, err) = fit_bin(csv, &["--measure", "r", "--inference", "z", "--json", "-"]);
+    assert_eq!(code, Some(0), "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let studies = v["studies"].as_array().unwrap();
+    let expect = [
+        (0.999999f64.atanh(), 1.0 / 99_997.0),
+        ((-0.999999f64).atanh(), 1.0 / 99_997.0),
+        (0.5f64.atanh(), 1.0 / (1e12 - 3.0)),
+        (0.3f64.atanh(), 1.0 / 47.0),
+    ];
+    for (s, (z, var)) in studies.iter().zip(expect) {
+        let (e, vv) = (
+            s["effect"].as_f64().unwrap(),
+            s["variance"].as_f64().unwrap(),
+        );
+        assert!((e - z).abs() <= 1e-12 * z.abs(), "{e} vs {z}");
+        assert!((vv - var).abs() <= 1e-12 * var, "{vv} vs {var}");
+    }
+    for key in ["estimate", "se", "ci_low", "ci_high", "pi_low", "pi_high"] {
+        assert!(v["average"][key].as_f64().unwrap().is_finite(), "{key}");
+    }
+    assert!(v["tau2"]["estimate"].as_f64().unwrap().is_finite());
+}

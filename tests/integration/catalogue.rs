@@ -1,0 +1,172 @@
+//! The bad-input catalogue: every class of bad input below is run through
+//! the `pondus` binary; each must exit with the expected code and print a
+//! message containing the expected words, and `docs/reliability.md` must
+//! show the message the user sees (its first line) for every case, so the
+//! documented behaviour is the tested behaviour.
+//!
+//! After changing a message, rewrite the catalogue section of the document
+//! with `PONDUS_WRITE_CATALOGUE=1 cargo test --test integration catalogue`.
+
+use crate::util::repo;
+use assert_cmd::Command;
+
+/// One case: a name, what is wrong, the command (`{in}` stands for the
+/// input file, `{dir}` for a scratch folder), the input file's bytes (None:
+/// no file is written), what is fed on standard input, the exit code and
+/// words the message must contain.
+struct Case {
+    id: &'static str,
+    what: &'static str,
+    args: &'static str,
+    input: Option<&'static [u8]>,
+    stdin: &'static [u8],
+    code: i32,
+    words: &'static [&'static str],
+}
+
+const PLAIN: &[u8] =
+    b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.015,3\nd,0.25,0.01,4\n";
+
+const CASES: &[Case] = &[
+    Case { id: "missing-file", what: "the input file does not exist", args: "fit {dir}/nope.csv", input: None, stdin: b"", code: 2, words: &["nope.csv"] },
+    Case { id: "directory", what: "the input path is a folder", args: "fit {dir}", input: None, stdin: b"", code: 2, words: &["directory"] },
+    Case { id: "empty-file", what: "the file is empty", args: "fit {in}", input: Some(b""), stdin: b"", code: 2, words: &["empty"] },
+    Case { id: "header-only", what: "a header and no rows", args: "fit {in}", input: Some(b"study,effect,variance\n"), stdin: b"", code: 2, words: &["no data rows"] },
+    Case { id: "not-utf8", what: "bytes that are not UTF-8 (a Latin-1 export)", args: "fit {in}", input: Some(b"study,effect,variance\nM\xfcller,0.1,0.01\nb,0.2,0.02\n"), stdin: b"", code: 2, words: &["UTF-8", "line 2"] },
+    Case { id: "ragged-row", what: "a row with more fields than the header", args: "fit {in}", input: Some(b"study,effect,variance\na,0.1,0.01\nb,0.2,0.02,9\n"), stdin: b"", code: 2, words: &["line 3"] },
+    Case { id: "missing-column", what: "a column the measure needs is absent", args: "fit {in} --measure r", input: Some(PLAIN), stdin: b"", code: 2, words: &["'r'", "--col"] },
+    Case { id: "text-in-number", what: "text in a numeric column", args: "fit {in}", input: Some(b"study,effect,variance\na,0.1,0.01\nb,high,0.02\n"), stdin: b"", code: 2, words: &["line 3", "'effect'", "high"] },
+    Case { id: "thousands-separator", what: "a thousands separator", args: "fit {in}", input: Some(b"study,effect,variance\na,\"1,234\",0.01\nb,0.2,0.02\n"), stdin: b"", code: 2, words: &["line 2", "1,234", "thousands"] },
+    Case { id: "decimal-comma", what: "decimal commas in a semicolon-separated file", args: "fit {in}", input: Some(b"study;effect;variance\na;0,25;0,01\nb;0,3;0,02\n"), stdin: b"", code: 2, words: &["line 2", "0,25", "decimal mark"] },
+    Case { id: "infinity", what: "an infinite or NaN value", args: "fit {in}", input: Some(b"study,effect,variance\na,inf,0.01\nb,NaN,0.02\nc,0.1,0.01\n"), stdin: b"", code: 2, words: &["line 2", "finite"] },
+    Case { id: "negative-variance", what: "a negative sampling variance", args: "fit {in}", input: Some(b"study,effect,variance\na,0.1,-0.01\nb,0.2,0.02\n"), stdin: b"", code: 2, words: &["line 2", "variance"] },
+    Case { id: "zero-variance", what: "a sampling variance of 0", args: "fit {in}", input: Some(b"study,effect,variance\na,0.1,0\nb,0.2,0.02\n"), stdin: b"", code: 2, words: &["line 2", "variance"] },
+    Case { id: "one-study", what: "a single usable study", args: "fit {in}", input: Some(b"study,effect,variance\na,0.1,0.01\n"), stdin: b"", code: 2, words: &["only one study"] },
+    Case { id: "constant-moderator", what: "a moderator with the same value in every study", args: "fit {in} --moderator m", input: Some(b"study,effect,variance,m\na,0.1,0.01,5\nb,0.3,0.02,5\nc,0.2,0.01,5\n"), stdin: b"", code: 2, words: &["'m'"] },
+    Case { id: "collinear-moderators", what: "one moderator a multiple of another", args: "fit {in} --moderator m --moderator m2", input: Some(b"study,effect,variance,m,m2\na,0.1,0.01,1,2\nb,0.3,0.02,2,4\nc,0.2,0.01,3,6\nd,0.25,0.01,4,8\n"), stdin: b"", code: 2, words: &["m2", "collinear"] },
+    Case { id: "typo-in-numeric-moderator", what: "one text typo among numeric moderator values", args: "fit {in} --moderator m", input: Some(b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3O\nd,0.25,0.01,4\n"), stdin: b"", code: 2, words: &["line 4", "3O"] },
+    Case { id: "unknown-moderator", what: "a moderator name that is not a column", args: "fit {in} --moderator dose", input: Some(PLAIN), stdin: b"", code: 2, words: &["dose"] },
+    Case { id: "moderator-out-of-range", what: "moderator values near 1e-300", args: "fit {in} --moderator m", input: Some(b"study,effect,variance,m\na,0.1,0.01,1e-300\nb,0.3,0.02,2e-300\nc,0.2,0.01,3e-300\n"), stdin: b"", code: 2, words: &["other units"] },
+    Case { id: "r-out-of-range", what: "a correlation outside [-1, 1]", args: "fit {in} --measure r", input: Some(b"study,r,n\na,1.2,50\nb,0.3,40\nc,0.2,60\n"), stdin: b"", code: 2, words: &["line 2", "'r'"] },
+    Case { id: "n-too-small", what: "a correlation from 3 or fewer people", args: "fit {in} --measure r", input: Some(b"study,r,n\na,0.2,3\nb,0.3,40\nc,0.2,60\n"), stdin: b"", code: 2, words: &["line 2", "'n'"] },
+    Case { id: "sd-not-positive", what: "a standard deviation of 0 in a group", args: "fit {in} --measure smd", input: Some(b"study,treat_mean,treat_sd,treat_n,ctrl_mean,ctrl_sd,ctrl_n\na,10,0,20,9,2,20\nb,11,2,25,9,2,25\n"), stdin: b"", code: 2, words: &["line 2", "treat_sd"] },
+    Case { id: "events-above-n", what: "more events than people in a group", args: "fit {in} --measure log-or", input: Some(b"study,treat_events,treat_n,ctrl_events,ctrl_n\na,30,20,5,20\nb,3,25,6,25\n"), stdin: b"", code: 2, words: &["line 2", "treat_events"] },
+    Case { id: "output-is-input", what: "an output path equal to the input path", args: "fit {in} --json {in}", input: Some(PLAIN), stdin: b"", code: 2, words: &["--json", "input"] },
+    Case { id: "plot-extension", what: "a plot file name without .svg or .png", args: "fit {in} --forest {dir}/forest.pdf", input: Some(PLAIN), stdin: b"", code: 2, words: &["--forest", ".svg"] },
+    Case { id: "report-extension", what: "a report file name without .html", args: "fit {in} --report {dir}/report.txt", input: Some(PLAIN), stdin: b"", code: 2, words: &["--report", ".html"] },
+    Case { id: "level-out-of-range", what: "a confidence level outside (0, 1)", args: "fit {in} --level 1.5", input: Some(PLAIN), stdin: b"", code: 2, words: &["--level"] },
+    Case { id: "identical-effects-kh", what: "identical effects with Knapp–Hartung tests (residual Q = 0)", args: "fit {in} --moderator m", input: Some(b"study,effect,variance,m\na,0.2,0.01,1\nb,0.2,0.02,2\nc,0.2,0.01,3\n"), stdin: b"", code: 2, words: &["--inference z"] },
+    Case { id: "col-role-twice", what: "the same role given twice with --col", args: "fit {in} --col effect=variance --col effect=m", input: Some(PLAIN), stdin: b"", code: 2, words: &["given twice"] },
+    Case { id: "permutations-zero", what: "--permutations 0", args: "fit {in} --moderator m --permutations 0", input: Some(PLAIN), stdin: b"", code: 2, words: &["--permutations"] },
+    Case { id: "probe-unknown", what: "--probe names a moderator not in the model", args: "fit {in} --moderator m --probe dose", input: Some(PLAIN), stdin: b"", code: 2, words: &["--probe", "dose"] },
+    Case { id: "reliability-out-of-range", what: "a reliability above 1", args: "fit {in} --measure r --reliability-x rxx", input: Some(b"study,r,n,rxx\na,0.2,50,1.2\nb,0.3,40,0.8\nc,0.25,60,0.7\n"), stdin: b"", code: 2, words: &["line 2", "rxx"] },
+    Case { id: "stdin-empty", what: "an empty standard input", args: "fit -", input: None, stdin: b"", code: 2, words: &["empty"] },
+    Case { id: "sites-missing-id", what: "a participant row without a site id", args: "sites {in} --site site --x x --y y --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\n,2,3\ns1,3,5\n"), stdin: b"", code: 2, words: &["line 3", "site"] },
+    Case { id: "sites-duplicate-ids", what: "a site table with the same id twice", args: "sites {in} --site site --x x --y y --info {dir}/info.csv --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\ns1,2,3\ns1,3,5\ns1,4,4\ns1,5,7\n"), stdin: b"", code: 2, words: &["line 3", "already has a row on line 2"] },
+    Case { id: "plan-negative-tau2", what: "a negative τ² in a plan", args: "plan --measure r --k 20 --n 50 --tau2=-0.1 --moderator-effect 0.1 --moderator-sd 1", input: None, stdin: b"", code: 2, words: &["--tau2"] },
+];
+
+/// The site table of `sites-duplicate-ids`.
+const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
+
+/// Runs one case; returns the exit code and stderr.
+fn run(case: &Case) -> (Option<i32>, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("input.csv");
+    if let Some(bytes) = case.input {
+        std::fs::write(&input, bytes).unwrap();
+    }
+    std::fs::write(dir.path().join("info.csv"), INFO_DUPLICATE).unwrap();
+    let args: Vec<String> = case
+        .args
+        .split_whitespace()
+        .map(|a| {
+            a.replace("{in}", &input.display().to_string())
+                .replace("{dir}", &dir.path().display().to_string())
+        })
+        .collect();
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .args(&args)
+        .write_stdin(case.stdin)
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr).into_owned();
+    // The scratch folder's name differs from run to run.
+    let err = err.replace(&dir.path().display().to_string(), "DIR");
+    (o.status.code(), err)
+}
+
+/// The first line of a message, as the catalogue shows it; for a list of
+/// cell problems ("N problems in the data") also the first problem.
+fn first_line(err: &str) -> String {
+    let mut lines = err.lines().map(str::trim).filter(|l| !l.is_empty());
+    let first = lines.next().unwrap_or("").to_string();
+    if first.ends_with("in the data") {
+        if let Some(detail) = lines.next() {
+            return format!("{first} / {detail}");
+        }
+    }
+    first
+}
+
+const BEGIN: &str = "<!-- catalogue:begin (written by tests/integration/catalogue.rs) -->";
+const END: &str = "<!-- catalogue:end -->";
+
+fn table(rows: &[(String, &Case)]) -> String {
+    let mut s = String::from("| case | bad input | exit | what the user sees (first line; for cell problems also the first cell) |\n|---|---|---|---|\n");
+    for (msg, c) in rows {
+        s.push_str(&format!(
+            "| `{}` | {} | {} | `{}` |\n",
+            c.id,
+            c.what,
+            c.code,
+            msg.replace('|', "\\|").replace('`', "'")
+        ));
+    }
+    s
+}
+
+#[test]
+fn every_bad_input_gets_its_message_and_exit_code_and_is_documented() {
+    let mut rows = Vec::new();
+    let mut wrong = Vec::new();
+    for case in CASES {
+        let (code, err) = run(case);
+        if code != Some(case.code) {
+            wrong.push(format!(
+                "{}: exit {code:?}, expected {}; stderr: {err}",
+                case.id, case.code
+            ));
+        }
+        if err.contains("panicked") || !err.starts_with("pondus: error: ") {
+            wrong.push(format!("{}: not a plain error message: {err}", case.id));
+        }
+        for w in case.words {
+            if !err.contains(w) {
+                wrong.push(format!("{}: no '{w}' in: {err}", case.id));
+            }
+        }
+        rows.push((first_line(&err), case));
+    }
+    assert!(wrong.is_empty(), "{}", wrong.join("\n"));
+    let path = repo("docs/reliability.md");
+    let doc = std::fs::read_to_string(&path).expect("docs/reliability.md exists");
+    let (start, end) = (
+        doc.find(BEGIN).expect("catalogue begin marker"),
+        doc.find(END).expect("catalogue end marker"),
+    );
+    let fresh = table(&rows);
+    if std::env::var_os("PONDUS_WRITE_CATALOGUE").is_some() {
+        let new = format!("{}{BEGIN}\n{fresh}{}", &doc[..start], &doc[end..]);
+        std::fs::write(&path, new).unwrap();
+        return;
+    }
+    let current = &doc[start + BEGIN.len()..end];
+    assert_eq!(
+        current.trim(),
+        fresh.trim(),
+        "docs/reliability.md's catalogue is out of date; rewrite it with \
+         PONDUS_WRITE_CATALOGUE=1 cargo test --test integration catalogue"
+    );
+}
