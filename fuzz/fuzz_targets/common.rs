@@ -46,10 +46,16 @@ pub fn settings(measure: Measure, sel: u8, moderators: &[&str]) -> FitSettings {
         interactions: vec![],
         options: FitOptions {
             method: METHODS[(sel as usize) % METHODS.len()],
-            inference: if sel & 0x40 != 0 { Inference::Z } else { Inference::Kh },
+            inference: if sel & 0x40 != 0 {
+                Inference::Z
+            } else {
+                Inference::Kh
+            },
             level: 0.95,
         },
         predictions: vec![],
+        interpret: Default::default(),
+        diagnostics: Default::default(),
     }
 }
 
@@ -85,4 +91,40 @@ pub fn assert_finite(r: &FitReport) {
         assert!(x.is_finite(), "reported number #{i} is {x}");
     }
     assert!(r.tau2.estimate >= 0.0);
+}
+
+/// The `fit_csv` target: the first byte selects the measure and the
+/// options, the rest is a CSV file run through the whole `fit` job with no,
+/// one and two moderators.
+pub fn fit_csv(data: &[u8]) {
+    let Some((&sel, csv)) = data.split_first() else {
+        return;
+    };
+    let measure = MEASURES[(sel as usize >> 3) % MEASURES.len()];
+    for moderators in [&[][..], &["m"][..], &["m", "g"][..]] {
+        let s = settings(measure, sel, moderators);
+        if let Ok(report) = pondus::analysis::run(&s, "fuzz.csv", csv) {
+            assert_finite(&report);
+        }
+    }
+}
+
+/// The `fit_numbers` target: the first byte selects the options, the rest
+/// is read as rows of three f64 bit patterns (effect, variance, moderator),
+/// printed in full precision into a CSV file and fitted.
+pub fn fit_numbers(data: &[u8]) {
+    let Some((&sel, rest)) = data.split_first() else {
+        return;
+    };
+    let mut csv = String::from("study,effect,variance,m\n");
+    for (i, row) in rest.chunks_exact(24).take(200).enumerate() {
+        let f = |j: usize| f64::from_le_bytes(row[8 * j..8 * j + 8].try_into().unwrap());
+        csv.push_str(&format!("s{i},{:e},{:e},{:e}\n", f(0), f(1), f(2)));
+    }
+    for moderators in [&[][..], &["m"][..]] {
+        let s = settings(Measure::Effect, sel, moderators);
+        if let Ok(report) = pondus::analysis::run(&s, "fuzz.csv", csv.as_bytes()) {
+            assert_finite(&report);
+        }
+    }
 }

@@ -5,6 +5,7 @@ mod catalogue;
 mod cli;
 mod determinism;
 mod diagnose;
+mod fuzz_corpus;
 mod interpret;
 mod plan;
 mod plots;
