@@ -7,7 +7,8 @@ use crate::util::repo;
 use assert_cmd::Command;
 use std::path::{Path, PathBuf};
 
-/// Every data example with the options its README line describes.
+/// Every data example with one effect per row, with the options its README
+/// line describes (the participant-row example is run by `sites_report`).
 pub const EXAMPLES: &[(&str, &str)] = &[
     (
         "consortium-correlations.csv",
@@ -27,6 +28,10 @@ pub const EXAMPLES: &[(&str, &str)] = &[
     ),
     ("precomputed-effects.csv", "--measure effect --moderator duration_weeks"),
     ("partial-correlations.csv", "--measure partial-r --moderator remote_share"),
+    (
+        "hiring-validity.csv",
+        "--measure r --reliability-x rel_exercise --reliability-y rel_rating --range-ratio range_ratio --moderator hired_share",
+    ),
 ];
 
 /// Runs `pondus fit FILE ARGS --report DIR/report.html -q` and returns the page.
