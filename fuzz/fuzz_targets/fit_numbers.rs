@@ -6,6 +6,8 @@
 
 use libfuzzer_sys::fuzz_target;
 
+// Each target uses part of the shared module.
+#[allow(dead_code)]
 #[path = "common.rs"]
 mod common;
 
