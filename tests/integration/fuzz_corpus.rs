@@ -44,3 +44,17 @@ fn fit_numbers_seeds_and_regressions_run_clean() {
         assert!(r.is_ok(), "{} fails", p.display());
     }
 }
+
+#[test]
+fn sites_csv_seeds_and_regressions_run_clean() {
+    let all: Vec<_> = files("fuzz/seeds/sites_csv")
+        .into_iter()
+        .chain(files("fuzz/regressions/sites_csv"))
+        .collect();
+    assert!(all.len() >= 4, "the seed corpus is missing");
+    for p in all {
+        let data = std::fs::read(&p).unwrap();
+        let r = std::panic::catch_unwind(|| common::sites_csv(&data));
+        assert!(r.is_ok(), "{} fails", p.display());
+    }
+}
