@@ -142,14 +142,21 @@ pub fn sites_csv(data: &[u8]) {
         x: "x".into(),
         y: "y".into(),
         w: (sel & 1 != 0).then(|| "w".into()),
-        covariates: if sel & 2 != 0 { vec!["c".into()] } else { vec![] },
+        covariates: if sel & 2 != 0 {
+            vec!["c".into()]
+        } else {
+            vec![]
+        },
         robust: false,
         center_within: sel & 4 != 0,
     };
     let input = pondus::sites::RowInput::Stream(Box::new(csv));
     if let Ok(r) = pondus::sites::from_rows("fuzz.csv", input, &settings) {
         for s in &r.sites {
-            assert!(s.slope.is_finite() && s.se.is_finite() && s.se > 0.0, "{s:?}");
+            assert!(
+                s.slope.is_finite() && s.se.is_finite() && s.se > 0.0,
+                "{s:?}"
+            );
             assert!(s.r.is_finite() && (-1.0..=1.0).contains(&s.r), "{s:?}");
             assert!(s.mean_x.is_finite(), "{s:?}");
             if let (Some(b), Some(se)) = (s.interaction, s.interaction_se) {
