@@ -61,12 +61,24 @@ impl Clusters {
 }
 
 /// The working model whose likelihood (or weights) is used.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Levels {
     /// The usual two-level model (clusters only used by the robust variance).
     Two,
     /// The three-level model.
+    #[default]
     Three,
+}
+
+/// Settings for dependent effects (none by default: effects are independent).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Dependence {
+    /// Header of the cluster column (`--cluster`).
+    pub cluster: Option<String>,
+    /// Working model.
+    pub levels: Levels,
+    /// Cluster-robust CR2 inference (`--robust`).
+    pub robust: bool,
 }
 
 /// One evaluation of the three-level model at (σ²_b, σ²_w).
