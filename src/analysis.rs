@@ -344,17 +344,8 @@ pub fn run_with_progress(
     let curves = curves(&design, &fit)?;
     let cluster_parts = match &clusters {
         Some(cl) => Some(
-            crate::dependent::parts(
-                &y,
-                &v,
-                &design.x,
-                design.p,
-                cl,
-                dep,
-                &fit,
-                three.as_ref(),
-            )
-            .map_err(|e| in_file(source, e))?,
+            crate::dependent::parts(&y, &v, &design.x, design.p, cl, dep, &fit, three.as_ref())
+                .map_err(|e| in_file(source, e))?,
         ),
         None => None,
     };

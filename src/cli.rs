@@ -657,7 +657,10 @@ impl FitArgs {
                 ));
             }
             if self.levels.is_some() {
-                return Err(Error::usage("--levels", "applies with --cluster COL; add it"));
+                return Err(Error::usage(
+                    "--levels",
+                    "applies with --cluster COL; add it",
+                ));
             }
             return Ok(Dependence::default());
         };
@@ -670,13 +673,11 @@ impl FitArgs {
         let levels = match self.levels {
             None | Some(3) => Levels::Three,
             Some(2) if self.robust => Levels::Two,
-            Some(2) => {
-                return Err(Error::usage(
-                    "--levels",
-                    "2 ignores the nesting in the model; it is offered only with --robust, which then \
+            Some(2) => return Err(Error::usage(
+                "--levels",
+                "2 ignores the nesting in the model; it is offered only with --robust, which then \
                      accounts for it. Add --robust, or use --levels 3",
-                ))
-            }
+            )),
             Some(n) => {
                 return Err(Error::usage(
                     "--levels",

@@ -4,7 +4,9 @@
 
 use crate::error::{Error, Result};
 use crate::input::{ColumnRequest, Table};
-use crate::model::multilevel::{self, Clusters, Dependence, Levels, RobustCoef, RobustTest, ThreeLevel};
+use crate::model::multilevel::{
+    self, Clusters, Dependence, Levels, RobustCoef, RobustTest, ThreeLevel,
+};
 use crate::model::{self, FitOptions, ModelFit};
 use crate::result::*;
 
@@ -28,7 +30,9 @@ pub fn cells(table: &Table, j: usize) -> (String, Vec<String>) {
     let col = table.column(j).expect("required column present");
     (
         col.header.clone(),
-        (0..table.len()).map(|i| col.get(i).trim().to_string()).collect(),
+        (0..table.len())
+            .map(|i| col.get(i).trim().to_string())
+            .collect(),
     )
 }
 
@@ -128,7 +132,9 @@ pub fn parts(
         header: dep.cluster.clone().unwrap_or_default(),
         sizes: cl.groups.iter().map(Vec::len).collect(),
         three: three.cloned(),
-        levels: (1..p).map(|j| multilevel::varies_within(x, p, j, cl)).collect(),
+        levels: (1..p)
+            .map(|j| multilevel::varies_within(x, p, j, cl))
+            .collect(),
         robust,
     })
 }
@@ -143,7 +149,11 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
     let singles = parts.sizes.iter().filter(|&&n| n == 1).count();
     let v_typ = report.heterogeneity.typical_variance;
     let mut lr_tests = Vec::new();
-    let fitted_by = if report.model.tau2_method == "ml" { "ML" } else { "REML" };
+    let fitted_by = if report.model.tau2_method == "ml" {
+        "ML"
+    } else {
+        "REML"
+    };
     if let Some(t) = &parts.three {
         let c = t.components;
         let total = c.between + c.within + v_typ;
@@ -226,7 +236,11 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
         format!(
             "CR2 cluster-robust standard errors on {m} clusters with the {} working model, \
              Satterthwaite df per coefficient; moderator test: approximate Hotelling T² (HTZ)",
-            if parts.three.is_some() { "three-level" } else { "two-level" }
+            if parts.three.is_some() {
+                "three-level"
+            } else {
+                "two-level"
+            }
         )
     });
     if let Some((coefs, test)) = parts.robust {

@@ -243,10 +243,15 @@ fn max_line<F: Fn(f64) -> f64>(f: F, hi: f64, what: &str) -> Result<(f64, f64)> 
     ) {
         return Err(no_convergence(
             what,
-            format!("the line search ended with '{:?}'", st.get_termination_status()),
+            format!(
+                "the line search ended with '{:?}'",
+                st.get_termination_status()
+            ),
         ));
     }
-    let u = *st.get_param().ok_or_else(|| no_convergence(what, "no estimate".into()))?;
+    let u = *st
+        .get_param()
+        .ok_or_else(|| no_convergence(what, "no estimate".into()))?;
     let (s, v) = (u * u, f(u * u));
     let v0 = f(0.0);
     Ok(if v0 >= v { (0.0, v0) } else { (s, v) })
@@ -681,13 +686,12 @@ pub fn robust(
     let mut meat = DMatrix::<f64>::zeros(p, p);
     for g in &cl.groups {
         let n = g.len();
-        let vj = DMatrix::from_fn(n, n, |a, b| {
-            sb + if a == b { v[g[a]] + sw } else { 0.0 }
-        });
+        let vj = DMatrix::from_fn(n, n, |a, b| sb + if a == b { v[g[a]] + sw } else { 0.0 });
         let xj = DMatrix::from_fn(n, p, |a, b| st.x[g[a] * p + b]);
-        let wj = vj.clone().try_inverse().ok_or_else(|| {
-            Error::Model("a cluster's covariance block is singular".into())
-        })?;
+        let wj = vj
+            .clone()
+            .try_inverse()
+            .ok_or_else(|| Error::Model("a cluster's covariance block is singular".into()))?;
         let half = sym_power(&vj, 0.5);
         let bj = &half * (&vj - &xj * mi * xj.transpose()) * &half;
         let aj = &half * sym_power(&bj, -0.5) * &half;
@@ -770,7 +774,11 @@ pub fn robust(
         for s in 0..q {
             for t in 0..q {
                 denom += g[s][t].iter().map(|x| x * x).sum::<f64>()
-                    + g[s][s].iter().zip(g[t][t].iter()).map(|(a, b)| a * b).sum::<f64>();
+                    + g[s][s]
+                        .iter()
+                        .zip(g[t][t].iter())
+                        .map(|(a, b)| a * b)
+                        .sum::<f64>();
             }
         }
         let qf = q as f64;
@@ -781,7 +789,11 @@ pub fn robust(
             statistic: f,
             df1: qf,
             df2,
-            p: if df2 > 0.0 { dist::f_sf(f, qf, df2) } else { f64::NAN },
+            p: if df2 > 0.0 {
+                dist::f_sf(f, qf, df2)
+            } else {
+                f64::NAN
+            },
         })
     } else {
         None
@@ -823,12 +835,20 @@ mod tests {
             .flat_map(|t| [1.0, *t])
             .collect();
         let cl = Clusters::from_ids(&["a", "a", "b", "b", "b", "c", "d"]);
-        let data = Data { y: &y, v: &v, x: &x, p: 2 };
+        let data = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 2,
+        };
         for (sb, sw) in [(0.0, 0.0), (0.02, 0.01), (0.3, 0.0), (0.0, 0.2)] {
             let e = evaluate(&data, &cl, sb, sw).unwrap();
             let a = ll_core(&e, true);
             let b = dense_ll(&y, &v, &x, 2, &cl, sb, sw);
-            assert!((a - b).abs() < tolerance::IDENTITY_REL * b.abs().max(1.0), "{a} {b}");
+            assert!(
+                (a - b).abs() < tolerance::IDENTITY_REL * b.abs().max(1.0),
+                "{a} {b}"
+            );
         }
     }
 

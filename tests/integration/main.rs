@@ -6,6 +6,7 @@ mod cli;
 mod determinism;
 mod diagnose;
 mod interpret;
+mod multilevel;
 mod plan;
 mod plots;
 mod properties;
