@@ -143,8 +143,9 @@ pub const MULTILEVEL_LINE_REL: f64 = 1e-10;
 pub const MULTILEVEL_LINE_ABS: f64 = 1e-12;
 
 /// Nelder–Mead stops when the standard deviation of the simplex's
-/// objective values falls below this (the objective is a log-likelihood of
-/// order 1 to 1e4; parameters are then accurate to about its square root).
+/// objective values falls below this times (1 + |ℓ|) at the start (the
+/// objective is a log-likelihood of order 1 to 1e4; parameters are then
+/// accurate to about the square root of that).
 pub const MULTILEVEL_NM_SD: f64 = 1e-13;
 
 /// Iteration limit of each Nelder–Mead run.

@@ -296,6 +296,8 @@ pub fn maximise(data: &Data<'_>, cl: &Clusters, restricted: bool) -> Result<Comp
     let start = (sw0.max(sb0).max(hi * 1e-4)) / 2.0;
     let mut theta = vec![start.ln(), start.ln()];
     let mut step = 1.0;
+    // The stopping rule is absolute in argmin: scale it to the objective's size.
+    let sd_tol = tolerance::MULTILEVEL_NM_SD * (1.0 + ll_b0.abs().max(ll_w0.abs()));
     for _ in 0..2 {
         let simplex = vec![
             theta.clone(),
@@ -303,7 +305,7 @@ pub fn maximise(data: &Data<'_>, cl: &Clusters, restricted: bool) -> Result<Comp
             vec![theta[0], theta[1] + step],
         ];
         let solver = NelderMead::new(simplex)
-            .with_sd_tolerance(tolerance::MULTILEVEL_NM_SD)
+            .with_sd_tolerance(sd_tol)
             .map_err(|e| no_convergence(what, e.to_string()))?;
         let res = Executor::new(NegLogScale(&obj), solver)
             .configure(|s| s.max_iters(tolerance::MULTILEVEL_NM_MAX_ITERS))
