@@ -695,7 +695,7 @@ impl FitArgs {
         if let Some((_, flag)) = unsupported.iter().find(|(on, _)| *on) {
             return Err(Error::usage(
                 *flag,
-                "is not available with --cluster (it treats the effects as independent); \
+                "not available with --cluster (it treats the effects as independent); \
                  run it without --cluster, or leave it out",
             ));
         }

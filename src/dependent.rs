@@ -253,6 +253,12 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
                 low.push(format!("{} ({:.1})", c.term, r.df));
             }
         }
+        report.notes.push(
+            "Only the coefficients' robust_se, robust_df, robust_p and the moderator test are \
+             cluster-robust; intervals, predictions, fitted lines and --probe/--regions results \
+             use the model-based covariance."
+                .into(),
+        );
         if !low.is_empty() {
             report.warnings.push(format!(
                 "Robust degrees of freedom below {ROBUST_MIN_DF}: {}. Robust p-values with so few \
@@ -280,6 +286,8 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
                 t.p,
                 level,
             );
+            mt.answer
+                .push_str(" (Cluster-robust test: CR2 approximate Hotelling T², HTZ.)");
             mt.method = Some("CR2 approximate Hotelling T² (HTZ)".into());
             if t.df2 < ROBUST_MIN_DF {
                 report.warnings.push(format!(
