@@ -50,6 +50,7 @@ pub fn settings(measure: Measure, sel: u8, moderators: &[&str]) -> FitSettings {
             level: 0.95,
         },
         predictions: vec![],
+        dependence: Default::default(),
     }
 }
 

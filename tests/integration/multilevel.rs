@@ -401,3 +401,42 @@ fn bad_input_is_refused_with_exit_2() {
     let e = fails(&[few.to_str().unwrap(), "--cluster", "paper", "--tau2", "dl"]);
     assert!(e.contains("reml"), "{e}");
 }
+
+#[test]
+fn terminal_report_of_the_invented_example_shows_the_cluster_section() {
+    // The documented example (data-examples/lab-conditions.csv, invented):
+    // the section's parts are printed and the refusal words are not.
+    let out = Command::cargo_bin("pondus")
+        .unwrap()
+        .args([
+            "fit",
+            repo("data-examples/lab-conditions.csv").to_str().unwrap(),
+        ])
+        .args([
+            "--cluster",
+            "lab",
+            "--moderator",
+            "lab_years",
+            "--moderator",
+            "session_minutes",
+        ])
+        .arg("--robust")
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout);
+    for part in [
+        "Dependent effects: 39 effects in 16 clusters of 'lab'",
+        "between clusters",
+        "within clusters",
+        "LR test of within-cluster variance",
+        "lab_years (between",
+        "(within clusters)",
+        "Cluster-robust inference",
+        "robust SE",
+        "(between + within clusters, below)",
+    ] {
+        assert!(text.contains(part), "missing '{part}' in:\n{text}");
+    }
+    assert!(!text.contains("fixed by the common-effect model"), "{text}");
+}
