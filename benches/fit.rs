@@ -103,6 +103,7 @@ fn main() {
         predictions: vec![],
         interpret: Default::default(),
         diagnostics: Default::default(),
+        dependence: Default::default(),
     };
     println!(
         "{:>9}  {:>16}  {:>16}  {:>22}",

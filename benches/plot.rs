@@ -78,6 +78,7 @@ fn main() {
         predictions: vec![],
         interpret: Default::default(),
         diagnostics: Default::default(),
+        dependence: Default::default(),
     };
     let opts = PlotOptions::default();
     println!(

@@ -35,6 +35,9 @@ pub struct FitSettings {
     /// Robustness diagnostics to add (leave-one-out, influence, permutation
     /// test, small-study effects, cumulative meta-analysis).
     pub diagnostics: crate::diagnose::DiagnoseSettings,
+    /// Dependent effects: cluster column, three-level model, robust inference
+    /// (see [`crate::model::multilevel`]); none by default.
+    pub dependence: crate::model::multilevel::Dependence,
 }
 
 /// Minimum studies per moderator term below which the output cautions
@@ -91,7 +94,12 @@ pub fn run_with_progress(
         });
         requests.len() - 1
     });
+    let cluster_request = settings.dependence.cluster.as_ref().map(|h| {
+        requests.push(crate::dependent::request(h));
+        requests.len() - 1
+    });
     let mut table = input::parse_table(source, bytes, &requests)?;
+    let cluster_cells = cluster_request.map(|j| crate::dependent::cells(&table, j));
     let order_cells: Option<(String, Vec<String>)> = order_request.map(|j| {
         let col = table.column(j).expect("required column present");
         (
@@ -208,8 +216,27 @@ pub fn run_with_progress(
         }
     }
     drop(effects);
-    let fit = model::fit(&y, &v, &design.x, design.p, settings.options)
-        .map_err(|e| in_file(source, e))?;
+    let clusters = match &cluster_cells {
+        Some(cells) => Some(crate::dependent::clusters(
+            cells,
+            &included,
+            &table.lines,
+            source,
+        )?),
+        None => None,
+    };
+    let dep = &settings.dependence;
+    let (fit, three) = crate::dependent::fit(
+        &y,
+        &v,
+        &design.x,
+        design.p,
+        clusters.as_ref(),
+        dep,
+        settings.options,
+        true,
+    )
+    .map_err(|e| in_file(source, e))?;
     if fit.kh_scale == Some(0.0) {
         return Err(Error::Model(format!(
             "{source}: the model fits every effect exactly (residual Q = 0, for example because \
@@ -222,8 +249,18 @@ pub fn run_with_progress(
     } else {
         let ones = vec![1.0; k];
         Some(
-            model::fit_parts(&y, &v, &ones, 1, settings.options, false)
-                .map_err(|e| in_file(source, e))?,
+            crate::dependent::fit(
+                &y,
+                &v,
+                &ones,
+                1,
+                clusters.as_ref(),
+                dep,
+                settings.options,
+                false,
+            )
+            .map_err(|e| in_file(source, e))?
+            .0,
         )
     };
     let base = null_fit.as_ref().unwrap_or(&fit);
@@ -253,6 +290,9 @@ pub fn run_with_progress(
                 ci_low: c.ci_low.exp(),
                 ci_high: c.ci_high.exp(),
             }),
+            robust_se: None,
+            robust_df: None,
+            robust_p: None,
         })
         .collect();
     let mod_names: Vec<&str> = settings
@@ -279,6 +319,7 @@ pub fn run_with_progress(
                 t.p,
                 level,
             ),
+            method: None,
         }
     });
 
@@ -301,6 +342,13 @@ pub fn run_with_progress(
         scale,
     )?;
     let curves = curves(&design, &fit)?;
+    let cluster_parts = match &clusters {
+        Some(cl) => Some(
+            crate::dependent::parts(&y, &v, &design.x, design.p, cl, dep, &fit, three.as_ref())
+                .map_err(|e| in_file(source, e))?,
+        ),
+        None => None,
+    };
     let interpretation = probe::interpret(
         &design,
         &fit,
@@ -529,8 +577,13 @@ pub fn run_with_progress(
         cumulative: diag.cumulative,
         influence_cutoffs: diag.influence_cutoffs,
         cumulative_order: diag.cumulative_order,
+        variance_components: None,
+        clustering: None,
     };
     let mut report = report;
+    if let Some(parts) = cluster_parts {
+        crate::dependent::finish(&mut report, parts, &mod_names, &fit);
+    }
     if report.artifacts.is_some() {
         report.measure = MeasureInfo {
             id: "r-corrected".into(),
@@ -989,7 +1042,7 @@ fn heterogeneity(fit: &ModelFit, null_fit: Option<&ModelFit>) -> Heterogeneity {
 }
 
 #[allow(clippy::too_many_arguments)]
-fn answer(
+pub(crate) fn answer(
     significant: bool,
     moderators: &[&str],
     fit: &ModelFit,
@@ -1000,6 +1053,7 @@ fn answer(
     level: f64,
 ) -> String {
     let test = match df2 {
+        Some(d2) if d2.fract() != 0.0 => format!("F({df1}, {d2:.1}) = {stat:.2}"),
         Some(d2) => format!("F({df1}, {d2}) = {stat:.2}"),
         None => format!("chi-square({df1}) = {stat:.2}"),
     };

@@ -237,6 +237,15 @@ pub struct FitArgs {
     /// Cumulative meta-analysis, adding the studies in the order of this column (numbers ascending; text in code-point order).
     #[arg(long, value_name = "COL")]
     pub cumulative_by: Option<String>,
+    /// Effects sharing a value of this column are nested in one cluster (a study, lab or site): fits the three-level model.
+    #[arg(long, value_name = "COL")]
+    pub cluster: Option<String>,
+    /// With --cluster: 3 (default) fits the three-level model, 2 the usual model with effects treated as independent (for --robust).
+    #[arg(long, value_name = "N")]
+    pub levels: Option<u8>,
+    /// With --cluster: cluster-robust (CR2) standard errors, Satterthwaite df and the approximate Hotelling T² moderator test.
+    #[arg(long)]
+    pub robust: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -549,6 +558,7 @@ impl FitArgs {
                 predictions,
                 interpret: self.interpret_settings()?,
                 diagnostics: self.diagnostics()?,
+                dependence: self.dependence()?,
             },
             json,
             table,
@@ -633,6 +643,69 @@ impl FitArgs {
 pub const MAX_PERMUTATIONS: usize = 10_000_000;
 
 impl FitArgs {
+    /// The checked dependent-effects flags (`--cluster`, `--levels`, `--robust`).
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag and how to fix it.
+    fn dependence(&self) -> Result<crate::model::multilevel::Dependence> {
+        use crate::model::multilevel::{Dependence, Levels};
+        let Some(col) = &self.cluster else {
+            if self.robust {
+                return Err(Error::usage(
+                    "--robust",
+                    "clusters the standard errors on a column; add --cluster COL (the column of study, lab or site ids)",
+                ));
+            }
+            if self.levels.is_some() {
+                return Err(Error::usage(
+                    "--levels",
+                    "applies with --cluster COL; add it",
+                ));
+            }
+            return Ok(Dependence::default());
+        };
+        if col.trim().is_empty() {
+            return Err(Error::usage(
+                "--cluster",
+                "give the header of the column with the cluster ids, e.g. --cluster paper",
+            ));
+        }
+        let levels = match self.levels {
+            None | Some(3) => Levels::Three,
+            Some(2) if self.robust => Levels::Two,
+            Some(2) => return Err(Error::usage(
+                "--levels",
+                "2 ignores the nesting in the model; it is offered only with --robust, which then \
+                     accounts for it. Add --robust, or use --levels 3",
+            )),
+            Some(n) => {
+                return Err(Error::usage(
+                    "--levels",
+                    format!("{n} is not offered; give 2 or 3"),
+                ))
+            }
+        };
+        let unsupported = [
+            (self.loo, "--loo"),
+            (self.influence, "--influence"),
+            (self.permutations.is_some(), "--permutations"),
+            (self.small_study, "--small-study"),
+            (self.cumulative_by.is_some(), "--cumulative-by"),
+        ];
+        if let Some((_, flag)) = unsupported.iter().find(|(on, _)| *on) {
+            return Err(Error::usage(
+                *flag,
+                "not available with --cluster (it treats the effects as independent); \
+                 run it without --cluster, or leave it out",
+            ));
+        }
+        Ok(Dependence {
+            cluster: Some(col.clone()),
+            levels,
+            robust: self.robust,
+        })
+    }
+
     /// The checked diagnostic flags.
     ///
     /// # Errors

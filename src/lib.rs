@@ -23,6 +23,7 @@
 //!     predictions: vec![],
 //!     interpret: Default::default(),
 //!     diagnostics: Default::default(),
+//!     dependence: Default::default(),
 //! };
 //! let report = run(&settings, "example", csv.as_bytes()).unwrap();
 //! assert_eq!(report.k, 4);
@@ -31,6 +32,7 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod dependent;
 pub mod diagnose;
 pub mod dist;
 pub mod effect;

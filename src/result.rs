@@ -73,6 +73,14 @@ pub struct FitReport {
     /// How `cumulative` was ordered (with `--cumulative-by`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative_order: Option<CumulativeOrder>,
+    /// Variance components of the three-level model (`--cluster`; omitted otherwise).
+    /// `tau2` then holds their sum σ²_between + σ²_within.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub variance_components: Option<Vec<VarianceComponent>>,
+    /// Clusters, per-level heterogeneity, likelihood-ratio tests and moderator
+    /// levels (`--cluster`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub clustering: Option<ClusterReport>,
 }
 
 /// Tool name and version.
@@ -193,6 +201,15 @@ pub struct Coefficient {
     /// the intercept, the factor by which the ratio changes for a moderator
     /// term (null for other measures).
     pub ratio: Option<RatioCoefficient>,
+    /// Cluster-robust (CR2) standard error (`--robust`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub robust_se: Option<f64>,
+    /// Satterthwaite degrees of freedom of the robust t test (`--robust`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub robust_df: Option<f64>,
+    /// Two-sided p-value of the robust t test (`--robust`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub robust_p: Option<f64>,
 }
 
 /// A log-ratio coefficient shown as a ratio.
@@ -223,6 +240,10 @@ pub struct ModeratorTest {
     pub significant: bool,
     /// The plain answer in words.
     pub answer: String,
+    /// The test used when it is not the model-based one: "CR2 approximate Hotelling T² (HTZ)"
+    /// under `--robust` (omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub method: Option<String>,
 }
 
 /// Residual heterogeneity.
@@ -928,4 +949,64 @@ pub struct TwoStage {
     pub answers: Vec<String>,
     /// Cautions for reading the two stages together.
     pub cautions: Vec<String>,
+}
+
+/// One variance component of the three-level model.
+#[derive(Debug, Clone, Serialize)]
+pub struct VarianceComponent {
+    /// "between" (σ² of the cluster effects) or "within" (σ² of the effects within a cluster).
+    pub level: String,
+    /// REML or ML estimate (≥ 0).
+    pub estimate: f64,
+    /// Lower end of the profile-likelihood interval at `model.level` (0 when it reaches the boundary).
+    pub ci_low: Option<f64>,
+    /// Upper end of the profile-likelihood interval.
+    pub ci_high: Option<f64>,
+    /// Share of the total variance σ²_b + σ²_w + ṽ at this level, in [0, 1]
+    /// (ṽ the typical sampling variance of `heterogeneity.typical_variance`).
+    pub i2: f64,
+}
+
+/// What the cluster structure adds to the report.
+#[derive(Debug, Clone, Serialize)]
+pub struct ClusterReport {
+    /// The cluster column's header.
+    pub column: String,
+    /// Number of clusters.
+    pub clusters: usize,
+    /// Clusters with a single effect.
+    pub single_effect_clusters: usize,
+    /// Largest number of effects in one cluster.
+    pub max_cluster_size: usize,
+    /// "three-level" or "two-level" (the working model).
+    pub model: String,
+    /// Likelihood-ratio tests of each variance component = 0 (three-level model only).
+    pub lr_tests: Vec<ComponentTest>,
+    /// The level at which each non-intercept term varies.
+    pub moderator_levels: Vec<TermLevel>,
+    /// Under `--robust`: how the robust inference was done, in words (null otherwise).
+    pub robust: Option<String>,
+}
+
+/// A likelihood-ratio test that one variance component is 0.
+#[derive(Debug, Clone, Serialize)]
+pub struct ComponentTest {
+    /// "within" (against the model without σ²_within) or "between" (against
+    /// the usual two-level model with independent effects).
+    pub component: String,
+    /// 2(ℓ̂ − ℓ̂₀), with REML or ML as fitted.
+    pub statistic: f64,
+    /// The maximised log-likelihood without the component.
+    pub log_likelihood_without: f64,
+    /// p from the 50:50 mixture of χ²₀ and χ²₁.
+    pub p: f64,
+}
+
+/// The level at which a design term varies.
+#[derive(Debug, Clone, Serialize)]
+pub struct TermLevel {
+    /// Term label, as in `coefficients`.
+    pub term: String,
+    /// "between" (constant within every cluster) or "within" (varies inside some cluster).
+    pub level: String,
 }

@@ -134,3 +134,32 @@ pub const EXACT_FIT_RSS: f64 = 64.0 * f64::EPSILON;
 /// coefficient's variance, which scales with 1/spread², would overflow or
 /// underflow double precision (about 1e±308) in the fit.
 pub const MODERATOR_MAGNITUDE: f64 = 1e100;
+
+/// Relative tolerance of the one-dimensional Brent searches of the
+/// three-level likelihood (boundary profiles, profile intervals), on √σ².
+pub const MULTILEVEL_LINE_REL: f64 = 1e-10;
+
+/// Absolute tolerance of those searches, as a share of the search range.
+pub const MULTILEVEL_LINE_ABS: f64 = 1e-12;
+
+/// Nelder–Mead stops when the standard deviation of the simplex's
+/// objective values falls below this times (1 + |ℓ|) at the start (the
+/// objective is a log-likelihood of order 1 to 1e4; parameters are then
+/// accurate to about the square root of that).
+pub const MULTILEVEL_NM_SD: f64 = 1e-13;
+
+/// Iteration limit of each Nelder–Mead run.
+pub const MULTILEVEL_NM_MAX_ITERS: u64 = 5_000;
+
+/// An interior optimum of the three-level likelihood must beat the best
+/// boundary by more than this share of (1 + |ℓ|) to count as interior.
+pub const MULTILEVEL_BOUNDARY_LL: f64 = 1e-12;
+
+/// Eigenvalues of the CR2 blocks below this share of the block's largest
+/// are 0 (a cluster that alone determines a coefficient): generalised inverse.
+pub const CR2_EIGEN_FLOOR: f64 = 1e-12;
+
+/// Test tolerance of the three-level estimates against the direct scipy
+/// maximisation: both sides stop an optimiser on the objective, so the
+/// components agree to about the square root of the objective's accuracy.
+pub const MULTILEVEL_REF_REL: f64 = 1e-5;

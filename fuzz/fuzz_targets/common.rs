@@ -56,6 +56,7 @@ pub fn settings(measure: Measure, sel: u8, moderators: &[&str]) -> FitSettings {
         predictions: vec![],
         interpret: Default::default(),
         diagnostics: Default::default(),
+        dependence: Default::default(),
     }
 }
 

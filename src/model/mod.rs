@@ -4,6 +4,7 @@
 
 pub mod design;
 pub mod inference;
+pub mod multilevel;
 pub mod probe;
 pub mod tau2;
 pub mod wls;
@@ -87,13 +88,13 @@ pub struct ModelFit {
 /// column centred (when column 0 is the intercept) and scaled to unit SD, so the normal equations stay well
 /// conditioned (for example with a calendar year beside the intercept).
 /// The fit is invariant to this: β = Aβ̃, Cov(β) = A Cov(β̃) A'.
-struct Standardised {
-    x: Vec<f64>,
-    a: DMatrix<f64>,
-    log_det_a: f64,
+pub(crate) struct Standardised {
+    pub(crate) x: Vec<f64>,
+    pub(crate) a: DMatrix<f64>,
+    pub(crate) log_det_a: f64,
 }
 
-fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
+pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.

@@ -5,6 +5,7 @@ pub mod diagnostics;
 pub mod html;
 pub mod interpret;
 pub mod json;
+pub mod multilevel;
 pub mod sites;
 pub mod table;
 pub mod text;

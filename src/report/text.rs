@@ -253,6 +253,7 @@ pub fn render(r: &FitReport) -> String {
     );
     let ci = match (r.tau2.ci_low, r.tau2.ci_high) {
         (Some(a), Some(b)) => format!("  ({level_pct} CI {})", interval(a, b)),
+        _ if r.variance_components.is_some() => "  (between + within clusters, below)".into(),
         _ => "  (fixed by the common-effect model)".into(),
     };
     let _ = writeln!(
@@ -293,6 +294,7 @@ pub fn render(r: &FitReport) -> String {
         }
     }
     let _ = writeln!(o);
+    o.push_str(&super::multilevel::render(r, &level_pct));
 
     let _ = writeln!(
         o,

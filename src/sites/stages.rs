@@ -54,6 +54,7 @@ pub fn run(
             predictions: vec![],
             interpret: Default::default(),
             diagnostics: Default::default(),
+            dependence: Default::default(),
         };
         analysis::run(&settings, source, &bytes)
     };

@@ -7,6 +7,7 @@ mod determinism;
 mod diagnose;
 mod fuzz_corpus;
 mod interpret;
+mod multilevel;
 mod plan;
 mod plots;
 mod properties;

@@ -42,6 +42,7 @@ pub fn settings(
         predictions: vec![],
         interpret: Default::default(),
         diagnostics: Default::default(),
+        dependence: Default::default(),
     }
 }
 

@@ -1,0 +1,120 @@
+//! Terminal section of the `--cluster` results: variance components with
+//! their share of the total variance, the likelihood-ratio tests, the level
+//! of each moderator, and the cluster-robust coefficients.
+
+use super::text::{interval, lpad, pad, wrap};
+use super::{format_num as num, format_p, format_percent};
+use crate::result::FitReport;
+use std::fmt::Write;
+
+/// The section (empty without `--cluster`).
+pub fn render(r: &FitReport, level_pct: &str) -> String {
+    let mut o = String::new();
+    let Some(c) = &r.clustering else {
+        return o;
+    };
+    let _ = writeln!(
+        o,
+        "Dependent effects: {} effects in {} clusters of '{}' ({} with one effect, at most {} in one)",
+        r.k, c.clusters, c.column, c.single_effect_clusters, c.max_cluster_size
+    );
+    if let Some(vc) = &r.variance_components {
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  share of total variance",
+            pad("level", 22),
+            lpad("σ²", 9),
+            pad(&format!("{level_pct} CI (profile)"), 22),
+        );
+        for v in vc {
+            let label = if v.level == "between" {
+                "between clusters"
+            } else {
+                "within clusters"
+            };
+            let ci = match (v.ci_low, v.ci_high) {
+                (Some(a), Some(b)) => interval(a, b),
+                _ => "—".into(),
+            };
+            let _ = writeln!(
+                o,
+                "  {}  {}  {}  {}",
+                pad(label, 22),
+                lpad(&num(v.estimate), 9),
+                pad(&ci, 22),
+                format_percent(v.i2)
+            );
+        }
+        for t in &c.lr_tests {
+            let what = if t.component == "within" {
+                "within-cluster variance = 0 (effects of a cluster share one true effect)"
+            } else {
+                "between-cluster variance = 0 (the model with independent effects)"
+            };
+            o.push_str(&wrap(
+                &format!(
+                    "LR test of {what}: {:.2}, p {} (50:50 mixture of χ²₀ and χ²₁)",
+                    t.statistic,
+                    format_p(t.p)
+                ),
+                "  ",
+                70,
+            ));
+        }
+    } else {
+        let _ = writeln!(
+            o,
+            "  working model: effects treated as independent (two-level); inference robust to the clustering"
+        );
+    }
+    if !c.moderator_levels.is_empty() {
+        let parts: Vec<String> = c
+            .moderator_levels
+            .iter()
+            .map(|t| format!("{} ({} clusters)", t.term, t.level))
+            .collect();
+        o.push_str(&wrap(
+            &format!("Moderator terms vary: {}", parts.join(", ")),
+            "  ",
+            70,
+        ));
+    }
+    if let Some(text) = &c.robust {
+        let _ = writeln!(o, "Cluster-robust inference");
+        o.push_str(&wrap(text, "  ", 70));
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  p",
+            pad("term", 22),
+            lpad("estimate", 10),
+            lpad("robust SE", 10),
+            lpad("df", 6),
+        );
+        for k in &r.coefficients {
+            if let (Some(se), Some(df), Some(p)) = (k.robust_se, k.robust_df, k.robust_p) {
+                let _ = writeln!(
+                    o,
+                    "  {}  {}  {}  {}  {}",
+                    pad(&k.term, 22),
+                    lpad(&num(k.estimate), 10),
+                    lpad(&num(se), 10),
+                    lpad(&format!("{df:.1}"), 6),
+                    format_p(p).trim_start_matches("= ")
+                );
+            }
+        }
+        if let Some(t) = &r.moderator_test {
+            if let (Some(m), Some(d2)) = (&t.method, t.df2) {
+                let _ = writeln!(
+                    o,
+                    "  moderator test ({m}): F({}, {d2:.1}) = {:.2}, p {}",
+                    t.df1,
+                    t.statistic,
+                    format_p(t.p)
+                );
+            }
+        }
+    }
+    let _ = writeln!(o);
+    o
+}
