@@ -29,6 +29,10 @@ pub const EXAMPLES: &[(&str, &str)] = &[
     ("precomputed-effects.csv", "--measure effect --moderator duration_weeks"),
     ("partial-correlations.csv", "--measure partial-r --moderator remote_share"),
     (
+        "lab-conditions.csv",
+        "--cluster lab --moderator lab_years --moderator session_minutes --robust",
+    ),
+    (
         "hiring-validity.csv",
         "--measure r --reliability-x rel_exercise --reliability-y rel_rating --range-ratio range_ratio --moderator hired_share",
     ),
@@ -227,6 +231,28 @@ fn robustness_checks_get_their_own_section_and_the_seed_is_recorded() {
     assert!(page.contains("<dt>Random seed</dt><dd>11</dd>"));
     let (_, plain) = fit_report(&example(EXAMPLES[3].0), "--measure log-or", dir.path());
     assert!(!plain.contains("id=\"robustness\"") && !plain.contains("Random seed"));
+}
+
+#[test]
+fn clustered_effects_get_a_dependence_section() {
+    let dir = tempfile::tempdir().unwrap();
+    let (name, args) = EXAMPLES
+        .iter()
+        .find(|(n, _)| *n == "lab-conditions.csv")
+        .unwrap();
+    let (_, page) = fit_report(&example(name), args, dir.path());
+    assert!(page.contains("id=\"dependence\"") && page.contains("href=\"#dependence\""));
+    for needle in [
+        "Variance components (profile-likelihood intervals)",
+        "Likelihood-ratio tests of each component",
+        "lab_years varies between clusters only",
+        "session_minutes varies within clusters",
+        "Cluster-robust (CR2) standard errors with Satterthwaite degrees of freedom",
+    ] {
+        assert!(page.contains(needle), "no '{needle}'");
+    }
+    let (_, plain) = fit_report(&example(name), "--moderator lab_years", dir.path());
+    assert!(!plain.contains("id=\"dependence\""));
 }
 
 #[test]
