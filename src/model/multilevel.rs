@@ -224,6 +224,21 @@ fn no_convergence(what: &str, detail: String) -> Error {
     }
 }
 
+/// [`Error::NoConvergence`] unless an argmin run ended because its solver converged.
+fn converged(status: &TerminationStatus, what: &str, search: &str) -> Result<()> {
+    if matches!(
+        status,
+        TerminationStatus::Terminated(TerminationReason::SolverConverged)
+    ) {
+        Ok(())
+    } else {
+        Err(no_convergence(
+            what,
+            format!("{search} ended with '{status:?}'"),
+        ))
+    }
+}
+
 /// Maximises `f` over s ≥ 0 on [0, hi]: Brent's method (argmin's `BrentOpt`)
 /// on √s, compared with the end s = 0, which Brent never evaluates.
 fn max_line<F: Fn(f64) -> f64>(f: F, hi: f64, what: &str) -> Result<(f64, f64)> {
@@ -237,18 +252,7 @@ fn max_line<F: Fn(f64) -> f64>(f: F, hi: f64, what: &str) -> Result<(f64, f64)> 
         .run()
         .map_err(|e| no_convergence(what, e.to_string()))?;
     let st = res.state();
-    if !matches!(
-        st.get_termination_status(),
-        TerminationStatus::Terminated(TerminationReason::SolverConverged)
-    ) {
-        return Err(no_convergence(
-            what,
-            format!(
-                "the line search ended with '{:?}'",
-                st.get_termination_status()
-            ),
-        ));
-    }
+    converged(st.get_termination_status(), what, "the line search")?;
     let u = *st
         .get_param()
         .ok_or_else(|| no_convergence(what, "no estimate".into()))?;
@@ -312,18 +316,7 @@ pub fn maximise(data: &Data<'_>, cl: &Clusters, restricted: bool) -> Result<Comp
             .run()
             .map_err(|e| no_convergence(what, e.to_string()))?;
         let st = res.state();
-        if !matches!(
-            st.get_termination_status(),
-            TerminationStatus::Terminated(TerminationReason::SolverConverged)
-        ) {
-            return Err(no_convergence(
-                what,
-                format!(
-                    "the Nelder–Mead search ended with '{:?}'",
-                    st.get_termination_status()
-                ),
-            ));
-        }
+        converged(st.get_termination_status(), what, "the Nelder–Mead search")?;
         theta = st
             .get_best_param()
             .cloned()

@@ -168,20 +168,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             ticks: Vec::new(),
         },
     };
-    let y_label_w = ya
-        .ticks
-        .iter()
-        .map(|t| super::scene::text_width(&t.1, size::SMALL))
-        .fold(0.0, f64::max);
-    let f = Frame {
-        x0: margin + y_label_w + 14.0,
-        y0: top,
-        x1: width - margin - 10.0,
-        y1: height - bottom,
-        xa,
-        ya,
-        y_down: false,
-    };
+    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, false);
     let mut sc = Scene::new(width as u32, height as u32);
     super::heading(&mut sc, report, &format!("Effect by {name}"), width, margin);
     f.grid(&mut sc);

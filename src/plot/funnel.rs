@@ -130,11 +130,6 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     hi = hi.max(centre + z * se_bottom).max(0.0);
     let pad = 0.04 * (hi - lo).max(1e-6);
     let xa = Axis::new(lo - pad, hi + pad, ratio_axis, 8).snapped();
-    let y_label_w = ya
-        .ticks
-        .iter()
-        .map(|t| super::scene::text_width(&t.1, size::SMALL))
-        .fold(0.0, f64::max);
     let top = 92.0;
     let legend_h = if opts.contours { 24.0 } else { 0.0 };
     let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
@@ -147,15 +142,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             ),
         ));
     }
-    let f = Frame {
-        x0: margin + y_label_w + 14.0,
-        y0: top,
-        x1: width - margin - 10.0,
-        y1: height - bottom,
-        xa,
-        ya,
-        y_down: true,
-    };
+    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, true);
     let mut sc = Scene::new(width as u32, height as u32);
     let title = if residuals {
         "Residuals against their standard error"

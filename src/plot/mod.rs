@@ -481,6 +481,36 @@ pub(crate) struct Frame {
 }
 
 impl Frame {
+    /// The plot area of a page `width` × `height` pixels: `margin` at the
+    /// sides, `top` and `bottom` reserved (title, axis title, caption), and
+    /// room on the left for the widest y tick label.
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn in_page(
+        width: f64,
+        height: f64,
+        margin: f64,
+        top: f64,
+        bottom: f64,
+        xa: Axis,
+        ya: Axis,
+        y_down: bool,
+    ) -> Frame {
+        let y_label_w = ya
+            .ticks
+            .iter()
+            .map(|t| scene::text_width(&t.1, size::SMALL))
+            .fold(0.0, f64::max);
+        Frame {
+            x0: margin + y_label_w + 14.0,
+            y0: top,
+            x1: width - margin - 10.0,
+            y1: height - bottom,
+            xa,
+            ya,
+            y_down,
+        }
+    }
+
     /// Pixel column of an x value (plot space).
     pub fn x(&self, v: f64) -> f64 {
         self.x0 + (v - self.xa.lo) / (self.xa.hi - self.xa.lo) * (self.x1 - self.x0)
