@@ -38,14 +38,12 @@ pub const EXAMPLES: &[(&str, &str)] = &[
     ),
 ];
 
-/// Runs `pondus fit FILE ARGS --report DIR/report.html -q` and returns the page.
-pub fn fit_report(file: &Path, args: &str, dir: &Path) -> (PathBuf, String) {
-    let out = dir.join("report.html");
+/// Runs `pondus ARGS --report OUT -q`, asserts success, and returns the
+/// page's path and text.
+fn report_of(args: Vec<std::ffi::OsString>, out: PathBuf) -> (PathBuf, String) {
     let o = Command::cargo_bin("pondus")
         .expect("the pondus binary is built")
-        .arg("fit")
-        .arg(file)
-        .args(args.split_whitespace())
+        .args(&args)
         .arg("--report")
         .arg(&out)
         .arg("-q")
@@ -53,32 +51,29 @@ pub fn fit_report(file: &Path, args: &str, dir: &Path) -> (PathBuf, String) {
         .unwrap();
     assert!(
         o.status.success(),
-        "pondus fit {} {args} --report failed: {}",
-        file.display(),
+        "pondus {args:?} --report failed: {}",
         String::from_utf8_lossy(&o.stderr)
     );
     let page = std::fs::read_to_string(&out).expect("the report is written");
     (out, page)
 }
 
+fn words(args: &str) -> impl Iterator<Item = std::ffi::OsString> + '_ {
+    args.split_whitespace().map(Into::into)
+}
+
+/// Runs `pondus fit FILE ARGS --report DIR/report.html -q` and returns the page.
+pub fn fit_report(file: &Path, args: &str, dir: &Path) -> (PathBuf, String) {
+    let mut a: Vec<std::ffi::OsString> = vec!["fit".into(), file.into()];
+    a.extend(words(args));
+    report_of(a, dir.join("report.html"))
+}
+
 /// Runs `pondus plan ARGS --report DIR/plan.html -q` and returns the page.
 pub fn plan_report(args: &str, dir: &Path) -> (PathBuf, String) {
-    let out = dir.join("plan.html");
-    let o = Command::cargo_bin("pondus")
-        .unwrap()
-        .arg("plan")
-        .args(args.split_whitespace())
-        .arg("--report")
-        .arg(&out)
-        .arg("-q")
-        .output()
-        .unwrap();
-    assert!(
-        o.status.success(),
-        "pondus plan {args} --report failed: {}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    (out.clone(), std::fs::read_to_string(&out).unwrap())
+    let mut a: Vec<std::ffi::OsString> = vec!["plan".into()];
+    a.extend(words(args));
+    report_of(a, dir.join("plan.html"))
 }
 
 /// The planning run the report tests use (a quick z-test plan).
@@ -377,25 +372,11 @@ pub const SITES_ARGS: &str = "--site choir --x rehearsal_hours --y breath_hold_s
 
 /// Runs `pondus sites` on the choir example with `--report DIR/sites.html`.
 pub fn sites_report(dir: &Path) -> (PathBuf, String) {
-    let out = dir.join("sites.html");
-    let o = Command::cargo_bin("pondus")
-        .unwrap()
-        .arg("sites")
-        .arg(example("choir-participants.csv"))
-        .args(SITES_ARGS.split_whitespace())
-        .arg("--info")
-        .arg(example("choir-sites.csv"))
-        .arg("--report")
-        .arg(&out)
-        .arg("-q")
-        .output()
-        .unwrap();
-    assert!(
-        o.status.success(),
-        "pondus sites --report failed: {}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    (out.clone(), std::fs::read_to_string(&out).unwrap())
+    let mut a: Vec<std::ffi::OsString> =
+        vec!["sites".into(), example("choir-participants.csv").into()];
+    a.extend(words(SITES_ARGS));
+    a.extend(["--info".into(), example("choir-sites.csv").into()]);
+    report_of(a, dir.join("sites.html"))
 }
 
 #[test]
