@@ -377,24 +377,15 @@ pub fn fit_page(
         page.raw("</section>\n");
     }
 
-    let it = &report.interpretation;
-    let interpreted = !it.conditional_effects.is_empty()
-        || !it.simple_slopes.is_empty()
-        || !it.level_contrasts.is_empty()
-        || !it.regions_of_significance.is_empty()
-        || report.artifacts.is_some();
     let mut contents = vec![
         ("data", "Data used"),
         ("pooled", "Average effect and heterogeneity"),
         ("moderators", "Moderators"),
     ];
-    if report.clustering.is_some()
-        || report.variance_components.is_some()
-        || report.coefficients.iter().any(|c| c.robust_se.is_some())
-    {
+    if has_dependence(report) {
         contents.push(("dependence", "Dependent effects"));
     }
-    if interpreted {
+    if has_interpretation(report) {
         contents.push(("interpretation", "Reading the moderation"));
     }
     if has_diagnostics(report) {
@@ -731,15 +722,10 @@ fn contrast_cells(t: &crate::result::ContrastTest) -> Vec<String> {
 /// significance, how the picture changes, and artifact corrections — each
 /// only when it was asked for.
 fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
-    let it = &report.interpretation;
-    let any = !it.conditional_effects.is_empty()
-        || !it.simple_slopes.is_empty()
-        || !it.level_contrasts.is_empty()
-        || !it.regions_of_significance.is_empty()
-        || report.artifacts.is_some();
-    if !any {
+    if !has_interpretation(report) {
         return;
     }
+    let it = &report.interpretation;
     page.h2("interpretation", "Reading the moderation");
     if !it.conditional_effects.is_empty() {
         page.h3("Conditional effects");
@@ -967,6 +953,23 @@ fn opt_p(x: Option<f64>) -> String {
 /// Studies listed one by one in the robustness tables at most; above this,
 /// only the flagged studies are listed (all of them are in `--table`).
 const MAX_LISTED: usize = 60;
+
+/// Whether the report carries conditional effects, contrasts, regions or artifact corrections.
+fn has_interpretation(report: &FitReport) -> bool {
+    let it = &report.interpretation;
+    !it.conditional_effects.is_empty()
+        || !it.simple_slopes.is_empty()
+        || !it.level_contrasts.is_empty()
+        || !it.regions_of_significance.is_empty()
+        || report.artifacts.is_some()
+}
+
+/// Whether the report carries a cluster structure or cluster-robust tests.
+fn has_dependence(report: &FitReport) -> bool {
+    report.clustering.is_some()
+        || report.variance_components.is_some()
+        || report.coefficients.iter().any(|c| c.robust_se.is_some())
+}
 
 /// Whether the report carries any robustness check.
 fn has_diagnostics(report: &FitReport) -> bool {
@@ -1537,10 +1540,10 @@ pub fn sites_page(
 /// The three-level model's variance components, likelihood-ratio tests and
 /// moderator levels, and the cluster-robust tests (`--cluster`, `--robust`).
 fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
-    let robust = report.coefficients.iter().any(|c| c.robust_se.is_some());
-    if report.clustering.is_none() && report.variance_components.is_none() && !robust {
+    if !has_dependence(report) {
         return;
     }
+    let robust = report.coefficients.iter().any(|c| c.robust_se.is_some());
     page.h2("dependence", "Dependent effects");
     if let Some(c) = &report.clustering {
         page.facts(&[
