@@ -14,10 +14,10 @@ use assert_cmd::Command;
 /// input file, `{dir}` for a scratch folder), the input file's bytes (None:
 /// no file is written), what is fed on standard input, the exit code and
 /// words the message must contain.
-struct Case {
-    id: &'static str,
+pub(crate) struct Case {
+    pub(crate) id: &'static str,
     what: &'static str,
-    args: &'static str,
+    pub(crate) args: &'static str,
     input: Option<&'static [u8]>,
     stdin: &'static [u8],
     code: i32,
@@ -27,7 +27,7 @@ struct Case {
 const PLAIN: &[u8] =
     b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.015,3\nd,0.25,0.01,4\n";
 
-const CASES: &[Case] = &[
+pub(crate) const CASES: &[Case] = &[
     Case { id: "missing-file", what: "the input file does not exist", args: "fit {dir}/nope.csv", input: None, stdin: b"", code: 2, words: &["nope.csv"] },
     Case { id: "directory", what: "the input path is a folder", args: "fit {dir}", input: None, stdin: b"", code: 2, words: &["directory"] },
     Case { id: "empty-file", what: "the file is empty", args: "fit {in}", input: Some(b""), stdin: b"", code: 2, words: &["empty"] },
@@ -73,7 +73,7 @@ const CASES: &[Case] = &[
 const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
 
 /// Runs one case; returns the exit code and stderr.
-fn run(case: &Case) -> (Option<i32>, String) {
+pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("input.csv");
     if let Some(bytes) = case.input {

@@ -6,6 +6,7 @@ mod cli;
 mod determinism;
 mod diagnose;
 mod fuzz_corpus;
+mod golden;
 mod interpret;
 mod multilevel;
 mod plan;
