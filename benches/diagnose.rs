@@ -9,7 +9,7 @@
 use pondus::diagnose::{deleted_fits, influence, loo, permutation, ModelData, PermutationSettings};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{self, FitOptions, Inference};
-use pondus::plan::block_rng;
+use pondus::support::rng::block_rng;
 use std::hint::black_box;
 use std::time::{Duration, Instant};
 

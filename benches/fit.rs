@@ -5,8 +5,8 @@
 //!
 //! The data are invented (a seeded xorshift generator), for timing only.
 
-use pondus::analysis::{run, FitSettings};
 use pondus::effect::{ColumnMap, Measure};
+use pondus::fit::{run, FitSettings};
 use pondus::model::design::ModeratorSpec;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{fit, FitOptions, Inference};

@@ -10,7 +10,7 @@
 use pondus::model::multilevel::{fit, robust, Clusters};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
-use pondus::plan::rng::Xoshiro256StarStar;
+use pondus::support::rng::Xoshiro256StarStar;
 use std::hint::black_box;
 use std::time::Instant;
 

@@ -6,12 +6,12 @@
 //!
 //! The data are invented (a seeded xorshift generator), for timing only.
 
-use pondus::analysis::{run, FitSettings};
 use pondus::effect::{ColumnMap, Measure};
+use pondus::fit::{run, FitSettings};
 use pondus::model::design::ModeratorSpec;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
-use pondus::plot::{self, Format, PlotOptions};
+use pondus::render::figure::{self, Format, PlotOptions};
 use std::hint::black_box;
 use std::time::{Duration, Instant};
 
@@ -87,10 +87,10 @@ fn main() {
     );
     for &k in &[30usize, 300, 1_000] {
         let report = run(&settings, "bench", csv(k, 7 + k as u64).as_bytes()).unwrap();
-        let mut kinds: Vec<(&str, Draw)> = vec![("forest", plot::forest_plot)];
+        let mut kinds: Vec<(&str, Draw)> = vec![("forest", figure::forest_plot)];
         if k == 1_000 {
-            kinds.push(("bubble", plot::bubble_plot));
-            kinds.push(("funnel", plot::funnel_plot));
+            kinds.push(("bubble", figure::bubble_plot));
+            kinds.push(("funnel", figure::funnel_plot));
         }
         for (name, draw) in kinds {
             for (format, label) in [(Format::Svg, "svg"), (Format::Png, "png")] {

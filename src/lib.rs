@@ -5,10 +5,11 @@
 //! small-sample-correct moderator tests, heterogeneity, predictions for a
 //! new study, and plain renderers of the result.
 //!
-//! The command-line tool `pondus` is a thin shell around this library.
+//! The command-line tool `pondus` is a thin shell around this library; its
+//! command-line layer lives in the binary (`src/cli/`), not here.
 //!
 //! ```
-//! use pondus::analysis::{run, FitSettings};
+//! use pondus::fit::{run, FitSettings};
 //! use pondus::effect::{ColumnMap, Measure};
 //! use pondus::model::{FitOptions, Inference, tau2::Tau2Method};
 //!
@@ -30,21 +31,18 @@
 //! assert!(report.tau2.estimate >= 0.0);
 //! ```
 
-pub mod analysis;
-pub mod cli;
-pub mod dependent;
 pub mod diagnose;
 pub mod dist;
 pub mod effect;
 pub mod error;
+pub mod fit;
 pub mod input;
 pub mod model;
-pub mod output;
 pub mod plan;
-pub mod plot;
-pub mod report;
+pub mod render;
 pub mod result;
 pub mod sites;
+pub mod support;
 pub mod tolerance;
 
 pub use error::{Error, Result};

@@ -1,7 +1,9 @@
 //! The `pondus` command: parse, run, report errors, exit.
 
+mod cli;
+
 use clap::Parser;
-use pondus::cli::{Cli, Command};
+use cli::{Cli, Command};
 use std::process::ExitCode;
 
 fn run() -> anyhow::Result<()> {
@@ -9,19 +11,19 @@ fn run() -> anyhow::Result<()> {
     match cli.command {
         Command::Fit(args) => {
             let run = args.check()?;
-            pondus::cli::run_fit(&run)?;
+            cli::run_fit(&run)?;
         }
         Command::Plan(args) => {
             let run = args.check()?;
-            pondus::cli::run_plan(&run)?;
+            cli::run_plan(&run)?;
         }
         Command::Sites(args) => {
             let run = args.check()?;
-            pondus::cli::run_sites(&run)?;
+            cli::run_sites(&run)?;
         }
         Command::Sql(args) => {
             let q = args.query()?;
-            pondus::output::emit(&pondus::output::Target::Stdout, q.as_bytes())?;
+            cli::outputs::emit(&cli::outputs::Target::Stdout, q.as_bytes())?;
         }
     }
     Ok(())

@@ -1,8 +1,8 @@
 //! Shared by the fuzz targets: settings from a selector byte, and the check
 //! that every reported number is finite.
 
-use pondus::analysis::FitSettings;
 use pondus::effect::{ColumnMap, Measure};
+use pondus::fit::FitSettings;
 use pondus::model::design::ModeratorSpec;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
@@ -104,7 +104,7 @@ pub fn fit_csv(data: &[u8]) {
     let measure = MEASURES[(sel as usize >> 3) % MEASURES.len()];
     for moderators in [&[][..], &["m"][..], &["m", "g"][..]] {
         let s = settings(measure, sel, moderators);
-        if let Ok(report) = pondus::analysis::run(&s, "fuzz.csv", csv) {
+        if let Ok(report) = pondus::fit::run(&s, "fuzz.csv", csv) {
             assert_finite(&report);
         }
     }
@@ -124,7 +124,7 @@ pub fn fit_numbers(data: &[u8]) {
     }
     for moderators in [&[][..], &["m"][..]] {
         let s = settings(Measure::Effect, sel, moderators);
-        if let Ok(report) = pondus::analysis::run(&s, "fuzz.csv", csv.as_bytes()) {
+        if let Ok(report) = pondus::fit::run(&s, "fuzz.csv", csv.as_bytes()) {
             assert_finite(&report);
         }
     }

@@ -4,8 +4,8 @@
 use super::{ModelData, PermutationSettings};
 use crate::error::{Error, Result};
 use crate::model::{self, inference};
-use crate::plan::{block_rng, rng::Xoshiro256StarStar};
 use crate::result::Permutation;
+use crate::support::rng::{block_rng, Xoshiro256StarStar};
 use crate::tolerance::PERMUTATION_TIE_REL;
 
 /// Arrangements per block. Block b draws from its own generator

@@ -522,7 +522,7 @@ pub fn interpret(
                 statistic: stat,
                 df: df(fit),
                 p: p_value(fit, stat),
-                reading: crate::analysis::reading(&p, scale),
+                reading: crate::fit::reading(&p, scale),
                 outside_range: pt.outside,
             });
         }

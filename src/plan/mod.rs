@@ -7,13 +7,12 @@
 
 pub mod noncentral;
 pub mod report;
-pub mod rng;
 
 use crate::dist;
 use crate::error::{Error, Result};
 use crate::model::{self, tau2::Tau2Method, FitOptions, Inference};
+use crate::support::rng::block_rng;
 use noncentral::{ncf_sf, ncx2_sf};
-use rng::Xoshiro256StarStar;
 use serde::Serialize;
 
 /// The analysis scale and its planned within-site variance.
@@ -290,14 +289,6 @@ pub struct Simulated {
 /// (see [`block_rng`]), so the result does not depend on how many threads
 /// run the blocks.
 pub const SIM_BLOCK: usize = 250;
-
-/// The generator of block `b` of a simulation with seed `seed`:
-/// xoshiro256** seeded (through SplitMix64) from SplitMix64(seed)₁ ⊕ b, the
-/// first SplitMix64 output of the seed exclusive-or the block index.
-pub fn block_rng(seed: u64, block: u64) -> Xoshiro256StarStar {
-    let mixed = rng::SplitMix64::new(seed).next_u64();
-    Xoshiro256StarStar::seed_from_u64(mixed ^ block)
-}
 
 /// Power of the chosen test (z or Knapp–Hartung) by simulation, in parallel.
 ///

@@ -6,8 +6,8 @@ use super::{
     PlanTest, Simulated, SimulatedK,
 };
 use crate::error::{Error, Result};
-use crate::plot::scene::{Align, Scene};
-use crate::plot::{encode, palette, size, Axis, Format, Frame};
+use crate::render::figure::scene::{Align, Scene};
+use crate::render::figure::{encode, palette, size, Axis, Format, Frame};
 use serde::Serialize;
 
 /// What to solve for.
@@ -524,8 +524,8 @@ pub fn curve_plot(r: &PlanReport, format: Format) -> Result<Vec<u8>> {
 ///
 /// # Errors
 /// Drawing errors.
-pub fn curve_figure(r: &PlanReport) -> Result<crate::plot::PageFigure> {
-    Ok(crate::plot::PageFigure {
+pub fn curve_figure(r: &PlanReport) -> Result<crate::render::figure::PageFigure> {
+    Ok(crate::render::figure::PageFigure {
         kind: "power",
         title: "Power of the moderator test by number of sites".into(),
         description: format!(
@@ -534,7 +534,7 @@ pub fn curve_figure(r: &PlanReport) -> Result<crate::plot::PageFigure> {
             r.table.last().map_or(r.k, |p| p.k),
             r.k
         ),
-        svg: crate::plot::scene::encode_inline(&curve_scene(r))?,
+        svg: crate::render::figure::scene::encode_inline(&curve_scene(r))?,
     })
 }
 
@@ -554,8 +554,9 @@ fn curve_scene(r: &PlanReport) -> Scene {
         y_down: false,
     };
     frame.grid(&mut sc);
-    let fit =
-        |text: &str, size: f64| crate::plot::scene::fit_text(text, size, w as f64 - 2.0 * 20.0);
+    let fit = |text: &str, size: f64| {
+        crate::render::figure::scene::fit_text(text, size, w as f64 - 2.0 * 20.0)
+    };
     sc.text(
         (20.0, 20.0),
         fit(

@@ -729,34 +729,7 @@ pub fn effects_bytes(report: &SitesReport) -> Vec<u8> {
     buf
 }
 
-/// SHA-256 of a file, read in fixed-size blocks (memory does not grow with
-/// the file), lowercase hex, for the report's reproducibility block.
-///
-/// # Errors
-/// [`Error::Io`] when the file cannot be read.
-pub fn sha256_file(path: &std::path::Path) -> Result<String> {
-    use sha2::{Digest, Sha256};
-    let io = |e: std::io::Error| Error::Io {
-        action: "reading",
-        path: path.display().to_string(),
-        source: e,
-    };
-    let mut file = std::fs::File::open(path).map_err(io)?;
-    let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; 1 << 16];
-    loop {
-        let n = file.read(&mut buf).map_err(io)?;
-        if n == 0 {
-            break;
-        }
-        hasher.update(&buf[..n]);
-    }
-    Ok(hasher
-        .finalize()
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect())
-}
+pub use crate::support::hash::sha256_file;
 
 #[cfg(test)]
 mod tests {

@@ -2,12 +2,12 @@
 //! moderation side by side.
 //!
 //! The effects file written by the first stage is analysed by the `fit`
-//! job itself ([`crate::analysis::run`]), so every estimator, test and
+//! job itself ([`crate::fit::run`]), so every estimator, test and
 //! caution is the one `pondus fit` uses on the same file.
 
-use crate::analysis::{self, FitSettings};
 use crate::effect::{ColumnMap, Measure};
 use crate::error::Result;
+use crate::fit::{self, FitSettings};
 use crate::model::design::ModeratorSpec;
 use crate::model::FitOptions;
 use crate::result::{FitReport, SitesReport, TwoStage};
@@ -56,7 +56,7 @@ pub fn run(
             diagnostics: Default::default(),
             dependence: Default::default(),
         };
-        analysis::run(&settings, source, &bytes)
+        fit::run(&settings, source, &bytes)
     };
     let with_w = report.model.w.is_some();
     let w = report.model.w.clone().unwrap_or_default();

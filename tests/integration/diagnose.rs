@@ -20,9 +20,9 @@
 
 use crate::util::{close, repo, settings};
 use assert_cmd::Command;
-use pondus::analysis::{run, FitSettings};
 use pondus::diagnose::{DiagnoseSettings, PermutationSettings};
 use pondus::effect::Measure;
+use pondus::fit::{run, FitSettings};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
 use pondus::result::FitReport;
@@ -406,7 +406,7 @@ fn random_permutations_do_not_depend_on_the_number_of_threads() {
 fn permutation_and_knapp_hartung_hold_their_size_while_z_does_not() {
     use pondus::diagnose::{permutation, ModelData};
     use pondus::model::{self, inference};
-    use pondus::plan::block_rng;
+    use pondus::support::rng::block_rng;
     let k = 10;
     let tau2 = 0.5;
     let v: Vec<f64> = (0..k).map(|i| 0.01 + 0.01 * i as f64).collect();

@@ -20,7 +20,7 @@
 
 use crate::catalogue;
 use assert_cmd::Command;
-use sha2::{Digest, Sha256};
+use pondus::support::hash::sha256_hex;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
@@ -109,13 +109,6 @@ fn copy_files(from: &Path, to: &Path) {
     }
 }
 
-fn sha256_hex(bytes: &[u8]) -> String {
-    Sha256::digest(bytes)
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect()
-}
-
 /// The text with every long base64 payload of a data URL (the embedded
 /// font) replaced by its SHA-256, so the golden file stays small while the
 /// comparison stays exact.
@@ -136,7 +129,7 @@ fn fold_blobs(text: &str) -> String {
                 out,
                 "[{} base64 characters, SHA-256 {}]",
                 end,
-                sha256_hex(tail[..end].as_bytes())
+                sha256_hex(&tail.as_bytes()[..end])
             )
             .unwrap();
         } else {

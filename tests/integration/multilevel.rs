@@ -24,7 +24,7 @@ use assert_cmd::Command;
 use pondus::model::multilevel::{self, Clusters};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{self as model, FitOptions, Inference};
-use pondus::plan::rng::Xoshiro256StarStar;
+use pondus::support::rng::Xoshiro256StarStar;
 use pondus::tolerance::{MULTILEVEL_REF_REL, REFERENCE_ABS};
 use serde_json::Value;
 

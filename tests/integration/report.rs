@@ -160,7 +160,7 @@ fn every_example_report_is_self_contained_and_has_every_section() {
         // Reproducibility: the command, the version and the input's SHA-256.
         let bytes = std::fs::read(example(name)).unwrap();
         assert!(
-            page.contains(&pondus::analysis::sha256_hex(&bytes)),
+            page.contains(&pondus::support::hash::sha256_hex(&bytes)),
             "{name}: no input SHA-256"
         );
         assert!(page.contains(&format!("pondus {}", env!("CARGO_PKG_VERSION"))));
@@ -397,6 +397,6 @@ fn sites_report_has_both_stages_exclusions_join_and_digest() {
         assert!(page.contains(needle), "no '{needle}'");
     }
     let bytes = std::fs::read(example("choir-participants.csv")).unwrap();
-    assert!(page.contains(&pondus::analysis::sha256_hex(&bytes)));
+    assert!(page.contains(&pondus::support::hash::sha256_hex(&bytes)));
     assert_eq!(page.matches("<figure class=\"plot\"").count(), 3);
 }

@@ -1,7 +1,7 @@
 //! Helpers shared by the integration tests.
 
-use pondus::analysis::{run, FitSettings};
 use pondus::effect::{ColumnMap, Measure};
+use pondus::fit::{run, FitSettings};
 use pondus::model::design::ModeratorSpec;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};

@@ -11,7 +11,7 @@
 
 use super::{format_num as num, format_p, format_percent};
 use crate::plan::report::PlanReport;
-use crate::plot::PageFigure;
+use crate::render::figure::PageFigure;
 use crate::result::{AtValue, Estimate, FitReport};
 use std::fmt::Write as _;
 
@@ -103,7 +103,7 @@ impl Page {
         out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n");
         let _ = writeln!(out, "<title>{}</title>", esc(title));
         out.push_str("<style>");
-        out.push_str(&crate::plot::scene::font_face_css());
+        out.push_str(&crate::render::figure::scene::font_face_css());
         out.push_str(STYLE);
         out.push_str("</style>\n</head>\n<body>\n");
         Page { out }
@@ -1822,7 +1822,7 @@ mod tests {
     fn sha256_matches_the_fips_180_example() {
         // FIPS 180-2, appendix B.1: SHA-256("abc").
         assert_eq!(
-            crate::analysis::sha256_hex(b"abc"),
+            crate::support::hash::sha256_hex(b"abc"),
             "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
         );
     }

@@ -1,6 +1,6 @@
 //! Writing output files safely: never over an input, always atomically.
 
-use crate::error::{Error, Result};
+use pondus::error::{Error, Result};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 

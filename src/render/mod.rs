@@ -2,6 +2,7 @@
 //! JSON and a per-study CSV. Pure functions of the result, no computation.
 
 pub mod diagnostics;
+pub mod figure;
 pub mod html;
 pub mod interpret;
 pub mod json;

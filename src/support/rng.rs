@@ -92,6 +92,14 @@ impl Xoshiro256StarStar {
     }
 }
 
+/// The generator of block `b` of a simulation with seed `seed`:
+/// xoshiro256** seeded (through SplitMix64) from SplitMix64(seed)₁ ⊕ b, the
+/// first SplitMix64 output of the seed exclusive-or the block index.
+pub fn block_rng(seed: u64, block: u64) -> Xoshiro256StarStar {
+    let mixed = SplitMix64::new(seed).next_u64();
+    Xoshiro256StarStar::seed_from_u64(mixed ^ block)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

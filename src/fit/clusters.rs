@@ -276,7 +276,7 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
             mt.p = t.p;
             mt.distribution = "F".into();
             mt.significant = significant;
-            mt.answer = crate::analysis::answer(
+            mt.answer = crate::fit::answer(
                 significant,
                 moderators,
                 fit,

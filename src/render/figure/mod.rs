@@ -21,7 +21,7 @@ use crate::result::FitReport;
 use std::path::Path;
 
 /// The bundled font (DejaVu Sans; licence in `assets/fonts/LICENSE-DejaVu.txt`).
-pub static FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+pub static FONT: &[u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
 
 /// The output format of a plot.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -90,7 +90,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     num(c.estimate, d),
                     num(c.ci_low, d),
                     num(c.ci_high, d),
-                    crate::report::format_p(c.p)
+                    crate::render::format_p(c.p)
                 ));
             }
         }

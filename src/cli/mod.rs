@@ -1,21 +1,23 @@
 //! Command-line definitions (clap derive) and the checked settings built from them.
 
-use crate::analysis::{self, FitSettings};
-use crate::effect::{ColumnMap, Measure};
-use crate::error::{Error, Result};
-use crate::input::Source;
-use crate::model::design::ModeratorSpec;
-use crate::model::tau2::Tau2Method;
-use crate::model::{FitOptions, Inference};
-use crate::output::{self, Target};
-use crate::plan::{
+pub mod outputs;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use outputs::Target;
+use pondus::effect::{ColumnMap, Measure};
+use pondus::error::{Error, Result};
+use pondus::fit::{self, FitSettings};
+use pondus::input::Source;
+use pondus::model::design::ModeratorSpec;
+use pondus::model::tau2::Tau2Method;
+use pondus::model::{FitOptions, Inference};
+use pondus::plan::{
     self,
     report::{PlanRequest, SolveFor},
     ModeratorDesign, Plan, PlanMeasure, PlanTest,
 };
-use crate::plot;
-use crate::report;
-use clap::{Args, Parser, Subcommand, ValueEnum};
+use pondus::render;
+use pondus::render::figure;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
 
@@ -266,7 +268,7 @@ pub struct PlotRequest {
     /// Where it goes (always a file).
     pub target: Target,
     /// SVG or PNG, from the extension.
-    pub format: plot::Format,
+    pub format: figure::Format,
 }
 
 fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a str)> {
@@ -293,7 +295,7 @@ pub struct FitRun {
     /// Plots to draw.
     pub plots: Vec<PlotRequest>,
     /// Plot settings.
-    pub plot_options: plot::PlotOptions,
+    pub plot_options: figure::PlotOptions,
     /// Whether to print the terminal report.
     pub text: bool,
     /// The HTML report's target.
@@ -459,7 +461,7 @@ impl FitArgs {
                     PlotRequest {
                         kind,
                         target: Target::from_arg(p),
-                        format: plot::Format::from_path(flag, p)?,
+                        format: figure::Format::from_path(flag, p)?,
                     },
                 ));
             }
@@ -512,7 +514,7 @@ impl FitArgs {
                 any_plot,
             )?;
             if let Some(v) = v {
-                let (lo, hi) = plot::SIZE_RANGE;
+                let (lo, hi) = figure::SIZE_RANGE;
                 if !(lo..=hi).contains(&v) {
                     return Err(Error::usage(
                         flag,
@@ -534,7 +536,7 @@ impl FitArgs {
             Source::File(p) => Some(p.as_path()),
             Source::Stdin => None,
         };
-        output::check_targets(input_path, &outs)?;
+        outputs::check_targets(input_path, &outs)?;
         let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
         Ok(FitRun {
             source,
@@ -563,13 +565,13 @@ impl FitArgs {
             json,
             table,
             plots: plots.into_iter().map(|(_, p)| p).collect(),
-            plot_options: plot::PlotOptions {
+            plot_options: figure::PlotOptions {
                 width: self.width,
                 height: self.height,
                 sort: self
                     .sort
                     .as_deref()
-                    .map(plot::SortKey::parse)
+                    .map(figure::SortKey::parse)
                     .unwrap_or_default(),
                 show_fitted: self.show_fitted,
                 bubble_x: self.bubble_x.clone(),
@@ -584,8 +586,8 @@ impl FitArgs {
 
 impl FitArgs {
     /// The checked `--probe`, `--compare-levels`, `--regions` and artifact settings.
-    fn interpret_settings(&self) -> Result<crate::model::probe::InterpretSettings> {
-        use crate::model::probe::{InterpretSettings, ProbeSpec};
+    fn interpret_settings(&self) -> Result<pondus::model::probe::InterpretSettings> {
+        use pondus::model::probe::{InterpretSettings, ProbeSpec};
         let mut probes = Vec::new();
         for p in &self.probe {
             let (name, values) = match p.split_once('=') {
@@ -618,7 +620,7 @@ impl FitArgs {
                 values,
             });
         }
-        let artifacts = crate::effect::artifact::ArtifactSettings {
+        let artifacts = pondus::effect::artifact::ArtifactSettings {
             reliability_x: self.reliability_x.clone(),
             reliability_y: self.reliability_y.clone(),
             range_ratio: self.range_ratio.clone(),
@@ -647,8 +649,8 @@ impl FitArgs {
     ///
     /// # Errors
     /// [`Error::Usage`] naming the flag and how to fix it.
-    fn dependence(&self) -> Result<crate::model::multilevel::Dependence> {
-        use crate::model::multilevel::{Dependence, Levels};
+    fn dependence(&self) -> Result<pondus::model::multilevel::Dependence> {
+        use pondus::model::multilevel::{Dependence, Levels};
         let Some(col) = &self.cluster else {
             if self.robust {
                 return Err(Error::usage(
@@ -710,8 +712,8 @@ impl FitArgs {
     ///
     /// # Errors
     /// [`Error::Usage`] naming the flag and how to fix it.
-    fn diagnostics(&self) -> Result<crate::diagnose::DiagnoseSettings> {
-        use crate::diagnose::{DiagnoseSettings, PermutationSettings};
+    fn diagnostics(&self) -> Result<pondus::diagnose::DiagnoseSettings> {
+        use pondus::diagnose::{DiagnoseSettings, PermutationSettings};
         let permutations = match (self.permutations, self.seed) {
             (None, Some(_)) => return Err(Error::usage(
                 "--seed",
@@ -786,7 +788,7 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             b.inc(n);
         }
     };
-    let report = analysis::run_with_progress(&run.settings, &run.source.name(), &bytes, &tick);
+    let report = fit::run_with_progress(&run.settings, &run.source.name(), &bytes, &tick);
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
@@ -797,26 +799,26 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
     for p in &run.plots {
         let o = &run.plot_options;
         let bytes = match p.kind {
-            PlotKind::Forest => plot::forest_plot(&report, o, p.format)?,
-            PlotKind::Bubble => plot::bubble_plot(&report, o, p.format)?,
-            PlotKind::Funnel => plot::funnel_plot(&report, o, p.format)?,
+            PlotKind::Forest => figure::forest_plot(&report, o, p.format)?,
+            PlotKind::Bubble => figure::bubble_plot(&report, o, p.format)?,
+            PlotKind::Funnel => figure::funnel_plot(&report, o, p.format)?,
         };
         drawn.push((&p.target, bytes));
     }
     if let Some(t) = &run.json {
         let mut buf = Vec::new();
-        report::json::write(&report, &mut buf).map_err(|e| io_err("JSON", e))?;
-        output::emit(t, &buf)?;
+        render::json::write(&report, &mut buf).map_err(|e| io_err("JSON", e))?;
+        outputs::emit(t, &buf)?;
     }
     if let Some(t) = &run.table {
         let mut buf = Vec::new();
-        report::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
-        output::emit(t, &buf)?;
+        render::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
+        outputs::emit(t, &buf)?;
     }
     let page = match &run.report {
         Some(t) => {
-            let (figures, figure_notes) = plot::page_figures(&report, &run.plot_options)?;
-            let prov = report::html::Provenance {
+            let (figures, figure_notes) = figure::page_figures(&report, &run.plot_options)?;
+            let prov = render::html::Provenance {
                 command: run.invocation.clone(),
                 version: report.tool.version.clone(),
                 input_sha256: Some(report.input.sha256.clone()),
@@ -824,19 +826,19 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             };
             Some((
                 t,
-                report::html::fit_page(&report, &figures, &figure_notes, &prov),
+                render::html::fit_page(&report, &figures, &figure_notes, &prov),
             ))
         }
         None => None,
     };
     for (target, bytes) in drawn {
-        output::emit(target, &bytes)?;
+        outputs::emit(target, &bytes)?;
     }
     if let Some((t, page)) = page {
-        output::emit(t, page.as_bytes())?;
+        outputs::emit(t, page.as_bytes())?;
     }
     if run.text {
-        output::emit(&Target::Stdout, report::text::render(&report).as_bytes())?;
+        outputs::emit(&Target::Stdout, render::text::render(&report).as_bytes())?;
     }
     Ok(())
 }
@@ -949,7 +951,7 @@ pub struct PlanRun {
     /// JSON output.
     pub json: Option<Target>,
     /// Power curve output and its format.
-    pub curve: Option<(Target, plot::Format)>,
+    pub curve: Option<(Target, figure::Format)>,
     /// Whether to print the terminal report.
     pub text: bool,
     /// The HTML report's target.
@@ -1138,7 +1140,10 @@ impl PlanArgs {
         }
         let json = self.json.as_deref().map(Target::from_arg);
         let curve = match &self.curve {
-            Some(p) => Some((Target::from_arg(p), plot::Format::from_path("--curve", p)?)),
+            Some(p) => Some((
+                Target::from_arg(p),
+                figure::Format::from_path("--curve", p)?,
+            )),
             None => None,
         };
         let mut outs: Vec<(&str, &Target)> = Vec::new();
@@ -1156,7 +1161,7 @@ impl PlanArgs {
         if let Some(r) = &report {
             outs.push(("--report", r));
         }
-        output::check_targets(self.moderator_values.as_deref(), &outs)?;
+        outputs::check_targets(self.moderator_values.as_deref(), &outs)?;
         let plan = Plan {
             measure,
             k: self.k,
@@ -1287,29 +1292,29 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         let mut buf = serde_json::to_vec_pretty(&report)
             .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
         buf.push(b'\n');
-        output::emit(t, &buf)?;
+        outputs::emit(t, &buf)?;
     }
     let page = match &run.report {
         Some(t) => {
             let figure = plan::report::curve_figure(&report)?;
-            let prov = report::html::Provenance {
+            let prov = render::html::Provenance {
                 command: run.invocation.clone(),
                 version: env!("CARGO_PKG_VERSION").to_string(),
                 input_sha256: None,
                 seed: report.simulation.map(|s| s.seed),
             };
-            Some((t, report::html::plan_page(&report, Some(&figure), &prov)))
+            Some((t, render::html::plan_page(&report, Some(&figure), &prov)))
         }
         None => None,
     };
     if let Some((t, bytes)) = curve {
-        output::emit(t, &bytes)?;
+        outputs::emit(t, &bytes)?;
     }
     if let Some((t, page)) = page {
-        output::emit(t, page.as_bytes())?;
+        outputs::emit(t, page.as_bytes())?;
     }
     if run.text {
-        output::emit(
+        outputs::emit(
             &Target::Stdout,
             plan::report::render_text(&report).as_bytes(),
         )?;
@@ -1384,8 +1389,8 @@ mod tests {
         ])
         .unwrap();
         assert_eq!(p.plots.len(), 2);
-        assert_eq!(p.plots[1].format, plot::Format::Png);
-        assert_eq!(p.plot_options.sort, plot::SortKey::Precision);
+        assert_eq!(p.plots[1].format, figure::Format::Png);
+        assert_eq!(p.plot_options.sort, figure::SortKey::Precision);
         assert_eq!(p.plot_options.width, Some(800));
         assert!(p.plot_options.contours && !p.plot_options.show_fitted);
         for bad in [
@@ -1487,7 +1492,7 @@ pub struct SitesRun {
     /// The input.
     pub input: SitesInputArg,
     /// First-stage settings.
-    pub settings: crate::sites::SitesSettings,
+    pub settings: pondus::sites::SitesSettings,
     /// Site table and its id column.
     pub info: Option<(PathBuf, String)>,
     /// Effects file.
@@ -1587,9 +1592,9 @@ impl SitesArgs {
             SitesInputArg::Rows(Source::Stdin) => None,
             SitesInputArg::Moments(p) => Some(p.as_path()),
         };
-        output::check_targets(input_path, &outs)?;
+        outputs::check_targets(input_path, &outs)?;
         if let Some(info) = &self.info {
-            output::check_targets(Some(info.as_path()), &outs)?;
+            outputs::check_targets(Some(info.as_path()), &outs)?;
         }
         let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
         let info_key = self.info_key.clone().unwrap_or_else(|| {
@@ -1601,7 +1606,7 @@ impl SitesArgs {
         });
         Ok(SitesRun {
             input,
-            settings: crate::sites::SitesSettings {
+            settings: pondus::sites::SitesSettings {
                 site,
                 x,
                 y,
@@ -1646,7 +1651,7 @@ impl SitesArgs {
 /// # Errors
 /// Any library error.
 pub fn run_sites(run: &SitesRun) -> Result<()> {
-    use crate::sites::{self, RowInput};
+    use pondus::sites::{self, RowInput};
     let mut report = match &run.input {
         SitesInputArg::Rows(Source::File(p)) => {
             sites::from_rows(&p.display().to_string(), RowInput::File(p), &run.settings)?
@@ -1669,18 +1674,18 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);
     }
     if let Some(t) = &run.out {
-        output::emit(t, &sites::effects_bytes(&report))?;
+        outputs::emit(t, &sites::effects_bytes(&report))?;
     }
     if let Some(t) = &run.json {
         let mut buf = serde_json::to_vec_pretty(&report)
             .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
         buf.push(b'\n');
-        output::emit(t, &buf)?;
+        outputs::emit(t, &buf)?;
     }
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {
             SitesInputArg::Rows(Source::File(p)) | SitesInputArg::Moments(p) => {
-                Some(crate::sites::sha256_file(p)?)
+                Some(pondus::sites::sha256_file(p)?)
             }
             SitesInputArg::Rows(Source::Stdin) => None,
         };
@@ -1689,22 +1694,22 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
             None => None,
         };
         let (figures, figure_notes) = match source {
-            Some(fit) => plot::page_figures(fit, &plot::PlotOptions::default())?,
+            Some(fit) => figure::page_figures(fit, &figure::PlotOptions::default())?,
             None => (Vec::new(), Vec::new()),
         };
-        let prov = report::html::Provenance {
+        let prov = render::html::Provenance {
             command: run.invocation.clone(),
             version: env!("CARGO_PKG_VERSION").to_string(),
             input_sha256,
             seed: None,
         };
-        output::emit(
+        outputs::emit(
             t,
-            report::html::sites_page(&report, &figures, &figure_notes, &prov).as_bytes(),
+            render::html::sites_page(&report, &figures, &figure_notes, &prov).as_bytes(),
         )?;
     }
     if run.text {
-        output::emit(&Target::Stdout, report::sites::render(&report).as_bytes())?;
+        outputs::emit(&Target::Stdout, render::sites::render(&report).as_bytes())?;
     }
     Ok(())
 }
@@ -1738,7 +1743,7 @@ impl SqlArgs {
     /// # Errors
     /// [`Error::Usage`] for an unusable name.
     pub fn query(&self) -> Result<String> {
-        crate::sites::sql::query(&crate::sites::sql::QuerySpec {
+        pondus::sites::sql::query(&pondus::sites::sql::QuerySpec {
             table: self.table.clone(),
             site: self.site.clone(),
             x: self.x.clone(),

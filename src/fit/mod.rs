@@ -1,5 +1,7 @@
 //! From a table and settings to a [`FitReport`]: the `pondus fit` job.
 
+pub mod clusters;
+
 use crate::effect::artifact;
 use crate::effect::{self, ColumnMap, Measure, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
@@ -95,11 +97,11 @@ pub fn run_with_progress(
         requests.len() - 1
     });
     let cluster_request = settings.dependence.cluster.as_ref().map(|h| {
-        requests.push(crate::dependent::request(h));
+        requests.push(crate::fit::clusters::request(h));
         requests.len() - 1
     });
     let mut table = input::parse_table(source, bytes, &requests)?;
-    let cluster_cells = cluster_request.map(|j| crate::dependent::cells(&table, j));
+    let cluster_cells = cluster_request.map(|j| crate::fit::clusters::cells(&table, j));
     let order_cells: Option<(String, Vec<String>)> = order_request.map(|j| {
         let col = table.column(j).expect("required column present");
         (
@@ -217,7 +219,7 @@ pub fn run_with_progress(
     }
     drop(effects);
     let clusters = match &cluster_cells {
-        Some(cells) => Some(crate::dependent::clusters(
+        Some(cells) => Some(crate::fit::clusters::clusters(
             cells,
             &included,
             &table.lines,
@@ -226,7 +228,7 @@ pub fn run_with_progress(
         None => None,
     };
     let dep = &settings.dependence;
-    let (fit, three) = crate::dependent::fit(
+    let (fit, three) = crate::fit::clusters::fit(
         &y,
         &v,
         &design.x,
@@ -249,7 +251,7 @@ pub fn run_with_progress(
     } else {
         let ones = vec![1.0; k];
         Some(
-            crate::dependent::fit(
+            crate::fit::clusters::fit(
                 &y,
                 &v,
                 &ones,
@@ -344,7 +346,7 @@ pub fn run_with_progress(
     let curves = curves(&design, &fit)?;
     let cluster_parts = match &clusters {
         Some(cl) => Some(
-            crate::dependent::parts(&y, &v, &design.x, design.p, cl, dep, &fit, three.as_ref())
+            crate::fit::clusters::parts(&y, &v, &design.x, design.p, cl, dep, &fit, three.as_ref())
                 .map_err(|e| in_file(source, e))?,
         ),
         None => None,
@@ -512,7 +514,7 @@ pub fn run_with_progress(
             delimiter: table.delimiter_name().into(),
             rows: table.len(),
             label_column,
-            sha256: sha256_hex(bytes),
+            sha256: crate::support::hash::sha256_hex(bytes),
         },
         measure: MeasureInfo {
             id: measure.id().into(),
@@ -582,7 +584,7 @@ pub fn run_with_progress(
     };
     let mut report = report;
     if let Some(parts) = cluster_parts {
-        crate::dependent::finish(&mut report, parts, &mod_names, &fit);
+        crate::fit::clusters::finish(&mut report, parts, &mod_names, &fit);
     }
     if report.artifacts.is_some() {
         report.measure = MeasureInfo {
@@ -1063,7 +1065,7 @@ pub(crate) fn answer(
         [one] => one.to_string(),
         [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
     };
-    let p_txt = crate::report::format_p(p);
+    let p_txt = crate::render::format_p(p);
     let k = fit.k;
     let several = fit.p > 2;
     if significant && several {
@@ -1171,17 +1173,6 @@ fn check_moderator_scale(
         }
     }
     Ok(())
-}
-
-/// SHA-256 of `bytes` as lowercase hex (FIPS 180-4, through the `sha2` crate).
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    use sha2::{Digest, Sha256};
-    let digest = Sha256::digest(bytes);
-    let mut out = String::with_capacity(64);
-    for b in digest {
-        out.push_str(&format!("{b:02x}"));
-    }
-    out
 }
 
 /// The per-study record of the artifact corrections (None without any).

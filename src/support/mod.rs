@@ -1,0 +1,5 @@
+//! Small shared pieces below every other layer: hashing of inputs and the
+//! seeded random-number generator of the simulations and permutations.
+
+pub mod hash;
+pub mod rng;
