@@ -12,6 +12,7 @@ use crate::model::probe;
 use crate::model::tau2::Tau2Method;
 use crate::model::{self, FitOptions, Inference, ModelFit};
 use crate::result::*;
+use crate::support::format as fmt;
 use std::collections::BTreeMap;
 
 /// Checked settings of one `fit` job (the library's view; the CLI builds them).
@@ -883,7 +884,7 @@ fn held_values(design: &design::Design, except: usize) -> (Vec<Value>, String) {
             ModeratorKind::Numeric { mean, .. } => {
                 values.push(Value::Number(*mean));
                 if j != except {
-                    numeric.push(format!("{} = {}", m.name, short(*mean)));
+                    numeric.push(format!("{} = {}", m.name, fmt::short(*mean)));
                 }
             }
             ModeratorKind::Categorical { reference, .. } => {
@@ -902,17 +903,6 @@ fn held_values(design: &design::Design, except: usize) -> (Vec<Value>, String) {
         parts.push(format!("at the reference level {}", categorical.join(", ")));
     }
     (values, parts.join("; "))
-}
-
-/// A number in words: at most 3 decimals, trailing zeros dropped.
-fn short(x: f64) -> String {
-    let s = format!("{x:.3}");
-    let s = s.trim_end_matches('0').trim_end_matches('.');
-    if s == "-0" {
-        "0".into()
-    } else {
-        s.into()
-    }
 }
 
 /// Per-level summaries of every categorical moderator.
@@ -1065,7 +1055,7 @@ pub(crate) fn answer(
         [one] => one.to_string(),
         [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
     };
-    let p_txt = crate::render::format_p(p);
+    let p_txt = crate::support::format::p(p);
     let k = fit.k;
     let several = fit.p > 2;
     if significant && several {

@@ -22,6 +22,7 @@ use crate::result::{
     AtValue, ConditionalEffect, ContrastTest, Estimate, Interpretation, LevelContrast,
     PictureChange, RegionOfSignificance, SimpleSlope,
 };
+use crate::support::format as fmt;
 use crate::tolerance;
 use nalgebra::DVector;
 
@@ -259,7 +260,7 @@ fn held(design: &Design, except: &[usize]) -> (Vec<Value>, String) {
             ModeratorKind::Numeric { mean, .. } => {
                 values.push(Value::Number(*mean));
                 if !except.contains(&j) {
-                    parts.push(format!("{} at its mean {}", m.name, short(*mean)));
+                    parts.push(format!("{} at its mean {}", m.name, fmt::short(*mean)));
                 }
             }
             ModeratorKind::Categorical { reference, .. } => {
@@ -271,17 +272,6 @@ fn held(design: &Design, except: &[usize]) -> (Vec<Value>, String) {
         }
     }
     (values, parts.join(", "))
-}
-
-/// A number in words: at most 3 decimals, trailing zeros dropped.
-pub fn short(x: f64) -> String {
-    let s = format!("{x:.3}");
-    let s = s.trim_end_matches('0').trim_end_matches('.');
-    if s == "-0" {
-        "0".into()
-    } else {
-        s.into()
-    }
 }
 
 fn row(design: &Design, values: &[Value]) -> Result<Vec<f64>> {
@@ -711,8 +701,8 @@ fn region(
     } else {
         format!("the slope of {quantity}")
     };
-    let lv = format!("{}%", short(100.0 * level));
-    let b_txt: Vec<String> = bounds.iter().map(|x| short(*x)).collect();
+    let lv = format!("{}%", fmt::short(100.0 * level));
+    let b_txt: Vec<String> = bounds.iter().map(|x| fmt::short(*x)).collect();
     let all = match reg {
         Region::Everywhere => format!("for every value of {name}"),
         Region::Nowhere => format!("for no value of {name}"),
@@ -747,8 +737,8 @@ fn region(
             .map(|[l, h]| {
                 format!(
                     "from {} to {} ({})",
-                    short(*l),
-                    short(*h),
+                    fmt::short(*l),
+                    fmt::short(*h),
                     sign(0.5 * (l + h))
                 )
             })
@@ -763,8 +753,8 @@ fn region(
     let words = format!(
         "The {lv} confidence interval of {what} excludes 0 {all}; within the studies' range of \
          {name} ({} to {}): {obs}.{rest}",
-        short(min),
-        short(max)
+        fmt::short(min),
+        fmt::short(max)
     );
     Ok(RegionOfSignificance {
         moderator: name.clone(),
@@ -797,19 +787,19 @@ fn picture(
         .fold(f64::NEG_INFINITY, f64::max);
     let sign_changes = lo < 0.0 && hi > 0.0;
     let shown = |x: f64| match scale {
-        ReadingScale::Same => short(x),
-        ReadingScale::Correlation => format!("{} (r = {})", short(x), short(x.tanh())),
-        ReadingScale::Ratio => format!("{} (ratio {})", short(x), short(x.exp())),
+        ReadingScale::Same => fmt::short(x),
+        ReadingScale::Correlation => format!("{} (r = {})", fmt::short(x), fmt::short(x.tanh())),
+        ReadingScale::Ratio => format!("{} (ratio {})", fmt::short(x), fmt::short(x.exp())),
     };
     let tau2_with = fit.tau2.estimate;
     let mut words = format!(
         "Without moderators the pooled effect is {} with τ² = {}. With the moderators the mean \
          effect at the probed values runs from {} to {}, with residual τ² = {}",
         shown(base.pooled.estimate),
-        short4(base.tau2_without),
+        fmt::short4(base.tau2_without),
         shown(lo),
         shown(hi),
-        short4(tau2_with)
+        fmt::short4(tau2_with)
     );
     if let Some(r2) = base.r2 {
         words.push_str(&format!(
@@ -833,14 +823,6 @@ fn picture(
         conditional_max: hi,
         sign_changes,
         words,
-    }
-}
-
-fn short4(x: f64) -> String {
-    if x != 0.0 && x.abs() < 0.001 {
-        format!("{x:.2e}")
-    } else {
-        format!("{x:.4}")
     }
 }
 

@@ -2,18 +2,10 @@
 //! `--permutations`, `--small-study`, `--cumulative-by`), rendered from the
 //! public result only.
 
-use super::text::{clip, interval, lpad, pad, width, wrap, MAX_LISTED_STUDIES};
-use super::{format_num as num, format_p, format_percent};
+use super::text::{clip, lpad, pad, width, wrap, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, FitReport};
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
-
-fn p_short(p: f64) -> String {
-    format_p(p).trim_start_matches("= ").to_string()
-}
-
-fn opt(x: Option<f64>) -> String {
-    x.map(num).unwrap_or_else(|| "—".into())
-}
 
 fn label_width(labels: impl Iterator<Item = usize>) -> usize {
     labels.max().unwrap_or(5).clamp(5, 28)
@@ -75,15 +67,15 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
             }
             for j in 0..terms.len() {
                 let c = l.coefficients.get(first + j).copied();
-                let _ = write!(line, "  {}", lpad(&opt(c), 10));
+                let _ = write!(line, "  {}", lpad(&fmt::opt_num(c), 10));
             }
             let p = l.moderator_p.or(l.average_p);
             let _ = write!(
                 line,
                 "  {}  {}  {}  {flag}",
-                lpad(&opt(l.tau2), 10),
-                lpad(&l.i2.map(format_percent).unwrap_or("—".into()), 6),
-                lpad(&p.map(p_short).unwrap_or("—".into()), 8)
+                lpad(&fmt::opt_num(l.tau2), 10),
+                lpad(&l.i2.map(fmt::percent).unwrap_or("—".into()), 6),
+                lpad(&p.map(fmt::p_cell).unwrap_or("—".into()), 8)
             );
             let _ = writeln!(o, "{line}");
         }
@@ -141,7 +133,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 lpad(&f2(s.cooks_distance), 8),
                 lpad(&f2(s.cov_ratio), 8),
                 lpad(&format!("{:.3}", s.hat), 6),
-                lpad(&opt(s.tau2_deleted), 9),
+                lpad(&fmt::opt_num(s.tau2_deleted), 9),
                 lpad(
                     &s.q_deleted.map(|q| format!("{q:.2}")).unwrap_or("—".into()),
                     8
@@ -200,14 +192,14 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 format!(
                     " (from the {} distribution: p {})",
                     t.distribution,
-                    format_p(t.p)
+                    fmt::p(t.p)
                 )
             })
             .unwrap_or_default();
         let _ = writeln!(
             o,
             "  moderator test        permutation p {}{model_p}",
-            format_p(p.moderator_p)
+            fmt::p(p.moderator_p)
         );
         for (c, cp) in r.coefficients.iter().zip(&p.coefficient_p) {
             if let Some(cp) = cp {
@@ -215,7 +207,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                     o,
                     "  {}  permutation p {}",
                     pad(&clip(&c.term, 20), 20),
-                    format_p(*cp)
+                    fmt::p(*cp)
                 );
             }
         }
@@ -258,7 +250,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 num(a.se),
                 a.df,
                 a.statistic,
-                format_p(a.p)
+                fmt::p(a.p)
             ),
             "  ",
             70,
@@ -268,7 +260,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 "rank correlation (Kendall's τ between standardised effects and variances): \
                  τ = {:.3}, p {}",
                 s.rank_test.tau,
-                format_p(s.rank_test.p)
+                fmt::p(s.rank_test.p)
             ),
             "  ",
             70,
@@ -281,7 +273,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
             if t.filled == 1 { "study" } else { "studies" },
             t.side,
             num(t.estimate),
-            interval(t.ci_low, t.ci_high),
+            fmt::interval(t.ci_low, t.ci_high),
             num(t.estimate_observed)
         );
         if let (Some(rd), Some(name)) = (&t.reading, &r.measure.reading_name) {
@@ -289,7 +281,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 tf,
                 "; as {name}: {} {}",
                 num(rd.estimate),
-                interval(rd.ci_low, rd.ci_high)
+                fmt::interval(rd.ci_low, rd.ci_high)
             );
         }
         o.push_str(&wrap(&tf, "  ", 70));
@@ -337,7 +329,7 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 continue;
             }
             let ci = match (s.ci_low, s.ci_high) {
-                (Some(a), Some(b)) => interval(a, b),
+                (Some(a), Some(b)) => fmt::interval(a, b),
                 _ => "—".into(),
             };
             let _ = writeln!(
@@ -346,10 +338,10 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
                 pad(&clip(&s.study, lw), lw),
                 pad(&clip(&value_text(&s.value), vw), vw),
                 lpad(&s.k.to_string(), 4),
-                lpad(&opt(s.estimate), 9),
+                lpad(&fmt::opt_num(s.estimate), 9),
                 pad(&ci, 19),
-                lpad(&s.p.map(p_short).unwrap_or("—".into()), 8),
-                lpad(&opt(s.tau2), 9)
+                lpad(&s.p.map(fmt::p_cell).unwrap_or("—".into()), 8),
+                lpad(&fmt::opt_num(s.tau2), 9)
             );
         }
         o.push_str(&wrap(

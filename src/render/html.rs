@@ -9,10 +9,10 @@
 //! Content-Security-Policy that allows no scripts and no fetches, so even a
 //! mistake in escaping could not run anything or reach the network.
 
-use super::{format_num as num, format_p, format_percent};
 use crate::plan::report::PlanReport;
 use crate::render::figure::PageFigure;
 use crate::result::{AtValue, Estimate, FitReport};
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
 /// Where a result came from, for the reproducibility block.
@@ -224,19 +224,6 @@ fn labelled_svg(f: &PageFigure, id: &str) -> String {
     }
 }
 
-fn interval(lo: f64, hi: f64) -> String {
-    format!("[{}, {}]", num(lo), num(hi))
-}
-
-fn level_pct(level: f64) -> String {
-    let pct = 100.0 * level;
-    if (pct - pct.round()).abs() < 1e-9 {
-        format!("{pct:.0}%")
-    } else {
-        format!("{pct}%")
-    }
-}
-
 fn words_and(items: &[String]) -> String {
     match items.len() {
         0 => String::new(),
@@ -246,28 +233,9 @@ fn words_and(items: &[String]) -> String {
     }
 }
 
-/// Degrees of freedom: whole numbers without decimals.
-fn df_text(x: f64) -> String {
-    if x.fract() == 0.0 && x.abs() < 1e15 {
-        format!("{x:.0}")
-    } else {
-        format!("{x:.2}")
-    }
-}
-
-/// A moderator value as the user would write it: whole numbers without
-/// decimals, others as in the tables.
-fn value_text(x: f64) -> String {
-    if x.fract() == 0.0 && x.abs() < 1e15 {
-        format!("{x:.0}")
-    } else {
-        num(x)
-    }
-}
-
 fn at_text(v: &AtValue) -> String {
     match v {
-        AtValue::Number(x) => value_text(*x),
+        AtValue::Number(x) => fmt::value(*x),
         AtValue::Level(l) => l.clone(),
     }
 }
@@ -281,16 +249,16 @@ fn estimate_rows(
     rows.push(vec![
         name.to_string(),
         num(e.estimate),
-        interval(e.ci_low, e.ci_high),
-        interval(e.pi_low, e.pi_high),
+        fmt::interval(e.ci_low, e.ci_high),
+        fmt::interval(e.pi_low, e.pi_high),
         num(e.se),
     ]);
     if let (Some(r), Some(rn)) = (&e.reading, reading_name) {
         rows.push(vec![
             format!("{name}, as {rn}"),
             num(r.estimate),
-            interval(r.ci_low, r.ci_high),
-            interval(r.pi_low, r.pi_high),
+            fmt::interval(r.ci_low, r.ci_high),
+            fmt::interval(r.pi_low, r.pi_high),
             "—".into(),
         ]);
     }
@@ -309,7 +277,7 @@ pub fn fit_page(
         .iter()
         .map(|m| m.name.clone())
         .collect();
-    let lv = level_pct(report.model.level);
+    let lv = fmt::level_pct(report.model.level);
     let title = if mods.is_empty() {
         format!("Pooled effect across {} studies", report.k)
     } else {
@@ -358,8 +326,8 @@ pub fn fit_page(
                 "The average effect is {} ({lv} CI {}); a new study's true effect is expected in {} \
                  ({lv} prediction interval).",
                 num(a.estimate),
-                interval(a.ci_low, a.ci_high),
-                interval(a.pi_low, a.pi_high)
+                fmt::interval(a.ci_low, a.ci_high),
+                fmt::interval(a.pi_low, a.pi_high)
             )
         }
     };
@@ -469,26 +437,26 @@ pub fn fit_page(
             .to_string(),
             num(t.estimate),
             match (t.ci_low, t.ci_high) {
-                (Some(a), Some(b)) => format!("{lv} CI {}", interval(a, b)),
+                (Some(a), Some(b)) => format!("{lv} CI {}", fmt::interval(a, b)),
                 _ => "—".into(),
             },
         ],
         vec!["τ (between-study SD)".into(), num(t.tau), String::new()],
         vec![
             "I² (share of variation beyond sampling error)".into(),
-            format_percent(h.i2),
+            fmt::percent(h.i2),
             format!("H² = {}", num(h.h2)),
         ],
         vec![
             "Cochran's Q".into(),
             num(h.q),
-            format!("{} df, p {}", df_text(h.df), format_p(h.p)),
+            format!("{} df, p {}", fmt::df(h.df), fmt::p(h.p)),
         ],
     ];
     if let Some(r2) = h.r2 {
         het.push(vec![
             "τ² explained by the moderators (R²)".into(),
-            format_percent(r2),
+            fmt::percent(r2),
             format!("τ² without them: {}", num(h.tau2_without_moderators)),
         ]);
     }
@@ -501,15 +469,15 @@ pub fn fit_page(
             let stat = match mt.df2 {
                 Some(d2) => format!(
                     "F({}, {}) = {:.2}",
-                    df_text(mt.df1),
-                    df_text(d2),
+                    fmt::df(mt.df1),
+                    fmt::df(d2),
                     mt.statistic
                 ),
-                None => format!("χ²({}) = {:.2}", df_text(mt.df1), mt.statistic),
+                None => format!("χ²({}) = {:.2}", fmt::df(mt.df1), mt.statistic),
             };
             page.facts(&[
                 ("Omnibus test of the moderators", stat),
-                ("p", format_p(mt.p).trim_start_matches("= ").to_string()),
+                ("p", fmt::p(mt.p).trim_start_matches("= ").to_string()),
                 (
                     "Answer",
                     if mt.significant {
@@ -553,13 +521,13 @@ pub fn fit_page(
                 c.term.clone(),
                 num(c.estimate),
                 num(c.se),
-                interval(c.ci_low, c.ci_high),
+                fmt::interval(c.ci_low, c.ci_high),
                 format!("{:.2}", c.statistic),
-                format_p(c.p).trim_start_matches("= ").to_string(),
+                fmt::p(c.p).trim_start_matches("= ").to_string(),
             ];
             if let Some(q) = &c.ratio {
                 r.push(num(q.estimate));
-                r.push(interval(q.ci_low, q.ci_high));
+                r.push(fmt::interval(q.ci_low, q.ci_high));
             } else if ratio {
                 r.push("—".into());
                 r.push("—".into());
@@ -571,7 +539,7 @@ pub fn fit_page(
         .coefficients
         .first()
         .and_then(|c| c.df)
-        .map(|d| format!(" (t tests on {} degrees of freedom)", df_text(d)))
+        .map(|d| format!(" (t tests on {} degrees of freedom)", fmt::df(d)))
         .unwrap_or_default();
     page.table(
         &format!("Coefficients on the analysis scale{df_note}"),
@@ -598,8 +566,8 @@ pub fn fit_page(
                 vec![
                     at,
                     num(p.estimate),
-                    interval(p.ci_low, p.ci_high),
-                    interval(p.pi_low, p.pi_high),
+                    fmt::interval(p.ci_low, p.ci_high),
+                    fmt::interval(p.pi_low, p.pi_high),
                     num(p.se),
                 ]
             })
@@ -620,10 +588,12 @@ pub fn fit_page(
                     l.level.clone(),
                     l.k.to_string(),
                     num(l.predicted.estimate),
-                    interval(l.predicted.ci_low, l.predicted.ci_high),
+                    fmt::interval(l.predicted.ci_low, l.predicted.ci_high),
                     l.pooled
                         .as_ref()
-                        .map(|e| format!("{} {}", num(e.estimate), interval(e.ci_low, e.ci_high)))
+                        .map(|e| {
+                            format!("{} {}", num(e.estimate), fmt::interval(e.ci_low, e.ci_high))
+                        })
                         .unwrap_or_else(|| "—".into()),
                 ]
             })
@@ -687,7 +657,7 @@ pub fn fit_page(
                 s.line.to_string(),
                 num(s.effect),
                 num(s.variance),
-                interval(s.ci_low, s.ci_high),
+                fmt::interval(s.ci_low, s.ci_high),
                 format!("{:.1}%", s.weight),
                 s.std_residual
                     .map(|z| format!("{z:.2}"))
@@ -712,9 +682,9 @@ pub fn fit_page(
 fn contrast_cells(t: &crate::result::ContrastTest) -> Vec<String> {
     vec![
         num(t.estimate),
-        interval(t.ci_low, t.ci_high),
+        fmt::interval(t.ci_low, t.ci_high),
         format!("{:.2}", t.statistic),
-        format_p(t.p).trim_start_matches("= ").to_string(),
+        fmt::p(t.p).trim_start_matches("= ").to_string(),
     ]
 }
 
@@ -756,10 +726,10 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                     vec![
                         at,
                         num(c.estimate),
-                        interval(c.ci_low, c.ci_high),
-                        interval(c.pi_low, c.pi_high),
+                        fmt::interval(c.ci_low, c.ci_high),
+                        fmt::interval(c.pi_low, c.pi_high),
                         format!("{:.2}", c.statistic),
-                        format_p(c.p).trim_start_matches("= ").to_string(),
+                        fmt::p(c.p).trim_start_matches("= ").to_string(),
                     ]
                 })
                 .collect();
@@ -815,7 +785,7 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
             .map(|c| {
                 let mut r = vec![format!("{}: {} − {}", c.moderator, c.level, c.minus)];
                 r.extend(contrast_cells(&c.test));
-                r.push(format_p(c.p_holm).trim_start_matches("= ").to_string());
+                r.push(fmt::p(c.p_holm).trim_start_matches("= ").to_string());
                 r
             })
             .collect();
@@ -849,8 +819,8 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                     r.significant.clone(),
                     format!(
                         "{} to {}",
-                        value_text(r.observed_min),
-                        value_text(r.observed_max)
+                        fmt::value(r.observed_min),
+                        fmt::value(r.observed_max)
                     ),
                     r.observed_region.clone(),
                 ]
@@ -888,7 +858,7 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 format!(
                     "{} {}",
                     num(pc.pooled.estimate),
-                    interval(pc.pooled.ci_low, pc.pooled.ci_high)
+                    fmt::interval(pc.pooled.ci_low, pc.pooled.ci_high)
                 ),
                 format!(
                     "{} to {} (probed values)",
@@ -900,7 +870,7 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 "τ²".to_string(),
                 num(pc.tau2_without),
                 match pc.r2 {
-                    Some(r2) => format!("{} (R² = {})", num(pc.tau2_with), format_percent(r2)),
+                    Some(r2) => format!("{} (R² = {})", num(pc.tau2_with), fmt::percent(r2)),
                     None => num(pc.tau2_with),
                 },
             ],
@@ -939,15 +909,6 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
             &rows,
         );
     }
-}
-
-fn opt_num(x: Option<f64>) -> String {
-    x.map(num).unwrap_or_else(|| "—".into())
-}
-
-fn opt_p(x: Option<f64>) -> String {
-    x.map(|p| format_p(p).trim_start_matches("= ").to_string())
-        .unwrap_or_else(|| "—".into())
 }
 
 /// Studies listed one by one in the robustness tables at most; above this,
@@ -1008,7 +969,7 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
             ("Arrangements", how),
             (
                 "Permutation p of the moderator test",
-                format_p(perm.moderator_p)
+                fmt::p(perm.moderator_p)
                     .trim_start_matches("= ")
                     .to_string(),
             ),
@@ -1021,8 +982,8 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
             .map(|((t, pp), c)| {
                 vec![
                     t.clone(),
-                    opt_p(*pp),
-                    format_p(c.p).trim_start_matches("= ").to_string(),
+                    fmt::opt_p_cell(*pp),
+                    fmt::p(c.p).trim_start_matches("= ").to_string(),
                 ]
             })
             .collect();
@@ -1068,9 +1029,9 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                 } else {
                     r.extend(l.coefficients.iter().map(|c| num(*c)));
                 }
-                r.push(opt_num(l.tau2));
-                r.push(l.i2.map(format_percent).unwrap_or_else(|| "—".into()));
-                r.push(opt_p(l.moderator_p.or(l.average_p)));
+                r.push(fmt::opt_num(l.tau2));
+                r.push(l.i2.map(fmt::percent).unwrap_or_else(|| "—".into()));
+                r.push(fmt::opt_p_cell(l.moderator_p.or(l.average_p)));
                 r.push(match (l.sign_changed, l.significance_changed) {
                     (true, true) => "sign, significance".into(),
                     (true, false) => "sign".into(),
@@ -1109,13 +1070,13 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
             .map(|i| {
                 vec![
                     i.study.clone(),
-                    opt_num(i.rstudent),
-                    opt_num(i.dffits),
-                    opt_num(i.cooks_distance),
-                    opt_num(i.cov_ratio),
+                    fmt::opt_num(i.rstudent),
+                    fmt::opt_num(i.dffits),
+                    fmt::opt_num(i.cooks_distance),
+                    fmt::opt_num(i.cov_ratio),
                     num(i.hat),
-                    opt_num(i.tau2_deleted),
-                    opt_num(i.q_deleted),
+                    fmt::opt_num(i.tau2_deleted),
+                    fmt::opt_num(i.q_deleted),
                     if i.exceeded.is_empty() {
                         if i.influential {
                             "yes".into()
@@ -1160,15 +1121,15 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                     "slope on the standard error {} (SE {}), t({}) = {:.2}, p {}{}",
                     num(a.slope),
                     num(a.se),
-                    df_text(a.df),
+                    fmt::df(a.df),
                     a.statistic,
-                    format_p(a.p),
+                    fmt::p(a.p),
                     if a.with_moderators { ", with the moderators in the model" } else { "" }
                 ),
             ),
             (
                 "Rank correlation test",
-                format!("Kendall's τ = {}, p {}", num(r.tau), format_p(r.p)),
+                format!("Kendall's τ = {}, p {}", num(r.tau), fmt::p(r.p)),
             ),
             (
                 "Trim-and-fill",
@@ -1178,7 +1139,7 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                     if t.filled == 1 { "study" } else { "studies" },
                     t.side,
                     num(t.estimate),
-                    interval(t.ci_low, t.ci_high),
+                    fmt::interval(t.ci_low, t.ci_high),
                     num(t.estimate_observed)
                 ),
             ),
@@ -1194,13 +1155,13 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                     format!("+ {}", c.study),
                     at_text(&c.value),
                     c.k.to_string(),
-                    opt_num(c.estimate),
+                    fmt::opt_num(c.estimate),
                     match (c.ci_low, c.ci_high) {
-                        (Some(a), Some(b)) => interval(a, b),
+                        (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },
-                    opt_num(c.tau2),
-                    c.i2.map(format_percent).unwrap_or_else(|| "—".into()),
+                    fmt::opt_num(c.tau2),
+                    c.i2.map(fmt::percent).unwrap_or_else(|| "—".into()),
                 ]
             })
             .collect();
@@ -1229,7 +1190,7 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
 /// moderators), τ², and the coefficients.
 fn stage_block(page: &mut Page, title: &str, fit: &FitReport, intercept_label: Option<&str>) {
     page.h3(title);
-    let lv = level_pct(fit.model.level);
+    let lv = fmt::level_pct(fit.model.level);
     if let Some(t) = &fit.moderator_test {
         let _ = writeln!(
             page.out,
@@ -1257,8 +1218,8 @@ fn stage_block(page: &mut Page, title: &str, fit: &FitReport, intercept_label: O
                 },
                 num(c.estimate),
                 num(c.se),
-                interval(c.ci_low, c.ci_high),
-                format_p(c.p).trim_start_matches("= ").to_string(),
+                fmt::interval(c.ci_low, c.ci_high),
+                fmt::p(c.p).trim_start_matches("= ").to_string(),
             ]
         })
         .collect();
@@ -1334,9 +1295,9 @@ pub fn sites_page(
                 format!(
                     "{} ({} CI {}, p {})",
                     num(c.estimate),
-                    level_pct(f.model.level),
-                    interval(c.ci_low, c.ci_high),
-                    format_p(c.p)
+                    fmt::level_pct(f.model.level),
+                    fmt::interval(c.ci_low, c.ci_high),
+                    fmt::p(c.p)
                 )
             })
         };
@@ -1521,9 +1482,9 @@ pub fn sites_page(
                 num(e.mean_x),
             ];
             if with_w {
-                r.push(opt_num(e.interaction));
-                r.push(opt_num(e.interaction_se));
-                r.push(opt_num(e.mean_w));
+                r.push(fmt::opt_num(e.interaction));
+                r.push(fmt::opt_num(e.interaction_se));
+                r.push(fmt::opt_num(e.mean_w));
             }
             r
         })
@@ -1566,10 +1527,10 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
                     v.level.clone(),
                     num(v.estimate),
                     match (v.ci_low, v.ci_high) {
-                        (Some(a), Some(b)) => interval(a, b),
+                        (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },
-                    format_percent(v.i2),
+                    fmt::percent(v.i2),
                 ]
             })
             .collect();
@@ -1588,7 +1549,7 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
                     vec![
                         format!("{} = 0", t.component),
                         format!("{:.2}", t.statistic),
-                        format_p(t.p).trim_start_matches("= ").to_string(),
+                        fmt::p(t.p).trim_start_matches("= ").to_string(),
                     ]
                 })
                 .collect();
@@ -1629,11 +1590,11 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
                     c.term.clone(),
                     num(c.estimate),
                     num(c.se),
-                    opt_num(c.robust_se),
+                    fmt::opt_num(c.robust_se),
                     c.robust_df
                         .map(|d| format!("{d:.1}"))
                         .unwrap_or_else(|| "—".into()),
-                    opt_p(c.robust_p),
+                    fmt::opt_p_cell(c.robust_p),
                 ]
             })
             .collect();
@@ -1717,18 +1678,18 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
     let mut answer = format!(
         "Power with {} sites: {} ({}).",
         report.k,
-        format_percent(report.power),
+        fmt::percent(report.power),
         report.power_method
     );
     if let Some(tp) = report.target_power {
         match report.k_needed {
             Some(k) => answer.push_str(&format!(
                 " The target power {} needs about {k} sites.",
-                format_percent(tp)
+                fmt::percent(tp)
             )),
             None if report.n_needed.is_none() => answer.push_str(&format!(
                 " The target power {} is not reached with up to {} sites.",
-                format_percent(tp),
+                fmt::percent(tp),
                 report.max_k
             )),
             None => {}
@@ -1773,12 +1734,12 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
         ("Noncentrality λ", num(report.noncentrality)),
     ];
     if let Some(n) = report.n {
-        facts.insert(2, ("Participants per site", value_text(n)));
+        facts.insert(2, ("Participants per site", fmt::value(n)));
     }
     if let Some(p) = report.power_analytic {
         facts.push((
             "Analytic power",
-            format!("{} ({})", format_percent(p), report.power_analytic_method),
+            format!("{} ({})", fmt::percent(p), report.power_analytic_method),
         ));
     }
     if let Some(s) = &report.simulation {
@@ -1786,8 +1747,8 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
             "Simulated power",
             format!(
                 "{} ± {} (Monte-Carlo SE), {} simulations, seed {}",
-                format_percent(s.power),
-                format_percent(s.monte_carlo_se),
+                fmt::percent(s.power),
+                fmt::percent(s.monte_carlo_se),
                 s.simulations,
                 s.seed
             ),
@@ -1798,7 +1759,7 @@ pub fn plan_page(report: &PlanReport, figure: Option<&PageFigure>, prov: &Proven
     let rows: Vec<Vec<String>> = report
         .table
         .iter()
-        .map(|r| vec![r.k.to_string(), format_percent(r.power)])
+        .map(|r| vec![r.k.to_string(), fmt::percent(r.power)])
         .collect();
     page.p(&format!("Power from the {}.", report.table_method));
     page.table("", &["sites", "power"], &rows);

@@ -1,13 +1,9 @@
 //! The terminal sections of `--probe`, `--compare-levels`, `--regions` and
 //! the artifact corrections (part of the text report; pure function of the result).
 
-use super::{format_num as num, format_p};
 use crate::result::{AtValue, ContrastTest, FitReport};
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
-
-fn interval(lo: f64, hi: f64) -> String {
-    format!("[{}, {}]", num(lo), num(hi))
-}
 
 fn pad(s: &str, w: usize) -> String {
     let n = s.chars().count();
@@ -20,7 +16,7 @@ fn pad(s: &str, w: usize) -> String {
 
 fn at(v: &AtValue) -> String {
     match v {
-        AtValue::Number(x) => crate::model::probe::short(*x),
+        AtValue::Number(x) => crate::support::format::short(*x),
         AtValue::Level(l) => l.clone(),
     }
 }
@@ -30,7 +26,7 @@ fn test_text(t: &ContrastTest) -> String {
         Some(df) => format!("t({df}) = {:.2}", t.statistic),
         None => format!("z = {:.2}", t.statistic),
     };
-    format!("{stat}, p {}", format_p(t.p))
+    format!("{stat}, p {}", fmt::p(t.p))
 }
 
 /// The interpretation and artifact sections (empty when none was asked for).
@@ -112,9 +108,9 @@ pub fn render(r: &FitReport) -> String {
                 pad(&at(&e.at), 14),
                 pad(&e.point, 13),
                 pad(&num(e.estimate), 10),
-                pad(&interval(e.ci_low, e.ci_high), 20),
-                pad(&interval(e.pi_low, e.pi_high), 20),
-                format_p(e.p)
+                pad(&fmt::interval(e.ci_low, e.ci_high), 20),
+                pad(&fmt::interval(e.pi_low, e.pi_high), 20),
+                fmt::p(e.p)
             );
             if let (Some(rd), Some(name)) = (&e.reading, reading) {
                 let _ = writeln!(
@@ -122,8 +118,8 @@ pub fn render(r: &FitReport) -> String {
                     "    {}as {name}: {}  CI {}  new study {}",
                     pad("", 27),
                     num(rd.estimate),
-                    interval(rd.ci_low, rd.ci_high),
-                    interval(rd.pi_low, rd.pi_high)
+                    fmt::interval(rd.ci_low, rd.ci_high),
+                    fmt::interval(rd.pi_low, rd.pi_high)
                 );
             }
         }
@@ -148,7 +144,7 @@ pub fn render(r: &FitReport) -> String {
                 at(&s.at),
                 s.point,
                 num(s.test.estimate),
-                interval(s.test.ci_low, s.test.ci_high),
+                fmt::interval(s.test.ci_low, s.test.ci_high),
                 num(s.test.se),
                 test_text(&s.test)
             );
@@ -174,9 +170,9 @@ pub fn render(r: &FitReport) -> String {
                 c.level,
                 c.minus,
                 num(c.test.estimate),
-                interval(c.test.ci_low, c.test.ci_high),
+                fmt::interval(c.test.ci_low, c.test.ci_high),
                 test_text(&c.test),
-                format_p(c.p_holm)
+                fmt::p(c.p_holm)
             );
         }
         if let Some(c) = it.level_contrasts.first() {
@@ -214,8 +210,8 @@ pub fn render(r: &FitReport) -> String {
                 },
                 g.moderator,
                 g.significant,
-                crate::model::probe::short(g.observed_min),
-                crate::model::probe::short(g.observed_max),
+                crate::support::format::short(g.observed_min),
+                crate::support::format::short(g.observed_max),
                 g.observed_region,
                 if g.observed_bounds.is_empty() {
                     String::new()
@@ -254,7 +250,7 @@ pub fn render(r: &FitReport) -> String {
                 &format!(
                     "{} {}",
                     num(p.pooled.estimate),
-                    interval(p.pooled.ci_low, p.pooled.ci_high)
+                    fmt::interval(p.pooled.ci_low, p.pooled.ci_high)
                 ),
                 32
             ),

@@ -2,9 +2,9 @@
 //! their share of the total variance, the likelihood-ratio tests, the level
 //! of each moderator, and the cluster-robust coefficients.
 
-use super::text::{interval, lpad, pad, wrap};
-use super::{format_num as num, format_p, format_percent};
+use super::text::{lpad, pad, wrap};
 use crate::result::FitReport;
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write;
 
 /// The section (empty without `--cluster`).
@@ -33,7 +33,7 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
                 "within clusters"
             };
             let ci = match (v.ci_low, v.ci_high) {
-                (Some(a), Some(b)) => interval(a, b),
+                (Some(a), Some(b)) => fmt::interval(a, b),
                 _ => "—".into(),
             };
             let _ = writeln!(
@@ -42,7 +42,7 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
                 pad(label, 22),
                 lpad(&num(v.estimate), 9),
                 pad(&ci, 22),
-                format_percent(v.i2)
+                fmt::percent(v.i2)
             );
         }
         for t in &c.lr_tests {
@@ -55,7 +55,7 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
                 &format!(
                     "LR test of {what}: {:.2}, p {} (50:50 mixture of χ²₀ and χ²₁)",
                     t.statistic,
-                    format_p(t.p)
+                    fmt::p(t.p)
                 ),
                 "  ",
                 70,
@@ -99,7 +99,7 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
                     lpad(&num(k.estimate), 10),
                     lpad(&num(se), 10),
                     lpad(&format!("{df:.1}"), 6),
-                    format_p(p).trim_start_matches("= ")
+                    fmt::p(p).trim_start_matches("= ")
                 );
             }
         }
@@ -110,7 +110,7 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
                     "  moderator test ({m}): F({}, {d2:.1}) = {:.2}, p {}",
                     t.df1,
                     t.statistic,
-                    format_p(t.p)
+                    fmt::p(t.p)
                 );
             }
         }

@@ -1,8 +1,8 @@
 //! The terminal summary of `pondus sites`: a pure function of the
 //! [`SitesReport`](crate::result::SitesReport).
 
-use super::{format_num as num, format_p};
 use crate::result::{Coefficient, FitReport, SitesReport};
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
 /// Sites listed one by one at most; the effects file has them all.
@@ -30,7 +30,7 @@ fn coefficient_line(out: &mut String, label: &str, c: &Coefficient, level: f64) 
         100.0 * level,
         num(c.ci_low),
         num(c.ci_high),
-        format_p(c.p)
+        fmt::p(c.p)
     );
 }
 

@@ -1,7 +1,7 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
-use super::{format_num as num, format_p, format_percent};
 use crate::result::{AtValue, Estimate, FitReport, Reading};
+use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 use std::io::Write;
 
@@ -39,10 +39,6 @@ pub(super) fn clip(s: &str, w: usize) -> String {
     }
 }
 
-pub(super) fn interval(lo: f64, hi: f64) -> String {
-    format!("[{}, {}]", num(lo), num(hi))
-}
-
 pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
     let mut out = String::new();
     let mut line = String::new();
@@ -66,8 +62,8 @@ fn reading_line(r: &Reading, name: &str) -> String {
     format!(
         "as {name}: {}  CI {}  new study {}",
         num(r.estimate),
-        interval(r.ci_low, r.ci_high),
-        interval(r.pi_low, r.pi_high)
+        fmt::interval(r.ci_low, r.ci_high),
+        fmt::interval(r.pi_low, r.pi_high)
     )
 }
 
@@ -76,13 +72,13 @@ fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name:
         out,
         "  {}  ({level_pct} CI {}, SE {})",
         num(e.estimate),
-        interval(e.ci_low, e.ci_high),
+        fmt::interval(e.ci_low, e.ci_high),
         num(e.se)
     );
     let _ = writeln!(
         out,
         "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
-        interval(e.pi_low, e.pi_high)
+        fmt::interval(e.pi_low, e.pi_high)
     );
     if let (Some(r), Some(name)) = (&e.reading, reading_name) {
         let _ = writeln!(out, "  {}", reading_line(r, name));
@@ -190,7 +186,7 @@ pub fn render(r: &FitReport) -> String {
     let cw = r
         .coefficients
         .iter()
-        .map(|c| width(&interval(c.ci_low, c.ci_high)))
+        .map(|c| width(&fmt::interval(c.ci_low, c.ci_high)))
         .max()
         .unwrap_or(10)
         .max(width(&format!("{level_pct} CI")));
@@ -214,12 +210,12 @@ pub fn render(r: &FitReport) -> String {
             pad(&clip(&c.term, tw), tw),
             lpad(&num(c.estimate), 10),
             lpad(&num(c.se), 9),
-            pad(&interval(c.ci_low, c.ci_high), cw),
+            pad(&fmt::interval(c.ci_low, c.ci_high), cw),
             lpad(&format!("{:.2}", c.statistic), 7),
-            pad(format_p(c.p).trim_start_matches("= "), 8),
+            pad(fmt::p(c.p).trim_start_matches("= "), 8),
             c.ratio
                 .as_ref()
-                .map(|x| format!("{} {}", num(x.estimate), interval(x.ci_low, x.ci_high)))
+                .map(|x| format!("{} {}", num(x.estimate), fmt::interval(x.ci_low, x.ci_high)))
                 .unwrap_or_default()
         );
     }
@@ -252,7 +248,7 @@ pub fn render(r: &FitReport) -> String {
         }
     );
     let ci = match (r.tau2.ci_low, r.tau2.ci_high) {
-        (Some(a), Some(b)) => format!("  ({level_pct} CI {})", interval(a, b)),
+        (Some(a), Some(b)) => format!("  ({level_pct} CI {})", fmt::interval(a, b)),
         _ if r.variance_components.is_some() => "  (between + within clusters, below)".into(),
         _ => "  (fixed by the common-effect model)".into(),
     };
@@ -265,7 +261,7 @@ pub fn render(r: &FitReport) -> String {
     let _ = writeln!(
         o,
         "  I², beyond sampling error   {}   (H² = {:.2})",
-        format_percent(h.i2),
+        fmt::percent(h.i2),
         h.h2
     );
     let _ = writeln!(
@@ -273,7 +269,7 @@ pub fn render(r: &FitReport) -> String {
         "  Cochran's Q                 {:.2} on {} df, p {}",
         h.q,
         h.df,
-        format_p(h.p)
+        fmt::p(h.p)
     );
     if has_mods {
         match h.r2 {
@@ -281,7 +277,7 @@ pub fn render(r: &FitReport) -> String {
                 let _ = writeln!(
                     o,
                     "  explained by moderators     {}   (τ² without them: {})",
-                    format_percent(r2),
+                    fmt::percent(r2),
                     num(h.tau2_without_moderators)
                 );
             }
@@ -321,9 +317,9 @@ pub fn render(r: &FitReport) -> String {
                 o,
                 "    {}  ({level_pct} CI {}, SE {}); new study {}",
                 num(p.estimate),
-                interval(p.ci_low, p.ci_high),
+                fmt::interval(p.ci_low, p.ci_high),
                 num(p.se),
-                interval(p.pi_low, p.pi_high)
+                fmt::interval(p.pi_low, p.pi_high)
             );
             if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
                 let _ = writeln!(o, "    {}", reading_line(rd, name));

@@ -1,5 +1,6 @@
 //! Small shared pieces below every other layer: hashing of inputs and the
 //! seeded random-number generator of the simulations and permutations.
 
+pub mod format;
 pub mod hash;
 pub mod rng;

@@ -6,13 +6,12 @@
 
 use super::forest::{effect_axis_title, wrap};
 use super::palette::*;
-use super::{
-    decimals_for, level_pct, model_line, num, size, Align, Axis, Frame, PlotOptions, Scene,
-};
+use super::{decimals_for, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::model::design::ModeratorKind;
 use crate::result::{AtValue, FitReport};
+use crate::support::format as fmt;
 
 /// Builds the bubble plot.
 ///
@@ -52,7 +51,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let height = f64::from(opts.height.unwrap_or(620));
     let name = &mods[j].name;
     let studies = &report.studies;
-    let lv = level_pct(report);
+    let lv = fmt::level_pct(report.model.level);
 
     // Caption first: its height fixes the plot area.
     let mut caption = Vec::new();
@@ -79,18 +78,18 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                 let ratio = match &c.ratio {
                     Some(r) => format!(
                         " (the ratio is multiplied by {} [{}, {}])",
-                        num(r.estimate, d.max(3)),
-                        num(r.ci_low, d.max(3)),
-                        num(r.ci_high, d.max(3))
+                        fmt::plot_num(r.estimate, d.max(3)),
+                        fmt::plot_num(r.ci_low, d.max(3)),
+                        fmt::plot_num(r.ci_high, d.max(3))
                     ),
                     None => String::new(),
                 };
                 caption.push(format!(
                     "Change in the analysed effect per unit of {name}: {} [{}, {}]{ratio}, p {}.",
-                    num(c.estimate, d),
-                    num(c.ci_low, d),
-                    num(c.ci_high, d),
-                    crate::render::format_p(c.p)
+                    fmt::plot_num(c.estimate, d),
+                    fmt::plot_num(c.ci_low, d),
+                    fmt::plot_num(c.ci_high, d),
+                    crate::support::format::p(c.p)
                 ));
             }
         }

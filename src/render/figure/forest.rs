@@ -9,13 +9,13 @@
 use super::palette::*;
 use super::scene::{fit_text, text_width};
 use super::{
-    decimals_for, level_pct, measure_name, model_line, num, size, Align, Axis, PlotOptions, Scene,
-    SortKey,
+    decimals_for, measure_name, model_line, size, Align, Axis, PlotOptions, Scene, SortKey,
 };
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::model::design::ModeratorKind;
 use crate::result::{AtValue, Estimate, FitReport, LevelSummary};
+use crate::support::format as fmt;
 
 /// The most studies a forest plot draws (one row each).
 pub const MAX_STUDIES: usize = 20_000;
@@ -250,9 +250,9 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let ci_text = |e: f64, l: f64, h: f64| {
         format!(
             "{} [{}, {}]",
-            num(show(e), dec),
-            num(show(l), dec),
-            num(show(h), dec)
+            fmt::plot_num(show(e), dec),
+            fmt::plot_num(show(l), dec),
+            fmt::plot_num(show(h), dec)
         )
     };
     let margin = 18.0;
@@ -262,7 +262,11 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         .map(|s| text_width(&ci_text(s.effect, s.ci_low, s.ci_high), fs_max))
         .fold(
             text_width(
-                &format!("{} [{} CI]", measure_name(report), level_pct(report)),
+                &format!(
+                    "{} [{} CI]",
+                    measure_name(report),
+                    fmt::level_pct(report.model.level)
+                ),
                 fs_max,
             ),
             f64::max,
@@ -282,7 +286,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     .iter()
                     .map(|s| match &s.moderators[j] {
                         AtValue::Number(x) => {
-                            let t = num(*x, 3);
+                            let t = fmt::plot_num(*x, 3);
                             if t.contains('.') {
                                 t.trim_end_matches('0').trim_end_matches('.').to_string()
                             } else {
@@ -317,7 +321,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let x_of = |v: f64| px0 + (v - axis.lo) / (axis.hi - axis.lo) * (px1 - px0);
 
     // Caption (wrapped to the width), which fixes the space at the bottom.
-    let lv = level_pct(report);
+    let lv = fmt::level_pct(report.model.level);
     let pooled_name = if report.model.tau2_method == "none" {
         "Common-effect average"
     } else {
@@ -647,8 +651,8 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     (width - margin - weight_w - 10.0, y),
                     format!(
                         "[{}, {}]",
-                        num(show(avg.pi_low), dec),
-                        num(show(avg.pi_high), dec)
+                        fmt::plot_num(show(avg.pi_low), dec),
+                        fmt::plot_num(show(avg.pi_high), dec)
                     ),
                     label_size,
                     INK,

@@ -5,10 +5,11 @@
 
 use super::forest::wrap;
 use super::palette::*;
-use super::{level_pct, measure_name, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use super::{measure_name, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::Result;
 use crate::result::FitReport;
+use crate::support::format as fmt;
 use plotters::style::RGBColor;
 
 /// The contour levels (two-sided p) and their fills, lightest first.
@@ -29,7 +30,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let width = f64::from(opts.width.unwrap_or(820));
     let height = f64::from(opts.height.unwrap_or(640));
     let studies = &report.studies;
-    let lv = level_pct(report);
+    let lv = fmt::level_pct(report.model.level);
     let z = crate::dist::normal_quantile(1.0 - (1.0 - report.model.level) / 2.0);
     let centre = if residuals {
         0.0

@@ -18,6 +18,7 @@ pub use scene::{Align, Scene};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::FitReport;
+use crate::support::format as fmt;
 use std::path::Path;
 
 /// The bundled font (DejaVu Sans; licence in `assets/fonts/LICENSE-DejaVu.txt`).
@@ -285,22 +286,6 @@ pub(crate) mod size {
     pub const SMALL: f64 = 12.5;
 }
 
-/// A number for a plot: `decimals` places, with a true minus sign.
-pub(crate) fn num(x: f64, decimals: usize) -> String {
-    let s = format!("{x:.decimals$}");
-    let zero = s
-        .trim_start_matches('-')
-        .chars()
-        .all(|c| c == '0' || c == '.');
-    if zero {
-        s.trim_start_matches('-').to_string()
-    } else if let Some(rest) = s.strip_prefix('-') {
-        format!("\u{2212}{rest}")
-    } else {
-        s
-    }
-}
-
 /// Decimals that show values spread over `span` with about three significant digits.
 pub(crate) fn decimals_for(span: f64) -> usize {
     if !(span.is_finite() && span > 0.0) {
@@ -404,7 +389,7 @@ fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
     (first..=last)
         .map(|i| {
             let x = i as f64 * step;
-            (x, num(x, decimals))
+            (x, fmt::plot_num(x, decimals))
         })
         .collect()
 }
@@ -584,7 +569,7 @@ pub(crate) fn model_line(report: &FitReport) -> String {
         "none" => "common-effect model (τ² = 0)".to_string(),
         m => format!(
             "τ² = {} ({})",
-            num(
+            fmt::plot_num(
                 report.tau2.estimate,
                 decimals_for(report.tau2.estimate).max(3)
             ),
@@ -614,25 +599,15 @@ pub(crate) fn model_line(report: &FitReport) -> String {
     line
 }
 
-/// The confidence level as a percentage, e.g. "95%".
-pub(crate) fn level_pct(report: &FitReport) -> String {
-    let p = 100.0 * report.model.level;
-    if (p - p.round()).abs() < 1e-9 {
-        format!("{p:.0}%")
-    } else {
-        format!("{p}%")
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
 
     #[test]
     fn numbers_use_a_true_minus() {
-        assert_eq!(num(-0.25, 2), "\u{2212}0.25");
-        assert_eq!(num(-0.001, 2), "0.00");
-        assert_eq!(num(1.5, 1), "1.5");
+        assert_eq!(fmt::plot_num(-0.25, 2), "\u{2212}0.25");
+        assert_eq!(fmt::plot_num(-0.001, 2), "0.00");
+        assert_eq!(fmt::plot_num(1.5, 1), "1.5");
     }
 
     #[test]

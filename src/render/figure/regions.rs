@@ -26,8 +26,8 @@ pub(crate) fn caption(report: &FitReport, name: &str, level_pct: &str) -> Option
         .map(|[a, b]| {
             format!(
                 "{} to {}",
-                crate::model::probe::short(*a),
-                crate::model::probe::short(*b)
+                crate::support::format::short(*a),
+                crate::support::format::short(*b)
             )
         })
         .collect();
@@ -68,7 +68,7 @@ pub(crate) fn shade(sc: &mut Scene, f: &Frame, report: &FitReport, name: &str) {
         sc.dashed(vec![(x, f.y0), (x, f.y1)], GROUP, 2, (2.0, 3.0));
         sc.text(
             (x, f.y0 - 6.0),
-            crate::model::probe::short(*b),
+            crate::support::format::short(*b),
             size::SMALL,
             MUTED,
             Align::Center,
