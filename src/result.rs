@@ -1,6 +1,8 @@
 //! The public result of `pondus fit`: plain structs that every renderer and
 //! plot reads. Their JSON form (field docs below) is the stable schema.
 
+pub mod plan;
+
 use crate::effect::ReadingScale;
 use crate::model::design::Moderator;
 use serde::Serialize;

@@ -11,13 +11,10 @@ use pondus::input::Source;
 use pondus::model::design::ModeratorSpec;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
-use pondus::plan::{
-    self,
-    report::{PlanRequest, SolveFor},
-    ModeratorDesign, Plan, PlanMeasure, PlanTest,
-};
+use pondus::plan::{self, ModeratorDesign, Plan, PlanMeasure, PlanRequest, SolveFor};
 use pondus::render;
 use pondus::render::figure;
+use pondus::result::plan::PlanTest;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
 
@@ -1279,13 +1276,13 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
             b.inc(n);
         }
     };
-    let report = plan::report::build_with_progress(req, &tick);
+    let report = plan::build_with_progress(req, &tick);
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
     let report = report?;
     let curve = match &run.curve {
-        Some((t, f)) => Some((t, plan::report::curve_plot(&report, *f)?)),
+        Some((t, f)) => Some((t, figure::power::plot(&report, *f)?)),
         None => None,
     };
     if let Some(t) = &run.json {
@@ -1296,7 +1293,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
     }
     let page = match &run.report {
         Some(t) => {
-            let figure = plan::report::curve_figure(&report)?;
+            let figure = figure::power::page_figure(&report)?;
             let prov = render::html::Provenance {
                 command: run.invocation.clone(),
                 version: env!("CARGO_PKG_VERSION").to_string(),
@@ -1314,10 +1311,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         outputs::emit(t, page.as_bytes())?;
     }
     if run.text {
-        outputs::emit(
-            &Target::Stdout,
-            plan::report::render_text(&report).as_bytes(),
-        )?;
+        outputs::emit(&Target::Stdout, render::plan::render(&report).as_bytes())?;
     }
     Ok(())
 }

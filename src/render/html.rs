@@ -9,8 +9,8 @@
 //! Content-Security-Policy that allows no scripts and no fetches, so even a
 //! mistake in escaping could not run anything or reach the network.
 
-use crate::plan::report::PlanReport;
 use crate::render::figure::PageFigure;
+use crate::result::plan::{PlanReport, PlanTest};
 use crate::result::{AtValue, Estimate, FitReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -1628,10 +1628,10 @@ fn describe_moderator(m: &crate::model::design::Moderator) -> String {
     }
 }
 
-fn test_words(t: crate::plan::PlanTest) -> &'static str {
+fn test_words(t: PlanTest) -> &'static str {
     match t {
-        crate::plan::PlanTest::Z => "Wald z test",
-        crate::plan::PlanTest::Kh => "Knapp–Hartung t test",
+        PlanTest::Z => "Wald z test",
+        PlanTest::Kh => "Knapp–Hartung t test",
     }
 }
 

@@ -7,6 +7,7 @@ pub mod html;
 pub mod interpret;
 pub mod json;
 pub mod multilevel;
+pub mod plan;
 pub mod sites;
 pub mod table;
 pub mod text;

@@ -10,6 +10,7 @@
 pub mod bubble;
 pub mod forest;
 pub mod funnel;
+pub mod power;
 mod regions;
 pub mod scene;
 
