@@ -19,42 +19,7 @@ pub struct ModeratorSpec {
     pub center: bool,
 }
 
-/// The kind of a moderator, as found in the data.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-#[serde(tag = "type", rename_all = "lowercase")]
-pub enum ModeratorKind {
-    /// A number per study.
-    Numeric {
-        /// Mean over the included studies.
-        mean: f64,
-        /// SD over the included studies (divisor k − 1).
-        sd: f64,
-        /// Smallest included value.
-        min: f64,
-        /// Largest included value.
-        max: f64,
-        /// Whether the mean was subtracted before fitting.
-        centered: bool,
-    },
-    /// A label per study, dummy-coded against a reference level.
-    Categorical {
-        /// Levels in sorted order.
-        levels: Vec<String>,
-        /// Studies per level, in the order of `levels`.
-        counts: Vec<usize>,
-        /// The reference level.
-        reference: String,
-    },
-}
-
-/// A moderator as used in the model.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Moderator {
-    /// Column header.
-    pub name: String,
-    /// Numeric or categorical, with its summary.
-    pub kind: ModeratorKind,
-}
+pub use crate::result::{Moderator, ModeratorKind};
 
 /// The per-row raw values of one moderator (all rows of the table).
 #[derive(Debug, Clone)]

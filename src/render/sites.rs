@@ -1,7 +1,7 @@
 //! The terminal summary of `pondus sites`: a pure function of the
 //! [`SitesReport`](crate::result::SitesReport).
 
-use crate::result::{Coefficient, FitReport, SitesReport};
+use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -25,12 +25,12 @@ fn coefficient_line(out: &mut String, label: &str, c: &Coefficient, level: f64) 
     let _ = writeln!(
         out,
         "  {label}: {}  (SE {}, {:.0}% CI [{}, {}], p {})",
-        num(c.estimate),
-        num(c.se),
+        num(c.contrast.estimate),
+        num(c.contrast.se),
         100.0 * level,
-        num(c.ci_low),
-        num(c.ci_high),
-        fmt::p(c.p)
+        num(c.contrast.ci.ci_low),
+        num(c.contrast.ci.ci_high),
+        fmt::p(c.contrast.test.p)
     );
 }
 
@@ -91,13 +91,13 @@ pub fn render(r: &SitesReport) -> String {
     let _ = writeln!(
         o,
         "  standard errors: {}",
-        if m.se_type == "hc3" {
+        if m.se_type == SeType::Hc3 {
             "HC3 (second pass over the rows)"
         } else {
             "classical OLS"
         }
     );
-    if r.input.kind == "moments" {
+    if r.input.kind == SitesInputKind::Moments {
         let _ = writeln!(
             o,
             "  input: a per-site moments table with {} rows",
