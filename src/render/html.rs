@@ -1626,7 +1626,7 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
     }
 }
 
-fn describe_moderator(m: &crate::model::design::Moderator) -> String {
+fn describe_moderator(m: &crate::result::Moderator) -> String {
     use crate::model::design::ModeratorKind;
     match &m.kind {
         ModeratorKind::Numeric { .. } => "numeric".into(),
