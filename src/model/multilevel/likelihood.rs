@@ -6,8 +6,9 @@ use super::Clusters;
 use crate::dist;
 use crate::error::Result;
 use crate::model::solve::{brent_min, brent_root, nelder_mead, Search};
-use crate::model::tau2::{self, Ending};
+use crate::model::tau2;
 use crate::model::wls::Data;
+use crate::result::Ending;
 use crate::tolerance;
 use nalgebra::{DMatrix, DVector};
 
