@@ -1668,7 +1668,7 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);
     }
     if let Some(t) = &run.out {
-        outputs::emit(t, &sites::effects_bytes(&report))?;
+        outputs::emit(t, &render::sites_effects::bytes(&report))?;
     }
     if let Some(t) = &run.json {
         let mut buf = serde_json::to_vec_pretty(&report)
@@ -1679,7 +1679,7 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {
             SitesInputArg::Rows(Source::File(p)) | SitesInputArg::Moments(p) => {
-                Some(pondus::sites::sha256_file(p)?)
+                Some(pondus::support::hash::sha256_file(p)?)
             }
             SitesInputArg::Rows(Source::Stdin) => None,
         };
@@ -1737,7 +1737,7 @@ impl SqlArgs {
     /// # Errors
     /// [`Error::Usage`] for an unusable name.
     pub fn query(&self) -> Result<String> {
-        pondus::sites::sql::query(&pondus::sites::sql::QuerySpec {
+        pondus::sql::query(&pondus::sql::QuerySpec {
             table: self.table.clone(),
             site: self.site.clone(),
             x: self.x.clone(),

@@ -9,5 +9,6 @@ pub mod json;
 pub mod multilevel;
 pub mod plan;
 pub mod sites;
+pub mod sites_effects;
 pub mod table;
 pub mod text;

@@ -100,7 +100,7 @@ pub struct Components {
     pub between: f64,
     /// σ²_within.
     pub within: f64,
-    /// The maximised (restricted) log-likelihood (core, see [`ll_core`]).
+    /// The maximised (restricted) log-likelihood (core, see `ll_core`).
     pub ll: f64,
     /// Converged inside, or on a boundary.
     pub ending: Ending,
@@ -167,7 +167,7 @@ pub(super) fn upper_scale(data: &Data<'_>) -> f64 {
 /// Nelder–Mead (argmin) on (ln σ²_b, ln σ²_w), restarted once from its
 /// optimum with a smaller simplex; separately, each boundary (σ²_b = 0 and
 /// σ²_w = 0) is profiled by a one-dimensional Brent search on [0, hi]
-/// ([`max_line`]). The largest likelihood wins; an interior optimum that is
+/// (`max_line`). The largest likelihood wins; an interior optimum that is
 /// not better than a boundary by more than rounding counts as the boundary.
 ///
 /// # Errors
