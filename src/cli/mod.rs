@@ -182,6 +182,14 @@ pub fn with_progress<T>(
     out
 }
 
+/// A result as the bytes of its `--json` output.
+///
+/// # Errors
+/// [`Error::Io`] (rendering) when serde cannot represent the value.
+fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
+    pondus::render::json::to_bytes(value).map_err(|e| io_err("JSON", std::io::Error::other(e)))
+}
+
 /// An error of rendering an output in memory.
 fn io_err(what: &str, source: std::io::Error) -> Error {
     Error::Io {

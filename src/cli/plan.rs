@@ -2,7 +2,7 @@
 //! number of sites (or participants per site) it needs, and the power curve.
 
 use super::outputs::{self, Target};
-use super::{invocation, io_err, report_target, with_progress};
+use super::{invocation, json_bytes, report_target, with_progress};
 use clap::{Args, ValueEnum};
 use pondus::error::{Error, Result};
 use pondus::plan::{
@@ -500,10 +500,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         None => None,
     };
     if let Some(t) = &run.json {
-        let mut buf = serde_json::to_vec_pretty(&report)
-            .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
-        buf.push(b'\n');
-        outputs::emit(t, &buf)?;
+        outputs::emit(t, &json_bytes(&report)?)?;
     }
     let page = match &run.report {
         Some(t) => {

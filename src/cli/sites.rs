@@ -3,7 +3,7 @@
 //! second stage, and the effects file for `pondus fit`.
 
 use super::outputs::{self, Target};
-use super::{invocation, io_err, report_target, InferenceArg, Tau2Arg};
+use super::{invocation, json_bytes, report_target, InferenceArg, Tau2Arg};
 use clap::Args;
 use pondus::error::{Error, Result};
 use pondus::input::Source;
@@ -275,10 +275,7 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
         outputs::emit(t, &sites::effects_bytes(&report))?;
     }
     if let Some(t) = &run.json {
-        let mut buf = serde_json::to_vec_pretty(&report)
-            .map_err(|e| io_err("JSON", std::io::Error::other(e)))?;
-        buf.push(b'\n');
-        outputs::emit(t, &buf)?;
+        outputs::emit(t, &json_bytes(&report)?)?;
     }
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {

@@ -11,7 +11,7 @@ use groups::{
 };
 
 use super::outputs::{self, Target};
-use super::{invocation, io_err, with_progress};
+use super::{invocation, io_err, json_bytes, with_progress};
 use clap::Args;
 use pondus::error::Result;
 use pondus::fit::{self, FitSettings};
@@ -185,9 +185,7 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         drawn.push((&p.target, bytes));
     }
     if let Some(t) = &run.json {
-        let mut buf = Vec::new();
-        render::json::write(&report, &mut buf).map_err(|e| io_err("JSON", e))?;
-        outputs::emit(t, &buf)?;
+        outputs::emit(t, &json_bytes(&report)?)?;
     }
     if let Some(t) = &run.table {
         let mut buf = Vec::new();
