@@ -1,7 +1,7 @@
 //! `pondus plan`: the power of a moderator test before the data exist, the
 //! number of sites (or participants per site) it needs, and the power curve.
 
-use super::outputs::{self, Target};
+use super::outputs::{self, Outputs, Target};
 use super::{invocation, json_bytes, report_target, with_progress};
 use clap::{Args, ValueEnum};
 use pondus::error::{Error, Result};
@@ -495,37 +495,26 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         "simulating {bar:30} {pos}/{len} data sets ({eta})",
         |tick| plan::report::build_with_progress(req, tick),
     )?;
-    let curve = match &run.curve {
-        Some((t, f)) => Some((t, plan::report::curve_plot(&report, *f)?)),
-        None => None,
-    };
+    // Every output is rendered before any is written (see `Outputs`).
+    let mut out = Outputs::new();
+    if let Some((t, f)) = &run.curve {
+        out.add(t, plan::report::curve_plot(&report, *f)?);
+    }
     if let Some(t) = &run.json {
-        outputs::emit(t, &json_bytes(&report)?)?;
+        out.add(t, json_bytes(&report)?);
     }
-    let page = match &run.report {
-        Some(t) => {
-            let figure = plan::report::curve_figure(&report)?;
-            let prov = render::html::Provenance {
-                command: run.invocation.clone(),
-                version: env!("CARGO_PKG_VERSION").to_string(),
-                input_sha256: None,
-                seed: report.simulation.map(|s| s.seed),
-            };
-            Some((t, render::html::plan_page(&report, Some(&figure), &prov)))
-        }
-        None => None,
-    };
-    if let Some((t, bytes)) = curve {
-        outputs::emit(t, &bytes)?;
-    }
-    if let Some((t, page)) = page {
-        outputs::emit(t, page.as_bytes())?;
+    if let Some(t) = &run.report {
+        let figure = plan::report::curve_figure(&report)?;
+        let prov = render::html::Provenance {
+            command: run.invocation.clone(),
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            input_sha256: None,
+            seed: report.simulation.map(|s| s.seed),
+        };
+        out.add(t, render::html::plan_page(&report, Some(&figure), &prov));
     }
     if run.text {
-        outputs::emit(
-            &Target::Stdout,
-            plan::report::render_text(&report).as_bytes(),
-        )?;
+        out.add(&Target::Stdout, plan::report::render_text(&report));
     }
-    Ok(())
+    out.write()
 }
