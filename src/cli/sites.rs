@@ -2,7 +2,7 @@
 //! table), the join with a table of site characteristics, the optional
 //! second stage, and the effects file for `pondus fit`.
 
-use super::outputs::{self, Target};
+use super::outputs::{self, Outputs, Target};
 use super::{invocation, json_bytes, report_target, InferenceArg, Tau2Arg};
 use clap::Args;
 use pondus::error::{Error, Result};
@@ -271,11 +271,13 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     if let Some((options, chars)) = &run.fit {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);
     }
+    // Every output is rendered before any is written (see `Outputs`).
+    let mut out = Outputs::new();
     if let Some(t) = &run.out {
-        outputs::emit(t, &sites::effects_bytes(&report))?;
+        out.add(t, sites::effects_bytes(&report));
     }
     if let Some(t) = &run.json {
-        outputs::emit(t, &json_bytes(&report)?)?;
+        out.add(t, json_bytes(&report)?);
     }
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {
@@ -298,13 +300,13 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
             input_sha256,
             seed: None,
         };
-        outputs::emit(
+        out.add(
             t,
-            render::html::sites_page(&report, &figures, &figure_notes, &prov).as_bytes(),
-        )?;
+            render::html::sites_page(&report, &figures, &figure_notes, &prov),
+        );
     }
     if run.text {
-        outputs::emit(&Target::Stdout, render::sites::render(&report).as_bytes())?;
+        out.add(&Target::Stdout, render::sites::render(&report));
     }
-    Ok(())
+    out.write()
 }

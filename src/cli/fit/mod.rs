@@ -10,7 +10,7 @@ use groups::{
     ReportArgs,
 };
 
-use super::outputs::{self, Target};
+use super::outputs::{self, Outputs, Target};
 use super::{invocation, io_err, json_bytes, with_progress};
 use clap::Args;
 use pondus::error::Result;
@@ -172,8 +172,8 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         "permuting {bar:30} {pos}/{len} arrangements ({eta})",
         |tick| fit::run_with_progress(&run.settings, &run.source.name(), &bytes, tick),
     )?;
-    // Every plot is drawn before anything is written, so a plot the model
-    // cannot support leaves no partial set of outputs behind.
+    // Every output is rendered before any is written (see `Outputs`), so an
+    // output the model cannot support leaves no partial set behind.
     let mut drawn = Vec::with_capacity(run.plots.len());
     for p in &run.plots {
         let o = &run.plot_options;
@@ -184,40 +184,35 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         };
         drawn.push((&p.target, bytes));
     }
+    let mut out = Outputs::new();
     if let Some(t) = &run.json {
-        outputs::emit(t, &json_bytes(&report)?)?;
+        out.add(t, json_bytes(&report)?);
     }
     if let Some(t) = &run.table {
         let mut buf = Vec::new();
         render::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
-        outputs::emit(t, &buf)?;
+        out.add(t, buf);
     }
-    let page = match &run.report {
-        Some(t) => {
-            let (figures, figure_notes) = figure::page_figures(&report, &run.plot_options)?;
-            let prov = render::html::Provenance {
-                command: run.invocation.clone(),
-                version: report.tool.version.clone(),
-                input_sha256: Some(report.input.sha256.clone()),
-                seed: report.permutation.as_ref().and_then(|p| p.seed),
-            };
-            Some((
-                t,
-                render::html::fit_page(&report, &figures, &figure_notes, &prov),
-            ))
-        }
-        None => None,
-    };
     for (target, bytes) in drawn {
-        outputs::emit(target, &bytes)?;
+        out.add(target, bytes);
     }
-    if let Some((t, page)) = page {
-        outputs::emit(t, page.as_bytes())?;
+    if let Some(t) = &run.report {
+        let (figures, figure_notes) = figure::page_figures(&report, &run.plot_options)?;
+        let prov = render::html::Provenance {
+            command: run.invocation.clone(),
+            version: report.tool.version.clone(),
+            input_sha256: Some(report.input.sha256.clone()),
+            seed: report.permutation.as_ref().and_then(|p| p.seed),
+        };
+        out.add(
+            t,
+            render::html::fit_page(&report, &figures, &figure_notes, &prov),
+        );
     }
     if run.text {
-        outputs::emit(&Target::Stdout, render::text::render(&report).as_bytes())?;
+        out.add(&Target::Stdout, render::text::render(&report));
     }
-    Ok(())
+    out.write()
 }
 
 #[cfg(test)]
