@@ -209,6 +209,41 @@ mod tests {
         Cli::command().debug_assert();
     }
 
+    /// Every [`Flag`] the library names in its messages is a long flag of
+    /// exactly the subcommands it lists, and every long flag of a subcommand
+    /// is a [`Flag`] listing that subcommand.
+    #[test]
+    fn library_flag_names_match_the_clap_definitions() {
+        use pondus::support::flag::Flag;
+        use std::collections::BTreeSet;
+        let mut defined = BTreeSet::new();
+        for sub in Cli::command().get_subcommands() {
+            for arg in sub.get_arguments() {
+                match arg.get_long() {
+                    Some("help") | Some("version") | None => {}
+                    Some(long) => {
+                        defined.insert((sub.get_name().to_string(), format!("--{long}")));
+                    }
+                }
+            }
+        }
+        let named: BTreeSet<(String, String)> = Flag::ALL
+            .iter()
+            .flat_map(|f| {
+                f.commands()
+                    .iter()
+                    .map(move |c| (c.to_string(), f.name().to_string()))
+            })
+            .collect();
+        let unknown: Vec<_> = named.difference(&defined).collect();
+        let missing: Vec<_> = defined.difference(&named).collect();
+        assert!(
+            unknown.is_empty() && missing.is_empty(),
+            "named in Flag but not defined: {unknown:?}; defined but not in Flag: {missing:?}"
+        );
+        assert!(defined.contains(&("fit".to_string(), "--probe".to_string())));
+    }
+
     #[test]
     fn shell_quote_leaves_safe_words_and_quotes_the_rest() {
         assert_eq!(shell_quote("--moderator"), "--moderator");

@@ -3,6 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
+use crate::support::flag::Flag;
 use crate::tolerance;
 use serde::Serialize;
 
@@ -112,12 +113,13 @@ pub fn classify(
                 .map(|&i| format!("line {} ('{}')", lines[i], cells[i]))
                 .collect();
             return Err(Error::usage(
-                "--moderator",
+                Flag::Moderator,
                 format!(
                     "{source}: column '{}' is mostly numbers but not at {}; fix those cells, or pass \
-                     --categorical {} to treat every value as a category label",
+                     {} {} to treat every value as a category label",
                     spec.name,
                     shown.join(", "),
+                    Flag::Categorical,
                     spec.name
                 ),
             ));
@@ -248,7 +250,7 @@ pub fn design_row(
             (ModeratorKind::Categorical { levels, .. }, Value::Label(l)) => {
                 let code = levels.iter().position(|x| x == l).ok_or_else(|| {
                     Error::usage(
-                        "--at",
+                        Flag::At,
                         format!(
                             "'{l}' is not a level of moderator '{}'; its levels are: {}",
                             m.name,
@@ -260,13 +262,13 @@ pub fn design_row(
             }
             (ModeratorKind::Numeric { .. }, Value::Label(l)) => {
                 return Err(Error::usage(
-                    "--at",
+                    Flag::At,
                     format!("'{l}' is not a number (moderator '{}' is numeric)", m.name),
                 ))
             }
             (ModeratorKind::Categorical { levels, .. }, Value::Number(x)) => {
                 return Err(Error::usage(
-                    "--at",
+                    Flag::At,
                     format!(
                         "moderator '{}' is categorical; give one of its levels ({}) instead of {x}",
                         m.name,
@@ -327,7 +329,7 @@ pub fn build(
             RawModerator::Text(v) => {
                 if spec.center {
                     return Err(Error::usage(
-                        "--center",
+                        Flag::Center,
                         format!(
                             "moderator '{}' is categorical and cannot be centred",
                             spec.name
@@ -359,7 +361,7 @@ pub fn build(
                     Some(r) if levels.contains(r) => r.clone(),
                     Some(r) => {
                         return Err(Error::usage(
-                            "--reference",
+                            Flag::Reference,
                             format!(
                             "'{r}' is not a level of moderator '{}' among the included studies; \
                                  its levels are: {}",
