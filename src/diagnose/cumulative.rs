@@ -6,7 +6,7 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
 use crate::model::{inference, FitOptions};
-use crate::result::{AtValue, CumulativeStep};
+use crate::result::{AtValue, CumulativeStep, Interval, SortOrder};
 use crate::support::flag::Flag;
 
 /// The steps of a cumulative meta-analysis.
@@ -39,8 +39,7 @@ pub fn steps(
                 k: j,
                 estimate: None,
                 se: None,
-                ci_low: None,
-                ci_high: None,
+                ci: Interval::new(None, None),
                 p: None,
                 tau2: None,
                 i2: None,
@@ -49,8 +48,7 @@ pub fn steps(
                 let se = v[last].sqrt();
                 s.estimate = Some(y[last]);
                 s.se = Some(se);
-                s.ci_low = Some(y[last] - z * se);
-                s.ci_high = Some(y[last] + z * se);
+                s.ci = Interval::new(Some(y[last] - z * se), Some(y[last] + z * se));
                 s.p = Some(dist::normal_two_sided_p(y[last] / se));
                 return s;
             }
@@ -63,8 +61,7 @@ pub fn steps(
                 if pr.se.is_finite() && c[0].p.is_finite() {
                     s.estimate = Some(pr.estimate);
                     s.se = Some(pr.se);
-                    s.ci_low = Some(pr.ci_low);
-                    s.ci_high = Some(pr.ci_high);
+                    s.ci = Interval::new(Some(pr.ci_low), Some(pr.ci_high));
                     s.p = Some(c[0].p);
                     s.tau2 = Some(f.tau2.estimate);
                     s.i2 = Some(super::i2(&f));
@@ -81,7 +78,7 @@ pub fn steps(
 ///
 /// # Errors
 /// [`Error::Usage`] naming the file, line and column of a missing cell.
-pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, &'static str)> {
+pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, SortOrder)> {
     if let Some(i) = col.cells.iter().position(|c| is_missing(c)) {
         return Err(Error::usage(
             Flag::CumulativeBy,
@@ -104,12 +101,20 @@ pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue
     match numbers {
         Some(x) => {
             idx.sort_by(|&a, &b| x[a].total_cmp(&x[b]));
-            Ok((idx, x.into_iter().map(AtValue::Number).collect(), "numeric"))
+            Ok((
+                idx,
+                x.into_iter().map(AtValue::Number).collect(),
+                SortOrder::Numeric,
+            ))
         }
         None => {
             let t: Vec<String> = col.cells.iter().map(|c| c.trim().to_string()).collect();
             idx.sort_by(|&a, &b| t[a].cmp(&t[b]));
-            Ok((idx, t.into_iter().map(AtValue::Level).collect(), "text"))
+            Ok((
+                idx,
+                t.into_iter().map(AtValue::Level).collect(),
+                SortOrder::Text,
+            ))
         }
     }
 }
