@@ -245,3 +245,19 @@ fn extreme_correlations_and_huge_n_stay_finite() {
     }
     assert!(v["tau2"]["estimate"].as_f64().unwrap().is_finite());
 }
+
+/// The refusal of `--loo` with too few studies had a run of 22 spaces in
+/// the middle of its sentence (a line break inside the string without a
+/// continuation backslash).
+#[test]
+fn loo_with_too_few_studies_message_has_no_run_of_spaces() {
+    let csv = "study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\n";
+    let (code, _, err) = fit_bin(csv, &["--moderator", "m", "--loo"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("leaving a study out of 3 studies"), "{err}");
+    assert!(
+        err.contains("2 coefficients; at least 4 studies are needed"),
+        "{err}"
+    );
+    assert!(!err.contains("  "), "{err}");
+}
