@@ -586,8 +586,8 @@ impl FitArgs {
 
 impl FitArgs {
     /// The checked `--probe`, `--compare-levels`, `--regions` and artifact settings.
-    fn interpret_settings(&self) -> Result<pondus::model::probe::InterpretSettings> {
-        use pondus::model::probe::{InterpretSettings, ProbeSpec};
+    fn interpret_settings(&self) -> Result<pondus::fit::InterpretSettings> {
+        use pondus::fit::{InterpretSettings, ProbeSpec};
         let mut probes = Vec::new();
         for p in &self.probe {
             let (name, values) = match p.split_once('=') {
