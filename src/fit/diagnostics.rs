@@ -16,7 +16,6 @@ use crate::model::ModelFit;
 ///
 /// # Errors
 /// The errors of [`diagnose::run`], with the file named.
-#[allow(clippy::too_many_arguments)]
 pub fn run(
     settings: &FitSettings,
     source: &str,

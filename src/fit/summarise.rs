@@ -40,7 +40,7 @@ pub fn summarise(
         .iter()
         .enumerate()
         .map(|(j, c)| {
-            let r = robust_coefs.map(|rc| &rc[j]);
+            let r = robust_coefs.and_then(|rc| rc.get(j));
             coefficient(&design.terms[j].name, c, r, scale)
         })
         .collect();
@@ -165,7 +165,6 @@ fn heterogeneity(fit: &ModelFit, null_fit: Option<&ModelFit>) -> Heterogeneity {
 
 /// The moderator test's answer to "does the effect change with the
 /// moderators?", in words, tested at α = 1 − level.
-#[allow(clippy::too_many_arguments)]
 fn answer(
     significant: bool,
     moderators: &[&str],
