@@ -13,10 +13,10 @@ use crate::effect::{Measure, ReadingScale};
 use crate::error::{Error, Result};
 use crate::model::design::{Moderator, RawModerator, Term};
 use crate::model::tau2::Tau2Method;
-use crate::model::{Inference, ModelFit};
+use crate::model::ModelFit;
 use crate::result::{
-    ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, MeasureInfo,
-    ModelInfo, Study, Tau2Report, ToolInfo,
+    ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
+    MeasureInfo, ModelInfo, Study, Tau2Report, ToolInfo,
 };
 
 /// The outputs of the stages, as the report takes them.
@@ -80,7 +80,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
     let fit = &model.fit;
     let input = InputInfo {
         file: source.to_string(),
-        delimiter: studies.table.delimiter.into(),
+        delimiter: studies.table.delimiter,
         rows: studies.table.rows,
         label_column: studies.table.label_column.clone(),
         sha256: crate::support::hash::sha256_hex(bytes),
@@ -102,11 +102,10 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         excluded,
         model: model_info(settings, &model, terms, moderators, &interactions),
         tau2: Tau2Report {
-            method: settings.options.method.id().into(),
+            method: settings.options.method,
             estimate: fit.tau2.estimate,
             tau: fit.tau2.estimate.sqrt(),
-            ci_low: fit.tau2_ci.map(|c| c.0),
-            ci_high: fit.tau2_ci.map(|c| c.1),
+            ci: Interval::new(fit.tau2_ci.map(|c| c.0), fit.tau2_ci.map(|c| c.1)),
             ending: fit.tau2.ending,
             evaluations: fit.tau2.evaluations,
         },
@@ -142,7 +141,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
 fn measure_info(measure: Measure, scale: ReadingScale, corrected: bool) -> MeasureInfo {
     if corrected {
         MeasureInfo {
-            id: "r-corrected".into(),
+            id: MeasureId::RCorrected,
             description: "Pearson correlations corrected for artifacts (Hunter–Schmidt), \
                           analysed on the r scale"
                 .into(),
@@ -152,7 +151,7 @@ fn measure_info(measure: Measure, scale: ReadingScale, corrected: bool) -> Measu
         }
     } else {
         MeasureInfo {
-            id: measure.id().into(),
+            id: MeasureId::Measure(measure),
             description: measure.describe().into(),
             reading_scale: scale,
             reading_name: measure.reading_name().map(String::from),
@@ -184,14 +183,10 @@ fn model_info(
         WorkingModel::Independent | WorkingModel::TwoLevel(_) => method.describe().into(),
     };
     ModelInfo {
-        tau2_method: method.id().into(),
+        tau2_method: method,
         tau2_description,
         inference_description: settings.options.inference.describe().into(),
-        inference: match settings.options.inference {
-            Inference::Kh => "kh",
-            Inference::Z => "z",
-        }
-        .into(),
+        inference: settings.options.inference,
         level: settings.options.level,
         terms: terms.into_iter().map(|t| t.name).collect(),
         interactions: interactions
@@ -229,8 +224,7 @@ fn records(studies: Studies, fit: &ModelFit, level: f64) -> (Vec<Study>, Vec<Exc
             line: lines[pos],
             effect: yi,
             variance: vi,
-            ci_low: yi - half,
-            ci_high: yi + half,
+            ci: Interval::new(yi - half, yi + half),
             weight: 100.0 * fit.weights[pos] / total_w,
             fitted: fit.fitted[pos],
             residual: yi - fit.fitted[pos],
@@ -260,10 +254,10 @@ fn check_finite(r: &FitReport) -> Result<()> {
     check("τ²".into(), r.tau2.estimate);
     for c in &r.coefficients {
         for (n, x) in [
-            ("estimate", c.estimate),
-            ("SE", c.se),
-            ("statistic", c.statistic),
-            ("p", c.p),
+            ("estimate", c.contrast.estimate),
+            ("SE", c.contrast.se),
+            ("statistic", c.contrast.test.statistic),
+            ("p", c.contrast.test.p),
         ] {
             check(format!("{} {n}", c.term), x);
         }
@@ -278,19 +272,25 @@ fn check_finite(r: &FitReport) -> Result<()> {
     }
     let a = &r.average;
     for (n, x) in [
-        ("average", a.estimate),
-        ("average SE", a.se),
-        ("prediction interval", a.pi_low),
+        ("average", a.mean.estimate),
+        ("average SE", a.mean.se),
+        ("prediction interval", a.mean.pi.pi_low),
     ] {
         check(n.into(), x);
     }
     for p in &r.predictions {
-        check("prediction".into(), p.estimate);
-        check("prediction SE".into(), p.se);
+        check("prediction".into(), p.mean.estimate);
+        check("prediction SE".into(), p.mean.se);
     }
     for e in &r.interpretation.conditional_effects {
-        check(format!("conditional effect at {}", e.moderator), e.estimate);
-        check(format!("conditional effect SE at {}", e.moderator), e.se);
+        check(
+            format!("conditional effect at {}", e.moderator),
+            e.mean.estimate,
+        );
+        check(
+            format!("conditional effect SE at {}", e.moderator),
+            e.mean.se,
+        );
     }
     for s in &r.interpretation.simple_slopes {
         check(format!("simple slope of {}", s.of), s.test.se);

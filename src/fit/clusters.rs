@@ -11,7 +11,10 @@ use super::studies::Studies;
 use crate::error::Result;
 use crate::model::design::Design;
 use crate::model::multilevel::{self, Clusters, Dependence, RobustCoef, RobustTest, ThreeLevel};
-use crate::result::{ClusterReport, ComponentTest, TermLevel, VarianceComponent};
+use crate::result::{
+    ClusterLevel, ClusterModel, ClusterReport, ComponentTest, Interval, TermLevel,
+    VarianceComponent,
+};
 
 /// Robust Satterthwaite df below which the robust p-values are flagged
 /// (Tipton 2015, *Psychol. Methods* 20:375: tests with df < 4 can be far
@@ -65,9 +68,9 @@ pub fn additions(
     } else {
         None
     };
-    let (model_name, three) = match &model.working {
-        WorkingModel::ThreeLevel(t) => ("three-level", Some(t.as_ref())),
-        WorkingModel::TwoLevel(_) | WorkingModel::Independent => ("two-level", None),
+    let (cluster_model, three) = match &model.working {
+        WorkingModel::ThreeLevel(t) => (ClusterModel::ThreeLevel, Some(t.as_ref())),
+        WorkingModel::TwoLevel(_) | WorkingModel::Independent => (ClusterModel::TwoLevel, None),
     };
     let levels = (1..p).map(|j| multilevel::varies_within(x, p, j, cl));
     let report = ClusterReport {
@@ -75,7 +78,7 @@ pub fn additions(
         clusters: cl.m(),
         single_effect_clusters: singles(cl),
         max_cluster_size: cl.groups.iter().map(Vec::len).max().unwrap_or(0),
-        model: model_name.into(),
+        model: cluster_model,
         lr_tests: three.map(|t| lr_tests(t, model)).unwrap_or_default(),
         moderator_levels: design
             .terms
@@ -84,12 +87,16 @@ pub fn additions(
             .zip(levels)
             .map(|(t, w)| TermLevel {
                 term: t.name.clone(),
-                level: if w { "within" } else { "between" }.into(),
+                level: if w {
+                    ClusterLevel::Within
+                } else {
+                    ClusterLevel::Between
+                },
             })
             .collect(),
         robust: robust.as_ref().map(|_| {
             format!(
-                "CR2 cluster-robust standard errors on {} clusters with the {model_name} working \
+                "CR2 cluster-robust standard errors on {} clusters with the {cluster_model} working \
                  model, Satterthwaite df per coefficient; moderator test: approximate Hotelling \
                  T² (HTZ)",
                 cl.m()
@@ -117,17 +124,15 @@ fn components(t: &ThreeLevel, v_typ: f64) -> Vec<VarianceComponent> {
     let ci = t.intervals;
     vec![
         VarianceComponent {
-            level: "between".into(),
+            level: ClusterLevel::Between,
             estimate: c.between,
-            ci_low: ci.map(|c| c.0 .0),
-            ci_high: ci.map(|c| c.0 .1),
+            ci: Interval::new(ci.map(|c| c.0 .0), ci.map(|c| c.0 .1)),
             i2: c.between / total,
         },
         VarianceComponent {
-            level: "within".into(),
+            level: ClusterLevel::Within,
             estimate: c.within,
-            ci_low: ci.map(|c| c.1 .0),
-            ci_high: ci.map(|c| c.1 .1),
+            ci: Interval::new(ci.map(|c| c.1 .0), ci.map(|c| c.1 .1)),
             i2: c.within / total,
         },
     ]
@@ -138,14 +143,14 @@ fn components(t: &ThreeLevel, v_typ: f64) -> Vec<VarianceComponent> {
 fn lr_tests(t: &ThreeLevel, model: &Fitted) -> Vec<ComponentTest> {
     let ll = model.fit.log_likelihood.unwrap_or(f64::NAN);
     [
-        ("within", t.ll_without_within),
-        ("between", t.ll_without_between),
+        (ClusterLevel::Within, t.ll_without_within),
+        (ClusterLevel::Between, t.ll_without_between),
     ]
     .into_iter()
-    .map(|(name, ll0)| {
+    .map(|(component, ll0)| {
         let (statistic, p) = multilevel::lr_test(ll, ll0);
         ComponentTest {
-            component: name.into(),
+            component,
             statistic,
             log_likelihood_without: ll0,
             p,

@@ -7,17 +7,16 @@
 use super::readout::{held, held_listed};
 use super::settings::{InterpretSettings, ProbeSpec};
 use super::studies::Studies;
-use super::summarise::{reading, Summary};
+use super::summarise::{contrast_test, Summary};
 use crate::effect::artifact::{self, ArtifactSettings};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::model::design::{Design, ModeratorKind, Value};
-use crate::model::inference::CoefInference;
 use crate::model::probe::{self, JnRegion, Partner, Region};
 use crate::model::ModelFit;
 use crate::result::{
-    ArtifactReport, ArtifactStudy, AtValue, ConditionalEffect, ContrastTest, Interpretation,
-    LevelContrast, PictureChange, RegionOfSignificance, SimpleSlope,
+    ArtifactReport, ArtifactStudy, AtValue, ConditionalEffect, Interpretation, LevelContrast,
+    PictureChange, ProbePoint, RegionOfSignificance, SimpleSlope, Test,
 };
 use crate::support::format as fmt;
 
@@ -96,7 +95,7 @@ pub fn interpret(
 struct Point {
     value: Value,
     at: AtValue,
-    label: String,
+    label: ProbePoint,
     outside: bool,
 }
 
@@ -114,9 +113,9 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
     let m = &design.moderators[j];
     match (&m.kind, &spec.values) {
         (ModeratorKind::Numeric { mean, sd, .. }, None) => Ok([
-            (mean - sd, "mean − 1 SD"),
-            (*mean, "mean"),
-            (mean + sd, "mean + 1 SD"),
+            (mean - sd, ProbePoint::MeanMinusSd),
+            (*mean, ProbePoint::Mean),
+            (mean + sd, ProbePoint::MeanPlusSd),
         ]
         .into_iter()
         .map(|(x, l)| numeric_point(design, j, x, l))
@@ -139,7 +138,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
                             ),
                         )
                     })?;
-                Ok(numeric_point(design, j, x, "given"))
+                Ok(numeric_point(design, j, x, ProbePoint::Given))
             })
             .collect(),
         (ModeratorKind::Categorical { levels, .. }, None) => Ok(levels
@@ -171,7 +170,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
     }
 }
 
-fn numeric_point(design: &Design, j: usize, x: f64, label: &str) -> Point {
+fn numeric_point(design: &Design, j: usize, x: f64, label: ProbePoint) -> Point {
     let outside = match design.moderators[j].kind {
         ModeratorKind::Numeric { min, max, .. } => x < min || x > max,
         ModeratorKind::Categorical { .. } => false,
@@ -179,7 +178,7 @@ fn numeric_point(design: &Design, j: usize, x: f64, label: &str) -> Point {
     Point {
         value: Value::Number(x),
         at: AtValue::Number(x),
-        label: label.into(),
+        label,
         outside,
     }
 }
@@ -188,7 +187,7 @@ fn level_point(level: &str) -> Point {
     Point {
         value: Value::Label(level.to_string()),
         at: AtValue::Level(level.to_string()),
-        label: "level".into(),
+        label: ProbePoint::Level,
         outside: false,
     }
 }
@@ -212,18 +211,6 @@ fn partner_of(j: usize, (a, b): (usize, usize)) -> Option<usize> {
     }
 }
 
-fn test(t: CoefInference) -> ContrastTest {
-    ContrastTest {
-        estimate: t.estimate,
-        se: t.se,
-        ci_low: t.ci_low,
-        ci_high: t.ci_high,
-        statistic: t.statistic,
-        df: t.df,
-        p: t.p,
-    }
-}
-
 /// The conditional effects at the points of moderator `j`, and the simple
 /// slopes of every partner in a product term with `j`.
 fn probe_one(
@@ -244,18 +231,15 @@ fn probe_one(
         out.conditional_effects.push(ConditionalEffect {
             moderator: name.clone(),
             at: pt.at.clone(),
-            point: pt.label.clone(),
+            point: pt.label,
             held: held_words.clone(),
-            estimate: p.estimate,
-            se: p.se,
-            ci_low: p.ci_low,
-            ci_high: p.ci_high,
-            pi_low: p.pi_low,
-            pi_high: p.pi_high,
-            statistic: c.statistic,
-            df: c.df,
-            p: c.p,
-            reading: reading(&p, scale),
+            mean: p.mean_effect(),
+            test: Test {
+                statistic: c.statistic,
+                df: c.df,
+                p: c.p,
+            },
+            reading: p.reading(scale),
             outside_range: pt.outside,
         });
     }
@@ -272,9 +256,9 @@ fn probe_one(
                     of: partner_name(design, f, &partner),
                     moderator: name.clone(),
                     at: pt.at.clone(),
-                    point: pt.label.clone(),
+                    point: pt.label,
                     held: held_words.clone(),
-                    test: test(probe::contrast(fit, &c)),
+                    test: contrast_test(&probe::contrast(fit, &c)),
                 });
             }
         }
@@ -322,7 +306,7 @@ fn level_contrasts(
                 level: levels[b].clone(),
                 minus: levels[a].clone(),
                 held: held_words.clone(),
-                test: test(t),
+                test: contrast_test(&t),
                 p_holm,
             });
         }
@@ -477,9 +461,9 @@ fn region(
         quantity,
         held: held_words,
         bounds,
-        significant: reg.id().into(),
+        significant: reg,
         observed_bounds,
-        observed_region: observed_region.id().into(),
+        observed_region,
         observed_min: min,
         observed_max: max,
         observed_significant: observed,
@@ -497,11 +481,11 @@ fn picture(
 ) -> PictureChange {
     let lo = effects
         .iter()
-        .map(|e| e.estimate)
+        .map(|e| e.mean.estimate)
         .fold(f64::INFINITY, f64::min);
     let hi = effects
         .iter()
-        .map(|e| e.estimate)
+        .map(|e| e.mean.estimate)
         .fold(f64::NEG_INFINITY, f64::max);
     let sign_changes = lo < 0.0 && hi > 0.0;
     let shown = |x: f64| match scale {
@@ -516,7 +500,7 @@ fn picture(
     let mut words = format!(
         "Without moderators the pooled effect is {} with τ² = {}. With the moderators the mean \
          effect at the probed values runs from {} to {}, with residual τ² = {}",
-        shown(pooled.estimate),
+        shown(pooled.mean.estimate),
         fmt::short4(tau2_without),
         shown(lo),
         shown(hi),

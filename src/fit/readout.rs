@@ -4,13 +4,15 @@
 
 use super::estimate::{Fitted, WorkingModel};
 use super::studies::Studies;
-use super::summarise::{estimate, reading};
+use super::summarise::estimate;
 use super::FitSettings;
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::model::design::{self, Design, ModeratorKind, RawModerator, Value};
 use crate::model::{self, inference, FitOptions, ModelFit};
-use crate::result::{AtValue, Curve, CurvePoint, LevelSummary, Prediction, Subgroups};
+use crate::result::{
+    AtValue, Curve, CurvePoint, Interval, LevelSummary, Prediction, PredictionInterval, Subgroups,
+};
 use crate::support::format as fmt;
 use std::collections::BTreeMap;
 
@@ -128,13 +130,8 @@ fn prediction(
     let p = inference::predict(fit, &x0);
     Ok(Prediction {
         at,
-        estimate: p.estimate,
-        se: p.se,
-        ci_low: p.ci_low,
-        ci_high: p.ci_high,
-        pi_low: p.pi_low,
-        pi_high: p.pi_high,
-        reading: reading(&p, scale),
+        mean: p.mean_effect(),
+        reading: p.reading(scale),
         outside_range: outside,
     })
 }
@@ -301,10 +298,8 @@ fn curves(design: &Design, fit: &ModelFit) -> Result<Vec<Curve>> {
             points.push(CurvePoint {
                 x,
                 estimate: p.estimate,
-                ci_low: p.ci_low,
-                ci_high: p.ci_high,
-                pi_low: p.pi_low,
-                pi_high: p.pi_high,
+                ci: Interval::new(p.ci_low, p.ci_high),
+                pi: PredictionInterval::new(p.pi_low, p.pi_high),
             });
         }
         out.push(Curve {

@@ -9,7 +9,7 @@ use super::FitSettings;
 use crate::effect::artifact::{self, Corrected};
 use crate::effect::{self, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
-use crate::input::Table;
+use crate::input::{Delimiter, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 
@@ -50,8 +50,8 @@ pub struct Studies {
 /// What the report says about the table read.
 #[derive(Debug, Clone)]
 pub struct TableFacts {
-    /// The delimiter in words.
-    pub delimiter: &'static str,
+    /// The delimiter.
+    pub delimiter: Delimiter,
     /// Data rows.
     pub rows: usize,
     /// Blank rows skipped.
@@ -129,7 +129,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             settings.measure.reading_scale()
         },
         table: TableFacts {
-            delimiter: table.delimiter_name(),
+            delimiter: Delimiter::of(table.delimiter),
             rows: table.len(),
             blank_rows: table.blank_rows,
             label_column: table.column(0).map(|c| c.header.clone()),

@@ -10,7 +10,8 @@ use crate::model::inference::{self, CoefInference, PredictionInference};
 use crate::model::multilevel::{RobustCoef, RobustTest};
 use crate::model::ModelFit;
 use crate::result::{
-    Coefficient, Estimate, Heterogeneity, ModeratorTest, RatioCoefficient, Reading,
+    Coefficient, ContrastTest, Estimate, Heterogeneity, Interval, ModeratorTest, RatioCoefficient,
+    RobustTestMethod, Test, TestDistribution,
 };
 
 /// The summaries of the fit.
@@ -66,17 +67,10 @@ fn coefficient(
 ) -> Coefficient {
     Coefficient {
         term: term.to_string(),
-        estimate: c.estimate,
-        se: c.se,
-        ci_low: c.ci_low,
-        ci_high: c.ci_high,
-        statistic: c.statistic,
-        df: c.df,
-        p: c.p,
+        contrast: contrast_test(c),
         ratio: (scale == ReadingScale::Ratio).then(|| RatioCoefficient {
             estimate: c.estimate.exp(),
-            ci_low: c.ci_low.exp(),
-            ci_high: c.ci_high.exp(),
+            ci: Interval::new(c.ci_low, c.ci_high).map(f64::exp),
         }),
         robust_se: robust.map(|r| r.se),
         robust_df: robust.map(|r| r.df),
@@ -101,7 +95,11 @@ fn moderator_test(
                 df1: t.df1,
                 df2: t.df2,
                 p: t.p,
-                distribution: if t.df2.is_some() { "F" } else { "chi-square" }.into(),
+                distribution: if t.df2.is_some() {
+                    TestDistribution::F
+                } else {
+                    TestDistribution::ChiSquare
+                },
                 significant,
                 answer: answer(significant, names, fit, t.statistic, t.df1, t.df2, t.p),
                 method: None,
@@ -124,10 +122,10 @@ fn moderator_test(
                 df1: r.df1,
                 df2: Some(r.df2),
                 p: r.p,
-                distribution: "F".into(),
+                distribution: TestDistribution::F,
                 significant,
                 answer,
-                method: Some("CR2 approximate Hotelling T² (HTZ)".into()),
+                method: Some(RobustTestMethod::Htz),
             }
         }
     })
@@ -215,26 +213,24 @@ fn answer(
     }
 }
 
-/// The values of a prediction on the reading scale (None when it is the analysis scale).
-pub(super) fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
-    (scale != ReadingScale::Same).then(|| Reading {
-        estimate: scale.apply(p.estimate),
-        ci_low: scale.apply(p.ci_low),
-        ci_high: scale.apply(p.ci_high),
-        pi_low: scale.apply(p.pi_low),
-        pi_high: scale.apply(p.pi_high),
-    })
-}
-
 /// A prediction with its reading-scale values.
 pub(super) fn estimate(p: PredictionInference, scale: ReadingScale) -> Estimate {
     Estimate {
-        estimate: p.estimate,
-        se: p.se,
-        ci_low: p.ci_low,
-        ci_high: p.ci_high,
-        pi_low: p.pi_low,
-        pi_high: p.pi_high,
-        reading: reading(&p, scale),
+        mean: p.mean_effect(),
+        reading: p.reading(scale),
+    }
+}
+
+/// An estimate with its interval and test, as reported (coefficients and contrasts).
+pub(super) fn contrast_test(c: &CoefInference) -> ContrastTest {
+    ContrastTest {
+        estimate: c.estimate,
+        se: c.se,
+        ci: Interval::new(c.ci_low, c.ci_high),
+        test: Test {
+            statistic: c.statistic,
+            df: c.df,
+            p: c.p,
+        },
     }
 }

@@ -135,11 +135,45 @@ impl Table {
 
     /// The delimiter in words.
     pub fn delimiter_name(&self) -> &'static str {
-        match self.delimiter {
-            b';' => "semicolon",
-            b'\t' => "tab",
-            _ => "comma",
+        Delimiter::of(self.delimiter).id()
+    }
+}
+
+/// A detected delimiter, as named in the results.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Delimiter {
+    /// `,` (also the fallback).
+    Comma,
+    /// `;`.
+    Semicolon,
+    /// A tab.
+    Tab,
+}
+
+impl Delimiter {
+    /// The delimiter of the byte `b` (comma for any byte but `;` and tab).
+    pub fn of(b: u8) -> Self {
+        match b {
+            b';' => Delimiter::Semicolon,
+            b'\t' => Delimiter::Tab,
+            _ => Delimiter::Comma,
         }
+    }
+
+    /// The word used in the results.
+    pub fn id(self) -> &'static str {
+        match self {
+            Delimiter::Comma => "comma",
+            Delimiter::Semicolon => "semicolon",
+            Delimiter::Tab => "tab",
+        }
+    }
+}
+
+impl std::fmt::Display for Delimiter {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.id())
     }
 }
 

@@ -20,36 +20,7 @@ use crate::error::Result;
 use crate::tolerance;
 use nalgebra::DVector;
 
-/// Where the Johnson–Neyman inequality holds.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Region {
-    /// Significant for every value.
-    Everywhere,
-    /// Significant for no value.
-    Nowhere,
-    /// Significant below the first bound and above the second.
-    Outside,
-    /// Significant between the two bounds.
-    Inside,
-    /// Significant above the single bound.
-    Above,
-    /// Significant below the single bound.
-    Below,
-}
-
-impl Region {
-    /// The word used in the JSON.
-    pub fn id(self) -> &'static str {
-        match self {
-            Region::Everywhere => "everywhere",
-            Region::Nowhere => "nowhere",
-            Region::Outside => "outside",
-            Region::Inside => "inside",
-            Region::Above => "above",
-            Region::Below => "below",
-        }
-    }
-}
+pub use crate::result::Region;
 
 /// Johnson–Neyman bounds of θ(m) = a + b·m along m.
 ///

@@ -11,7 +11,7 @@
 
 use crate::plan::report::PlanReport;
 use crate::render::figure::PageFigure;
-use crate::result::{AtValue, Estimate, FitReport};
+use crate::result::{AtValue, ClusterLevel, Estimate, FitReport, ProbePoint};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -248,17 +248,17 @@ fn estimate_rows(
 ) {
     rows.push(vec![
         name.to_string(),
-        num(e.estimate),
-        fmt::interval(e.ci_low, e.ci_high),
-        fmt::interval(e.pi_low, e.pi_high),
-        num(e.se),
+        num(e.mean.estimate),
+        fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
+        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high),
+        num(e.mean.se),
     ]);
     if let (Some(r), Some(rn)) = (&e.reading, reading_name) {
         rows.push(vec![
             format!("{name}, as {rn}"),
             num(r.estimate),
-            fmt::interval(r.ci_low, r.ci_high),
-            fmt::interval(r.pi_low, r.pi_high),
+            fmt::interval(r.ci.ci_low, r.ci.ci_high),
+            fmt::interval(r.pi.pi_low, r.pi.pi_high),
             "—".into(),
         ]);
     }
@@ -325,9 +325,9 @@ pub fn fit_page(
             format!(
                 "The average effect is {} ({lv} CI {}); a new study's true effect is expected in {} \
                  ({lv} prediction interval).",
-                num(a.estimate),
-                fmt::interval(a.ci_low, a.ci_high),
-                fmt::interval(a.pi_low, a.pi_high)
+                num(a.mean.estimate),
+                fmt::interval(a.mean.ci.ci_low, a.mean.ci.ci_high),
+                fmt::interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
             )
         }
     };
@@ -436,7 +436,7 @@ pub fn fit_page(
             }
             .to_string(),
             num(t.estimate),
-            match (t.ci_low, t.ci_high) {
+            match (t.ci.ci_low, t.ci.ci_high) {
                 (Some(a), Some(b)) => format!("{lv} CI {}", fmt::interval(a, b)),
                 _ => "—".into(),
             },
@@ -499,7 +499,7 @@ pub fn fit_page(
         None => page.p("This model has no moderators: it estimates the average effect only."),
     }
     let ratio = report.coefficients.iter().any(|c| c.ratio.is_some());
-    let stat_name = if report.model.inference == "kh" {
+    let stat_name = if report.model.inference == crate::result::Inference::Kh {
         "t"
     } else {
         "z"
@@ -519,15 +519,17 @@ pub fn fit_page(
         .map(|c| {
             let mut r = vec![
                 c.term.clone(),
-                num(c.estimate),
-                num(c.se),
-                fmt::interval(c.ci_low, c.ci_high),
-                format!("{:.2}", c.statistic),
-                fmt::p(c.p).trim_start_matches("= ").to_string(),
+                num(c.contrast.estimate),
+                num(c.contrast.se),
+                fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                format!("{:.2}", c.contrast.test.statistic),
+                fmt::p(c.contrast.test.p)
+                    .trim_start_matches("= ")
+                    .to_string(),
             ];
             if let Some(q) = &c.ratio {
                 r.push(num(q.estimate));
-                r.push(fmt::interval(q.ci_low, q.ci_high));
+                r.push(fmt::interval(q.ci.ci_low, q.ci.ci_high));
             } else if ratio {
                 r.push("—".into());
                 r.push("—".into());
@@ -538,7 +540,7 @@ pub fn fit_page(
     let df_note = report
         .coefficients
         .first()
-        .and_then(|c| c.df)
+        .and_then(|c| c.contrast.test.df)
         .map(|d| format!(" (t tests on {} degrees of freedom)", fmt::df(d)))
         .unwrap_or_default();
     page.table(
@@ -565,10 +567,10 @@ pub fn fit_page(
                 }
                 vec![
                     at,
-                    num(p.estimate),
-                    fmt::interval(p.ci_low, p.ci_high),
-                    fmt::interval(p.pi_low, p.pi_high),
-                    num(p.se),
+                    num(p.mean.estimate),
+                    fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
+                    fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high),
+                    num(p.mean.se),
                 ]
             })
             .collect();
@@ -587,12 +589,16 @@ pub fn fit_page(
                 vec![
                     l.level.clone(),
                     l.k.to_string(),
-                    num(l.predicted.estimate),
-                    fmt::interval(l.predicted.ci_low, l.predicted.ci_high),
+                    num(l.predicted.mean.estimate),
+                    fmt::interval(l.predicted.mean.ci.ci_low, l.predicted.mean.ci.ci_high),
                     l.pooled
                         .as_ref()
                         .map(|e| {
-                            format!("{} {}", num(e.estimate), fmt::interval(e.ci_low, e.ci_high))
+                            format!(
+                                "{} {}",
+                                num(e.mean.estimate),
+                                fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high)
+                            )
                         })
                         .unwrap_or_else(|| "—".into()),
                 ]
@@ -657,7 +663,7 @@ pub fn fit_page(
                 s.line.to_string(),
                 num(s.effect),
                 num(s.variance),
-                fmt::interval(s.ci_low, s.ci_high),
+                fmt::interval(s.ci.ci_low, s.ci.ci_high),
                 format!("{:.1}%", s.weight),
                 s.std_residual
                     .map(|z| format!("{z:.2}"))
@@ -682,9 +688,9 @@ pub fn fit_page(
 fn contrast_cells(t: &crate::result::ContrastTest) -> Vec<String> {
     vec![
         num(t.estimate),
-        fmt::interval(t.ci_low, t.ci_high),
-        format!("{:.2}", t.statistic),
-        fmt::p(t.p).trim_start_matches("= ").to_string(),
+        fmt::interval(t.ci.ci_low, t.ci.ci_high),
+        format!("{:.2}", t.test.statistic),
+        fmt::p(t.test.p).trim_start_matches("= ").to_string(),
     ]
 }
 
@@ -705,7 +711,7 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 groups.push((c.moderator.as_str(), c.held.as_str()));
             }
         }
-        let stat = if report.model.inference == "kh" {
+        let stat = if report.model.inference == crate::result::Inference::Kh {
             "t"
         } else {
             "z"
@@ -717,7 +723,7 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 .filter(|c| c.moderator == m && c.held == held)
                 .map(|c| {
                     let mut at = format!("{} = {}", c.moderator, at_text(&c.at));
-                    if c.point != "given" && c.point != "level" {
+                    if !matches!(c.point, ProbePoint::Given | ProbePoint::Level) {
                         at.push_str(&format!(" ({})", c.point));
                     }
                     if c.outside_range {
@@ -725,11 +731,11 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                     }
                     vec![
                         at,
-                        num(c.estimate),
-                        fmt::interval(c.ci_low, c.ci_high),
-                        fmt::interval(c.pi_low, c.pi_high),
-                        format!("{:.2}", c.statistic),
-                        fmt::p(c.p).trim_start_matches("= ").to_string(),
+                        num(c.mean.estimate),
+                        fmt::interval(c.mean.ci.ci_low, c.mean.ci.ci_high),
+                        fmt::interval(c.mean.pi.pi_low, c.mean.pi.pi_high),
+                        format!("{:.2}", c.test.statistic),
+                        fmt::p(c.test.p).trim_start_matches("= ").to_string(),
                     ]
                 })
                 .collect();
@@ -816,13 +822,13 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                     } else {
                         bounds.join(", ")
                     },
-                    r.significant.clone(),
+                    r.significant.to_string(),
                     format!(
                         "{} to {}",
                         fmt::value(r.observed_min),
                         fmt::value(r.observed_max)
                     ),
-                    r.observed_region.clone(),
+                    r.observed_region.to_string(),
                 ]
             })
             .collect();
@@ -857,8 +863,8 @@ fn interpretation(page: &mut Page, report: &FitReport, lv: &str) {
                 "mean effect".to_string(),
                 format!(
                     "{} {}",
-                    num(pc.pooled.estimate),
-                    fmt::interval(pc.pooled.ci_low, pc.pooled.ci_high)
+                    num(pc.pooled.mean.estimate),
+                    fmt::interval(pc.pooled.mean.ci.ci_low, pc.pooled.mean.ci.ci_high)
                 ),
                 format!(
                     "{} to {} (probed values)",
@@ -983,7 +989,9 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                 vec![
                     t.clone(),
                     fmt::opt_p_cell(*pp),
-                    fmt::p(c.p).trim_start_matches("= ").to_string(),
+                    fmt::p(c.contrast.test.p)
+                        .trim_start_matches("= ")
+                        .to_string(),
                 ]
             })
             .collect();
@@ -1084,7 +1092,11 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                             String::new()
                         }
                     } else {
-                        i.exceeded.join(", ")
+                        i.exceeded
+                            .iter()
+                            .map(|c| c.id())
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     },
                 ]
             })
@@ -1139,7 +1151,7 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                     if t.filled == 1 { "study" } else { "studies" },
                     t.side,
                     num(t.estimate),
-                    fmt::interval(t.ci_low, t.ci_high),
+                    fmt::interval(t.ci.ci_low, t.ci.ci_high),
                     num(t.estimate_observed)
                 ),
             ),
@@ -1156,7 +1168,7 @@ fn diagnostics(page: &mut Page, report: &FitReport, lv: &str) {
                     at_text(&c.value),
                     c.k.to_string(),
                     fmt::opt_num(c.estimate),
-                    match (c.ci_low, c.ci_high) {
+                    match (c.ci.ci_low, c.ci.ci_high) {
                         (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },
@@ -1216,10 +1228,12 @@ fn stage_block(page: &mut Page, title: &str, fit: &FitReport, intercept_label: O
                     (0, Some(l)) => l.to_string(),
                     _ => c.term.clone(),
                 },
-                num(c.estimate),
-                num(c.se),
-                fmt::interval(c.ci_low, c.ci_high),
-                fmt::p(c.p).trim_start_matches("= ").to_string(),
+                num(c.contrast.estimate),
+                num(c.contrast.se),
+                fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                fmt::p(c.contrast.test.p)
+                    .trim_start_matches("= ")
+                    .to_string(),
             ]
         })
         .collect();
@@ -1294,10 +1308,10 @@ pub fn sites_page(
             f.coefficients.get(j).map(|c| {
                 format!(
                     "{} ({} CI {}, p {})",
-                    num(c.estimate),
+                    num(c.contrast.estimate),
                     fmt::level_pct(f.model.level),
-                    fmt::interval(c.ci_low, c.ci_high),
-                    fmt::p(c.p)
+                    fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                    fmt::p(c.contrast.test.p)
                 )
             })
         };
@@ -1366,7 +1380,7 @@ pub fn sites_page(
         ),
         ("Sites estimated", report.sites.len().to_string()),
         ("Sites left out", report.excluded.len().to_string()),
-        ("Standard errors", m.se_type.clone()),
+        ("Standard errors", m.se_type.to_string()),
     ];
     if m.center_within {
         facts.push((
@@ -1516,7 +1530,7 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
                     c.clusters, c.max_cluster_size, c.single_effect_clusters
                 ),
             ),
-            ("Model", c.model.clone()),
+            ("Model", c.model.to_string()),
         ]);
     }
     if let Some(vc) = &report.variance_components {
@@ -1524,9 +1538,9 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
             .iter()
             .map(|v| {
                 vec![
-                    v.level.clone(),
+                    v.level.to_string(),
                     num(v.estimate),
-                    match (v.ci_low, v.ci_high) {
+                    match (v.ci.ci_low, v.ci.ci_high) {
                         (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },
@@ -1567,10 +1581,9 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
                     format!(
                         "{} varies {}",
                         t.term,
-                        match t.level.as_str() {
-                            "between" => "between clusters only".to_string(),
-                            "within" => "within clusters".to_string(),
-                            other => other.to_string(),
+                        match t.level {
+                            ClusterLevel::Between => "between clusters only",
+                            ClusterLevel::Within => "within clusters",
                         }
                     )
                 })
@@ -1588,8 +1601,8 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
             .map(|c| {
                 vec![
                     c.term.clone(),
-                    num(c.estimate),
-                    num(c.se),
+                    num(c.contrast.estimate),
+                    num(c.contrast.se),
                     fmt::opt_num(c.robust_se),
                     c.robust_df
                         .map(|d| format!("{d:.1}"))
@@ -1613,7 +1626,7 @@ fn dependence(page: &mut Page, report: &FitReport, lv: &str) {
     }
 }
 
-fn describe_moderator(m: &crate::model::design::Moderator) -> String {
+fn describe_moderator(m: &crate::result::Moderator) -> String {
     use crate::model::design::ModeratorKind;
     match &m.kind {
         ModeratorKind::Numeric { .. } => "numeric".into(),

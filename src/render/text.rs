@@ -1,6 +1,7 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
-use crate::result::{AtValue, Estimate, FitReport, Reading};
+use crate::effect::Measure;
+use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, Reading};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 use std::io::Write;
@@ -62,8 +63,8 @@ fn reading_line(r: &Reading, name: &str) -> String {
     format!(
         "as {name}: {}  CI {}  new study {}",
         num(r.estimate),
-        fmt::interval(r.ci_low, r.ci_high),
-        fmt::interval(r.pi_low, r.pi_high)
+        fmt::interval(r.ci.ci_low, r.ci.ci_high),
+        fmt::interval(r.pi.pi_low, r.pi.pi_high)
     )
 }
 
@@ -71,14 +72,14 @@ fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name:
     let _ = writeln!(
         out,
         "  {}  ({level_pct} CI {}, SE {})",
-        num(e.estimate),
-        fmt::interval(e.ci_low, e.ci_high),
-        num(e.se)
+        num(e.mean.estimate),
+        fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
+        num(e.mean.se)
     );
     let _ = writeln!(
         out,
         "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
-        fmt::interval(e.pi_low, e.pi_high)
+        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
     );
     if let (Some(r), Some(name)) = (&e.reading, reading_name) {
         let _ = writeln!(out, "  {}", reading_line(r, name));
@@ -170,7 +171,14 @@ pub fn render(r: &FitReport) -> String {
     }
 
     let scale = match &r.measure.reading_name {
-        Some(_) if r.measure.id == "r" || r.measure.id == "partial-r" => " (Fisher z scale)",
+        Some(_)
+            if matches!(
+                r.measure.id,
+                MeasureId::Measure(Measure::R | Measure::PartialR)
+            ) =>
+        {
+            " (Fisher z scale)"
+        }
         Some(_) => " (log scale)",
         None => "",
     };
@@ -182,11 +190,15 @@ pub fn render(r: &FitReport) -> String {
         .max()
         .unwrap_or(4)
         .clamp(9, 28);
-    let stat = if r.model.inference == "kh" { "t" } else { "z" };
+    let stat = if r.model.inference == Inference::Kh {
+        "t"
+    } else {
+        "z"
+    };
     let cw = r
         .coefficients
         .iter()
-        .map(|c| width(&fmt::interval(c.ci_low, c.ci_high)))
+        .map(|c| width(&fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high)))
         .max()
         .unwrap_or(10)
         .max(width(&format!("{level_pct} CI")));
@@ -208,19 +220,26 @@ pub fn render(r: &FitReport) -> String {
             o,
             "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
-            lpad(&num(c.estimate), 10),
-            lpad(&num(c.se), 9),
-            pad(&fmt::interval(c.ci_low, c.ci_high), cw),
-            lpad(&format!("{:.2}", c.statistic), 7),
-            pad(fmt::p(c.p).trim_start_matches("= "), 8),
+            lpad(&num(c.contrast.estimate), 10),
+            lpad(&num(c.contrast.se), 9),
+            pad(
+                &fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                cw
+            ),
+            lpad(&format!("{:.2}", c.contrast.test.statistic), 7),
+            pad(fmt::p(c.contrast.test.p).trim_start_matches("= "), 8),
             c.ratio
                 .as_ref()
-                .map(|x| format!("{} {}", num(x.estimate), fmt::interval(x.ci_low, x.ci_high)))
+                .map(|x| format!(
+                    "{} {}",
+                    num(x.estimate),
+                    fmt::interval(x.ci.ci_low, x.ci.ci_high)
+                ))
                 .unwrap_or_default()
         );
     }
     if let Some(c) = r.coefficients.first() {
-        if let Some(df) = c.df {
+        if let Some(df) = c.contrast.test.df {
             let _ = writeln!(o, "  (t tests on {df} degrees of freedom)");
         }
     }
@@ -247,7 +266,7 @@ pub fn render(r: &FitReport) -> String {
             "Heterogeneity"
         }
     );
-    let ci = match (r.tau2.ci_low, r.tau2.ci_high) {
+    let ci = match (r.tau2.ci.ci_low, r.tau2.ci.ci_high) {
         (Some(a), Some(b)) => format!("  ({level_pct} CI {})", fmt::interval(a, b)),
         _ if r.variance_components.is_some() => "  (between + within clusters, below)".into(),
         _ => "  (fixed by the common-effect model)".into(),
@@ -316,10 +335,10 @@ pub fn render(r: &FitReport) -> String {
             let _ = writeln!(
                 o,
                 "    {}  ({level_pct} CI {}, SE {}); new study {}",
-                num(p.estimate),
-                fmt::interval(p.ci_low, p.ci_high),
-                num(p.se),
-                fmt::interval(p.pi_low, p.pi_high)
+                num(p.mean.estimate),
+                fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
+                num(p.mean.se),
+                fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
             );
             if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
                 let _ = writeln!(o, "    {}", reading_line(rd, name));
