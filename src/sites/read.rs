@@ -4,6 +4,7 @@
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{detect_delimiter, find_header};
+use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
 
@@ -68,7 +69,7 @@ pub struct RowColumns {
     pub site: String,
     /// Numeric headers in the order of the values handed to the caller, with
     /// the flag each was given as (for messages).
-    pub numeric: Vec<(String, &'static str)>,
+    pub numeric: Vec<(String, Flag)>,
 }
 
 /// What a pass saw besides the rows it handed on.
@@ -209,7 +210,7 @@ fn read_headers<R: Read>(source: &str, reader: &mut RowReader<R>) -> Result<Vec<
 /// # Errors
 /// [`Error::MissingColumn`] when it is absent; [`Error::Format`] when its
 /// name is repeated in the header.
-fn locate(source: &str, headers: &[String], wanted: &str, flag: &str) -> Result<usize> {
+fn locate(source: &str, headers: &[String], wanted: &str, flag: Flag) -> Result<usize> {
     let i = find_header(headers, wanted).ok_or_else(|| Error::MissingColumn {
         source_name: source.to_string(),
         column: wanted.to_string(),
@@ -361,10 +362,10 @@ pub fn for_each_row<R: Read>(
 ) -> Result<PassSummary> {
     let (mut reader, delimiter) = open(source, input)?;
     let headers = read_headers(source, &mut reader)?;
-    let site_ix = locate(source, &headers, &cols.site, "--site")?;
+    let site_ix = locate(source, &headers, &cols.site, Flag::Site)?;
     let mut num_ix = Vec::with_capacity(cols.numeric.len());
     for (h, flag) in &cols.numeric {
-        num_ix.push(locate(source, &headers, h, flag)?);
+        num_ix.push(locate(source, &headers, h, *flag)?);
     }
     let mut summary = PassSummary {
         delimiter,
@@ -448,7 +449,7 @@ mod tests {
     fn cols() -> RowColumns {
         RowColumns {
             site: "site".into(),
-            numeric: vec![("x".into(), "--x"), ("y".into(), "--y")],
+            numeric: vec![("x".into(), Flag::X), ("y".into(), Flag::Y)],
         }
     }
 
