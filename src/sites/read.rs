@@ -4,6 +4,7 @@
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{detect_delimiter, find_header};
+use crate::input::{format_error, read_headers};
 use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
@@ -130,13 +131,6 @@ pub const MISSING_LINES_KEPT: usize = 20;
 /// The CSV reader of a pass, over the line-break counter.
 type RowReader<R> = csv::Reader<BreakCounter<BufReader<R>>>;
 
-fn format_error(source: &str, message: String) -> Error {
-    Error::Format {
-        source_name: source.to_string(),
-        message,
-    }
-}
-
 fn io_error(source: &str, e: std::io::Error) -> Error {
     Error::Io {
         path: source.to_string(),
@@ -161,7 +155,7 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
     if head.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(format_error(
             source,
-            "the file is empty; it needs a header row and one row per participant".into(),
+            "the file is empty; it needs a header row and one row per participant",
         ));
     }
     let delimiter = detect_delimiter(head);
@@ -178,31 +172,6 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
         .buffer_capacity(1 << 16)
         .from_reader(counter);
     Ok((reader, delimiter))
-}
-
-/// The header row, each field trimmed.
-///
-/// # Errors
-/// [`Error::Format`] when it cannot be read or is not UTF-8.
-fn read_headers<R: Read>(source: &str, reader: &mut RowReader<R>) -> Result<Vec<String>> {
-    let header_record = reader
-        .byte_headers()
-        .map_err(|e| format_error(source, format!("the header row cannot be read: {e}")))?
-        .clone();
-    let mut headers = Vec::with_capacity(header_record.len());
-    for (i, field) in header_record.iter().enumerate() {
-        let text = std::str::from_utf8(field).map_err(|_| {
-            format_error(
-                source,
-                format!(
-                    "header field {} is not valid UTF-8; save the file as UTF-8",
-                    i + 1
-                ),
-            )
-        })?;
-        headers.push(text.trim().to_string());
-    }
-    Ok(headers)
 }
 
 /// The position of the column `wanted` (given as `flag`) in `headers`.
@@ -436,7 +405,7 @@ pub fn for_each_row<R: Read>(
     if summary.rows == 0 {
         return Err(format_error(
             source,
-            "the file has a header row but no data rows; add one row per participant".into(),
+            "the file has a header row but no data rows; add one row per participant",
         ));
     }
     Ok(summary)
