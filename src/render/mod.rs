@@ -6,6 +6,7 @@ pub mod figure;
 pub mod html;
 pub mod interpret;
 pub mod json;
+pub mod layout;
 pub mod multilevel;
 pub mod sites;
 pub mod table;

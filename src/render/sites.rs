@@ -207,7 +207,7 @@ pub fn render(r: &SitesReport) -> String {
     if !r.notes.is_empty() {
         let _ = writeln!(o);
         for n in &r.notes {
-            o.push_str(&super::text::wrap(n, "  ", 88));
+            o.push_str(&super::layout::wrap(n, "  ", 88));
         }
     }
     if let Some(st) = &r.stages {
@@ -241,7 +241,7 @@ pub fn render(r: &SitesReport) -> String {
         if !st.answers.is_empty() {
             let _ = writeln!(o, "\nWhich answer is which:");
             for a in &st.answers {
-                o.push_str(&super::text::wrap(a, "  ", 88));
+                o.push_str(&super::layout::wrap(a, "  ", 88));
             }
         }
         if let Some(f) = &st.characteristics {
@@ -250,7 +250,7 @@ pub fn render(r: &SitesReport) -> String {
         }
         let _ = writeln!(o, "\nCautions:");
         for c in &st.cautions {
-            o.push_str(&super::text::wrap(&format!("- {c}"), "  ", 88));
+            o.push_str(&super::layout::wrap(&format!("- {c}"), "  ", 88));
         }
     }
     o
