@@ -68,18 +68,28 @@ pub fn assert_finite(r: &FitReport) {
         r.heterogeneity.q,
         r.heterogeneity.i2,
         r.heterogeneity.h2,
-        r.average.estimate,
-        r.average.se,
-        r.average.ci_low,
-        r.average.ci_high,
-        r.average.pi_low,
-        r.average.pi_high,
+        r.average.mean.estimate,
+        r.average.mean.se,
+        r.average.mean.ci.ci_low,
+        r.average.mean.ci.ci_high,
+        r.average.mean.pi.pi_low,
+        r.average.mean.pi.pi_high,
     ];
-    xs.extend(r.tau2.ci_low);
-    xs.extend(r.tau2.ci_high);
+    xs.extend(r.tau2.ci.ci_low);
+    xs.extend(r.tau2.ci.ci_high);
     for c in &r.coefficients {
-        xs.extend([c.estimate, c.se, c.ci_low, c.ci_high, c.statistic]);
-        assert!((0.0..=1.0).contains(&c.p), "p = {} outside [0, 1]", c.p);
+        xs.extend([
+            c.contrast.estimate,
+            c.contrast.se,
+            c.contrast.ci.ci_low,
+            c.contrast.ci.ci_high,
+            c.contrast.test.statistic,
+        ]);
+        assert!(
+            (0.0..=1.0).contains(&c.contrast.test.p),
+            "p = {} outside [0, 1]",
+            c.contrast.test.p
+        );
     }
     if let Some(t) = &r.moderator_test {
         xs.push(t.statistic);

@@ -6,7 +6,7 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
 use crate::model::{inference, FitOptions};
-use crate::result::{AtValue, CumulativeStep};
+use crate::result::{AtValue, CumulativeStep, Interval, SortOrder};
 
 /// The steps of a cumulative meta-analysis.
 ///
@@ -38,8 +38,7 @@ pub fn steps(
                 k: j,
                 estimate: None,
                 se: None,
-                ci_low: None,
-                ci_high: None,
+                ci: Interval::new(None, None),
                 p: None,
                 tau2: None,
                 i2: None,
@@ -48,8 +47,7 @@ pub fn steps(
                 let se = v[last].sqrt();
                 s.estimate = Some(y[last]);
                 s.se = Some(se);
-                s.ci_low = Some(y[last] - z * se);
-                s.ci_high = Some(y[last] + z * se);
+                s.ci = Interval::new(Some(y[last] - z * se), Some(y[last] + z * se));
                 s.p = Some(dist::normal_two_sided_p(y[last] / se));
                 return s;
             }
@@ -62,8 +60,7 @@ pub fn steps(
                 if pr.se.is_finite() && c[0].p.is_finite() {
                     s.estimate = Some(pr.estimate);
                     s.se = Some(pr.se);
-                    s.ci_low = Some(pr.ci_low);
-                    s.ci_high = Some(pr.ci_high);
+                    s.ci = Interval::new(Some(pr.ci_low), Some(pr.ci_high));
                     s.p = Some(c[0].p);
                     s.tau2 = Some(f.tau2.estimate);
                     s.i2 = Some(super::i2(&f));
@@ -80,7 +77,7 @@ pub fn steps(
 ///
 /// # Errors
 /// [`Error::Usage`] naming the file, line and column of a missing cell.
-pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, &'static str)> {
+pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, SortOrder)> {
     if let Some(i) = col.cells.iter().position(|c| is_missing(c)) {
         return Err(Error::usage(
             "--cumulative-by",
@@ -103,12 +100,20 @@ pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue
     match numbers {
         Some(x) => {
             idx.sort_by(|&a, &b| x[a].total_cmp(&x[b]));
-            Ok((idx, x.into_iter().map(AtValue::Number).collect(), "numeric"))
+            Ok((
+                idx,
+                x.into_iter().map(AtValue::Number).collect(),
+                SortOrder::Numeric,
+            ))
         }
         None => {
             let t: Vec<String> = col.cells.iter().map(|c| c.trim().to_string()).collect();
             idx.sort_by(|&a, &b| t[a].cmp(&t[b]));
-            Ok((idx, t.into_iter().map(AtValue::Level).collect(), "text"))
+            Ok((
+                idx,
+                t.into_iter().map(AtValue::Level).collect(),
+                SortOrder::Text,
+            ))
         }
     }
 }

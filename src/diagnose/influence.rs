@@ -4,7 +4,7 @@
 use super::{model_cov, Deleted, ModelData};
 use crate::dist::{self, Tail};
 use crate::model::ModelFit;
-use crate::result::{Influence, InfluenceCutoffs};
+use crate::result::{Cutoff, Influence, InfluenceCutoffs};
 use nalgebra::{DMatrix, DVector};
 
 /// The cut-offs for k studies and p coefficients at confidence `level`.
@@ -106,17 +106,17 @@ pub fn table(
                 }
             }
             if inf.dffits.is_some_and(|x| x.abs() > cut.dffits) {
-                inf.exceeded.push("dffits".into());
+                inf.exceeded.push(Cutoff::Dffits);
             }
             if inf.cooks_distance.is_some_and(|x| x > cut.cooks_distance) {
-                inf.exceeded.push("cooks_distance".into());
+                inf.exceeded.push(Cutoff::CooksDistance);
             }
             if hat > cut.hat {
-                inf.exceeded.push("hat".into());
+                inf.exceeded.push(Cutoff::Hat);
             }
             inf.influential = !inf.exceeded.is_empty();
             if inf.rstudent.is_some_and(|x| x.abs() > cut.rstudent) {
-                inf.exceeded.push("rstudent".into());
+                inf.exceeded.push(Cutoff::Rstudent);
             }
             inf
         })

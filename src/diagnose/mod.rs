@@ -265,7 +265,7 @@ pub fn run(
         ));
         out.cumulative_order = Some(crate::result::CumulativeOrder {
             column: col.header.clone(),
-            order: kind.into(),
+            order: kind,
         });
         if d.p > 1 {
             out.notes.push(

@@ -7,7 +7,9 @@ use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::model::wls::{fit_with, Data, Want};
 use crate::model::{self, inference, FitOptions};
-use crate::result::{AsymmetryTest, FilledStudy, RankTest, RatioCoefficient, SmallStudy, TrimFill};
+use crate::result::{
+    AsymmetryTest, FilledStudy, Interval, RankTest, RatioCoefficient, Side, SmallStudy, TrimFill,
+};
 use crate::tolerance::TRIM_FILL_MAX_ITERS;
 
 /// Fewest studies for which the small-study analyses are computed at all.
@@ -270,17 +272,15 @@ pub fn trim_fill(
     let (observed, _, _) = pooled(y, v, options)?;
     Ok(TrimFill {
         filled: k0,
-        side: if left { "left" } else { "right" }.into(),
+        side: if left { Side::Left } else { Side::Right },
         estimate: est,
-        ci_low: lo,
-        ci_high: hi,
+        ci: Interval::new(lo, hi),
         estimate_observed: observed,
         iterations,
         filled_studies: filled,
         reading: (scale != ReadingScale::Same).then(|| RatioCoefficient {
             estimate: scale.apply(est),
-            ci_low: scale.apply(lo),
-            ci_high: scale.apply(hi),
+            ci: Interval::new(scale.apply(lo), scale.apply(hi)),
         }),
     })
 }

@@ -149,7 +149,7 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
     let singles = parts.sizes.iter().filter(|&&n| n == 1).count();
     let v_typ = report.heterogeneity.typical_variance;
     let mut lr_tests = Vec::new();
-    let fitted_by = if report.model.tau2_method == "ml" {
+    let fitted_by = if report.model.tau2_method == Tau2Method::Ml {
         "ML"
     } else {
         "REML"
@@ -160,28 +160,26 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
         let ci = t.intervals;
         report.variance_components = Some(vec![
             VarianceComponent {
-                level: "between".into(),
+                level: ClusterLevel::Between,
                 estimate: c.between,
-                ci_low: ci.map(|c| c.0 .0),
-                ci_high: ci.map(|c| c.0 .1),
+                ci: Interval::new(ci.map(|c| c.0 .0), ci.map(|c| c.0 .1)),
                 i2: c.between / total,
             },
             VarianceComponent {
-                level: "within".into(),
+                level: ClusterLevel::Within,
                 estimate: c.within,
-                ci_low: ci.map(|c| c.1 .0),
-                ci_high: ci.map(|c| c.1 .1),
+                ci: Interval::new(ci.map(|c| c.1 .0), ci.map(|c| c.1 .1)),
                 i2: c.within / total,
             },
         ]);
         let ll = fit.log_likelihood.unwrap_or(f64::NAN);
         for (name, ll0) in [
-            ("within", t.ll_without_within),
-            ("between", t.ll_without_between),
+            (ClusterLevel::Within, t.ll_without_within),
+            (ClusterLevel::Between, t.ll_without_between),
         ] {
             let (stat, p) = multilevel::lr_test(ll, ll0);
             lr_tests.push(ComponentTest {
-                component: name.into(),
+                component: name,
                 statistic: stat,
                 log_likelihood_without: ll0,
                 p,
@@ -197,7 +195,7 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
              a new cluster. Variance-component intervals are profile-likelihood intervals.",
             parts.header
         ));
-        if report.model.inference == "kh" {
+        if report.model.inference == Inference::Kh {
             report.notes.push(
                 "Under kh the coefficient covariance of the three-level model is scaled by \
                  r'V⁻¹r/(k − p) and tested with t(k − p) (Knapp–Hartung carried over to the \
@@ -274,7 +272,7 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
             mt.df1 = t.df1;
             mt.df2 = Some(t.df2);
             mt.p = t.p;
-            mt.distribution = "F".into();
+            mt.distribution = TestDistribution::F;
             mt.significant = significant;
             mt.answer = crate::fit::answer(
                 significant,
@@ -288,7 +286,7 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
             );
             mt.answer
                 .push_str(" (Cluster-robust test: CR2 approximate Hotelling T², HTZ.)");
-            mt.method = Some("CR2 approximate Hotelling T² (HTZ)".into());
+            mt.method = Some(RobustTestMethod::Htz);
             if t.df2 < ROBUST_MIN_DF {
                 report.warnings.push(format!(
                     "The robust moderator test has {:.1} denominator df (below {ROBUST_MIN_DF}): \
@@ -310,11 +308,10 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
         single_effect_clusters: singles,
         max_cluster_size: parts.sizes.iter().copied().max().unwrap_or(0),
         model: if parts.three.is_some() {
-            "three-level"
+            ClusterModel::ThreeLevel
         } else {
-            "two-level"
-        }
-        .into(),
+            ClusterModel::TwoLevel
+        },
         lr_tests,
         moderator_levels: report
             .coefficients
@@ -323,7 +320,11 @@ pub fn finish(report: &mut FitReport, parts: Parts, moderators: &[&str], fit: &M
             .zip(&parts.levels)
             .map(|(c, &w)| TermLevel {
                 term: c.term.clone(),
-                level: if w { "within" } else { "between" }.into(),
+                level: if w {
+                    ClusterLevel::Within
+                } else {
+                    ClusterLevel::Between
+                },
             })
             .collect(),
         robust: robust_text,

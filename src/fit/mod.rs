@@ -281,17 +281,19 @@ pub fn run_with_progress(
         .zip(&coefs)
         .map(|(t, c)| Coefficient {
             term: t.name.clone(),
-            estimate: c.estimate,
-            se: c.se,
-            ci_low: c.ci_low,
-            ci_high: c.ci_high,
-            statistic: c.statistic,
-            df: c.df,
-            p: c.p,
+            contrast: ContrastTest {
+                estimate: c.estimate,
+                se: c.se,
+                ci: Interval::new(c.ci_low, c.ci_high),
+                test: Test {
+                    statistic: c.statistic,
+                    df: c.df,
+                    p: c.p,
+                },
+            },
             ratio: (scale == ReadingScale::Ratio).then(|| RatioCoefficient {
                 estimate: c.estimate.exp(),
-                ci_low: c.ci_low.exp(),
-                ci_high: c.ci_high.exp(),
+                ci: Interval::new(c.ci_low, c.ci_high).map(f64::exp),
             }),
             robust_se: None,
             robust_df: None,
@@ -310,7 +312,11 @@ pub fn run_with_progress(
             df1: t.df1,
             df2: t.df2,
             p: t.p,
-            distribution: if t.df2.is_some() { "F" } else { "chi-square" }.into(),
+            distribution: if t.df2.is_some() {
+                TestDistribution::F
+            } else {
+                TestDistribution::ChiSquare
+            },
             significant,
             answer: answer(
                 significant,
@@ -418,8 +424,7 @@ pub fn run_with_progress(
             line: table.lines[i],
             effect: yi,
             variance: vi,
-            ci_low: yi - half,
-            ci_high: yi + half,
+            ci: Interval::new(yi - half, yi + half),
             weight: 100.0 * fit.weights[pos] / total_w,
             fitted: fit.fitted[pos],
             residual: yi - fit.fitted[pos],
@@ -512,13 +517,13 @@ pub fn run_with_progress(
         },
         input: InputInfo {
             file: source.to_string(),
-            delimiter: table.delimiter_name().into(),
+            delimiter: input::Delimiter::of(table.delimiter),
             rows: table.len(),
             label_column,
             sha256: crate::support::hash::sha256_hex(bytes),
         },
         measure: MeasureInfo {
-            id: measure.id().into(),
+            id: MeasureId::Measure(measure),
             description: measure.describe().into(),
             reading_scale: scale,
             reading_name: measure.reading_name().map(String::from),
@@ -527,14 +532,10 @@ pub fn run_with_progress(
         k,
         excluded,
         model: ModelInfo {
-            tau2_method: settings.options.method.id().into(),
+            tau2_method: settings.options.method,
             tau2_description: settings.options.method.describe().into(),
             inference_description: settings.options.inference.describe().into(),
-            inference: match settings.options.inference {
-                Inference::Kh => "kh",
-                Inference::Z => "z",
-            }
-            .into(),
+            inference: settings.options.inference,
             level,
             terms: design.terms.iter().map(|t| t.name.clone()).collect(),
             moderators: design.moderators.clone(),
@@ -552,11 +553,10 @@ pub fn run_with_progress(
             log_likelihood: fit.log_likelihood,
         },
         tau2: Tau2Report {
-            method: settings.options.method.id().into(),
+            method: settings.options.method,
             estimate: fit.tau2.estimate,
             tau: fit.tau2.estimate.sqrt(),
-            ci_low: fit.tau2_ci.map(|c| c.0),
-            ci_high: fit.tau2_ci.map(|c| c.1),
+            ci: Interval::new(fit.tau2_ci.map(|c| c.0), fit.tau2_ci.map(|c| c.1)),
             ending: fit.tau2.ending,
             evaluations: fit.tau2.evaluations,
         },
@@ -589,7 +589,7 @@ pub fn run_with_progress(
     }
     if report.artifacts.is_some() {
         report.measure = MeasureInfo {
-            id: "r-corrected".into(),
+            id: MeasureId::RCorrected,
             description: "Pearson correlations corrected for artifacts (Hunter–Schmidt), \
                           analysed on the r scale"
                 .into(),
@@ -614,10 +614,10 @@ fn check_finite(r: &FitReport) -> Result<()> {
     check("τ²".into(), r.tau2.estimate);
     for c in &r.coefficients {
         for (n, x) in [
-            ("estimate", c.estimate),
-            ("SE", c.se),
-            ("statistic", c.statistic),
-            ("p", c.p),
+            ("estimate", c.contrast.estimate),
+            ("SE", c.contrast.se),
+            ("statistic", c.contrast.test.statistic),
+            ("p", c.contrast.test.p),
         ] {
             check(format!("{} {n}", c.term), x);
         }
@@ -632,19 +632,25 @@ fn check_finite(r: &FitReport) -> Result<()> {
     }
     let a = &r.average;
     for (n, x) in [
-        ("average", a.estimate),
-        ("average SE", a.se),
-        ("prediction interval", a.pi_low),
+        ("average", a.mean.estimate),
+        ("average SE", a.mean.se),
+        ("prediction interval", a.mean.pi.pi_low),
     ] {
         check(n.into(), x);
     }
     for p in &r.predictions {
-        check("prediction".into(), p.estimate);
-        check("prediction SE".into(), p.se);
+        check("prediction".into(), p.mean.estimate);
+        check("prediction SE".into(), p.mean.se);
     }
     for e in &r.interpretation.conditional_effects {
-        check(format!("conditional effect at {}", e.moderator), e.estimate);
-        check(format!("conditional effect SE at {}", e.moderator), e.se);
+        check(
+            format!("conditional effect at {}", e.moderator),
+            e.mean.estimate,
+        );
+        check(
+            format!("conditional effect SE at {}", e.moderator),
+            e.mean.se,
+        );
     }
     for s in &r.interpretation.simple_slopes {
         check(format!("simple slope of {}", s.of), s.test.se);
@@ -766,23 +772,12 @@ fn duplicate_label_warnings(included: &[usize], labels: &[String]) -> Vec<String
 
 /// The values of a prediction on the reading scale (None when it is the analysis scale).
 pub(crate) fn reading(p: &PredictionInference, scale: ReadingScale) -> Option<Reading> {
-    (scale != ReadingScale::Same).then(|| Reading {
-        estimate: scale.apply(p.estimate),
-        ci_low: scale.apply(p.ci_low),
-        ci_high: scale.apply(p.ci_high),
-        pi_low: scale.apply(p.pi_low),
-        pi_high: scale.apply(p.pi_high),
-    })
+    p.reading(scale)
 }
 
 fn estimate(p: PredictionInference, scale: ReadingScale) -> Estimate {
     Estimate {
-        estimate: p.estimate,
-        se: p.se,
-        ci_low: p.ci_low,
-        ci_high: p.ci_high,
-        pi_low: p.pi_low,
-        pi_high: p.pi_high,
+        mean: p.mean_effect(),
         reading: reading(&p, scale),
     }
 }
@@ -858,12 +853,7 @@ fn prediction(
     let p = inference::predict(fit, &x0);
     Ok(Prediction {
         at,
-        estimate: p.estimate,
-        se: p.se,
-        ci_low: p.ci_low,
-        ci_high: p.ci_high,
-        pi_low: p.pi_low,
-        pi_high: p.pi_high,
+        mean: p.mean_effect(),
         reading: reading(&p, scale),
         outside_range: outside,
     })
@@ -988,10 +978,8 @@ fn curves(design: &design::Design, fit: &ModelFit) -> Result<Vec<Curve>> {
             points.push(CurvePoint {
                 x,
                 estimate: p.estimate,
-                ci_low: p.ci_low,
-                ci_high: p.ci_high,
-                pi_low: p.pi_low,
-                pi_high: p.pi_high,
+                ci: Interval::new(p.ci_low, p.ci_high),
+                pi: PredictionInterval::new(p.pi_low, p.pi_high),
             });
         }
         out.push(Curve {

@@ -135,11 +135,45 @@ impl Table {
 
     /// The delimiter in words.
     pub fn delimiter_name(&self) -> &'static str {
-        match self.delimiter {
-            b';' => "semicolon",
-            b'\t' => "tab",
-            _ => "comma",
+        Delimiter::of(self.delimiter).id()
+    }
+}
+
+/// A detected delimiter, as named in the results.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Delimiter {
+    /// `,` (also the fallback).
+    Comma,
+    /// `;`.
+    Semicolon,
+    /// A tab.
+    Tab,
+}
+
+impl Delimiter {
+    /// The delimiter of the byte `b` (comma for any byte but `;` and tab).
+    pub fn of(b: u8) -> Self {
+        match b {
+            b';' => Delimiter::Semicolon,
+            b'\t' => Delimiter::Tab,
+            _ => Delimiter::Comma,
         }
+    }
+
+    /// The word used in the results.
+    pub fn id(self) -> &'static str {
+        match self {
+            Delimiter::Comma => "comma",
+            Delimiter::Semicolon => "semicolon",
+            Delimiter::Tab => "tab",
+        }
+    }
+}
+
+impl std::fmt::Display for Delimiter {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.id())
     }
 }
 
@@ -215,10 +249,47 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         .has_headers(true)
         .flexible(true)
         .from_reader(bytes);
+    let headers = read_headers(source, &mut reader)?;
+    let indices = match_requests(source, &headers, requests)?;
+    let mut columns: Vec<Option<Column>> = indices
+        .iter()
+        .map(|ix| {
+            ix.map(|i| Column {
+                header: headers[i].clone(),
+                ..Column::default()
+            })
+        })
+        .collect();
+    let rows = read_rows(
+        source,
+        bytes,
+        delimiter,
+        &mut reader,
+        &headers,
+        &indices,
+        &mut columns,
+    )?;
+    if rows.lines.is_empty() {
+        return Err(format_error(
+            source,
+            "the file has a header row but no data rows; add one row per study",
+        ));
+    }
+    Ok(Table {
+        source: source.to_string(),
+        delimiter,
+        headers,
+        columns,
+        lines: rows.lines,
+        blank_rows: rows.blank_rows,
+    })
+}
+
+/// The header row, each name trimmed.
+fn read_headers(source: &str, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<String>> {
     let header_record = reader
         .byte_headers()
-        .map_err(|e| format_error(source, format!("the header row cannot be read: {e}")))?
-        .clone();
+        .map_err(|e| format_error(source, format!("the header row cannot be read: {e}")))?;
     let mut headers = Vec::with_capacity(header_record.len());
     for (i, field) in header_record.iter().enumerate() {
         let text = std::str::from_utf8(field).map_err(|_| {
@@ -232,10 +303,19 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         })?;
         headers.push(text.trim().to_string());
     }
+    Ok(headers)
+}
 
+/// The header index of each requested column (None for an optional column
+/// that is absent).
+fn match_requests(
+    source: &str,
+    headers: &[String],
+    requests: &[ColumnRequest],
+) -> Result<Vec<Option<usize>>> {
     let mut indices = Vec::with_capacity(requests.len());
     for req in requests {
-        match find_header(&headers, &req.header) {
+        match find_header(headers, &req.header) {
             Some(i) => {
                 let dup = headers.iter().filter(|h| **h == headers[i]).count();
                 if dup > 1 {
@@ -261,38 +341,66 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
             None => indices.push(None),
         }
     }
-    let mut columns: Vec<Option<Column>> = indices
-        .iter()
-        .map(|ix| {
-            ix.map(|i| Column {
-                header: headers[i].clone(),
-                ..Column::default()
-            })
-        })
-        .collect();
+    Ok(indices)
+}
 
-    let mut lines = Vec::new();
-    let mut blank_rows = 0;
-    let mut record = csv::ByteRecord::new();
-    // Line numbers are counted from byte offsets: the csv crate's own line
-    // count skips blank lines and miscounts CRLF files, and its offset points
-    // at the line breaks before a record, which are skipped here.
-    let mut counted_to = 0usize;
-    let mut line_no = 1u64;
-    let mut line_at = |offset: usize| {
+/// Line numbers from byte offsets. The csv crate's own line count skips
+/// blank lines and miscounts CRLF files, and its offset points at the line
+/// breaks before a record, which are skipped here.
+struct LineCounter<'a> {
+    bytes: &'a [u8],
+    counted_to: usize,
+    line_no: u64,
+}
+
+impl<'a> LineCounter<'a> {
+    fn new(bytes: &'a [u8]) -> Self {
+        LineCounter {
+            bytes,
+            counted_to: 0,
+            line_no: 1,
+        }
+    }
+
+    /// The 1-based line of the record starting at `offset`.
+    fn line_at(&mut self, offset: usize) -> u64 {
+        let bytes = self.bytes;
         let mut end = offset.min(bytes.len());
         while end < bytes.len() && (bytes[end] == b'\n' || bytes[end] == b'\r') {
             end += 1;
         }
-        if end > counted_to {
-            line_no += bytes[counted_to..end]
+        if end > self.counted_to {
+            self.line_no += bytes[self.counted_to..end]
                 .iter()
                 .filter(|&&b| b == b'\n')
                 .count() as u64;
-            counted_to = end;
+            self.counted_to = end;
         }
-        line_no
-    };
+        self.line_no
+    }
+}
+
+/// What the row loop found besides the cells.
+struct Rows {
+    lines: Vec<u64>,
+    blank_rows: usize,
+}
+
+/// Reads every data row into the requested columns; blank rows are
+/// counted and skipped.
+fn read_rows(
+    source: &str,
+    bytes: &[u8],
+    delimiter: u8,
+    reader: &mut csv::Reader<&[u8]>,
+    headers: &[String],
+    indices: &[Option<usize>],
+    columns: &mut [Option<Column>],
+) -> Result<Rows> {
+    let mut lines = Vec::new();
+    let mut blank_rows = 0;
+    let mut record = csv::ByteRecord::new();
+    let mut counter = LineCounter::new(bytes);
     loop {
         match reader.read_byte_record(&mut record) {
             Ok(false) => break,
@@ -300,7 +408,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
             Err(e) => {
                 let line = e
                     .position()
-                    .map(|p| line_at(p.byte() as usize))
+                    .map(|p| counter.line_at(p.byte() as usize))
                     .unwrap_or(0);
                 return Err(format_error(
                     source,
@@ -310,7 +418,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         }
         let line = record
             .position()
-            .map(|p| line_at(p.byte() as usize))
+            .map(|p| counter.line_at(p.byte() as usize))
             .unwrap_or(0);
         if record
             .iter()
@@ -331,7 +439,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
                 ),
             ));
         }
-        for (col, ix) in columns.iter_mut().zip(&indices) {
+        for (col, ix) in columns.iter_mut().zip(indices) {
             if let (Some(col), Some(i)) = (col.as_mut(), ix) {
                 let text = std::str::from_utf8(&record[*i]).map_err(|_| {
                     format_error(
@@ -347,20 +455,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         }
         lines.push(line);
     }
-    if lines.is_empty() {
-        return Err(format_error(
-            source,
-            "the file has a header row but no data rows; add one row per study",
-        ));
-    }
-    Ok(Table {
-        source: source.to_string(),
-        delimiter,
-        headers,
-        columns,
-        lines,
-        blank_rows,
-    })
+    Ok(Rows { lines, blank_rows })
 }
 
 #[cfg(test)]

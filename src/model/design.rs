@@ -19,42 +19,7 @@ pub struct ModeratorSpec {
     pub center: bool,
 }
 
-/// The kind of a moderator, as found in the data.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-#[serde(tag = "type", rename_all = "lowercase")]
-pub enum ModeratorKind {
-    /// A number per study.
-    Numeric {
-        /// Mean over the included studies.
-        mean: f64,
-        /// SD over the included studies (divisor k − 1).
-        sd: f64,
-        /// Smallest included value.
-        min: f64,
-        /// Largest included value.
-        max: f64,
-        /// Whether the mean was subtracted before fitting.
-        centered: bool,
-    },
-    /// A label per study, dummy-coded against a reference level.
-    Categorical {
-        /// Levels in sorted order.
-        levels: Vec<String>,
-        /// Studies per level, in the order of `levels`.
-        counts: Vec<usize>,
-        /// The reference level.
-        reference: String,
-    },
-}
-
-/// A moderator as used in the model.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Moderator {
-    /// Column header.
-    pub name: String,
-    /// Numeric or categorical, with its summary.
-    pub kind: ModeratorKind,
-}
+pub use crate::result::{Moderator, ModeratorKind};
 
 /// The per-row raw values of one moderator (all rows of the table).
 #[derive(Debug, Clone)]
@@ -299,89 +264,20 @@ pub fn build(
     interactions: &[(usize, usize)],
 ) -> Result<Design> {
     let k = included.len();
-    let mut moderators = Vec::with_capacity(specs.len());
-    for (spec, r) in specs.iter().zip(raw) {
-        let kind = match r {
-            RawModerator::Numeric(v) => {
-                let xs: Vec<f64> = included.iter().map(|&i| v[i].unwrap_or(f64::NAN)).collect();
-                let mean = xs.iter().sum::<f64>() / k as f64;
-                let var =
-                    xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
-                let min = xs.iter().copied().fold(f64::INFINITY, f64::min);
-                let max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-                if min == max {
-                    return Err(Error::Model(format!(
-                        "moderator '{}' has the same value ({min}) in every included study, so its \
-                         effect cannot be estimated; drop it",
-                        spec.name
-                    )));
-                }
-                ModeratorKind::Numeric {
-                    mean,
-                    sd: var.sqrt(),
-                    min,
-                    max,
-                    centered: spec.center,
-                }
-            }
-            RawModerator::Text(v) => {
-                if spec.center {
-                    return Err(Error::usage(
-                        "--center",
-                        format!(
-                            "moderator '{}' is categorical and cannot be centred",
-                            spec.name
-                        ),
-                    ));
-                }
-                let mut levels: Vec<String> =
-                    included.iter().filter_map(|&i| v[i].clone()).collect();
-                sort_levels(&mut levels);
-                levels.dedup();
-                if levels.len() < 2 {
-                    return Err(Error::Model(format!(
-                        "moderator '{}' has only one level ('{}') among the included studies, so its \
-                         effect cannot be estimated; drop it",
-                        spec.name,
-                        levels.first().cloned().unwrap_or_default()
-                    )));
-                }
-                let counts = levels
-                    .iter()
-                    .map(|l| {
-                        included
-                            .iter()
-                            .filter(|&&i| v[i].as_deref() == Some(l))
-                            .count()
-                    })
-                    .collect();
-                let reference = match &spec.reference {
-                    Some(r) if levels.contains(r) => r.clone(),
-                    Some(r) => {
-                        return Err(Error::usage(
-                            "--reference",
-                            format!(
-                            "'{r}' is not a level of moderator '{}' among the included studies; \
-                                 its levels are: {}",
-                            spec.name,
-                            levels.join(", ")
-                        ),
-                        ))
-                    }
-                    None => levels[0].clone(),
-                };
-                ModeratorKind::Categorical {
-                    levels,
-                    counts,
-                    reference,
-                }
-            }
-        };
-        moderators.push(Moderator {
-            name: spec.name.clone(),
-            kind,
-        });
-    }
+    let moderators = specs
+        .iter()
+        .zip(raw)
+        .map(|(spec, r)| {
+            let kind = match r {
+                RawModerator::Numeric(v) => numeric_kind(spec, v, included)?,
+                RawModerator::Text(v) => categorical_kind(spec, v, included)?,
+            };
+            Ok(Moderator {
+                name: spec.name.clone(),
+                kind,
+            })
+        })
+        .collect::<Result<Vec<_>>>()?;
 
     let mut terms = vec![Term {
         name: "intercept".into(),
@@ -412,10 +308,126 @@ pub fn build(
             p + 1
         )));
     }
-    // Level codes of every categorical moderator, by row.
-    let codes: Vec<Option<Vec<usize>>> = raw
+    let codes = level_codes(raw, &moderators);
+    let mut x = Vec::with_capacity(k * p);
+    let mut spans = Vec::with_capacity(moderators.len());
+    for &i in included {
+        let value = |j: usize| match (&raw[j], &codes[j]) {
+            (RawModerator::Numeric(v), _) => Coded::Number(v[i].unwrap_or(f64::NAN)),
+            (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
+            (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
+        };
+        encode_row(&moderators, interactions, value, &mut spans, &mut x);
+    }
+    check_rank(&x, k, p, &terms)?;
+    Ok(Design {
+        x,
+        p,
+        terms,
+        moderators,
+        interactions: interactions.to_vec(),
+    })
+}
+
+/// The kind of a numeric moderator among the included studies: mean, SD
+/// (divisor k − 1), range, whether it is centred.
+///
+/// # Errors
+/// [`Error::Model`] when it has one value in every included study.
+fn numeric_kind(
+    spec: &ModeratorSpec,
+    v: &[Option<f64>],
+    included: &[usize],
+) -> Result<ModeratorKind> {
+    let k = included.len();
+    let xs: Vec<f64> = included.iter().map(|&i| v[i].unwrap_or(f64::NAN)).collect();
+    let mean = xs.iter().sum::<f64>() / k as f64;
+    let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
+    let min = xs.iter().copied().fold(f64::INFINITY, f64::min);
+    let max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if min == max {
+        return Err(Error::Model(format!(
+            "moderator '{}' has the same value ({min}) in every included study, so its \
+             effect cannot be estimated; drop it",
+            spec.name
+        )));
+    }
+    Ok(ModeratorKind::Numeric {
+        mean,
+        sd: var.sqrt(),
+        min,
+        max,
+        centered: spec.center,
+    })
+}
+
+/// The kind of a categorical moderator among the included studies: its
+/// levels (sorted), their counts and the reference level.
+///
+/// # Errors
+/// [`Error::Usage`] for `--center` on it or an unknown `--reference` level;
+/// [`Error::Model`] when only one level is present.
+fn categorical_kind(
+    spec: &ModeratorSpec,
+    v: &[Option<String>],
+    included: &[usize],
+) -> Result<ModeratorKind> {
+    if spec.center {
+        return Err(Error::usage(
+            "--center",
+            format!(
+                "moderator '{}' is categorical and cannot be centred",
+                spec.name
+            ),
+        ));
+    }
+    let mut levels: Vec<String> = included.iter().filter_map(|&i| v[i].clone()).collect();
+    sort_levels(&mut levels);
+    levels.dedup();
+    if levels.len() < 2 {
+        return Err(Error::Model(format!(
+            "moderator '{}' has only one level ('{}') among the included studies, so its \
+             effect cannot be estimated; drop it",
+            spec.name,
+            levels.first().cloned().unwrap_or_default()
+        )));
+    }
+    let counts = levels
         .iter()
-        .zip(&moderators)
+        .map(|l| {
+            included
+                .iter()
+                .filter(|&&i| v[i].as_deref() == Some(l))
+                .count()
+        })
+        .collect();
+    let reference = match &spec.reference {
+        Some(r) if levels.contains(r) => r.clone(),
+        Some(r) => {
+            return Err(Error::usage(
+                "--reference",
+                format!(
+                    "'{r}' is not a level of moderator '{}' among the included studies; \
+                     its levels are: {}",
+                    spec.name,
+                    levels.join(", ")
+                ),
+            ))
+        }
+        None => levels[0].clone(),
+    };
+    Ok(ModeratorKind::Categorical {
+        levels,
+        counts,
+        reference,
+    })
+}
+
+/// Level codes of every categorical moderator, by row (None for a numeric
+/// one); a missing or unknown level codes as 0 (such rows are excluded).
+fn level_codes(raw: &[RawModerator], moderators: &[Moderator]) -> Vec<Option<Vec<usize>>> {
+    raw.iter()
+        .zip(moderators)
         .map(|(r, m)| match (r, &m.kind) {
             (RawModerator::Text(v), ModeratorKind::Categorical { levels, .. }) => {
                 let index: std::collections::HashMap<&str, usize> = levels
@@ -435,25 +447,7 @@ pub fn build(
             }
             _ => None,
         })
-        .collect();
-    let mut x = Vec::with_capacity(k * p);
-    let mut spans = Vec::with_capacity(moderators.len());
-    for &i in included {
-        let value = |j: usize| match (&raw[j], &codes[j]) {
-            (RawModerator::Numeric(v), _) => Coded::Number(v[i].unwrap_or(f64::NAN)),
-            (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
-            (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
-        };
-        encode_row(&moderators, interactions, value, &mut spans, &mut x);
-    }
-    check_rank(&x, k, p, &terms)?;
-    Ok(Design {
-        x,
-        p,
-        terms,
-        moderators,
-        interactions: interactions.to_vec(),
-    })
+        .collect()
 }
 
 /// Sorts levels: numerically when every level is a number, else by text.

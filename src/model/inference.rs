@@ -2,6 +2,8 @@
 
 use super::{Inference, ModelFit};
 use crate::dist;
+use crate::effect::ReadingScale;
+use crate::result::{Interval, MeanEffect, PredictionInterval, Reading};
 use nalgebra::{DMatrix, DVector};
 
 /// One coefficient's inference.
@@ -51,6 +53,23 @@ pub struct PredictionInference {
     pub pi_low: f64,
     /// Upper end.
     pub pi_high: f64,
+}
+
+impl PredictionInference {
+    /// The estimate, standard error and intervals as reported.
+    pub fn mean_effect(&self) -> MeanEffect {
+        MeanEffect {
+            estimate: self.estimate,
+            se: self.se,
+            ci: Interval::new(self.ci_low, self.ci_high),
+            pi: PredictionInterval::new(self.pi_low, self.pi_high),
+        }
+    }
+
+    /// The estimate and intervals on the reading scale (None when it is the analysis scale).
+    pub fn reading(&self, scale: ReadingScale) -> Option<Reading> {
+        (scale != ReadingScale::Same).then(|| Reading::of(&self.mean_effect(), |x| scale.apply(x)))
+    }
 }
 
 /// The critical value of the two-sided interval at `level`: t(k − p) under

@@ -11,30 +11,10 @@ pub mod wls;
 
 use crate::error::{Error, Result};
 use nalgebra::{DMatrix, DVector};
-use serde::Serialize;
 use tau2::{Tau2Fit, Tau2Method};
 use wls::{fit_with, Data, Want};
 
-/// How coefficients are tested.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Inference {
-    /// Knapp & Hartung (2003): t and F with the covariance scaled by the
-    /// weighted residual mean square.
-    Kh,
-    /// Wald tests with the normal and chi-square distributions.
-    Z,
-}
-
-impl Inference {
-    /// The method in words.
-    pub fn describe(self) -> &'static str {
-        match self {
-            Inference::Kh => "Knapp–Hartung t and F tests",
-            Inference::Z => "Wald z and chi-square tests",
-        }
-    }
-}
+pub use crate::result::Inference;
 
 /// Options of one fit.
 #[derive(Debug, Clone, Copy, PartialEq)]

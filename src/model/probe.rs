@@ -19,8 +19,8 @@ use crate::effect::artifact::ArtifactSettings;
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{
-    AtValue, ConditionalEffect, ContrastTest, Estimate, Interpretation, LevelContrast,
-    PictureChange, RegionOfSignificance, SimpleSlope,
+    AtValue, ConditionalEffect, ContrastTest, Estimate, Interpretation, Interval, LevelContrast,
+    PictureChange, ProbePoint, RegionOfSignificance, SimpleSlope, Test,
 };
 use crate::support::format as fmt;
 use crate::tolerance;
@@ -55,36 +55,7 @@ impl InterpretSettings {
     }
 }
 
-/// Where the Johnson–Neyman inequality holds.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Region {
-    /// Significant for every value.
-    Everywhere,
-    /// Significant for no value.
-    Nowhere,
-    /// Significant below the first bound and above the second.
-    Outside,
-    /// Significant between the two bounds.
-    Inside,
-    /// Significant above the single bound.
-    Above,
-    /// Significant below the single bound.
-    Below,
-}
-
-impl Region {
-    /// The word used in the JSON.
-    pub fn id(self) -> &'static str {
-        match self {
-            Region::Everywhere => "everywhere",
-            Region::Nowhere => "nowhere",
-            Region::Outside => "outside",
-            Region::Inside => "inside",
-            Region::Above => "above",
-            Region::Below => "below",
-        }
-    }
-}
+pub use crate::result::Region;
 
 /// Johnson–Neyman bounds of θ(m) = a + b·m along m.
 ///
@@ -221,11 +192,12 @@ pub fn contrast(fit: &ModelFit, c: &[f64]) -> ContrastTest {
     ContrastTest {
         estimate: est,
         se,
-        ci_low: est - crit * se,
-        ci_high: est + crit * se,
-        statistic: stat,
-        df: df(fit),
-        p: p_value(fit, stat),
+        ci: Interval::new(est - crit * se, est + crit * se),
+        test: Test {
+            statistic: stat,
+            df: df(fit),
+            p: p_value(fit, stat),
+        },
     }
 }
 
@@ -287,7 +259,7 @@ fn minus(a: &[f64], b: &[f64]) -> Vec<f64> {
 struct Point {
     value: Value,
     at: AtValue,
-    label: String,
+    label: ProbePoint,
     outside: bool,
 }
 
@@ -305,9 +277,9 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
     let m = &design.moderators[j];
     match (&m.kind, &spec.values) {
         (ModeratorKind::Numeric { mean, sd, .. }, None) => Ok([
-            (mean - sd, "mean − 1 SD"),
-            (*mean, "mean"),
-            (mean + sd, "mean + 1 SD"),
+            (mean - sd, ProbePoint::MeanMinusSd),
+            (*mean, ProbePoint::Mean),
+            (mean + sd, ProbePoint::MeanPlusSd),
         ]
         .into_iter()
         .map(|(x, l)| numeric_point(design, j, x, l))
@@ -330,7 +302,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
                             ),
                         )
                     })?;
-                Ok(numeric_point(design, j, x, "given"))
+                Ok(numeric_point(design, j, x, ProbePoint::Given))
             })
             .collect(),
         (ModeratorKind::Categorical { levels, .. }, None) => Ok(levels
@@ -338,7 +310,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
             .map(|l| Point {
                 value: Value::Label(l.clone()),
                 at: AtValue::Level(l.clone()),
-                label: "level".into(),
+                label: ProbePoint::Level,
                 outside: false,
             })
             .collect()),
@@ -364,7 +336,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
                 Ok(Point {
                     value: Value::Label(t.to_string()),
                     at: AtValue::Level(t.to_string()),
-                    label: "level".into(),
+                    label: ProbePoint::Level,
                     outside: false,
                 })
             })
@@ -372,7 +344,7 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
     }
 }
 
-fn numeric_point(design: &Design, j: usize, x: f64, label: &str) -> Point {
+fn numeric_point(design: &Design, j: usize, x: f64, label: ProbePoint) -> Point {
     let outside = match design.moderators[j].kind {
         ModeratorKind::Numeric { min, max, .. } => x < min || x > max,
         ModeratorKind::Categorical { .. } => false,
@@ -380,7 +352,7 @@ fn numeric_point(design: &Design, j: usize, x: f64, label: &str) -> Point {
     Point {
         value: Value::Number(x),
         at: AtValue::Number(x),
-        label: label.into(),
+        label,
         outside,
     }
 }
@@ -501,18 +473,15 @@ pub fn interpret(
             out.conditional_effects.push(ConditionalEffect {
                 moderator: name.clone(),
                 at: pt.at.clone(),
-                point: pt.label.clone(),
+                point: pt.label,
                 held: held_words.clone(),
-                estimate: p.estimate,
-                se: p.se,
-                ci_low: p.ci_low,
-                ci_high: p.ci_high,
-                pi_low: p.pi_low,
-                pi_high: p.pi_high,
-                statistic: stat,
-                df: df(fit),
-                p: p_value(fit, stat),
-                reading: crate::fit::reading(&p, scale),
+                mean: p.mean_effect(),
+                test: Test {
+                    statistic: stat,
+                    df: df(fit),
+                    p: p_value(fit, stat),
+                },
+                reading: p.reading(scale),
                 outside_range: pt.outside,
             });
         }
@@ -531,7 +500,7 @@ pub fn interpret(
                         of,
                         moderator: name.clone(),
                         at: pt.at.clone(),
-                        point: pt.label.clone(),
+                        point: pt.label,
                         held: held_words.clone(),
                         test: contrast(fit, &c),
                     });
@@ -578,7 +547,7 @@ pub fn interpret(
                     pairs.push((b, a, contrast(fit, &minus(&rows[b], &rows[a]))));
                 }
             }
-            let ps: Vec<f64> = pairs.iter().map(|(_, _, t)| t.p).collect();
+            let ps: Vec<f64> = pairs.iter().map(|(_, _, t)| t.test.p).collect();
             let adj = holm(&ps);
             for ((b, a, test), p_holm) in pairs.into_iter().zip(adj) {
                 out.level_contrasts.push(LevelContrast {
@@ -685,13 +654,13 @@ fn region(
         .filter(|x| *x > min && *x < max)
         .collect();
     let observed_region = match (observed.as_slice(), observed_bounds.len()) {
-        ([], _) => "nowhere",
-        ([[l, h]], _) if *l == min && *h == max => "everywhere",
-        ([_, _], _) => "outside",
-        ([[l, _]], 1) if *l == min => "below",
-        ([_], 1) => "above",
-        ([_], _) => "inside",
-        _ => "inside",
+        ([], _) => Region::Nowhere,
+        ([[l, h]], _) if *l == min && *h == max => Region::Everywhere,
+        ([_, _], _) => Region::Outside,
+        ([[l, _]], 1) if *l == min => Region::Below,
+        ([_], 1) => Region::Above,
+        ([_], _) => Region::Inside,
+        _ => Region::Inside,
     };
     let name = &design.moderators[m].name;
     let what = if quantity == "effect" {
@@ -745,7 +714,7 @@ fn region(
             .collect();
         parts.join(" and ")
     };
-    let rest = if observed_region == "everywhere" || observed_region == "nowhere" {
+    let rest = if matches!(observed_region, Region::Everywhere | Region::Nowhere) {
         ""
     } else {
         " Elsewhere in that range the data cannot tell it from 0."
@@ -761,9 +730,9 @@ fn region(
         quantity,
         held: held_words,
         bounds,
-        significant: reg.id().into(),
+        significant: reg,
         observed_bounds,
-        observed_region: observed_region.into(),
+        observed_region,
         observed_min: min,
         observed_max: max,
         observed_significant: observed,
@@ -779,11 +748,11 @@ fn picture(
 ) -> PictureChange {
     let lo = effects
         .iter()
-        .map(|e| e.estimate)
+        .map(|e| e.mean.estimate)
         .fold(f64::INFINITY, f64::min);
     let hi = effects
         .iter()
-        .map(|e| e.estimate)
+        .map(|e| e.mean.estimate)
         .fold(f64::NEG_INFINITY, f64::max);
     let sign_changes = lo < 0.0 && hi > 0.0;
     let shown = |x: f64| match scale {
@@ -795,7 +764,7 @@ fn picture(
     let mut words = format!(
         "Without moderators the pooled effect is {} with τ² = {}. With the moderators the mean \
          effect at the probed values runs from {} to {}, with residual τ² = {}",
-        shown(base.pooled.estimate),
+        shown(base.pooled.mean.estimate),
         fmt::short4(base.tau2_without),
         shown(lo),
         shown(hi),

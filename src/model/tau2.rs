@@ -9,71 +9,8 @@ use crate::error::{Error, Result};
 use crate::tolerance;
 use argmin::core::{CostFunction, Executor, State, TerminationReason, TerminationStatus};
 use argmin::solver::brent::BrentRoot;
-use serde::Serialize;
 
-/// Which τ² estimator.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Tau2Method {
-    /// Restricted maximum likelihood.
-    Reml,
-    /// Maximum likelihood.
-    Ml,
-    /// DerSimonian–Laird (generalised method of moments).
-    Dl,
-    /// Paule–Mandel.
-    Pm,
-    /// Hedges' OLS-based moment estimator.
-    He,
-    /// Sidik–Jonkman.
-    Sj,
-    /// τ² fixed at 0 (common-effect model).
-    None,
-}
-
-impl Tau2Method {
-    /// The command-line name.
-    pub fn id(self) -> &'static str {
-        match self {
-            Tau2Method::Reml => "reml",
-            Tau2Method::Ml => "ml",
-            Tau2Method::Dl => "dl",
-            Tau2Method::Pm => "pm",
-            Tau2Method::He => "he",
-            Tau2Method::Sj => "sj",
-            Tau2Method::None => "none",
-        }
-    }
-
-    /// The estimator in words.
-    pub fn describe(self) -> &'static str {
-        match self {
-            Tau2Method::Reml => "restricted maximum likelihood (REML)",
-            Tau2Method::Ml => "maximum likelihood (ML)",
-            Tau2Method::Dl => "DerSimonian–Laird moments",
-            Tau2Method::Pm => "Paule–Mandel",
-            Tau2Method::He => "Hedges' OLS-based moments",
-            Tau2Method::Sj => "Sidik–Jonkman",
-            Tau2Method::None => "none (common-effect model, τ² = 0)",
-        }
-    }
-}
-
-/// How the τ² estimate was reached.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Ending {
-    /// A closed-form estimate, positive.
-    ClosedForm,
-    /// A closed-form estimate that was negative and set to 0.
-    TruncatedAtZero,
-    /// The root search converged inside (0, ∞).
-    Converged,
-    /// The maximum (or root) lies on the boundary τ² = 0.
-    Boundary,
-    /// Fixed by the user's choice of model.
-    Fixed,
-}
+pub use crate::result::{Ending, Tau2Method};
 
 /// A τ² estimate and how it was reached.
 #[derive(Debug, Clone, Copy, PartialEq)]

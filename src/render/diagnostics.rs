@@ -142,7 +142,11 @@ pub fn influence(r: &FitReport, _: &Ctx, o: &mut String) {
                     &s.q_deleted.map(|q| format!("{q:.2}")).unwrap_or("—".into()),
                     8
                 ),
-                s.exceeded.join(", "),
+                s.exceeded
+                    .iter()
+                    .map(|c| c.id())
+                    .collect::<Vec<_>>()
+                    .join(", "),
                 if s.influential {
                     "  ← influential"
                 } else {
@@ -286,7 +290,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
             if t.filled == 1 { "study" } else { "studies" },
             t.side,
             num(t.estimate),
-            fmt::interval(t.ci_low, t.ci_high),
+            fmt::interval(t.ci.ci_low, t.ci.ci_high),
             num(t.estimate_observed)
         );
         if let (Some(rd), Some(name)) = (&t.reading, &r.measure.reading_name) {
@@ -294,7 +298,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                 tf,
                 "; as {name}: {} {}",
                 num(rd.estimate),
-                fmt::interval(rd.ci_low, rd.ci_high)
+                fmt::interval(rd.ci.ci_low, rd.ci.ci_high)
             );
         }
         o.push_str(&wrap(&tf, "  ", 70));
@@ -314,7 +318,7 @@ pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
             o,
             "Cumulative meta-analysis (average effect, studies added by {}, {})",
             ord.column,
-            if ord.order == "numeric" {
+            if ord.order == crate::result::SortOrder::Numeric {
                 "ascending numbers"
             } else {
                 "text in code-point order"
@@ -346,7 +350,7 @@ pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
                 }
                 continue;
             }
-            let ci = match (s.ci_low, s.ci_high) {
+            let ci = match (s.ci.ci_low, s.ci.ci_high) {
                 (Some(a), Some(b)) => fmt::interval(a, b),
                 _ => "—".into(),
             };

@@ -14,11 +14,11 @@ fn at(v: &AtValue) -> String {
 }
 
 fn test_text(t: &ContrastTest) -> String {
-    let stat = match t.df {
-        Some(df) => format!("t({df}) = {:.2}", t.statistic),
-        None => format!("z = {:.2}", t.statistic),
+    let stat = match t.test.df {
+        Some(df) => format!("t({df}) = {:.2}", t.test.statistic),
+        None => format!("z = {:.2}", t.test.statistic),
     };
-    format!("{stat}, p {}", fmt::p(t.p))
+    format!("{stat}, p {}", fmt::p(t.test.p))
 }
 
 /// The artifact corrections of `r-corrected`, study by study.
@@ -98,11 +98,11 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                 o,
                 "    {}{}{}{}{}{}{mark}",
                 pad(&at(&e.at), 14),
-                pad(&e.point, 13),
-                pad(&num(e.estimate), 10),
-                pad(&fmt::interval(e.ci_low, e.ci_high), 20),
-                pad(&fmt::interval(e.pi_low, e.pi_high), 20),
-                fmt::p(e.p)
+                pad(e.point.id(), 13),
+                pad(&num(e.mean.estimate), 10),
+                pad(&fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high), 20),
+                pad(&fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high), 20),
+                fmt::p(e.test.p)
             );
             if let (Some(rd), Some(name)) = (&e.reading, reading) {
                 let _ = writeln!(
@@ -110,8 +110,8 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                     "    {}as {name}: {}  CI {}  new study {}",
                     pad("", 27),
                     num(rd.estimate),
-                    fmt::interval(rd.ci_low, rd.ci_high),
-                    fmt::interval(rd.pi_low, rd.pi_high)
+                    fmt::interval(rd.ci.ci_low, rd.ci.ci_high),
+                    fmt::interval(rd.pi.pi_low, rd.pi.pi_high)
                 );
             }
         }
@@ -140,7 +140,7 @@ pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
                 at(&s.at),
                 s.point,
                 num(s.test.estimate),
-                fmt::interval(s.test.ci_low, s.test.ci_high),
+                fmt::interval(s.test.ci.ci_low, s.test.ci.ci_high),
                 num(s.test.se),
                 test_text(&s.test)
             );
@@ -170,7 +170,7 @@ pub fn level_contrasts(r: &FitReport, cx: &Ctx, o: &mut String) {
                 c.level,
                 c.minus,
                 num(c.test.estimate),
-                fmt::interval(c.test.ci_low, c.test.ci_high),
+                fmt::interval(c.test.ci.ci_low, c.test.ci.ci_high),
                 test_text(&c.test),
                 fmt::p(c.p_holm)
             );
@@ -257,8 +257,8 @@ pub fn picture(r: &FitReport, _: &Ctx, o: &mut String) {
             pad(
                 &format!(
                     "{} {}",
-                    num(p.pooled.estimate),
-                    fmt::interval(p.pooled.ci_low, p.pooled.ci_high)
+                    num(p.pooled.mean.estimate),
+                    fmt::interval(p.pooled.mean.ci.ci_low, p.pooled.mean.ci.ci_high)
                 ),
                 32
             ),

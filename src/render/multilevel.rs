@@ -3,7 +3,7 @@
 //! of each moderator, and the cluster-robust coefficients.
 
 use super::layout::{lpad, pad, wrap, Ctx};
-use crate::result::FitReport;
+use crate::result::{ClusterLevel, FitReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write;
 
@@ -27,12 +27,12 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
             pad(&format!("{level_pct} CI (profile)"), 22),
         );
         for v in vc {
-            let label = if v.level == "between" {
+            let label = if v.level == ClusterLevel::Between {
                 "between clusters"
             } else {
                 "within clusters"
             };
-            let ci = match (v.ci_low, v.ci_high) {
+            let ci = match (v.ci.ci_low, v.ci.ci_high) {
                 (Some(a), Some(b)) => fmt::interval(a, b),
                 _ => "—".into(),
             };
@@ -46,7 +46,7 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
             );
         }
         for t in &c.lr_tests {
-            let what = if t.component == "within" {
+            let what = if t.component == ClusterLevel::Within {
                 "within-cluster variance = 0 (effects of a cluster share one true effect)"
             } else {
                 "between-cluster variance = 0 (the model with independent effects)"
@@ -96,7 +96,7 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                     o,
                     "  {}  {}  {}  {}  {}",
                     pad(&k.term, 22),
-                    lpad(&num(k.estimate), 10),
+                    lpad(&num(k.contrast.estimate), 10),
                     lpad(&num(se), 10),
                     lpad(&format!("{df:.1}"), 6),
                     fmt::p(p).trim_start_matches("= ")

@@ -1,7 +1,7 @@
 //! The terminal summary of `pondus sites`: a pure function of the
 //! [`SitesReport`](crate::result::SitesReport).
 
-use crate::result::{Coefficient, FitReport, SitesReport};
+use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -25,12 +25,12 @@ fn coefficient_line(out: &mut String, label: &str, c: &Coefficient, level: f64) 
     let _ = writeln!(
         out,
         "  {label}: {}  (SE {}, {:.0}% CI [{}, {}], p {})",
-        num(c.estimate),
-        num(c.se),
+        num(c.contrast.estimate),
+        num(c.contrast.se),
         100.0 * level,
-        num(c.ci_low),
-        num(c.ci_high),
-        fmt::p(c.p)
+        num(c.contrast.ci.ci_low),
+        num(c.contrast.ci.ci_high),
+        fmt::p(c.contrast.test.p)
     );
 }
 
@@ -60,9 +60,27 @@ fn fit_facts(out: &mut String, f: &FitReport) {
     );
 }
 
-/// Renders the summary.
+/// Renders the summary: the run, the sites left out and the join, the
+/// per-site table, notes, and the second stage.
 pub fn render(r: &SitesReport) -> String {
     let mut o = String::new();
+    run_lines(&mut o, r);
+    exclusions_and_join(&mut o, r);
+    site_table(&mut o, r);
+    if !r.notes.is_empty() {
+        let _ = writeln!(o);
+        for n in &r.notes {
+            o.push_str(&super::layout::wrap(n, "  ", 88));
+        }
+    }
+    if let Some(st) = &r.stages {
+        stages(&mut o, r, st);
+    }
+    o
+}
+
+/// What was read and how each site's slope was estimated.
+fn run_lines(o: &mut String, r: &SitesReport) {
     let m = &r.model;
     let _ = writeln!(o, "pondus sites: per-site regressions in {}", r.input.file);
     let mut model = format!("  slope: {} on {}", m.y, m.x);
@@ -91,13 +109,13 @@ pub fn render(r: &SitesReport) -> String {
     let _ = writeln!(
         o,
         "  standard errors: {}",
-        if m.se_type == "hc3" {
+        if m.se_type == SeType::Hc3 {
             "HC3 (second pass over the rows)"
         } else {
             "classical OLS"
         }
     );
-    if r.input.kind == "moments" {
+    if r.input.kind == SitesInputKind::Moments {
         let _ = writeln!(
             o,
             "  input: a per-site moments table with {} rows",
@@ -116,6 +134,11 @@ pub fn render(r: &SitesReport) -> String {
         r.sites.len(),
         r.excluded.len()
     );
+}
+
+/// The sites left out, those kept without a product term, and the join
+/// with the site table.
+fn exclusions_and_join(o: &mut String, r: &SitesReport) {
     if !r.excluded.is_empty() {
         let _ = writeln!(o, "\nSites left out:");
         for e in r.excluded.iter().take(MAX_LISTED_SITES) {
@@ -172,6 +195,11 @@ pub fn render(r: &SitesReport) -> String {
             );
         }
     }
+}
+
+/// One line per site (when there are few enough to list).
+fn site_table(o: &mut String, r: &SitesReport) {
+    let m = &r.model;
     if r.sites.len() <= MAX_LISTED_SITES {
         let with_w = m.w.is_some();
         let _ = writeln!(o);
@@ -204,54 +232,50 @@ pub fn render(r: &SitesReport) -> String {
             let _ = writeln!(o, "{line}");
         }
     }
-    if !r.notes.is_empty() {
-        let _ = writeln!(o);
-        for n in &r.notes {
-            o.push_str(&super::layout::wrap(n, "  ", 88));
+}
+
+/// The second stage: within- and across-site answers and the cautions.
+fn stages(o: &mut String, r: &SitesReport, st: &TwoStage) {
+    let m = &r.model;
+    let w = m.w.as_deref().unwrap_or("w");
+    if let Some(f) = &st.within {
+        let _ = writeln!(
+            o,
+            "\nWithin-site moderation: pooled product term {}·{w}",
+            m.x
+        );
+        fit_facts(o, f);
+        if let Some(c) = f.coefficients.first() {
+            coefficient_line(o, "pooled b3", c, f.model.level);
         }
     }
-    if let Some(st) = &r.stages {
-        let w = m.w.as_deref().unwrap_or("w");
-        if let Some(f) = &st.within {
-            let _ = writeln!(
+    if let Some(f) = &st.across {
+        let _ = writeln!(
+            o,
+            "\nAcross-site moderation: site slopes on the site mean of {w}"
+        );
+        fit_facts(o, f);
+        if let Some(c) = f.coefficients.iter().find(|c| c.term == "mean_w") {
+            coefficient_line(
                 o,
-                "\nWithin-site moderation: pooled product term {}·{w}",
-                m.x
+                &format!("slope change per unit of mean {w}"),
+                c,
+                f.model.level,
             );
-            fit_facts(&mut o, f);
-            if let Some(c) = f.coefficients.first() {
-                coefficient_line(&mut o, "pooled b3", c, f.model.level);
-            }
-        }
-        if let Some(f) = &st.across {
-            let _ = writeln!(
-                o,
-                "\nAcross-site moderation: site slopes on the site mean of {w}"
-            );
-            fit_facts(&mut o, f);
-            if let Some(c) = f.coefficients.iter().find(|c| c.term == "mean_w") {
-                coefficient_line(
-                    &mut o,
-                    &format!("slope change per unit of mean {w}"),
-                    c,
-                    f.model.level,
-                );
-            }
-        }
-        if !st.answers.is_empty() {
-            let _ = writeln!(o, "\nWhich answer is which:");
-            for a in &st.answers {
-                o.push_str(&super::layout::wrap(a, "  ", 88));
-            }
-        }
-        if let Some(f) = &st.characteristics {
-            let _ = writeln!(o, "\nSite slopes on the site characteristics:\n");
-            o.push_str(&super::text::render(f));
-        }
-        let _ = writeln!(o, "\nCautions:");
-        for c in &st.cautions {
-            o.push_str(&super::layout::wrap(&format!("- {c}"), "  ", 88));
         }
     }
-    o
+    if !st.answers.is_empty() {
+        let _ = writeln!(o, "\nWhich answer is which:");
+        for a in &st.answers {
+            o.push_str(&super::layout::wrap(a, "  ", 88));
+        }
+    }
+    if let Some(f) = &st.characteristics {
+        let _ = writeln!(o, "\nSite slopes on the site characteristics:\n");
+        o.push_str(&super::text::render(f));
+    }
+    let _ = writeln!(o, "\nCautions:");
+    for c in &st.cautions {
+        o.push_str(&super::layout::wrap(&format!("- {c}"), "  ", 88));
+    }
 }

@@ -2,7 +2,8 @@
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
 use super::{diagnostics, interpret, multilevel};
-use crate::result::{AtValue, Estimate, FitReport, Reading};
+use crate::effect::Measure;
+use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 use std::io::Write;
@@ -11,8 +12,8 @@ fn reading_line(r: &Reading, name: &str) -> String {
     format!(
         "as {name}: {}  CI {}  new study {}",
         num(r.estimate),
-        fmt::interval(r.ci_low, r.ci_high),
-        fmt::interval(r.pi_low, r.pi_high)
+        fmt::interval(r.ci.ci_low, r.ci.ci_high),
+        fmt::interval(r.pi.pi_low, r.pi.pi_high)
     )
 }
 
@@ -20,14 +21,14 @@ fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name:
     let _ = writeln!(
         out,
         "  {}  ({level_pct} CI {}, SE {})",
-        num(e.estimate),
-        fmt::interval(e.ci_low, e.ci_high),
-        num(e.se)
+        num(e.mean.estimate),
+        fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
+        num(e.mean.se)
     );
     let _ = writeln!(
         out,
         "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
-        fmt::interval(e.pi_low, e.pi_high)
+        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
     );
     if let (Some(r), Some(name)) = (&e.reading, reading_name) {
         let _ = writeln!(out, "  {}", reading_line(r, name));
@@ -128,14 +129,14 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
             .moderators
             .iter()
             .map(|m| match &m.kind {
-                crate::model::design::ModeratorKind::Numeric { centered, .. } => {
+                ModeratorKind::Numeric { centered, .. } => {
                     format!(
                         "{} (numeric{})",
                         m.name,
                         if *centered { ", centred" } else { "" }
                     )
                 }
-                crate::model::design::ModeratorKind::Categorical {
+                ModeratorKind::Categorical {
                     levels, reference, ..
                 } => format!(
                     "{} ({} levels, reference {})",
@@ -166,7 +167,14 @@ fn moderator_answer(r: &FitReport, _: &Ctx, o: &mut String) {
 fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
     let level_pct = &cx.level_pct;
     let scale = match &r.measure.reading_name {
-        Some(_) if r.measure.id == "r" || r.measure.id == "partial-r" => " (Fisher z scale)",
+        Some(_)
+            if matches!(
+                r.measure.id,
+                MeasureId::Measure(Measure::R | Measure::PartialR)
+            ) =>
+        {
+            " (Fisher z scale)"
+        }
         Some(_) => " (log scale)",
         None => "",
     };
@@ -178,11 +186,15 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         .max()
         .unwrap_or(4)
         .clamp(9, 28);
-    let stat = if r.model.inference == "kh" { "t" } else { "z" };
+    let stat = if r.model.inference == Inference::Kh {
+        "t"
+    } else {
+        "z"
+    };
     let cw = r
         .coefficients
         .iter()
-        .map(|c| width(&fmt::interval(c.ci_low, c.ci_high)))
+        .map(|c| width(&fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high)))
         .max()
         .unwrap_or(10)
         .max(width(&format!("{level_pct} CI")));
@@ -204,19 +216,26 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
             o,
             "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
-            lpad(&num(c.estimate), 10),
-            lpad(&num(c.se), 9),
-            pad(&fmt::interval(c.ci_low, c.ci_high), cw),
-            lpad(&format!("{:.2}", c.statistic), 7),
-            pad(fmt::p(c.p).trim_start_matches("= "), 8),
+            lpad(&num(c.contrast.estimate), 10),
+            lpad(&num(c.contrast.se), 9),
+            pad(
+                &fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                cw
+            ),
+            lpad(&format!("{:.2}", c.contrast.test.statistic), 7),
+            pad(fmt::p(c.contrast.test.p).trim_start_matches("= "), 8),
             c.ratio
                 .as_ref()
-                .map(|x| format!("{} {}", num(x.estimate), fmt::interval(x.ci_low, x.ci_high)))
+                .map(|x| format!(
+                    "{} {}",
+                    num(x.estimate),
+                    fmt::interval(x.ci.ci_low, x.ci.ci_high)
+                ))
                 .unwrap_or_default()
         );
     }
     if let Some(c) = r.coefficients.first() {
-        if let Some(df) = c.df {
+        if let Some(df) = c.contrast.test.df {
             let _ = writeln!(o, "  (t tests on {df} degrees of freedom)");
         }
     }
@@ -247,7 +266,7 @@ fn heterogeneity(r: &FitReport, cx: &Ctx, o: &mut String) {
             "Heterogeneity"
         }
     );
-    let ci = match (r.tau2.ci_low, r.tau2.ci_high) {
+    let ci = match (r.tau2.ci.ci_low, r.tau2.ci.ci_high) {
         (Some(a), Some(b)) => format!("  ({level_pct} CI {})", fmt::interval(a, b)),
         _ if r.variance_components.is_some() => "  (between + within clusters, below)".into(),
         _ => "  (fixed by the common-effect model)".into(),
@@ -324,10 +343,10 @@ fn predictions(r: &FitReport, cx: &Ctx, o: &mut String) {
         let _ = writeln!(
             o,
             "    {}  ({level_pct} CI {}, SE {}); new study {}",
-            num(p.estimate),
-            fmt::interval(p.ci_low, p.ci_high),
-            num(p.se),
-            fmt::interval(p.pi_low, p.pi_high)
+            num(p.mean.estimate),
+            fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
+            num(p.mean.se),
+            fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
         );
         if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
             let _ = writeln!(o, "    {}", reading_line(rd, name));

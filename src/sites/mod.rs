@@ -17,7 +17,10 @@ pub mod sql;
 pub mod stages;
 
 use crate::error::{Error, Result};
-use crate::result::{ExcludedSite, SiteEffect, SitesInput, SitesModel, SitesReport, ToolInfo};
+use crate::input::Delimiter;
+use crate::result::{
+    ExcludedSite, SeType, SiteEffect, SitesInput, SitesInputKind, SitesModel, SitesReport, ToolInfo,
+};
 use moments::Moments;
 use ols::{Hc3, OlsProblem};
 use read::{PassSummary, RowColumns};
@@ -506,8 +509,8 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
     };
     let input_info = SitesInput {
         file: source.to_string(),
-        kind: "rows".into(),
-        delimiter: delimiter_name(pass.delimiter).into(),
+        kind: SitesInputKind::Rows,
+        delimiter: Delimiter::of(pass.delimiter),
         rows: pass.rows,
         missing_rows: pass.missing_rows,
         missing_lines: pass.missing_lines.clone(),
@@ -543,22 +546,14 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
     let (fitted, excluded) = fit_sites(table.sites, layout, s);
     let input_info = SitesInput {
         file: source.to_string(),
-        kind: "moments".into(),
-        delimiter: delimiter_name(table.delimiter).into(),
+        kind: SitesInputKind::Moments,
+        delimiter: Delimiter::of(table.delimiter),
         rows: table.rows,
         missing_rows: 0,
         missing_lines: vec![],
         passes: 1,
     };
     Ok(assemble(input_info, s, layout, fitted, excluded, None))
-}
-
-fn delimiter_name(d: u8) -> &'static str {
-    match d {
-        b';' => "semicolon",
-        b'\t' => "tab",
-        _ => "comma",
-    }
 }
 
 /// Orders site ids numerically when every id is a number, else by text.
@@ -664,7 +659,11 @@ fn assemble(
             y: s.y.clone(),
             w: s.w.clone(),
             covariates: s.covariates.clone(),
-            se_type: if s.robust { "hc3" } else { "classical" }.into(),
+            se_type: if s.robust {
+                SeType::Hc3
+            } else {
+                SeType::Classical
+            },
             center_within: s.center_within,
         },
         sites,

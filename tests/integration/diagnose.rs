@@ -119,7 +119,11 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
             .iter()
             .zip(run_ref["coefficients"].as_array().unwrap())
         {
-            v(&format!("{label} coefficient {}", c.term), c.estimate, e);
+            v(
+                &format!("{label} coefficient {}", c.term),
+                c.contrast.estimate,
+                e,
+            );
         }
 
         let loo = r.leave_one_out.as_ref().expect("leave_one_out");
@@ -178,7 +182,8 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
                 .iter()
                 .map(|x| x.as_str().unwrap())
                 .collect();
-            assert_eq!(s.exceeded, fired, "{w}");
+            let exceeded: Vec<&str> = s.exceeded.iter().map(|c| c.id()).collect();
+            assert_eq!(exceeded, fired, "{w}");
         }
         let cut = r.influence_cutoffs.as_ref().unwrap();
         let cut_ref = &run_ref["influence_cutoffs"];
@@ -220,19 +225,19 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
             t_ref["filled"].as_u64(),
             "{label} filled"
         );
-        assert_eq!(
-            Some(t.side.as_str()),
-            t_ref["side"].as_str(),
-            "{label} side"
-        );
+        assert_eq!(Some(t.side.id()), t_ref["side"].as_str(), "{label} side");
         assert_eq!(Some(t.iterations as u64), t_ref["iterations"].as_u64());
         v(
             &format!("{label} TF estimate"),
             t.estimate,
             &t_ref["estimate"],
         );
-        v(&format!("{label} TF ci_low"), t.ci_low, &t_ref["ci_low"]);
-        v(&format!("{label} TF ci_high"), t.ci_high, &t_ref["ci_high"]);
+        v(&format!("{label} TF ci_low"), t.ci.ci_low, &t_ref["ci_low"]);
+        v(
+            &format!("{label} TF ci_high"),
+            t.ci.ci_high,
+            &t_ref["ci_high"],
+        );
         v(
             &format!("{label} TF observed"),
             t.estimate_observed,
@@ -257,8 +262,8 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
                 assert_eq!(Some(s.k as u64), e["k"].as_u64());
                 ov(&format!("{w} estimate"), s.estimate, &e["estimate"]);
                 ov(&format!("{w} se"), s.se, &e["se"]);
-                ov(&format!("{w} ci_low"), s.ci_low, &e["ci_low"]);
-                ov(&format!("{w} ci_high"), s.ci_high, &e["ci_high"]);
+                ov(&format!("{w} ci_low"), s.ci.ci_low, &e["ci_low"]);
+                ov(&format!("{w} ci_high"), s.ci.ci_high, &e["ci_high"]);
                 p(&format!("{w} p"), s.p.unwrap(), &e["p"]);
                 ov(&format!("{w} tau2"), s.tau2, &e["tau2"]);
                 ov(&format!("{w} i2"), s.i2, &e["i2"]);

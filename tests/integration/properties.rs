@@ -552,8 +552,8 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
     assert_eq!(a.k, b.k, "{}", w("k"));
     near(&w("tau2"), b.tau2.estimate, ch.tau2 * a.tau2.estimate, vt);
     for (lo, hi) in [
-        (a.tau2.ci_low, b.tau2.ci_low),
-        (a.tau2.ci_high, b.tau2.ci_high),
+        (a.tau2.ci.ci_low, b.tau2.ci.ci_low),
+        (a.tau2.ci.ci_high, b.tau2.ci.ci_high),
     ] {
         match (lo, hi) {
             (Some(x), Some(y)) => near(&w("tau2 CI"), y, ch.tau2 * x, vt),
@@ -568,25 +568,45 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
         let t = &ca.term;
         near(
             &w(&format!("{t} estimate")),
-            cb.estimate,
-            f * ca.estimate,
-            cb.se,
+            cb.contrast.estimate,
+            f * ca.contrast.estimate,
+            cb.contrast.se,
         );
-        near(&w(&format!("{t} se")), cb.se, f.abs() * ca.se, 0.0);
+        near(
+            &w(&format!("{t} se")),
+            cb.contrast.se,
+            f.abs() * ca.contrast.se,
+            0.0,
+        );
         let (lo, hi) = if f > 0.0 {
-            (ca.ci_low, ca.ci_high)
+            (ca.contrast.ci.ci_low, ca.contrast.ci.ci_high)
         } else {
-            (ca.ci_high, ca.ci_low)
+            (ca.contrast.ci.ci_high, ca.contrast.ci.ci_low)
         };
-        near(&w(&format!("{t} ci_low")), cb.ci_low, f * lo, cb.se);
-        near(&w(&format!("{t} ci_high")), cb.ci_high, f * hi, cb.se);
+        near(
+            &w(&format!("{t} ci_low")),
+            cb.contrast.ci.ci_low,
+            f * lo,
+            cb.contrast.se,
+        );
+        near(
+            &w(&format!("{t} ci_high")),
+            cb.contrast.ci.ci_high,
+            f * hi,
+            cb.contrast.se,
+        );
         near(
             &w(&format!("{t} statistic")),
-            cb.statistic,
-            f.signum() * ca.statistic,
+            cb.contrast.test.statistic,
+            f.signum() * ca.contrast.test.statistic,
             1.0,
         );
-        near(&w(&format!("{t} p")), cb.p, ca.p, 0.0);
+        near(
+            &w(&format!("{t} p")),
+            cb.contrast.test.p,
+            ca.contrast.test.p,
+            0.0,
+        );
     }
     match (&a.moderator_test, &b.moderator_test) {
         (Some(ta), Some(tb)) => {
@@ -631,7 +651,7 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
     }
     match (a.model.log_likelihood, b.model.log_likelihood) {
         (Some(x), Some(y)) => {
-            let shift = match m.as_str() {
+            let shift = match m.id() {
                 "reml" => ch.ll_shift.0,
                 "ml" => ch.ll_shift.1,
                 other => panic!("{}: a log-likelihood for {other}", w("log-likelihood")),
@@ -642,12 +662,37 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
         _ => panic!("{}", w("log-likelihood present in one fit only")),
     }
     let (ea, eb, e) = (&a.average, &b.average, ch.effect);
-    near(&w("average"), eb.estimate, e * ea.estimate, eb.se);
-    near(&w("average se"), eb.se, e * ea.se, 0.0);
-    near(&w("average ci_low"), eb.ci_low, e * ea.ci_low, eb.se);
-    near(&w("average ci_high"), eb.ci_high, e * ea.ci_high, eb.se);
-    near(&w("average pi_low"), eb.pi_low, e * ea.pi_low, eb.se);
-    near(&w("average pi_high"), eb.pi_high, e * ea.pi_high, eb.se);
+    near(
+        &w("average"),
+        eb.mean.estimate,
+        e * ea.mean.estimate,
+        eb.mean.se,
+    );
+    near(&w("average se"), eb.mean.se, e * ea.mean.se, 0.0);
+    near(
+        &w("average ci_low"),
+        eb.mean.ci.ci_low,
+        e * ea.mean.ci.ci_low,
+        eb.mean.se,
+    );
+    near(
+        &w("average ci_high"),
+        eb.mean.ci.ci_high,
+        e * ea.mean.ci.ci_high,
+        eb.mean.se,
+    );
+    near(
+        &w("average pi_low"),
+        eb.mean.pi.pi_low,
+        e * ea.mean.pi.pi_low,
+        eb.mean.se,
+    );
+    near(
+        &w("average pi_high"),
+        eb.mean.pi.pi_high,
+        e * ea.mean.pi.pi_high,
+        eb.mean.se,
+    );
     let by_label: HashMap<&str, _> = a.studies.iter().map(|s| (s.study.as_str(), s)).collect();
     let x = d.design();
     let t = a.tau2.estimate;
@@ -766,10 +811,10 @@ proptest! {
             let a = d.fit(m, Inference::Kh);
             let b = e.fit(m, Inference::Kh);
             assert_changed(&format!("x{} + {shift}", j + 1), &d, &a, &b, &ch);
-            let (b0, bj) = (a.coefficients[0].estimate, a.coefficients[1 + j].estimate);
+            let (b0, bj) = (a.coefficients[0].contrast.estimate, a.coefficients[1 + j].contrast.estimate);
             let want = b0 - bj * shift;
-            let scale = b0.abs() + (bj * shift).abs() + b.coefficients[0].se;
-            near("shifted intercept", b.coefficients[0].estimate, want, scale);
+            let scale = b0.abs() + (bj * shift).abs() + b.coefficients[0].contrast.se;
+            near("shifted intercept", b.coefficients[0].contrast.estimate, want, scale);
         }
     }
 
@@ -782,7 +827,7 @@ proptest! {
             let id = m.id();
             let t = r.tau2.estimate;
             prop_assert!(t >= 0.0 && t.is_finite(), "{id}: τ² = {t}");
-            match (r.tau2.ci_low, r.tau2.ci_high) {
+            match (r.tau2.ci.ci_low, r.tau2.ci.ci_high) {
                 (Some(lo), Some(hi)) => {
                     prop_assert!(0.0 <= lo && lo <= hi && hi.is_finite(), "{id}: CI [{lo}, {hi}]");
                     // The Q-profile interval does not depend on the estimator.
@@ -817,8 +862,8 @@ proptest! {
             }
             prop_assert_eq!(h.r2.is_some(), d.p() > 1 && h.tau2_without_moderators > 0.0);
             for c in &r.coefficients {
-                prop_assert!((0.0..=1.0).contains(&c.p), "{id} {}: p = {}", c.term, c.p);
-                prop_assert!(c.se > 0.0 && c.ci_low <= c.estimate && c.estimate <= c.ci_high);
+                prop_assert!((0.0..=1.0).contains(&c.contrast.test.p), "{id} {}: p = {}", c.term, c.contrast.test.p);
+                prop_assert!(c.contrast.se > 0.0 && c.contrast.ci.ci_low <= c.contrast.estimate && c.contrast.estimate <= c.contrast.ci.ci_high);
             }
             if let Some(mt) = &r.moderator_test {
                 prop_assert!(mt.statistic >= 0.0 && (0.0..=1.0).contains(&mt.p));
@@ -872,7 +917,7 @@ proptest! {
         };
         check("Paule–Mandel Q(τ̂²)", r.tau2.estimate, df);
         let alpha = 1.0 - 0.95;
-        let (lo, hi) = (r.tau2.ci_low.unwrap(), r.tau2.ci_high.unwrap());
+        let (lo, hi) = (r.tau2.ci.ci_low.unwrap(), r.tau2.ci.ci_high.unwrap());
         check("Q at the lower bound", lo, chi2_quantile(alpha / 2.0, df, Tail::Upper));
         check("Q at the upper bound", hi, chi2_quantile(alpha / 2.0, df, Tail::Lower));
     }
@@ -894,13 +939,13 @@ proptest! {
             near(&format!("{} KH scale", m.id()), kh.model.kh_scale.unwrap(), s2, 0.0);
             for (j, (cz, ck)) in z.coefficients.iter().zip(&kh.coefficients).enumerate() {
                 let what = format!("{} {}", m.id(), cz.term);
-                prop_assert_eq!(cz.estimate, ck.estimate);
-                near(&format!("{what} estimate"), cz.estimate, f.beta[j], cz.se);
-                near(&format!("{what} z se"), cz.se, f.variance(j, x.p).sqrt(), 0.0);
-                near(&format!("{what} KH se"), ck.se, cz.se * s2.sqrt(), 0.0);
-                near(&format!("{what} t"), ck.statistic, cz.statistic / s2.sqrt(), 1.0);
-                prop_assert_eq!(ck.df, Some(df));
-                prop_assert_eq!(cz.df, None);
+                prop_assert_eq!(cz.contrast.estimate, ck.contrast.estimate);
+                near(&format!("{what} estimate"), cz.contrast.estimate, f.beta[j], cz.contrast.se);
+                near(&format!("{what} z se"), cz.contrast.se, f.variance(j, x.p).sqrt(), 0.0);
+                near(&format!("{what} KH se"), ck.contrast.se, cz.contrast.se * s2.sqrt(), 0.0);
+                near(&format!("{what} t"), ck.contrast.test.statistic, cz.contrast.test.statistic / s2.sqrt(), 1.0);
+                prop_assert_eq!(ck.contrast.test.df, Some(df));
+                prop_assert_eq!(cz.contrast.test.df, None);
             }
             if let (Some(tz), Some(tk)) = (&z.moderator_test, &kh.moderator_test) {
                 near(&format!("{} F", m.id()), tk.statistic, tz.statistic / (tz.df1 * s2), 1.0);

@@ -55,12 +55,12 @@ fn check_fit(label: &str, r: &FitReport, reference: &Value) {
         r.tau2.estimate,
         &reference["tau2"],
     );
-    match (r.tau2.ci_low, &reference["tau2_ci_low"]) {
+    match (r.tau2.ci.ci_low, &reference["tau2_ci_low"]) {
         (Some(lo), b) if !b.is_null() => {
             v(&format!("{label} tau2 ci_low"), lo, b);
             v(
                 &format!("{label} tau2 ci_high"),
-                r.tau2.ci_high.unwrap(),
+                r.tau2.ci.ci_high.unwrap(),
                 &reference["tau2_ci_high"],
             );
         }
@@ -76,12 +76,24 @@ fn check_fit(label: &str, r: &FitReport, reference: &Value) {
     for (c, e) in r.coefficients.iter().zip(coefs) {
         let l = format!("{label} {}", c.term);
         assert_eq!(c.term, e["term"].as_str().unwrap(), "{l}: term name");
-        v(&format!("{l} estimate"), c.estimate, &e["estimate"]);
-        v(&format!("{l} se"), c.se, &e["se"]);
-        v(&format!("{l} ci_low"), c.ci_low, &e["ci_low"]);
-        v(&format!("{l} ci_high"), c.ci_high, &e["ci_high"]);
-        v(&format!("{l} statistic"), c.statistic, &e["statistic"]);
-        p(&format!("{l} p"), c.p, &e["p"]);
+        v(
+            &format!("{l} estimate"),
+            c.contrast.estimate,
+            &e["estimate"],
+        );
+        v(&format!("{l} se"), c.contrast.se, &e["se"]);
+        v(&format!("{l} ci_low"), c.contrast.ci.ci_low, &e["ci_low"]);
+        v(
+            &format!("{l} ci_high"),
+            c.contrast.ci.ci_high,
+            &e["ci_high"],
+        );
+        v(
+            &format!("{l} statistic"),
+            c.contrast.test.statistic,
+            &e["statistic"],
+        );
+        p(&format!("{l} p"), c.contrast.test.p, &e["p"]);
     }
     match (&r.moderator_test, &reference["moderator_test"]) {
         (None, Value::Null) => {}
@@ -116,12 +128,12 @@ fn check_fit(label: &str, r: &FitReport, reference: &Value) {
         let e = &preds[0];
         let a = &r.average;
         for (name, got) in [
-            ("estimate", a.estimate),
-            ("se", a.se),
-            ("ci_low", a.ci_low),
-            ("ci_high", a.ci_high),
-            ("pi_low", a.pi_low),
-            ("pi_high", a.pi_high),
+            ("estimate", a.mean.estimate),
+            ("se", a.mean.se),
+            ("ci_low", a.mean.ci.ci_low),
+            ("ci_high", a.mean.ci.ci_high),
+            ("pi_low", a.mean.pi.pi_low),
+            ("pi_high", a.mean.pi.pi_high),
         ] {
             v(&format!("{label} average {name}"), got, &e[name]);
         }
@@ -129,12 +141,12 @@ fn check_fit(label: &str, r: &FitReport, reference: &Value) {
         assert_eq!(r.predictions.len(), preds.len(), "{label}: predictions");
         for (pr, e) in r.predictions.iter().zip(preds) {
             for (name, got) in [
-                ("estimate", pr.estimate),
-                ("se", pr.se),
-                ("ci_low", pr.ci_low),
-                ("ci_high", pr.ci_high),
-                ("pi_low", pr.pi_low),
-                ("pi_high", pr.pi_high),
+                ("estimate", pr.mean.estimate),
+                ("se", pr.mean.se),
+                ("ci_low", pr.mean.ci.ci_low),
+                ("ci_high", pr.mean.ci.ci_high),
+                ("pi_low", pr.mean.pi.pi_low),
+                ("pi_high", pr.mean.pi.pi_high),
             ] {
                 v(
                     &format!("{label} prediction {:?} {name}", pr.at),
@@ -233,20 +245,26 @@ fn bcg_published_values_from_memory() {
         &csv,
     );
     close("tau2", r.tau2.estimate, 0.3132, 0.0, PUBLISHED_4DP);
-    close("estimate", r.average.estimate, -0.7145, 0.0, PUBLISHED_4DP);
-    close("se", r.average.se, 0.1798, 0.0, PUBLISHED_4DP);
+    close(
+        "estimate",
+        r.average.mean.estimate,
+        -0.7145,
+        0.0,
+        PUBLISHED_4DP,
+    );
+    close("se", r.average.mean.se, 0.1798, 0.0, PUBLISHED_4DP);
     close("Q", r.heterogeneity.q, 152.2330, 0.0, PUBLISHED_4DP);
     close("I2", r.heterogeneity.i2, 0.9222, 0.0, PUBLISHED_4DP);
     close(
         "tau2 ci low",
-        r.tau2.ci_low.unwrap(),
+        r.tau2.ci.ci_low.unwrap(),
         0.1197,
         0.0,
         PUBLISHED_4DP,
     );
     close(
         "tau2 ci high",
-        r.tau2.ci_high.unwrap(),
+        r.tau2.ci.ci_high.unwrap(),
         1.1115,
         0.0,
         PUBLISHED_4DP,
@@ -258,7 +276,7 @@ fn bcg_published_values_from_memory() {
     close("DL tau2", r.tau2.estimate, 0.3088, 0.0, PUBLISHED_4DP);
     close(
         "DL estimate",
-        r.average.estimate,
+        r.average.mean.estimate,
         -0.7141,
         0.0,
         PUBLISHED_4DP,
@@ -270,26 +288,32 @@ fn bcg_published_values_from_memory() {
     close("ablat tau2", r.tau2.estimate, 0.0764, 0.0, 1e-4);
     close(
         "intercept",
-        r.coefficients[0].estimate,
+        r.coefficients[0].contrast.estimate,
         0.2515,
         0.0,
         PUBLISHED_4DP,
     );
     close(
         "intercept se",
-        r.coefficients[0].se,
+        r.coefficients[0].contrast.se,
         0.2491,
         0.0,
         PUBLISHED_4DP,
     );
     close(
         "ablat",
-        r.coefficients[1].estimate,
+        r.coefficients[1].contrast.estimate,
         -0.0291,
         0.0,
         PUBLISHED_4DP,
     );
-    close("ablat se", r.coefficients[1].se, 0.0072, 0.0, PUBLISHED_4DP);
+    close(
+        "ablat se",
+        r.coefficients[1].contrast.se,
+        0.0072,
+        0.0,
+        PUBLISHED_4DP,
+    );
     close("QE", r.heterogeneity.q, 30.7331, 0.0, PUBLISHED_4DP);
     close("R2", r.heterogeneity.r2.unwrap(), 0.7562, 0.0, 1e-4);
 }
@@ -434,7 +458,7 @@ fn statsmodels_pooled_estimates_and_wls() {
             v(&format!("{l} tau2"), r.tau2.estimate, &e["tau2"]);
             v(
                 &format!("{l} mean"),
-                r.average.estimate,
+                r.average.mean.estimate,
                 &e["mean_effect_re"],
             );
             let se_key = if kh {
@@ -442,7 +466,7 @@ fn statsmodels_pooled_estimates_and_wls() {
             } else {
                 "sd_eff_w_re"
             };
-            v(&format!("{l} se"), r.average.se, &e[se_key]);
+            v(&format!("{l} se"), r.average.mean.se, &e[se_key]);
             checked += 1;
         }
         for (model_name, model) in fixture["models"].as_object().unwrap() {
@@ -463,8 +487,12 @@ fn statsmodels_pooled_estimates_and_wls() {
                     for (j, c) in r.coefficients.iter().enumerate() {
                         let l =
                             format!("{name}/{model_name}/{est}/{inf} statsmodels WLS {}", c.term);
-                        v(&format!("{l} estimate"), c.estimate, &e["estimate"][j]);
-                        v(&format!("{l} se"), c.se, &e["se"][j]);
+                        v(
+                            &format!("{l} estimate"),
+                            c.contrast.estimate,
+                            &e["estimate"][j],
+                        );
+                        v(&format!("{l} se"), c.contrast.se, &e["se"][j]);
                     }
                     checked += 1;
                 }

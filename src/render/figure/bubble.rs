@@ -9,7 +9,7 @@ use super::palette::*;
 use super::{decimals_for, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
-use crate::model::design::ModeratorKind;
+use crate::result::ModeratorKind;
 use crate::result::{AtValue, FitReport};
 use crate::support::format as fmt;
 
@@ -74,22 +74,22 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         ));
         if report.model.interactions.is_empty() {
             if let Some(c) = report.coefficients.iter().find(|c| &c.term == name) {
-                let d = decimals_for(c.ci_high - c.ci_low).max(2);
+                let d = decimals_for(c.contrast.ci.ci_high - c.contrast.ci.ci_low).max(2);
                 let ratio = match &c.ratio {
                     Some(r) => format!(
                         " (the ratio is multiplied by {} [{}, {}])",
                         fmt::plot_num(r.estimate, d.max(3)),
-                        fmt::plot_num(r.ci_low, d.max(3)),
-                        fmt::plot_num(r.ci_high, d.max(3))
+                        fmt::plot_num(r.ci.ci_low, d.max(3)),
+                        fmt::plot_num(r.ci.ci_high, d.max(3))
                     ),
                     None => String::new(),
                 };
                 caption.push(format!(
                     "Change in the analysed effect per unit of {name}: {} [{}, {}]{ratio}, p {}.",
-                    fmt::plot_num(c.estimate, d),
-                    fmt::plot_num(c.ci_low, d),
-                    fmt::plot_num(c.ci_high, d),
-                    crate::support::format::p(c.p)
+                    fmt::plot_num(c.contrast.estimate, d),
+                    fmt::plot_num(c.contrast.ci.ci_low, d),
+                    fmt::plot_num(c.contrast.ci.ci_high, d),
+                    crate::support::format::p(c.contrast.test.p)
                 ));
             }
         }
@@ -135,12 +135,15 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     if numeric {
         if let Some(c) = curve {
             for p in &c.points {
-                ys.extend([tp(p.pi_low), tp(p.pi_high)]);
+                ys.extend([tp(p.pi.pi_low), tp(p.pi.pi_high)]);
             }
         }
     } else if let Some(g) = report.subgroups.iter().find(|g| &g.moderator == name) {
         for l in &g.levels {
-            ys.extend([tp(l.predicted.pi_low), tp(l.predicted.pi_high)]);
+            ys.extend([
+                tp(l.predicted.mean.pi.pi_low),
+                tp(l.predicted.mean.pi.pi_high),
+            ]);
         }
     }
     let ymin = ys.iter().copied().fold(f64::INFINITY, f64::min);
@@ -190,19 +193,19 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             let upper: Vec<(f64, f64)> = c
                 .points
                 .iter()
-                .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci_high)))))
+                .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci.ci_high)))))
                 .collect();
             let mut band = upper.clone();
             band.extend(
                 c.points
                     .iter()
                     .rev()
-                    .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci_low))))),
+                    .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci.ci_low))))),
             );
             sc.poly(band, Some((FIT, 0.2)), None);
             for pick in [
-                |p: &crate::result::CurvePoint| p.pi_low,
-                |p: &crate::result::CurvePoint| p.pi_high,
+                |p: &crate::result::CurvePoint| p.pi.pi_low,
+                |p: &crate::result::CurvePoint| p.pi.pi_high,
             ] {
                 let line: Vec<(f64, f64)> = c
                     .points
@@ -264,11 +267,17 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             if let Some(lvl) = group.and_then(|g| g.levels.iter().find(|x| &x.level == level)) {
                 let p = &lvl.predicted;
                 let x = cx + 0.24 * band_w;
-                let (pl, ph) = (f.y(y_in(tp(p.pi_low))), f.y(y_in(tp(p.pi_high))));
+                let (pl, ph) = (
+                    f.y(y_in(tp(p.mean.pi.pi_low))),
+                    f.y(y_in(tp(p.mean.pi.pi_high))),
+                );
                 sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
                 sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);
                 sc.line(vec![(x + 5.0, ph), (x + 15.0, ph)], PREDICT, 2);
-                let (cl, ch) = (f.y(y_in(tp(p.ci_low))), f.y(y_in(tp(p.ci_high))));
+                let (cl, ch) = (
+                    f.y(y_in(tp(p.mean.ci.ci_low))),
+                    f.y(y_in(tp(p.mean.ci.ci_high))),
+                );
                 sc.line(
                     vec![
                         (x - 5.0, cl),
@@ -281,7 +290,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     FIT,
                     3,
                 );
-                let y = f.y(y_in(tp(p.estimate)));
+                let y = f.y(y_in(tp(p.mean.estimate)));
                 sc.poly(
                     vec![(x - 8.0, y), (x, y - 8.0), (x + 8.0, y), (x, y + 8.0)],
                     Some((FIT, 1.0)),

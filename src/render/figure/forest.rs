@@ -13,8 +13,7 @@ use super::{
 };
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
-use crate::model::design::ModeratorKind;
-use crate::result::{AtValue, Estimate, FitReport, LevelSummary};
+use crate::result::{AtValue, Estimate, FitReport, LevelSummary, ModeratorKind};
 use crate::support::format as fmt;
 
 /// The most studies a forest plot draws (one row each).
@@ -185,11 +184,11 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     // Value range (plot space) and the clip limits of long intervals.
     let avg = &report.average;
     let mut core: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
-    core.extend([tp(avg.pi_low), tp(avg.pi_high), 0.0]);
+    core.extend([tp(avg.mean.pi.pi_low), tp(avg.mean.pi.pi_high), 0.0]);
     if let Some((_, g)) = group {
         for lv in &g.levels {
             if let Some(p) = &lv.pooled {
-                core.extend([tp(p.ci_low), tp(p.ci_high)]);
+                core.extend([tp(p.mean.ci.ci_low), tp(p.mean.ci.ci_high)]);
             }
         }
     }
@@ -200,7 +199,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     // typical (median) interval is wider than that; longer ones are cut.
     let mut halves: Vec<f64> = studies
         .iter()
-        .map(|s| (tp(s.ci_high) - tp(s.ci_low)) / 2.0)
+        .map(|s| (tp(s.ci.ci_high) - tp(s.ci.ci_low)) / 2.0)
         .collect();
     halves.sort_by(f64::total_cmp);
     let reach = (0.6 * span).max(1.2 * halves[halves.len() / 2]);
@@ -211,12 +210,12 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     }
     let lo = studies
         .iter()
-        .map(|s| tp(s.ci_low))
+        .map(|s| tp(s.ci.ci_low))
         .fold(cmin, f64::min)
         .max(lim_lo);
     let hi = studies
         .iter()
-        .map(|s| tp(s.ci_high))
+        .map(|s| tp(s.ci.ci_high))
         .fold(cmax, f64::max)
         .min(lim_hi);
     let axis = Axis::new(lo, hi, scale == ReadingScale::Ratio, 7).snapped();
@@ -239,7 +238,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         .copied()
         .fold(f64::NEG_INFINITY, f64::max);
     let dec = if scale == ReadingScale::Ratio {
-        if studies.iter().any(|s| show(s.ci_low) < 0.095) {
+        if studies.iter().any(|s| show(s.ci.ci_low) < 0.095) {
             3
         } else {
             2
@@ -259,7 +258,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let fs_max = font(auto_rh).max(12.0);
     let ci_w = studies
         .iter()
-        .map(|s| text_width(&ci_text(s.effect, s.ci_low, s.ci_high), fs_max))
+        .map(|s| text_width(&ci_text(s.effect, s.ci.ci_low, s.ci.ci_high), fs_max))
         .fold(
             text_width(
                 &format!(
@@ -322,7 +321,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
 
     // Caption (wrapped to the width), which fixes the space at the bottom.
     let lv = fmt::level_pct(report.model.level);
-    let pooled_name = if report.model.tau2_method == "none" {
+    let pooled_name = if report.model.tau2_method == crate::result::Tau2Method::None {
         "Common-effect average"
     } else {
         "Random-effects average"
@@ -355,7 +354,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     ));
     let clipped = studies
         .iter()
-        .any(|s| tp(s.ci_low) < axis.lo || tp(s.ci_high) > axis.hi);
+        .any(|s| tp(s.ci.ci_low) < axis.lo || tp(s.ci.ci_high) > axis.hi);
     if clipped {
         caption.push("◀ ▶ the interval continues beyond the axis.".into());
     }
@@ -446,8 +445,8 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         );
     }
     // Dotted guide at the average.
-    if (axis.lo..=axis.hi).contains(&tp(avg.estimate)) {
-        let x = x_of(tp(avg.estimate));
+    if (axis.lo..=axis.hi).contains(&tp(avg.mean.estimate)) {
+        let x = x_of(tp(avg.mean.estimate));
         sc.dashed(vec![(x, top), (x, rows_bottom)], POOLED, 1, (1.5, 4.0));
     }
 
@@ -457,9 +456,9 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let clip = |v: f64| v.clamp(axis.lo, axis.hi);
     let diamond = |sc: &mut Scene, e: &Estimate, y: f64, fill: (_, f64), outline: u32| {
         let (a, b, c) = (
-            x_of(clip(tp(e.ci_low))),
-            x_of(clip(tp(e.estimate))),
-            x_of(clip(tp(e.ci_high))),
+            x_of(clip(tp(e.mean.ci.ci_low))),
+            x_of(clip(tp(e.mean.estimate))),
+            x_of(clip(tp(e.mean.ci.ci_high))),
         );
         let hd = (rh * 0.36).max(2.5);
         // A very narrow interval stays visible as a diamond 3 pixels wide.
@@ -502,7 +501,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                         Align::Right,
                     );
                 }
-                let (l, h) = (tp(s.ci_low), tp(s.ci_high));
+                let (l, h) = (tp(s.ci.ci_low), tp(s.ci.ci_high));
                 let (xl, xh) = (x_of(clip(l)), x_of(clip(h)));
                 let cap = (rh * 0.18).max(1.5);
                 let mut path = Vec::new();
@@ -557,7 +556,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                 }
                 sc.text(
                     (width - margin - weight_w - 10.0, y),
-                    ci_text(s.effect, s.ci_low, s.ci_high),
+                    ci_text(s.effect, s.ci.ci_low, s.ci.ci_high),
                     label_size,
                     INK,
                     Align::Right,
@@ -588,7 +587,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                         diamond(&mut sc, p, y, (GROUP, 0.45), 1);
                         sc.text(
                             (width - margin - weight_w - 10.0, y),
-                            ci_text(p.estimate, p.ci_low, p.ci_high),
+                            ci_text(p.mean.estimate, p.mean.ci.ci_low, p.mean.ci.ci_high),
                             label_size,
                             INK,
                             Align::Right,
@@ -627,7 +626,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                 diamond(&mut sc, avg, y, (POOLED, 1.0), 2);
                 sc.text(
                     (width - margin - weight_w - 10.0, y),
-                    ci_text(avg.estimate, avg.ci_low, avg.ci_high),
+                    ci_text(avg.mean.estimate, avg.mean.ci.ci_low, avg.mean.ci.ci_high),
                     label_size,
                     INK,
                     Align::Right,
@@ -642,7 +641,10 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     INK,
                     Align::Left,
                 );
-                let (a, b) = (x_of(clip(tp(avg.pi_low))), x_of(clip(tp(avg.pi_high))));
+                let (a, b) = (
+                    x_of(clip(tp(avg.mean.pi.pi_low))),
+                    x_of(clip(tp(avg.mean.pi.pi_high))),
+                );
                 let bar = (rh * 0.3).max(2.0);
                 sc.dashed(vec![(a, y), (b, y)], PREDICT, 3, (7.0, 4.0));
                 sc.line(vec![(a, y - bar), (a, y + bar)], PREDICT, 3);
@@ -651,8 +653,8 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     (width - margin - weight_w - 10.0, y),
                     format!(
                         "[{}, {}]",
-                        fmt::plot_num(show(avg.pi_low), dec),
-                        fmt::plot_num(show(avg.pi_high), dec)
+                        fmt::plot_num(show(avg.mean.pi.pi_low), dec),
+                        fmt::plot_num(show(avg.mean.pi.pi_high), dec)
                     ),
                     label_size,
                     INK,

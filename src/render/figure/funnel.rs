@@ -35,7 +35,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let centre = if residuals {
         0.0
     } else {
-        report.average.estimate
+        report.average.mean.estimate
     };
     let xs: Vec<f64> = studies
         .iter()

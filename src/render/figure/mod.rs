@@ -15,9 +15,9 @@ pub mod scene;
 
 pub use scene::{Align, Scene};
 
-use crate::effect::ReadingScale;
+use crate::effect::{Measure, ReadingScale};
 use crate::error::{Error, Result};
-use crate::result::FitReport;
+use crate::result::{FitReport, Inference, MeasureId, Tau2Method};
 use crate::support::format as fmt;
 use std::path::Path;
 
@@ -188,9 +188,7 @@ pub fn page_figures(
                         .model
                         .moderators
                         .iter()
-                        .find(|m| {
-                            matches!(m.kind, crate::model::design::ModeratorKind::Numeric { .. })
-                        })
+                        .find(|m| matches!(m.kind, crate::result::ModeratorKind::Numeric { .. }))
                         .or(report.model.moderators.first())
                         .map(|m| m.name.clone())
                 })
@@ -299,10 +297,10 @@ pub(crate) fn measure_name(report: &FitReport) -> String {
     if let Some(r) = &report.measure.reading_name {
         return r.clone();
     }
-    match report.measure.id.as_str() {
-        "smd" => "Hedges' g".into(),
-        "risk-diff" => "risk difference".into(),
-        "slope" => "slope".into(),
+    match report.measure.id {
+        MeasureId::Measure(Measure::Smd) => "Hedges' g".into(),
+        MeasureId::Measure(Measure::RiskDiff) => "risk difference".into(),
+        MeasureId::Measure(Measure::Slope) => "slope".into(),
         _ => "effect".into(),
     }
 }
@@ -565,18 +563,18 @@ impl Frame {
 
 /// The caption line describing the model (estimator, τ², inference).
 pub(crate) fn model_line(report: &FitReport) -> String {
-    let method = match report.model.tau2_method.as_str() {
-        "none" => "common-effect model (τ² = 0)".to_string(),
+    let method = match report.model.tau2_method {
+        Tau2Method::None => "common-effect model (τ² = 0)".to_string(),
         m => format!(
             "τ² = {} ({})",
             fmt::plot_num(
                 report.tau2.estimate,
                 decimals_for(report.tau2.estimate).max(3)
             ),
-            m.to_uppercase()
+            m.id().to_uppercase()
         ),
     };
-    let inference = if report.model.inference == "kh" {
+    let inference = if report.model.inference == Inference::Kh {
         "Knapp–Hartung intervals"
     } else {
         "z-based intervals"

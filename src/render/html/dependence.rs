@@ -4,6 +4,7 @@
 
 use super::page::Page;
 use super::section::FitCtx;
+use crate::result::ClusterLevel;
 use crate::support::format::{self as fmt, num};
 
 /// Whether the report carries a cluster structure or cluster-robust tests.
@@ -29,7 +30,7 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
                     c.clusters, c.max_cluster_size, c.single_effect_clusters
                 ),
             ),
-            ("Model", c.model.clone()),
+            ("Model", c.model.to_string()),
         ]);
     }
     if let Some(vc) = &report.variance_components {
@@ -37,9 +38,9 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
             .iter()
             .map(|v| {
                 vec![
-                    v.level.clone(),
+                    v.level.to_string(),
                     num(v.estimate),
-                    match (v.ci_low, v.ci_high) {
+                    match (v.ci.ci_low, v.ci.ci_high) {
                         (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },
@@ -80,10 +81,9 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
                     format!(
                         "{} varies {}",
                         t.term,
-                        match t.level.as_str() {
-                            "between" => "between clusters only".to_string(),
-                            "within" => "within clusters".to_string(),
-                            other => other.to_string(),
+                        match t.level {
+                            ClusterLevel::Between => "between clusters only",
+                            ClusterLevel::Within => "within clusters",
                         }
                     )
                 })
@@ -101,8 +101,8 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
             .map(|c| {
                 vec![
                     c.term.clone(),
-                    num(c.estimate),
-                    num(c.se),
+                    num(c.contrast.estimate),
+                    num(c.contrast.se),
                     fmt::opt_num(c.robust_se),
                     c.robust_df
                         .map(|d| format!("{d:.1}"))

@@ -69,7 +69,9 @@ fn permutation(page: &mut Page, report: &FitReport) {
                 vec![
                     t.clone(),
                     fmt::opt_p_cell(*pp),
-                    fmt::p(c.p).trim_start_matches("= ").to_string(),
+                    fmt::p(c.contrast.test.p)
+                        .trim_start_matches("= ")
+                        .to_string(),
                 ]
             })
             .collect();
@@ -179,7 +181,11 @@ fn influence(page: &mut Page, report: &FitReport) {
                             String::new()
                         }
                     } else {
-                        i.exceeded.join(", ")
+                        i.exceeded
+                            .iter()
+                            .map(|c| c.id())
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     },
                 ]
             })
@@ -238,7 +244,7 @@ fn small_study(page: &mut Page, report: &FitReport, lv: &str) {
                     if t.filled == 1 { "study" } else { "studies" },
                     t.side,
                     num(t.estimate),
-                    fmt::interval(t.ci_low, t.ci_high),
+                    fmt::interval(t.ci.ci_low, t.ci.ci_high),
                     num(t.estimate_observed)
                 ),
             ),
@@ -259,7 +265,7 @@ fn cumulative(page: &mut Page, report: &FitReport, lv: &str) {
                     at_text(&c.value),
                     c.k.to_string(),
                     fmt::opt_num(c.estimate),
-                    match (c.ci_low, c.ci_high) {
+                    match (c.ci.ci_low, c.ci.ci_high) {
                         (Some(a), Some(b)) => fmt::interval(a, b),
                         _ => "—".into(),
                     },

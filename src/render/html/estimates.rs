@@ -14,17 +14,17 @@ fn estimate_rows(
 ) {
     rows.push(vec![
         name.to_string(),
-        num(e.estimate),
-        fmt::interval(e.ci_low, e.ci_high),
-        fmt::interval(e.pi_low, e.pi_high),
-        num(e.se),
+        num(e.mean.estimate),
+        fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
+        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high),
+        num(e.mean.se),
     ]);
     if let (Some(r), Some(rn)) = (&e.reading, reading_name) {
         rows.push(vec![
             format!("{name}, as {rn}"),
             num(r.estimate),
-            fmt::interval(r.ci_low, r.ci_high),
-            fmt::interval(r.pi_low, r.pi_high),
+            fmt::interval(r.ci.ci_low, r.ci.ci_high),
+            fmt::interval(r.pi.pi_low, r.pi.pi_high),
             "—".into(),
         ]);
     }
@@ -58,7 +58,7 @@ pub(super) fn pooled(page: &mut Page, cx: &FitCtx) {
             }
             .to_string(),
             num(t.estimate),
-            match (t.ci_low, t.ci_high) {
+            match (t.ci.ci_low, t.ci.ci_high) {
                 (Some(a), Some(b)) => format!("{lv} CI {}", fmt::interval(a, b)),
                 _ => "—".into(),
             },

@@ -5,7 +5,7 @@
 
 use super::page::{at_text, Page};
 use super::section::FitCtx;
-use crate::result::FitReport;
+use crate::result::{FitReport, ProbePoint};
 use crate::support::format::{self as fmt, num};
 
 /// Whether the report carries conditional effects, contrasts, regions or artifact corrections.
@@ -35,9 +35,9 @@ pub(super) fn interpretation(page: &mut Page, cx: &FitCtx) {
 fn contrast_cells(t: &crate::result::ContrastTest) -> Vec<String> {
     vec![
         num(t.estimate),
-        fmt::interval(t.ci_low, t.ci_high),
-        format!("{:.2}", t.statistic),
-        fmt::p(t.p).trim_start_matches("= ").to_string(),
+        fmt::interval(t.ci.ci_low, t.ci.ci_high),
+        format!("{:.2}", t.test.statistic),
+        fmt::p(t.test.p).trim_start_matches("= ").to_string(),
     ]
 }
 
@@ -52,7 +52,7 @@ fn conditional_effects(page: &mut Page, report: &FitReport, lv: &str) {
                 groups.push((c.moderator.as_str(), c.held.as_str()));
             }
         }
-        let stat = if report.model.inference == "kh" {
+        let stat = if report.model.inference == crate::result::Inference::Kh {
             "t"
         } else {
             "z"
@@ -64,7 +64,7 @@ fn conditional_effects(page: &mut Page, report: &FitReport, lv: &str) {
                 .filter(|c| c.moderator == m && c.held == held)
                 .map(|c| {
                     let mut at = format!("{} = {}", c.moderator, at_text(&c.at));
-                    if c.point != "given" && c.point != "level" {
+                    if !matches!(c.point, ProbePoint::Given | ProbePoint::Level) {
                         at.push_str(&format!(" ({})", c.point));
                     }
                     if c.outside_range {
@@ -72,11 +72,11 @@ fn conditional_effects(page: &mut Page, report: &FitReport, lv: &str) {
                     }
                     vec![
                         at,
-                        num(c.estimate),
-                        fmt::interval(c.ci_low, c.ci_high),
-                        fmt::interval(c.pi_low, c.pi_high),
-                        format!("{:.2}", c.statistic),
-                        fmt::p(c.p).trim_start_matches("= ").to_string(),
+                        num(c.mean.estimate),
+                        fmt::interval(c.mean.ci.ci_low, c.mean.ci.ci_high),
+                        fmt::interval(c.mean.pi.pi_low, c.mean.pi.pi_high),
+                        format!("{:.2}", c.test.statistic),
+                        fmt::p(c.test.p).trim_start_matches("= ").to_string(),
                     ]
                 })
                 .collect();
@@ -178,13 +178,13 @@ fn regions(page: &mut Page, report: &FitReport) {
                     } else {
                         bounds.join(", ")
                     },
-                    r.significant.clone(),
+                    r.significant.to_string(),
                     format!(
                         "{} to {}",
                         fmt::value(r.observed_min),
                         fmt::value(r.observed_max)
                     ),
-                    r.observed_region.clone(),
+                    r.observed_region.to_string(),
                 ]
             })
             .collect();
@@ -224,8 +224,8 @@ fn picture(page: &mut Page, report: &FitReport) {
                 "mean effect".to_string(),
                 format!(
                     "{} {}",
-                    num(pc.pooled.estimate),
-                    fmt::interval(pc.pooled.ci_low, pc.pooled.ci_high)
+                    num(pc.pooled.mean.estimate),
+                    fmt::interval(pc.pooled.mean.ci.ci_low, pc.pooled.mean.ci.ci_high)
                 ),
                 format!(
                     "{} to {} (probed values)",

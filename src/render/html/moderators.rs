@@ -56,7 +56,7 @@ fn omnibus(page: &mut Page, cx: &FitCtx) {
 fn coefficients(page: &mut Page, cx: &FitCtx) {
     let (report, lv) = (cx.report, &cx.lv);
     let ratio = report.coefficients.iter().any(|c| c.ratio.is_some());
-    let stat_name = if report.model.inference == "kh" {
+    let stat_name = if report.model.inference == crate::result::Inference::Kh {
         "t"
     } else {
         "z"
@@ -76,15 +76,17 @@ fn coefficients(page: &mut Page, cx: &FitCtx) {
         .map(|c| {
             let mut r = vec![
                 c.term.clone(),
-                num(c.estimate),
-                num(c.se),
-                fmt::interval(c.ci_low, c.ci_high),
-                format!("{:.2}", c.statistic),
-                fmt::p(c.p).trim_start_matches("= ").to_string(),
+                num(c.contrast.estimate),
+                num(c.contrast.se),
+                fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                format!("{:.2}", c.contrast.test.statistic),
+                fmt::p(c.contrast.test.p)
+                    .trim_start_matches("= ")
+                    .to_string(),
             ];
             if let Some(q) = &c.ratio {
                 r.push(num(q.estimate));
-                r.push(fmt::interval(q.ci_low, q.ci_high));
+                r.push(fmt::interval(q.ci.ci_low, q.ci.ci_high));
             } else if ratio {
                 r.push("—".into());
                 r.push("—".into());
@@ -95,7 +97,7 @@ fn coefficients(page: &mut Page, cx: &FitCtx) {
     let df_note = report
         .coefficients
         .first()
-        .and_then(|c| c.df)
+        .and_then(|c| c.contrast.test.df)
         .map(|d| format!(" (t tests on {} degrees of freedom)", fmt::df(d)))
         .unwrap_or_default();
     page.table(
@@ -127,10 +129,10 @@ fn predictions(page: &mut Page, cx: &FitCtx) {
                 }
                 vec![
                     at,
-                    num(p.estimate),
-                    fmt::interval(p.ci_low, p.ci_high),
-                    fmt::interval(p.pi_low, p.pi_high),
-                    num(p.se),
+                    num(p.mean.estimate),
+                    fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
+                    fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high),
+                    num(p.mean.se),
                 ]
             })
             .collect();
@@ -154,12 +156,16 @@ fn levels(page: &mut Page, cx: &FitCtx) {
                 vec![
                     l.level.clone(),
                     l.k.to_string(),
-                    num(l.predicted.estimate),
-                    fmt::interval(l.predicted.ci_low, l.predicted.ci_high),
+                    num(l.predicted.mean.estimate),
+                    fmt::interval(l.predicted.mean.ci.ci_low, l.predicted.mean.ci.ci_high),
                     l.pooled
                         .as_ref()
                         .map(|e| {
-                            format!("{} {}", num(e.estimate), fmt::interval(e.ci_low, e.ci_high))
+                            format!(
+                                "{} {}",
+                                num(e.mean.estimate),
+                                fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high)
+                            )
                         })
                         .unwrap_or_else(|| "—".into()),
                 ]
@@ -187,8 +193,8 @@ fn levels(page: &mut Page, cx: &FitCtx) {
 }
 
 /// A moderator in words: numeric, or categorical with its levels.
-fn describe_moderator(m: &crate::model::design::Moderator) -> String {
-    use crate::model::design::ModeratorKind;
+fn describe_moderator(m: &crate::result::Moderator) -> String {
+    use crate::result::ModeratorKind;
     match &m.kind {
         ModeratorKind::Numeric { .. } => "numeric".into(),
         ModeratorKind::Categorical {

@@ -60,9 +60,9 @@ pub(super) fn start(cx: &FitCtx) -> Page {
             format!(
                 "The average effect is {} ({lv} CI {}); a new study's true effect is expected in {} \
                  ({lv} prediction interval).",
-                num(a.estimate),
-                fmt::interval(a.ci_low, a.ci_high),
-                fmt::interval(a.pi_low, a.pi_high)
+                num(a.mean.estimate),
+                fmt::interval(a.mean.ci.ci_low, a.mean.ci.ci_high),
+                fmt::interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
             )
         }
     };

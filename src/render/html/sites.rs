@@ -118,10 +118,10 @@ fn question(page: &mut Page, cx: &SitesCtx) {
             f.coefficients.get(j).map(|c| {
                 format!(
                     "{} ({} CI {}, p {})",
-                    num(c.estimate),
+                    num(c.contrast.estimate),
                     fmt::level_pct(f.model.level),
-                    fmt::interval(c.ci_low, c.ci_high),
-                    fmt::p(c.p)
+                    fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                    fmt::p(c.contrast.test.p)
                 )
             })
         };
@@ -190,7 +190,7 @@ fn data(page: &mut Page, cx: &SitesCtx) {
         ),
         ("Sites estimated", report.sites.len().to_string()),
         ("Sites left out", report.excluded.len().to_string()),
-        ("Standard errors", m.se_type.clone()),
+        ("Standard errors", m.se_type.to_string()),
     ];
     if m.center_within {
         facts.push((
@@ -304,10 +304,12 @@ fn stage_block(page: &mut Page, title: &str, fit: &FitReport, intercept_label: O
                     (0, Some(l)) => l.to_string(),
                     _ => c.term.clone(),
                 },
-                num(c.estimate),
-                num(c.se),
-                fmt::interval(c.ci_low, c.ci_high),
-                fmt::p(c.p).trim_start_matches("= ").to_string(),
+                num(c.contrast.estimate),
+                num(c.contrast.se),
+                fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
+                fmt::p(c.contrast.test.p)
+                    .trim_start_matches("= ")
+                    .to_string(),
             ]
         })
         .collect();

@@ -31,7 +31,7 @@ pub(super) fn studies(page: &mut Page, cx: &FitCtx) {
                 s.line.to_string(),
                 num(s.effect),
                 num(s.variance),
-                fmt::interval(s.ci_low, s.ci_high),
+                fmt::interval(s.ci.ci_low, s.ci.ci_high),
                 format!("{:.1}%", s.weight),
                 s.std_residual
                     .map(|z| format!("{z:.2}"))

@@ -1,0 +1,292 @@
+//! The public result of `pondus fit` (and of `pondus sites`): plain structs
+//! that every renderer and plot reads. Their JSON form (field docs) is the
+//! stable schema.
+//!
+//! The groups of numbers that recur (intervals, tests, estimates with their
+//! intervals) are small shared structs ([`Interval`], [`PredictionInterval`],
+//! [`Test`], [`ContrastTest`], [`MeanEffect`]), written flat into their
+//! owner's JSON object; every choice is an enum serialised to the same word
+//! as its `id()` (and its `Display`).
+//!
+//! This module imports nothing above `effect` and `input`.
+
+/// `Display` for choice enums: the word of their `id()`, as in the JSON.
+macro_rules! display_by_id {
+    ($($t:ty),* $(,)?) => {$(
+        impl std::fmt::Display for $t {
+            fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str(self.id())
+            }
+        }
+    )*};
+}
+
+mod clusters;
+mod diagnose;
+mod estimate;
+mod interpret;
+mod model;
+mod predict;
+mod sites;
+
+pub use clusters::*;
+pub use diagnose::*;
+pub use estimate::*;
+pub use interpret::*;
+pub use model::*;
+pub use predict::*;
+pub use sites::*;
+
+use crate::effect::{Measure, ReadingScale};
+use crate::input::Delimiter;
+use serde::Serialize;
+
+/// Everything `pondus fit` reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitReport {
+    /// Tool name and version.
+    pub tool: ToolInfo,
+    /// Where the data came from.
+    pub input: InputInfo,
+    /// The effect measure.
+    pub measure: MeasureInfo,
+    /// Number of studies used in the model.
+    pub k: usize,
+    /// Rows left out, with the reason, in file order.
+    pub excluded: Vec<Excluded>,
+    /// The model that was fitted.
+    pub model: ModelInfo,
+    /// Residual between-study variance.
+    pub tau2: Tau2Report,
+    /// Coefficients, intercept first, then the terms in the order given.
+    pub coefficients: Vec<Coefficient>,
+    /// Omnibus test of every moderator term (null without moderators).
+    pub moderator_test: Option<ModeratorTest>,
+    /// Residual heterogeneity.
+    pub heterogeneity: Heterogeneity,
+    /// The average effect from the same estimator with no moderators.
+    pub average: Estimate,
+    /// Predicted effects at the `--at` values.
+    pub predictions: Vec<Prediction>,
+    /// One entry per included study, in input order.
+    pub studies: Vec<Study>,
+    /// Per-level summaries of each categorical moderator, in moderator order.
+    pub subgroups: Vec<Subgroups>,
+    /// The fitted line with its bands along each numeric moderator, in moderator order.
+    pub curves: Vec<Curve>,
+    /// Things that may make a result unreliable.
+    pub warnings: Vec<String>,
+    /// How to read the results responsibly.
+    pub cautions: Vec<String>,
+    /// Adjustments and facts worth knowing (corrections applied, skipped blank rows, ...).
+    pub notes: Vec<String>,
+    /// Conditional effects, simple slopes, level contrasts and regions of
+    /// significance (empty lists without --probe / --compare-levels / --regions).
+    #[serde(flatten)]
+    pub interpretation: Interpretation,
+    /// Artifact corrections of the correlations (null without --reliability-x,
+    /// --reliability-y or --range-ratio).
+    pub artifacts: Option<ArtifactReport>,
+    /// Leave-one-out refits, one per included study in input order (`--loo`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub leave_one_out: Option<Vec<LeaveOneOut>>,
+    /// Influence measures, one per included study in input order (`--influence`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub influence: Option<Vec<Influence>>,
+    /// Permutation test of the moderators (`--permutations`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub permutation: Option<Permutation>,
+    /// Small-study effects: regression and rank tests, trim-and-fill (`--small-study`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub small_study: Option<SmallStudy>,
+    /// Cumulative meta-analysis, one step per study in the ordering column's order (`--cumulative-by`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cumulative: Option<Vec<CumulativeStep>>,
+    /// The cut-offs behind `influence[].influential` for this k and p (with `--influence`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub influence_cutoffs: Option<InfluenceCutoffs>,
+    /// How `cumulative` was ordered (with `--cumulative-by`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cumulative_order: Option<CumulativeOrder>,
+    /// Variance components of the three-level model (`--cluster`; omitted otherwise).
+    /// `tau2` then holds their sum σ²_between + σ²_within.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub variance_components: Option<Vec<VarianceComponent>>,
+    /// Clusters, per-level heterogeneity, likelihood-ratio tests and moderator
+    /// levels (`--cluster`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub clustering: Option<ClusterReport>,
+}
+
+/// Tool name and version.
+#[derive(Debug, Clone, Serialize)]
+pub struct ToolInfo {
+    /// Always "pondus".
+    pub name: String,
+    /// The crate version.
+    pub version: String,
+}
+
+/// Where the data came from.
+#[derive(Debug, Clone, Serialize)]
+pub struct InputInfo {
+    /// File name as given (`<stdin>` for standard input).
+    pub file: String,
+    /// Detected delimiter: "comma", "semicolon" or "tab".
+    pub delimiter: Delimiter,
+    /// Data rows read (blank rows not counted).
+    pub rows: usize,
+    /// Header of the column used for study labels (null: labels made from line numbers).
+    pub label_column: Option<String>,
+    /// SHA-256 of the input bytes exactly as read, lowercase hex (FIPS 180-4),
+    /// so a reader can check that a result belongs to a file.
+    pub sha256: String,
+}
+
+/// The effect measure.
+#[derive(Debug, Clone, Serialize)]
+pub struct MeasureInfo {
+    /// Command-line name, e.g. "r" or "log-or" ("r-corrected" after artifact corrections).
+    pub id: MeasureId,
+    /// What the analysed numbers are.
+    pub description: String,
+    /// How results are shown back: "same", "correlation" (tanh) or "ratio" (exp).
+    pub reading_scale: ReadingScale,
+    /// Name of the back-transformed quantity (null when the same).
+    pub reading_name: Option<String>,
+    /// The value of "no effect" on the analysis scale (always 0).
+    pub null_value: f64,
+}
+
+/// What `measure.id` names: a measure of the command line, or the
+/// artifact-corrected correlations (analysed on the r scale).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum MeasureId {
+    /// A measure as chosen with `--measure`.
+    Measure(Measure),
+    /// Pearson correlations corrected for artifacts: "r-corrected".
+    RCorrected,
+}
+
+impl MeasureId {
+    /// The name used in the JSON.
+    pub fn id(self) -> &'static str {
+        match self {
+            MeasureId::Measure(m) => m.id(),
+            MeasureId::RCorrected => "r-corrected",
+        }
+    }
+}
+
+impl Serialize for MeasureId {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.id())
+    }
+}
+
+display_by_id!(MeasureId);
+
+/// A row left out of the model.
+#[derive(Debug, Clone, Serialize)]
+pub struct Excluded {
+    /// Study label.
+    pub study: String,
+    /// Line in the file.
+    pub line: u64,
+    /// Why it was left out.
+    pub reason: String,
+}
+
+/// One included study.
+#[derive(Debug, Clone, Serialize)]
+pub struct Study {
+    /// Label.
+    pub study: String,
+    /// Line in the file.
+    pub line: u64,
+    /// Effect on the analysis scale.
+    pub effect: f64,
+    /// Sampling variance.
+    pub variance: f64,
+    /// The study's own confidence interval, effect ∓ z·√variance (normal
+    /// quantile at the model's level).
+    #[serde(flatten)]
+    pub ci: Interval,
+    /// Share of the total weight, in percent.
+    pub weight: f64,
+    /// Fitted value x_i'β̂.
+    pub fitted: f64,
+    /// Residual effect − fitted.
+    pub residual: f64,
+    /// Standardised residual (null when undefined).
+    pub std_residual: Option<f64>,
+    /// The study's moderator values, in the order of `model.moderators`.
+    pub moderators: Vec<AtValue>,
+    /// An adjustment made to this study's data.
+    pub note: Option<String>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn json<T: Serialize>(v: T) -> String {
+        serde_json::to_string(&v).unwrap()
+    }
+
+    /// Every choice enum serialises to the word of its `id()`.
+    #[test]
+    fn choice_enums_serialise_to_their_id() {
+        fn check<T: Serialize + std::fmt::Display + Copy>(all: &[T]) {
+            for v in all {
+                assert_eq!(json(*v), format!("\"{v}\""));
+            }
+        }
+        check(&[
+            Tau2Method::Reml,
+            Tau2Method::Ml,
+            Tau2Method::Dl,
+            Tau2Method::Pm,
+            Tau2Method::He,
+            Tau2Method::Sj,
+            Tau2Method::None,
+        ]);
+        check(&[Inference::Kh, Inference::Z]);
+        check(&[TestDistribution::F, TestDistribution::ChiSquare]);
+        check(&[RobustTestMethod::Htz]);
+        check(&[
+            ProbePoint::Given,
+            ProbePoint::MeanMinusSd,
+            ProbePoint::Mean,
+            ProbePoint::MeanPlusSd,
+            ProbePoint::Level,
+        ]);
+        check(&[
+            Region::Everywhere,
+            Region::Nowhere,
+            Region::Outside,
+            Region::Inside,
+            Region::Above,
+            Region::Below,
+        ]);
+        check(&[
+            Cutoff::Dffits,
+            Cutoff::CooksDistance,
+            Cutoff::Hat,
+            Cutoff::Rstudent,
+        ]);
+        check(&[Side::Left, Side::Right]);
+        check(&[SortOrder::Numeric, SortOrder::Text]);
+        check(&[ClusterLevel::Between, ClusterLevel::Within]);
+        check(&[ClusterModel::ThreeLevel, ClusterModel::TwoLevel]);
+        check(&[SitesInputKind::Rows, SitesInputKind::Moments]);
+        check(&[SeType::Classical, SeType::Hc3]);
+        check(&[Delimiter::Comma, Delimiter::Semicolon, Delimiter::Tab]);
+        for m in Measure::ALL {
+            assert_eq!(json(m), format!("\"{}\"", m.id()));
+            check(&[MeasureId::Measure(m)]);
+        }
+        check(&[MeasureId::RCorrected]);
+        assert_eq!(json(Ending::TruncatedAtZero), "\"truncated-at-zero\"");
+    }
+}
