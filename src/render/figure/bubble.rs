@@ -4,9 +4,10 @@
 //! categorical moderator: the studies of each level side by side, with the
 //! level's predicted effect, its confidence interval and prediction interval.
 
-use super::forest::{effect_axis_title, wrap};
 use super::palette::*;
-use super::{decimals_for, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use super::{
+    decimals_for, effect_axis_title, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene,
+};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::ModeratorKind;
@@ -300,10 +301,6 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         }
     }
     f.axes(&mut sc, name, &effect_axis_title(report));
-    let mut cy = f.y1 + 64.0;
-    for line in cap_lines {
-        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
-        cy += 17.0;
-    }
+    super::caption(&mut sc, &cap_lines, margin, f.y1 + 64.0);
     Ok(sc)
 }

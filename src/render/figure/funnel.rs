@@ -3,9 +3,8 @@
 //! pseudo-confidence region around the estimate (around 0 for residuals),
 //! and optional significance contours around no effect.
 
-use super::forest::wrap;
 use super::palette::*;
-use super::{measure_name, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use super::{measure_name, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::Result;
 use crate::result::FitReport;
@@ -249,9 +248,6 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         sc.text((x, cy), "white: p ≥ 0.10", size::SMALL, INK, Align::Left);
         cy += legend_h;
     }
-    for line in cap_lines {
-        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
-        cy += 17.0;
-    }
+    super::caption(&mut sc, &cap_lines, margin, cy);
     Ok(sc)
 }

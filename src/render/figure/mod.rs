@@ -284,6 +284,53 @@ pub(crate) mod size {
     pub const SMALL: f64 = 12.5;
 }
 
+/// Splits `text` into lines no wider than `max` pixels.
+pub(crate) fn wrap(text: &str, size: f64, max: f64) -> Vec<String> {
+    let mut lines = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        let candidate = if line.is_empty() {
+            word.to_string()
+        } else {
+            format!("{line} {word}")
+        };
+        if !line.is_empty() && scene::text_width(&candidate, size) > max {
+            lines.push(std::mem::take(&mut line));
+            line = word.to_string();
+        } else {
+            line = candidate;
+        }
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
+/// The axis title of an effect axis on the reading scale.
+pub(crate) fn effect_axis_title(report: &FitReport) -> String {
+    let name = measure_name(report);
+    match report.measure.reading_scale {
+        ReadingScale::Ratio => format!("{name} (log scale)"),
+        ReadingScale::Correlation => format!("{name} (analysed as Fisher's z)"),
+        ReadingScale::Same => name,
+    }
+}
+
+/// Draws caption lines at the left margin, 17 pixels apart, the first at `cy`.
+pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, mut cy: f64) {
+    for line in lines {
+        sc.text(
+            (margin, cy),
+            line.clone(),
+            size::SMALL,
+            palette::MUTED,
+            Align::Left,
+        );
+        cy += 17.0;
+    }
+}
+
 /// Decimals that show values spread over `span` with about three significant digits.
 pub(crate) fn decimals_for(span: f64) -> usize {
     if !(span.is_finite() && span > 0.0) {
