@@ -3,29 +3,11 @@
 mod cli;
 
 use clap::Parser;
-use cli::{Cli, Command};
 use std::process::ExitCode;
 
 fn run() -> anyhow::Result<()> {
-    let cli = Cli::parse();
-    match cli.command {
-        Command::Fit(args) => {
-            let run = args.check()?;
-            cli::run_fit(&run)?;
-        }
-        Command::Plan(args) => {
-            let run = args.check()?;
-            cli::run_plan(&run)?;
-        }
-        Command::Sites(args) => {
-            let run = args.check()?;
-            cli::run_sites(&run)?;
-        }
-        Command::Sql(args) => {
-            let q = args.query()?;
-            cli::outputs::emit(&cli::outputs::Target::Stdout, q.as_bytes())?;
-        }
-    }
+    let cli = cli::Cli::parse();
+    cli::run(&cli)?;
     Ok(())
 }
 

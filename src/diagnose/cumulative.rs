@@ -7,6 +7,7 @@ use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
 use crate::model::{inference, FitOptions};
 use crate::result::{AtValue, CumulativeStep, Interval, SortOrder};
+use crate::support::flag::Flag;
 
 /// The steps of a cumulative meta-analysis.
 ///
@@ -80,7 +81,7 @@ pub fn steps(
 pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, SortOrder)> {
     if let Some(i) = col.cells.iter().position(|c| is_missing(c)) {
         return Err(Error::usage(
-            "--cumulative-by",
+            Flag::CumulativeBy,
             format!(
                 "{source}: line {}, column '{}': the ordering value is missing for a study in the \
                  model; fill it in, or order by another column",

@@ -246,7 +246,7 @@ pub fn run(
     }
     if settings.small_study && k > MAX_RANK_TEST_STUDIES {
         return Err(Error::usage(
-            "--small-study",
+            crate::support::flag::Flag::SmallStudy,
             format!(
                 "the rank-correlation test compares every pair of studies, and {k} studies are \
                  more than the {MAX_RANK_TEST_STUDIES} accepted"

@@ -5,6 +5,7 @@ use super::{ModelData, PermutationSettings};
 use crate::error::{Error, Result};
 use crate::model::{self, inference};
 use crate::result::Permutation;
+use crate::support::flag::Flag;
 use crate::support::rng::{block_rng, Xoshiro256StarStar};
 use crate::tolerance::PERMUTATION_TIE_REL;
 
@@ -209,8 +210,11 @@ pub fn test(
     let (k, p) = (d.k(), d.p);
     if p < 2 {
         return Err(Error::usage(
-            "--permutations",
-            "the model has no moderators to permute; add --moderator NAME",
+            Flag::Permutations,
+            format!(
+                "the model has no moderators to permute; add {} NAME",
+                Flag::Moderator
+            ),
         ));
     }
     let observed = statistics(d.y, d.v, d.x, d).ok_or_else(|| {

@@ -10,6 +10,7 @@ use crate::model::{self, inference, FitOptions};
 use crate::result::{
     AsymmetryTest, FilledStudy, Interval, RankTest, RatioCoefficient, Side, SmallStudy, TrimFill,
 };
+use crate::support::flag::Flag;
 use crate::tolerance::TRIM_FILL_MAX_ITERS;
 
 /// Fewest studies for which the small-study analyses are computed at all.
@@ -38,8 +39,9 @@ pub fn asymmetry(y: &[f64], v: &[f64], x: &[f64], p: usize) -> Result<AsymmetryT
     let k = y.len();
     if k < p + 2 {
         return Err(Error::Model(format!(
-            "--small-study: the regression test needs at least {} studies with {} coefficient{} \
+            "{}: the regression test needs at least {} studies with {} coefficient{} \
              (it adds the standard error as one more), and there are {k}",
+            Flag::SmallStudy,
             p + 2,
             p,
             if p == 1 { "" } else { "s" }
@@ -53,11 +55,11 @@ pub fn asymmetry(y: &[f64], v: &[f64], x: &[f64], p: usize) -> Result<AsymmetryT
     }
     let data = Data { y, v, x: &z, p: q };
     let f = fit_with(&data, 0.0, Want::Q).ok_or_else(|| {
-        Error::Model(
-            "--small-study: the standard errors are collinear with the moderators, so the \
-             regression test is not defined"
-                .into(),
-        )
+        Error::Model(format!(
+            "{}: the standard errors are collinear with the moderators, so the \
+             regression test is not defined",
+            Flag::SmallStudy
+        ))
     })?;
     let df = (k - q) as f64;
     let phi = f.q / df;
@@ -65,11 +67,11 @@ pub fn asymmetry(y: &[f64], v: &[f64], x: &[f64], p: usize) -> Result<AsymmetryT
     let se = (phi * f.m_inv[(p, p)]).sqrt();
     let t = slope / se;
     if !t.is_finite() {
-        return Err(Error::Model(
-            "--small-study: the regression test is not defined (the effects lie exactly on a \
-             line in their standard errors, or all standard errors are equal)"
-                .into(),
-        ));
+        return Err(Error::Model(format!(
+            "{}: the regression test is not defined (the effects lie exactly on a \
+             line in their standard errors, or all standard errors are equal)",
+            Flag::SmallStudy
+        )));
     }
     Ok(AsymmetryTest {
         statistic: t,
@@ -143,11 +145,11 @@ pub fn rank_test(y: &[f64], v: &[f64]) -> Result<RankTest> {
         + x0 * y0 / (9.0 * m * (nf - 2.0));
     let z = s / var.sqrt();
     if !(tau.is_finite() && z.is_finite()) {
-        return Err(Error::Model(
-            "--small-study: the rank-correlation test is not defined (all sampling variances, or \
-             all deviates, are tied)"
-                .into(),
-        ));
+        return Err(Error::Model(format!(
+            "{}: the rank-correlation test is not defined (all sampling variances, or \
+             all deviates, are tied)",
+            Flag::SmallStudy
+        )));
     }
     Ok(RankTest {
         tau,
@@ -176,11 +178,12 @@ fn pooled(y: &[f64], v: &[f64], options: FitOptions) -> Result<(f64, f64, f64)> 
     let ones = vec![1.0; y.len()];
     let f = model::fit_parts(y, v, &ones, 1, options, false)?;
     if f.kh_scale == Some(0.0) {
-        return Err(Error::Model(
-            "--small-study: trim-and-fill met studies that all have the same effect, so the \
-             Knapp–Hartung interval is 0; use --inference z"
-                .into(),
-        ));
+        return Err(Error::Model(format!(
+            "{}: trim-and-fill met studies that all have the same effect, so the \
+             Knapp–Hartung interval is 0; use {} z",
+            Flag::SmallStudy,
+            Flag::Inference
+        )));
     }
     let pr = inference::predict(&f, &[1.0]);
     Ok((pr.estimate, pr.ci_low, pr.ci_high))
@@ -293,8 +296,9 @@ pub fn analyse(d: &ModelData<'_>, scale: ReadingScale) -> Result<(SmallStudy, Ve
     let k = d.k();
     if k < MIN_STUDIES {
         return Err(Error::Model(format!(
-            "--small-study needs at least {MIN_STUDIES} studies, and the model has {k}; drop \
-             --small-study (with so few studies no asymmetry can be judged)"
+            "{flag} needs at least {MIN_STUDIES} studies, and the model has {k}; drop \
+             {flag} (with so few studies no asymmetry can be judged)",
+            flag = Flag::SmallStudy
         )));
     }
     let asymmetry_test = asymmetry(d.y, d.v, d.x, d.p)?;

@@ -25,6 +25,7 @@ use super::{shorten, EffectColumn, Measure, RowEffect, RowProblem};
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{ColumnRequest, Table};
+use crate::support::flag::Flag;
 
 /// Which columns hold the artifact values (None: that correction is not made).
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
@@ -44,16 +45,16 @@ impl ArtifactSettings {
     }
 
     /// (flag, role, column) for each correction asked for, in the order applied.
-    pub fn columns(&self) -> Vec<(&'static str, &'static str, String)> {
+    pub fn columns(&self) -> Vec<(Flag, &'static str, String)> {
         let mut out = Vec::new();
         if let Some(c) = &self.reliability_y {
-            out.push(("--reliability-y", "reliability of y", c.clone()));
+            out.push((Flag::ReliabilityY, "reliability of y", c.clone()));
         }
         if let Some(c) = &self.range_ratio {
-            out.push(("--range-ratio", "range ratio u", c.clone()));
+            out.push((Flag::RangeRatio, "range ratio u", c.clone()));
         }
         if let Some(c) = &self.reliability_x {
-            out.push(("--reliability-x", "reliability of x", c.clone()));
+            out.push((Flag::ReliabilityX, "reliability of x", c.clone()));
         }
         out
     }
@@ -203,7 +204,8 @@ pub fn requests(settings: &ArtifactSettings, measure: Measure) -> Result<Vec<Col
             return Err(Error::usage(
                 *flag,
                 format!(
-                    "artifact corrections apply to Pearson correlations; use --measure r (not {})",
+                    "artifact corrections apply to Pearson correlations; use {} r (not {})",
+                    Flag::Measure,
                     measure.id()
                 ),
             ));
@@ -278,8 +280,8 @@ pub fn apply(
                 }
             };
             match *flag {
-                "--reliability-x" => a.rxx = Some(x),
-                "--reliability-y" => a.ryy = Some(x),
+                Flag::ReliabilityX => a.rxx = Some(x),
+                Flag::ReliabilityY => a.ryy = Some(x),
                 _ => a.u = Some(x),
             }
         }
@@ -309,12 +311,12 @@ pub fn apply(
                     "n" => (n_col, ""),
                     role => {
                         let want = match role {
-                            "reliability_x" => "--reliability-x",
-                            "reliability_y" => "--reliability-y",
-                            _ => "--range-ratio",
+                            "reliability_x" => Flag::ReliabilityX,
+                            "reliability_y" => Flag::ReliabilityY,
+                            _ => Flag::RangeRatio,
                         };
                         let j = cols.iter().position(|(f, _, _)| *f == want).unwrap_or(0);
-                        (first + j, want)
+                        (first + j, want.name())
                     }
                 };
                 let (column, value) = table

@@ -13,6 +13,7 @@ pub mod smd;
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{ColumnRequest, Table};
+use crate::support::flag::Flag;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -289,7 +290,7 @@ impl ColumnMap {
             if !measure.roles().iter().any(|r| r.name == role) {
                 let names: Vec<&str> = measure.roles().iter().map(|r| r.name).collect();
                 return Err(Error::usage(
-                    "--col",
+                    Flag::Col,
                     format!(
                         "'{role}' is not an input of measure '{}'; its inputs are: {}",
                         measure.id(),
@@ -317,9 +318,16 @@ impl ColumnMap {
             .map(|r| ColumnRequest {
                 header: self.header(r.name),
                 required: r.required,
-                purpose: format!("{} ({}) with --measure {}", r.meaning, r.name, measure.id()),
+                purpose: format!(
+                    "{} ({}) with {} {}",
+                    r.meaning,
+                    r.name,
+                    Flag::Measure,
+                    measure.id()
+                ),
                 hint: format!(
-                    "Rename the column, or map it with --col {}=<header>.",
+                    "Rename the column, or map it with {} {}=<header>.",
+                    Flag::Col,
                     r.name
                 ),
             })
@@ -356,14 +364,15 @@ pub fn compute(
             return Err(Error::MissingColumn {
                 source_name: table.source.clone(),
                 column: map.header("variance"),
-                purpose: "the precision of each effect with --measure effect".into(),
+                purpose: format!("the precision of each effect with {} effect", Flag::Measure),
                 available: table.headers.join(", "),
                 hint: format!(
-                    "Give one of the columns '{}', '{}', or '{}' with '{}' (95% CI), or map them with --col.",
+                    "Give one of the columns '{}', '{}', or '{}' with '{}' (95% CI), or map them with {}.",
                     map.header("variance"),
                     map.header("se"),
                     map.header("ci_low"),
-                    map.header("ci_high")
+                    map.header("ci_high"),
+                    Flag::Col
                 ),
             });
         }

@@ -3,6 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
+use crate::support::flag::Flag;
 use crate::tolerance;
 use serde::Serialize;
 
@@ -77,12 +78,13 @@ pub fn classify(
                 .map(|&i| format!("line {} ('{}')", lines[i], cells[i]))
                 .collect();
             return Err(Error::usage(
-                "--moderator",
+                Flag::Moderator,
                 format!(
                     "{source}: column '{}' is mostly numbers but not at {}; fix those cells, or pass \
-                     --categorical {} to treat every value as a category label",
+                     {} {} to treat every value as a category label",
                     spec.name,
                     shown.join(", "),
+                    Flag::Categorical,
                     spec.name
                 ),
             ));
@@ -213,7 +215,7 @@ pub fn design_row(
             (ModeratorKind::Categorical { levels, .. }, Value::Label(l)) => {
                 let code = levels.iter().position(|x| x == l).ok_or_else(|| {
                     Error::usage(
-                        "--at",
+                        Flag::At,
                         format!(
                             "'{l}' is not a level of moderator '{}'; its levels are: {}",
                             m.name,
@@ -225,13 +227,13 @@ pub fn design_row(
             }
             (ModeratorKind::Numeric { .. }, Value::Label(l)) => {
                 return Err(Error::usage(
-                    "--at",
+                    Flag::At,
                     format!("'{l}' is not a number (moderator '{}' is numeric)", m.name),
                 ))
             }
             (ModeratorKind::Categorical { levels, .. }, Value::Number(x)) => {
                 return Err(Error::usage(
-                    "--at",
+                    Flag::At,
                     format!(
                         "moderator '{}' is categorical; give one of its levels ({}) instead of {x}",
                         m.name,
@@ -374,7 +376,7 @@ fn categorical_kind(
 ) -> Result<ModeratorKind> {
     if spec.center {
         return Err(Error::usage(
-            "--center",
+            Flag::Center,
             format!(
                 "moderator '{}' is categorical and cannot be centred",
                 spec.name
@@ -405,7 +407,7 @@ fn categorical_kind(
         Some(r) if levels.contains(r) => r.clone(),
         Some(r) => {
             return Err(Error::usage(
-                "--reference",
+                Flag::Reference,
                 format!(
                     "'{r}' is not a level of moderator '{}' among the included studies; \
                      its levels are: {}",

@@ -1,6 +1,9 @@
-//! Small shared pieces below every other layer: hashing of inputs and the
-//! seeded random-number generator of the simulations and permutations.
+//! Small shared pieces below every other layer: the names of the flags
+//! that library messages mention ([`flag`]), numbers as text ([`format`]),
+//! hashing of inputs ([`hash`]) and the seeded random-number generator of
+//! the simulations and permutations ([`rng`]).
 
+pub mod flag;
 pub mod format;
 pub mod hash;
 pub mod rng;

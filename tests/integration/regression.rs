@@ -245,3 +245,86 @@ fn extreme_correlations_and_huge_n_stay_finite() {
     }
     assert!(v["tau2"]["estimate"].as_f64().unwrap().is_finite());
 }
+
+/// Runs `pondus` with `args` in a scratch folder holding copies of the
+/// named `data-examples/` files; returns the exit code, standard error and
+/// the names of the files in the folder afterwards (sorted).
+fn run_in_scratch(inputs: &[&str], args: &[&str]) -> (Option<i32>, String, Vec<String>) {
+    let dir = tempfile::tempdir().unwrap();
+    for name in inputs {
+        std::fs::copy(
+            repo(&format!("data-examples/{name}")),
+            dir.path().join(name),
+        )
+        .unwrap();
+    }
+    let out = Command::cargo_bin("pondus")
+        .unwrap()
+        .current_dir(dir.path())
+        .args(args)
+        .output()
+        .unwrap();
+    let mut files: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    files.sort();
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+        files,
+    )
+}
+
+/// `fit` wrote `--json` before it drew the report's plots; a `--sort` that
+/// names no moderator fails only there, so the run exited 2 and left
+/// `out.json` behind. Every output is now rendered before any is written.
+#[test]
+fn fit_with_a_failing_report_leaves_no_json_behind() {
+    let (code, err, files) = run_in_scratch(
+        &["precomputed-effects.csv"],
+        &[
+            "fit",
+            "precomputed-effects.csv",
+            "--measure",
+            "effect",
+            "--json",
+            "out.json",
+            "--report",
+            "r.html",
+            "--sort",
+            "nosuchmod",
+        ],
+    );
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("--sort") && err.contains("nosuchmod"), "{err}");
+    assert_eq!(files, ["precomputed-effects.csv"], "{err}");
+}
+
+/// `sites` wrote the effects file (`--out`) before the JSON; when the JSON
+/// could not be written (its folder does not exist) the run failed and left
+/// `effects.csv` behind. Now no file is renamed into place until every
+/// output has been written completely.
+#[test]
+fn sites_with_an_unwritable_json_leaves_no_effects_file_behind() {
+    let (code, err, files) = run_in_scratch(
+        &["choir-participants.csv"],
+        &[
+            "sites",
+            "choir-participants.csv",
+            "--site",
+            "choir",
+            "--x",
+            "rehearsal_hours",
+            "--y",
+            "breath_hold_s",
+            "--out",
+            "effects.csv",
+            "--json",
+            "no-such-folder/sites.json",
+        ],
+    );
+    assert_eq!(code, Some(1), "{err}");
+    assert!(err.contains("no-such-folder/sites.json"), "{err}");
+    assert_eq!(files, ["choir-participants.csv"], "{err}");
+}

@@ -1,0 +1,295 @@
+//! `pondus fit`: read a table of per-study effects, fit the model, and write
+//! every requested output. The flags come in groups (one clap struct each,
+//! flattened into [`FitArgs`] in the order `--help` lists them); each group
+//! checks its own flags, and [`FitArgs::check`] checks them in that order.
+
+mod groups;
+
+use groups::{
+    ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,
+    ReportArgs,
+};
+
+use super::outputs::{self, Outputs, Target};
+use super::{invocation, io_err, json_bytes, with_progress};
+use clap::Args;
+use pondus::error::Result;
+use pondus::fit::{self, FitSettings};
+use pondus::input::Source;
+use pondus::render;
+use pondus::render::figure;
+
+/// Options of `pondus fit`.
+#[derive(Debug, Args)]
+pub struct FitArgs {
+    /// The input file, its measure and columns.
+    #[command(flatten)]
+    pub input: InputArgs,
+    /// The model: moderators, estimator, tests, predictions.
+    #[command(flatten)]
+    pub model: ModelArgs,
+    /// The JSON result and the per-study table.
+    #[command(flatten)]
+    pub output: OutputArgs,
+    /// The plots and their settings.
+    #[command(flatten)]
+    pub plots: PlotArgs,
+    /// The terminal report and the HTML page.
+    #[command(flatten)]
+    pub report: ReportArgs,
+    /// Probes, level comparisons, regions and artifact corrections.
+    #[command(flatten)]
+    pub interpretation: InterpretationArgs,
+    /// Robustness checks.
+    #[command(flatten)]
+    pub diagnostics: DiagnosticArgs,
+    /// Dependent effects nested in clusters.
+    #[command(flatten)]
+    pub clusters: ClusterArgs,
+}
+
+/// The plots `fit` draws.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlotKind {
+    /// `--forest`.
+    Forest,
+    /// `--bubble`.
+    Bubble,
+    /// `--funnel`.
+    Funnel,
+}
+
+/// One requested plot.
+#[derive(Debug, Clone)]
+pub struct PlotRequest {
+    /// Which plot.
+    pub kind: PlotKind,
+    /// Where it goes (always a file).
+    pub target: Target,
+    /// SVG or PNG, from the extension.
+    pub format: figure::Format,
+}
+
+/// Checked settings of a `fit` run.
+#[derive(Debug, Clone)]
+pub struct FitRun {
+    /// Where the data come from.
+    pub source: Source,
+    /// The analysis settings.
+    pub settings: FitSettings,
+    /// JSON output.
+    pub json: Option<Target>,
+    /// Per-study CSV output.
+    pub table: Option<Target>,
+    /// Plots to draw.
+    pub plots: Vec<PlotRequest>,
+    /// Plot settings.
+    pub plot_options: figure::PlotOptions,
+    /// Whether to print the terminal report.
+    pub text: bool,
+    /// The HTML report's target.
+    pub report: Option<Target>,
+    /// The command line, quoted for a shell (for the report's reproducibility block).
+    pub invocation: String,
+}
+
+impl FitArgs {
+    /// Turns the raw flags into checked settings.
+    ///
+    /// # Errors
+    /// [`pondus::Error::Usage`] naming the flag and how to fix it.
+    pub fn check(&self) -> Result<FitRun> {
+        let (measure, columns) = self.input.columns()?;
+        let model = self.model.check()?;
+        let source = Source::from_arg(&self.input.file);
+        let (json, table) = self.output.targets();
+        let mut outs: Vec<(&str, &Target)> = Vec::new();
+        if let Some(j) = &json {
+            outs.push(("--json", j));
+        }
+        if let Some(t) = &table {
+            outs.push(("--table", t));
+        }
+        let plots = self.plots.requests()?;
+        self.plots.check_needs(self.report.report.is_some())?;
+        let report = self.report.target()?;
+        self.plots
+            .check_size(!plots.is_empty() || report.is_some())?;
+        if let Some(name) = &self.plots.bubble_x {
+            self.model.known("--bubble-x", name)?;
+        }
+        for (flag, p) in &plots {
+            outs.push((flag, &p.target));
+        }
+        if let Some(t) = &report {
+            outs.push(("--report", t));
+        }
+        let input_path = match &source {
+            Source::File(p) => Some(p.as_path()),
+            Source::Stdin => None,
+        };
+        outputs::check_targets(input_path, &outs)?;
+        let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
+        Ok(FitRun {
+            source,
+            settings: FitSettings {
+                measure,
+                columns,
+                label: (
+                    self.input.label.clone().unwrap_or_else(|| "study".into()),
+                    self.input.label.is_some(),
+                ),
+                moderators: model.moderators,
+                interactions: model.interactions,
+                options: model.options,
+                predictions: model.predictions,
+                interpret: self.interpretation.check(&self.model, self.input.measure)?,
+                diagnostics: self.diagnostics.check(&self.model)?,
+                dependence: self.clusters.check(&self.diagnostics)?,
+            },
+            json,
+            table,
+            plots: plots.into_iter().map(|(_, p)| p).collect(),
+            plot_options: self.plots.options(),
+            text: !self.report.quiet && !to_stdout,
+            report,
+            invocation: invocation(),
+        })
+    }
+}
+
+/// Runs a checked `fit`: read, analyse, write every requested output.
+///
+/// # Errors
+/// Any library error.
+pub fn run_fit(run: &FitRun) -> Result<()> {
+    let bytes = run.source.read_all()?;
+    let report = with_progress(
+        run.settings
+            .diagnostics
+            .permutations
+            .map(|p| p.permutations as u64),
+        "permuting {bar:30} {pos}/{len} arrangements ({eta})",
+        |tick| fit::run_with_progress(&run.settings, &run.source.name(), &bytes, tick),
+    )?;
+    // Every output is rendered before any is written (see `Outputs`), so an
+    // output the model cannot support leaves no partial set behind.
+    let mut drawn = Vec::with_capacity(run.plots.len());
+    for p in &run.plots {
+        let o = &run.plot_options;
+        let bytes = match p.kind {
+            PlotKind::Forest => figure::forest_plot(&report, o, p.format)?,
+            PlotKind::Bubble => figure::bubble_plot(&report, o, p.format)?,
+            PlotKind::Funnel => figure::funnel_plot(&report, o, p.format)?,
+        };
+        drawn.push((&p.target, bytes));
+    }
+    let mut out = Outputs::new();
+    if let Some(t) = &run.json {
+        out.add(t, json_bytes(&report)?);
+    }
+    if let Some(t) = &run.table {
+        let mut buf = Vec::new();
+        render::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
+        out.add(t, buf);
+    }
+    for (target, bytes) in drawn {
+        out.add(target, bytes);
+    }
+    if let Some(t) = &run.report {
+        let (figures, figure_notes) = figure::page_figures(&report, &run.plot_options)?;
+        let prov = render::html::Provenance {
+            command: run.invocation.clone(),
+            version: report.tool.version.clone(),
+            input_sha256: Some(report.input.sha256.clone()),
+            seed: report.permutation.as_ref().and_then(|p| p.seed),
+        };
+        out.add(
+            t,
+            render::html::fit_page(&report, &figures, &figure_notes, &prov),
+        );
+    }
+    if run.text {
+        out.add(&Target::Stdout, render::text::render(&report));
+    }
+    out.write()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cli::{Cli, Command};
+    use clap::Parser;
+    use pondus::error::Error;
+
+    fn args(extra: &[&str]) -> Result<FitRun> {
+        let mut v = vec!["pondus", "fit", "in.csv"];
+        v.extend_from_slice(extra);
+        let Command::Fit(a) = Cli::try_parse_from(v).unwrap().command else {
+            panic!("parsed as fit")
+        };
+        a.check()
+    }
+
+    #[test]
+    fn checked_settings() {
+        let r = args(&[
+            "--moderator",
+            "dose",
+            "--moderator",
+            "arm",
+            "--reference",
+            "arm=b",
+            "--center",
+            "dose",
+        ])
+        .unwrap();
+        let m = &r.settings.moderators;
+        assert!(m[1].categorical && m[1].reference.as_deref() == Some("b"));
+        assert!(m[0].center && !m[0].categorical);
+        assert!(r.text);
+        let e = args(&["--level", "95"]).unwrap_err().to_string();
+        assert!(e.contains("--level 0.95"), "{e}");
+        assert!(args(&["--reference", "arm=b"])
+            .unwrap_err()
+            .to_string()
+            .contains("add --moderator arm"));
+        assert!(args(&["--moderator", "a", "--interaction", "a"]).is_err());
+        assert!(args(&["--col", "nope=x", "--measure", "r"]).is_err());
+        assert!(args(&["--at", "dose"]).is_err());
+        assert!(args(&["--json", "in.csv"]).is_err());
+        let p = args(&[
+            "--forest",
+            "f.svg",
+            "--funnel",
+            "u.PNG",
+            "--sort",
+            "precision",
+            "--contours",
+            "--width",
+            "800",
+        ])
+        .unwrap();
+        assert_eq!(p.plots.len(), 2);
+        assert_eq!(p.plots[1].format, figure::Format::Png);
+        assert_eq!(p.plot_options.sort, figure::SortKey::Precision);
+        assert_eq!(p.plot_options.width, Some(800));
+        assert!(p.plot_options.contours && !p.plot_options.show_fitted);
+        for bad in [
+            &["--forest", "f.jpg"][..],
+            &["--forest", "-"],
+            &["--bubble-x", "dose"],
+            &["--show-fitted"],
+            &["--width", "800"],
+            &["--forest", "f.svg", "--height", "50"],
+            &["--forest", "f.svg", "--funnel", "f.svg"],
+            &["--bubble", "b.svg", "--bubble-x", "dose"],
+        ] {
+            assert!(
+                matches!(args(bad), Err(Error::Usage { .. })),
+                "{bad:?} is refused"
+            );
+        }
+        assert!(!args(&["--json", "-"]).unwrap().text);
+    }
+}

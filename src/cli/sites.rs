@@ -1,0 +1,312 @@
+//! `pondus sites`: per-site regressions from participant rows (or a moments
+//! table), the join with a table of site characteristics, the optional
+//! second stage, and the effects file for `pondus fit`.
+
+use super::outputs::{self, Outputs, Target};
+use super::{invocation, json_bytes, report_target, InferenceArg, Tau2Arg};
+use clap::Args;
+use pondus::error::{Error, Result};
+use pondus::input::Source;
+use pondus::model::design::ModeratorSpec;
+use pondus::model::FitOptions;
+use pondus::render;
+use pondus::render::figure;
+use std::path::PathBuf;
+
+/// Options of `pondus sites`.
+#[derive(Debug, Args)]
+pub struct SitesArgs {
+    /// CSV file of participant rows: a site id, x, y and optional w and covariates ('-' reads standard input).
+    #[arg(required_unless_present = "moments", conflicts_with = "moments")]
+    pub file: Option<PathBuf>,
+    /// Column of the site ids.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub site: Option<String>,
+    /// Column of the predictor whose slope each site estimates.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub x: Option<String>,
+    /// Column of the outcome.
+    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    pub y: Option<String>,
+    /// Column of a participant-level moderator: adds the product term x·w in each site.
+    #[arg(long, value_name = "COL")]
+    pub w: Option<String>,
+    /// A covariate to adjust for in every site's regression (repeatable).
+    #[arg(long = "covariate", value_name = "COL")]
+    pub covariates: Vec<String>,
+    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
+    #[arg(long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
+    pub moments: Option<PathBuf>,
+    /// CSV file of site characteristics, one row per site, joined by site id.
+    #[arg(long, value_name = "SITES.csv")]
+    pub info: Option<PathBuf>,
+    /// Id column of the --info table [default: the --site column's name, or 'site' with --moments].
+    #[arg(long, value_name = "COL", requires = "info")]
+    pub info_key: Option<String>,
+    /// Write the per-site effects (readable by `pondus fit --measure slope`) here ('-' for standard output).
+    #[arg(long, value_name = "EFFECTS.csv")]
+    pub out: Option<PathBuf>,
+    /// HC3 standard errors instead of classical ones (reads the file a second time; not for standard input).
+    #[arg(long)]
+    pub robust: bool,
+    /// Centre x and w at their site means in the product-term model (same product term, better conditioning).
+    #[arg(long, requires = "w")]
+    pub center_within: bool,
+    /// Also run the second stage: pooled product term (within sites) beside the slope-on-mean-w meta-regression (across sites).
+    #[arg(long)]
+    pub fit: bool,
+    /// A site characteristic (a column of --info) to regress the site slopes on (repeatable; with --fit).
+    #[arg(long = "moderator", value_name = "NAME", requires = "fit")]
+    pub moderators: Vec<String>,
+    /// Estimator of the between-site variance τ² in the second stage.
+    #[arg(long, value_enum, default_value_t = Tau2Arg::Reml, requires = "fit")]
+    pub tau2: Tau2Arg,
+    /// Tests and intervals of the second stage.
+    #[arg(long, value_enum, default_value_t = InferenceArg::Kh, requires = "fit")]
+    pub inference: InferenceArg,
+    /// Confidence level of the second stage's intervals.
+    #[arg(long, default_value_t = 0.95, requires = "fit")]
+    pub level: f64,
+    /// Write the whole result (sites, exclusions, join, second stage) as JSON ('-' for standard output).
+    #[arg(long, value_name = "PATH")]
+    pub json: Option<PathBuf>,
+    /// Do not print the terminal summary.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Write one self-contained HTML page (sites, exclusions, join, both stages, plots, cautions) into this .html file ('-' for standard output).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+}
+
+/// Where `pondus sites` reads from.
+#[derive(Debug, Clone)]
+pub enum SitesInputArg {
+    /// Participant rows.
+    Rows(Source),
+    /// A moments table.
+    Moments(PathBuf),
+}
+
+/// Checked settings of a `sites` run.
+#[derive(Debug, Clone)]
+pub struct SitesRun {
+    /// The input.
+    pub input: SitesInputArg,
+    /// First-stage settings.
+    pub settings: pondus::sites::SitesSettings,
+    /// Site table and its id column.
+    pub info: Option<(PathBuf, String)>,
+    /// Effects file.
+    pub out: Option<Target>,
+    /// JSON output.
+    pub json: Option<Target>,
+    /// Second stage: options and site characteristics.
+    pub fit: Option<(FitOptions, Vec<ModeratorSpec>)>,
+    /// Whether to print the terminal summary.
+    pub text: bool,
+    /// The HTML report's target.
+    pub report: Option<Target>,
+    /// The command line, quoted for a shell.
+    pub invocation: String,
+}
+
+impl SitesArgs {
+    /// Turns the raw flags into checked settings.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag and how to fix it.
+    pub fn check(&self) -> Result<SitesRun> {
+        let input = match (&self.moments, &self.file) {
+            (Some(m), _) => SitesInputArg::Moments(m.clone()),
+            (None, Some(f)) => SitesInputArg::Rows(Source::from_arg(f)),
+            (None, None) => {
+                return Err(Error::usage(
+                    "FILE",
+                    "give the participant rows file, or --moments MOMENTS.csv",
+                ))
+            }
+        };
+        let name = |flag: &str, v: &Option<String>| -> Result<String> {
+            match v.as_deref().map(str::trim) {
+                Some(s) if !s.is_empty() => Ok(s.to_string()),
+                _ if self.moments.is_some() => Ok(String::new()),
+                _ => Err(Error::usage(flag, "give a column name")),
+            }
+        };
+        let site = name("--site", &self.site)?;
+        let x = name("--x", &self.x)?;
+        let y = name("--y", &self.y)?;
+        let mut used: Vec<(&str, &str)> = vec![("--site", &site), ("--x", &x), ("--y", &y)];
+        if let Some(w) = &self.w {
+            used.push(("--w", w));
+        }
+        for c in &self.covariates {
+            used.push(("--covariate", c));
+        }
+        if self.moments.is_none() {
+            for (i, (flag, col)) in used.iter().enumerate() {
+                if let Some((other, _)) = used[..i].iter().find(|(_, c)| c == col) {
+                    return Err(Error::usage(
+                        *flag,
+                        format!("column '{col}' is already given to {other}; each role needs its own column"),
+                    ));
+                }
+            }
+        }
+        if !(self.level > 0.0 && self.level < 1.0) {
+            return Err(Error::usage(
+                "--level",
+                "must lie between 0 and 1, e.g. 0.95",
+            ));
+        }
+        if !self.moderators.is_empty() && self.info.is_none() {
+            return Err(Error::usage(
+                "--moderator",
+                "site characteristics come from the site table; add --info SITES.csv",
+            ));
+        }
+        let out = self.out.as_deref().map(Target::from_arg);
+        let json = self.json.as_deref().map(Target::from_arg);
+        let report = self
+            .report
+            .as_deref()
+            .map(|p| report_target("--report", p))
+            .transpose()?;
+        if out.is_none() && json.is_none() && report.is_none() && !self.fit {
+            return Err(Error::usage(
+                "--out",
+                "nothing to do: add --out EFFECTS.csv (and/or --fit, --json)",
+            ));
+        }
+        let mut outs: Vec<(&str, &Target)> = Vec::new();
+        if let Some(o) = &out {
+            outs.push(("--out", o));
+        }
+        if let Some(j) = &json {
+            outs.push(("--json", j));
+        }
+        if let Some(r) = &report {
+            outs.push(("--report", r));
+        }
+        let input_path = match &input {
+            SitesInputArg::Rows(Source::File(p)) => Some(p.as_path()),
+            SitesInputArg::Rows(Source::Stdin) => None,
+            SitesInputArg::Moments(p) => Some(p.as_path()),
+        };
+        outputs::check_targets(input_path, &outs)?;
+        if let Some(info) = &self.info {
+            outputs::check_targets(Some(info.as_path()), &outs)?;
+        }
+        let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
+        let info_key = self.info_key.clone().unwrap_or_else(|| {
+            if self.moments.is_some() {
+                "site".into()
+            } else {
+                site.clone()
+            }
+        });
+        Ok(SitesRun {
+            input,
+            settings: pondus::sites::SitesSettings {
+                site,
+                x,
+                y,
+                w: self.w.clone(),
+                covariates: self.covariates.clone(),
+                robust: self.robust,
+                center_within: self.center_within,
+            },
+            info: self.info.clone().map(|p| (p, info_key)),
+            out,
+            json,
+            fit: self.fit.then(|| {
+                (
+                    FitOptions {
+                        method: self.tau2.into(),
+                        inference: self.inference.into(),
+                        level: self.level,
+                    },
+                    self.moderators
+                        .iter()
+                        .map(|m| ModeratorSpec {
+                            name: m.clone(),
+                            categorical: false,
+                            reference: None,
+                            center: false,
+                        })
+                        .collect(),
+                )
+            }),
+            text: !self.quiet && !to_stdout,
+            report,
+            invocation: invocation(),
+        })
+    }
+}
+
+/// Runs a checked `sites`: summarise, estimate, join, second stage, write.
+///
+/// # Errors
+/// Any library error.
+pub fn run_sites(run: &SitesRun) -> Result<()> {
+    use pondus::sites::{self, RowInput};
+    let mut report = match &run.input {
+        SitesInputArg::Rows(Source::File(p)) => {
+            sites::from_rows(&p.display().to_string(), RowInput::File(p), &run.settings)?
+        }
+        SitesInputArg::Rows(Source::Stdin) => sites::from_rows(
+            "<stdin>",
+            RowInput::Stream(Box::new(std::io::stdin().lock())),
+            &run.settings,
+        )?,
+        SitesInputArg::Moments(p) => {
+            let src = Source::File(p.clone());
+            sites::from_moments(&src.name(), &src.read_all()?, &run.settings)?
+        }
+    };
+    if let Some((path, key)) = &run.info {
+        let src = Source::File(path.clone());
+        sites::join::join(&mut report, &src.name(), &src.read_all()?, key)?;
+    }
+    if let Some((options, chars)) = &run.fit {
+        report.stages = Some(sites::stages::run(&report, *options, chars)?);
+    }
+    // Every output is rendered before any is written (see `Outputs`).
+    let mut out = Outputs::new();
+    if let Some(t) = &run.out {
+        out.add(t, sites::effects_bytes(&report));
+    }
+    if let Some(t) = &run.json {
+        out.add(t, json_bytes(&report)?);
+    }
+    if let Some(t) = &run.report {
+        let input_sha256 = match &run.input {
+            SitesInputArg::Rows(Source::File(p)) | SitesInputArg::Moments(p) => {
+                Some(pondus::sites::sha256_file(p)?)
+            }
+            SitesInputArg::Rows(Source::Stdin) => None,
+        };
+        let source = match &report.stages {
+            Some(st) => st.characteristics.as_ref().or(st.across.as_ref()),
+            None => None,
+        };
+        let (figures, figure_notes) = match source {
+            Some(fit) => figure::page_figures(fit, &figure::PlotOptions::default())?,
+            None => (Vec::new(), Vec::new()),
+        };
+        let prov = render::html::Provenance {
+            command: run.invocation.clone(),
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            input_sha256,
+            seed: None,
+        };
+        out.add(
+            t,
+            render::html::sites_page(&report, &figures, &figure_notes, &prov),
+        );
+    }
+    if run.text {
+        out.add(&Target::Stdout, render::sites::render(&report));
+    }
+    out.write()
+}
