@@ -9,8 +9,8 @@
 //! Content-Security-Policy that allows no scripts and no fetches, so even a
 //! mistake in escaping could not run anything or reach the network.
 //!
-//! Layout: [`page`] is the frame every page shares (head, style sheet,
-//! escaping, the elements); [`section`] turns a table of sections into the
+//! Layout: `page` is the frame every page shares (head, style sheet,
+//! escaping, the elements); `section` turns a table of sections into the
 //! contents and the body; `fit`, `sites` and `plan` hold each page's table,
 //! and the other files one group of sections each.
 

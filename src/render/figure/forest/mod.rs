@@ -1,7 +1,7 @@
 //! The forest plot: one row per study, subgroup and overall averages, the
 //! prediction interval on its own dashed row.
 //!
-//! Layout, left to right: label column, plot area, "effect [CI]" column,
+//! Layout, left to right: label column, plot area, "effect \[CI\]" column,
 //! weight column. Rows are 24, 19 or 15 pixels high depending on how many
 //! there are (or share `--height`); labels are shortened with an ellipsis to
 //! their column, so they never reach the plot area.
