@@ -1,8 +1,7 @@
 //! Drawing the laid-out forest plot: the header, the backdrop (bands and
 //! guides), each kind of row, the axis and the caption, in that order.
 
-use super::layout::Forest;
-use super::Row;
+use super::layout::{Forest, Row};
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::fit_text;
 use crate::render::figure::{

@@ -1,15 +1,78 @@
-//! The forest plot's layout: the value axis, the text columns, the caption
-//! and the row height, computed before anything is drawn.
+//! The forest plot's layout: the rows, the value axis, the text columns,
+//! the caption and the row height, computed before anything is drawn.
 
-use super::Grouping;
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::render::figure::scene::{fit_text, text_width};
 use crate::render::figure::{
     decimals_for, measure_name, model_line, size, wrap, Axis, PlotOptions, SortKey,
 };
-use crate::result::{AtValue, FitReport, Tau2Method};
+use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups, Tau2Method};
 use crate::support::format as fmt;
+
+/// One row of the plot, top to bottom.
+pub(super) enum Row<'a> {
+    GroupHead(String),
+    Study(usize),
+    GroupAverage(&'a LevelSummary, f64),
+    Overall,
+    Predict,
+    Gap,
+}
+
+/// The rows are grouped by this moderator (its index and its levels).
+pub(super) type Grouping<'a> = Option<(usize, &'a Subgroups)>;
+
+/// The first categorical moderator with subgroup results, if any.
+pub(super) fn grouping(report: &FitReport) -> Grouping<'_> {
+    report
+        .model
+        .moderators
+        .iter()
+        .enumerate()
+        .find_map(|(j, m)| {
+            matches!(m.kind, ModeratorKind::Categorical { .. })
+                .then(|| {
+                    report
+                        .subgroups
+                        .iter()
+                        .find(|g| g.moderator == m.name)
+                        .map(|g| (j, g))
+                })
+                .flatten()
+        })
+}
+
+/// The rows: the studies in `ordered` order (under a head and above an
+/// average per level when grouped), then the overall average and the
+/// prediction interval.
+pub(super) fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a>) -> Vec<Row<'a>> {
+    let studies = &report.studies;
+    let mut rows: Vec<Row> = Vec::new();
+    match group {
+        Some((j, g)) => {
+            for lv in &g.levels {
+                rows.push(Row::GroupHead(format!(
+                    "{} = {}  (k = {})",
+                    g.moderator, lv.level, lv.k
+                )));
+                let mut w = 0.0;
+                for &i in ordered {
+                    if matches!(&studies[i].moderators[j], AtValue::Level(l) if *l == lv.level) {
+                        rows.push(Row::Study(i));
+                        w += studies[i].weight;
+                    }
+                }
+                rows.push(Row::GroupAverage(lv, w));
+                rows.push(Row::Gap);
+            }
+        }
+        None => rows.extend(ordered.iter().map(|&i| Row::Study(i))),
+    }
+    rows.push(Row::Overall);
+    rows.push(Row::Predict);
+    rows
+}
 
 /// Where things go: everything the drawing steps need.
 pub(super) struct Forest<'a> {

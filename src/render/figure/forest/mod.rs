@@ -7,7 +7,7 @@
 //! their column, so they never reach the plot area.
 //!
 //! The steps: check the options, order the studies, lay out the rows
-//! (`rows`), the value axis (`layout::value_axis`), the text columns,
+//! (`layout::rows`), the value axis (`layout::value_axis`), the text columns,
 //! the caption and the row height (`layout::Forest::new`), then draw the
 //! header, the backdrop, each row, the axis and the caption (`draw`).
 
@@ -16,23 +16,10 @@ mod layout;
 
 use super::{PlotOptions, Scene, SortKey};
 use crate::error::{Error, Result};
-use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups};
+use crate::result::{AtValue, FitReport, ModeratorKind};
 
 /// The most studies a forest plot draws (one row each).
 pub const MAX_STUDIES: usize = 20_000;
-
-/// One row of the plot, top to bottom.
-enum Row<'a> {
-    GroupHead(String),
-    Study(usize),
-    GroupAverage(&'a LevelSummary, f64),
-    Overall,
-    Predict,
-    Gap,
-}
-
-/// The rows are grouped by this moderator (its index and its levels).
-type Grouping<'a> = Option<(usize, &'a Subgroups)>;
 
 /// Builds the forest plot.
 ///
@@ -42,8 +29,8 @@ type Grouping<'a> = Option<(usize, &'a Subgroups)>;
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     check(report, opts)?;
     let ordered = order(report, &opts.sort)?;
-    let group = grouping(report);
-    let rows = rows(report, &ordered, group);
+    let group = layout::grouping(report);
+    let rows = layout::rows(report, &ordered, group);
     let axis = layout::value_axis(report, group);
     let forest = layout::Forest::new(report, opts, group, rows.len(), axis)?;
     Ok(forest.draw(&rows))
@@ -120,55 +107,4 @@ fn order(report: &FitReport, sort: &SortKey) -> Result<Vec<usize>> {
         }
     }
     Ok(idx)
-}
-
-/// The first categorical moderator with subgroup results, if any.
-fn grouping(report: &FitReport) -> Grouping<'_> {
-    report
-        .model
-        .moderators
-        .iter()
-        .enumerate()
-        .find_map(|(j, m)| {
-            matches!(m.kind, ModeratorKind::Categorical { .. })
-                .then(|| {
-                    report
-                        .subgroups
-                        .iter()
-                        .find(|g| g.moderator == m.name)
-                        .map(|g| (j, g))
-                })
-                .flatten()
-        })
-}
-
-/// The rows: the studies in `ordered` order (under a head and above an
-/// average per level when grouped), then the overall average and the
-/// prediction interval.
-fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a>) -> Vec<Row<'a>> {
-    let studies = &report.studies;
-    let mut rows: Vec<Row> = Vec::new();
-    match group {
-        Some((j, g)) => {
-            for lv in &g.levels {
-                rows.push(Row::GroupHead(format!(
-                    "{} = {}  (k = {})",
-                    g.moderator, lv.level, lv.k
-                )));
-                let mut w = 0.0;
-                for &i in ordered {
-                    if matches!(&studies[i].moderators[j], AtValue::Level(l) if *l == lv.level) {
-                        rows.push(Row::Study(i));
-                        w += studies[i].weight;
-                    }
-                }
-                rows.push(Row::GroupAverage(lv, w));
-                rows.push(Row::Gap);
-            }
-        }
-        None => rows.extend(ordered.iter().map(|&i| Row::Study(i))),
-    }
-    rows.push(Row::Overall);
-    rows.push(Row::Predict);
-    rows
 }
