@@ -205,7 +205,8 @@ pub fn run(
             return Err(Error::usage(
                 flag,
                 format!(
-                    "leaving a study out of {k} studies leaves too few for {} coefficient{};                      at least {} studies are needed",
+                    "leaving a study out of {k} studies leaves too few for {} coefficient{}; \
+                     at least {} studies are needed",
                     d.p,
                     if d.p == 1 { "" } else { "s" },
                     d.p + 2

@@ -1,7 +1,8 @@
-//! Reading a fitted meta-regression at chosen moderator values: conditional
-//! effects (`--probe`), simple slopes in models with a product term,
-//! pairwise level contrasts (`--compare-levels`) and Johnson–Neyman regions
-//! of significance (`--regions`).
+//! The mathematics of reading a fitted meta-regression at chosen moderator
+//! values: conditional effects (`--probe`), simple slopes in models with a
+//! product term, pairwise level contrasts (`--compare-levels`) and
+//! Johnson–Neyman regions of significance (`--regions`). The words and the
+//! report's structs are made by the `fit` job (`crate::fit`).
 //!
 //! Every quantity here is a linear contrast c'β̂ of the fitted coefficients,
 //! with Var(c'β̂) = c' Cov c from the model's covariance (Knapp–Hartung-scaled
@@ -12,48 +13,12 @@
 //! handled exactly as in the fit.
 
 use super::design::{self, Design, ModeratorKind, Value};
-use super::inference;
+use super::inference::{self, CoefInference, PredictionInference};
 use super::{Inference, ModelFit};
 use crate::dist;
-use crate::effect::artifact::ArtifactSettings;
-use crate::effect::ReadingScale;
-use crate::error::{Error, Result};
-use crate::result::{
-    AtValue, ConditionalEffect, ContrastTest, Estimate, Interpretation, Interval, LevelContrast,
-    PictureChange, ProbePoint, RegionOfSignificance, SimpleSlope, Test,
-};
-use crate::support::format as fmt;
+use crate::error::Result;
 use crate::tolerance;
 use nalgebra::DVector;
-
-/// One `--probe` request: a moderator and, optionally, the values to read it at.
-#[derive(Debug, Clone, PartialEq)]
-pub struct ProbeSpec {
-    /// The moderator's name.
-    pub name: String,
-    /// The values as typed (None: the default points).
-    pub values: Option<Vec<String>>,
-}
-
-/// Settings of the interpretation and artifact-correction pieces of `fit`.
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct InterpretSettings {
-    /// `--probe` requests, in the order given.
-    pub probes: Vec<ProbeSpec>,
-    /// `--compare-levels`: pairwise contrasts between levels.
-    pub compare_levels: bool,
-    /// `--regions`: Johnson–Neyman regions of significance.
-    pub regions: bool,
-    /// Artifact corrections of correlations.
-    pub artifacts: ArtifactSettings,
-}
-
-impl InterpretSettings {
-    /// Whether any interpretation output was asked for.
-    pub fn any(&self) -> bool {
-        !self.probes.is_empty() || self.compare_levels || self.regions
-    }
-}
 
 pub use crate::result::Region;
 
@@ -178,26 +143,51 @@ fn p_value(fit: &ModelFit, stat: f64) -> f64 {
     }
 }
 
-/// The test of one contrast c'β̂.
+/// The test of one contrast c'β̂ (the same inference as a coefficient's).
 ///
 /// # Formula
 /// estimate c'β̂, SE √(c' Cov c), CI estimate ± crit·SE, statistic
 /// estimate/SE on t(k − p) (kh) or the normal (z).
-pub fn contrast(fit: &ModelFit, c: &[f64]) -> ContrastTest {
+pub fn contrast(fit: &ModelFit, c: &[f64]) -> CoefInference {
     let x = DVector::from_column_slice(c);
     let est = x.dot(&fit.beta);
     let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
     let crit = inference::critical(fit);
     let stat = est / se;
-    ContrastTest {
+    CoefInference {
         estimate: est,
         se,
-        ci: Interval::new(est - crit * se, est + crit * se),
-        test: Test {
-            statistic: stat,
-            df: df(fit),
-            p: p_value(fit, stat),
-        },
+        ci_low: est - crit * se,
+        ci_high: est + crit * se,
+        statistic: stat,
+        df: df(fit),
+        p: p_value(fit, stat),
+    }
+}
+
+/// A conditional effect: the mean effect at one design row, with its test.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Conditional {
+    /// Estimate, confidence and prediction intervals ([`inference::predict`]).
+    pub prediction: PredictionInference,
+    /// estimate/SE.
+    pub statistic: f64,
+    /// Degrees of freedom of the reference distribution (None for the normal).
+    pub df: Option<f64>,
+    /// Two-sided p-value.
+    pub p: f64,
+}
+
+/// The mean effect at design row `x0` (x0'β̂, [`inference::predict`]) and
+/// its test against 0 on t(k − p) (kh) or the normal (z).
+pub fn conditional(fit: &ModelFit, x0: &[f64]) -> Conditional {
+    let prediction = inference::predict(fit, x0);
+    let statistic = prediction.estimate / prediction.se;
+    Conditional {
+        prediction,
+        statistic,
+        df: df(fit),
+        p: p_value(fit, statistic),
     }
 }
 
@@ -222,149 +212,44 @@ pub fn holm(p: &[f64]) -> Vec<f64> {
     out
 }
 
-/// Values at which the moderators are held: numeric at their means,
-/// categorical at their reference levels; and, in words, for those not in `except`.
-fn held(design: &Design, except: &[usize]) -> (Vec<Value>, String) {
-    let mut values = Vec::new();
-    let mut parts = Vec::new();
-    for (j, m) in design.moderators.iter().enumerate() {
-        match &m.kind {
-            ModeratorKind::Numeric { mean, .. } => {
-                values.push(Value::Number(*mean));
-                if !except.contains(&j) {
-                    parts.push(format!("{} at its mean {}", m.name, fmt::short(*mean)));
-                }
-            }
-            ModeratorKind::Categorical { reference, .. } => {
-                values.push(Value::Label(reference.clone()));
-                if !except.contains(&j) {
-                    parts.push(format!("{} at its reference level {reference}", m.name));
-                }
-            }
-        }
-    }
-    (values, parts.join(", "))
-}
-
-fn row(design: &Design, values: &[Value]) -> Result<Vec<f64>> {
+/// The design row of the moderator values `values` ([`design::design_row`]).
+///
+/// # Errors
+/// As [`design::design_row`].
+pub fn row(design: &Design, values: &[Value]) -> Result<Vec<f64>> {
     design::design_row(&design.moderators, &design.interactions, values)
 }
 
-fn minus(a: &[f64], b: &[f64]) -> Vec<f64> {
+/// The difference a − b of two contrast vectors.
+pub fn minus(a: &[f64], b: &[f64]) -> Vec<f64> {
     a.iter().zip(b).map(|(x, y)| x - y).collect()
 }
 
-/// One probed value.
-#[derive(Debug, Clone)]
-struct Point {
-    value: Value,
-    at: AtValue,
-    label: ProbePoint,
-    outside: bool,
-}
-
-fn names(design: &Design) -> String {
-    design
-        .moderators
-        .iter()
-        .map(|m| m.name.as_str())
-        .collect::<Vec<_>>()
-        .join(", ")
-}
-
-/// The points of one `--probe`.
-fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
-    let m = &design.moderators[j];
-    match (&m.kind, &spec.values) {
-        (ModeratorKind::Numeric { mean, sd, .. }, None) => Ok([
-            (mean - sd, ProbePoint::MeanMinusSd),
-            (*mean, ProbePoint::Mean),
-            (mean + sd, ProbePoint::MeanPlusSd),
-        ]
-        .into_iter()
-        .map(|(x, l)| numeric_point(design, j, x, l))
-        .collect()),
-        (ModeratorKind::Numeric { .. }, Some(texts)) => texts
-            .iter()
-            .map(|t| {
-                let x = t
-                    .trim()
-                    .parse::<f64>()
-                    .ok()
-                    .filter(|x| x.is_finite())
-                    .ok_or_else(|| {
-                        Error::usage(
-                            "--probe",
-                            format!(
-                                "'{t}' is not a number (moderator '{}' is numeric); give numbers, \
-                                 e.g. --probe {}=10,20, or no values for its mean and mean ± 1 SD",
-                                m.name, m.name
-                            ),
-                        )
-                    })?;
-                Ok(numeric_point(design, j, x, ProbePoint::Given))
-            })
-            .collect(),
-        (ModeratorKind::Categorical { levels, .. }, None) => Ok(levels
-            .iter()
-            .map(|l| Point {
-                value: Value::Label(l.clone()),
-                at: AtValue::Level(l.clone()),
-                label: ProbePoint::Level,
-                outside: false,
-            })
-            .collect()),
-        (ModeratorKind::Categorical { levels, .. }, Some(texts)) => texts
-            .iter()
-            .map(|t| {
-                let t = t.trim();
-                if !levels.iter().any(|l| l == t) {
-                    let what = if t.parse::<f64>().is_ok() {
-                        format!("moderator '{}' is categorical and '{t}' is not one of its levels", m.name)
-                    } else {
-                        format!("'{t}' is not a level of moderator '{}'", m.name)
-                    };
-                    return Err(Error::usage(
-                        "--probe",
-                        format!(
-                            "{what}; its levels are: {}. Name levels, or give --probe {} alone for every level",
-                            levels.join(", "),
-                            m.name
-                        ),
-                    ));
-                }
-                Ok(Point {
-                    value: Value::Label(t.to_string()),
-                    at: AtValue::Level(t.to_string()),
-                    label: ProbePoint::Level,
-                    outside: false,
-                })
-            })
-            .collect(),
-    }
-}
-
-fn numeric_point(design: &Design, j: usize, x: f64, label: ProbePoint) -> Point {
-    let outside = match design.moderators[j].kind {
-        ModeratorKind::Numeric { min, max, .. } => x < min || x > max,
-        ModeratorKind::Categorical { .. } => false,
-    };
-    Point {
-        value: Value::Number(x),
-        at: AtValue::Number(x),
-        label,
-        outside,
-    }
+/// A quantity a moderator contributes as a "slope".
+#[derive(Debug, Clone, PartialEq)]
+pub enum Partner {
+    /// The change of the mean effect per unit of a numeric moderator.
+    PerUnit,
+    /// A categorical moderator's level minus its reference level.
+    Difference {
+        /// The level.
+        level: String,
+        /// The reference level.
+        reference: String,
+    },
 }
 
 /// The quantities a moderator `f` contributes as a "slope": its slope per
 /// unit when numeric, each level's difference from the reference when
-/// categorical. Each comes with its name and the contrast at `values`.
-fn partner_contrasts(
+/// categorical. Each comes with its contrast at `values`.
+///
+/// # Errors
+/// As [`design::design_row`].
+pub fn partner_contrasts(
     design: &Design,
     f: usize,
     values: &[Value],
-) -> Result<Vec<(String, Vec<f64>)>> {
+) -> Result<Vec<(Partner, Vec<f64>)>> {
     let m = &design.moderators[f];
     let mut out = Vec::new();
     match &m.kind {
@@ -374,7 +259,7 @@ fn partner_contrasts(
             let up = row(design, &v)?;
             v[f] = Value::Number(*mean);
             let here = row(design, &v)?;
-            out.push((m.name.clone(), minus(&up, &here)));
+            out.push((Partner::PerUnit, minus(&up, &here)));
         }
         ModeratorKind::Categorical {
             levels, reference, ..
@@ -385,7 +270,10 @@ fn partner_contrasts(
             for l in levels.iter().filter(|l| *l != reference) {
                 v[f] = Value::Label(l.clone());
                 out.push((
-                    format!("{}: {l} − {reference}", m.name),
+                    Partner::Difference {
+                        level: l.clone(),
+                        reference: reference.clone(),
+                    },
                     minus(&row(design, &v)?, &base),
                 ));
             }
@@ -394,248 +282,61 @@ fn partner_contrasts(
     Ok(out)
 }
 
-/// What the model needs besides the fit for the "how the picture changes" comparison.
-#[derive(Debug, Clone)]
-pub struct Baseline {
-    /// The pooled effect without moderators.
-    pub pooled: Estimate,
-    /// τ² without moderators.
-    pub tau2_without: f64,
-    /// Share of τ² explained.
-    pub r2: Option<f64>,
+/// Pairwise contrasts between the design rows of a moderator's levels:
+/// (b, a, test of row b − row a) for every a < b, with Holm-adjusted
+/// p-values ([`holm`]) over the pairs.
+pub fn pairwise(fit: &ModelFit, rows: &[Vec<f64>]) -> Vec<(usize, usize, CoefInference, f64)> {
+    let mut pairs = Vec::new();
+    for a in 0..rows.len() {
+        for b in a + 1..rows.len() {
+            pairs.push((b, a, contrast(fit, &minus(&rows[b], &rows[a]))));
+        }
+    }
+    let ps: Vec<f64> = pairs.iter().map(|(_, _, t)| t.p).collect();
+    pairs
+        .into_iter()
+        .zip(holm(&ps))
+        .map(|((b, a, t), p_holm)| (b, a, t, p_holm))
+        .collect()
 }
 
-/// Everything `--probe`, `--compare-levels` and `--regions` ask for.
-///
-/// # Errors
-/// [`Error::Usage`] naming the flag: an unknown or twice-probed moderator, a
-/// number for a categorical moderator or a non-number for a numeric one,
-/// `--compare-levels` without a categorical moderator, `--regions` without a
-/// numeric moderator.
-pub fn interpret(
-    design: &Design,
-    fit: &ModelFit,
-    settings: &InterpretSettings,
-    scale: ReadingScale,
-    baseline: Baseline,
-) -> Result<Interpretation> {
-    let mut out = Interpretation::default();
-    if !settings.any() {
-        return Ok(out);
-    }
-    if design.moderators.is_empty() {
-        let flag = if !settings.probes.is_empty() {
-            "--probe"
-        } else if settings.compare_levels {
-            "--compare-levels"
-        } else {
-            "--regions"
-        };
-        return Err(Error::usage(
-            flag,
-            "the model has no moderators; add --moderator NAME (the average effect is reported without it)",
-        ));
-    }
-    let index = |name: &str| design.moderators.iter().position(|m| m.name == name);
-    let mut probed = Vec::new();
-    for spec in &settings.probes {
-        let j = index(&spec.name).ok_or_else(|| {
-            Error::usage(
-                "--probe",
-                format!(
-                    "'{}' is not a moderator of this model; the moderators are: {}",
-                    spec.name,
-                    names(design)
-                ),
-            )
-        })?;
-        if probed.iter().any(|(i, _)| *i == j) {
-            return Err(Error::usage(
-                "--probe",
-                format!(
-                    "'{}' is probed twice; give its values in one --probe",
-                    spec.name
-                ),
-            ));
-        }
-        probed.push((j, points(design, j, spec)?));
-    }
-
-    for (j, pts) in &probed {
-        let j = *j;
-        let name = &design.moderators[j].name;
-        let (mut values, held_words) = held(design, &[j]);
-        for pt in pts {
-            values[j] = pt.value.clone();
-            let x0 = row(design, &values)?;
-            let p = inference::predict(fit, &x0);
-            let stat = p.estimate / p.se;
-            out.conditional_effects.push(ConditionalEffect {
-                moderator: name.clone(),
-                at: pt.at.clone(),
-                point: pt.label,
-                held: held_words.clone(),
-                mean: p.mean_effect(),
-                test: Test {
-                    statistic: stat,
-                    df: df(fit),
-                    p: p_value(fit, stat),
-                },
-                reading: p.reading(scale),
-                outside_range: pt.outside,
-            });
-        }
-        // Simple slopes of every partner in a product term with j.
-        for &(a, b) in &design.interactions {
-            let f = match (a == j, b == j) {
-                (true, _) => b,
-                (_, true) => a,
-                _ => continue,
-            };
-            let (mut values, held_words) = held(design, &[j, f]);
-            for pt in pts {
-                values[j] = pt.value.clone();
-                for (of, c) in partner_contrasts(design, f, &values)? {
-                    out.simple_slopes.push(SimpleSlope {
-                        of,
-                        moderator: name.clone(),
-                        at: pt.at.clone(),
-                        point: pt.label,
-                        held: held_words.clone(),
-                        test: contrast(fit, &c),
-                    });
-                }
-            }
-        }
-    }
-
-    if settings.compare_levels {
-        let categorical: Vec<usize> = (0..design.moderators.len())
-            .filter(|&j| matches!(design.moderators[j].kind, ModeratorKind::Categorical { .. }))
-            .collect();
-        if categorical.is_empty() {
-            return Err(Error::usage(
-                "--compare-levels",
-                "the model has no categorical moderator whose levels could be compared",
-            ));
-        }
-        let chosen: Vec<usize> = {
-            let named: Vec<usize> = probed
-                .iter()
-                .map(|(j, _)| *j)
-                .filter(|j| categorical.contains(j))
-                .collect();
-            if named.is_empty() {
-                categorical
-            } else {
-                named
-            }
-        };
-        for j in chosen {
-            let ModeratorKind::Categorical { levels, .. } = &design.moderators[j].kind else {
-                continue;
-            };
-            let (mut values, held_words) = held(design, &[j]);
-            let mut rows = Vec::with_capacity(levels.len());
-            for l in levels {
-                values[j] = Value::Label(l.clone());
-                rows.push(row(design, &values)?);
-            }
-            let mut pairs = Vec::new();
-            for a in 0..levels.len() {
-                for b in a + 1..levels.len() {
-                    pairs.push((b, a, contrast(fit, &minus(&rows[b], &rows[a]))));
-                }
-            }
-            let ps: Vec<f64> = pairs.iter().map(|(_, _, t)| t.test.p).collect();
-            let adj = holm(&ps);
-            for ((b, a, test), p_holm) in pairs.into_iter().zip(adj) {
-                out.level_contrasts.push(LevelContrast {
-                    moderator: design.moderators[j].name.clone(),
-                    level: levels[b].clone(),
-                    minus: levels[a].clone(),
-                    held: held_words.clone(),
-                    test,
-                    p_holm,
-                });
-            }
-        }
-    }
-
-    if settings.regions {
-        let numeric: Vec<usize> = (0..design.moderators.len())
-            .filter(|&j| matches!(design.moderators[j].kind, ModeratorKind::Numeric { .. }))
-            .collect();
-        if numeric.is_empty() {
-            return Err(Error::usage(
-                "--regions",
-                "regions of significance are values of a numeric moderator, and this model has \
-                 none; add a numeric --moderator",
-            ));
-        }
-        let level = fit.options.level;
-        for &m in &numeric {
-            let (values, held_words) = held(design, &[m]);
-            let effect_at = |x: f64| -> Result<Vec<f64>> {
-                let mut v = values.clone();
-                v[m] = Value::Number(x);
-                row(design, &v)
-            };
-            out.regions_of_significance.push(region(
-                design,
-                fit,
-                m,
-                "effect".into(),
-                held_words,
-                level,
-                effect_at,
-            )?);
-            for &(a, b) in &design.interactions {
-                let f = match (a == m, b == m) {
-                    (true, _) => b,
-                    (_, true) => a,
-                    _ => continue,
-                };
-                let (hv, hw) = held(design, &[m, f]);
-                let names0 = partner_contrasts(design, f, &hv)?;
-                for (which, (of, _)) in names0.into_iter().enumerate() {
-                    let hv = hv.clone();
-                    let f_at = move |x: f64| -> Result<Vec<f64>> {
-                        let mut v = hv.clone();
-                        v[m] = Value::Number(x);
-                        Ok(partner_contrasts(design, f, &v)?.swap_remove(which).1)
-                    };
-                    out.regions_of_significance.push(region(
-                        design,
-                        fit,
-                        m,
-                        of,
-                        hw.clone(),
-                        level,
-                        f_at,
-                    )?);
-                }
-            }
-        }
-    }
-
-    if !out.conditional_effects.is_empty() {
-        out.picture = Some(picture(&out.conditional_effects, fit, baseline, scale));
-    }
-    Ok(out)
+/// A Johnson–Neyman region along a numeric moderator, over all values and
+/// over the studies' range [min, max].
+#[derive(Debug, Clone, PartialEq)]
+pub struct JnRegion {
+    /// The quantity at moderator value 0: θ(0) = a.
+    pub a: f64,
+    /// Its change per unit of the moderator: θ(m) = a + b·m.
+    pub b: f64,
+    /// Where the confidence interval of θ just touches 0 ([`jn_bounds`]).
+    pub bounds: Vec<f64>,
+    /// Where θ is significant, over all values.
+    pub region: Region,
+    /// The bounds strictly inside (min, max).
+    pub observed_bounds: Vec<f64>,
+    /// The significant parts of [min, max] ([`within`]).
+    pub observed: Vec<[f64; 2]>,
+    /// Where θ is significant within [min, max].
+    pub observed_region: Region,
+    /// The studies' smallest value of the moderator.
+    pub min: f64,
+    /// The studies' largest value.
+    pub max: f64,
 }
 
 /// The Johnson–Neyman region of the quantity whose contrast at moderator
-/// value x is `at(x)`; the contrast is linear in x, so c(x) = c(0) + x·(c(1) − c(0)).
-fn region(
-    design: &Design,
+/// value x is `at(x)`; the contrast is linear in x, so c(x) = c(0) + x·(c(1) − c(0)),
+/// θ(x) = a + b x with a = c(0)'β̂, b = (c(1) − c(0))'β̂, and
+/// Var θ(x) = v00 + 2 x v01 + x² v11 from c(0)' Cov c(0), c(0)' Cov d, d' Cov d.
+///
+/// # Errors
+/// Those of `at`.
+pub fn jn_region(
     fit: &ModelFit,
-    m: usize,
-    quantity: String,
-    held_words: String,
-    level: f64,
+    min: f64,
+    max: f64,
     at: impl Fn(f64) -> Result<Vec<f64>>,
-) -> Result<RegionOfSignificance> {
+) -> Result<JnRegion> {
     let c0 = at(0.0)?;
     let d = minus(&at(1.0)?, &c0);
     let beta: Vec<f64> = fit.beta.iter().copied().collect();
@@ -643,11 +344,8 @@ fn region(
     let (a, b) = (dot(&c0), dot(&d));
     let (v00, v01, v11) = (quad(fit, &c0, &c0), quad(fit, &c0, &d), quad(fit, &d, &d));
     let crit = inference::critical(fit);
-    let (bounds, reg) = jn_bounds(a, b, v00, v01, v11, crit);
-    let ModeratorKind::Numeric { min, max, .. } = design.moderators[m].kind else {
-        unreachable!("regions are computed along numeric moderators only")
-    };
-    let observed = within(&bounds, reg, min, max);
+    let (bounds, region) = jn_bounds(a, b, v00, v01, v11, crit);
+    let observed = within(&bounds, region, min, max);
     let observed_bounds: Vec<f64> = bounds
         .iter()
         .copied()
@@ -662,137 +360,17 @@ fn region(
         ([_], _) => Region::Inside,
         _ => Region::Inside,
     };
-    let name = &design.moderators[m].name;
-    let what = if quantity == "effect" {
-        "the mean effect".to_string()
-    } else if quantity.contains(':') {
-        format!("the difference {quantity}")
-    } else {
-        format!("the slope of {quantity}")
-    };
-    let lv = format!("{}%", fmt::short(100.0 * level));
-    let b_txt: Vec<String> = bounds.iter().map(|x| fmt::short(*x)).collect();
-    let all = match reg {
-        Region::Everywhere => format!("for every value of {name}"),
-        Region::Nowhere => format!("for no value of {name}"),
-        Region::Outside => format!(
-            "for {name} below {} or above {} (outside the interval)",
-            b_txt[0], b_txt[1]
-        ),
-        Region::Inside => format!(
-            "for {name} between {} and {} (inside the interval)",
-            b_txt[0], b_txt[1]
-        ),
-        Region::Above => format!("for {name} above {}", b_txt[0]),
-        Region::Below => format!("for {name} below {}", b_txt[0]),
-    };
-    let sign = |x: f64| {
-        if a + b * x > 0.0 {
-            "positive"
-        } else {
-            "negative"
-        }
-    };
-    let obs = if observed.is_empty() {
-        "nowhere".to_string()
-    } else if observed.len() == 1 && observed[0] == [min, max] {
-        format!(
-            "over the whole observed range ({})",
-            sign(0.5 * (min + max))
-        )
-    } else {
-        let parts: Vec<String> = observed
-            .iter()
-            .map(|[l, h]| {
-                format!(
-                    "from {} to {} ({})",
-                    fmt::short(*l),
-                    fmt::short(*h),
-                    sign(0.5 * (l + h))
-                )
-            })
-            .collect();
-        parts.join(" and ")
-    };
-    let rest = if matches!(observed_region, Region::Everywhere | Region::Nowhere) {
-        ""
-    } else {
-        " Elsewhere in that range the data cannot tell it from 0."
-    };
-    let words = format!(
-        "The {lv} confidence interval of {what} excludes 0 {all}; within the studies' range of \
-         {name} ({} to {}): {obs}.{rest}",
-        fmt::short(min),
-        fmt::short(max)
-    );
-    Ok(RegionOfSignificance {
-        moderator: name.clone(),
-        quantity,
-        held: held_words,
+    Ok(JnRegion {
+        a,
+        b,
         bounds,
-        significant: reg,
+        region,
         observed_bounds,
+        observed,
         observed_region,
-        observed_min: min,
-        observed_max: max,
-        observed_significant: observed,
-        words,
+        min,
+        max,
     })
-}
-
-fn picture(
-    effects: &[ConditionalEffect],
-    fit: &ModelFit,
-    base: Baseline,
-    scale: ReadingScale,
-) -> PictureChange {
-    let lo = effects
-        .iter()
-        .map(|e| e.mean.estimate)
-        .fold(f64::INFINITY, f64::min);
-    let hi = effects
-        .iter()
-        .map(|e| e.mean.estimate)
-        .fold(f64::NEG_INFINITY, f64::max);
-    let sign_changes = lo < 0.0 && hi > 0.0;
-    let shown = |x: f64| match scale {
-        ReadingScale::Same => fmt::short(x),
-        ReadingScale::Correlation => format!("{} (r = {})", fmt::short(x), fmt::short(x.tanh())),
-        ReadingScale::Ratio => format!("{} (ratio {})", fmt::short(x), fmt::short(x.exp())),
-    };
-    let tau2_with = fit.tau2.estimate;
-    let mut words = format!(
-        "Without moderators the pooled effect is {} with τ² = {}. With the moderators the mean \
-         effect at the probed values runs from {} to {}, with residual τ² = {}",
-        shown(base.pooled.mean.estimate),
-        fmt::short4(base.tau2_without),
-        shown(lo),
-        shown(hi),
-        fmt::short4(tau2_with)
-    );
-    if let Some(r2) = base.r2 {
-        words.push_str(&format!(
-            " (the moderators account for {:.0}% of τ²)",
-            100.0 * r2
-        ));
-    }
-    words.push('.');
-    if sign_changes {
-        words.push_str(
-            " The mean effect changes sign across the probed values: the single pooled effect \
-             averages over effects of opposite direction.",
-        );
-    }
-    PictureChange {
-        pooled: base.pooled,
-        tau2_without: base.tau2_without,
-        tau2_with,
-        r2: base.r2,
-        conditional_min: lo,
-        conditional_max: hi,
-        sign_changes,
-        words,
-    }
 }
 
 #[cfg(test)]

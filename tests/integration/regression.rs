@@ -328,3 +328,19 @@ fn sites_with_an_unwritable_json_leaves_no_effects_file_behind() {
     assert!(err.contains("no-such-folder/sites.json"), "{err}");
     assert_eq!(files, ["choir-participants.csv"], "{err}");
 }
+
+/// The refusal of `--loo` with too few studies had a run of 22 spaces in
+/// the middle of its sentence (a line break inside the string without a
+/// continuation backslash).
+#[test]
+fn loo_with_too_few_studies_message_has_no_run_of_spaces() {
+    let csv = "study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\n";
+    let (code, _, err) = fit_bin(csv, &["--moderator", "m", "--loo"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("leaving a study out of 3 studies"), "{err}");
+    assert!(
+        err.contains("2 coefficients; at least 4 studies are needed"),
+        "{err}"
+    );
+    assert!(!err.contains("  "), "{err}");
+}

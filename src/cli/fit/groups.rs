@@ -501,8 +501,8 @@ impl InterpretationArgs {
         &self,
         model: &ModelArgs,
         measure: MeasureArg,
-    ) -> Result<pondus::model::probe::InterpretSettings> {
-        use pondus::model::probe::{InterpretSettings, ProbeSpec};
+    ) -> Result<pondus::fit::InterpretSettings> {
+        use pondus::fit::{InterpretSettings, ProbeSpec};
         let mut probes = Vec::new();
         for p in &self.probe {
             let (name, values) = match p.split_once('=') {

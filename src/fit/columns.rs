@@ -1,0 +1,88 @@
+//! Stage 1 of `fit`: read the requested columns. Every column the job
+//! needs (labels, the measure's roles, moderators, artifact columns, the
+//! order of the cumulative analysis, the cluster ids) is requested once, and
+//! the table is read with exactly those columns.
+
+use super::FitSettings;
+use crate::effect::artifact;
+use crate::error::Result;
+use crate::input::{self, ColumnRequest, Table};
+
+/// The table with the requested columns, and where each group of requests starts.
+#[derive(Debug)]
+pub struct Columns {
+    /// The table; column `j` answers request `j` (column 0 is the labels).
+    pub table: Table,
+    /// Index of the first of the measure's columns (its roles are consecutive).
+    pub first_measure: usize,
+    /// Index of the first moderator column (one per moderator, in order).
+    pub first_moderator: usize,
+    /// Index of the first artifact column.
+    pub first_artifact: usize,
+    /// Index of the `--cumulative-by` column, when asked.
+    pub order: Option<usize>,
+    /// Index of the `--cluster` column, when asked.
+    pub cluster: Option<usize>,
+}
+
+/// Requests the columns of `settings` and reads the table.
+///
+/// # Errors
+/// [`crate::Error::Usage`] for artifact corrections with a measure other
+/// than r; any error of [`input::parse_table`] (a missing required column,
+/// unreadable text, ragged rows).
+pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Columns> {
+    let measure = settings.measure;
+    let mut requests = vec![ColumnRequest {
+        header: settings.label.0.clone(),
+        required: settings.label.1,
+        purpose: "study labels".into(),
+        hint: "Name the label column with --label <header>.".into(),
+    }];
+    let first_measure = requests.len();
+    requests.extend(settings.columns.requests(measure));
+    let first_moderator = requests.len();
+    for m in &settings.moderators {
+        requests.push(named(
+            &m.name,
+            "a moderator (--moderator)",
+            "Check the spelling of --moderator",
+        ));
+    }
+    let first_artifact = requests.len();
+    requests.extend(artifact::requests(&settings.interpret.artifacts, measure)?);
+    let order = settings.diagnostics.cumulative_by.as_ref().map(|h| {
+        requests.push(named(
+            h,
+            "the order of the cumulative meta-analysis (--cumulative-by)",
+            "Check the spelling of --cumulative-by",
+        ));
+        requests.len() - 1
+    });
+    let cluster = settings.dependence.cluster.as_ref().map(|h| {
+        requests.push(named(
+            h,
+            "the cluster ids (--cluster)",
+            "Check the spelling of --cluster",
+        ));
+        requests.len() - 1
+    });
+    Ok(Columns {
+        table: input::parse_table(source, bytes, &requests)?,
+        first_measure,
+        first_moderator,
+        first_artifact,
+        order,
+        cluster,
+    })
+}
+
+/// A required column named by a flag; `check` is the first sentence of the hint.
+fn named(header: &str, purpose: &str, check: &str) -> ColumnRequest {
+    ColumnRequest {
+        header: header.to_string(),
+        required: true,
+        purpose: purpose.into(),
+        hint: format!("{check}; headers are matched exactly, or ignoring case when unique."),
+    }
+}

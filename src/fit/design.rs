@@ -1,0 +1,99 @@
+//! Stage 3 of `fit`: build the design. The `--interaction` names become
+//! moderator-index pairs, numeric moderators are checked for a scale that
+//! floating point can carry, and [`crate::model::design::build`] codes the
+//! included studies into the design matrix.
+
+use super::studies::Studies;
+use super::{in_file, FitSettings};
+use crate::error::{Error, Result};
+use crate::model::design::{self, Design, ModeratorSpec, RawModerator};
+
+/// The design of the included studies.
+///
+/// # Errors
+/// [`Error::Usage`] for an `--interaction` naming one moderator twice or a
+/// name that is not a moderator; [`Error::Model`] for a moderator whose
+/// scale leaves floating point, and the errors of [`design::build`].
+pub fn build(settings: &FitSettings, source: &str, studies: &Studies) -> Result<Design> {
+    let pairs = interaction_pairs(&settings.moderators, &settings.interactions)?;
+    check_moderator_scale(
+        source,
+        &settings.moderators,
+        &studies.raw,
+        &studies.included,
+    )?;
+    design::build(
+        &settings.moderators,
+        &studies.raw,
+        &studies.included,
+        &pairs,
+    )
+    .map_err(|e| in_file(source, e))
+}
+
+/// The product terms as pairs of moderator indices.
+fn interaction_pairs(
+    moderators: &[ModeratorSpec],
+    interactions: &[(String, String)],
+) -> Result<Vec<(usize, usize)>> {
+    let index_of = |name: &str| moderators.iter().position(|m| m.name == name);
+    let mut pairs = Vec::new();
+    for (a, b) in interactions {
+        let ia = index_of(a);
+        let ib = index_of(b);
+        match (ia, ib) {
+            (Some(x), Some(y)) if x != y => pairs.push((x, y)),
+            (Some(_), Some(_)) => {
+                return Err(Error::usage(
+                    "--interaction",
+                    format!(
+                        "'{a},{b}' names the same moderator twice; give two different moderators"
+                    ),
+                ))
+            }
+            _ => {
+                let missing = if ia.is_none() { a } else { b };
+                return Err(Error::usage(
+                    "--interaction",
+                    format!(
+                        "'{missing}' is not a moderator of this model; add --moderator {missing} \
+                         (a product term needs both of its moderators in the model)"
+                    ),
+                ));
+            }
+        }
+    }
+    Ok(pairs)
+}
+
+/// Refuses a numeric moderator whose values are so large, or whose spread
+/// is so small, that its coefficient's variance would leave the range of
+/// floating point (it scales with 1/spread²): the fix is to express the
+/// moderator in other units.
+fn check_moderator_scale(
+    source: &str,
+    specs: &[ModeratorSpec],
+    raw: &[RawModerator],
+    included: &[usize],
+) -> Result<()> {
+    use crate::tolerance::MODERATOR_MAGNITUDE;
+    for (spec, r) in specs.iter().zip(raw) {
+        let RawModerator::Numeric(x) = r else {
+            continue;
+        };
+        let vals: Vec<f64> = included.iter().filter_map(|&i| x[i]).collect();
+        let lo = vals.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = vals.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let big = lo.abs().max(hi.abs());
+        let spread = hi - lo;
+        if big > MODERATOR_MAGNITUDE || (spread > 0.0 && spread < 1.0 / MODERATOR_MAGNITUDE) {
+            return Err(Error::Model(format!(
+                "{source}: moderator '{}' runs from {lo:e} to {hi:e}; at this scale its coefficient \
+                 and standard error leave the range of floating-point numbers. Express it in other \
+                 units (for example divide or multiply the column by a power of ten) and run again",
+                spec.name
+            )));
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,397 @@
+//! Stage 10 of `fit`: the messages of the report. Warnings (things that may
+//! make a result unreliable), notes (adjustments and facts worth knowing)
+//! and cautions (how to read the results responsibly), each list in the
+//! order the report has always shown them.
+
+use super::clusters::{ClusterAdditions, ROBUST_MIN_DF};
+use super::estimate::{Fitted, WorkingModel};
+use super::readout::ReadOut;
+use super::studies::Studies;
+use super::FitSettings;
+use crate::diagnose::Outputs;
+use crate::model::design::Term;
+use crate::model::tau2::Tau2Method;
+use crate::model::Inference;
+use crate::result::Interpretation;
+
+/// Minimum studies per moderator term below which the output cautions
+/// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
+/// "at least ten studies for each characteristic modelled"; common practice, cited from memory).
+pub const STUDIES_PER_TERM: usize = 10;
+
+/// What the messages are about: the outputs of the earlier stages.
+#[derive(Debug, Clone, Copy)]
+pub struct Inputs<'a> {
+    /// The job's settings.
+    pub settings: &'a FitSettings,
+    /// The studies.
+    pub studies: &'a Studies,
+    /// The fitted model.
+    pub model: &'a Fitted,
+    /// The model's terms, intercept first (one per coefficient).
+    pub terms: &'a [Term],
+    /// Predictions, subgroups and curves.
+    pub readout: &'a ReadOut,
+    /// The diagnostics, with their own warnings and notes.
+    pub diagnostics: &'a Outputs,
+    /// Whether the report has an artifact-correction record.
+    pub artifacts: bool,
+    /// Probes, contrasts and regions.
+    pub interpretation: &'a Interpretation,
+    /// What `--cluster` added.
+    pub clusters: Option<&'a ClusterAdditions>,
+    /// Whether the report has a moderator test.
+    pub moderator_test: bool,
+}
+
+/// The three lists of messages.
+#[derive(Debug, Clone, Default)]
+pub struct Messages {
+    /// Things that may make a result unreliable.
+    pub warnings: Vec<String>,
+    /// Adjustments and facts worth knowing.
+    pub notes: Vec<String>,
+    /// How to read the results responsibly.
+    pub cautions: Vec<String>,
+}
+
+/// Every warning, note and caution of the report.
+pub fn collect(i: &Inputs<'_>) -> Messages {
+    let settings = i.settings;
+    let k = i.studies.y.len();
+    let mut m = Messages {
+        warnings: duplicate_label_warnings(&i.studies.labels),
+        notes: data_notes(settings, i.studies),
+        cautions: cautions(k, i.terms.len(), settings.options.inference),
+    };
+    m.notes.extend(fit_notes(settings, i.model, i.terms.len()));
+    for p in &i.readout.predictions {
+        if !p.outside_range.is_empty() {
+            m.warnings.push(format!(
+                "A prediction is outside the range of the studies for {}: it is an extrapolation.",
+                p.outside_range.join(", ")
+            ));
+        }
+    }
+    m.warnings.extend(i.diagnostics.warnings.iter().cloned());
+    m.notes.extend(i.diagnostics.notes.iter().cloned());
+    if i.artifacts {
+        artifact_messages(settings, i.studies, &mut m);
+    }
+    if !i.interpretation.conditional_effects.is_empty()
+        || !i.interpretation.regions_of_significance.is_empty()
+    {
+        m.cautions.push(
+            "Conditional effects and regions of significance read the fitted line at chosen \
+             values: they are as observational as the moderator test itself, each value or \
+             region is a further test (not adjusted for multiplicity), and values outside the \
+             studies' range are extrapolations."
+                .into(),
+        );
+    }
+    if let Some(c) = i.clusters {
+        cluster_messages(i, c, &mut m);
+    }
+    m
+}
+
+/// Notes on the data: zero-cell corrections, blank rows, a missing label column.
+fn data_notes(settings: &FitSettings, studies: &Studies) -> Vec<String> {
+    let mut notes = Vec::new();
+    let corrected: Vec<&str> = studies
+        .notes
+        .iter()
+        .zip(&studies.labels)
+        .filter(|(n, _)| n.is_some())
+        .map(|(_, l)| l.as_str())
+        .collect();
+    if !corrected.is_empty() {
+        let one = corrected.len() == 1;
+        notes.push(format!(
+            "{} {} a zero cell: 0.5 was added to each of {} cells ({}).",
+            corrected.len(),
+            if one { "study had" } else { "studies had" },
+            if one { "its" } else { "their" },
+            list(&corrected, 5)
+        ));
+    }
+    if studies.table.blank_rows > 0 {
+        notes.push(format!(
+            "{} blank rows were skipped.",
+            studies.table.blank_rows
+        ));
+    }
+    if !studies.table.label_found {
+        notes.push(format!(
+            "No '{}' column: studies are labelled by their line in the file. Name the label column with --label.",
+            settings.label.0
+        ));
+    }
+    notes
+}
+
+/// Notes on the fit: τ² estimated as 0, a Knapp–Hartung factor below 1.
+fn fit_notes(settings: &FitSettings, model: &Fitted, p: usize) -> Vec<String> {
+    let mut notes = Vec::new();
+    let fit = &model.fit;
+    if fit.tau2.estimate == 0.0 && settings.options.method != Tau2Method::None {
+        notes.push(
+            "The τ² estimate is 0: the observed spread of the effects is no larger than their \
+             sampling error alone would produce. This does not show that the true effects are \
+             identical."
+                .into(),
+        );
+    }
+    if let Some(s2) = fit.kh_scale {
+        if s2 < 1.0 && p > 1 {
+            notes.push(format!(
+                "The Knapp–Hartung scale factor is {s2:.3} (< 1), so its standard errors are smaller \
+                 than the z-based ones (its intervals also use t quantiles, which widens them)."
+            ));
+        }
+    }
+    notes
+}
+
+/// The cautions every report carries: few studies per term, moderators as
+/// associations, multiple coefficients, few studies, decisions.
+fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
+    let mut c = Vec::new();
+    let terms = p - 1;
+    if terms > 0 {
+        if k < STUDIES_PER_TERM * terms {
+            c.push(format!(
+                "Only {k} studies for {terms} moderator term{}: fewer than {STUDIES_PER_TERM} studies \
+                 per term (a common rule of thumb, Cochrane Handbook section 10.11.5.1). Treat the \
+                 moderator results as exploratory; estimates are unstable and tests have little power.",
+                if terms == 1 { "" } else { "s" }
+            ));
+        }
+        c.push(
+            "Moderator effects are associations across studies: they are observational even when \
+             every study is a randomised trial, can be confounded by other study characteristics, \
+             and do not show how the effect changes for individuals (Thompson & Higgins 2002, \
+             Stat. Med. 21:1559)."
+                .into(),
+        );
+        if terms > 1 {
+            c.push(
+                "Several coefficients are tested: their individual p-values are not adjusted for \
+                 multiple testing. The omnibus moderator test is the single test of whether the \
+                 moderators matter."
+                    .into(),
+            );
+        }
+    }
+    if k < 10 {
+        c.push(format!(
+            "With {k} studies, τ² and the prediction interval are estimated imprecisely{}.",
+            match inference {
+                Inference::Z =>
+                    "; z-based intervals are also too narrow with few studies (the default \
+                     Knapp–Hartung method is safer)",
+                Inference::Kh => "",
+            }
+        ));
+    }
+    c.push(
+        "These results summarise published or supplied estimates. Decisions about patients, pupils, \
+         programmes or policy rest with the responsible professionals and local guidance, not with \
+         this output."
+            .into(),
+    );
+    c
+}
+
+/// The warning and cautions that come with artifact corrections.
+fn artifact_messages(settings: &FitSettings, studies: &Studies, m: &mut Messages) {
+    let over: Vec<&str> = studies
+        .y
+        .iter()
+        .zip(&studies.labels)
+        .filter(|(y, _)| y.abs() > 1.0)
+        .map(|(_, l)| l.as_str())
+        .collect();
+    if !over.is_empty() {
+        m.warnings.push(format!(
+            "{} corrected correlation{} above 1 in absolute value ({}): sampling error in r or in \
+             the artifact values; they are kept uncapped, as capping would bias the mean.",
+            over.len(),
+            if over.len() == 1 { " is" } else { "s are" },
+            list(&over, 5)
+        ));
+    }
+    if let Some(col) = &settings.interpret.artifacts.range_ratio {
+        let checked = settings.moderators.iter().any(|m| &m.name == col);
+        m.cautions.push(format!(
+            "Range restriction differs between studies: a moderator that goes together with it (for \
+             example how selective a site is) can show an artifactual moderation, and an imperfect \
+             correction leaves part of it in the corrected r. {}",
+            if checked {
+                format!("The range ratio '{col}' is itself a moderator here: its coefficient is the check.")
+            } else {
+                format!("As a check, fit with --moderator {col} (the range ratio itself) and see whether it predicts the corrected effects.")
+            }
+        ));
+    }
+    m.cautions.push(
+        "Corrected correlations estimate the relation between true scores in the unrestricted \
+         population; they rest on the supplied reliabilities and range ratios, whose own errors are \
+         not in the intervals."
+            .into(),
+    );
+}
+
+/// The notes, warnings and caution of clustered effects.
+fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
+    let clusters = c.report.clusters;
+    let singles = c.report.single_effect_clusters;
+    if let WorkingModel::ThreeLevel(_) = i.model.working {
+        m.notes.push(format!(
+            "Three-level model: effects nested in {clusters} clusters of '{}'. τ² is the sum of the \
+             between- and within-cluster variances; prediction intervals are for a new effect in \
+             a new cluster. Variance-component intervals are profile-likelihood intervals.",
+            c.report.column
+        ));
+        match i.settings.options.inference {
+            Inference::Kh => m.notes.push(
+                "Under kh the coefficient covariance of the three-level model is scaled by \
+                 r'V⁻¹r/(k − p) and tested with t(k − p) (Knapp–Hartung carried over to the \
+                 block-diagonal V)."
+                    .into(),
+            ),
+            Inference::Z => {}
+        }
+    }
+    if singles > 0 {
+        m.notes.push(format!(
+            "{singles} of {clusters} clusters hold a single effect; this is fine (they inform the sum \
+             of the two variances more than its split)."
+        ));
+    }
+    if singles == clusters {
+        m.warnings.push(
+            "Every cluster holds a single effect: the between- and within-cluster variances \
+             cannot be told apart, only their sum is estimated."
+                .into(),
+        );
+    }
+    if !i.readout.subgroups.is_empty() {
+        m.notes.push(
+            "With --cluster the per-level pooled estimates (which would treat the effects as \
+             independent) are left out; the model's predicted values per level remain."
+                .into(),
+        );
+    }
+    if let Some(robust) = &c.robust {
+        m.notes.push(
+            "Only the coefficients' robust_se, robust_df, robust_p and the moderator test are \
+             cluster-robust; intervals, predictions, fitted lines and --probe/--regions results \
+             use the model-based covariance."
+                .into(),
+        );
+        let low: Vec<String> = i
+            .terms
+            .iter()
+            .zip(&robust.coefficients)
+            .filter(|(_, r)| r.df < ROBUST_MIN_DF)
+            .map(|(t, r)| format!("{} ({:.1})", t.name, r.df))
+            .collect();
+        if !low.is_empty() {
+            m.warnings.push(format!(
+                "Robust degrees of freedom below {ROBUST_MIN_DF}: {}. Robust p-values with so few \
+                 effective clusters can be far from their nominal level (Tipton 2015); read them \
+                 with great care.",
+                low.join(", ")
+            ));
+        }
+        match &robust.test {
+            Some(t) if i.moderator_test && t.df2 < ROBUST_MIN_DF => m.warnings.push(format!(
+                "The robust moderator test has {:.1} denominator df (below {ROBUST_MIN_DF}): \
+                 its p-value is unreliable.",
+                t.df2
+            )),
+            _ => {}
+        }
+    }
+    m.cautions.push(format!(
+        "Effects in the same cluster are dependent; the {clusters} clusters, not the {} effects, are the \
+         independent units, and moderators that vary only between clusters are tested with about \
+         as much information as {clusters} studies give.",
+        i.studies.y.len()
+    ));
+}
+
+/// FNV-1a hash of a label (a fast, fixed hash: the duplicate check only
+/// needs equal labels to meet, and compares candidates exactly).
+fn fnv1a(text: &str) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in text.bytes() {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    h
+}
+
+/// The warning about labels used by more than one study (none when every label is distinct).
+fn duplicate_label_warnings(labels: &[String]) -> Vec<String> {
+    // Sort (hash, position) pairs: equal labels have equal hashes and end up
+    // adjacent; labels are compared exactly within a run of equal hashes.
+    let mut keyed: Vec<(u64, usize)> = labels
+        .iter()
+        .enumerate()
+        .map(|(i, l)| (fnv1a(l), i))
+        .collect();
+    keyed.sort_unstable();
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    let mut start = 0;
+    while start < keyed.len() {
+        let mut end = start + 1;
+        while end < keyed.len() && keyed[end].0 == keyed[start].0 {
+            end += 1;
+        }
+        if end - start > 1 {
+            let mut run: Vec<&str> = keyed[start..end]
+                .iter()
+                .map(|&(_, i)| labels[i].as_str())
+                .collect();
+            run.sort_unstable();
+            let mut a = 0;
+            while a < run.len() {
+                let b = a + run[a..].iter().take_while(|l| **l == run[a]).count();
+                if b - a > 1 {
+                    counts.push((run[a], b - a));
+                }
+                a = b;
+            }
+        }
+        start = end;
+    }
+    let mut dups: Vec<String> = counts
+        .iter()
+        .map(|(l, n)| format!("'{l}' ({n}×)"))
+        .collect();
+    if dups.is_empty() {
+        return Vec::new();
+    }
+    dups.sort();
+    vec![format!(
+        "Study labels used more than once: {}. If these are the same study entered twice, remove \
+         the copies; if they are separate samples, give them distinct labels.",
+        list(&dups, 5)
+    )]
+}
+
+/// Up to `max` items joined by commas, with "and N more" for the rest.
+fn list<S: AsRef<str>>(items: &[S], max: usize) -> String {
+    let mut s = items
+        .iter()
+        .take(max)
+        .map(AsRef::as_ref)
+        .collect::<Vec<&str>>()
+        .join(", ");
+    if items.len() > max {
+        s.push_str(&format!(" and {} more", items.len() - max));
+    }
+    s
+}

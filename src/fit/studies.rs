@@ -1,0 +1,230 @@
+//! Stage 2 of `fit`: collect the studies. Effects from the measure's
+//! columns, artifact corrections, the type of each moderator (read over all
+//! rows), and which rows the model can use. The table's cells end with this
+//! stage: what later stages need is copied out, and the table is dropped
+//! before the model's arrays exist.
+
+use super::columns::Columns;
+use super::FitSettings;
+use crate::effect::artifact::{self, Corrected};
+use crate::effect::{self, ReadingScale, RowEffect};
+use crate::error::{Error, Result};
+use crate::input::{Delimiter, Table};
+use crate::model::design::{self, RawModerator};
+use crate::result::Excluded;
+
+/// The studies of the job. Fields "per study" hold the included rows in
+/// file order; [`Studies::raw`] holds every table row (the design builder
+/// reads it through [`Studies::included`]).
+#[derive(Debug)]
+pub struct Studies {
+    /// Table rows the model uses, in file order.
+    pub included: Vec<usize>,
+    /// Effect per study, on the analysis scale.
+    pub y: Vec<f64>,
+    /// Sampling variance per study.
+    pub v: Vec<f64>,
+    /// Label per study (its line when the label cell or column is missing).
+    pub labels: Vec<String>,
+    /// Line in the file per study.
+    pub lines: Vec<u64>,
+    /// Adjustment made to the study's effect, in words (a zero-cell correction).
+    pub notes: Vec<Option<String>>,
+    /// Artifact correction per study (None without corrections).
+    pub corrections: Vec<Option<Corrected>>,
+    /// The `--cumulative-by` header and its cell per study.
+    pub order: Option<(String, Vec<String>)>,
+    /// The `--cluster` header and its (trimmed) id per study.
+    pub cluster_ids: Option<(String, Vec<String>)>,
+    /// Every moderator's values over all table rows, typed.
+    pub raw: Vec<RawModerator>,
+    /// Rows left out, with the reason, in file order.
+    pub excluded: Vec<Excluded>,
+    /// How results are read: the measure's scale, or as analysed when the
+    /// correlations were corrected for artifacts.
+    pub scale: ReadingScale,
+    /// What the report says about the table.
+    pub table: TableFacts,
+}
+
+/// What the report says about the table read.
+#[derive(Debug, Clone)]
+pub struct TableFacts {
+    /// The delimiter.
+    pub delimiter: Delimiter,
+    /// Data rows.
+    pub rows: usize,
+    /// Blank rows skipped.
+    pub blank_rows: usize,
+    /// Header of the label column, when there is one.
+    pub label_column: Option<String>,
+    /// Whether a header matches the label column's name (ignoring case).
+    pub label_found: bool,
+}
+
+/// Computes the effects, applies artifact corrections, types the moderators
+/// and decides which rows the model uses.
+///
+/// # Errors
+/// Errors of [`effect::compute`], [`artifact::apply`] and
+/// [`design::classify`]; [`Error::Model`] when no row, or only one, is usable.
+pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result<Studies> {
+    let Columns {
+        table,
+        first_measure,
+        first_moderator,
+        first_artifact,
+        order,
+        cluster,
+    } = columns;
+    let cluster_cells = cluster.map(|j| cells(&table, j, true));
+    let order_cells = order.map(|j| cells(&table, j, false));
+    let mut effects = effect::compute(settings.measure, &settings.columns, &table, first_measure)?;
+    let artifacts = &settings.interpret.artifacts;
+    let corrections = artifact::apply(
+        artifacts,
+        &table,
+        first_measure,
+        first_measure + 1,
+        first_artifact,
+        &mut effects,
+    )?;
+    let labels = labels(&table);
+    let mut raw = Vec::with_capacity(settings.moderators.len());
+    for (j, spec) in settings.moderators.iter().enumerate() {
+        let col = table
+            .column(first_moderator + j)
+            .expect("required column present");
+        let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
+        raw.push(design::classify(spec, &cells, &table.lines, source)?);
+    }
+    let (included, excluded) = include(settings, &effects.rows, &raw, &labels, &table.lines);
+    check_count(source, &included, &excluded)?;
+    let mut y = Vec::with_capacity(included.len());
+    let mut v = Vec::with_capacity(included.len());
+    let mut notes = Vec::with_capacity(included.len());
+    for &i in &included {
+        let (yi, vi, note) = match &mut effects.rows[i] {
+            RowEffect::Value { y, v, note } => (*y, *v, note.take()),
+            RowEffect::Excluded(_) => (f64::NAN, f64::NAN, None),
+        };
+        y.push(yi);
+        v.push(vi);
+        notes.push(note);
+    }
+    Ok(Studies {
+        y,
+        v,
+        notes,
+        labels: pick(labels, &included),
+        lines: included.iter().map(|&i| table.lines[i]).collect(),
+        corrections: included.iter().map(|&i| corrections[i]).collect(),
+        order: order_cells.map(|(h, c)| (h, pick(c, &included))),
+        cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
+        raw,
+        excluded,
+        scale: if artifacts.any() {
+            ReadingScale::Same
+        } else {
+            settings.measure.reading_scale()
+        },
+        table: TableFacts {
+            delimiter: Delimiter::of(table.delimiter),
+            rows: table.len(),
+            blank_rows: table.blank_rows,
+            label_column: table.column(0).map(|c| c.header.clone()),
+            label_found: table
+                .headers
+                .iter()
+                .any(|h| h.eq_ignore_ascii_case(&settings.label.0)),
+        },
+        included,
+    })
+}
+
+/// A requested column's header and cells (one per table row), trimmed or as read.
+fn cells(table: &Table, j: usize, trim: bool) -> (String, Vec<String>) {
+    let col = table.column(j).expect("required column present");
+    let cell = |i: usize| {
+        let c = col.get(i);
+        if trim { c.trim() } else { c }.to_string()
+    };
+    (col.header.clone(), (0..table.len()).map(cell).collect())
+}
+
+/// The entries of the included rows, taken out of a per-row list.
+fn pick(mut all: Vec<String>, included: &[usize]) -> Vec<String> {
+    included
+        .iter()
+        .map(|&i| std::mem::take(&mut all[i]))
+        .collect()
+}
+
+/// The label of every row: the label cell, or "line N" when it (or the column) is missing.
+fn labels(table: &Table) -> Vec<String> {
+    match table.column(0) {
+        Some(c) => (0..table.len())
+            .map(|i| {
+                let l = c.get(i);
+                if l.is_empty() {
+                    format!("line {}", table.lines[i])
+                } else {
+                    l.to_string()
+                }
+            })
+            .collect(),
+        None => table.lines.iter().map(|l| format!("line {l}")).collect(),
+    }
+}
+
+/// Splits the rows into those the model uses and those left out (no
+/// effect, or a missing moderator value), in file order.
+fn include(
+    settings: &FitSettings,
+    rows: &[RowEffect],
+    raw: &[RawModerator],
+    labels: &[String],
+    lines: &[u64],
+) -> (Vec<usize>, Vec<Excluded>) {
+    let mut included = Vec::new();
+    let mut excluded = Vec::new();
+    for (i, row) in rows.iter().enumerate() {
+        let reason = match row {
+            RowEffect::Excluded(why) => Some(why.clone()),
+            RowEffect::Value { .. } => settings
+                .moderators
+                .iter()
+                .zip(raw)
+                .find(|(_, r)| !r.present(i))
+                .map(|(m, _)| format!("missing moderator {}", m.name)),
+        };
+        match reason {
+            Some(reason) => excluded.push(Excluded {
+                study: labels[i].clone(),
+                line: lines[i],
+                reason,
+            }),
+            None => included.push(i),
+        }
+    }
+    (included, excluded)
+}
+
+/// Refuses a job with no usable study, or only one.
+fn check_count(source: &str, included: &[usize], excluded: &[Excluded]) -> Result<()> {
+    if included.is_empty() {
+        return Err(Error::Model(format!(
+            "{source}: no study has every value the model needs ({} rows left out; the first: line {}, {})",
+            excluded.len(),
+            excluded[0].line,
+            excluded[0].reason
+        )));
+    }
+    if included.len() == 1 {
+        return Err(Error::Model(format!(
+            "{source}: only one study is usable; no between-study heterogeneity can be estimated and \
+             there is nothing to pool. At least 2 studies are needed (3 or more to say much)"
+        )));
+    }
+    Ok(())
+}
