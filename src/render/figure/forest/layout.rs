@@ -275,6 +275,9 @@ impl<'a> Forest<'a> {
         let auto_rh = auto_row_height(n_rows);
         let margin = 18.0;
         let fs_max = font(auto_rh).max(12.0);
+        // The zeros are filled in by the three steps below, in order: the
+        // columns, the caption (which needs the axis limits), the row height
+        // (which needs the caption's height).
         let mut f = Forest {
             report,
             group,
