@@ -4,7 +4,8 @@
 //! `cargo bench --bench plan`; the results are recorded in
 //! docs/performance.md. Not a test: nothing here asserts a time.
 
-use pondus::plan::{no_progress, simulate, ModeratorDesign, Plan, PlanMeasure, PlanTest};
+use pondus::plan::{no_progress, simulate, ModeratorDesign, Plan, PlanMeasure};
+use pondus::result::plan::PlanTest;
 use std::hint::black_box;
 use std::time::{Duration, Instant};
 

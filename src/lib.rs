@@ -42,6 +42,7 @@ pub mod plan;
 pub mod render;
 pub mod result;
 pub mod sites;
+pub mod sql;
 pub mod support;
 pub mod tolerance;
 

@@ -5,13 +5,10 @@ use super::outputs::{self, Outputs, Target};
 use super::{invocation, json_bytes, report_target, with_progress};
 use clap::{Args, ValueEnum};
 use pondus::error::{Error, Result};
-use pondus::plan::{
-    self,
-    report::{PlanRequest, SolveFor},
-    ModeratorDesign, Plan, PlanMeasure, PlanTest,
-};
+use pondus::plan::{self, ModeratorDesign, Plan, PlanMeasure, PlanRequest, SolveFor};
 use pondus::render;
 use pondus::render::figure;
+use pondus::result::plan::PlanTest;
 use std::path::PathBuf;
 
 /// Measures of `pondus plan`.
@@ -493,18 +490,18 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
     let report = with_progress(
         req.simulations.map(|n| (n * rounds) as u64),
         "simulating {bar:30} {pos}/{len} data sets ({eta})",
-        |tick| plan::report::build_with_progress(req, tick),
+        |tick| plan::build_with_progress(req, tick),
     )?;
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some((t, f)) = &run.curve {
-        out.add(t, plan::report::curve_plot(&report, *f)?);
+        out.add(t, figure::power::plot(&report, *f)?);
     }
     if let Some(t) = &run.json {
         out.add(t, json_bytes(&report)?);
     }
     if let Some(t) = &run.report {
-        let figure = plan::report::curve_figure(&report)?;
+        let figure = figure::power::page_figure(&report)?;
         let prov = render::html::Provenance {
             command: run.invocation.clone(),
             version: env!("CARGO_PKG_VERSION").to_string(),
@@ -514,7 +511,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         out.add(t, render::html::plan_page(&report, Some(&figure), &prov));
     }
     if run.text {
-        out.add(&Target::Stdout, plan::report::render_text(&report));
+        out.add(&Target::Stdout, render::plan::render(&report));
     }
     out.write()
 }

@@ -274,7 +274,7 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some(t) = &run.out {
-        out.add(t, sites::effects_bytes(&report));
+        out.add(t, render::sites_effects::bytes(&report));
     }
     if let Some(t) = &run.json {
         out.add(t, json_bytes(&report)?);
@@ -282,7 +282,7 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {
             SitesInputArg::Rows(Source::File(p)) | SitesInputArg::Moments(p) => {
-                Some(pondus::sites::sha256_file(p)?)
+                Some(pondus::support::hash::sha256_file(p)?)
             }
             SitesInputArg::Rows(Source::Stdin) => None,
         };

@@ -34,7 +34,7 @@ impl SqlArgs {
     /// # Errors
     /// [`pondus::Error::Usage`] for an unusable name.
     pub fn query(&self) -> Result<String> {
-        pondus::sites::sql::query(&pondus::sites::sql::QuerySpec {
+        pondus::sql::query(&pondus::sql::QuerySpec {
             table: self.table.clone(),
             site: self.site.clone(),
             x: self.x.clone(),

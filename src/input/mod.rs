@@ -218,7 +218,8 @@ pub fn find_header(headers: &[String], wanted: &str) -> Option<usize> {
     }
 }
 
-fn format_error(source: &str, message: impl Into<String>) -> Error {
+/// A format problem of the file `source`.
+pub(crate) fn format_error(source: &str, message: impl Into<String>) -> Error {
     Error::Format {
         source_name: source.to_string(),
         message: message.into(),
@@ -285,8 +286,15 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
     })
 }
 
-/// The header row, each name trimmed.
-fn read_headers(source: &str, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<String>> {
+/// The header row of a CSV reader, each name trimmed (used by the table
+/// reader here and by the streaming reader of `pondus sites`).
+///
+/// # Errors
+/// [`Error::Format`] when it cannot be read or is not UTF-8.
+pub fn read_headers<R: std::io::Read>(
+    source: &str,
+    reader: &mut csv::Reader<R>,
+) -> Result<Vec<String>> {
     let header_record = reader
         .byte_headers()
         .map_err(|e| format_error(source, format!("the header row cannot be read: {e}")))?;

@@ -89,28 +89,39 @@ fn two_sided_p(fit: &ModelFit, stat: f64) -> f64 {
     }
 }
 
-/// Per-coefficient estimate, SE, interval, statistic and p.
-pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
-    let crit = critical(fit);
-    let df = match fit.options.inference {
+/// The degrees of freedom of a single-coefficient test: k − p under
+/// Knapp–Hartung, none (normal) under z.
+pub fn df(fit: &ModelFit) -> Option<f64> {
+    match fit.options.inference {
         Inference::Kh => Some((fit.k - fit.p) as f64),
         Inference::Z => None,
-    };
+    }
+}
+
+/// The test of one linear combination with estimate `estimate` and
+/// standard error `se`, with the fit's inference.
+///
+/// # Formula
+/// CI estimate ± crit·SE ([`critical`]), statistic estimate/SE, two-sided p
+/// on t(k − p) (Knapp–Hartung) or the normal (z).
+pub fn wald(fit: &ModelFit, estimate: f64, se: f64) -> CoefInference {
+    let crit = critical(fit);
+    let stat = estimate / se;
+    CoefInference {
+        estimate,
+        se,
+        ci_low: estimate - crit * se,
+        ci_high: estimate + crit * se,
+        statistic: stat,
+        df: df(fit),
+        p: two_sided_p(fit, stat),
+    }
+}
+
+/// Per-coefficient estimate, SE, interval, statistic and p.
+pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
     (0..fit.p)
-        .map(|j| {
-            let b = fit.beta[j];
-            let se = fit.cov[(j, j)].max(0.0).sqrt();
-            let stat = b / se;
-            CoefInference {
-                estimate: b,
-                se,
-                ci_low: b - crit * se,
-                ci_high: b + crit * se,
-                statistic: stat,
-                df,
-                p: two_sided_p(fit, stat),
-            }
-        })
+        .map(|j| wald(fit, fit.beta[j], fit.cov[(j, j)].max(0.0).sqrt()))
         .collect()
 }
 

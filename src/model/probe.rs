@@ -14,8 +14,7 @@
 
 use super::design::{self, Design, ModeratorKind, Value};
 use super::inference::{self, CoefInference, PredictionInference};
-use super::{Inference, ModelFit};
-use crate::dist;
+use super::ModelFit;
 use crate::error::Result;
 use crate::tolerance;
 use nalgebra::DVector;
@@ -129,20 +128,6 @@ pub fn within(bounds: &[f64], region: Region, lo: f64, hi: f64) -> Vec<[f64; 2]>
     out
 }
 
-fn df(fit: &ModelFit) -> Option<f64> {
-    match fit.options.inference {
-        Inference::Kh => Some((fit.k - fit.p) as f64),
-        Inference::Z => None,
-    }
-}
-
-fn p_value(fit: &ModelFit, stat: f64) -> f64 {
-    match fit.options.inference {
-        Inference::Kh => dist::t_two_sided_p(stat, (fit.k - fit.p) as f64),
-        Inference::Z => dist::normal_two_sided_p(stat),
-    }
-}
-
 /// The test of one contrast c'β̂ (the same inference as a coefficient's).
 ///
 /// # Formula
@@ -152,17 +137,7 @@ pub fn contrast(fit: &ModelFit, c: &[f64]) -> CoefInference {
     let x = DVector::from_column_slice(c);
     let est = x.dot(&fit.beta);
     let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
-    let crit = inference::critical(fit);
-    let stat = est / se;
-    CoefInference {
-        estimate: est,
-        se,
-        ci_low: est - crit * se,
-        ci_high: est + crit * se,
-        statistic: stat,
-        df: df(fit),
-        p: p_value(fit, stat),
-    }
+    inference::wald(fit, est, se)
 }
 
 /// A conditional effect: the mean effect at one design row, with its test.
@@ -182,12 +157,12 @@ pub struct Conditional {
 /// its test against 0 on t(k − p) (kh) or the normal (z).
 pub fn conditional(fit: &ModelFit, x0: &[f64]) -> Conditional {
     let prediction = inference::predict(fit, x0);
-    let statistic = prediction.estimate / prediction.se;
+    let test = inference::wald(fit, prediction.estimate, prediction.se);
     Conditional {
         prediction,
-        statistic,
-        df: df(fit),
-        p: p_value(fit, statistic),
+        statistic: test.statistic,
+        df: test.df,
+        p: test.p,
     }
 }
 

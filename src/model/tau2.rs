@@ -4,11 +4,10 @@
 //! equation with argmin's Brent root finder inside brackets found by a scan;
 //! moment estimators are the meta-regression (residual-based) forms.
 
+use super::solve::{brent_root, Search};
 use super::wls::{fit_with, ols, Data, Want, Wls};
 use crate::error::{Error, Result};
 use crate::tolerance;
-use argmin::core::{CostFunction, Executor, State, TerminationReason, TerminationStatus};
-use argmin::solver::brent::BrentRoot;
 
 pub use crate::result::{Ending, Tau2Method};
 
@@ -25,48 +24,16 @@ pub struct Tau2Fit {
     pub evaluations: u64,
 }
 
-struct Scalar<F: Fn(f64) -> f64>(F);
+/// What the user can try when a τ² search fails.
+pub(crate) const SEARCH_HINT: &str =
+    "check the data for extreme values, or try another --tau2 estimator";
 
-impl<F: Fn(f64) -> f64> CostFunction for Scalar<F> {
-    type Param = f64;
-    type Output = f64;
-    fn cost(&self, x: &f64) -> std::result::Result<f64, argmin::core::Error> {
-        Ok((self.0)(*x))
+/// The search for `what`, failing with [`SEARCH_HINT`].
+fn search(what: &str) -> Search<'_> {
+    Search {
+        what,
+        hint: SEARCH_HINT,
     }
-}
-
-/// Root of `f` in [lo, hi] (f(lo) and f(hi) of opposite signs) by Brent's
-/// method (argmin's `BrentRoot`). Returns the root and the iterations used.
-///
-/// # Errors
-/// [`Error::NoConvergence`] when the solver stops for any reason other than convergence.
-pub fn brent_root<F: Fn(f64) -> f64>(f: F, lo: f64, hi: f64, what: &str) -> Result<(f64, u64)> {
-    let tol = tolerance::ROOT_REL * hi.abs().max(f64::MIN_POSITIVE);
-    let solver = BrentRoot::new(lo, hi, tol);
-    let fail = |detail: String| Error::NoConvergence {
-        what: what.to_string(),
-        detail,
-        hint: "check the data for extreme values, or try another --tau2 estimator".into(),
-    };
-    let res = Executor::new(Scalar(f), solver)
-        .configure(|s| {
-            s.param((lo + hi) / 2.0)
-                .max_iters(tolerance::ROOT_MAX_ITERS)
-        })
-        .run()
-        .map_err(|e| fail(e.to_string()))?;
-    let state = res.state();
-    match state.get_termination_status() {
-        TerminationStatus::Terminated(TerminationReason::SolverConverged) => {}
-        other => return Err(fail(format!("the root search ended with '{other:?}'"))),
-    }
-    let x = *state
-        .get_param()
-        .ok_or_else(|| fail("no estimate".into()))?;
-    if !x.is_finite() {
-        return Err(fail("a non-finite estimate".into()));
-    }
-    Ok((x, state.get_iter()))
 }
 
 fn wls(data: &Data<'_>, tau2: f64, want: Want) -> Result<Wls> {
@@ -129,11 +96,7 @@ fn bracket_above<F: Fn(f64) -> f64>(f: &F, start: f64, what: &str) -> Result<f64
         }
         hi *= 2.0;
     }
-    Err(Error::NoConvergence {
-        what: what.to_string(),
-        detail: format!("no upper bound for τ² found up to {hi:e}"),
-        hint: "check the data for extreme values, or try another --tau2 estimator".into(),
-    })
+    Err(search(what).fail(format!("no upper bound for τ² found up to {hi:e}")))
 }
 
 /// Estimates τ² with `method`.
@@ -260,7 +223,7 @@ fn solve_q_hinted(data: &Data<'_>, target: f64, hint: f64, what: &str) -> Result
         return Ok((0.0, 1));
     }
     let hi = bracket_above(&q, hint, what)?;
-    let (t, iters) = brent_root(q, 0.0, hi, what)?;
+    let (t, iters) = brent_root(q, 0.0, hi, search(what))?;
     Ok((t.max(0.0), iters))
 }
 
@@ -345,7 +308,7 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
             let root = if s2 == 0.0 {
                 t2
             } else {
-                brent_root(s, t1, t2, what)?.0
+                brent_root(s, t1, t2, search(what))?.0
             };
             candidates.push((root, ll(root)));
         }
@@ -355,11 +318,7 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
         .copied()
         .filter(|(_, l)| l.is_finite())
         .max_by(|a, b| a.1.total_cmp(&b.1))
-        .ok_or_else(|| Error::NoConvergence {
-            what: what.to_string(),
-            detail: "no maximum of the likelihood was found".into(),
-            hint: "check the data for extreme values, or try another --tau2 estimator".into(),
-        })?;
+        .ok_or_else(|| search(what).fail("no maximum of the likelihood was found".into()))?;
     Ok(Tau2Fit {
         estimate: best.0,
         method,

@@ -17,6 +17,8 @@ pub mod interpret;
 pub mod json;
 pub mod layout;
 pub mod multilevel;
+pub mod plan;
 pub mod sites;
+pub mod sites_effects;
 pub mod table;
 pub mod text;

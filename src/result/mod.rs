@@ -1,6 +1,6 @@
-//! The public result of `pondus fit` (and of `pondus sites`): plain structs
-//! that every renderer and plot reads. Their JSON form (field docs) is the
-//! stable schema.
+//! The public result of `pondus fit` (and of `pondus sites`; that of
+//! `pondus plan` is in [`plan`]): plain structs that every renderer and plot
+//! reads. Their JSON form (field docs) is the stable schema.
 //!
 //! The groups of numbers that recur (intervals, tests, estimates with their
 //! intervals) are small shared structs ([`Interval`], [`PredictionInterval`],
@@ -26,6 +26,7 @@ mod diagnose;
 mod estimate;
 mod interpret;
 mod model;
+pub mod plan;
 mod predict;
 mod sites;
 

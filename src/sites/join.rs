@@ -2,21 +2,9 @@
 
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::{self, ColumnRequest};
+use crate::render::sites_effects::COLUMNS;
 use crate::result::{SiteJoin, SitesReport};
 use std::collections::HashMap;
-
-/// Columns of the effects file that a characteristic may not be named like.
-const RESERVED: [&str; 9] = [
-    "study",
-    "n",
-    "slope",
-    "se",
-    "r",
-    "interaction",
-    "interaction_se",
-    "mean_x",
-    "mean_w",
-];
 
 /// Appends every other column of the site table `bytes` (named `source`)
 /// to the sites of `report`, matched on the column `key`.
@@ -53,7 +41,8 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
         .cloned()
         .collect();
     for h in &others {
-        if RESERVED.contains(&h.to_lowercase().as_str()) {
+        // A characteristic may not be named like a column of the effects file.
+        if COLUMNS.contains(&h.to_lowercase().as_str()) {
             return Err(Error::Format {
                 source_name: source.to_string(),
                 message: format!(

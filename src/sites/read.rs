@@ -4,6 +4,7 @@
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{detect_delimiter, find_header};
+use crate::input::{format_error, read_headers};
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
 
@@ -99,14 +100,216 @@ fn parse_number(cell: &[u8]) -> Cell {
     }
 }
 
+/// The cell problems of a pass: the first [`CellProblems::MAX_LISTED`] kept,
+/// all counted.
 #[derive(Default)]
 struct Problems {
     list: Vec<CellProblem>,
     total: usize,
 }
 
+impl Problems {
+    fn push(&mut self, line: u64, column: &str, value: &[u8], message: String) {
+        self.total += 1;
+        if self.list.len() < CellProblems::MAX_LISTED {
+            let text = String::from_utf8_lossy(value);
+            let value: String = text.trim().chars().take(40).collect();
+            self.list.push(CellProblem {
+                line,
+                column: column.to_string(),
+                value,
+                message,
+            });
+        }
+    }
+}
+
 /// How many line numbers of rows with missing values are kept for display.
 pub const MISSING_LINES_KEPT: usize = 20;
+
+/// The CSV reader of a pass, over the line-break counter.
+type RowReader<R> = csv::Reader<BreakCounter<BufReader<R>>>;
+
+fn io_error(source: &str, e: std::io::Error) -> Error {
+    Error::Io {
+        path: source.to_string(),
+        action: "reading",
+        source: e,
+    }
+}
+
+/// The CSV reader over `input` (a byte-order mark skipped) and the
+/// delimiter detected from the first buffer.
+///
+/// # Errors
+/// [`Error::Format`] for an empty file; [`Error::Io`] when reading fails.
+fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
+    let mut buffered = BufReader::with_capacity(1 << 16, input);
+    let head = buffered.fill_buf().map_err(|e| io_error(source, e))?;
+    let bom = head.starts_with(b"\xEF\xBB\xBF");
+    if bom {
+        buffered.consume(3);
+    }
+    let head = buffered.fill_buf().map_err(|e| io_error(source, e))?;
+    if head.iter().all(|b| b.is_ascii_whitespace()) {
+        return Err(format_error(
+            source,
+            "the file is empty; it needs a header row and one row per participant",
+        ));
+    }
+    let delimiter = detect_delimiter(head);
+    let counter = BreakCounter {
+        inner: buffered,
+        offset: 0,
+        breaks: VecDeque::new(),
+        line: 1,
+    };
+    let reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .buffer_capacity(1 << 16)
+        .from_reader(counter);
+    Ok((reader, delimiter))
+}
+
+/// The position of the column `wanted` (given as `flag`) in `headers`.
+///
+/// # Errors
+/// [`Error::MissingColumn`] when it is absent; [`Error::Format`] when its
+/// name is repeated in the header.
+fn locate(source: &str, headers: &[String], wanted: &str, flag: &str) -> Result<usize> {
+    let i = find_header(headers, wanted).ok_or_else(|| Error::MissingColumn {
+        source_name: source.to_string(),
+        column: wanted.to_string(),
+        purpose: flag.to_string(),
+        available: headers.join(", "),
+        hint: format!(
+            "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
+        ),
+    })?;
+    let dup = headers.iter().filter(|h| **h == headers[i]).count();
+    if dup > 1 {
+        return Err(format_error(
+            source,
+            format!(
+                "the header has {dup} columns named '{}'; rename them so each is unique",
+                headers[i]
+            ),
+        ));
+    }
+    Ok(i)
+}
+
+/// Reads the next record into `record`; false at the end of the file.
+///
+/// # Errors
+/// [`Error::Io`] when reading fails; [`Error::Format`] naming the line
+/// for a record that is not CSV.
+fn next_record<R: Read>(
+    source: &str,
+    reader: &mut RowReader<R>,
+    record: &mut csv::ByteRecord,
+) -> Result<bool> {
+    match reader.read_byte_record(record) {
+        Ok(more) => Ok(more),
+        Err(e) => {
+            let line = match e.position() {
+                Some(p) => reader.get_mut().line_at(p.byte()),
+                None => 0,
+            };
+            if let csv::ErrorKind::Io(_) = e.kind() {
+                let csv::ErrorKind::Io(inner) = e.into_kind() else {
+                    unreachable!("matched above")
+                };
+                return Err(io_error(source, inner));
+            }
+            Err(format_error(
+                source,
+                format!("line {line} cannot be read as CSV: {e}"),
+            ))
+        }
+    }
+}
+
+/// What a record of the header's width holds.
+enum RowCheck {
+    /// Every field empty: not a data row.
+    Blank,
+    /// A problem was recorded (a text value, a missing or non-UTF-8 site id).
+    Problem,
+    /// An empty or missing-mark numeric cell: the row is left out and counted.
+    Missing,
+    /// Every value read into the values buffer.
+    Usable,
+}
+
+/// Reads the numeric cells at `numeric` into `values` and checks the site
+/// id at `site`, recording problems.
+#[inline]
+fn check_row(
+    record: &csv::ByteRecord,
+    line: u64,
+    (site_ix, num_ix): (usize, &[usize]),
+    headers: &[String],
+    values: &mut [f64],
+    problems: &mut Problems,
+) -> RowCheck {
+    let site = record[site_ix].trim_ascii();
+    let mut bad = false;
+    let mut missing = false;
+    for (k, &i) in num_ix.iter().enumerate() {
+        let cell = &record[i];
+        let parsed = parse_number(cell);
+        match parsed {
+            Cell::Value(v) => values[k] = v,
+            Cell::Missing => missing = true,
+            Cell::Invalid => {
+                bad = true;
+                let text = String::from_utf8_lossy(cell);
+                problems.push(
+                    line,
+                    &headers[i],
+                    cell,
+                    format!(
+                        "{}; fix the cell, or empty it to leave this row out",
+                        invalid_hint(&text)
+                    ),
+                );
+            }
+        }
+    }
+    if site.is_empty() {
+        if num_ix.iter().all(|&i| record[i].trim_ascii().is_empty())
+            && record.iter().all(|f| f.trim_ascii().is_empty())
+        {
+            return RowCheck::Blank;
+        }
+        problems.push(
+            line,
+            &headers[site_ix],
+            site,
+            "the site id is missing; give every row its site id, or delete the row".into(),
+        );
+        return RowCheck::Problem;
+    }
+    if std::str::from_utf8(site).is_err() {
+        problems.push(
+            line,
+            &headers[site_ix],
+            site,
+            "the site id is not valid UTF-8; save the file as UTF-8".into(),
+        );
+        return RowCheck::Problem;
+    }
+    if bad {
+        RowCheck::Problem
+    } else if missing {
+        RowCheck::Missing
+    } else {
+        RowCheck::Usable
+    }
+}
 
 /// Reads CSV rows from `input` and hands each usable row to `row` as
 /// (line, site id bytes, numeric values in `cols.numeric` order).
@@ -125,115 +328,22 @@ pub fn for_each_row<R: Read>(
     cols: &RowColumns,
     mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
 ) -> Result<PassSummary> {
-    let fmt = |message: String| Error::Format {
-        source_name: source.to_string(),
-        message,
-    };
-    let io = |e: std::io::Error| Error::Io {
-        path: source.to_string(),
-        action: "reading",
-        source: e,
-    };
-    let mut buffered = BufReader::with_capacity(1 << 16, input);
-    let head = buffered.fill_buf().map_err(io)?;
-    let bom = head.starts_with(b"\xEF\xBB\xBF");
-    if bom {
-        buffered.consume(3);
-    }
-    let head = buffered.fill_buf().map_err(io)?;
-    if head.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(fmt(
-            "the file is empty; it needs a header row and one row per participant".into(),
-        ));
-    }
-    let delimiter = detect_delimiter(head);
-    let counter = BreakCounter {
-        inner: buffered,
-        offset: 0,
-        breaks: VecDeque::new(),
-        line: 1,
-    };
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(true)
-        .flexible(true)
-        .buffer_capacity(1 << 16)
-        .from_reader(counter);
-    let header_record = reader
-        .byte_headers()
-        .map_err(|e| fmt(format!("the header row cannot be read: {e}")))?
-        .clone();
-    let mut headers = Vec::with_capacity(header_record.len());
-    for (i, field) in header_record.iter().enumerate() {
-        let text = std::str::from_utf8(field).map_err(|_| {
-            fmt(format!(
-                "header field {} is not valid UTF-8; save the file as UTF-8",
-                i + 1
-            ))
-        })?;
-        headers.push(text.trim().to_string());
-    }
-    let locate = |wanted: &str, flag: &str| -> Result<usize> {
-        let i = find_header(&headers, wanted).ok_or_else(|| Error::MissingColumn {
-            source_name: source.to_string(),
-            column: wanted.to_string(),
-            purpose: flag.to_string(),
-            available: headers.join(", "),
-            hint: format!("Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."),
-        })?;
-        let dup = headers.iter().filter(|h| **h == headers[i]).count();
-        if dup > 1 {
-            return Err(fmt(format!(
-                "the header has {dup} columns named '{}'; rename them so each is unique",
-                headers[i]
-            )));
-        }
-        Ok(i)
-    };
-    let site_ix = locate(&cols.site, "--site")?;
+    let (mut reader, delimiter) = open(source, input)?;
+    let headers = read_headers(source, &mut reader)?;
+    let site_ix = locate(source, &headers, &cols.site, "--site")?;
     let mut num_ix = Vec::with_capacity(cols.numeric.len());
     for (h, flag) in &cols.numeric {
-        num_ix.push(locate(h, flag)?);
+        num_ix.push(locate(source, &headers, h, flag)?);
     }
     let mut summary = PassSummary {
         delimiter,
         ..PassSummary::default()
     };
     let mut problems = Problems::default();
-    let problem = |p: &mut Problems, line: u64, column: &str, value: &[u8], message: String| {
-        p.total += 1;
-        if p.list.len() < CellProblems::MAX_LISTED {
-            let text = String::from_utf8_lossy(value);
-            let value: String = text.trim().chars().take(40).collect();
-            p.list.push(CellProblem {
-                line,
-                column: column.to_string(),
-                value,
-                message,
-            });
-        }
-    };
     let mut record = csv::ByteRecord::new();
     let mut values = vec![0.0; num_ix.len()];
     let width = headers.len();
-    loop {
-        match reader.read_byte_record(&mut record) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => {
-                let line = match e.position() {
-                    Some(p) => reader.get_mut().line_at(p.byte()),
-                    None => 0,
-                };
-                if let csv::ErrorKind::Io(_) = e.kind() {
-                    let csv::ErrorKind::Io(inner) = e.into_kind() else {
-                        unreachable!("matched above")
-                    };
-                    return Err(io(inner));
-                }
-                return Err(fmt(format!("line {line} cannot be read as CSV: {e}")));
-            }
-        }
+    while next_record(source, &mut reader, &mut record)? {
         let line = match record.position() {
             Some(p) => reader.get_mut().line_at(p.byte()),
             None => 0,
@@ -246,78 +356,42 @@ pub fn for_each_row<R: Read>(
                 summary.blank_rows += 1;
                 continue;
             }
-            return Err(fmt(format!(
-                "line {line} has {} fields but the header has {width}; check for a missing value \
-                 or an unquoted '{}' inside a value",
-                record.len(),
-                delimiter as char
-            )));
+            return Err(format_error(
+                source,
+                format!(
+                    "line {line} has {} fields but the header has {width}; check for a missing \
+                     value or an unquoted '{}' inside a value",
+                    record.len(),
+                    delimiter as char
+                ),
+            ));
         }
         summary.rows += 1;
-        let site = record[site_ix].trim_ascii();
-        let mut bad = false;
-        let mut missing = false;
-        for (k, &i) in num_ix.iter().enumerate() {
-            let cell = &record[i];
-            let parsed = parse_number(cell);
-            match parsed {
-                Cell::Value(v) => values[k] = v,
-                Cell::Missing => missing = true,
-                Cell::Invalid => {
-                    bad = true;
-                    let text = String::from_utf8_lossy(cell);
-                    problem(
-                        &mut problems,
-                        line,
-                        &headers[i],
-                        cell,
-                        format!(
-                            "{}; fix the cell, or empty it to leave this row out",
-                            invalid_hint(&text)
-                        ),
-                    );
-                }
-            }
-        }
-        if site.is_empty() {
-            if num_ix.iter().all(|&i| record[i].trim_ascii().is_empty())
-                && record.iter().all(|f| f.trim_ascii().is_empty())
-            {
+        let check = check_row(
+            &record,
+            line,
+            (site_ix, &num_ix),
+            &headers,
+            &mut values,
+            &mut problems,
+        );
+        match check {
+            RowCheck::Blank => {
                 summary.rows -= 1;
                 summary.blank_rows += 1;
-                continue;
             }
-            problem(
-                &mut problems,
-                line,
-                &headers[site_ix],
-                site,
-                "the site id is missing; give every row its site id, or delete the row".into(),
-            );
-            continue;
-        }
-        if std::str::from_utf8(site).is_err() {
-            problem(
-                &mut problems,
-                line,
-                &headers[site_ix],
-                site,
-                "the site id is not valid UTF-8; save the file as UTF-8".into(),
-            );
-            continue;
-        }
-        if bad {
-            continue;
-        }
-        if missing {
-            summary.missing_rows += 1;
-            if summary.missing_lines.len() < MISSING_LINES_KEPT {
-                summary.missing_lines.push(line);
+            RowCheck::Problem => {}
+            RowCheck::Missing => {
+                summary.missing_rows += 1;
+                if summary.missing_lines.len() < MISSING_LINES_KEPT {
+                    summary.missing_lines.push(line);
+                }
             }
-            continue;
-        }
-        if problems.total == 0 {
-            row(line, site, &values)?;
+            RowCheck::Usable => {
+                if problems.total == 0 {
+                    row(line, record[site_ix].trim_ascii(), &values)?;
+                }
+            }
         }
     }
     if problems.total > 0 {
@@ -328,8 +402,9 @@ pub fn for_each_row<R: Read>(
         }));
     }
     if summary.rows == 0 {
-        return Err(fmt(
-            "the file has a header row but no data rows; add one row per participant".into(),
+        return Err(format_error(
+            source,
+            "the file has a header row but no data rows; add one row per participant",
         ));
     }
     Ok(summary)

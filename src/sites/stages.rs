@@ -38,7 +38,7 @@ pub fn run(
     options: FitOptions,
     characteristics: &[ModeratorSpec],
 ) -> Result<TwoStage> {
-    let bytes = super::effects_bytes(report);
+    let bytes = crate::render::sites_effects::bytes(report);
     let source = "<site effects>";
     let fit = |measure: Measure,
                cols: BTreeMap<String, String>,

@@ -11,6 +11,7 @@ mod axis;
 pub mod bubble;
 pub mod forest;
 pub mod funnel;
+pub mod power;
 mod regions;
 pub mod scene;
 

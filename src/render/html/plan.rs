@@ -4,8 +4,8 @@
 use super::page::{esc, Page, Provenance};
 use super::reproduce;
 use super::section::{always, body, PlanCtx, Section};
-use crate::plan::report::PlanReport;
 use crate::render::figure::PageFigure;
+use crate::result::plan::{PlanReport, PlanTest};
 use crate::support::format::{self as fmt, num};
 
 /// The sections of the page, in order.
@@ -185,9 +185,9 @@ fn curve(page: &mut Page, cx: &PlanCtx) {
 }
 
 /// The moderator test in words.
-fn test_words(t: crate::plan::PlanTest) -> &'static str {
+fn test_words(t: PlanTest) -> &'static str {
     match t {
-        crate::plan::PlanTest::Z => "Wald z test",
-        crate::plan::PlanTest::Kh => "Knapp–Hartung t test",
+        PlanTest::Z => "Wald z test",
+        PlanTest::Kh => "Knapp–Hartung t test",
     }
 }

@@ -4,8 +4,8 @@
 //! and what each page's sections are given.
 
 use super::page::{esc, Page, Provenance};
-use crate::plan::report::PlanReport;
 use crate::render::figure::PageFigure;
+use crate::result::plan::PlanReport;
 use crate::result::{FitReport, SitesReport};
 use crate::support::format as fmt;
 use std::fmt::Write as _;

@@ -1,0 +1,130 @@
+//! The result of `pondus plan`: plain `Serialize` structs (their field docs
+//! are the JSON schema) that the terminal text, the HTML page and the power
+//! curve read.
+
+use serde::Serialize;
+
+/// The test of the moderator coefficient.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum PlanTest {
+    /// Wald z test with τ² taken as known: power from the noncentral chi-square.
+    Z,
+    /// Knapp–Hartung t test after REML: power by simulation.
+    Kh,
+}
+
+/// One row of the power table.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PowerRow {
+    /// Number of sites.
+    pub k: usize,
+    /// Power from the closed form: exact for `z`, the noncentral F
+    /// approximation for `kh` (see `table_method`).
+    pub power: f64,
+}
+
+/// The result of a power simulation.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Simulated {
+    /// Share of the usable simulated data sets with p < α.
+    pub power: f64,
+    /// Monte-Carlo standard error √(p(1 − p)/N), N the usable data sets.
+    pub monte_carlo_se: f64,
+    /// Data sets simulated.
+    pub simulations: usize,
+    /// Data sets whose fit did not give a p-value (left out of the share).
+    pub failed_fits: usize,
+    /// The seed.
+    pub seed: u64,
+}
+
+/// The simulated check of the k proposed by the noncentral F approximation.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SimulatedK {
+    /// Smallest k whose simulated power reached the target among those
+    /// simulated (null when none did within the bound).
+    pub k: Option<usize>,
+    /// Whether k − 1 was also simulated and fell short, or k = 3, the
+    /// smallest k allowed (so k is the crossing point, up to Monte-Carlo
+    /// error).
+    pub bracketed: bool,
+    /// Every simulated k and its power, in the order simulated.
+    pub evaluated: Vec<KPower>,
+    /// The most values of k that may be simulated.
+    pub max_evaluations: usize,
+}
+
+/// One simulated k.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct KPower {
+    /// Number of sites.
+    pub k: usize,
+    /// Simulated power.
+    pub power: f64,
+    /// Its Monte-Carlo SE.
+    pub monte_carlo_se: f64,
+}
+
+/// The answer of `pondus plan`.
+#[derive(Debug, Clone, Serialize)]
+pub struct PlanReport {
+    /// Measure (`r`, `smd`, `slope`, `effect`).
+    pub measure: &'static str,
+    /// Planned number of sites.
+    pub k: usize,
+    /// Planned participants per site (null for slope and effect, and when `n_sites` is given).
+    pub n: Option<f64>,
+    /// Planned participants of each site when they differ (repeated in order up to k).
+    pub n_sites: Option<Vec<f64>>,
+    /// Planned within-site sampling variance on the analysis scale (the mean over sites when n differs).
+    pub within_variance: f64,
+    /// Assumed residual between-site variance τ².
+    pub tau2: f64,
+    /// The moderator's planned design in words.
+    pub moderator: String,
+    /// The moderator coefficient to detect (analysis scale).
+    pub moderator_effect: f64,
+    /// Two-sided significance level.
+    pub alpha: f64,
+    /// `z` or `kh`.
+    pub test: PlanTest,
+    /// Standard error of the moderator coefficient, 1/√Σw(x − x̄_w)² (τ² known).
+    pub se: f64,
+    /// Noncentrality λ = β²Σw(x − x̄_w)².
+    pub noncentrality: f64,
+    /// Power at the planned k: exact noncentral chi-square for `z`, simulated for `kh`.
+    pub power: f64,
+    /// How `power` was obtained.
+    pub power_method: String,
+    /// The analytic power at the planned k: noncentral chi-square for `z`,
+    /// the noncentral F approximation for `kh` (null when not computable).
+    pub power_analytic: Option<f64>,
+    /// How `power_analytic` was obtained.
+    pub power_analytic_method: String,
+    /// The simulation at the planned k (realised rejection rate, Monte-Carlo
+    /// SE, seed, failures): always for `kh`, with `--simulate` for `z`.
+    pub simulation: Option<Simulated>,
+    /// For `kh`: the noncentral F approximation at the planned k (a quick estimate only).
+    pub power_f_approximation: Option<f64>,
+    /// The target power, when given.
+    pub target_power: Option<f64>,
+    /// Smallest k reaching the target power (null when none up to `max_k`, or with `--solve n`):
+    /// from the closed form (exact for `z`, the noncentral F approximation for `kh`).
+    pub k_needed: Option<usize>,
+    /// For `kh` with `--target-power` (solving for k): the k needed
+    /// confirmed by simulation, starting from `k_needed`.
+    pub k_needed_simulated: Option<SimulatedK>,
+    /// Smallest per-site n reaching the target power at the planned k (`--solve n`).
+    pub n_needed: Option<f64>,
+    /// Largest k searched.
+    pub max_k: usize,
+    /// The power over k.
+    pub table: Vec<PowerRow>,
+    /// How the table's power was obtained.
+    pub table_method: String,
+    /// Things the planner should know (a target that cannot be reached, ...).
+    pub notes: Vec<String>,
+    /// What the numbers rest on.
+    pub cautions: Vec<String>,
+}
