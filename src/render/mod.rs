@@ -8,7 +8,9 @@
 //! - [`json`] and the per-study CSV ([`table`]);
 //! - the self-contained HTML pages ([`html`], one file per group of sections);
 //! - the plots as SVG or PNG ([`figure`]);
-//! - the terminal summary of `pondus sites` ([`sites`]).
+//! - the terminal summary of `pondus plan` ([`plan`]);
+//! - the terminal summary of `pondus sites` ([`sites`]) and its per-site
+//!   effects file ([`sites_effects`]).
 
 pub mod diagnostics;
 pub mod figure;
