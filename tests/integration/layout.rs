@@ -45,6 +45,9 @@ const SIDEWAYS: &[(&str, &str)] = &[
     ("diagnose", "model"),
     // The second stage of `pondus sites` is a `pondus fit`.
     ("sites", "fit"),
+    // The query computes the per-site moments that `pondus sites --moments`
+    // reads back, in the layout of variables the sites job defines.
+    ("sql", "sites"),
 ];
 
 /// Longest source file, in lines.
