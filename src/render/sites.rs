@@ -1,5 +1,5 @@
 //! The terminal summary of `pondus sites`: a pure function of the
-//! [`SitesReport`](crate::result::SitesReport).
+//! [`SitesReport`].
 
 use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
 use crate::support::format::{self as fmt, num};
