@@ -1,6 +1,7 @@
 //! The shape of the code, checked: the layers import only downwards, no
 //! source file is over 800 lines, no function over 150, and the library
-//! uses nothing of the command line (clap, indicatif, anyhow).
+//! uses nothing of the command line (clap, indicatif, anyhow), and every
+//! file opens with a module doc.
 //!
 //! The layers, top to bottom (docs/architecture.md draws them):
 //! `cli → fit/sites/plan/sql → diagnose/model/render → result →
@@ -338,5 +339,19 @@ fn the_library_uses_nothing_of_the_command_line() {
             .unwrap()
             .contains("mod cli"),
         "the library must not declare the cli module"
+    );
+}
+
+#[test]
+fn every_source_file_says_what_it_is_for() {
+    let bare: Vec<String> = sources()
+        .iter()
+        .filter(|(_, text)| !text.trim_start().starts_with("//!"))
+        .map(|(rel, _)| format!("src/{rel}"))
+        .collect();
+    assert!(
+        bare.is_empty(),
+        "files without a module doc (//!):\n{}",
+        bare.join("\n")
     );
 }
