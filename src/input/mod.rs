@@ -325,16 +325,7 @@ fn match_requests(
     for req in requests {
         match find_header(headers, &req.header) {
             Some(i) => {
-                let dup = headers.iter().filter(|h| **h == headers[i]).count();
-                if dup > 1 {
-                    return Err(format_error(
-                        source,
-                        format!(
-                            "the header has {dup} columns named '{}'; rename them so each is unique",
-                            headers[i]
-                        ),
-                    ));
-                }
+                check_unique(source, headers, i)?;
                 indices.push(Some(i));
             }
             None if req.required => {
@@ -350,6 +341,24 @@ fn match_requests(
         }
     }
     Ok(indices)
+}
+
+/// Refuses a header name that stands more than once in the header row.
+///
+/// # Errors
+/// [`Error::Format`] naming the column and the fix.
+pub(crate) fn check_unique(source: &str, headers: &[String], i: usize) -> Result<()> {
+    let dup = headers.iter().filter(|h| **h == headers[i]).count();
+    if dup > 1 {
+        return Err(format_error(
+            source,
+            format!(
+                "the header has {dup} columns named '{}'; rename them so each is unique",
+                headers[i]
+            ),
+        ));
+    }
+    Ok(())
 }
 
 /// Line numbers from byte offsets. The csv crate's own line count skips

@@ -2,7 +2,7 @@
 //! `--permutations`, `--small-study`, `--cumulative-by`), rendered from the
 //! public result only.
 
-use super::text::{clip, lpad, pad, width, wrap, MAX_LISTED_STUDIES};
+use super::layout::{clip, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, FitReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -11,8 +11,8 @@ fn label_width(labels: impl Iterator<Item = usize>) -> usize {
     labels.max().unwrap_or(5).clamp(5, 28)
 }
 
-/// Appends the diagnostic sections that are present in the report.
-pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
+/// Leave-one-out (`--loo`): the model refitted without each study.
+pub fn leave_one_out(r: &FitReport, _: &Ctx, o: &mut String) {
     let alpha = 1.0 - r.model.level;
     let has_mods = r.model.terms.len() > 1;
     if let Some(loo) = &r.leave_one_out {
@@ -103,6 +103,10 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
         ));
         let _ = writeln!(o);
     }
+}
+
+/// The influence measures of each study (`--influence`).
+pub fn influence(r: &FitReport, _: &Ctx, o: &mut String) {
     if let (Some(inf), Some(cut)) = (&r.influence, &r.influence_cutoffs) {
         let _ = writeln!(o, "Influence of each study (Viechtbauer & Cheung 2010)");
         let list_all = inf.len() <= MAX_LISTED_STUDIES;
@@ -174,6 +178,10 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
         ));
         let _ = writeln!(o);
     }
+}
+
+/// The permutation test of the moderators (`--permutations`).
+pub fn permutation(r: &FitReport, _: &Ctx, o: &mut String) {
     if let Some(p) = &r.permutation {
         let how = if p.exact {
             format!(
@@ -238,6 +246,11 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
         ));
         let _ = writeln!(o);
     }
+}
+
+/// The small-study tests and trim-and-fill (`--small-study`).
+pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     if let Some(s) = &r.small_study {
         let _ = writeln!(o, "Small-study effects");
         let a = &s.asymmetry_test;
@@ -295,6 +308,11 @@ pub fn render(r: &FitReport, level_pct: &str, o: &mut String) {
         }
         let _ = writeln!(o);
     }
+}
+
+/// The cumulative meta-analysis (`--cumulative-by`).
+pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     if let (Some(steps), Some(ord)) = (&r.cumulative, &r.cumulative_order) {
         let _ = writeln!(
             o,

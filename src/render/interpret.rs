@@ -1,18 +1,10 @@
 //! The terminal sections of `--probe`, `--compare-levels`, `--regions` and
 //! the artifact corrections (part of the text report; pure function of the result).
 
+use super::layout::{pad_apart as pad, wrap, Ctx, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, ContrastTest, FitReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
-
-fn pad(s: &str, w: usize) -> String {
-    let n = s.chars().count();
-    if n >= w {
-        format!("{s} ")
-    } else {
-        format!("{s}{}", " ".repeat(w - n))
-    }
-}
 
 fn at(v: &AtValue) -> String {
     match v {
@@ -29,13 +21,8 @@ fn test_text(t: &ContrastTest) -> String {
     format!("{stat}, p {}", fmt::p(t.test.p))
 }
 
-/// The interpretation and artifact sections (empty when none was asked for).
-pub fn render(r: &FitReport) -> String {
-    let mut o = String::new();
-    let lv = format!("{}%", (r.model.level * 100.0 * 1e6).round() / 1e6);
-    let it = &r.interpretation;
-    let reading = r.measure.reading_name.as_deref();
-
+/// The artifact corrections of `r-corrected`, study by study.
+pub fn artifacts(r: &FitReport, _: &Ctx, o: &mut String) {
     if let Some(a) = &r.artifacts {
         let _ = writeln!(
             o,
@@ -44,7 +31,7 @@ pub fn render(r: &FitReport) -> String {
         for c in &a.corrections {
             let _ = writeln!(o, "  - {c}");
         }
-        o.push_str(&super::text::wrap(&a.method, "  ", 70));
+        o.push_str(&wrap(&a.method, "  ", 70));
         let _ = writeln!(
             o,
             "  mean r over the studies (unweighted): observed {}, corrected {}",
@@ -58,7 +45,7 @@ pub fn render(r: &FitReport) -> String {
             pad("observed r", 12),
             pad("corrected r", 13)
         );
-        for s in a.studies.iter().take(super::text::MAX_LISTED_STUDIES) {
+        for s in a.studies.iter().take(MAX_LISTED_STUDIES) {
             let label: String = s.study.chars().take(26).collect();
             let _ = writeln!(
                 o,
@@ -71,7 +58,12 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
+}
 
+/// The mean effect at chosen moderator values (`--probe`).
+pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let (it, lv) = (&r.interpretation, &cx.level_pct);
+    let reading = r.measure.reading_name.as_deref();
     if !it.conditional_effects.is_empty() {
         let _ = writeln!(
             o,
@@ -125,7 +117,11 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
+}
 
+/// The slope of each partner of a product term at the probed values.
+pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let (it, lv) = (&r.interpretation, &cx.level_pct);
     if !it.simple_slopes.is_empty() {
         let _ = writeln!(
             o,
@@ -156,7 +152,11 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
+}
 
+/// Differences between levels (`--compare-levels`).
+pub fn level_contrasts(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let (it, lv) = (&r.interpretation, &cx.level_pct);
     if !it.level_contrasts.is_empty() {
         let _ = writeln!(
             o,
@@ -182,7 +182,11 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
+}
 
+/// The Johnson–Neyman regions of significance (`--regions`).
+pub fn regions(r: &FitReport, _: &Ctx, o: &mut String) {
+    let it = &r.interpretation;
     if !it.regions_of_significance.is_empty() {
         let _ = writeln!(o, "Regions of significance (Johnson–Neyman)");
         for g in &it.regions_of_significance {
@@ -226,14 +230,18 @@ pub fn render(r: &FitReport) -> String {
                     )
                 }
             );
-            o.push_str(&super::text::wrap(&g.words, "    ", 68));
+            o.push_str(&wrap(&g.words, "    ", 68));
             if !g.held.is_empty() {
                 let _ = writeln!(o, "    held: {}", g.held);
             }
         }
         let _ = writeln!(o);
     }
+}
 
+/// The average and τ² without and with the moderators.
+pub fn picture(r: &FitReport, _: &Ctx, o: &mut String) {
+    let it = &r.interpretation;
     if let Some(p) = &it.picture {
         let _ = writeln!(o, "How the picture changes");
         let _ = writeln!(
@@ -267,8 +275,7 @@ pub fn render(r: &FitReport) -> String {
             pad(&num(p.tau2_without), 32),
             num(p.tau2_with)
         );
-        o.push_str(&super::text::wrap(&p.words, "  ", 70));
+        o.push_str(&wrap(&p.words, "  ", 70));
         let _ = writeln!(o);
     }
-    o
 }

@@ -2,16 +2,16 @@
 //! their share of the total variance, the likelihood-ratio tests, the level
 //! of each moderator, and the cluster-robust coefficients.
 
-use super::text::{lpad, pad, wrap};
+use super::layout::{lpad, pad, wrap, Ctx};
 use crate::result::{ClusterLevel, FitReport};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write;
 
-/// The section (empty without `--cluster`).
-pub fn render(r: &FitReport, level_pct: &str) -> String {
-    let mut o = String::new();
+/// The section (nothing without `--cluster`).
+pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     let Some(c) = &r.clustering else {
-        return o;
+        return;
     };
     let _ = writeln!(
         o,
@@ -116,5 +116,4 @@ pub fn render(r: &FitReport, level_pct: &str) -> String {
         }
     }
     let _ = writeln!(o);
-    o
 }

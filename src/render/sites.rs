@@ -1,5 +1,5 @@
 //! The terminal summary of `pondus sites`: a pure function of the
-//! [`SitesReport`](crate::result::SitesReport).
+//! [`SitesReport`].
 
 use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
 use crate::support::format::{self as fmt, num};
@@ -70,7 +70,7 @@ pub fn render(r: &SitesReport) -> String {
     if !r.notes.is_empty() {
         let _ = writeln!(o);
         for n in &r.notes {
-            o.push_str(&super::text::wrap(n, "  ", 88));
+            o.push_str(&super::layout::wrap(n, "  ", 88));
         }
     }
     if let Some(st) = &r.stages {
@@ -267,7 +267,7 @@ fn stages(o: &mut String, r: &SitesReport, st: &TwoStage) {
     if !st.answers.is_empty() {
         let _ = writeln!(o, "\nWhich answer is which:");
         for a in &st.answers {
-            o.push_str(&super::text::wrap(a, "  ", 88));
+            o.push_str(&super::layout::wrap(a, "  ", 88));
         }
     }
     if let Some(f) = &st.characteristics {
@@ -276,6 +276,6 @@ fn stages(o: &mut String, r: &SitesReport, st: &TwoStage) {
     }
     let _ = writeln!(o, "\nCautions:");
     for c in &st.cautions {
-        o.push_str(&super::text::wrap(&format!("- {c}"), "  ", 88));
+        o.push_str(&super::layout::wrap(&format!("- {c}"), "  ", 88));
     }
 }

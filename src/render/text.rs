@@ -1,63 +1,12 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
+use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
+use super::{diagnostics, interpret, multilevel};
 use crate::effect::Measure;
-use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, Reading};
+use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 use std::io::Write;
-
-/// Studies listed one by one in the terminal at most; above this, `--table` has them.
-pub const MAX_LISTED_STUDIES: usize = 40;
-
-pub(super) fn width(s: &str) -> usize {
-    s.chars().count()
-}
-
-pub(super) fn pad(s: &str, w: usize) -> String {
-    let n = width(s);
-    if n >= w {
-        s.to_string()
-    } else {
-        format!("{s}{}", " ".repeat(w - n))
-    }
-}
-
-pub(super) fn lpad(s: &str, w: usize) -> String {
-    let n = width(s);
-    if n >= w {
-        s.to_string()
-    } else {
-        format!("{}{s}", " ".repeat(w - n))
-    }
-}
-
-pub(super) fn clip(s: &str, w: usize) -> String {
-    if width(s) <= w {
-        s.to_string()
-    } else {
-        let t: String = s.chars().take(w.saturating_sub(1)).collect();
-        format!("{t}…")
-    }
-}
-
-pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
-    let mut out = String::new();
-    let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
-            let _ = writeln!(out, "{indent}{line}");
-            line.clear();
-        }
-        if !line.is_empty() {
-            line.push(' ');
-        }
-        line.push_str(word);
-    }
-    if !line.is_empty() {
-        let _ = writeln!(out, "{indent}{line}");
-    }
-    out
-}
 
 fn reading_line(r: &Reading, name: &str) -> String {
     format!(
@@ -96,13 +45,53 @@ fn at_text(at: &std::collections::BTreeMap<String, AtValue>) -> String {
         .join(", ")
 }
 
+/// The sections of the terminal report, in order; each writes nothing when
+/// the report does not carry it.
+const SECTIONS: &[Section] = &[
+    header,
+    moderator_answer,
+    coefficients,
+    heterogeneity,
+    multilevel::dependent_effects,
+    average,
+    predictions,
+    studies,
+    left_out,
+    interpret::artifacts,
+    interpret::conditional_effects,
+    interpret::simple_slopes,
+    interpret::level_contrasts,
+    interpret::regions,
+    interpret::picture,
+    diagnostics::leave_one_out,
+    diagnostics::influence,
+    diagnostics::permutation,
+    diagnostics::small_study,
+    diagnostics::cumulative,
+    messages,
+];
+
 /// Renders the report as text.
 pub fn render(r: &FitReport) -> String {
+    let cx = Ctx::of(r);
     let mut o = String::new();
-    let level_pct = format!("{}%", (r.model.level * 100.0 * 1e6).round() / 1e6);
+    for section in SECTIONS {
+        section(r, &cx, &mut o);
+    }
+    // Padding of the last column leaves trailing blanks: drop them.
+    let mut out = String::with_capacity(o.len());
+    for line in o.lines() {
+        out.push_str(line.trim_end());
+        out.push('\n');
+    }
+    out
+}
+
+/// The title and the facts: data, effects, studies, model and moderators.
+fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     let rule = "─".repeat(72);
-    let has_mods = !r.model.moderators.is_empty();
-    let title = if has_mods {
+    let title = if cx.has_mods {
         "random-effects meta-regression"
     } else {
         "random-effects meta-analysis"
@@ -134,20 +123,20 @@ pub fn render(r: &FitReport) -> String {
         "Model       τ² by {}; {}; {level_pct} intervals",
         r.model.tau2_description, r.model.inference_description
     );
-    if has_mods {
+    if cx.has_mods {
         let mods: Vec<String> = r
             .model
             .moderators
             .iter()
             .map(|m| match &m.kind {
-                crate::model::design::ModeratorKind::Numeric { centered, .. } => {
+                ModeratorKind::Numeric { centered, .. } => {
                     format!(
                         "{} (numeric{})",
                         m.name,
                         if *centered { ", centred" } else { "" }
                     )
                 }
-                crate::model::design::ModeratorKind::Categorical {
+                ModeratorKind::Categorical {
                     levels, reference, ..
                 } => format!(
                     "{} ({} levels, reference {})",
@@ -163,13 +152,20 @@ pub fn render(r: &FitReport) -> String {
         }
     }
     let _ = writeln!(o);
+}
 
+/// The answer of the omnibus moderator test in words.
+fn moderator_answer(r: &FitReport, _: &Ctx, o: &mut String) {
     if let Some(t) = &r.moderator_test {
         let _ = writeln!(o, "Does the effect change with the moderators?");
         o.push_str(&wrap(&t.answer, "  ", 70));
         let _ = writeln!(o);
     }
+}
 
+/// The coefficient table, with the ratio column for ratio measures.
+fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     let scale = match &r.measure.reading_name {
         Some(_)
             if matches!(
@@ -255,12 +251,16 @@ pub fn render(r: &FitReport) -> String {
         ));
     }
     let _ = writeln!(o);
+}
 
+/// τ², τ, I², Q and, with moderators, the share of τ² they explain.
+fn heterogeneity(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let level_pct = &cx.level_pct;
     let h = &r.heterogeneity;
     let _ = writeln!(
         o,
         "{}",
-        if has_mods {
+        if cx.has_mods {
             "Heterogeneity left after the moderators"
         } else {
             "Heterogeneity"
@@ -290,7 +290,7 @@ pub fn render(r: &FitReport) -> String {
         h.df,
         fmt::p(h.p)
     );
-    if has_mods {
+    if cx.has_mods {
         match h.r2 {
             Some(r2) => {
                 let _ = writeln!(
@@ -309,107 +309,123 @@ pub fn render(r: &FitReport) -> String {
         }
     }
     let _ = writeln!(o);
-    o.push_str(&super::multilevel::render(r, &level_pct));
+}
 
+/// The average effect of the same estimator without moderators.
+fn average(r: &FitReport, cx: &Ctx, o: &mut String) {
     let _ = writeln!(
         o,
         "{}",
-        if has_mods {
+        if cx.has_mods {
             "Average effect (same estimator, no moderators)"
         } else {
             "Average effect"
         }
     );
     estimate_lines(
-        &mut o,
+        o,
         &r.average,
-        &level_pct,
+        &cx.level_pct,
         r.measure.reading_name.as_deref(),
     );
     let _ = writeln!(o);
+}
 
-    if !r.predictions.is_empty() {
-        let _ = writeln!(o, "Predicted effects");
-        for p in &r.predictions {
-            let _ = writeln!(o, "  at {}:", at_text(&p.at));
-            let _ = writeln!(
-                o,
-                "    {}  ({level_pct} CI {}, SE {}); new study {}",
-                num(p.mean.estimate),
-                fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
-                num(p.mean.se),
-                fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
-            );
-            if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
-                let _ = writeln!(o, "    {}", reading_line(rd, name));
-            }
-        }
-        let _ = writeln!(o);
+/// The predicted effects at the requested moderator values (`--predict`).
+fn predictions(r: &FitReport, cx: &Ctx, o: &mut String) {
+    if r.predictions.is_empty() {
+        return;
     }
-
-    if r.studies.len() <= MAX_LISTED_STUDIES {
-        let _ = writeln!(o, "Studies");
-        let lw = r
-            .studies
-            .iter()
-            .map(|s| width(&s.study))
-            .max()
-            .unwrap_or(5)
-            .clamp(5, 30);
+    let level_pct = &cx.level_pct;
+    let _ = writeln!(o, "Predicted effects");
+    for p in &r.predictions {
+        let _ = writeln!(o, "  at {}:", at_text(&p.at));
         let _ = writeln!(
             o,
-            "  {}  {}  {}  {}  {}",
-            pad("study", lw),
-            lpad("effect", 10),
-            lpad("variance", 10),
-            lpad("weight", 7),
-            lpad("std. resid.", 11)
+            "    {}  ({level_pct} CI {}, SE {}); new study {}",
+            num(p.mean.estimate),
+            fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
+            num(p.mean.se),
+            fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
         );
-        for s in &r.studies {
-            let _ = writeln!(
-                o,
-                "  {}  {}  {}  {}  {}{}",
-                pad(&clip(&s.study, lw), lw),
-                lpad(&num(s.effect), 10),
-                lpad(&num(s.variance), 10),
-                lpad(&format!("{:.1}%", s.weight), 7),
-                lpad(
-                    &s.std_residual
-                        .map(|x| format!("{x:.2}"))
-                        .unwrap_or("—".into()),
-                    11
-                ),
-                if s.note.is_some() { "  *" } else { "" }
-            );
+        if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
+            let _ = writeln!(o, "    {}", reading_line(rd, name));
         }
-        if r.studies.iter().any(|s| s.note.is_some()) {
-            let _ = writeln!(o, "  * adjusted, see the notes");
-        }
-        let _ = writeln!(o);
-    } else {
+    }
+    let _ = writeln!(o);
+}
+
+/// The studies one per line (up to [`MAX_LISTED_STUDIES`]).
+fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
+    if r.studies.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(
             o,
             "Studies: {} used; write them all with --table FILE.csv\n",
             r.studies.len()
         );
+        return;
     }
+    let _ = writeln!(o, "Studies");
+    let lw = r
+        .studies
+        .iter()
+        .map(|s| width(&s.study))
+        .max()
+        .unwrap_or(5)
+        .clamp(5, 30);
+    let _ = writeln!(
+        o,
+        "  {}  {}  {}  {}  {}",
+        pad("study", lw),
+        lpad("effect", 10),
+        lpad("variance", 10),
+        lpad("weight", 7),
+        lpad("std. resid.", 11)
+    );
+    for s in &r.studies {
+        let _ = writeln!(
+            o,
+            "  {}  {}  {}  {}  {}{}",
+            pad(&clip(&s.study, lw), lw),
+            lpad(&num(s.effect), 10),
+            lpad(&num(s.variance), 10),
+            lpad(&format!("{:.1}%", s.weight), 7),
+            lpad(
+                &s.std_residual
+                    .map(|x| format!("{x:.2}"))
+                    .unwrap_or("—".into()),
+                11
+            ),
+            if s.note.is_some() { "  *" } else { "" }
+        );
+    }
+    if r.studies.iter().any(|s| s.note.is_some()) {
+        let _ = writeln!(o, "  * adjusted, see the notes");
+    }
+    let _ = writeln!(o);
+}
 
-    if !r.excluded.is_empty() {
-        let _ = writeln!(o, "Left out");
-        for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
-            let _ = writeln!(o, "  line {}  {}: {}", e.line, e.study, e.reason);
-        }
-        if r.excluded.len() > MAX_LISTED_STUDIES {
-            let _ = writeln!(
-                o,
-                "  ... and {} more (all are in --table and --json)",
-                r.excluded.len() - MAX_LISTED_STUDIES
-            );
-        }
-        let _ = writeln!(o);
+/// The rows left out of the model, with the reason.
+fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
+    if r.excluded.is_empty() {
+        return;
     }
-    o.push_str(&super::interpret::render(r));
-    super::diagnostics::render(r, &level_pct, &mut o);
+    let _ = writeln!(o, "Left out");
+    for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
+        let _ = writeln!(o, "  line {}  {}: {}", e.line, e.study, e.reason);
+    }
+    if r.excluded.len() > MAX_LISTED_STUDIES {
+        let _ = writeln!(
+            o,
+            "  ... and {} more (all are in --table and --json)",
+            r.excluded.len() - MAX_LISTED_STUDIES
+        );
+    }
+    let _ = writeln!(o);
+}
+
+/// Warnings, notes and cautions, each as a bulleted list.
+fn messages(r: &FitReport, _: &Ctx, o: &mut String) {
     for (title, items) in [
         ("Warnings", &r.warnings),
         ("Notes", &r.notes),
@@ -426,13 +442,6 @@ pub fn render(r: &FitReport) -> String {
         }
         let _ = writeln!(o);
     }
-    // Padding of the last column leaves trailing blanks: drop them.
-    let mut out = String::with_capacity(o.len());
-    for line in o.lines() {
-        out.push_str(line.trim_end());
-        out.push('\n');
-    }
-    out
 }
 
 /// Writes the text report.

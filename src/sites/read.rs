@@ -3,8 +3,8 @@
 
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::input::{check_unique, format_error, read_headers};
 use crate::input::{detect_delimiter, find_header};
-use crate::input::{format_error, read_headers};
 use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
@@ -189,16 +189,7 @@ fn locate(source: &str, headers: &[String], wanted: &str, flag: Flag) -> Result<
             "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
         ),
     })?;
-    let dup = headers.iter().filter(|h| **h == headers[i]).count();
-    if dup > 1 {
-        return Err(format_error(
-            source,
-            format!(
-                "the header has {dup} columns named '{}'; rename them so each is unique",
-                headers[i]
-            ),
-        ));
-    }
+    check_unique(source, headers, i)?;
     Ok(i)
 }
 

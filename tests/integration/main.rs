@@ -8,6 +8,7 @@ mod diagnose;
 mod fuzz_corpus;
 mod golden;
 mod interpret;
+mod layout;
 mod multilevel;
 mod plan;
 mod plots;

@@ -4,13 +4,13 @@
 //! categorical moderator: the studies of each level side by side, with the
 //! level's predicted effect, its confidence interval and prediction interval.
 
-use super::forest::{effect_axis_title, wrap};
 use super::palette::*;
-use super::{decimals_for, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use super::{
+    decimals_for, effect_axis_title, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene,
+};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
-use crate::model::design::ModeratorKind;
-use crate::result::{AtValue, FitReport};
+use crate::result::{AtValue, CurvePoint, FitReport, ModeratorKind};
 use crate::support::format as fmt;
 
 /// Builds the bubble plot.
@@ -19,6 +19,51 @@ use crate::support::format as fmt;
 /// [`Error::Usage`] naming `--bubble` when the model has no moderator, or
 /// `--bubble-x` when it names none of the model's moderators.
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
+    let j = moderator(report, opts)?;
+    let width = f64::from(opts.width.unwrap_or(900));
+    let height = f64::from(opts.height.unwrap_or(620));
+    let name = &report.model.moderators[j].name;
+
+    // Caption first: its height fixes the plot area.
+    let margin = 18.0;
+    let cap_lines: Vec<String> = caption(report, j)
+        .iter()
+        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .collect();
+    let top = 92.0;
+    let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
+    if height - top - bottom < 120.0 {
+        return Err(Error::usage(
+            "--height",
+            format!(
+                "{height} pixels leave no room for the bubble plot; use at least {:.0}",
+                top + bottom + 120.0
+            ),
+        ));
+    }
+    let (xa, ya) = (x_axis(report, j), y_axis(report, j));
+    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, false);
+    let mut sc = Scene::new(width as u32, height as u32);
+    super::heading(&mut sc, report, &format!("Effect by {name}"), width, margin);
+    f.grid(&mut sc);
+    if (f.ya.lo..=f.ya.hi).contains(&0.0) {
+        let y = f.y(0.0);
+        sc.dashed(vec![(f.x0, y), (f.x1, y)], GUIDE, 1, (4.0, 4.0));
+    }
+    let bubbles = Bubbles::new(report, j, f);
+    match &report.model.moderators[j].kind {
+        ModeratorKind::Numeric { .. } => bubbles.along_numbers(&mut sc),
+        ModeratorKind::Categorical { levels, .. } => bubbles.by_level(&mut sc, levels),
+    }
+    let f = &bubbles.f;
+    f.axes(&mut sc, name, &effect_axis_title(report));
+    super::caption(&mut sc, &cap_lines, margin, f.y1 + 64.0);
+    Ok(sc)
+}
+
+/// The moderator on the x axis: `--bubble-x`, else the first numeric one,
+/// else the first.
+fn moderator(report: &FitReport, opts: &PlotOptions) -> Result<usize> {
     let mods = &report.model.moderators;
     if mods.is_empty() {
         return Err(Error::usage(
@@ -27,7 +72,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
              --moderator NAME (a numeric one for a fitted line)",
         ));
     }
-    let j = match &opts.bubble_x {
+    Ok(match &opts.bubble_x {
         Some(name) => mods.iter().position(|m| &m.name == name).ok_or_else(|| {
             Error::usage(
                 "--bubble-x",
@@ -44,18 +89,16 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             .iter()
             .position(|m| matches!(m.kind, ModeratorKind::Numeric { .. }))
             .unwrap_or(0),
-    };
-    let scale = report.measure.reading_scale;
-    let tp = |y: f64| Axis::to_plot(scale, y);
-    let width = f64::from(opts.width.unwrap_or(900));
-    let height = f64::from(opts.height.unwrap_or(620));
-    let name = &mods[j].name;
-    let studies = &report.studies;
-    let lv = fmt::level_pct(report.model.level);
+    })
+}
 
-    // Caption first: its height fixes the plot area.
+/// The caption's sentences (before wrapping).
+fn caption(report: &FitReport, j: usize) -> Vec<String> {
+    let m = &report.model.moderators[j];
+    let name = &m.name;
+    let lv = fmt::level_pct(report.model.level);
     let mut caption = Vec::new();
-    let numeric = matches!(mods[j].kind, ModeratorKind::Numeric { .. });
+    let numeric = matches!(m.kind, ModeratorKind::Numeric { .. });
     let curve = report.curves.iter().find(|c| &c.moderator == name);
     let held = if numeric {
         curve.map(|c| c.held.clone()).unwrap_or_default()
@@ -112,24 +155,20 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         );
     }
     caption.push(model_line(report));
-    let margin = 18.0;
-    let cap_lines: Vec<String> = caption
-        .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
-        .collect();
-    let top = 92.0;
-    let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
-    if height - top - bottom < 120.0 {
-        return Err(Error::usage(
-            "--height",
-            format!(
-                "{height} pixels leave no room for the bubble plot; use at least {:.0}",
-                top + bottom + 120.0
-            ),
-        ));
-    }
+    caption
+}
 
-    // y range in plot space.
+/// The y axis (plot space): the studies, the prediction band or intervals, and 0.
+fn y_axis(report: &FitReport, j: usize) -> Axis {
+    let scale = report.measure.reading_scale;
+    let tp = |y: f64| Axis::to_plot(scale, y);
+    let studies = &report.studies;
+    let name = &report.model.moderators[j].name;
+    let numeric = matches!(
+        report.model.moderators[j].kind,
+        ModeratorKind::Numeric { .. }
+    );
+    let curve = report.curves.iter().find(|c| &c.moderator == name);
     let mut ys: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
     ys.push(0.0);
     if numeric {
@@ -154,75 +193,109 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         lo = lo.max(-1.0);
         hi = hi.min(1.0);
     }
-    let ya = Axis::new(lo, hi, scale == ReadingScale::Ratio, 7).snapped();
-    let levels: Vec<String> = match &mods[j].kind {
-        ModeratorKind::Categorical { levels, .. } => levels.clone(),
-        ModeratorKind::Numeric { .. } => Vec::new(),
-    };
-    let xa = match &mods[j].kind {
+    Axis::new(lo, hi, scale == ReadingScale::Ratio, 7).snapped()
+}
+
+/// The x axis: the moderator's range, or one band per level.
+fn x_axis(report: &FitReport, j: usize) -> Axis {
+    match &report.model.moderators[j].kind {
         ModeratorKind::Numeric { min, max, .. } => {
             let pad = 0.04 * (max - min);
             Axis::new(min - pad, max + pad, false, 8).snapped()
         }
-        ModeratorKind::Categorical { .. } => Axis {
+        ModeratorKind::Categorical { levels, .. } => Axis {
             lo: -0.5,
             hi: levels.len() as f64 - 0.5,
             ticks: Vec::new(),
         },
-    };
-    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, false);
-    let mut sc = Scene::new(width as u32, height as u32);
-    super::heading(&mut sc, report, &format!("Effect by {name}"), width, margin);
-    f.grid(&mut sc);
-    if (f.ya.lo..=f.ya.hi).contains(&0.0) {
-        let y = f.y(0.0);
-        sc.dashed(vec![(f.x0, y), (f.x1, y)], GUIDE, 1, (4.0, 4.0));
+    }
+}
+
+/// The studies' bubbles in a frame, and what drawing them needs.
+struct Bubbles<'a> {
+    report: &'a FitReport,
+    /// The moderator on the x axis.
+    j: usize,
+    f: Frame,
+    /// The largest bubble's radius.
+    r_max: f64,
+    /// The largest study weight.
+    w_max: f64,
+    /// Study indices, heaviest first (largest bubbles first, so small ones stay visible on top).
+    by_weight: Vec<usize>,
+}
+
+impl<'a> Bubbles<'a> {
+    fn new(report: &'a FitReport, j: usize, f: Frame) -> Bubbles<'a> {
+        let studies = &report.studies;
+        let w_max = studies.iter().map(|s| s.weight).fold(0.0, f64::max);
+        let r_max = ((f.y1 - f.y0).min(f.x1 - f.x0) * 0.045).clamp(8.0, 30.0);
+        let mut by_weight: Vec<usize> = (0..studies.len()).collect();
+        by_weight.sort_by(|&a, &b| studies[b].weight.total_cmp(&studies[a].weight));
+        Bubbles {
+            report,
+            j,
+            f,
+            r_max,
+            w_max,
+            by_weight,
+        }
     }
 
-    let w_max = studies.iter().map(|s| s.weight).fold(0.0, f64::max);
-    let r_max = ((f.y1 - f.y0).min(f.x1 - f.x0) * 0.045).clamp(8.0, 30.0);
-    let radius = |w: f64| (r_max * (w / w_max).sqrt()).max(2.0);
-    // Largest bubbles first, so small ones stay visible on top.
-    let mut by_weight: Vec<usize> = (0..studies.len()).collect();
-    by_weight.sort_by(|&a, &b| studies[b].weight.total_cmp(&studies[a].weight));
-    let y_in = |v: f64| v.clamp(f.ya.lo, f.ya.hi);
+    /// An analysis-scale value in plot space.
+    fn tp(&self, y: f64) -> f64 {
+        Axis::to_plot(self.report.measure.reading_scale, y)
+    }
 
-    if numeric {
-        super::regions::shade(&mut sc, &f, report, name);
+    /// Pixel row of an analysis-scale value, clamped to the frame.
+    fn row(&self, y: f64) -> f64 {
+        self.f.y(self.tp(y).clamp(self.f.ya.lo, self.f.ya.hi))
+    }
+
+    /// A bubble's radius: area proportional to the weight.
+    fn radius(&self, w: f64) -> f64 {
+        (self.r_max * (w / self.w_max).sqrt()).max(2.0)
+    }
+
+    /// A numeric moderator: the region of significance, the confidence
+    /// band, the prediction band, the bubbles and the fitted line.
+    fn along_numbers(&self, sc: &mut Scene) {
+        let (report, f, j) = (self.report, &self.f, self.j);
+        let name = &report.model.moderators[j].name;
+        let studies = &report.studies;
+        let curve = report.curves.iter().find(|c| &c.moderator == name);
+        super::regions::shade(sc, f, report, name);
         if let Some(c) = curve {
             let upper: Vec<(f64, f64)> = c
                 .points
                 .iter()
-                .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci.ci_high)))))
+                .map(|p| (f.x(p.x), self.row(p.ci.ci_high)))
                 .collect();
             let mut band = upper.clone();
             band.extend(
                 c.points
                     .iter()
                     .rev()
-                    .map(|p| (f.x(p.x), f.y(y_in(tp(p.ci.ci_low))))),
+                    .map(|p| (f.x(p.x), self.row(p.ci.ci_low))),
             );
             sc.poly(band, Some((FIT, 0.2)), None);
-            for pick in [
-                |p: &crate::result::CurvePoint| p.pi.pi_low,
-                |p: &crate::result::CurvePoint| p.pi.pi_high,
-            ] {
+            for pick in [|p: &CurvePoint| p.pi.pi_low, |p: &CurvePoint| p.pi.pi_high] {
                 let line: Vec<(f64, f64)> = c
                     .points
                     .iter()
-                    .map(|p| (f.x(p.x), f.y(y_in(tp(pick(p))))))
+                    .map(|p| (f.x(p.x), self.row(pick(p))))
                     .collect();
                 sc.dashed(line, PREDICT, 2, (8.0, 5.0));
             }
         }
-        for &i in &by_weight {
+        for &i in &self.by_weight {
             let s = &studies[i];
             let AtValue::Number(x) = s.moderators[j] else {
                 continue;
             };
             sc.circle(
-                (f.x(x), f.y(y_in(tp(s.effect)))),
-                radius(s.weight),
+                (f.x(x), self.row(s.effect)),
+                self.radius(s.weight),
                 Some((STUDY, 0.35)),
                 Some((STUDY, 1)),
             );
@@ -231,16 +304,24 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             let line: Vec<(f64, f64)> = c
                 .points
                 .iter()
-                .map(|p| (f.x(p.x), f.y(y_in(tp(p.estimate)))))
+                .map(|p| (f.x(p.x), self.row(p.estimate)))
                 .collect();
             sc.line(line, FIT, 3);
         }
-    } else {
+    }
+
+    /// A categorical moderator: each level's bubbles side by side, with the
+    /// level's predicted effect, confidence and prediction interval.
+    fn by_level(&self, sc: &mut Scene, levels: &[String]) {
+        let (report, f, j) = (self.report, &self.f, self.j);
+        let name = &report.model.moderators[j].name;
+        let studies = &report.studies;
         let group = report.subgroups.iter().find(|g| &g.moderator == name);
         let band_w = (f.x(1.0) - f.x(0.0)).abs();
         for (l, level) in levels.iter().enumerate() {
             let cx = f.x(l as f64);
-            let members: Vec<usize> = by_weight
+            let members: Vec<usize> = self
+                .by_weight
                 .iter()
                 .copied()
                 .filter(|&i| matches!(&studies[i].moderators[j], AtValue::Level(v) if v == level))
@@ -250,8 +331,8 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                 // Deterministic spread: golden-ratio offsets in the left part of the band.
                 let off = ((n as f64 * 0.618_034).fract() - 0.5) * 0.34 * band_w;
                 sc.circle(
-                    (cx - 0.12 * band_w + off, f.y(y_in(tp(s.effect)))),
-                    radius(s.weight),
+                    (cx - 0.12 * band_w + off, self.row(s.effect)),
+                    self.radius(s.weight),
                     Some((STUDY, 0.35)),
                     Some((STUDY, 1)),
                 );
@@ -267,17 +348,11 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             if let Some(lvl) = group.and_then(|g| g.levels.iter().find(|x| &x.level == level)) {
                 let p = &lvl.predicted;
                 let x = cx + 0.24 * band_w;
-                let (pl, ph) = (
-                    f.y(y_in(tp(p.mean.pi.pi_low))),
-                    f.y(y_in(tp(p.mean.pi.pi_high))),
-                );
+                let (pl, ph) = (self.row(p.mean.pi.pi_low), self.row(p.mean.pi.pi_high));
                 sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
                 sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);
                 sc.line(vec![(x + 5.0, ph), (x + 15.0, ph)], PREDICT, 2);
-                let (cl, ch) = (
-                    f.y(y_in(tp(p.mean.ci.ci_low))),
-                    f.y(y_in(tp(p.mean.ci.ci_high))),
-                );
+                let (cl, ch) = (self.row(p.mean.ci.ci_low), self.row(p.mean.ci.ci_high));
                 sc.line(
                     vec![
                         (x - 5.0, cl),
@@ -290,7 +365,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
                     FIT,
                     3,
                 );
-                let y = f.y(y_in(tp(p.mean.estimate)));
+                let y = self.row(p.mean.estimate);
                 sc.poly(
                     vec![(x - 8.0, y), (x, y - 8.0), (x + 8.0, y), (x, y + 8.0)],
                     Some((FIT, 1.0)),
@@ -299,11 +374,4 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             }
         }
     }
-    f.axes(&mut sc, name, &effect_axis_title(report));
-    let mut cy = f.y1 + 64.0;
-    for line in cap_lines {
-        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
-        cy += 17.0;
-    }
-    Ok(sc)
 }

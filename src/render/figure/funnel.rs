@@ -3,9 +3,8 @@
 //! pseudo-confidence region around the estimate (around 0 for residuals),
 //! and optional significance contours around no effect.
 
-use super::forest::wrap;
 use super::palette::*;
-use super::{measure_name, model_line, size, Align, Axis, Frame, PlotOptions, Scene};
+use super::{measure_name, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::Result;
 use crate::result::FitReport;
@@ -19,55 +18,145 @@ const CONTOURS: [(f64, RGBColor, &str); 3] = [
     (0.01, RGBColor(0x9A, 0xA1, 0xAC), "p < 0.01"),
 ];
 
+/// What the funnel shows: each study's effect (or residual) and standard
+/// error, the studies filled in by trim-and-fill, and the centre.
+struct Funnel {
+    /// Residuals (the model has moderators) instead of effects.
+    residuals: bool,
+    /// The x axis is a ratio on a log axis.
+    ratio_axis: bool,
+    /// The normal quantile of the confidence level.
+    z: f64,
+    /// The centre of the region: the average, or 0 for residuals.
+    centre: f64,
+    /// Each study's x value.
+    xs: Vec<f64>,
+    /// Each study's standard error.
+    ses: Vec<f64>,
+    /// Studies filled in by trim-and-fill: x and standard error.
+    filled: Vec<(f64, f64)>,
+}
+
+impl Funnel {
+    fn of(report: &FitReport) -> Funnel {
+        let residuals = !report.model.moderators.is_empty();
+        let studies = &report.studies;
+        let xs: Vec<f64> = studies
+            .iter()
+            .map(|s| if residuals { s.residual } else { s.effect })
+            .collect();
+        let ses: Vec<f64> = studies.iter().map(|s| s.variance.sqrt()).collect();
+        // Studies filled in by trim-and-fill (`--small-study`), drawn only on a
+        // funnel of effects: trim-and-fill works on the model without moderators.
+        let filled: Vec<(f64, f64)> = match (&report.small_study, residuals) {
+            (Some(s), false) => s
+                .trim_fill
+                .filled_studies
+                .iter()
+                .map(|f| (f.effect, f.variance.sqrt()))
+                .collect(),
+            _ => Vec::new(),
+        };
+        Funnel {
+            residuals,
+            ratio_axis: report.measure.reading_scale == ReadingScale::Ratio && !residuals,
+            z: crate::dist::normal_quantile(1.0 - (1.0 - report.model.level) / 2.0),
+            centre: if residuals {
+                0.0
+            } else {
+                report.average.mean.estimate
+            },
+            xs,
+            ses,
+            filled,
+        }
+    }
+}
+
 /// Builds the funnel plot.
 ///
 /// # Errors
 /// None at present beyond the shared drawing errors; the signature matches the other plots.
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
-    let residuals = !report.model.moderators.is_empty();
-    let scale = report.measure.reading_scale;
-    let ratio_axis = scale == ReadingScale::Ratio && !residuals;
+    let fu = Funnel::of(report);
+    let (residuals, ratio_axis, z, centre) = (fu.residuals, fu.ratio_axis, fu.z, fu.centre);
     let width = f64::from(opts.width.unwrap_or(820));
     let height = f64::from(opts.height.unwrap_or(640));
-    let studies = &report.studies;
-    let lv = fmt::level_pct(report.model.level);
-    let z = crate::dist::normal_quantile(1.0 - (1.0 - report.model.level) / 2.0);
-    let centre = if residuals {
-        0.0
-    } else {
-        report.average.mean.estimate
-    };
-    let xs: Vec<f64> = studies
+    let margin = 18.0;
+    let cap_lines: Vec<String> = caption(report, opts, &fu)
         .iter()
-        .map(|s| if residuals { s.residual } else { s.effect })
+        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
         .collect();
-    let ses: Vec<f64> = studies.iter().map(|s| s.variance.sqrt()).collect();
-    // Studies filled in by trim-and-fill (`--small-study`), drawn only on a
-    // funnel of effects: trim-and-fill works on the model without moderators.
-    let filled: Vec<(f64, f64)> = match (&report.small_study, residuals) {
-        (Some(s), false) => s
-            .trim_fill
-            .filled_studies
-            .iter()
-            .map(|f| (f.effect, f.variance.sqrt()))
-            .collect(),
-        _ => Vec::new(),
-    };
-    let se_max = ses.iter().copied().fold(0.0, f64::max) * 1.08;
 
-    let analysed = match scale {
+    // x range: the studies, the region at the largest SE, and 0.
+    let se_max = fu.ses.iter().copied().fold(0.0, f64::max) * 1.08;
+    let ya = Axis::new(0.0, se_max, false, 6).snapped();
+    let se_bottom = ya.hi;
+    let all_x = || fu.xs.iter().copied().chain(fu.filled.iter().map(|f| f.0));
+    let mut lo = all_x().fold(f64::INFINITY, f64::min);
+    let mut hi = all_x().fold(f64::NEG_INFINITY, f64::max);
+    lo = lo.min(centre - z * se_bottom).min(0.0);
+    hi = hi.max(centre + z * se_bottom).max(0.0);
+    let pad = 0.04 * (hi - lo).max(1e-6);
+    let xa = Axis::new(lo - pad, hi + pad, ratio_axis, 8).snapped();
+    let top = 92.0;
+    let legend_h = if opts.contours { 24.0 } else { 0.0 };
+    let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
+    if height - top - bottom < 120.0 {
+        return Err(crate::error::Error::usage(
+            "--height",
+            format!(
+                "{height} pixels leave no room for the funnel plot; use at least {:.0}",
+                top + bottom + 120.0
+            ),
+        ));
+    }
+    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, true);
+    let mut sc = Scene::new(width as u32, height as u32);
+    let title = if residuals {
+        "Residuals against their standard error"
+    } else {
+        "Effects against their standard error"
+    };
+    super::heading(&mut sc, report, title, width, margin);
+    if opts.contours {
+        contours(&mut sc, &f);
+    } else {
+        f.grid(&mut sc);
+    }
+    region(&mut sc, &f, &fu, opts.contours);
+    points(&mut sc, &f, &fu);
+    f.axes(&mut sc, &x_title(report, &fu), "standard error");
+    let mut cy = f.y1 + 64.0;
+    if opts.contours {
+        legend(&mut sc, margin, cy);
+        cy += legend_h;
+    }
+    super::caption(&mut sc, &cap_lines, margin, cy);
+    Ok(sc)
+}
+
+/// The x axis title: the analysed effect, or its residual.
+fn x_title(report: &FitReport, fu: &Funnel) -> String {
+    let (residuals, ratio_axis) = (fu.residuals, fu.ratio_axis);
+    let analysed = match report.measure.reading_scale {
         ReadingScale::Ratio => format!("log {}", measure_name(report)),
         ReadingScale::Correlation => format!("Fisher's z of {}", measure_name(report)),
         ReadingScale::Same => measure_name(report),
     };
-    let x_title = if residuals {
+    if residuals {
         format!("residual ({analysed}, effect minus the model's fitted value)")
     } else if ratio_axis {
         format!("{} (log scale)", measure_name(report))
     } else {
         analysed.clone()
-    };
+    }
+}
 
+/// The caption's sentences (before wrapping).
+fn caption(report: &FitReport, opts: &PlotOptions, fu: &Funnel) -> Vec<String> {
+    let (residuals, ratio_axis, z) = (fu.residuals, fu.ratio_axis, fu.z);
+    let lv = fmt::level_pct(report.model.level);
     let mut caption = vec![if residuals {
         format!(
             "● study residual; the model has moderators, so the funnel is centred on 0 (the fitted \
@@ -115,86 +204,57 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             .into(),
     );
     caption.push(model_line(report));
-    let margin = 18.0;
-    let cap_lines: Vec<String> = caption
-        .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
-        .collect();
+    caption
+}
 
-    // x range: the studies, the region at the largest SE, and 0.
-    let ya = Axis::new(0.0, se_max, false, 6).snapped();
-    let se_bottom = ya.hi;
-    let all_x = || xs.iter().copied().chain(filled.iter().map(|f| f.0));
-    let mut lo = all_x().fold(f64::INFINITY, f64::min);
-    let mut hi = all_x().fold(f64::NEG_INFINITY, f64::max);
-    lo = lo.min(centre - z * se_bottom).min(0.0);
-    hi = hi.max(centre + z * se_bottom).max(0.0);
-    let pad = 0.04 * (hi - lo).max(1e-6);
-    let xa = Axis::new(lo - pad, hi + pad, ratio_axis, 8).snapped();
-    let top = 92.0;
-    let legend_h = if opts.contours { 24.0 } else { 0.0 };
-    let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
-    if height - top - bottom < 120.0 {
-        return Err(crate::error::Error::usage(
-            "--height",
-            format!(
-                "{height} pixels leave no room for the funnel plot; use at least {:.0}",
-                top + bottom + 120.0
-            ),
-        ));
-    }
-    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, true);
-    let mut sc = Scene::new(width as u32, height as u32);
-    let title = if residuals {
-        "Residuals against their standard error"
-    } else {
-        "Effects against their standard error"
-    };
-    super::heading(&mut sc, report, title, width, margin);
-    let clamp_x = |x: f64| x.clamp(f.xa.lo, f.xa.hi);
+/// The significance contours around no effect, as filled bands.
+fn contours(sc: &mut Scene, f: &Frame) {
     let (top_se, bottom_se) = (f.ya.lo, f.ya.hi);
-
-    if opts.contours {
-        // Each band: |x| between z_outer·se and z_inner·se on each side, as polygons.
-        let zs: Vec<f64> = CONTOURS
-            .iter()
-            .map(|(p, _, _)| crate::dist::normal_quantile(1.0 - p / 2.0))
-            .collect();
-        for (c, (_, fill, _)) in CONTOURS.iter().enumerate() {
-            let inner = zs[c];
-            let outer = zs.get(c + 1).copied();
-            for sign in [-1.0, 1.0] {
-                let lim = if sign < 0.0 { f.xa.lo } else { f.xa.hi };
-                // An edge x = sign·zq·se from the top to the bottom of the
-                // frame, bent along the frame's side where it leaves it.
-                let edge = |zq: Option<f64>| -> Vec<(f64, f64)> {
-                    match zq {
-                        None => vec![(lim, top_se), (lim, bottom_se)],
-                        Some(zq) => {
-                            let x_bottom = sign * zq * bottom_se;
-                            if x_bottom.abs() <= lim.abs() {
-                                vec![(0.0, top_se), (x_bottom, bottom_se)]
-                            } else {
-                                let se_hit = lim.abs() / zq;
-                                vec![(0.0, top_se), (lim, se_hit), (lim, bottom_se)]
-                            }
+    // Each band: |x| between z_outer·se and z_inner·se on each side, as polygons.
+    let zs: Vec<f64> = CONTOURS
+        .iter()
+        .map(|(p, _, _)| crate::dist::normal_quantile(1.0 - p / 2.0))
+        .collect();
+    for (c, (_, fill, _)) in CONTOURS.iter().enumerate() {
+        let inner = zs[c];
+        let outer = zs.get(c + 1).copied();
+        for sign in [-1.0, 1.0] {
+            let lim = if sign < 0.0 { f.xa.lo } else { f.xa.hi };
+            // An edge x = sign·zq·se from the top to the bottom of the
+            // frame, bent along the frame's side where it leaves it.
+            let edge = |zq: Option<f64>| -> Vec<(f64, f64)> {
+                match zq {
+                    None => vec![(lim, top_se), (lim, bottom_se)],
+                    Some(zq) => {
+                        let x_bottom = sign * zq * bottom_se;
+                        if x_bottom.abs() <= lim.abs() {
+                            vec![(0.0, top_se), (x_bottom, bottom_se)]
+                        } else {
+                            let se_hit = lim.abs() / zq;
+                            vec![(0.0, top_se), (lim, se_hit), (lim, bottom_se)]
                         }
                     }
-                };
-                let mut pts = edge(Some(inner));
-                pts.extend(edge(outer).into_iter().rev());
-                let pts = pts.into_iter().map(|(x, se)| (f.x(x), f.y(se))).collect();
-                sc.poly(pts, Some((*fill, 1.0)), None);
-            }
+                }
+            };
+            let mut pts = edge(Some(inner));
+            pts.extend(edge(outer).into_iter().rev());
+            let pts = pts.into_iter().map(|(x, se)| (f.x(x), f.y(se))).collect();
+            sc.poly(pts, Some((*fill, 1.0)), None);
         }
-    } else {
-        f.grid(&mut sc);
     }
+}
+
+/// The pseudo-confidence region, the line at the centre and the dotted
+/// line at no effect.
+fn region(sc: &mut Scene, f: &Frame, fu: &Funnel, contours: bool) {
+    let (residuals, z, centre) = (fu.residuals, fu.z, fu.centre);
+    let clamp_x = |x: f64| x.clamp(f.xa.lo, f.xa.hi);
+    let (top_se, bottom_se) = (f.ya.lo, f.ya.hi);
     // Pseudo-confidence region.
     let apex = (f.x(clamp_x(centre)), f.y(top_se));
     let left = (f.x(clamp_x(centre - z * bottom_se)), f.y(bottom_se));
     let right = (f.x(clamp_x(centre + z * bottom_se)), f.y(bottom_se));
-    if !opts.contours {
+    if !contours {
         sc.poly(vec![apex, left, right], Some((BAND, 1.0)), None);
     }
     sc.dashed(vec![left, apex, right], INK, 1, (6.0, 4.0));
@@ -211,7 +271,12 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             (2.0, 3.0),
         );
     }
-    for (x, se) in xs.iter().zip(&ses) {
+}
+
+/// The studies (filled discs) and the filled-in studies (open circles).
+fn points(sc: &mut Scene, f: &Frame, fu: &Funnel) {
+    let clamp_x = |x: f64| x.clamp(f.xa.lo, f.xa.hi);
+    for (x, se) in fu.xs.iter().zip(&fu.ses) {
         sc.circle(
             (f.x(clamp_x(*x)), f.y(*se)),
             4.5,
@@ -219,7 +284,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             Some((PAPER, 1)),
         );
     }
-    for (x, se) in &filled {
+    for (x, se) in &fu.filled {
         sc.circle(
             (f.x(clamp_x(*x)), f.y(*se)),
             4.5,
@@ -227,31 +292,25 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             Some((STUDY, 2)),
         );
     }
-    f.axes(&mut sc, &x_title, "standard error");
-    let mut cy = f.y1 + 64.0;
-    if opts.contours {
-        let mut x = margin;
-        for (_, fill, label) in CONTOURS {
-            sc.rect(x, cy - 7.0, x + 22.0, cy + 7.0, fill);
-            sc.poly(
-                vec![
-                    (x, cy - 7.0),
-                    (x + 22.0, cy - 7.0),
-                    (x + 22.0, cy + 7.0),
-                    (x, cy + 7.0),
-                ],
-                None,
-                Some((MUTED, 1)),
-            );
-            sc.text((x + 28.0, cy), label, size::SMALL, INK, Align::Left);
-            x += 40.0 + super::scene::text_width(label, size::SMALL);
-        }
-        sc.text((x, cy), "white: p ≥ 0.10", size::SMALL, INK, Align::Left);
-        cy += legend_h;
+}
+
+/// The legend of the contours: one swatch and p-value range per band.
+fn legend(sc: &mut Scene, margin: f64, cy: f64) {
+    let mut x = margin;
+    for (_, fill, label) in CONTOURS {
+        sc.rect(x, cy - 7.0, x + 22.0, cy + 7.0, fill);
+        sc.poly(
+            vec![
+                (x, cy - 7.0),
+                (x + 22.0, cy - 7.0),
+                (x + 22.0, cy + 7.0),
+                (x, cy + 7.0),
+            ],
+            None,
+            Some((MUTED, 1)),
+        );
+        sc.text((x + 28.0, cy), label, size::SMALL, INK, Align::Left);
+        x += 40.0 + super::scene::text_width(label, size::SMALL);
     }
-    for line in cap_lines {
-        sc.text((margin, cy), line, size::SMALL, MUTED, Align::Left);
-        cy += 17.0;
-    }
-    Ok(sc)
+    sc.text((x, cy), "white: p ≥ 0.10", size::SMALL, INK, Align::Left);
 }

@@ -388,7 +388,7 @@ pub(crate) fn encode_inline(scene: &Scene) -> Result<String> {
 }
 
 /// The bundled font as a CSS `@font-face` rule (TTF inline, base64), for a
-/// page that embeds several pictures drawn by [`encode_inline`].
+/// page that embeds several pictures drawn by `encode_inline`.
 pub fn font_face_css() -> String {
     format!(
         "@font-face{{font-family:\"DejaVu Sans\";src:url(data:font/ttf;base64,{}) format(\"truetype\");}}",

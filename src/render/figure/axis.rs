@@ -1,0 +1,280 @@
+//! Value axes (a range in plot space with nicely spaced ticks, linear or
+//! logarithmic) and the rectangular frame of a chart with its grid, axis
+//! lines, tick labels and titles.
+
+use super::palette;
+use super::scene::{self, Align, Scene};
+use super::size;
+use crate::effect::ReadingScale;
+use crate::support::format as fmt;
+
+/// A value axis: a data range in plot space and its ticks.
+#[derive(Debug, Clone)]
+pub(crate) struct Axis {
+    /// Lower end (plot space).
+    pub lo: f64,
+    /// Upper end.
+    pub hi: f64,
+    /// Ticks: position in plot space and label.
+    pub ticks: Vec<(f64, String)>,
+}
+
+impl Axis {
+    /// Maps an analysis-scale value to plot space: tanh for correlations,
+    /// unchanged otherwise (ratios stay logs on a log axis).
+    pub fn to_plot(scale: ReadingScale, y: f64) -> f64 {
+        match scale {
+            ReadingScale::Correlation => y.tanh(),
+            _ => y,
+        }
+    }
+
+    /// An axis covering `lo..hi` (plot space) with about `target` ticks.
+    pub fn new(lo: f64, hi: f64, log: bool, target: usize) -> Axis {
+        let (mut lo, mut hi) = if lo.is_finite() && hi.is_finite() {
+            (lo.min(hi), lo.max(hi))
+        } else {
+            (-1.0, 1.0)
+        };
+        if hi - lo < 1e-12 {
+            let pad = if lo.abs() > 0.0 { lo.abs() * 0.1 } else { 0.1 };
+            lo -= pad;
+            hi += pad;
+        }
+        let ticks = if log {
+            log_ticks(lo, hi, target)
+        } else {
+            linear_ticks(lo, hi, target)
+        };
+        Axis { lo, hi, ticks }
+    }
+
+    /// Extends the range to its outer ticks (only when they are close).
+    pub fn snapped(mut self) -> Axis {
+        if let (Some(first), Some(last)) = (self.ticks.first(), self.ticks.last()) {
+            let span = self.hi - self.lo;
+            if first.0 < self.lo && self.lo - first.0 < 0.15 * span {
+                self.lo = first.0;
+            }
+            if last.0 - self.hi > 0.0 && last.0 - self.hi < 0.15 * span {
+                self.hi = last.0;
+            }
+        }
+        let (lo, hi) = (self.lo - 1e-9, self.hi + 1e-9);
+        self.ticks.retain(|t| t.0 >= lo && t.0 <= hi);
+        self
+    }
+}
+
+fn nice_step(span: f64, target: usize) -> f64 {
+    let raw = span / target.max(1) as f64;
+    let mag = 10f64.powf(raw.log10().floor());
+    let f = raw / mag;
+    let nice = if f < 1.5 {
+        1.0
+    } else if f < 3.0 {
+        2.0
+    } else if f < 7.0 {
+        5.0
+    } else {
+        10.0
+    };
+    nice * mag
+}
+
+fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
+    let step = nice_step(hi - lo, target);
+    let decimals = (-(step.log10().floor())).max(0.0) as usize;
+    let first = (lo / step).floor() as i64;
+    let last = (hi / step).ceil() as i64;
+    (first..=last)
+        .map(|i| {
+            let x = i as f64 * step;
+            (x, fmt::plot_num(x, decimals))
+        })
+        .collect()
+}
+
+/// Ticks on a log axis at 1, 2, 5 × powers of ten (or only powers of ten
+/// for wide ranges), labelled with the ratio itself.
+fn log_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
+    let decades = (hi - lo) / std::f64::consts::LN_10;
+    let mantissas: &[f64] = if decades > 4.0 {
+        &[1.0]
+    } else if decades > 2.5 {
+        &[1.0, 3.0]
+    } else if decades > 0.6 {
+        &[1.0, 2.0, 5.0]
+    } else {
+        &[1.0, 1.25, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0]
+    };
+    let mut out = Vec::new();
+    let e0 = (lo / std::f64::consts::LN_10).floor() as i32 - 1;
+    let e1 = (hi / std::f64::consts::LN_10).ceil() as i32 + 1;
+    for e in e0..=e1 {
+        for m in mantissas {
+            let v = m * 10f64.powi(e);
+            let x = v.ln();
+            let decimals = if v >= 1.0 {
+                if (v - v.round()).abs() < 1e-9 {
+                    0
+                } else {
+                    2
+                }
+            } else {
+                (-(v.log10().floor()) as usize) + usize::from(m.fract() != 0.0)
+            };
+            let label = format!("{v:.decimals$}");
+            out.push((x, label));
+        }
+    }
+    out.sort_by(|a, b| a.0.total_cmp(&b.0));
+    // Thin to about the target count, always keeping 1.
+    // Ticks just beyond the ends are kept too, so that `snapped` can extend to them.
+    let reach = 0.15 * (hi - lo);
+    let inside: Vec<(f64, String)> = out
+        .into_iter()
+        .filter(|t| t.0 >= lo - reach && t.0 <= hi + reach)
+        .collect();
+    if inside.len() <= target + 2 {
+        return inside;
+    }
+    let keep = inside.len().div_ceil(target);
+    inside
+        .into_iter()
+        .enumerate()
+        .filter(|(i, t)| i % keep == 0 || t.0.abs() < 1e-12)
+        .map(|(_, t)| t)
+        .collect()
+}
+
+/// A rectangular chart area with an x and a y axis.
+pub(crate) struct Frame {
+    /// Left edge in pixels.
+    pub x0: f64,
+    /// Top edge.
+    pub y0: f64,
+    /// Right edge.
+    pub x1: f64,
+    /// Bottom edge.
+    pub y1: f64,
+    /// Horizontal axis.
+    pub xa: Axis,
+    /// Vertical axis.
+    pub ya: Axis,
+    /// Whether the y axis grows downwards (the funnel plot's standard error).
+    pub y_down: bool,
+}
+
+impl Frame {
+    /// The plot area of a page `width` × `height` pixels: `margin` at the
+    /// sides, `top` and `bottom` reserved (title, axis title, caption), and
+    /// room on the left for the widest y tick label.
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn in_page(
+        width: f64,
+        height: f64,
+        margin: f64,
+        top: f64,
+        bottom: f64,
+        xa: Axis,
+        ya: Axis,
+        y_down: bool,
+    ) -> Frame {
+        let y_label_w = ya
+            .ticks
+            .iter()
+            .map(|t| scene::text_width(&t.1, size::SMALL))
+            .fold(0.0, f64::max);
+        Frame {
+            x0: margin + y_label_w + 14.0,
+            y0: top,
+            x1: width - margin - 10.0,
+            y1: height - bottom,
+            xa,
+            ya,
+            y_down,
+        }
+    }
+
+    /// Pixel column of an x value (plot space).
+    pub fn x(&self, v: f64) -> f64 {
+        self.x0 + (v - self.xa.lo) / (self.xa.hi - self.xa.lo) * (self.x1 - self.x0)
+    }
+
+    /// Pixel row of a y value (plot space).
+    pub fn y(&self, v: f64) -> f64 {
+        let t = (v - self.ya.lo) / (self.ya.hi - self.ya.lo);
+        if self.y_down {
+            self.y0 + t * (self.y1 - self.y0)
+        } else {
+            self.y1 - t * (self.y1 - self.y0)
+        }
+    }
+
+    /// Light grid lines at the y ticks.
+    pub fn grid(&self, sc: &mut Scene) {
+        for (v, _) in &self.ya.ticks {
+            let y = self.y(*v);
+            sc.line(vec![(self.x0, y), (self.x1, y)], palette::BAND, 1);
+        }
+    }
+
+    /// Axis lines, ticks, tick labels and titles (the y title sits above the axis, horizontally).
+    pub fn axes(&self, sc: &mut Scene, x_title: &str, y_title: &str) {
+        use palette::INK;
+        sc.line(vec![(self.x0, self.y1), (self.x1, self.y1)], INK, 1);
+        sc.line(vec![(self.x0, self.y0), (self.x0, self.y1)], INK, 1);
+        for (v, label) in &self.xa.ticks {
+            let x = self.x(*v);
+            sc.line(vec![(x, self.y1), (x, self.y1 + 5.0)], INK, 1);
+            sc.text(
+                (x, self.y1 + 15.0),
+                label.clone(),
+                size::SMALL,
+                INK,
+                Align::Center,
+            );
+        }
+        for (v, label) in &self.ya.ticks {
+            let y = self.y(*v);
+            sc.line(vec![(self.x0 - 5.0, y), (self.x0, y)], INK, 1);
+            sc.text(
+                (self.x0 - 8.0, y),
+                label.clone(),
+                size::SMALL,
+                INK,
+                Align::Right,
+            );
+        }
+        sc.text(
+            ((self.x0 + self.x1) / 2.0, self.y1 + 38.0),
+            x_title,
+            size::LABEL,
+            INK,
+            Align::Center,
+        );
+        sc.text(
+            (self.x0 - 8.0, self.y0 - 18.0),
+            y_title,
+            size::LABEL,
+            INK,
+            Align::Left,
+        );
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn ticks_cover_the_range() {
+        let a = Axis::new(-0.33, 0.71, false, 6);
+        assert!(a.ticks.first().unwrap().0 <= -0.33 && a.ticks.last().unwrap().0 >= 0.71);
+        assert!(a.ticks.iter().any(|t| t.1 == "0.0" || t.1 == "0"));
+        let l = Axis::new(0.2f64.ln(), 3f64.ln(), true, 6);
+        assert!(l.ticks.iter().any(|t| t.1 == "1"), "{:?}", l.ticks);
+        assert!(l.ticks.iter().any(|t| t.1 == "0.5"), "{:?}", l.ticks);
+    }
+}

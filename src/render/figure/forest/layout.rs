@@ -1,0 +1,452 @@
+//! The forest plot's layout: the rows, the value axis, the text columns,
+//! the caption and the row height, computed before anything is drawn.
+
+use crate::effect::ReadingScale;
+use crate::error::{Error, Result};
+use crate::render::figure::scene::{fit_text, text_width};
+use crate::render::figure::{
+    decimals_for, measure_name, model_line, size, wrap, Axis, PlotOptions, SortKey,
+};
+use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups, Tau2Method};
+use crate::support::format as fmt;
+
+/// One row of the plot, top to bottom.
+pub(super) enum Row<'a> {
+    GroupHead(String),
+    Study(usize),
+    GroupAverage(&'a LevelSummary, f64),
+    Overall,
+    Predict,
+    Gap,
+}
+
+/// The rows are grouped by this moderator (its index and its levels).
+pub(super) type Grouping<'a> = Option<(usize, &'a Subgroups)>;
+
+/// The first categorical moderator with subgroup results, if any.
+pub(super) fn grouping(report: &FitReport) -> Grouping<'_> {
+    report
+        .model
+        .moderators
+        .iter()
+        .enumerate()
+        .find_map(|(j, m)| {
+            matches!(m.kind, ModeratorKind::Categorical { .. })
+                .then(|| {
+                    report
+                        .subgroups
+                        .iter()
+                        .find(|g| g.moderator == m.name)
+                        .map(|g| (j, g))
+                })
+                .flatten()
+        })
+}
+
+/// The rows: the studies in `ordered` order (under a head and above an
+/// average per level when grouped), then the overall average and the
+/// prediction interval.
+pub(super) fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a>) -> Vec<Row<'a>> {
+    let studies = &report.studies;
+    let mut rows: Vec<Row> = Vec::new();
+    match group {
+        Some((j, g)) => {
+            for lv in &g.levels {
+                rows.push(Row::GroupHead(format!(
+                    "{} = {}  (k = {})",
+                    g.moderator, lv.level, lv.k
+                )));
+                let mut w = 0.0;
+                for &i in ordered {
+                    if matches!(&studies[i].moderators[j], AtValue::Level(l) if *l == lv.level) {
+                        rows.push(Row::Study(i));
+                        w += studies[i].weight;
+                    }
+                }
+                rows.push(Row::GroupAverage(lv, w));
+                rows.push(Row::Gap);
+            }
+        }
+        None => rows.extend(ordered.iter().map(|&i| Row::Study(i))),
+    }
+    rows.push(Row::Overall);
+    rows.push(Row::Predict);
+    rows
+}
+
+/// Where things go: everything the drawing steps need.
+pub(super) struct Forest<'a> {
+    pub report: &'a FitReport,
+    pub group: Grouping<'a>,
+    pub show_fitted: bool,
+    /// The value axis (plot space).
+    pub axis: Axis,
+    /// Page width in pixels.
+    pub width: f64,
+    /// Blank at the left and right.
+    pub margin: f64,
+    /// Text size of the column headers' reference (the largest row font, at least 12).
+    pub fs_max: f64,
+    /// Decimals of the "effect [CI]" column.
+    pub dec: usize,
+    /// Width of the "effect [CI]" column.
+    pub ci_w: f64,
+    /// Width of the weight column.
+    pub weight_w: f64,
+    /// Width of the label column (study names and the sort column).
+    pub label_w: f64,
+    /// The sort column (with `--sort` by a moderator).
+    pub sort_col: Option<SortColumn>,
+    /// Width of the study names.
+    pub name_w: f64,
+    /// Left and right end of the plot area.
+    pub px0: f64,
+    /// Right end of the plot area.
+    pub px1: f64,
+    /// The confidence level as a percentage.
+    pub lv: String,
+    /// "Random-effects average" or "Common-effect average".
+    pub pooled_name: &'static str,
+    /// The caption, wrapped to the width.
+    pub cap_lines: Vec<String>,
+    /// Top of the first row.
+    pub top: f64,
+    /// Row height.
+    pub rh: f64,
+    /// Page height in pixels.
+    pub height: u32,
+    /// Text size in the rows.
+    pub fs: f64,
+    /// Number of rows.
+    pub n_rows: usize,
+    /// The largest study weight (the disc of that study is the largest).
+    pub w_max: f64,
+}
+
+/// The column of the moderator the rows are sorted by: its heading, each
+/// study's value and the column's width.
+pub(super) struct SortColumn {
+    pub head: String,
+    pub values: Vec<String>,
+    pub width: f64,
+}
+
+/// The value range (plot space) and the clip limits of long intervals.
+pub(super) fn value_axis(report: &FitReport, group: Grouping) -> Axis {
+    let scale = report.measure.reading_scale;
+    let tp = |y: f64| Axis::to_plot(scale, y);
+    let studies = &report.studies;
+    let avg = &report.average;
+    let mut core: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
+    core.extend([tp(avg.mean.pi.pi_low), tp(avg.mean.pi.pi_high), 0.0]);
+    if let Some((_, g)) = group {
+        for lv in &g.levels {
+            if let Some(p) = &lv.pooled {
+                core.extend([tp(p.mean.ci.ci_low), tp(p.mean.ci.ci_high)]);
+            }
+        }
+    }
+    let cmin = core.iter().copied().fold(f64::INFINITY, f64::min);
+    let cmax = core.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let span = (cmax - cmin).max(1e-6);
+    // Intervals may reach 0.6 spans beyond the effects, or further when the
+    // typical (median) interval is wider than that; longer ones are cut.
+    let mut halves: Vec<f64> = studies
+        .iter()
+        .map(|s| (tp(s.ci.ci_high) - tp(s.ci.ci_low)) / 2.0)
+        .collect();
+    halves.sort_by(f64::total_cmp);
+    let reach = (0.6 * span).max(1.2 * halves[halves.len() / 2]);
+    let (mut lim_lo, mut lim_hi) = (cmin - reach, cmax + reach);
+    if scale == ReadingScale::Correlation {
+        lim_lo = lim_lo.max(-1.0);
+        lim_hi = lim_hi.min(1.0);
+    }
+    let lo = studies
+        .iter()
+        .map(|s| tp(s.ci.ci_low))
+        .fold(cmin, f64::min)
+        .max(lim_lo);
+    let hi = studies
+        .iter()
+        .map(|s| tp(s.ci.ci_high))
+        .fold(cmax, f64::max)
+        .min(lim_hi);
+    Axis::new(lo, hi, scale == ReadingScale::Ratio, 7).snapped()
+}
+
+/// Row height from the number of rows when `--height` is not given.
+fn auto_row_height(n_rows: usize) -> f64 {
+    if n_rows <= 40 {
+        24.0
+    } else if n_rows <= 120 {
+        19.0
+    } else {
+        15.0
+    }
+}
+
+/// Text size for a row height.
+fn font(rh: f64) -> f64 {
+    (rh * 0.56).clamp(9.0, 13.5)
+}
+
+/// Decimals of the "effect [CI]" column: about three significant digits
+/// over the studies' effects; for ratios 2, or 3 when a lower limit is below 0.095.
+fn decimals(report: &FitReport) -> usize {
+    let scale = report.measure.reading_scale;
+    let studies = &report.studies;
+    let show = |y: f64| scale.apply(y);
+    let reading_values: Vec<f64> = studies.iter().map(|s| show(s.effect)).collect();
+    let vmin = reading_values.iter().copied().fold(f64::INFINITY, f64::min);
+    let vmax = reading_values
+        .iter()
+        .copied()
+        .fold(f64::NEG_INFINITY, f64::max);
+    if scale == ReadingScale::Ratio {
+        if studies.iter().any(|s| show(s.ci.ci_low) < 0.095) {
+            3
+        } else {
+            2
+        }
+    } else {
+        decimals_for((vmax - vmin).max(vmax.abs().max(vmin.abs()))).clamp(2, 4)
+    }
+}
+
+/// Sorting by a moderator shows its values in a column after the labels.
+fn sort_column(
+    report: &FitReport,
+    sort: &SortKey,
+    fs_max: f64,
+    label_w: f64,
+) -> Option<SortColumn> {
+    let SortKey::Moderator(name) = sort else {
+        return None;
+    };
+    let j = report
+        .model
+        .moderators
+        .iter()
+        .position(|m| &m.name == name)?;
+    let values: Vec<String> = report
+        .studies
+        .iter()
+        .map(|s| match &s.moderators[j] {
+            AtValue::Number(x) => {
+                let t = fmt::plot_num(*x, 3);
+                if t.contains('.') {
+                    t.trim_end_matches('0').trim_end_matches('.').to_string()
+                } else {
+                    t
+                }
+            }
+            AtValue::Level(l) => l.clone(),
+        })
+        .collect();
+    let head = fit_text(name, fs_max.min(13.0), 0.4 * label_w);
+    let w = values
+        .iter()
+        .map(|v| text_width(v, fs_max))
+        .fold(text_width(&head, fs_max.min(13.0)), f64::max)
+        .min(0.4 * label_w);
+    Some(SortColumn {
+        head,
+        values,
+        width: w + 12.0,
+    })
+}
+
+impl<'a> Forest<'a> {
+    /// Lays out the plot of `n_rows` rows on `axis`.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming `--width` when the columns leave less than
+    /// 140 pixels for the plot area, or `--height` when a row would be
+    /// lower than 4 pixels.
+    pub fn new(
+        report: &'a FitReport,
+        opts: &PlotOptions,
+        group: Grouping<'a>,
+        n_rows: usize,
+        axis: Axis,
+    ) -> Result<Forest<'a>> {
+        let width = f64::from(opts.width.unwrap_or(1000));
+        let auto_rh = auto_row_height(n_rows);
+        let margin = 18.0;
+        let fs_max = font(auto_rh).max(12.0);
+        // The zeros are filled in by the three steps below, in order: the
+        // columns, the caption (which needs the axis limits), the row height
+        // (which needs the caption's height).
+        let mut f = Forest {
+            report,
+            group,
+            show_fitted: opts.show_fitted,
+            axis,
+            width,
+            margin,
+            fs_max,
+            dec: decimals(report),
+            ci_w: 0.0,
+            weight_w: text_width("Weight", fs_max).max(text_width("100.0%", fs_max)) + 12.0,
+            label_w: (0.27 * width).clamp(120.0, 340.0),
+            sort_col: None,
+            name_w: 0.0,
+            px0: 0.0,
+            px1: 0.0,
+            lv: fmt::level_pct(report.model.level),
+            pooled_name: if report.model.tau2_method == Tau2Method::None {
+                "Common-effect average"
+            } else {
+                "Random-effects average"
+            },
+            cap_lines: Vec::new(),
+            top: 86.0, // title, subtitle, column headers
+            rh: auto_rh,
+            height: 0,
+            fs: 0.0,
+            n_rows,
+            w_max: report.studies.iter().map(|s| s.weight).fold(0.0, f64::max),
+        };
+        f.columns(&opts.sort)?;
+        f.cap_lines = f.caption();
+        f.row_height(opts.height)?;
+        Ok(f)
+    }
+
+    /// The widths of the text columns and the plot area between them.
+    fn columns(&mut self, sort: &SortKey) -> Result<()> {
+        let (report, fs_max, width, margin) = (self.report, self.fs_max, self.width, self.margin);
+        self.ci_w = report
+            .studies
+            .iter()
+            .map(|s| text_width(&self.ci_text(s.effect, s.ci.ci_low, s.ci.ci_high), fs_max))
+            .fold(
+                text_width(
+                    &format!("{} [{} CI]", measure_name(report), self.lv),
+                    fs_max,
+                ),
+                f64::max,
+            )
+            + 14.0;
+        self.sort_col = sort_column(report, sort, fs_max, self.label_w);
+        self.name_w = self.label_w - self.sort_col.as_ref().map_or(0.0, |c| c.width);
+        self.px0 = margin + self.label_w + 14.0;
+        self.px1 = width - margin - self.weight_w - self.ci_w - 12.0;
+        if self.px1 - self.px0 < 140.0 {
+            let need = width + 140.0 - (self.px1 - self.px0);
+            return Err(Error::usage(
+                "--width",
+                format!(
+                    "{width} pixels leave no room for the forest plot's columns; use at least {need:.0}"
+                ),
+            ));
+        }
+        Ok(())
+    }
+
+    /// The caption (wrapped to the width), which fixes the space at the bottom.
+    fn caption(&self) -> Vec<String> {
+        let (report, lv) = (self.report, &self.lv);
+        let scale = report.measure.reading_scale;
+        let mut caption = vec![
+            format!(
+                "● study estimate (area proportional to its weight in the fitted model) with its {lv} CI; \
+                 ◆ {} and its {lv} CI; the dashed line with end bars is the {lv} prediction interval \
+                 for the true effect of a new study.",
+                self.pooled_name.to_lowercase()
+            ),
+            model_line(report),
+        ];
+        if let Some((_, g)) = self.group {
+            caption.push(format!(
+                "Rows are grouped by {}; each lighter ◇ averages that group's studies alone (with its own τ²).",
+                g.moderator
+            ));
+        }
+        if self.show_fitted {
+            caption.push("△ fitted value of the meta-regression for that study.".into());
+        }
+        caption.push(format!(
+            "Grey line: no effect ({}); dotted line: the average.",
+            if scale == ReadingScale::Ratio {
+                "ratio 1"
+            } else {
+                "0"
+            }
+        ));
+        let clipped = report
+            .studies
+            .iter()
+            .any(|s| self.tp(s.ci.ci_low) < self.axis.lo || self.tp(s.ci.ci_high) > self.axis.hi);
+        if clipped {
+            caption.push("◀ ▶ the interval continues beyond the axis.".into());
+        }
+        caption
+            .iter()
+            .flat_map(|c| wrap(c, size::SMALL, self.width - 2.0 * self.margin))
+            .collect()
+    }
+
+    /// The row height and the page height: the rows share `--height`, or
+    /// the page grows with them.
+    fn row_height(&mut self, height: Option<u32>) -> Result<()> {
+        let (top, n_rows) = (self.top, self.n_rows);
+        let bottom = 62.0 + 17.0 * self.cap_lines.len() as f64; // axis + caption
+        let (rh, height) = match height {
+            Some(h) => {
+                let rh = (f64::from(h) - top - bottom) / n_rows as f64;
+                if rh < 4.0 {
+                    return Err(Error::usage(
+                        "--height",
+                        format!(
+                            "{h} pixels are too few for {n_rows} rows; use at least {:.0} (or leave \
+                             --height out for an automatic height)",
+                            top + bottom + 4.0 * n_rows as f64
+                        ),
+                    ));
+                }
+                (rh, h)
+            }
+            None => (
+                self.rh,
+                (top + bottom + self.rh * n_rows as f64).ceil() as u32,
+            ),
+        };
+        self.rh = rh;
+        self.height = height;
+        self.fs = font(rh);
+        Ok(())
+    }
+
+    /// An analysis-scale value in plot space.
+    pub fn tp(&self, y: f64) -> f64 {
+        Axis::to_plot(self.report.measure.reading_scale, y)
+    }
+
+    /// An analysis-scale value on the reading scale.
+    pub fn show(&self, y: f64) -> f64 {
+        self.report.measure.reading_scale.apply(y)
+    }
+
+    /// Pixel column of a plot-space value.
+    pub fn x_of(&self, v: f64) -> f64 {
+        self.px0 + (v - self.axis.lo) / (self.axis.hi - self.axis.lo) * (self.px1 - self.px0)
+    }
+
+    /// A plot-space value clipped to the axis.
+    pub fn clip(&self, v: f64) -> f64 {
+        v.clamp(self.axis.lo, self.axis.hi)
+    }
+
+    /// "effect [low, high]" on the reading scale.
+    pub fn ci_text(&self, e: f64, l: f64, h: f64) -> String {
+        let dec = self.dec;
+        format!(
+            "{} [{}, {}]",
+            fmt::plot_num(self.show(e), dec),
+            fmt::plot_num(self.show(l), dec),
+            fmt::plot_num(self.show(h), dec)
+        )
+    }
+}

@@ -1,0 +1,110 @@
+//! The forest plot: one row per study, subgroup and overall averages, the
+//! prediction interval on its own dashed row.
+//!
+//! Layout, left to right: label column, plot area, "effect \[CI\]" column,
+//! weight column. Rows are 24, 19 or 15 pixels high depending on how many
+//! there are (or share `--height`); labels are shortened with an ellipsis to
+//! their column, so they never reach the plot area.
+//!
+//! The steps: check the options, order the studies, lay out the rows
+//! (`layout::rows`), the value axis (`layout::value_axis`), the text columns,
+//! the caption and the row height (`layout::Forest::new`), then draw the
+//! header, the backdrop, each row, the axis and the caption (`draw`).
+
+mod draw;
+mod layout;
+
+use super::{PlotOptions, Scene, SortKey};
+use crate::error::{Error, Result};
+use crate::result::{AtValue, FitReport, ModeratorKind};
+
+/// The most studies a forest plot draws (one row each).
+pub const MAX_STUDIES: usize = 20_000;
+
+/// Builds the forest plot.
+///
+/// # Errors
+/// [`Error::Usage`] for `--sort` naming no moderator, `--show-fitted`
+/// without moderators, or a width too small for the columns.
+pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
+    check(report, opts)?;
+    let ordered = order(report, &opts.sort)?;
+    let group = layout::grouping(report);
+    let rows = layout::rows(report, &ordered, group);
+    let axis = layout::value_axis(report, group);
+    let forest = layout::Forest::new(report, opts, group, rows.len(), axis)?;
+    Ok(forest.draw(&rows))
+}
+
+/// The options the model cannot support, and too many studies.
+fn check(report: &FitReport, opts: &PlotOptions) -> Result<()> {
+    if opts.show_fitted && report.model.moderators.is_empty() {
+        return Err(Error::usage(
+            "--show-fitted",
+            "the model has no moderators, so every fitted value is the average; add --moderator",
+        ));
+    }
+    let studies = &report.studies;
+    if studies.len() > MAX_STUDIES {
+        return Err(Error::usage(
+            "--forest",
+            format!(
+                "{} studies are too many rows for a forest plot (at most {MAX_STUDIES}); a funnel \
+                 or bubble plot shows them all",
+                studies.len()
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Study indices in the requested order (stable: ties keep input order).
+fn order(report: &FitReport, sort: &SortKey) -> Result<Vec<usize>> {
+    let mut idx: Vec<usize> = (0..report.studies.len()).collect();
+    let s = &report.studies;
+    match sort {
+        SortKey::Input => {}
+        SortKey::Effect => idx.sort_by(|&a, &b| s[a].effect.total_cmp(&s[b].effect)),
+        SortKey::Precision => idx.sort_by(|&a, &b| s[a].variance.total_cmp(&s[b].variance)),
+        SortKey::Moderator(name) => {
+            let Some(j) = report.model.moderators.iter().position(|m| &m.name == name) else {
+                let names: Vec<&str> = report
+                    .model
+                    .moderators
+                    .iter()
+                    .map(|m| m.name.as_str())
+                    .collect();
+                return Err(Error::usage(
+                    "--sort",
+                    format!(
+                        "'{name}' is not effect, precision, input or a moderator of this model{}",
+                        if names.is_empty() {
+                            String::new()
+                        } else {
+                            format!(" (moderators: {})", names.join(", "))
+                        }
+                    ),
+                ));
+            };
+            let key = |i: usize| match &s[i].moderators[j] {
+                AtValue::Number(x) => (0usize, *x, String::new()),
+                AtValue::Level(l) => {
+                    let pos = match &report.model.moderators[j].kind {
+                        ModeratorKind::Categorical { levels, .. } => {
+                            levels.iter().position(|x| x == l).unwrap_or(0)
+                        }
+                        _ => 0,
+                    };
+                    (pos, 0.0, l.clone())
+                }
+            };
+            idx.sort_by(|&a, &b| {
+                let (ka, kb) = (key(a), key(b));
+                ka.0.cmp(&kb.0)
+                    .then(ka.1.total_cmp(&kb.1))
+                    .then(ka.2.cmp(&kb.2))
+            });
+        }
+    }
+    Ok(idx)
+}

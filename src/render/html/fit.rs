@@ -1,0 +1,88 @@
+//! The whole `pondus fit` report as one HTML page: the top (header,
+//! question, answer, cautions), then the contents and the body, both drawn
+//! from one table of sections.
+
+use super::page::Provenance;
+use super::section::{always, body, contents, FitCtx, Section};
+use super::{
+    data, dependence, diagnostics, estimates, figures, interpretation, moderators, question,
+    reproduce, studies,
+};
+use crate::render::figure::PageFigure;
+use crate::result::FitReport;
+
+/// The sections after the contents, in order; the contents list the
+/// present ones.
+fn sections<'a>() -> [Section<FitCtx<'a>>; 9] {
+    [
+        Section {
+            id: "data",
+            title: "Data used",
+            present: always,
+            render: data::data,
+        },
+        Section {
+            id: "pooled",
+            title: "Average effect and heterogeneity",
+            present: always,
+            render: estimates::pooled,
+        },
+        Section {
+            id: "moderators",
+            title: "Moderators",
+            present: always,
+            render: moderators::moderators,
+        },
+        Section {
+            id: "dependence",
+            title: "Dependent effects",
+            present: dependence::has_dependence,
+            render: dependence::dependence,
+        },
+        Section {
+            id: "interpretation",
+            title: "Reading the moderation",
+            present: interpretation::has_interpretation,
+            render: interpretation::interpretation,
+        },
+        Section {
+            id: "robustness",
+            title: "Robustness checks",
+            present: diagnostics::has_diagnostics,
+            render: diagnostics::robustness,
+        },
+        Section {
+            id: "plots",
+            title: "Plots",
+            present: always,
+            render: figures::fit_plots,
+        },
+        Section {
+            id: "studies",
+            title: "Studies",
+            present: always,
+            render: studies::studies,
+        },
+        Section {
+            id: "reproduce",
+            title: reproduce::TITLE,
+            present: always,
+            render: reproduce::fit,
+        },
+    ]
+}
+
+/// The whole `pondus fit` report as one HTML page.
+pub fn fit_page(
+    report: &FitReport,
+    figures: &[PageFigure],
+    figure_notes: &[String],
+    prov: &Provenance,
+) -> String {
+    let cx = FitCtx::new(report, figures, figure_notes, prov);
+    let mut page = question::start(&cx);
+    let sections = sections();
+    contents(&mut page, &cx, &sections);
+    body(&mut page, &cx, &sections);
+    page.finish(prov)
+}
