@@ -150,6 +150,31 @@ impl Region {
     }
 }
 
+/// What kind of quantity a region of significance is about.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum QuantityKind {
+    /// The conditional mean effect.
+    MeanEffect,
+    /// The slope (per unit) of a numeric moderator in a product term with
+    /// the moderator along which the region runs.
+    Slope,
+    /// The difference between a level of a categorical moderator in a
+    /// product term and its reference level.
+    LevelDifference,
+}
+
+impl QuantityKind {
+    /// The word used in the JSON.
+    pub fn id(self) -> &'static str {
+        match self {
+            QuantityKind::MeanEffect => "mean_effect",
+            QuantityKind::Slope => "slope",
+            QuantityKind::LevelDifference => "level_difference",
+        }
+    }
+}
+
 /// A Johnson–Neyman region of significance along one numeric moderator.
 #[derive(Debug, Clone, Serialize)]
 pub struct RegionOfSignificance {
@@ -158,6 +183,13 @@ pub struct RegionOfSignificance {
     /// What is tested: "effect" (the conditional mean effect), or the simple
     /// slope / level difference, as in [`SimpleSlope::of`].
     pub quantity: String,
+    /// The kind of `quantity`, the one to read it by (a moderator's name
+    /// can be "effect" or contain ':'): "mean_effect" (the conditional mean
+    /// effect), "slope" (the per-unit slope of the numeric moderator named
+    /// by `quantity`) or "level_difference" (a level of a categorical
+    /// moderator minus its reference, `quantity` being
+    /// "NAME: LEVEL − REFERENCE").
+    pub quantity_kind: QuantityKind,
     /// Where the other moderators are held, in words.
     pub held: String,
     /// The Johnson–Neyman values over the whole real line, where the
@@ -238,4 +270,4 @@ pub struct ArtifactStudy {
     pub se_factor: f64,
 }
 
-display_by_id!(ProbePoint, Region);
+display_by_id!(ProbePoint, Region, QuantityKind);
