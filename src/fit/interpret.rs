@@ -270,6 +270,7 @@ fn probe_one(
             for (partner, c) in probe::partner_contrasts(design, f, &values)? {
                 out.simple_slopes.push(SimpleSlope {
                     of: partner_name(design, f, &partner),
+                    quantity_kind: partner_kind(&partner),
                     moderator: name.clone(),
                     at: pt.at.clone(),
                     point: pt.label,

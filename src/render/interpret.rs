@@ -128,10 +128,11 @@ pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
             "Simple slopes (how the partner in a product term changes the effect, at each probed value; {lv} CI)"
         );
         for s in &it.simple_slopes {
-            let what = if s.of.contains(':') {
-                format!("difference {}", s.of)
-            } else {
-                format!("slope of {} (per unit)", s.of)
+            let what = match s.quantity_kind {
+                QuantityKind::LevelDifference => format!("difference {}", s.of),
+                QuantityKind::Slope | QuantityKind::MeanEffect => {
+                    format!("slope of {} (per unit)", s.of)
+                }
             };
             let _ = writeln!(
                 o,

@@ -89,6 +89,11 @@ pub struct SimpleSlope {
     /// What changes: a numeric moderator's name (the slope per unit), or
     /// "NAME: LEVEL − REFERENCE" for a level of a categorical moderator.
     pub of: String,
+    /// The kind of `of`, the one to read it by (a moderator's name can
+    /// contain ':'): "slope" (the per-unit slope of the numeric moderator
+    /// named by `of`) or "level_difference" (a level of a categorical
+    /// moderator minus its reference); never "mean_effect".
+    pub quantity_kind: QuantityKind,
     /// The probed moderator it is conditional on.
     pub moderator: String,
     /// The probed moderator's value.
@@ -150,11 +155,11 @@ impl Region {
     }
 }
 
-/// What kind of quantity a region of significance is about.
+/// What kind of quantity a region of significance or a simple slope is about.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum QuantityKind {
-    /// The conditional mean effect.
+    /// The conditional mean effect (regions only).
     MeanEffect,
     /// The slope (per unit) of a numeric moderator in a product term with
     /// the moderator along which the region runs.
