@@ -63,8 +63,10 @@ fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a
 
 /// The input: the file, its measure and the columns read.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Input")]
 pub struct InputArgs {
     /// CSV file with a header row and one row per study ('-' reads standard input).
+    #[arg(help_heading = None)]
     pub file: PathBuf,
     /// How each row becomes an effect and its sampling variance.
     #[arg(long, value_enum, default_value_t = MeasureArg::Effect)]
@@ -102,6 +104,7 @@ impl InputArgs {
 
 /// The model: moderators and their coding, the estimator, the tests, predictions.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Model")]
 pub struct ModelArgs {
     /// A study-level characteristic to test (repeatable; numeric unless its values are text).
     #[arg(long = "moderator", value_name = "NAME")]
@@ -241,6 +244,7 @@ impl ModelArgs {
 
 /// The JSON result and the per-study table.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Output files")]
 pub struct OutputArgs {
     /// Write the full result as JSON ('-' for standard output).
     #[arg(long, value_name = "PATH")]
@@ -262,6 +266,7 @@ impl OutputArgs {
 
 /// The plots and their settings.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Plots")]
 pub struct PlotArgs {
     /// Draw a forest plot into this file (.svg or .png).
     #[arg(long, value_name = "FILE")]
@@ -407,6 +412,7 @@ fn needs(flag: &str, given: bool, plot: &str, present: bool) -> Result<()> {
 
 /// The terminal report and the HTML page.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Terminal report and HTML page")]
 pub struct ReportArgs {
     /// Do not print the terminal report.
     #[arg(long, short)]
@@ -432,6 +438,7 @@ impl ReportArgs {
 /// Reading the model: probes, level comparisons, regions of significance,
 /// and the artifact corrections of correlations.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Reading the model")]
 pub struct InterpretationArgs {
     /// Read the model at values of a moderator: `--probe dose=10,20`; alone, a numeric moderator's mean and mean ± 1 SD, a categorical one's every level (repeatable).
     #[arg(long, value_name = "NAME[=V,...]")]
@@ -455,6 +462,7 @@ pub struct InterpretationArgs {
 
 /// Robustness checks of the fitted model.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Robustness checks")]
 pub struct DiagnosticArgs {
     /// Refit without each study in turn: coefficients, τ², I² and the moderator test's p; flag removals that change a sign or the significance.
     #[arg(long)]
@@ -478,6 +486,7 @@ pub struct DiagnosticArgs {
 
 /// Dependent effects nested in clusters.
 #[derive(Debug, Args)]
+#[command(next_help_heading = "Several effects per study")]
 pub struct ClusterArgs {
     /// Effects sharing a value of this column are nested in one cluster (a study, lab or site): fits the three-level model.
     #[arg(long, value_name = "COL")]
