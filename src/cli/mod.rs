@@ -3,7 +3,9 @@
 //! target, the quoted command line, the progress bar). Each subcommand lives
 //! in its own module with its flags, their check and its run function.
 
+pub mod completions;
 pub mod fit;
+pub mod manual;
 pub mod outputs;
 pub mod plan;
 pub mod sites;
@@ -37,6 +39,10 @@ pub enum Command {
     Sites(sites::SitesArgs),
     /// Print a SQL query that computes the per-site moments inside a database (for `sites --moments`).
     Sql(sql::SqlArgs),
+    /// Print a completion script for a shell (bash, zsh, fish, powershell, elvish).
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff) of pondus or of one subcommand, or write every page with --out-dir.
+    Manual(manual::ManualArgs),
 }
 
 /// Checks the flags of the parsed command and runs it.
@@ -49,6 +55,8 @@ pub fn run(cli: &Cli) -> Result<()> {
         Command::Plan(args) => plan::run_plan(&args.check()?),
         Command::Sites(args) => sites::run_sites(&args.check()?),
         Command::Sql(args) => sql::run_sql(args),
+        Command::Completions(args) => completions::run_completions(args),
+        Command::Manual(args) => manual::run_manual(args),
     }
 }
 

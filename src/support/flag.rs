@@ -25,7 +25,7 @@ macro_rules! flags {
 
         impl Flag {
             /// Every flag, in the order `pondus <command> --help` first lists it
-            /// (fit, plan, sites, sql).
+            /// (fit, plan, sites, sql, manual).
             pub const ALL: &'static [Flag] = &[$(Flag::$variant),+];
 
             /// The flag as typed, with its leading `--` (e.g. `"--probe"`).
@@ -112,6 +112,7 @@ flags! {
     Out => "--out", ["sites"];
     CenterWithin => "--center-within", ["sites"];
     Fit => "--fit", ["sites"];
+    OutDir => "--out-dir", ["manual"];
 }
 
 impl fmt::Display for Flag {

@@ -1013,3 +1013,113 @@ fn log_ratio_coefficients_are_also_given_as_ratios() {
         .iter()
         .all(|c| c["ratio"].is_null()));
 }
+
+// ------------------------------------------- completions and manual pages
+
+#[test]
+fn completions_cover_every_shell_and_name_the_subcommands_and_flags() {
+    for shell in ["bash", "zsh", "fish", "powershell", "elvish"] {
+        let out = succeeds(pondus().args(["completions", shell]));
+        let text = String::from_utf8(out).expect("the script is UTF-8");
+        assert!(!text.trim().is_empty(), "{shell}: empty script");
+        has_all(&text, &["fit", "moderator", "target-power", "sites"]);
+        assert!(
+            text.contains("--moderator") || text.contains("-l moderator"),
+            "{shell}: no --moderator flag in the script"
+        );
+    }
+}
+
+#[test]
+fn the_bash_completion_script_is_valid_bash() {
+    let out = succeeds(pondus().args(["completions", "bash"]));
+    let (_dir, path) = temp_file("pondus.bash", &out);
+    let check = std::process::Command::new("bash")
+        .arg("-n")
+        .arg(&path)
+        .output()
+        .expect("bash runs");
+    assert!(
+        check.status.success(),
+        "bash -n: {}",
+        String::from_utf8_lossy(&check.stderr)
+    );
+}
+
+#[test]
+fn an_unknown_shell_is_a_usage_error() {
+    let err = fails(pondus().args(["completions", "tcsh"]), 2);
+    has_all(&err, &["tcsh", "bash"]);
+}
+
+/// The `.TH` header line of a roff page.
+fn roff_header(page: &[u8]) -> String {
+    let text = String::from_utf8(page.to_vec()).expect("the page is UTF-8");
+    text.lines()
+        .find(|l| !l.starts_with(".ie") && !l.starts_with(".el") && !l.starts_with(".\\\""))
+        .unwrap_or_default()
+        .to_string()
+}
+
+#[test]
+fn manual_pages_have_a_roff_header_naming_their_command() {
+    let top = succeeds(pondus().arg("manual"));
+    assert!(
+        roff_header(&top).starts_with(".TH pondus "),
+        "{}",
+        roff_header(&top)
+    );
+    has_all(
+        &String::from_utf8_lossy(&top),
+        &["fit", "plan", "sites", "sql"],
+    );
+    for sub in ["fit", "plan", "sites", "sql"] {
+        let page = succeeds(pondus().args(["manual", sub]));
+        let head = roff_header(&page);
+        assert!(
+            head.starts_with(&format!(".TH pondus-{sub} ")),
+            "{sub}: {head}"
+        );
+    }
+    let fit = String::from_utf8(succeeds(pondus().args(["manual", "fit"]))).unwrap();
+    // Roff escapes the dashes; the flag groups of `fit --help` are sections.
+    has_all(
+        &fit,
+        &["\\fB\\-\\-moderator\\fR", ".SH \"ROBUSTNESS CHECKS\""],
+    );
+}
+
+#[test]
+fn manual_out_dir_writes_every_page_into_an_existing_directory() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let out = succeeds(pondus().arg("manual").arg("--out-dir").arg(dir.path()));
+    assert!(out.is_empty(), "nothing goes to standard output");
+    let mut names: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().to_string())
+        .collect();
+    names.sort();
+    assert_eq!(
+        names,
+        [
+            "pondus-fit.1",
+            "pondus-plan.1",
+            "pondus-sites.1",
+            "pondus-sql.1",
+            "pondus.1"
+        ]
+    );
+    for name in &names {
+        let page = std::fs::read(dir.path().join(name)).unwrap();
+        let stem = name.trim_end_matches(".1");
+        assert!(
+            roff_header(&page).starts_with(&format!(".TH {stem} ")),
+            "{name}: {}",
+            roff_header(&page)
+        );
+    }
+    let missing = dir.path().join("missing");
+    let err = fails(pondus().arg("manual").arg("--out-dir").arg(&missing), 2);
+    has_all(&err, &["--out-dir", "not a directory"]);
+    assert!(!missing.exists());
+}
