@@ -49,9 +49,9 @@ pub struct PlanArgs {
     /// The effect measure of the planned analysis.
     #[arg(long, value_enum)]
     pub measure: PlanMeasureArg,
-    /// Planned number of sites.
-    #[arg(long, value_name = "K")]
-    pub k: usize,
+    /// Planned number of sites; with --target-power (solving for k) it may be left out, and the power is then shown at the k the approximation proposes.
+    #[arg(long, value_name = "K", required_unless_present = "target_power")]
+    pub k: Option<usize>,
     /// Planned participants per site (r and smd), or a comma-separated list of site sizes (repeated in order up to k).
     #[arg(long, value_name = "N[,N...]")]
     pub n: Option<String>,
@@ -169,13 +169,10 @@ impl PlanArgs {
                 "n solves for one common site size; give a single --n with --solve n",
             ));
         }
-        if !(3..=PLAN_MAX_K).contains(&self.k) {
+        if let Some(k) = self.k.filter(|k| !(3..=PLAN_MAX_K).contains(k)) {
             return Err(Error::usage(
                 "--k",
-                format!(
-                    "{} sites: give 3 to {PLAN_MAX_K} (a moderator test needs at least 3)",
-                    self.k
-                ),
+                format!("{k} sites: give 3 to {PLAN_MAX_K} (a moderator test needs at least 3)"),
             ));
         }
         if !(3..=PLAN_MAX_K).contains(&self.max_k) {
@@ -225,9 +222,9 @@ impl PlanArgs {
         };
         let simulations = self.simulations(test)?;
         let (json, curve, report) = self.targets()?;
-        let plan = Plan {
+        let mut plan = Plan {
             measure,
-            k: self.k,
+            k: self.k.unwrap_or(3),
             n,
             n_sites,
             tau2: self.tau2,
@@ -236,15 +233,16 @@ impl PlanArgs {
             alpha: self.alpha,
             test,
         };
+        plan.k = self.planned_k(&plan)?;
         if plan.information().is_none() {
             return Err(match &plan.design {
                 ModeratorDesign::Values(_) => Error::usage(
                     "--moderator-values",
-                    format!("the planned values do not vary across the first {} sites; give at least two different values", self.k),
+                    format!("the planned values do not vary across the first {} sites; give at least two different values", plan.k),
                 ),
                 _ => Error::usage(
                     "--share",
-                    format!("with k = {} sites a share of {} leaves a level without sites; choose a share between 1/k and 1 − 1/k", self.k, self.share.unwrap_or(f64::NAN)),
+                    format!("with k = {} sites a share of {} leaves a level without sites; choose a share between 1/k and 1 − 1/k", plan.k, self.share.unwrap_or(f64::NAN)),
                 ),
             });
         }
@@ -267,6 +265,30 @@ impl PlanArgs {
             report,
             invocation: invocation(),
         })
+    }
+
+    /// The planned number of sites: `--k`, or without it (solving for k)
+    /// the smallest k whose quick power reaches `--target-power`, or
+    /// `--max-k` when none does; the report's power at the planned k is
+    /// then the power at the k needed.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] when `--k` is missing but k is not solved for.
+    fn planned_k(&self, plan: &Plan) -> Result<usize> {
+        match (self.k, self.target_power, self.solve) {
+            (Some(k), _, _) => Ok(k),
+            (None, Some(target), SolveArg::K) => {
+                Ok(plan::solve_k(plan, target, self.max_k).unwrap_or(self.max_k))
+            }
+            (None, _, SolveArg::N) => Err(Error::usage(
+                "--k",
+                "--solve n finds the participants per site for the planned number of sites; give --k",
+            )),
+            (None, None, SolveArg::K) => Err(Error::usage(
+                "--k",
+                "give the planned number of sites, or --target-power to solve for it",
+            )),
+        }
     }
 
     /// Whether the measure's variance follows from the site size `--n`.

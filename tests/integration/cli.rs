@@ -1123,3 +1123,41 @@ fn manual_out_dir_writes_every_page_into_an_existing_directory() {
     has_all(&err, &["--out-dir", "not a directory"]);
     assert!(!missing.exists());
 }
+
+// ------------------------------------------------ plan without --k
+
+/// `pondus plan` with `args` split at whitespace.
+fn plan_cmd(args: &str) -> Command {
+    let mut c = pondus();
+    c.arg("plan").args(args.split_whitespace());
+    c
+}
+
+#[test]
+fn plan_solving_for_k_needs_no_planned_k() {
+    let base = "--measure r --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --test z --target-power 0.8 --json -";
+    let without = succeeds(&mut plan_cmd(base));
+    let j: Value = serde_json::from_slice(&without).expect("JSON");
+    let needed = j["k_needed"].as_u64().expect("a k is needed");
+    assert_eq!(
+        j["k"].as_u64(),
+        Some(needed),
+        "the power is shown at the k needed"
+    );
+    assert!(num(&j["power"]) >= 0.8);
+    // The same as planning that k outright.
+    let with = succeeds(&mut plan_cmd(&format!("{base} --k {needed}")));
+    assert_eq!(without, with);
+}
+
+#[test]
+fn plan_without_k_needs_a_target_and_solving_for_k() {
+    let base = "--measure r --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 --test z";
+    let err = fails(&mut plan_cmd(base), 2);
+    has_all(&err, &["--k"]);
+    let err = fails(
+        &mut plan_cmd(&format!("{base} --target-power 0.8 --solve n")),
+        2,
+    );
+    has_all(&err, &["--k", "--solve n"]);
+}
