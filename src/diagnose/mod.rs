@@ -14,6 +14,7 @@ pub mod small_study;
 
 use crate::error::Result;
 use crate::model::{self, FitOptions, ModelFit};
+use crate::support::flag::Flag;
 
 /// Which diagnostics to compute (the library's view of the flags).
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -200,8 +201,12 @@ pub fn run(
     let mut out = Outputs::default();
     let k = d.k();
     if settings.loo || settings.influence {
+        let flag = if settings.loo {
+            Flag::Loo
+        } else {
+            Flag::Influence
+        };
         if k < d.p + 2 {
-            let flag = if settings.loo { "--loo" } else { "--influence" };
             return Err(Error::usage(
                 flag,
                 format!(
@@ -214,7 +219,6 @@ pub fn run(
             ));
         }
         if k > MAX_REFIT_STUDIES {
-            let flag = if settings.loo { "--loo" } else { "--influence" };
             return Err(Error::usage(
                 flag,
                 format!(
@@ -247,7 +251,7 @@ pub fn run(
     }
     if settings.small_study && k > MAX_RANK_TEST_STUDIES {
         return Err(Error::usage(
-            crate::support::flag::Flag::SmallStudy,
+            Flag::SmallStudy,
             format!(
                 "the rank-correlation test compares every pair of studies, and {k} studies are \
                  more than the {MAX_RANK_TEST_STUDIES} accepted"

@@ -18,6 +18,7 @@ use crate::result::{
     ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
     MeasureInfo, ModelInfo, Study, Tau2Report, ToolInfo,
 };
+use crate::support::flag::Flag;
 
 /// The outputs of the stages, as the report takes them.
 #[derive(Debug)]
@@ -306,7 +307,11 @@ fn check_finite(r: &FitReport) -> Result<()> {
         Err(Error::NoConvergence {
             what: "the fit".into(),
             detail: format!("these results are not finite numbers: {}", bad.join(", ")),
-            hint: "check the data for extreme or identical values, or try --inference z or another --tau2 estimator".into(),
+            hint: format!(
+                "check the data for extreme or identical values, or try {} z or another {} estimator",
+                Flag::Inference,
+                Flag::Tau2
+            ),
         })
     }
 }

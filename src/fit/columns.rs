@@ -7,6 +7,7 @@ use super::FitSettings;
 use crate::effect::artifact;
 use crate::error::Result;
 use crate::input::{self, ColumnRequest, Table};
+use crate::support::flag::Flag;
 
 /// The table with the requested columns, and where each group of requests starts.
 #[derive(Debug)]
@@ -37,34 +38,26 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         header: settings.label.0.clone(),
         required: settings.label.1,
         purpose: "study labels".into(),
-        hint: "Name the label column with --label <header>.".into(),
+        hint: format!("Name the label column with {} <header>.", Flag::Label),
     }];
     let first_measure = requests.len();
     requests.extend(settings.columns.requests(measure));
     let first_moderator = requests.len();
     for m in &settings.moderators {
-        requests.push(named(
-            &m.name,
-            "a moderator (--moderator)",
-            "Check the spelling of --moderator",
-        ));
+        requests.push(named(&m.name, "a moderator", Flag::Moderator));
     }
     let first_artifact = requests.len();
     requests.extend(artifact::requests(&settings.interpret.artifacts, measure)?);
     let order = settings.diagnostics.cumulative_by.as_ref().map(|h| {
         requests.push(named(
             h,
-            "the order of the cumulative meta-analysis (--cumulative-by)",
-            "Check the spelling of --cumulative-by",
+            "the order of the cumulative meta-analysis",
+            Flag::CumulativeBy,
         ));
         requests.len() - 1
     });
     let cluster = settings.dependence.cluster.as_ref().map(|h| {
-        requests.push(named(
-            h,
-            "the cluster ids (--cluster)",
-            "Check the spelling of --cluster",
-        ));
+        requests.push(named(h, "the cluster ids", Flag::Cluster));
         requests.len() - 1
     });
     Ok(Columns {
@@ -77,12 +70,15 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
     })
 }
 
-/// A required column named by a flag; `check` is the first sentence of the hint.
-fn named(header: &str, purpose: &str, check: &str) -> ColumnRequest {
+/// A required column named by `flag`: its purpose is `what` followed by the
+/// flag in parentheses, and its hint asks to check the flag's spelling.
+fn named(header: &str, what: &str, flag: Flag) -> ColumnRequest {
     ColumnRequest {
         header: header.to_string(),
         required: true,
-        purpose: purpose.into(),
-        hint: format!("{check}; headers are matched exactly, or ignoring case when unique."),
+        purpose: format!("{what} ({flag})"),
+        hint: format!(
+            "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
+        ),
     }
 }

@@ -7,6 +7,7 @@ use super::studies::Studies;
 use super::{in_file, FitSettings};
 use crate::error::{Error, Result};
 use crate::model::design::{self, Design, ModeratorSpec, RawModerator};
+use crate::support::flag::Flag;
 
 /// The design of the included studies.
 ///
@@ -45,7 +46,7 @@ fn interaction_pairs(
             (Some(x), Some(y)) if x != y => pairs.push((x, y)),
             (Some(_), Some(_)) => {
                 return Err(Error::usage(
-                    "--interaction",
+                    Flag::Interaction,
                     format!(
                         "'{a},{b}' names the same moderator twice; give two different moderators"
                     ),
@@ -54,10 +55,11 @@ fn interaction_pairs(
             _ => {
                 let missing = if ia.is_none() { a } else { b };
                 return Err(Error::usage(
-                    "--interaction",
+                    Flag::Interaction,
                     format!(
-                        "'{missing}' is not a moderator of this model; add --moderator {missing} \
-                         (a product term needs both of its moderators in the model)"
+                        "'{missing}' is not a moderator of this model; add {} {missing} \
+                         (a product term needs both of its moderators in the model)",
+                        Flag::Moderator
                     ),
                 ));
             }

@@ -10,6 +10,7 @@ use crate::error::{Error, Result};
 use crate::model::design::Design;
 use crate::model::multilevel::{self, Clusters, Levels, ThreeLevel};
 use crate::model::{self, FitOptions, ModelFit};
+use crate::support::flag::Flag;
 
 /// The working model: how the effects are assumed to depend on each other.
 #[derive(Debug, Clone)]
@@ -80,7 +81,8 @@ pub fn estimate(
         return Err(Error::Model(format!(
             "{source}: the model fits every effect exactly (residual Q = 0, for example because \
              all effects are identical), so the Knapp–Hartung standard errors would be 0. Use \
-             --inference z, which does not scale by the residual variation"
+             {} z, which does not scale by the residual variation",
+            Flag::Inference
         )));
     }
     let working = match (three, clusters) {

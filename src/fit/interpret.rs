@@ -18,6 +18,7 @@ use crate::result::{
     ArtifactReport, ArtifactStudy, AtValue, ConditionalEffect, Interpretation, LevelContrast,
     PictureChange, ProbePoint, RegionOfSignificance, SimpleSlope, Test,
 };
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
 /// Everything `--probe`, `--compare-levels` and `--regions` ask for.
@@ -40,15 +41,18 @@ pub fn interpret(
     }
     if design.moderators.is_empty() {
         let flag = if !settings.probes.is_empty() {
-            "--probe"
+            Flag::Probe
         } else if settings.compare_levels {
-            "--compare-levels"
+            Flag::CompareLevels
         } else {
-            "--regions"
+            Flag::Regions
         };
         return Err(Error::usage(
             flag,
-            "the model has no moderators; add --moderator NAME (the average effect is reported without it)",
+            format!(
+                "the model has no moderators; add {} NAME (the average effect is reported without it)",
+                Flag::Moderator
+            ),
         ));
     }
     let index = |name: &str| design.moderators.iter().position(|m| m.name == name);
@@ -56,7 +60,7 @@ pub fn interpret(
     for spec in &settings.probes {
         let j = index(&spec.name).ok_or_else(|| {
             Error::usage(
-                "--probe",
+                Flag::Probe,
                 format!(
                     "'{}' is not a moderator of this model; the moderators are: {}",
                     spec.name,
@@ -66,10 +70,11 @@ pub fn interpret(
         })?;
         if probed.iter().any(|(i, _)| *i == j) {
             return Err(Error::usage(
-                "--probe",
+                Flag::Probe,
                 format!(
-                    "'{}' is probed twice; give its values in one --probe",
-                    spec.name
+                    "'{}' is probed twice; give its values in one {}",
+                    spec.name,
+                    Flag::Probe
                 ),
             ));
         }
@@ -130,11 +135,13 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
                     .filter(|x| x.is_finite())
                     .ok_or_else(|| {
                         Error::usage(
-                            "--probe",
+                            Flag::Probe,
                             format!(
                                 "'{t}' is not a number (moderator '{}' is numeric); give numbers, \
-                                 e.g. --probe {}=10,20, or no values for its mean and mean ± 1 SD",
-                                m.name, m.name
+                                 e.g. {} {}=10,20, or no values for its mean and mean ± 1 SD",
+                                m.name,
+                                Flag::Probe,
+                                m.name
                             ),
                         )
                     })?;
@@ -156,10 +163,11 @@ fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
                         format!("'{t}' is not a level of moderator '{}'", m.name)
                     };
                     return Err(Error::usage(
-                        "--probe",
+                        Flag::Probe,
                         format!(
-                            "{what}; its levels are: {}. Name levels, or give --probe {} alone for every level",
+                            "{what}; its levels are: {}. Name levels, or give {} {} alone for every level",
                             levels.join(", "),
+                            Flag::Probe,
                             m.name
                         ),
                     ));
@@ -278,7 +286,7 @@ fn level_contrasts(
         .collect();
     if categorical.is_empty() {
         return Err(Error::usage(
-            "--compare-levels",
+            Flag::CompareLevels,
             "the model has no categorical moderator whose levels could be compared",
         ));
     }
@@ -322,9 +330,12 @@ fn regions(design: &Design, fit: &ModelFit) -> Result<Vec<RegionOfSignificance>>
         .collect();
     if numeric.is_empty() {
         return Err(Error::usage(
-            "--regions",
-            "regions of significance are values of a numeric moderator, and this model has \
-             none; add a numeric --moderator",
+            Flag::Regions,
+            format!(
+                "regions of significance are values of a numeric moderator, and this model has \
+                 none; add a numeric {}",
+                Flag::Moderator
+            ),
         ));
     }
     let mut out = Vec::new();

@@ -13,6 +13,7 @@ use crate::model::design::Term;
 use crate::model::tau2::Tau2Method;
 use crate::model::Inference;
 use crate::result::Interpretation;
+use crate::support::flag::Flag;
 
 /// Minimum studies per moderator term below which the output cautions
 /// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
@@ -123,8 +124,9 @@ fn data_notes(settings: &FitSettings, studies: &Studies) -> Vec<String> {
     }
     if !studies.table.label_found {
         notes.push(format!(
-            "No '{}' column: studies are labelled by their line in the file. Name the label column with --label.",
-            settings.label.0
+            "No '{}' column: studies are labelled by their line in the file. Name the label column with {}.",
+            settings.label.0,
+            Flag::Label
         ));
     }
     notes
@@ -230,7 +232,7 @@ fn artifact_messages(settings: &FitSettings, studies: &Studies, m: &mut Messages
             if checked {
                 format!("The range ratio '{col}' is itself a moderator here: its coefficient is the check.")
             } else {
-                format!("As a check, fit with --moderator {col} (the range ratio itself) and see whether it predicts the corrected effects.")
+                format!("As a check, fit with {} {col} (the range ratio itself) and see whether it predicts the corrected effects.", Flag::Moderator)
             }
         ));
     }
@@ -277,19 +279,20 @@ fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
         );
     }
     if !i.readout.subgroups.is_empty() {
-        m.notes.push(
-            "With --cluster the per-level pooled estimates (which would treat the effects as \
-             independent) are left out; the model's predicted values per level remain."
-                .into(),
-        );
+        m.notes.push(format!(
+            "With {} the per-level pooled estimates (which would treat the effects as \
+             independent) are left out; the model's predicted values per level remain.",
+            Flag::Cluster
+        ));
     }
     if let Some(robust) = &c.robust {
-        m.notes.push(
+        m.notes.push(format!(
             "Only the coefficients' robust_se, robust_df, robust_p and the moderator test are \
-             cluster-robust; intervals, predictions, fitted lines and --probe/--regions results \
-             use the model-based covariance."
-                .into(),
-        );
+             cluster-robust; intervals, predictions, fitted lines and {}/{} results \
+             use the model-based covariance.",
+            Flag::Probe,
+            Flag::Regions
+        ));
         let low: Vec<String> = i
             .terms
             .iter()

@@ -13,6 +13,7 @@ use crate::model::{self, inference, FitOptions, ModelFit};
 use crate::result::{
     AtValue, Curve, CurvePoint, Interval, LevelSummary, Prediction, PredictionInterval, Subgroups,
 };
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 use std::collections::BTreeMap;
 
@@ -67,9 +68,12 @@ fn prediction(
 ) -> Result<Prediction> {
     if design.moderators.is_empty() {
         return Err(Error::usage(
-            "--at",
-            "the model has no moderators; the average effect and its prediction interval are \
-             reported without --at",
+            Flag::At,
+            format!(
+                "the model has no moderators; the average effect and its prediction interval are \
+                 reported without {}",
+                Flag::At
+            ),
         ));
     }
     let given: BTreeMap<&str, &str> = spec.iter().map(|(n, v)| (n.as_str(), v.as_str())).collect();
@@ -77,7 +81,7 @@ fn prediction(
         if !design.moderators.iter().any(|m| m.name == *name) {
             let names: Vec<&str> = design.moderators.iter().map(|m| m.name.as_str()).collect();
             return Err(Error::usage(
-                "--at",
+                Flag::At,
                 format!(
                     "'{name}' is not a moderator of this model; the moderators are: {}",
                     names.join(", ")
@@ -91,10 +95,12 @@ fn prediction(
     for m in &design.moderators {
         let Some(text) = given.get(m.name.as_str()) else {
             return Err(Error::usage(
-                "--at",
+                Flag::At,
                 format!(
-                    "give a value for every moderator; '{}' is missing (for example --at {}=<value>,...)",
-                    m.name, m.name
+                    "give a value for every moderator; '{}' is missing (for example {} {}=<value>,...)",
+                    m.name,
+                    Flag::At,
+                    m.name
                 ),
             ));
         };
@@ -107,7 +113,7 @@ fn prediction(
                     .filter(|x: &f64| x.is_finite())
                     .ok_or_else(|| {
                         Error::usage(
-                            "--at",
+                            Flag::At,
                             format!(
                                 "'{text}' is not a number (moderator '{}' is numeric)",
                                 m.name

@@ -7,7 +7,9 @@
 use super::solve::{brent_root, Search};
 use super::wls::{fit_with, ols, Data, Want, Wls};
 use crate::error::{Error, Result};
+use crate::support::flag::Flag;
 use crate::tolerance;
+use std::sync::LazyLock;
 
 pub use crate::result::{Ending, Tau2Method};
 
@@ -25,14 +27,18 @@ pub struct Tau2Fit {
 }
 
 /// What the user can try when a τ² search fails.
-pub(crate) const SEARCH_HINT: &str =
-    "check the data for extreme values, or try another --tau2 estimator";
+pub(crate) static SEARCH_HINT: LazyLock<String> = LazyLock::new(|| {
+    format!(
+        "check the data for extreme values, or try another {} estimator",
+        Flag::Tau2
+    )
+});
 
 /// The search for `what`, failing with [`SEARCH_HINT`].
 fn search(what: &str) -> Search<'_> {
     Search {
         what,
-        hint: SEARCH_HINT,
+        hint: &SEARCH_HINT,
     }
 }
 

@@ -7,6 +7,7 @@ use super::{
 };
 use crate::error::{Error, Result};
 use crate::result::plan::{PlanReport, PlanTest, PowerRow, Simulated, SimulatedK};
+use crate::support::flag::Flag;
 use serde::Serialize;
 
 /// What to solve for.
@@ -160,11 +161,11 @@ pub fn build_with_progress(
 fn information(plan: &Plan) -> Result<f64> {
     plan.information().ok_or_else(|| match &plan.design {
         ModeratorDesign::Values(_) => Error::usage(
-            "--moderator-values",
+            Flag::ModeratorValues,
             format!("the planned values do not vary across the first {} sites; the moderator needs at least two different values", plan.k),
         ),
         d => Error::usage(
-            "--share",
+            Flag::Share,
             format!("the design ({}) cannot be realised with k = {} sites: each level needs at least one site", design_words(d), plan.k),
         ),
     })
@@ -267,7 +268,7 @@ fn solve_target(
         }
     }
     if plan.test == PlanTest::Kh && req.solve == SolveFor::N {
-        notes.push("with --test kh the n needed comes from the noncentral F approximation, not from simulation; check the simulated power at that value by running again with it".into());
+        notes.push(format!("with {} kh the n needed comes from the noncentral F approximation, not from simulation; check the simulated power at that value by running again with it", Flag::Test));
     }
     (k_needed, n_needed)
 }
@@ -304,8 +305,8 @@ fn confirm_needed_k(
             c.evaluated.len()
         )),
         (None, _) => notes.push(format!(
-            "no simulated k reached power {target} within {} simulated values of k (up to --max-k {})",
-            c.evaluated.len(), req.max_k
+            "no simulated k reached power {target} within {} simulated values of k (up to {} {})",
+            c.evaluated.len(), Flag::MaxK, req.max_k
         )),
     }
     Ok(Some(c))

@@ -6,6 +6,7 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::model::{self, tau2::Tau2Method, FitOptions, Inference};
 use crate::result::plan::{KPower, PlanTest, Simulated, SimulatedK};
+use crate::support::flag::Flag;
 use crate::support::rng::block_rng;
 
 /// Simulated data sets per block. Each block draws from its own generator
@@ -93,9 +94,11 @@ pub fn simulate(
         .fold((0, 0), |(h, f), (bh, bf)| (h + bh, f + bf));
     let used = simulations - failed;
     if used == 0 {
-        return Err(Error::Model(
-            "no simulated data set could be fitted; check --tau2 and --variance".into(),
-        ));
+        return Err(Error::Model(format!(
+            "no simulated data set could be fitted; check {} and {}",
+            Flag::Tau2,
+            Flag::Variance
+        )));
     }
     let power = hits as f64 / used as f64;
     Ok(Simulated {

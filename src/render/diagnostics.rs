@@ -4,6 +4,7 @@
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, FitReport};
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -82,7 +83,9 @@ pub fn leave_one_out(r: &FitReport, _: &Ctx, o: &mut String) {
         if !list_all {
             let _ = writeln!(
                 o,
-                "  (only the flagged studies are listed; --json and --table have all {})",
+                "  (only the flagged studies are listed; {} and {} have all {})",
+                Flag::Json,
+                Flag::Table,
                 loo.len()
             );
         }
@@ -157,7 +160,9 @@ pub fn influence(r: &FitReport, _: &Ctx, o: &mut String) {
         if !list_all {
             let _ = writeln!(
                 o,
-                "  (only the influential studies are listed; --json and --table have all {})",
+                "  (only the influential studies are listed; {} and {} have all {})",
+                Flag::Json,
+                Flag::Table,
                 inf.len()
             );
         }
@@ -346,7 +351,7 @@ pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
         for (n, s) in steps.iter().enumerate() {
             if many && n >= MAX_LISTED_STUDIES / 2 && n + MAX_LISTED_STUDIES / 2 < steps.len() {
                 if n == MAX_LISTED_STUDIES / 2 {
-                    let _ = writeln!(o, "  ... (all steps are in --json)");
+                    let _ = writeln!(o, "  ... (all steps are in {})", Flag::Json);
                 }
                 continue;
             }

@@ -1,7 +1,8 @@
 //! The terminal summary of `pondus sites`: a pure function of the
-//! [`SitesReport`](crate::result::SitesReport).
+//! [`SitesReport`].
 
 use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -147,8 +148,9 @@ fn exclusions_and_join(o: &mut String, r: &SitesReport) {
         if r.excluded.len() > MAX_LISTED_SITES {
             let _ = writeln!(
                 o,
-                "  ... and {} more (see --json)",
-                r.excluded.len() - MAX_LISTED_SITES
+                "  ... and {} more (see {})",
+                r.excluded.len() - MAX_LISTED_SITES,
+                Flag::Json
             );
         }
     }

@@ -4,6 +4,7 @@ use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDI
 use super::{diagnostics, interpret, multilevel};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 use std::io::Write;
@@ -360,8 +361,9 @@ fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
     if r.studies.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(
             o,
-            "Studies: {} used; write them all with --table FILE.csv\n",
-            r.studies.len()
+            "Studies: {} used; write them all with {} FILE.csv\n",
+            r.studies.len(),
+            Flag::Table
         );
         return;
     }
@@ -417,8 +419,10 @@ fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
     if r.excluded.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(
             o,
-            "  ... and {} more (all are in --table and --json)",
-            r.excluded.len() - MAX_LISTED_STUDIES
+            "  ... and {} more (all are in {} and {})",
+            r.excluded.len() - MAX_LISTED_STUDIES,
+            Flag::Table,
+            Flag::Json
         );
     }
     let _ = writeln!(o);

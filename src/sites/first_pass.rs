@@ -6,6 +6,7 @@ use super::moments::{self, Moments};
 use super::read::{self, PassSummary};
 use super::settings::{row_columns, Layout, SitesSettings};
 use crate::error::{Error, Result};
+use crate::support::flag::Flag;
 use std::io::Read;
 
 /// One site's first-pass summary.
@@ -53,7 +54,7 @@ pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Res
     };
     if layout.dim() > moments::MAX_DIM {
         return Err(Error::usage(
-            "--covariate",
+            Flag::Covariate,
             format!("at most {} covariates are supported", moments::MAX_DIM - 4),
         ));
     }
@@ -87,9 +88,10 @@ pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Res
     }
     if !x_varies {
         return Err(Error::Model(format!(
-            "{source}: x ('{}') is {} in every used row, so no site has a slope; check that --x names the predictor",
+            "{source}: x ('{}') is {} in every used row, so no site has a slope; check that {} names the predictor",
             s.x,
-            first_x.unwrap_or(f64::NAN)
+            first_x.unwrap_or(f64::NAN),
+            Flag::X
         )));
     }
     Ok(Summaries {

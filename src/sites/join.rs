@@ -4,6 +4,7 @@ use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::{self, ColumnRequest};
 use crate::render::sites_effects::COLUMNS;
 use crate::result::{SiteJoin, SitesReport};
+use crate::support::flag::Flag;
 use std::collections::HashMap;
 
 /// Appends every other column of the site table `bytes` (named `source`)
@@ -25,9 +26,11 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
             header: key.to_string(),
             required: true,
             purpose: "the site ids of the site table".into(),
-            hint:
-                "Name the id column with --info-key <header> (default: the --site column's name)."
-                    .into(),
+            hint: format!(
+                "Name the id column with {} <header> (default: the {} column's name).",
+                Flag::InfoKey,
+                Flag::Site
+            ),
         }],
     )?;
     let key_header = probe

@@ -37,6 +37,7 @@ pub use settings::{Layout, SitesSettings};
 use crate::error::{Error, Result};
 use crate::input::Delimiter;
 use crate::result::{SitesInput, SitesInputKind, SitesReport};
+use crate::support::flag::Flag;
 use assemble::assemble;
 use fits::fit_sites;
 use robust::robust_pass;
@@ -66,7 +67,7 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         match input {
             RowInput::File(p) => summarise_rows(source, open(p)?, s)?,
             RowInput::Stream(_) if s.robust => return Err(Error::usage(
-                "--robust",
+                Flag::Robust,
                 "HC3 standard errors need each row's leverage and residual, so the file is read a \
                  second time, and standard input cannot be read twice; save the data to a file and \
                  give its path",
@@ -100,9 +101,12 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
 pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<SitesReport> {
     if s.robust {
         return Err(Error::usage(
-            "--robust",
-            "HC3 standard errors need the participant rows (each row's leverage and residual); a \
-             moments table has only per-site summaries. Run on the raw rows, or drop --robust",
+            Flag::Robust,
+            format!(
+                "HC3 standard errors need the participant rows (each row's leverage and residual); a \
+                 moments table has only per-site summaries. Run on the raw rows, or drop {}",
+                Flag::Robust
+            ),
         ));
     }
     let table = moments_table::read_moments(source, bytes)?;

@@ -5,6 +5,7 @@ use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{check_unique, format_error, read_headers};
 use crate::input::{detect_delimiter, find_header};
+use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
 
@@ -69,7 +70,7 @@ pub struct RowColumns {
     pub site: String,
     /// Numeric headers in the order of the values handed to the caller, with
     /// the flag each was given as (for messages).
-    pub numeric: Vec<(String, &'static str)>,
+    pub numeric: Vec<(String, Flag)>,
 }
 
 /// What a pass saw besides the rows it handed on.
@@ -178,7 +179,7 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
 /// # Errors
 /// [`Error::MissingColumn`] when it is absent; [`Error::Format`] when its
 /// name is repeated in the header.
-fn locate(source: &str, headers: &[String], wanted: &str, flag: &str) -> Result<usize> {
+fn locate(source: &str, headers: &[String], wanted: &str, flag: Flag) -> Result<usize> {
     let i = find_header(headers, wanted).ok_or_else(|| Error::MissingColumn {
         source_name: source.to_string(),
         column: wanted.to_string(),
@@ -321,10 +322,10 @@ pub fn for_each_row<R: Read>(
 ) -> Result<PassSummary> {
     let (mut reader, delimiter) = open(source, input)?;
     let headers = read_headers(source, &mut reader)?;
-    let site_ix = locate(source, &headers, &cols.site, "--site")?;
+    let site_ix = locate(source, &headers, &cols.site, Flag::Site)?;
     let mut num_ix = Vec::with_capacity(cols.numeric.len());
     for (h, flag) in &cols.numeric {
-        num_ix.push(locate(source, &headers, h, flag)?);
+        num_ix.push(locate(source, &headers, h, *flag)?);
     }
     let mut summary = PassSummary {
         delimiter,
@@ -408,7 +409,7 @@ mod tests {
     fn cols() -> RowColumns {
         RowColumns {
             site: "site".into(),
-            numeric: vec![("x".into(), "--x"), ("y".into(), "--y")],
+            numeric: vec![("x".into(), Flag::X), ("y".into(), Flag::Y)],
         }
     }
 

@@ -8,6 +8,7 @@ use super::ols::Hc3;
 use super::read::{self, PassSummary};
 use super::settings::{row_columns, Layout, SitesSettings};
 use crate::error::{Error, Result};
+use crate::support::flag::Flag;
 use std::collections::HashMap;
 use std::io::Read;
 
@@ -84,10 +85,11 @@ pub(super) fn robust_pass<R: Read>(
     if changed {
         return Err(Error::Format {
             source_name: source.to_string(),
-            message:
-                "the file changed between the two passes that --robust makes (its rows differ \
-                      from the first reading); run again on a file that is not being written to"
-                    .into(),
+            message: format!(
+                "the file changed between the two passes that {} makes (its rows differ \
+                 from the first reading); run again on a file that is not being written to",
+                Flag::Robust
+            ),
         });
     }
     Ok(robust)

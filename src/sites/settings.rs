@@ -2,6 +2,7 @@
 //! vector that follows from them.
 
 use super::read::RowColumns;
+use crate::support::flag::Flag;
 
 /// Checked settings of the per-site stage.
 #[derive(Debug, Clone)]
@@ -75,12 +76,12 @@ impl Layout {
 /// The columns the row passes read: the site id, then x, the covariates,
 /// [w] and y as numbers.
 pub(super) fn row_columns(s: &SitesSettings) -> RowColumns {
-    let mut numeric = vec![(s.x.clone(), "--x")];
-    numeric.extend(s.covariates.iter().map(|c| (c.clone(), "--covariate")));
+    let mut numeric = vec![(s.x.clone(), Flag::X)];
+    numeric.extend(s.covariates.iter().map(|c| (c.clone(), Flag::Covariate)));
     if let Some(w) = &s.w {
-        numeric.push((w.clone(), "--w"));
+        numeric.push((w.clone(), Flag::W));
     }
-    numeric.push((s.y.clone(), "--y"));
+    numeric.push((s.y.clone(), Flag::Y));
     RowColumns {
         site: s.site.clone(),
         numeric,

@@ -11,6 +11,7 @@
 
 use crate::error::{Error, Result};
 use crate::sites::Layout;
+use crate::support::flag::Flag;
 
 /// Column names of the query's input, as the user gave them.
 #[derive(Debug, Clone)]
@@ -37,7 +38,7 @@ pub struct QuerySpec {
 /// # Errors
 /// [`Error::Usage`] for an empty name or one containing a NUL character
 /// (which no engine accepts in an identifier).
-pub fn quote_ident(flag: &str, name: &str) -> Result<String> {
+pub fn quote_ident(flag: Flag, name: &str) -> Result<String> {
     if name.is_empty() {
         return Err(Error::usage(flag, "the name is empty"));
     }
@@ -57,10 +58,10 @@ pub fn quote_ident(flag: &str, name: &str) -> Result<String> {
 pub fn query(spec: &QuerySpec) -> Result<String> {
     let mut table_parts = Vec::new();
     for part in spec.table.split('.') {
-        table_parts.push(quote_ident("--table", part)?);
+        table_parts.push(quote_ident(Flag::Table, part)?);
     }
-    let site = quote_ident("--site", &spec.site)?;
-    let dbl = |flag: &str, c: &str| -> Result<String> {
+    let site = quote_ident(Flag::Site, &spec.site)?;
+    let dbl = |flag: Flag, c: &str| -> Result<String> {
         Ok(format!(
             "CAST({} AS DOUBLE PRECISION)",
             quote_ident(flag, c)?
@@ -70,20 +71,20 @@ pub fn query(spec: &QuerySpec) -> Result<String> {
         covariates: spec.covariates.len(),
         with_w: spec.w.is_some(),
     };
-    let mut exprs = vec![dbl("--x", &spec.x)?];
-    let mut raw = vec![quote_ident("--x", &spec.x)?];
+    let mut exprs = vec![dbl(Flag::X, &spec.x)?];
+    let mut raw = vec![quote_ident(Flag::X, &spec.x)?];
     for c in &spec.covariates {
-        exprs.push(dbl("--covariate", c)?);
-        raw.push(quote_ident("--covariate", c)?);
+        exprs.push(dbl(Flag::Covariate, c)?);
+        raw.push(quote_ident(Flag::Covariate, c)?);
     }
     if let Some(w) = &spec.w {
-        let wq = dbl("--w", w)?;
+        let wq = dbl(Flag::W, w)?;
         exprs.push(wq.clone());
         exprs.push(format!("({} * {})", exprs[0], wq));
-        raw.push(quote_ident("--w", w)?);
+        raw.push(quote_ident(Flag::W, w)?);
     }
-    exprs.push(dbl("--y", &spec.y)?);
-    raw.push(quote_ident("--y", &spec.y)?);
+    exprs.push(dbl(Flag::Y, &spec.y)?);
+    raw.push(quote_ident(Flag::Y, &spec.y)?);
     let names = layout.short_names();
     let mut sel = vec![
         format!("  {site} AS \"site\""),
@@ -104,7 +105,8 @@ pub fn query(spec: &QuerySpec) -> Result<String> {
     }
     let filter: Vec<String> = raw.iter().map(|c| format!("{c} IS NOT NULL")).collect();
     Ok(format!(
-        "-- per-site moments for pondus sites --moments (variables: {vars})\nSELECT\n{sel}\nFROM {table}\nWHERE {filter}\nGROUP BY {site}\nORDER BY {site};\n",
+        "-- per-site moments for pondus sites {moments} (variables: {vars})\nSELECT\n{sel}\nFROM {table}\nWHERE {filter}\nGROUP BY {site}\nORDER BY {site};\n",
+        moments = Flag::Moments,
         vars = names.join(", "),
         sel = sel.join(",\n"),
         table = table_parts.join("."),
@@ -129,12 +131,12 @@ mod tests {
 
     #[test]
     fn identifiers_are_quoted() {
-        assert_eq!(quote_ident("--x", "a\"b").unwrap(), "\"a\"\"b\"");
+        assert_eq!(quote_ident(Flag::X, "a\"b").unwrap(), "\"a\"\"b\"");
         assert_eq!(
-            quote_ident("--x", "x; DROP TABLE t").unwrap(),
+            quote_ident(Flag::X, "x; DROP TABLE t").unwrap(),
             "\"x; DROP TABLE t\""
         );
-        assert!(quote_ident("--x", "").is_err());
+        assert!(quote_ident(Flag::X, "").is_err());
         let q = query(&spec()).unwrap();
         assert!(q.contains("\"lab \"\"id\"\"\" AS \"site\""), "{q}");
         assert!(q.contains("COVAR_POP(CAST(\"x\" AS DOUBLE PRECISION), CAST(\"age\" AS DOUBLE PRECISION)) AS \"cov_x_c1\""), "{q}");

@@ -4,7 +4,10 @@
 //! through [`Flag`], not a string literal: the binary's tests check every
 //! value here against its clap definitions (the flag exists, and exactly the
 //! subcommands listed take it), so a renamed or removed flag cannot leave a
-//! message that names a flag the tool does not have.
+//! message that names a flag the tool does not have. The layout test
+//! (`tests/integration/layout.rs`) scans the library's sources (all of
+//! `src/` but the binary's `src/cli/`) and fails on a string literal that
+//! spells a flag out.
 
 use std::fmt;
 

@@ -1,5 +1,5 @@
 //! Small shared pieces below every other layer: the names of the flags
-//! that library messages mention ([`flag`]), numbers as text ([`format`]),
+//! that library messages mention ([`flag`]), numbers as text ([`format`](mod@format)),
 //! hashing of inputs ([`hash`]) and the seeded random-number generator of
 //! the simulations and permutations ([`rng`]).
 

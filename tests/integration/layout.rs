@@ -1,6 +1,8 @@
 //! The shape of the code, checked: the layers import only downwards, no
-//! source file is over 800 lines, no function over 150, and the library
-//! uses nothing of the command line (clap, indicatif, anyhow).
+//! source file is over 800 lines, no function over 150, the library uses
+//! nothing of the command line (clap, indicatif, anyhow), every file opens
+//! with a module doc, and no string literal of the library spells out a
+//! flag (messages name flags through `Flag`).
 //!
 //! The layers, top to bottom (docs/architecture.md draws them):
 //! `cli → fit/sites/plan/sql → diagnose/model/render → result →
@@ -9,6 +11,7 @@
 //! in [`SIDEWAYS`] are allowed.
 
 use crate::util::repo;
+use pondus::support::flag::Flag;
 use std::path::{Path, PathBuf};
 
 /// The layer of each top-level module of the library (higher = nearer the
@@ -338,5 +341,203 @@ fn the_library_uses_nothing_of_the_command_line() {
             .unwrap()
             .contains("mod cli"),
         "the library must not declare the cli module"
+    );
+}
+
+#[test]
+fn every_source_file_says_what_it_is_for() {
+    let bare: Vec<String> = sources()
+        .iter()
+        .filter(|(_, text)| !text.trim_start().starts_with("//!"))
+        .map(|(rel, _)| format!("src/{rel}"))
+        .collect();
+    assert!(
+        bare.is_empty(),
+        "files without a module doc (//!):\n{}",
+        bare.join("\n")
+    );
+}
+
+/// Whether `c` can be part of an identifier (so an `r` before it is no
+/// raw-string prefix).
+fn ident(c: Option<&char>) -> bool {
+    c.is_some_and(|c| c.is_alphanumeric() || *c == '_')
+}
+
+/// The end (exclusive) of the literal opened by the `"` at `open`, with
+/// `hashes` `#` after its closing quote (a raw string when `raw`).
+fn literal_end(src: &[char], open: usize, raw: bool, hashes: usize) -> usize {
+    let mut i = open + 1;
+    while i < src.len() {
+        match src[i] {
+            '\\' if !raw => i += 2,
+            '"' if src[i + 1..]
+                .iter()
+                .take(hashes)
+                .filter(|&&c| c == '#')
+                .count()
+                == hashes =>
+            {
+                return i;
+            }
+            _ => i += 1,
+        }
+    }
+    src.len()
+}
+
+/// The string literals of Rust source `text` that can reach a message,
+/// with the line each starts on: comments (doc comments too) are
+/// skipped, and so are the items under `#[cfg(test)]` and the table of
+/// the `flags!` invocation.
+fn message_literals(text: &str) -> Vec<(usize, String)> {
+    let src: Vec<char> = text.chars().collect();
+    let at = |i: usize, s: &str| {
+        s.chars()
+            .enumerate()
+            .all(|(k, c)| src.get(i + k) == Some(&c))
+    };
+    let mut out = Vec::new();
+    let (mut i, mut line, mut depth) = (0, 1, 0usize);
+    // The brace depth of the block being skipped; whether the next block is.
+    let (mut skipping, mut skip_next): (Option<usize>, bool) = (None, false);
+    while i < src.len() {
+        let c = src[i];
+        let prev = i.checked_sub(1).and_then(|p| src.get(p));
+        if at(i, "//") {
+            while i < src.len() && src[i] != '\n' {
+                i += 1;
+            }
+            continue;
+        }
+        if at(i, "/*") {
+            let mut nest = 0;
+            while i < src.len() {
+                if at(i, "/*") {
+                    nest += 1;
+                    i += 2;
+                } else if at(i, "*/") {
+                    nest -= 1;
+                    i += 2;
+                    if nest == 0 {
+                        break;
+                    }
+                } else {
+                    line += usize::from(src[i] == '\n');
+                    i += 1;
+                }
+            }
+            continue;
+        }
+        let raw_hashes = (c == 'r' && (!ident(prev) || prev == Some(&'b')))
+            .then(|| src[i + 1..].iter().take_while(|&&c| c == '#').count())
+            .filter(|&h| src.get(i + 1 + h) == Some(&'"'));
+        if c == '"' || raw_hashes.is_some() {
+            let hashes = raw_hashes.unwrap_or(0);
+            let open = if raw_hashes.is_some() {
+                i + 1 + hashes
+            } else {
+                i
+            };
+            let end = literal_end(&src, open, raw_hashes.is_some(), hashes);
+            if skipping.is_none() {
+                out.push((line, src[open + 1..end].iter().collect()));
+            }
+            line += src[i..end].iter().filter(|&&c| c == '\n').count();
+            i = end + 1 + hashes;
+            continue;
+        }
+        match c {
+            '\'' if src.get(i + 1) == Some(&'\\') => {
+                i += 3;
+                while i < src.len() && src[i] != '\'' {
+                    i += 1;
+                }
+            }
+            '\'' if src.get(i + 2) == Some(&'\'') => i += 2,
+            '\n' => line += 1,
+            '#' if at(i, "#[cfg(test)]") => skip_next = true,
+            'f' if at(i, "flags!") && !ident(prev) => skip_next = true,
+            ';' => skip_next = false,
+            '{' => {
+                depth += 1;
+                if skip_next && skipping.is_none() {
+                    skipping = Some(depth);
+                }
+                skip_next = false;
+            }
+            '}' => {
+                if skipping == Some(depth) {
+                    skipping = None;
+                }
+                depth = depth.saturating_sub(1);
+            }
+            _ => {}
+        }
+        i += 1;
+    }
+    out
+}
+
+/// The flags written out as `--name` in `literal`.
+fn flags_in(literal: &str) -> Vec<Flag> {
+    let mut out = Vec::new();
+    for (k, _) in literal.match_indices("--") {
+        let name: String = literal[k + 2..]
+            .chars()
+            .take_while(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || *c == '-')
+            .collect();
+        if let Some(f) = Flag::ALL.iter().find(|f| f.name()[2..] == name) {
+            out.push(*f);
+        }
+    }
+    out
+}
+
+#[test]
+fn the_scanner_finds_flag_literals_in_code_only() {
+    let text = "//! uses `--probe`\n\
+                /// \"--probe\" in a doc comment\n\
+                fn f() -> String { let c = '\"'; let q = '\\''; \n\
+                /* \"--regions\" */ format!(\"e.g. --probe {}\", r#\"--at \"x\"\"#) }\n\
+                const A: &str = \"--width: not --widths, var(--accent) or -- x\";\n\
+                #[cfg(test)]\nmod tests { const B: &str = \"--json\"; }\n\
+                flags! { Loo => \"--loo\", [\"fit\"]; }\n\
+                const C: &str = \"--moderator-sd\";\n";
+    let found: Vec<(usize, Vec<Flag>)> = message_literals(text)
+        .into_iter()
+        .map(|(line, l)| (line, flags_in(&l)))
+        .filter(|(_, f)| !f.is_empty())
+        .collect();
+    assert_eq!(
+        found,
+        [
+            (4, vec![Flag::Probe]),
+            (4, vec![Flag::At]),
+            (5, vec![Flag::Width]),
+            (9, vec![Flag::ModeratorSd]),
+        ]
+    );
+}
+
+/// Library messages name flags through [`Flag`]: no string literal in
+/// `src/` outside the binary (`src/cli/`, `main.rs`) spells out a flag.
+#[test]
+fn library_literals_name_no_flag() {
+    let mut found = Vec::new();
+    for (rel, text) in sources() {
+        if module_of(&rel) == "cli" {
+            continue;
+        }
+        for (line, literal) in message_literals(&text) {
+            for flag in flags_in(&literal) {
+                found.push(format!("src/{rel}:{line}: {flag}"));
+            }
+        }
+    }
+    assert!(
+        found.is_empty(),
+        "flags written as string literals (use pondus::support::flag::Flag):\n{}",
+        found.join("\n")
     );
 }

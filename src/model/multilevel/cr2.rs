@@ -8,6 +8,7 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::model::standardise;
 use crate::model::wls::Data;
+use crate::support::flag::Flag;
 use crate::tolerance;
 use nalgebra::{DMatrix, DVector};
 
@@ -87,8 +88,10 @@ pub fn robust(
     let m = cl.m();
     if m <= p {
         return Err(Error::Model(format!(
-            "--robust: {m} clusters cannot support {p} model terms (the cluster-robust variance \
-             needs more clusters than coefficients); drop moderators, or leave out --robust"
+            "{}: {m} clusters cannot support {p} model terms (the cluster-robust variance \
+             needs more clusters than coefficients); drop moderators, or leave out {}",
+            Flag::Robust,
+            Flag::Robust
         )));
     }
     let k = y.len();

@@ -9,8 +9,10 @@ use crate::model::solve::{brent_min, brent_root, nelder_mead, Search};
 use crate::model::tau2;
 use crate::model::wls::Data;
 use crate::result::Ending;
+use crate::support::flag::Flag;
 use crate::tolerance;
 use nalgebra::{DMatrix, DVector};
+use std::sync::LazyLock;
 
 /// One evaluation of the three-level model at (σ²_b, σ²_w).
 #[derive(Debug, Clone)]
@@ -125,12 +127,18 @@ impl Objective<'_> {
 }
 
 /// What the user can try when a search of the three-level model fails.
-const HINT: &str = "check the cluster column and the data for extreme values, or fit the \
-                    two-level model with --levels 2 --robust";
+static HINT: LazyLock<String> = LazyLock::new(|| {
+    format!(
+        "check the cluster column and the data for extreme values, or fit the \
+         two-level model with {} 2 {}",
+        Flag::Levels,
+        Flag::Robust
+    )
+});
 
 /// The search for `what`, failing with [`HINT`].
 fn search(what: &str) -> Search<'_> {
-    Search { what, hint: HINT }
+    Search { what, hint: &HINT }
 }
 
 /// Maximises `f` over s ≥ 0 on [0, hi]: Brent's method (argmin's `BrentOpt`)
@@ -279,7 +287,7 @@ pub fn profile_interval(
     // The root searches give the advice of the τ² searches.
     let root_search = Search {
         what,
-        hint: tau2::SEARCH_HINT,
+        hint: &tau2::SEARCH_HINT,
     };
     let lower = if s_hat <= 0.0 || g(0.0) <= 0.0 {
         0.0

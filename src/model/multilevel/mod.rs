@@ -32,6 +32,7 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::model::tau2::{Tau2Fit, Tau2Method};
 use crate::model::wls::{self, Data, Want};
+use crate::support::flag::Flag;
 use crate::tolerance;
 use likelihood::{max_line, upper_scale, Objective};
 
@@ -135,11 +136,14 @@ pub fn fit(
         Tau2Method::Ml => false,
         other => {
             return Err(Error::usage(
-                "--tau2",
+                Flag::Tau2,
                 format!(
-                    "the three-level model (--cluster) is fitted by reml or ml only, not '{}'; \
-                     use --tau2 reml (the default) or --tau2 ml",
-                    other.id()
+                    "the three-level model ({}) is fitted by reml or ml only, not '{}'; \
+                     use {} reml (the default) or {} ml",
+                    Flag::Cluster,
+                    other.id(),
+                    Flag::Tau2,
+                    Flag::Tau2
                 ),
             ))
         }

@@ -11,6 +11,7 @@ use super::{
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{AtValue, CurvePoint, FitReport, ModeratorKind};
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
 /// Builds the bubble plot.
@@ -34,7 +35,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
     if height - top - bottom < 120.0 {
         return Err(Error::usage(
-            "--height",
+            Flag::Height,
             format!(
                 "{height} pixels leave no room for the bubble plot; use at least {:.0}",
                 top + bottom + 120.0
@@ -67,15 +68,18 @@ fn moderator(report: &FitReport, opts: &PlotOptions) -> Result<usize> {
     let mods = &report.model.moderators;
     if mods.is_empty() {
         return Err(Error::usage(
-            "--bubble",
-            "a bubble plot draws the effect against a moderator, and this model has none; add \
-             --moderator NAME (a numeric one for a fitted line)",
+            Flag::Bubble,
+            format!(
+                "a bubble plot draws the effect against a moderator, and this model has none; add \
+                 {} NAME (a numeric one for a fitted line)",
+                Flag::Moderator
+            ),
         ));
     }
     Ok(match &opts.bubble_x {
         Some(name) => mods.iter().position(|m| &m.name == name).ok_or_else(|| {
             Error::usage(
-                "--bubble-x",
+                Flag::BubbleX,
                 format!(
                     "'{name}' is not a moderator of this model; the moderators are: {}",
                     mods.iter()

@@ -8,6 +8,7 @@ use super::{measure_name, model_line, size, wrap, Align, Axis, Frame, PlotOption
 use crate::effect::ReadingScale;
 use crate::error::Result;
 use crate::result::FitReport;
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 use plotters::style::RGBColor;
 
@@ -104,7 +105,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
     if height - top - bottom < 120.0 {
         return Err(crate::error::Error::usage(
-            "--height",
+            Flag::Height,
             format!(
                 "{height} pixels leave no room for the funnel plot; use at least {:.0}",
                 top + bottom + 120.0

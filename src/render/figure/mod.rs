@@ -21,6 +21,7 @@ pub use scene::{Align, Scene};
 use crate::effect::{Measure, ReadingScale};
 use crate::error::{Error, Result};
 use crate::result::{FitReport, Inference, MeasureId, Tau2Method};
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 use std::path::Path;
 
@@ -117,7 +118,7 @@ pub const SIZE_RANGE: (u32, u32) = (200, 30_000);
 /// [`Error::Io`] (action "drawing") when plotters or the PNG encoder fails;
 /// [`Error::Usage`] for a PNG of more than [`scene::MAX_PNG_PIXELS`] pixels.
 pub fn encode(scene: &Scene, format: Format) -> Result<Vec<u8>> {
-    scene::encode(scene, format, "--width")
+    scene::encode(scene, format, Flag::Width)
 }
 
 /// Renders the forest plot of `report`.
@@ -125,7 +126,7 @@ pub fn encode(scene: &Scene, format: Format) -> Result<Vec<u8>> {
 /// # Errors
 /// [`Error::Usage`] for an option the model cannot support; drawing errors.
 pub fn forest_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&forest::scene(report, opts)?, format, "--forest")
+    scene::encode(&forest::scene(report, opts)?, format, Flag::Forest)
 }
 
 /// Renders the bubble plot of `report`.
@@ -134,7 +135,7 @@ pub fn forest_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// [`Error::Usage`] naming `--bubble` or `--bubble-x` when the model has no
 /// moderator to draw against; drawing errors.
 pub fn bubble_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&bubble::scene(report, opts)?, format, "--bubble")
+    scene::encode(&bubble::scene(report, opts)?, format, Flag::Bubble)
 }
 
 /// Renders the funnel plot of `report`.
@@ -142,7 +143,7 @@ pub fn bubble_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// # Errors
 /// Drawing errors.
 pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&funnel::scene(report, opts)?, format, "--funnel")
+    scene::encode(&funnel::scene(report, opts)?, format, Flag::Funnel)
 }
 
 /// One picture for a page (the HTML report): inline SVG markup and words

@@ -3,6 +3,7 @@
 
 use super::{Format, FONT};
 use crate::error::{Error, Result};
+use crate::support::flag::Flag;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -396,7 +397,7 @@ pub fn font_face_css() -> String {
     )
 }
 
-pub(crate) fn encode(scene: &Scene, format: Format, flag: &str) -> Result<Vec<u8>> {
+pub(crate) fn encode(scene: &Scene, format: Format, flag: Flag) -> Result<Vec<u8>> {
     if !font_ready() {
         return Err(drawing_error("the bundled font could not be loaded"));
     }
@@ -406,9 +407,11 @@ pub(crate) fn encode(scene: &Scene, format: Format, flag: &str) -> Result<Vec<u8
             option: flag.into(),
             message: format!(
                 "a {w} × {h} PNG would need {} MB of memory (the limit is {} megapixels); write an \
-                 .svg instead, or give a smaller --width/--height",
+                 .svg instead, or give a smaller {}/{}",
                 u64::from(w) * u64::from(h) * 3 / 1_000_000,
-                MAX_PNG_PIXELS / 1_000_000
+                MAX_PNG_PIXELS / 1_000_000,
+                Flag::Width,
+                Flag::Height
             ),
         });
     }

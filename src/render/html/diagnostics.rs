@@ -5,6 +5,7 @@
 use super::page::{at_text, Page};
 use super::section::FitCtx;
 use crate::result::FitReport;
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 
 /// Studies listed one by one in the robustness tables at most; above this,
@@ -138,8 +139,9 @@ fn leave_one_out(page: &mut Page, report: &FitReport) {
             "The model refitted without each study".to_string()
         } else {
             format!(
-                "The flagged studies among {} refits (all are in --table)",
-                loo.len()
+                "The flagged studies among {} refits (all are in {})",
+                loo.len(),
+                Flag::Table
             )
         };
         page.table(&caption, &head_ref, &rows);
@@ -191,10 +193,10 @@ fn influence(page: &mut Page, report: &FitReport) {
             })
             .collect();
         page.table(
-            if inf.len() <= MAX_LISTED {
-                "Influence measures (cut-offs exceeded in the last column)"
+            &if inf.len() <= MAX_LISTED {
+                "Influence measures (cut-offs exceeded in the last column)".to_string()
             } else {
-                "The influential studies (all are in --table)"
+                format!("The influential studies (all are in {})", Flag::Table)
             },
             &[
                 "study",

@@ -6,6 +6,7 @@ use super::section::{always, body, Section, SitesCtx};
 use super::{figures, reproduce};
 use crate::render::figure::PageFigure;
 use crate::result::{FitReport, SitesReport};
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -154,7 +155,10 @@ fn question(page: &mut Page, cx: &SitesCtx) {
             page.care(&st.cautions);
         }
     } else {
-        page.p("Only the first stage was run; add --fit for the pooled and across-site answers.");
+        page.p(&format!(
+            "Only the first stage was run; add {} for the pooled and across-site answers.",
+            Flag::Fit
+        ));
     }
 }
 

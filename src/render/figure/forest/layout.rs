@@ -8,6 +8,7 @@ use crate::render::figure::{
     decimals_for, measure_name, model_line, size, wrap, Axis, PlotOptions, SortKey,
 };
 use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups, Tau2Method};
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
 /// One row of the plot, top to bottom.
@@ -336,7 +337,7 @@ impl<'a> Forest<'a> {
         if self.px1 - self.px0 < 140.0 {
             let need = width + 140.0 - (self.px1 - self.px0);
             return Err(Error::usage(
-                "--width",
+                Flag::Width,
                 format!(
                     "{width} pixels leave no room for the forest plot's columns; use at least {need:.0}"
                 ),
@@ -398,11 +399,12 @@ impl<'a> Forest<'a> {
                 let rh = (f64::from(h) - top - bottom) / n_rows as f64;
                 if rh < 4.0 {
                     return Err(Error::usage(
-                        "--height",
+                        Flag::Height,
                         format!(
                             "{h} pixels are too few for {n_rows} rows; use at least {:.0} (or leave \
-                             --height out for an automatic height)",
-                            top + bottom + 4.0 * n_rows as f64
+                             {} out for an automatic height)",
+                            top + bottom + 4.0 * n_rows as f64,
+                            Flag::Height
                         ),
                     ));
                 }

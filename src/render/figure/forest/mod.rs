@@ -17,6 +17,7 @@ mod layout;
 use super::{PlotOptions, Scene, SortKey};
 use crate::error::{Error, Result};
 use crate::result::{AtValue, FitReport, ModeratorKind};
+use crate::support::flag::Flag;
 
 /// The most studies a forest plot draws (one row each).
 pub const MAX_STUDIES: usize = 20_000;
@@ -40,14 +41,17 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
 fn check(report: &FitReport, opts: &PlotOptions) -> Result<()> {
     if opts.show_fitted && report.model.moderators.is_empty() {
         return Err(Error::usage(
-            "--show-fitted",
-            "the model has no moderators, so every fitted value is the average; add --moderator",
+            Flag::ShowFitted,
+            format!(
+                "the model has no moderators, so every fitted value is the average; add {}",
+                Flag::Moderator
+            ),
         ));
     }
     let studies = &report.studies;
     if studies.len() > MAX_STUDIES {
         return Err(Error::usage(
-            "--forest",
+            Flag::Forest,
             format!(
                 "{} studies are too many rows for a forest plot (at most {MAX_STUDIES}); a funnel \
                  or bubble plot shows them all",
@@ -75,7 +79,7 @@ fn order(report: &FitReport, sort: &SortKey) -> Result<Vec<usize>> {
                     .map(|m| m.name.as_str())
                     .collect();
                 return Err(Error::usage(
-                    "--sort",
+                    Flag::Sort,
                     format!(
                         "'{name}' is not effect, precision, input or a moderator of this model{}",
                         if names.is_empty() {
