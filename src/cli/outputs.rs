@@ -160,15 +160,19 @@ pub fn check_targets(input: Option<&Path>, outputs: &[(&str, &Target)]) -> Resul
 struct FolderProblem {
     /// The folder.
     dir: PathBuf,
-    /// What is wrong with it ("is missing", "is not a folder").
-    what: &'static str,
+    /// Whether it is missing (or else not a folder).
+    missing: bool,
     /// The operating system's error, when there was one.
     cause: Option<io::Error>,
 }
 
 impl std::fmt::Display for FolderProblem {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "the folder '{}' {}", self.dir.display(), self.what)
+        if self.missing {
+            write!(f, "the folder '{}' is missing", self.dir.display())
+        } else {
+            write!(f, "'{}' is not a folder", self.dir.display())
+        }
     }
 }
 
@@ -186,21 +190,24 @@ impl std::error::Error for FolderProblem {
 /// An [`io::Error`] carrying a [`FolderProblem`], or the error of looking.
 fn check_folder(dest: &Path) -> io::Result<()> {
     let dir = parent_of(dest);
-    let problem = |what, cause: Option<io::Error>| {
+    // A missing folder carries the operating system's NotFound error.
+    let problem = |cause: Option<io::Error>| {
         let kind = cause.as_ref().map_or(io::ErrorKind::Other, io::Error::kind);
+        let missing = cause.is_some();
+        let dir = dir.clone();
         io::Error::new(
             kind,
             FolderProblem {
-                dir: dir.clone(),
-                what,
+                dir,
+                missing,
                 cause,
             },
         )
     };
     match std::fs::metadata(&dir) {
         Ok(m) if m.is_dir() => Ok(()),
-        Ok(_) => Err(problem("is not a folder", None)),
-        Err(e) if e.kind() == io::ErrorKind::NotFound => Err(problem("is missing", Some(e))),
+        Ok(_) => Err(problem(None)),
+        Err(e) if e.kind() == io::ErrorKind::NotFound => Err(problem(Some(e))),
         Err(e) => Err(e),
     }
 }
@@ -263,11 +270,13 @@ impl Prepared {
             }
             Ok(m) if !m.is_file() => return Ok(Prepared::Direct(dest)),
             Ok(m) => Some(m),
-            Err(e) if e.kind() == io::ErrorKind::NotFound => {
+            Err(e) => {
                 check_folder(&dest)?;
+                if e.kind() != io::ErrorKind::NotFound {
+                    return Err(e);
+                }
                 None
             }
-            Err(e) => return Err(e),
         };
         let name = dest
             .file_name()
@@ -549,5 +558,16 @@ mod tests {
             "{e}"
         );
         assert_eq!(e.matches("(os error").count(), 1, "{e}");
+
+        // A file where the folder should be.
+        std::fs::write(&folder, "").unwrap();
+        let mut all = Outputs::new();
+        all.add("--table", &Target::File(dest), "x");
+        let e = format!("{:#}", anyhow::Error::from(all.write().unwrap_err()));
+        assert!(e.starts_with("--table: "), "{e}");
+        assert!(
+            e.contains(&format!("'{}' is not a folder", folder.display())),
+            "{e}"
+        );
     }
 }
