@@ -544,6 +544,21 @@ mod tests {
         assert!(same_file(&d.join("no/x.json"), &d.join("no/./y/../x.json")));
     }
 
+    /// The documented choice for hard links: the rename gives the path a
+    /// new file; the other name keeps the old content.
+    #[test]
+    fn a_hard_linked_output_is_replaced_not_written_through() {
+        let _lock = one_at_a_time();
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("out.json");
+        let other = dir.path().join("other.json");
+        std::fs::write(&out, "old").unwrap();
+        std::fs::hard_link(&out, &other).unwrap();
+        write_atomic(&out, b"new").unwrap();
+        assert_eq!(std::fs::read(&out).unwrap(), b"new");
+        assert_eq!(std::fs::read(&other).unwrap(), b"old");
+    }
+
     #[test]
     fn a_missing_folder_is_named() {
         let dir = tempfile::tempdir().unwrap();
