@@ -16,7 +16,7 @@ use crate::model::probe::{self, JnRegion, Partner, Region};
 use crate::model::ModelFit;
 use crate::result::{
     ArtifactReport, ArtifactStudy, AtValue, ConditionalEffect, Interpretation, LevelContrast,
-    PictureChange, ProbePoint, RegionOfSignificance, SimpleSlope, Test,
+    PictureChange, ProbePoint, QuantityKind, RegionOfSignificance, SimpleSlope, Test,
 };
 use crate::support::flag::Flag;
 use crate::support::format as fmt;
@@ -210,6 +210,14 @@ fn partner_name(design: &Design, f: usize, partner: &Partner) -> String {
     }
 }
 
+/// The kind of a partner's quantity.
+fn partner_kind(partner: &Partner) -> QuantityKind {
+    match partner {
+        Partner::PerUnit => QuantityKind::Slope,
+        Partner::Difference { .. } => QuantityKind::LevelDifference,
+    }
+}
+
 /// The partner of moderator `j` in a product term (a, b), if `j` is in it.
 fn partner_of(j: usize, (a, b): (usize, usize)) -> Option<usize> {
     match (a == j, b == j) {
@@ -262,6 +270,7 @@ fn probe_one(
             for (partner, c) in probe::partner_contrasts(design, f, &values)? {
                 out.simple_slopes.push(SimpleSlope {
                     of: partner_name(design, f, &partner),
+                    quantity_kind: partner_kind(&partner),
                     moderator: name.clone(),
                     at: pt.at.clone(),
                     point: pt.label,
@@ -354,7 +363,7 @@ fn regions(design: &Design, fit: &ModelFit) -> Result<Vec<RegionOfSignificance>>
             design,
             fit,
             m,
-            "effect".into(),
+            (QuantityKind::MeanEffect, "effect".into()),
             held_listed(&named),
             jn,
         ));
@@ -374,7 +383,7 @@ fn regions(design: &Design, fit: &ModelFit) -> Result<Vec<RegionOfSignificance>>
                         .1)
                 };
                 let jn = probe::jn_region(fit, min, max, f_at)?;
-                let quantity = partner_name(design, f, &partner);
+                let quantity = (partner_kind(&partner), partner_name(design, f, &partner));
                 out.push(region(design, fit, m, quantity, hw.clone(), jn));
             }
         }
@@ -382,12 +391,13 @@ fn regions(design: &Design, fit: &ModelFit) -> Result<Vec<RegionOfSignificance>>
     Ok(out)
 }
 
-/// The report's region of significance along moderator `m`, with its words.
+/// The report's region of significance along moderator `m` of the
+/// `(kind, name)` quantity, with its words.
 fn region(
     design: &Design,
     fit: &ModelFit,
     m: usize,
-    quantity: String,
+    (kind, quantity): (QuantityKind, String),
     held_words: String,
     jn: JnRegion,
 ) -> RegionOfSignificance {
@@ -403,13 +413,10 @@ fn region(
         min,
         max,
     } = jn;
-    // The renderers tell the quantities apart by the same reading of `quantity`.
-    let what = if quantity == "effect" {
-        "the mean effect".to_string()
-    } else if quantity.contains(':') {
-        format!("the difference {quantity}")
-    } else {
-        format!("the slope of {quantity}")
+    let what = match kind {
+        QuantityKind::MeanEffect => "the mean effect".to_string(),
+        QuantityKind::LevelDifference => format!("the difference {quantity}"),
+        QuantityKind::Slope => format!("the slope of {quantity}"),
     };
     let lv = format!("{}%", fmt::short(100.0 * fit.options.level));
     let b_txt: Vec<String> = bounds.iter().map(|x| fmt::short(*x)).collect();
@@ -470,6 +477,7 @@ fn region(
     RegionOfSignificance {
         moderator: name.clone(),
         quantity,
+        quantity_kind: kind,
         held: held_words,
         bounds,
         significant: reg,

@@ -2,7 +2,7 @@
 //! the artifact corrections (part of the text report; pure function of the result).
 
 use super::layout::{pad_apart as pad, wrap, Ctx, MAX_LISTED_STUDIES};
-use crate::result::{AtValue, ContrastTest, FitReport};
+use crate::result::{AtValue, ContrastTest, FitReport, QuantityKind};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
@@ -128,10 +128,11 @@ pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
             "Simple slopes (how the partner in a product term changes the effect, at each probed value; {lv} CI)"
         );
         for s in &it.simple_slopes {
-            let what = if s.of.contains(':') {
-                format!("difference {}", s.of)
-            } else {
-                format!("slope of {} (per unit)", s.of)
+            let what = match s.quantity_kind {
+                QuantityKind::LevelDifference => format!("difference {}", s.of),
+                QuantityKind::Slope | QuantityKind::MeanEffect => {
+                    format!("slope of {} (per unit)", s.of)
+                }
             };
             let _ = writeln!(
                 o,
@@ -205,12 +206,10 @@ pub fn regions(r: &FitReport, _: &Ctx, o: &mut String) {
             let _ = writeln!(
                 o,
                 "  {} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
-                if g.quantity == "effect" {
-                    "mean effect".to_string()
-                } else if g.quantity.contains(':') {
-                    format!("difference {}", g.quantity)
-                } else {
-                    format!("slope of {}", g.quantity)
+                match g.quantity_kind {
+                    QuantityKind::MeanEffect => "mean effect".to_string(),
+                    QuantityKind::LevelDifference => format!("difference {}", g.quantity),
+                    QuantityKind::Slope => format!("slope of {}", g.quantity),
                 },
                 g.moderator,
                 g.significant,

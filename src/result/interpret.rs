@@ -89,6 +89,11 @@ pub struct SimpleSlope {
     /// What changes: a numeric moderator's name (the slope per unit), or
     /// "NAME: LEVEL − REFERENCE" for a level of a categorical moderator.
     pub of: String,
+    /// The kind of `of`, the one to read it by (a moderator's name can
+    /// contain ':'): "slope" (the per-unit slope of the numeric moderator
+    /// named by `of`) or "level_difference" (a level of a categorical
+    /// moderator minus its reference); never "mean_effect".
+    pub quantity_kind: QuantityKind,
     /// The probed moderator it is conditional on.
     pub moderator: String,
     /// The probed moderator's value.
@@ -150,6 +155,31 @@ impl Region {
     }
 }
 
+/// What kind of quantity a region of significance or a simple slope is about.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum QuantityKind {
+    /// The conditional mean effect (regions only).
+    MeanEffect,
+    /// The slope (per unit) of a numeric moderator in a product term with
+    /// the moderator along which the region runs.
+    Slope,
+    /// The difference between a level of a categorical moderator in a
+    /// product term and its reference level.
+    LevelDifference,
+}
+
+impl QuantityKind {
+    /// The word used in the JSON.
+    pub fn id(self) -> &'static str {
+        match self {
+            QuantityKind::MeanEffect => "mean_effect",
+            QuantityKind::Slope => "slope",
+            QuantityKind::LevelDifference => "level_difference",
+        }
+    }
+}
+
 /// A Johnson–Neyman region of significance along one numeric moderator.
 #[derive(Debug, Clone, Serialize)]
 pub struct RegionOfSignificance {
@@ -158,6 +188,13 @@ pub struct RegionOfSignificance {
     /// What is tested: "effect" (the conditional mean effect), or the simple
     /// slope / level difference, as in [`SimpleSlope::of`].
     pub quantity: String,
+    /// The kind of `quantity`, the one to read it by (a moderator's name
+    /// can be "effect" or contain ':'): "mean_effect" (the conditional mean
+    /// effect), "slope" (the per-unit slope of the numeric moderator named
+    /// by `quantity`) or "level_difference" (a level of a categorical
+    /// moderator minus its reference, `quantity` being
+    /// "NAME: LEVEL − REFERENCE").
+    pub quantity_kind: QuantityKind,
     /// Where the other moderators are held, in words.
     pub held: String,
     /// The Johnson–Neyman values over the whole real line, where the
@@ -238,4 +275,4 @@ pub struct ArtifactStudy {
     pub se_factor: f64,
 }
 
-display_by_id!(ProbePoint, Region);
+display_by_id!(ProbePoint, Region, QuantityKind);

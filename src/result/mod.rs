@@ -271,6 +271,11 @@ mod tests {
             Region::Below,
         ]);
         check(&[
+            QuantityKind::MeanEffect,
+            QuantityKind::Slope,
+            QuantityKind::LevelDifference,
+        ]);
+        check(&[
             Cutoff::Dffits,
             Cutoff::CooksDistance,
             Cutoff::Hat,

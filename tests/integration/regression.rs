@@ -605,3 +605,103 @@ fn an_interrupt_while_writing_removes_the_temporary_files() {
         );
     }
 }
+
+/// Ten studies with two numeric moderators, one of them named with a ':'.
+const DOSE_CSV: &str = "study,effect,variance,age,dose:mg\n\
+                        a,0.50,0.010,20,5\nb,0.87,0.012,23,11\nc,0.95,0.014,26,22\n\
+                        d,1.90,0.016,29,40\ne,0.62,0.018,32,6\nf,1.10,0.010,35,10\n\
+                        g,1.85,0.012,38,21\nh,3.05,0.014,41,42\ni,0.80,0.016,44,7\n\
+                        j,1.75,0.018,47,12\n";
+
+/// The words of a region of significance were chosen by reading the
+/// quantity's name: one containing ':' was taken for a level difference,
+/// so the slope of a numeric moderator named `dose:mg` was called "the
+/// difference dose:mg". The region now carries the kind of its quantity.
+#[test]
+fn a_numeric_moderator_named_with_a_colon_has_a_slope_region() {
+    let csv = DOSE_CSV;
+    let args = [
+        "--moderator",
+        "age",
+        "--moderator",
+        "dose:mg",
+        "--interaction",
+        "age,dose:mg",
+        "--regions",
+    ];
+    let (code, out, err) = fit_bin(csv, &args);
+    assert_eq!(code, Some(0), "{err}");
+    let text = out.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(text.contains("slope of dose:mg along age:"), "{out}");
+    assert!(
+        text.contains("confidence interval of the slope of dose:mg excludes 0"),
+        "{out}"
+    );
+    assert!(!text.contains("difference dose:mg"), "{out}");
+
+    let (code, json, err) = fit_bin(csv, &[&args[..], &["--json", "-"]].concat());
+    assert_eq!(code, Some(0), "{err}");
+    let j: serde_json::Value = serde_json::from_str(&json).unwrap();
+    let regions = j["regions_of_significance"].as_array().unwrap();
+    let kinds: Vec<(&str, &str, &str)> = regions
+        .iter()
+        .map(|r| {
+            (
+                r["moderator"].as_str().unwrap(),
+                r["quantity"].as_str().unwrap(),
+                r["quantity_kind"].as_str().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        kinds,
+        [
+            ("age", "effect", "mean_effect"),
+            ("age", "dose:mg", "slope"),
+            ("dose:mg", "effect", "mean_effect"),
+            ("dose:mg", "age", "slope"),
+        ]
+    );
+    assert!(
+        regions[1]["words"]
+            .as_str()
+            .unwrap()
+            .contains("of the slope of dose:mg excludes 0"),
+        "{json}"
+    );
+}
+
+/// The simple slopes of `--probe` had the same defect as the regions: the
+/// slope of `dose:mg` was printed as "difference dose:mg". A simple slope
+/// now carries the kind of its quantity too.
+#[test]
+fn a_numeric_moderator_named_with_a_colon_has_simple_slopes() {
+    let args = [
+        "--moderator",
+        "age",
+        "--moderator",
+        "dose:mg",
+        "--interaction",
+        "age,dose:mg",
+        "--probe",
+        "age",
+    ];
+    let (code, out, err) = fit_bin(DOSE_CSV, &args);
+    assert_eq!(code, Some(0), "{err}");
+    let text = out.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        text.contains("slope of dose:mg (per unit) at age ="),
+        "{out}"
+    );
+    assert!(!text.contains("difference dose:mg"), "{out}");
+
+    let (code, json, err) = fit_bin(DOSE_CSV, &[&args[..], &["--json", "-"]].concat());
+    assert_eq!(code, Some(0), "{err}");
+    let j: serde_json::Value = serde_json::from_str(&json).unwrap();
+    let slopes = j["simple_slopes"].as_array().unwrap();
+    assert_eq!(slopes.len(), 3, "{json}");
+    for s in slopes {
+        assert_eq!(s["of"], "dose:mg", "{s}");
+        assert_eq!(s["quantity_kind"], "slope", "{s}");
+    }
+}

@@ -7,14 +7,15 @@
 use super::palette::{GROUP, MUTED};
 use super::scene::{Align, Scene};
 use super::{size, Frame};
-use crate::result::{FitReport, RegionOfSignificance};
+use crate::result::{FitReport, QuantityKind, RegionOfSignificance};
 
+/// The region of the mean effect along moderator `name`.
 fn effect_region<'a>(report: &'a FitReport, name: &str) -> Option<&'a RegionOfSignificance> {
     report
         .interpretation
         .regions_of_significance
         .iter()
-        .find(|r| r.moderator == name && r.quantity == "effect")
+        .find(|r| r.moderator == name && r.quantity_kind == QuantityKind::MeanEffect)
 }
 
 /// The caption line for the shading (None without a region for `name`).
