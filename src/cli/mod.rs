@@ -10,6 +10,7 @@ pub mod outputs;
 pub mod plan;
 pub mod sites;
 pub mod sql;
+mod temps;
 
 use clap::{Parser, Subcommand, ValueEnum};
 use outputs::Target;
@@ -50,6 +51,7 @@ pub enum Command {
 /// # Errors
 /// [`Error::Usage`] naming a flag and its fix, or any library error of the run.
 pub fn run(cli: &Cli) -> Result<()> {
+    temps::install();
     match &cli.command {
         Command::Fit(args) => fit::run_fit(&args.check()?),
         Command::Plan(args) => plan::run_plan(&args.check()?),

@@ -5,9 +5,10 @@
 //! [`Outputs::write`] puts each file first into a temporary file next to its
 //! destination and renames them into place only when all are complete.
 
+use super::temps;
 use pondus::error::{Error, Result};
-use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::io::{self, Write};
+use std::path::{Component, Path, PathBuf};
 
 /// Where one output goes.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -29,11 +30,76 @@ impl Target {
     }
 }
 
-fn same_file(a: &Path, b: &Path) -> bool {
-    match (a.canonicalize(), b.canonicalize()) {
-        (Ok(x), Ok(y)) => x == y,
-        _ => a == b,
+/// The folder a path is in (`.` for a bare file name).
+fn parent_of(p: &Path) -> PathBuf {
+    match p.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => PathBuf::from("."),
     }
+}
+
+/// Follows the symbolic links at the end of `path` (at most 40, as the
+/// operating system does) to the path they lead to, which need not exist.
+/// Links in the folders above are left to the operating system.
+///
+/// # Errors
+/// The error of reading a link, or of a chain of more than 40 links.
+fn follow_links(path: &Path) -> io::Result<PathBuf> {
+    let mut p = path.to_path_buf();
+    for _ in 0..40 {
+        match std::fs::symlink_metadata(&p) {
+            Ok(m) if m.file_type().is_symlink() => {
+                let to = std::fs::read_link(&p)?;
+                p = if to.is_absolute() {
+                    to
+                } else {
+                    parent_of(&p).join(to)
+                };
+            }
+            _ => return Ok(p),
+        }
+    }
+    Err(io::Error::other(format!(
+        "more than 40 symbolic links from '{}'",
+        path.display()
+    )))
+}
+
+/// `path` made absolute with `.` and `..` resolved in the text alone.
+fn lexical(path: &Path) -> PathBuf {
+    let abs = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+    let mut out = PathBuf::new();
+    for c in abs.components() {
+        match c {
+            Component::CurDir => {}
+            Component::ParentDir => {
+                out.pop();
+            }
+            other => out.push(other),
+        }
+    }
+    out
+}
+
+/// The normalised absolute path of the file a path names, for comparing
+/// paths: symbolic links at its end followed, then the canonical path of
+/// the file, or (when it does not exist yet) the canonical path of its
+/// folder joined with its name; when the folder does not exist either, the
+/// absolute path with `.` and `..` resolved in the text.
+fn normalise(path: &Path) -> PathBuf {
+    let end = follow_links(path).unwrap_or_else(|_| path.to_path_buf());
+    if let Ok(c) = end.canonicalize() {
+        return c;
+    }
+    match (end.file_name(), parent_of(&end).canonicalize()) {
+        (Some(name), Ok(dir)) => dir.join(name),
+        _ => lexical(&end),
+    }
+}
+
+/// Whether two paths name the same file (see [`normalise`]).
+fn same_file(a: &Path, b: &Path) -> bool {
+    normalise(a) == normalise(b)
 }
 
 /// Checks a set of outputs against the input and each other.
@@ -89,88 +155,211 @@ pub fn check_targets(input: Option<&Path>, outputs: &[(&str, &Target)]) -> Resul
     Ok(())
 }
 
-/// An output file written completely under a temporary name in its
-/// destination's directory, waiting to be renamed into place.
+/// A folder that an output cannot go into: missing, or not a folder.
 #[derive(Debug)]
-struct Staged {
-    /// The temporary file.
-    tmp: PathBuf,
-    /// The destination.
-    path: PathBuf,
+struct FolderProblem {
+    /// The folder.
+    dir: PathBuf,
+    /// Whether it is missing (or else not a folder).
+    missing: bool,
+    /// The operating system's error, when there was one.
+    cause: Option<io::Error>,
 }
 
-/// The error of writing `path`.
-fn write_error(path: &Path, source: std::io::Error) -> Error {
+impl std::fmt::Display for FolderProblem {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        if self.missing {
+            write!(f, "the folder '{}' is missing", self.dir.display())
+        } else {
+            write!(f, "'{}' is not a folder", self.dir.display())
+        }
+    }
+}
+
+impl std::error::Error for FolderProblem {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        self.cause
+            .as_ref()
+            .map(|e| e as &(dyn std::error::Error + 'static))
+    }
+}
+
+/// Checks that the folder `dest` goes into exists and is a folder.
+///
+/// # Errors
+/// An [`io::Error`] carrying a [`FolderProblem`], or the error of looking.
+fn check_folder(dest: &Path) -> io::Result<()> {
+    let dir = parent_of(dest);
+    // A missing folder carries the operating system's NotFound error.
+    let problem = |cause: Option<io::Error>| {
+        let kind = cause.as_ref().map_or(io::ErrorKind::Other, io::Error::kind);
+        let missing = cause.is_some();
+        let dir = dir.clone();
+        io::Error::new(
+            kind,
+            FolderProblem {
+                dir,
+                missing,
+                cause,
+            },
+        )
+    };
+    match std::fs::metadata(&dir) {
+        Ok(m) if m.is_dir() => Ok(()),
+        Ok(_) => Err(problem(None)),
+        Err(e) if e.kind() == io::ErrorKind::NotFound => Err(problem(Some(e))),
+        Err(e) => Err(e),
+    }
+}
+
+/// The error of writing the output of `flag` to `path` (as the user gave
+/// it). A broken pipe (a FIFO whose reader went away) is a failure here,
+/// not the quiet end that it is for standard output, so it is wrapped.
+fn write_error(flag: &str, path: &Path, source: io::Error) -> Error {
+    let source = if source.kind() == io::ErrorKind::BrokenPipe {
+        io::Error::other(source)
+    } else {
+        source
+    };
+    let path = if flag.is_empty() {
+        path.display().to_string()
+    } else {
+        format!("{flag}: {}", path.display())
+    };
     Error::Io {
-        path: path.display().to_string(),
+        path,
         action: "writing",
         source,
     }
 }
 
-impl Staged {
-    /// Writes `bytes` into a temporary file in `path`'s directory, flushed to disk.
+/// How one output file is written.
+#[derive(Debug)]
+enum Prepared {
+    /// Complete in a temporary file next to the destination, waiting to be
+    /// renamed onto it (a new path, or a regular file that is replaced).
+    Staged {
+        /// The temporary file.
+        tmp: PathBuf,
+        /// The destination: the path given, or where its symbolic links lead.
+        dest: PathBuf,
+    },
+    /// A special file (a FIFO, a device): opened and written directly,
+    /// never replaced.
+    Direct(PathBuf),
+}
+
+impl Prepared {
+    /// Gets `bytes` ready for `path`: its symbolic links followed, its
+    /// folder checked, and (unless the destination is a special file) the
+    /// bytes written to a temporary file next to the destination, flushed to
+    /// disk, carrying the permission bits and owner of the file it replaces.
     ///
     /// # Errors
-    /// [`Error::Io`] (for `path`) when the directory is not writable; no temporary file is left.
-    fn new(path: &Path, bytes: &[u8]) -> Result<Self> {
-        let dir = match path.parent() {
-            Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
-            _ => PathBuf::from("."),
+    /// [`io::Error`] when a link cannot be read, the folder is missing or is
+    /// not a folder, the destination is a folder, or the temporary file
+    /// cannot be written; no temporary file is left.
+    fn new(path: &Path, bytes: &[u8]) -> io::Result<Self> {
+        let dest = follow_links(path)?;
+        let existing = match std::fs::metadata(&dest) {
+            Ok(m) if m.is_dir() => {
+                return Err(io::Error::other(format!(
+                    "'{}' is a folder",
+                    dest.display()
+                )))
+            }
+            Ok(m) if !m.is_file() => return Ok(Prepared::Direct(dest)),
+            Ok(m) => Some(m),
+            Err(e) => {
+                check_folder(&dest)?;
+                if e.kind() != io::ErrorKind::NotFound {
+                    return Err(e);
+                }
+                None
+            }
         };
-        let name = path
+        let name = dest
             .file_name()
             .map(|n| n.to_string_lossy().to_string())
             .unwrap_or_else(|| "output".into());
-        let tmp = dir.join(format!(".{name}.pondus-{}.tmp", std::process::id()));
+        let tmp = parent_of(&dest).join(format!(".{name}.pondus-{}.tmp", std::process::id()));
+        let mut file = temps::create(&tmp)?;
         let result = (|| {
-            let mut f = std::fs::File::create(&tmp)?;
-            f.write_all(bytes)?;
-            f.sync_all()
+            if let Some(m) = &existing {
+                keep_owner_and_mode(&file, m)?;
+            }
+            file.write_all(bytes)?;
+            file.sync_all()
         })();
-        if let Err(e) = result {
-            let _ = std::fs::remove_file(&tmp);
-            return Err(write_error(path, e));
+        match result {
+            Ok(()) => Ok(Prepared::Staged { tmp, dest }),
+            Err(e) => {
+                temps::remove(&tmp);
+                Err(e)
+            }
         }
-        Ok(Staged {
-            tmp,
-            path: path.to_path_buf(),
-        })
     }
 
-    /// Renames the temporary file over the destination.
+    /// Writes a special file directly; a staged file waits for [`Prepared::place`].
     ///
     /// # Errors
-    /// [`Error::Io`] when the rename fails; the temporary file is removed.
-    fn place(self) -> Result<()> {
-        std::fs::rename(&self.tmp, &self.path).map_err(|e| {
-            let _ = std::fs::remove_file(&self.tmp);
-            write_error(&self.path, e)
-        })
+    /// The error of opening or writing the special file (ENOSPC, EPIPE, ...).
+    fn write_direct(&self, bytes: &[u8]) -> io::Result<()> {
+        if let Prepared::Direct(path) = self {
+            let mut f = std::fs::OpenOptions::new().write(true).open(path)?;
+            f.write_all(bytes)?;
+            f.flush()?;
+        }
+        Ok(())
     }
 
-    /// Removes the temporary file (the output is not written).
+    /// Renames a staged file onto its destination.
+    ///
+    /// # Errors
+    /// The error of the rename; the temporary file is removed.
+    fn place(self) -> io::Result<()> {
+        match self {
+            Prepared::Staged { tmp, dest } => temps::rename(&tmp, &dest),
+            Prepared::Direct(_) => Ok(()),
+        }
+    }
+
+    /// Removes a staged file's temporary file (the output is not written).
     fn discard(self) {
-        let _ = std::fs::remove_file(&self.tmp);
+        if let Prepared::Staged { tmp, .. } = self {
+            temps::remove(&tmp);
+        }
     }
 }
 
-/// Writes `bytes` to `path` atomically: into a temporary file in the same
-/// directory, flushed to disk, then renamed over the target. An existing
-/// file is replaced only when the new one is complete.
+/// Gives the temporary file the owner (where allowed; a failure is
+/// ignored) and the permission bits of the file it will replace.
 ///
 /// # Errors
-/// [`Error::Io`] when the directory is not writable or the rename fails.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    Staged::new(path, bytes)?.place()
+/// The error of setting the permission bits.
+#[cfg(unix)]
+fn keep_owner_and_mode(file: &std::fs::File, old: &std::fs::Metadata) -> io::Result<()> {
+    use std::os::unix::fs::{MetadataExt, PermissionsExt};
+    // The owner first: changing it may clear the set-id bits set below.
+    let _ = std::os::unix::fs::fchown(file, Some(old.uid()), Some(old.gid()));
+    file.set_permissions(std::fs::Permissions::from_mode(old.mode() & 0o7777))
+}
+
+/// Gives the temporary file the permissions of the file it will replace.
+///
+/// # Errors
+/// The error of setting the permissions.
+#[cfg(not(unix))]
+fn keep_owner_and_mode(file: &std::fs::File, old: &std::fs::Metadata) -> io::Result<()> {
+    file.set_permissions(old.permissions())
 }
 
 /// Every output of one run, rendered in memory, written together by
 /// [`Outputs::write`] once the run has rendered all of them.
 #[derive(Debug, Default)]
 pub struct Outputs {
-    /// The outputs in the order they were added.
-    pending: Vec<(Target, Vec<u8>)>,
+    /// The outputs in the order they were added, each with its flag.
+    pending: Vec<(&'static str, Target, Vec<u8>)>,
 }
 
 impl Outputs {
@@ -179,41 +368,56 @@ impl Outputs {
         Self::default()
     }
 
-    /// Adds one rendered output.
-    pub fn add(&mut self, target: &Target, bytes: impl Into<Vec<u8>>) {
-        self.pending.push((target.clone(), bytes.into()));
+    /// Adds one rendered output, asked for by `flag` (named in its errors).
+    pub fn add(&mut self, flag: &'static str, target: &Target, bytes: impl Into<Vec<u8>>) {
+        self.pending.push((flag, target.clone(), bytes.into()));
     }
 
-    /// Writes every output. Each file goes first into a temporary file next
-    /// to it, flushed to disk; when one of these cannot be written, every
-    /// temporary file is removed and no output is touched. Only when all are
-    /// complete are they renamed over their destinations (in the order they
-    /// were added), and then standard output is written.
+    /// Adds the terminal report, printed on standard output.
+    pub fn print(&mut self, text: impl Into<Vec<u8>>) {
+        self.add("", &Target::Stdout, text);
+    }
+
+    /// Writes every output. First each file is prepared (see
+    /// [`Prepared::new`]): its folder checked and its bytes written to a
+    /// temporary file next to it, flushed to disk; when one cannot be, every
+    /// temporary file is removed and no output is touched. Then special
+    /// files (FIFOs, devices) are written directly; then the temporary files
+    /// are renamed over their destinations (in the order they were added);
+    /// then standard output is written.
     ///
     /// # Errors
-    /// [`Error::Io`] for the first file that cannot be written or renamed,
-    /// or the write error of standard output.
+    /// [`Error::Io`] naming the flag and the path of the first file that
+    /// cannot be written or renamed, or the write error of standard output.
     pub fn write(self) -> Result<()> {
-        let mut staged = Vec::new();
-        for (target, bytes) in &self.pending {
+        let mut prepared = Vec::new();
+        for (flag, target, bytes) in &self.pending {
             if let Target::File(p) = target {
-                match Staged::new(p, bytes) {
-                    Ok(s) => staged.push(s),
+                match Prepared::new(p, bytes) {
+                    Ok(x) => prepared.push((*flag, p, bytes, x)),
                     Err(e) => {
-                        staged.into_iter().for_each(Staged::discard);
-                        return Err(e);
+                        prepared.into_iter().for_each(|(.., x)| x.discard());
+                        return Err(write_error(flag, p, e));
                     }
                 }
             }
         }
-        let mut staged = staged.into_iter();
-        while let Some(s) = staged.next() {
-            if let Err(e) = s.place() {
-                staged.for_each(Staged::discard);
-                return Err(e);
+        let direct = prepared
+            .iter()
+            .map(|(flag, p, bytes, x)| x.write_direct(bytes).map_err(|e| write_error(flag, p, e)))
+            .collect::<Result<Vec<()>>>();
+        if let Err(e) = direct {
+            prepared.into_iter().for_each(|(.., x)| x.discard());
+            return Err(e);
+        }
+        let mut prepared = prepared.into_iter();
+        while let Some((flag, p, _, x)) = prepared.next() {
+            if let Err(e) = x.place() {
+                prepared.for_each(|(.., x)| x.discard());
+                return Err(write_error(flag, p, e));
             }
         }
-        for (target, bytes) in &self.pending {
+        for (_, target, bytes) in &self.pending {
             if *target == Target::Stdout {
                 emit(target, bytes)?;
             }
@@ -222,10 +426,10 @@ impl Outputs {
     }
 }
 
-/// Writes to a target: standard output directly, a file atomically.
+/// Writes to a target: standard output directly, a file as [`Outputs::write`] does.
 ///
 /// # Errors
-/// As [`write_atomic`], or the stdout write error.
+/// As [`Outputs::write`], or the stdout write error.
 pub fn emit(target: &Target, bytes: &[u8]) -> Result<()> {
     match target {
         Target::Stdout => {
@@ -238,7 +442,11 @@ pub fn emit(target: &Target, bytes: &[u8]) -> Result<()> {
                     source,
                 })
         }
-        Target::File(p) => write_atomic(p, bytes),
+        Target::File(_) => {
+            let mut one = Outputs::new();
+            one.add("", target, bytes);
+            one.write()
+        }
     }
 }
 
@@ -246,8 +454,19 @@ pub fn emit(target: &Target, bytes: &[u8]) -> Result<()> {
 mod tests {
     use super::*;
 
+    /// Writes one file as a run's output step does.
+    fn write_atomic(p: &Path, bytes: &[u8]) -> Result<()> {
+        emit(&Target::File(p.to_path_buf()), bytes)
+    }
+
+    /// Keeps the test of `temps::remove_all` from removing this test's files.
+    fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
+        temps::TEST_LOCK.lock().unwrap_or_else(|e| e.into_inner())
+    }
+
     #[test]
     fn atomic_write_replaces_and_leaves_no_temp() {
+        let _lock = one_at_a_time();
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("out.json");
         write_atomic(&p, b"one").unwrap();
@@ -258,12 +477,13 @@ mod tests {
 
     #[test]
     fn outputs_are_written_together_or_not_at_all() {
+        let _lock = one_at_a_time();
         let dir = tempfile::tempdir().unwrap();
         let a = dir.path().join("a.json");
         let b = dir.path().join("b.csv");
         let mut all = Outputs::new();
-        all.add(&Target::File(a.clone()), b"one".to_vec());
-        all.add(&Target::File(b.clone()), "two");
+        all.add("--a", &Target::File(a.clone()), b"one".to_vec());
+        all.add("--a", &Target::File(b.clone()), "two");
         all.write().unwrap();
         assert_eq!(std::fs::read(&a).unwrap(), b"one");
         assert_eq!(std::fs::read(&b).unwrap(), b"two");
@@ -272,8 +492,12 @@ mod tests {
         // The second output's directory does not exist: the first file is
         // neither replaced nor left as a temporary file.
         let mut some = Outputs::new();
-        some.add(&Target::File(a.clone()), "new");
-        some.add(&Target::File(dir.path().join("missing/c.svg")), "three");
+        some.add("--a", &Target::File(a.clone()), "new");
+        some.add(
+            "--a",
+            &Target::File(dir.path().join("missing/c.svg")),
+            "three",
+        );
         let e = some.write().unwrap_err();
         assert!(e.to_string().contains("missing"), "{e}");
         assert_eq!(std::fs::read(&a).unwrap(), b"one");
@@ -295,5 +519,70 @@ mod tests {
         )
         .is_err());
         assert!(check_targets(Some(&inp), &[("--json", &a), ("--table", &Target::Stdout)]).is_ok());
+    }
+
+    #[test]
+    fn paths_are_compared_after_normalising() {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir(d.join("sub")).unwrap();
+        let new = d.join("x.json");
+        for same in [
+            d.join(".").join("x.json"),
+            d.join("sub").join("..").join("x.json"),
+        ] {
+            assert!(same_file(&new, &same), "{}", same.display());
+        }
+        assert!(!same_file(&new, &d.join("sub").join("x.json")));
+        // A link to a file that does not exist yet names that file.
+        #[cfg(unix)]
+        {
+            std::os::unix::fs::symlink("x.json", d.join("link")).unwrap();
+            assert!(same_file(&new, &d.join("link")));
+        }
+        // A missing folder: `.` and `..` resolved in the text.
+        assert!(same_file(&d.join("no/x.json"), &d.join("no/./y/../x.json")));
+    }
+
+    /// The documented choice for hard links: the rename gives the path a
+    /// new file; the other name keeps the old content.
+    #[test]
+    fn a_hard_linked_output_is_replaced_not_written_through() {
+        let _lock = one_at_a_time();
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("out.json");
+        let other = dir.path().join("other.json");
+        std::fs::write(&out, "old").unwrap();
+        std::fs::hard_link(&out, &other).unwrap();
+        write_atomic(&out, b"new").unwrap();
+        assert_eq!(std::fs::read(&out).unwrap(), b"new");
+        assert_eq!(std::fs::read(&other).unwrap(), b"old");
+    }
+
+    #[test]
+    fn a_missing_folder_is_named() {
+        let dir = tempfile::tempdir().unwrap();
+        let dest = dir.path().join("nope").join("a.json");
+        let mut all = Outputs::new();
+        all.add("--json", &Target::File(dest.clone()), "{}");
+        let e = format!("{:#}", anyhow::Error::from(all.write().unwrap_err()));
+        let folder = dir.path().join("nope");
+        assert!(e.starts_with("--json: "), "{e}");
+        assert!(
+            e.contains(&format!("the folder '{}' is missing", folder.display())),
+            "{e}"
+        );
+        assert_eq!(e.matches("(os error").count(), 1, "{e}");
+
+        // A file where the folder should be.
+        std::fs::write(&folder, "").unwrap();
+        let mut all = Outputs::new();
+        all.add("--table", &Target::File(dest), "x");
+        let e = format!("{:#}", anyhow::Error::from(all.write().unwrap_err()));
+        assert!(e.starts_with("--table: "), "{e}");
+        assert!(
+            e.contains(&format!("'{}' is not a folder", folder.display())),
+            "{e}"
+        );
     }
 }

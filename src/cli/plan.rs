@@ -517,10 +517,10 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some((t, f)) = &run.curve {
-        out.add(t, figure::power::plot(&report, *f)?);
+        out.add("--curve", t, figure::power::plot(&report, *f)?);
     }
     if let Some(t) = &run.json {
-        out.add(t, json_bytes(&report)?);
+        out.add("--json", t, json_bytes(&report)?);
     }
     if let Some(t) = &run.report {
         let figure = figure::power::page_figure(&report)?;
@@ -530,10 +530,14 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
             input_sha256: None,
             seed: report.simulation.map(|s| s.seed),
         };
-        out.add(t, render::html::plan_page(&report, Some(&figure), &prov));
+        out.add(
+            "--report",
+            t,
+            render::html::plan_page(&report, Some(&figure), &prov),
+        );
     }
     if run.text {
-        out.add(&Target::Stdout, render::plan::render(&report));
+        out.print(render::plan::render(&report));
     }
     out.write()
 }

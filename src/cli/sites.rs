@@ -274,10 +274,10 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some(t) = &run.out {
-        out.add(t, render::sites_effects::bytes(&report));
+        out.add("--out", t, render::sites_effects::bytes(&report));
     }
     if let Some(t) = &run.json {
-        out.add(t, json_bytes(&report)?);
+        out.add("--json", t, json_bytes(&report)?);
     }
     if let Some(t) = &run.report {
         let input_sha256 = match &run.input {
@@ -301,12 +301,13 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
             seed: None,
         };
         out.add(
+            "--report",
             t,
             render::html::sites_page(&report, &figures, &figure_notes, &prov),
         );
     }
     if run.text {
-        out.add(&Target::Stdout, render::sites::render(&report));
+        out.print(render::sites::render(&report));
     }
     out.write()
 }

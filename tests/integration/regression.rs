@@ -345,6 +345,267 @@ fn loo_with_too_few_studies_message_has_no_run_of_spaces() {
     assert!(!err.contains("  "), "{err}");
 }
 
+// ---- Output paths: what is at the path is respected --------------------
+//
+// Every path below is inside a fresh temporary folder: a FIFO made there
+// with `mkfifo`, a link there to a file there, a file there with mode 600.
+
+/// A scratch folder holding a copy of `precomputed-effects.csv`.
+fn scratch_with_effects() -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::copy(
+        repo("data-examples/precomputed-effects.csv"),
+        dir.path().join("precomputed-effects.csv"),
+    )
+    .unwrap();
+    dir
+}
+
+/// `pondus fit precomputed-effects.csv -q ARGS` to run in `dir`.
+fn fit_in(dir: &std::path::Path, args: &[&str]) -> std::process::Command {
+    let mut c = std::process::Command::new(assert_cmd::cargo::cargo_bin("pondus"));
+    c.current_dir(dir)
+        .args([
+            "fit",
+            "precomputed-effects.csv",
+            "--measure",
+            "effect",
+            "-q",
+        ])
+        .args(args)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped());
+    c
+}
+
+/// Waits at most `secs` seconds for `child`; `None` when it is still running.
+fn wait_for(child: &mut std::process::Child, secs: u64) -> Option<std::process::ExitStatus> {
+    let end = std::time::Instant::now() + std::time::Duration::from_secs(secs);
+    while std::time::Instant::now() < end {
+        if let Some(status) = child.try_wait().unwrap() {
+            return Some(status);
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    None
+}
+
+/// Makes a FIFO at `path` (inside a test's temporary folder).
+fn mkfifo(path: &std::path::Path) {
+    let ok = std::process::Command::new("mkfifo")
+        .arg(path)
+        .status()
+        .unwrap()
+        .success();
+    assert!(ok, "mkfifo {}", path.display());
+}
+
+/// The names in a folder, sorted.
+fn names_in(dir: &std::path::Path) -> Vec<String> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    names
+}
+
+/// `--json` naming a FIFO renamed a regular file over it: the FIFO was
+/// gone and its reader waited for ever. A special file is now written
+/// directly and stays what it was.
+#[test]
+fn fit_json_into_a_fifo_writes_through_it_and_keeps_the_fifo() {
+    use std::os::unix::fs::FileTypeExt;
+    let dir = scratch_with_effects();
+    let fifo = dir.path().join("pipe.json");
+    mkfifo(&fifo);
+    let mut reader = std::process::Command::new("cat")
+        .arg(&fifo)
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut writer = fit_in(dir.path(), &["--json", "pipe.json"])
+        .spawn()
+        .unwrap();
+    let wrote = wait_for(&mut writer, 120);
+    let read = wait_for(&mut reader, if wrote.is_some() { 30 } else { 1 });
+    if wrote.is_none() || read.is_none() {
+        let _ = writer.kill();
+        let _ = reader.kill();
+        let _ = writer.wait();
+        let _ = reader.wait();
+    }
+    assert!(read.is_some(), "the reader of the FIFO got no end of file");
+    assert_eq!(wrote.map(|s| s.code()), Some(Some(0)), "pondus failed");
+    let mut json = String::new();
+    std::io::Read::read_to_string(&mut reader.stdout.take().unwrap(), &mut json).unwrap();
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert!(v["tau2"]["estimate"].as_f64().is_some(), "{json}");
+    let kind = std::fs::symlink_metadata(&fifo).unwrap().file_type();
+    assert!(kind.is_fifo(), "the FIFO was replaced: {kind:?}");
+    assert_eq!(
+        names_in(dir.path()),
+        ["pipe.json", "precomputed-effects.csv"]
+    );
+}
+
+/// `--json` naming a symbolic link replaced the link with a regular file
+/// and left the file it pointed to as it was. The link is now followed:
+/// its target gets the output (written and renamed in the target's
+/// folder) and the link stays a link.
+#[test]
+fn fit_json_through_a_symlink_writes_its_target_and_keeps_the_link() {
+    let dir = scratch_with_effects();
+    std::fs::create_dir(dir.path().join("store")).unwrap();
+    let real = dir.path().join("store").join("real.json");
+    std::fs::write(&real, "old").unwrap();
+    let link = dir.path().join("link.json");
+    std::os::unix::fs::symlink("store/real.json", &link).unwrap();
+    let out = fit_in(dir.path(), &["--json", "link.json"])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(std::fs::symlink_metadata(&link)
+        .unwrap()
+        .file_type()
+        .is_symlink());
+    assert_eq!(
+        std::fs::read_link(&link).unwrap(),
+        std::path::Path::new("store/real.json")
+    );
+    let json = std::fs::read_to_string(&real).unwrap();
+    assert!(json.contains("\"tau2\""), "{json}");
+    assert_eq!(names_in(&dir.path().join("store")), ["real.json"]);
+}
+
+/// Replacing an existing output gave it the permission bits of a new file
+/// (0644 under the usual umask): a mode-600 result became readable by
+/// everyone. The replacement now keeps the mode, and the owner where the
+/// process may set it (as root).
+#[test]
+fn fit_json_over_a_mode_600_file_keeps_mode_600() {
+    use std::os::unix::fs::{MetadataExt, PermissionsExt};
+    let dir = scratch_with_effects();
+    let out_path = dir.path().join("out.json");
+    std::fs::write(&out_path, "old").unwrap();
+    std::fs::set_permissions(&out_path, std::fs::Permissions::from_mode(0o600)).unwrap();
+    let root = std::fs::metadata(&out_path).unwrap().uid() == 0;
+    if root {
+        std::os::unix::fs::chown(&out_path, Some(4242), Some(4343)).unwrap();
+    }
+    let out = fit_in(dir.path(), &["--json", "out.json"])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let m = std::fs::metadata(&out_path).unwrap();
+    assert!(std::fs::read_to_string(&out_path)
+        .unwrap()
+        .contains("\"tau2\""));
+    assert_eq!(m.mode() & 0o7777, 0o600, "mode {:o}", m.mode() & 0o7777);
+    if root {
+        assert_eq!((m.uid(), m.gid()), (4242, 4343));
+    }
+}
+
+/// `--json x.json --table ./x.json` (x.json not existing yet) passed the
+/// check, which compared the two paths as text; the table was written over
+/// the JSON. Paths are now compared normalised.
+#[test]
+fn fit_json_and_table_on_one_file_by_two_spellings_is_refused() {
+    for second in ["./x.json", "sub/../x.json"] {
+        let dir = scratch_with_effects();
+        std::fs::create_dir(dir.path().join("sub")).unwrap();
+        let out = fit_in(dir.path(), &["--json", "x.json", "--table", second])
+            .output()
+            .unwrap();
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{second}: {err}");
+        assert!(err.contains("--json") && err.contains("--table"), "{err}");
+        assert_eq!(names_in(dir.path()), ["precomputed-effects.csv", "sub"]);
+    }
+}
+
+/// An output whose folder does not exist failed with the path alone
+/// ("writing failed: No such file or directory"); the message now names
+/// the flag and says that the folder is missing, and no other output is
+/// moved into place.
+#[test]
+fn an_output_into_a_missing_folder_names_the_flag_and_the_folder() {
+    let dir = scratch_with_effects();
+    let out = fit_in(
+        dir.path(),
+        &["--json", "out.json", "--table", "no-such-folder/t.csv"],
+    )
+    .output()
+    .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(
+        err.starts_with("pondus: error: --table: no-such-folder/t.csv: writing failed"),
+        "{err}"
+    );
+    assert!(
+        err.contains("the folder 'no-such-folder' is missing"),
+        "{err}"
+    );
+    assert_eq!(names_in(dir.path()), ["precomputed-effects.csv"]);
+}
+
+/// SIGINT or SIGTERM while the outputs were being written left the
+/// temporary files (`.NAME.pondus-PID.tmp`) behind. The output step now
+/// removes them and exits with 130 or 143. The run is held in the output
+/// step by a FIFO without a reader: `--table` is already staged in its
+/// temporary file while `--json` waits to open the FIFO.
+#[test]
+fn an_interrupt_while_writing_removes_the_temporary_files() {
+    for (signal, code) in [("TERM", 143), ("INT", 130)] {
+        let dir = scratch_with_effects();
+        mkfifo(&dir.path().join("pipe.json"));
+        let mut child = fit_in(dir.path(), &["--json", "pipe.json", "--table", "t.csv"])
+            .spawn()
+            .unwrap();
+        let end = std::time::Instant::now() + std::time::Duration::from_secs(120);
+        let mut staged = false;
+        while !staged && std::time::Instant::now() < end && child.try_wait().unwrap().is_none() {
+            staged = names_in(dir.path()).iter().any(|n| n.contains(".pondus-"));
+            std::thread::sleep(std::time::Duration::from_millis(20));
+        }
+        if staged {
+            let sent = std::process::Command::new("kill")
+                .arg(format!("-{signal}"))
+                .arg(child.id().to_string())
+                .status()
+                .unwrap();
+            assert!(sent.success());
+        }
+        let status = wait_for(&mut child, 30);
+        if status.is_none() {
+            let _ = child.kill();
+            let _ = child.wait();
+        }
+        assert!(
+            staged,
+            "SIG{signal}: no temporary file was seen ({status:?})"
+        );
+        assert_eq!(status.and_then(|s| s.code()), Some(code), "SIG{signal}");
+        assert_eq!(
+            names_in(dir.path()),
+            ["pipe.json", "precomputed-effects.csv"],
+            "SIG{signal}"
+        );
+    }
+}
+
 /// Ten studies with two numeric moderators, one of them named with a ':'.
 const DOSE_CSV: &str = "study,effect,variance,age,dose:mg\n\
                         a,0.50,0.010,20,5\nb,0.87,0.012,23,11\nc,0.95,0.014,26,22\n\

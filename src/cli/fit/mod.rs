@@ -177,24 +177,24 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
     let mut drawn = Vec::with_capacity(run.plots.len());
     for p in &run.plots {
         let o = &run.plot_options;
-        let bytes = match p.kind {
-            PlotKind::Forest => figure::forest_plot(&report, o, p.format)?,
-            PlotKind::Bubble => figure::bubble_plot(&report, o, p.format)?,
-            PlotKind::Funnel => figure::funnel_plot(&report, o, p.format)?,
+        let (flag, bytes) = match p.kind {
+            PlotKind::Forest => ("--forest", figure::forest_plot(&report, o, p.format)?),
+            PlotKind::Bubble => ("--bubble", figure::bubble_plot(&report, o, p.format)?),
+            PlotKind::Funnel => ("--funnel", figure::funnel_plot(&report, o, p.format)?),
         };
-        drawn.push((&p.target, bytes));
+        drawn.push((flag, &p.target, bytes));
     }
     let mut out = Outputs::new();
     if let Some(t) = &run.json {
-        out.add(t, json_bytes(&report)?);
+        out.add("--json", t, json_bytes(&report)?);
     }
     if let Some(t) = &run.table {
         let mut buf = Vec::new();
         render::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
-        out.add(t, buf);
+        out.add("--table", t, buf);
     }
-    for (target, bytes) in drawn {
-        out.add(target, bytes);
+    for (flag, target, bytes) in drawn {
+        out.add(flag, target, bytes);
     }
     if let Some(t) = &run.report {
         let (figures, figure_notes) = figure::page_figures(&report, &run.plot_options)?;
@@ -205,12 +205,13 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             seed: report.permutation.as_ref().and_then(|p| p.seed),
         };
         out.add(
+            "--report",
             t,
             render::html::fit_page(&report, &figures, &figure_notes, &prov),
         );
     }
     if run.text {
-        out.add(&Target::Stdout, render::text::render(&report));
+        out.print(render::text::render(&report));
     }
     out.write()
 }
