@@ -2,7 +2,8 @@
 //! definition of [`super::Cli`]: `pondus.1` for the top command and
 //! `pondus-fit.1`, `pondus-plan.1`, … for the subcommands. They print to
 //! standard output, or with `--out-dir` go into an existing directory
-//! through [`Outputs`] (all pages or none, each written atomically).
+//! through [`Outputs`] (all pages or none, each written atomically, only
+//! ever as regular files).
 
 use super::outputs::{Outputs, Target};
 use super::{io_err, Cli};
@@ -73,6 +74,25 @@ pub fn page(command: Option<PageArg>) -> Result<(String, Vec<u8>)> {
     Ok((format!("{name}.1"), bytes))
 }
 
+/// The page names are not typed by the user, so `--out-dir` replaces only
+/// regular files: an existing link, FIFO or device of a page's name is
+/// refused rather than followed or written into.
+///
+/// # Errors
+/// [`Error::Usage`] when `path` exists and is not a regular file.
+fn refuse_unless_regular(path: &std::path::Path) -> Result<()> {
+    match std::fs::symlink_metadata(path) {
+        Ok(m) if !m.file_type().is_file() => Err(Error::usage(
+            "--out-dir",
+            format!(
+                "'{}' exists and is not a regular file; remove it or choose another directory",
+                path.display()
+            ),
+        )),
+        _ => Ok(()),
+    }
+}
+
 /// Prints one page, or writes the pages into `--out-dir`.
 ///
 /// # Errors
@@ -81,7 +101,7 @@ pub fn page(command: Option<PageArg>) -> Result<(String, Vec<u8>)> {
 pub fn run_manual(args: &ManualArgs) -> Result<()> {
     let mut out = Outputs::new();
     match &args.out_dir {
-        None => out.add(&Target::Stdout, page(args.command)?.1),
+        None => out.print(page(args.command)?.1),
         Some(dir) => {
             if !dir.is_dir() {
                 return Err(Error::usage(
@@ -100,7 +120,9 @@ pub fn run_manual(args: &ManualArgs) -> Result<()> {
             };
             for p in pages {
                 let (name, bytes) = page(p)?;
-                out.add(&Target::File(dir.join(name)), bytes);
+                let path = dir.join(name);
+                refuse_unless_regular(&path)?;
+                out.add("--out-dir", &Target::File(path), bytes);
             }
         }
     }

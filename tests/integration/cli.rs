@@ -1118,6 +1118,18 @@ fn manual_out_dir_writes_every_page_into_an_existing_directory() {
             roff_header(&page)
         );
     }
+    // A link where a page goes is refused, not followed; nothing is written.
+    let other = tempfile::tempdir().expect("temp dir");
+    let target = other.path().join("elsewhere");
+    std::fs::remove_file(dir.path().join("pondus-sql.1")).unwrap();
+    std::os::unix::fs::symlink(&target, dir.path().join("pondus-sql.1")).unwrap();
+    let before = std::fs::read(dir.path().join("pondus.1")).unwrap();
+    std::fs::write(dir.path().join("pondus.1"), b"old").unwrap();
+    let err = fails(pondus().arg("manual").arg("--out-dir").arg(dir.path()), 2);
+    has_all(&err, &["--out-dir", "pondus-sql.1", "not a regular file"]);
+    assert!(!target.exists());
+    assert_eq!(std::fs::read(dir.path().join("pondus.1")).unwrap(), b"old");
+    assert!(!before.is_empty());
     let missing = dir.path().join("missing");
     let err = fails(pondus().arg("manual").arg("--out-dir").arg(&missing), 2);
     has_all(&err, &["--out-dir", "not a directory"]);
