@@ -47,67 +47,92 @@ pub enum SolveArg {
 #[command(group(clap::ArgGroup::new("design").required(true).args(["moderator_sd", "share", "moderator_values"])))]
 pub struct PlanArgs {
     /// The effect measure of the planned analysis.
-    #[arg(long, value_enum)]
+    #[arg(help_heading = "Planned design", long, value_enum)]
     pub measure: PlanMeasureArg,
     /// Planned number of sites; with --target-power (solving for k) it may be left out, and the power is then shown at the k the approximation proposes.
-    #[arg(long, value_name = "K", required_unless_present = "target_power")]
+    #[arg(
+        help_heading = "Planned design",
+        long,
+        value_name = "K",
+        required_unless_present = "target_power"
+    )]
     pub k: Option<usize>,
     /// Planned participants per site (r and smd), or a comma-separated list of site sizes (repeated in order up to k).
-    #[arg(long, value_name = "N[,N...]")]
+    #[arg(help_heading = "Planned design", long, value_name = "N[,N...]")]
     pub n: Option<String>,
     /// Planned within-site sampling variance (slope and effect; required for them).
-    #[arg(long, value_name = "V")]
+    #[arg(help_heading = "Planned design", long, value_name = "V")]
     pub variance: Option<f64>,
     /// Assumed residual between-site variance τ² (analysis scale).
-    #[arg(long, value_name = "T")]
+    #[arg(help_heading = "Planned design", long, value_name = "T")]
     pub tau2: f64,
     /// SD across sites of a numeric moderator (divisor k − 1).
-    #[arg(long, value_name = "S")]
+    #[arg(help_heading = "Planned design", long, value_name = "S")]
     pub moderator_sd: Option<f64>,
     /// Share of sites in the second level of a two-level moderator.
-    #[arg(long, value_name = "P")]
+    #[arg(help_heading = "Planned design", long, value_name = "P")]
     pub share: Option<f64>,
     /// File of planned moderator values, one number per line (a first non-numeric line is a header); repeated in order when k differs.
-    #[arg(long, value_name = "FILE")]
+    #[arg(help_heading = "Planned design", long, value_name = "FILE")]
     pub moderator_values: Option<PathBuf>,
     /// Moderator coefficient to detect, on the analysis scale (Fisher z for r, g for smd).
-    #[arg(long, value_name = "B", allow_negative_numbers = true)]
+    #[arg(
+        help_heading = "Planned design",
+        long,
+        value_name = "B",
+        allow_negative_numbers = true
+    )]
     pub moderator_effect: f64,
     /// Two-sided significance level.
-    #[arg(long, default_value_t = 0.05, allow_negative_numbers = true)]
+    #[arg(
+        help_heading = "Test",
+        long,
+        default_value_t = 0.05,
+        allow_negative_numbers = true
+    )]
     pub alpha: f64,
     /// The moderator test.
-    #[arg(long, value_enum, default_value_t = PlanTestArg::Kh)]
+    #[arg(help_heading = "Test", long, value_enum, default_value_t = PlanTestArg::Kh)]
     pub test: PlanTestArg,
     /// Solve for the smallest k (or n, with --solve n) reaching this power.
-    #[arg(long, value_name = "POWER", allow_negative_numbers = true)]
+    #[arg(
+        help_heading = "Solving for k or n",
+        long,
+        value_name = "POWER",
+        allow_negative_numbers = true
+    )]
     pub target_power: Option<f64>,
     /// What --target-power solves for.
-    #[arg(long, value_enum, default_value_t = SolveArg::K)]
+    #[arg(help_heading = "Solving for k or n", long, value_enum, default_value_t = SolveArg::K)]
     pub solve: SolveArg,
     /// Largest number of sites searched.
-    #[arg(long, default_value_t = 1000)]
+    #[arg(help_heading = "Solving for k or n", long, default_value_t = 1000)]
     pub max_k: usize,
     /// Largest per-site n searched with --solve n.
-    #[arg(long, default_value_t = 100_000.0)]
+    #[arg(help_heading = "Solving for k or n", long, default_value_t = 100_000.0)]
     pub max_n: f64,
     /// Simulate N data sets under the planned design, fit each by REML with the chosen test, and show the realised rejection rate beside the analytic power (--test kh always simulates, default 2000; also confirms the k needed).
-    #[arg(long = "simulate", visible_alias = "simulations", value_name = "N")]
+    #[arg(
+        help_heading = "Simulation",
+        long = "simulate",
+        visible_alias = "simulations",
+        value_name = "N"
+    )]
     pub simulate: Option<usize>,
     /// Seed of the simulation [default: 1]; the result does not depend on the number of threads.
-    #[arg(long, value_name = "S")]
+    #[arg(help_heading = "Simulation", long, value_name = "S")]
     pub seed: Option<u64>,
     /// Draw the power curve over k into this file (.svg or .png).
-    #[arg(long, value_name = "FILE")]
+    #[arg(help_heading = "Outputs", long, value_name = "FILE")]
     pub curve: Option<PathBuf>,
     /// Write the result as JSON ('-' for standard output).
-    #[arg(long, value_name = "PATH")]
+    #[arg(help_heading = "Outputs", long, value_name = "PATH")]
     pub json: Option<PathBuf>,
     /// Do not print the terminal report.
-    #[arg(long, short)]
+    #[arg(help_heading = "Outputs", long, short)]
     pub quiet: bool,
     /// Write one self-contained HTML page (assumptions, power table, curve, cautions) into this .html file ('-' for standard output).
-    #[arg(long, value_name = "FILE")]
+    #[arg(help_heading = "Outputs", long, value_name = "FILE")]
     pub report: Option<PathBuf>,
 }
 

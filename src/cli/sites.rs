@@ -20,61 +20,95 @@ pub struct SitesArgs {
     #[arg(required_unless_present = "moments", conflicts_with = "moments")]
     pub file: Option<PathBuf>,
     /// Column of the site ids.
-    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    #[arg(
+        help_heading = "Per-site regressions",
+        long,
+        value_name = "COL",
+        required_unless_present = "moments"
+    )]
     pub site: Option<String>,
     /// Column of the predictor whose slope each site estimates.
-    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    #[arg(
+        help_heading = "Per-site regressions",
+        long,
+        value_name = "COL",
+        required_unless_present = "moments"
+    )]
     pub x: Option<String>,
     /// Column of the outcome.
-    #[arg(long, value_name = "COL", required_unless_present = "moments")]
+    #[arg(
+        help_heading = "Per-site regressions",
+        long,
+        value_name = "COL",
+        required_unless_present = "moments"
+    )]
     pub y: Option<String>,
     /// Column of a participant-level moderator: adds the product term x·w in each site.
-    #[arg(long, value_name = "COL")]
+    #[arg(help_heading = "Per-site regressions", long, value_name = "COL")]
     pub w: Option<String>,
     /// A covariate to adjust for in every site's regression (repeatable).
-    #[arg(long = "covariate", value_name = "COL")]
+    #[arg(
+        help_heading = "Per-site regressions",
+        long = "covariate",
+        value_name = "COL"
+    )]
     pub covariates: Vec<String>,
     /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
-    #[arg(long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
+    #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
     pub moments: Option<PathBuf>,
     /// CSV file of site characteristics, one row per site, joined by site id.
-    #[arg(long, value_name = "SITES.csv")]
+    #[arg(help_heading = "Site characteristics", long, value_name = "SITES.csv")]
     pub info: Option<PathBuf>,
     /// Id column of the --info table [default: the --site column's name, or 'site' with --moments].
-    #[arg(long, value_name = "COL", requires = "info")]
+    #[arg(
+        help_heading = "Site characteristics",
+        long,
+        value_name = "COL",
+        requires = "info"
+    )]
     pub info_key: Option<String>,
     /// Write the per-site effects (readable by `pondus fit --measure slope`) here ('-' for standard output).
-    #[arg(long, value_name = "EFFECTS.csv")]
+    #[arg(help_heading = "Outputs", long, value_name = "EFFECTS.csv")]
     pub out: Option<PathBuf>,
     /// HC3 standard errors instead of classical ones (reads the file a second time; not for standard input).
-    #[arg(long)]
+    #[arg(help_heading = "Per-site regressions", long)]
     pub robust: bool,
     /// Centre x and w at their site means in the product-term model (same product term, better conditioning).
-    #[arg(long, requires = "w")]
+    #[arg(help_heading = "Per-site regressions", long, requires = "w")]
     pub center_within: bool,
     /// Also run the second stage: pooled product term (within sites) beside the slope-on-mean-w meta-regression (across sites).
-    #[arg(long)]
+    #[arg(help_heading = "Second stage (--fit)", long)]
     pub fit: bool,
     /// A site characteristic (a column of --info) to regress the site slopes on (repeatable; with --fit).
-    #[arg(long = "moderator", value_name = "NAME", requires = "fit")]
+    #[arg(
+        help_heading = "Second stage (--fit)",
+        long = "moderator",
+        value_name = "NAME",
+        requires = "fit"
+    )]
     pub moderators: Vec<String>,
     /// Estimator of the between-site variance τ² in the second stage.
-    #[arg(long, value_enum, default_value_t = Tau2Arg::Reml, requires = "fit")]
+    #[arg(help_heading = "Second stage (--fit)", long, value_enum, default_value_t = Tau2Arg::Reml, requires = "fit")]
     pub tau2: Tau2Arg,
     /// Tests and intervals of the second stage.
-    #[arg(long, value_enum, default_value_t = InferenceArg::Kh, requires = "fit")]
+    #[arg(help_heading = "Second stage (--fit)", long, value_enum, default_value_t = InferenceArg::Kh, requires = "fit")]
     pub inference: InferenceArg,
     /// Confidence level of the second stage's intervals.
-    #[arg(long, default_value_t = 0.95, requires = "fit")]
+    #[arg(
+        help_heading = "Second stage (--fit)",
+        long,
+        default_value_t = 0.95,
+        requires = "fit"
+    )]
     pub level: f64,
     /// Write the whole result (sites, exclusions, join, second stage) as JSON ('-' for standard output).
-    #[arg(long, value_name = "PATH")]
+    #[arg(help_heading = "Outputs", long, value_name = "PATH")]
     pub json: Option<PathBuf>,
     /// Do not print the terminal summary.
-    #[arg(long, short)]
+    #[arg(help_heading = "Outputs", long, short)]
     pub quiet: bool,
     /// Write one self-contained HTML page (sites, exclusions, join, both stages, plots, cautions) into this .html file ('-' for standard output).
-    #[arg(long, value_name = "FILE")]
+    #[arg(help_heading = "Outputs", long, value_name = "FILE")]
     pub report: Option<PathBuf>,
 }
 
