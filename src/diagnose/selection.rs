@@ -73,7 +73,7 @@ pub fn parse_cuts(text: &str) -> Result<Vec<f64>> {
                 return Err(usage(format!(
                     "the cut points must ascend, and {t} comes after {}; write them in \
                      ascending order",
-                    num(last)
+                    typed(last)
                 )));
             }
         }
