@@ -14,7 +14,7 @@ use crate::result::{
     SelectionModel, SelectionWeight, Test,
 };
 use crate::support::flag::Flag;
-use crate::support::format::{num, typed};
+use crate::support::format::typed;
 
 /// Fewest studies an interval must hold for its weight to be estimated
 /// without `--selection-force`.
