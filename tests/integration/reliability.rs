@@ -570,3 +570,44 @@ fn a_variance_and_an_se_that_disagree_are_not_silently_resolved() {
     let j = json(ok, &["fit", "input.csv", "--json", "-"]);
     assert_eq!(j["k"], 4);
 }
+
+#[test]
+fn site_ids_that_match_only_ignoring_case_get_a_hint() {
+    let mut csv = String::from("s,x,y\n");
+    for i in 0..6 {
+        for site in ["North", "South", "East"] {
+            csv.push_str(&format!("{site},{i},{}\n", 0.3 * i as f64 + (i % 3) as f64));
+        }
+    }
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("input.csv"), &csv).unwrap();
+    std::fs::write(
+        dir.path().join("info.csv"),
+        "s,size\nnorth,1\nSouth,2\nEAST,3\n",
+    )
+    .unwrap();
+    let (code, out, err) = run_in(
+        dir.path(),
+        &[
+            "sites",
+            "input.csv",
+            "--site",
+            "s",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--info",
+            "info.csv",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(code, Some(0), "{err}");
+    let j: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let notes = j["notes"].to_string();
+    assert!(
+        notes.contains("2 differ only in case") && notes.contains("'North' (data) and 'north'"),
+        "{notes}"
+    );
+}
