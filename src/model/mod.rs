@@ -6,6 +6,7 @@ pub mod design;
 pub mod inference;
 pub mod multilevel;
 pub mod probe;
+pub mod selection;
 pub mod solve;
 pub mod tau2;
 pub mod wls;
