@@ -144,8 +144,9 @@ fn shrunken(
         return Err(Error::usage(
             Flag::Shrink,
             format!(
-                "is not available for effects nested in clusters (the three-level model of {}); \
-                 run without {} (or with {} 2) for shrunken estimates of independent effects",
+                "shrunken estimates are not available for effects nested in clusters (the \
+                 three-level model of {}); run without {} (or with {} 2) for shrunken estimates \
+                 of independent effects",
                 Flag::Cluster,
                 Flag::Cluster,
                 Flag::Levels
