@@ -16,6 +16,7 @@ mod plots;
 mod properties;
 mod reference;
 mod regression;
+mod reliability;
 mod report;
 mod sites;
 mod util;
