@@ -21,8 +21,10 @@ const HESSIAN_STEP: f64 = 1e-5;
 const SCORING_ITERS: usize = 500;
 /// Newton iterations of the finish.
 const NEWTON_ITERS: usize = 50;
-/// Convergence: the score's size in the metric of the information, g'I⁻¹g.
-const SCORE_TOL: f64 = 1e-18;
+/// Convergence: the score's size in the metric of the information, g'I⁻¹g
+/// (about twice the log-likelihood still to gain; α is then within about
+/// 10⁻⁶ standard deviations of the maximum).
+const SCORE_TOL: f64 = 1e-12;
 /// An estimated τ_i² below this share of the smallest sampling variance
 /// counts as the spread running off to 0 (no finite estimate).
 const TAU2_FLOOR_SHARE: f64 = 1e-10;
@@ -340,7 +342,7 @@ mod tests {
             };
             let usual = fit_parts(&y, &v, &x, 2, opts, false).unwrap();
             let ls = fit(&y, &v, &x, 2, &z, 1, usual.tau2.estimate * 2.0, restricted).unwrap();
-            assert!((ls.tau2[0] - usual.tau2.estimate).abs() < 1e-8 * usual.tau2.estimate);
+            assert!((ls.tau2[0] - usual.tau2.estimate).abs() < 1e-6 * usual.tau2.estimate);
             let ll = usual.log_likelihood.unwrap();
             assert!(
                 (ls.log_likelihood - ll).abs() < 1e-10,

@@ -421,3 +421,103 @@ fn bad_answers_are_refused_with_exit_2() {
     let e = fails(&[small.to_str().unwrap(), "--moderator", "a", "--all-subsets"]);
     assert!(e.contains("too few"), "{e}");
 }
+
+/// The location-scale model of the library (`model::location_scale::fit`;
+/// no flag yet) against scipy maximising the likelihood directly: α to
+/// 1e-4, α's SEs to 1e-2 (numerical Hessians on both sides), β and its SEs,
+/// the log-likelihood and the LR test against one τ².
+#[test]
+fn location_scale_model_matches_scipy() {
+    use pondus::model::location_scale;
+    use pondus::model::tau2::Tau2Method;
+    use pondus::model::{fit_parts, FitOptions, Inference};
+    use pondus::tolerance::SPREAD_SE_REF;
+    let f = load("spread.json");
+    let text =
+        std::fs::read_to_string(repo("tests/data/reference/heterogeneity/spread_k40.csv")).unwrap();
+    let rows: Vec<Vec<String>> = text
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    let y: Vec<f64> = rows.iter().map(|r| r[1].parse().unwrap()).collect();
+    let v: Vec<f64> = rows.iter().map(|r| r[2].parse().unwrap()).collect();
+    let size: Vec<f64> = rows.iter().map(|r| r[3].parse().unwrap()).collect();
+    let b: Vec<f64> = rows.iter().map(|r| f64::from(r[4] == "b")).collect();
+    let x: Vec<f64> = size.iter().flat_map(|s| [1.0, *s]).collect();
+    for (name, z, m, restricted) in [
+        (
+            "spread_k40_group_reml",
+            b.iter().flat_map(|g| [1.0, *g]).collect::<Vec<f64>>(),
+            2,
+            true,
+        ),
+        (
+            "spread_k40_group_size_ml",
+            b.iter()
+                .zip(&size)
+                .flat_map(|(g, s)| [1.0, *g, *s])
+                .collect(),
+            3,
+            false,
+        ),
+    ] {
+        let want = case(&f, name);
+        let opts = FitOptions {
+            method: if restricted {
+                Tau2Method::Reml
+            } else {
+                Tau2Method::Ml
+            },
+            inference: Inference::Z,
+            level: 0.95,
+        };
+        let one = fit_parts(&y, &v, &x, 2, opts, false).unwrap();
+        let ls = location_scale::fit(&y, &v, &x, 2, &z, m, one.tau2.estimate, restricted).unwrap();
+        for (j, a) in want["alpha"].as_array().unwrap().iter().enumerate() {
+            near(
+                &format!("{name} alpha {j}"),
+                ls.alpha[j],
+                num(&a["estimate"]),
+                HETEROGENEITY_REF,
+            );
+            near(
+                &format!("{name} alpha SE {j}"),
+                ls.alpha_cov[(j, j)].sqrt(),
+                num(&a["se"]),
+                SPREAD_SE_REF,
+            );
+        }
+        for (j, c) in want["beta"].as_array().unwrap().iter().enumerate() {
+            near("beta", ls.beta[j], num(&c["estimate"]), HETEROGENEITY_REF);
+            near(
+                "beta SE",
+                ls.beta_cov[(j, j)].sqrt(),
+                num(&c["se"]),
+                HETEROGENEITY_REF,
+            );
+        }
+        near(
+            "log-likelihood",
+            ls.log_likelihood,
+            num(&want["log_likelihood"]),
+            HETEROGENEITY_REF,
+        );
+        let lr = 2.0 * (ls.log_likelihood - one.log_likelihood.unwrap());
+        near(
+            "LR statistic",
+            lr,
+            num(&want["test"]["statistic"]),
+            HETEROGENEITY_REF,
+        );
+        // Recoding the reference level of the group leaves every τ_i² unchanged.
+        if m == 2 {
+            let z2: Vec<f64> = b.iter().flat_map(|g| [1.0, 1.0 - *g]).collect();
+            let ls2 =
+                location_scale::fit(&y, &v, &x, 2, &z2, 2, one.tau2.estimate, restricted).unwrap();
+            for (t1, t2) in ls.tau2.iter().zip(&ls2.tau2) {
+                assert!((t1 - t2).abs() < 1e-8 * t1, "{t1} vs {t2}");
+            }
+        }
+    }
+}
