@@ -104,6 +104,7 @@ fn main() {
         interpret: Default::default(),
         diagnostics: Default::default(),
         dependence: Default::default(),
+        answers: Default::default(),
     };
     println!(
         "{:>9}  {:>16}  {:>16}  {:>22}",

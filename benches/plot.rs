@@ -79,6 +79,7 @@ fn main() {
         interpret: Default::default(),
         diagnostics: Default::default(),
         dependence: Default::default(),
+        answers: Default::default(),
     };
     let opts = PlotOptions::default();
     println!(

@@ -25,6 +25,7 @@
 //!     interpret: Default::default(),
 //!     diagnostics: Default::default(),
 //!     dependence: Default::default(),
+//!     answers: Default::default(),
 //! };
 //! let report = run(&settings, "example", csv.as_bytes()).unwrap();
 //! assert_eq!(report.k, 4);

@@ -57,6 +57,7 @@ pub fn settings(measure: Measure, sel: u8, moderators: &[&str]) -> FitSettings {
         interpret: Default::default(),
         diagnostics: Default::default(),
         dependence: Default::default(),
+        answers: Default::default(),
     }
 }
 

@@ -1,6 +1,7 @@
 //! Stage 11 of `fit`: assemble the [`FitReport`] once from the outputs of
 //! the earlier stages, and refuse it when a reported number is not finite.
 
+use super::answers::Answers;
 use super::clusters::ClusterAdditions;
 use super::estimate::{Fitted, WorkingModel};
 use super::messages::Messages;
@@ -16,7 +17,7 @@ use crate::model::tau2::Tau2Method;
 use crate::model::ModelFit;
 use crate::result::{
     ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
-    MeasureInfo, ModelInfo, Study, Tau2Report, ToolInfo,
+    MeasureInfo, ModelInfo, Shrunken, Study, Tau2Report, ToolInfo,
 };
 use crate::support::flag::Flag;
 
@@ -53,6 +54,8 @@ pub struct Parts<'a> {
     pub messages: Messages,
     /// What `--cluster` added.
     pub clusters: Option<ClusterAdditions>,
+    /// `--beyond` and `--shrink`.
+    pub answers: Answers,
 }
 
 /// The report of the job.
@@ -76,6 +79,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         diagnostics: diag,
         messages,
         clusters,
+        answers,
     } = parts;
     let scale = studies.scale;
     let fit = &model.fit;
@@ -87,7 +91,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         sha256: crate::support::hash::sha256_hex(bytes),
     };
     let k = studies.y.len();
-    let (records, excluded) = records(studies, fit, settings.options.level);
+    let (records, excluded) = records(studies, fit, settings.options.level, answers.shrunken);
     let (variance_components, clustering) = match clusters {
         Some(c) => (c.variance_components, Some(c.report)),
         None => (None, None),
@@ -146,6 +150,8 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         cumulative_order: diag.cumulative_order,
         variance_components,
         clustering,
+        beyond: answers.beyond,
+        model_set: answers.model_set,
     };
     check_finite(&report)?;
     Ok(report)
@@ -215,7 +221,12 @@ fn model_info(
 }
 
 /// One record per included study, in input order, and the rows left out.
-fn records(studies: Studies, fit: &ModelFit, level: f64) -> (Vec<Study>, Vec<Excluded>) {
+fn records(
+    studies: Studies,
+    fit: &ModelFit,
+    level: f64,
+    shrunken: Option<Vec<Shrunken>>,
+) -> (Vec<Study>, Vec<Excluded>) {
     let Studies {
         included,
         y,
@@ -252,6 +263,7 @@ fn records(studies: Studies, fit: &ModelFit, level: f64) -> (Vec<Study>, Vec<Exc
                 })
                 .collect(),
             note,
+            shrunken: shrunken.as_ref().map(|s| s[pos]),
         });
     }
     (out, excluded)
@@ -296,6 +308,15 @@ fn check_finite(r: &FitReport) -> Result<()> {
     for p in &r.predictions {
         check("prediction".into(), p.mean.estimate);
         check("prediction SE".into(), p.mean.se);
+    }
+    for st in &r.studies {
+        if let Some(sh) = &st.shrunken {
+            check(format!("shrunken estimate of {}", st.study), sh.estimate);
+            check(format!("shrunken SE of {}", st.study), sh.se);
+        }
+    }
+    if let Some(b) = &r.beyond {
+        check("probability beyond the value".into(), b.average);
     }
     for e in &r.interpretation.conditional_effects {
         check(

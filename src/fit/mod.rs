@@ -8,6 +8,7 @@
 //! 3. [`design`]: build the design (product terms, scale check);
 //! 4. [`estimate`]: fit the working model and the intercept-only model;
 //! 5. [`readout`]: `--at` predictions, subgroups, fitted lines;
+//!    [`answers`]: `--beyond` and `--shrink`;
 //! 6. [`clusters`]: what `--cluster` adds (variance components, clustering,
 //!    robust inference);
 //! 7. [`summarise`]: coefficients, moderator test, heterogeneity, average;
@@ -19,6 +20,7 @@
 //! Every stage may fail with a typed error; the first failing stage decides
 //! the message.
 
+pub mod answers;
 pub mod assemble;
 pub mod clusters;
 pub mod columns;
@@ -34,7 +36,7 @@ pub mod summarise;
 
 pub use messages::STUDIES_PER_TERM;
 pub use readout::CURVE_POINTS;
-pub use settings::{FitSettings, InterpretSettings, ProbeSpec};
+pub use settings::{AnswerSettings, FitSettings, InterpretSettings, ProbeSpec};
 
 use crate::error::{Error, Result};
 use crate::result::FitReport;
@@ -63,6 +65,15 @@ pub fn run_with_progress(
     let design = design::build(settings, source, &studies)?;
     let (model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
     let readout = readout::read_out(settings, &design, &model, &studies)?;
+    let answers = answers::answer(
+        &settings.answers,
+        settings.options.level,
+        &design,
+        &model,
+        null_fit.as_ref(),
+        &studies,
+        &readout,
+    )?;
     let clusters = clusters::additions(&settings.dependence, source, &design, &model, &studies)?;
     let robust = clusters.as_ref().and_then(|c| c.robust.as_ref());
     let summary = summarise::summarise(&design, &model.fit, null_fit, robust, studies.scale);
@@ -113,6 +124,7 @@ pub fn run_with_progress(
         diagnostics,
         messages,
         clusters,
+        answers,
     })
 }
 

@@ -34,6 +34,8 @@ pub struct FitSettings {
     /// Dependent effects: cluster column, three-level model, robust inference
     /// (see [`crate::model::multilevel`]); none by default.
     pub dependence: Dependence,
+    /// Shrunken estimates and the chance of exceeding a value; none by default.
+    pub answers: AnswerSettings,
 }
 
 /// One `--probe` request: a moderator and, optionally, the values to read it at.
@@ -63,4 +65,17 @@ impl InterpretSettings {
     pub fn any(&self) -> bool {
         !self.probes.is_empty() || self.compare_levels || self.regions
     }
+}
+
+/// Settings of the answers about heterogeneity and single studies
+/// (`--shrink`, `--beyond`, `--all-subsets`).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct AnswerSettings {
+    /// `--shrink`: each study's empirical-Bayes estimate of its own true effect.
+    pub shrink: bool,
+    /// `--beyond`: the value (reading scale) whose chance of being exceeded
+    /// by a new study's true effect is reported.
+    pub beyond: Option<f64>,
+    /// `--all-subsets`: rank every subset of the moderators by AICc.
+    pub all_subsets: bool,
 }

@@ -177,7 +177,7 @@ pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
     let est = x.dot(&fit.beta);
     let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
     let crit = critical(fit);
-    let pi_half = crit * (se * se + fit.tau2.estimate).sqrt();
+    let pi_half = predictive_from(fit, est, se, fit.tau2.estimate).half_width(fit.options.level);
     PredictionInference {
         estimate: est,
         se,
@@ -185,5 +185,77 @@ pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
         ci_high: est + crit * se,
         pi_low: est - pi_half,
         pi_high: est + pi_half,
+    }
+}
+
+/// The predictive distribution of a new study's true effect: centre +
+/// scale·T, with T standard normal (`df` None) or Student t on `df` degrees
+/// of freedom. The prediction interval ([`predict`]) and the probability of
+/// exceeding a value (`--beyond`) both come from it, so they always agree.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Predictive {
+    /// The predicted mean effect x0'β̂.
+    pub centre: f64,
+    /// √(SE² + τ̂²).
+    pub scale: f64,
+    /// Degrees of freedom of the t distribution (None: normal).
+    pub df: Option<f64>,
+}
+
+impl Predictive {
+    /// Half the width of the two-sided interval at `level`: c·scale.
+    pub fn half_width(&self, level: f64) -> f64 {
+        let q = 1.0 - (1.0 - level) / 2.0;
+        let c = match self.df {
+            Some(df) => dist::t_quantile(q, df),
+            None => dist::normal_quantile(q),
+        };
+        c * self.scale
+    }
+
+    /// The probability that a new study's true effect exceeds `value`
+    /// (analysis scale).
+    ///
+    /// # Formula
+    /// P(θ_new > c) = 1 − F((c − centre)/scale), F the t(df) or normal
+    /// distribution function (the upper tail, from the two-sided p of
+    /// [`dist`]: half of it above 0, one minus half below). A scale of 0
+    /// (no uncertainty, τ̂² = 0 and SE = 0) gives 1 above and 0 at or below.
+    pub fn exceeds(&self, value: f64) -> f64 {
+        if self.scale <= 0.0 {
+            return if self.centre > value { 1.0 } else { 0.0 };
+        }
+        let t = (value - self.centre) / self.scale;
+        let two_sided = match self.df {
+            Some(df) => dist::t_two_sided_p(t, df),
+            None => dist::normal_two_sided_p(t),
+        };
+        if t >= 0.0 {
+            two_sided / 2.0
+        } else {
+            1.0 - two_sided / 2.0
+        }
+    }
+}
+
+/// The predictive distribution at design row `x0` with the fit's τ̂².
+pub fn predictive(fit: &ModelFit, x0: &[f64]) -> Predictive {
+    let x = DVector::from_column_slice(x0);
+    let est = x.dot(&fit.beta);
+    let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
+    predictive_from(fit, est, se, fit.tau2.estimate)
+}
+
+/// The predictive distribution of a new study's true effect around `est`
+/// with the mean's standard error `se` and between-study variance `tau2`.
+///
+/// # Formula
+/// centre = est, scale = √(se² + τ²), on t(k − p) under Knapp–Hartung and
+/// the normal under z (see [`predict`] for the source).
+pub fn predictive_from(fit: &ModelFit, est: f64, se: f64, tau2: f64) -> Predictive {
+    Predictive {
+        centre: est,
+        scale: (se * se + tau2).sqrt(),
+        df: df(fit),
     }
 }

@@ -4,10 +4,13 @@
 
 pub mod design;
 pub mod inference;
+pub mod location_scale;
 pub mod multilevel;
 pub mod probe;
 pub mod selection;
+pub mod shrink;
 pub mod solve;
+pub mod subsets;
 pub mod tau2;
 pub mod wls;
 

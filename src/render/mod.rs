@@ -3,7 +3,7 @@
 //!
 //! - the terminal report of a fit: [`text`] assembles it from a list of
 //!   sections, each `fn(&FitReport, &layout::Ctx, &mut String)`, written in
-//!   [`text`], [`multilevel`], [`interpret`] and [`diagnostics`]; the
+//!   [`text`], [`multilevel`], [`interpret`], [`answers`] and [`diagnostics`]; the
 //!   column and wrapping helpers they share are in [`layout`];
 //! - [`json`] and the per-study CSV ([`table`]);
 //! - the self-contained HTML pages ([`html`], one file per group of sections);
@@ -12,6 +12,7 @@
 //! - the terminal summary of `pondus sites` ([`sites`]) and its per-site
 //!   effects file ([`sites_effects`]).
 
+pub mod answers;
 pub mod diagnostics;
 pub mod figure;
 pub mod html;

@@ -33,6 +33,15 @@ pub const INFLUENCE_COLUMNS: [&str; 8] = [
     "influential",
 ];
 
+/// Columns added after the influence columns with `--shrink` (analysis scale).
+pub const SHRINK_COLUMNS: [&str; 5] = [
+    "shrunken",
+    "shrunken_se",
+    "shrunken_low",
+    "shrunken_high",
+    "own_weight",
+];
+
 /// A text cell (label, note, reason) safe to open in a spreadsheet: a
 /// leading `=`, `+`, `-` or `@` gets an apostrophe in front
 /// ([`crate::support::text::spreadsheet_cell`]).
@@ -58,6 +67,10 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     }
     if report.influence.is_some() {
         header.extend(INFLUENCE_COLUMNS);
+    }
+    let shrink = report.studies.iter().any(|s| s.shrunken.is_some());
+    if shrink {
+        header.extend(SHRINK_COLUMNS);
     }
     // With artifact corrections, two columns more: the observed r and the SE factor.
     if art.is_some() {
@@ -87,6 +100,15 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
                 opt(i.tau2_deleted),
                 opt(i.q_deleted),
                 if i.influential { "yes" } else { "no" }.into(),
+            ]);
+        }
+        if let Some(sh) = s.shrunken.as_ref().filter(|_| shrink) {
+            more.extend([
+                sh.estimate.to_string(),
+                sh.se.to_string(),
+                sh.ci.ci_low.to_string(),
+                sh.ci.ci_high.to_string(),
+                sh.own_weight.to_string(),
             ]);
         }
         let mut row = vec![

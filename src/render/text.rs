@@ -1,7 +1,7 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
-use super::{diagnostics, interpret, multilevel, sensitivity};
+use super::{answers, diagnostics, interpret, multilevel, sensitivity};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
 use crate::support::flag::Flag;
@@ -56,7 +56,10 @@ const SECTIONS: &[Section] = &[
     multilevel::dependent_effects,
     average,
     predictions,
+    answers::beyond,
     studies,
+    answers::shrunken,
+    answers::model_set,
     left_out,
     interpret::artifacts,
     interpret::conditional_effects,

@@ -21,6 +21,7 @@ macro_rules! display_by_id {
     )*};
 }
 
+mod answers;
 mod clusters;
 mod diagnose;
 mod estimate;
@@ -31,6 +32,7 @@ mod predict;
 mod sensitivity;
 mod sites;
 
+pub use answers::*;
 pub use clusters::*;
 pub use diagnose::*;
 pub use estimate::*;
@@ -127,6 +129,14 @@ pub struct FitReport {
     /// levels (`--cluster`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub clustering: Option<ClusterReport>,
+    /// The probability that a new study's true effect exceeds a value
+    /// (`--beyond`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub beyond: Option<Beyond>,
+    /// Every subset of the moderators ranked by AICc (`--all-subsets`;
+    /// omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub model_set: Option<ModelSet>,
 }
 
 /// Tool name and version.
@@ -235,6 +245,10 @@ pub struct Study {
     pub moderators: Vec<AtValue>,
     /// An adjustment made to this study's data.
     pub note: Option<String>,
+    /// The study's empirical-Bayes estimate of its own true effect
+    /// (`--shrink`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub shrunken: Option<Shrunken>,
 }
 
 #[cfg(test)]

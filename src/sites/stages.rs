@@ -55,6 +55,7 @@ pub fn run(
             interpret: Default::default(),
             diagnostics: Default::default(),
             dependence: Default::default(),
+            answers: Default::default(),
         };
         fit::run(&settings, source, &bytes)
     };

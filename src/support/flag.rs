@@ -90,6 +90,9 @@ flags! {
     Cluster => "--cluster", ["fit"];
     Levels => "--levels", ["fit"];
     Robust => "--robust", ["fit", "sites"];
+    Shrink => "--shrink", ["fit"];
+    Beyond => "--beyond", ["fit"];
+    AllSubsets => "--all-subsets", ["fit"];
     K => "--k", ["plan"];
     N => "--n", ["plan"];
     Variance => "--variance", ["plan"];

@@ -7,6 +7,7 @@ mod determinism;
 mod diagnose;
 mod fuzz_corpus;
 mod golden;
+mod heterogeneity;
 mod interpret;
 mod layout;
 mod multilevel;

@@ -43,6 +43,7 @@ pub fn settings(
         interpret: Default::default(),
         diagnostics: Default::default(),
         dependence: Default::default(),
+        answers: Default::default(),
     }
 }
 

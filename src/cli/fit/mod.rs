@@ -3,12 +3,15 @@
 //! flattened into [`FitArgs`] in the order `--help` lists them); each group
 //! checks its own flags, and [`FitArgs::check`] checks them in that order.
 
+mod answers;
 mod groups;
 
 use groups::{
     ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,
     ReportArgs,
 };
+
+use answers::AnswerArgs;
 
 use super::outputs::{self, Outputs, Target};
 use super::{invocation, io_err, json_bytes, with_progress};
@@ -46,6 +49,9 @@ pub struct FitArgs {
     /// Dependent effects nested in clusters.
     #[command(flatten)]
     pub clusters: ClusterArgs,
+    /// Shrunken estimates and the chance of exceeding a value.
+    #[command(flatten)]
+    pub answers: AnswerArgs,
 }
 
 /// The plots `fit` draws.
@@ -157,6 +163,7 @@ impl FitArgs {
                 interpret: self.interpretation.check(&self.model, self.input.measure)?,
                 diagnostics: self.diagnostics.check(&self.model)?,
                 dependence: self.clusters.check(&self.diagnostics)?,
+                answers: self.answers.check()?,
             },
             json,
             table,

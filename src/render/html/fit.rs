@@ -5,15 +5,15 @@
 use super::page::Provenance;
 use super::section::{always, body, contents, FitCtx, Section};
 use super::{
-    data, dependence, diagnostics, estimates, figures, interpretation, moderators, question,
-    reproduce, sensitivity, studies,
+    answers, data, dependence, diagnostics, estimates, figures, interpretation, moderators,
+    question, reproduce, sensitivity, studies,
 };
 use crate::render::figure::PageFigure;
 use crate::result::FitReport;
 
 /// The sections after the contents, in order; the contents list the
 /// present ones.
-fn sections<'a>() -> [Section<FitCtx<'a>>; 10] {
+fn sections<'a>() -> [Section<FitCtx<'a>>; 11] {
     [
         Section {
             id: "data",
@@ -44,6 +44,12 @@ fn sections<'a>() -> [Section<FitCtx<'a>>; 10] {
             title: "Reading the moderation",
             present: interpretation::has_interpretation,
             render: interpretation::interpretation,
+        },
+        Section {
+            id: "answers",
+            title: "Single studies and new ones",
+            present: answers::has_answers,
+            render: answers::answers,
         },
         Section {
             id: "robustness",

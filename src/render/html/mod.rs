@@ -14,6 +14,7 @@
 //! contents and the body; `fit`, `sites` and `plan` hold each page's table,
 //! and the other files one group of sections each.
 
+mod answers;
 mod data;
 mod dependence;
 mod diagnostics;

@@ -159,6 +159,7 @@ impl Forest<'_> {
             );
         }
         self.study_marks(sc, s, y);
+        self.shrunken_marks(sc, s, y);
         sc.text(
             (self.ci_right(), y),
             self.ci_text(s.effect, s.ci.ci_low, s.ci.ci_high),

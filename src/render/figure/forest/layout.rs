@@ -368,6 +368,9 @@ impl<'a> Forest<'a> {
         if self.show_fitted {
             caption.push("△ fitted value of the meta-regression for that study.".into());
         }
+        if report.studies.iter().any(|s| s.shrunken.is_some()) {
+            caption.push(super::shrunken::caption(lv));
+        }
         caption.push(format!(
             "Grey line: no effect ({}); dotted line: the average.",
             if scale == ReadingScale::Ratio {

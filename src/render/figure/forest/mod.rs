@@ -13,6 +13,7 @@
 
 mod draw;
 mod layout;
+mod shrunken;
 
 use super::{PlotOptions, Scene, SortKey};
 use crate::error::{Error, Result};
