@@ -282,7 +282,7 @@ fn level_fit(
         .ok()
         .filter(|f| f.kh_scale != Some(0.0))
         .map(|f| (inference::predict(&f, &[1.0]), f.tau2.estimate))
-        .filter(|(p, _)| p.se.is_finite() && p.pi_low.is_finite())
+        .filter(|(p, _)| p.se.is_finite() && !p.pi_low.is_infinite())
 }
 
 /// The fitted line along every numeric moderator: [`CURVE_POINTS`]

@@ -16,5 +16,6 @@ mod properties;
 mod reference;
 mod regression;
 mod report;
+mod safety;
 mod sites;
 mod util;
