@@ -14,7 +14,7 @@ use crate::model::tau2::Tau2Method;
 use crate::model::Inference;
 use crate::result::{Estimate, FlooredCheck, Interpretation, ModeratorTest};
 use crate::support::flag::Flag;
-use crate::support::format::{interval, num, p as p_txt, short};
+use crate::support::format::{interval, num, p as p_txt};
 
 /// Minimum studies per moderator term below which the output cautions
 /// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
@@ -170,18 +170,19 @@ fn fit_notes(settings: &FitSettings, model: &Fitted, p: usize) -> Vec<String> {
         ));
     }
     let null_factor = model.null_scale_factor;
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
     if settings.options.inference == Inference::KhFloor
-        && (fit.scale_factor < 1.0 && p > 1 || null_factor < 1.0)
+        && (below(fit.scale_factor) && p > 1 || below(null_factor))
     {
         let mut which = Vec::new();
-        if p > 1 && fit.scale_factor < 1.0 {
+        if p > 1 && below(fit.scale_factor) {
             which.push(format!(
-                "{} for the model with moderators",
-                short(fit.scale_factor)
+                "{:.3} for the model with moderators",
+                fit.scale_factor
             ));
         }
-        if null_factor < 1.0 {
-            which.push(format!("{} for the average", short(null_factor)));
+        if below(null_factor) {
+            which.push(format!("{null_factor:.3} for the average"));
         }
         notes.push(format!(
             "The Knapp–Hartung scale factor was below 1 ({}) and was floored at 1 (kh-floor): \
@@ -198,11 +199,12 @@ fn fit_notes(settings: &FitSettings, model: &Fitted, p: usize) -> Vec<String> {
 fn floored_note(i: &Inputs<'_>, f: &FlooredCheck) -> String {
     let chosen = i.settings.options.inference;
     let mut factors = Vec::new();
-    if let Some(s2) = f.scale_factor.filter(|s| *s < 1.0) {
-        factors.push(format!("{} for the model with moderators", short(s2)));
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
+    if let Some(s2) = f.scale_factor.filter(|s| below(*s)) {
+        factors.push(format!("{s2:.3} for the model with moderators"));
     }
-    if f.scale_factor_average < 1.0 {
-        factors.push(format!("{} for the average", short(f.scale_factor_average)));
+    if below(f.scale_factor_average) {
+        factors.push(format!("{:.3} for the average", f.scale_factor_average));
     }
     let mut text = format!(
         "The Knapp–Hartung scale factor is below 1 ({}): the studies agree more closely than \

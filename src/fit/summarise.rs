@@ -78,8 +78,9 @@ fn floored_check(
     }
     let null_or_fit = null.unwrap_or(fit);
     let with_moderators = null.is_some();
-    let model_low = with_moderators && fit.scale_factor < 1.0;
-    let average_low = null_or_fit.scale_factor < 1.0;
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
+    let model_low = with_moderators && below(fit.scale_factor);
+    let average_low = below(null_or_fit.scale_factor);
     if !model_low && !average_low {
         return None;
     }

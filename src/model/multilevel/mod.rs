@@ -164,7 +164,7 @@ pub fn fit(
     } else {
         -0.5 * k as f64 * two_pi
     };
-    let scale_factor = e.q / df;
+    let scale_factor = super::kh_scale(e.q, df, y, v, comp.between + comp.within);
     let kh_scale = super::applied_scale(options.inference, scale_factor);
     let beta = &st.a * &e.beta;
     let cov_model = &st.a * &e.m_inv * st.a.transpose();
