@@ -32,6 +32,12 @@ pub const EXACT_FIT_REL: f64 = 16.0 * f64::EPSILON * f64::EPSILON;
 /// a few ε·|y| with a margin of a few. Real residuals are many orders larger.
 pub const KH_EXACT_FIT_REL: f64 = 64.0 * f64::EPSILON * f64::EPSILON;
 
+/// A Knapp–Hartung factor s² counts as below 1 (and the floored answer is
+/// shown beside the chosen one) only when s² < 1 − this: a factor of
+/// 1 − 2ε from an exact fit on its boundary (for example when τ̂² makes
+/// Q(τ̂²) = k − p exactly, as DL and PM do) is rounding, not agreement.
+pub const KH_BELOW_ONE: f64 = 1e-9;
+
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;
 

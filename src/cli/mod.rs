@@ -100,6 +100,8 @@ impl From<Tau2Arg> for Tau2Method {
 pub enum InferenceArg {
     /// Knapp–Hartung t and F (default; holds its error rate better with few studies).
     Kh,
+    /// Knapp–Hartung with its scale factor floored at 1: never narrower than z-based standard errors.
+    KhFloor,
     /// Wald z and chi-square.
     Z,
 }
@@ -108,6 +110,7 @@ impl From<InferenceArg> for Inference {
     fn from(i: InferenceArg) -> Self {
         match i {
             InferenceArg::Kh => Inference::Kh,
+            InferenceArg::KhFloor => Inference::KhFloor,
             InferenceArg::Z => Inference::Z,
         }
     }

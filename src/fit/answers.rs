@@ -96,9 +96,11 @@ fn to_analysis(value: f64, scale: ReadingScale) -> Result<f64> {
 /// P(new study's true effect > value) at the average and at each `--at` point.
 ///
 /// # Formula
-/// [`inference::Predictive::exceeds`] of the predictive distribution
-/// [`inference::predictive_from`] (the one the prediction interval uses) at
+/// [`inference::PredictiveT::exceeds`] of the predictive distribution
+/// [`inference::predictive`] (the one the prediction interval uses) at
 /// the average effect (the intercept-only fit) and at each prediction point.
+/// Where that distribution has fewer than 1 df (no prediction interval),
+/// the probability is not given (NaN, shown as none).
 fn beyond(
     value: f64,
     scale: ReadingScale,
@@ -112,19 +114,17 @@ fn beyond(
     let at = readout
         .predictions
         .iter()
-        .map(|p| {
-            let d = inference::predictive_from(fit, p.mean.estimate, p.mean.se, fit.tau2.estimate);
-            BeyondAt {
-                at: p.at.clone(),
-                probability: d.exceeds(c),
-            }
+        .zip(&readout.prediction_rows)
+        .map(|(p, x0)| BeyondAt {
+            at: p.at.clone(),
+            probability: inference::predictive(fit, x0).map_or(f64::NAN, |d| d.exceeds(c)),
         })
         .collect();
     Ok(Beyond {
         value,
         value_analysis: c,
-        df: average.df,
-        average: average.exceeds(c),
+        df: average.map(|d| d.df),
+        average: average.map_or(f64::NAN, |d| d.exceeds(c)),
         at,
     })
 }

@@ -130,6 +130,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         moderator_test: summary.moderator_test,
         heterogeneity: summary.heterogeneity,
         average: summary.average,
+        floored: summary.floored,
         predictions: readout.predictions,
         studies: records,
         subgroups: readout.subgroups,
@@ -216,6 +217,7 @@ fn model_info(
             .collect(),
         moderators,
         kh_scale: model.fit.kh_scale,
+        scale_factor: model.fit.scale_factor,
         log_likelihood: model.fit.log_likelihood,
     }
 }
@@ -298,12 +300,12 @@ fn check_finite(r: &FitReport) -> Result<()> {
         check(n.into(), x);
     }
     let a = &r.average;
-    for (n, x) in [
-        ("average", a.mean.estimate),
-        ("average SE", a.mean.se),
-        ("prediction interval", a.mean.pi.pi_low),
-    ] {
+    for (n, x) in [("average", a.mean.estimate), ("average SE", a.mean.se)] {
         check(n.into(), x);
+    }
+    // NaN ends mean "no interval" (k − p − 1 < 1); anything else must be finite.
+    if !a.mean.pi.pi_low.is_nan() {
+        check("prediction interval".into(), a.mean.pi.pi_low);
     }
     for p in &r.predictions {
         check("prediction".into(), p.mean.estimate);

@@ -44,6 +44,9 @@ pub struct Fitted {
     pub fit: ModelFit,
     /// The working model, with what it adds to the fit.
     pub working: WorkingModel,
+    /// The raw Knapp–Hartung factor s² of the intercept-only model behind
+    /// the average (the model's own without moderators).
+    pub null_scale_factor: f64,
 }
 
 /// Fits the model, and the intercept-only model when there are moderators
@@ -99,7 +102,15 @@ pub fn estimate(
             .map_err(|e| in_file(source, e))?;
         Some(null)
     };
-    Ok((Fitted { fit, working }, null))
+    let null_scale_factor = null.as_ref().unwrap_or(&fit).scale_factor;
+    Ok((
+        Fitted {
+            fit,
+            working,
+            null_scale_factor,
+        },
+        null,
+    ))
 }
 
 /// Clusters of the studies, from their ids.

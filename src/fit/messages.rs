@@ -12,8 +12,9 @@ use crate::diagnose::Outputs;
 use crate::model::design::Term;
 use crate::model::tau2::Tau2Method;
 use crate::model::Inference;
-use crate::result::Interpretation;
+use crate::result::{Estimate, FlooredCheck, Interpretation, ModeratorTest};
 use crate::support::flag::Flag;
+use crate::support::format::{interval, num, p as p_txt};
 
 /// Minimum studies per moderator term below which the output cautions
 /// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
@@ -41,8 +42,12 @@ pub struct Inputs<'a> {
     pub interpretation: &'a Interpretation,
     /// What `--cluster` added.
     pub clusters: Option<&'a ClusterAdditions>,
-    /// Whether the report has a moderator test.
-    pub moderator_test: bool,
+    /// The moderator test, when the report has one.
+    pub moderator_test: Option<&'a ModeratorTest>,
+    /// The average effect.
+    pub average: &'a Estimate,
+    /// The floored Knapp–Hartung answer, when a factor is below 1.
+    pub floored: Option<&'a FlooredCheck>,
 }
 
 /// The three lists of messages.
@@ -66,6 +71,9 @@ pub fn collect(i: &Inputs<'_>) -> Messages {
         cautions: cautions(k, i.terms.len(), settings.options.inference),
     };
     m.notes.extend(fit_notes(settings, i.model, i.terms.len()));
+    if let Some(f) = i.floored {
+        m.notes.push(floored_note(i, f));
+    }
     for p in &i.readout.predictions {
         if !p.outside_range.is_empty() {
             m.warnings.push(format!(
@@ -144,15 +152,100 @@ fn fit_notes(settings: &FitSettings, model: &Fitted, p: usize) -> Vec<String> {
                 .into(),
         );
     }
-    if let Some(s2) = fit.kh_scale {
-        if s2 < 1.0 && p > 1 {
-            notes.push(format!(
-                "The Knapp–Hartung scale factor is {s2:.3} (< 1), so its standard errors are smaller \
-                 than the z-based ones (its intervals also use t quantiles, which widens them)."
+    if fit.pi_df < 1.0 {
+        let units = match &model.working {
+            WorkingModel::ThreeLevel(t) => format!("{} clusters", t.clusters.m()),
+            _ => format!("{} studies", fit.k),
+        };
+        notes.push(format!(
+            "No prediction interval{}: it uses t(k − p − 1) (Higgins, Thompson & Spiegelhalter \
+             2009, J. R. Stat. Soc. A 172:137), and {units} with {p} coefficient{} leave no degree \
+             of freedom for it. More studies are needed to predict the effect in a new study.",
+            if p > 1 {
+                " from the model with moderators"
+            } else {
+                ""
+            },
+            if p == 1 { "" } else { "s" },
+        ));
+    }
+    let null_factor = model.null_scale_factor;
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
+    if settings.options.inference == Inference::KhFloor
+        && (below(fit.scale_factor) && p > 1 || below(null_factor))
+    {
+        let mut which = Vec::new();
+        if p > 1 && below(fit.scale_factor) {
+            which.push(format!(
+                "{:.3} for the model with moderators",
+                fit.scale_factor
             ));
         }
+        if below(null_factor) {
+            which.push(format!("{null_factor:.3} for the average"));
+        }
+        notes.push(format!(
+            "The Knapp–Hartung scale factor was below 1 ({}) and was floored at 1 (kh-floor): \
+             the standard errors are the model-based ones, tests and intervals use t.",
+            which.join(", ")
+        ));
     }
     notes
+}
+
+/// The floored answer beside the chosen one, saying plainly whether the
+/// conclusion differs (Röver, Knapp & Friede 2015, *BMC Med. Res. Methodol.*
+/// 15:99, on the factor below 1).
+fn floored_note(i: &Inputs<'_>, f: &FlooredCheck) -> String {
+    let chosen = i.settings.options.inference;
+    let mut factors = Vec::new();
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
+    if let Some(s2) = f.scale_factor.filter(|s| below(*s)) {
+        factors.push(format!("{s2:.3} for the model with moderators"));
+    }
+    if below(f.scale_factor_average) {
+        factors.push(format!("{:.3} for the average", f.scale_factor_average));
+    }
+    let mut text = format!(
+        "The Knapp–Hartung scale factor is below 1 ({}): the studies agree more closely than \
+         their sampling variances imply{}. With the factor floored at 1 ({} kh-floor, never \
+         narrower than the model-based standard errors):",
+        factors.join(", "),
+        if chosen == Inference::Kh {
+            ", so the default standard errors are smaller than the model-based ones"
+        } else {
+            ""
+        },
+        Flag::Inference
+    );
+    if let (Some(ft), Some(t)) = (&f.moderator_test, i.moderator_test) {
+        text.push_str(&format!(
+            " moderator test F({}, {}) = {:.2}, p {} (chosen: p {});",
+            crate::support::format::df(ft.df1),
+            crate::support::format::df(ft.df2),
+            ft.statistic,
+            p_txt(ft.p),
+            p_txt(t.p)
+        ));
+    }
+    if let Some(a) = &f.average {
+        text.push_str(&format!(
+            " average {} with SE {} and interval {} (chosen: SE {}, {});",
+            num(i.average.mean.estimate),
+            num(a.se),
+            interval(a.ci.ci_low, a.ci.ci_high),
+            num(i.average.mean.se),
+            interval(i.average.mean.ci.ci_low, i.average.mean.ci.ci_high)
+        ));
+    }
+    text.pop();
+    text.push('.');
+    text.push_str(if f.conclusion_differs {
+        " The conclusion differs: read the chosen answer with care."
+    } else {
+        " The conclusion is the same."
+    });
+    text
 }
 
 /// The cautions every report carries: few studies per term, moderators as
@@ -187,12 +280,14 @@ fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
     }
     if k < 10 {
         c.push(format!(
-            "With {k} studies, τ² and the prediction interval are estimated imprecisely{}.",
+            "With {k} studies, τ² and the prediction interval are estimated imprecisely; \
+             prediction intervals tend to be too narrow with few studies even with t quantiles \
+             (Partlett & Riley 2017, Stat. Med. 36:301){}.",
             match inference {
                 Inference::Z =>
                     "; z-based intervals are also too narrow with few studies (the default \
                      Knapp–Hartung method is safer)",
-                Inference::Kh => "",
+                Inference::Kh | Inference::KhFloor => "",
             }
         ));
     }
@@ -244,6 +339,48 @@ fn artifact_messages(settings: &FitSettings, studies: &Studies, m: &mut Messages
     );
 }
 
+/// How the three-level model's t and F tests get their degrees of freedom:
+/// each term by the level at which it varies (the between–within rule of
+/// Schluchter & Elashoff 1990, [`crate::model::multilevel::between_within_df`]).
+fn df_rule_note(i: &Inputs<'_>) -> String {
+    let fit = &i.model.fit;
+    let mut groups: Vec<(f64, Vec<&str>)> = Vec::new();
+    for (t, &df) in i.terms.iter().zip(&fit.term_df) {
+        match groups.iter_mut().find(|(d, _)| *d == df) {
+            Some((_, names)) => names.push(t.name.as_str()),
+            None => groups.push((df, vec![t.name.as_str()])),
+        }
+    }
+    let parts: Vec<String> = groups
+        .iter()
+        .map(|(df, names)| {
+            format!(
+                "{} on {} df",
+                names.join(", "),
+                crate::support::format::df(*df)
+            )
+        })
+        .collect();
+    let fell_back = match &i.model.working {
+        WorkingModel::ThreeLevel(t) => t.df.fell_back,
+        _ => false,
+    };
+    format!(
+        "Under {} the three-level model's covariance is scaled by r'V⁻¹r/(k − p) (Knapp–Hartung \
+         carried over to the block-diagonal V), and each term is tested on the degrees of \
+         freedom of the level at which it varies (between–within rule, Schluchter & Elashoff \
+         1990): clusters less the terms constant within clusters (the intercept counted), or \
+         effects less clusters less the terms that vary within clusters{}. Here: {}.",
+        i.settings.options.inference.id(),
+        if fell_back {
+            "; a level with too few units for its terms keeps k − p for every term"
+        } else {
+            ""
+        },
+        parts.join("; ")
+    )
+}
+
 /// The notes, warnings and caution of clustered effects.
 fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
     let clusters = c.report.clusters;
@@ -255,14 +392,8 @@ fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
              a new cluster. Variance-component intervals are profile-likelihood intervals.",
             c.report.column
         ));
-        match i.settings.options.inference {
-            Inference::Kh => m.notes.push(
-                "Under kh the coefficient covariance of the three-level model is scaled by \
-                 r'V⁻¹r/(k − p) and tested with t(k − p) (Knapp–Hartung carried over to the \
-                 block-diagonal V)."
-                    .into(),
-            ),
-            Inference::Z => {}
+        if i.settings.options.inference.uses_t() {
+            m.notes.push(df_rule_note(i));
         }
     }
     if singles > 0 {
@@ -309,11 +440,13 @@ fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
             ));
         }
         match &robust.test {
-            Some(t) if i.moderator_test && t.df2 < ROBUST_MIN_DF => m.warnings.push(format!(
-                "The robust moderator test has {:.1} denominator df (below {ROBUST_MIN_DF}): \
+            Some(t) if i.moderator_test.is_some() && t.df2 < ROBUST_MIN_DF => {
+                m.warnings.push(format!(
+                    "The robust moderator test has {:.1} denominator df (below {ROBUST_MIN_DF}): \
                  its p-value is unreliable.",
-                t.df2
-            )),
+                    t.df2
+                ))
+            }
             _ => {}
         }
     }

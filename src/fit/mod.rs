@@ -106,7 +106,9 @@ pub fn run_with_progress(
         artifacts: artifacts.is_some(),
         interpretation: &interpretation,
         clusters: clusters.as_ref(),
-        moderator_test: summary.moderator_test.is_some(),
+        moderator_test: summary.moderator_test.as_ref(),
+        average: &summary.average,
+        floored: summary.floored.as_ref(),
     });
     assemble::assemble(assemble::Parts {
         settings,

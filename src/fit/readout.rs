@@ -25,6 +25,9 @@ pub const CURVE_POINTS: usize = 61;
 pub struct ReadOut {
     /// The `--at` predictions, in the order given.
     pub predictions: Vec<Prediction>,
+    /// The design row of each prediction, in the same order (for answers
+    /// read off the predictive distribution there, such as `--beyond`).
+    pub prediction_rows: Vec<Vec<f64>>,
     /// Per-level summaries of each categorical moderator.
     pub subgroups: Vec<Subgroups>,
     /// The fitted line along each numeric moderator.
@@ -45,8 +48,11 @@ pub fn read_out(
 ) -> Result<ReadOut> {
     let scale = studies.scale;
     let mut predictions = Vec::new();
+    let mut prediction_rows = Vec::new();
     for spec in &settings.predictions {
-        predictions.push(prediction(design, &model.fit, spec, scale)?);
+        let (p, x0) = prediction(design, &model.fit, spec, scale)?;
+        predictions.push(p);
+        prediction_rows.push(x0);
     }
     // Clustered effects are not independent: no per-level pooled fits then.
     let pooled = match model.working {
@@ -55,6 +61,7 @@ pub fn read_out(
     };
     Ok(ReadOut {
         predictions,
+        prediction_rows,
         subgroups: subgroups(design, &model.fit, studies, pooled, scale)?,
         curves: curves(design, &model.fit)?,
     })
@@ -65,7 +72,7 @@ fn prediction(
     fit: &ModelFit,
     spec: &[(String, String)],
     scale: ReadingScale,
-) -> Result<Prediction> {
+) -> Result<(Prediction, Vec<f64>)> {
     if design.moderators.is_empty() {
         return Err(Error::usage(
             Flag::At,
@@ -148,12 +155,15 @@ fn prediction(
     }
     let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
     let p = inference::predict(fit, &x0);
-    Ok(Prediction {
-        at,
-        mean: p.mean_effect(),
-        reading: p.reading(scale),
-        outside_range: outside,
-    })
+    Ok((
+        Prediction {
+            at,
+            mean: p.mean_effect(),
+            reading: p.reading(scale),
+            outside_range: outside,
+        },
+        x0,
+    ))
 }
 
 /// Where a moderator that is not being varied is held.
@@ -296,7 +306,7 @@ fn level_fit(
         .ok()
         .filter(|f| f.kh_scale != Some(0.0))
         .map(|f| (inference::predict(&f, &[1.0]), f.tau2.estimate))
-        .filter(|(p, _)| p.se.is_finite() && p.pi_low.is_finite())
+        .filter(|(p, _)| p.se.is_finite() && !p.pi_low.is_infinite())
 }
 
 /// The fitted line along every numeric moderator: [`CURVE_POINTS`]

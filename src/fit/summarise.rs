@@ -8,10 +8,10 @@ use crate::effect::ReadingScale;
 use crate::model::design::Design;
 use crate::model::inference::{self, CoefInference, PredictionInference};
 use crate::model::multilevel::{RobustCoef, RobustTest};
-use crate::model::ModelFit;
+use crate::model::{Inference, ModelFit};
 use crate::result::{
-    Coefficient, ContrastTest, Estimate, Heterogeneity, Interval, ModeratorTest, RatioCoefficient,
-    RobustTestMethod, Test, TestDistribution,
+    Coefficient, ContrastTest, Estimate, FlooredAverage, FlooredCheck, FlooredTest, Heterogeneity,
+    Interval, ModeratorTest, RatioCoefficient, RobustTestMethod, Test, TestDistribution,
 };
 
 /// The summaries of the fit.
@@ -25,6 +25,8 @@ pub struct Summary {
     pub heterogeneity: Heterogeneity,
     /// The average effect, from the intercept-only model.
     pub average: Estimate,
+    /// The floored Knapp–Hartung answer when a raw factor is below 1.
+    pub floored: Option<FlooredCheck>,
 }
 
 /// Summarises the fit; `null` is the intercept-only fit (None when the
@@ -47,15 +49,78 @@ pub fn summarise(
         .collect();
     let names: Vec<&str> = design.moderators.iter().map(|m| m.name.as_str()).collect();
     let robust_test = robust.and_then(|r| r.test.as_ref());
+    let moderator_test = moderator_test(fit, &names, robust_test);
+    let null_or_fit = null.as_ref().unwrap_or(fit);
+    let average = estimate(inference::predict(null_or_fit, &[1.0]), scale);
+    let floored = floored_check(fit, null.as_ref(), moderator_test.as_ref(), &average);
     Summary {
         coefficients,
-        moderator_test: moderator_test(fit, &names, robust_test),
+        moderator_test,
         heterogeneity: heterogeneity(fit, null.as_ref()),
-        average: estimate(
-            inference::predict(null.as_ref().unwrap_or(fit), &[1.0]),
-            scale,
-        ),
+        average,
+        floored,
     }
+}
+
+/// The answer with the Knapp–Hartung factor floored at 1 ([`inference::floored`]),
+/// when the raw factor of the model or of the intercept-only model is below
+/// 1 and the chosen inference is not already `kh-floor`; `test` and
+/// `average` are the chosen answers, compared at α = 1 − level. A robust
+/// moderator test is not compared (it does not use the factor).
+fn floored_check(
+    fit: &ModelFit,
+    null: Option<&ModelFit>,
+    test: Option<&ModeratorTest>,
+    average: &Estimate,
+) -> Option<FlooredCheck> {
+    if fit.options.inference == Inference::KhFloor {
+        return None;
+    }
+    let null_or_fit = null.unwrap_or(fit);
+    let with_moderators = null.is_some();
+    let below = |s2: f64| s2 < 1.0 - crate::tolerance::KH_BELOW_ONE;
+    let model_low = with_moderators && below(fit.scale_factor);
+    let average_low = below(null_or_fit.scale_factor);
+    if !model_low && !average_low {
+        return None;
+    }
+    let alpha = 1.0 - fit.options.level;
+    let floored_test = if model_low && test.is_some_and(|t| t.method.is_none()) {
+        inference::omnibus(&inference::floored(fit)).map(|t| FlooredTest {
+            statistic: t.statistic,
+            df1: t.df1,
+            df2: t.df2.unwrap_or(f64::NAN),
+            p: t.p,
+            significant: t.p < alpha,
+        })
+    } else {
+        None
+    };
+    let floored_average = average_low.then(|| {
+        let f = inference::floored(null_or_fit);
+        let c = &inference::coefficients(&f)[0];
+        FlooredAverage {
+            se: c.se,
+            ci: Interval::new(c.ci_low, c.ci_high),
+            p: c.p,
+        }
+    });
+    let excludes_zero = |lo: f64, hi: f64| lo > 0.0 || hi < 0.0;
+    let test_differs = match (test, &floored_test) {
+        (Some(t), Some(f)) => t.significant != f.significant,
+        _ => false,
+    };
+    let average_differs = floored_average.is_some_and(|f| {
+        excludes_zero(average.mean.ci.ci_low, average.mean.ci.ci_high)
+            != excludes_zero(f.ci.ci_low, f.ci.ci_high)
+    });
+    Some(FlooredCheck {
+        scale_factor: with_moderators.then_some(fit.scale_factor),
+        scale_factor_average: null_or_fit.scale_factor,
+        moderator_test: floored_test,
+        average: floored_average,
+        conclusion_differs: test_differs || average_differs,
+    })
 }
 
 /// One row of the coefficient table.

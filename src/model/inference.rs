@@ -49,7 +49,8 @@ pub struct PredictionInference {
     pub ci_low: f64,
     /// Upper end.
     pub ci_high: f64,
-    /// Prediction interval for a new study's true effect: estimate ± crit·√(se² + τ²).
+    /// Prediction interval for a new study's true effect ([`predictive`]);
+    /// NaN when its df is below 1.
     pub pi_low: f64,
     /// Upper end.
     pub pi_high: f64,
@@ -72,61 +73,96 @@ impl PredictionInference {
     }
 }
 
-/// The critical value of the two-sided interval at `level`: t(k − p) under
-/// Knapp–Hartung, normal under z.
-pub fn critical(fit: &ModelFit) -> f64 {
+/// The degrees of freedom of a test of the linear combination c'β: the
+/// smallest df of the coefficients it involves (k − p for every combination
+/// of the two-level model; the between–within rule for the three-level one).
+pub fn combo_df(fit: &ModelFit, c: &[f64]) -> f64 {
+    let df = c
+        .iter()
+        .zip(&fit.term_df)
+        .filter(|(c, _)| **c != 0.0)
+        .map(|(_, d)| *d)
+        .fold(f64::INFINITY, f64::min);
+    if df.is_finite() {
+        df
+    } else {
+        (fit.k - fit.p) as f64
+    }
+}
+
+/// The smallest df of any coefficient (used where a combination is not at hand).
+fn min_df(fit: &ModelFit) -> f64 {
+    fit.term_df
+        .iter()
+        .copied()
+        .fold((fit.k - fit.p) as f64, f64::min)
+}
+
+/// The critical value of the two-sided interval at `level` on `df` degrees
+/// of freedom: t(df) under Knapp–Hartung (floored or not), normal under z.
+pub fn critical_on(fit: &ModelFit, df: f64) -> f64 {
     let q = 1.0 - (1.0 - fit.options.level) / 2.0;
-    match fit.options.inference {
-        Inference::Kh => dist::t_quantile(q, (fit.k - fit.p) as f64),
-        Inference::Z => dist::normal_quantile(q),
+    if fit.options.inference.uses_t() {
+        dist::t_quantile(q, df)
+    } else {
+        dist::normal_quantile(q)
     }
 }
 
-fn two_sided_p(fit: &ModelFit, stat: f64) -> f64 {
-    match fit.options.inference {
-        Inference::Kh => dist::t_two_sided_p(stat, (fit.k - fit.p) as f64),
-        Inference::Z => dist::normal_two_sided_p(stat),
-    }
+/// [`critical_on`] on the smallest df of the model's coefficients (k − p
+/// for the two-level model).
+pub fn critical(fit: &ModelFit) -> f64 {
+    critical_on(fit, min_df(fit))
 }
 
-/// The degrees of freedom of a single-coefficient test: k − p under
-/// Knapp–Hartung, none (normal) under z.
-pub fn df(fit: &ModelFit) -> Option<f64> {
-    match fit.options.inference {
-        Inference::Kh => Some((fit.k - fit.p) as f64),
-        Inference::Z => None,
-    }
-}
-
-/// The test of one linear combination with estimate `estimate` and
+/// The test of one linear combination c'β with estimate `estimate` and
 /// standard error `se`, with the fit's inference.
 ///
 /// # Formula
-/// CI estimate ± crit·SE ([`critical`]), statistic estimate/SE, two-sided p
-/// on t(k − p) (Knapp–Hartung) or the normal (z).
-pub fn wald(fit: &ModelFit, estimate: f64, se: f64) -> CoefInference {
-    let crit = critical(fit);
+/// CI estimate ± crit·SE ([`critical_on`] at [`combo_df`]), statistic
+/// estimate/SE, two-sided p on t(df) (Knapp–Hartung) or the normal (z).
+pub fn wald_of(fit: &ModelFit, c: &[f64], estimate: f64, se: f64) -> CoefInference {
+    let df = combo_df(fit, c);
+    let crit = critical_on(fit, df);
     let stat = estimate / se;
+    let t = fit.options.inference.uses_t();
     CoefInference {
         estimate,
         se,
         ci_low: estimate - crit * se,
         ci_high: estimate + crit * se,
         statistic: stat,
-        df: df(fit),
-        p: two_sided_p(fit, stat),
+        df: t.then_some(df),
+        p: if t {
+            dist::t_two_sided_p(stat, df)
+        } else {
+            dist::normal_two_sided_p(stat)
+        },
     }
+}
+
+/// [`wald_of`] for a quantity whose combination is not at hand: tested on
+/// the smallest df of the model's coefficients.
+pub fn wald(fit: &ModelFit, estimate: f64, se: f64) -> CoefInference {
+    let c = vec![1.0; fit.p];
+    wald_of(fit, &c, estimate, se)
 }
 
 /// Per-coefficient estimate, SE, interval, statistic and p.
 pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
     (0..fit.p)
-        .map(|j| wald(fit, fit.beta[j], fit.cov[(j, j)].max(0.0).sqrt()))
+        .map(|j| {
+            let mut c = vec![0.0; fit.p];
+            c[j] = 1.0;
+            wald_of(fit, &c, fit.beta[j], fit.cov[(j, j)].max(0.0).sqrt())
+        })
         .collect()
 }
 
 /// Wald-type test that the coefficients `terms` are all zero:
-/// X² = b' V⁻¹ b on df1 = |terms|; under Knapp–Hartung F = X²/df1 on (df1, k − p).
+/// X² = b' V⁻¹ b on df1 = |terms|; under Knapp–Hartung F = X²/df1 on
+/// (df1, df2) with df2 = k − p for the two-level model and the smallest
+/// between–within df of the tested terms for the three-level model.
 pub fn wald_test(fit: &ModelFit, terms: &[usize]) -> Option<OmnibusTest> {
     let m = terms.len();
     if m == 0 {
@@ -138,8 +174,11 @@ pub fn wald_test(fit: &ModelFit, terms: &[usize]) -> Option<OmnibusTest> {
     let x2 = b.dot(&chol.solve(&b));
     let df1 = m as f64;
     Some(match fit.options.inference {
-        Inference::Kh => {
-            let df2 = (fit.k - fit.p) as f64;
+        Inference::Kh | Inference::KhFloor => {
+            let df2 = terms
+                .iter()
+                .map(|&j| fit.term_df[j])
+                .fold(f64::INFINITY, f64::min);
             let f = x2 / df1;
             OmnibusTest {
                 statistic: f,
@@ -163,73 +202,72 @@ pub fn omnibus(fit: &ModelFit) -> Option<OmnibusTest> {
     wald_test(fit, &terms)
 }
 
-/// Prediction at design row `x0` (including the leading 1 for the intercept).
+/// The predictive distribution of a new study's true effect at design row
+/// `x0`: θ_new ~ μ̂ + scale·t(df). One function, so every prediction
+/// interval (and any probability read off it) follows the same rule.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PredictiveT {
+    /// Centre x0'β̂.
+    pub center: f64,
+    /// Scale √(max(x0'(X'WX)⁻¹x0, x0' Cov x0) + τ̂²): the model-based
+    /// (unscaled) variance of x0'β̂, or the one used by the tests when larger.
+    pub scale: f64,
+    /// Degrees of freedom of the t distribution (≥ 1).
+    pub df: f64,
+}
+
+/// The predictive t distribution at `x0`, None when its df would be below 1.
 ///
 /// # Formula
-/// μ̂ = x0'β̂, SE = √(x0' Cov x0), CI μ̂ ± c·SE, prediction interval for a new
-/// study's true effect μ̂ ± c·√(SE² + τ̂²), with c the t(k − p) quantile under
-/// Knapp–Hartung and the normal quantile under z (the interval of Higgins,
-/// Thompson & Spiegelhalter 2009, *J. R. Stat. Soc. A* 172:137, cited from
-/// memory, who use t(k − 2) without moderators; the reference distribution
-/// here is the one of the coefficient intervals).
-pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
-    let x = DVector::from_column_slice(x0);
-    let est = x.dot(&fit.beta);
-    let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
-    let crit = critical(fit);
-    let pi_half = predictive_from(fit, est, se, fit.tau2.estimate).half_width(fit.options.level);
-    PredictionInference {
-        estimate: est,
-        se,
-        ci_low: est - crit * se,
-        ci_high: est + crit * se,
-        pi_low: est - pi_half,
-        pi_high: est + pi_half,
+/// θ_new ~ x0'β̂ + √(x0'(X'WX)⁻¹x0 + τ̂²)·t(k − p − 1): the interval of
+/// Higgins, Thompson & Spiegelhalter (2009, *J. R. Stat. Soc. A* 172:137),
+/// who use t(k − 2) with the unscaled SE of the average, generalised to p
+/// coefficients by one df per coefficient, under every inference. The
+/// Knapp–Hartung factor is not applied when below 1; when above 1 the scaled
+/// variance is used, so the interval is never narrower than the confidence
+/// interval (our safeguard). For the three-level model the df
+/// is the between-cluster df less 1, m − p_b − 1 (our generalisation). With
+/// df < 1 there is no interval. Such intervals are still too narrow with
+/// few studies (Partlett & Riley 2017, *Stat. Med.* 36:301).
+pub fn predictive(fit: &ModelFit, x0: &[f64]) -> Option<PredictiveT> {
+    if fit.pi_df < 1.0 {
+        return None;
     }
+    let x = DVector::from_column_slice(x0);
+    let unscaled = (x.transpose() * &fit.cov_model * &x)[(0, 0)].max(0.0);
+    let used = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0);
+    // The larger of the two: the prediction interval is never narrower than
+    // the confidence interval (which a scale factor above 1 could cause).
+    let var = unscaled.max(used);
+    Some(PredictiveT {
+        center: x.dot(&fit.beta),
+        scale: (var + fit.tau2.estimate).sqrt(),
+        df: fit.pi_df,
+    })
 }
 
-/// The predictive distribution of a new study's true effect: centre +
-/// scale·T, with T standard normal (`df` None) or Student t on `df` degrees
-/// of freedom. The prediction interval ([`predict`]) and the probability of
-/// exceeding a value (`--beyond`) both come from it, so they always agree.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Predictive {
-    /// The predicted mean effect x0'β̂.
-    pub centre: f64,
-    /// √(SE² + τ̂²).
-    pub scale: f64,
-    /// Degrees of freedom of the t distribution (None: normal).
-    pub df: Option<f64>,
-}
-
-impl Predictive {
-    /// Half the width of the two-sided interval at `level`: c·scale.
-    pub fn half_width(&self, level: f64) -> f64 {
-        let q = 1.0 - (1.0 - level) / 2.0;
-        let c = match self.df {
-            Some(df) => dist::t_quantile(q, df),
-            None => dist::normal_quantile(q),
-        };
-        c * self.scale
+impl PredictiveT {
+    /// The central interval with probability `level`.
+    pub fn interval(&self, level: f64) -> (f64, f64) {
+        let half = self.scale * dist::t_quantile(1.0 - (1.0 - level) / 2.0, self.df);
+        (self.center - half, self.center + half)
     }
 
     /// The probability that a new study's true effect exceeds `value`
-    /// (analysis scale).
+    /// (analysis scale), from the same distribution as [`Self::interval`]
+    /// (`--beyond`).
     ///
     /// # Formula
-    /// P(θ_new > c) = 1 − F((c − centre)/scale), F the t(df) or normal
-    /// distribution function (the upper tail, from the two-sided p of
-    /// [`dist`]: half of it above 0, one minus half below). A scale of 0
-    /// (no uncertainty, τ̂² = 0 and SE = 0) gives 1 above and 0 at or below.
+    /// P(θ_new > c) = 1 − F_df((c − centre)/scale), F_df the t distribution
+    /// function (the upper tail, from the two-sided p of [`dist`]: half of it
+    /// above 0, one minus half below). A scale of 0 (no uncertainty) gives 1
+    /// above the centre and 0 at or below.
     pub fn exceeds(&self, value: f64) -> f64 {
         if self.scale <= 0.0 {
-            return if self.centre > value { 1.0 } else { 0.0 };
+            return if self.center > value { 1.0 } else { 0.0 };
         }
-        let t = (value - self.centre) / self.scale;
-        let two_sided = match self.df {
-            Some(df) => dist::t_two_sided_p(t, df),
-            None => dist::normal_two_sided_p(t),
-        };
+        let t = (value - self.center) / self.scale;
+        let two_sided = dist::t_two_sided_p(t, self.df);
         if t >= 0.0 {
             two_sided / 2.0
         } else {
@@ -238,24 +276,40 @@ impl Predictive {
     }
 }
 
-/// The predictive distribution at design row `x0` with the fit's τ̂².
-pub fn predictive(fit: &ModelFit, x0: &[f64]) -> Predictive {
+/// Prediction at design row `x0` (including the leading 1 for the intercept).
+///
+/// # Formula
+/// μ̂ = x0'β̂, SE = √(x0' Cov x0), CI μ̂ ± c·SE with c the t quantile on the
+/// df of x0 ([`combo_df`]) under Knapp–Hartung and the normal quantile
+/// under z; the prediction interval for a new study's true effect is the
+/// central interval of [`predictive`] (NaN ends, shown as none, when its df
+/// is below 1).
+pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
     let x = DVector::from_column_slice(x0);
     let est = x.dot(&fit.beta);
     let se = (x.transpose() * &fit.cov * &x)[(0, 0)].max(0.0).sqrt();
-    predictive_from(fit, est, se, fit.tau2.estimate)
+    let crit = critical_on(fit, combo_df(fit, x0));
+    let (pi_low, pi_high) = predictive(fit, x0)
+        .map(|d| d.interval(fit.options.level))
+        .unwrap_or((f64::NAN, f64::NAN));
+    PredictionInference {
+        estimate: est,
+        se,
+        ci_low: est - crit * se,
+        ci_high: est + crit * se,
+        pi_low,
+        pi_high,
+    }
 }
 
-/// The predictive distribution of a new study's true effect around `est`
-/// with the mean's standard error `se` and between-study variance `tau2`.
-///
-/// # Formula
-/// centre = est, scale = √(se² + τ²), on t(k − p) under Knapp–Hartung and
-/// the normal under z (see [`predict`] for the source).
-pub fn predictive_from(fit: &ModelFit, est: f64, se: f64, tau2: f64) -> Predictive {
-    Predictive {
-        centre: est,
-        scale: (se * se + tau2).sqrt(),
-        df: df(fit),
-    }
+/// The fit as `--inference kh-floor` would test it: the model-based
+/// covariance scaled by max(1, s²) and t tests, everything else unchanged
+/// (the floored answer shown beside the chosen one when s² < 1).
+pub fn floored(fit: &ModelFit) -> ModelFit {
+    let mut f = fit.clone();
+    let scale = fit.scale_factor.max(1.0);
+    f.cov = &fit.cov_model * scale;
+    f.kh_scale = Some(scale);
+    f.options.inference = Inference::KhFloor;
+    f
 }

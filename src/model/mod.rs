@@ -43,8 +43,23 @@ pub struct ModelFit {
     pub beta: DVector<f64>,
     /// Covariance used for inference (scaled under Knapp–Hartung).
     pub cov: DMatrix<f64>,
-    /// The Knapp–Hartung scale factor s² = Q(τ̂²)/(k − p), under `kh`.
+    /// The model-based covariance (X'WX)⁻¹ (X'V̂⁻¹X)⁻¹ for the three-level
+    /// model), unscaled under every inference; prediction intervals use it.
+    pub cov_model: DMatrix<f64>,
+    /// The Knapp–Hartung scale factor applied: s² = Q(τ̂²)/(k − p) under `kh`,
+    /// max(1, s²) under `kh-floor`, None under `z`.
     pub kh_scale: Option<f64>,
+    /// The raw factor s² = Q(τ̂²)/(k − p) (the weighted residual mean square
+    /// at τ̂²), computed under every inference so that a factor below 1 can
+    /// be reported whatever was chosen.
+    pub scale_factor: f64,
+    /// Residual degrees of freedom of each coefficient's t test (k − p for
+    /// every coefficient of the two-level model; the between–within rule of
+    /// [`multilevel::between_within_df`] for the three-level model).
+    pub term_df: Vec<f64>,
+    /// Degrees of freedom of the predictive t distribution of a new study's
+    /// true effect (k − p − 1; see [`inference::predictive`]).
+    pub pi_df: f64,
     /// Number of studies.
     pub k: usize,
     /// Number of coefficients.
@@ -122,6 +137,17 @@ pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
     }
 }
 
+/// The Knapp–Hartung factor applied under `inference`: s² under `kh`,
+/// max(1, s²) under `kh-floor` (Röver, Knapp & Friede 2015, *BMC Med. Res.
+/// Methodol.* 15:99), none under `z`.
+pub fn applied_scale(inference: Inference, s2: f64) -> Option<f64> {
+    match inference {
+        Inference::Kh => Some(s2),
+        Inference::KhFloor => Some(s2.max(1.0)),
+        Inference::Z => None,
+    }
+}
+
 /// Fits the model.
 ///
 /// # Errors
@@ -163,10 +189,8 @@ pub fn fit_parts(
     let want = if likelihood { Want::ALL } else { Want::Q };
     let f = fit_with(&data, t, want).ok_or_else(singular)?;
     let df = (k - p) as f64;
-    let kh_scale = match options.inference {
-        Inference::Kh => Some(kh_scale(f.q, df, y, v, t)),
-        Inference::Z => None,
-    };
+    let scale_factor = kh_scale(f.q, df, y, v, t);
+    let kh_scale = applied_scale(options.inference, scale_factor);
     let beta = &st.a * &f.beta;
     let cov_model = &st.a * &f.m_inv * st.a.transpose();
     let cov = match kh_scale {
@@ -215,7 +239,11 @@ pub fn fit_parts(
         tau2_ci,
         beta,
         cov,
+        cov_model,
         kh_scale,
+        scale_factor,
+        term_df: vec![df; p],
+        pi_df: df - 1.0,
         k,
         p,
         weights,

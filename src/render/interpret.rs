@@ -101,7 +101,7 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                 pad(e.point.id(), 13),
                 pad(&num(e.mean.estimate), 10),
                 pad(&fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high), 20),
-                pad(&fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high), 20),
+                pad(&fmt::pi_interval(e.mean.pi.pi_low, e.mean.pi.pi_high), 20),
                 fmt::p(e.test.p)
             );
             if let (Some(rd), Some(name)) = (&e.reading, reading) {
@@ -111,7 +111,7 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                     pad("", 27),
                     num(rd.estimate),
                     fmt::interval(rd.ci.ci_low, rd.ci.ci_high),
-                    fmt::interval(rd.pi.pi_low, rd.pi.pi_high)
+                    fmt::pi_interval(rd.pi.pi_low, rd.pi.pi_high)
                 );
             }
         }

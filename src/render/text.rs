@@ -3,7 +3,7 @@
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
 use super::{answers, diagnostics, interpret, multilevel, sensitivity};
 use crate::effect::Measure;
-use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
+use crate::result::{AtValue, Estimate, FitReport, MeasureId, ModeratorKind, Reading};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -14,7 +14,7 @@ fn reading_line(r: &Reading, name: &str) -> String {
         "as {name}: {}  CI {}  new study {}",
         num(r.estimate),
         fmt::interval(r.ci.ci_low, r.ci.ci_high),
-        fmt::interval(r.pi.pi_low, r.pi.pi_high)
+        fmt::pi_interval(r.pi.pi_low, r.pi.pi_high)
     )
 }
 
@@ -29,7 +29,7 @@ fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name:
     let _ = writeln!(
         out,
         "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
-        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
+        fmt::pi_interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
     );
     if let (Some(r), Some(name)) = (&e.reading, reading_name) {
         let _ = writeln!(out, "  {}", reading_line(r, name));
@@ -192,11 +192,7 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         .max()
         .unwrap_or(4)
         .clamp(9, 28);
-    let stat = if r.model.inference == Inference::Kh {
-        "t"
-    } else {
-        "z"
-    };
+    let stat = if r.model.inference.uses_t() { "t" } else { "z" };
     let cw = r
         .coefficients
         .iter()
@@ -352,7 +348,7 @@ fn predictions(r: &FitReport, cx: &Ctx, o: &mut String) {
             num(p.mean.estimate),
             fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
             num(p.mean.se),
-            fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
+            fmt::pi_interval(p.mean.pi.pi_low, p.mean.pi.pi_high)
         );
         if let (Some(rd), Some(name)) = (&p.reading, &r.measure.reading_name) {
             let _ = writeln!(o, "    {}", reading_line(rd, name));

@@ -71,6 +71,10 @@ pub struct FitReport {
     pub heterogeneity: Heterogeneity,
     /// The average effect from the same estimator with no moderators.
     pub average: Estimate,
+    /// The answer with the Knapp–Hartung factor floored at 1, present when a
+    /// raw factor s² is below 1 and the inference is not `kh-floor` (omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub floored: Option<FlooredCheck>,
     /// Predicted effects at the `--at` values.
     pub predictions: Vec<Prediction>,
     /// One entry per included study, in input order.
@@ -276,7 +280,7 @@ mod tests {
             Tau2Method::Sj,
             Tau2Method::None,
         ]);
-        check(&[Inference::Kh, Inference::Z]);
+        check(&[Inference::Kh, Inference::KhFloor, Inference::Z]);
         check(&[TestDistribution::F, TestDistribution::ChiSquare]);
         check(&[RobustTestMethod::Htz]);
         check(&[

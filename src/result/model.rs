@@ -55,11 +55,16 @@ impl Tau2Method {
 
 /// How coefficients are tested.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
+#[serde(rename_all = "kebab-case")]
 pub enum Inference {
     /// Knapp & Hartung (2003): t and F with the covariance scaled by the
     /// weighted residual mean square.
     Kh,
+    /// Knapp–Hartung with the scale factor floored at 1, max(1, s²), so its
+    /// standard errors are never smaller than the model-based ones (Röver,
+    /// Knapp & Friede 2015, *BMC Med. Res. Methodol.* 15:99; Jackson, Law,
+    /// Rücker & Schwarzer 2017, *Stat. Med.* 36:3923).
+    KhFloor,
     /// Wald tests with the normal and chi-square distributions.
     Z,
 }
@@ -69,14 +74,22 @@ impl Inference {
     pub fn id(self) -> &'static str {
         match self {
             Inference::Kh => "kh",
+            Inference::KhFloor => "kh-floor",
             Inference::Z => "z",
         }
+    }
+
+    /// Whether tests use t and F (Knapp–Hartung, floored or not) rather
+    /// than the normal and chi-square.
+    pub fn uses_t(self) -> bool {
+        matches!(self, Inference::Kh | Inference::KhFloor)
     }
 
     /// The method in words.
     pub fn describe(self) -> &'static str {
         match self {
             Inference::Kh => "Knapp–Hartung t and F tests",
+            Inference::KhFloor => "Knapp–Hartung t and F tests with the scale factor floored at 1",
             Inference::Z => "Wald z and chi-square tests",
         }
     }
@@ -154,8 +167,11 @@ pub struct ModelInfo {
     pub moderators: Vec<Moderator>,
     /// Product terms as moderator-name pairs.
     pub interactions: Vec<[String; 2]>,
-    /// Knapp–Hartung scale factor s² (null under z).
+    /// Knapp–Hartung scale factor applied: s² under kh, max(1, s²) under
+    /// kh-floor (null under z).
     pub kh_scale: Option<f64>,
+    /// The raw factor s² = Q(τ̂²)/(k − p) of this model, under every inference.
+    pub scale_factor: f64,
     /// Log-likelihood at the estimate for "ml", restricted log-likelihood for "reml" (else null).
     pub log_likelihood: Option<f64>,
 }
@@ -261,6 +277,54 @@ pub struct ModeratorTest {
     /// under `--robust` (omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub method: Option<RobustTestMethod>,
+}
+
+/// The answer with the Knapp–Hartung scale factor floored at 1 (what
+/// `--inference kh-floor` gives), reported beside the chosen answer whenever
+/// a raw factor s² is below 1, under any inference.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FlooredCheck {
+    /// Raw factor s² of the model with moderators (null without moderators).
+    pub scale_factor: Option<f64>,
+    /// Raw factor s² of the intercept-only model behind the average effect.
+    pub scale_factor_average: f64,
+    /// The moderator test with the floored factor (null without moderators
+    /// or when the model's own factor is at least 1).
+    pub moderator_test: Option<FlooredTest>,
+    /// The average effect with the floored factor (null when the factor of
+    /// its model is at least 1).
+    pub average: Option<FlooredAverage>,
+    /// Whether the floored answer reaches a different conclusion at
+    /// α = 1 − level: the moderator test crossing α, or the average's
+    /// interval including 0 where the chosen one excluded it (or the reverse).
+    pub conclusion_differs: bool,
+}
+
+/// The moderator test under the floored factor.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct FlooredTest {
+    /// F statistic.
+    pub statistic: f64,
+    /// Numerator df.
+    pub df1: f64,
+    /// Denominator df.
+    pub df2: f64,
+    /// p-value.
+    pub p: f64,
+    /// Whether p < 1 − level.
+    pub significant: bool,
+}
+
+/// The average effect under the floored factor (analysis scale).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct FlooredAverage {
+    /// Standard error with the floored factor.
+    pub se: f64,
+    /// Its confidence interval.
+    #[serde(flatten)]
+    pub ci: Interval,
+    /// Two-sided p of the average against 0.
+    pub p: f64,
 }
 
 /// Residual heterogeneity.

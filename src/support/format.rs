@@ -53,6 +53,16 @@ pub fn interval(lo: f64, hi: f64) -> String {
     format!("[{}, {}]", num(lo), num(hi))
 }
 
+/// A prediction interval as [`interval`], or "none" when there is none
+/// (both ends NaN: too few studies for the predictive t distribution).
+pub fn pi_interval(lo: f64, hi: f64) -> String {
+    if lo.is_nan() && hi.is_nan() {
+        "none".into()
+    } else {
+        interval(lo, hi)
+    }
+}
+
 /// A confidence level as a percentage: "95%", "97.5%".
 pub fn level_pct(level: f64) -> String {
     let pct = 100.0 * level;
@@ -141,6 +151,8 @@ mod tests {
         assert_eq!(num(0.0), "0.0000");
         assert_eq!(num(1.5e-5), "1.500e-5");
         assert_eq!(num(f64::NAN), "—");
+        assert_eq!(pi_interval(f64::NAN, f64::NAN), "none");
+        assert_eq!(pi_interval(-1.0, 2.0), "[-1.0000, 2.0000]");
         assert_eq!(p(0.00001), "< 0.0001");
         assert_eq!(p(0.0123), "= 0.0123");
         assert_eq!(p_cell(0.5), "0.5000");

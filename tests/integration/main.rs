@@ -18,6 +18,7 @@ mod reference;
 mod regression;
 mod reliability;
 mod report;
+mod safety;
 mod selection;
 mod sites;
 mod util;

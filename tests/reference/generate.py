@@ -360,15 +360,23 @@ def fit_one(y, v, X, terms, tau2, kind, preds, moderators, levels):
         x0 = x_row(at, moderators, levels)
         mu = float(x0 @ beta)
         s = float(np.sqrt(x0 @ cov @ x0))
-        spi = math.sqrt(s * s + tau2)
+        # Prediction interval: t(k - p - 1) (Higgins, Thompson & Spiegelhalter
+        # 2009) with the unscaled variance of x0'beta, or the one used by the
+        # tests when larger; none when k - p - 1 < 1.
+        spi = math.sqrt(max(float(x0 @ a["inv"] @ x0), s * s) + tau2)
+        if k - p - 1 >= 1:
+            crit_pi = stats.t(k - p - 1).isf(ALPHA / 2)
+            pi = (fl(mu - crit_pi * spi), fl(mu + crit_pi * spi))
+        else:
+            pi = (None, None)
         plist.append({
             "at": at,
             "estimate": fl(mu),
             "se": fl(s),
             "ci_low": fl(mu - crit * s),
             "ci_high": fl(mu + crit * s),
-            "pi_low": fl(mu - crit * spi),
-            "pi_high": fl(mu + crit * spi),
+            "pi_low": pi[0],
+            "pi_high": pi[1],
         })
     return {"coefficients": coefs, "moderator_test": mt, "predictions": plist,
             "_cov": cov, "_beta": beta, "_w": a["w"], "_preds_x": [x_row(at, moderators, levels) for at in preds]}

@@ -63,7 +63,7 @@ def fit(y, v, X, inference):
     else:
         cov = a["inv"]
         crit = stats.norm.ppf(1 - (1 - LEVEL) / 2)
-    return {"tau2": tau2, "beta": a["beta"], "cov": cov, "crit": crit, "k": k, "p": p,
+    return {"tau2": tau2, "beta": a["beta"], "cov": cov, "inv": a["inv"], "crit": crit, "k": k, "p": p,
             "res": res, "inference": inference}
 
 
@@ -84,7 +84,12 @@ def contrast(f, c, with_pi=False):
         lo, hi = est - f["crit"] * se, est + f["crit"] * se
     out = {"estimate": est, "se": se, "ci_low": lo, "ci_high": hi, "statistic": stat, "p": pval}
     if with_pi:
-        half = f["crit"] * math.sqrt(se * se + f["tau2"])
+        # Prediction interval: t(k - p - 1) with the unscaled variance of the
+        # estimate (Higgins, Thompson & Spiegelhalter 2009), or the scaled one
+        # when larger (pondus's safeguard: never narrower than the CI).
+        unscaled = float(c @ f["inv"] @ c)
+        crit_pi = stats.t.ppf(1 - (1 - LEVEL) / 2, f["k"] - f["p"] - 1)
+        half = crit_pi * math.sqrt(max(unscaled, se * se) + f["tau2"])
         out["pi_low"], out["pi_high"] = est - half, est + half
     return out
 

@@ -27,7 +27,7 @@ mod likelihood;
 pub use cr2::{robust, RobustCoef, RobustTest};
 pub use likelihood::{evaluate, maximise, profile_interval, Components, Eval};
 
-use super::{standardise, FitOptions, Inference, ModelFit};
+use super::{standardise, FitOptions, ModelFit};
 use crate::dist;
 use crate::error::{Error, Result};
 use crate::model::tau2::{Tau2Fit, Tau2Method};
@@ -99,6 +99,8 @@ pub struct ThreeLevel {
     pub ll_without_between: f64,
     /// Working covariance blocks are rebuilt from these (σ²_b, σ²_w).
     pub clusters: Clusters,
+    /// The degrees of freedom of each term's t test.
+    pub df: BetweenWithin,
 }
 
 /// Fits the three-level model by REML or ML (other estimators are refused).
@@ -162,16 +164,15 @@ pub fn fit(
     } else {
         -0.5 * k as f64 * two_pi
     };
-    let kh_scale = match options.inference {
-        Inference::Kh => Some(super::kh_scale(e.q, df, y, v, comp.between + comp.within)),
-        Inference::Z => None,
-    };
+    let scale_factor = super::kh_scale(e.q, df, y, v, comp.between + comp.within);
+    let kh_scale = super::applied_scale(options.inference, scale_factor);
     let beta = &st.a * &e.beta;
     let cov_model = &st.a * &e.m_inv * st.a.transpose();
     let cov = match kh_scale {
         Some(s2) => &cov_model * s2,
-        None => cov_model,
+        None => cov_model.clone(),
     };
+    let bw = between_within_df(x, p, cl);
     let mut weights = vec![0.0; k];
     let mut fitted = vec![0.0; k];
     let mut std_resid = vec![None; k];
@@ -217,7 +218,11 @@ pub fn fit(
         tau2_ci: None,
         beta,
         cov,
+        cov_model,
         kh_scale,
+        scale_factor,
+        term_df: bw.term_df.clone(),
+        pi_df: bw.between - 1.0,
         k,
         p,
         weights,
@@ -236,6 +241,7 @@ pub fn fit(
             ll_without_within,
             ll_without_between,
             clusters: cl.clone(),
+            df: bw,
         },
     ))
 }
@@ -258,6 +264,63 @@ pub fn lr_test(ll_full: f64, ll_null: f64) -> (f64, f64) {
     (lr, p)
 }
 
+/// The between–within degrees of freedom of the three-level model's t and F tests.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BetweenWithin {
+    /// Per coefficient: `between` for the intercept and the terms constant
+    /// within every cluster, `within` for the terms that vary within one.
+    pub term_df: Vec<f64>,
+    /// m − p_b: clusters less the coefficients constant within clusters
+    /// (the intercept included).
+    pub between: f64,
+    /// k − m − p_w: effects less clusters less the coefficients that vary
+    /// within clusters.
+    pub within: f64,
+    /// Whether each coefficient varies within clusters.
+    pub varies: Vec<bool>,
+    /// True when a level had too few units for its terms (df < 1), so the
+    /// old rule k − p was kept for every term.
+    pub fell_back: bool,
+}
+
+/// Degrees of freedom per term by the level at which the term varies: the
+/// between–within rule of Schluchter & Elashoff (1990, *J. Statist. Comput.
+/// Simul.* 37:11), as in the containment rule of Pinheiro & Bates (2000,
+/// *Mixed-Effects Models in S and S-PLUS*, section 2.4.2), both cited from
+/// memory.
+///
+/// # Formula
+/// With m clusters, k effects, p_b coefficients constant within every
+/// cluster (the intercept counted) and p_w = p − p_b that vary within some
+/// cluster: df = m − p_b for the former, k − m − p_w for the latter. When
+/// either is below 1 (too few clusters or effects for the terms of that
+/// level) every term keeps k − p and `fell_back` says so.
+pub fn between_within_df(x: &[f64], p: usize, cl: &Clusters) -> BetweenWithin {
+    let k = cl.groups.iter().map(Vec::len).sum::<usize>() as f64;
+    let m = cl.m() as f64;
+    let varies: Vec<bool> = (0..p).map(|j| varies_within(x, p, j, cl)).collect();
+    let p_w = varies.iter().filter(|v| **v).count() as f64;
+    let p_b = p as f64 - p_w;
+    let between = m - p_b;
+    let within = k - m - p_w;
+    let fell_back = between < 1.0 || (p_w > 0.0 && within < 1.0);
+    let term_df = if fell_back {
+        vec![k - p as f64; p]
+    } else {
+        varies
+            .iter()
+            .map(|&v| if v { within } else { between })
+            .collect()
+    };
+    BetweenWithin {
+        term_df,
+        between: if fell_back { k - p as f64 } else { between },
+        within,
+        varies,
+        fell_back,
+    }
+}
+
 /// Whether design column `j` varies within any cluster.
 pub fn varies_within(x: &[f64], p: usize, j: usize, cl: &Clusters) -> bool {
     cl.groups.iter().any(|g| {
@@ -269,6 +332,7 @@ pub fn varies_within(x: &[f64], p: usize, j: usize, cl: &Clusters) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::Inference;
 
     #[test]
     fn one_effect_per_cluster_cannot_separate_the_components() {

@@ -283,7 +283,11 @@ impl<'a> Bubbles<'a> {
                     .map(|p| (f.x(p.x), self.row(p.ci.ci_low))),
             );
             sc.poly(band, Some((FIT, 0.2)), None);
+            let has_pi = c.points.iter().all(|p| !p.pi.pi_low.is_nan());
             for pick in [|p: &CurvePoint| p.pi.pi_low, |p: &CurvePoint| p.pi.pi_high] {
+                if !has_pi {
+                    break;
+                }
                 let line: Vec<(f64, f64)> = c
                     .points
                     .iter()
@@ -352,10 +356,12 @@ impl<'a> Bubbles<'a> {
             if let Some(lvl) = group.and_then(|g| g.levels.iter().find(|x| &x.level == level)) {
                 let p = &lvl.predicted;
                 let x = cx + 0.24 * band_w;
-                let (pl, ph) = (self.row(p.mean.pi.pi_low), self.row(p.mean.pi.pi_high));
-                sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
-                sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);
-                sc.line(vec![(x + 5.0, ph), (x + 15.0, ph)], PREDICT, 2);
+                if !p.mean.pi.pi_low.is_nan() {
+                    let (pl, ph) = (self.row(p.mean.pi.pi_low), self.row(p.mean.pi.pi_high));
+                    sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
+                    sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);
+                    sc.line(vec![(x + 5.0, ph), (x + 15.0, ph)], PREDICT, 2);
+                }
                 let (cl, ch) = (self.row(p.mean.ci.ci_low), self.row(p.mean.ci.ci_high));
                 sc.line(
                     vec![

@@ -21,7 +21,7 @@ pub use scene::{Align, Scene};
 
 use crate::effect::{Measure, ReadingScale};
 use crate::error::{Error, Result};
-use crate::result::{FitReport, Inference, MeasureId, Tau2Method};
+use crate::result::{FitReport, MeasureId, Tau2Method};
 use crate::support::flag::Flag;
 use crate::support::format as fmt;
 use std::path::Path;
@@ -408,7 +408,7 @@ pub(crate) fn model_line(report: &FitReport) -> String {
             m.id().to_uppercase()
         ),
     };
-    let inference = if report.model.inference == Inference::Kh {
+    let inference = if report.model.inference.uses_t() {
         "Knapp–Hartung intervals"
     } else {
         "z-based intervals"

@@ -16,7 +16,7 @@ fn estimate_rows(
         name.to_string(),
         num(e.mean.estimate),
         fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
-        fmt::interval(e.mean.pi.pi_low, e.mean.pi.pi_high),
+        fmt::pi_interval(e.mean.pi.pi_low, e.mean.pi.pi_high),
         num(e.mean.se),
     ]);
     if let (Some(r), Some(rn)) = (&e.reading, reading_name) {
@@ -24,7 +24,7 @@ fn estimate_rows(
             format!("{name}, as {rn}"),
             num(r.estimate),
             fmt::interval(r.ci.ci_low, r.ci.ci_high),
-            fmt::interval(r.pi.pi_low, r.pi.pi_high),
+            fmt::pi_interval(r.pi.pi_low, r.pi.pi_high),
             "—".into(),
         ]);
     }

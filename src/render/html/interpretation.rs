@@ -52,7 +52,7 @@ fn conditional_effects(page: &mut Page, report: &FitReport, lv: &str) {
                 groups.push((c.moderator.as_str(), c.held.as_str()));
             }
         }
-        let stat = if report.model.inference == crate::result::Inference::Kh {
+        let stat = if report.model.inference.uses_t() {
             "t"
         } else {
             "z"
@@ -74,7 +74,7 @@ fn conditional_effects(page: &mut Page, report: &FitReport, lv: &str) {
                         at,
                         num(c.mean.estimate),
                         fmt::interval(c.mean.ci.ci_low, c.mean.ci.ci_high),
-                        fmt::interval(c.mean.pi.pi_low, c.mean.pi.pi_high),
+                        fmt::pi_interval(c.mean.pi.pi_low, c.mean.pi.pi_high),
                         format!("{:.2}", c.test.statistic),
                         fmt::p(c.test.p).trim_start_matches("= ").to_string(),
                     ]

@@ -56,7 +56,7 @@ fn omnibus(page: &mut Page, cx: &FitCtx) {
 fn coefficients(page: &mut Page, cx: &FitCtx) {
     let (report, lv) = (cx.report, &cx.lv);
     let ratio = report.coefficients.iter().any(|c| c.ratio.is_some());
-    let stat_name = if report.model.inference == crate::result::Inference::Kh {
+    let stat_name = if report.model.inference.uses_t() {
         "t"
     } else {
         "z"
@@ -131,7 +131,7 @@ fn predictions(page: &mut Page, cx: &FitCtx) {
                     at,
                     num(p.mean.estimate),
                     fmt::interval(p.mean.ci.ci_low, p.mean.ci.ci_high),
-                    fmt::interval(p.mean.pi.pi_low, p.mean.pi.pi_high),
+                    fmt::pi_interval(p.mean.pi.pi_low, p.mean.pi.pi_high),
                     num(p.mean.se),
                 ]
             })

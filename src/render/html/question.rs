@@ -62,7 +62,7 @@ pub(super) fn start(cx: &FitCtx) -> Page {
                  ({lv} prediction interval).",
                 num(a.mean.estimate),
                 fmt::interval(a.mean.ci.ci_low, a.mean.ci.ci_high),
-                fmt::interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
+                fmt::pi_interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
             )
         }
     };

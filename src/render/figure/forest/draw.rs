@@ -321,6 +321,16 @@ impl Forest<'_> {
             INK,
             Align::Left,
         );
+        if avg.mean.pi.pi_low.is_nan() {
+            sc.text(
+                (self.ci_right(), y),
+                "none (too few studies)".to_string(),
+                fs,
+                INK,
+                Align::Right,
+            );
+            return;
+        }
         let (a, b) = (
             self.x_of(self.clip(self.tp(avg.mean.pi.pi_low))),
             self.x_of(self.clip(self.tp(avg.mean.pi.pi_high))),

@@ -139,7 +139,12 @@ pub(super) fn value_axis(report: &FitReport, group: Grouping) -> Axis {
     let studies = &report.studies;
     let avg = &report.average;
     let mut core: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
-    core.extend([tp(avg.mean.pi.pi_low), tp(avg.mean.pi.pi_high), 0.0]);
+    // NaN ends: no prediction interval (too few studies), nothing to fit in.
+    core.extend(
+        [tp(avg.mean.pi.pi_low), tp(avg.mean.pi.pi_high), 0.0]
+            .into_iter()
+            .filter(|v| !v.is_nan()),
+    );
     if let Some((_, g)) = group {
         for lv in &g.levels {
             if let Some(p) = &lv.pooled {
