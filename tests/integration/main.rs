@@ -18,5 +18,6 @@ mod regression;
 mod reliability;
 mod report;
 mod safety;
+mod selection;
 mod sites;
 mod util;
