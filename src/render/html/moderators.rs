@@ -174,7 +174,7 @@ fn levels(page: &mut Page, cx: &FitCtx) {
         let held = if g.held.is_empty() {
             String::new()
         } else {
-            format!("; model predictions with {}", g.held)
+            format!("; model predictions hold the other moderators {}", g.held)
         };
         page.table(
             &format!(
