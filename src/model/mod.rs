@@ -7,6 +7,7 @@ pub mod inference;
 pub mod location_scale;
 pub mod multilevel;
 pub mod probe;
+pub mod selection;
 pub mod shrink;
 pub mod solve;
 pub mod subsets;
@@ -187,8 +188,8 @@ pub fn fit_parts(
                 .then(|| (y[i] - fi) / var_r.sqrt()),
         );
     }
-    let fe = fit_with(&data, 0.0, Want::SCORE).ok_or_else(singular)?;
-    let v_typical = df / fe.tr_p;
+    let fe = fit_with(&data, 0.0, Want::Q).ok_or_else(singular)?;
+    let v_typical = df / wls::trace_p(&data, 0.0).ok_or_else(singular)?;
     let tau2_ci = match options.method {
         Tau2Method::None => None,
         _ if !with_ci => None,

@@ -104,7 +104,10 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         missing_lines: pass.missing_lines.clone(),
         passes: if robust.is_some() { 2 } else { 1 },
     };
-    Ok(assemble(input_info, s, layout, fitted, excluded, robust))
+    usable(
+        source,
+        assemble(input_info, s, layout, fitted, excluded, robust),
+    )
 }
 
 /// Runs the per-site stage on a per-site moments table (see
@@ -145,7 +148,10 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         missing_lines: vec![],
         passes: 1,
     };
-    Ok(assemble(input_info, s, layout, fitted, excluded, None))
+    usable(
+        source,
+        assemble(input_info, s, layout, fitted, excluded, None),
+    )
 }
 
 /// Opens the row file for one pass.
@@ -164,6 +170,28 @@ fn open_rows(source: &str, p: &Path) -> Result<std::fs::File> {
         action: "reading",
         source: e,
     })
+}
+
+/// The report when at least one site has a usable regression.
+///
+/// # Errors
+/// [`Error::Model`] when every site was left out, naming how many and the
+/// first few with their reasons (a header-only effects file is not a result).
+fn usable(source: &str, report: SitesReport) -> Result<SitesReport> {
+    if !report.sites.is_empty() {
+        return Ok(report);
+    }
+    let shown: Vec<String> = report
+        .excluded
+        .iter()
+        .take(3)
+        .map(|e| format!("'{}' ({})", e.study, e.reason))
+        .collect();
+    Err(Error::Model(format!(
+        "{source}: no site has a usable regression; all {} were left out, for example {}",
+        report.excluded.len(),
+        shown.join(", ")
+    )))
 }
 
 #[cfg(test)]

@@ -18,5 +18,6 @@ mod reference;
 mod regression;
 mod reliability;
 mod report;
+mod selection;
 mod sites;
 mod util;

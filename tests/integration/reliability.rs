@@ -452,3 +452,162 @@ fn sites_robust_on_a_fifo_path_is_refused_instead_of_blocking() {
         "{err}"
     );
 }
+
+/// Variances from 1e-12 to 1e6 in one data set gave I² = 107% and H² < 0:
+/// ṽ = (k − p)/tr P lost every digit in tr P = Σw − tr(M⁻¹X'W²X). The
+/// expected ṽ are computed in exact rational arithmetic (Python 3
+/// `fractions.Fraction`, tr P = Σ w_i(1 − w_i x_i'M⁻¹x_i)): 2.999997e-09
+/// without and 8.347217577465964e-07 with the moderator m = 0, 1, …, 6.
+#[test]
+fn i2_with_variances_from_1e_12_to_1e6_stays_in_range_and_exact() {
+    let csv = "study,effect,variance,m\na,0.1,1e-12,0\nb,0.5,1e-9,1\nc,0.3,1e-6,2\n\
+               d,0.2,1e-3,3\ne,0.4,1,4\nf,0.25,1e3,5\ng,0.35,1e6,6\n";
+    for (mods, expected) in [
+        (&[][..], 2.999997e-09),
+        (&["--moderator", "m"][..], 8.347217577465964e-07),
+    ] {
+        let mut args = vec!["fit", "input.csv", "--inference", "z", "--json", "-"];
+        args.extend(mods);
+        let j = json(csv, &args);
+        let h = &j["heterogeneity"];
+        let v = h["typical_variance"].as_f64().unwrap();
+        assert!(
+            (v - expected).abs() <= 1e-9 * expected,
+            "ṽ = {v}, exact {expected}"
+        );
+        let (i2, h2) = (h["i2"].as_f64().unwrap(), h["h2"].as_f64().unwrap());
+        assert!(
+            (0.0..=1.0).contains(&i2) && h2 >= 1.0,
+            "I² = {i2}, H² = {h2}"
+        );
+    }
+}
+
+#[test]
+fn sites_out_to_stdout_names_the_sites_left_out_and_no_usable_site_is_an_error() {
+    // Site B has a constant outcome, site C two rows (invented rows).
+    let mut csv = String::from("s,x,y\n");
+    for i in 0..6 {
+        csv.push_str(&format!("A,{i},{}\n", 0.5 * i as f64 + (i % 2) as f64));
+        csv.push_str(&format!("B,{i},3\n"));
+    }
+    csv.push_str("C,1,2\nC,2,3\n");
+    let args = [
+        "sites",
+        "input.csv",
+        "--site",
+        "s",
+        "--x",
+        "x",
+        "--y",
+        "y",
+        "--out",
+        "-",
+    ];
+    let (code, out, err) = run(&csv, &args);
+    assert_eq!(code, Some(0), "{err}");
+    assert!(out.lines().count() == 2, "{out}");
+    assert!(
+        err.contains("2 sites left out")
+            && err.contains("  B (6 rows)")
+            && err.contains("  C (2 rows)"),
+        "{err}"
+    );
+    let j = json(
+        &csv,
+        &[
+            "sites",
+            "input.csv",
+            "--site",
+            "s",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(j["excluded"].as_array().unwrap().len(), 2, "{j}");
+    // No usable site: an error, not a header-only file.
+    let none: String = csv
+        .lines()
+        .filter(|l| !l.starts_with('A'))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    let (code, out, err) = run(&none, &args);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        out.is_empty() && err.contains("no site has a usable regression"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_prediction_at_1e308_gets_the_range_reason_not_non_convergence() {
+    let csv = "study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\nd,0.4,0.03,5\n";
+    let (code, _, err) = run(
+        csv,
+        &["fit", "input.csv", "--moderator", "m", "--at", "m=1e308"],
+    );
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("--at") && err.contains("range") && !err.contains("converge"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_variance_and_an_se_that_disagree_are_not_silently_resolved() {
+    let csv =
+        "study,effect,variance,se\na,0.1,0.01,0.5\nb,0.3,0.02,0.1414\nc,0.2,0.01,\nd,0.4,,0.2\n";
+    let (code, _, err) = run(csv, &["fit", "input.csv"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("line 2") && err.contains("disagree"), "{err}");
+    // Agreeing to rounding (0.1414² = 0.019994) is fine.
+    let ok =
+        "study,effect,variance,se\na,0.1,0.01,0.1\nb,0.3,0.02,0.1414\nc,0.2,0.01,\nd,0.4,,0.2\n";
+    let j = json(ok, &["fit", "input.csv", "--json", "-"]);
+    assert_eq!(j["k"], 4);
+}
+
+#[test]
+fn site_ids_that_match_only_ignoring_case_get_a_hint() {
+    let mut csv = String::from("s,x,y\n");
+    for i in 0..6 {
+        for site in ["North", "South", "East"] {
+            csv.push_str(&format!("{site},{i},{}\n", 0.3 * i as f64 + (i % 3) as f64));
+        }
+    }
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("input.csv"), &csv).unwrap();
+    std::fs::write(
+        dir.path().join("info.csv"),
+        "s,size\nnorth,1\nSouth,2\nEAST,3\n",
+    )
+    .unwrap();
+    let (code, out, err) = run_in(
+        dir.path(),
+        &[
+            "sites",
+            "input.csv",
+            "--site",
+            "s",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--info",
+            "info.csv",
+            "--json",
+            "-",
+        ],
+    );
+    assert_eq!(code, Some(0), "{err}");
+    let j: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let notes = j["notes"].to_string();
+    assert!(
+        notes.contains("2 differ only in case") && notes.contains("'North' (data) and 'north'"),
+        "{notes}"
+    );
+}
