@@ -199,6 +199,7 @@ pub const SELECTION_MAX_LOG_WEIGHT: f64 = 13.8;
 /// maximisation and statsmodels (the issue asks for agreement to 1e-4;
 /// both sides stop optimisers, so agreement is about 1e-6).
 pub const SELECTION_REF_ABS: f64 = 1e-4;
+
 /// Test tolerance (absolute and relative) of `--shrink`, `--beyond`,
 /// `--all-subsets` and the location-scale estimates against the independent
 /// scipy/statsmodels script `tests/reference/heterogeneity.py`: both sides
