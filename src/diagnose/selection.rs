@@ -14,7 +14,7 @@ use crate::result::{
     SelectionModel, SelectionWeight, Test,
 };
 use crate::support::flag::Flag;
-use crate::support::format::{num, typed};
+use crate::support::format::typed;
 
 /// Fewest studies an interval must hold for its weight to be estimated
 /// without `--selection-force`.
@@ -73,7 +73,7 @@ pub fn parse_cuts(text: &str) -> Result<Vec<f64>> {
                 return Err(usage(format!(
                     "the cut points must ascend, and {t} comes after {}; write them in \
                      ascending order",
-                    num(last)
+                    typed(last)
                 )));
             }
         }

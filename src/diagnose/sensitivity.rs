@@ -58,7 +58,7 @@ pub fn view(inp: &ViewInputs<'_>) -> Sensitivity {
     for (j, c) in inp.coefficients.iter().enumerate().skip(1) {
         quantities.push(moderator_quantity(inp, j, c));
     }
-    let answer = answer(&quantities);
+    let answer = answer(&quantities, inp.scale == ReadingScale::Ratio);
     Sensitivity {
         quantities,
         answer,
@@ -211,7 +211,13 @@ fn finish(quantity: String, moderator: bool, mut rows: Vec<SensitivityRow>) -> S
 }
 
 fn names(rows: &[&SensitivityRow]) -> String {
-    let n: Vec<&str> = rows.iter().map(|r| r.adjustment.label()).collect();
+    let n: Vec<&str> = rows
+        .iter()
+        .map(|r| match r.adjustment {
+            Adjustment::Selection => "the selection model",
+            other => other.label(),
+        })
+        .collect();
     match n.len() {
         0 => String::new(),
         1 => n[0].to_string(),
@@ -220,7 +226,7 @@ fn names(rows: &[&SensitivityRow]) -> String {
 }
 
 /// The plain answer, one sentence per quantity and one on the moderators.
-fn answer(quantities: &[SensitivityQuantity]) -> Vec<String> {
+fn answer(quantities: &[SensitivityQuantity], ratio: bool) -> Vec<String> {
     let mut out = Vec::new();
     let mut moderator_lost = Vec::new();
     let mut any_moderator = false;
@@ -234,18 +240,29 @@ fn answer(quantities: &[SensitivityQuantity]) -> Vec<String> {
         } else {
             "The average effect".to_string()
         };
+        // The numbers as the table shows them: on the reading scale when it has one.
+        let (e, lo, hi) = match first.reading {
+            Some(r) => (r.estimate, r.ci.ci_low, r.ci.ci_high),
+            None => (
+                first.estimate.unwrap_or(f64::NAN),
+                first.ci.ci_low.unwrap_or(f64::NAN),
+                first.ci.ci_high.unwrap_or(f64::NAN),
+            ),
+        };
+        let null = if ratio && first.reading.is_some() {
+            "1"
+        } else {
+            "0"
+        };
         let base = format!(
             "{what} is {} as fitted ({} {})",
             match (sig, pos) {
-                (true, true) => "above 0",
-                (true, false) => "below 0",
-                (false, _) => "not distinguishable from 0",
+                (true, true) => format!("above {null}"),
+                (true, false) => format!("below {null}"),
+                (false, _) => format!("not distinguishable from {null}"),
             },
-            num(first.estimate.unwrap_or(f64::NAN)),
-            interval(
-                first.ci.ci_low.unwrap_or(f64::NAN),
-                first.ci.ci_high.unwrap_or(f64::NAN)
-            )
+            num(e),
+            interval(lo, hi)
         );
         let mut tail: Vec<String> = Vec::new();
         for words in PHRASES {
@@ -269,7 +286,7 @@ fn answer(quantities: &[SensitivityQuantity]) -> Vec<String> {
                     r.verdict,
                     Some(Verdict::Fades | Verdict::Reverses | Verdict::Appears)
                 ) {
-                    moderator_lost.push(format!("{} ({})", q.quantity, r.adjustment.label()));
+                    moderator_lost.push(format!("{} ({})", q.quantity, names(&[r])));
                 }
             }
         }
@@ -291,17 +308,17 @@ fn answer(quantities: &[SensitivityQuantity]) -> Vec<String> {
 /// The phrases of the answer, in the order they are given.
 const PHRASES: [&str; 4] = [
     "it stays so under",
-    "its interval includes 0 under",
+    "its interval includes no effect under",
     "it changes sign under",
-    "it differs from 0 only under",
+    "it differs from no effect only under",
 ];
 
 fn phrase(v: Verdict) -> &'static str {
     match v {
         Verdict::Holds | Verdict::NoneEither => "it stays so under",
-        Verdict::Fades => "its interval includes 0 under",
+        Verdict::Fades => "its interval includes no effect under",
         Verdict::Reverses => "it changes sign under",
-        Verdict::Appears => "it differs from 0 only under",
+        Verdict::Appears => "it differs from no effect only under",
     }
 }
 
@@ -355,7 +372,8 @@ fn cautions(inp: &ViewInputs<'_>) -> Vec<String> {
         }
         c.push(format!(
             "The selection model was fitted by maximum likelihood whatever {} says, with z \
-             tests and intervals.",
+             tests and intervals; part of a difference from the fit can come from that rather \
+             than from the selection.",
             crate::support::flag::Flag::Tau2
         ));
     }

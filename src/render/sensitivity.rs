@@ -78,10 +78,10 @@ fn verdict_words(v: Option<Verdict>) -> &'static str {
     match v {
         None => "",
         Some(Verdict::Holds) => "holds",
-        Some(Verdict::Fades) => "interval includes 0",
+        Some(Verdict::Fades) => "interval includes no effect",
         Some(Verdict::Reverses) => "changes sign",
-        Some(Verdict::Appears) => "differs from 0 only here",
-        Some(Verdict::NoneEither) => "still includes 0",
+        Some(Verdict::Appears) => "differs from no effect only here",
+        Some(Verdict::NoneEither) => "still includes no effect",
     }
 }
 

@@ -67,6 +67,7 @@ flags! {
     BubbleX => "--bubble-x", ["fit"];
     Funnel => "--funnel", ["fit"];
     Contours => "--contours", ["fit"];
+    SensitivityPlot => "--sensitivity-plot", ["fit"];
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
     Quiet => "--quiet", ["fit", "plan", "sites"];

@@ -305,6 +305,9 @@ pub struct PlotArgs {
     /// Shade the funnel plot's significance contours (p = 0.10, 0.05, 0.01).
     #[arg(long)]
     pub contours: bool,
+    /// Draw the sensitivity plot (average effect and moderator coefficients under each adjustment; needs --small-study or --selection) into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub sensitivity_plot: Option<PathBuf>,
     /// Width of every plot in pixels [default: automatic].
     #[arg(long, value_name = "PIXELS")]
     pub width: Option<u32>,
@@ -324,6 +327,11 @@ impl PlotArgs {
             ("--forest", PlotKind::Forest, &self.forest),
             ("--bubble", PlotKind::Bubble, &self.bubble),
             ("--funnel", PlotKind::Funnel, &self.funnel),
+            (
+                "--sensitivity-plot",
+                PlotKind::Sensitivity,
+                &self.sensitivity_plot,
+            ),
         ] {
             if let Some(p) = path {
                 plots.push((
