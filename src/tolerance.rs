@@ -27,6 +27,11 @@ pub const LIKELIHOOD_NEAR_ZERO_DECADES: usize = 6;
 /// is rounding, not variation: (4ε)², for residuals of a few ε·|y|.
 pub const EXACT_FIT_REL: f64 = 16.0 * f64::EPSILON * f64::EPSILON;
 
+/// A Knapp–Hartung residual Q at or below this share of Σ y_i²/(v_i + τ²)
+/// is rounding of an exact fit, not residual variation: (8ε)², residuals of
+/// a few ε·|y| with a margin of a few. Real residuals are many orders larger.
+pub const KH_EXACT_FIT_REL: f64 = 64.0 * f64::EPSILON * f64::EPSILON;
+
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;
 

@@ -15,6 +15,7 @@ mod plots;
 mod properties;
 mod reference;
 mod regression;
+mod reliability;
 mod report;
 mod selection;
 mod sites;

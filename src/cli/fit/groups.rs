@@ -191,7 +191,14 @@ impl ModelArgs {
         for r in &self.reference {
             let (name, level) = split_pair("--reference", r, "NAME=LEVEL")?;
             self.known("--reference", name)?;
-            references.insert(name.to_string(), level.to_string());
+            if let Some(before) = references.insert(name.to_string(), level.to_string()) {
+                return Err(Error::usage(
+                    "--reference",
+                    format!(
+                        "'{name}' is given two reference levels ('{before}' and '{level}'); give one"
+                    ),
+                ));
+            }
         }
         for n in &self.categorical {
             self.known("--categorical", n)?;
@@ -225,6 +232,15 @@ impl ModelArgs {
             let mut point = Vec::new();
             for part in a.split(',') {
                 let (n, v) = split_pair("--at", part, "NAME=VALUE,NAME=VALUE,...")?;
+                if let Some((_, before)) = point.iter().find(|(m, _)| m == n) {
+                    return Err(Error::usage(
+                        "--at",
+                        format!(
+                            "'{a}' gives '{n}' twice ('{n}={before}' and '{n}={v}'); give each \
+                             moderator once per point (repeat --at for another point)"
+                        ),
+                    ));
+                }
                 point.push((n.to_string(), v.to_string()));
             }
             predictions.push(point);
