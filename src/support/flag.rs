@@ -69,6 +69,7 @@ flags! {
     Contours => "--contours", ["fit"];
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
+    Dpi => "--dpi", ["fit", "plan"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];

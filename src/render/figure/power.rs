@@ -2,18 +2,19 @@
 //! the number of sites (the report's table), with the target power as a
 //! dashed line and the planned k marked.
 
-use super::scene::{encode_inline, fit_text, Align, Scene};
-use super::{encode, palette, size, Axis, Format, Frame, PageFigure};
+use super::scene::{fit_text, Align, Scene};
+use super::{encode, encode_inline, palette, size, Axis, Format, Frame, PageFigure};
 use crate::error::Result;
 use crate::result::plan::{PlanReport, PlanTest};
+use crate::support::flag::Flag;
 
-/// The power curve over k (from the report's table) as SVG or PNG, with the
-/// target power as a dashed line and the planned k marked.
+/// The power curve over k (from the report's table) as SVG, PNG (at `dpi`)
+/// or PDF, with the target power as a dashed line and the planned k marked.
 ///
 /// # Errors
 /// Drawing errors.
-pub fn plot(r: &PlanReport, format: Format) -> Result<Vec<u8>> {
-    encode(&scene(r), format)
+pub fn plot(r: &PlanReport, format: Format, dpi: u32) -> Result<Vec<u8>> {
+    encode(&scene(r), format, dpi, Flag::Curve)
 }
 
 /// The power curve as an inline SVG figure for the HTML report.
@@ -30,7 +31,7 @@ pub fn page_figure(r: &PlanReport) -> Result<PageFigure> {
             r.table.last().map_or(r.k, |p| p.k),
             r.k
         ),
-        svg: encode_inline(&scene(r))?,
+        svg: encode_inline(&scene(r)),
     })
 }
 
