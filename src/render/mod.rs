@@ -20,6 +20,7 @@ pub mod json;
 pub mod layout;
 pub mod multilevel;
 pub mod plan;
+pub mod sensitivity;
 pub mod sites;
 pub mod sites_effects;
 pub mod table;

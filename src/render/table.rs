@@ -33,6 +33,13 @@ pub const INFLUENCE_COLUMNS: [&str; 8] = [
     "influential",
 ];
 
+/// A text cell (label, note, reason) safe to open in a spreadsheet: a
+/// leading `=`, `+`, `-` or `@` gets an apostrophe in front
+/// ([`crate::support::text::spreadsheet_cell`]).
+fn cell(s: &str) -> String {
+    crate::support::text::spreadsheet_cell(s).into_owned()
+}
+
 fn opt(x: Option<f64>) -> String {
     x.map(|x| x.to_string()).unwrap_or_default()
 }
@@ -83,7 +90,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             ]);
         }
         let mut row = vec![
-            s.study.clone(),
+            cell(&s.study),
             s.line.to_string(),
             "yes".into(),
             String::new(),
@@ -93,7 +100,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             s.fitted.to_string(),
             s.residual.to_string(),
             s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
-            s.note.clone().unwrap_or_default(),
+            cell(s.note.as_deref().unwrap_or_default()),
         ];
         row.extend(more);
         rows.push((s.line, row));
@@ -106,10 +113,10 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     }
     for e in &report.excluded {
         let mut row = vec![
-            e.study.clone(),
+            cell(&e.study),
             e.line.to_string(),
             "no".into(),
-            e.reason.clone(),
+            cell(&e.reason),
         ];
         row.extend(std::iter::repeat_n(String::new(), 7 + extra));
         rows.push((e.line, row));

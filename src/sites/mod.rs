@@ -63,6 +63,20 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         RowInput::File(p) => Some(p.to_path_buf()),
         RowInput::Stream(_) => None,
     };
+    // A FIFO, a character device or a socket given as a path reads once
+    // like standard input: the second pass would wait forever.
+    if let (RowInput::File(p), true) = (&input, s.robust) {
+        if std::fs::metadata(p).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+            return Err(Error::usage(
+                Flag::Robust,
+                format!(
+                    "{source}: HC3 standard errors need each row's leverage and residual, so the \
+                     file is read a second time, and this path is a pipe or device that can be \
+                     read only once; save the data to a regular file and give its path"
+                ),
+            ));
+        }
+    }
     let summaries =
         match input {
             RowInput::File(p) => summarise_rows(source, open(p)?, s)?,

@@ -84,6 +84,9 @@ flags! {
     Seed => "--seed", ["fit", "plan"];
     SmallStudy => "--small-study", ["fit"];
     CumulativeBy => "--cumulative-by", ["fit"];
+    Selection => "--selection", ["fit"];
+    Favoured => "--favoured", ["fit"];
+    SelectionForce => "--selection-force", ["fit"];
     Cluster => "--cluster", ["fit"];
     Levels => "--levels", ["fit"];
     Robust => "--robust", ["fit", "sites"];

@@ -15,6 +15,8 @@ mod plots;
 mod properties;
 mod reference;
 mod regression;
+mod reliability;
 mod report;
+mod selection;
 mod sites;
 mod util;

@@ -73,3 +73,6 @@ trap 'rm -rf "$tmp"' EXIT
 # Three-level model and CR2 robust inference (tests/reference/multilevel.py -> tests/data/reference/multilevel/)
 "$venv/bin/python" "$here/multilevel.py" "$tmp/multilevel" > "$tmp/multilevel.log" 2>&1 || { cat "$tmp/multilevel.log" >&2; die "multilevel.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/multilevel" "$tmp/multilevel" || die "multilevel fixtures differ; regenerate with: $venv/bin/python tests/reference/multilevel.py tests/data/reference/multilevel"
+# Selection model (scipy maximisation) and PET/PEESE (statsmodels WLS) (tests/reference/selection.py -> tests/data/reference/selection/)
+"$venv/bin/python" "$here/selection.py" "$tmp/selection" > "$tmp/selection.log" 2>&1 || { cat "$tmp/selection.log" >&2; die "selection.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/selection" "$tmp/selection" || die "selection fixtures differ; regenerate with: $venv/bin/python tests/reference/selection.py tests/data/reference/selection"

@@ -163,7 +163,7 @@ pub fn fit(
         -0.5 * k as f64 * two_pi
     };
     let kh_scale = match options.inference {
-        Inference::Kh => Some(e.q / df),
+        Inference::Kh => Some(super::kh_scale(e.q, df, y, v, comp.between + comp.within)),
         Inference::Z => None,
     };
     let beta = &st.a * &e.beta;

@@ -238,6 +238,7 @@ pub fn page_figures(
     let mut notes = Vec::new();
     let k = report.k;
     let measure = &report.measure.description;
+<<<<<<< HEAD
     figures.push(PageFigure {
         kind: "forest",
         title: "Forest plot".into(),
@@ -246,6 +247,29 @@ pub fn page_figures(
         ),
         svg: encode_inline(&forest::scene(report, opts)?),
     });
+=======
+    // The page shows a forest plot when it can; with more studies than a
+    // forest plot holds, the page says so (the funnel shows them all)
+    // rather than failing in the name of --forest, which was not given.
+    if report.studies.len() > forest::MAX_STUDIES {
+        notes.push(format!(
+            "No forest plot: {} studies are more rows than a forest plot holds (at most {}); the \
+             funnel plot below shows every study.",
+            report.studies.len(),
+            forest::MAX_STUDIES
+        ));
+    } else {
+        figures.push(PageFigure {
+            kind: "forest",
+            title: "Forest plot".into(),
+            description: format!(
+                "Forest plot: each of the {k} studies' effects ({measure}) with its confidence \
+                 interval, marker size by weight, and the pooled result at the bottom."
+            ),
+            svg: scene::encode_inline(&forest::scene(report, opts)?)?,
+        });
+    }
+>>>>>>> main
     match bubble::scene(report, opts) {
         Ok(sc) => {
             let name = opts
@@ -265,7 +289,8 @@ pub fn page_figures(
                 kind: "bubble",
                 title: format!("Effect against {name}"),
                 description: format!(
-                    "Bubble plot: each study's effect against its value of {name}, circle area by                      weight, with the fitted meta-regression and its bands."
+                    "Bubble plot: each study's effect against its value of {name}, circle area by \
+                     weight, with the fitted meta-regression and its bands."
                 ),
                 svg: encode_inline(&sc),
             });
