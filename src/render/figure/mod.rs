@@ -238,16 +238,6 @@ pub fn page_figures(
     let mut notes = Vec::new();
     let k = report.k;
     let measure = &report.measure.description;
-<<<<<<< HEAD
-    figures.push(PageFigure {
-        kind: "forest",
-        title: "Forest plot".into(),
-        description: format!(
-            "Forest plot: each of the {k} studies' effects ({measure}) with its confidence interval,              marker size by weight, and the pooled result at the bottom."
-        ),
-        svg: encode_inline(&forest::scene(report, opts)?),
-    });
-=======
     // The page shows a forest plot when it can; with more studies than a
     // forest plot holds, the page says so (the funnel shows them all)
     // rather than failing in the name of --forest, which was not given.
@@ -266,10 +256,9 @@ pub fn page_figures(
                 "Forest plot: each of the {k} studies' effects ({measure}) with its confidence \
                  interval, marker size by weight, and the pooled result at the bottom."
             ),
-            svg: scene::encode_inline(&forest::scene(report, opts)?)?,
+            svg: encode_inline(&forest::scene(report, opts)?),
         });
     }
->>>>>>> main
     match bubble::scene(report, opts) {
         Ok(sc) => {
             let name = opts
