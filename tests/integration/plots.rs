@@ -941,3 +941,43 @@ fn decode_base64(text: &str) -> Vec<u8> {
     }
     out
 }
+
+#[test]
+fn power_curve_marks_the_k_needed_and_every_simulated_power() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("power.svg");
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .args(
+            "plan --measure smd --n 60 --tau2 0.02 --share 0.5 --moderator-effect 0.3 --test kh \
+             --target-power 0.8 --simulate 200 --seed 3 --json - --curve"
+                .split_whitespace(),
+        )
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let json: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let svg = parse_svg(&std::fs::read(&out).unwrap());
+    let k_needed = json["k_needed"].as_u64().expect("k is solved");
+    assert!(has_text(&svg, &format!("k needed = {k_needed}")));
+    // One open circle per simulated power: at the planned k and at each k
+    // the solver simulated (those inside the curve's range of k).
+    let kmax = json["table"].as_array().unwrap().last().unwrap()["k"]
+        .as_u64()
+        .unwrap();
+    let mut simulated = usize::from(!json["simulation"].is_null());
+    if let Some(ev) = json["k_needed_simulated"]["evaluated"].as_array() {
+        simulated += ev
+            .iter()
+            .filter(|e| e["k"].as_u64().unwrap() <= kmax)
+            .count();
+    }
+    assert!(simulated > 0, "the run simulated");
+    let open = svg
+        .iter()
+        .filter(|e| e.tag == "circle" && e.attr("stroke") == Some(FIT))
+        .count();
+    assert_eq!(open, simulated);
+    assert!(has_text(&svg, "simulated power"));
+}

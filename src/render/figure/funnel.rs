@@ -172,11 +172,16 @@ fn caption(report: &FitReport, opts: &PlotOptions, fu: &Funnel) -> Vec<String> {
         )
     }];
     if opts.contours {
-        caption.push(
+        caption.push(if residuals {
+            "Shaded bands surround each study's fitted value, not no effect: where a residual \
+             alone would differ significantly from the model's prediction (two-sided z test), \
+             lighter to darker; the legend gives the p-value of each band."
+                .into()
+        } else {
             "Shaded bands: where a study alone would be significant against no effect (two-sided \
              z test), lighter to darker; the legend gives the p-value of each band."
-                .into(),
-        );
+                .into()
+        });
     }
     if let Some(s) = &report.small_study {
         caption.push(if residuals {

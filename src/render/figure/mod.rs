@@ -21,7 +21,7 @@ mod svg;
 #[cfg(test)]
 mod typeset_tests;
 
-pub(crate) use axis::{Axis, Frame};
+pub(crate) use axis::{label_step, Axis, Frame};
 pub use scene::{Align, Scene};
 
 use crate::effect::{Measure, ReadingScale};

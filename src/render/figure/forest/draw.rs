@@ -5,7 +5,7 @@ use super::layout::{Forest, Row};
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::Rgb;
 use crate::render::figure::scene::{fit_middle, fit_text};
-use crate::render::figure::{caption, heading, measure_name, size, Align, Scene};
+use crate::render::figure::{caption, heading, label_step, measure_name, size, Align, Scene};
 use crate::result::{Estimate, LevelSummary, Study};
 use crate::support::format as fmt;
 
@@ -346,16 +346,19 @@ impl Forest<'_> {
         let (px0, px1) = (self.px0, self.px1);
         let ay = self.rows_bottom() + 6.0;
         sc.line(vec![(px0, ay), (px1, ay)], INK, 1);
-        for (v, label) in &self.axis.ticks {
-            let x = self.x_of(*v);
-            sc.line(vec![(x, ay), (x, ay + 5.0)], INK, 1);
-            sc.text(
-                (x, ay + 15.0),
-                label.clone(),
-                size::SMALL,
-                INK,
-                Align::Center,
-            );
+        let xs: Vec<f64> = self.axis.ticks.iter().map(|t| self.x_of(t.0)).collect();
+        let step = label_step(&xs, &self.axis.ticks, size::SMALL, true);
+        for (i, ((_, label), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, ay), (*x, ay + 5.0)], INK, 1);
+            if i % step == 0 {
+                sc.text(
+                    (*x, ay + 15.0),
+                    label.clone(),
+                    size::SMALL,
+                    INK,
+                    Align::Center,
+                );
+            }
         }
         sc.text(
             ((px0 + px1) / 2.0, ay + 36.0),
