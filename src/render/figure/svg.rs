@@ -96,9 +96,9 @@ fn stroke_attrs(stroke: &Option<(Rgb, u32)>) -> String {
 fn document(scene: &Scene, namespace: bool, defs: &str) -> String {
     let (w, h) = (scene.width, scene.height);
     let mut out = String::with_capacity(200 + scene.shapes.len() * 120);
-    let _ = write!(
+    let _ = writeln!(
         out,
-        "<svg{} width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-family=\"{FAMILY}, sans-serif\" font-kerning=\"none\">\n",
+        "<svg{} width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-family=\"{FAMILY}, sans-serif\" font-kerning=\"none\">",
         if namespace {
             " xmlns=\"http://www.w3.org/2000/svg\""
         } else {
