@@ -122,9 +122,12 @@ pub struct PlanArgs {
     /// Seed of the simulation [default: 1]; the result does not depend on the number of threads.
     #[arg(help_heading = "Simulation", long, value_name = "S")]
     pub seed: Option<u64>,
-    /// Draw the power curve over k into this file (.svg or .png).
+    /// Draw the power curve over k into this file (.svg, .png or .pdf).
     #[arg(help_heading = "Outputs", long, value_name = "FILE")]
     pub curve: Option<PathBuf>,
+    /// Resolution of a .png curve in dots per inch [default: 150]; 300 or 600 for print.
+    #[arg(help_heading = "Outputs", long, value_name = "N")]
+    pub dpi: Option<u32>,
     /// Write the result as JSON ('-' for standard output).
     #[arg(help_heading = "Outputs", long, value_name = "PATH")]
     pub json: Option<PathBuf>,
@@ -145,6 +148,8 @@ pub struct PlanRun {
     pub json: Option<Target>,
     /// Power curve output and its format.
     pub curve: Option<(Target, figure::Format)>,
+    /// Resolution of a PNG curve.
+    pub dpi: u32,
     /// Whether to print the terminal report.
     pub text: bool,
     /// The HTML report's target.
@@ -247,6 +252,8 @@ impl PlanArgs {
         };
         let simulations = self.simulations(test)?;
         let (json, curve, report) = self.targets()?;
+        let formats: Vec<figure::Format> = curve.iter().map(|(_, f)| *f).collect();
+        crate::cli::fit::check_dpi(self.dpi, &formats)?;
         let mut plan = Plan {
             measure,
             k: self.k.unwrap_or(3),
@@ -287,6 +294,7 @@ impl PlanArgs {
             text: !self.quiet && json != Some(Target::Stdout) && report != Some(Target::Stdout),
             json,
             curve,
+            dpi: self.dpi.unwrap_or(figure::DEFAULT_DPI),
             report,
             invocation: invocation(),
         })
@@ -542,7 +550,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some((t, f)) = &run.curve {
-        out.add("--curve", t, figure::power::plot(&report, *f)?);
+        out.add("--curve", t, figure::power::plot(&report, *f, run.dpi)?);
     }
     if let Some(t) = &run.json {
         out.add("--json", t, json_bytes(&report)?);

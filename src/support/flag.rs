@@ -70,6 +70,7 @@ flags! {
     SensitivityPlot => "--sensitivity-plot", ["fit"];
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
+    Dpi => "--dpi", ["fit", "plan"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];

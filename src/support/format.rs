@@ -114,6 +114,22 @@ pub fn value(x: f64) -> String {
     whole_or(x, num)
 }
 
+/// A coordinate in a figure's SVG: at most two decimals (a hundredth of a
+/// pixel, finer than any screen or a 600-dpi print shows), trailing zeros
+/// and a negative zero dropped.
+pub fn svg_coord(x: f64) -> String {
+    if !x.is_finite() {
+        return "0".into();
+    }
+    let t = format!("{x:.2}");
+    let t = t.trim_end_matches('0').trim_end_matches('.');
+    if t == "-0" {
+        "0".into()
+    } else {
+        t.to_string()
+    }
+}
+
 /// A value the user typed, such as a p-value cut point, in the shortest
 /// form that reads back as the same number (0.025, 0.0005, 0.5).
 pub fn typed(x: f64) -> String {

@@ -686,7 +686,7 @@ fn bubble_plot_tints_the_region_only_with_regions() {
         with.contains("Johnson–Neyman region: 15.06 to 60"),
         "caption missing"
     );
-    assert!(with.contains(">\n15.06\n</text>"), "bound label missing");
+    assert!(with.contains(">15.06</text>"), "bound label missing");
     let without = run("");
     assert!(!without.contains("Johnson–Neyman"));
 }

@@ -173,7 +173,7 @@ fn forest_has_a_marker_and_a_ci_line_per_study_the_diamond_and_the_prediction_in
     assert_eq!(count(&svg, "polygon", "fill", GROUP), 0, "no subgroups");
     // The prediction interval is dashed (many pieces) plus two end bars.
     assert!(count(&svg, "polyline", "stroke", PREDICT) > 4);
-    assert!(has_text(&svg, "r (analysed as Fisher's z)"), "axis title");
+    assert!(has_text(&svg, "Correlation (r)"), "axis title in words");
     assert!(has_text(&svg, "Prediction interval (95%)"));
     assert!(has_text(&svg, "Random-effects average (k = 24)"));
     for s in json["studies"].as_array().unwrap() {
@@ -364,7 +364,7 @@ fn forest_rows_follow_the_sort_key_and_can_show_fitted_values() {
     let expected: Vec<&str> = studies.iter().map(|s| s.1.as_str()).collect();
     assert_eq!(shown, expected, "rows sorted by effect");
     // One open triangle per study for its fitted value.
-    assert_eq!(count(&svg, "polyline", "stroke", FIT), k(&json));
+    assert_eq!(count(&svg, "polygon", "stroke", FIT), k(&json));
 
     // Sorting by a moderator orders the rows by its values.
     let (json, bytes) = plot(
@@ -411,7 +411,7 @@ fn ratio_forest_uses_a_log_axis_with_the_no_effect_line_at_one() {
         "r.svg",
     );
     let svg = parse_svg(&bytes);
-    assert!(has_text(&svg, "odds ratio (log scale)"));
+    assert!(has_text(&svg, "Odds ratio (log scale)"));
     assert_eq!(count(&svg, "circle", "fill", STUDY), k(&json));
     let one = svg
         .iter()
@@ -451,7 +451,12 @@ fn long_labels_are_shortened_and_never_reach_the_plot_area() {
         .iter()
         .find(|e| e.tag == "text" && e.text.starts_with("An extremely"))
         .unwrap();
-    assert!(label.text.ends_with('…'), "{}", label.text);
+    // Both ends are kept, the middle gives way.
+    assert!(
+        label.text.contains(" … ") && label.text.ends_with("in full"),
+        "{}",
+        label.text
+    );
     assert!(label.text.chars().count() < long.chars().count());
     // Every CI line starts right of the label column's text start plus its width budget.
     let x_label = label.num("x");
@@ -495,36 +500,155 @@ fn forest_height_grows_with_the_number_of_studies() {
 
 // ---------------------------------------------------------------- PNG
 
-fn png_size(bytes: &[u8]) -> (u32, u32) {
+/// Width, height and resolution (dots per inch, from the `pHYs` chunk) of a PNG.
+fn png_info(bytes: &[u8]) -> (u32, u32, f64) {
     let decoder = png::Decoder::new(std::io::Cursor::new(bytes));
     let mut reader = decoder.read_info().expect("a PNG header");
+    let dims = reader.info().pixel_dims.expect("a pHYs chunk");
+    assert_eq!(dims.unit, png::Unit::Meter);
+    assert_eq!(dims.xppu, dims.yppu);
     let mut buf = vec![0; reader.output_buffer_size()];
     let info = reader.next_frame(&mut buf).expect("the image decodes");
     // Not blank: some pixels are not white.
     assert!(buf.iter().any(|&b| b < 200), "the image has ink");
-    (info.width, info.height)
+    (info.width, info.height, f64::from(dims.xppu) * 0.0254)
+}
+
+fn png_size(bytes: &[u8]) -> (u32, u32) {
+    let (w, h, _) = png_info(bytes);
+    (w, h)
 }
 
 #[test]
-fn png_plots_decode_and_have_the_requested_size() {
+fn png_plots_decode_and_have_the_requested_size_at_the_requested_dpi() {
     let file = example("consortium-correlations.csv");
     for (flag, name) in [
         ("--forest", "f.png"),
         ("--bubble", "b.png"),
         ("--funnel", "u.png"),
     ] {
+        // --width and --height are CSS pixels (96 per inch); the default 150 dpi
+        // scales them by 150/96.
         let (_, bytes) = plot(
             &file,
             &format!("--measure r --moderator session_minutes {flag} OUT --width 840 --height 700"),
             name,
         );
-        assert_eq!(png_size(&bytes), (840, 700), "{flag}");
+        let (w, h, dpi) = png_info(&bytes);
+        assert_eq!((w, h), (1313, 1094), "{flag}");
+        assert!((dpi - 150.0).abs() < 0.1, "{flag}: {dpi} dpi");
     }
+    // 300 dpi doubles the pixels of 150 dpi: the same figure, twice as sharp.
+    let (_, bytes) = plot(
+        &file,
+        "--measure r --forest OUT --width 960 --height 600 --dpi 300",
+        "print.png",
+    );
+    let (w, h, dpi) = png_info(&bytes);
+    assert_eq!((w, h), (3000, 1875));
+    assert!((dpi - 300.0).abs() < 0.1, "{dpi} dpi");
     // Automatic size: the forest plot is taller for more studies than for fewer.
     let (_, bytes) = plot(&file, "--measure r --forest OUT", "auto.png");
     let (w, h) = png_size(&bytes);
-    assert_eq!(w, 1000);
-    assert!(h > 600, "{h}");
+    assert_eq!(w, 1563, "1000 CSS pixels at 150 dpi");
+    assert!(h > 900, "{h}");
+}
+
+/// The text layer of a PDF (Poppler's `pdftotext`), or None without it
+/// (then `PONDUS_REQUIRE_PDFTOPPM` turns the absence into a failure).
+fn pdf_text(bytes: &[u8]) -> Option<String> {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("p.pdf");
+    std::fs::write(&path, bytes).unwrap();
+    match std::process::Command::new("pdftotext")
+        .arg(&path)
+        .arg("-")
+        .output()
+    {
+        Ok(o) => {
+            assert!(o.status.success(), "pdftotext reads the PDF");
+            Some(String::from_utf8(o.stdout).unwrap())
+        }
+        Err(_) if std::env::var_os("PONDUS_REQUIRE_PDFTOPPM").is_some() => {
+            panic!("PONDUS_REQUIRE_PDFTOPPM is set but pdftotext was not found (install poppler-utils)")
+        }
+        Err(_) => {
+            eprintln!(
+                "pdf text check: SKIPPED, no pdftotext on this machine (CI installs poppler-utils)"
+            );
+            None
+        }
+    }
+}
+
+/// The page size of a one-page PDF in points, from its `/MediaBox`.
+fn media_box(bytes: &[u8]) -> (f64, f64) {
+    let text = String::from_utf8_lossy(bytes);
+    let at = text.find("/MediaBox [").expect("a MediaBox") + "/MediaBox [".len();
+    let nums: Vec<f64> = text[at..]
+        .split(']')
+        .next()
+        .unwrap()
+        .split_whitespace()
+        .map(|n| n.parse().unwrap())
+        .collect();
+    (nums[2] - nums[0], nums[3] - nums[1])
+}
+
+#[test]
+fn pdf_plots_are_vector_pages_of_the_figure_size_with_selectable_text() {
+    let file = example("consortium-correlations.csv");
+    let (json, pdf) = plot(
+        &file,
+        "--measure r --forest OUT --width 960 --height 720",
+        "f.pdf",
+    );
+    assert!(pdf.starts_with(b"%PDF-"), "a PDF file");
+    // 960 × 720 CSS pixels = 10 × 7.5 inches = 720 × 540 points.
+    let (w, h) = media_box(&pdf);
+    assert!(
+        (w - 720.0).abs() < 0.01 && (h - 540.0).abs() < 0.01,
+        "{w} × {h} pt"
+    );
+    // The same figure as the SVG: one marker per study there; every study's
+    // label in the PDF's text layer.
+    let (_, svg) = plot(
+        &file,
+        "--measure r --forest OUT --width 960 --height 720",
+        "f.svg",
+    );
+    assert_eq!(count(&parse_svg(&svg), "circle", "fill", STUDY), k(&json));
+    assert!(
+        pdf.len() < 150_000,
+        "the PDF embeds a font subset: {} bytes",
+        pdf.len()
+    );
+    if let Some(text) = pdf_text(&pdf) {
+        for s in json["studies"].as_array().unwrap() {
+            let label = s["study"].as_str().unwrap();
+            assert!(text.contains(label), "label {label} is selectable text");
+        }
+        assert!(text.contains("Correlation (r)") && text.contains("Knapp–Hartung"));
+    }
+}
+
+#[test]
+fn forest_title_and_axis_label_can_be_given() {
+    let (_, bytes) = plot(
+        &example("consortium-correlations.csv"),
+        "--measure r --forest OUT --title Replications<&> --x-label Pearson's-r",
+        "t.svg",
+    );
+    let svg = parse_svg(&bytes);
+    assert!(
+        has_text(&svg, "Replications<&>"),
+        "the title as given (escaped)"
+    );
+    assert!(has_text(&svg, "Pearson's-r"));
+    assert!(
+        !has_text(&svg, "Correlation (r)"),
+        "the default axis title is replaced"
+    );
 }
 
 // ---------------------------------------------------------------- bubble
@@ -560,7 +684,7 @@ fn bubble_plot_draws_studies_the_fitted_line_and_both_bands() {
         "dashed prediction band"
     );
     assert!(has_text(&svg, "session_minutes"), "x axis title");
-    assert!(has_text(&svg, "r (analysed as Fisher's z)"), "y axis title");
+    assert!(has_text(&svg, "Correlation (r)"), "y axis title");
     assert!(has_text(
         &svg,
         "held at the reference level mode = in_person"
@@ -654,8 +778,11 @@ fn plots_the_model_cannot_support_are_clear_errors() {
 #[test]
 fn plot_flags_are_checked() {
     let file = example("consortium-correlations.csv");
-    let e = usage_error(&file, "--measure r --forest out.pdf");
-    assert!(e.contains("--forest") && e.contains(".svg"), "{e}");
+    let e = usage_error(&file, "--measure r --forest out.jpg");
+    assert!(
+        e.contains("--forest") && e.contains(".svg, .png or .pdf"),
+        "{e}"
+    );
     let e = usage_error(&file, "--measure r --funnel -");
     assert!(e.contains("--funnel"), "{e}");
     let e = usage_error(&file, "--measure r --sort effect");
@@ -753,17 +880,104 @@ fn funnel_plot_with_moderators_shows_residuals() {
 }
 
 #[test]
-fn svg_carries_the_bundled_font_so_it_renders_like_the_png() {
+fn svg_carries_a_subset_of_the_bundled_font_so_it_renders_like_the_png() {
     let (_, svg) = plot(
         &example("published-slopes.csv"),
         "--measure slope --moderator mean_age --funnel OUT",
         "funnel.svg",
     );
     let text = String::from_utf8(svg).unwrap();
-    let font = std::fs::read(repo("assets/fonts/DejaVuSans.ttf")).unwrap();
     assert!(text.contains("@font-face{font-family:\"DejaVu Sans\";src:url(data:font/ttf;base64,"));
-    // The inline font is the whole bundled file: 4 base64 characters per 3 bytes.
     let start = text.find("base64,").unwrap() + "base64,".len();
     let len = text[start..].find(')').unwrap();
-    assert_eq!(len, font.len().div_ceil(3) * 4);
+    let font = decode_base64(&text[start..start + len]);
+    // The subset holds every character the figure's text uses, with the
+    // bundled font's advance widths; the whole figure stays under 100 KB.
+    let full = std::fs::read(repo("assets/fonts/DejaVuSans.ttf")).unwrap();
+    let full = ttf_parser::Face::parse(&full, 0).unwrap();
+    let cut = ttf_parser::Face::parse(&font, 0).expect("the embedded font parses");
+    let svg = parse_svg(text.as_bytes());
+    for t in texts(&svg) {
+        for c in t.chars() {
+            let g = cut
+                .glyph_index(c)
+                .unwrap_or_else(|| panic!("'{c}' is in the subset"));
+            let g0 = full.glyph_index(c).unwrap();
+            assert_eq!(
+                cut.glyph_hor_advance(g),
+                full.glyph_hor_advance(g0),
+                "'{c}'"
+            );
+        }
+    }
+    assert!(
+        cut.number_of_glyphs() < 200,
+        "{} glyphs",
+        cut.number_of_glyphs()
+    );
+    assert!(text.len() < 100_000, "{} bytes", text.len());
+}
+
+/// Standard base64 decoding (RFC 4648).
+fn decode_base64(text: &str) -> Vec<u8> {
+    let value = |c: u8| match c {
+        b'A'..=b'Z' => c - b'A',
+        b'a'..=b'z' => c - b'a' + 26,
+        b'0'..=b'9' => c - b'0' + 52,
+        b'+' => 62,
+        b'/' => 63,
+        _ => panic!("not base64: {c}"),
+    };
+    let bytes: Vec<u8> = text.bytes().filter(|&c| c != b'=').collect();
+    let mut out = Vec::new();
+    for chunk in bytes.chunks(4) {
+        let mut n = 0u32;
+        for (i, &c) in chunk.iter().enumerate() {
+            n |= u32::from(value(c)) << (18 - 6 * i);
+        }
+        for i in 0..chunk.len() - 1 {
+            out.push((n >> (16 - 8 * i)) as u8);
+        }
+    }
+    out
+}
+
+#[test]
+fn power_curve_marks_the_k_needed_and_every_simulated_power() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("power.svg");
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .args(
+            "plan --measure smd --n 60 --tau2 0.02 --share 0.5 --moderator-effect 0.3 --test kh \
+             --target-power 0.8 --simulate 200 --seed 3 --json - --curve"
+                .split_whitespace(),
+        )
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let json: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let svg = parse_svg(&std::fs::read(&out).unwrap());
+    let k_needed = json["k_needed"].as_u64().expect("k is solved");
+    assert!(has_text(&svg, &format!("k needed = {k_needed}")));
+    // One open circle per simulated power: at the planned k and at each k
+    // the solver simulated (those inside the curve's range of k).
+    let kmax = json["table"].as_array().unwrap().last().unwrap()["k"]
+        .as_u64()
+        .unwrap();
+    let mut simulated = usize::from(!json["simulation"].is_null());
+    if let Some(ev) = json["k_needed_simulated"]["evaluated"].as_array() {
+        simulated += ev
+            .iter()
+            .filter(|e| e["k"].as_u64().unwrap() <= kmax)
+            .count();
+    }
+    assert!(simulated > 0, "the run simulated");
+    let open = svg
+        .iter()
+        .filter(|e| e.tag == "circle" && e.attr("stroke") == Some(FIT))
+        .count();
+    assert_eq!(open, simulated);
+    assert!(has_text(&svg, "simulated power"));
 }

@@ -5,6 +5,7 @@
 
 mod answers;
 mod groups;
+pub(crate) use groups::check_dpi;
 
 use groups::{
     ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,
@@ -132,6 +133,8 @@ impl FitArgs {
         let report = self.report.target()?;
         self.plots
             .check_size(!plots.is_empty() || report.is_some())?;
+        let formats: Vec<figure::Format> = plots.iter().map(|(_, p)| p.format).collect();
+        self.plots.check_dpi(&formats)?;
         if let Some(name) = &self.plots.bubble_x {
             self.model.known("--bubble-x", name)?;
         }

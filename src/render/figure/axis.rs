@@ -225,27 +225,33 @@ impl Frame {
         use palette::INK;
         sc.line(vec![(self.x0, self.y1), (self.x1, self.y1)], INK, 1);
         sc.line(vec![(self.x0, self.y0), (self.x0, self.y1)], INK, 1);
-        for (v, label) in &self.xa.ticks {
-            let x = self.x(*v);
-            sc.line(vec![(x, self.y1), (x, self.y1 + 5.0)], INK, 1);
-            sc.text(
-                (x, self.y1 + 15.0),
-                label.clone(),
-                size::SMALL,
-                INK,
-                Align::Center,
-            );
+        let xs: Vec<f64> = self.xa.ticks.iter().map(|t| self.x(t.0)).collect();
+        let x_step = label_step(&xs, &self.xa.ticks, size::SMALL, true);
+        for (i, ((_, label), x)) in self.xa.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, self.y1), (*x, self.y1 + 5.0)], INK, 1);
+            if i % x_step == 0 {
+                sc.text(
+                    (*x, self.y1 + 15.0),
+                    label.clone(),
+                    size::SMALL,
+                    INK,
+                    Align::Center,
+                );
+            }
         }
-        for (v, label) in &self.ya.ticks {
-            let y = self.y(*v);
-            sc.line(vec![(self.x0 - 5.0, y), (self.x0, y)], INK, 1);
-            sc.text(
-                (self.x0 - 8.0, y),
-                label.clone(),
-                size::SMALL,
-                INK,
-                Align::Right,
-            );
+        let ys: Vec<f64> = self.ya.ticks.iter().map(|t| self.y(t.0)).collect();
+        let y_step = label_step(&ys, &self.ya.ticks, size::SMALL, false);
+        for (i, ((_, label), y)) in self.ya.ticks.iter().zip(&ys).enumerate() {
+            sc.line(vec![(self.x0 - 5.0, *y), (self.x0, *y)], INK, 1);
+            if i % y_step == 0 {
+                sc.text(
+                    (self.x0 - 8.0, *y),
+                    label.clone(),
+                    size::SMALL,
+                    INK,
+                    Align::Right,
+                );
+            }
         }
         sc.text(
             ((self.x0 + self.x1) / 2.0, self.y1 + 38.0),
@@ -264,9 +270,50 @@ impl Frame {
     }
 }
 
+/// Every how many ticks a label is shown so that no two shown labels
+/// overlap: along the axis (`horizontal`: label widths plus an 8-pixel gap;
+/// otherwise the line height) at pixel positions `at`. 1 when all fit.
+pub(crate) fn label_step(
+    at: &[f64],
+    ticks: &[(f64, String)],
+    size: f64,
+    horizontal: bool,
+) -> usize {
+    let extent = |i: usize| {
+        if horizontal {
+            scene::text_width(&ticks[i].1, size)
+        } else {
+            super::font::em(size) * 1.3
+        }
+    };
+    (1..=ticks.len().max(1))
+        .find(|&step| {
+            let shown: Vec<usize> = (0..ticks.len()).step_by(step).collect();
+            shown.windows(2).all(|w| {
+                let room = (at[w[1]] - at[w[0]]).abs();
+                room >= 0.5 * (extent(w[0]) + extent(w[1])) + if horizontal { 8.0 } else { 0.0 }
+            })
+        })
+        .unwrap_or(1)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn crowded_tick_labels_are_thinned() {
+        let ticks: Vec<(f64, String)> = (0..8)
+            .map(|i| (f64::from(i), format!("{}0.00", i)))
+            .collect();
+        let wide: Vec<f64> = (0..8).map(|i| 100.0 * f64::from(i)).collect();
+        assert_eq!(label_step(&wide, &ticks, 12.5, true), 1);
+        let narrow: Vec<f64> = (0..8).map(|i| 30.0 * f64::from(i)).collect();
+        let step = label_step(&narrow, &ticks, 12.5, true);
+        assert!(step >= 2, "{step}");
+        let w = scene::text_width("00.00", 12.5);
+        assert!(30.0 * step as f64 >= w + 8.0, "shown labels do not touch");
+    }
 
     #[test]
     fn ticks_cover_the_range() {

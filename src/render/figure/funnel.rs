@@ -7,16 +7,16 @@ use super::palette::*;
 use super::{measure_name, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::Result;
+use crate::render::figure::scene::Rgb;
 use crate::result::FitReport;
 use crate::support::flag::Flag;
 use crate::support::format as fmt;
-use plotters::style::RGBColor;
 
 /// The contour levels (two-sided p) and their fills, lightest first.
-const CONTOURS: [(f64, RGBColor, &str); 3] = [
-    (0.10, RGBColor(0xE4, 0xE7, 0xEB), "0.05 ≤ p < 0.10"),
-    (0.05, RGBColor(0xC5, 0xCA, 0xD2), "0.01 ≤ p < 0.05"),
-    (0.01, RGBColor(0x9A, 0xA1, 0xAC), "p < 0.01"),
+const CONTOURS: [(f64, Rgb, &str); 3] = [
+    (0.10, Rgb(0xE4, 0xE7, 0xEB), "0.05 ≤ p < 0.10"),
+    (0.05, Rgb(0xC5, 0xCA, 0xD2), "0.01 ≤ p < 0.05"),
+    (0.01, Rgb(0x9A, 0xA1, 0xAC), "p < 0.01"),
 ];
 
 /// What the funnel shows: each study's effect (or residual) and standard
@@ -172,11 +172,16 @@ fn caption(report: &FitReport, opts: &PlotOptions, fu: &Funnel) -> Vec<String> {
         )
     }];
     if opts.contours {
-        caption.push(
+        caption.push(if residuals {
+            "Shaded bands surround each study's fitted value, not no effect: where a residual \
+             alone would differ significantly from the model's prediction (two-sided z test), \
+             lighter to darker; the legend gives the p-value of each band."
+                .into()
+        } else {
             "Shaded bands: where a study alone would be significant against no effect (two-sided \
              z test), lighter to darker; the legend gives the p-value of each band."
-                .into(),
-        );
+                .into()
+        });
     }
     if let Some(s) = &report.small_study {
         caption.push(if residuals {

@@ -1,22 +1,28 @@
-//! Plots of a [`FitReport`]: forest, bubble and funnel plots as SVG or PNG.
+//! Plots of a [`FitReport`]: forest, bubble and funnel plots as SVG, PNG or PDF.
 //!
 //! Every plot is drawn from the public result only. Each plot module builds
-//! a [`Scene`] (shapes in pixel coordinates, backend-independent); [`encode`]
-//! draws the scene with plotters into SVG text or PNG bytes. Text uses the
-//! bundled DejaVu Sans (`assets/fonts/`, Bitstream Vera licence with
-//! public-domain DejaVu changes), so PNG text looks the same on every
-//! machine; SVG names the family `DejaVu Sans, sans-serif`.
+//! a [`Scene`] (shapes in CSS pixels, sub-pixel precision); `svg.rs` writes
+//! it as SVG, and `export.rs` makes the PNG (rasterised by resvg at the
+//! requested dpi) and the PDF (converted by svg2pdf) from that same SVG, so
+//! the three formats agree. Text uses the bundled DejaVu Sans
+//! (`assets/fonts/`, Bitstream Vera licence with public-domain DejaVu
+//! changes); an SVG embeds the subset of it that its text uses (`font.rs`).
 
 mod axis;
 pub mod bubble;
+pub mod export;
+pub mod font;
 pub mod forest;
 pub mod funnel;
 pub mod power;
 mod regions;
 pub mod scene;
 pub mod sensitivity;
+mod svg;
+#[cfg(test)]
+mod typeset_tests;
 
-pub(crate) use axis::{Axis, Frame};
+pub(crate) use axis::{label_step, Axis, Frame};
 pub use scene::{Align, Scene};
 
 use crate::effect::{Measure, ReadingScale};
@@ -26,20 +32,21 @@ use crate::support::flag::Flag;
 use crate::support::format as fmt;
 use std::path::Path;
 
-/// The bundled font (DejaVu Sans; licence in `assets/fonts/LICENSE-DejaVu.txt`).
-pub static FONT: &[u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
+pub use font::FONT;
 
 /// The output format of a plot.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Format {
     /// Scalable vector graphics (text).
     Svg,
-    /// Portable network graphics (RGB).
+    /// Portable network graphics (RGB), rasterised at the requested dpi.
     Png,
+    /// Portable document format: one vector page of the figure's physical size.
+    Pdf,
 }
 
 impl Format {
-    /// The format named by a path's extension (`.svg` or `.png`, any case).
+    /// The format named by a path's extension (`.svg`, `.png` or `.pdf`, any case).
     ///
     /// # Errors
     /// [`Error::Usage`] naming `flag` for standard output or any other extension.
@@ -47,7 +54,7 @@ impl Format {
         if path.as_os_str() == "-" {
             return Err(Error::usage(
                 flag,
-                "a plot needs a file path ending in .svg or .png, not standard output ('-')",
+                "a plot needs a file path ending in .svg, .png or .pdf, not standard output ('-')",
             ));
         }
         let ext = path
@@ -56,10 +63,11 @@ impl Format {
         match ext.as_deref() {
             Some("svg") => Ok(Format::Svg),
             Some("png") => Ok(Format::Png),
+            Some("pdf") => Ok(Format::Pdf),
             _ => Err(Error::usage(
                 flag,
                 format!(
-                    "'{}': the plot format follows the file extension; use .svg or .png",
+                    "'{}': the plot format follows the file extension; use .svg, .png or .pdf",
                     path.display()
                 ),
             )),
@@ -94,8 +102,10 @@ impl SortKey {
 }
 
 /// Options shared by the plots.
-#[derive(Debug, Clone, Default, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct PlotOptions {
+    /// Resolution of a PNG in dots per inch (the figure is scaled by `dpi / 96`).
+    pub dpi: u32,
     /// Width in pixels (None: automatic).
     pub width: Option<u32>,
     /// Height in pixels (None: automatic, growing with the rows of a forest plot).
@@ -108,18 +118,57 @@ pub struct PlotOptions {
     pub bubble_x: Option<String>,
     /// Draw significance contours in the funnel plot.
     pub contours: bool,
+    /// The forest plot's title (None: a title saying what the rows are).
+    pub title: Option<String>,
+    /// The forest plot's value-axis title (None: the reading scale in words).
+    pub x_label: Option<String>,
+}
+
+impl Default for PlotOptions {
+    fn default() -> Self {
+        PlotOptions {
+            dpi: DEFAULT_DPI,
+            width: None,
+            height: None,
+            sort: SortKey::default(),
+            show_fitted: false,
+            bubble_x: None,
+            contours: false,
+            title: None,
+            x_label: None,
+        }
+    }
 }
 
 /// Smallest and largest accepted width or height in pixels.
 pub const SIZE_RANGE: (u32, u32) = (200, 30_000);
 
-/// Draws a scene as SVG text or PNG bytes.
+/// The PNG resolution when `--dpi` is not given (150: sharp on screens and
+/// in draft prints; journals commonly ask for 300 to 600).
+pub const DEFAULT_DPI: u32 = 150;
+
+/// Smallest and largest accepted `--dpi`.
+pub const DPI_RANGE: (u32, u32) = (36, 1200);
+
+/// Writes a scene as SVG text, PNG bytes (at `dpi`) or PDF bytes.
 ///
 /// # Errors
-/// [`Error::Io`] (action "drawing") when plotters or the PNG encoder fails;
-/// [`Error::Usage`] for a PNG of more than [`scene::MAX_PNG_PIXELS`] pixels.
-pub fn encode(scene: &Scene, format: Format) -> Result<Vec<u8>> {
-    scene::encode(scene, format, Flag::Width)
+/// [`Error::Io`] (action "drawing") when rasterising, converting or
+/// encoding fails; [`Error::Usage`] naming `flag` for a PNG of more than
+/// [`export::MAX_PNG_PIXELS`] pixels.
+pub fn encode(scene: &Scene, format: Format, dpi: u32, flag: Flag) -> Result<Vec<u8>> {
+    let svg = svg::standalone(scene)?;
+    match format {
+        Format::Svg => Ok(svg.into_bytes()),
+        Format::Png => export::png(&svg, scene.width, scene.height, dpi, flag),
+        Format::Pdf => export::pdf(&svg),
+    }
+}
+
+/// A scene as an `<svg>` element for an HTML page (no font: the page embeds
+/// it once for all its text and pictures, see [`font::font_face_rule`]).
+pub fn encode_inline(scene: &Scene) -> String {
+    svg::inline(scene)
 }
 
 /// Renders the forest plot of `report`.
@@ -127,7 +176,12 @@ pub fn encode(scene: &Scene, format: Format) -> Result<Vec<u8>> {
 /// # Errors
 /// [`Error::Usage`] for an option the model cannot support; drawing errors.
 pub fn forest_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&forest::scene(report, opts)?, format, Flag::Forest)
+    encode(
+        &forest::scene(report, opts)?,
+        format,
+        opts.dpi,
+        Flag::Forest,
+    )
 }
 
 /// Renders the bubble plot of `report`.
@@ -136,7 +190,12 @@ pub fn forest_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// [`Error::Usage`] naming `--bubble` or `--bubble-x` when the model has no
 /// moderator to draw against; drawing errors.
 pub fn bubble_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&bubble::scene(report, opts)?, format, Flag::Bubble)
+    encode(
+        &bubble::scene(report, opts)?,
+        format,
+        opts.dpi,
+        Flag::Bubble,
+    )
 }
 
 /// Renders the funnel plot of `report`.
@@ -144,7 +203,12 @@ pub fn bubble_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// # Errors
 /// Drawing errors.
 pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(&funnel::scene(report, opts)?, format, Flag::Funnel)
+    encode(
+        &funnel::scene(report, opts)?,
+        format,
+        opts.dpi,
+        Flag::Funnel,
+    )
 }
 
 /// Renders the sensitivity plot of `report` (with `--small-study` or `--selection`).
@@ -152,9 +216,10 @@ pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
 /// # Errors
 /// [`Error::Usage`] when the report has no sensitivity view; drawing errors.
 pub fn sensitivity_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
-    scene::encode(
+    encode(
         &sensitivity::scene(report, opts)?,
         format,
+        opts.dpi,
         Flag::SensitivityPlot,
     )
 }
@@ -205,7 +270,7 @@ pub fn page_figures(
                 "Forest plot: each of the {k} studies' effects ({measure}) with its confidence \
                  interval, marker size by weight, and the pooled result at the bottom."
             ),
-            svg: scene::encode_inline(&forest::scene(report, opts)?)?,
+            svg: encode_inline(&forest::scene(report, opts)?),
         });
     }
     match bubble::scene(report, opts) {
@@ -230,7 +295,7 @@ pub fn page_figures(
                     "Bubble plot: each study's effect against its value of {name}, circle area by \
                      weight, with the fitted meta-regression and its bands."
                 ),
-                svg: scene::encode_inline(&sc)?,
+                svg: encode_inline(&sc),
             });
         }
         Err(Error::Usage { message, .. }) => notes.push(format!("No bubble plot: {message}.")),
@@ -248,7 +313,7 @@ pub fn page_figures(
                 "residual from the model"
             }
         ),
-        svg: scene::encode_inline(&funnel::scene(report, opts)?)?,
+        svg: encode_inline(&funnel::scene(report, opts)?),
     });
     if report.sensitivity.is_some() {
         figures.push(PageFigure {
@@ -259,7 +324,7 @@ pub fn page_figures(
                           each with its confidence interval; the fitted interval is a pale band \
                           behind each panel."
                 .into(),
-            svg: scene::encode_inline(&sensitivity::scene(report, opts)?)?,
+            svg: encode_inline(&sensitivity::scene(report, opts)?),
         });
     }
     Ok((figures, notes))
@@ -294,30 +359,30 @@ pub(crate) fn heading(sc: &mut Scene, report: &FitReport, title: &str, width: f6
 /// meaning also has a shape or line style, so no information is carried by
 /// colour alone.
 pub(crate) mod palette {
-    use plotters::style::RGBColor;
+    use super::scene::Rgb;
     /// Text and axes.
-    pub const INK: RGBColor = RGBColor(0x22, 0x27, 0x33);
+    pub const INK: Rgb = Rgb(0x22, 0x27, 0x33);
     /// Secondary text.
-    pub const MUTED: RGBColor = RGBColor(0x5C, 0x63, 0x70);
+    pub const MUTED: Rgb = Rgb(0x5C, 0x63, 0x70);
     /// Grid and guide lines.
-    pub const GUIDE: RGBColor = RGBColor(0xB4, 0xB9, 0xC2);
+    pub const GUIDE: Rgb = Rgb(0xB4, 0xB9, 0xC2);
     /// Zebra band behind alternate rows.
-    pub const BAND: RGBColor = RGBColor(0xF1, 0xF3, 0xF6);
+    pub const BAND: Rgb = Rgb(0xF1, 0xF3, 0xF6);
     /// Studies (discs).
-    pub const STUDY: RGBColor = RGBColor(0x00, 0x72, 0xB2);
+    pub const STUDY: Rgb = Rgb(0x00, 0x72, 0xB2);
     /// The overall estimate (diamond).
-    pub const POOLED: RGBColor = RGBColor(0xD5, 0x5E, 0x00);
+    pub const POOLED: Rgb = Rgb(0xD5, 0x5E, 0x00);
     /// Subgroup estimates (outlined diamonds).
-    pub const GROUP: RGBColor = RGBColor(0xE6, 0x9F, 0x00);
+    pub const GROUP: Rgb = Rgb(0xE6, 0x9F, 0x00);
     /// Prediction intervals (dashed).
-    pub const PREDICT: RGBColor = RGBColor(0xCC, 0x79, 0xA7);
+    pub const PREDICT: Rgb = Rgb(0xCC, 0x79, 0xA7);
     /// Fitted values and the regression line.
-    pub const FIT: RGBColor = RGBColor(0x00, 0x9E, 0x73);
+    pub const FIT: Rgb = Rgb(0x00, 0x9E, 0x73);
     /// Background.
-    pub const PAPER: RGBColor = RGBColor(0xFF, 0xFF, 0xFF);
+    pub const PAPER: Rgb = Rgb(0xFF, 0xFF, 0xFF);
 }
 
-/// Text sizes in plotters units (pixels of the line height).
+/// Text sizes as line heights in pixels (the em is `size / 1.24`, see [`font::em`]).
 pub(crate) mod size {
     /// Title.
     pub const TITLE: f64 = 19.0;
@@ -350,13 +415,30 @@ pub(crate) fn wrap(text: &str, size: f64, max: f64) -> Vec<String> {
     lines
 }
 
-/// The axis title of an effect axis on the reading scale.
+/// The axis title of an effect axis on the reading scale, in words: what
+/// the numbers on the axis are ("Correlation (r)", "Odds ratio (log
+/// scale)", "Standardised mean difference (Hedges' g)").
 pub(crate) fn effect_axis_title(report: &FitReport) -> String {
-    let name = measure_name(report);
+    let words = match report.measure.id {
+        MeasureId::Measure(Measure::R) => "Correlation (r)".to_string(),
+        MeasureId::Measure(Measure::PartialR) => "Partial correlation (partial r)".to_string(),
+        MeasureId::Measure(Measure::Smd) => "Standardised mean difference (Hedges' g)".to_string(),
+        MeasureId::Measure(Measure::RiskDiff) => "Risk difference".to_string(),
+        MeasureId::Measure(Measure::Slope) => "Regression slope".to_string(),
+        _ => capitalised(&measure_name(report)),
+    };
     match report.measure.reading_scale {
-        ReadingScale::Ratio => format!("{name} (log scale)"),
-        ReadingScale::Correlation => format!("{name} (analysed as Fisher's z)"),
-        ReadingScale::Same => name,
+        ReadingScale::Ratio => format!("{words} (log scale)"),
+        _ => words,
+    }
+}
+
+/// `text` with its first letter in capitals.
+fn capitalised(text: &str) -> String {
+    let mut chars = text.chars();
+    match chars.next() {
+        Some(c) => c.to_uppercase().chain(chars).collect(),
+        None => String::new(),
     }
 }
 
@@ -452,7 +534,11 @@ mod tests {
             Format::from_path("--forest", Path::new("b.png")).unwrap(),
             Format::Png
         );
-        let e = Format::from_path("--forest", Path::new("b.pdf")).unwrap_err();
+        assert_eq!(
+            Format::from_path("--forest", Path::new("b.Pdf")).unwrap(),
+            Format::Pdf
+        );
+        let e = Format::from_path("--forest", Path::new("b.jpg")).unwrap_err();
         assert!(e.to_string().contains("--forest") && e.to_string().contains(".svg"));
         assert!(Format::from_path("--forest", Path::new("-")).is_err());
     }

@@ -2,18 +2,19 @@
 //! the number of sites (the report's table), with the target power as a
 //! dashed line and the planned k marked.
 
-use super::scene::{encode_inline, fit_text, Align, Scene};
-use super::{encode, palette, size, Axis, Format, Frame, PageFigure};
+use super::scene::{fit_text, Align, Scene};
+use super::{encode, encode_inline, palette, size, Axis, Format, Frame, PageFigure};
 use crate::error::Result;
 use crate::result::plan::{PlanReport, PlanTest};
+use crate::support::flag::Flag;
 
-/// The power curve over k (from the report's table) as SVG or PNG, with the
-/// target power as a dashed line and the planned k marked.
+/// The power curve over k (from the report's table) as SVG, PNG (at `dpi`)
+/// or PDF, with the target power as a dashed line and the planned k marked.
 ///
 /// # Errors
 /// Drawing errors.
-pub fn plot(r: &PlanReport, format: Format) -> Result<Vec<u8>> {
-    encode(&scene(r), format)
+pub fn plot(r: &PlanReport, format: Format, dpi: u32) -> Result<Vec<u8>> {
+    encode(&scene(r), format, dpi, Flag::Curve)
 }
 
 /// The power curve as an inline SVG figure for the HTML report.
@@ -30,7 +31,7 @@ pub fn page_figure(r: &PlanReport) -> Result<PageFigure> {
             r.table.last().map_or(r.k, |p| p.k),
             r.k
         ),
-        svg: encode_inline(&scene(r))?,
+        svg: encode_inline(&scene(r)),
     })
 }
 
@@ -67,6 +68,9 @@ pub fn scene(r: &PlanReport) -> Scene {
         fit(
             match r.test {
                 PlanTest::Z => "z test: exact power from the noncentral chi-square",
+                PlanTest::Kh if r.simulation.is_some() || r.k_needed_simulated.is_some() => {
+                    "Knapp–Hartung test: curve from the noncentral F approximation; circles simulated"
+                }
                 PlanTest::Kh => {
                     "Knapp–Hartung test: noncentral F approximation (a quick estimate, not simulated)"
                 }
@@ -116,6 +120,66 @@ pub fn scene(r: &PlanReport) -> Scene {
         palette::POOLED,
         Align::Left,
     );
+    solved_and_simulated(&mut sc, r, &frame);
     frame.axes(&mut sc, "number of sites k", "power");
     sc
+}
+
+/// The solved k (a diamond on the target line) and the simulated powers
+/// (open circles with ±1.96 Monte-Carlo SE bars), with a key when there are any.
+fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame) {
+    let inside = |k: usize| (frame.xa.lo..=frame.xa.hi).contains(&(k as f64));
+    let mut sims: Vec<(usize, f64, f64)> = Vec::new();
+    if let Some(s) = &r.simulation {
+        sims.push((r.k, s.power, s.monte_carlo_se));
+    }
+    if let Some(sk) = &r.k_needed_simulated {
+        sims.extend(
+            sk.evaluated
+                .iter()
+                .map(|e| (e.k, e.power, e.monte_carlo_se)),
+        );
+    }
+    sims.retain(|s| inside(s.0));
+    for &(k, p, se) in &sims {
+        let x = frame.x(k as f64);
+        let (lo, hi) = ((p - 1.96 * se).max(0.0), (p + 1.96 * se).min(1.0));
+        sc.line(vec![(x, frame.y(lo)), (x, frame.y(hi))], palette::FIT, 2);
+        sc.circle(
+            (x, frame.y(p)),
+            4.5,
+            Some((palette::PAPER, 1.0)),
+            Some((palette::FIT, 2)),
+        );
+    }
+    if let (Some(kn), Some(t)) = (r.k_needed, r.target_power) {
+        if inside(kn) {
+            let (x, y) = (frame.x(kn as f64), frame.y(t));
+            let d = 6.0;
+            sc.poly(
+                vec![(x - d, y), (x, y - d), (x + d, y), (x, y + d)],
+                Some((palette::POOLED, 1.0)),
+                Some((palette::INK, 1)),
+            );
+            sc.text(
+                (x + 9.0, y + 12.0),
+                format!("k needed = {kn}"),
+                size::SMALL,
+                palette::POOLED,
+                Align::Left,
+            );
+        }
+    }
+    let key_y = frame.y0 - 16.0;
+    let mut key = "● curve: closed-form power by k".to_string();
+    if !sims.is_empty() {
+        key.push_str("   ○ simulated power (bar: ±1.96 Monte-Carlo SE)");
+    }
+    sc.text(
+        (frame.x1, key_y),
+        key,
+        size::SMALL,
+        palette::MUTED,
+        Align::Right,
+    );
 }

@@ -6,12 +6,12 @@
 //! to the conclusion, and the verdict is written at its right.
 
 use super::palette::*;
+use super::scene::Rgb;
 use super::{model_line, size, wrap, Align, Axis, PlotOptions, Scene};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{Adjustment, FitReport, SensitivityQuantity, SensitivityRow, Verdict};
 use crate::support::flag::Flag;
-use plotters::style::RGBColor;
 
 /// Height of one rung in pixels.
 const RUNG: f64 = 24.0;
@@ -26,7 +26,7 @@ const LOG_AXIS_MIN_SPAN: f64 = 0.4;
 const VERDICT_W: f64 = 170.0;
 
 /// The colour and words of a verdict.
-fn verdict_look(v: Option<Verdict>) -> (RGBColor, &'static str) {
+fn verdict_look(v: Option<Verdict>) -> (Rgb, &'static str) {
     match v {
         None => (INK, ""),
         Some(Verdict::Holds) => (FIT, "holds"),

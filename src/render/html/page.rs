@@ -98,7 +98,7 @@ impl Page {
         out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n");
         let _ = writeln!(out, "<title>{}</title>", esc(title));
         out.push_str("<style>");
-        out.push_str(&crate::render::figure::scene::font_face_css());
+        out.push_str(FONT_SLOT);
         out.push_str(STYLE);
         out.push_str("</style>\n</head>\n<body>\n");
         Page { out }
@@ -212,9 +212,16 @@ impl Page {
              network and runs no scripts.</footer>\n</body>\n</html>",
             esc(&prov.version)
         );
-        self.out
+        // The page's text and its pictures share the bundled font: embed
+        // the subset holding every character the page uses.
+        let chars = self.out.chars().collect();
+        let rule = crate::render::figure::font::font_face_rule(&chars).unwrap_or_default();
+        self.out.replacen(FONT_SLOT, &rule, 1)
     }
 }
+
+/// Where the page's `@font-face` rule goes once the page is complete.
+const FONT_SLOT: &str = "/*pondus:font*/";
 
 fn numeric_looking(c: &str) -> bool {
     let t = c.trim_start_matches(['<', '=', ' ', '[', '−', '-']);

@@ -3,13 +3,11 @@
 
 use super::layout::{Forest, Row};
 use crate::render::figure::palette::*;
-use crate::render::figure::scene::fit_text;
-use crate::render::figure::{
-    caption, effect_axis_title, heading, measure_name, size, Align, Scene,
-};
+use crate::render::figure::scene::Rgb;
+use crate::render::figure::scene::{fit_middle, fit_text};
+use crate::render::figure::{caption, heading, label_step, measure_name, size, Align, Scene};
 use crate::result::{Estimate, LevelSummary, Study};
 use crate::support::format as fmt;
-use plotters::style::RGBColor;
 
 impl Forest<'_> {
     /// Draws the plot.
@@ -54,12 +52,7 @@ impl Forest<'_> {
     /// Title, subtitle and the column headers.
     fn header(&self, sc: &mut Scene) {
         let (margin, width) = (self.margin, self.width);
-        let title = if self.group.is_some() {
-            "Study effects, subgroup averages and the overall average"
-        } else {
-            "Study effects and their average"
-        };
-        heading(sc, self.report, title, width, margin);
+        heading(sc, self.report, &self.title, width, margin);
         let hy = 70.0;
         let head = self.fs_max.min(13.0);
         sc.text((margin, hy), "Study", head, INK, Align::Left);
@@ -120,7 +113,7 @@ impl Forest<'_> {
     }
 
     /// A diamond from the lower to the upper limit of `e`'s interval.
-    fn diamond(&self, sc: &mut Scene, e: &Estimate, y: f64, fill: (RGBColor, f64), outline: u32) {
+    fn diamond(&self, sc: &mut Scene, e: &Estimate, y: f64, fill: (Rgb, f64), outline: u32) {
         let (a, b, c) = (
             self.x_of(self.clip(self.tp(e.mean.ci.ci_low))),
             self.x_of(self.clip(self.tp(e.mean.estimate))),
@@ -144,7 +137,7 @@ impl Forest<'_> {
         let indent = if self.group.is_some() { 10.0 } else { 0.0 };
         sc.text(
             (margin + indent, y),
-            fit_text(&s.study, fs, self.name_w - indent),
+            fit_middle(&s.study, fs, self.name_w - indent),
             fs,
             INK,
             Align::Left,
@@ -220,7 +213,7 @@ impl Forest<'_> {
         if (axis.lo..=axis.hi).contains(&e) {
             let r_max = (rh * 0.46).max(2.0);
             let r = (r_max * (s.weight / self.w_max).sqrt()).max(1.5);
-            sc.circle((self.x_of(e), y), r, Some((STUDY, 1.0)), None);
+            self.study_marker(sc, s, (self.x_of(e), y), r);
         }
         if self.show_fitted {
             let f = self.tp(s.fitted);
@@ -234,6 +227,13 @@ impl Forest<'_> {
                 );
             }
         }
+    }
+
+    /// A study's marker at `at`, of radius `r` (its area follows the
+    /// study's weight). One place for the marker's look, so a kind of study
+    /// can be given a marker of its own.
+    fn study_marker(&self, sc: &mut Scene, _s: &Study, at: (f64, f64), r: f64) {
+        sc.circle(at, r, Some((STUDY, 1.0)), None);
     }
 
     /// A level's own average (a lighter diamond) and its studies' total weight.
@@ -357,20 +357,23 @@ impl Forest<'_> {
         let (px0, px1) = (self.px0, self.px1);
         let ay = self.rows_bottom() + 6.0;
         sc.line(vec![(px0, ay), (px1, ay)], INK, 1);
-        for (v, label) in &self.axis.ticks {
-            let x = self.x_of(*v);
-            sc.line(vec![(x, ay), (x, ay + 5.0)], INK, 1);
-            sc.text(
-                (x, ay + 15.0),
-                label.clone(),
-                size::SMALL,
-                INK,
-                Align::Center,
-            );
+        let xs: Vec<f64> = self.axis.ticks.iter().map(|t| self.x_of(t.0)).collect();
+        let step = label_step(&xs, &self.axis.ticks, size::SMALL, true);
+        for (i, ((_, label), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, ay), (*x, ay + 5.0)], INK, 1);
+            if i % step == 0 {
+                sc.text(
+                    (*x, ay + 15.0),
+                    label.clone(),
+                    size::SMALL,
+                    INK,
+                    Align::Center,
+                );
+            }
         }
         sc.text(
             ((px0 + px1) / 2.0, ay + 36.0),
-            effect_axis_title(self.report),
+            fit_text(&self.x_label, size::LABEL, px1 - px0 + 2.0 * self.margin),
             size::LABEL,
             INK,
             Align::Center,

@@ -5,7 +5,8 @@ use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::render::figure::scene::{fit_text, text_width};
 use crate::render::figure::{
-    decimals_for, measure_name, model_line, size, wrap, Axis, PlotOptions, SortKey,
+    decimals_for, effect_axis_title, measure_name, model_line, size, wrap, Axis, PlotOptions,
+    SortKey,
 };
 use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups, Tau2Method};
 use crate::support::flag::Flag;
@@ -79,6 +80,10 @@ pub(super) fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a
 pub(super) struct Forest<'a> {
     pub report: &'a FitReport,
     pub group: Grouping<'a>,
+    /// The title (`--title`, or one saying what the rows are).
+    pub title: String,
+    /// The value axis title (`--x-label`, or the reading scale in words).
+    pub x_label: String,
     pub show_fitted: bool,
     /// The value axis (plot space).
     pub axis: Axis,
@@ -287,6 +292,17 @@ impl<'a> Forest<'a> {
         let mut f = Forest {
             report,
             group,
+            title: opts.title.clone().unwrap_or_else(|| {
+                if group.is_some() {
+                    "Study effects, subgroup averages and the overall average".into()
+                } else {
+                    "Study effects and their average".into()
+                }
+            }),
+            x_label: opts
+                .x_label
+                .clone()
+                .unwrap_or_else(|| effect_axis_title(report)),
             show_fitted: opts.show_fitted,
             axis,
             width,
