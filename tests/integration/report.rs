@@ -146,15 +146,17 @@ fn every_example_report_is_self_contained_and_has_every_section() {
                 "{name}: no section {id}"
             );
         }
-        // Three pictures (each model has a moderator), each an accessible SVG.
-        assert_eq!(page.matches("<figure class=\"plot\"").count(), 3, "{name}");
-        assert_eq!(page.matches("<svg ").count(), 3, "{name}");
+        // Three pictures (each model has a moderator), and the sensitivity
+        // plot with --small-study or --selection; each an accessible SVG.
+        let n = 3 + usize::from(args.contains("--small-study") || args.contains("--selection"));
+        assert_eq!(page.matches("<figure class=\"plot\"").count(), n, "{name}");
+        assert_eq!(page.matches("<svg ").count(), n, "{name}");
         assert_eq!(
             page.matches("role=\"img\" aria-labelledby=").count(),
-            3,
+            n,
             "{name}"
         );
-        assert_eq!(page.matches("<title id=\"fig-").count(), 3, "{name}");
+        assert_eq!(page.matches("<title id=\"fig-").count(), n, "{name}");
         // Tables have header cells with scope.
         assert!(page.contains("<th scope=\"col\">"), "{name}");
         // Reproducibility: the command, the version and the input's SHA-256.
