@@ -82,11 +82,13 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
     let input = InputInfo {
         file: source.to_string(),
         delimiter: studies.table.delimiter,
+        sheet: studies.table.sheet.clone(),
         rows: studies.table.rows,
         label_column: studies.table.label_column.clone(),
         sha256: crate::support::hash::sha256_hex(bytes),
     };
     let k = studies.y.len();
+    let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
     let (records, excluded) = records(studies, fit, settings.options.level);
     let (variance_components, clustering) = match clusters {
         Some(c) => (c.variance_components, Some(c.report)),
@@ -115,6 +117,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         heterogeneity: summary.heterogeneity,
         average: summary.average,
         predictions: readout.predictions,
+        effects_obtained,
         studies: records,
         subgroups: readout.subgroups,
         curves: readout.curves,
@@ -209,6 +212,7 @@ fn records(studies: Studies, fit: &ModelFit, level: f64) -> (Vec<Study>, Vec<Exc
         labels,
         lines,
         notes,
+        routes,
         raw,
         excluded,
         ..
@@ -238,6 +242,7 @@ fn records(studies: Studies, fit: &ModelFit, level: f64) -> (Vec<Study>, Vec<Exc
                 })
                 .collect(),
             note,
+            computed_from: routes[pos],
         });
     }
     (out, excluded)

@@ -66,6 +66,7 @@ pub fn collect(i: &Inputs<'_>) -> Messages {
         cautions: cautions(k, i.terms.len(), settings.options.inference),
     };
     m.notes.extend(fit_notes(settings, i.model, i.terms.len()));
+    super::route_messages::add(i.studies, &mut m);
     for p in &i.readout.predictions {
         if !p.outside_range.is_empty() {
             m.warnings.push(format!(

@@ -12,6 +12,7 @@
 //! - the terminal summary of `pondus sites` ([`sites`]) and its per-site
 //!   effects file ([`sites_effects`]).
 
+pub mod columns;
 pub mod diagnostics;
 pub mod figure;
 pub mod html;
@@ -19,6 +20,7 @@ pub mod interpret;
 pub mod json;
 pub mod layout;
 pub mod multilevel;
+pub mod obtained;
 pub mod plan;
 pub mod sites;
 pub mod sites_effects;

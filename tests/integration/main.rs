@@ -16,5 +16,6 @@ mod properties;
 mod reference;
 mod regression;
 mod report;
+mod routes;
 mod sites;
 mod util;

@@ -6,6 +6,7 @@ use super::{PlotKind, PlotRequest};
 use crate::cli::outputs::Target;
 use crate::cli::{report_target, InferenceArg, Tau2Arg};
 use clap::{Args, ValueEnum};
+use pondus::effect::route::EffectReading;
 use pondus::effect::{ColumnMap, Measure};
 use pondus::error::{Error, Result};
 use pondus::model::design::ModeratorSpec;
@@ -17,19 +18,19 @@ use std::path::PathBuf;
 /// Effect measures as typed on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum MeasureArg {
-    /// Precomputed `effect` with `variance`, `se`, or `ci_low`+`ci_high` (95%).
+    /// Precomputed `effect` with `variance`, `se`, or `ci_low`+`ci_high` (see --ci-level).
     Effect,
-    /// Pearson `r` and `n`, analysed as Fisher's z.
+    /// Pearson `r` (or `t`, or `p` and `sign`) and `n`, analysed as Fisher's z.
     R,
     /// Regression `t`, `n` and `covariates`, as a partial r on Fisher's z.
     PartialR,
     /// Unstandardised `slope` and its `se`.
     Slope,
-    /// Hedges' g from treat_/ctrl_ `mean`, `sd` and `n`.
+    /// Hedges' g from group means and SDs, SEs, t, F, p or medians (`pondus columns`).
     Smd,
-    /// Log odds ratio from `treat_events`, `treat_n`, `ctrl_events`, `ctrl_n`.
+    /// Log odds ratio from the counts, `or` with its limits, or `log_or` with `se`.
     LogOr,
-    /// Log risk ratio from the same counts.
+    /// Log risk ratio from the counts, `rr` with its limits, or `log_rr` with `se`.
     LogRr,
     /// Risk difference from the same counts.
     RiskDiff,
@@ -65,9 +66,13 @@ fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a
 #[derive(Debug, Args)]
 #[command(next_help_heading = "Input")]
 pub struct InputArgs {
-    /// CSV file with a header row and one row per study ('-' reads standard input).
+    /// CSV file (or .xlsx, .xlsm, .xls, .ods spreadsheet) with a header row and one row per
+    /// study ('-' reads CSV from standard input).
     #[arg(help_heading = None)]
     pub file: PathBuf,
+    /// The sheet of a spreadsheet FILE to read [default: the first sheet].
+    #[arg(long, value_name = "NAME")]
+    pub sheet: Option<String>,
     /// How each row becomes an effect and its sampling variance.
     #[arg(long, value_enum, default_value_t = MeasureArg::Effect)]
     pub measure: MeasureArg,
@@ -77,6 +82,24 @@ pub struct InputArgs {
     /// Column with the study labels [default: study].
     #[arg(long, value_name = "HEADER")]
     pub label: Option<String>,
+    /// Confidence level of the reported limits (`ci_low`, `ci_high`) [default: 0.95].
+    #[arg(long, value_name = "LEVEL")]
+    pub ci_level: Option<f64>,
+    /// Scale of precomputed effects and limits: `log` says they are ratios, to be logged.
+    #[arg(long, value_enum, default_value_t = EffectScaleArg::Analysis)]
+    pub effect_scale: EffectScaleArg,
+    /// Convert rows of another family: r or event counts to d for smd, group comparisons to r for r.
+    #[arg(long)]
+    pub convert: bool,
+}
+
+/// The scale of `--measure effect` values as typed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum EffectScaleArg {
+    /// The effects are on the analysis scale already.
+    Analysis,
+    /// The effects and their limits are ratios (odds, risk, hazard ratios): logged before analysis.
+    Log,
 }
 
 impl InputArgs {
@@ -98,7 +121,49 @@ impl InputArgs {
                 ));
             }
         }
-        Ok((measure, ColumnMap::new(measure, overrides)?))
+        let ci_level = self.ci_level.unwrap_or(0.95);
+        if !(ci_level > 0.0 && ci_level < 1.0) {
+            return Err(Error::usage(
+                "--ci-level",
+                format!(
+                    "'{ci_level}' is not a confidence level; give a number between 0 and 1, e.g. 0.9 for 90% limits"
+                ),
+            ));
+        }
+        let log_scale = self.effect_scale == EffectScaleArg::Log;
+        if log_scale && measure != Measure::Effect {
+            return Err(Error::usage(
+                "--effect-scale",
+                "applies to --measure effect only; ratio measures read their ratios from the 'or' or 'rr' column",
+            ));
+        }
+        if self.convert && !matches!(measure, Measure::Smd | Measure::R) {
+            return Err(Error::usage(
+                "--convert",
+                "converts rows into --measure smd or --measure r only",
+            ));
+        }
+        let reading = EffectReading {
+            ci_level,
+            log_scale,
+            convert: self.convert,
+        };
+        let sheet = self.sheet.clone();
+        if sheet.is_some()
+            && !pondus::input::sheet::is_spreadsheet(&self.file.display().to_string())
+        {
+            return Err(Error::usage(
+                "--sheet",
+                format!(
+                    "'{}' is not a spreadsheet (.xlsx, .xlsm, .xls or .ods); --sheet applies to spreadsheets only",
+                    self.file.display()
+                ),
+            ));
+        }
+        let map = ColumnMap::new(measure, overrides)?
+            .with_reading(reading)
+            .with_sheet(sheet);
+        Ok((measure, map))
     }
 }
 

@@ -3,7 +3,7 @@
 //! flattened into [`FitArgs`] in the order `--help` lists them); each group
 //! checks its own flags, and [`FitArgs::check`] checks them in that order.
 
-mod groups;
+pub(crate) mod groups;
 
 use groups::{
     ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,

@@ -2,6 +2,7 @@
 //! guides), each kind of row, the axis and the caption, in that order.
 
 use super::layout::{Forest, Row};
+use crate::effect::route::Derivation;
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::fit_text;
 use crate::render::figure::{
@@ -219,7 +220,22 @@ impl Forest<'_> {
         if (axis.lo..=axis.hi).contains(&e) {
             let r_max = (rh * 0.46).max(2.0);
             let r = (r_max * (s.weight / self.w_max).sqrt()).max(1.5);
-            sc.circle((self.x_of(e), y), r, Some((STUDY, 1.0)), None);
+            if s.computed_from.derivation() == Derivation::Direct {
+                sc.circle((self.x_of(e), y), r, Some((STUDY, 1.0)), None);
+            } else {
+                // Approximated or converted: a hollow square of the disc's area.
+                let (x, h) = (self.x_of(e), r * std::f64::consts::PI.sqrt() / 2.0);
+                sc.poly(
+                    vec![
+                        (x - h, y - h),
+                        (x + h, y - h),
+                        (x + h, y + h),
+                        (x - h, y + h),
+                    ],
+                    Some((PAPER, 1.0)),
+                    Some((STUDY, 2)),
+                );
+            }
         }
         if self.show_fitted {
             let f = self.tp(s.fitted);
