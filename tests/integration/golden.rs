@@ -62,6 +62,11 @@ const CASES: &[Case] = &[
     Case { id: "hiring-range-check", steps: &["fit data-examples/hiring-validity.csv --measure r --moderator range_ratio --reliability-x rel_exercise --reliability-y rel_rating --range-ratio range_ratio"] },
     // Predictions and the shareable report (tutorial, part C and D).
     Case { id: "programme-predictions", steps: &["fit data-examples/programme-sites.csv --measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=40,delivery=volunteer --at dosage_hours=20,delivery=volunteer --probe dosage_hours --report programme.html --forest forest.png --json out.json"] },
+    // Effects from whatever each study reports, straight from the spreadsheet (tutorial, part E).
+    Case { id: "classroom-routes", steps: &[
+        "columns --measure smd",
+        "fit data-examples/classroom-extraction.xlsx --sheet extraction --measure smd --moderator weeks --forest forest.svg --table table.csv --report report.html --json out.json",
+    ] },
     // Dependent effects (README, methods §16).
     Case { id: "lab-cluster-robust", steps: &["fit data-examples/lab-conditions.csv --cluster lab --moderator lab_years --moderator session_minutes --robust --json out.json --table table.csv --report report.html"] },
     Case { id: "lab-cluster-ml", steps: &["fit data-examples/lab-conditions.csv --cluster lab --moderator lab_years --tau2 ml --inference z --json out.json"] },
