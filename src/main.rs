@@ -20,7 +20,13 @@ fn main() -> ExitCode {
                     return ExitCode::SUCCESS;
                 }
             }
-            eprintln!("pondus: error: {err:#}");
+            // Messages quote cells of the data file: no control characters
+            // or bidirectional overrides reach the terminal.
+            let message = format!("{err:#}");
+            eprintln!(
+                "pondus: error: {}",
+                pondus::support::text::terminal(&message)
+            );
             let code = err
                 .downcast_ref::<pondus::Error>()
                 .map(|e| e.exit_code())

@@ -27,6 +27,11 @@ pub const LIKELIHOOD_NEAR_ZERO_DECADES: usize = 6;
 /// is rounding, not variation: (4ε)², for residuals of a few ε·|y|.
 pub const EXACT_FIT_REL: f64 = 16.0 * f64::EPSILON * f64::EPSILON;
 
+/// A Knapp–Hartung residual Q at or below this share of Σ y_i²/(v_i + τ²)
+/// is rounding of an exact fit, not residual variation: (8ε)², residuals of
+/// a few ε·|y| with a margin of a few. Real residuals are many orders larger.
+pub const KH_EXACT_FIT_REL: f64 = 64.0 * f64::EPSILON * f64::EPSILON;
+
 /// How many times the upper end of a τ² bracket may be doubled.
 pub const BRACKET_DOUBLINGS: usize = 200;
 
@@ -179,3 +184,27 @@ pub const ROUTE_CHECK_R: f64 = 0.02;
 /// to two decimals stay well inside it; ratio-scale limits of an odds ratio
 /// of 0.6 (0.4, 0.9) give 1.5). A rule of thumb.
 pub const CI_ASYMMETRY: f64 = 1.25;
+/// The selection model's Newton search stops when the Newton decrement
+/// ∇ℓ'(−H)⁻¹∇ℓ/2 (the rise in ℓ a full step would still bring) falls below
+/// this; the estimates are then within about √(2·1e-12) ≈ 1.4e-6 standard
+/// errors of the maximum.
+pub const SELECTION_DECREMENT: f64 = 1e-12;
+
+/// Iteration limit of that search (Newton converges in a few dozen steps
+/// from the fit without selection).
+pub const SELECTION_MAX_ITERS: usize = 200;
+
+/// Relative step of the central differences of the analytic gradient that
+/// give the selection model's Hessian: about the cube root of ε, where the
+/// truncation (h²) and rounding (ε/h) errors balance.
+pub const SELECTION_DIFF_STEP: f64 = 6e-6;
+
+/// A log weight beyond ±this (a weight above about 1e6 or below 1e-6
+/// relative to the first interval) means the weight runs off to 0 or
+/// infinity: the data cannot fix it, and no number is reported.
+pub const SELECTION_MAX_LOG_WEIGHT: f64 = 13.8;
+
+/// Test tolerance of the selection model and PET/PEESE against the scipy
+/// maximisation and statsmodels (the issue asks for agreement to 1e-4;
+/// both sides stop optimisers, so agreement is about 1e-6).
+pub const SELECTION_REF_ABS: f64 = 1e-4;

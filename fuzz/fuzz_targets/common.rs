@@ -176,3 +176,52 @@ pub fn sites_csv(data: &[u8]) {
         }
     }
 }
+
+/// The `fit_dependent` target: the first byte selects the options (the
+/// estimator, Knapp–Hartung or z, the two- or three-level working model,
+/// `--robust`, and whether `g` is a categorical moderator with a reference
+/// level, `m` a numeric one, or both), the rest is a CSV file with the
+/// columns study, lab, effect, variance, m, g run through the whole `fit`
+/// job with `--cluster lab`. Every successful report must carry only finite
+/// numbers and p-values in [0, 1].
+pub fn fit_dependent(data: &[u8]) {
+    use pondus::model::multilevel::{Dependence, Levels};
+    let Some((&sel, csv)) = data.split_first() else {
+        return;
+    };
+    let categorical = |reference: Option<String>| ModeratorSpec {
+        name: "g".into(),
+        categorical: true,
+        reference,
+        center: false,
+    };
+    let moderators: Vec<ModeratorSpec> = match (sel >> 4) & 3 {
+        0 => vec![],
+        1 => vec![categorical(None)],
+        2 => vec![categorical(Some("b".into()))],
+        _ => {
+            let mut m = settings(Measure::Effect, sel, &["m"]).moderators;
+            m.push(categorical(None));
+            m
+        }
+    };
+    let mut s = settings(Measure::Effect, sel, &[]);
+    s.moderators = moderators;
+    // REML or ML only for the three-level model; any estimator for two levels.
+    let three = sel & 1 != 0;
+    if three {
+        s.options.method = if sel & 2 != 0 {
+            Tau2Method::Ml
+        } else {
+            Tau2Method::Reml
+        };
+    }
+    s.dependence = Dependence {
+        cluster: Some("lab".into()),
+        levels: if three { Levels::Three } else { Levels::Two },
+        robust: sel & 4 != 0,
+    };
+    if let Ok(report) = pondus::fit::run(&s, "fuzz.csv", csv) {
+        assert_finite(&report);
+    }
+}

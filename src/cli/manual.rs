@@ -101,7 +101,7 @@ fn refuse_unless_regular(path: &std::path::Path) -> Result<()> {
 pub fn run_manual(args: &ManualArgs) -> Result<()> {
     let mut out = Outputs::new();
     match &args.out_dir {
-        None => out.print(page(args.command)?.1),
+        None => out.print(String::from_utf8_lossy(&page(args.command)?.1).into_owned()),
         Some(dir) => {
             if !dir.is_dir() {
                 return Err(Error::usage(

@@ -373,9 +373,14 @@ impl Outputs {
         self.pending.push((flag, target.clone(), bytes.into()));
     }
 
-    /// Adds the terminal report, printed on standard output.
-    pub fn print(&mut self, text: impl Into<Vec<u8>>) {
-        self.add("", &Target::Stdout, text);
+    /// Adds the terminal report, printed on standard output. Labels in it
+    /// come from data files, so control characters and bidirectional
+    /// overrides are replaced first ([`pondus::support::text::terminal`]);
+    /// any styling of the terminal text must be added after this step.
+    pub fn print(&mut self, text: impl Into<String>) {
+        let text = text.into();
+        let safe = pondus::support::text::terminal(&text).into_owned();
+        self.add("", &Target::Stdout, safe);
     }
 
     /// Writes every output. First each file is prepared (see

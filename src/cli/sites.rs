@@ -355,5 +355,22 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     if run.text {
         out.print(render::sites::render(&report));
     }
-    out.write()
+    out.write()?;
+    // Without the terminal report (--quiet, or an output on standard
+    // output) the sites left out are still named, on standard error.
+    if !run.text && !report.excluded.is_empty() {
+        let list: Vec<String> = report
+            .excluded
+            .iter()
+            .map(|e| format!("  {} ({} rows): {}", e.study, e.n, e.reason))
+            .collect();
+        let text = format!(
+            "pondus: {} site{} left out of the per-site estimates:\n{}\n",
+            report.excluded.len(),
+            if report.excluded.len() == 1 { "" } else { "s" },
+            list.join("\n")
+        );
+        eprint!("{}", pondus::support::text::terminal(&text));
+    }
+    Ok(())
 }

@@ -77,7 +77,8 @@ pub fn steps(
 /// file order. Returns the order, each study's value and "numeric" or "text".
 ///
 /// # Errors
-/// [`Error::Usage`] naming the file, line and column of a missing cell.
+/// [`Error::Usage`] naming the file, line and column of a missing cell, or
+/// of the cells that are not numbers in a column mostly of numbers.
 pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue>, SortOrder)> {
     if let Some(i) = col.cells.iter().position(|c| is_missing(c)) {
         return Err(Error::usage(
@@ -97,6 +98,27 @@ pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue
             _ => None,
         })
         .collect();
+    // A column of numbers with a few that are not is a typo, as for a
+    // moderator: refused with the rows rather than sorted as text.
+    let bad: Vec<usize> = (0..col.cells.len())
+        .filter(|&i| !matches!(parse_cell(&col.cells[i]), Cell::Value(_)))
+        .collect();
+    if numbers.is_none() && bad.len() * 2 < col.cells.len() {
+        let shown: Vec<String> = bad
+            .iter()
+            .take(5)
+            .map(|&i| format!("line {} ('{}')", col.lines[i], col.cells[i]))
+            .collect();
+        return Err(Error::usage(
+            Flag::CumulativeBy,
+            format!(
+                "{source}: column '{}' is mostly numbers but not at {}; fix those cells so the \
+                 studies are ordered by number (a column of labels is ordered as text)",
+                col.header,
+                shown.join(", ")
+            ),
+        ));
+    }
     let mut idx: Vec<usize> = (0..col.cells.len()).collect();
     match numbers {
         Some(x) => {

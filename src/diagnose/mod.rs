@@ -10,6 +10,9 @@ pub mod cumulative;
 pub mod influence;
 pub mod loo;
 pub mod permutation;
+pub mod pet_peese;
+pub mod selection;
+pub mod sensitivity;
 pub mod small_study;
 
 use crate::error::Result;
@@ -29,6 +32,9 @@ pub struct DiagnoseSettings {
     pub small_study: bool,
     /// Cumulative meta-analysis ordered by this column (`--cumulative-by`).
     pub cumulative_by: Option<String>,
+    /// The step-function selection model (`--selection`, `--favoured`,
+    /// `--selection-force`).
+    pub selection: Option<selection::SelectionSettings>,
 }
 
 impl DiagnoseSettings {
@@ -39,6 +45,7 @@ impl DiagnoseSettings {
             || self.permutations.is_some()
             || self.small_study
             || self.cumulative_by.is_some()
+            || self.selection.is_some()
     }
 }
 
@@ -162,10 +169,30 @@ pub struct Outputs {
     pub cumulative: Option<Vec<crate::result::CumulativeStep>>,
     /// How the cumulative steps were ordered.
     pub cumulative_order: Option<crate::result::CumulativeOrder>,
+    /// `--selection`.
+    pub selection: Option<crate::result::SelectionModel>,
+    /// The adjusted average effects of the sensitivity view.
+    pub averages: sensitivity::AverageAdjustments,
     /// Notes for the report.
     pub notes: Vec<String>,
     /// Warnings for the report.
     pub warnings: Vec<String>,
+}
+
+/// The intercept of PET or PEESE without moderators (the average effect
+/// row of the sensitivity view): `with` itself when the model has none.
+fn average_of(
+    d: &ModelData<'_>,
+    with: &crate::result::PrecisionRegression,
+    kind: pet_peese::Precision,
+) -> std::result::Result<crate::result::ContrastTest, String> {
+    if d.p == 1 {
+        return Ok(with.intercept);
+    }
+    let ones = vec![1.0; d.k()];
+    pet_peese::regression(d.y, d.v, &ones, 1, d.options.level, kind)
+        .map(|r| r.intercept)
+        .map_err(|e| e.to_string())
 }
 
 /// The ordering column of `--cumulative-by`: its header and, for each
@@ -191,6 +218,7 @@ pub fn run(
     d: &ModelData<'_>,
     full: &ModelFit,
     labels: &[String],
+    terms: &[String],
     lines: &[u64],
     order: Option<&OrderColumn>,
     scale: crate::effect::ReadingScale,
@@ -260,8 +288,16 @@ pub fn run(
     }
     if settings.small_study {
         let (s, notes) = small_study::analyse(d, scale)?;
+        out.averages.pet = Some(average_of(d, &s.pet, pet_peese::Precision::StandardError));
+        out.averages.peese = Some(average_of(d, &s.peese, pet_peese::Precision::Variance));
         out.small_study = Some(s);
         out.notes.extend(notes);
+    }
+    if let Some(sel) = &settings.selection {
+        let o = selection::analyse(d, sel, terms, scale)?;
+        out.selection = Some(o.model);
+        out.averages.selection = Some(o.average);
+        out.warnings.extend(o.warnings);
     }
     if let Some(col) = order {
         let (idx, values, kind) = cumulative::order(col, source)?;

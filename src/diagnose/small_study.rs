@@ -1,6 +1,7 @@
 //! Small-study effects: the regression test for funnel-plot asymmetry, the
-//! rank-correlation test and trim-and-fill.
+//! rank-correlation test, trim-and-fill, and PET and PEESE ([`super::pet_peese`]).
 
+use super::pet_peese::{self, Precision};
 use super::ModelData;
 use crate::dist;
 use crate::effect::ReadingScale;
@@ -288,7 +289,7 @@ pub fn trim_fill(
     })
 }
 
-/// All three small-study analyses with their cautions.
+/// All the small-study analyses with their cautions.
 ///
 /// # Errors
 /// [`Error::Model`] with fewer than [`MIN_STUDIES`] studies, or from the parts.
@@ -312,6 +313,10 @@ pub fn analyse(d: &ModelData<'_>, scale: ReadingScale) -> Result<(SmallStudy, Ve
         asymmetry(d.y, d.v, &ones, 1)?
     };
     let trim_fill = trim_fill(d.y, d.v, d.options, plain.slope > 0.0, scale)?;
+    let level = d.options.level;
+    let pet = pet_peese::regression(d.y, d.v, d.x, d.p, level, Precision::StandardError)?;
+    let peese = pet_peese::regression(d.y, d.v, d.x, d.p, level, Precision::Variance)?;
+    let conditional = pet_peese::conditional(&pet, &peese);
     let mut cautions = Vec::new();
     if k < LOW_POWER_STUDIES {
         cautions.push(format!(
@@ -347,6 +352,9 @@ pub fn analyse(d: &ModelData<'_>, scale: ReadingScale) -> Result<(SmallStudy, Ve
             asymmetry_test,
             rank_test,
             trim_fill,
+            pet,
+            peese,
+            conditional,
             cautions,
         },
         notes,

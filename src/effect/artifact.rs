@@ -393,7 +393,7 @@ pub fn describe(settings: &ArtifactSettings) -> (Vec<String>, String) {
             "unreliability of x (divide by √r_xx)".to_string()
         });
     }
-    let method = "Each study's r is corrected in the order listed (Hunter & Schmidt 2004, Methods                   of Meta-Analysis, 2nd ed., ch. 3) and analysed on the r scale, not Fisher z: the                   sampling variance (1 − r²)²/(n − 1) of the observed r is multiplied by the square                   of the derivative of the corrected r with respect to the observed r (exactly the                   squared inverse attenuation factor for the reliability corrections, the                   derivative-based factor for Case II)."
+    let method = "Each study's r is corrected in the order listed (Hunter & Schmidt 2004, Methods of Meta-Analysis, 2nd ed., ch. 3) and analysed on the r scale, not Fisher z: the sampling variance (1 − r²)²/(n − 1) of the observed r is multiplied by the square of the derivative of the corrected r with respect to the observed r (exactly the squared inverse attenuation factor for the reliability corrections, the derivative-based factor for Case II)."
         .to_string();
     (applied, method)
 }

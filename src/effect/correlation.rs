@@ -180,7 +180,9 @@ pub fn partial_from_t(t: f64, n: f64, q: f64) -> Result<(f64, f64, f64), RowProb
         ));
     }
     let df = n - q - 2.0;
-    let r = t / (t * t + df).sqrt();
+    // r = t/√(t² + df), with √(t² + df) as hypot(t, √df) so that t² cannot
+    // overflow (|t| above about 1.3e154 would otherwise give r = 0).
+    let r = t / t.hypot(df.sqrt());
     if !(r > -1.0 && r < 1.0) {
         return Err(RowProblem::new(
             "t",

@@ -58,6 +58,19 @@ pub fn precomputed(row: RowValues<'_>, reading: &EffectReading) -> RowResult {
                 "a sampling variance must be greater than 0",
             ));
         }
+        // Both given: they must agree (to 5%, the rounding of published
+        // values), else one of them is wrong and the other would be
+        // silently ignored.
+        if let Some(se) = row.get("se").filter(|se| (se * se - v).abs() > 0.05 * v) {
+            return Err(RowProblem::new(
+                "se",
+                format!(
+                    "the row gives both a variance ({v}) and an se ({se}, se² = {}) and they \
+                     disagree; fix the row or leave one of the two columns empty",
+                    se * se
+                ),
+            ));
+        }
         return value(v, Route::Variance, None);
     }
     if let Some(se) = row.get("se") {
@@ -169,7 +182,9 @@ mod tests {
 
     #[test]
     fn precision_routes_in_priority_order() {
-        let v = row(&[Some(0.3), Some(0.04), Some(0.5), None, None]).unwrap();
+        // Both a variance and an se: used when they agree, refused when not.
+        assert!(row(&[Some(0.3), Some(0.04), Some(0.5), None, None]).is_err());
+        let v = row(&[Some(0.3), Some(0.04), Some(0.2001), None, None]).unwrap();
         assert_eq!(
             v,
             RowEffect::Value {

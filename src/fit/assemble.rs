@@ -94,6 +94,18 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         Some(c) => (c.variance_components, Some(c.report)),
         None => (None, None),
     };
+    let sensitivity = (diag.small_study.is_some() || diag.selection.is_some()).then(|| {
+        crate::diagnose::sensitivity::view(&crate::diagnose::sensitivity::ViewInputs {
+            coefficients: &summary.coefficients,
+            average: &summary.average,
+            small_study: diag.small_study.as_ref(),
+            selection: diag.selection.as_ref(),
+            averages: &diag.averages,
+            scale,
+            i2: summary.heterogeneity.i2,
+            k,
+        })
+    });
     let report = FitReport {
         tool: ToolInfo {
             name: "pondus".into(),
@@ -130,6 +142,8 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         influence: diag.influence,
         permutation: diag.permutation,
         small_study: diag.small_study,
+        selection: diag.selection,
+        sensitivity,
         cumulative: diag.cumulative,
         influence_cutoffs: diag.influence_cutoffs,
         cumulative_order: diag.cumulative_order,

@@ -16,11 +16,13 @@ use crate::model::ModelFit;
 ///
 /// # Errors
 /// The errors of [`diagnose::run`], with the file named.
+#[allow(clippy::too_many_arguments)]
 pub fn run(
     settings: &FitSettings,
     source: &str,
     x: Vec<f64>,
     p: usize,
+    terms: &[String],
     fit: &ModelFit,
     studies: &Studies,
     progress: &(dyn Fn(u64) + Sync),
@@ -45,6 +47,7 @@ pub fn run(
         &data,
         fit,
         &studies.labels,
+        terms,
         &studies.lines,
         order.as_ref(),
         studies.scale,

@@ -79,8 +79,8 @@ pub fn estimate(
     .map_err(|e| in_file(source, e))?;
     if fit.kh_scale == Some(0.0) {
         return Err(Error::Model(format!(
-            "{source}: the model fits every effect exactly (residual Q = 0, for example because \
-             all effects are identical), so the Knapp–Hartung standard errors would be 0. Use \
+            "{source}: the model fits every effect exactly (residual Q = 0 up to rounding, for \
+             example because all effects are identical or lie exactly on the moderators' line), so the Knapp–Hartung standard errors would be 0. Use \
              {} z, which does not scale by the residual variation",
             Flag::Inference
         )));
@@ -122,7 +122,19 @@ fn clusters(ids: &(String, Vec<String>), lines: &[u64], source: &str) -> Result<
             if missing.len() == 1 { "" } else { "s" }
         )));
     }
-    Ok(Clusters::from_ids(ids))
+    let clusters = Clusters::from_ids(ids);
+    if clusters.m() < 2 {
+        return Err(Error::Model(format!(
+            "{source}: all {} effects carry the same id ('{}') in column '{header}', so they form \
+             one cluster: no variance between clusters can be estimated and no cluster-robust \
+             standard error computed from one cluster. Check the column given to {}, or leave it \
+             out to treat the effects as independent",
+            ids.len(),
+            ids.first().map(String::as_str).unwrap_or_default(),
+            crate::support::flag::Flag::Cluster
+        )));
+    }
+    Ok(clusters)
 }
 
 /// The model under the dependence settings: the usual fit without clusters

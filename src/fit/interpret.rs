@@ -116,6 +116,26 @@ fn names(design: &Design) -> String {
 /// The points of one `--probe`.
 fn points(design: &Design, j: usize, spec: &ProbeSpec) -> Result<Vec<Point>> {
     let m = &design.moderators[j];
+    if let Some(texts) = &spec.values {
+        let same = |a: &str, b: &str| {
+            a.trim() == b.trim()
+                || matches!((a.trim().parse::<f64>(), b.trim().parse::<f64>()), (Ok(x), Ok(y)) if x == y
+                    && matches!(m.kind, ModeratorKind::Numeric { .. }))
+        };
+        if let Some((a, b)) = texts
+            .iter()
+            .enumerate()
+            .find_map(|(i, a)| texts[..i].iter().find(|b| same(a, b)).map(|b| (b, a)))
+        {
+            return Err(Error::usage(
+                Flag::Probe,
+                format!(
+                    "{}: '{a}' and '{b}' are the same value; give each value once",
+                    m.name
+                ),
+            ));
+        }
+    }
     match (&m.kind, &spec.values) {
         (ModeratorKind::Numeric { mean, sd, .. }, None) => Ok([
             (mean - sd, ProbePoint::MeanMinusSd),

@@ -75,8 +75,16 @@ pub fn run_with_progress(
         &summary,
     )?;
     let artifacts = interpret::artifact_report(&settings.interpret.artifacts, &studies);
+    let term_names: Vec<String> = design.terms.iter().map(|t| t.name.clone()).collect();
     let diagnostics = diagnostics::run(
-        settings, source, design.x, design.p, &model.fit, &studies, progress,
+        settings,
+        source,
+        design.x,
+        design.p,
+        &term_names,
+        &model.fit,
+        &studies,
+        progress,
     )?;
     let messages = messages::collect(&messages::Inputs {
         settings,

@@ -120,6 +120,20 @@ fn prediction(
                             ),
                         )
                     })?;
+                // Far outside the studies' range the prediction's variance
+                // x'Cov x overflows: say so rather than "did not converge".
+                let span = (max - min).abs().max(min.abs()).max(max.abs());
+                if (x.abs() - span) > 1e50 * span {
+                    return Err(Error::usage(
+                        Flag::At,
+                        format!(
+                            "{}={text} is more than 1e50 times the studies' range ({min} to \
+                             {max}) away; a prediction there leaves the range of floating-point \
+                             numbers and says nothing about these studies",
+                            m.name
+                        ),
+                    ));
+                }
                 if x < *min || x > *max {
                     outside.push(format!("{} = {x} (studies: {min} to {max})", m.name));
                 }

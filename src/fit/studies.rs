@@ -13,6 +13,7 @@ use crate::error::{Error, Result};
 use crate::input::{Delimiter, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
+use crate::support::flag::Flag;
 
 /// The studies of the job. Fields "per study" hold the included rows in
 /// file order; [`Studies::raw`] holds every table row (the design builder
@@ -102,6 +103,25 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         let col = table
             .column(first_moderator + j)
             .expect("required column present");
+        // Two spellings of one header (`--moderator m --moderator M`, the
+        // second matched ignoring case) are one moderator given twice.
+        if let Some(before) = settings.moderators[..j]
+            .iter()
+            .enumerate()
+            .find_map(|(i, m)| {
+                let c = table.column(first_moderator + i)?;
+                (c.header == col.header).then_some(&m.name)
+            })
+        {
+            return Err(Error::usage(
+                Flag::Moderator,
+                format!(
+                    "'{before}' and '{}' both name the column '{}' (headers match ignoring case \
+                     when unique); give the moderator once",
+                    spec.name, col.header
+                ),
+            ));
+        }
         let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
         raw.push(design::classify(spec, &cells, &table.lines, source)?);
     }
@@ -129,6 +149,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         routes.push(from);
         checks.push(check);
     }
+    check_range(source, &y, &v, &included, &table.lines)?;
     Ok(Studies {
         y,
         v,
@@ -231,6 +252,49 @@ fn include(
 }
 
 /// Refuses a job with no usable study, or only one.
+/// The largest |effect| the model is fitted on.
+pub const MAX_EFFECT: f64 = 1e50;
+/// Sampling variances are fitted between 1/[`MAX_VARIANCE`] and [`MAX_VARIANCE`].
+pub const MAX_VARIANCE: f64 = 1e100;
+
+/// Refuses an effect or a sampling variance outside the range in which the
+/// fit's sums stay representable: the REML score needs Σ w_i² and
+/// Σ w_i² r_i² with w_i = 1/(v_i + τ²), which underflow or overflow double
+/// precision (about 1e±308) when |y| or 1/v is near 1e100 or beyond — the
+/// restricted likelihood then silently loses its correction term (REML
+/// turns into ML) and rank checks or searches fail for the wrong reason.
+/// With |y| ≤ [`MAX_EFFECT`] and v within [`MAX_VARIANCE`]^±1 every such
+/// sum stays below about 1e300; real effects are many orders inside it.
+///
+/// # Errors
+/// [`Error::Model`] naming the line, the value and asking to rescale.
+fn check_range(
+    source: &str,
+    y: &[f64],
+    v: &[f64],
+    included: &[usize],
+    lines: &[u64],
+) -> Result<()> {
+    let bad = (0..y.len())
+        .find(|&i| y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE);
+    let Some(i) = bad else {
+        return Ok(());
+    };
+    let (what, value) = if y[i].abs() > MAX_EFFECT {
+        ("effect", y[i])
+    } else {
+        ("sampling variance", v[i])
+    };
+    Err(Error::Model(format!(
+        "{source}: line {}: the {what} is {value:e}, outside the range pondus can fit (effects \
+         up to {MAX_EFFECT:e} in size, sampling variances from {:e} to {MAX_VARIANCE:e}); at \
+         this scale the sums of the fit leave the range of floating-point numbers. Express the \
+         effects in other units (divide or multiply the columns by a power of ten) and run again",
+        lines[included[i]],
+        1.0 / MAX_VARIANCE
+    )))
+}
+
 fn check_count(source: &str, included: &[usize], excluded: &[Excluded]) -> Result<()> {
     if included.is_empty() {
         return Err(Error::Model(format!(

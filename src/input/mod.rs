@@ -247,6 +247,52 @@ pub fn detect_delimiter(bytes: &[u8]) -> u8 {
     candidates[best]
 }
 
+/// Whether `bytes` look like UTF-16: a UTF-16 byte-order mark (FF FE or
+/// FE FF), or, without one, a NUL in every other byte of the first line
+/// (ASCII text in UTF-16). Text files in UTF-8 hold no NUL bytes.
+pub fn is_utf16(bytes: &[u8]) -> bool {
+    if bytes.starts_with(b"\xFF\xFE") || bytes.starts_with(b"\xFE\xFF") {
+        return true;
+    }
+    let head = &bytes[..bytes.len().min(64)];
+    let nul = head.iter().filter(|&&b| b == 0).count();
+    head.len() >= 4 && nul * 3 >= head.len()
+}
+
+/// A first line `sep=X` (which some spreadsheet programs write, and read
+/// as "the delimiter is X") names the delimiter and is not the header:
+/// returns that delimiter and the bytes with the line's text blanked (its
+/// line break kept, so line numbers stay those of the file).
+pub fn separator_line(bytes: &[u8]) -> (Option<u8>, std::borrow::Cow<'_, [u8]>) {
+    let end = bytes
+        .iter()
+        .position(|&b| b == b'\n')
+        .unwrap_or(bytes.len());
+    let first = bytes[..end].strip_suffix(b"\r").unwrap_or(&bytes[..end]);
+    match first {
+        [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => {
+            (Some(*d), std::borrow::Cow::Owned(bytes[end..].to_vec()))
+        }
+        _ => (None, std::borrow::Cow::Borrowed(bytes)),
+    }
+}
+
+/// The line on which a double quote opens a value that is never closed, if
+/// one does: in CSV a quote inside a quoted value is doubled, so the quotes
+/// of a well-formed file pair up and an odd count means one is left open.
+pub fn unclosed_quote(bytes: &[u8]) -> Option<u64> {
+    let mut open_at = None;
+    let mut line = 1u64;
+    for &b in bytes {
+        match b {
+            b'"' => open_at = if open_at.is_some() { None } else { Some(line) },
+            b'\n' => line += 1,
+            _ => {}
+        }
+    }
+    open_at
+}
+
 /// Finds a header: exact match after trimming, else a unique case-insensitive match.
 pub fn find_header(headers: &[String], wanted: &str) -> Option<usize> {
     let wanted = wanted.trim();
@@ -283,13 +329,32 @@ pub(crate) fn format_error(source: &str, message: impl Into<String>) -> Error {
 /// the header's; [`Error::MissingColumn`] when a required column is absent.
 pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Result<Table> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    if is_utf16(bytes) {
+        return Err(format_error(
+            source,
+            "this file is UTF-16 (two bytes per character); save it as UTF-8 (in a spreadsheet, \
+             choose CSV UTF-8) and run again",
+        ));
+    }
     if bytes.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(format_error(
             source,
             "the file is empty; it needs a header row and one row per study",
         ));
     }
-    let delimiter = detect_delimiter(bytes);
+    let (hinted, bytes) = separator_line(bytes);
+    let bytes = &bytes[..];
+    if let Some(line) = unclosed_quote(bytes) {
+        return Err(format_error(
+            source,
+            format!(
+                "line {line}: a value opened with '\"' is never closed, so the rest of the file \
+                 would be read as part of it; add the closing '\"' (a '\"' inside a quoted \
+                 value is written twice: \"\")"
+            ),
+        ));
+    }
+    let delimiter = hinted.unwrap_or_else(|| detect_delimiter(bytes));
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(true)
@@ -511,14 +576,24 @@ fn read_rows(
             continue;
         }
         if record.len() != headers.len() {
+            // A value that runs over line breaks is, in a table of effects,
+            // almost always an opening quote that is never closed.
+            let hint = if record.iter().any(|f| f.contains(&b'\n')) {
+                "a value opened with '\"' on this line is not closed (it runs on over the \
+                 following lines); add the closing '\"'"
+                    .to_string()
+            } else {
+                format!(
+                    "check for a missing value or an unquoted '{}' inside a value",
+                    delimiter as char
+                )
+            };
             return Err(format_error(
                 source,
                 format!(
-                    "line {line} has {} fields but the header has {}; check for a missing value \
-                     or an unquoted '{}' inside a value",
+                    "line {line} has {} fields but the header has {}; {hint}",
                     record.len(),
                     headers.len(),
-                    delimiter as char
                 ),
             ));
         }
@@ -631,5 +706,38 @@ mod tests {
         let t = parse_table("x", b"a,b\n\"x\ny\",2\n3,4\n", &[req("a", true)]).unwrap();
         assert_eq!(t.lines, vec![2, 4]);
         assert_eq!(t.column(0).unwrap().get(0), "x\ny");
+    }
+
+    #[test]
+    fn utf16_is_named_not_read_as_spaced_text() {
+        let text = "study,effect\na,1\n";
+        let le: Vec<u8> = text.encode_utf16().flat_map(|u| u.to_le_bytes()).collect();
+        let with_bom = [&b"\xFF\xFE"[..], &le].concat();
+        for bytes in [le, with_bom] {
+            let e = parse_table("f.csv", &bytes, &[]).unwrap_err().to_string();
+            assert!(e.contains("UTF-16") && e.contains("UTF-8"), "{e}");
+        }
+        assert!(!is_utf16(b"study,effect\na,1\n"));
+    }
+
+    #[test]
+    fn a_sep_line_names_the_delimiter_and_is_not_the_header() {
+        let t = parse_table("x", b"sep=;\na;b\n1,5;2\n3;4\n", &[req("b", true)]).unwrap();
+        assert_eq!(t.delimiter, b';');
+        assert_eq!(t.headers, vec!["a", "b"]);
+        assert_eq!(t.lines, vec![3, 4]);
+        let t = parse_table("x", b"SEP=,\r\na,b\r\n1,2\r\n", &[req("a", true)]).unwrap();
+        assert_eq!((t.delimiter, t.lines.clone()), (b',', vec![3]));
+    }
+
+    #[test]
+    fn an_unclosed_quote_is_named_with_its_line() {
+        let e = parse_table("f.csv", b"a,b,c\n1,2,3\n\"x,2,3\n4,5,6\n", &[])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 3") && e.contains("never closed"), "{e}");
+        assert!(!e.contains("unquoted"), "{e}");
+        // Doubled quotes inside a quoted value are not an open quote.
+        assert_eq!(unclosed_quote(b"a,b\n\"say \"\"hi\"\"\",2\n"), None);
     }
 }

@@ -363,6 +363,12 @@ fn numeric_kind(
     })
 }
 
+/// The most levels a categorical moderator may have: each level is a
+/// column of the dense design (k × p numbers, and O(k·p²) for the rank
+/// check), so thousands of levels would take gigabytes and minutes; a
+/// moderator with more than this many levels is refused with advice.
+pub const MAX_LEVELS: usize = 200;
+
 /// The kind of a categorical moderator among the included studies: its
 /// levels (sorted), their counts and the reference level.
 ///
@@ -383,9 +389,27 @@ fn categorical_kind(
             ),
         ));
     }
-    let mut levels: Vec<String> = included.iter().filter_map(|&i| v[i].clone()).collect();
+    // Levels are the labels as written (`1` and `01` are two levels), each
+    // once: counted in one pass over the rows, then sorted.
+    let mut tally: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
+    for &i in included {
+        if let Some(l) = v[i].as_deref() {
+            *tally.entry(l).or_insert(0) += 1;
+        }
+    }
+    if tally.len() > MAX_LEVELS {
+        return Err(Error::Model(format!(
+            "moderator '{}' has {} levels among the included studies; pondus codes at most \
+             {MAX_LEVELS} levels of a categorical moderator (one coefficient each). Group the \
+             levels into fewer categories, or, when they are studies, labs or sites whose \
+             effects are related, give the column to {} instead",
+            spec.name,
+            tally.len(),
+            Flag::Cluster
+        )));
+    }
+    let mut levels: Vec<String> = tally.keys().map(|l| l.to_string()).collect();
     sort_levels(&mut levels);
-    levels.dedup();
     if levels.len() < 2 {
         return Err(Error::Model(format!(
             "moderator '{}' has only one level ('{}') among the included studies, so its \
@@ -394,15 +418,7 @@ fn categorical_kind(
             levels.first().cloned().unwrap_or_default()
         )));
     }
-    let counts = levels
-        .iter()
-        .map(|l| {
-            included
-                .iter()
-                .filter(|&&i| v[i].as_deref() == Some(l))
-                .count()
-        })
-        .collect();
+    let counts = levels.iter().map(|l| tally[l.as_str()]).collect();
     let reference = match &spec.reference {
         Some(r) if levels.contains(r) => r.clone(),
         Some(r) => {
@@ -461,7 +477,8 @@ fn sort_levels(levels: &mut [String]) {
                 a.parse::<f64>().unwrap_or(0.0),
                 b.parse::<f64>().unwrap_or(0.0),
             );
-            x.total_cmp(&y)
+            // Equal numbers written differently (`1`, `01`) keep a fixed order.
+            x.total_cmp(&y).then_with(|| a.cmp(b))
         });
     } else {
         levels.sort();
@@ -475,6 +492,18 @@ fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
     let mut q: Vec<Vec<f64>> = Vec::with_capacity(p);
     for j in 0..p {
         let mut col: Vec<f64> = (0..k).map(|i| x[i * p + j]).collect();
+        // Every column but the intercept is centred first: the span of
+        // [1, X] is that of [1, X − x̄], and a large offset with a small
+        // spread (m = 1e6 + i, dates as Unix times) then keeps its digits
+        // instead of looking collinear with the intercept.
+        if j > 0 {
+            let mean = col.iter().sum::<f64>() / k as f64;
+            if mean.is_finite() {
+                for c in &mut col {
+                    *c -= mean;
+                }
+            }
+        }
         // Scaling a column does not change the rank; scaling it to a largest
         // magnitude of 1 keeps the squares below from underflowing (values
         // near 1e-300) or overflowing (near 1e300).

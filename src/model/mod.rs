@@ -6,6 +6,7 @@ pub mod design;
 pub mod inference;
 pub mod multilevel;
 pub mod probe;
+pub mod selection;
 pub mod solve;
 pub mod tau2;
 pub mod wls;
@@ -160,7 +161,7 @@ pub fn fit_parts(
     let f = fit_with(&data, t, want).ok_or_else(singular)?;
     let df = (k - p) as f64;
     let kh_scale = match options.inference {
-        Inference::Kh => Some(f.q / df),
+        Inference::Kh => Some(kh_scale(f.q, df, y, v, t)),
         Inference::Z => None,
     };
     let beta = &st.a * &f.beta;
@@ -184,8 +185,8 @@ pub fn fit_parts(
                 .then(|| (y[i] - fi) / var_r.sqrt()),
         );
     }
-    let fe = fit_with(&data, 0.0, Want::SCORE).ok_or_else(singular)?;
-    let v_typical = df / fe.tr_p;
+    let fe = fit_with(&data, 0.0, Want::Q).ok_or_else(singular)?;
+    let v_typical = df / wls::trace_p(&data, 0.0).ok_or_else(singular)?;
     let tau2_ci = match options.method {
         Tau2Method::None => None,
         _ if !with_ci => None,
@@ -222,6 +223,22 @@ pub fn fit_parts(
         log_likelihood,
         options,
     })
+}
+
+/// The Knapp–Hartung scale s² = Q/(k − p) (Knapp & Hartung 2003, *Stat.
+/// Med.* 22:2693), or exactly 0 when the residual Q is rounding: effects
+/// that lie exactly on the model (identical effects, effects on a line)
+/// leave residuals of a few ε·|y| after floating-point arithmetic, so Q is
+/// compared with the scale of the data, Q ≤ [`crate::tolerance::KH_EXACT_FIT_REL`]
+/// · Σ y_i²/(v_i + τ²), not with 0. A zero scale is refused by the callers
+/// (it would give standard errors of 0 and infinite t).
+pub fn kh_scale(q: f64, df: f64, y: &[f64], v: &[f64], tau2: f64) -> f64 {
+    let size: f64 = y.iter().zip(v).map(|(y, v)| y * y / (v + tau2)).sum();
+    if q <= crate::tolerance::KH_EXACT_FIT_REL * size {
+        0.0
+    } else {
+        q / df
+    }
 }
 
 #[cfg(test)]

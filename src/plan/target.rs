@@ -3,11 +3,53 @@
 
 use super::{Plan, PlanMeasure};
 
+/// Up to this k, [`solve_k`] checks every k in turn.
+pub const SCAN_K: usize = 1000;
+
+/// How many k below the bisection's answer [`solve_k`] checks one by one.
+pub const BACKTRACK_K: usize = 64;
+
 /// The smallest k in [3, max_k] whose quick power reaches `target`, or None.
-/// A scan, not a bisection: with a two-level moderator the rounding of
-/// share·k makes power not quite monotone in k.
+///
+/// Up to [`SCAN_K`] every k is checked in turn: with a two-level moderator
+/// the rounding of share·k makes power not quite monotone in k. Beyond it
+/// (a quick power costs O(k), so a scan to 100,000 took minutes) the
+/// search doubles k until the target is reached, bisects between the last
+/// k that fell short and the first that reached it, then checks the
+/// [`BACKTRACK_K`] values below the answer one by one. The wiggles from
+/// rounding shrink like 1/k and span a few k, so for k above
+/// [`SCAN_K`] this finds the smallest k to within them; O(log max_k + 64)
+/// power evaluations instead of O(max_k).
 pub fn solve_k(plan: &Plan, target: f64, max_k: usize) -> Option<usize> {
-    (3..=max_k).find(|&k| plan.with_k(k).quick_power().is_some_and(|p| p >= target))
+    let ok = |k: usize| plan.with_k(k).quick_power().is_some_and(|p| p >= target);
+    if let Some(k) = (3..=max_k.min(SCAN_K)).find(|&k| ok(k)) {
+        return Some(k);
+    }
+    if max_k <= SCAN_K {
+        return None;
+    }
+    // Doubling: lo falls short, hi reaches the target.
+    let mut lo = SCAN_K;
+    let mut hi = loop {
+        let next = (lo * 2).min(max_k);
+        if ok(next) {
+            break next;
+        }
+        if next == max_k {
+            return None;
+        }
+        lo = next;
+    };
+    while hi - lo > 1 {
+        let mid = lo + (hi - lo) / 2;
+        if ok(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    let first = hi.saturating_sub(BACKTRACK_K).max(SCAN_K + 1);
+    (first..hi).find(|&k| ok(k)).or(Some(hi))
 }
 
 /// The smallest whole per-site n in [4, max_n] whose quick power reaches
@@ -78,6 +120,26 @@ mod tests {
         };
         assert!(solve_n(&hard, 0.8, 1e6).is_none());
         assert!(power_ceiling_in_n(&hard).unwrap() < 0.8);
-        assert!(solve_k(&Plan { beta: 0.001, ..p }, 0.8, 1000).is_none());
+        assert!(solve_k(
+            &Plan {
+                beta: 0.001,
+                ..p.clone()
+            },
+            0.8,
+            1000
+        )
+        .is_none());
+        // Beyond the scan: a small slope needs thousands of sites; the
+        // search must give the k a scan gives (checked here by scanning).
+        let small = Plan {
+            beta: 0.01,
+            ..p.clone()
+        };
+        let k = solve_k(&small, 0.9, 200_000).unwrap();
+        assert!(k > SCAN_K, "{k}");
+        assert!(small.with_k(k).quick_power().unwrap() >= 0.9);
+        let below = (k - 200..k).filter(|&j| small.with_k(j).quick_power().unwrap() >= 0.9);
+        assert_eq!(below.count(), 0, "a smaller k reaches 0.9");
+        assert!(solve_k(&Plan { beta: 1e-5, ..p }, 0.99, 100_000).is_none());
     }
 }

@@ -307,6 +307,50 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
             );
         }
         o.push_str(&wrap(&tf, "  ", 70));
+        for (name, reg, what) in [
+            ("PET", &s.pet, "standard error"),
+            ("PEESE", &s.peese, "variance"),
+        ] {
+            o.push_str(&wrap(
+                &format!(
+                    "{name} (effect on its {what}, weights 1/variance{}): intercept {} \
+                     ({level_pct} CI {}, t({}) = {:.2}, p {}), slope {} (SE {})",
+                    if a.with_moderators {
+                        ", with the moderators; the intercept is at every moderator 0"
+                    } else {
+                        ""
+                    },
+                    num(reg.intercept.estimate),
+                    fmt::interval(reg.intercept.ci.ci_low, reg.intercept.ci.ci_high),
+                    fmt::df(reg.intercept.test.df.unwrap_or(f64::NAN)),
+                    reg.intercept.test.statistic,
+                    fmt::p(reg.intercept.test.p),
+                    num(reg.slope.estimate),
+                    num(reg.slope.se)
+                ),
+                "  ",
+                70,
+            ));
+        }
+        o.push_str(&wrap(
+            &format!(
+                "conditional PET-PEESE estimate: {} (the {} intercept; PET's intercept p {} \
+                 0.10)",
+                num(s.conditional.estimate.estimate),
+                if s.conditional.used == crate::result::PetPeeseChoice::Peese {
+                    "PEESE"
+                } else {
+                    "PET"
+                },
+                if s.conditional.used == crate::result::PetPeeseChoice::Peese {
+                    "<"
+                } else {
+                    "≥"
+                }
+            ),
+            "  ",
+            70,
+        ));
         for c in &s.cautions {
             let w = wrap(c, "    ", 68);
             let _ = write!(o, "  - {}", w.trim_start());

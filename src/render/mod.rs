@@ -22,6 +22,7 @@ pub mod layout;
 pub mod multilevel;
 pub mod obtained;
 pub mod plan;
+pub mod sensitivity;
 pub mod sites;
 pub mod sites_effects;
 pub mod table;

@@ -34,6 +34,13 @@ pub const INFLUENCE_COLUMNS: [&str; 8] = [
     "influential",
 ];
 
+/// A text cell (label, note, reason) safe to open in a spreadsheet: a
+/// leading `=`, `+`, `-` or `@` gets an apostrophe in front
+/// ([`crate::support::text::spreadsheet_cell`]).
+fn cell(s: &str) -> String {
+    crate::support::text::spreadsheet_cell(s).into_owned()
+}
+
 fn opt(x: Option<f64>) -> String {
     x.map(|x| x.to_string()).unwrap_or_default()
 }
@@ -84,7 +91,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             ]);
         }
         let mut row = vec![
-            s.study.clone(),
+            cell(&s.study),
             s.line.to_string(),
             "yes".into(),
             String::new(),
@@ -94,7 +101,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             s.fitted.to_string(),
             s.residual.to_string(),
             s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
-            s.note.clone().unwrap_or_default(),
+            cell(s.note.as_deref().unwrap_or_default()),
             s.computed_from.to_string(),
         ];
         row.extend(more);
@@ -108,10 +115,10 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     }
     for e in &report.excluded {
         let mut row = vec![
-            e.study.clone(),
+            cell(&e.study),
             e.line.to_string(),
             "no".into(),
-            e.reason.clone(),
+            cell(&e.reason),
         ];
         row.extend(std::iter::repeat_n(String::new(), 8 + extra));
         rows.push((e.line, row));

@@ -1,7 +1,7 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
-use super::{diagnostics, interpret, multilevel};
+use super::{diagnostics, interpret, multilevel, sensitivity};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, Inference, MeasureId, ModeratorKind, Reading};
 use crate::support::flag::Flag;
@@ -69,6 +69,8 @@ const SECTIONS: &[Section] = &[
     diagnostics::influence,
     diagnostics::permutation,
     diagnostics::small_study,
+    sensitivity::selection,
+    sensitivity::sensitivity,
     diagnostics::cumulative,
     messages,
 ];

@@ -175,6 +175,13 @@ pub struct SmallStudy {
     pub rank_test: RankTest,
     /// Trim-and-fill on the model without moderators (Duval & Tweedie 2000).
     pub trim_fill: TrimFill,
+    /// PET: weighted regression of the effects on their standard errors
+    /// (with the moderators when given; Stanley & Doucouliagos 2014).
+    pub pet: super::PrecisionRegression,
+    /// PEESE: the same on their sampling variances.
+    pub peese: super::PrecisionRegression,
+    /// PEESE's intercept when PET's differs from 0 at two-sided α = 0.10, else PET's.
+    pub conditional: super::ConditionalEstimate,
     /// How to read these results.
     pub cautions: Vec<String>,
 }

@@ -29,6 +29,7 @@ mod model;
 pub mod plan;
 mod predict;
 mod routes;
+mod sensitivity;
 mod sites;
 
 pub use clusters::*;
@@ -38,6 +39,7 @@ pub use interpret::*;
 pub use model::*;
 pub use predict::*;
 pub use routes::*;
+pub use sensitivity::*;
 pub use sites::*;
 
 use crate::effect::route::Route;
@@ -106,6 +108,14 @@ pub struct FitReport {
     /// Small-study effects: regression and rank tests, trim-and-fill (`--small-study`; omitted when not asked).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub small_study: Option<SmallStudy>,
+    /// The step-function selection model (`--selection`; omitted when not asked).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub selection: Option<SelectionModel>,
+    /// The average effect and each moderator coefficient unadjusted and under
+    /// each adjustment for small-study effects and selection (with
+    /// `--small-study` or `--selection`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sensitivity: Option<Sensitivity>,
     /// Cumulative meta-analysis, one step per study in the ordering column's order (`--cumulative-by`; omitted when not asked).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative: Option<Vec<CumulativeStep>>,
@@ -297,6 +307,22 @@ mod tests {
         ]);
         check(&[Side::Left, Side::Right]);
         check(&[SortOrder::Numeric, SortOrder::Text]);
+        check(&[Favoured::Positive, Favoured::Negative]);
+        check(&[PetPeeseChoice::Pet, PetPeeseChoice::Peese]);
+        check(&[
+            Adjustment::Unadjusted,
+            Adjustment::TrimAndFill,
+            Adjustment::Pet,
+            Adjustment::Peese,
+            Adjustment::Selection,
+        ]);
+        check(&[
+            Verdict::Holds,
+            Verdict::Fades,
+            Verdict::Reverses,
+            Verdict::Appears,
+            Verdict::NoneEither,
+        ]);
         check(&[ClusterLevel::Between, ClusterLevel::Within]);
         check(&[ClusterModel::ThreeLevel, ClusterModel::TwoLevel]);
         check(&[SitesInputKind::Rows, SitesInputKind::Moments]);

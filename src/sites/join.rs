@@ -140,6 +140,25 @@ pub fn join(
         .map(|i| ids.get(i).to_string())
         .collect();
     super::sort_ids(&mut info_only, |s| s.as_str());
+    // Ids are matched exactly; ids that differ only in case are named so
+    // the user can fix the spelling in one of the files.
+    let case_only: Vec<String> = without_info
+        .iter()
+        .filter_map(|a| {
+            let b = info_only
+                .iter()
+                .find(|b| b.to_lowercase() == a.to_lowercase())?;
+            Some(format!("'{a}' (data) and '{b}' ({source})"))
+        })
+        .collect();
+    if !case_only.is_empty() {
+        report.notes.push(format!(
+            "Site ids are matched exactly, including case; {} differ only in case: {}. Make the \
+             spellings agree in the two files to join them.",
+            case_only.len(),
+            case_only.join(", ")
+        ));
+    }
     report.join = Some(SiteJoin {
         file: source.to_string(),
         key: key_header,

@@ -63,6 +63,20 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         RowInput::File(p) => Some(p.to_path_buf()),
         RowInput::Stream(_) => None,
     };
+    // A FIFO, a character device or a socket given as a path reads once
+    // like standard input: the second pass would wait forever.
+    if let (RowInput::File(p), true) = (&input, s.robust) {
+        if std::fs::metadata(p).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+            return Err(Error::usage(
+                Flag::Robust,
+                format!(
+                    "{source}: HC3 standard errors need each row's leverage and residual, so the \
+                     file is read a second time, and this path is a pipe or device that can be \
+                     read only once; save the data to a regular file and give its path"
+                ),
+            ));
+        }
+    }
     let summaries =
         match input {
             RowInput::File(p) => summarise_rows(source, open(p)?, s)?,
@@ -90,7 +104,10 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         missing_lines: pass.missing_lines.clone(),
         passes: if robust.is_some() { 2 } else { 1 },
     };
-    Ok(assemble(input_info, s, layout, fitted, excluded, robust))
+    usable(
+        source,
+        assemble(input_info, s, layout, fitted, excluded, robust),
+    )
 }
 
 /// Runs the per-site stage on a per-site moments table (see
@@ -131,7 +148,10 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         missing_lines: vec![],
         passes: 1,
     };
-    Ok(assemble(input_info, s, layout, fitted, excluded, None))
+    usable(
+        source,
+        assemble(input_info, s, layout, fitted, excluded, None),
+    )
 }
 
 /// Opens the row file for one pass.
@@ -150,6 +170,28 @@ fn open_rows(source: &str, p: &Path) -> Result<std::fs::File> {
         action: "reading",
         source: e,
     })
+}
+
+/// The report when at least one site has a usable regression.
+///
+/// # Errors
+/// [`Error::Model`] when every site was left out, naming how many and the
+/// first few with their reasons (a header-only effects file is not a result).
+fn usable(source: &str, report: SitesReport) -> Result<SitesReport> {
+    if !report.sites.is_empty() {
+        return Ok(report);
+    }
+    let shown: Vec<String> = report
+        .excluded
+        .iter()
+        .take(3)
+        .map(|e| format!("'{}' ({})", e.study, e.reason))
+        .collect();
+    Err(Error::Model(format!(
+        "{source}: no site has a usable regression; all {} were left out, for example {}",
+        report.excluded.len(),
+        shown.join(", ")
+    )))
 }
 
 #[cfg(test)]

@@ -71,6 +71,7 @@ flags! {
     BubbleX => "--bubble-x", ["fit"];
     Funnel => "--funnel", ["fit"];
     Contours => "--contours", ["fit"];
+    SensitivityPlot => "--sensitivity-plot", ["fit"];
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
@@ -87,6 +88,9 @@ flags! {
     Seed => "--seed", ["fit", "plan"];
     SmallStudy => "--small-study", ["fit"];
     CumulativeBy => "--cumulative-by", ["fit"];
+    Selection => "--selection", ["fit"];
+    Favoured => "--favoured", ["fit"];
+    SelectionForce => "--selection-force", ["fit"];
     Cluster => "--cluster", ["fit"];
     Levels => "--levels", ["fit"];
     Robust => "--robust", ["fit", "sites"];

@@ -104,6 +104,12 @@ pub fn value(x: f64) -> String {
     whole_or(x, num)
 }
 
+/// A value the user typed, such as a p-value cut point, in the shortest
+/// form that reads back as the same number (0.025, 0.0005, 0.5).
+pub fn typed(x: f64) -> String {
+    format!("{x}")
+}
+
 /// A number for a plot: `decimals` places, with a true minus sign (U+2212)
 /// and no sign on a value that rounds to zero.
 pub fn plot_num(x: f64, decimals: usize) -> String {

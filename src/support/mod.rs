@@ -1,9 +1,11 @@
 //! Small shared pieces below every other layer: the names of the flags
 //! that library messages mention ([`flag`]), numbers as text ([`format`](mod@format)),
-//! hashing of inputs ([`hash`]) and the seeded random-number generator of
+//! hashing of inputs ([`hash`]), text made safe for terminals, XML and
+//! spreadsheets ([`text`]) and the seeded random-number generator of
 //! the simulations and permutations ([`rng`]).
 
 pub mod flag;
 pub mod format;
 pub mod hash;
 pub mod rng;
+pub mod text;

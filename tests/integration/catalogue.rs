@@ -66,6 +66,12 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "stdin-empty", what: "an empty standard input", args: "fit -", input: None, stdin: b"", code: 2, words: &["empty"] },
     Case { id: "sites-missing-id", what: "a participant row without a site id", args: "sites {in} --site site --x x --y y --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\n,2,3\ns1,3,5\n"), stdin: b"", code: 2, words: &["line 3", "site"] },
     Case { id: "sites-duplicate-ids", what: "a site table with the same id twice", args: "sites {in} --site site --x x --y y --info {dir}/info.csv --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\ns1,2,3\ns1,3,5\ns1,4,4\ns1,5,7\n"), stdin: b"", code: 2, words: &["line 3", "already has a row on line 2"] },
+    Case { id: "selection-cut-outside", what: "a selection cut point outside (0, 1)", args: "fit {in} --selection 1.5", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "1.5", "outside (0, 1)"] },
+    Case { id: "selection-cuts-unordered", what: "selection cut points out of order", args: "fit {in} --selection 0.5,0.025", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "must ascend", "0.025"] },
+    Case { id: "selection-cut-repeated", what: "a selection cut point given twice", args: "fit {in} --selection 0.05,0.05", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "given twice"] },
+    Case { id: "selection-empty-interval", what: "a p-value interval with no study", args: "fit {in} --selection 0.001", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "p < 0.001", "no study"] },
+    Case { id: "selection-thin-interval", what: "a p-value interval with fewer than 3 studies", args: "fit {in} --selection 0.025", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "only 2 studies", "--selection-force"] },
+    Case { id: "favoured-without-selection", what: "--favoured without --selection", args: "fit {in} --favoured negative", input: Some(PLAIN), stdin: b"", code: 2, words: &["--favoured", "--selection"] },
     Case { id: "plan-negative-tau2", what: "a negative τ² in a plan", args: "plan --measure r --k 20 --n 50 --tau2=-0.1 --moderator-effect 0.1 --moderator-sd 1", input: None, stdin: b"", code: 2, words: &["--tau2"] },
 ];
 

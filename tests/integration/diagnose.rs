@@ -85,6 +85,7 @@ fn all_diagnostics(order: Option<&str>) -> DiagnoseSettings {
         permutations: None,
         small_study: true,
         cumulative_by: order.map(String::from),
+        selection: None,
     }
 }
 

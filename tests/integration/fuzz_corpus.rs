@@ -58,3 +58,17 @@ fn sites_csv_seeds_and_regressions_run_clean() {
         assert!(r.is_ok(), "{} fails", p.display());
     }
 }
+
+#[test]
+fn fit_dependent_seeds_and_regressions_run_clean() {
+    let all: Vec<_> = files("fuzz/seeds/fit_dependent")
+        .into_iter()
+        .chain(files("fuzz/regressions/fit_dependent"))
+        .collect();
+    assert!(all.len() >= 10, "the seed corpus is missing");
+    for p in all {
+        let data = std::fs::read(&p).unwrap();
+        let r = std::panic::catch_unwind(|| common::fit_dependent(&data));
+        assert!(r.is_ok(), "{} fails", p.display());
+    }
+}

@@ -53,6 +53,7 @@ const CASES: &[Case] = &[
     // Robustness checks (README, tutorial).
     Case { id: "trials-diagnostics", steps: &["fit data-examples/trial-events.csv --measure log-or --moderator followup_months --loo --influence --permutations 999 --seed 7 --small-study --cumulative-by followup_months --json out.json --table table.csv --report report.html --funnel funnel.svg"] },
     Case { id: "consortium-permutations-loo", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --permutations 5000 --seed 7 --loo --json out.json"] },
+    Case { id: "trials-selection", steps: &["fit data-examples/trial-events.csv --measure log-or --moderator followup_months --small-study --selection 0.025 --favoured negative --sensitivity-plot sensitivity.svg --json out.json --report report.html"] },
     Case { id: "hiring-small-study", steps: &["fit data-examples/hiring-validity.csv --measure r --loo --influence --small-study --funnel funnel.svg --json out.json --table table.csv"] },
     // Interpretation (docs/interpretation.md, tutorial).
     Case { id: "consortium-interaction-regions", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --interaction session_minutes,mode --probe mode --regions --json out.json --bubble bubble.svg --report report.html"] },

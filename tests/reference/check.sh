@@ -76,3 +76,6 @@ trap 'rm -rf "$tmp"' EXIT
 # Effect-size routes of issue 15 (tests/reference/routes.py -> tests/data/reference/routes/)
 "$venv/bin/python" "$here/routes.py" "$tmp/routes" > "$tmp/routes.log" 2>&1 || { cat "$tmp/routes.log" >&2; die "routes.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/routes" "$tmp/routes" || die "routes fixtures differ; regenerate with: $venv/bin/python tests/reference/routes.py tests/data/reference/routes"
+# Selection model (scipy maximisation) and PET/PEESE (statsmodels WLS) (tests/reference/selection.py -> tests/data/reference/selection/)
+"$venv/bin/python" "$here/selection.py" "$tmp/selection" > "$tmp/selection.log" 2>&1 || { cat "$tmp/selection.log" >&2; die "selection.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/selection" "$tmp/selection" || die "selection fixtures differ; regenerate with: $venv/bin/python tests/reference/selection.py tests/data/reference/selection"

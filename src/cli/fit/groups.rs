@@ -256,7 +256,14 @@ impl ModelArgs {
         for r in &self.reference {
             let (name, level) = split_pair("--reference", r, "NAME=LEVEL")?;
             self.known("--reference", name)?;
-            references.insert(name.to_string(), level.to_string());
+            if let Some(before) = references.insert(name.to_string(), level.to_string()) {
+                return Err(Error::usage(
+                    "--reference",
+                    format!(
+                        "'{name}' is given two reference levels ('{before}' and '{level}'); give one"
+                    ),
+                ));
+            }
         }
         for n in &self.categorical {
             self.known("--categorical", n)?;
@@ -290,6 +297,15 @@ impl ModelArgs {
             let mut point = Vec::new();
             for part in a.split(',') {
                 let (n, v) = split_pair("--at", part, "NAME=VALUE,NAME=VALUE,...")?;
+                if let Some((_, before)) = point.iter().find(|(m, _)| m == n) {
+                    return Err(Error::usage(
+                        "--at",
+                        format!(
+                            "'{a}' gives '{n}' twice ('{n}={before}' and '{n}={v}'); give each \
+                             moderator once per point (repeat --at for another point)"
+                        ),
+                    ));
+                }
                 point.push((n.to_string(), v.to_string()));
             }
             predictions.push(point);
@@ -354,6 +370,9 @@ pub struct PlotArgs {
     /// Shade the funnel plot's significance contours (p = 0.10, 0.05, 0.01).
     #[arg(long)]
     pub contours: bool,
+    /// Draw the sensitivity plot (average effect and moderator coefficients under each adjustment; needs --small-study or --selection) into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub sensitivity_plot: Option<PathBuf>,
     /// Width of every plot in pixels [default: automatic].
     #[arg(long, value_name = "PIXELS")]
     pub width: Option<u32>,
@@ -373,6 +392,11 @@ impl PlotArgs {
             ("--forest", PlotKind::Forest, &self.forest),
             ("--bubble", PlotKind::Bubble, &self.bubble),
             ("--funnel", PlotKind::Funnel, &self.funnel),
+            (
+                "--sensitivity-plot",
+                PlotKind::Sensitivity,
+                &self.sensitivity_plot,
+            ),
         ] {
             if let Some(p) = path {
                 plots.push((
@@ -547,6 +571,24 @@ pub struct DiagnosticArgs {
     /// Cumulative meta-analysis, adding the studies in the order of this column (numbers ascending; text in code-point order).
     #[arg(long, value_name = "COL")]
     pub cumulative_by: Option<String>,
+    /// Step-function selection model with these one-sided p-value cut points, ascending in (0, 1): `--selection 0.025` or `0.025,0.5`; fitted by ML with the moderators.
+    #[arg(long, value_name = "CUTS")]
+    pub selection: Option<String>,
+    /// With --selection: the direction whose one-sided p-values are small [default: positive].
+    #[arg(long, value_enum, value_name = "DIR")]
+    pub favoured: Option<FavouredArg>,
+    /// With --selection: fit even when an interval holds only 1 or 2 studies (an empty interval is always refused).
+    #[arg(long)]
+    pub selection_force: bool,
+}
+
+/// The favoured direction of `--favoured`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum FavouredArg {
+    /// Positive effects give small one-sided p-values.
+    Positive,
+    /// Negative effects give small one-sided p-values.
+    Negative,
 }
 
 /// Dependent effects nested in clusters.
@@ -682,6 +724,7 @@ impl ClusterArgs {
             (diagnostics.permutations.is_some(), "--permutations"),
             (diagnostics.small_study, "--small-study"),
             (diagnostics.cumulative_by.is_some(), "--cumulative-by"),
+            (diagnostics.selection.is_some(), "--selection"),
         ];
         if let Some((_, flag)) = unsupported.iter().find(|(on, _)| *on) {
             return Err(Error::usage(
@@ -750,6 +793,39 @@ impl DiagnosticArgs {
             permutations,
             small_study: self.small_study,
             cumulative_by: self.cumulative_by.clone(),
+            selection: self.selection_settings()?,
         })
+    }
+
+    /// The checked `--selection`, `--favoured` and `--selection-force`.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] for bad cut points, or the companions without `--selection`.
+    fn selection_settings(&self) -> Result<Option<pondus::diagnose::selection::SelectionSettings>> {
+        use pondus::diagnose::selection::{parse_cuts, SelectionSettings};
+        use pondus::result::Favoured;
+        let Some(text) = &self.selection else {
+            if self.favoured.is_some() {
+                return Err(Error::usage(
+                    "--favoured",
+                    "applies to the selection model; add --selection CUTS (e.g. --selection 0.025)",
+                ));
+            }
+            if self.selection_force {
+                return Err(Error::usage(
+                    "--selection-force",
+                    "applies to the selection model; add --selection CUTS (e.g. --selection 0.025)",
+                ));
+            }
+            return Ok(None);
+        };
+        Ok(Some(SelectionSettings {
+            cuts: parse_cuts(text)?,
+            favoured: match self.favoured {
+                Some(FavouredArg::Negative) => Favoured::Negative,
+                _ => Favoured::Positive,
+            },
+            force: self.selection_force,
+        }))
     }
 }

@@ -57,6 +57,8 @@ pub enum PlotKind {
     Bubble,
     /// `--funnel`.
     Funnel,
+    /// `--sensitivity-plot`.
+    Sensitivity,
 }
 
 /// One requested plot.
@@ -111,6 +113,15 @@ impl FitArgs {
             outs.push(("--table", t));
         }
         let plots = self.plots.requests()?;
+        if self.plots.sensitivity_plot.is_some()
+            && !self.diagnostics.small_study
+            && self.diagnostics.selection.is_none()
+        {
+            return Err(pondus::Error::usage(
+                "--sensitivity-plot",
+                "draws the adjustments of --small-study or --selection; add one of them",
+            ));
+        }
         self.plots.check_needs(self.report.report.is_some())?;
         let report = self.report.target()?;
         self.plots
@@ -181,6 +192,10 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             PlotKind::Forest => ("--forest", figure::forest_plot(&report, o, p.format)?),
             PlotKind::Bubble => ("--bubble", figure::bubble_plot(&report, o, p.format)?),
             PlotKind::Funnel => ("--funnel", figure::funnel_plot(&report, o, p.format)?),
+            PlotKind::Sensitivity => (
+                "--sensitivity-plot",
+                figure::sensitivity_plot(&report, o, p.format)?,
+            ),
         };
         drawn.push((flag, &p.target, bytes));
     }

@@ -53,6 +53,86 @@ fn sym_power(a: &DMatrix<f64>, power: f64) -> DMatrix<f64> {
     &e.eigenvectors * d * e.eigenvectors.transpose()
 }
 
+/// One contrast c's per-cluster vectors: q_j = (X_j'W_jA_j)'Mc and
+/// a_j = X_j'q_j.
+struct Contrast {
+    q: Vec<DVector<f64>>,
+    a: Vec<DVector<f64>>,
+}
+
+/// What the Satterthwaite and HTZ sums need, cluster by cluster.
+struct Work<'a> {
+    groups: &'a [Vec<usize>],
+    v: &'a [f64],
+    x: &'a [f64],
+    p: usize,
+    sb: f64,
+    sw: f64,
+    xwa: &'a [DMatrix<f64>],
+    m_inv: &'a DMatrix<f64>,
+}
+
+impl Work<'_> {
+    fn contrast(&self, c: &DVector<f64>) -> Contrast {
+        let mc = self.m_inv * c;
+        let (mut q, mut a) = (Vec::with_capacity(self.groups.len()), Vec::new());
+        for (j, g) in self.groups.iter().enumerate() {
+            let qj = self.xwa[j].transpose() * &mc;
+            let xj = DMatrix::from_fn(g.len(), self.p, |r, b| self.x[g[r] * self.p + b]);
+            a.push(xj.transpose() * &qj);
+            q.push(qj);
+        }
+        Contrast { q, a }
+    }
+
+    /// d_j = q_sj'V_j q_tj, with V_j = σ²_b·11' + diag(v_i + σ²_w) applied
+    /// without forming it.
+    fn d(&self, j: usize, qs: &DVector<f64>, qt: &DVector<f64>) -> f64 {
+        let g = &self.groups[j];
+        let (ss, st): (f64, f64) = (qs.sum(), qt.sum());
+        let diag: f64 = (0..g.len())
+            .map(|r| qs[r] * qt[r] * (self.v[g[r]] + self.sw))
+            .sum();
+        self.sb * ss * st + diag
+    }
+
+    /// h_j = a_sj'M a_tj.
+    fn h(&self, j: usize, s: &Contrast, t: &Contrast) -> f64 {
+        s.a[j].dot(&(self.m_inv * &t.a[j]))
+    }
+
+    /// U = Σ_j a_sj a_tj' (p × p).
+    fn u(&self, s: &Contrast, t: &Contrast) -> DMatrix<f64> {
+        let mut u = DMatrix::zeros(self.p, self.p);
+        for (a, b) in s.a.iter().zip(&t.a) {
+            u += a * b.transpose();
+        }
+        u
+    }
+
+    /// Σ_j G_jj for one contrast: Σ_j (d_j − h_j).
+    fn trace(&self, c: &Contrast) -> f64 {
+        (0..self.groups.len())
+            .map(|j| self.d(j, &c.q[j], &c.q[j]) - self.h(j, c, c))
+            .sum()
+    }
+
+    /// Σ_ij G^{st}_ij G^{uw}_ij for G^{st}_ij = δ_ij d^{st}_i − a_si'M a_tj:
+    /// Σ_i d^{st}_i d^{uw}_i − Σ_i d^{st}_i h^{uw}_i − Σ_i d^{uw}_i h^{st}_i
+    /// plus tr(M U_tw M U_us), with U_xy = Σ_j a_xj a_yj'; O(k p² + m p²)
+    /// time and no clusters × clusters matrix.
+    fn inner(&self, (s, t): (&Contrast, &Contrast), (u, w): (&Contrast, &Contrast)) -> f64 {
+        let mut sum = 0.0;
+        for j in 0..self.groups.len() {
+            let dst = self.d(j, &s.q[j], &t.q[j]);
+            let duw = self.d(j, &u.q[j], &w.q[j]);
+            sum += dst * duw - dst * self.h(j, u, w) - duw * self.h(j, s, t);
+        }
+        let mi = self.m_inv;
+        sum + (mi * self.u(t, w) * mi * self.u(u, s)).trace()
+    }
+}
+
 /// Cluster-robust (CR2) covariance, Satterthwaite df per coefficient and
 /// the HTZ test of coefficients 1..p.
 ///
@@ -101,9 +181,10 @@ pub fn robust(
         Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
     })?;
     let mi = &e.m_inv;
-    // Per cluster: X_j'W_jA_j (p × n_j), V_j, X_j.
+    // Per cluster: X_j'W_jA_j (p × n_j). Nothing of size clusters ×
+    // clusters is built: the Satterthwaite and HTZ sums below are reduced
+    // to per-cluster terms and p × p matrices.
     let mut xwa: Vec<DMatrix<f64>> = Vec::with_capacity(m);
-    let mut vjs: Vec<DMatrix<f64>> = Vec::with_capacity(m);
     let mut meat = DMatrix::<f64>::zeros(p, p);
     for g in &cl.groups {
         let n = g.len();
@@ -121,54 +202,26 @@ pub fn robust(
         let u = &c * ej;
         meat += &u * u.transpose();
         xwa.push(c);
-        vjs.push(vj);
     }
     let vr = mi * meat * mi;
-    // G matrices for a set of contrasts (in the standardised parametrisation).
-    let gram = |cs: &[DVector<f64>]| -> Vec<Vec<DMatrix<f64>>> {
-        // q_sj = (X_j'W_jA_j)' M c_s ; a_sj = X_j'q_sj
-        let per: Vec<Vec<(DVector<f64>, DVector<f64>)>> = cs
-            .iter()
-            .map(|c| {
-                let mc = mi * c;
-                cl.groups
-                    .iter()
-                    .enumerate()
-                    .map(|(j, g)| {
-                        let qj = xwa[j].transpose() * &mc;
-                        let xj = DMatrix::from_fn(g.len(), p, |a, b| st.x[g[a] * p + b]);
-                        let aj = xj.transpose() * &qj;
-                        (qj, aj)
-                    })
-                    .collect()
-            })
-            .collect();
-        let nc = cs.len();
-        let mut out = vec![vec![DMatrix::zeros(m, m); nc]; nc];
-        for s in 0..nc {
-            for t in 0..nc {
-                let mat = &mut out[s][t];
-                let ma: Vec<DVector<f64>> = per[t].iter().map(|(_, a)| mi * a).collect();
-                for i in 0..m {
-                    for j in 0..m {
-                        mat[(i, j)] = -per[s][i].1.dot(&ma[j]);
-                    }
-                    mat[(i, i)] += per[s][i].0.dot(&(&vjs[i] * &per[t][i].0));
-                }
-            }
-        }
-        out
+    let work = Work {
+        groups: &cl.groups,
+        v,
+        x: &st.x,
+        p,
+        sb,
+        sw,
+        xwa: &xwa,
+        m_inv: mi,
     };
     // Contrasts of the original coefficients: β = Aβ̃, so β_j = (row j of A)·β̃.
     let mut coefs = Vec::with_capacity(p);
     let vr_orig = &st.a * &vr * st.a.transpose();
     let beta = &st.a * &e.beta;
     for jj in 0..p {
-        let c = st.a.row(jj).transpose();
-        let g = gram(std::slice::from_ref(&c));
-        let g = &g[0][0];
-        let tr: f64 = (0..m).map(|i| g[(i, i)]).sum();
-        let ss: f64 = g.iter().map(|x| x * x).sum();
+        let c = work.contrast(&st.a.row(jj).transpose());
+        let tr = work.trace(&c);
+        let ss = work.inner((&c, &c), (&c, &c));
         let df = tr * tr / ss;
         let se = vr_orig[(jj, jj)].max(0.0).sqrt();
         let tstat = beta[jj] / se;
@@ -189,17 +242,13 @@ pub fn robust(
         let stat_q = cb.dot(&(cvc_inv * &cb));
         let omega = &cmat * mi * cmat.transpose();
         let ct = sym_power(&omega, -0.5) * &cmat;
-        let cs: Vec<DVector<f64>> = (0..q).map(|r| ct.row(r).transpose()).collect();
-        let g = gram(&cs);
+        let cs: Vec<Contrast> = (0..q)
+            .map(|r| work.contrast(&ct.row(r).transpose()))
+            .collect();
         let mut denom = 0.0;
-        for s in 0..q {
-            for t in 0..q {
-                denom += g[s][t].iter().map(|x| x * x).sum::<f64>()
-                    + g[s][s]
-                        .iter()
-                        .zip(g[t][t].iter())
-                        .map(|(a, b)| a * b)
-                        .sum::<f64>();
+        for s in &cs {
+            for t in &cs {
+                denom += work.inner((s, t), (s, t)) + work.inner((s, s), (t, t));
             }
         }
         let qf = q as f64;
@@ -241,5 +290,65 @@ mod tests {
         // q = 1: the HTZ F equals t² with the Satterthwaite df.
         let t = test.unwrap();
         assert!((t.df2 - coefs[1].df).abs() < 1e-8 * coefs[1].df);
+    }
+
+    /// The per-cluster sums equal the sums over the dense clusters ×
+    /// clusters matrices G^{st}_ij = δ_ij q_si'V_iq_ti − a_si'Ma_tj they
+    /// replace (built here from their definition).
+    #[test]
+    fn per_cluster_sums_equal_the_dense_g_matrices() {
+        let groups = vec![vec![0, 1], vec![2, 3, 4], vec![5], vec![6, 7]];
+        let v = [0.05, 0.04, 0.06, 0.03, 0.02, 0.07, 0.05, 0.03];
+        let p = 3;
+        let x: Vec<f64> = (0..8)
+            .flat_map(|i| [1.0, (i as f64 * 0.7).sin(), (i * i % 5) as f64])
+            .collect();
+        let xwa: Vec<DMatrix<f64>> = groups
+            .iter()
+            .enumerate()
+            .map(|(j, g)| DMatrix::from_fn(p, g.len(), |r, c| ((r + 2 * c + j) as f64).cos()))
+            .collect();
+        let m_inv = DMatrix::from_row_slice(3, 3, &[2.0, 0.3, 0.1, 0.3, 1.5, -0.2, 0.1, -0.2, 1.0]);
+        let w = Work {
+            groups: &groups,
+            v: &v,
+            x: &x,
+            p,
+            sb: 0.02,
+            sw: 0.01,
+            xwa: &xwa,
+            m_inv: &m_inv,
+        };
+        let cs: Vec<Contrast> = [[0.0, 1.0, 0.0], [0.2, -0.4, 1.0]]
+            .iter()
+            .map(|c| w.contrast(&DVector::from_row_slice(c)))
+            .collect();
+        let m = groups.len();
+        let dense = |s: &Contrast, t: &Contrast| {
+            DMatrix::from_fn(m, m, |i, j| {
+                let d = if i == j {
+                    let g = &groups[i];
+                    let vi = DMatrix::from_fn(g.len(), g.len(), |a, b| {
+                        0.02 + if a == b { v[g[a]] + 0.01 } else { 0.0 }
+                    });
+                    s.q[i].dot(&(vi * &t.q[i]))
+                } else {
+                    0.0
+                };
+                d - s.a[i].dot(&(&m_inv * &t.a[j]))
+            })
+        };
+        for s in &cs {
+            for t in &cs {
+                let (gst, gss, gtt) = (dense(s, t), dense(s, s), dense(t, t));
+                let a: f64 = gst.iter().map(|x| x * x).sum();
+                let b: f64 = gss.iter().zip(gtt.iter()).map(|(x, y)| x * y).sum();
+                let (a2, b2) = (w.inner((s, t), (s, t)), w.inner((s, s), (t, t)));
+                assert!((a - a2).abs() < 1e-12 * a.abs().max(1.0), "{a} vs {a2}");
+                assert!((b - b2).abs() < 1e-12 * b.abs().max(1.0), "{b} vs {b2}");
+            }
+            let tr: f64 = (0..m).map(|i| dense(s, s)[(i, i)]).sum();
+            assert!((tr - w.trace(s)).abs() < 1e-12 * tr.abs().max(1.0));
+        }
     }
 }

@@ -163,7 +163,7 @@ pub fn fit(
         -0.5 * k as f64 * two_pi
     };
     let kh_scale = match options.inference {
-        Inference::Kh => Some(e.q / df),
+        Inference::Kh => Some(super::kh_scale(e.q, df, y, v, comp.between + comp.within)),
         Inference::Z => None,
     };
     let beta = &st.a * &e.beta;
@@ -188,7 +188,7 @@ pub fn fit(
                 .then(|| (y[i] - fitted[i]) / var_r.sqrt());
         }
     }
-    let fe = wls::fit_with(&data, 0.0, Want::SCORE).ok_or_else(singular)?;
+    let fe = wls::fit_with(&data, 0.0, Want::Q).ok_or_else(singular)?;
     let intervals = if with_ci {
         Some((
             profile_interval(&data, cl, restricted, true, &comp, options.level)?,
@@ -224,7 +224,7 @@ pub fn fit(
         fitted,
         std_resid,
         q_e: fe.q,
-        v_typical: df / fe.tr_p,
+        v_typical: df / wls::trace_p(&data, 0.0).ok_or_else(singular)?,
         log_likelihood: Some(comp.ll + constant),
         options,
     };

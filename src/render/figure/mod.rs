@@ -14,6 +14,7 @@ pub mod funnel;
 pub mod power;
 mod regions;
 pub mod scene;
+pub mod sensitivity;
 
 pub(crate) use axis::{Axis, Frame};
 pub use scene::{Align, Scene};
@@ -146,11 +147,23 @@ pub fn funnel_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Re
     scene::encode(&funnel::scene(report, opts)?, format, Flag::Funnel)
 }
 
+/// Renders the sensitivity plot of `report` (with `--small-study` or `--selection`).
+///
+/// # Errors
+/// [`Error::Usage`] when the report has no sensitivity view; drawing errors.
+pub fn sensitivity_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
+    scene::encode(
+        &sensitivity::scene(report, opts)?,
+        format,
+        Flag::SensitivityPlot,
+    )
+}
+
 /// One picture for a page (the HTML report): inline SVG markup and words
 /// describing it for readers who cannot see it.
 #[derive(Debug, Clone)]
 pub struct PageFigure {
-    /// Which plot ("forest", "bubble" or "funnel").
+    /// Which plot ("forest", "bubble", "funnel" or "sensitivity").
     pub kind: &'static str,
     /// A short title.
     pub title: String,
@@ -174,14 +187,27 @@ pub fn page_figures(
     let mut notes = Vec::new();
     let k = report.k;
     let measure = &report.measure.description;
-    figures.push(PageFigure {
-        kind: "forest",
-        title: "Forest plot".into(),
-        description: format!(
-            "Forest plot: each of the {k} studies' effects ({measure}) with its confidence interval,              marker size by weight, and the pooled result at the bottom."
-        ),
-        svg: scene::encode_inline(&forest::scene(report, opts)?)?,
-    });
+    // The page shows a forest plot when it can; with more studies than a
+    // forest plot holds, the page says so (the funnel shows them all)
+    // rather than failing in the name of --forest, which was not given.
+    if report.studies.len() > forest::MAX_STUDIES {
+        notes.push(format!(
+            "No forest plot: {} studies are more rows than a forest plot holds (at most {}); the \
+             funnel plot below shows every study.",
+            report.studies.len(),
+            forest::MAX_STUDIES
+        ));
+    } else {
+        figures.push(PageFigure {
+            kind: "forest",
+            title: "Forest plot".into(),
+            description: format!(
+                "Forest plot: each of the {k} studies' effects ({measure}) with its confidence \
+                 interval, marker size by weight, and the pooled result at the bottom."
+            ),
+            svg: scene::encode_inline(&forest::scene(report, opts)?)?,
+        });
+    }
     match bubble::scene(report, opts) {
         Ok(sc) => {
             let name = opts
@@ -201,7 +227,8 @@ pub fn page_figures(
                 kind: "bubble",
                 title: format!("Effect against {name}"),
                 description: format!(
-                    "Bubble plot: each study's effect against its value of {name}, circle area by                      weight, with the fitted meta-regression and its bands."
+                    "Bubble plot: each study's effect against its value of {name}, circle area by \
+                     weight, with the fitted meta-regression and its bands."
                 ),
                 svg: scene::encode_inline(&sc)?,
             });
@@ -223,6 +250,18 @@ pub fn page_figures(
         ),
         svg: scene::encode_inline(&funnel::scene(report, opts)?)?,
     });
+    if report.sensitivity.is_some() {
+        figures.push(PageFigure {
+            kind: "sensitivity",
+            title: "Estimates under each adjustment".into(),
+            description: "Sensitivity plot: the average effect and each moderator coefficient as \
+                          fitted and under each adjustment for small-study effects and selection, \
+                          each with its confidence interval; the fitted interval is a pale band \
+                          behind each panel."
+                .into(),
+            svg: scene::encode_inline(&sensitivity::scene(report, opts)?)?,
+        });
+    }
     Ok((figures, notes))
 }
 

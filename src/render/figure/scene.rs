@@ -134,7 +134,9 @@ impl Scene {
     ) {
         self.shapes.push(Shape::Text {
             at,
-            text: text.into(),
+            // Labels come from data files: characters XML does not allow
+            // would make the SVG unreadable.
+            text: crate::support::text::xml(&text.into()).into_owned(),
             size,
             color,
             align,

@@ -250,6 +250,40 @@ fn small_study(page: &mut Page, report: &FitReport, lv: &str) {
                     num(t.estimate_observed)
                 ),
             ),
+            (
+                "PET (effect on its standard error)",
+                format!(
+                    "intercept {} ({lv} CI {}, p {}), slope {} (SE {})",
+                    num(ss.pet.intercept.estimate),
+                    fmt::interval(ss.pet.intercept.ci.ci_low, ss.pet.intercept.ci.ci_high),
+                    fmt::p(ss.pet.intercept.test.p),
+                    num(ss.pet.slope.estimate),
+                    num(ss.pet.slope.se)
+                ),
+            ),
+            (
+                "PEESE (effect on its variance)",
+                format!(
+                    "intercept {} ({lv} CI {}, p {}), slope {} (SE {})",
+                    num(ss.peese.intercept.estimate),
+                    fmt::interval(ss.peese.intercept.ci.ci_low, ss.peese.intercept.ci.ci_high),
+                    fmt::p(ss.peese.intercept.test.p),
+                    num(ss.peese.slope.estimate),
+                    num(ss.peese.slope.se)
+                ),
+            ),
+            (
+                "Conditional PET-PEESE",
+                format!(
+                    "{} (the {} intercept)",
+                    num(ss.conditional.estimate.estimate),
+                    if ss.conditional.used == crate::result::PetPeeseChoice::Peese {
+                        "PEESE"
+                    } else {
+                        "PET"
+                    }
+                ),
+            ),
         ]);
         page.list(&ss.cautions);
     }

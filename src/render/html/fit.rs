@@ -6,14 +6,14 @@ use super::page::{Page, Provenance};
 use super::section::{always, body, contents, FitCtx, Section};
 use super::{
     data, dependence, diagnostics, estimates, figures, interpretation, moderators, question,
-    reproduce, studies,
+    reproduce, sensitivity, studies,
 };
 use crate::render::figure::PageFigure;
 use crate::result::FitReport;
 
 /// The sections after the contents, in order; the contents list the
 /// present ones.
-fn sections<'a>() -> [Section<FitCtx<'a>>; 10] {
+fn sections<'a>() -> [Section<FitCtx<'a>>; 11] {
     [
         Section {
             id: "data",
@@ -58,6 +58,12 @@ fn sections<'a>() -> [Section<FitCtx<'a>>; 10] {
             title: "Robustness checks",
             present: diagnostics::has_diagnostics,
             render: diagnostics::robustness,
+        },
+        Section {
+            id: "sensitivity",
+            title: "Publication bias: sensitivity",
+            present: sensitivity::has_sensitivity,
+            render: sensitivity::sensitivity,
         },
         Section {
             id: "plots",

@@ -27,6 +27,7 @@ mod plan;
 mod question;
 mod reproduce;
 mod section;
+mod sensitivity;
 mod sites;
 mod studies;
 

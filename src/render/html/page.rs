@@ -21,10 +21,11 @@ pub struct Provenance {
     pub seed: Option<u64>,
 }
 
-/// Escapes text for HTML element content and double-quoted attributes.
+/// Escapes text for HTML element content and double-quoted attributes;
+/// characters XML does not allow (control characters) are replaced.
 pub fn esc(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
-    for c in s.chars() {
+    for c in crate::support::text::xml(s).chars() {
         match c {
             '&' => out.push_str("&amp;"),
             '<' => out.push_str("&lt;"),
