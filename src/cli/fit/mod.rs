@@ -4,6 +4,7 @@
 //! checks its own flags, and [`FitArgs::check`] checks them in that order.
 
 pub(crate) mod groups;
+mod reading;
 
 use groups::{
     ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,
