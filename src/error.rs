@@ -17,15 +17,24 @@ pub struct CellProblem {
     pub value: String,
     /// What is wrong and how to fix it.
     pub message: String,
+    /// The cell's spreadsheet address (`extraction!D14`); None for CSV.
+    pub cell: Option<String>,
 }
 
 impl fmt::Display for CellProblem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(
-            f,
-            "line {}, column '{}' (value '{}'): {}",
-            self.line, self.column, self.value, self.message
-        )
+        match &self.cell {
+            Some(cell) => write!(
+                f,
+                "cell {cell}, column '{}' (value '{}'): {}",
+                self.column, self.value, self.message
+            ),
+            None => write!(
+                f,
+                "line {}, column '{}' (value '{}'): {}",
+                self.line, self.column, self.value, self.message
+            ),
+        }
     }
 }
 

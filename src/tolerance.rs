@@ -175,6 +175,21 @@ pub const CR2_EIGEN_FLOOR: f64 = 1e-12;
 /// components agree to about the square root of the objective's accuracy.
 pub const MULTILEVEL_REF_REL: f64 = 1e-5;
 
+/// Cross-check of a row's routes (issue 15): two complete routes of one
+/// `smd` row whose d values differ by more than this are reported as a
+/// warning (a typing error in the extraction sheet, or a t from another
+/// test). 0.05 in d is about the rounding of a t or a mean to two
+/// significant digits in small studies; a rule of thumb, not a published value.
+pub const ROUTE_CHECK_D: f64 = 0.05;
+
+/// The same cross-check for `r` rows, on the correlation scale (rule of thumb).
+pub const ROUTE_CHECK_R: f64 = 0.02;
+
+/// Confidence limits count as clearly asymmetric about their effect when
+/// the longer arm is more than this many times the shorter (limits rounded
+/// to two decimals stay well inside it; ratio-scale limits of an odds ratio
+/// of 0.6 (0.4, 0.9) give 1.5). A rule of thumb.
+pub const CI_ASYMMETRY: f64 = 1.25;
 /// The selection model's Newton search stops when the Newton decrement
 /// ∇ℓ'(−H)⁻¹∇ℓ/2 (the rise in ℓ a full step would still bring) falls below
 /// this; the estimates are then within about √(2·1e-12) ≈ 1.4e-6 standard

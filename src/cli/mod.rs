@@ -3,6 +3,7 @@
 //! target, the quoted command line, the progress bar). Each subcommand lives
 //! in its own module with its flags, their check and its run function.
 
+pub mod columns;
 pub mod completions;
 pub mod fit;
 pub mod manual;
@@ -40,6 +41,8 @@ pub enum Command {
     Sites(sites::SitesArgs),
     /// Print a SQL query that computes the per-site moments inside a database (for `sites --moments`).
     Sql(sql::SqlArgs),
+    /// List the columns each effect measure reads, route by route, with the sources of the formulas.
+    Columns(columns::ColumnsArgs),
     /// Print a completion script for a shell (bash, zsh, fish, powershell, elvish).
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff) of pondus or of one subcommand, or write every page with --out-dir.
@@ -57,6 +60,7 @@ pub fn run(cli: &Cli) -> Result<()> {
         Command::Plan(args) => plan::run_plan(&args.check()?),
         Command::Sites(args) => sites::run_sites(&args.check()?),
         Command::Sql(args) => sql::run_sql(args),
+        Command::Columns(args) => columns::run_columns(args),
         Command::Completions(args) => completions::run_completions(args),
         Command::Manual(args) => manual::run_manual(args),
     }

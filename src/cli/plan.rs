@@ -75,6 +75,14 @@ pub struct PlanArgs {
     /// File of planned moderator values, one number per line (a first non-numeric line is a header); repeated in order when k differs.
     #[arg(help_heading = "Planned design", long, value_name = "FILE")]
     pub moderator_values: Option<PathBuf>,
+    /// The sheet of a spreadsheet --moderator-values file (its first column is read) [default: the first sheet].
+    #[arg(
+        help_heading = "Planned design",
+        long,
+        value_name = "NAME",
+        requires = "moderator_values"
+    )]
+    pub sheet: Option<String>,
     /// Moderator coefficient to detect, on the analysis scale (Fisher z for r, g for smd).
     #[arg(
         help_heading = "Planned design",
@@ -420,7 +428,9 @@ impl PlanArgs {
                 finite("--share", share, share > 0.0 && share < 1.0, "give a share between 0 and 1, e.g. --share 0.5")?;
                 ModeratorDesign::TwoLevel { share }
             }
-            (None, None, Some(path)) => ModeratorDesign::Values(read_moderator_values(path)?),
+            (None, None, Some(path)) => {
+                ModeratorDesign::Values(read_moderator_values(path, self.sheet.as_deref())?)
+            }
             _ => {
                 return Err(Error::usage(
                     "--moderator-sd",
@@ -491,20 +501,34 @@ impl PlanArgs {
 }
 
 /// Reads planned moderator values: one number per line, blank lines
-/// skipped, a first line that is not a number taken as a header.
-fn read_moderator_values(path: &std::path::Path) -> Result<Vec<f64>> {
+/// skipped, a first line that is not a number taken as a header; from a
+/// spreadsheet (by its name's ending), the first column of `sheet`.
+fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<Vec<f64>> {
     const FLAG: &str = "--moderator-values";
-    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
-        path: path.display().to_string(),
-        action: "reading",
-        source,
-    })?;
+    let name = path.display().to_string();
+    let cells: Vec<(String, String)> = if pondus::input::sheet::is_spreadsheet(&name) {
+        let bytes = pondus::input::Source::File(path.to_path_buf()).read_all()?;
+        pondus::input::sheet::first_column(&name, &bytes, sheet)?
+            .into_iter()
+            .map(|(addr, text)| (format!("cell {addr}"), text))
+            .collect()
+    } else {
+        let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
+            path: name.clone(),
+            action: "reading",
+            source,
+        })?;
+        text.lines()
+            .enumerate()
+            .map(|(i, line)| {
+                let cell = line.trim().trim_start_matches('\u{feff}').trim();
+                (format!("line {}", i + 1), cell.to_string())
+            })
+            .filter(|(_, c)| !c.is_empty())
+            .collect()
+    };
     let mut values = Vec::new();
-    for (i, line) in text.lines().enumerate() {
-        let cell = line.trim().trim_start_matches('\u{feff}').trim();
-        if cell.is_empty() {
-            continue;
-        }
+    for (i, (place, cell)) in cells.iter().enumerate() {
         match cell.parse::<f64>() {
             Ok(v) if v.is_finite() => values.push(v),
             _ if i == 0 => {}
@@ -512,9 +536,7 @@ fn read_moderator_values(path: &std::path::Path) -> Result<Vec<f64>> {
                 return Err(Error::usage(
                     FLAG,
                     format!(
-                        "{}, line {}: '{cell}' is not a finite number; give one number per line",
-                        path.display(),
-                        i + 1
+                        "{name}, {place}: '{cell}' is not a finite number; give one number per line"
                     ),
                 ))
             }

@@ -56,9 +56,17 @@ pub struct SitesArgs {
     /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
     #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
     pub moments: Option<PathBuf>,
-    /// CSV file of site characteristics, one row per site, joined by site id.
+    /// CSV file (or .xlsx, .xlsm, .xls, .ods spreadsheet) of site characteristics, one row per site, joined by site id.
     #[arg(help_heading = "Site characteristics", long, value_name = "SITES.csv")]
     pub info: Option<PathBuf>,
+    /// The sheet of a spreadsheet --info file [default: the first sheet].
+    #[arg(
+        help_heading = "Site characteristics",
+        long,
+        value_name = "NAME",
+        requires = "info"
+    )]
+    pub sheet: Option<String>,
     /// Id column of the --info table [default: the --site column's name, or 'site' with --moments].
     #[arg(
         help_heading = "Site characteristics",
@@ -130,6 +138,8 @@ pub struct SitesRun {
     pub settings: pondus::sites::SitesSettings,
     /// Site table and its id column.
     pub info: Option<(PathBuf, String)>,
+    /// The sheet of a spreadsheet site table (None: the first).
+    pub info_sheet: Option<String>,
     /// Effects file.
     pub out: Option<Target>,
     /// JSON output.
@@ -251,6 +261,7 @@ impl SitesArgs {
                 center_within: self.center_within,
             },
             info: self.info.clone().map(|p| (p, info_key)),
+            info_sheet: self.sheet.clone(),
             out,
             json,
             fit: self.fit.then(|| {
@@ -300,7 +311,8 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     };
     if let Some((path, key)) = &run.info {
         let src = Source::File(path.clone());
-        sites::join::join(&mut report, &src.name(), &src.read_all()?, key)?;
+        let sheet = run.info_sheet.as_deref();
+        sites::join::join(&mut report, &src.name(), &src.read_all()?, key, sheet)?;
     }
     if let Some((options, chars)) = &run.fit {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);

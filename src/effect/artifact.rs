@@ -21,6 +21,7 @@
 //! variance of x is the same in both groups: (1 − r_xx) s² = (1 − r_xx,a) S²).
 //! Without `--range-ratio` step (2) is skipped and r_xx,a = r_xx.
 
+use super::route::Route;
 use super::{shorten, EffectColumn, Measure, RowEffect, RowProblem};
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
@@ -273,6 +274,9 @@ pub fn apply(
                             column: header.clone(),
                             value: shorten(text),
                             message: format!("{} for the {role} ({flag})", invalid_hint(text)),
+                            cell: table
+                                .column(first + j)
+                                .and_then(|c| table.cell_address(i, c)),
                         });
                     }
                     bad = true;
@@ -293,7 +297,21 @@ pub fn apply(
             effects.rows[i] = RowEffect::Excluded(reason);
             continue;
         }
-        let (Cell::Value(r), Cell::Value(n)) = (number(r_col, i), number(n_col, i)) else {
+        // The observed r: the r cell for rows reporting r, else the r of
+        // the row's effect (t or p routes, which also have n).
+        let (from, check, y) = match &effects.rows[i] {
+            RowEffect::Value { from, check, y, .. } => (*from, check.clone(), *y),
+            RowEffect::Excluded(_) => continue,
+        };
+        let r = match (from, number(r_col, i)) {
+            (Route::R, Cell::Value(r)) => r,
+            (Route::R, _) => continue,
+            _ => y.tanh(),
+        };
+        let Cell::Value(n) = number(n_col, i) else {
+            effects.rows[i] = RowEffect::Excluded(format!(
+                "artifact corrections need n (this row's r comes from route {from})"
+            ));
             continue;
         };
         match correct(r, n, a) {
@@ -302,6 +320,8 @@ pub fn apply(
                     y: c.r,
                     v: c.v,
                     note: None,
+                    from,
+                    check,
                 };
                 *slot = Some(c);
             }
@@ -319,9 +339,15 @@ pub fn apply(
                         (first + j, want.name())
                     }
                 };
-                let (column, value) = table
+                let (column, value, cell) = table
                     .column(col)
-                    .map(|c| (c.header.clone(), shorten(c.get(i))))
+                    .map(|c| {
+                        (
+                            c.header.clone(),
+                            shorten(c.get(i)),
+                            table.cell_address(i, c),
+                        )
+                    })
                     .unwrap_or_default();
                 total += 1;
                 if problems.len() < CellProblems::MAX_LISTED {
@@ -334,6 +360,7 @@ pub fn apply(
                         } else {
                             format!("{} ({flag})", p.message)
                         },
+                        cell,
                     });
                 }
                 effects.rows[i] = RowEffect::Excluded("invalid value".into());

@@ -1,5 +1,6 @@
 //! Two-group event counts: log odds ratio, log risk ratio, risk difference.
 
+use super::route::{EffectReading, Route};
 use super::{first_missing, RowEffect, RowProblem, RowResult, RowValues};
 
 /// Which 2×2 measure.
@@ -141,9 +142,100 @@ pub(crate) fn row(row: RowValues<'_>, kind: Kind) -> RowResult {
             y,
             v,
             note: corrected.then(|| "zero cell: 0.5 added to each cell".to_string()),
+            from: Route::Counts,
+            check: None,
         },
         Table2x2::Excluded(why) => RowEffect::Excluded(why),
     })
+}
+
+/// Computes one `log-or` or `log-rr` row: the counts; or the ratio with
+/// its confidence limits; or the log ratio with its SE (first complete wins).
+///
+/// # Formula
+/// Ratio with limits at level L (`--ci-level`): y = ln(ratio),
+/// SE = (ln hi − ln lo)/(2z), z = Φ⁻¹(1 − (1 − L)/2) (the normal-theory
+/// interval of the log ratio solved for its SE; Cochrane Handbook,
+/// section 6.3.1, from memory). Log ratio with SE: taken as given.
+///
+/// # Errors
+/// A [`RowProblem`] for a ratio or limit ≤ 0, limits in the wrong order,
+/// a ratio outside its limits, or an SE ≤ 0.
+pub(crate) fn ratio_row(row: RowValues<'_>, kind: Kind, reading: &EffectReading) -> RowResult {
+    let counts = ["treat_events", "treat_n", "ctrl_events", "ctrl_n"];
+    let (ratio, log) = match kind {
+        Kind::LogOddsRatio => ("or", "log_or"),
+        _ => ("rr", "log_rr"),
+    };
+    if first_missing(row, &counts).is_none() {
+        return self::row(row, kind);
+    }
+    if let (Some(r), Some(lo), Some(hi)) = (row.get(ratio), row.get("ci_low"), row.get("ci_high")) {
+        for (role, x) in [(ratio, r), ("ci_low", lo), ("ci_high", hi)] {
+            if x <= 0.0 {
+                let role: &'static str = if role == ratio {
+                    ratio_role(kind)
+                } else {
+                    role
+                };
+                return Err(RowProblem::new(
+                    role,
+                    "a ratio and its limits must be greater than 0 (they are read on the ratio \
+                     scale; give log ratios in the log column with their se)",
+                ));
+            }
+        }
+        if hi <= lo {
+            return Err(RowProblem::new(
+                "ci_high",
+                "the upper CI limit must be greater than the lower one",
+            ));
+        }
+        if r < lo || r > hi {
+            return Err(RowProblem::new(
+                ratio_role(kind),
+                "the ratio lies outside its own confidence interval; check the cells",
+            ));
+        }
+        let se = (hi.ln() - lo.ln()) / (2.0 * reading.z());
+        return Ok(RowEffect::Value {
+            y: r.ln(),
+            v: se * se,
+            note: None,
+            from: Route::RatioCi,
+            check: None,
+        });
+    }
+    if let (Some(y), Some(se)) = (row.get(log), row.get("se")) {
+        if se <= 0.0 {
+            return Err(RowProblem::new(
+                "se",
+                "a standard error must be greater than 0",
+            ));
+        }
+        return Ok(RowEffect::Value {
+            y,
+            v: se * se,
+            note: None,
+            from: Route::LogSe,
+            check: None,
+        });
+    }
+    let routes = super::route::catalogue(match kind {
+        Kind::LogOddsRatio => super::Measure::LogOr,
+        _ => super::Measure::LogRr,
+    });
+    Ok(RowEffect::Excluded(super::closest_missing(
+        row,
+        routes.iter(),
+    )))
+}
+
+fn ratio_role(kind: Kind) -> &'static str {
+    match kind {
+        Kind::LogOddsRatio => "or",
+        _ => "rr",
+    }
 }
 
 #[cfg(test)]

@@ -1,24 +1,57 @@
 //! Precomputed effects and unstandardised slopes.
 
+use super::route::{EffectReading, Route};
 use super::{first_missing, RowEffect, RowProblem, RowResult, RowValues};
+use crate::support::flag::Flag;
+use crate::support::format;
+use crate::tolerance::CI_ASYMMETRY;
 
 /// Two-sided 97.5% normal quantile, used to turn a 95% CI into an SE:
 /// se = (ci_high − ci_low) / (2 · 1.959963984540054).
 pub const Z_975: f64 = 1.959_963_984_540_054;
 
-/// A precomputed effect. Precision from `variance`, else `se` (v = se²),
-/// else a 95% CI: v = ((ci_high − ci_low) / (2 · z₀.₉₇₅))² with z₀.₉₇₅ =
-/// 1.959963984540054, the first that
-/// the row has (Cochrane Handbook, section 6.3.1, for the CI route).
+/// A precomputed effect with its variance, SE or confidence limits (in that
+/// order of preference).
+///
+/// # Formula
+/// v = variance; or v = se²; or, from limits at level L (`--ci-level`),
+/// SE = (hi − lo)/(2z), z = Φ⁻¹(1 − (1 − L)/2) (the normal-theory interval
+/// y ± z·SE solved for SE; Cochrane Handbook, section 6.3.1). With `--effect-scale log` the effect and limits
+/// are ratios: y = ln(effect), lo = ln(ci_low), hi = ln(ci_high) before the
+/// same step; a variance or SE given instead is taken as that of ln(effect).
 ///
 /// # Errors
-/// A non-positive variance or SE, a CI whose ends are reversed or equal, or
-/// an effect outside its own CI (which usually means the CI is on another scale).
-pub fn precomputed(row: RowValues<'_>) -> RowResult {
-    let Some(y) = row.get("effect") else {
+/// A [`RowProblem`] for a variance or SE ≤ 0, limits in the wrong order, an
+/// effect outside its own limits, or (log scale) a ratio ≤ 0.
+pub fn precomputed(row: RowValues<'_>, reading: &EffectReading) -> RowResult {
+    let Some(raw) = row.get("effect") else {
         return Ok(RowEffect::Excluded("missing effect".into()));
     };
-    let v = if let Some(v) = row.get("variance") {
+    let log = reading.log_scale;
+    let positive = |role: &'static str, x: f64| {
+        if x > 0.0 {
+            Ok(x.ln())
+        } else {
+            Err(RowProblem::new(
+                role,
+                format!(
+                    "a ratio must be greater than 0 (with {} log the effects and limits are ratios)",
+                    Flag::EffectScale
+                ),
+            ))
+        }
+    };
+    let y = if log { positive("effect", raw)? } else { raw };
+    let value = |v: f64, from: Route, check: Option<String>| {
+        Ok(RowEffect::Value {
+            y,
+            v,
+            note: None,
+            from,
+            check,
+        })
+    };
+    if let Some(v) = row.get("variance") {
         if v <= 0.0 {
             return Err(RowProblem::new(
                 "variance",
@@ -38,37 +71,74 @@ pub fn precomputed(row: RowValues<'_>) -> RowResult {
                 ),
             ));
         }
-        v
-    } else if let Some(se) = row.get("se") {
+        return value(v, Route::Variance, None);
+    }
+    if let Some(se) = row.get("se") {
         if se <= 0.0 {
             return Err(RowProblem::new(
                 "se",
                 "a standard error must be greater than 0",
             ));
         }
-        se * se
-    } else if let (Some(lo), Some(hi)) = (row.get("ci_low"), row.get("ci_high")) {
-        if hi <= lo {
-            return Err(RowProblem::new(
-                "ci_high",
-                "the upper CI limit must be greater than the lower one",
-            ));
-        }
-        if y < lo || y > hi {
-            return Err(RowProblem::new(
-                "effect",
-                "the effect lies outside its own confidence interval; give the CI on the same \
-                 scale as the effect (for ratios, the logarithms of the limits)",
-            ));
-        }
-        let se = (hi - lo) / (2.0 * Z_975);
-        se * se
-    } else {
+        return value(se * se, Route::Se, None);
+    }
+    let (Some(lo), Some(hi)) = (row.get("ci_low"), row.get("ci_high")) else {
         return Ok(RowEffect::Excluded(
-            "missing precision (variance, se or a 95% CI)".into(),
+            "missing precision (variance, se or a confidence interval)".into(),
         ));
     };
-    Ok(RowEffect::Value { y, v, note: None })
+    let (lo, hi) = if log {
+        (positive("ci_low", lo)?, positive("ci_high", hi)?)
+    } else {
+        (lo, hi)
+    };
+    if hi <= lo {
+        return Err(RowProblem::new(
+            "ci_high",
+            "the upper CI limit must be greater than the lower one",
+        ));
+    }
+    if y < lo || y > hi {
+        return Err(RowProblem::new(
+            "effect",
+            format!(
+                "the effect lies outside its own confidence interval; give the CI on the same \
+                 scale as the effect (for ratios, the logarithms of the limits, or the ratios with \
+                 {} log)",
+                Flag::EffectScale
+            ),
+        ));
+    }
+    let se = (hi - lo) / (2.0 * reading.z());
+    let check = (!log && asymmetric(y, lo, hi)).then(|| asymmetry_warning(y, lo, hi));
+    value(se * se, Route::Ci, check)
+}
+
+/// Whether limits are clearly asymmetric about their effect: the longer arm
+/// more than [`CI_ASYMMETRY`] times the shorter.
+pub fn asymmetric(y: f64, lo: f64, hi: f64) -> bool {
+    let (a, b) = (y - lo, hi - y);
+    let (short, long) = if a < b { (a, b) } else { (b, a) };
+    long > CI_ASYMMETRY * short
+}
+
+fn asymmetry_warning(y: f64, lo: f64, hi: f64) -> String {
+    let mut w = format!(
+        "its limits ({}, {}) are clearly asymmetric about the effect {}",
+        format::short(lo),
+        format::short(hi),
+        format::short(y)
+    );
+    if lo > 0.0 && !asymmetric(y.ln(), lo.ln(), hi.ln()) {
+        w.push_str(&format!(
+            "; they are symmetric on the log scale, as for a ratio: if the effects are ratios, \
+             give {} log",
+            Flag::EffectScale
+        ));
+    } else {
+        w.push_str("; a symmetric interval was assumed");
+    }
+    w
 }
 
 /// An unstandardised slope with its SE: y = slope, v = se².
@@ -93,6 +163,8 @@ pub fn slope(row: RowValues<'_>) -> RowResult {
         y: b,
         v: se * se,
         note: None,
+        from: Route::Se,
+        check: None,
     })
 }
 
@@ -102,7 +174,10 @@ mod tests {
     use crate::effect::{Measure, RowValues};
 
     fn row(values: &[Option<f64>]) -> RowResult {
-        precomputed(RowValues::new(Measure::Effect.roles(), values))
+        precomputed(
+            RowValues::new(Measure::Effect.roles(), values),
+            &EffectReading::default(),
+        )
     }
 
     #[test]
@@ -115,7 +190,9 @@ mod tests {
             RowEffect::Value {
                 y: 0.3,
                 v: 0.04,
-                note: None
+                note: None,
+                from: Route::Variance,
+                check: None
             }
         );
         let v = row(&[Some(0.3), None, Some(0.2), None, None]).unwrap();

@@ -8,12 +8,15 @@ pub mod artifact;
 pub mod binary;
 pub mod correlation;
 pub mod generic;
+pub mod route;
 pub mod smd;
+pub mod smd_routes;
 
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{ColumnRequest, Table};
 use crate::support::flag::Flag;
+use route::{EffectReading, Route, RouteInfo};
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -93,10 +96,41 @@ const EFFECT_ROLES: &[Role] = &[
     role("effect", "the effect estimate on the analysis scale"),
     alt("variance", "its sampling variance"),
     alt("se", "its standard error"),
-    alt("ci_low", "the lower end of its 95% confidence interval"),
-    alt("ci_high", "the upper end of its 95% confidence interval"),
+    alt("ci_low", "the lower end of its confidence interval"),
+    alt("ci_high", "the upper end of its confidence interval"),
 ];
-const R_ROLES: &[Role] = &[role("r", "Pearson correlation"), role("n", "sample size")];
+/// The correlation roles: `r` and `n` first (the artifact corrections read
+/// them by position), then the other routes, then the group comparisons
+/// that `--convert` turns into r.
+const R_ROLES: &[Role] = &[
+    alt("r", "Pearson correlation"),
+    alt("n", "sample size"),
+    alt(
+        "t",
+        "t statistic of the correlation or of a simple regression slope",
+    ),
+    alt("p", "two-sided p-value of that t test"),
+    alt("sign", "direction of the effect, 1 or -1"),
+    alt("treat_mean", "mean of the treated group"),
+    alt("treat_sd", "SD of the treated group"),
+    alt("treat_n", "size of the treated group"),
+    alt("ctrl_mean", "mean of the control group"),
+    alt("ctrl_sd", "SD of the control group"),
+    alt("ctrl_n", "size of the control group"),
+    alt("treat_se", "standard error of the treated group's mean"),
+    alt("ctrl_se", "standard error of the control group's mean"),
+    alt("f", "F statistic with one numerator df"),
+    alt("treat_median", "median of the treated group"),
+    alt("treat_q1", "first quartile of the treated group"),
+    alt("treat_q3", "third quartile of the treated group"),
+    alt("ctrl_median", "median of the control group"),
+    alt("ctrl_q1", "first quartile of the control group"),
+    alt("ctrl_q3", "third quartile of the control group"),
+    alt("treat_min", "minimum of the treated group"),
+    alt("treat_max", "maximum of the treated group"),
+    alt("ctrl_min", "minimum of the control group"),
+    alt("ctrl_max", "maximum of the control group"),
+];
 const PARTIAL_ROLES: &[Role] = &[
     role("t", "t statistic of the focal predictor"),
     role("n", "sample size"),
@@ -106,19 +140,72 @@ const SLOPE_ROLES: &[Role] = &[
     role("slope", "unstandardised regression slope"),
     role("se", "its standard error"),
 ];
+/// The group-comparison roles: today's means route first, then the other
+/// routes, then the rows `--convert` can use.
 const SMD_ROLES: &[Role] = &[
-    role("treat_mean", "mean of the treated group"),
-    role("treat_sd", "SD of the treated group"),
-    role("treat_n", "size of the treated group"),
-    role("ctrl_mean", "mean of the control group"),
-    role("ctrl_sd", "SD of the control group"),
-    role("ctrl_n", "size of the control group"),
+    alt("treat_mean", "mean of the treated group"),
+    alt("treat_sd", "SD of the treated group"),
+    alt("treat_n", "size of the treated group"),
+    alt("ctrl_mean", "mean of the control group"),
+    alt("ctrl_sd", "SD of the control group"),
+    alt("ctrl_n", "size of the control group"),
+    alt("treat_se", "standard error of the treated group's mean"),
+    alt("ctrl_se", "standard error of the control group's mean"),
+    alt(
+        "t",
+        "independent-groups t statistic, treatment minus control",
+    ),
+    alt("f", "F statistic with one numerator df"),
+    alt("sign", "direction of the difference, 1 or -1"),
+    alt("p", "two-sided p-value of the t test"),
+    alt("treat_median", "median of the treated group"),
+    alt("treat_q1", "first quartile of the treated group"),
+    alt("treat_q3", "third quartile of the treated group"),
+    alt("ctrl_median", "median of the control group"),
+    alt("ctrl_q1", "first quartile of the control group"),
+    alt("ctrl_q3", "third quartile of the control group"),
+    alt("treat_min", "minimum of the treated group"),
+    alt("treat_max", "maximum of the treated group"),
+    alt("ctrl_min", "minimum of the control group"),
+    alt("ctrl_max", "maximum of the control group"),
+    alt("r", "Pearson correlation (converted to d on request)"),
+    alt("n", "sample size of the correlation (converted on request)"),
+    alt(
+        "treat_events",
+        "events in the treated group (converted to d on request)",
+    ),
+    alt(
+        "ctrl_events",
+        "events in the control group (converted to d on request)",
+    ),
 ];
 const BINARY_ROLES: &[Role] = &[
     role("treat_events", "events in the treated group"),
     role("treat_n", "size of the treated group"),
     role("ctrl_events", "events in the control group"),
     role("ctrl_n", "size of the control group"),
+];
+const LOG_OR_ROLES: &[Role] = &[
+    alt("treat_events", "events in the treated group"),
+    alt("treat_n", "size of the treated group"),
+    alt("ctrl_events", "events in the control group"),
+    alt("ctrl_n", "size of the control group"),
+    alt("or", "odds ratio (ratio scale)"),
+    alt("ci_low", "lower confidence limit of the ratio"),
+    alt("ci_high", "upper confidence limit of the ratio"),
+    alt("log_or", "log odds ratio"),
+    alt("se", "standard error of the log ratio"),
+];
+const LOG_RR_ROLES: &[Role] = &[
+    alt("treat_events", "events in the treated group"),
+    alt("treat_n", "size of the treated group"),
+    alt("ctrl_events", "events in the control group"),
+    alt("ctrl_n", "size of the control group"),
+    alt("rr", "risk ratio (ratio scale)"),
+    alt("ci_low", "lower confidence limit of the ratio"),
+    alt("ci_high", "upper confidence limit of the ratio"),
+    alt("log_rr", "log risk ratio"),
+    alt("se", "standard error of the log ratio"),
 ];
 
 impl Measure {
@@ -170,7 +257,9 @@ impl Measure {
             Measure::PartialR => PARTIAL_ROLES,
             Measure::Slope => SLOPE_ROLES,
             Measure::Smd => SMD_ROLES,
-            Measure::LogOr | Measure::LogRr | Measure::RiskDiff => BINARY_ROLES,
+            Measure::LogOr => LOG_OR_ROLES,
+            Measure::LogRr => LOG_RR_ROLES,
+            Measure::RiskDiff => BINARY_ROLES,
         }
     }
 
@@ -206,6 +295,11 @@ pub enum RowEffect {
         v: f64,
         /// An adjustment that was made, in words (for example a zero-cell correction).
         note: Option<String>,
+        /// The route the effect was computed from.
+        from: Route,
+        /// A disagreement between this row's routes, or limits clearly
+        /// asymmetric about the effect, in words (a warning).
+        check: Option<String>,
     },
     /// The row cannot give an effect; the reason in words.
     Excluded(String),
@@ -238,12 +332,32 @@ pub type RowResult = std::result::Result<RowEffect, RowProblem>;
 pub struct RowValues<'a> {
     roles: &'a [Role],
     values: &'a [Option<f64>],
+    inequality: Option<&'a str>,
 }
 
 impl<'a> RowValues<'a> {
     /// Builds the view; `values` has one entry per role (None: missing or column absent).
     pub fn new(roles: &'a [Role], values: &'a [Option<f64>]) -> Self {
-        RowValues { roles, values }
+        RowValues {
+            roles,
+            values,
+            inequality: None,
+        }
+    }
+
+    /// The same view with a p-value written as an inequality (`< 0.05`),
+    /// which is kept as text: it cannot give an effect, and the row is
+    /// excluded with that reason unless another route is complete.
+    pub fn with_inequality(self, text: Option<&'a str>) -> Self {
+        RowValues {
+            inequality: text,
+            ..self
+        }
+    }
+
+    /// The p-value cell's text when it was written as an inequality.
+    pub fn inequality(&self) -> Option<&'a str> {
+        self.inequality
     }
 
     /// The value of role `name`, if present.
@@ -255,17 +369,45 @@ impl<'a> RowValues<'a> {
     }
 }
 
-/// Computes one row's effect for `measure` from its role values.
-pub fn compute_row(measure: Measure, row: RowValues<'_>) -> RowResult {
+/// Computes one row's effect for `measure` from its role values, through
+/// the first usable route of [`route::catalogue`].
+pub fn compute_row(measure: Measure, reading: &EffectReading, row: RowValues<'_>) -> RowResult {
     match measure {
-        Measure::Effect => generic::precomputed(row),
+        Measure::Effect => generic::precomputed(row, reading),
         Measure::Slope => generic::slope(row),
-        Measure::R => correlation::fisher_z_row(row),
+        Measure::R => correlation::r_row(row, reading),
         Measure::PartialR => correlation::partial_row(row),
-        Measure::Smd => smd::hedges_g_row(row),
-        Measure::LogOr => binary::row(row, binary::Kind::LogOddsRatio),
-        Measure::LogRr => binary::row(row, binary::Kind::LogRiskRatio),
+        Measure::Smd => smd_routes::smd_row(row, reading),
+        Measure::LogOr => binary::ratio_row(row, binary::Kind::LogOddsRatio, reading),
+        Measure::LogRr => binary::ratio_row(row, binary::Kind::LogRiskRatio, reading),
         Measure::RiskDiff => binary::row(row, binary::Kind::RiskDifference),
+    }
+}
+
+/// The exclusion reason of a row with no complete route: `missing X`, X
+/// the first absent value of the route with the fewest absent values
+/// (the earlier route on a tie).
+pub(crate) fn closest_missing<'a>(
+    row: RowValues<'_>,
+    routes: impl Iterator<Item = &'a RouteInfo>,
+) -> String {
+    let mut best: Option<(usize, &str)> = None;
+    for info in routes {
+        let absent: Vec<&str> = info
+            .columns
+            .iter()
+            .copied()
+            .filter(|c| !c.starts_with('(') && row.get(c).is_none())
+            .collect();
+        if let Some(first) = absent.first() {
+            if best.is_none_or(|(n, _)| absent.len() < n) {
+                best = Some((absent.len(), first));
+            }
+        }
+    }
+    match best {
+        Some((_, m)) => format!("missing {m}"),
+        None => "no complete set of columns".into(),
     }
 }
 
@@ -278,6 +420,8 @@ pub(crate) fn first_missing(row: RowValues<'_>, names: &[&'static str]) -> Optio
 #[derive(Debug, Clone, Default)]
 pub struct ColumnMap {
     overrides: BTreeMap<String, String>,
+    reading: EffectReading,
+    sheet: Option<String>,
 }
 
 impl ColumnMap {
@@ -299,7 +443,33 @@ impl ColumnMap {
                 ));
             }
         }
-        Ok(ColumnMap { overrides })
+        Ok(ColumnMap {
+            overrides,
+            reading: EffectReading::default(),
+            sheet: None,
+        })
+    }
+
+    /// The same map reading sheet `sheet` of a spreadsheet (`--sheet`; the
+    /// first sheet when None; ignored for CSV).
+    pub fn with_sheet(self, sheet: Option<String>) -> Self {
+        ColumnMap { sheet, ..self }
+    }
+
+    /// The sheet to read from a spreadsheet (None: the first).
+    pub fn sheet(&self) -> Option<&str> {
+        self.sheet.as_deref()
+    }
+
+    /// The same map reading the columns as `reading` says (`--ci-level`,
+    /// `--effect-scale`, `--convert`).
+    pub fn with_reading(self, reading: EffectReading) -> Self {
+        ColumnMap { reading, ..self }
+    }
+
+    /// How the effect columns are read.
+    pub fn reading(&self) -> &EffectReading {
+        &self.reading
     }
 
     /// The header used for `role`.
@@ -355,28 +525,7 @@ pub fn compute(
     first: usize,
 ) -> Result<EffectColumn> {
     let roles = measure.roles();
-    if measure == Measure::Effect {
-        let has = |name: &str| {
-            let i = roles.iter().position(|r| r.name == name).unwrap_or(0);
-            table.column(first + i).is_some()
-        };
-        if !(has("variance") || has("se") || (has("ci_low") && has("ci_high"))) {
-            return Err(Error::MissingColumn {
-                source_name: table.source.clone(),
-                column: map.header("variance"),
-                purpose: format!("the precision of each effect with {} effect", Flag::Measure),
-                available: table.headers.join(", "),
-                hint: format!(
-                    "Give one of the columns '{}', '{}', or '{}' with '{}' (95% CI), or map them with {}.",
-                    map.header("variance"),
-                    map.header("se"),
-                    map.header("ci_low"),
-                    map.header("ci_high"),
-                    Flag::Col
-                ),
-            });
-        }
-    }
+    check_route_columns(measure, map, table, first)?;
     let mut rows = Vec::with_capacity(table.len());
     let mut problems = Vec::new();
     let mut total = 0usize;
@@ -389,6 +538,7 @@ pub fn compute(
     };
     for row in 0..table.len() {
         let mut bad = false;
+        let mut inequality = None;
         for (j, r) in roles.iter().enumerate() {
             values[j] = None;
             let Some(col) = table.column(first + j) else {
@@ -398,6 +548,7 @@ pub fn compute(
             match parse_cell(text) {
                 Cell::Missing => {}
                 Cell::Value(x) => values[j] = Some(x),
+                Cell::Invalid if r.name == "p" && is_inequality(text) => inequality = Some(text),
                 Cell::Invalid => {
                     bad = true;
                     push_problem(
@@ -406,6 +557,7 @@ pub fn compute(
                             column: col.header.clone(),
                             value: shorten(text),
                             message: format!("{} for {}", invalid_hint(text), r.name),
+                            cell: table.cell_address(row, col),
                         },
                         &mut total,
                     );
@@ -416,13 +568,18 @@ pub fn compute(
             rows.push(RowEffect::Excluded("invalid value".into()));
             continue;
         }
-        match compute_row(measure, RowValues::new(roles, &values)) {
+        let view = RowValues::new(roles, &values).with_inequality(inequality);
+        match compute_row(measure, map.reading(), view) {
             Ok(e) => rows.push(e),
             Err(p) => {
                 let j = roles.iter().position(|r| r.name == p.role).unwrap_or(0);
-                let (column, value) = match table.column(first + j) {
-                    Some(c) => (c.header.clone(), shorten(c.get(row))),
-                    None => (map.header(p.role), String::new()),
+                let (column, value, cell) = match table.column(first + j) {
+                    Some(c) => (
+                        c.header.clone(),
+                        shorten(c.get(row)),
+                        table.cell_address(row, c),
+                    ),
+                    None => (map.header(p.role), String::new(), None),
                 };
                 push_problem(
                     CellProblem {
@@ -430,6 +587,7 @@ pub fn compute(
                         column,
                         value,
                         message: p.message,
+                        cell,
                     },
                     &mut total,
                 );
@@ -445,6 +603,109 @@ pub fn compute(
         }));
     }
     Ok(EffectColumn { rows })
+}
+
+/// Whether a cell's text is a p-value written as an inequality
+/// (`< 0.05`, `<.001`, `> 0.1`, `≤ 0.01`, `p < 0.05`).
+pub(crate) fn is_inequality(text: &str) -> bool {
+    let t = text.trim();
+    let t = t
+        .strip_prefix('p')
+        .or_else(|| t.strip_prefix('P'))
+        .unwrap_or(t)
+        .trim_start();
+    let Some(c) = t.chars().next() else {
+        return false;
+    };
+    if !matches!(c, '<' | '>' | '≤' | '≥') {
+        return false;
+    }
+    let rest = t[c.len_utf8()..].trim_start_matches('=').trim();
+    rest.parse::<f64>().is_ok()
+}
+
+/// Refuses a table in which no route of the measure has all its columns.
+///
+/// # Errors
+/// [`Error::MissingColumn`] naming the first absent column of the measure's
+/// first route, with the other routes in the hint.
+fn check_route_columns(
+    measure: Measure,
+    map: &ColumnMap,
+    table: &Table,
+    first: usize,
+) -> Result<()> {
+    let roles = measure.roles();
+    let has = |name: &str| {
+        roles
+            .iter()
+            .position(|r| r.name == name)
+            .is_some_and(|i| table.column(first + i).is_some())
+    };
+    if measure == Measure::Effect {
+        if !(has("variance") || has("se") || (has("ci_low") && has("ci_high"))) {
+            return Err(Error::MissingColumn {
+                source_name: table.source.clone(),
+                column: map.header("variance"),
+                purpose: format!("the precision of each effect with {} effect", Flag::Measure),
+                available: table.headers.join(", "),
+                hint: format!(
+                    "Give one of the columns '{}', '{}', or '{}' with '{}' (a confidence interval, 95% unless {} says otherwise), or map them with {}.",
+                    map.header("variance"),
+                    map.header("se"),
+                    map.header("ci_low"),
+                    map.header("ci_high"),
+                    Flag::CiLevel,
+                    Flag::Col
+                ),
+            });
+        }
+        return Ok(());
+    }
+    let routes: Vec<&RouteInfo> = route::catalogue(measure)
+        .iter()
+        .filter(|i| !i.needs_convert || map.reading().convert)
+        .collect();
+    let complete = |i: &RouteInfo| i.columns.iter().all(|c| c.starts_with('(') || has(c));
+    if routes.iter().any(|i| complete(i)) {
+        return Ok(());
+    }
+    let first_route = routes[0];
+    let absent = first_route
+        .columns
+        .iter()
+        .copied()
+        .find(|c| !has(c))
+        .unwrap_or(first_route.columns[0]);
+    let meaning = roles
+        .iter()
+        .find(|r| r.name == absent)
+        .map_or("", |r| r.meaning);
+    let hint = if routes.len() > 1 {
+        format!(
+            "Rename the column, or map it with {} {absent}=<header>; or give the columns of another \
+             route ('pondus columns {} {}' lists them).",
+            Flag::Col,
+            Flag::Measure,
+            measure.id()
+        )
+    } else {
+        format!(
+            "Rename the column, or map it with {} {absent}=<header>.",
+            Flag::Col
+        )
+    };
+    Err(Error::MissingColumn {
+        source_name: table.source.clone(),
+        column: map.header(absent),
+        purpose: format!(
+            "{meaning} ({absent}) with {} {}",
+            Flag::Measure,
+            measure.id()
+        ),
+        available: table.headers.join(", "),
+        hint,
+    })
 }
 
 /// Shortens a cell's text for messages.

@@ -1,6 +1,6 @@
 //! Standardised mean differences (Hedges' g).
 
-use super::{first_missing, RowEffect, RowProblem, RowResult, RowValues};
+use super::RowProblem;
 
 /// Hedges' g and its sampling variance from two groups' summaries.
 ///
@@ -62,27 +62,6 @@ pub struct Smd {
     pub g: f64,
     /// Sampling variance of g.
     pub v: f64,
-}
-
-pub(crate) fn hedges_g_row(row: RowValues<'_>) -> RowResult {
-    let names = [
-        "treat_mean",
-        "treat_sd",
-        "treat_n",
-        "ctrl_mean",
-        "ctrl_sd",
-        "ctrl_n",
-    ];
-    if let Some(m) = first_missing(row, &names) {
-        return Ok(RowEffect::Excluded(format!("missing {m}")));
-    }
-    let x: Vec<f64> = names.iter().map(|n| row.get(n).unwrap_or(0.0)).collect();
-    let s = hedges_g(x[0], x[1], x[2], x[3], x[4], x[5])?;
-    Ok(RowEffect::Value {
-        y: s.g,
-        v: s.v,
-        note: None,
-    })
 }
 
 #[cfg(test)]

@@ -86,11 +86,13 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
     let input = InputInfo {
         file: source.to_string(),
         delimiter: studies.table.delimiter,
+        sheet: studies.table.sheet.clone(),
         rows: studies.table.rows,
         label_column: studies.table.label_column.clone(),
         sha256: crate::support::hash::sha256_hex(bytes),
     };
     let k = studies.y.len();
+    let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
     let (records, excluded) = records(studies, fit, settings.options.level, answers.shrunken);
     let (variance_components, clustering) = match clusters {
         Some(c) => (c.variance_components, Some(c.report)),
@@ -132,6 +134,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         average: summary.average,
         floored: summary.floored,
         predictions: readout.predictions,
+        effects_obtained,
         studies: records,
         subgroups: readout.subgroups,
         curves: readout.curves,
@@ -236,6 +239,7 @@ fn records(
         labels,
         lines,
         notes,
+        routes,
         raw,
         excluded,
         ..
@@ -266,6 +270,7 @@ fn records(
                 .collect(),
             note,
             shrunken: shrunken.as_ref().map(|s| s[pos]),
+            computed_from: routes[pos],
         });
     }
     (out, excluded)

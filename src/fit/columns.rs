@@ -30,7 +30,7 @@ pub struct Columns {
 ///
 /// # Errors
 /// [`crate::Error::Usage`] for artifact corrections with a measure other
-/// than r; any error of [`input::parse_table`] (a missing required column,
+/// than r; any error of [`input::read_table`] (a missing required column,
 /// unreadable text, ragged rows).
 pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Columns> {
     let measure = settings.measure;
@@ -61,7 +61,7 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         requests.len() - 1
     });
     Ok(Columns {
-        table: input::parse_table(source, bytes, &requests)?,
+        table: input::read_table(source, bytes, &requests, settings.columns.sheet())?,
         first_measure,
         first_moderator,
         first_artifact,

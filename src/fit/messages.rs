@@ -74,6 +74,7 @@ pub fn collect(i: &Inputs<'_>) -> Messages {
     if let Some(f) = i.floored {
         m.notes.push(floored_note(i, f));
     }
+    super::route_messages::add(i.studies, &mut m);
     for p in &i.readout.predictions {
         if !p.outside_range.is_empty() {
             m.warnings.push(format!(

@@ -30,6 +30,7 @@ pub mod estimate;
 pub mod interpret;
 pub mod messages;
 pub mod readout;
+pub mod route_messages;
 pub mod settings;
 pub mod studies;
 pub mod summarise;

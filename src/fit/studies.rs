@@ -7,6 +7,7 @@
 use super::columns::Columns;
 use super::FitSettings;
 use crate::effect::artifact::{self, Corrected};
+use crate::effect::route::Route;
 use crate::effect::{self, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
 use crate::input::{Delimiter, Table};
@@ -31,6 +32,10 @@ pub struct Studies {
     pub lines: Vec<u64>,
     /// Adjustment made to the study's effect, in words (a zero-cell correction).
     pub notes: Vec<Option<String>>,
+    /// The route each study's effect was computed from.
+    pub routes: Vec<Route>,
+    /// A disagreement between a study's routes, or asymmetric limits, in words.
+    pub checks: Vec<Option<String>>,
     /// Artifact correction per study (None without corrections).
     pub corrections: Vec<Option<Corrected>>,
     /// The `--cumulative-by` header and its cell per study.
@@ -53,6 +58,8 @@ pub struct Studies {
 pub struct TableFacts {
     /// The delimiter.
     pub delimiter: Delimiter,
+    /// The sheet, for a spreadsheet.
+    pub sheet: Option<String>,
     /// Data rows.
     pub rows: usize,
     /// Blank rows skipped.
@@ -123,20 +130,32 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
     let mut notes = Vec::with_capacity(included.len());
+    let mut routes = Vec::with_capacity(included.len());
+    let mut checks = Vec::with_capacity(included.len());
     for &i in &included {
-        let (yi, vi, note) = match &mut effects.rows[i] {
-            RowEffect::Value { y, v, note } => (*y, *v, note.take()),
-            RowEffect::Excluded(_) => (f64::NAN, f64::NAN, None),
+        let (yi, vi, note, from, check) = match &mut effects.rows[i] {
+            RowEffect::Value {
+                y,
+                v,
+                note,
+                from,
+                check,
+            } => (*y, *v, note.take(), *from, check.take()),
+            RowEffect::Excluded(_) => (f64::NAN, f64::NAN, None, Route::Means, None),
         };
         y.push(yi);
         v.push(vi);
         notes.push(note);
+        routes.push(from);
+        checks.push(check);
     }
     check_range(source, &y, &v, &included, &table.lines)?;
     Ok(Studies {
         y,
         v,
         notes,
+        routes,
+        checks,
         labels: pick(labels, &included),
         lines: included.iter().map(|&i| table.lines[i]).collect(),
         corrections: included.iter().map(|&i| corrections[i]).collect(),
@@ -151,6 +170,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         },
         table: TableFacts {
             delimiter: Delimiter::of(table.delimiter),
+            sheet: table.sheet.as_ref().map(|s| s.name.clone()),
             rows: table.len(),
             blank_rows: table.blank_rows,
             label_column: table.column(0).map(|c| c.header.clone()),

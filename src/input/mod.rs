@@ -1,11 +1,13 @@
-//! Reading CSV tables: delimiter detection, encoding checks, column lookup.
+//! Reading tables: CSV (delimiter detection, encoding checks) and
+//! spreadsheets ([`sheet`]), column lookup, cell addresses for messages.
 //!
 //! Only the columns an analysis asks for are kept, in a compact text arena,
 //! so a million-row file costs little more than its requested cells.
 
 pub mod number;
+pub mod sheet;
 
-use crate::error::{Error, Result};
+use crate::error::{CellProblem, Error, Result};
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
@@ -83,6 +85,8 @@ pub struct ColumnRequest {
 pub struct Column {
     /// The header as written in the file.
     pub header: String,
+    /// Its position in the header row (0-based).
+    pub index: usize,
     text: String,
     ends: Vec<usize>,
 }
@@ -94,7 +98,7 @@ impl Column {
         &self.text[start..self.ends[row]]
     }
 
-    fn push(&mut self, cell: &str) {
+    pub(crate) fn push(&mut self, cell: &str) {
         self.text.push_str(cell);
         self.ends.push(self.text.len());
     }
@@ -105,7 +109,7 @@ impl Column {
 pub struct Table {
     /// Name of the source, for messages.
     pub source: String,
-    /// The detected delimiter.
+    /// The detected delimiter (0 for a spreadsheet).
     pub delimiter: u8,
     /// All headers of the file, trimmed.
     pub headers: Vec<String>,
@@ -115,6 +119,18 @@ pub struct Table {
     pub lines: Vec<u64>,
     /// How many wholly blank rows were skipped.
     pub blank_rows: usize,
+    /// The sheet the table was read from (None for CSV); `lines` then holds
+    /// the sheet's row numbers.
+    pub sheet: Option<SheetOrigin>,
+}
+
+/// Where in a workbook a table was read from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct SheetOrigin {
+    /// The sheet's name.
+    pub name: String,
+    /// The 0-based column of the header row's first cell.
+    pub first_column: u32,
 }
 
 impl Table {
@@ -137,6 +153,30 @@ impl Table {
     pub fn delimiter_name(&self) -> &'static str {
         Delimiter::of(self.delimiter).id()
     }
+
+    /// The spreadsheet address of a cell (`extraction!D14`), or None for CSV.
+    pub fn cell_address(&self, row: usize, column: &Column) -> Option<String> {
+        let sheet = self.sheet.as_ref()?;
+        let letters = sheet::column_letters(sheet.first_column + column.index as u32);
+        let name = if sheet.name.chars().all(|c| c.is_alphanumeric() || c == '_') {
+            sheet.name.clone()
+        } else {
+            format!("'{}'", sheet.name.replace('\'', "''"))
+        };
+        Some(format!("{name}!{letters}{}", self.lines[row]))
+    }
+
+    /// A problem with the cell of `column` in data row `row`: its line (or
+    /// sheet row) and, in a spreadsheet, its address.
+    pub fn problem(&self, row: usize, column: &Column, message: impl Into<String>) -> CellProblem {
+        CellProblem {
+            line: self.lines[row],
+            column: column.header.clone(),
+            value: crate::effect::shorten(column.get(row)),
+            message: message.into(),
+            cell: self.cell_address(row, column),
+        }
+    }
 }
 
 /// A detected delimiter, as named in the results.
@@ -149,14 +189,18 @@ pub enum Delimiter {
     Semicolon,
     /// A tab.
     Tab,
+    /// None: the table was read from a spreadsheet (delimiter byte 0).
+    Sheet,
 }
 
 impl Delimiter {
-    /// The delimiter of the byte `b` (comma for any byte but `;` and tab).
+    /// The delimiter of the byte `b` (comma for any byte but `;`, tab and 0,
+    /// which marks a spreadsheet).
     pub fn of(b: u8) -> Self {
         match b {
             b';' => Delimiter::Semicolon,
             b'\t' => Delimiter::Tab,
+            0 => Delimiter::Sheet,
             _ => Delimiter::Comma,
         }
     }
@@ -167,6 +211,7 @@ impl Delimiter {
             Delimiter::Comma => "comma",
             Delimiter::Semicolon => "semicolon",
             Delimiter::Tab => "tab",
+            Delimiter::Sheet => "sheet",
         }
     }
 }
@@ -322,6 +367,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         .map(|ix| {
             ix.map(|i| Column {
                 header: headers[i].clone(),
+                index: i,
                 ..Column::default()
             })
         })
@@ -348,7 +394,27 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         columns,
         lines: rows.lines,
         blank_rows: rows.blank_rows,
+        sheet: None,
     })
+}
+
+/// Reads a table from CSV bytes, or from a spreadsheet when the source's
+/// name ends in `.xlsx`, `.xlsm`, `.xls` or `.ods` (sheet `sheet`, else the
+/// first), keeping the requested columns.
+///
+/// # Errors
+/// Those of [`parse_table`] and [`sheet::parse_sheet`].
+pub fn read_table(
+    source: &str,
+    bytes: &[u8],
+    requests: &[ColumnRequest],
+    sheet: Option<&str>,
+) -> Result<Table> {
+    if sheet::is_spreadsheet(source) {
+        sheet::parse_sheet(source, bytes, requests, sheet)
+    } else {
+        parse_table(source, bytes, requests)
+    }
 }
 
 /// The header row of a CSV reader, each name trimmed (used by the table

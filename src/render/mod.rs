@@ -13,6 +13,7 @@
 //!   effects file ([`sites_effects`]).
 
 pub mod answers;
+pub mod columns;
 pub mod diagnostics;
 pub mod figure;
 pub mod html;
@@ -20,6 +21,7 @@ pub mod interpret;
 pub mod json;
 pub mod layout;
 pub mod multilevel;
+pub mod obtained;
 pub mod plan;
 pub mod sensitivity;
 pub mod sites;

@@ -4,7 +4,7 @@ use crate::result::FitReport;
 use std::io::Write;
 
 /// Header of the per-study table.
-pub const HEADER: [&str; 11] = [
+pub const HEADER: [&str; 12] = [
     "study",
     "line",
     "included",
@@ -16,6 +16,7 @@ pub const HEADER: [&str; 11] = [
     "residual",
     "std_residual",
     "note",
+    "computed_from",
 ];
 
 /// Columns added after [`HEADER`] with `--loo` (τ² and the tested p without the study).
@@ -123,6 +124,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             s.residual.to_string(),
             s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
             cell(s.note.as_deref().unwrap_or_default()),
+            s.computed_from.to_string(),
         ];
         row.extend(more);
         rows.push((s.line, row));
@@ -140,7 +142,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
             "no".into(),
             cell(&e.reason),
         ];
-        row.extend(std::iter::repeat_n(String::new(), 7 + extra));
+        row.extend(std::iter::repeat_n(String::new(), 8 + extra));
         rows.push((e.line, row));
     }
     rows.sort_by_key(|r| r.0);

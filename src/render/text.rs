@@ -60,6 +60,7 @@ const SECTIONS: &[Section] = &[
     studies,
     answers::shrunken,
     answers::model_set,
+    obtained,
     left_out,
     interpret::artifacts,
     interpret::conditional_effects,
@@ -104,11 +105,19 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
     };
     let _ = writeln!(o, "pondus {} · {title}", r.tool.version);
     let _ = writeln!(o, "{rule}");
-    let _ = writeln!(
-        o,
-        "Data        {} ({}-separated, {} rows)",
-        r.input.file, r.input.delimiter, r.input.rows
-    );
+    match &r.input.sheet {
+        Some(sheet) => writeln!(
+            o,
+            "Data        {} (sheet '{sheet}', {} rows)",
+            r.input.file, r.input.rows
+        ),
+        None => writeln!(
+            o,
+            "Data        {} ({}-separated, {} rows)",
+            r.input.file, r.input.delimiter, r.input.rows
+        ),
+    }
+    .ok();
     let mut effects = r.measure.description.clone();
     if let Some(n) = &r.measure.reading_name {
         let _ = write!(effects, "; summaries also shown as {n}");
@@ -406,6 +415,11 @@ fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
         let _ = writeln!(o, "  * adjusted, see the notes");
     }
     let _ = writeln!(o);
+}
+
+/// How each effect was obtained (when routes differ, or any was approximated or converted).
+fn obtained(r: &FitReport, _: &Ctx, o: &mut String) {
+    super::obtained::text_section(r, o);
 }
 
 /// The rows left out of the model, with the reason.

@@ -29,6 +29,7 @@ mod interpret;
 mod model;
 pub mod plan;
 mod predict;
+mod routes;
 mod sensitivity;
 mod sites;
 
@@ -39,9 +40,11 @@ pub use estimate::*;
 pub use interpret::*;
 pub use model::*;
 pub use predict::*;
+pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
 
+use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
 use crate::input::Delimiter;
 use serde::Serialize;
@@ -79,6 +82,9 @@ pub struct FitReport {
     pub predictions: Vec<Prediction>,
     /// One entry per included study, in input order.
     pub studies: Vec<Study>,
+    /// How the effects were obtained: one entry per route that any included
+    /// study took (`studies[].computed_from`), in a fixed order.
+    pub effects_obtained: Vec<RouteCount>,
     /// Per-level summaries of each categorical moderator, in moderator order.
     pub subgroups: Vec<Subgroups>,
     /// The fitted line with its bands along each numeric moderator, in moderator order.
@@ -157,8 +163,11 @@ pub struct ToolInfo {
 pub struct InputInfo {
     /// File name as given (`<stdin>` for standard input).
     pub file: String,
-    /// Detected delimiter: "comma", "semicolon" or "tab".
+    /// Detected delimiter: "comma", "semicolon" or "tab"; "sheet" for a spreadsheet.
     pub delimiter: Delimiter,
+    /// The sheet read from a spreadsheet (omitted for CSV).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sheet: Option<String>,
     /// Data rows read (blank rows not counted).
     pub rows: usize,
     /// Header of the column used for study labels (null: labels made from line numbers).
@@ -253,6 +262,11 @@ pub struct Study {
     /// (`--shrink`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub shrunken: Option<Shrunken>,
+    /// The group of reported numbers the effect was computed from ("means",
+    /// "means-se", "t", "f", "p", "median-iqr", "median-range", "r",
+    /// "counts", "ratio-ci", "log-se", "variance", "se", "ci", or a
+    /// conversion: "r-to-d", "counts-to-d", "d-to-r").
+    pub computed_from: Route,
 }
 
 #[cfg(test)]

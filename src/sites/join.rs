@@ -18,8 +18,14 @@ use std::collections::HashMap;
 /// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
 /// missing or repeated id (with both lines); [`Error::Format`] when a
 /// characteristic would shadow an effects column.
-pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> Result<()> {
-    let probe = input::parse_table(
+pub fn join(
+    report: &mut SitesReport,
+    source: &str,
+    bytes: &[u8],
+    key: &str,
+    sheet: Option<&str>,
+) -> Result<()> {
+    let probe = input::read_table(
         source,
         bytes,
         &[ColumnRequest {
@@ -32,6 +38,7 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
                 Flag::Site
             ),
         }],
+        sheet,
     )?;
     let key_header = probe
         .column(0)
@@ -72,7 +79,7 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
         purpose: "a site characteristic".into(),
         hint: String::new(),
     }));
-    let table = input::parse_table(source, bytes, &requests)?;
+    let table = input::read_table(source, bytes, &requests, sheet)?;
     let ids = table.column(0).expect("required");
     let mut rows: HashMap<&str, usize> = HashMap::new();
     let mut problems = Vec::new();
@@ -84,6 +91,7 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
                 column: key_header.clone(),
                 value: String::new(),
                 message: "the site id is missing; give every row of the site table its id".into(),
+                cell: table.cell_address(i, ids),
             });
             continue;
         }
@@ -96,6 +104,7 @@ pub fn join(report: &mut SitesReport, source: &str, bytes: &[u8], key: &str) -> 
                     "site '{id}' already has a row on line {}; give each site one row (merge or delete the repeated one)",
                     table.lines[first]
                 ),
+                cell: table.cell_address(i, ids),
             });
             continue;
         }

@@ -107,6 +107,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
                 column: header(0),
                 value: String::new(),
                 message: "the site id is missing (a NULL site in the source table); give those rows a site id, or filter them out, and run the query again".into(),
+                cell: None,
             });
             continue;
         }
@@ -116,6 +117,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
                 column: header(0),
                 value: id.clone(),
                 message: format!("site '{id}' already has a row on line {first}; the query groups by site, so each site has one row"),
+                cell: None,
             });
             continue;
         }
@@ -131,6 +133,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
                         column: header(c),
                         value: cell(c).chars().take(40).collect(),
                         message: "not a finite number; the moments table holds numbers only".into(),
+                        cell: None,
                     });
                 }
             }
@@ -145,6 +148,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
                 column: header(1),
                 value: cell(1).to_string(),
                 message: "the row count must be a positive whole number".into(),
+                cell: None,
             });
             continue;
         }
@@ -169,6 +173,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
                 column: header(c),
                 value: cell(c).to_string(),
                 message: "a variance cannot be negative".into(),
+                cell: None,
             });
             continue;
         }

@@ -120,6 +120,7 @@ impl Problems {
                 column: column.to_string(),
                 value,
                 message,
+                cell: None,
             });
         }
     }

@@ -46,8 +46,12 @@ macro_rules! flags {
 }
 
 flags! {
-    Measure => "--measure", ["fit", "plan"];
+    Measure => "--measure", ["fit", "plan", "columns"];
     Col => "--col", ["fit"];
+    CiLevel => "--ci-level", ["fit"];
+    EffectScale => "--effect-scale", ["fit"];
+    Convert => "--convert", ["fit"];
+    Sheet => "--sheet", ["fit", "plan", "sites"];
     Label => "--label", ["fit"];
     Moderator => "--moderator", ["fit", "sites"];
     Categorical => "--categorical", ["fit"];

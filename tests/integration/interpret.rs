@@ -494,7 +494,8 @@ fn terminal_and_table_show_every_piece() {
     let t = std::fs::read_to_string(&table).unwrap();
     let header = t.lines().next().unwrap();
     assert!(header.ends_with(",observed_r,se_factor"), "{header}");
-    assert_eq!(t.lines().nth(1).unwrap().split(',').count(), 13);
+    // 12 columns of HEADER (the last `computed_from`, issue 15) + the two artifact columns.
+    assert_eq!(t.lines().nth(1).unwrap().split(',').count(), 14);
 }
 
 // ------------------------------------------------ bad input, one by one

@@ -18,6 +18,7 @@ mod reference;
 mod regression;
 mod reliability;
 mod report;
+mod routes;
 mod safety;
 mod selection;
 mod sites;

@@ -73,6 +73,9 @@ trap 'rm -rf "$tmp"' EXIT
 # Three-level model and CR2 robust inference (tests/reference/multilevel.py -> tests/data/reference/multilevel/)
 "$venv/bin/python" "$here/multilevel.py" "$tmp/multilevel" > "$tmp/multilevel.log" 2>&1 || { cat "$tmp/multilevel.log" >&2; die "multilevel.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/multilevel" "$tmp/multilevel" || die "multilevel fixtures differ; regenerate with: $venv/bin/python tests/reference/multilevel.py tests/data/reference/multilevel"
+# Effect-size routes of issue 15 (tests/reference/routes.py -> tests/data/reference/routes/)
+"$venv/bin/python" "$here/routes.py" "$tmp/routes" > "$tmp/routes.log" 2>&1 || { cat "$tmp/routes.log" >&2; die "routes.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/routes" "$tmp/routes" || die "routes fixtures differ; regenerate with: $venv/bin/python tests/reference/routes.py tests/data/reference/routes"
 # Selection model (scipy maximisation) and PET/PEESE (statsmodels WLS) (tests/reference/selection.py -> tests/data/reference/selection/)
 "$venv/bin/python" "$here/selection.py" "$tmp/selection" > "$tmp/selection.log" 2>&1 || { cat "$tmp/selection.log" >&2; die "selection.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/selection" "$tmp/selection" || die "selection fixtures differ; regenerate with: $venv/bin/python tests/reference/selection.py tests/data/reference/selection"

@@ -2,11 +2,12 @@
 //! each group's flags. [`super::FitArgs`] flattens them in this order, which
 //! is the order `pondus fit --help` lists the flags in.
 
+use super::reading::EffectScaleArg;
 use super::{PlotKind, PlotRequest};
 use crate::cli::outputs::Target;
 use crate::cli::{report_target, InferenceArg, Tau2Arg};
 use clap::{Args, ValueEnum};
-use pondus::effect::{ColumnMap, Measure};
+use pondus::effect::Measure;
 use pondus::error::{Error, Result};
 use pondus::model::design::ModeratorSpec;
 use pondus::model::FitOptions;
@@ -17,19 +18,19 @@ use std::path::PathBuf;
 /// Effect measures as typed on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum MeasureArg {
-    /// Precomputed `effect` with `variance`, `se`, or `ci_low`+`ci_high` (95%).
+    /// Precomputed `effect` with `variance`, `se`, or `ci_low`+`ci_high` (see --ci-level).
     Effect,
-    /// Pearson `r` and `n`, analysed as Fisher's z.
+    /// Pearson `r` (or `t`, or `p` and `sign`) and `n`, analysed as Fisher's z.
     R,
     /// Regression `t`, `n` and `covariates`, as a partial r on Fisher's z.
     PartialR,
     /// Unstandardised `slope` and its `se`.
     Slope,
-    /// Hedges' g from treat_/ctrl_ `mean`, `sd` and `n`.
+    /// Hedges' g from group means and SDs, SEs, t, F, p or medians (`pondus columns`).
     Smd,
-    /// Log odds ratio from `treat_events`, `treat_n`, `ctrl_events`, `ctrl_n`.
+    /// Log odds ratio from the counts, `or` with its limits, or `log_or` with `se`.
     LogOr,
-    /// Log risk ratio from the same counts.
+    /// Log risk ratio from the counts, `rr` with its limits, or `log_rr` with `se`.
     LogRr,
     /// Risk difference from the same counts.
     RiskDiff,
@@ -51,7 +52,7 @@ impl From<MeasureArg> for Measure {
 }
 
 /// Splits `NAME=VALUE`, both sides trimmed and non-empty.
-fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a str)> {
+pub(super) fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a str)> {
     match text.split_once('=') {
         Some((a, b)) if !a.trim().is_empty() && !b.trim().is_empty() => Ok((a.trim(), b.trim())),
         _ => Err(Error::usage(
@@ -65,9 +66,13 @@ fn split_pair<'a>(flag: &str, text: &'a str, what: &str) -> Result<(&'a str, &'a
 #[derive(Debug, Args)]
 #[command(next_help_heading = "Input")]
 pub struct InputArgs {
-    /// CSV file with a header row and one row per study ('-' reads standard input).
+    /// CSV file (or .xlsx, .xlsm, .xls, .ods spreadsheet) with a header row and one row per
+    /// study ('-' reads CSV from standard input).
     #[arg(help_heading = None)]
     pub file: PathBuf,
+    /// The sheet of a spreadsheet FILE to read [default: the first sheet].
+    #[arg(long, value_name = "NAME")]
+    pub sheet: Option<String>,
     /// How each row becomes an effect and its sampling variance.
     #[arg(long, value_enum, default_value_t = MeasureArg::Effect)]
     pub measure: MeasureArg,
@@ -77,29 +82,15 @@ pub struct InputArgs {
     /// Column with the study labels [default: study].
     #[arg(long, value_name = "HEADER")]
     pub label: Option<String>,
-}
-
-impl InputArgs {
-    /// The measure and its columns, with the `--col` overrides.
-    ///
-    /// # Errors
-    /// [`Error::Usage`] for a malformed or repeated `--col`, or a role the measure does not read.
-    pub fn columns(&self) -> Result<(Measure, ColumnMap)> {
-        let measure: Measure = self.measure.into();
-        let mut overrides = BTreeMap::new();
-        for c in &self.col {
-            let (role, header) = split_pair("--col", c, "ROLE=HEADER")?;
-            if let Some(before) = overrides.insert(role.to_string(), header.to_string()) {
-                return Err(Error::usage(
-                    "--col",
-                    format!(
-                        "the role '{role}' is given twice ('{role}={before}' and '{c}'); give each role once"
-                    ),
-                ));
-            }
-        }
-        Ok((measure, ColumnMap::new(measure, overrides)?))
-    }
+    /// Confidence level of the reported limits (`ci_low`, `ci_high`) [default: 0.95].
+    #[arg(long, value_name = "LEVEL")]
+    pub ci_level: Option<f64>,
+    /// Scale of precomputed effects and limits: `log` says they are ratios, to be logged.
+    #[arg(long, value_enum, default_value_t = EffectScaleArg::Analysis)]
+    pub effect_scale: EffectScaleArg,
+    /// Convert rows of another family: r or event counts to d for smd, group comparisons to r for r.
+    #[arg(long)]
+    pub convert: bool,
 }
 
 /// The model: moderators and their coding, the estimator, the tests, predictions.

@@ -4,8 +4,9 @@
 //! checks its own flags, and [`FitArgs::check`] checks them in that order.
 
 mod answers;
-mod groups;
+pub(crate) mod groups;
 pub(crate) use groups::check_dpi;
+mod reading;
 
 use groups::{
     ClusterArgs, DiagnosticArgs, InputArgs, InterpretationArgs, ModelArgs, OutputArgs, PlotArgs,

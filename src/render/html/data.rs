@@ -11,10 +11,13 @@ pub(super) fn data(page: &mut Page, cx: &FitCtx) {
         ("File", report.input.file.clone()),
         (
             "Rows read",
-            format!(
-                "{} ({}-separated)",
-                report.input.rows, report.input.delimiter
-            ),
+            match &report.input.sheet {
+                Some(sheet) => format!("{} (sheet '{sheet}')", report.input.rows),
+                None => format!(
+                    "{} ({}-separated)",
+                    report.input.rows, report.input.delimiter
+                ),
+            },
         ),
         ("Studies in the model", report.k.to_string()),
         ("Rows left out", report.excluded.len().to_string()),

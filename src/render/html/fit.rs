@@ -2,7 +2,7 @@
 //! question, answer, cautions), then the contents and the body, both drawn
 //! from one table of sections.
 
-use super::page::Provenance;
+use super::page::{Page, Provenance};
 use super::section::{always, body, contents, FitCtx, Section};
 use super::{
     answers, data, dependence, diagnostics, estimates, figures, interpretation, moderators,
@@ -13,13 +13,21 @@ use crate::result::FitReport;
 
 /// The sections after the contents, in order; the contents list the
 /// present ones.
-fn sections<'a>() -> [Section<FitCtx<'a>>; 11] {
+fn sections<'a>() -> [Section<FitCtx<'a>>; 12] {
     [
         Section {
             id: "data",
             title: "Data used",
             present: always,
             render: data::data,
+        },
+        Section {
+            id: "obtained",
+            title: "How each effect was obtained",
+            present: |cx: &FitCtx| crate::render::obtained::has_block(cx.report),
+            render: |page: &mut Page, cx: &FitCtx| {
+                page.list(&crate::render::obtained::lines(cx.report));
+            },
         },
         Section {
             id: "pooled",

@@ -2,6 +2,7 @@
 //! guides), each kind of row, the axis and the caption, in that order.
 
 use super::layout::{Forest, Row};
+use crate::effect::route::Derivation;
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::Rgb;
 use crate::render::figure::scene::{fit_middle, fit_text};
@@ -232,8 +233,14 @@ impl Forest<'_> {
     /// A study's marker at `at`, of radius `r` (its area follows the
     /// study's weight). One place for the marker's look, so a kind of study
     /// can be given a marker of its own.
-    fn study_marker(&self, sc: &mut Scene, _s: &Study, at: (f64, f64), r: f64) {
-        sc.circle(at, r, Some((STUDY, 1.0)), None);
+    fn study_marker(&self, sc: &mut Scene, s: &Study, at: (f64, f64), r: f64) {
+        if s.computed_from.derivation() == Derivation::Direct {
+            sc.circle(at, r, Some((STUDY, 1.0)), None);
+        } else {
+            // Approximated or converted: a ring of the same size (the open
+            // square is the shrunken estimate's marker).
+            sc.circle(at, (r - 1.0).max(1.0), Some((PAPER, 1.0)), Some((STUDY, 2)));
+        }
     }
 
     /// A level's own average (a lighter diamond) and its studies' total weight.

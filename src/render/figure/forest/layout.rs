@@ -1,6 +1,7 @@
 //! The forest plot's layout: the rows, the value axis, the text columns,
 //! the caption and the row height, computed before anything is drawn.
 
+use crate::effect::route::Derivation;
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::render::figure::scene::{fit_text, text_width};
@@ -391,6 +392,17 @@ impl<'a> Forest<'a> {
         }
         if report.studies.iter().any(|s| s.shrunken.is_some()) {
             caption.push(super::shrunken::caption(lv));
+        }
+        if report
+            .studies
+            .iter()
+            .any(|s| s.computed_from.derivation() != Derivation::Direct)
+        {
+            caption.push(
+                "○ an effect approximated from medians or converted from another effect measure \
+                 (see \"How each effect was obtained\"); same size rule as ●."
+                    .into(),
+            );
         }
         caption.push(format!(
             "Grey line: no effect ({}); dotted line: the average.",

@@ -1,0 +1,82 @@
+//! `pondus columns`: the recognised routes of a measure, their columns and
+//! the sources of their formulas, in words (from [`route::catalogue`], the
+//! table the computation itself follows).
+
+use crate::effect::route::{self, Derivation};
+use crate::effect::Measure;
+use crate::support::flag::Flag;
+
+/// The listing of one measure's routes, in the order they are tried.
+pub fn text(measure: Measure) -> String {
+    let mut out = format!(
+        "{} {}: {}\n",
+        Flag::Measure,
+        measure.id(),
+        measure.describe()
+    );
+    let routes = route::catalogue(measure);
+    if routes.len() > 1 {
+        out.push_str(
+            "Each row uses the first route whose columns are all filled in; the other complete \
+             routes are computed too, as a check.\n",
+        );
+    }
+    for (i, info) in routes.iter().enumerate() {
+        let when = match (info.needs_convert, info.route.derivation()) {
+            (true, _) => format!(" (only with {})", Flag::Convert),
+            (false, Derivation::Approximated) => " (approximated)".to_string(),
+            _ => String::new(),
+        };
+        out.push_str(&format!(
+            "\n{}. {}{when}\n   columns: {}\n   computes: {}\n   source: {}\n",
+            i + 1,
+            info.route,
+            info.columns.join(", "),
+            info.formula,
+            info.source
+        ));
+    }
+    out.push_str(&format!(
+        "\nColumn names are the defaults; map others with {} ROLE=HEADER. The route taken is \
+         'computed_from' in the JSON and the per-study table.\n",
+        Flag::Col
+    ));
+    out
+}
+
+/// The listing of every measure, one after another.
+pub fn all() -> String {
+    Measure::ALL
+        .iter()
+        .map(|&m| text(m))
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn lists_every_smd_route_in_order() {
+        let t = text(Measure::Smd);
+        let mut at = 0;
+        for name in [
+            "means",
+            "means-se",
+            "t",
+            "f",
+            "p",
+            "median-iqr",
+            "median-range",
+            "r-to-d",
+        ] {
+            let needle = format!(". {name}");
+            let pos = t[at..]
+                .find(&needle)
+                .unwrap_or_else(|| panic!("{name} in\n{t}"));
+            at += pos + needle.len();
+        }
+        assert!(t.contains("Wan et al. (2014)") && t.contains("only with --convert"));
+    }
+}

@@ -1,0 +1,374 @@
+//! Issue 15: effect sizes from whatever each study reports, and spreadsheets.
+//!
+//! Every route (`computed_from`) of `smd`, `r`, `log-or` and `effect` on the
+//! invented tables in tests/data/routes/, against the independent values of
+//! tests/reference/routes.py (statsmodels 0.14.6 effectsize_smd and
+//! effectsize_2proportions, scipy 1.16.3 t.ppf and norm.ppf, numpy 2.3.5;
+//! fixture tests/data/reference/routes/routes.json); every unusable value
+//! excluded with its reason; the cross-check warnings; the same data as
+//! .xlsx (openpyxl 3.1.5) and .ods (odfpy 1.4.1) giving the same JSON as the
+//! CSV; bad cells named by their address; `sites --info` and
+//! `plan --moderator-values` from spreadsheets; `pondus columns`.
+
+use crate::util::{close, repo};
+use assert_cmd::Command;
+use pondus::tolerance::{REFERENCE_ABS, REFERENCE_REL};
+use serde_json::Value;
+use std::path::Path;
+
+fn pondus() -> Command {
+    Command::cargo_bin("pondus").expect("the pondus binary is built")
+}
+
+/// Runs `pondus fit FILE ARGS --json` in a fresh folder and returns the JSON.
+fn fit_json(file: &Path, args: &[&str]) -> Value {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out.json");
+    let assert = pondus()
+        .arg("fit")
+        .arg(file)
+        .args(args)
+        .arg("--json")
+        .arg(&out)
+        .arg("--quiet")
+        .assert();
+    let output = assert.get_output();
+    assert!(
+        output.status.success(),
+        "pondus fit {} {args:?} failed: {}",
+        file.display(),
+        String::from_utf8_lossy(&output.stderr)
+    );
+    serde_json::from_str(&std::fs::read_to_string(out).unwrap()).unwrap()
+}
+
+fn fixture() -> Value {
+    let text = std::fs::read_to_string(repo("tests/data/reference/routes/routes.json")).unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+fn names(v: &Value) -> Vec<String> {
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_str().unwrap().to_string())
+        .collect()
+}
+
+#[test]
+fn every_route_matches_the_python_reference() {
+    let fx = fixture();
+    let runs = fx["runs"].as_object().unwrap();
+    assert_eq!(runs.len(), 8);
+    for (name, run) in runs {
+        let file = repo(&format!(
+            "tests/data/routes/{}",
+            run["file"].as_str().unwrap()
+        ));
+        let args: Vec<String> = names(&run["args"]);
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let got = fit_json(&file, &args);
+        let studies = got["studies"].as_array().unwrap();
+        let want = run["included"].as_array().unwrap();
+        assert_eq!(studies.len(), want.len(), "{name}: included studies");
+        for (s, w) in studies.iter().zip(want) {
+            assert_eq!(s["study"], w["study"], "{name}");
+            assert_eq!(
+                s["computed_from"], w["computed_from"],
+                "{name}: {}",
+                w["study"]
+            );
+            let what = format!("{name} {} ", w["study"]);
+            close(
+                &(what.clone() + "effect"),
+                s["effect"].as_f64().unwrap(),
+                w["effect"].as_f64().unwrap(),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+            close(
+                &(what + "variance"),
+                s["variance"].as_f64().unwrap(),
+                w["variance"].as_f64().unwrap(),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+        }
+        let excluded: Vec<String> = got["excluded"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|e| e["study"].as_str().unwrap().to_string())
+            .collect();
+        assert_eq!(excluded, names(&run["excluded"]), "{name}: excluded");
+        let warnings: Vec<&str> = got["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(|w| w.as_str())
+            .filter(|w| w.contains("check the extraction"))
+            .collect();
+        let warned = names(&run["warned"]);
+        assert_eq!(warnings.len(), warned.len(), "{name}: {warnings:?}");
+        for (w, study) in warnings.iter().zip(&warned) {
+            assert!(w.contains(study.as_str()), "{name}: {w}");
+        }
+    }
+}
+
+#[test]
+fn every_unusable_value_is_excluded_with_its_reason() {
+    let got = fit_json(
+        &repo("tests/data/routes/smd-routes.csv"),
+        &["--measure", "smd"],
+    );
+    let reason = |study: &str| -> String {
+        got["excluded"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|e| e["study"] == study)
+            .unwrap_or_else(|| panic!("{study} not excluded"))["reason"]
+            .as_str()
+            .unwrap()
+            .to_string()
+    };
+    assert!(reason("p inequality J").contains("inequality ('< .05')"));
+    assert!(reason("p without sign K").contains("p without sign"));
+    assert!(reason("p rounded to zero L").contains("p of 0"));
+    assert!(reason("p above one M").contains("p above 1"));
+    assert!(reason("r only N").contains("--convert"));
+    assert!(reason("counts only O").contains("--convert"));
+    let cautions = got["cautions"].to_string();
+    assert!(cautions.contains("approximated from medians"), "{cautions}");
+    let r = fit_json(&repo("tests/data/routes/r-routes.csv"), &["--measure", "r"]);
+    let reasons = r["excluded"].to_string();
+    assert!(
+        reasons.contains("inequality ('<0.01')") && reasons.contains("--convert"),
+        "{reasons}"
+    );
+}
+
+#[test]
+fn conversions_say_so_and_caution() {
+    let got = fit_json(
+        &repo("tests/data/routes/smd-routes.csv"),
+        &["--measure", "smd", "--convert"],
+    );
+    let obtained = got["effects_obtained"].as_array().unwrap();
+    let conv: Vec<&Value> = obtained
+        .iter()
+        .filter(|c| c["derivation"] == "converted")
+        .collect();
+    assert_eq!(conv.len(), 2);
+    assert_eq!(conv[0]["computed_from"], "r-to-d");
+    assert_eq!(conv[0]["labels"][0], "r only N");
+    assert!(got["cautions"].to_string().contains("roughly normal"));
+}
+
+#[test]
+fn spreadsheets_give_the_same_json_as_the_csv() {
+    for args in [
+        vec!["--measure", "smd"],
+        vec!["--measure", "smd", "--convert"],
+    ] {
+        let strip = |mut v: Value| {
+            let input = v.as_object_mut().unwrap().remove("input").unwrap();
+            (v.to_string(), input)
+        };
+        let (csv, _) = strip(fit_json(&repo("tests/data/routes/smd-routes.csv"), &args));
+        for ext in ["xlsx", "ods"] {
+            let file = repo(&format!("tests/data/routes/smd-routes.{ext}"));
+            let (sheet, input) = strip(fit_json(&file, &args));
+            // Everything but the input record (file name, its SHA-256, the
+            // delimiter, the sheet) is byte for byte the CSV's.
+            assert_eq!(sheet, csv, "{ext} {args:?}");
+            assert_eq!(input["sheet"], "extraction");
+            assert_eq!(input["delimiter"], "sheet");
+        }
+    }
+}
+
+#[test]
+fn bad_cells_are_named_by_their_address() {
+    for ext in ["xlsx", "ods"] {
+        let file = repo(&format!("tests/data/routes/smd-routes.{ext}"));
+        let out = pondus()
+            .args(["fit", "--measure", "smd", "--sheet", "typos", "--quiet"])
+            .arg(&file)
+            .assert()
+            .code(2);
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(err.contains("3 problems"), "{err}");
+        assert!(
+            err.contains("cell typos!D4, column 'treat_se' (value 'abc')"),
+            "{err}"
+        );
+        assert!(
+            err.contains("cell typos!J5, column 't' (value '2,41')"),
+            "{err}"
+        );
+        assert!(
+            err.contains("cell typos!K6, column 'f' (value 'n.a.')"),
+            "{err}"
+        );
+        let out = pondus()
+            .args(["fit", "--measure", "smd", "--sheet", "nope"])
+            .arg(&file)
+            .assert()
+            .code(2);
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(
+            err.contains("no sheet named 'nope'") && err.contains("extraction, typos"),
+            "{err}"
+        );
+    }
+    let out = pondus()
+        .args(["fit", "--measure", "smd", "--sheet", "x"])
+        .arg(repo("tests/data/routes/smd-routes.csv"))
+        .assert()
+        .code(2);
+    let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+    assert!(
+        err.contains("--sheet") && err.contains("not a spreadsheet"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_text_file_named_xlsx_is_refused_clearly() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("fake.xlsx");
+    std::fs::write(&f, "study,effect,se\na,0.1,0.1\n").unwrap();
+    let out = pondus().arg("fit").arg(&f).assert().code(2);
+    let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+    assert!(err.contains("cannot be read as a spreadsheet"), "{err}");
+}
+
+#[test]
+fn effect_scale_log_and_the_asymmetry_warning() {
+    let file = repo("tests/data/routes/effect-ratios.csv");
+    let raw = fit_json(&file, &[]);
+    let w = raw["warnings"].to_string();
+    assert!(
+        w.contains("asymmetric") && w.contains("--effect-scale log"),
+        "{w}"
+    );
+    let logged = fit_json(&file, &["--effect-scale", "log"]);
+    assert!(!logged["warnings"].to_string().contains("asymmetric"));
+}
+
+#[test]
+fn sites_info_reads_a_spreadsheet() {
+    let base = [
+        "sites",
+        "--site",
+        "choir",
+        "--x",
+        "rehearsal_hours",
+        "--y",
+        "breath_hold_s",
+        "--quiet",
+    ];
+    let run = |info: &str| -> Value {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("s.json");
+        pondus()
+            .args(base)
+            .arg(repo("data-examples/choir-participants.csv"))
+            .arg("--info")
+            .arg(repo(info))
+            .arg("--json")
+            .arg(&out)
+            .assert()
+            .success();
+        serde_json::from_str(&std::fs::read_to_string(out).unwrap()).unwrap()
+    };
+    let csv = run("data-examples/choir-sites.csv");
+    for ext in ["xlsx", "ods"] {
+        let sheet = run(&format!("tests/data/routes/choir-sites.{ext}"));
+        let strip = |v: &Value| {
+            let mut v = v.clone();
+            let o = v.as_object_mut().unwrap();
+            o.remove("input");
+            if let Some(j) = o.get_mut("join").and_then(|j| j.as_object_mut()) {
+                j.remove("file");
+            }
+            v.to_string()
+        };
+        assert_eq!(strip(&sheet), strip(&csv), "{ext}");
+        assert!(sheet.to_string().contains("conductor_years"));
+    }
+}
+
+#[test]
+fn plan_moderator_values_read_a_spreadsheet() {
+    let run = |file: &Path| -> Value {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("p.json");
+        pondus()
+            .args([
+                "plan",
+                "--measure",
+                "smd",
+                "--tau2",
+                "0.02",
+                "--k",
+                "8",
+                "--n",
+                "40",
+                "--moderator-effect",
+                "0.01",
+                "--quiet",
+            ])
+            .arg("--moderator-values")
+            .arg(file)
+            .arg("--json")
+            .arg(&out)
+            .assert()
+            .success();
+        serde_json::from_str(&std::fs::read_to_string(out).unwrap()).unwrap()
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let txt = dir.path().join("values.txt");
+    std::fs::write(&txt, "planned_minutes\n10\n20\n30\n40\n50\n60\n15\n45\n").unwrap();
+    let want = run(&txt);
+    for ext in ["xlsx", "ods"] {
+        let got = run(&repo(&format!("tests/data/routes/planned-values.{ext}")));
+        let strip = |v: &Value| {
+            let mut v = v.clone();
+            v.as_object_mut().unwrap().remove("input");
+            v.to_string()
+        };
+        assert_eq!(strip(&got), strip(&want), "{ext}");
+    }
+}
+
+#[test]
+fn columns_lists_the_routes_of_each_measure() {
+    let out = pondus()
+        .args(["columns", "--measure", "smd"])
+        .assert()
+        .success();
+    let text = String::from_utf8_lossy(&out.get_output().stdout).to_string();
+    for route in [
+        "means",
+        "means-se",
+        "t",
+        "f",
+        "p",
+        "median-iqr",
+        "median-range",
+        "r-to-d",
+        "counts-to-d",
+    ] {
+        assert!(
+            text.contains(&format!(". {route}\n")) || text.contains(&format!(". {route} (")),
+            "{route}\n{text}"
+        );
+    }
+    assert!(text.contains("Luo et al. (2018)") && text.contains("Wan et al. (2014)"));
+    let out = pondus().args(["columns"]).assert().success();
+    let all = String::from_utf8_lossy(&out.get_output().stdout).to_string();
+    assert!(all.contains("--measure log-or") && all.contains("ratio-ci"));
+}
