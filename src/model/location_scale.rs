@@ -7,7 +7,7 @@
 //! β is profiled out (generalised least squares at the current τ_i²); α is
 //! found by Fisher scoring with step halving, finished by Newton steps on
 //! the observed information (the numerical Jacobian of the analytic score).
-//! Both designs are standardised internally ([`super::standardise`]), which
+//! Both designs are standardised internally (`standardise`), which
 //! leaves the likelihood unchanged.
 
 use super::standardise;

@@ -215,7 +215,7 @@ pub enum Weights {
 /// `beta0`, `tau20` and log weights `eta0` (one per interval after the first).
 ///
 /// # Formula
-/// Maximises ℓ of [`Prepared::eval`] (Vevea & Hedges 1995, eq. 6, in the
+/// Maximises ℓ of `Prepared::eval` (Vevea & Hedges 1995, eq. 6, in the
 /// meta-regression form) by Newton steps θ ← θ + t(−H)⁻¹∇ℓ, t halved until
 /// ℓ rises, a multiple of the identity added to −H where it is not positive
 /// definite, τ² projected onto [0, ∞) and held at 0 while ∂ℓ/∂τ² ≤ 0 there;

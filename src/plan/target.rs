@@ -11,14 +11,14 @@ pub const BACKTRACK_K: usize = 64;
 
 /// The smallest k in [3, max_k] whose quick power reaches `target`, or None.
 ///
-/// Up to [`SCAN_K`] every k is checked in turn: with a two-level moderator
+/// Up to `SCAN_K` every k is checked in turn: with a two-level moderator
 /// the rounding of share·k makes power not quite monotone in k. Beyond it
 /// (a quick power costs O(k), so a scan to 100,000 took minutes) the
 /// search doubles k until the target is reached, bisects between the last
 /// k that fell short and the first that reached it, then checks the
-/// [`BACKTRACK_K`] values below the answer one by one. The wiggles from
+/// `BACKTRACK_K` values below the answer one by one. The wiggles from
 /// rounding shrink like 1/k and span a few k, so for k above
-/// [`SCAN_K`] this finds the smallest k to within them; O(log max_k + 64)
+/// `SCAN_K` this finds the smallest k to within them; O(log max_k + 64)
 /// power evaluations instead of O(max_k).
 pub fn solve_k(plan: &Plan, target: f64, max_k: usize) -> Option<usize> {
     let ok = |k: usize| plan.with_k(k).quick_power().is_some_and(|p| p >= target);
