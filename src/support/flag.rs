@@ -75,6 +75,8 @@ flags! {
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
     Dpi => "--dpi", ["fit", "plan"];
+    Title => "--title", ["fit"];
+    XLabel => "--x-label", ["fit"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];
