@@ -161,20 +161,21 @@ def shrink_case(name, y, v, cols, mods, inference, beyond, level=0.95):
     h = np.einsum("ij,jk,ik->i", X, C, X)
     se = np.sqrt(B * v + (1 - B) ** 2 * h)
     z = stats.norm.ppf(1 - (1 - level) / 2)
-    # beyond at the average (intercept-only REML fit), as the prediction interval
+    # beyond at the average (intercept-only REML fit), read off the prediction
+    # interval's distribution: Higgins, Thompson & Spiegelhalter (2009, JRSS A
+    # 172:137), t on k - 2 df (k - p - 1 with p = 1) under every inference,
+    # scale sqrt(var + tau^2) with var the unscaled variance of the mean, or the
+    # Knapp-Hartung-scaled one when that is larger (never narrower than the CI).
     ones = np.ones((k, 1))
     t0 = tau2_fit(y, v, ones, True)
     b0, C0 = gls(y, v, ones, t0)
     w0 = 1 / (v + t0)
+    var0 = float(C0[0, 0])
     if inference == "kh":
         s2 = float(np.sum(w0 * (y - b0[0]) ** 2) / (k - 1))
-        se0 = math.sqrt(s2 * C0[0, 0])
-        prob = float(stats.t.sf((beyond - b0[0]) / math.sqrt(se0 ** 2 + t0), k - 1))
-        df = k - 1
-    else:
-        se0 = math.sqrt(C0[0, 0])
-        prob = float(stats.norm.sf((beyond - b0[0]) / math.sqrt(se0 ** 2 + t0)))
-        df = None
+        var0 = max(var0, s2 * var0)
+    df = k - 2
+    prob = float(stats.t.sf((beyond - b0[0]) / math.sqrt(var0 + t0), df))
     return {
         "name": name, "moderators": mods, "inference": inference, "tau2": t2,
         "shrunken": [float(x) for x in est], "shrunken_se": [float(x) for x in se],

@@ -5,6 +5,7 @@
 
 mod answers;
 pub(crate) mod groups;
+mod plots;
 pub(crate) use groups::check_dpi;
 mod reading;
 
