@@ -489,3 +489,71 @@ fn columns_lists_the_routes_of_each_measure() {
     let all = String::from_utf8_lossy(&out.get_output().stdout).to_string();
     assert!(all.contains("--measure log-or") && all.contains("ratio-ci"));
 }
+
+/// The median-range SD of pondus against the published values: Wan et al.
+/// (2014, BMC Med Res Methodol 14:135) Table 1 prints ξ(n), the expected
+/// range of n standard normal values, so that SD ≈ (max − min)/ξ(n);
+/// tests/reference/medians.py copies the table, confirms it by integration
+/// (scipy 1.16.3) and records it in tests/data/reference/medians/. pondus's
+/// SD from a range of 1 must be 1/ξ(n) up to the approximation's gap.
+/// The same file's simulation (numpy 2.3.5, seeded) is checked here too:
+/// every estimator nearly unbiased for normal data, as the papers found.
+#[test]
+fn median_routes_against_wan_table_1_and_the_simulation() {
+    use pondus::effect::smd_routes::{mean_sd_from_iqr, mean_sd_from_range};
+    use pondus::tolerance::WAN_RANGE_DIVISOR_REL;
+    let text = std::fs::read_to_string(repo("tests/data/reference/medians/medians.json")).unwrap();
+    let fx: Value = serde_json::from_str(&text).unwrap();
+    let rows = fx["wan_table_1"].as_array().unwrap();
+    assert_eq!(rows.len(), 49);
+    let mut worst: f64 = 0.0;
+    for row in rows {
+        let n = row["n"].as_f64().unwrap();
+        if n < 10.0 {
+            continue;
+        }
+        let published = row["published"].as_f64().unwrap();
+        let (mean, sd) = mean_sd_from_range(0.0, -0.5, 0.5, n);
+        assert!(mean.abs() < 1e-15);
+        let gap = (1.0 / sd) / published - 1.0;
+        worst = worst.max(gap.abs());
+        assert!(gap.abs() <= WAN_RANGE_DIVISOR_REL, "n = {n}: gap {gap}");
+    }
+    assert!(worst > 0.0);
+    for row in fx["simulation"].as_array().unwrap() {
+        // pondus computes the simulated formulas: the first samples' estimates.
+        let n = row["n"].as_f64().unwrap();
+        for s in row["samples"].as_array().unwrap() {
+            let g = |k: &str| s[k].as_f64().unwrap();
+            let (mean, sd) = mean_sd_from_iqr(g("median"), g("q1"), g("q3"), n);
+            close(
+                "iqr mean",
+                mean,
+                g("iqr_mean"),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+            close("iqr sd", sd, g("iqr_sd"), REFERENCE_REL, REFERENCE_ABS);
+            let (mean, sd) = mean_sd_from_range(g("median"), g("min"), g("max"), n);
+            close(
+                "range mean",
+                mean,
+                g("range_mean"),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+            close("range sd", sd, g("range_sd"), REFERENCE_REL, REFERENCE_ABS);
+        }
+        for route in ["median-iqr", "median-range"] {
+            let r = &row[route];
+            assert!(
+                r["mean_error_in_sd"].as_f64().unwrap().abs() < 0.01,
+                "{row}"
+            );
+            assert!(
+                r["sd_rel_error_vs_sigma"].as_f64().unwrap().abs() < 0.01,
+                "{row}"
+            );
+        }
+    }
+}

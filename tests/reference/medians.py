@@ -114,7 +114,17 @@ def simulate():
             "median-iqr": (mean_iqr(m, q1, q3, n), (q3 - q1) / eta_approx(n)),
             "median-range": (mean_range(m, a, b, n), (b - a) / xi_approx(n)),
         }
-        row = {"n": n}
+        # The first samples' summaries and estimates, so the Rust test can
+        # check that pondus computes these very formulas.
+        row = {"n": n, "samples": [
+            {
+                "median": float(m[i]), "q1": float(q1[i]), "q3": float(q3[i]),
+                "min": float(a[i]), "max": float(b[i]),
+                "iqr_mean": float(est["median-iqr"][0][i]), "iqr_sd": float(est["median-iqr"][1][i]),
+                "range_mean": float(est["median-range"][0][i]), "range_sd": float(est["median-range"][1][i]),
+            }
+            for i in range(3)
+        ]}
         for route, (mean_hat, sd_hat) in est.items():
             row[route] = {
                 "mean_error_in_sd": float(np.mean((mean_hat - xbar) / s)),
@@ -157,7 +167,7 @@ def main():
             print(f"n={r['n']:3d} table {r['published']:.3f} exact {r['exact_by_integration']:.4f} "
                   f"approx {r['approximation']:.4f} ({100 * r['approximation_rel_diff']:+.2f}%)")
     for row in sim:
-        print(row["n"], {k: {kk: round(vv, 4) for kk, vv in v.items()} for k, v in row.items() if k != "n"})
+        print(row["n"], {k: {kk: round(vv, 4) for kk, vv in v.items()} for k, v in row.items() if k not in ("n", "samples")})
 
 
 if __name__ == "__main__":
