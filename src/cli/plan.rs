@@ -527,19 +527,22 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
             .filter(|(_, c)| !c.is_empty())
             .collect()
     };
+    let unit = if pondus::input::sheet::is_spreadsheet(&name) {
+        "cell of the first column"
+    } else {
+        "line"
+    };
     let mut values = Vec::new();
     for (i, (place, cell)) in cells.iter().enumerate() {
         match cell.parse::<f64>() {
             Ok(v) if v.is_finite() => values.push(v),
             _ if i == 0 => {}
-            _ => {
-                return Err(Error::usage(
-                    FLAG,
-                    format!(
-                        "{name}, {place}: '{cell}' is not a finite number; give one number per line"
-                    ),
-                ))
-            }
+            _ => return Err(Error::usage(
+                FLAG,
+                format!(
+                    "{name}, {place}: '{cell}' is not a finite number; give one number per {unit}"
+                ),
+            )),
         }
     }
     if values.len() < 2 {

@@ -458,6 +458,29 @@ fn plan_moderator_values_read_a_spreadsheet() {
             v.to_string()
         };
         assert_eq!(strip(&got), strip(&want), "{ext}");
+        let out = pondus()
+            .args([
+                "plan",
+                "--measure",
+                "smd",
+                "--tau2",
+                "0.02",
+                "--k",
+                "8",
+                "--n",
+                "40",
+            ])
+            .args(["--moderator-effect", "0.01", "--sheet", "typo"])
+            .arg("--moderator-values")
+            .arg(repo(&format!("tests/data/routes/planned-values.{ext}")))
+            .assert()
+            .code(2);
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(
+            err.contains("cell typo!A5: '4O' is not a finite number")
+                && err.contains("one number per cell of the first column"),
+            "{ext}: {err}"
+        );
     }
 }
 

@@ -33,7 +33,8 @@ Workbooks (all data invented):
   tutorial's invented extraction sheet), after a first sheet "read me".
 - tests/data/routes/choir-sites.{xlsx,ods}: sheet "sites" = data-examples/choir-sites.csv.
 - tests/data/routes/planned-values.{xlsx,ods}: sheet "values", a header and
-  eight planned moderator values in column A.
+  eight planned moderator values in column A; sheet "typo", the same with A5
+  typed "4O".
 """
 import csv
 import io
@@ -185,7 +186,9 @@ def main():
     ])
     both("tests/data/routes/choir-sites", [("sites", read_csv("data-examples/choir-sites.csv"), set())])
     values = [["planned_minutes"]] + [[str(v)] for v in (10, 20, 30, 40, 50, 60, 15, 45)]
-    both("tests/data/routes/planned-values", [("values", values, set())])
+    typo = [list(r) for r in values]
+    typo[4][0] = "4O"  # A5: 40 typed with a letter O
+    both("tests/data/routes/planned-values", [("values", values, set()), ("typo", typo, set())])
 
 
 if __name__ == "__main__":
