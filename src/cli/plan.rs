@@ -537,12 +537,14 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
         match cell.parse::<f64>() {
             Ok(v) if v.is_finite() => values.push(v),
             _ if i == 0 => {}
-            _ => return Err(Error::usage(
-                FLAG,
-                format!(
+            _ => {
+                return Err(Error::usage(
+                    FLAG,
+                    format!(
                     "{name}, {place}: '{cell}' is not a finite number; give one number per {unit}"
                 ),
-            )),
+                ))
+            }
         }
     }
     if values.len() < 2 {
