@@ -63,7 +63,7 @@ pub fn estimate(
     design: &Design,
 ) -> Result<(Fitted, Option<ModelFit>)> {
     let clusters = match &studies.cluster_ids {
-        Some(ids) => Some(clusters(ids, &studies.lines, source)?),
+        Some(ids) => Some(clusters(ids, (&studies.lines, &studies.places), source)?),
         None => None,
     };
     let levels = settings.dependence.levels;
@@ -118,17 +118,21 @@ pub fn estimate(
 /// # Errors
 /// [`Error::Model`] naming the file, line and column of the first study
 /// with a missing id (empty or a missing-value mark).
-fn clusters(ids: &(String, Vec<String>), lines: &[u64], source: &str) -> Result<Clusters> {
+fn clusters(
+    ids: &(String, Vec<String>),
+    (lines, places): (&[u64], &crate::input::Places),
+    source: &str,
+) -> Result<Clusters> {
     let (header, ids) = ids;
     let missing: Vec<usize> = (0..ids.len())
         .filter(|&i| crate::input::number::is_missing(&ids[i]))
         .collect();
     if let Some(&first) = missing.first() {
         return Err(Error::Model(format!(
-            "{source}: line {}, column '{header}': the cluster id is missing ({} effect{} without \
+            "{source}: {}: the cluster id is missing ({} effect{} without \
              one). Every effect in the model needs the id of its study, lab or site; fill it in \
              (an effect that is alone in its cluster gets an id of its own) and run again",
-            lines[first],
+            places.cell(lines[first], header),
             missing.len(),
             if missing.len() == 1 { "" } else { "s" }
         )));

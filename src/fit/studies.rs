@@ -10,7 +10,7 @@ use crate::effect::artifact::{self, Corrected};
 use crate::effect::route::Route;
 use crate::effect::{self, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
-use crate::input::{Delimiter, Table};
+use crate::input::{Delimiter, Places, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
@@ -51,6 +51,9 @@ pub struct Studies {
     pub scale: ReadingScale,
     /// What the report says about the table.
     pub table: TableFacts,
+    /// How messages name the table's rows and cells (lines, or sheet
+    /// addresses).
+    pub places: Places,
 }
 
 /// What the report says about the table read.
@@ -98,6 +101,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         &mut effects,
     )?;
     let labels = labels(&table);
+    let places = table.places();
     let mut raw = Vec::with_capacity(settings.moderators.len());
     for (j, spec) in settings.moderators.iter().enumerate() {
         let col = table
@@ -123,10 +127,16 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             ));
         }
         let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
-        raw.push(design::classify(spec, &cells, &table.lines, source)?);
+        raw.push(design::classify(
+            spec,
+            &cells,
+            &table.lines,
+            (&places, &col.header),
+            source,
+        )?);
     }
     let (included, excluded) = include(settings, &effects.rows, &raw, &labels, &table.lines);
-    check_count(source, &included, &excluded)?;
+    check_count(source, &included, &excluded, &places)?;
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
     let mut notes = Vec::with_capacity(included.len());
@@ -149,7 +159,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         routes.push(from);
         checks.push(check);
     }
-    check_range(source, &y, &v, &included, &table.lines)?;
+    check_range(source, &y, &v, &included, (&table.lines, &places))?;
     Ok(Studies {
         y,
         v,
@@ -180,6 +190,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
                 .any(|h| h.eq_ignore_ascii_case(&settings.label.0)),
         },
         included,
+        places,
     })
 }
 
@@ -201,20 +212,23 @@ fn pick(mut all: Vec<String>, included: &[usize]) -> Vec<String> {
         .collect()
 }
 
-/// The label of every row: the label cell, or "line N" when it (or the column) is missing.
+/// The label of every row: the label cell, or "line N" when it (or the
+/// column) is missing ("row N" in a spreadsheet, N being the sheet's row).
 fn labels(table: &Table) -> Vec<String> {
+    let word = if table.sheet.is_some() { "row" } else { "line" };
+    let number = |i: usize| format!("{word} {}", table.lines[i]);
     match table.column(0) {
         Some(c) => (0..table.len())
             .map(|i| {
                 let l = c.get(i);
                 if l.is_empty() {
-                    format!("line {}", table.lines[i])
+                    number(i)
                 } else {
                     l.to_string()
                 }
             })
             .collect(),
-        None => table.lines.iter().map(|l| format!("line {l}")).collect(),
+        None => (0..table.len()).map(number).collect(),
     }
 }
 
@@ -273,7 +287,7 @@ fn check_range(
     y: &[f64],
     v: &[f64],
     included: &[usize],
-    lines: &[u64],
+    (lines, places): (&[u64], &Places),
 ) -> Result<()> {
     let bad = (0..y.len())
         .find(|&i| y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE);
@@ -286,21 +300,26 @@ fn check_range(
         ("sampling variance", v[i])
     };
     Err(Error::Model(format!(
-        "{source}: line {}: the {what} is {value:e}, outside the range pondus can fit (effects \
+        "{source}: {}: the {what} is {value:e}, outside the range pondus can fit (effects \
          up to {MAX_EFFECT:e} in size, sampling variances from {:e} to {MAX_VARIANCE:e}); at \
          this scale the sums of the fit leave the range of floating-point numbers. Express the \
          effects in other units (divide or multiply the columns by a power of ten) and run again",
-        lines[included[i]],
+        places.row(lines[included[i]]),
         1.0 / MAX_VARIANCE
     )))
 }
 
-fn check_count(source: &str, included: &[usize], excluded: &[Excluded]) -> Result<()> {
+fn check_count(
+    source: &str,
+    included: &[usize],
+    excluded: &[Excluded],
+    places: &Places,
+) -> Result<()> {
     if included.is_empty() {
         return Err(Error::Model(format!(
-            "{source}: no study has every value the model needs ({} rows left out; the first: line {}, {})",
+            "{source}: no study has every value the model needs ({} rows left out; the first: {}, {})",
             excluded.len(),
-            excluded[0].line,
+            places.row(excluded[0].line),
             excluded[0].reason
         )));
     }

@@ -429,7 +429,13 @@ fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
     }
     let _ = writeln!(o, "Left out");
     for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
-        let _ = writeln!(o, "  line {}  {}: {}", e.line, e.study, e.reason);
+        let _ = writeln!(
+            o,
+            "  {}  {}: {}",
+            r.input.row_place(e.line),
+            e.study,
+            e.reason
+        );
     }
     if r.excluded.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(

@@ -177,6 +177,27 @@ pub struct InputInfo {
     pub sha256: String,
 }
 
+impl InputInfo {
+    /// How a row of the input is named: `line 14` for CSV, `extraction row
+    /// 14` for a spreadsheet (`line` holds the sheet's row number there).
+    pub fn row_place(&self, line: u64) -> String {
+        match &self.sheet {
+            Some(name) => format!("{} row {line}", crate::input::sheet::quoted_name(name)),
+            None => format!("line {line}"),
+        }
+    }
+
+    /// The heading of a column of input row numbers: `line`, or `sheet row`
+    /// for a spreadsheet.
+    pub fn row_heading(&self) -> &'static str {
+        if self.sheet.is_some() {
+            "sheet row"
+        } else {
+            "line"
+        }
+    }
+}
+
 /// The effect measure.
 #[derive(Debug, Clone, Serialize)]
 pub struct MeasureInfo {
@@ -225,7 +246,7 @@ display_by_id!(MeasureId);
 pub struct Excluded {
     /// Study label.
     pub study: String,
-    /// Line in the file.
+    /// Line in the file (for a spreadsheet, the sheet's row number).
     pub line: u64,
     /// Why it was left out.
     pub reason: String,
@@ -236,7 +257,7 @@ pub struct Excluded {
 pub struct Study {
     /// Label.
     pub study: String,
-    /// Line in the file.
+    /// Line in the file (for a spreadsheet, the sheet's row number).
     pub line: u64,
     /// Effect on the analysis scale.
     pub effect: f64,

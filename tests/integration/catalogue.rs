@@ -79,6 +79,11 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "selection-thin-interval", what: "a p-value interval with fewer than 3 studies", args: "fit {in} --selection 0.025", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "only 2 studies", "--selection-force"] },
     Case { id: "favoured-without-selection", what: "--favoured without --selection", args: "fit {in} --favoured negative", input: Some(PLAIN), stdin: b"", code: 2, words: &["--favoured", "--selection"] },
     Case { id: "plan-negative-tau2", what: "a negative τ² in a plan", args: "plan --measure r --k 20 --n 50 --tau2=-0.1 --moderator-effect 0.1 --moderator-sd 1", input: None, stdin: b"", code: 2, words: &["--tau2"] },
+    Case { id: "sheet-bad-cell", what: "a bad cell in a spreadsheet whose table starts at B3 (column AB)", args: "fit {repo}/tests/data/routes/smd-routes.xlsx --measure smd --sheet shifted", input: None, stdin: b"", code: 2, words: &["cell shifted!AB18", "'ctrl_events'", "2 5"] },
+    Case { id: "sheet-moderator-typo", what: "a text typo among numeric moderator values in a spreadsheet", args: "fit {repo}/tests/data/routes/cells.ods --moderator dose --sheet 'bad dose'", input: None, stdin: b"", code: 2, words: &["cell 'bad dose'!D12", "2.5O"] },
+    Case { id: "sheet-unknown", what: "--sheet names no sheet of the workbook", args: "fit {repo}/tests/data/routes/smd-routes.xls --sheet nope", input: None, stdin: b"", code: 2, words: &["no sheet named 'nope'", "extraction, typos, shifted"] },
+    Case { id: "sheet-on-csv", what: "--sheet with a CSV file", args: "fit {in} --sheet extraction", input: Some(PLAIN), stdin: b"", code: 2, words: &["--sheet", "not a spreadsheet"] },
+    Case { id: "sheet-not-a-workbook", what: "a CSV file saved under a .xlsx name", args: "fit {in.xlsx}", input: Some(PLAIN), stdin: b"", code: 2, words: &["cannot be read as a spreadsheet"] },
 ];
 
 /// The site table of `sites-duplicate-ids`.
@@ -87,17 +92,25 @@ const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
 /// Runs one case; returns the exit code and stderr.
 pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("input.csv");
+    let named_xlsx = case.args.contains("{in.xlsx}");
+    let input = dir.path().join(if named_xlsx {
+        "input.xlsx"
+    } else {
+        "input.csv"
+    });
     if let Some(bytes) = case.input {
         std::fs::write(&input, bytes).unwrap();
     }
+    let root = repo("").display().to_string();
+    let root = root.trim_end_matches('/').to_string();
     std::fs::write(dir.path().join("info.csv"), INFO_DUPLICATE).unwrap();
-    let args: Vec<String> = case
-        .args
-        .split_whitespace()
+    let args: Vec<String> = split_args(case.args)
+        .iter()
         .map(|a| {
-            a.replace("{in}", &input.display().to_string())
+            a.replace("{in.xlsx}", &input.display().to_string())
+                .replace("{in}", &input.display().to_string())
                 .replace("{dir}", &dir.path().display().to_string())
+                .replace("{repo}", &root)
         })
         .collect();
     let o = Command::cargo_bin("pondus")
@@ -107,9 +120,37 @@ pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
         .output()
         .unwrap();
     let err = String::from_utf8_lossy(&o.stderr).into_owned();
-    // The scratch folder's name differs from run to run.
-    let err = err.replace(&dir.path().display().to_string(), "DIR");
+    // The scratch folder's name differs from run to run, the repository's
+    // from machine to machine.
+    let err = err
+        .replace(&dir.path().display().to_string(), "DIR")
+        .replace(&format!("{root}/"), "");
     (o.status.code(), err)
+}
+
+/// Splits a case's command at blanks; a part in single quotes ('bad dose')
+/// is one argument, without its quotes.
+fn split_args(args: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut quoted: Option<String> = None;
+    for part in args.split_whitespace() {
+        match quoted.as_mut() {
+            Some(q) => {
+                q.push(' ');
+                q.push_str(part.trim_end_matches('\''));
+                if part.ends_with('\'') {
+                    out.push(quoted.take().unwrap_or_default());
+                }
+            }
+            None if part.starts_with('\'') && !(part.len() > 1 && part.ends_with('\'')) => {
+                quoted = Some(part.trim_start_matches('\'').to_string());
+            }
+            None if part.starts_with('\'') => out.push(part.trim_matches('\'').to_string()),
+            None => out.push(part.to_string()),
+        }
+    }
+    out.extend(quoted);
+    out
 }
 
 /// The first line of a message, as the catalogue shows it; for a list of
