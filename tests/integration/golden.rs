@@ -66,6 +66,7 @@ const CASES: &[Case] = &[
     // Heterogeneity as an answer (tutorial B5 and C3, methods §17).
     Case { id: "programme-threshold-shrink", steps: &["fit data-examples/programme-sites.csv --measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=20,delivery=volunteer --at dosage_hours=60,delivery=staff --beyond 0.2 --shrink --json out.json --table table.csv --report report.html --forest sites.svg"] },
     Case { id: "consortium-all-subsets", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --all-subsets --json out.json --report report.html"] },
+    Case { id: "consortium-spread-by", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --spread-by mode --json out.json --report report.html --forest forest.svg --bubble bubble.svg"] },
     // Effects from whatever each study reports, straight from the spreadsheet (tutorial, part E).
     Case { id: "classroom-routes", steps: &[
         "columns --measure smd",
