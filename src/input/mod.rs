@@ -264,16 +264,24 @@ pub fn is_utf16(bytes: &[u8]) -> bool {
 /// returns that delimiter and the bytes with the line's text blanked (its
 /// line break kept, so line numbers stay those of the file).
 pub fn separator_line(bytes: &[u8]) -> (Option<u8>, std::borrow::Cow<'_, [u8]>) {
+    match separator_text(bytes) {
+        Some((d, end)) => (Some(d), std::borrow::Cow::Owned(bytes[end..].to_vec())),
+        None => (None, std::borrow::Cow::Borrowed(bytes)),
+    }
+}
+
+/// The delimiter a first line `sep=X` names and the length of that line's
+/// text (up to, not including, its `\n`), for readers that skip it in a
+/// stream (see [`separator_line`]).
+pub fn separator_text(bytes: &[u8]) -> Option<(u8, usize)> {
     let end = bytes
         .iter()
         .position(|&b| b == b'\n')
         .unwrap_or(bytes.len());
     let first = bytes[..end].strip_suffix(b"\r").unwrap_or(&bytes[..end]);
     match first {
-        [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => {
-            (Some(*d), std::borrow::Cow::Owned(bytes[end..].to_vec()))
-        }
-        _ => (None, std::borrow::Cow::Borrowed(bytes)),
+        [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => Some((*d, end)),
+        _ => None,
     }
 }
 
