@@ -47,6 +47,9 @@ pub struct Fitted {
     /// The raw Knapp–Hartung factor s² of the intercept-only model behind
     /// the average (the model's own without moderators).
     pub null_scale_factor: f64,
+    /// Each study's τ̂_i² under the location-scale model (`--spread-by`,
+    /// set by [`super::spread::fit`]); None: one τ² for all.
+    pub tau2_each: Option<Vec<f64>>,
 }
 
 /// Fits the model, and the intercept-only model when there are moderators
@@ -108,6 +111,7 @@ pub fn estimate(
             fit,
             working,
             null_scale_factor,
+            tau2_each: None,
         },
         null,
     ))

@@ -44,6 +44,8 @@ pub struct Studies {
     pub cluster_ids: Option<(String, Vec<String>)>,
     /// Every moderator's values over all table rows, typed.
     pub raw: Vec<RawModerator>,
+    /// Every `--spread-by` characteristic's values over all table rows, typed.
+    pub spread_raw: Vec<RawModerator>,
     /// Rows left out, with the reason, in file order.
     pub excluded: Vec<Excluded>,
     /// How results are read: the measure's scale, or as analysed when the
@@ -85,6 +87,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         first_measure,
         first_moderator,
         first_artifact,
+        spread,
         order,
         cluster,
     } = columns;
@@ -135,7 +138,14 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             source,
         )?);
     }
-    let (included, excluded) = include(settings, &effects.rows, &raw, &labels, &table.lines);
+    let spread_raw = spread_columns(settings, &table, &spread, &raw, &places, source)?;
+    let (included, excluded) = include(
+        settings,
+        &effects.rows,
+        (&raw, &spread_raw),
+        &labels,
+        &table.lines,
+    );
     check_count(source, &included, &excluded, &places)?;
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
@@ -172,6 +182,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         order: order_cells.map(|(h, c)| (h, pick(c, &included))),
         cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
         raw,
+        spread_raw,
         excluded,
         scale: if artifacts.any() {
             ReadingScale::Same
@@ -192,6 +203,41 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         included,
         places,
     })
+}
+
+/// The `--spread-by` characteristics' values, typed like moderators: a
+/// characteristic that is also a moderator shares the moderator's values.
+///
+/// # Errors
+/// Those of [`design::classify`].
+fn spread_columns(
+    settings: &FitSettings,
+    table: &Table,
+    columns: &[Option<usize>],
+    raw: &[RawModerator],
+    places: &Places,
+    source: &str,
+) -> Result<Vec<RawModerator>> {
+    let specs = &settings.answers.spread_by;
+    specs
+        .iter()
+        .zip(columns)
+        .map(|(spec, col)| match col {
+            Some(j) => {
+                let col = table.column(*j).expect("required column present");
+                let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
+                design::classify(spec, &cells, &table.lines, (places, &col.header), source)
+            }
+            None => {
+                let m = settings
+                    .moderators
+                    .iter()
+                    .position(|m| m.name == spec.name)
+                    .expect("a spread term without a column of its own is a moderator");
+                Ok(raw[m].clone())
+            }
+        })
+        .collect()
 }
 
 /// A requested column's header and cells (one per table row), trimmed or as read.
@@ -233,11 +279,11 @@ fn labels(table: &Table) -> Vec<String> {
 }
 
 /// Splits the rows into those the model uses and those left out (no
-/// effect, or a missing moderator value), in file order.
+/// effect, or a missing moderator or spread value), in file order.
 fn include(
     settings: &FitSettings,
     rows: &[RowEffect],
-    raw: &[RawModerator],
+    (raw, spread_raw): (&[RawModerator], &[RawModerator]),
     labels: &[String],
     lines: &[u64],
 ) -> (Vec<usize>, Vec<Excluded>) {
@@ -251,7 +297,16 @@ fn include(
                 .iter()
                 .zip(raw)
                 .find(|(_, r)| !r.present(i))
-                .map(|(m, _)| format!("missing moderator {}", m.name)),
+                .map(|(m, _)| format!("missing moderator {}", m.name))
+                .or_else(|| {
+                    settings
+                        .answers
+                        .spread_by
+                        .iter()
+                        .zip(spread_raw)
+                        .find(|(_, r)| !r.present(i))
+                        .map(|(m, _)| format!("missing spread characteristic {}", m.name))
+                }),
         };
         match reason {
             Some(reason) => excluded.push(Excluded {

@@ -1,7 +1,7 @@
 //! The terminal report: plain words, aligned columns, no colour.
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
-use super::{answers, diagnostics, interpret, multilevel, sensitivity};
+use super::{answers, diagnostics, interpret, multilevel, sensitivity, spread};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, MeasureId, ModeratorKind, Reading};
 use crate::support::flag::Flag;
@@ -53,6 +53,7 @@ const SECTIONS: &[Section] = &[
     moderator_answer,
     coefficients,
     heterogeneity,
+    spread::section,
     multilevel::dependent_effects,
     average,
     predictions,
@@ -193,7 +194,12 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         Some(_) => " (log scale)",
         None => "",
     };
-    let _ = writeln!(o, "Coefficients{scale}");
+    let from = if r.spread.is_some() {
+        " — location-scale model, Wald z"
+    } else {
+        ""
+    };
+    let _ = writeln!(o, "Coefficients{scale}{from}");
     let tw = r
         .coefficients
         .iter()

@@ -32,6 +32,7 @@ mod predict;
 mod routes;
 mod sensitivity;
 mod sites;
+mod spread;
 
 pub use answers::*;
 pub use clusters::*;
@@ -43,6 +44,7 @@ pub use predict::*;
 pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
+pub use spread::*;
 
 use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
@@ -147,6 +149,12 @@ pub struct FitReport {
     /// omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub model_set: Option<ModelSet>,
+    /// The location-scale model: how the spread of the true effects depends
+    /// on the `--spread-by` characteristics (omitted otherwise). `coefficients`
+    /// then come from this model (Wald z), `tau2` and `heterogeneity` from
+    /// the model with one τ².
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub spread: Option<Spread>,
 }
 
 /// Tool name and version.

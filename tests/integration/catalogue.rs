@@ -27,6 +27,8 @@ pub(crate) struct Case {
 const PLAIN: &[u8] =
     b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.015,3\nd,0.25,0.01,4\n";
 
+const SPREAD: &[u8] = b"study,effect,variance,c,g\ns1,0.1,0.01,1,a\ns2,0.5,0.02,1,a\ns3,0.2,0.01,1,b\ns4,0.9,0.03,1,b\ns5,0.3,0.02,1,c\ns6,0.7,0.01,1,b\n";
+
 pub(crate) const CASES: &[Case] = &[
     Case { id: "missing-file", what: "the input file does not exist", args: "fit {dir}/nope.csv", input: None, stdin: b"", code: 2, words: &["nope.csv"] },
     Case { id: "directory", what: "the input path is a folder", args: "fit {dir}", input: None, stdin: b"", code: 2, words: &["directory"] },
@@ -69,6 +71,13 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "shrink-three-level", what: "--shrink under the three-level model", args: "fit {in} --cluster lab --shrink", input: Some(b"study,lab,effect,variance\na,L1,0.1,0.01\nb,L1,0.3,0.02\nc,L2,0.2,0.01\nd,L2,0.25,0.01\ne,L3,0.4,0.02\n"), stdin: b"", code: 2, words: &["--shrink", "--cluster"] },
     Case { id: "all-subsets-too-few-studies", what: "--all-subsets with too few studies for AICc", args: "fit {in} --moderator m --all-subsets", input: Some(b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\nd,0.25,0.01,4\n"), stdin: b"", code: 2, words: &["--all-subsets", "too few"] },
     Case { id: "all-subsets-no-moderators", what: "--all-subsets without moderators", args: "fit {in} --all-subsets", input: Some(PLAIN), stdin: b"", code: 2, words: &["--all-subsets", "--moderator"] },
+    Case { id: "spread-by-unknown-column", what: "a --spread-by name that is not a column", args: "fit {in} --spread-by lab", input: Some(PLAIN), stdin: b"", code: 2, words: &["lab", "--spread-by"] },
+    Case { id: "spread-by-constant", what: "a spread characteristic with the same value in every study", args: "fit {in} --spread-by c", input: Some(SPREAD), stdin: b"", code: 2, words: &["'c'", "same value"] },
+    Case { id: "spread-by-single-study-level", what: "a level of a spread characteristic with one study", args: "fit {in} --spread-by g", input: Some(SPREAD), stdin: b"", code: 2, words: &["level 'c'", "single study"] },
+    Case { id: "spread-by-too-few-studies", what: "too few studies for the mean and spread terms", args: "fit {in} --moderator m --spread-by m", input: Some(PLAIN), stdin: b"", code: 2, words: &["too few", "at least 5"] },
+    Case { id: "spread-by-estimator", what: "--spread-by with a moment estimator of τ²", args: "fit {in} --spread-by m --tau2 dl", input: Some(PLAIN), stdin: b"", code: 2, words: &["--tau2", "reml"] },
+    Case { id: "spread-by-kh", what: "--spread-by with Knapp–Hartung tests", args: "fit {in} --spread-by m --inference kh", input: Some(PLAIN), stdin: b"", code: 2, words: &["--inference", "Wald z"] },
+    Case { id: "spread-by-cluster", what: "--spread-by with clustered effects", args: "fit {in} --spread-by m --cluster study", input: Some(PLAIN), stdin: b"", code: 2, words: &["--cluster", "--spread-by"] },
     Case { id: "stdin-empty", what: "an empty standard input", args: "fit -", input: None, stdin: b"", code: 2, words: &["empty"] },
     Case { id: "sites-missing-id", what: "a participant row without a site id", args: "sites {in} --site site --x x --y y --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\n,2,3\ns1,3,5\n"), stdin: b"", code: 2, words: &["line 3", "site"] },
     Case { id: "sites-duplicate-ids", what: "a site table with the same id twice", args: "sites {in} --site site --x x --y y --info {dir}/info.csv --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\ns1,2,3\ns1,3,5\ns1,4,4\ns1,5,7\n"), stdin: b"", code: 2, words: &["line 3", "already has a row on line 2"] },

@@ -724,3 +724,54 @@ fn a_sep_first_line_names_the_delimiter_in_the_streaming_sites_reader() {
     assert_eq!(code, Some(2), "{err}");
     assert!(err.contains("line 4"), "{err}");
 }
+
+#[test]
+fn plan_with_a_huge_max_k_answers_without_simulating_beyond_its_budget() {
+    // A tiny effect: no k up to 100,000 reaches the target. The search and
+    // the power at the proposed k ran simulations of 2,000 data sets of up
+    // to 100,000 sites each (minutes of silence); now they are bounded by
+    // k × data sets ≤ 20 million and the note says so.
+    let args = [
+        "plan",
+        "--measure",
+        "r",
+        "--n",
+        "30",
+        "--tau2",
+        "0.02",
+        "--moderator-sd",
+        "1",
+        "--moderator-effect",
+        "0.002",
+        "--target-power",
+        "0.99",
+        "--max-k",
+        "100000",
+        "--json",
+        "-",
+    ];
+    let j = json("", &args);
+    assert!(j["simulation"].is_null(), "{j}");
+    assert!(
+        j["k_needed"].is_null() && j["k_needed_simulated"].is_null(),
+        "{j}"
+    );
+    let notes = j["notes"].to_string();
+    assert!(notes.contains("not checked by simulation"), "{notes}");
+    // The power shown is the F approximation's, labelled as such.
+    assert_eq!(j["power"], j["power_analytic"], "{j}");
+    assert!(
+        j["power_method"]
+            .as_str()
+            .unwrap()
+            .contains("F approximation"),
+        "{j}"
+    );
+    // Within the budget the simulation still runs (100 data sets × 2,000 sites).
+    let mut small = args.to_vec();
+    small.extend(["--k", "2000", "--simulate", "100"]);
+    small.retain(|a| *a != "--target-power" && *a != "0.99");
+    small.retain(|a| *a != "--max-k" && *a != "100000");
+    let j = json("", &small);
+    assert_eq!(j["simulation"]["simulations"], 100, "{j}");
+}
