@@ -167,6 +167,7 @@ pub fn parse_sheet(
             name,
             first_column: col0,
         }),
+        decimal: super::DecimalChoice::POINT,
     })
 }
 

@@ -18,6 +18,7 @@
 //! [`crate::render::sites_effects`]) for `pondus fit`.
 
 mod assemble;
+mod decimal;
 mod first_pass;
 mod fits;
 mod index;
@@ -104,10 +105,14 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         missing_lines: pass.missing_lines.clone(),
         passes: if robust.is_some() { 2 } else { 1 },
     };
-    usable(
+    let mut report = usable(
         source,
         assemble(input_info, s, layout, fitted, excluded, robust),
-    )
+    )?;
+    if let Some(note) = pass.decimal.as_ref().and_then(|d| d.note(source)) {
+        report.notes.insert(0, note);
+    }
+    Ok(report)
 }
 
 /// Runs the per-site stage on a per-site moments table (see
@@ -126,7 +131,7 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
             ),
         ));
     }
-    let table = moments_table::read_moments(source, bytes)?;
+    let table = moments_table::read_moments(source, bytes, s.decimal)?;
     let layout = table.layout;
     // The moments table names its variables by role (x, c1…, w, y).
     let s = &SitesSettings {
@@ -137,6 +142,7 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         covariates: (1..=layout.covariates).map(|i| format!("c{i}")).collect(),
         robust: false,
         center_within: s.center_within,
+        decimal: s.decimal,
     };
     let (fitted, excluded) = fit_sites(table.sites, layout, s);
     let input_info = SitesInput {
@@ -148,10 +154,14 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         missing_lines: vec![],
         passes: 1,
     };
-    usable(
+    let mut report = usable(
         source,
         assemble(input_info, s, layout, fitted, excluded, None),
-    )
+    )?;
+    if let Some(note) = table.decimal.note(source) {
+        report.notes.insert(0, note);
+    }
+    Ok(report)
 }
 
 /// Opens the row file for one pass.
@@ -207,6 +217,7 @@ mod tests {
             covariates: vec![],
             robust: false,
             center_within: false,
+            decimal: None,
         }
     }
 
