@@ -53,8 +53,10 @@ pub struct SitesArgs {
         value_name = "COL"
     )]
     pub covariates: Vec<String>,
-    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
-    #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
+    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows
+    /// (--site, --x, --y, --w and --covariate may be repeated from the query: they are checked against
+    /// the table and name its variables in the output).
+    #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["robust", "center_within"])]
     pub moments: Option<PathBuf>,
     /// CSV file (or .xlsx, .xlsm, .xls, .ods spreadsheet) of site characteristics, one row per site, joined by site id.
     #[arg(help_heading = "Site characteristics", long, value_name = "SITES.csv")]
@@ -247,7 +249,7 @@ impl SitesArgs {
         }
         let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
         let info_key = self.info_key.clone().unwrap_or_else(|| {
-            if self.moments.is_some() {
+            if site.is_empty() {
                 "site".into()
             } else {
                 site.clone()

@@ -312,3 +312,95 @@ fn decimal_commas_in_sites_rows_and_plan_values() {
     let v2: Value = serde_json::from_slice(&o2.stdout).unwrap();
     assert_eq!(v["power"], v2["power"]);
 }
+
+#[test]
+fn sites_moments_accepts_the_raw_rows_flags_and_checks_them() {
+    let dir = TempDir::new().unwrap();
+    let m = repo("tests/golden/inputs/moments.csv");
+    let json = dir.path().join("m.json");
+    let out = dir.path().join("m-effects.csv");
+    let text = stdout(pondus().args([
+        "sites",
+        "--moments",
+        m.to_str().unwrap(),
+        "--site",
+        "choir",
+        "--x",
+        "rehearsal_hours",
+        "--y",
+        "breath_hold_s",
+        "--out",
+        out.to_str().unwrap(),
+        "--json",
+        json.to_str().unwrap(),
+    ]));
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        flat.contains("Slope breath_hold_s on rehearsal_hours"),
+        "{text}"
+    );
+    assert!(flat.contains("x = rehearsal_hours"), "{text}");
+    let v: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(v["model"]["x"], "rehearsal_hours");
+    // The same effects as without the names.
+    let plain = dir.path().join("plain-effects.csv");
+    pondus()
+        .args([
+            "sites",
+            "--moments",
+            m.to_str().unwrap(),
+            "--out",
+            plain.to_str().unwrap(),
+        ])
+        .assert()
+        .success();
+    assert_eq!(std::fs::read(&out).unwrap(), std::fs::read(&plain).unwrap());
+    // Flags the table cannot match: a clear usage error.
+    for (args, says) in [
+        (vec!["--w", "age"], "no w columns"),
+        (vec!["--covariate", "wind"], "the moments table has 0"),
+    ] {
+        let o = pondus()
+            .args([
+                "sites",
+                "--moments",
+                m.to_str().unwrap(),
+                "--out",
+                plain.to_str().unwrap(),
+            ])
+            .args(args)
+            .output()
+            .unwrap();
+        assert_eq!(o.status.code(), Some(2));
+        assert!(String::from_utf8_lossy(&o.stderr).contains(says));
+    }
+}
+
+#[test]
+fn sites_fit_without_w_gives_a_complete_answer() {
+    let dir = TempDir::new().unwrap();
+    let html = dir.path().join("s.html");
+    let choir = repo("data-examples/choir-participants.csv");
+    let text = stdout(pondus().args([
+        "sites",
+        choir.to_str().unwrap(),
+        "--site",
+        "choir",
+        "--x",
+        "rehearsal_hours",
+        "--y",
+        "breath_hold_s",
+        "--fit",
+        "--report",
+        html.to_str().unwrap(),
+    ]));
+    assert!(text.contains("\nThe pooled slope across sites\n"), "{text}");
+    let page = std::fs::read_to_string(&html).unwrap();
+    let start = page.find("<div class=\"answer\"").unwrap();
+    let answer = &page[start..start + page[start..].find("</div>").unwrap()];
+    assert!(
+        answer.contains("<strong>Average slope</strong>: across 29 sites"),
+        "{answer}"
+    );
+    assert!(answer.contains("prediction interval"), "{answer}");
+}
