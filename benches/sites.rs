@@ -84,6 +84,7 @@ fn main() {
         covariates: vec![],
         robust: false,
         center_within: false,
+        decimal: None,
     };
     let t = Instant::now();
     let report = from_rows("raw.csv", RowInput::File(&path), &settings).expect("runs");

@@ -161,6 +161,7 @@ pub fn sites_csv(data: &[u8]) {
         },
         robust: false,
         center_within: sel & 4 != 0,
+        decimal: None,
     };
     let input = pondus::sites::RowInput::Stream(Box::new(csv));
     if let Ok(r) = pondus::sites::from_rows("fuzz.csv", input, &settings) {

@@ -11,6 +11,7 @@ pub mod outputs;
 pub mod plan;
 pub mod sites;
 pub mod sql;
+pub mod style;
 mod temps;
 
 use clap::{Parser, Subcommand, ValueEnum};
@@ -26,6 +27,15 @@ pub struct Cli {
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
+    /// Colour the terminal report: auto (on a terminal, unless NO_COLOR is set), always or never.
+    #[arg(
+        long = "color",
+        value_enum,
+        global = true,
+        default_value_t,
+        value_name = "WHEN"
+    )]
+    pub color: style::ColorChoice,
 }
 
 /// The subcommands.
@@ -55,6 +65,7 @@ pub enum Command {
 /// [`Error::Usage`] naming a flag and its fix, or any library error of the run.
 pub fn run(cli: &Cli) -> Result<()> {
     temps::install();
+    style::set(cli.color);
     match &cli.command {
         Command::Fit(args) => fit::run_fit(&args.check()?),
         Command::Plan(args) => plan::run_plan(&args.check()?),
@@ -117,6 +128,21 @@ impl From<InferenceArg> for Inference {
             InferenceArg::KhFloor => Inference::KhFloor,
             InferenceArg::Z => Inference::Z,
         }
+    }
+}
+
+/// A `--decimal` value: `,` (or `comma`) or `.` (or `point`).
+///
+/// # Errors
+/// A message listing the accepted values.
+pub fn parse_decimal(s: &str) -> std::result::Result<pondus::input::number::DecimalMark, String> {
+    use pondus::input::number::DecimalMark;
+    match s.trim() {
+        "," | "comma" => Ok(DecimalMark::Comma),
+        "." | "point" => Ok(DecimalMark::Point),
+        other => Err(format!(
+            "'{other}' is not a decimal mark; give ',' (or comma) or '.' (or point)"
+        )),
     }
 }
 

@@ -376,11 +376,17 @@ impl Outputs {
     /// Adds the terminal report, printed on standard output. Labels in it
     /// come from data files, so control characters and bidirectional
     /// overrides are replaced first ([`pondus::support::text::terminal`]);
-    /// any styling of the terminal text must be added after this step.
+    /// the colour of `--color` ([`super::style::paint`]) is added after
+    /// this step, so it is the only escape the text can hold.
     pub fn print(&mut self, text: impl Into<String>) {
         let text = text.into();
         let safe = pondus::support::text::terminal(&text).into_owned();
-        self.add("", &Target::Stdout, safe);
+        let shown = if super::style::colour() {
+            super::style::paint(&safe)
+        } else {
+            safe
+        };
+        self.add("", &Target::Stdout, shown);
     }
 
     /// Writes every output. First each file is prepared (see

@@ -75,6 +75,16 @@ pub struct PlanArgs {
     /// File of planned moderator values, one number per line (a first non-numeric line is a header); repeated in order when k differs.
     #[arg(help_heading = "Planned design", long, value_name = "FILE")]
     pub moderator_values: Option<PathBuf>,
+    /// The decimal mark of the numbers in the --moderator-values file: ',' or '.' [default: '.', or
+    /// ',' when the file has unambiguous decimal commas].
+    #[arg(
+        help_heading = "Planned design",
+        long,
+        value_name = "MARK",
+        value_parser = super::parse_decimal,
+        requires = "moderator_values"
+    )]
+    pub decimal: Option<pondus::input::number::DecimalMark>,
     /// The sheet of a spreadsheet --moderator-values file (its first column is read) [default: the first sheet].
     #[arg(
         help_heading = "Planned design",
@@ -234,7 +244,7 @@ impl PlanArgs {
             self.alpha > 0.0 && self.alpha <= 0.5,
             "give a level between 0 and 0.5, e.g. --alpha 0.05",
         )?;
-        let design = self.design()?;
+        let (design, values_note) = self.design()?;
         if let Some(t) = self.target_power {
             finite(
                 "--target-power",
@@ -298,6 +308,7 @@ impl PlanArgs {
                 max_n: self.max_n,
                 simulations,
                 seed: self.seed.unwrap_or(1),
+                input_notes: values_note.into_iter().collect(),
             },
             text: !self.quiet && json != Some(Target::Stdout) && report != Some(Target::Stdout),
             json,
@@ -418,8 +429,9 @@ impl PlanArgs {
     ///
     /// # Errors
     /// [`Error::Usage`] for an invalid value, or an unreadable values file.
-    fn design(&self) -> Result<ModeratorDesign> {
-        Ok(match (self.moderator_sd, self.share, &self.moderator_values) {
+    fn design(&self) -> Result<(ModeratorDesign, Option<String>)> {
+        let mut note = None;
+        let design = match (self.moderator_sd, self.share, &self.moderator_values) {
             (Some(sd), None, None) => {
                 finite("--moderator-sd", sd, sd > 0.0, "give a positive SD")?;
                 ModeratorDesign::Numeric { sd }
@@ -429,7 +441,10 @@ impl PlanArgs {
                 ModeratorDesign::TwoLevel { share }
             }
             (None, None, Some(path)) => {
-                ModeratorDesign::Values(read_moderator_values(path, self.sheet.as_deref())?)
+                let (values, decimal) =
+                    read_moderator_values(path, self.sheet.as_deref(), self.decimal)?;
+                note = decimal;
+                ModeratorDesign::Values(values)
             }
             _ => {
                 return Err(Error::usage(
@@ -437,7 +452,8 @@ impl PlanArgs {
                     "give one of --moderator-sd (numeric moderator), --share (two-level moderator) or --moderator-values FILE",
                 ))
             }
-        })
+        };
+        Ok((design, note))
     }
 
     /// The number of simulated data sets: `--simulate`, or the default for `--test kh`.
@@ -503,7 +519,11 @@ impl PlanArgs {
 /// Reads planned moderator values: one number per line, blank lines
 /// skipped, a first line that is not a number taken as a header; from a
 /// spreadsheet (by its name's ending), the first column of `sheet`.
-fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<Vec<f64>> {
+fn read_moderator_values(
+    path: &std::path::Path,
+    sheet: Option<&str>,
+    decimal: Option<pondus::input::number::DecimalMark>,
+) -> Result<(Vec<f64>, Option<String>)> {
     const FLAG: &str = "--moderator-values";
     let name = path.display().to_string();
     let cells: Vec<(String, String)> = if pondus::input::sheet::is_spreadsheet(&name) {
@@ -532,9 +552,10 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
     } else {
         "line"
     };
+    let (mark, note) = values_decimal(&name, &cells, decimal)?;
     let mut values = Vec::new();
     for (i, (place, cell)) in cells.iter().enumerate() {
-        match cell.parse::<f64>() {
+        match pondus::input::number::normalise(cell, mark).parse::<f64>() {
             Ok(v) if v.is_finite() => values.push(v),
             _ if i == 0 => {}
             _ => {
@@ -557,7 +578,60 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
             ),
         ));
     }
-    Ok(values)
+    Ok((values, note))
+}
+
+/// The decimal mark of a `--moderator-values` file: forced, or a comma when
+/// some value has an unambiguous decimal comma and none a decimal point
+/// (the same rule as for data files), with the note that states it.
+///
+/// # Errors
+/// [`Error::Usage`] asking for `--decimal` when the file mixes marks or
+/// every comma could separate thousands.
+fn values_decimal(
+    name: &str,
+    cells: &[(String, String)],
+    forced: Option<pondus::input::number::DecimalMark>,
+) -> Result<(pondus::input::number::DecimalMark, Option<String>)> {
+    use pondus::input::number::{DecimalMark, Decision, Detector};
+    if let Some(mark) = forced {
+        let note = format!(
+            "The planned values in {name} were read with '{}' as the decimal mark (--decimal {}).",
+            mark.symbol(),
+            mark.symbol()
+        );
+        return Ok((mark, Some(note)));
+    }
+    let mut d = Detector::default();
+    for (i, (_, cell)) in cells.iter().enumerate() {
+        d.see(cell, i as u64 + 1, "values");
+    }
+    let ask = |what: String| {
+        Error::usage(
+            "--decimal",
+            format!("{name}: {what}; run again with --decimal , for decimal commas or --decimal . for decimal points"),
+        )
+    };
+    match d.decide() {
+        Decision::Mark(DecimalMark::Point) => Ok((DecimalMark::Point, None)),
+        Decision::Mark(mark) => Ok((
+            mark,
+            Some(format!(
+                "The planned values in {name} were read with a decimal comma ({} values such as '{}'); \
+                 give --decimal . if the commas separate thousands.",
+                d.commas.0 + d.ambiguous.0,
+                d.commas.1.map(|e| e.text).unwrap_or_default()
+            )),
+        )),
+        Decision::Mixed { comma, point } => Err(ask(format!(
+            "line {} has '{}' with a decimal comma and line {} has '{}' with a point",
+            comma.line, comma.text, point.line, point.text
+        ))),
+        Decision::Ambiguous(cell) => Err(ask(format!(
+            "line {}: '{}' could be a decimal comma or a thousands separator",
+            cell.line, cell.text
+        ))),
+    }
 }
 
 /// Runs a checked `plan`: compute, draw, write.
@@ -597,7 +671,7 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
         );
     }
     if run.text {
-        out.print(render::plan::render(&report));
+        out.print(render::plan::render_at(&report, super::style::text_width()));
     }
     out.write()
 }

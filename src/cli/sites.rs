@@ -53,8 +53,10 @@ pub struct SitesArgs {
         value_name = "COL"
     )]
     pub covariates: Vec<String>,
-    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows.
-    #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["site", "x", "y", "w", "covariates", "robust", "center_within"])]
+    /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows
+    /// (--site, --x, --y, --w and --covariate may be repeated from the query: they are checked against
+    /// the table and name its variables in the output).
+    #[arg(help_heading = "Per-site regressions", long, value_name = "MOMENTS.csv", conflicts_with_all = ["robust", "center_within"])]
     pub moments: Option<PathBuf>,
     /// CSV file (or .xlsx, .xlsm, .xls, .ods spreadsheet) of site characteristics, one row per site, joined by site id.
     #[arg(help_heading = "Site characteristics", long, value_name = "SITES.csv")]
@@ -67,6 +69,10 @@ pub struct SitesArgs {
         requires = "info"
     )]
     pub sheet: Option<String>,
+    /// The decimal mark of the numbers in the input and --info files: ',' or '.' [default: '.',
+    /// or ',' when a semicolon- or tab-separated file has unambiguous decimal commas].
+    #[arg(help_heading = "Per-site regressions", long, value_name = "MARK", value_parser = super::parse_decimal)]
+    pub decimal: Option<pondus::input::number::DecimalMark>,
     /// Id column of the --info table [default: the --site column's name, or 'site' with --moments].
     #[arg(
         help_heading = "Site characteristics",
@@ -243,7 +249,7 @@ impl SitesArgs {
         }
         let to_stdout = outs.iter().any(|(_, t)| **t == Target::Stdout);
         let info_key = self.info_key.clone().unwrap_or_else(|| {
-            if self.moments.is_some() {
+            if site.is_empty() {
                 "site".into()
             } else {
                 site.clone()
@@ -259,6 +265,7 @@ impl SitesArgs {
                 covariates: self.covariates.clone(),
                 robust: self.robust,
                 center_within: self.center_within,
+                decimal: self.decimal,
             },
             info: self.info.clone().map(|p| (p, info_key)),
             info_sheet: self.sheet.clone(),
@@ -312,7 +319,14 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     if let Some((path, key)) = &run.info {
         let src = Source::File(path.clone());
         let sheet = run.info_sheet.as_deref();
-        sites::join::join(&mut report, &src.name(), &src.read_all()?, key, sheet)?;
+        sites::join::join(
+            &mut report,
+            &src.name(),
+            &src.read_all()?,
+            key,
+            sheet,
+            run.settings.decimal,
+        )?;
     }
     if let Some((options, chars)) = &run.fit {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);
@@ -353,7 +367,10 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
         );
     }
     if run.text {
-        out.print(render::sites::render(&report));
+        out.print(render::sites::render_at(
+            &report,
+            super::style::text_width(),
+        ));
     }
     out.write()?;
     // Without the terminal report (--quiet, or an output on standard

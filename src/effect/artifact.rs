@@ -218,6 +218,7 @@ pub fn requests(settings: &ArtifactSettings, measure: Measure) -> Result<Vec<Col
             header,
             required: true,
             purpose: format!("the {role} of each study ({flag})"),
+            label: false,
             hint: format!("Check the column named in {flag}; headers are matched exactly, or ignoring case when unique."),
         })
         .collect())

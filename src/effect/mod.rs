@@ -422,6 +422,7 @@ pub struct ColumnMap {
     overrides: BTreeMap<String, String>,
     reading: EffectReading,
     sheet: Option<String>,
+    decimal: Option<crate::input::number::DecimalMark>,
 }
 
 impl ColumnMap {
@@ -447,6 +448,7 @@ impl ColumnMap {
             overrides,
             reading: EffectReading::default(),
             sheet: None,
+            decimal: None,
         })
     }
 
@@ -454,6 +456,18 @@ impl ColumnMap {
     /// first sheet when None; ignored for CSV).
     pub fn with_sheet(self, sheet: Option<String>) -> Self {
         ColumnMap { sheet, ..self }
+    }
+
+    /// The same map reading numbers with the decimal mark `decimal`
+    /// (`--decimal`; None: the point, or a decimal comma detected in a
+    /// semicolon- or tab-separated file).
+    pub fn with_decimal(self, decimal: Option<crate::input::number::DecimalMark>) -> Self {
+        ColumnMap { decimal, ..self }
+    }
+
+    /// The decimal mark forced with `--decimal` (None: chosen from the file).
+    pub fn decimal(&self) -> Option<crate::input::number::DecimalMark> {
+        self.decimal
     }
 
     /// The sheet to read from a spreadsheet (None: the first).
@@ -488,6 +502,7 @@ impl ColumnMap {
             .map(|r| ColumnRequest {
                 header: self.header(r.name),
                 required: r.required,
+                label: false,
                 purpose: format!(
                     "{} ({}) with {} {}",
                     r.meaning,

@@ -41,6 +41,7 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         header: settings.label.0.clone(),
         required: settings.label.1,
         purpose: "study labels".into(),
+        label: true,
         hint: format!("Name the label column with {} <header>.", Flag::Label),
     }];
     let first_measure = requests.len();
@@ -80,7 +81,13 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         requests.len() - 1
     });
     Ok(Columns {
-        table: input::read_table(source, bytes, &requests, settings.columns.sheet())?,
+        table: input::read_table(
+            source,
+            bytes,
+            &requests,
+            settings.columns.sheet(),
+            settings.columns.decimal(),
+        )?,
         first_measure,
         first_moderator,
         first_artifact,
@@ -97,6 +104,7 @@ fn named(header: &str, what: &str, flag: Flag) -> ColumnRequest {
         header: header.to_string(),
         required: true,
         purpose: format!("{what} ({flag})"),
+        label: false,
         hint: format!(
             "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
         ),

@@ -21,6 +21,19 @@ use crate::support::format::{interval, num, p as p_txt};
 /// "at least ten studies for each characteristic modelled"; common practice, cited from memory).
 pub const STUDIES_PER_TERM: usize = 10;
 
+/// The caution that moderator effects are associations across studies.
+pub const ASSOCIATION_CAUTION: &str =
+    "Moderator effects are associations across studies: they are observational even when \
+     every study is a randomised trial, can be confounded by other study characteristics, \
+     and do not show how the effect changes for individuals (Thompson & Higgins 2002, \
+     Stat. Med. 21:1559).";
+
+/// The caution that decisions rest with the responsible professionals.
+pub const DECISION_CAUTION: &str =
+    "These results summarise published or supplied estimates. Decisions about patients, pupils, \
+     programmes or policy rest with the responsible professionals and local guidance, not with \
+     this output.";
+
 /// What the messages are about: the outputs of the earlier stages.
 #[derive(Debug, Clone, Copy)]
 pub struct Inputs<'a> {
@@ -124,6 +137,9 @@ fn data_notes(settings: &FitSettings, studies: &Studies) -> Vec<String> {
             if one { "its" } else { "their" },
             list(&corrected, 5)
         ));
+    }
+    if let Some(n) = &studies.table.decimal_note {
+        notes.push(n.clone());
     }
     if studies.table.blank_rows > 0 {
         notes.push(match studies.table.blank_rows {
@@ -263,13 +279,7 @@ fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
                 if terms == 1 { "" } else { "s" }
             ));
         }
-        c.push(
-            "Moderator effects are associations across studies: they are observational even when \
-             every study is a randomised trial, can be confounded by other study characteristics, \
-             and do not show how the effect changes for individuals (Thompson & Higgins 2002, \
-             Stat. Med. 21:1559)."
-                .into(),
-        );
+        c.push(ASSOCIATION_CAUTION.into());
         if terms > 1 {
             c.push(
                 "Several coefficients are tested: their individual p-values are not adjusted for \
@@ -292,12 +302,7 @@ fn cautions(k: usize, p: usize, inference: Inference) -> Vec<String> {
             }
         ));
     }
-    c.push(
-        "These results summarise published or supplied estimates. Decisions about patients, pupils, \
-         programmes or policy rest with the responsible professionals and local guidance, not with \
-         this output."
-            .into(),
-    );
+    c.push(DECISION_CAUTION.into());
     c
 }
 

@@ -73,6 +73,8 @@ pub struct TableFacts {
     pub label_column: Option<String>,
     /// Whether a header matches the label column's name (ignoring case).
     pub label_found: bool,
+    /// The note stating the decimal mark, when it is not the default point.
+    pub decimal_note: Option<String>,
 }
 
 /// Computes the effects, applies artifact corrections, types the moderators
@@ -194,6 +196,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             sheet: table.sheet.as_ref().map(|s| s.name.clone()),
             rows: table.len(),
             blank_rows: table.blank_rows,
+            decimal_note: table.decimal.note(&table.source),
             label_column: table.column(0).map(|c| c.header.clone()),
             label_found: table
                 .headers

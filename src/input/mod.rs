@@ -4,13 +4,16 @@
 //! Only the columns an analysis asks for are kept, in a compact text arena,
 //! so a million-row file costs little more than its requested cells.
 
+mod decimal;
 pub mod number;
 mod places;
 pub mod sheet;
 
+pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
 pub use places::Places;
 
 use crate::error::{CellProblem, Error, Result};
+use number::DecimalMark;
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
@@ -81,6 +84,10 @@ pub struct ColumnRequest {
     pub purpose: String,
     /// How to fix a missing column (used in messages).
     pub hint: String,
+    /// Whether the column holds labels or ids (text, even when it looks
+    /// like a number): the decimal mark is neither chosen from it nor
+    /// applied to it.
+    pub label: bool,
 }
 
 /// One requested column's cells, stored back to back.
@@ -125,6 +132,8 @@ pub struct Table {
     /// The sheet the table was read from (None for CSV); `lines` then holds
     /// the sheet's row numbers.
     pub sheet: Option<SheetOrigin>,
+    /// The decimal mark the numbers were read with, and why.
+    pub decimal: DecimalChoice,
 }
 
 /// Where in a workbook a table was read from.
@@ -345,6 +354,20 @@ pub(crate) fn format_error(source: &str, message: impl Into<String>) -> Error {
 /// is not UTF-8, a repeated header or a row whose field count differs from
 /// the header's; [`Error::MissingColumn`] when a required column is absent.
 pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Result<Table> {
+    parse_table_with(source, bytes, requests, None)
+}
+
+/// [`parse_table`] with the decimal mark forced (`Some`) or chosen from the
+/// file ([`choose_decimal`]).
+///
+/// # Errors
+/// Those of [`parse_table`] and [`choose_decimal`].
+pub fn parse_table_with(
+    source: &str,
+    bytes: &[u8],
+    requests: &[ColumnRequest],
+    decimal: Option<DecimalMark>,
+) -> Result<Table> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     if is_utf16(bytes) {
         return Err(format_error(
@@ -404,6 +427,15 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
             "the file has a header row but no data rows; add one row per study",
         ));
     }
+    let labels: Vec<bool> = requests.iter().map(|r| r.label).collect();
+    let decimal = choose_decimal(
+        source,
+        delimiter,
+        decimal,
+        &mut columns,
+        &labels,
+        &rows.lines,
+    )?;
     Ok(Table {
         source: source.to_string(),
         delimiter,
@@ -412,6 +444,7 @@ pub fn parse_table(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Re
         lines: rows.lines,
         blank_rows: rows.blank_rows,
         sheet: None,
+        decimal,
     })
 }
 
@@ -426,11 +459,12 @@ pub fn read_table(
     bytes: &[u8],
     requests: &[ColumnRequest],
     sheet: Option<&str>,
+    decimal: Option<DecimalMark>,
 ) -> Result<Table> {
     if sheet::is_spreadsheet(source) {
         sheet::parse_sheet(source, bytes, requests, sheet)
     } else {
-        parse_table(source, bytes, requests)
+        parse_table_with(source, bytes, requests, decimal)
     }
 }
 
@@ -642,6 +676,7 @@ mod tests {
             header: h.into(),
             required,
             purpose: "test".into(),
+            label: false,
             hint: String::new(),
         }
     }

@@ -200,6 +200,7 @@ pub fn parse_sheet(
             name,
             first_column: col0,
         }),
+        decimal: super::DecimalChoice::POINT,
     })
 }
 
@@ -272,6 +273,10 @@ mod tests {
             columns: Vec::new(),
             lines: vec![4, 5],
             blank_rows: 0,
+            decimal: crate::input::DecimalChoice {
+                mark: crate::input::number::DecimalMark::Point,
+                how: crate::input::DecimalHow::Default,
+            },
             sheet: Some(crate::input::SheetOrigin {
                 name: "shifted".into(),
                 first_column: 1,

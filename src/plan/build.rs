@@ -7,7 +7,7 @@ use super::{
     confirm_k, no_progress, power_ceiling_in_n, simulate, solve_k, solve_n, ModeratorDesign, Plan,
 };
 use crate::error::{Error, Result};
-use crate::result::plan::{PlanReport, PlanTest, PowerRow, Simulated, SimulatedK};
+use crate::result::plan::{KNeeded, PlanReport, PlanTest, PowerRow, Simulated, SimulatedK};
 use crate::support::flag::Flag;
 use serde::Serialize;
 
@@ -39,6 +39,9 @@ pub struct PlanRequest {
     pub simulations: Option<usize>,
     /// Seed of the simulation.
     pub seed: u64,
+    /// Notes on how the input was read (the decimal mark of a
+    /// `--moderator-values` file), shown first among the report's notes.
+    pub input_notes: Vec<String>,
 }
 
 fn design_words(d: &ModeratorDesign) -> String {
@@ -88,7 +91,8 @@ pub fn build_with_progress(
 ) -> Result<PlanReport> {
     let plan = &req.plan;
     let info = information(plan)?;
-    let mut notes = repetition_notes(plan);
+    let mut notes = req.input_notes.clone();
+    notes.extend(repetition_notes(plan));
     let simulation = match req.simulations {
         Some(n) if within_budget(plan.k, n) => {
             Some(simulate_planned(plan, n, req.seed, progress, &mut notes)?)
@@ -147,6 +151,7 @@ pub fn build_with_progress(
         simulation,
         power_f_approximation: f_approx,
         target_power: req.target_power,
+        k_needed_answer: k_answer(plan.test, req, k_needed, k_needed_simulated.as_ref()),
         k_needed,
         k_needed_simulated,
         n_needed,
@@ -322,10 +327,8 @@ fn confirm_needed_k(
     }
     let c = confirm_k(plan, target, start, req.max_k, n, req.seed, progress)?;
     match (c.k, c.bracketed) {
-        (Some(k), true) => notes.push(format!(
-            "the noncentral F approximation proposes k = {}; simulation ({} data sets per k, seed {}) puts the crossing at k = {k}",
-            k_needed.map_or("none".into(), |k| k.to_string()), n, req.seed
-        )),
+        // The answer and its check are the report's `k_needed_answer`.
+        (Some(_), true) => {}
         (Some(k), false) => notes.push(format!(
             "simulation reached the target at k = {k} but the search stopped after {} simulated values of k before confirming that k − 1 falls short",
             c.evaluated.len()
@@ -336,6 +339,43 @@ fn confirm_needed_k(
         )),
     }
     Ok(Some(c))
+}
+
+/// The one answer for k (solving for k with a target power): for `kh`
+/// the simulated k, the approximation's k as its check; for `z` the exact
+/// noncentral chi-square k.
+fn k_answer(
+    test: PlanTest,
+    req: &PlanRequest,
+    k_needed: Option<usize>,
+    simulated: Option<&SimulatedK>,
+) -> Option<KNeeded> {
+    if req.target_power.is_none() || req.solve != SolveFor::K {
+        return None;
+    }
+    Some(match (test, simulated) {
+        (PlanTest::Kh, Some(c)) => KNeeded {
+            k: c.k,
+            at_most: c.k.is_some() && !c.bracketed,
+            method: "simulation".into(),
+            check_k: k_needed,
+            check_method: Some("noncentral F approximation".into()),
+        },
+        (PlanTest::Kh, None) => KNeeded {
+            k: k_needed,
+            at_most: false,
+            method: "noncentral F approximation".into(),
+            check_k: None,
+            check_method: None,
+        },
+        (PlanTest::Z, _) => KNeeded {
+            k: k_needed,
+            at_most: false,
+            method: "noncentral chi-square".into(),
+            check_k: None,
+            check_method: None,
+        },
+    })
 }
 
 /// The quick power over k: about 12 values of k from 3 to twice the

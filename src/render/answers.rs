@@ -35,7 +35,7 @@ pub const BEYOND_CAUTION: &str = "These chances are about the true effect of a n
     responsible professionals and local guidance.";
 
 /// `--beyond`: the probability at the average and at each `--at` point.
-pub fn beyond(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn beyond(r: &FitReport, cx: &Ctx, o: &mut String) {
     let Some(b) = &r.beyond else {
         return;
     };
@@ -62,7 +62,7 @@ pub fn beyond(r: &FitReport, _: &Ctx, o: &mut String) {
         "  From {}, as the prediction interval.",
         distribution_words(b.df)
     );
-    o.push_str(&wrap(BEYOND_CAUTION, "  ", 72));
+    o.push_str(&wrap(BEYOND_CAUTION, "  ", cx.width - 2));
     let _ = writeln!(o);
 }
 
@@ -121,7 +121,7 @@ pub fn shrunken(r: &FitReport, cx: &Ctx, o: &mut String) {
             lpad(&format!("{:.2}", sh.own_weight), 10)
         );
     }
-    o.push_str(&wrap(SHRINK_NOTE, "  ", 72));
+    o.push_str(&wrap(SHRINK_NOTE, "  ", cx.width - 2));
     let _ = writeln!(o);
 }
 
@@ -151,7 +151,7 @@ pub fn terms_text(terms: &[String]) -> String {
 }
 
 /// `--all-subsets`: the ranked models, importance and averaged coefficients.
-pub fn model_set(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn model_set(r: &FitReport, cx: &Ctx, o: &mut String) {
     let Some(ms) = &r.model_set else {
         return;
     };
@@ -221,6 +221,6 @@ pub fn model_set(r: &FitReport, _: &Ctx, o: &mut String) {
             num(a.se)
         );
     }
-    o.push_str(&wrap(MODEL_SET_CAUTION, "  ", 72));
+    o.push_str(&wrap(MODEL_SET_CAUTION, "  ", cx.width - 2));
     let _ = writeln!(o);
 }

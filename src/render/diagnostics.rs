@@ -186,7 +186,7 @@ pub fn influence(r: &FitReport, _: &Ctx, o: &mut String) {
 }
 
 /// The permutation test of the moderators (`--permutations`).
-pub fn permutation(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn permutation(r: &FitReport, cx: &Ctx, o: &mut String) {
     if let Some(p) = &r.permutation {
         let how = if p.exact {
             format!(
@@ -247,7 +247,7 @@ pub fn permutation(r: &FitReport, _: &Ctx, o: &mut String) {
                 num(smallest)
             ),
             "  ",
-            70,
+            cx.width - 2,
         ));
         let _ = writeln!(o);
     }
@@ -275,7 +275,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                 fmt::p(a.p)
             ),
             "  ",
-            70,
+            cx.width - 2,
         ));
         o.push_str(&wrap(
             &format!(
@@ -285,7 +285,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                 fmt::p(s.rank_test.p)
             ),
             "  ",
-            70,
+            cx.width - 2,
         ));
         let t = &s.trim_fill;
         let mut tf = format!(
@@ -306,7 +306,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                 fmt::interval(rd.ci.ci_low, rd.ci.ci_high)
             );
         }
-        o.push_str(&wrap(&tf, "  ", 70));
+        o.push_str(&wrap(&tf, "  ", cx.width - 2));
         for (name, reg, what) in [
             ("PET", &s.pet, "standard error"),
             ("PEESE", &s.peese, "variance"),
@@ -329,7 +329,7 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                     num(reg.slope.se)
                 ),
                 "  ",
-                70,
+                cx.width - 2,
             ));
         }
         o.push_str(&wrap(
@@ -349,10 +349,10 @@ pub fn small_study(r: &FitReport, cx: &Ctx, o: &mut String) {
                 }
             ),
             "  ",
-            70,
+            cx.width - 2,
         ));
         for c in &s.cautions {
-            let w = wrap(c, "    ", 68);
+            let w = wrap(c, "    ", cx.width - 4);
             let _ = write!(o, "  - {}", w.trim_start());
         }
         let _ = writeln!(o);
@@ -420,7 +420,7 @@ pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
              shows how the evidence built up; its p-values are repeated looks at growing data \
              and are not adjusted for that.",
             "  ",
-            70,
+            cx.width - 2,
         ));
         let _ = writeln!(o);
     }

@@ -22,7 +22,7 @@ fn test_text(t: &ContrastTest) -> String {
 }
 
 /// The artifact corrections of `r-corrected`, study by study.
-pub fn artifacts(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn artifacts(r: &FitReport, cx: &Ctx, o: &mut String) {
     if let Some(a) = &r.artifacts {
         let _ = writeln!(
             o,
@@ -31,7 +31,7 @@ pub fn artifacts(r: &FitReport, _: &Ctx, o: &mut String) {
         for c in &a.corrections {
             let _ = writeln!(o, "  - {c}");
         }
-        o.push_str(&wrap(&a.method, "  ", 70));
+        o.push_str(&wrap(&a.method, "  ", cx.width - 2));
         let _ = writeln!(
             o,
             "  mean r over the studies (unweighted): observed {}, corrected {}",
@@ -46,7 +46,7 @@ pub fn artifacts(r: &FitReport, _: &Ctx, o: &mut String) {
             pad("corrected r", 13)
         );
         for s in a.studies.iter().take(MAX_LISTED_STUDIES) {
-            let label: String = s.study.chars().take(26).collect();
+            let label = super::layout::clip(&s.study, 26);
             let _ = writeln!(
                 o,
                 "  {}{}{}{}",
@@ -186,7 +186,7 @@ pub fn level_contrasts(r: &FitReport, cx: &Ctx, o: &mut String) {
 }
 
 /// The Johnson–Neyman regions of significance (`--regions`).
-pub fn regions(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn regions(r: &FitReport, cx: &Ctx, o: &mut String) {
     let it = &r.interpretation;
     if !it.regions_of_significance.is_empty() {
         let _ = writeln!(o, "Regions of significance (Johnson–Neyman)");
@@ -229,7 +229,7 @@ pub fn regions(r: &FitReport, _: &Ctx, o: &mut String) {
                     )
                 }
             );
-            o.push_str(&wrap(&g.words, "    ", 68));
+            o.push_str(&wrap(&g.words, "    ", cx.width - 4));
             if !g.held.is_empty() {
                 let _ = writeln!(o, "    held: {}", g.held);
             }
@@ -239,7 +239,7 @@ pub fn regions(r: &FitReport, _: &Ctx, o: &mut String) {
 }
 
 /// The average and τ² without and with the moderators.
-pub fn picture(r: &FitReport, _: &Ctx, o: &mut String) {
+pub fn picture(r: &FitReport, cx: &Ctx, o: &mut String) {
     let it = &r.interpretation;
     if let Some(p) = &it.picture {
         let _ = writeln!(o, "How the picture changes");
@@ -274,7 +274,7 @@ pub fn picture(r: &FitReport, _: &Ctx, o: &mut String) {
             pad(&num(p.tau2_without), 32),
             num(p.tau2_with)
         );
-        o.push_str(&wrap(&p.words, "  ", 70));
+        o.push_str(&wrap(&p.words, "  ", cx.width - 2));
         let _ = writeln!(o);
     }
 }

@@ -1,14 +1,30 @@
-//! Layout of the terminal report: padding, clipping and wrapping of plain
+//! Layout of the terminal reports: padding, clipping and wrapping of plain
 //! text in columns, the cap on listed studies, and what every terminal
 //! section is given ([`Ctx`], [`Section`]). The section renderers
 //! (`text`, `multilevel`, `interpret`, `diagnostics`) import this module and
 //! none of each other.
+//!
+//! One style for `fit`, `plan` and `sites`: a title line
+//! (`pondus VERSION · what`) over a rule, facts as `Label       value`
+//! lines, headings without a colon on a line of their own, the content
+//! indented by two blanks, lists as `  - item` with wrapped lines hanging
+//! under the item's first word, every line at most [`Ctx::width`]
+//! characters where it can be broken (tables keep their rows whole), and
+//! the cautions once, at the end.
 
 use crate::result::FitReport;
 use std::fmt::Write as _;
 
 /// Studies listed one by one in the terminal at most; above this, `--table` has them.
 pub const MAX_LISTED_STUDIES: usize = 40;
+
+/// The width of the terminal reports when nothing else is asked: 100
+/// characters (the binary passes the terminal's width when it is narrower).
+pub const TEXT_WIDTH: usize = 100;
+
+/// The narrowest width the reports are laid out for; a narrower terminal
+/// gets this width (and wraps the lines itself).
+pub const MIN_TEXT_WIDTH: usize = 60;
 
 /// What every terminal section is given besides the report.
 #[derive(Debug, Clone)]
@@ -17,16 +33,79 @@ pub struct Ctx {
     pub level_pct: String,
     /// Whether the model has moderators.
     pub has_mods: bool,
+    /// Line width in characters for wrapped text.
+    pub width: usize,
+    /// Whether the report is part of another one (the second stage of
+    /// `sites`): no title line and no cautions, which the outer report
+    /// prints once.
+    pub embedded: bool,
 }
 
 impl Ctx {
-    /// The context of `r`'s terminal report.
-    pub fn of(r: &FitReport) -> Ctx {
+    /// The context of `r`'s terminal report at `width` characters
+    /// (at least [`MIN_TEXT_WIDTH`]).
+    pub fn of(r: &FitReport, width: usize) -> Ctx {
         Ctx {
             level_pct: format!("{}%", (r.model.level * 100.0 * 1e6).round() / 1e6),
             has_mods: !r.model.moderators.is_empty(),
+            width: width.max(MIN_TEXT_WIDTH),
+            embedded: false,
         }
     }
+
+    /// `text` as a paragraph indented by two blanks, wrapped at the width.
+    pub fn para(&self, text: &str) -> String {
+        wrap(text, "  ", self.width - 2)
+    }
+}
+
+/// The title line and its rule: `pondus VERSION · what`.
+pub fn title(o: &mut String, what: &str, width: usize) {
+    let _ = writeln!(o, "pondus {} · {what}", env!("CARGO_PKG_VERSION"));
+    let _ = writeln!(o, "{}", "─".repeat(width.clamp(MIN_TEXT_WIDTH, 72)));
+}
+
+/// A fact line: the label (at most 10 characters, so that at least two
+/// blanks follow it) in a column of 12 and the value wrapped under itself
+/// at `width`.
+pub fn fact(o: &mut String, label: &str, value: &str, width: usize) {
+    debug_assert!(label.chars().count() <= 10, "fact label too long: {label}");
+    let w = wrap(value, &" ".repeat(12), width.saturating_sub(12).max(20));
+    let first = w.trim_start();
+    let _ = write!(o, "{}{first}", pad(label, 12));
+    if w.is_empty() {
+        o.push('\n');
+    }
+}
+
+/// A heading on its own line (no colon; the content follows indented).
+pub fn heading(o: &mut String, text: &str) {
+    let _ = writeln!(o, "{text}");
+}
+
+/// A list under a heading: each item as `  - item`, wrapped at `width`
+/// with its further lines under the item's first word; then a blank line.
+/// Nothing when `items` is empty.
+pub fn bullets(o: &mut String, head: &str, items: &[String], width: usize) {
+    if items.is_empty() {
+        return;
+    }
+    heading(o, head);
+    for it in items {
+        let w = wrap(it, "    ", width.saturating_sub(4).max(20));
+        let _ = write!(o, "  - {}", w.trim_start());
+    }
+    let _ = writeln!(o);
+}
+
+/// Every line of `o` without trailing blanks (padding of a last column).
+pub fn trim_lines(o: &str) -> String {
+    let mut out = String::with_capacity(o.len());
+    for line in o.lines() {
+        out.push_str(line.trim_end());
+        out.push('\n');
+    }
+    out
 }
 
 /// One section of the terminal report: appends its lines (nothing when the
@@ -69,30 +148,66 @@ pub(super) fn lpad(s: &str, w: usize) -> String {
     }
 }
 
-/// `s` shortened to `w` characters, the last one an ellipsis.
-pub(super) fn clip(s: &str, w: usize) -> String {
-    if width(s) <= w {
-        s.to_string()
-    } else {
-        let t: String = s.chars().take(w.saturating_sub(1)).collect();
-        format!("{t}…")
+/// `s` shortened to `w` characters by an ellipsis in the middle, keeping
+/// both ends ("Laboratory fo…Dunmarrow 2019"): the end of a label (a year,
+/// a site, a letter) often tells rows apart. The start keeps the larger
+/// half. The figures shorten labels the same way.
+pub fn clip(s: &str, w: usize) -> String {
+    let n = width(s);
+    if n <= w {
+        return s.to_string();
     }
+    if w < 4 {
+        let t: String = s.chars().take(w.saturating_sub(1)).collect();
+        return format!("{t}…");
+    }
+    let keep = w - 1;
+    let tail = keep / 2;
+    let head = keep - tail;
+    let start: String = s.chars().take(head).collect();
+    let end: String = s.chars().skip(n - tail).collect();
+    format!("{}…{}", start.trim_end(), end.trim_start())
+}
+
+/// Whether a word is a lone relation or operator sign (`<`, `=`, `+`, …),
+/// which stays on the line of the words on both sides of it when text is
+/// wrapped ("p < 0.0001" is never split after "<").
+fn is_operator(word: &str) -> bool {
+    matches!(
+        word,
+        "<" | ">" | "=" | "≤" | "≥" | "≈" | "+" | "-" | "−" | "×" | "·" | "/" | "±"
+    )
 }
 
 /// `text` wrapped at word boundaries into lines of at most `width`
-/// characters, each line starting with `indent` and ending in a newline.
+/// characters (a longer unbreakable run gets a line of its own), each line
+/// starting with `indent` and ending in a newline. A lone operator sign is
+/// kept together with the words on both sides of it.
 pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
+    let mut units: Vec<String> = Vec::new();
+    let mut glue = false;
+    for word in text.split_whitespace() {
+        let op = is_operator(word);
+        match units.last_mut() {
+            Some(last) if glue || op => {
+                last.push(' ');
+                last.push_str(word);
+            }
+            _ => units.push(word.to_string()),
+        }
+        glue = op;
+    }
     let mut out = String::new();
     let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+    for unit in &units {
+        if !line.is_empty() && line.chars().count() + 1 + unit.chars().count() > width {
             let _ = writeln!(out, "{indent}{line}");
             line.clear();
         }
         if !line.is_empty() {
             line.push(' ');
         }
-        line.push_str(word);
+        line.push_str(unit);
     }
     if !line.is_empty() {
         let _ = writeln!(out, "{indent}{line}");
@@ -114,14 +229,35 @@ mod tests {
     }
 
     #[test]
-    fn clipping_ends_in_an_ellipsis() {
-        assert_eq!(clip("abcdef", 4), "abc…");
+    fn clipping_keeps_both_ends() {
+        assert_eq!(clip("abcdef", 4), "ab…f");
         assert_eq!(clip("abc", 4), "abc");
+        assert_eq!(
+            clip("Laboratory for Cognition Dunmarrow 2019", 20),
+            "Laboratory…rrow 2019"
+        );
+        assert_eq!(clip("abcdef", 2), "a…");
+    }
+
+    #[test]
+    fn facts_and_bullets_wrap_at_the_width() {
+        let mut o = String::new();
+        fact(&mut o, "Data", "one two three four five six", 32);
+        assert_eq!(o, "Data        one two three four\n            five six\n");
+        let mut o = String::new();
+        bullets(&mut o, "Notes", &["alpha beta gamma delta".into()], 20);
+        assert_eq!(o, "Notes\n  - alpha beta gamma\n    delta\n\n");
+        for line in o.lines() {
+            assert!(width(line) <= 20);
+        }
     }
 
     #[test]
     fn wrapping_keeps_words_whole_and_indents_every_line() {
         assert_eq!(wrap("one two three", "  ", 7), "  one two\n  three\n");
         assert_eq!(wrap("", "  ", 7), "");
+        // A relation sign stays with both of its sides.
+        assert_eq!(wrap("so p < 0.0001 here", "", 8), "so\np < 0.0001\nhere\n");
+        assert_eq!(wrap("1/(v + τ²) ok", "", 6), "1/(v + τ²)\nok\n");
     }
 }

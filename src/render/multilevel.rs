@@ -58,7 +58,7 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
                     fmt::p(t.p)
                 ),
                 "  ",
-                70,
+                cx.width - 2,
             ));
         }
     } else {
@@ -76,12 +76,12 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
         o.push_str(&wrap(
             &format!("Moderator terms vary: {}", parts.join(", ")),
             "  ",
-            70,
+            cx.width - 2,
         ));
     }
     if let Some(text) = &c.robust {
         let _ = writeln!(o, "Cluster-robust inference");
-        o.push_str(&wrap(text, "  ", 70));
+        o.push_str(&wrap(text, "  ", cx.width - 2));
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  p",

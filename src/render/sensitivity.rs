@@ -69,7 +69,7 @@ pub fn selection(r: &FitReport, cx: &Ctx, o: &mut String) {
             fmt::p(s.test.p)
         ),
         "  ",
-        70,
+        cx.width - 2,
     ));
     let _ = writeln!(o);
 }
@@ -139,11 +139,11 @@ pub fn sensitivity(r: &FitReport, cx: &Ctx, o: &mut String) {
         }
     }
     for a in &s.answer {
-        let w = wrap(a, "    ", 68);
+        let w = wrap(a, "    ", cx.width - 4);
         let _ = write!(o, "  * {}", w.trim_start());
     }
     for c in &s.cautions {
-        let w = wrap(c, "    ", 68);
+        let w = wrap(c, "    ", cx.width - 4);
         let _ = write!(o, "  - {}", w.trim_start());
     }
     let _ = writeln!(o);

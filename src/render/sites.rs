@@ -1,6 +1,9 @@
 //! The terminal summary of `pondus sites`: a pure function of the
 //! [`SitesReport`].
 
+use super::layout::{
+    bullets, clip, fact, heading, pad, title, trim_lines, width, MIN_TEXT_WIDTH, TEXT_WIDTH,
+};
 use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
@@ -61,26 +64,28 @@ fn fit_facts(out: &mut String, f: &FitReport) {
     );
 }
 
-/// Renders the summary: the run, the sites left out and the join, the
-/// per-site table, notes, and the second stage.
+/// Renders the summary at the default width
+/// ([`super::layout::TEXT_WIDTH`]).
 pub fn render(r: &SitesReport) -> String {
-    let mut o = String::new();
-    run_lines(&mut o, r);
-    exclusions_and_join(&mut o, r);
-    site_table(&mut o, r);
-    if !r.notes.is_empty() {
-        let _ = writeln!(o);
-        for n in &r.notes {
-            o.push_str(&super::layout::wrap(n, "  ", 88));
-        }
-    }
-    if let Some(st) = &r.stages {
-        stages(&mut o, r, st);
-    }
-    o
+    render_at(r, TEXT_WIDTH)
 }
 
-/// What was read and how each site's slope was estimated.
+/// Renders the summary wrapped at `width` characters: the run, the sites
+/// left out and the join, the per-site table, notes, the second stage and
+/// the cautions (once, those of the second stage's fits included).
+pub fn render_at(r: &SitesReport, width: usize) -> String {
+    let width = width.max(MIN_TEXT_WIDTH);
+    let mut o = String::new();
+    run_lines(&mut o, r, width);
+    exclusions_and_join(&mut o, r, width);
+    site_table(&mut o, r);
+    bullets(&mut o, "Notes", &r.notes, width);
+    if let Some(st) = &r.stages {
+        stages(&mut o, r, st, width);
+    }
+    trim_lines(&o)
+}
+
 /// "; N blank rows skipped" when the reader skipped wholly blank rows.
 fn blank_rows_text(n: u64) -> String {
     match n {
@@ -90,18 +95,35 @@ fn blank_rows_text(n: u64) -> String {
     }
 }
 
-fn run_lines(o: &mut String, r: &SitesReport) {
+/// What was read and how each site's slope was estimated.
+fn run_lines(o: &mut String, r: &SitesReport, width: usize) {
     let m = &r.model;
-    let _ = writeln!(o, "pondus sites: per-site regressions in {}", r.input.file);
-    let mut model = format!("  slope: {} on {}", m.y, m.x);
+    title(o, "per-site regressions", width);
+    let data = if r.input.kind == SitesInputKind::Moments {
+        format!(
+            "{} (a per-site moments table, {} rows{})",
+            r.input.file,
+            r.input.rows,
+            blank_rows_text(r.input.blank_rows)
+        )
+    } else {
+        format!(
+            "{} ({} rows read, {} left out for missing values{})",
+            r.input.file,
+            r.input.rows,
+            r.input.missing_rows,
+            blank_rows_text(r.input.blank_rows)
+        )
+    };
+    fact(o, "Data", &data, width);
+    let mut slope = format!("{} on {}", m.y, m.x);
     if !m.covariates.is_empty() {
-        let _ = write!(model, ", adjusted for {}", m.covariates.join(", "));
+        let _ = write!(slope, ", adjusted for {}", m.covariates.join(", "));
     }
-    let _ = writeln!(o, "{model}");
+    fact(o, "Slope", &slope, width);
     if let Some(w) = &m.w {
-        let _ = writeln!(
-            o,
-            "  product term: {y} = b0 + b1·{x} + b2·{w} + b3·{x}·{w}{cov}; interaction = b3{c}",
+        let product = format!(
+            "{y} = b0 + b1·{x} + b2·{w} + b3·{x}·{w}{cov}; interaction = b3{c}",
             y = m.y,
             x = m.x,
             cov = if m.covariates.is_empty() {
@@ -115,158 +137,160 @@ fn run_lines(o: &mut String, r: &SitesReport) {
                 ""
             }
         );
+        fact(o, "Model", &product, width);
     }
-    let _ = writeln!(
-        o,
-        "  standard errors: {}",
-        if m.se_type == SeType::Hc3 {
-            "HC3 (second pass over the rows)"
-        } else {
-            "classical OLS"
-        }
-    );
-    if r.input.kind == SitesInputKind::Moments {
-        let _ = writeln!(
-            o,
-            "  input: a per-site moments table with {} rows{}",
-            r.input.rows,
-            blank_rows_text(r.input.blank_rows)
-        );
+    let se = if m.se_type == SeType::Hc3 {
+        "HC3 (second pass over the rows)"
     } else {
-        let _ = writeln!(
-            o,
-            "  rows read: {} ({} left out for missing values{})",
-            r.input.rows,
-            r.input.missing_rows,
-            blank_rows_text(r.input.blank_rows)
-        );
-    }
-    let _ = writeln!(
+        "classical OLS"
+    };
+    fact(o, "SE", se, width);
+    fact(
         o,
-        "  sites estimated: {}, left out: {}",
-        r.sites.len(),
-        r.excluded.len()
+        "Sites",
+        &format!("{} estimated, {} left out", r.sites.len(), r.excluded.len()),
+        width,
     );
+    let _ = writeln!(o);
 }
 
 /// The sites left out, those kept without a product term, and the join
 /// with the site table.
-fn exclusions_and_join(o: &mut String, r: &SitesReport) {
-    if !r.excluded.is_empty() {
-        let _ = writeln!(o, "\nSites left out:");
-        for e in r.excluded.iter().take(MAX_LISTED_SITES) {
-            let _ = writeln!(o, "  '{}' (n = {}): {}", e.study, e.n, e.reason);
-        }
-        if r.excluded.len() > MAX_LISTED_SITES {
-            let _ = writeln!(
-                o,
-                "  ... and {} more (see {})",
-                r.excluded.len() - MAX_LISTED_SITES,
-                Flag::Json
-            );
-        }
+fn exclusions_and_join(o: &mut String, r: &SitesReport, width: usize) {
+    let mut left_out: Vec<String> = r
+        .excluded
+        .iter()
+        .take(MAX_LISTED_SITES)
+        .map(|e| format!("'{}' (n = {}): {}", e.study, e.n, e.reason))
+        .collect();
+    if r.excluded.len() > MAX_LISTED_SITES {
+        left_out.push(format!(
+            "... and {} more (see {})",
+            r.excluded.len() - MAX_LISTED_SITES,
+            Flag::Json
+        ));
     }
+    bullets(o, "Sites left out", &left_out, width);
     let no_term: Vec<String> = r
         .sites
         .iter()
         .filter_map(|s| s.note.as_ref().map(|n| format!("'{}': {n}", s.study)))
         .collect();
-    if !no_term.is_empty() {
-        let _ = writeln!(o, "\nSites kept without a product term:");
-        for n in no_term.iter().take(MAX_LISTED_SITES) {
-            let _ = writeln!(o, "  {n}");
-        }
-    }
+    let no_term: Vec<String> = no_term.into_iter().take(MAX_LISTED_SITES).collect();
+    bullets(o, "Sites kept without a product term", &no_term, width);
     if let Some(j) = &r.join {
-        let _ = writeln!(
-            o,
-            "\nSite table {} (id column '{}'): {} characteristic{} joined ({})",
+        let mut lines = vec![format!(
+            "{} (id column '{}'): {} characteristic{} joined ({})",
             j.file,
             j.key,
             j.columns.len(),
             if j.columns.len() == 1 { "" } else { "s" },
             j.columns.join(", ")
-        );
+        )];
         if j.without_info.is_empty() && j.info_only.is_empty() {
-            let _ = writeln!(o, "  every site matched");
+            lines.push("every site matched".into());
         }
         if !j.without_info.is_empty() {
-            let _ = writeln!(
-                o,
-                "  {} site{} with estimates but no row in the site table (kept, characteristics empty): {}",
+            lines.push(format!(
+                "{} site{} with estimates but no row in the site table (kept, characteristics empty): {}",
                 j.without_info.len(),
                 if j.without_info.len() == 1 { "" } else { "s" },
                 list(&j.without_info, 10)
-            );
+            ));
         }
         if !j.info_only.is_empty() {
-            let _ = writeln!(
-                o,
-                "  {} site-table id{} without an estimate (no rows, or left out above): {}",
+            lines.push(format!(
+                "{} site-table id{} without an estimate (no rows, or left out above): {}",
                 j.info_only.len(),
                 if j.info_only.len() == 1 { "" } else { "s" },
                 list(&j.info_only, 10)
-            );
+            ));
         }
+        bullets(o, "Site characteristics joined", &lines, width);
     }
 }
 
-/// One line per site (when there are few enough to list).
+/// One line per site (when there are few enough to list), each number
+/// column with one number of decimals.
 fn site_table(o: &mut String, r: &SitesReport) {
     let m = &r.model;
-    if r.sites.len() <= MAX_LISTED_SITES {
-        let with_w = m.w.is_some();
-        let _ = writeln!(o);
-        let mut head = format!(
-            "  {:<20} {:>7} {:>11} {:>10} {:>8}",
-            "site", "n", "slope", "se", "r"
+    if r.sites.is_empty() || r.sites.len() > MAX_LISTED_SITES {
+        return;
+    }
+    let with_w = m.w.is_some();
+    let lw = r
+        .sites
+        .iter()
+        .map(|s| width(&s.study))
+        .max()
+        .unwrap_or(4)
+        .clamp(4, 28);
+    let dec = |xs: &mut dyn Iterator<Item = f64>| fmt::column_decimals(xs);
+    let (slope_d, se_d) = (
+        dec(&mut r.sites.iter().map(|s| s.slope)),
+        dec(&mut r.sites.iter().map(|s| s.se)),
+    );
+    let (int_d, int_se_d) = (
+        dec(&mut r.sites.iter().filter_map(|s| s.interaction)),
+        dec(&mut r.sites.iter().filter_map(|s| s.interaction_se)),
+    );
+    heading(o, "Site estimates");
+    let mut head = format!(
+        "  {}  {:>6}  {:>10}  {:>9}  {:>6}",
+        pad("site", lw),
+        "n",
+        "slope",
+        "SE",
+        "r"
+    );
+    if with_w {
+        let _ = write!(head, "  {:>11}  {:>9}", "interaction", "SE");
+    }
+    let _ = writeln!(o, "{head}");
+    let cell = |x: Option<f64>, d: usize| x.map_or_else(|| "—".into(), |x| fmt::fixed(x, d));
+    for s in &r.sites {
+        let mut line = format!(
+            "  {}  {:>6}  {:>10}  {:>9}  {:>6}",
+            pad(&clip(&s.study, lw), lw),
+            s.n,
+            fmt::fixed(s.slope, slope_d),
+            fmt::fixed(s.se, se_d),
+            fmt::fixed(s.r, 3)
         );
         if with_w {
-            let _ = write!(head, " {:>12} {:>10}", "interaction", "se");
-        }
-        let _ = writeln!(o, "{head}");
-        for s in &r.sites {
-            let id: String = s.study.chars().take(20).collect();
-            let mut line = format!(
-                "  {:<20} {:>7} {:>11} {:>10} {:>8.3}",
-                id,
-                s.n,
-                num(s.slope),
-                num(s.se),
-                s.r
+            let _ = write!(
+                line,
+                "  {:>11}  {:>9}",
+                cell(s.interaction, int_d),
+                cell(s.interaction_se, int_se_d)
             );
-            if with_w {
-                let _ = write!(
-                    line,
-                    " {:>12} {:>10}",
-                    s.interaction.map(num).unwrap_or_else(|| "—".into()),
-                    s.interaction_se.map(num).unwrap_or_else(|| "—".into())
-                );
-            }
-            let _ = writeln!(o, "{line}");
         }
+        let _ = writeln!(o, "{line}");
     }
+    let _ = writeln!(o);
 }
 
-/// The second stage: within- and across-site answers and the cautions.
-fn stages(o: &mut String, r: &SitesReport, st: &TwoStage) {
+/// The second stage: within- and across-site answers, the meta-regression
+/// on the site characteristics, and the cautions of the run and of every
+/// fit in it, each once.
+fn stages(o: &mut String, r: &SitesReport, st: &TwoStage, width: usize) {
     let m = &r.model;
     let w = m.w.as_deref().unwrap_or("w");
     if let Some(f) = &st.within {
-        let _ = writeln!(
+        heading(
             o,
-            "\nWithin-site moderation: pooled product term {}·{w}",
-            m.x
+            &format!("Within-site moderation: pooled product term {}·{w}", m.x),
         );
         fit_facts(o, f);
         if let Some(c) = f.coefficients.first() {
             coefficient_line(o, "pooled b3", c, f.model.level);
         }
+        let _ = writeln!(o);
     }
     if let Some(f) = &st.across {
-        let _ = writeln!(
+        heading(
             o,
-            "\nAcross-site moderation: site slopes on the site mean of {w}"
+            &format!("Across-site moderation: site slopes on the site mean of {w}"),
         );
         fit_facts(o, f);
         if let Some(c) = f.coefficients.iter().find(|c| c.term == "mean_w") {
@@ -277,19 +301,25 @@ fn stages(o: &mut String, r: &SitesReport, st: &TwoStage) {
                 f.model.level,
             );
         }
+        let _ = writeln!(o);
     }
-    if !st.answers.is_empty() {
-        let _ = writeln!(o, "\nWhich answer is which:");
-        for a in &st.answers {
-            o.push_str(&super::layout::wrap(a, "  ", 88));
+    bullets(o, "Which answer is which", &st.answers, width);
+    if let Some(f) = &st.characteristics {
+        heading(
+            o,
+            if f.model.moderators.is_empty() {
+                "The pooled slope across sites"
+            } else {
+                "Site slopes on the site characteristics"
+            },
+        );
+        for line in super::text::render_embedded(f, width - 2).lines() {
+            if line.is_empty() {
+                let _ = writeln!(o);
+            } else {
+                let _ = writeln!(o, "  {line}");
+            }
         }
     }
-    if let Some(f) = &st.characteristics {
-        let _ = writeln!(o, "\nSite slopes on the site characteristics:\n");
-        o.push_str(&super::text::render(f));
-    }
-    let _ = writeln!(o, "\nCautions:");
-    for c in &st.cautions {
-        o.push_str(&super::layout::wrap(&format!("- {c}"), "  ", 88));
-    }
+    bullets(o, "Cautions", &st.cautions, width);
 }

@@ -1,6 +1,11 @@
-//! The terminal report: plain words, aligned columns, no colour.
+//! The terminal report of `fit`: plain words, aligned columns, no colour
+//! (the binary may colour the headings afterwards). The common look of the
+//! terminal reports is described in [`super::layout`].
 
-use super::layout::{clip, lpad, pad, width, wrap, Ctx, Section, MAX_LISTED_STUDIES};
+use super::layout::{
+    bullets, clip, fact, lpad, pad, title, trim_lines, width, Ctx, Section, MAX_LISTED_STUDIES,
+    TEXT_WIDTH,
+};
 use super::{answers, diagnostics, interpret, multilevel, sensitivity, spread};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, MeasureId, ModeratorKind, Reading};
@@ -79,54 +84,60 @@ const SECTIONS: &[Section] = &[
     messages,
 ];
 
-/// Renders the report as text.
+/// Renders the report as text at the default width ([`TEXT_WIDTH`]).
 pub fn render(r: &FitReport) -> String {
-    let cx = Ctx::of(r);
+    render_at(r, TEXT_WIDTH)
+}
+
+/// Renders the report as text, wrapped at `width` characters.
+pub fn render_at(r: &FitReport, width: usize) -> String {
+    sections(&Ctx::of(r, width), r)
+}
+
+/// The report as part of another one (the second stage of `sites`): no
+/// title line and no cautions (the outer report prints them once).
+pub fn render_embedded(r: &FitReport, width: usize) -> String {
+    let mut cx = Ctx::of(r, width);
+    cx.embedded = true;
+    sections(&cx, r)
+}
+
+fn sections(cx: &Ctx, r: &FitReport) -> String {
     let mut o = String::new();
     for section in SECTIONS {
-        section(r, &cx, &mut o);
+        section(r, cx, &mut o);
     }
     // Padding of the last column leaves trailing blanks: drop them.
-    let mut out = String::with_capacity(o.len());
-    for line in o.lines() {
-        out.push_str(line.trim_end());
-        out.push('\n');
-    }
-    out
+    trim_lines(&o)
 }
 
 /// The title and the facts: data, effects, studies, model and moderators.
 fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
     let level_pct = &cx.level_pct;
-    let rule = "─".repeat(72);
-    let title = if cx.has_mods {
-        "random-effects meta-regression"
-    } else {
-        "random-effects meta-analysis"
-    };
-    let _ = writeln!(o, "pondus {} · {title}", r.tool.version);
-    let _ = writeln!(o, "{rule}");
-    match &r.input.sheet {
-        Some(sheet) => writeln!(
-            o,
-            "Data        {} (sheet '{sheet}', {} rows)",
-            r.input.file, r.input.rows
-        ),
-        None => writeln!(
-            o,
-            "Data        {} ({}-separated, {} rows)",
+    let w = cx.width;
+    if !cx.embedded {
+        let what = if cx.has_mods {
+            "random-effects meta-regression"
+        } else {
+            "random-effects meta-analysis"
+        };
+        title(o, what, w);
+    }
+    let data = match &r.input.sheet {
+        Some(sheet) => format!("{} (sheet '{sheet}', {} rows)", r.input.file, r.input.rows),
+        None => format!(
+            "{} ({}-separated, {} rows)",
             r.input.file, r.input.delimiter, r.input.rows
         ),
-    }
-    .ok();
+    };
+    fact(o, "Data", &data, w);
     let mut effects = r.measure.description.clone();
     if let Some(n) = &r.measure.reading_name {
         let _ = write!(effects, "; summaries also shown as {n}");
     }
-    let _ = writeln!(o, "Effects     {effects}");
-    let _ = writeln!(
-        o,
-        "Studies     {} used{}",
+    fact(o, "Effects", &effects, w);
+    let studies = format!(
+        "{} used{}",
         r.k,
         if r.excluded.is_empty() {
             String::new()
@@ -134,11 +145,12 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
             format!(", {} left out (listed below)", r.excluded.len())
         }
     );
-    let _ = writeln!(
-        o,
-        "Model       τ² by {}; {}; {level_pct} intervals",
+    fact(o, "Studies", &studies, w);
+    let model = format!(
+        "τ² by {}; {}; {level_pct} intervals",
         r.model.tau2_description, r.model.inference_description
     );
+    fact(o, "Model", &model, w);
     if cx.has_mods {
         let mods: Vec<String> = r
             .model
@@ -162,19 +174,19 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
                 ),
             })
             .collect();
-        let _ = writeln!(o, "Moderators  {}", mods.join("; "));
+        fact(o, "Moderators", &mods.join("; "), w);
         for [a, b] in &r.model.interactions {
-            let _ = writeln!(o, "            with the product term {a}×{b}");
+            fact(o, "", &format!("with the product term {a}×{b}"), w);
         }
     }
     let _ = writeln!(o);
 }
 
 /// The answer of the omnibus moderator test in words.
-fn moderator_answer(r: &FitReport, _: &Ctx, o: &mut String) {
+fn moderator_answer(r: &FitReport, cx: &Ctx, o: &mut String) {
     if let Some(t) = &r.moderator_test {
         let _ = writeln!(o, "Does the effect change with the moderators?");
-        o.push_str(&wrap(&t.answer, "  ", 70));
+        o.push_str(&cx.para(&t.answer));
         let _ = writeln!(o);
     }
 }
@@ -228,13 +240,15 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         pad("p", 8),
         if has_ratio { "exp(estimate) [CI]" } else { "" }
     );
+    let est_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.estimate));
+    let se_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.se));
     for c in &r.coefficients {
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
-            lpad(&num(c.contrast.estimate), 10),
-            lpad(&num(c.contrast.se), 9),
+            lpad(&fmt::fixed(c.contrast.estimate, est_d), 10),
+            lpad(&fmt::fixed(c.contrast.se, se_d), 9),
             pad(
                 &fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
                 cw
@@ -257,15 +271,11 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         }
     }
     if has_ratio {
-        o.push_str(&wrap(
-            &format!(
-                "(exp(estimate) is the {ratio_name} at the intercept and, for a moderator \
-                 term, the factor by which the {ratio_name} changes per unit or versus the \
-                 reference level)"
-            ),
-            "  ",
-            70,
-        ));
+        o.push_str(&cx.para(&format!(
+            "(exp(estimate) is the {ratio_name} at the intercept and, for a moderator \
+             term, the factor by which the {ratio_name} changes per unit or versus the \
+             reference level)"
+        )));
     }
     let _ = writeln!(o);
 }
@@ -400,13 +410,15 @@ fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
         lpad("weight", 7),
         lpad("std. resid.", 11)
     );
+    let eff_d = fmt::column_decimals(r.studies.iter().map(|s| s.effect));
+    let var_d = fmt::column_decimals(r.studies.iter().map(|s| s.variance));
     for s in &r.studies {
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}{}",
             pad(&clip(&s.study, lw), lw),
-            lpad(&num(s.effect), 10),
-            lpad(&num(s.variance), 10),
+            lpad(&fmt::fixed(s.effect, eff_d), 10),
+            lpad(&fmt::fixed(s.variance, var_d), 10),
             lpad(&format!("{:.1}%", s.weight), 7),
             lpad(
                 &s.std_residual
@@ -455,23 +467,13 @@ fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
     let _ = writeln!(o);
 }
 
-/// Warnings, notes and cautions, each as a bulleted list.
-fn messages(r: &FitReport, _: &Ctx, o: &mut String) {
-    for (title, items) in [
-        ("Warnings", &r.warnings),
-        ("Notes", &r.notes),
-        ("Cautions", &r.cautions),
-    ] {
-        if items.is_empty() {
-            continue;
-        }
-        let _ = writeln!(o, "{title}");
-        for it in items {
-            let w = wrap(it, "    ", 68);
-            let first = w.trim_start();
-            let _ = write!(o, "  - {first}");
-        }
-        let _ = writeln!(o);
+/// Warnings, notes and cautions, each as a bulleted list (the cautions
+/// left to the outer report when embedded).
+fn messages(r: &FitReport, cx: &Ctx, o: &mut String) {
+    bullets(o, "Warnings", &r.warnings, cx.width);
+    bullets(o, "Notes", &r.notes, cx.width);
+    if !cx.embedded {
+        bullets(o, "Cautions", &r.cautions, cx.width);
     }
 }
 

@@ -55,6 +55,27 @@ pub struct SimulatedK {
     pub max_evaluations: usize,
 }
 
+/// The one answer for the number of sites needed (`k_needed_answer`): the
+/// k the report stands by, the method it comes from, and the other
+/// method's k shown beside it as a check.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct KNeeded {
+    /// The k needed (null when the target is not reached within `max_k`,
+    /// or by the simulated values of k).
+    pub k: Option<usize>,
+    /// Whether `k` is an upper bound only: the simulation reached the
+    /// target at `k` but stopped before confirming that k − 1 falls short.
+    pub at_most: bool,
+    /// The method `k` comes from: `simulation` (Knapp–Hartung test),
+    /// `noncentral chi-square` (z test, exact with τ² known).
+    pub method: String,
+    /// The other method's k, as a check (null when there is no other
+    /// method, or it found none).
+    pub check_k: Option<usize>,
+    /// The method of `check_k` (null without a check).
+    pub check_method: Option<String>,
+}
+
 /// One simulated k.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct KPower {
@@ -115,6 +136,11 @@ pub struct PlanReport {
     /// For `kh` with `--target-power` (solving for k): the k needed
     /// confirmed by simulation, starting from `k_needed`.
     pub k_needed_simulated: Option<SimulatedK>,
+    /// The one answer for k when solving for k with a target power: the
+    /// simulated k for `kh` (the noncentral F approximation's `k_needed`
+    /// as its check), the exact `k_needed` for `z`. Null with `--solve n`
+    /// or without a target power.
+    pub k_needed_answer: Option<KNeeded>,
     /// Smallest per-site n reaching the target power at the planned k (`--solve n`).
     pub n_needed: Option<f64>,
     /// Largest k searched.

@@ -7,25 +7,19 @@ use crate::result::{SiteJoin, SitesReport};
 use crate::support::flag::Flag;
 use std::collections::HashMap;
 
-/// Appends every other column of the site table `bytes` (named `source`)
-/// to the sites of `report`, matched on the column `key`.
-///
-/// Sites without a row in the table keep their estimates with empty
-/// characteristics; table ids without an estimated site are listed. Both
-/// lists go into [`SiteJoin`]; nothing is dropped silently.
+/// The site table's id header and its other headers (the
+/// characteristics), checked: none named like a column of the effects file,
+/// none empty.
 ///
 /// # Errors
-/// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
-/// missing or repeated id (with both lines, or both cells of a
-/// spreadsheet); [`Error::Format`] when a characteristic would shadow an
-/// effects column.
-pub fn join(
-    report: &mut SitesReport,
+/// [`Error::MissingColumn`] when `key` is absent; [`Error::Format`] for a
+/// shadowing or empty header.
+fn headers_of(
     source: &str,
     bytes: &[u8],
     key: &str,
     sheet: Option<&str>,
-) -> Result<()> {
+) -> Result<(String, Vec<String>)> {
     let probe = input::read_table(
         source,
         bytes,
@@ -33,6 +27,7 @@ pub fn join(
             header: key.to_string(),
             required: true,
             purpose: "the site ids of the site table".into(),
+            label: true,
             hint: format!(
                 "Name the id column with {} <header> (default: the {} column's name).",
                 Flag::InfoKey,
@@ -40,6 +35,8 @@ pub fn join(
             ),
         }],
         sheet,
+        // Only the ids are read here, and they are labels.
+        None,
     )?;
     let key_header = probe
         .column(0)
@@ -68,19 +65,48 @@ pub fn join(
             });
         }
     }
+    Ok((key_header, others))
+}
+
+/// Appends every other column of the site table `bytes` (named `source`)
+/// to the sites of `report`, matched on the column `key`.
+///
+/// Sites without a row in the table keep their estimates with empty
+/// characteristics; table ids without an estimated site are listed. Both
+/// lists go into [`SiteJoin`]; nothing is dropped silently.
+///
+/// # Errors
+/// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
+/// missing or repeated id (with both lines, or both cells of a
+/// spreadsheet); [`Error::Format`] when a characteristic would shadow an
+/// effects column.
+pub fn join(
+    report: &mut SitesReport,
+    source: &str,
+    bytes: &[u8],
+    key: &str,
+    sheet: Option<&str>,
+    decimal: Option<crate::input::number::DecimalMark>,
+) -> Result<()> {
+    let (key_header, others) = headers_of(source, bytes, key, sheet)?;
     let mut requests = vec![ColumnRequest {
         header: key_header.clone(),
         required: true,
         purpose: "site ids".into(),
+        label: true,
         hint: String::new(),
     }];
     requests.extend(others.iter().map(|h| ColumnRequest {
         header: h.clone(),
         required: true,
         purpose: "a site characteristic".into(),
+        label: false,
         hint: String::new(),
     }));
-    let table = input::read_table(source, bytes, &requests, sheet)?;
+    let table = input::read_table(source, bytes, &requests, sheet, decimal)?;
+    if let Some(note) = table.decimal.note(source) {
+        report.notes.push(note);
+    }
     let ids = table.column(0).expect("required");
     let mut rows: HashMap<&str, usize> = HashMap::new();
     let mut problems = Vec::new();

@@ -18,6 +18,7 @@
 //! [`crate::render::sites_effects`]) for `pondus fit`.
 
 mod assemble;
+mod decimal;
 mod first_pass;
 mod fits;
 mod index;
@@ -105,10 +106,14 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         blank_rows: pass.blank_rows,
         passes: if robust.is_some() { 2 } else { 1 },
     };
-    usable(
+    let mut report = usable(
         source,
         assemble(input_info, s, layout, fitted, excluded, robust),
-    )
+    )?;
+    if let Some(note) = pass.decimal.as_ref().and_then(|d| d.note(source)) {
+        report.notes.insert(0, note);
+    }
+    Ok(report)
 }
 
 /// Runs the per-site stage on a per-site moments table (see
@@ -127,18 +132,10 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
             ),
         ));
     }
-    let table = moments_table::read_moments(source, bytes)?;
+    let table = moments_table::read_moments(source, bytes, s.decimal)?;
     let layout = table.layout;
-    // The moments table names its variables by role (x, c1…, w, y).
-    let s = &SitesSettings {
-        site: "site".into(),
-        x: "x".into(),
-        y: "y".into(),
-        w: layout.with_w.then(|| "w".into()),
-        covariates: (1..=layout.covariates).map(|i| format!("c{i}")).collect(),
-        robust: false,
-        center_within: s.center_within,
-    };
+    let (named, names_note) = moments_names(s, layout)?;
+    let s = &named;
     let (fitted, excluded) = fit_sites(table.sites, layout, s);
     let input_info = SitesInput {
         file: source.to_string(),
@@ -150,10 +147,98 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         blank_rows: table.blank_rows,
         passes: 1,
     };
-    usable(
+    let mut report = usable(
         source,
         assemble(input_info, s, layout, fitted, excluded, None),
-    )
+    )?;
+    if let Some(note) = table.decimal.note(source) {
+        report.notes.insert(0, note);
+    }
+    if let Some(note) = names_note {
+        report.notes.insert(0, note);
+    }
+    Ok(report)
+}
+
+/// The settings of a moments run: the table names its variables by role
+/// (site, x, c1…, w, y); the names a user repeats from the raw-rows command
+/// (`--site`, `--x`, `--y`, `--w`, `--covariate`; empty or absent when not
+/// given) name them in the output, after a check that the table has the
+/// variables they imply. Returns the settings and a note stating the names.
+///
+/// # Errors
+/// [`Error::Usage`] when `--w` is given but the table has no w columns, or
+/// the number of covariates differs from the table's.
+fn moments_names(s: &SitesSettings, layout: Layout) -> Result<(SitesSettings, Option<String>)> {
+    if let Some(w) = &s.w {
+        if !layout.with_w {
+            return Err(Error::usage(
+                Flag::W,
+                format!(
+                    "'{w}': the moments table has no w columns (mean_w, mean_xw), so it was made \
+                     without a participant-level moderator; drop {} or remake the table with it",
+                    Flag::W
+                ),
+            ));
+        }
+    }
+    if !s.covariates.is_empty() && s.covariates.len() != layout.covariates {
+        return Err(Error::usage(
+            Flag::Covariate,
+            format!(
+                "{} covariates given ({}) but the moments table has {} (mean_c1 …); give the \
+                 covariates the table was made with, in the same order, or none",
+                s.covariates.len(),
+                s.covariates.join(", "),
+                layout.covariates
+            ),
+        ));
+    }
+    let given = |name: &str, role: &str| {
+        if name.trim().is_empty() {
+            role.to_string()
+        } else {
+            name.to_string()
+        }
+    };
+    let named = SitesSettings {
+        site: given(&s.site, "site"),
+        x: given(&s.x, "x"),
+        y: given(&s.y, "y"),
+        w: layout
+            .with_w
+            .then(|| s.w.clone().unwrap_or_else(|| "w".into())),
+        covariates: if s.covariates.is_empty() {
+            (1..=layout.covariates).map(|i| format!("c{i}")).collect()
+        } else {
+            s.covariates.clone()
+        },
+        robust: false,
+        center_within: s.center_within,
+        decimal: s.decimal,
+    };
+    let mut pairs = Vec::new();
+    for (role, name) in [("site", &named.site), ("x", &named.x), ("y", &named.y)] {
+        if name != role {
+            pairs.push(format!("{role} = {name}"));
+        }
+    }
+    if let Some(w) = named.w.as_ref().filter(|w| *w != "w") {
+        pairs.push(format!("w = {w}"));
+    }
+    if !s.covariates.is_empty() {
+        for (i, c) in named.covariates.iter().enumerate() {
+            pairs.push(format!("c{} = {c}", i + 1));
+        }
+    }
+    let note = (!pairs.is_empty()).then(|| {
+        format!(
+            "The moments table names its variables by role; the names given on the command line \
+             are used for them: {}.",
+            pairs.join(", ")
+        )
+    });
+    Ok((named, note))
 }
 
 /// Opens the row file for one pass.
@@ -209,6 +294,7 @@ mod tests {
             covariates: vec![],
             robust: false,
             center_within: false,
+            decimal: None,
         }
     }
 

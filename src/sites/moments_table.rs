@@ -25,6 +25,8 @@ pub struct MomentsTable {
     pub rows: u64,
     /// Wholly blank rows skipped.
     pub blank_rows: u64,
+    /// The decimal mark the numbers were read with, and why.
+    pub decimal: crate::input::DecimalChoice,
 }
 
 /// The layout a moments table's header describes: the covariates
@@ -68,6 +70,7 @@ fn column_requests(layout: Layout) -> Vec<ColumnRequest> {
             header: h.clone(),
             required: true,
             purpose: p.to_string(),
+            label: h == "site",
             hint: hint.into(),
         })
         .collect()
@@ -83,11 +86,15 @@ fn column_requests(layout: Layout) -> Vec<ColumnRequest> {
 /// [`Error::MissingColumn`] for a column the layout needs; [`Error::Cells`]
 /// for a missing site id, a repeated site, a count that is not a positive
 /// whole number, a non-numeric value or a negative variance.
-pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
+pub fn read_moments(
+    source: &str,
+    bytes: &[u8],
+    decimal: Option<crate::input::number::DecimalMark>,
+) -> Result<MomentsTable> {
     let layout = layout_of(&input::parse_table(source, bytes, &[])?.headers);
     let d = layout.dim();
     let reqs = column_requests(layout);
-    let table = input::parse_table(source, bytes, &reqs)?;
+    let table = input::parse_table_with(source, bytes, &reqs, decimal)?;
     let mut problems = Vec::new();
     let mut total = 0usize;
     let mut push = |p: CellProblem| {
@@ -197,6 +204,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
         delimiter: table.delimiter,
         rows: table.len() as u64,
         blank_rows: table.blank_rows as u64,
+        decimal: table.decimal.clone(),
     })
 }
 
@@ -209,7 +217,7 @@ mod tests {
         // Site a: x = 1,2,3; y = 2,4,7 → means 2, 13/3; var_pop x = 2/3,
         // covar_pop = 5/3 (co-moment 5), var_pop y = 38/9.
         let csv = "site,n,mean_x,mean_y,cov_x_x,cov_x_y,cov_y_y\na,3,2,4.333333333333333,0.6666666666666666,1.6666666666666667,4.222222222222222\n";
-        let t = read_moments("m.csv", csv.as_bytes()).unwrap();
+        let t = read_moments("m.csv", csv.as_bytes(), None).unwrap();
         assert_eq!(
             t.layout,
             Layout {
@@ -221,7 +229,7 @@ mod tests {
         assert_eq!(m.n(), 3);
         assert!((m.comoment(0, 1) - 5.0).abs() < 1e-14);
         let bad = "site,n,mean_x,mean_y,cov_x_x,cov_x_y,cov_y_y\na,3,2,4,1,1,1\na,2.5,2,4,-1,1,1\n,3,x,4,1,1,1\n";
-        let e = read_moments("m.csv", bad.as_bytes())
+        let e = read_moments("m.csv", bad.as_bytes(), None)
             .unwrap_err()
             .to_string();
         assert!(
@@ -232,7 +240,7 @@ mod tests {
             e.contains("line 4") && e.contains("site id is missing"),
             "{e}"
         );
-        let e = read_moments("m.csv", b"site,n,mean_x\na,3,1\n")
+        let e = read_moments("m.csv", b"site,n,mean_x\na,3,1\n", None)
             .unwrap_err()
             .to_string();
         assert!(e.contains("mean_y"), "{e}");

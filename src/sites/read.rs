@@ -1,8 +1,10 @@
 //! Streaming the raw participant rows: one record at a time, with the file's
 //! own line numbers.
 
+use super::decimal::StreamDecimal;
 use crate::error::{CellProblem, CellProblems, Error, Result};
-use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::input::number::{invalid_hint, Cell, DecimalMark};
+use crate::input::DecimalChoice;
 use crate::input::{check_unique, format_error, read_headers};
 use crate::input::{detect_delimiter, find_header, separator_text};
 use crate::support::flag::Flag;
@@ -71,6 +73,8 @@ pub struct RowColumns {
     /// Numeric headers in the order of the values handed to the caller, with
     /// the flag each was given as (for messages).
     pub numeric: Vec<(String, Flag)>,
+    /// The decimal mark forced with `--decimal` (None: chosen on the way).
+    pub decimal: Option<DecimalMark>,
 }
 
 /// What a pass saw besides the rows it handed on.
@@ -86,18 +90,28 @@ pub struct PassSummary {
     pub missing_lines: Vec<u64>,
     /// Wholly blank rows skipped.
     pub blank_rows: u64,
+    /// The decimal mark the numbers were read with, and why.
+    pub decimal: Option<DecimalChoice>,
 }
 
 /// Parses a numeric cell: a plain number directly (the common case), anything
-/// else (blanks, missing marks, text) through [`parse_cell`].
+/// else (blanks, missing marks, text, decimal commas) through the pass's
+/// decimal mark ([`StreamDecimal::parse`]).
+///
+/// # Errors
+/// Those of [`StreamDecimal::parse`].
 #[inline]
-fn parse_number(cell: &[u8]) -> Cell {
+fn parse_number(
+    cell: &[u8],
+    dec: &mut StreamDecimal,
+    (source, line, column): (&str, u64, &str),
+) -> Result<Cell> {
     match std::str::from_utf8(cell) {
         Ok(t) => match t.parse::<f64>() {
-            Ok(v) if v.is_finite() => Cell::Value(v),
-            _ => parse_cell(t),
+            Ok(v) if v.is_finite() && dec.trusts(t) => Ok(Cell::Value(v)),
+            _ => dec.parse(source, t, line, column),
         },
-        Err(_) => Cell::Invalid,
+        Err(_) => Ok(Cell::Invalid),
     }
 }
 
@@ -250,18 +264,18 @@ enum RowCheck {
 #[inline]
 fn check_row(
     record: &csv::ByteRecord,
-    line: u64,
+    (source, line): (&str, u64),
     (site_ix, num_ix): (usize, &[usize]),
     headers: &[String],
     values: &mut [f64],
-    problems: &mut Problems,
-) -> RowCheck {
+    (problems, dec): (&mut Problems, &mut StreamDecimal),
+) -> Result<RowCheck> {
     let site = record[site_ix].trim_ascii();
     let mut bad = false;
     let mut missing = false;
     for (k, &i) in num_ix.iter().enumerate() {
         let cell = &record[i];
-        let parsed = parse_number(cell);
+        let parsed = parse_number(cell, dec, (source, line, &headers[i]))?;
         match parsed {
             Cell::Value(v) => values[k] = v,
             Cell::Missing => missing = true,
@@ -284,7 +298,7 @@ fn check_row(
         if num_ix.iter().all(|&i| record[i].trim_ascii().is_empty())
             && record.iter().all(|f| f.trim_ascii().is_empty())
         {
-            return RowCheck::Blank;
+            return Ok(RowCheck::Blank);
         }
         problems.push(
             line,
@@ -292,7 +306,7 @@ fn check_row(
             site,
             "the site id is missing; give every row its site id, or delete the row".into(),
         );
-        return RowCheck::Problem;
+        return Ok(RowCheck::Problem);
     }
     if std::str::from_utf8(site).is_err() {
         problems.push(
@@ -301,15 +315,15 @@ fn check_row(
             site,
             "the site id is not valid UTF-8; save the file as UTF-8".into(),
         );
-        return RowCheck::Problem;
+        return Ok(RowCheck::Problem);
     }
-    if bad {
+    Ok(if bad {
         RowCheck::Problem
     } else if missing {
         RowCheck::Missing
     } else {
         RowCheck::Usable
-    }
+    })
 }
 
 /// Reads CSV rows from `input` and hands each usable row to `row` as
@@ -341,6 +355,7 @@ pub fn for_each_row<R: Read>(
         ..PassSummary::default()
     };
     let mut problems = Problems::default();
+    let mut dec = StreamDecimal::new(cols.decimal, delimiter);
     let mut record = csv::ByteRecord::new();
     let mut values = vec![0.0; num_ix.len()];
     let width = headers.len();
@@ -370,12 +385,12 @@ pub fn for_each_row<R: Read>(
         summary.rows += 1;
         let check = check_row(
             &record,
-            line,
+            (source, line),
             (site_ix, &num_ix),
             &headers,
             &mut values,
-            &mut problems,
-        );
+            (&mut problems, &mut dec),
+        )?;
         match check {
             RowCheck::Blank => {
                 summary.rows -= 1;
@@ -408,6 +423,7 @@ pub fn for_each_row<R: Read>(
             "the file has a header row but no data rows; add one row per participant",
         ));
     }
+    summary.decimal = Some(dec.choice());
     Ok(summary)
 }
 
@@ -419,6 +435,7 @@ mod tests {
         RowColumns {
             site: "site".into(),
             numeric: vec![("x".into(), Flag::X), ("y".into(), Flag::Y)],
+            decimal: None,
         }
     }
 

@@ -21,6 +21,10 @@ pub struct SitesSettings {
     pub robust: bool,
     /// Centre x and w at the site means in the product-term model.
     pub center_within: bool,
+    /// The decimal mark forced with `--decimal` for the rows, the moments
+    /// table and the site table (None: the point, or a decimal comma
+    /// detected in a semicolon- or tab-separated file).
+    pub decimal: Option<crate::input::number::DecimalMark>,
 }
 
 /// Positions of the variables in each site's moment vector
@@ -85,5 +89,6 @@ pub(super) fn row_columns(s: &SitesSettings) -> RowColumns {
     RowColumns {
         site: s.site.clone(),
         numeric,
+        decimal: s.decimal,
     }
 }

@@ -132,6 +132,20 @@ pub fn run(
             "{tests} moderator tests are reported; their p-values are not adjusted for multiple testing."
         ));
     }
+    // The fits' own cautions that this list does not already say in its
+    // words (few studies per term, imprecise τ²), so that the report shows
+    // every caution once.
+    let generic = [
+        crate::fit::messages::ASSOCIATION_CAUTION,
+        crate::fit::messages::DECISION_CAUTION,
+    ];
+    for f in [&within, &across, &chars].into_iter().flatten() {
+        for c in &f.cautions {
+            if !generic.contains(&c.as_str()) && !cautions.contains(c) {
+                cautions.push(c.clone());
+            }
+        }
+    }
     cautions.push(
         "Decisions about participants, patients, pupils or programmes rest with the responsible \
          professionals and local guidance, not with this output."

@@ -52,6 +52,7 @@ flags! {
     EffectScale => "--effect-scale", ["fit"];
     Convert => "--convert", ["fit"];
     Sheet => "--sheet", ["fit", "plan", "sites"];
+    Decimal => "--decimal", ["fit", "plan", "sites"];
     Label => "--label", ["fit"];
     Moderator => "--moderator", ["fit", "sites"];
     Categorical => "--categorical", ["fit"];

@@ -2,8 +2,10 @@
 //! to a person (terminal, report page, plots and the library's own prose).
 //! JSON and CSV keep full precision and do not use these.
 
-/// A number for people: 4 decimals, or 3 significant digits in scientific
-/// notation when very small or very large; "—" for NaN.
+/// A number for people: 4 decimals; below 0.0001 in size, fixed decimals
+/// with 3 significant digits (0.0000491, never `4.910e-5`, so a reader of
+/// a row of decimals is not met by an exponent); scientific notation only
+/// below 1e-10 or from 1e6 on; "—" for NaN.
 pub fn num(x: f64) -> String {
     if x.is_nan() {
         return "—".into();
@@ -12,11 +14,69 @@ pub fn num(x: f64) -> String {
         return "0.0000".into();
     }
     let a = x.abs();
-    if !(1e-4..1e6).contains(&a) {
+    if (1e-10..1e-4).contains(&a) {
+        fixed(x, significant_decimals(a))
+    } else if !(1e-4..1e6).contains(&a) {
         format!("{x:.3e}")
     } else {
         format!("{x:.4}")
     }
+}
+
+/// Decimals that show `a` (positive) with 3 significant digits.
+fn significant_decimals(a: f64) -> usize {
+    (2 - a.log10().floor() as i64).clamp(0, 12) as usize
+}
+
+/// `x` with exactly `decimals` decimals and no sign on a value that rounds
+/// to zero; "—" for NaN.
+pub fn fixed(x: f64, decimals: usize) -> String {
+    if x.is_nan() {
+        return "—".into();
+    }
+    let s = format!("{x:.decimals$}");
+    match s.strip_prefix('-') {
+        Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_string(),
+        _ => s,
+    }
+}
+
+/// The decimals of a table column holding `values`, so that the whole
+/// column is written with one number of decimals and its points line up:
+/// 4, or more when the largest value in size is below 0.001 (then enough
+/// for it to show 3 significant digits, at most 10). A single tiny value
+/// among larger ones shows as 0.0000 there; its full value is in the JSON.
+pub fn column_decimals(values: impl IntoIterator<Item = f64>) -> usize {
+    let largest = values
+        .into_iter()
+        .filter(|x| x.is_finite())
+        .fold(0.0_f64, |m, x| m.max(x.abs()));
+    if largest == 0.0 || largest >= 1e-3 {
+        4
+    } else {
+        significant_decimals(largest).clamp(4, 10)
+    }
+}
+
+/// `s` with true minus signs (U+2212) in place of the hyphen-minus of a
+/// negative number: a `-` at the start or after a blank, `[` or `(`, and
+/// followed by a digit or a point. Other hyphens (in "k-2", "Smith-Jones")
+/// stay. For report pages, as the plots do ([`plot_num`]).
+pub fn true_minus(s: &str) -> String {
+    let chars: Vec<char> = s.chars().collect();
+    let mut out = String::with_capacity(s.len() + 4);
+    for (i, &c) in chars.iter().enumerate() {
+        let before_ok = i == 0 || matches!(chars[i - 1], ' ' | '[' | '(');
+        let after_ok = chars
+            .get(i + 1)
+            .is_some_and(|n| n.is_ascii_digit() || *n == '.');
+        if c == '-' && before_ok && after_ok {
+            out.push('\u{2212}');
+        } else {
+            out.push(c);
+        }
+    }
+    out
 }
 
 /// An optional number as [`num`], "—" when absent.
@@ -161,11 +221,23 @@ mod tests {
     fn numbers_look_as_documented() {
         assert_eq!(num(0.12345), "0.1235");
         assert_eq!(num(-2.0), "-2.0000");
-        assert_eq!(num(0.00001234), "1.234e-5");
+        assert_eq!(num(0.00001234), "0.0000123");
+        assert_eq!(num(4.910e-5), "0.0000491");
+        assert_eq!(num(-1.396e-6), "-0.00000140");
+        assert_eq!(num(3e-12), "3.000e-12");
+        assert_eq!(fixed(-0.00001, 4), "0.0000");
+        assert_eq!(fixed(-0.5, 2), "-0.50");
+        assert_eq!(column_decimals([0.0103, 4.9e-5]), 4);
+        assert_eq!(column_decimals([0.00049, 4.9e-5]), 6);
+        assert_eq!(column_decimals([f64::NAN, 0.0]), 4);
+        assert_eq!(
+            true_minus("[-0.10, -2] k-2 -x (-.5)"),
+            "[\u{2212}0.10, \u{2212}2] k-2 -x (\u{2212}.5)"
+        );
         assert_eq!(p(0.04567), "= 0.0457");
         assert_eq!(percent(0.9222), "92.2%");
         assert_eq!(num(0.0), "0.0000");
-        assert_eq!(num(1.5e-5), "1.500e-5");
+        assert_eq!(num(1.5e-5), "0.0000150");
         assert_eq!(num(f64::NAN), "—");
         assert_eq!(pi_interval(f64::NAN, f64::NAN), "none");
         assert_eq!(pi_interval(-1.0, 2.0), "[-1.0000, 2.0000]");

@@ -3,6 +3,7 @@
 mod browser;
 mod catalogue;
 mod cli;
+mod conventions;
 mod determinism;
 mod diagnose;
 mod fuzz_corpus;

@@ -93,11 +93,12 @@ fn terminal_report_and_curve() {
     .unwrap();
     assert!(out.status.success());
     let text = String::from_utf8(out.stdout).unwrap();
+    // One answer for k, with the method it comes from (issue 22).
     assert!(
-        text.contains("Sites needed for power 0.8: k = 33."),
+        text.contains("Sites needed for power 0.8\n  k = 33, from the noncentral chi-square"),
         "{text}"
     );
-    assert!(text.contains("Cautions:") && text.contains("observational"));
+    assert!(text.contains("\nCautions\n") && text.contains("observational"));
     let s = std::fs::read_to_string(&svg).unwrap();
     assert!(s.starts_with("<svg") || s.contains("<svg"));
     plan(&format!(
@@ -346,9 +347,20 @@ fn kh_k_needed_is_confirmed_by_simulation() {
         .stdout,
     )
     .unwrap();
+    // One answer (the simulated k) and the approximation as its check.
     assert!(
-        text.contains("(noncentral F approximation)") && text.contains("(simulated;"),
+        text.contains(&format!(
+            "  k = {k}, from simulation (1000 data sets per k, seed 3"
+        )) && text.contains(&format!(
+            "  check: the noncentral F approximation gives k = {approx}"
+        )),
         "{text}"
+    );
+    assert_eq!(v["k_needed_answer"]["k"].as_u64(), Some(k), "{v}");
+    assert_eq!(v["k_needed_answer"]["method"], "simulation");
+    assert_eq!(
+        v["k_needed_answer"]["check_k"].as_u64(),
+        Some(approx as u64)
     );
     // The z test has no such search.
     assert!(json(&format!(

@@ -71,6 +71,10 @@ pub struct InputArgs {
     /// The sheet of a spreadsheet FILE to read [default: the first sheet].
     #[arg(long, value_name = "NAME")]
     pub sheet: Option<String>,
+    /// The decimal mark of the numbers in FILE: ',' or '.' [default: '.', or ',' when a
+    /// semicolon- or tab-separated file has unambiguous decimal commas].
+    #[arg(long, value_name = "MARK", value_parser = crate::cli::parse_decimal)]
+    pub decimal: Option<pondus::input::number::DecimalMark>,
     /// How each row becomes an effect and its sampling variance.
     #[arg(long, value_enum, default_value_t = MeasureArg::Effect)]
     pub measure: MeasureArg,

@@ -241,7 +241,10 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         );
     }
     if run.text {
-        out.print(render::text::render(&report));
+        out.print(render::text::render_at(
+            &report,
+            crate::cli::style::text_width(),
+        ));
     }
     out.write()
 }

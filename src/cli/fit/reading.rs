@@ -78,7 +78,8 @@ impl InputArgs {
         }
         let map = ColumnMap::new(measure, overrides)?
             .with_reading(reading)
-            .with_sheet(sheet);
+            .with_sheet(sheet)
+            .with_decimal(self.decimal);
         Ok((measure, map))
     }
 }

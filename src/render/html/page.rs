@@ -131,13 +131,19 @@ impl Page {
     pub(super) fn facts(&mut self, rows: &[(&str, String)]) {
         self.out.push_str("<dl class=\"facts\">\n");
         for (k, v) in rows {
-            let _ = writeln!(self.out, "<dt>{}</dt><dd>{}</dd>", esc(k), esc(v));
+            let _ = writeln!(
+                self.out,
+                "<dt>{}</dt><dd>{}</dd>",
+                esc(k),
+                esc(&fmt::true_minus(v))
+            );
         }
         self.out.push_str("</dl>\n");
     }
 
     /// A table: the first cell of each row is a row header; cells that
-    /// look like numbers are right-aligned.
+    /// look like numbers are right-aligned; negative numbers in the other
+    /// cells get a true minus sign (U+2212), as in the plots.
     pub(super) fn table(&mut self, caption: &str, head: &[&str], rows: &[Vec<String>]) {
         self.out.push_str("<table>\n");
         if !caption.is_empty() {
@@ -154,9 +160,13 @@ impl Page {
                 if j == 0 {
                     let _ = write!(self.out, "<th scope=\"row\">{}</th>", esc(c));
                 } else if numeric_looking(c) {
-                    let _ = write!(self.out, "<td class=\"n\">{}</td>", esc(c));
+                    let _ = write!(
+                        self.out,
+                        "<td class=\"n\">{}</td>",
+                        esc(&fmt::true_minus(c))
+                    );
                 } else {
-                    let _ = write!(self.out, "<td>{}</td>", esc(c));
+                    let _ = write!(self.out, "<td>{}</td>", esc(&fmt::true_minus(c)));
                 }
             }
             self.out.push_str("</tr>\n");

@@ -93,30 +93,27 @@ fn question(page: &mut Page, cx: &PlanCtx) {
         report.power_method
     );
     if let Some(tp) = report.target_power {
-        match report.k_needed {
-            Some(k) => answer.push_str(&format!(
-                " The target power {} needs about {k} sites.",
-                fmt::percent(tp)
-            )),
-            None if report.n_needed.is_none() => answer.push_str(&format!(
-                " The target power {} is not reached with up to {} sites.",
+        if let Some(a) = &report.k_needed_answer {
+            answer.push_str(&format!(
+                " Sites needed for the target power {}: {}.",
                 fmt::percent(tp),
-                report.max_k
-            )),
-            None => {}
+                crate::render::plan::k_answer_words(a, report)
+            ));
+            if let Some(m) = &a.check_method {
+                answer.push_str(&format!(
+                    " As a check, the {m} gives {}.",
+                    a.check_k.map_or_else(
+                        || "no k within the bound".to_string(),
+                        |k| format!("k = {k}")
+                    )
+                ));
+            }
         }
         if let Some(n) = report.n_needed {
             answer.push_str(&format!(
                 " At {} sites, about {} participants per site are needed.",
                 report.k,
                 n.ceil()
-            ));
-        }
-        if let Some(s) = &report.k_needed_simulated {
-            answer.push_str(&format!(
-                " Confirmed by simulation: {} sites.",
-                s.k.map(|k| k.to_string())
-                    .unwrap_or_else(|| "not within the simulated range".into())
             ));
         }
     }

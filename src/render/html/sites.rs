@@ -147,6 +147,9 @@ fn question(page: &mut Page, cx: &SitesCtx) {
                 );
             }
         }
+        if let Some(f) = &st.characteristics {
+            characteristics_answer(page, f, m);
+        }
         for a in &st.answers {
             let _ = write!(page.out, "<p>{}</p>", esc(a));
         }
@@ -159,6 +162,35 @@ fn question(page: &mut Page, cx: &SitesCtx) {
             "Only the first stage was run; add {} for the pooled and across-site answers.",
             Flag::Fit
         ));
+    }
+}
+
+/// The answer of the fit of the site slopes: the average slope with its
+/// intervals, and the moderator test on the site characteristics when there
+/// are any (so that the answer box is complete without `--w`).
+fn characteristics_answer(page: &mut Page, f: &FitReport, m: &crate::result::SitesModel) {
+    let lv = fmt::level_pct(f.model.level);
+    let a = &f.average.mean;
+    let _ =
+        write!(
+        page.out,
+        "<p><strong>Average slope</strong>: across {} sites, {} changes on average by {} per unit \
+         of {} ({lv} CI {}, SE {}); a new site's slope is expected in {} ({lv} prediction \
+         interval).</p>",
+        f.k,
+        esc(&m.y),
+        esc(&fmt::true_minus(&num(a.estimate))),
+        esc(&m.x),
+        esc(&fmt::true_minus(&fmt::interval(a.ci.ci_low, a.ci.ci_high))),
+        esc(&num(a.se)),
+        esc(&fmt::true_minus(&fmt::pi_interval(a.pi.pi_low, a.pi.pi_high)))
+    );
+    if let Some(t) = &f.moderator_test {
+        let _ = write!(
+            page.out,
+            "<p><strong>Site characteristics</strong>: {}</p>",
+            esc(&t.answer)
+        );
     }
 }
 
