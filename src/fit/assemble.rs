@@ -150,7 +150,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         selection: diag.selection,
         sensitivity,
         cumulative: diag.cumulative,
-        influence_cutoffs: diag.influence_cutoffs,
+        influence_rules: diag.influence_rules,
         cumulative_order: diag.cumulative_order,
         variance_components,
         clustering,

@@ -144,11 +144,13 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
             .moderators
             .iter()
             .map(|m| match &m.kind {
-                ModeratorKind::Numeric { centered, .. } => {
+                ModeratorKind::Numeric { centered_at, .. } => {
                     format!(
                         "{} (numeric{})",
                         m.name,
-                        if *centered { ", centred" } else { "" }
+                        centered_at
+                            .map(|c| format!(", centred: {} subtracted, the mean", fmt::value(c)))
+                            .unwrap_or_default()
                     )
                 }
                 ModeratorKind::Categorical {

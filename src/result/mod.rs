@@ -125,9 +125,10 @@ pub struct FitReport {
     /// Cumulative meta-analysis, one step per study in the ordering column's order (`--cumulative-by`; omitted when not asked).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative: Option<Vec<CumulativeStep>>,
-    /// The cut-offs behind `influence[].influential` for this k and p (with `--influence`; omitted otherwise).
+    /// The cut-offs behind `influence[].flags` for this k and p, and the
+    /// answer the shifts are measured from (with `--influence`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub influence_cutoffs: Option<InfluenceCutoffs>,
+    pub influence_rules: Option<InfluenceRules>,
     /// How `cumulative` was ordered (with `--cumulative-by`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative_order: Option<CumulativeOrder>,
@@ -317,11 +318,11 @@ mod tests {
             QuantityKind::Slope,
             QuantityKind::LevelDifference,
         ]);
+        check(&InfluenceFlag::ALL);
         check(&[
-            Cutoff::Dffits,
-            Cutoff::CooksDistance,
-            Cutoff::Hat,
-            Cutoff::Rstudent,
+            ConclusionKind::ModeratorTest,
+            ConclusionKind::Coefficient,
+            ConclusionKind::Average,
         ]);
         check(&[Side::Left, Side::Right]);
         check(&[SortOrder::Numeric, SortOrder::Text]);

@@ -153,6 +153,15 @@ pub fn plot_num(x: f64, decimals: usize) -> String {
     }
 }
 
+/// A number with a fixed number of decimals for a table column ("—" for
+/// NaN), never in scientific notation.
+pub fn fixed(x: f64, decimals: usize) -> String {
+    if x.is_nan() {
+        return "—".into();
+    }
+    format!("{x:.decimals$}")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
