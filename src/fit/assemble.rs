@@ -82,6 +82,10 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         answers,
     } = parts;
     let scale = studies.scale;
+    let average_basis = (terms.len() > 1).then_some(crate::result::AverageBasis {
+        studies: studies.y.len(),
+        with_effect: studies.y.len() + studies.missing_moderator,
+    });
     let fit = &model.fit;
     let input = InputInfo {
         file: source.to_string(),
@@ -132,6 +136,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         moderator_test: summary.moderator_test,
         heterogeneity: summary.heterogeneity,
         average: summary.average,
+        average_basis,
         floored: summary.floored,
         predictions: readout.predictions,
         effects_obtained,

@@ -46,6 +46,9 @@ pub struct Studies {
     pub raw: Vec<RawModerator>,
     /// Rows left out, with the reason, in file order.
     pub excluded: Vec<Excluded>,
+    /// Of those, rows with a usable effect left out only for a missing
+    /// moderator value (the model without moderators does not use them either).
+    pub missing_moderator: usize,
     /// How results are read: the measure's scale, or as analysed when the
     /// correlations were corrected for artifacts.
     pub scale: ReadingScale,
@@ -126,6 +129,13 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         raw.push(design::classify(spec, &cells, &table.lines, source)?);
     }
     let (included, excluded) = include(settings, &effects.rows, &raw, &labels, &table.lines);
+    let missing_moderator = effects.rows.len()
+        - included.len()
+        - effects
+            .rows
+            .iter()
+            .filter(|r| matches!(r, RowEffect::Excluded(_)))
+            .count();
     check_count(source, &included, &excluded)?;
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
@@ -163,6 +173,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
         raw,
         excluded,
+        missing_moderator,
         scale: if artifacts.any() {
             ReadingScale::Same
         } else {

@@ -74,6 +74,10 @@ pub struct FitReport {
     pub heterogeneity: Heterogeneity,
     /// The average effect from the same estimator with no moderators.
     pub average: Estimate,
+    /// Which studies `average` pools when the model has moderators: those
+    /// complete for the moderator model (omitted without moderators).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub average_basis: Option<AverageBasis>,
     /// The answer with the Knapp–Hartung factor floored at 1, present when a
     /// raw factor s² is below 1 and the inference is not `kh-floor` (omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -220,6 +224,17 @@ impl Serialize for MeasureId {
 }
 
 display_by_id!(MeasureId);
+
+/// Which studies the average effect of a moderator model pools.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct AverageBasis {
+    /// Studies pooled: the k studies complete for the moderator model.
+    pub studies: usize,
+    /// Rows with a usable effect, whether or not their moderators are
+    /// complete (`studies` plus the rows left out only for a missing
+    /// moderator value).
+    pub with_effect: usize,
+}
 
 /// A row left out of the model.
 #[derive(Debug, Clone, Serialize)]

@@ -1071,3 +1071,105 @@ fn issue22_the_influence_plot_needs_the_view_and_names_its_cut_offs() {
     assert!(text.contains("Belsley, Kuh &amp; Welsch 1980"), "caption");
     assert!(text.contains("Hoaglin &amp; Welsch 1978"), "caption");
 }
+
+/// Issue 22, point 5: the average of a moderator model pools only the rows
+/// complete for the moderators, and says so with the counts; it equals the
+/// model without moderators fitted to those rows, not to every row.
+/// `--center` states the value it subtracted (text and JSON).
+#[test]
+fn issue22_the_average_says_which_studies_it_pools_and_center_its_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo("data-examples/consortium-correlations.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().take(17).map(String::from).collect();
+    // Lab Santelli (line 5): session_minutes left blank.
+    lines[4] = lines[4]
+        .replacen(",100,", ",100,,", 1)
+        .replacen(",,,", ",,", 1);
+    let parts: Vec<&str> = lines[4].split(',').collect();
+    lines[4] = format!("{},{},{},,{}", parts[0], parts[1], parts[2], parts[4]);
+    let with_gap = dir.path().join("gap.csv");
+    std::fs::write(&with_gap, lines.join("\n") + "\n").unwrap();
+    let complete: Vec<&String> = lines
+        .iter()
+        .filter(|l| !l.starts_with("Lab Santelli"))
+        .collect();
+    let only_complete = dir.path().join("complete.csv");
+    std::fs::write(
+        &only_complete,
+        complete
+            .iter()
+            .map(|s| s.as_str())
+            .collect::<Vec<_>>()
+            .join("\n")
+            + "\n",
+    )
+    .unwrap();
+    let json = |file: &std::path::Path, mods: &[&str]| -> Value {
+        let mut cmd = pondus();
+        cmd.arg("fit")
+            .arg(file)
+            .args(["--measure", "r", "-q", "--json", "-"]);
+        for m in mods {
+            cmd.args(["--moderator", m]);
+        }
+        let out = cmd.output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let j = json(&with_gap, &["session_minutes", "mode"]);
+    assert_eq!(j["average_basis"]["studies"], 15);
+    assert_eq!(j["average_basis"]["with_effect"], 16);
+    let a = j["average"]["estimate"].as_f64().unwrap();
+    let same_rows = json(&only_complete, &[])["average"]["estimate"]
+        .as_f64()
+        .unwrap();
+    let all_rows = json(&with_gap, &[])["average"]["estimate"]
+        .as_f64()
+        .unwrap();
+    assert!((a - same_rows).abs() < 1e-12, "{a} vs {same_rows}");
+    assert!((a - all_rows).abs() > 1e-3, "{a} vs {all_rows}");
+    assert!(json(&with_gap, &[]).get("average_basis").is_none());
+    let out = pondus()
+        .arg("fit")
+        .arg(&with_gap)
+        .args([
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--moderator",
+            "mode",
+        ])
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("pools 15 of 16 studies, those complete for the moderators"),
+        "{text}"
+    );
+
+    let out = pondus()
+        .arg("fit")
+        .arg(repo("data-examples/consortium-correlations.csv"))
+        .args([
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--center",
+            "session_minutes",
+        ])
+        .args(["--json", "-"])
+        .output()
+        .unwrap();
+    let j: Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|_| {
+        panic!("{}", String::from_utf8_lossy(&out.stdout));
+    });
+    let m = &j["model"]["moderators"][0];
+    let mean = m["kind"]["mean"].as_f64().unwrap();
+    assert_eq!(m["kind"]["centered_at"].as_f64(), Some(mean));
+}
