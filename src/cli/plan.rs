@@ -527,6 +527,11 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
             .filter(|(_, c)| !c.is_empty())
             .collect()
     };
+    let unit = if pondus::input::sheet::is_spreadsheet(&name) {
+        "cell of the first column"
+    } else {
+        "line"
+    };
     let mut values = Vec::new();
     for (i, (place, cell)) in cells.iter().enumerate() {
         match cell.parse::<f64>() {
@@ -536,8 +541,8 @@ fn read_moderator_values(path: &std::path::Path, sheet: Option<&str>) -> Result<
                 return Err(Error::usage(
                     FLAG,
                     format!(
-                        "{name}, {place}: '{cell}' is not a finite number; give one number per line"
-                    ),
+                    "{name}, {place}: '{cell}' is not a finite number; give one number per {unit}"
+                ),
                 ))
             }
         }

@@ -81,6 +81,15 @@ pub fn render(r: &SitesReport) -> String {
 }
 
 /// What was read and how each site's slope was estimated.
+/// "; N blank rows skipped" when the reader skipped wholly blank rows.
+fn blank_rows_text(n: u64) -> String {
+    match n {
+        0 => String::new(),
+        1 => "; 1 blank row skipped".into(),
+        n => format!("; {n} blank rows skipped"),
+    }
+}
+
 fn run_lines(o: &mut String, r: &SitesReport) {
     let m = &r.model;
     let _ = writeln!(o, "pondus sites: per-site regressions in {}", r.input.file);
@@ -119,14 +128,17 @@ fn run_lines(o: &mut String, r: &SitesReport) {
     if r.input.kind == SitesInputKind::Moments {
         let _ = writeln!(
             o,
-            "  input: a per-site moments table with {} rows",
-            r.input.rows
+            "  input: a per-site moments table with {} rows{}",
+            r.input.rows,
+            blank_rows_text(r.input.blank_rows)
         );
     } else {
         let _ = writeln!(
             o,
-            "  rows read: {} ({} left out for missing values)",
-            r.input.rows, r.input.missing_rows
+            "  rows read: {} ({} left out for missing values{})",
+            r.input.rows,
+            r.input.missing_rows,
+            blank_rows_text(r.input.blank_rows)
         );
     }
     let _ = writeln!(

@@ -23,6 +23,8 @@ pub struct MomentsTable {
     pub delimiter: u8,
     /// Data rows.
     pub rows: u64,
+    /// Wholly blank rows skipped.
+    pub blank_rows: u64,
 }
 
 /// The layout a moments table's header describes: the covariates
@@ -194,6 +196,7 @@ pub fn read_moments(source: &str, bytes: &[u8]) -> Result<MomentsTable> {
         layout,
         delimiter: table.delimiter,
         rows: table.len() as u64,
+        blank_rows: table.blank_rows as u64,
     })
 }
 
