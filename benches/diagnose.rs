@@ -6,7 +6,9 @@
 //! docs/performance.md. Not a test: nothing here asserts a time. The data
 //! are simulated (invented) with the project's seeded generator.
 
-use pondus::diagnose::{deleted_fits, influence, loo, permutation, ModelData, PermutationSettings};
+use pondus::diagnose::{
+    average_fits, deleted_fits, influence, loo, permutation, ModelData, PermutationSettings,
+};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{self, FitOptions, Inference};
 use pondus::support::rng::block_rng;
@@ -91,8 +93,17 @@ fn main() {
     let full = model::fit(&y, &v, &x, 2, options).unwrap();
     let work = || {
         let del = deleted_fits(&d);
-        black_box(loo::table(&d, &full, &del, &labels, &lines));
-        black_box(influence::table(&d, &full, &del, &labels, &lines));
+        let avg = average_fits(&d, &del);
+        let terms = ["intercept".to_string(), "x".to_string()];
+        let r = loo::Refits {
+            full: &full,
+            deleted: &del,
+            averages: &avg,
+            terms: &terms,
+            scale: pondus::effect::ReadingScale::Same,
+        };
+        black_box(loo::table(&d, r, &labels, &lines));
+        black_box(influence::table(&d, r, &labels, &lines));
     };
     println!("leave-one-out + influence: k = 1,000, one moderator, REML + KH; best of 3");
     let all = best(3, work);

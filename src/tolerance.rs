@@ -86,6 +86,13 @@ pub const IDENTITY_REL: f64 = 1e-8;
 /// nearly so (a coefficient near 0, τ² at the boundary).
 pub const REFERENCE_ABS: f64 = 1e-10;
 
+/// Absolute tolerance of a difference of two fitted values against the
+/// reference (the influence view's shifts β̂₍₋ᵢ₎ − β̂, and the same over an
+/// SE of about 0.05): each side carries up to [`REFERENCE_REL`] of an
+/// estimate of order 1, so their difference carries up to about 2e-9, and
+/// 20 times that after division by the SE.
+pub const REFERENCE_SHIFT_ABS: f64 = 5e-8;
+
 /// Relative tolerance for p-values against the reference (statrs' tails
 /// carry about 3e-11 relative error; tiny p-values come from long tails).
 pub const REFERENCE_P_REL: f64 = 1e-6;

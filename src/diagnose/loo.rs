@@ -1,26 +1,46 @@
-//! Leave-one-out: the model refitted without each study in turn.
+//! Leave-one-out: the model refitted without each study.
 
-use super::{i2, Deleted, ModelData};
+use super::{conclusion, i2, Deleted, ModelData};
+use crate::effect::ReadingScale;
 use crate::model::{inference, ModelFit};
 use crate::result::LeaveOneOut;
 
-/// The leave-one-out table from the refits of [`super::deleted_fits`].
+/// The refits a leave-one-out or influence table reads: the model and the
+/// average effect (intercept only) without each study.
+#[derive(Debug, Clone, Copy)]
+pub struct Refits<'a> {
+    /// The model with every study.
+    pub full: &'a ModelFit,
+    /// The model without study i, for each i.
+    pub deleted: &'a [Deleted],
+    /// The average effect without study i (the same fits as `deleted`
+    /// without moderators).
+    pub averages: &'a [Deleted],
+    /// Term names in model order.
+    pub terms: &'a [String],
+    /// The reading scale of the measure.
+    pub scale: ReadingScale,
+}
+
+/// The leave-one-out table from the refits of [`super::deleted_fits`] and
+/// [`super::average_fits`].
 ///
 /// # Formula
-/// For each study i, the refit without it gives β̂₍₋ᵢ₎, τ̂²₍₋ᵢ₎, I²₍₋ᵢ₎ and the
-/// omnibus moderator test's p with the user's inference (Knapp–Hartung F or
-/// Wald chi-square, [`inference::omnibus`]). A removal is flagged when a
-/// moderator coefficient changes sign (β̂ⱼ·β̂ⱼ₍₋ᵢ₎ < 0, j ≥ 1), or when the
-/// tested p crosses α = 1 − level. Without moderators the same flags concern
-/// the average effect (the intercept) and its test.
+/// For each study i, the refit without it gives β̂₍₋ᵢ₎, τ̂²₍₋ᵢ₎, I²₍₋ᵢ₎ and
+/// the omnibus moderator test's p with the user's inference (Knapp–Hartung F
+/// or Wald chi-square, [`inference::omnibus`]); the intercept-only refit
+/// gives the average effect μ̂₍₋ᵢ₎, shown also on the reading scale (tanh for
+/// Fisher z, exp for a log ratio). A removal is flagged by the conclusions
+/// it reverses ([`conclusion::changes`]): the moderator test crossing
+/// α = 1 − level, or a moderator coefficient's interval starting or ceasing
+/// to exclude 0 (the average's without moderators). A sign change of a
+/// coefficient that no interval separates from 0 is not flagged.
 pub fn table(
     d: &ModelData<'_>,
-    full: &ModelFit,
-    deleted: &[Deleted],
+    r: Refits<'_>,
     labels: &[String],
     lines: &[u64],
 ) -> Vec<LeaveOneOut> {
-    let alpha = 1.0 - d.options.level;
     let has_mods = d.p > 1;
     let tested_p = |f: &ModelFit| -> Option<f64> {
         if has_mods {
@@ -29,13 +49,8 @@ pub fn table(
             inference::coefficients(f).first().map(|c| c.p)
         }
     };
-    let full_p = tested_p(full);
-    let signed: Vec<usize> = if has_mods {
-        (1..d.p).collect()
-    } else {
-        vec![0]
-    };
-    deleted
+    let reading = |x: f64| (r.scale != ReadingScale::Same).then(|| r.scale.apply(x));
+    r.deleted
         .iter()
         .enumerate()
         .map(|(i, del)| {
@@ -43,12 +58,13 @@ pub fn table(
                 study: labels[i].clone(),
                 line: lines[i],
                 coefficients: Vec::new(),
+                average: None,
+                average_reading: None,
                 tau2: None,
                 i2: None,
                 moderator_p: None,
                 average_p: None,
-                sign_changed: false,
-                significance_changed: false,
+                changes: Vec::new(),
                 problem: None,
             };
             let f = match del {
@@ -67,16 +83,20 @@ pub fn table(
                     ..base
                 };
             };
-            let sign_changed = signed.iter().any(|&j| full.beta[j] * f.beta[j] < 0.0);
-            let significance_changed = full_p.is_some_and(|fp| (fp < alpha) != (p < alpha));
+            let average = r
+                .averages
+                .get(i)
+                .and_then(|a| a.as_ref().ok())
+                .map(|a| a.beta[0]);
             LeaveOneOut {
                 coefficients: f.beta.iter().copied().collect(),
+                average,
+                average_reading: average.and_then(reading),
                 tau2: Some(f.tau2.estimate),
                 i2: Some(i2(f)),
                 moderator_p: has_mods.then_some(p),
                 average_p: (!has_mods).then_some(p),
-                sign_changed,
-                significance_changed,
+                changes: conclusion::changes(r.full, f, r.terms, d.options.level),
                 ..base
             }
         })

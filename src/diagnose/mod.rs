@@ -6,6 +6,7 @@
 //! the user's estimator, inference and level; nothing here re-implements
 //! the model. Results are the public structs of [`crate::result`].
 
+pub mod conclusion;
 pub mod cumulative;
 pub mod influence;
 pub mod loo;
@@ -117,6 +118,21 @@ pub fn deleted_fits(d: &ModelData<'_>) -> Vec<Deleted> {
         .collect()
 }
 
+/// The average effect (intercept only, same estimator and inference)
+/// without each study: the same fits as [`deleted_fits`] when the model has
+/// no moderators, k further refits of the effects alone when it has.
+pub fn average_fits(d: &ModelData<'_>, deleted: &[Deleted]) -> Vec<Deleted> {
+    if d.p == 1 {
+        return deleted.to_vec();
+    }
+    let ones = vec![1.0; d.k()];
+    deleted_fits(&ModelData {
+        x: &ones,
+        p: 1,
+        ..*d
+    })
+}
+
 /// One refit, with every failure turned into words.
 pub(crate) fn refit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Deleted {
     match model::fit_parts(y, v, x, p, options, false) {
@@ -159,8 +175,8 @@ pub struct Outputs {
     pub leave_one_out: Option<Vec<crate::result::LeaveOneOut>>,
     /// `--influence`.
     pub influence: Option<Vec<crate::result::Influence>>,
-    /// The cut-offs of `--influence`.
-    pub influence_cutoffs: Option<crate::result::InfluenceCutoffs>,
+    /// The cut-offs of `--influence` and the answer its shifts start from.
+    pub influence_rules: Option<crate::result::InfluenceRules>,
     /// `--permutations`.
     pub permutation: Option<crate::result::Permutation>,
     /// `--small-study`.
@@ -267,13 +283,21 @@ pub fn run(
                  categorical level with one study); their rows say why."
             ));
         }
+        let averages = average_fits(d, &deleted);
+        let refits = loo::Refits {
+            full,
+            deleted: &deleted,
+            averages: &averages,
+            terms,
+            scale,
+        };
         if settings.loo {
-            out.leave_one_out = Some(loo::table(d, full, &deleted, labels, lines));
+            out.leave_one_out = Some(loo::table(d, refits, labels, lines));
         }
         if settings.influence {
-            let (t, c) = influence::table(d, full, &deleted, labels, lines);
+            let (t, c) = influence::table(d, refits, labels, lines);
             out.influence = Some(t);
-            out.influence_cutoffs = Some(c);
+            out.influence_rules = Some(c);
         }
     }
     if let Some(ps) = settings.permutations {

@@ -85,6 +85,10 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         spread,
     } = parts;
     let scale = studies.scale;
+    let average_basis = (terms.len() > 1).then_some(crate::result::AverageBasis {
+        studies: studies.y.len(),
+        with_effect: studies.y.len() + studies.missing_moderator,
+    });
     let fit = &model.fit;
     let input = InputInfo {
         file: source.to_string(),
@@ -135,6 +139,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         moderator_test: summary.moderator_test,
         heterogeneity: summary.heterogeneity,
         average: summary.average,
+        average_basis,
         floored: summary.floored,
         predictions: readout.predictions,
         effects_obtained,
@@ -153,7 +158,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         selection: diag.selection,
         sensitivity,
         cumulative: diag.cumulative,
-        influence_cutoffs: diag.influence_cutoffs,
+        influence_rules: diag.influence_rules,
         cumulative_order: diag.cumulative_order,
         variance_components,
         clustering,

@@ -48,6 +48,9 @@ pub struct Studies {
     pub spread_raw: Vec<RawModerator>,
     /// Rows left out, with the reason, in file order.
     pub excluded: Vec<Excluded>,
+    /// Of those, rows with a usable effect left out only for a missing
+    /// moderator value (the model without moderators does not use them either).
+    pub missing_moderator: usize,
     /// How results are read: the measure's scale, or as analysed when the
     /// correlations were corrected for artifacts.
     pub scale: ReadingScale,
@@ -148,6 +151,13 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         &labels,
         &table.lines,
     );
+    let missing_moderator = effects.rows.len()
+        - included.len()
+        - effects
+            .rows
+            .iter()
+            .filter(|r| matches!(r, RowEffect::Excluded(_)))
+            .count();
     check_count(source, &included, &excluded, &places)?;
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
@@ -186,6 +196,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         raw,
         spread_raw,
         excluded,
+        missing_moderator,
         scale: if artifacts.any() {
             ReadingScale::Same
         } else {

@@ -364,6 +364,7 @@ fn numeric_kind(
         min,
         max,
         centered: spec.center,
+        centered_at: spec.center.then_some(mean),
     })
 }
 

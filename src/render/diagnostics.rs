@@ -3,7 +3,7 @@
 //! public result only.
 
 use super::layout::{clip, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
-use crate::result::{AtValue, FitReport};
+use crate::result::{AtValue, ConclusionChange, ConclusionKind, FitReport, InfluenceFlag};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -12,177 +12,331 @@ fn label_width(labels: impl Iterator<Item = usize>) -> usize {
     labels.max().unwrap_or(5).clamp(5, 28)
 }
 
-/// Leave-one-out (`--loo`): the model refitted without each study.
-pub fn leave_one_out(r: &FitReport, _: &Ctx, o: &mut String) {
-    let alpha = 1.0 - r.model.level;
-    let has_mods = r.model.terms.len() > 1;
-    if let Some(loo) = &r.leave_one_out {
-        let _ = writeln!(o, "Leave-one-out (the model refitted without each study)");
-        let tested = if has_mods {
-            "moderator test p"
-        } else {
-            "average effect p"
-        };
-        let terms: Vec<&String> = if has_mods {
-            r.model.terms.iter().skip(1).take(3).collect()
-        } else {
-            r.model.terms.iter().take(1).collect()
-        };
-        let first = usize::from(has_mods);
-        let flagged = loo
-            .iter()
-            .filter(|l| l.sign_changed || l.significance_changed)
-            .count();
-        let list_all = loo.len() <= MAX_LISTED_STUDIES;
-        let lw = label_width(loo.iter().map(|l| width(&l.study)));
-        let mut head = format!("  {}", pad("without", lw));
-        for t in &terms {
-            let _ = write!(head, "  {}", lpad(&clip(t, 10), 10));
-        }
-        let _ = write!(
-            head,
-            "  {}  {}  {}  flag",
-            lpad("τ²", 10),
-            lpad("I²", 6),
-            lpad("p", 8)
-        );
-        let _ = writeln!(o, "{head}");
-        for l in loo {
-            let flag = match (l.sign_changed, l.significance_changed) {
-                (true, true) => "sign, significance",
-                (true, false) => "sign",
-                (false, true) => "significance",
-                (false, false) => "",
-            };
-            if !list_all && flag.is_empty() {
-                continue;
-            }
-            let mut line = format!("  {}", pad(&clip(&l.study, lw), lw));
-            if l.problem.is_some() {
-                let _ = writeln!(
-                    o,
-                    "{line}  no answer: {}",
-                    l.problem.as_deref().unwrap_or("")
-                );
-                continue;
-            }
-            for j in 0..terms.len() {
-                let c = l.coefficients.get(first + j).copied();
-                let _ = write!(line, "  {}", lpad(&fmt::opt_num(c), 10));
-            }
-            let p = l.moderator_p.or(l.average_p);
-            let _ = write!(
-                line,
-                "  {}  {}  {}  {flag}",
-                lpad(&fmt::opt_num(l.tau2), 10),
-                lpad(&l.i2.map(fmt::percent).unwrap_or("—".into()), 6),
-                lpad(&p.map(fmt::p_cell).unwrap_or("—".into()), 8)
-            );
-            let _ = writeln!(o, "{line}");
-        }
-        if !list_all {
-            let _ = writeln!(
-                o,
-                "  (only the flagged studies are listed; {} and {} have all {})",
-                Flag::Json,
-                Flag::Table,
-                loo.len()
-            );
-        }
-        let what = if has_mods {
-            "a moderator coefficient changes sign, or the moderator test crosses"
-        } else {
-            "the average effect changes sign, or its test crosses"
-        };
-        o.push_str(&wrap(
-            &format!(
-                "{flagged} of {} removals flagged ({what} α = {alpha:.2}); {tested} from the \
-                 model's own inference. A flagged study is a reason to check its data and \
-                 design, not to drop it.",
-                loo.len()
-            ),
-            "  ",
-            70,
-        ));
-        let _ = writeln!(o);
+/// A reversed conclusion in a few words: "moderator test lost",
+/// "session_minutes gained" (its interval now excludes 0).
+pub(crate) fn change_text(c: &ConclusionChange) -> String {
+    let what = match c.kind {
+        ConclusionKind::ModeratorTest => "moderator test".to_string(),
+        ConclusionKind::Average => "average".to_string(),
+        ConclusionKind::Coefficient => c.term.clone().unwrap_or_default(),
+    };
+    let how = if c.significant_with && !c.significant_without {
+        "lost"
+    } else {
+        "gained"
+    };
+    format!("{what} {how}")
+}
+
+/// The reversed conclusions of one removal, joined by commas.
+pub(crate) fn changes_text(cs: &[ConclusionChange]) -> String {
+    cs.iter().map(change_text).collect::<Vec<_>>().join(", ")
+}
+
+/// The header of the average column: "average" with the reading scale's name.
+pub(crate) fn average_header(r: &FitReport) -> String {
+    match &r.measure.reading_name {
+        Some(name) => format!("average ({name})"),
+        None => "average".into(),
     }
 }
 
-/// The influence measures of each study (`--influence`).
-pub fn influence(r: &FitReport, _: &Ctx, o: &mut String) {
-    if let (Some(inf), Some(cut)) = (&r.influence, &r.influence_cutoffs) {
-        let _ = writeln!(o, "Influence of each study (Viechtbauer & Cheung 2010)");
-        let list_all = inf.len() <= MAX_LISTED_STUDIES;
-        let lw = label_width(inf.iter().map(|l| width(&l.study)));
+/// Most moderator coefficients shown as columns of the terminal's
+/// leave-one-out and influence tables (`--json` and `--table` have all).
+const MAX_TERM_COLUMNS: usize = 3;
+
+/// Leave-one-out (`--loo`): the model refitted without each study.
+pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let alpha = 1.0 - r.model.level;
+    let has_mods = r.model.terms.len() > 1;
+    let Some(loo) = &r.leave_one_out else {
+        return;
+    };
+    let _ = writeln!(o, "Leave-one-out (the model refitted without each study)");
+    let terms: Vec<&String> = if has_mods {
+        r.model
+            .terms
+            .iter()
+            .skip(1)
+            .take(MAX_TERM_COLUMNS)
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let flagged = loo.iter().filter(|l| !l.changes.is_empty()).count();
+    let list_all = loo.len() <= MAX_LISTED_STUDIES;
+    let lw = label_width(loo.iter().map(|l| width(&l.study)));
+    let avg_head = average_header(r);
+    let aw = width(&avg_head).max(9);
+    let tw: Vec<usize> = terms.iter().map(|t| width(t).max(9)).collect();
+    let mut head = format!("  {}  {}", pad("without", lw), lpad(&avg_head, aw));
+    for (t, w) in terms.iter().zip(&tw) {
+        let _ = write!(head, "  {}", lpad(t, *w));
+    }
+    let tested = if has_mods { "test p" } else { "p" };
+    let _ = write!(
+        head,
+        "  {}  {}  {}  conclusion changed",
+        lpad("τ²", 9),
+        lpad("I²", 6),
+        lpad(tested, 8)
+    );
+    let _ = writeln!(o, "{head}");
+    let first = usize::from(has_mods);
+    for l in loo {
+        if !list_all && l.changes.is_empty() && l.problem.is_none() {
+            continue;
+        }
+        let mut line = format!("  {}", pad(&clip(&l.study, lw), lw));
+        if let Some(why) = &l.problem {
+            let _ = writeln!(o, "{line}  no answer: {why}");
+            continue;
+        }
+        let _ = write!(
+            line,
+            "  {}",
+            lpad(&fmt::opt_num(l.average_reading.or(l.average)), aw)
+        );
+        for (j, w) in tw.iter().enumerate() {
+            let c = l.coefficients.get(first + j).copied();
+            let _ = write!(line, "  {}", lpad(&fmt::opt_num(c), *w));
+        }
+        let p = l.moderator_p.or(l.average_p);
+        let _ = write!(
+            line,
+            "  {}  {}  {}  {}",
+            lpad(&fmt::opt_num(l.tau2), 9),
+            lpad(&l.i2.map(fmt::percent).unwrap_or("—".into()), 6),
+            lpad(&p.map(fmt::p_cell).unwrap_or("—".into()), 8),
+            changes_text(&l.changes)
+        );
+        let _ = writeln!(o, "{}", line.trim_end());
+    }
+    if !list_all {
         let _ = writeln!(
             o,
-            "  {}  {}  {}  {}  {}  {}  {}  {}  cut-offs exceeded",
-            pad("study", lw),
-            lpad("rstudent", 8),
-            lpad("DFFITS", 7),
-            lpad("Cook's D", 8),
-            lpad("COVRATIO", 8),
-            lpad("hat", 6),
-            lpad("τ² (−i)", 9),
-            lpad("Q (−i)", 8)
+            "  (only the flagged studies are listed; {} and {} have all {})",
+            Flag::Json,
+            Flag::Table,
+            loo.len()
         );
-        let f2 = |x: Option<f64>| x.map(|x| format!("{x:.3}")).unwrap_or("—".into());
-        for s in inf {
-            if !list_all && !s.influential {
-                continue;
-            }
-            let _ = writeln!(
-                o,
-                "  {}  {}  {}  {}  {}  {}  {}  {}  {}{}",
-                pad(&clip(&s.study, lw), lw),
-                lpad(&f2(s.rstudent), 8),
-                lpad(&f2(s.dffits), 7),
-                lpad(&f2(s.cooks_distance), 8),
-                lpad(&f2(s.cov_ratio), 8),
-                lpad(&format!("{:.3}", s.hat), 6),
-                lpad(&fmt::opt_num(s.tau2_deleted), 9),
-                lpad(
-                    &s.q_deleted.map(|q| format!("{q:.2}")).unwrap_or("—".into()),
-                    8
-                ),
-                s.exceeded
-                    .iter()
-                    .map(|c| c.id())
-                    .collect::<Vec<_>>()
-                    .join(", "),
-                if s.influential {
-                    "  ← influential"
-                } else {
-                    ""
-                }
-            );
-        }
-        if !list_all {
-            let _ = writeln!(
-                o,
-                "  (only the influential studies are listed; {} and {} have all {})",
-                Flag::Json,
-                Flag::Table,
-                inf.len()
-            );
-        }
-        let n = inf.iter().filter(|s| s.influential).count();
-        o.push_str(&wrap(
-            &format!(
-                "{n} of {} studies influential by the cut-offs |DFFITS| > {:.3}, Cook's D > {:.3}, \
-                 hat > {:.3} (rules of thumb in common practice); |rstudent| > {:.2} marks an \
-                 outlying effect. An influential study deserves a second look, not removal.",
-                inf.len(),
-                cut.dffits,
-                cut.cooks_distance,
-                cut.hat,
-                cut.rstudent
-            ),
-            "  ",
-            70,
-        ));
-        let _ = writeln!(o);
     }
+    let more = r.model.terms.len().saturating_sub(1 + MAX_TERM_COLUMNS);
+    let hidden = if more > 0 {
+        format!(
+            " {more} more coefficients are in {} and {}.",
+            Flag::Json,
+            Flag::Table
+        )
+    } else {
+        String::new()
+    };
+    let rule = if has_mods {
+        format!(
+            "the moderator test crossing α = {alpha:.2}, or a moderator coefficient whose \
+             {} interval excluded 0 no longer doing so, or the reverse",
+            cx.level_pct
+        )
+    } else {
+        "the average effect's interval ceasing to exclude 0, or starting to".to_string()
+    };
+    let sign = if has_mods {
+        " A sign change of a coefficient that its interval does not separate from 0 is not \
+         flagged."
+    } else {
+        ""
+    };
+    let avg = if has_mods {
+        "The average is that of the model without moderators on the same studies"
+    } else {
+        "The average is the model's own"
+    };
+    o.push_str(&wrap(
+        &format!(
+            "{flagged} of {} removals change a conclusion ({rule}); \"lost\" means it no longer \
+             holds without the study, \"gained\" that it holds only without it.{sign} {avg}, \
+             shown on the reading scale where the measure has one.{hidden} A flagged study is \
+             a reason to check its data and design, not to drop it.",
+            loo.len()
+        ),
+        "  ",
+        70,
+    ));
+    let _ = writeln!(o);
+}
+
+/// An influence flag in a few words.
+pub(crate) fn flag_text(f: InfluenceFlag, has_mods: bool) -> &'static str {
+    match (f, has_mods) {
+        (InfluenceFlag::ChangesConclusion, _) => "changes a conclusion",
+        (InfluenceFlag::MovesCoefficient, true) => "moves a coefficient",
+        (InfluenceFlag::MovesCoefficient, false) => "moves the average",
+        (InfluenceFlag::UnusualEffect, _) => "unusual effect",
+        (InfluenceFlag::HighLeverage, _) => "high leverage",
+    }
+}
+
+/// The flags of one study, joined by commas.
+pub(crate) fn flags_text(fs: &[InfluenceFlag], has_mods: bool) -> String {
+    fs.iter()
+        .map(|f| flag_text(*f, has_mods))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The rules behind the influence flags, in words with their sources.
+pub(crate) fn influence_rules_text(r: &FitReport) -> Option<String> {
+    let rules = r.influence_rules.as_ref()?;
+    let has_mods = r.model.terms.len() > 1;
+    let k = r.influence.as_ref().map_or(0, Vec::len);
+    let p = r.model.terms.len();
+    let what = if has_mods {
+        "a moderator coefficient"
+    } else {
+        "the average"
+    };
+    Some(format!(
+        "Flags: \"changes a conclusion\" by the rule of the leave-one-out table; \"{}\" when \
+         leaving the study out moves {what} by more than 2/√k = {} of its standard error (the \
+         size-adjusted cut-off of Belsley, Kuh & Welsch 1980); \"unusual effect\" when the \
+         deleted residual is beyond ±{} (the Bonferroni outlier test at α/k, Cook & Weisberg \
+         1982); \"high leverage\" above 2p/k = {} (twice the average leverage p/k, k = {k}, \
+         p = {p}; Hoaglin & Welsch 1978). These are rules of thumb in common practice.",
+        flag_text(InfluenceFlag::MovesCoefficient, has_mods),
+        num(rules.coefficient_shift_se),
+        fmt::fixed(rules.deleted_residual, 2),
+        num(rules.leverage),
+    ))
+}
+
+/// The influence view (`--influence`): how far each study moves the
+/// answer, then how unusual it is and how much pull it has.
+pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
+    let (Some(inf), Some(rules)) = (&r.influence, &r.influence_rules) else {
+        return;
+    };
+    let has_mods = r.model.terms.len() > 1;
+    let _ = writeln!(o, "Influence: how far each study moves the answer");
+    let mut with = format!(
+        "  with every study: average {}",
+        num(rules.average_reading.unwrap_or(rules.average))
+    );
+    if let Some(name) = &r.measure.reading_name {
+        let _ = write!(with, " (as {name})");
+    }
+    if let Some(p) = rules.moderator_p {
+        let _ = write!(with, "; moderator test p {}", fmt::p(p));
+    }
+    let _ = writeln!(o, "{with}");
+    let terms: Vec<&String> = if has_mods {
+        r.model
+            .terms
+            .iter()
+            .skip(1)
+            .take(MAX_TERM_COLUMNS)
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let first = usize::from(has_mods);
+    let list_all = inf.len() <= MAX_LISTED_STUDIES;
+    let lw = label_width(inf.iter().map(|l| width(&l.study)));
+    let ah = format!("Δ {}", average_header(r));
+    let aw = width(&ah).max(9);
+    // Each moderator coefficient's move in its standard errors; without
+    // moderators, the average's (the quantity its flag reads).
+    let heads: Vec<String> = if has_mods {
+        terms.iter().map(|t| format!("Δ {t}")).collect()
+    } else {
+        vec!["Δ in SE".to_string()]
+    };
+    let tw: Vec<usize> = heads.iter().map(|h| width(h).max(8)).collect();
+    let mut head = format!("  {}  {}", pad("study", lw), lpad(&ah, aw));
+    for (h, w) in heads.iter().zip(&tw) {
+        let _ = write!(head, "  {}", lpad(h, *w));
+    }
+    if has_mods {
+        let _ = write!(head, "  {}", lpad("p without", 9));
+    }
+    let _ = write!(
+        head,
+        "  {}  {}  flags",
+        lpad("residual", 8),
+        lpad("leverage", 8)
+    );
+    let _ = writeln!(o, "{head}");
+    for s in inf {
+        if !list_all && s.flags.is_empty() && s.problem.is_none() {
+            continue;
+        }
+        let mut line = format!("  {}", pad(&clip(&s.study, lw), lw));
+        let shift = s.average_shift_reading.or(s.average_shift);
+        let shift = shift.map(|x| fmt::fixed(x, 4)).unwrap_or("—".into());
+        let _ = write!(line, "  {}", lpad(&shift, aw));
+        if let Some(why) = &s.problem {
+            let _ = writeln!(
+                o,
+                "{line}  leverage {}; no refit: {why}",
+                fmt::fixed(s.leverage, 3)
+            );
+            continue;
+        }
+        for (j, w) in tw.iter().enumerate() {
+            let c = s.coefficient_shifts_se.get(first + j).copied();
+            let _ = write!(
+                line,
+                "  {}",
+                lpad(&c.map(|c| fmt::fixed(c, 2)).unwrap_or("—".into()), *w)
+            );
+        }
+        if has_mods {
+            let _ = write!(
+                line,
+                "  {}",
+                lpad(&fmt::opt_p_cell(s.moderator_p_without), 9)
+            );
+        }
+        let _ = write!(
+            line,
+            "  {}  {}  {}",
+            lpad(
+                &s.deleted_residual
+                    .map(|x| fmt::fixed(x, 2))
+                    .unwrap_or("—".into()),
+                8
+            ),
+            lpad(&fmt::fixed(s.leverage, 3), 8),
+            flags_text(&s.flags, has_mods)
+        );
+        let _ = writeln!(o, "{}", line.trim_end());
+    }
+    if !list_all {
+        let _ = writeln!(
+            o,
+            "  (only the flagged studies are listed; {} and {} have all {})",
+            Flag::Json,
+            Flag::Table,
+            inf.len()
+        );
+    }
+    let n = inf.iter().filter(|s| !s.flags.is_empty()).count();
+    let reading = if r.measure.reading_name.is_some() {
+        " on the reading scale"
+    } else {
+        ""
+    };
+    let mut words = format!(
+        "{n} of {} studies flagged. Δ: the change when the study is left out (the average{reading}, \
+         from the model without moderators on the same studies; each coefficient in its standard \
+         errors). The residual is the deleted residual: the study's effect against the model \
+         fitted without it, in standard deviations; \
+         leverage is its pull on its own fitted value. ",
+        inf.len()
+    );
+    words.push_str(&influence_rules_text(r).unwrap_or_default());
+    words.push_str(" A flagged study deserves a second look at its data and design, not removal.");
+    o.push_str(&cx.para(&words));
+    let _ = writeln!(o);
 }
 
 /// The permutation test of the moderators (`--permutations`).

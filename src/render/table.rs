@@ -19,19 +19,34 @@ pub const HEADER: [&str; 12] = [
     "computed_from",
 ];
 
-/// Columns added after [`HEADER`] with `--loo` (τ² and the tested p without the study).
-pub const LOO_COLUMNS: [&str; 3] = ["loo_tau2", "loo_p", "loo_flag"];
+/// Columns added after [`HEADER`] with `--loo`: the average effect without
+/// the study (analysis and reading scale), τ² and the tested p without it,
+/// and the conclusions its removal reverses ("moderator_test:lost;
+/// session_minutes:gained", empty when none).
+pub const LOO_COLUMNS: [&str; 5] = [
+    "loo_average",
+    "loo_average_reading",
+    "loo_tau2",
+    "loo_p",
+    "loo_changes",
+];
 
-/// Columns added after [`HEADER`] (and the leave-one-out columns) with `--influence`.
-pub const INFLUENCE_COLUMNS: [&str; 8] = [
-    "rstudent",
-    "dffits",
-    "cooks_distance",
-    "cov_ratio",
-    "hat",
-    "tau2_deleted",
-    "q_deleted",
-    "influential",
+/// Columns added after [`HEADER`] (and the leave-one-out columns) with
+/// `--influence`: the average without the study and its shift (analysis
+/// scale; the shift also on the reading scale), the coefficient it moves
+/// most in standard errors (its term and the signed shift), the moderator
+/// test's p without it, its standardised deleted residual, its leverage and
+/// the flags it meets ("moves_coefficient;high_leverage").
+pub const INFLUENCE_COLUMNS: [&str; 9] = [
+    "without_average",
+    "average_shift",
+    "average_shift_reading",
+    "most_moved_term",
+    "most_moved_shift_se",
+    "moderator_p_without",
+    "deleted_residual",
+    "leverage",
+    "influence_flags",
 ];
 
 /// Columns added after the influence columns with `--shrink` (analysis scale).
@@ -52,6 +67,14 @@ fn cell(s: &str) -> String {
 
 fn opt(x: Option<f64>) -> String {
     x.map(|x| x.to_string()).unwrap_or_default()
+}
+
+/// The coefficient that leaving the study out moves most, in standard
+/// errors ([`crate::result::Influence::largest_shift`]).
+fn most_moved(report: &FitReport, i: &crate::result::Influence) -> (String, Option<f64>) {
+    i.largest_shift(report.model.terms.len() > 1)
+        .map(|(j, s)| (report.model.terms[j].clone(), Some(s)))
+        .unwrap_or_default()
 }
 
 /// Writes one row per input row (included and excluded, in file order).
@@ -83,24 +106,39 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     for (n, s) in report.studies.iter().enumerate() {
         let mut more = Vec::with_capacity(extra);
         if let Some(l) = report.leave_one_out.as_ref().and_then(|x| x.get(n)) {
-            let flag = match (l.sign_changed, l.significance_changed) {
-                (true, true) => "sign+significance",
-                (true, false) => "sign",
-                (false, true) => "significance",
-                (false, false) => "",
-            };
-            more.extend([opt(l.tau2), opt(l.moderator_p.or(l.average_p)), flag.into()]);
+            let changes: Vec<String> = l
+                .changes
+                .iter()
+                .map(|c| {
+                    let what = c.term.clone().unwrap_or_else(|| c.kind.id().into());
+                    let how = if c.significant_without {
+                        "gained"
+                    } else {
+                        "lost"
+                    };
+                    format!("{what}:{how}")
+                })
+                .collect();
+            more.extend([
+                opt(l.average),
+                opt(l.average_reading),
+                opt(l.tau2),
+                opt(l.moderator_p.or(l.average_p)),
+                cell(&changes.join(";")),
+            ]);
         }
         if let Some(i) = report.influence.as_ref().and_then(|x| x.get(n)) {
+            let (term, shift) = most_moved(report, i);
             more.extend([
-                opt(i.rstudent),
-                opt(i.dffits),
-                opt(i.cooks_distance),
-                opt(i.cov_ratio),
-                i.hat.to_string(),
-                opt(i.tau2_deleted),
-                opt(i.q_deleted),
-                if i.influential { "yes" } else { "no" }.into(),
+                opt(i.average_without),
+                opt(i.average_shift),
+                opt(i.average_shift_reading),
+                cell(&term),
+                opt(shift),
+                opt(i.moderator_p_without),
+                opt(i.deleted_residual),
+                i.leverage.to_string(),
+                i.flags.iter().map(|f| f.id()).collect::<Vec<_>>().join(";"),
             ]);
         }
         if let Some(sh) = s.shrunken.as_ref().filter(|_| shrink) {

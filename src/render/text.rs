@@ -157,11 +157,13 @@ fn header(r: &FitReport, cx: &Ctx, o: &mut String) {
             .moderators
             .iter()
             .map(|m| match &m.kind {
-                ModeratorKind::Numeric { centered, .. } => {
+                ModeratorKind::Numeric { centered_at, .. } => {
                     format!(
                         "{} (numeric{})",
                         m.name,
-                        if *centered { ", centred" } else { "" }
+                        centered_at
+                            .map(|c| format!(", centred: {} subtracted, the mean", fmt::value(c)))
+                            .unwrap_or_default()
                     )
                 }
                 ModeratorKind::Categorical {
@@ -355,7 +357,29 @@ fn average(r: &FitReport, cx: &Ctx, o: &mut String) {
         &cx.level_pct,
         r.measure.reading_name.as_deref(),
     );
+    if let Some(words) = average_basis_text(r) {
+        o.push_str(&cx.para(&words));
+    }
     let _ = writeln!(o);
+}
+
+/// What the average of a moderator model pools, when rows with an effect
+/// were left out for a missing moderator value (None otherwise).
+pub(crate) fn average_basis_text(r: &FitReport) -> Option<String> {
+    let b = r.average_basis?;
+    let dropped = b.with_effect - b.studies;
+    (dropped > 0).then(|| {
+        format!(
+            "pools {} of {} studies, those complete for the moderators: {dropped} {} with an \
+             effect but a missing moderator value {} left out of both models, so this average \
+             can differ from one fitted to all {}.",
+            b.studies,
+            b.with_effect,
+            if dropped == 1 { "row" } else { "rows" },
+            if dropped == 1 { "is" } else { "are" },
+            b.with_effect
+        )
+    })
 }
 
 /// The predicted effects at the requested moderator values (`--predict`).

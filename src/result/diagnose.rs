@@ -4,30 +4,41 @@
 use super::estimate::{AtValue, Interval, RatioCoefficient};
 use serde::Serialize;
 
-/// An influence cut-off that a study exceeds.
+/// A rule of the influence view that a study meets.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
-pub enum Cutoff {
-    /// |DFFITS| above its cut-off.
-    Dffits,
-    /// Cook's distance above its cut-off.
-    CooksDistance,
-    /// Hat value above its cut-off.
-    Hat,
-    /// |rstudent| above the normal critical value.
-    Rstudent,
+pub enum InfluenceFlag {
+    /// Leaving it out reverses a conclusion (the rule of `--loo`).
+    ChangesConclusion,
+    /// It moves a coefficient by more than the size-adjusted cut-off
+    /// 2/√k standard errors (Belsley, Kuh & Welsch 1980).
+    MovesCoefficient,
+    /// Its standardised deleted residual is beyond the Bonferroni critical
+    /// value of the outlier test (Cook & Weisberg 1982).
+    UnusualEffect,
+    /// Its leverage is above twice the average leverage, 2p/k (Belsley,
+    /// Kuh & Welsch 1980; Hoaglin & Welsch 1978).
+    HighLeverage,
 }
 
-impl Cutoff {
+impl InfluenceFlag {
     /// The word used in the JSON.
     pub fn id(self) -> &'static str {
         match self {
-            Cutoff::Dffits => "dffits",
-            Cutoff::CooksDistance => "cooks_distance",
-            Cutoff::Hat => "hat",
-            Cutoff::Rstudent => "rstudent",
+            InfluenceFlag::ChangesConclusion => "changes_conclusion",
+            InfluenceFlag::MovesCoefficient => "moves_coefficient",
+            InfluenceFlag::UnusualEffect => "unusual_effect",
+            InfluenceFlag::HighLeverage => "high_leverage",
         }
     }
+
+    /// Every flag, in the order the report lists them.
+    pub const ALL: [InfluenceFlag; 4] = [
+        InfluenceFlag::ChangesConclusion,
+        InfluenceFlag::MovesCoefficient,
+        InfluenceFlag::UnusualEffect,
+        InfluenceFlag::HighLeverage,
+    ];
 }
 
 /// The side of the funnel on which trim-and-fill sought missing studies.
@@ -70,6 +81,42 @@ impl SortOrder {
     }
 }
 
+/// What kind of conclusion a removal reverses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ConclusionKind {
+    /// The omnibus moderator test (p < α or not).
+    ModeratorTest,
+    /// A moderator coefficient (its interval excludes 0 or not).
+    Coefficient,
+    /// The average effect of a model without moderators (its interval excludes 0 or not).
+    Average,
+}
+
+impl ConclusionKind {
+    /// The word used in the JSON.
+    pub fn id(self) -> &'static str {
+        match self {
+            ConclusionKind::ModeratorTest => "moderator_test",
+            ConclusionKind::Coefficient => "coefficient",
+            ConclusionKind::Average => "average",
+        }
+    }
+}
+
+/// One conclusion that leaving a study out reverses.
+#[derive(Debug, Clone, Serialize)]
+pub struct ConclusionChange {
+    /// "moderator_test", "coefficient" or "average".
+    pub kind: ConclusionKind,
+    /// The coefficient's term (null for the moderator test and the average).
+    pub term: Option<String>,
+    /// With every study: the test's p below α, or the interval excluding 0.
+    pub significant_with: bool,
+    /// The same without the study.
+    pub significant_without: bool,
+}
+
 /// One leave-one-out refit (`--loo`): the model fitted without one study,
 /// with the same estimator, inference and level.
 #[derive(Debug, Clone, Serialize)]
@@ -80,6 +127,13 @@ pub struct LeaveOneOut {
     pub line: u64,
     /// Coefficient estimates without it, in model order (`model.terms`); empty when the refit failed.
     pub coefficients: Vec<f64>,
+    /// The average effect without it (same estimator, no moderators, the
+    /// rows of the moderator model less this one), analysis scale (null when
+    /// the refit failed).
+    pub average: Option<f64>,
+    /// The same on the reading scale (r from Fisher z, a ratio from a log
+    /// ratio); null when the measure is read as analysed.
+    pub average_reading: Option<f64>,
     /// τ² without it (null when the refit failed).
     pub tau2: Option<f64>,
     /// I² (a fraction) without it (null when the refit failed).
@@ -89,58 +143,92 @@ pub struct LeaveOneOut {
     pub moderator_p: Option<f64>,
     /// p of the average effect's test without it (models without moderators; else null).
     pub average_p: Option<f64>,
-    /// Whether leaving it out changes the sign of a moderator coefficient
-    /// (of the average effect when there are no moderators).
-    pub sign_changed: bool,
-    /// Whether leaving it out moves the tested p (moderator test, or the
-    /// average effect without moderators) across 1 − level.
-    pub significance_changed: bool,
+    /// The conclusions that leaving it out reverses: the moderator test
+    /// crossing α, a moderator coefficient whose interval excluded 0 no
+    /// longer doing so or the reverse (without moderators: the average's
+    /// interval). Empty when no conclusion changes.
+    pub changes: Vec<ConclusionChange>,
     /// Why the refit has no answer (null when it has one).
     pub problem: Option<String>,
 }
 
-/// Influence measures of one study (`--influence`; Viechtbauer & Cheung 2010).
+/// How much one study moves the answer, how unusual it is and how much
+/// pull it has (`--influence`).
 #[derive(Debug, Clone, Serialize)]
 pub struct Influence {
     /// The study.
     pub study: String,
     /// Its line in the file.
     pub line: u64,
-    /// Externally studentised residual (y_i − x_i'β̂₍₋ᵢ₎)/√(v_i + τ̂²₍₋ᵢ₎ + x_i'V₍₋ᵢ₎x_i).
-    pub rstudent: Option<f64>,
-    /// DFFITS: (ŷ_i − ŷ_i₍₋ᵢ₎)/√(h_i(τ̂²₍₋ᵢ₎ + v_i)).
-    pub dffits: Option<f64>,
-    /// Cook's distance (β̂ − β̂₍₋ᵢ₎)'V⁻¹(β̂ − β̂₍₋ᵢ₎).
-    pub cooks_distance: Option<f64>,
-    /// Covariance ratio det V₍₋ᵢ₎ / det V.
-    pub cov_ratio: Option<f64>,
-    /// Hat value (leverage) h_i = w_i x_i'(X'WX)⁻¹x_i of the full fit.
-    pub hat: f64,
-    /// τ² when the study is left out.
-    pub tau2_deleted: Option<f64>,
-    /// Residual heterogeneity Q (common-effect weights) when the study is left out.
-    pub q_deleted: Option<f64>,
-    /// Whether any influence cut-off fired (DFFITS, Cook's distance, hat value).
-    pub influential: bool,
-    /// The cut-offs that fired: "dffits", "cooks_distance", "hat" (and
-    /// "rstudent" for a residual beyond the normal critical value, which alone
-    /// does not make a study influential).
-    pub exceeded: Vec<Cutoff>,
-    /// Why the measures that need a refit are null (null when they are given).
+    /// The average effect without it (same estimator, no moderators, the
+    /// rows of the moderator model less this one), analysis scale.
+    pub average_without: Option<f64>,
+    /// How far leaving it out moves the average: μ̂₍₋ᵢ₎ − μ̂, analysis scale.
+    pub average_shift: Option<f64>,
+    /// The same on the reading scale, g(μ̂₍₋ᵢ₎) − g(μ̂) with g = tanh (r) or
+    /// exp (a ratio); null when the measure is read as analysed.
+    pub average_shift_reading: Option<f64>,
+    /// How far leaving it out moves each coefficient, β̂ⱼ₍₋ᵢ₎ − β̂ⱼ, in model
+    /// order (empty when the refit failed).
+    pub coefficient_shifts: Vec<f64>,
+    /// The same in standard errors of the full fit as reported,
+    /// (β̂ⱼ₍₋ᵢ₎ − β̂ⱼ)/SE(β̂ⱼ).
+    pub coefficient_shifts_se: Vec<f64>,
+    /// p of the moderator test without it (null without moderators or when
+    /// the refit failed); `influence_rules.moderator_p` has it with every study.
+    pub moderator_p_without: Option<f64>,
+    /// The conclusions leaving it out reverses (as in `leave_one_out`).
+    pub changes: Vec<ConclusionChange>,
+    /// Standardised deleted residual: its effect against the model fitted
+    /// without it, (y_i − x_i'β̂₍₋ᵢ₎)/√(v_i + τ̂²₍₋ᵢ₎ + x_i'V₍₋ᵢ₎x_i).
+    pub deleted_residual: Option<f64>,
+    /// Leverage (its pull on its own fitted value): h_i = w_i x_i'(X'WX)⁻¹x_i of the full fit.
+    pub leverage: f64,
+    /// The rules it meets: "changes_conclusion", "moves_coefficient",
+    /// "unusual_effect", "high_leverage" (`influence_rules` has the cut-offs).
+    pub flags: Vec<InfluenceFlag>,
+    /// Why the quantities that need a refit are null (null when they are given).
     pub problem: Option<String>,
 }
 
-/// The cut-offs used for [`Influence::influential`], for this k and p.
+impl Influence {
+    /// The coefficient that leaving the study out moves most in standard
+    /// errors: its index in model order and the signed shift. With
+    /// `moderators` the intercept is passed over (the moderator coefficients
+    /// are the answer); None when the refit failed.
+    pub fn largest_shift(&self, moderators: bool) -> Option<(usize, f64)> {
+        self.coefficient_shifts_se
+            .iter()
+            .copied()
+            .enumerate()
+            .skip(usize::from(moderators))
+            .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+    }
+}
+
+/// The cut-offs of the influence flags for this k and p, and the answer
+/// with every study that the shifts are measured from.
 #[derive(Debug, Clone, Serialize)]
-pub struct InfluenceCutoffs {
-    /// |DFFITS| above 3√(p/(k − p)).
-    pub dffits: f64,
-    /// Cook's distance above the median of χ²(p).
-    pub cooks_distance: f64,
-    /// Hat value above 3p/k.
-    pub hat: f64,
-    /// |rstudent| above the normal critical value at the model's level.
-    pub rstudent: f64,
+pub struct InfluenceRules {
+    /// `moves_coefficient`: |shift| above 2/√k standard errors, the
+    /// size-adjusted cut-off of Belsley, Kuh & Welsch (1980, Regression
+    /// Diagnostics, §2.1, from memory). Without moderators it applies to the
+    /// average, with them to the moderator coefficients.
+    pub coefficient_shift_se: f64,
+    /// `unusual_effect`: |deleted residual| above z at 1 − α/(2k), the
+    /// Bonferroni-adjusted outlier test (Cook & Weisberg 1982, Residuals and
+    /// Influence in Regression, §2.2, from memory).
+    pub deleted_residual: f64,
+    /// `high_leverage`: leverage above 2p/k, twice the average leverage
+    /// (Hoaglin & Welsch 1978; Belsley, Kuh & Welsch 1980).
+    pub leverage: f64,
+    /// The average effect with every study (analysis scale), from the same
+    /// fit as the shifts.
+    pub average: f64,
+    /// Its value on the reading scale (null when read as analysed).
+    pub average_reading: Option<f64>,
+    /// The moderator test's p with every study (null without moderators).
+    pub moderator_p: Option<f64>,
 }
 
 /// The permutation test of the moderators (`--permutations`; Higgins & Thompson 2004).
@@ -278,4 +366,4 @@ pub struct CumulativeStep {
     pub i2: Option<f64>,
 }
 
-display_by_id!(Cutoff, Side, SortOrder);
+display_by_id!(InfluenceFlag, Side, SortOrder, ConclusionKind);

@@ -76,6 +76,10 @@ pub struct FitReport {
     pub heterogeneity: Heterogeneity,
     /// The average effect from the same estimator with no moderators.
     pub average: Estimate,
+    /// Which studies `average` pools when the model has moderators: those
+    /// complete for the moderator model (omitted without moderators).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub average_basis: Option<AverageBasis>,
     /// The answer with the Knapp–Hartung factor floored at 1, present when a
     /// raw factor s² is below 1 and the inference is not `kh-floor` (omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -127,9 +131,10 @@ pub struct FitReport {
     /// Cumulative meta-analysis, one step per study in the ordering column's order (`--cumulative-by`; omitted when not asked).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative: Option<Vec<CumulativeStep>>,
-    /// The cut-offs behind `influence[].influential` for this k and p (with `--influence`; omitted otherwise).
+    /// The cut-offs behind `influence[].flags` for this k and p, and the
+    /// answer the shifts are measured from (with `--influence`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub influence_cutoffs: Option<InfluenceCutoffs>,
+    pub influence_rules: Option<InfluenceRules>,
     /// How `cumulative` was ordered (with `--cumulative-by`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cumulative_order: Option<CumulativeOrder>,
@@ -249,6 +254,17 @@ impl Serialize for MeasureId {
 
 display_by_id!(MeasureId);
 
+/// Which studies the average effect of a moderator model pools.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct AverageBasis {
+    /// Studies pooled: the k studies complete for the moderator model.
+    pub studies: usize,
+    /// Rows with a usable effect, whether or not their moderators are
+    /// complete (`studies` plus the rows left out only for a missing
+    /// moderator value).
+    pub with_effect: usize,
+}
+
 /// A row left out of the model.
 #[derive(Debug, Clone, Serialize)]
 pub struct Excluded {
@@ -346,11 +362,11 @@ mod tests {
             QuantityKind::Slope,
             QuantityKind::LevelDifference,
         ]);
+        check(&InfluenceFlag::ALL);
         check(&[
-            Cutoff::Dffits,
-            Cutoff::CooksDistance,
-            Cutoff::Hat,
-            Cutoff::Rstudent,
+            ConclusionKind::ModeratorTest,
+            ConclusionKind::Coefficient,
+            ConclusionKind::Average,
         ]);
         check(&[Side::Left, Side::Right]);
         check(&[SortOrder::Numeric, SortOrder::Text]);

@@ -127,6 +127,10 @@ pub enum ModeratorKind {
         max: f64,
         /// Whether the mean was subtracted before fitting.
         centered: bool,
+        /// The value subtracted before fitting (`--center`: the mean over the
+        /// included studies); omitted when not centred.
+        #[serde(skip_serializing_if = "Option::is_none")]
+        centered_at: Option<f64>,
     },
     /// A label per study, dummy-coded against a reference level.
     Categorical {

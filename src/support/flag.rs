@@ -74,6 +74,7 @@ flags! {
     Funnel => "--funnel", ["fit"];
     Contours => "--contours", ["fit"];
     SensitivityPlot => "--sensitivity-plot", ["fit"];
+    InfluencePlot => "--influence-plot", ["fit"];
     Width => "--width", ["fit"];
     Height => "--height", ["fit"];
     Dpi => "--dpi", ["fit", "plan"];

@@ -4,8 +4,9 @@
 //! Outside sources:
 //! - `tests/data/reference/diagnose/*.json`: an independent numpy 2.3.5 /
 //!   scipy 1.16.3 / statsmodels 0.14.6 script, `tests/reference/diagnose.py`
-//!   (own REML and DerSimonian–Laird fits; influence measures after
-//!   Viechtbauer & Cheung 2010; the regression test with statsmodels WLS;
+//!   (own REML and DerSimonian–Laird fits; the conclusions each removal
+//!   reverses; the influence view's shifts, deleted residuals, leverages
+//!   and flags with the textbook cut-offs; the regression test with statsmodels WLS;
 //!   the rank test with scipy.stats.kendalltau; trim-and-fill L0 written
 //!   from Duval & Tweedie 2000; the exact permutation p by enumerating all
 //!   720 orderings with itertools), regenerated and compared by
@@ -26,7 +27,7 @@ use pondus::fit::{run, FitSettings};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::{FitOptions, Inference};
 use pondus::result::FitReport;
-use pondus::tolerance::{REFERENCE_ABS, REFERENCE_P_REL, REFERENCE_REL};
+use pondus::tolerance::{REFERENCE_ABS, REFERENCE_P_REL, REFERENCE_REL, REFERENCE_SHIFT_ABS};
 use serde_json::Value;
 
 fn load(name: &str) -> Value {
@@ -148,12 +149,38 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
                 (None, Some(a)) => p(&format!("{w} average p"), a, &e["average_p"]),
                 other => panic!("{w}: p fields {other:?}"),
             }
-            assert_eq!(Some(l.sign_changed), e["sign_changed"].as_bool(), "{w}");
+            ov(&format!("{w} average"), l.average, &e["average"]);
+            if measure == Measure::LogRr {
+                let a = l.average.unwrap();
+                close(
+                    &format!("{w} average as a ratio"),
+                    l.average_reading.unwrap(),
+                    a.exp(),
+                    1e-15,
+                    0.0,
+                );
+            } else {
+                assert!(l.average_reading.is_none(), "{w}: reading scale");
+            }
+            let changes_ref = e["changes"].as_array().unwrap();
             assert_eq!(
-                Some(l.significance_changed),
-                e["significance_changed"].as_bool(),
-                "{w}"
+                l.changes.len(),
+                changes_ref.len(),
+                "{w}: changes {:?}",
+                l.changes
             );
+            for (c, cr) in l.changes.iter().zip(changes_ref) {
+                assert_eq!(Some(c.kind.id()), cr["kind"].as_str(), "{w}");
+                let term = cr["coefficient"]
+                    .as_u64()
+                    .map(|j| r.model.terms[j as usize].clone());
+                assert_eq!(c.term, term, "{w}");
+                assert_eq!(Some(c.significant_with), cr["significant_with"].as_bool());
+                assert_eq!(
+                    Some(c.significant_without),
+                    cr["significant_without"].as_bool()
+                );
+            }
         }
 
         let inf = r.influence.as_ref().expect("influence");
@@ -161,41 +188,87 @@ fn check_reference(file: &str, measure: Measure, data: &str) {
         assert_eq!(inf.len(), inf_ref.len());
         for (s, e) in inf.iter().zip(inf_ref) {
             let w = format!("{label} influence {}", s.study);
-            ov(&format!("{w} rstudent"), s.rstudent, &e["rstudent"]);
-            ov(&format!("{w} dffits"), s.dffits, &e["dffits"]);
+            assert!(s.problem.is_none(), "{w}: {:?}", s.problem);
             ov(
-                &format!("{w} cooks"),
-                s.cooks_distance,
-                &e["cooks_distance"],
+                &format!("{w} average without"),
+                s.average_without,
+                &e["average_without"],
             );
-            ov(&format!("{w} cov_ratio"), s.cov_ratio, &e["cov_ratio"]);
-            v(&format!("{w} hat"), s.hat, &e["hat"]);
+            // The shift is a difference of two fitted averages: compared on the
+            // absolute tolerance alone (its relative size can be anything).
+            close(
+                &format!("{w} average shift"),
+                s.average_shift.unwrap(),
+                num(&e["average_shift"], "shift"),
+                0.0,
+                REFERENCE_SHIFT_ABS,
+            );
+            for (name, ours, theirs) in [
+                ("shift", &s.coefficient_shifts, &e["coefficient_shifts"]),
+                (
+                    "shift in SE",
+                    &s.coefficient_shifts_se,
+                    &e["coefficient_shifts_se"],
+                ),
+            ] {
+                let theirs = theirs.as_array().unwrap();
+                assert_eq!(ours.len(), theirs.len(), "{w} {name}");
+                for (j, (a, b)) in ours.iter().zip(theirs).enumerate() {
+                    close(
+                        &format!("{w} {name} {j}"),
+                        *a,
+                        num(b, name),
+                        0.0,
+                        REFERENCE_SHIFT_ABS,
+                    );
+                }
+            }
+            match s.moderator_p_without {
+                Some(a) => p(&format!("{w} p without"), a, &e["moderator_p_without"]),
+                None => assert!(e["moderator_p_without"].is_null(), "{w}"),
+            }
+            assert_eq!(
+                s.changes.len(),
+                e["changes"].as_array().unwrap().len(),
+                "{w}"
+            );
             ov(
-                &format!("{w} tau2_deleted"),
-                s.tau2_deleted,
-                &e["tau2_deleted"],
+                &format!("{w} deleted residual"),
+                s.deleted_residual,
+                &e["deleted_residual"],
             );
-            ov(&format!("{w} q_deleted"), s.q_deleted, &e["q_deleted"]);
-            assert_eq!(Some(s.influential), e["influential"].as_bool(), "{w}");
-            let fired: Vec<&str> = e["exceeded"]
+            v(&format!("{w} leverage"), s.leverage, &e["leverage"]);
+            let fired: Vec<&str> = e["flags"]
                 .as_array()
                 .unwrap()
                 .iter()
                 .map(|x| x.as_str().unwrap())
                 .collect();
-            let exceeded: Vec<&str> = s.exceeded.iter().map(|c| c.id()).collect();
-            assert_eq!(exceeded, fired, "{w}");
+            let ours: Vec<&str> = s.flags.iter().map(|c| c.id()).collect();
+            assert_eq!(ours, fired, "{w}");
         }
-        let cut = r.influence_cutoffs.as_ref().unwrap();
-        let cut_ref = &run_ref["influence_cutoffs"];
-        v("dffits cut-off", cut.dffits, &cut_ref["dffits"]);
+        let rules = r.influence_rules.as_ref().unwrap();
+        let rules_ref = &run_ref["influence_rules"];
         v(
-            "Cook cut-off",
-            cut.cooks_distance,
-            &cut_ref["cooks_distance"],
+            "shift cut-off",
+            rules.coefficient_shift_se,
+            &rules_ref["coefficient_shift_se"],
         );
-        v("hat cut-off", cut.hat, &cut_ref["hat"]);
-        v("rstudent cut-off", cut.rstudent, &cut_ref["rstudent"]);
+        v(
+            "residual cut-off",
+            rules.deleted_residual,
+            &rules_ref["deleted_residual"],
+        );
+        v("leverage cut-off", rules.leverage, &rules_ref["leverage"]);
+        v(
+            "average with every study",
+            rules.average,
+            &rules_ref["average"],
+        );
+        match rules.moderator_p {
+            Some(a) => p("moderator p", a, &rules_ref["moderator_p"]),
+            None => assert!(rules_ref["moderator_p"].is_null()),
+        }
 
         let ss = r.small_study.as_ref().expect("small_study");
         let a = &ss.asymmetry_test;
@@ -662,7 +735,15 @@ fn json_omits_diagnostics_not_asked_for_and_uses_the_issue_keys() {
         .unwrap();
     assert!(out.status.success());
     let j: Value = serde_json::from_slice(&out.stdout).unwrap();
-    for key in ["study", "coefficients", "tau2", "moderator_p"] {
+    for key in [
+        "study",
+        "coefficients",
+        "average",
+        "average_reading",
+        "tau2",
+        "moderator_p",
+        "changes",
+    ] {
         assert!(
             j["leave_one_out"][0].get(key).is_some(),
             "leave_one_out.{key}"
@@ -670,16 +751,40 @@ fn json_omits_diagnostics_not_asked_for_and_uses_the_issue_keys() {
     }
     for key in [
         "study",
+        "average_without",
+        "average_shift",
+        "average_shift_reading",
+        "coefficient_shifts",
+        "coefficient_shifts_se",
+        "moderator_p_without",
+        "changes",
+        "deleted_residual",
+        "leverage",
+        "flags",
+    ] {
+        assert!(j["influence"][0].get(key).is_some(), "influence.{key}");
+    }
+    // Issue 22: the names of the earlier view are gone.
+    for key in [
         "rstudent",
         "dffits",
         "cooks_distance",
         "cov_ratio",
         "hat",
         "tau2_deleted",
-        "q_deleted",
-        "influential",
     ] {
-        assert!(j["influence"][0].get(key).is_some(), "influence.{key}");
+        assert!(j["influence"][0].get(key).is_none(), "influence.{key}");
+    }
+    for key in [
+        "coefficient_shift_se",
+        "deleted_residual",
+        "leverage",
+        "average",
+    ] {
+        assert!(
+            j["influence_rules"].get(key).is_some(),
+            "influence_rules.{key}"
+        );
     }
     for key in ["permutations", "seed", "moderator_p", "coefficient_p"] {
         assert!(j["permutation"].get(key).is_some(), "permutation.{key}");
@@ -727,21 +832,31 @@ fn the_table_gains_the_diagnostic_columns_when_asked() {
     let text = std::fs::read_to_string(&t).unwrap();
     let mut rdr = csv::Reader::from_reader(text.as_bytes());
     let header: Vec<String> = rdr.headers().unwrap().iter().map(String::from).collect();
-    for col in [
-        "loo_tau2",
-        "loo_p",
-        "loo_flag",
-        "rstudent",
-        "dffits",
-        "cooks_distance",
-        "hat",
-        "influential",
-    ] {
+    for col in pondus::render::table::LOO_COLUMNS
+        .iter()
+        .chain(&pondus::render::table::INFLUENCE_COLUMNS)
+    {
         assert!(header.iter().any(|h| h == col), "{col} missing: {header:?}");
     }
     let rows: Vec<csv::StringRecord> = rdr.records().map(|r| r.unwrap()).collect();
     assert_eq!(rows.len(), 13);
     assert!(rows.iter().all(|r| r.len() == header.len()));
+    for gone in [
+        "loo_flag",
+        "cov_ratio",
+        "tau2_deleted",
+        "q_deleted",
+        "rstudent",
+    ] {
+        assert!(!header.iter().any(|h| h == gone), "{gone} still there");
+    }
+    // The average without each study is on the reading scale too (a ratio).
+    let col = |name: &str| header.iter().position(|h| h == name).unwrap();
+    for r in &rows {
+        let a: f64 = r[col("loo_average")].parse().unwrap();
+        let b: f64 = r[col("loo_average_reading")].parse().unwrap();
+        assert!((a.exp() - b).abs() < 1e-12);
+    }
 }
 
 #[test]
@@ -825,4 +940,236 @@ fn leave_one_out_beyond_its_size_limit_is_refused_before_it_starts() {
         err.contains("--loo") && err.contains("at most 20000"),
         "{err}"
     );
+}
+
+/// Issue 22, point 4: on the consortium example a coefficient estimated at
+/// −0.0017 (p = 0.97) changed sign in 10 of 24 refits, and each was
+/// flagged "sign". Only a reversed conclusion is flagged now: none of the
+/// 24 removals moves the moderator test across α or a coefficient's
+/// interval across 0. The headers are whole and the average is shown as r.
+#[test]
+fn issue22_consortium_leave_one_out_flags_only_reversed_conclusions() {
+    let out = pondus()
+        .args([
+            "fit",
+            &repo("data-examples/consortium-correlations.csv")
+                .display()
+                .to_string(),
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--moderator",
+            "mode",
+            "--loo",
+        ])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    let section: &str = text
+        .split("Leave-one-out")
+        .nth(1)
+        .and_then(|s| s.split("\n\n").next())
+        .unwrap();
+    let header = section.lines().nth(1).unwrap();
+    for col in [
+        "average (r)",
+        "session_minutes",
+        "mode=online",
+        "conclusion changed",
+    ] {
+        assert!(header.contains(col), "{col} not in {header}");
+    }
+    assert!(!section.contains('…'), "{section}");
+    assert!(
+        !section
+            .lines()
+            .filter(|l| l.starts_with("  Lab"))
+            .any(|l| l.contains("sign")),
+        "{section}"
+    );
+    assert!(
+        section.contains("0 of 24 removals change a conclusion"),
+        "{section}"
+    );
+    let json = pondus()
+        .args([
+            "fit",
+            &repo("data-examples/consortium-correlations.csv")
+                .display()
+                .to_string(),
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--moderator",
+            "mode",
+            "--loo",
+            "-q",
+            "--json",
+            "-",
+        ])
+        .output()
+        .unwrap();
+    let j: Value = serde_json::from_slice(&json.stdout).unwrap();
+    let loo = j["leave_one_out"].as_array().unwrap();
+    assert_eq!(loo.len(), 24);
+    for l in loo {
+        assert_eq!(l["changes"].as_array().unwrap().len(), 0, "{l}");
+        let z = l["average"].as_f64().unwrap();
+        let r = l["average_reading"].as_f64().unwrap();
+        assert!((z.tanh() - r).abs() < 1e-15);
+    }
+}
+
+/// Issue 22: the influence plot is drawn from the influence view (each
+/// study's move against its leverage, the cut-offs named in the caption),
+/// in every format, and refused without `--influence`.
+#[test]
+fn issue22_the_influence_plot_needs_the_view_and_names_its_cut_offs() {
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("i.svg");
+    let out = pondus()
+        .args([
+            "fit",
+            &bcg(),
+            "--measure",
+            "log-rr",
+            "--moderator",
+            "ablat",
+            "-q",
+        ])
+        .arg("--influence-plot")
+        .arg(&svg)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--influence-plot") && err.contains("add --influence"),
+        "{err}"
+    );
+    assert!(!svg.exists());
+    for name in ["i.svg", "i.png", "i.pdf"] {
+        let path = dir.path().join(name);
+        let out = pondus()
+            .args(["fit", &bcg(), "--measure", "log-rr", "--moderator", "ablat"])
+            .args(["--influence", "-q", "--influence-plot"])
+            .arg(&path)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert!(std::fs::metadata(&path).unwrap().len() > 1000, "{name}");
+    }
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.contains("against its pull"), "title");
+    assert!(text.contains("Belsley, Kuh &amp; Welsch 1980"), "caption");
+    assert!(text.contains("Hoaglin &amp; Welsch 1978"), "caption");
+}
+
+/// Issue 22, point 5: the average of a moderator model pools only the rows
+/// complete for the moderators, and says so with the counts; it equals the
+/// model without moderators fitted to those rows, not to every row.
+/// `--center` states the value it subtracted (text and JSON).
+#[test]
+fn issue22_the_average_says_which_studies_it_pools_and_center_its_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo("data-examples/consortium-correlations.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().take(17).map(String::from).collect();
+    // Lab Santelli (line 5): session_minutes left blank.
+    lines[4] = lines[4]
+        .replacen(",100,", ",100,,", 1)
+        .replacen(",,,", ",,", 1);
+    let parts: Vec<&str> = lines[4].split(',').collect();
+    lines[4] = format!("{},{},{},,{}", parts[0], parts[1], parts[2], parts[4]);
+    let with_gap = dir.path().join("gap.csv");
+    std::fs::write(&with_gap, lines.join("\n") + "\n").unwrap();
+    let complete: Vec<&String> = lines
+        .iter()
+        .filter(|l| !l.starts_with("Lab Santelli"))
+        .collect();
+    let only_complete = dir.path().join("complete.csv");
+    std::fs::write(
+        &only_complete,
+        complete
+            .iter()
+            .map(|s| s.as_str())
+            .collect::<Vec<_>>()
+            .join("\n")
+            + "\n",
+    )
+    .unwrap();
+    let json = |file: &std::path::Path, mods: &[&str]| -> Value {
+        let mut cmd = pondus();
+        cmd.arg("fit")
+            .arg(file)
+            .args(["--measure", "r", "-q", "--json", "-"]);
+        for m in mods {
+            cmd.args(["--moderator", m]);
+        }
+        let out = cmd.output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let j = json(&with_gap, &["session_minutes", "mode"]);
+    assert_eq!(j["average_basis"]["studies"], 15);
+    assert_eq!(j["average_basis"]["with_effect"], 16);
+    let a = j["average"]["estimate"].as_f64().unwrap();
+    let same_rows = json(&only_complete, &[])["average"]["estimate"]
+        .as_f64()
+        .unwrap();
+    let all_rows = json(&with_gap, &[])["average"]["estimate"]
+        .as_f64()
+        .unwrap();
+    assert!((a - same_rows).abs() < 1e-12, "{a} vs {same_rows}");
+    assert!((a - all_rows).abs() > 1e-3, "{a} vs {all_rows}");
+    assert!(json(&with_gap, &[]).get("average_basis").is_none());
+    let out = pondus()
+        .arg("fit")
+        .arg(&with_gap)
+        .args([
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--moderator",
+            "mode",
+        ])
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("pools 15 of 16 studies, those complete for the moderators"),
+        "{text}"
+    );
+
+    let out = pondus()
+        .arg("fit")
+        .arg(repo("data-examples/consortium-correlations.csv"))
+        .args([
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+            "--center",
+            "session_minutes",
+        ])
+        .args(["--json", "-"])
+        .output()
+        .unwrap();
+    let j: Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|_| {
+        panic!("{}", String::from_utf8_lossy(&out.stdout));
+    });
+    let m = &j["model"]["moderators"][0];
+    let mean = m["kind"]["mean"].as_f64().unwrap();
+    assert_eq!(m["kind"]["centered_at"].as_f64(), Some(mean));
 }

@@ -55,6 +55,7 @@ const CASES: &[Case] = &[
     Case { id: "consortium-permutations-loo", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --permutations 5000 --seed 7 --loo --json out.json"] },
     Case { id: "trials-selection", steps: &["fit data-examples/trial-events.csv --measure log-or --moderator followup_months --small-study --selection 0.025 --favoured negative --sensitivity-plot sensitivity.svg --json out.json --report report.html"] },
     Case { id: "hiring-small-study", steps: &["fit data-examples/hiring-validity.csv --measure r --loo --influence --small-study --funnel funnel.svg --json out.json --table table.csv"] },
+    Case { id: "consortium-influence-plot", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --influence --table table.csv --influence-plot influence.svg"] },
     // Interpretation (docs/interpretation.md, tutorial).
     Case { id: "consortium-interaction-regions", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --interaction session_minutes,mode --probe mode --regions --json out.json --bubble bubble.svg --report report.html"] },
     Case { id: "consortium-probe-compare", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --probe session_minutes --probe mode --compare-levels --regions --json out.json --bubble bubble.svg --bubble-x mode"] },

@@ -146,9 +146,12 @@ fn every_example_report_is_self_contained_and_has_every_section() {
                 "{name}: no section {id}"
             );
         }
-        // Three pictures (each model has a moderator), and the sensitivity
-        // plot with --small-study or --selection; each an accessible SVG.
-        let n = 3 + usize::from(args.contains("--small-study") || args.contains("--selection"));
+        // Three pictures (each model has a moderator), the sensitivity
+        // plot with --small-study or --selection and the influence plot
+        // with --influence; each an accessible SVG.
+        let n = 3
+            + usize::from(args.contains("--small-study") || args.contains("--selection"))
+            + usize::from(args.contains("--influence"));
         assert_eq!(page.matches("<figure class=\"plot\"").count(), n, "{name}");
         assert_eq!(page.matches("<svg ").count(), n, "{name}");
         assert_eq!(
@@ -215,7 +218,7 @@ fn robustness_checks_get_their_own_section_and_the_seed_is_recorded() {
     assert!(page.contains("id=\"robustness\"") && page.contains("href=\"#robustness\""));
     for heading in [
         "Leaving out one study at a time",
-        "Influence of each study",
+        "How far each study moves the answer",
         "Small-study effects",
         "Cumulative meta-analysis",
     ] {

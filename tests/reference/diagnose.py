@@ -13,8 +13,14 @@ What is computed, each by its own route here:
 - the random-effects model (REML by a root of the restricted score with
   scipy.optimize.brentq, DerSimonian-Laird in closed form), Knapp-Hartung
   or z inference;
-- leave-one-out refits and the influence measures of Viechtbauer & Cheung
-  (2010, Research Synthesis Methods 1:112; formulas cited from memory);
+- leave-one-out refits with the conclusions each removal reverses (the
+  moderator test crossing alpha, a coefficient's interval starting or
+  ceasing to exclude 0) and the average of the intercept-only refit;
+- the influence view: shifts of the average and of each coefficient, the
+  standardised deleted residual (Viechtbauer & Cheung 2010, Research
+  Synthesis Methods 1:112; formulas cited from memory), the leverage and
+  the flags with textbook cut-offs (Belsley, Kuh & Welsch 1980; Cook &
+  Weisberg 1982; Hoaglin & Welsch 1978);
 - the regression test for funnel-plot asymmetry (Egger et al. 1997, BMJ
   315:629) with statsmodels WLS (whose scale is the multiplicative
   dispersion), with and without the moderators;
@@ -146,59 +152,98 @@ def design(rows, moderators):
 
 # ---------------------------------------------------------------- diagnostics
 
+def excludes_zero(f, j):
+    lo = f["beta"][j] - f["crit"] * f["se"][j]
+    hi = f["beta"][j] + f["crit"] * f["se"][j]
+    return bool(lo > 0 or hi < 0)
+
+
+def conclusion_changes(full, f, p):
+    """The conclusions the refit f reverses: the omnibus moderator test
+    crossing alpha, a moderator coefficient's interval starting or ceasing to
+    exclude 0 (without moderators: the average's interval)."""
+    out = []
+    if p > 1:
+        a, b = bool(full["omnibus_p"] < ALPHA), bool(f["omnibus_p"] < ALPHA)
+        if a != b:
+            out.append({"kind": "moderator_test", "coefficient": None,
+                        "significant_with": a, "significant_without": b})
+        for j in range(1, p):
+            a, b = excludes_zero(full, j), excludes_zero(f, j)
+            if a != b:
+                out.append({"kind": "coefficient", "coefficient": j,
+                            "significant_with": a, "significant_without": b})
+    else:
+        a, b = excludes_zero(full, 0), excludes_zero(f, 0)
+        if a != b:
+            out.append({"kind": "average", "coefficient": None,
+                        "significant_with": a, "significant_without": b})
+    return out
+
+
 def leave_one_out(y, v, X, method, inference, full):
     k, p = X.shape
     out = []
     tested = (lambda f: f["omnibus_p"]) if p > 1 else (lambda f: float(f["p"][0]))
-    signed = range(1, p) if p > 1 else [0]
     for i in range(k):
         keep = [j for j in range(k) if j != i]
         f = fit(y[keep], v[keep], X[keep], method, inference)
+        avg = fit(y[keep], v[keep], np.ones((k - 1, 1)), method, inference)
         pi = tested(f)
         out.append({
             "coefficients": [float(x) for x in f["beta"]],
+            "average": float(avg["beta"][0]),
             "tau2": f["tau2"], "i2": f["i2"],
             "moderator_p": pi if p > 1 else None,
             "average_p": pi if p == 1 else None,
-            "sign_changed": any(full["beta"][j] * f["beta"][j] < 0 for j in signed),
-            "significance_changed": (tested(full) < ALPHA) != (pi < ALPHA),
+            "changes": conclusion_changes(full, f, p),
         })
     return out
 
 
 def influence(y, v, X, method, inference, full):
+    """The influence view: shifts of the average and of each coefficient
+    when a study is left out, the moderator test's p without it, the
+    conclusions it reverses, the standardised deleted residual (mixed-model
+    form of Viechtbauer & Cheung 2010, from memory), the leverage and the
+    flags with the textbook cut-offs: 2/sqrt(k) standard errors (Belsley,
+    Kuh & Welsch 1980), the Bonferroni outlier bound z at 1 - alpha/(2k)
+    (Cook & Weisberg 1982), leverage 2p/k (Hoaglin & Welsch 1978)."""
     k, p = X.shape
     V = full["minv"]
-    Vinv = np.linalg.inv(V)
-    cut = {"dffits": 3 * math.sqrt(p / (k - p)), "cooks_distance": float(scipy.stats.chi2.ppf(0.5, p)),
-           "hat": 3 * p / k, "rstudent": float(scipy.stats.norm.ppf(1 - ALPHA / 2))}
+    ones = np.ones((k, 1))
+    mu = float(fit(y, v, ones, method, inference)["beta"][0])
+    rules = {"coefficient_shift_se": 2 / math.sqrt(k),
+             "deleted_residual": float(scipy.stats.norm.ppf(1 - ALPHA / (2 * k))),
+             "leverage": 2 * p / k, "average": mu, "moderator_p": full["omnibus_p"]}
+    moved = range(1, p) if p > 1 else [0]
     rows = []
     for i in range(k):
         keep = [j for j in range(k) if j != i]
         f = fit(y[keep], v[keep], X[keep], method, inference)
+        avg = float(fit(y[keep], v[keep], ones[keep], method, inference)["beta"][0])
         xi = X[i]
         h = float(xi @ V @ xi / (v[i] + full["tau2"]))
         Vd = f["minv"]
-        pd = float(xi @ f["beta"])
-        rst = (y[i] - pd) / math.sqrt(v[i] + f["tau2"] + xi @ Vd @ xi)
-        dff = (float(xi @ full["beta"]) - pd) / math.sqrt(h * (f["tau2"] + v[i]))
-        d = full["beta"] - f["beta"]
-        cook = float(d @ Vinv @ d)
-        covr = float(np.linalg.det(Vd) / np.linalg.det(V))
-        exceeded = []
-        if abs(dff) > cut["dffits"]:
-            exceeded.append("dffits")
-        if cook > cut["cooks_distance"]:
-            exceeded.append("cooks_distance")
-        if h > cut["hat"]:
-            exceeded.append("hat")
-        influential = bool(exceeded)
-        if abs(rst) > cut["rstudent"]:
-            exceeded.append("rstudent")
-        rows.append({"rstudent": float(rst), "dffits": float(dff), "cooks_distance": cook,
-                     "cov_ratio": covr, "hat": h, "tau2_deleted": f["tau2"], "q_deleted": f["q_e"],
-                     "influential": influential, "exceeded": exceeded})
-    return rows, cut
+        rst = (y[i] - float(xi @ f["beta"])) / math.sqrt(v[i] + f["tau2"] + xi @ Vd @ xi)
+        shifts = f["beta"] - full["beta"]
+        shifts_se = shifts / full["se"]
+        changes = conclusion_changes(full, f, p)
+        flags = []
+        if changes:
+            flags.append("changes_conclusion")
+        if any(abs(shifts_se[j]) > rules["coefficient_shift_se"] for j in moved):
+            flags.append("moves_coefficient")
+        if abs(rst) > rules["deleted_residual"]:
+            flags.append("unusual_effect")
+        if h > rules["leverage"]:
+            flags.append("high_leverage")
+        rows.append({"average_without": avg, "average_shift": avg - mu,
+                     "coefficient_shifts": [float(x) for x in shifts],
+                     "coefficient_shifts_se": [float(x) for x in shifts_se],
+                     "moderator_p_without": f["omnibus_p"], "changes": changes,
+                     "deleted_residual": float(rst), "leverage": h, "flags": flags})
+    return rows, rules
 
 
 def egger(y, v, X):
@@ -286,7 +331,7 @@ def run_all(name, rows, y, v, moderators, settings, order_key):
             "method": method, "inference": inference, "moderators": moderators,
             "coefficients": [float(b) for b in full["beta"]],
             "leave_one_out": leave_one_out(y, v, X, method, inference, full),
-            "influence": infl, "influence_cutoffs": cut,
+            "influence": infl, "influence_rules": cut,
             "asymmetry_test": egger(y, v, X),
             "rank_test": begg(y, v),
             "trim_fill": trim_fill(y, v, method, inference, plain["slope"] > 0),

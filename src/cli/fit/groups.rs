@@ -356,10 +356,10 @@ pub struct InterpretationArgs {
 #[derive(Debug, Args)]
 #[command(next_help_heading = "Robustness checks")]
 pub struct DiagnosticArgs {
-    /// Refit without each study in turn: coefficients, τ², I² and the moderator test's p; flag removals that change a sign or the significance.
+    /// Refit without each study in turn: the average, coefficients, τ², I² and the moderator test's p; flag removals that reverse a conclusion (the test crossing α, a coefficient's interval crossing 0).
     #[arg(long)]
     pub loo: bool,
-    /// Influence measures per study (studentised residuals, DFFITS, Cook's distance, covariance ratio, hat values) with their cut-offs.
+    /// How far each study moves the answer (average, coefficients, moderator test), how unusual it is and its leverage, flagged by named textbook rules.
     #[arg(long)]
     pub influence: bool,
     /// Permutation test of the moderators with N random permutations (all arrangements when there are at most N).

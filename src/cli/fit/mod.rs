@@ -68,6 +68,8 @@ pub enum PlotKind {
     Funnel,
     /// `--sensitivity-plot`.
     Sensitivity,
+    /// `--influence-plot`.
+    Influence,
 }
 
 /// One requested plot.
@@ -129,6 +131,12 @@ impl FitArgs {
             return Err(pondus::Error::usage(
                 "--sensitivity-plot",
                 "draws the adjustments of --small-study or --selection; add one of them",
+            ));
+        }
+        if self.plots.influence_plot.is_some() && !self.diagnostics.influence {
+            return Err(pondus::Error::usage(
+                "--influence-plot",
+                "draws the influence view of --influence; add --influence",
             ));
         }
         self.plots.check_needs(self.report.report.is_some())?;
@@ -210,6 +218,10 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             PlotKind::Sensitivity => (
                 "--sensitivity-plot",
                 figure::sensitivity_plot(&report, o, p.format)?,
+            ),
+            PlotKind::Influence => (
+                "--influence-plot",
+                figure::influence_plot(&report, o, p.format)?,
             ),
         };
         drawn.push((flag, &p.target, bytes));

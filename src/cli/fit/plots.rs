@@ -43,6 +43,9 @@ pub struct PlotArgs {
     /// Draw the sensitivity plot (average effect and moderator coefficients under each adjustment; needs --small-study or --selection) into this file (.svg or .png).
     #[arg(long, value_name = "FILE")]
     pub sensitivity_plot: Option<PathBuf>,
+    /// Draw the influence plot (each study's move of the moderator coefficients, in standard errors, against its leverage, with the cut-offs; needs --influence) into this file (.svg, .png or .pdf).
+    #[arg(long, value_name = "FILE")]
+    pub influence_plot: Option<PathBuf>,
     /// Width of every plot in pixels [default: automatic].
     #[arg(long, value_name = "PIXELS")]
     pub width: Option<u32>,
@@ -69,6 +72,11 @@ impl PlotArgs {
                 "--sensitivity-plot",
                 PlotKind::Sensitivity,
                 &self.sensitivity_plot,
+            ),
+            (
+                "--influence-plot",
+                PlotKind::Influence,
+                &self.influence_plot,
             ),
         ] {
             if let Some(p) = path {

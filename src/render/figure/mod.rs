@@ -14,6 +14,7 @@ pub mod export;
 pub mod font;
 pub mod forest;
 pub mod funnel;
+pub mod influence;
 pub mod power;
 mod regions;
 pub mod scene;
@@ -224,11 +225,24 @@ pub fn sensitivity_plot(report: &FitReport, opts: &PlotOptions, format: Format) 
     )
 }
 
+/// Renders the influence plot of `report` (with `--influence`).
+///
+/// # Errors
+/// [`Error::Usage`] when the report has no influence view; drawing errors.
+pub fn influence_plot(report: &FitReport, opts: &PlotOptions, format: Format) -> Result<Vec<u8>> {
+    encode(
+        &influence::scene(report, opts)?,
+        format,
+        opts.dpi,
+        Flag::InfluencePlot,
+    )
+}
+
 /// One picture for a page (the HTML report): inline SVG markup and words
 /// describing it for readers who cannot see it.
 #[derive(Debug, Clone)]
 pub struct PageFigure {
-    /// Which plot ("forest", "bubble", "funnel" or "sensitivity").
+    /// Which plot ("forest", "bubble", "funnel", "sensitivity" or "influence").
     pub kind: &'static str,
     /// A short title.
     pub title: String,
@@ -325,6 +339,18 @@ pub fn page_figures(
                           behind each panel."
                 .into(),
             svg: encode_inline(&sensitivity::scene(report, opts)?),
+        });
+    }
+    if report.influence.is_some() {
+        figures.push(PageFigure {
+            kind: "influence",
+            title: "How far each study moves the answer".into(),
+            description: "Influence plot: for each study, how far leaving it out moves the \
+                          moderator coefficients (the average without moderators), in standard \
+                          errors, against its leverage; dashed lines mark the cut-offs and the \
+                          flagged studies are named."
+                .into(),
+            svg: encode_inline(&influence::scene(report, opts)?),
         });
     }
     Ok((figures, notes))

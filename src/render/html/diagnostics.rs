@@ -4,6 +4,7 @@
 
 use super::page::{at_text, Page};
 use super::section::FitCtx;
+use crate::render::diagnostics::{average_header, changes_text, flags_text, influence_rules_text};
 use crate::result::FitReport;
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
@@ -87,131 +88,165 @@ fn permutation(page: &mut Page, report: &FitReport) {
 /// The model refitted without each study (`--loo`).
 fn leave_one_out(page: &mut Page, report: &FitReport) {
     let terms = &report.model.terms;
-    if let Some(loo) = &report.leave_one_out {
-        page.h3("Leaving out one study at a time");
-        let flagged: Vec<String> = loo
-            .iter()
-            .filter(|l| l.sign_changed || l.significance_changed)
-            .map(|l| {
-                let what = match (l.sign_changed, l.significance_changed) {
-                    (true, true) => "a sign and the significance",
-                    (true, false) => "a sign",
-                    _ => "the significance",
-                };
-                format!("{} (changes {what})", l.study)
-            })
-            .collect();
-        if flagged.is_empty() {
-            page.p("No single study changes the sign of a coefficient or the significance of the test when left out.");
-        } else {
-            page.p(&format!(
-                "Leaving out one of these studies changes the conclusion: {}.",
-                flagged.join("; ")
-            ));
-        }
-        let mut head: Vec<String> = vec!["study left out".into()];
-        head.extend(terms.iter().cloned());
-        head.extend(["τ²".into(), "I²".into(), "test p".into(), "flag".into()]);
-        let head_ref: Vec<&str> = head.iter().map(String::as_str).collect();
-        let rows: Vec<Vec<String>> = loo
-            .iter()
-            .filter(|l| loo.len() <= MAX_LISTED || l.sign_changed || l.significance_changed)
-            .map(|l| {
-                let mut r = vec![l.study.clone()];
-                if l.coefficients.is_empty() {
-                    r.extend(terms.iter().map(|_| "—".to_string()));
-                } else {
-                    r.extend(l.coefficients.iter().map(|c| num(*c)));
-                }
-                r.push(fmt::opt_num(l.tau2));
-                r.push(l.i2.map(fmt::percent).unwrap_or_else(|| "—".into()));
-                r.push(fmt::opt_p_cell(l.moderator_p.or(l.average_p)));
-                r.push(match (l.sign_changed, l.significance_changed) {
-                    (true, true) => "sign, significance".into(),
-                    (true, false) => "sign".into(),
-                    (false, true) => "significance".into(),
-                    _ => l.problem.clone().unwrap_or_default(),
-                });
-                r
-            })
-            .collect();
-        let caption = if loo.len() <= MAX_LISTED {
-            "The model refitted without each study".to_string()
-        } else {
-            format!(
-                "The flagged studies among {} refits (all are in {})",
-                loo.len(),
-                Flag::Table
-            )
-        };
-        page.table(&caption, &head_ref, &rows);
+    let has_mods = terms.len() > 1;
+    let Some(loo) = &report.leave_one_out else {
+        return;
+    };
+    page.h3("Leaving out one study at a time");
+    let flagged: Vec<String> = loo
+        .iter()
+        .filter(|l| !l.changes.is_empty())
+        .map(|l| format!("{} ({})", l.study, changes_text(&l.changes)))
+        .collect();
+    let rule = if has_mods {
+        "the moderator test crossing α, or a moderator coefficient whose interval excluded 0 no \
+         longer doing so, or the reverse"
+    } else {
+        "the average effect's interval ceasing to exclude 0, or starting to"
+    };
+    if flagged.is_empty() {
+        page.p(&format!(
+            "No single study changes a conclusion when left out ({rule}). A change of sign of a \
+             coefficient that its interval does not separate from 0 is not counted."
+        ));
+    } else {
+        page.p(&format!(
+            "Leaving out one of these studies changes a conclusion ({rule}; “lost”: it no longer \
+             holds without the study, “gained”: it holds only without it): {}.",
+            flagged.join("; ")
+        ));
     }
+    let mut head: Vec<String> = vec!["study left out".into(), average_header(report)];
+    head.extend(terms.iter().cloned());
+    head.extend([
+        "τ²".into(),
+        "I²".into(),
+        "test p".into(),
+        "conclusion changed".into(),
+    ]);
+    let head_ref: Vec<&str> = head.iter().map(String::as_str).collect();
+    let rows: Vec<Vec<String>> = loo
+        .iter()
+        .filter(|l| loo.len() <= MAX_LISTED || !l.changes.is_empty())
+        .map(|l| {
+            let mut r = vec![
+                l.study.clone(),
+                fmt::opt_num(l.average_reading.or(l.average)),
+            ];
+            if l.coefficients.is_empty() {
+                r.extend(terms.iter().map(|_| "—".to_string()));
+            } else {
+                r.extend(l.coefficients.iter().map(|c| num(*c)));
+            }
+            r.push(fmt::opt_num(l.tau2));
+            r.push(l.i2.map(fmt::percent).unwrap_or_else(|| "—".into()));
+            r.push(fmt::opt_p_cell(l.moderator_p.or(l.average_p)));
+            r.push(match &l.problem {
+                Some(why) => why.clone(),
+                None => changes_text(&l.changes),
+            });
+            r
+        })
+        .collect();
+    let caption = if loo.len() <= MAX_LISTED {
+        "The model refitted without each study (the average: the model without moderators on \
+         the same studies, on the reading scale)"
+            .to_string()
+    } else {
+        format!(
+            "The flagged studies among {} refits (all are in {})",
+            loo.len(),
+            Flag::Table
+        )
+    };
+    page.table(&caption, &head_ref, &rows);
 }
 
-/// The influence measures of each study (`--influence`).
+/// The influence view (`--influence`).
 fn influence(page: &mut Page, report: &FitReport) {
-    if let Some(inf) = &report.influence {
-        page.h3("Influence of each study");
-        if let Some(c) = &report.influence_cutoffs {
-            page.p(&format!(
-                "A study is marked influential when |DFFITS| > {}, Cook's distance > {} or its hat value > {} \
-                 (cut-offs in common use, after Viechtbauer & Cheung 2010); a studentised residual beyond ±{} is \
-                 noted but does not by itself make a study influential.",
-                num(c.dffits),
-                num(c.cooks_distance),
-                num(c.hat),
-                num(c.rstudent)
-            ));
-        }
-        let rows: Vec<Vec<String>> = inf
-            .iter()
-            .filter(|i| inf.len() <= MAX_LISTED || i.influential)
-            .map(|i| {
-                vec![
-                    i.study.clone(),
-                    fmt::opt_num(i.rstudent),
-                    fmt::opt_num(i.dffits),
-                    fmt::opt_num(i.cooks_distance),
-                    fmt::opt_num(i.cov_ratio),
-                    num(i.hat),
-                    fmt::opt_num(i.tau2_deleted),
-                    fmt::opt_num(i.q_deleted),
-                    if i.exceeded.is_empty() {
-                        if i.influential {
-                            "yes".into()
-                        } else {
-                            String::new()
-                        }
-                    } else {
-                        i.exceeded
-                            .iter()
-                            .map(|c| c.id())
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    },
-                ]
-            })
-            .collect();
-        page.table(
-            &if inf.len() <= MAX_LISTED {
-                "Influence measures (cut-offs exceeded in the last column)".to_string()
-            } else {
-                format!("The influential studies (all are in {})", Flag::Table)
-            },
-            &[
-                "study",
-                "studentised residual",
-                "DFFITS",
-                "Cook's distance",
-                "covariance ratio",
-                "hat",
-                "τ² without it",
-                "Q without it",
-                "exceeded",
-            ],
-            &rows,
-        );
+    let (Some(inf), Some(rules)) = (&report.influence, &report.influence_rules) else {
+        return;
+    };
+    let terms = &report.model.terms;
+    let has_mods = terms.len() > 1;
+    page.h3("How far each study moves the answer");
+    let mut with = format!(
+        "With every study the average is {}",
+        num(rules.average_reading.unwrap_or(rules.average))
+    );
+    if let Some(name) = &report.measure.reading_name {
+        with.push_str(&format!(" (as {name})"));
     }
+    if let Some(p) = rules.moderator_p {
+        with.push_str(&format!(" and the moderator test's p {}", fmt::p(p)));
+    }
+    page.p(&format!(
+        "{with}. Each row says what changes when that study is left out: the average (from the \
+         model without moderators on the same studies, on the reading scale), each coefficient \
+         (in its standard errors) and the moderator test's p; then how unusual the study is \
+         (its deleted residual: its effect against the model fitted without it) and how much \
+         pull it has (its leverage)."
+    ));
+    if let Some(t) = influence_rules_text(report) {
+        page.p(&t);
+    }
+    let mut head: Vec<String> = vec!["study".into(), format!("Δ {}", average_header(report))];
+    let first = usize::from(has_mods);
+    if has_mods {
+        head.extend(terms.iter().skip(1).map(|t| format!("Δ {t} (SE)")));
+    } else {
+        head.push("Δ average (SE)".into());
+    }
+    if has_mods {
+        head.push("moderator test p without it".into());
+    }
+    head.extend(["deleted residual".into(), "leverage".into(), "flags".into()]);
+    let head_ref: Vec<&str> = head.iter().map(String::as_str).collect();
+    let rows: Vec<Vec<String>> = inf
+        .iter()
+        .filter(|i| inf.len() <= MAX_LISTED || !i.flags.is_empty())
+        .map(|i| {
+            let mut r = vec![
+                i.study.clone(),
+                fmt::opt_num(i.average_shift_reading.or(i.average_shift)),
+            ];
+            for j in first..terms.len() {
+                r.push(
+                    i.coefficient_shifts_se
+                        .get(j)
+                        .map(|x| fmt::fixed(*x, 2))
+                        .unwrap_or_else(|| "—".into()),
+                );
+            }
+            if has_mods {
+                r.push(fmt::opt_p_cell(i.moderator_p_without));
+            }
+            r.push(
+                i.deleted_residual
+                    .map(|x| fmt::fixed(x, 2))
+                    .unwrap_or_else(|| "—".into()),
+            );
+            r.push(fmt::fixed(i.leverage, 3));
+            let mut flags = flags_text(&i.flags, has_mods);
+            if !i.changes.is_empty() {
+                flags.push_str(&format!(" ({})", changes_text(&i.changes)));
+            }
+            if let Some(why) = &i.problem {
+                flags = format!("no refit: {why}");
+            }
+            r.push(flags);
+            r
+        })
+        .collect();
+    page.table(
+        &if inf.len() <= MAX_LISTED {
+            "Each study's influence (Δ: the change when it is left out)".to_string()
+        } else {
+            format!("The flagged studies (all are in {})", Flag::Table)
+        },
+        &head_ref,
+        &rows,
+    );
 }
 
 /// The funnel-asymmetry and rank tests and trim-and-fill (`--small-study`).

@@ -47,6 +47,9 @@ pub(super) fn pooled(page: &mut Page, cx: &FitCtx) {
         ],
         &rows,
     );
+    if let Some(words) = crate::render::text::average_basis_text(report) {
+        page.p(&format!("The average {words}"));
+    }
     let h = &report.heterogeneity;
     let t = &report.tau2;
     let mut het = vec![

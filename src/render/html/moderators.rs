@@ -196,7 +196,14 @@ fn levels(page: &mut Page, cx: &FitCtx) {
 fn describe_moderator(m: &crate::result::Moderator) -> String {
     use crate::result::ModeratorKind;
     match &m.kind {
-        ModeratorKind::Numeric { .. } => "numeric".into(),
+        ModeratorKind::Numeric { centered_at, .. } => match centered_at {
+            Some(c) => format!(
+                "numeric, centred: {} (its mean over the included studies) subtracted before \
+                 fitting, so the intercept is the effect at that value",
+                crate::support::format::value(*c)
+            ),
+            None => "numeric".into(),
+        },
         ModeratorKind::Categorical {
             levels, reference, ..
         } => format!(
