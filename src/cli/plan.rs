@@ -548,6 +548,11 @@ fn read_moderator_values(
             .collect()
     };
     let (mark, note) = values_decimal(&name, &cells, decimal)?;
+    let unit = if pondus::input::sheet::is_spreadsheet(&name) {
+        "cell of the first column"
+    } else {
+        "line"
+    };
     let mut values = Vec::new();
     for (i, (place, cell)) in cells.iter().enumerate() {
         match pondus::input::number::normalise(cell, mark).parse::<f64>() {
@@ -557,8 +562,8 @@ fn read_moderator_values(
                 return Err(Error::usage(
                     FLAG,
                     format!(
-                        "{name}, {place}: '{cell}' is not a finite number; give one number per line"
-                    ),
+                    "{name}, {place}: '{cell}' is not a finite number; give one number per {unit}"
+                ),
                 ))
             }
         }

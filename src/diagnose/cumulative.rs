@@ -84,9 +84,9 @@ pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue
         return Err(Error::usage(
             Flag::CumulativeBy,
             format!(
-                "{source}: line {}, column '{}': the ordering value is missing for a study in the \
+                "{source}: {}: the ordering value is missing for a study in the \
                  model; fill it in, or order by another column",
-                col.lines[i], col.header
+                col.places.cell(col.lines[i], &col.header)
             ),
         ));
     }
@@ -107,7 +107,13 @@ pub fn order(col: &OrderColumn, source: &str) -> Result<(Vec<usize>, Vec<AtValue
         let shown: Vec<String> = bad
             .iter()
             .take(5)
-            .map(|&i| format!("line {} ('{}')", col.lines[i], col.cells[i]))
+            .map(|&i| {
+                format!(
+                    "{} ('{}')",
+                    col.places.at(col.lines[i], &col.header),
+                    col.cells[i]
+                )
+            })
             .collect();
         return Err(Error::usage(
             Flag::CumulativeBy,

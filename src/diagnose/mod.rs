@@ -205,6 +205,8 @@ pub struct OrderColumn {
     pub cells: Vec<String>,
     /// Their lines.
     pub lines: Vec<u64>,
+    /// How messages name the cells (lines, or sheet addresses).
+    pub places: crate::input::Places,
 }
 
 /// Runs the diagnostics asked for in `settings`.

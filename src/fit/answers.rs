@@ -159,7 +159,10 @@ fn shrunken(
         Some(s2) if s2 > 0.0 => &fit.cov / s2,
         _ => fit.cov.clone(),
     };
-    let tau2 = vec![fit.tau2.estimate; studies.y.len()];
+    let tau2 = model
+        .tau2_each
+        .clone()
+        .unwrap_or_else(|| vec![fit.tau2.estimate; studies.y.len()]);
     let values = shrink::shrink(
         &studies.y, &studies.v, &design.x, design.p, &fit.beta, &cov, &tau2,
     );

@@ -17,7 +17,7 @@ use crate::model::tau2::Tau2Method;
 use crate::model::ModelFit;
 use crate::result::{
     ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
-    MeasureInfo, ModelInfo, Shrunken, Study, Tau2Report, ToolInfo,
+    MeasureInfo, ModelInfo, Shrunken, Spread, Study, Tau2Report, ToolInfo,
 };
 use crate::support::flag::Flag;
 
@@ -56,6 +56,8 @@ pub struct Parts<'a> {
     pub clusters: Option<ClusterAdditions>,
     /// `--beyond` and `--shrink`.
     pub answers: Answers,
+    /// The location-scale model (`--spread-by`).
+    pub spread: Option<Spread>,
 }
 
 /// The report of the job.
@@ -80,6 +82,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         messages,
         clusters,
         answers,
+        spread,
     } = parts;
     let scale = studies.scale;
     let fit = &model.fit;
@@ -156,6 +159,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         clustering,
         beyond: answers.beyond,
         model_set: answers.model_set,
+        spread,
     };
     check_finite(&report)?;
     Ok(report)

@@ -1,6 +1,6 @@
 //! Stage 1 of `fit`: read the requested columns. Every column the job
 //! needs (labels, the measure's roles, moderators, artifact columns, the
-//! order of the cumulative analysis, the cluster ids) is requested once, and
+//! characteristics of the spread, the order of the cumulative analysis, the cluster ids) is requested once, and
 //! the table is read with exactly those columns.
 
 use super::FitSettings;
@@ -20,6 +20,9 @@ pub struct Columns {
     pub first_moderator: usize,
     /// Index of the first artifact column.
     pub first_artifact: usize,
+    /// Per `--spread-by` characteristic: its column, or None when it is also
+    /// a moderator (whose column then serves both).
+    pub spread: Vec<Option<usize>>,
     /// Index of the `--cumulative-by` column, when asked.
     pub order: Option<usize>,
     /// Index of the `--cluster` column, when asked.
@@ -49,6 +52,22 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
     }
     let first_artifact = requests.len();
     requests.extend(artifact::requests(&settings.interpret.artifacts, measure)?);
+    let spread = settings
+        .answers
+        .spread_by
+        .iter()
+        .map(|s| {
+            let shared = settings.moderators.iter().any(|m| m.name == s.name);
+            (!shared).then(|| {
+                requests.push(named(
+                    &s.name,
+                    "a characteristic of the spread",
+                    Flag::SpreadBy,
+                ));
+                requests.len() - 1
+            })
+        })
+        .collect();
     let order = settings.diagnostics.cumulative_by.as_ref().map(|h| {
         requests.push(named(
             h,
@@ -72,6 +91,7 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         first_measure,
         first_moderator,
         first_artifact,
+        spread,
         order,
         cluster,
     })

@@ -41,6 +41,7 @@ pub fn run(
         header: header.clone(),
         cells: cells.clone(),
         lines: studies.lines.clone(),
+        places: studies.places.clone(),
     });
     diagnose::run(
         &settings.diagnostics,

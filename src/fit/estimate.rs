@@ -47,6 +47,9 @@ pub struct Fitted {
     /// The raw Knapp–Hartung factor s² of the intercept-only model behind
     /// the average (the model's own without moderators).
     pub null_scale_factor: f64,
+    /// Each study's τ̂_i² under the location-scale model (`--spread-by`,
+    /// set by [`super::spread::fit`]); None: one τ² for all.
+    pub tau2_each: Option<Vec<f64>>,
 }
 
 /// Fits the model, and the intercept-only model when there are moderators
@@ -63,7 +66,7 @@ pub fn estimate(
     design: &Design,
 ) -> Result<(Fitted, Option<ModelFit>)> {
     let clusters = match &studies.cluster_ids {
-        Some(ids) => Some(clusters(ids, &studies.lines, source)?),
+        Some(ids) => Some(clusters(ids, (&studies.lines, &studies.places), source)?),
         None => None,
     };
     let levels = settings.dependence.levels;
@@ -108,6 +111,7 @@ pub fn estimate(
             fit,
             working,
             null_scale_factor,
+            tau2_each: None,
         },
         null,
     ))
@@ -118,17 +122,21 @@ pub fn estimate(
 /// # Errors
 /// [`Error::Model`] naming the file, line and column of the first study
 /// with a missing id (empty or a missing-value mark).
-fn clusters(ids: &(String, Vec<String>), lines: &[u64], source: &str) -> Result<Clusters> {
+fn clusters(
+    ids: &(String, Vec<String>),
+    (lines, places): (&[u64], &crate::input::Places),
+    source: &str,
+) -> Result<Clusters> {
     let (header, ids) = ids;
     let missing: Vec<usize> = (0..ids.len())
         .filter(|&i| crate::input::number::is_missing(&ids[i]))
         .collect();
     if let Some(&first) = missing.first() {
         return Err(Error::Model(format!(
-            "{source}: line {}, column '{header}': the cluster id is missing ({} effect{} without \
+            "{source}: {}: the cluster id is missing ({} effect{} without \
              one). Every effect in the model needs the id of its study, lab or site; fill it in \
              (an effect that is alone in its cluster gets an id of its own) and run again",
-            lines[first],
+            places.cell(lines[first], header),
             missing.len(),
             if missing.len() == 1 { "" } else { "s" }
         )));

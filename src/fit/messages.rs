@@ -142,10 +142,10 @@ fn data_notes(settings: &FitSettings, studies: &Studies) -> Vec<String> {
         notes.push(n.clone());
     }
     if studies.table.blank_rows > 0 {
-        notes.push(format!(
-            "{} blank rows were skipped.",
-            studies.table.blank_rows
-        ));
+        notes.push(match studies.table.blank_rows {
+            1 => "1 blank row was skipped.".to_string(),
+            n => format!("{n} blank rows were skipped."),
+        });
     }
     if !studies.table.label_found {
         notes.push(format!(

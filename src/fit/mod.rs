@@ -7,6 +7,7 @@
 //!    moderator types, inclusion); the table ends here;
 //! 3. [`design`]: build the design (product terms, scale check);
 //! 4. [`estimate`]: fit the working model and the intercept-only model;
+//!    [`spread`]: with `--spread-by`, the location-scale model in its place;
 //! 5. [`readout`]: `--at` predictions, subgroups, fitted lines;
 //!    [`answers`]: `--beyond` and `--shrink`;
 //! 6. [`clusters`]: what `--cluster` adds (variance components, clustering,
@@ -32,6 +33,7 @@ pub mod messages;
 pub mod readout;
 pub mod route_messages;
 pub mod settings;
+pub mod spread;
 pub mod studies;
 pub mod summarise;
 
@@ -61,10 +63,12 @@ pub fn run_with_progress(
     bytes: &[u8],
     progress: &(dyn Fn(u64) + Sync),
 ) -> Result<FitReport> {
+    spread::check(settings)?;
     let columns = columns::read(settings, source, bytes)?;
     let studies = studies::collect(settings, source, columns)?;
     let design = design::build(settings, source, &studies)?;
-    let (model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
+    let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
+    let spread = spread::fit(settings, source, &studies, &design, &mut model)?;
     let readout = readout::read_out(settings, &design, &model, &studies)?;
     let answers = answers::answer(
         &settings.answers,
@@ -128,6 +132,7 @@ pub fn run_with_progress(
         messages,
         clusters,
         answers,
+        spread,
     })
 }
 

@@ -68,7 +68,7 @@ impl InterpretSettings {
 }
 
 /// Settings of the answers about heterogeneity and single studies
-/// (`--shrink`, `--beyond`, `--all-subsets`).
+/// (`--shrink`, `--beyond`, `--all-subsets`, `--spread-by`).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct AnswerSettings {
     /// `--shrink`: each study's empirical-Bayes estimate of its own true effect.
@@ -78,4 +78,8 @@ pub struct AnswerSettings {
     pub beyond: Option<f64>,
     /// `--all-subsets`: rank every subset of the moderators by AICc.
     pub all_subsets: bool,
+    /// `--spread-by`: the characteristics the spread of the true effects
+    /// depends on (the location-scale model, see
+    /// [`crate::model::location_scale`]), coded like moderators; none by default.
+    pub spread_by: Vec<ModeratorSpec>,
 }

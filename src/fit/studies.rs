@@ -10,7 +10,7 @@ use crate::effect::artifact::{self, Corrected};
 use crate::effect::route::Route;
 use crate::effect::{self, ReadingScale, RowEffect};
 use crate::error::{Error, Result};
-use crate::input::{Delimiter, Table};
+use crate::input::{Delimiter, Places, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
@@ -44,6 +44,8 @@ pub struct Studies {
     pub cluster_ids: Option<(String, Vec<String>)>,
     /// Every moderator's values over all table rows, typed.
     pub raw: Vec<RawModerator>,
+    /// Every `--spread-by` characteristic's values over all table rows, typed.
+    pub spread_raw: Vec<RawModerator>,
     /// Rows left out, with the reason, in file order.
     pub excluded: Vec<Excluded>,
     /// How results are read: the measure's scale, or as analysed when the
@@ -51,6 +53,9 @@ pub struct Studies {
     pub scale: ReadingScale,
     /// What the report says about the table.
     pub table: TableFacts,
+    /// How messages name the table's rows and cells (lines, or sheet
+    /// addresses).
+    pub places: Places,
 }
 
 /// What the report says about the table read.
@@ -84,6 +89,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         first_measure,
         first_moderator,
         first_artifact,
+        spread,
         order,
         cluster,
     } = columns;
@@ -100,6 +106,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         &mut effects,
     )?;
     let labels = labels(&table);
+    let places = table.places();
     let mut raw = Vec::with_capacity(settings.moderators.len());
     for (j, spec) in settings.moderators.iter().enumerate() {
         let col = table
@@ -125,10 +132,23 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             ));
         }
         let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
-        raw.push(design::classify(spec, &cells, &table.lines, source)?);
+        raw.push(design::classify(
+            spec,
+            &cells,
+            &table.lines,
+            (&places, &col.header),
+            source,
+        )?);
     }
-    let (included, excluded) = include(settings, &effects.rows, &raw, &labels, &table.lines);
-    check_count(source, &included, &excluded)?;
+    let spread_raw = spread_columns(settings, &table, &spread, &raw, &places, source)?;
+    let (included, excluded) = include(
+        settings,
+        &effects.rows,
+        (&raw, &spread_raw),
+        &labels,
+        &table.lines,
+    );
+    check_count(source, &included, &excluded, &places)?;
     let mut y = Vec::with_capacity(included.len());
     let mut v = Vec::with_capacity(included.len());
     let mut notes = Vec::with_capacity(included.len());
@@ -151,7 +171,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         routes.push(from);
         checks.push(check);
     }
-    check_range(source, &y, &v, &included, &table.lines)?;
+    check_range(source, &y, &v, &included, (&table.lines, &places))?;
     Ok(Studies {
         y,
         v,
@@ -164,6 +184,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         order: order_cells.map(|(h, c)| (h, pick(c, &included))),
         cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
         raw,
+        spread_raw,
         excluded,
         scale: if artifacts.any() {
             ReadingScale::Same
@@ -183,7 +204,43 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
                 .any(|h| h.eq_ignore_ascii_case(&settings.label.0)),
         },
         included,
+        places,
     })
+}
+
+/// The `--spread-by` characteristics' values, typed like moderators: a
+/// characteristic that is also a moderator shares the moderator's values.
+///
+/// # Errors
+/// Those of [`design::classify`].
+fn spread_columns(
+    settings: &FitSettings,
+    table: &Table,
+    columns: &[Option<usize>],
+    raw: &[RawModerator],
+    places: &Places,
+    source: &str,
+) -> Result<Vec<RawModerator>> {
+    let specs = &settings.answers.spread_by;
+    specs
+        .iter()
+        .zip(columns)
+        .map(|(spec, col)| match col {
+            Some(j) => {
+                let col = table.column(*j).expect("required column present");
+                let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
+                design::classify(spec, &cells, &table.lines, (places, &col.header), source)
+            }
+            None => {
+                let m = settings
+                    .moderators
+                    .iter()
+                    .position(|m| m.name == spec.name)
+                    .expect("a spread term without a column of its own is a moderator");
+                Ok(raw[m].clone())
+            }
+        })
+        .collect()
 }
 
 /// A requested column's header and cells (one per table row), trimmed or as read.
@@ -204,29 +261,32 @@ fn pick(mut all: Vec<String>, included: &[usize]) -> Vec<String> {
         .collect()
 }
 
-/// The label of every row: the label cell, or "line N" when it (or the column) is missing.
+/// The label of every row: the label cell, or "line N" when it (or the
+/// column) is missing ("row N" in a spreadsheet, N being the sheet's row).
 fn labels(table: &Table) -> Vec<String> {
+    let word = if table.sheet.is_some() { "row" } else { "line" };
+    let number = |i: usize| format!("{word} {}", table.lines[i]);
     match table.column(0) {
         Some(c) => (0..table.len())
             .map(|i| {
                 let l = c.get(i);
                 if l.is_empty() {
-                    format!("line {}", table.lines[i])
+                    number(i)
                 } else {
                     l.to_string()
                 }
             })
             .collect(),
-        None => table.lines.iter().map(|l| format!("line {l}")).collect(),
+        None => (0..table.len()).map(number).collect(),
     }
 }
 
 /// Splits the rows into those the model uses and those left out (no
-/// effect, or a missing moderator value), in file order.
+/// effect, or a missing moderator or spread value), in file order.
 fn include(
     settings: &FitSettings,
     rows: &[RowEffect],
-    raw: &[RawModerator],
+    (raw, spread_raw): (&[RawModerator], &[RawModerator]),
     labels: &[String],
     lines: &[u64],
 ) -> (Vec<usize>, Vec<Excluded>) {
@@ -240,7 +300,16 @@ fn include(
                 .iter()
                 .zip(raw)
                 .find(|(_, r)| !r.present(i))
-                .map(|(m, _)| format!("missing moderator {}", m.name)),
+                .map(|(m, _)| format!("missing moderator {}", m.name))
+                .or_else(|| {
+                    settings
+                        .answers
+                        .spread_by
+                        .iter()
+                        .zip(spread_raw)
+                        .find(|(_, r)| !r.present(i))
+                        .map(|(m, _)| format!("missing spread characteristic {}", m.name))
+                }),
         };
         match reason {
             Some(reason) => excluded.push(Excluded {
@@ -276,7 +345,7 @@ fn check_range(
     y: &[f64],
     v: &[f64],
     included: &[usize],
-    lines: &[u64],
+    (lines, places): (&[u64], &Places),
 ) -> Result<()> {
     let bad = (0..y.len())
         .find(|&i| y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE);
@@ -289,21 +358,26 @@ fn check_range(
         ("sampling variance", v[i])
     };
     Err(Error::Model(format!(
-        "{source}: line {}: the {what} is {value:e}, outside the range pondus can fit (effects \
+        "{source}: {}: the {what} is {value:e}, outside the range pondus can fit (effects \
          up to {MAX_EFFECT:e} in size, sampling variances from {:e} to {MAX_VARIANCE:e}); at \
          this scale the sums of the fit leave the range of floating-point numbers. Express the \
          effects in other units (divide or multiply the columns by a power of ten) and run again",
-        lines[included[i]],
+        places.row(lines[included[i]]),
         1.0 / MAX_VARIANCE
     )))
 }
 
-fn check_count(source: &str, included: &[usize], excluded: &[Excluded]) -> Result<()> {
+fn check_count(
+    source: &str,
+    included: &[usize],
+    excluded: &[Excluded],
+    places: &Places,
+) -> Result<()> {
     if included.is_empty() {
         return Err(Error::Model(format!(
-            "{source}: no study has every value the model needs ({} rows left out; the first: line {}, {})",
+            "{source}: no study has every value the model needs ({} rows left out; the first: {}, {})",
             excluded.len(),
-            excluded[0].line,
+            places.row(excluded[0].line),
             excluded[0].reason
         )));
     }

@@ -167,13 +167,19 @@ impl Table {
     /// The spreadsheet address of a cell (`extraction!D14`), or None for CSV.
     pub fn cell_address(&self, row: usize, column: &Column) -> Option<String> {
         let sheet = self.sheet.as_ref()?;
-        let letters = sheet::column_letters(sheet.first_column + column.index as u32);
-        let name = if sheet.name.chars().all(|c| c.is_alphanumeric() || c == '_') {
-            sheet.name.clone()
-        } else {
-            format!("'{}'", sheet.name.replace('\'', "''"))
-        };
-        Some(format!("{name}!{letters}{}", self.lines[row]))
+        Some(sheet::cell_address(
+            &sheet.name,
+            sheet.first_column + column.index as u32,
+            self.lines[row],
+        ))
+    }
+
+    /// How messages about this table name its rows and cells.
+    pub fn places(&self) -> Places {
+        Places {
+            sheet: self.sheet.clone(),
+            headers: self.headers.clone(),
+        }
     }
 
     /// A problem with the cell of `column` in data row `row`: its line (or
@@ -186,6 +192,65 @@ impl Table {
             message: message.into(),
             cell: self.cell_address(row, column),
         }
+    }
+}
+
+/// How messages name a row or a cell of a table: by line and column in a
+/// CSV file (`line 14, column 'dose'`), by sheet and address in a
+/// spreadsheet (`cell extraction!D14 (column 'dose')`, `extraction row 14`).
+/// Line numbers are the file's lines for CSV and the sheet's own row
+/// numbers for a spreadsheet ([`Table::lines`]).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Places {
+    sheet: Option<SheetOrigin>,
+    headers: Vec<String>,
+}
+
+impl Places {
+    /// Places of a CSV table (lines and column names).
+    pub fn csv() -> Self {
+        Places::default()
+    }
+
+    /// A row: `line 14`, or `extraction row 14` in a spreadsheet.
+    pub fn row(&self, line: u64) -> String {
+        match &self.sheet {
+            Some(s) => format!("{} row {line}", sheet::quoted_name(&s.name)),
+            None => format!("line {line}"),
+        }
+    }
+
+    /// A cell: `line 14, column 'dose'`, or `cell extraction!D14 (column
+    /// 'dose')` in a spreadsheet (the row's place when the header is not
+    /// one of the table's).
+    pub fn cell(&self, line: u64, header: &str) -> String {
+        match &self.sheet {
+            Some(s) => match self.headers.iter().position(|h| h == header) {
+                Some(i) => format!(
+                    "cell {} (column '{header}')",
+                    sheet::cell_address(&s.name, s.first_column + i as u32, line)
+                ),
+                None => format!("{}, column '{header}'", self.row(line)),
+            },
+            None => format!("line {line}, column '{header}'"),
+        }
+    }
+
+    /// A cell of a column the message already names: `line 14`, or
+    /// `cell extraction!D14` in a spreadsheet.
+    pub fn at(&self, line: u64, header: &str) -> String {
+        match (&self.sheet, self.headers.iter().position(|h| h == header)) {
+            (Some(s), Some(i)) => format!(
+                "cell {}",
+                sheet::cell_address(&s.name, s.first_column + i as u32, line)
+            ),
+            _ => self.row(line),
+        }
+    }
+
+    /// Whether the table is a spreadsheet's.
+    pub fn is_sheet(&self) -> bool {
+        self.sheet.is_some()
     }
 }
 
@@ -274,16 +339,24 @@ pub fn is_utf16(bytes: &[u8]) -> bool {
 /// returns that delimiter and the bytes with the line's text blanked (its
 /// line break kept, so line numbers stay those of the file).
 pub fn separator_line(bytes: &[u8]) -> (Option<u8>, std::borrow::Cow<'_, [u8]>) {
+    match separator_text(bytes) {
+        Some((d, end)) => (Some(d), std::borrow::Cow::Owned(bytes[end..].to_vec())),
+        None => (None, std::borrow::Cow::Borrowed(bytes)),
+    }
+}
+
+/// The delimiter a first line `sep=X` names and the length of that line's
+/// text (up to, not including, its `\n`), for readers that skip it in a
+/// stream (see [`separator_line`]).
+pub fn separator_text(bytes: &[u8]) -> Option<(u8, usize)> {
     let end = bytes
         .iter()
         .position(|&b| b == b'\n')
         .unwrap_or(bytes.len());
     let first = bytes[..end].strip_suffix(b"\r").unwrap_or(&bytes[..end]);
     match first {
-        [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => {
-            (Some(*d), std::borrow::Cow::Owned(bytes[end..].to_vec()))
-        }
-        _ => (None, std::borrow::Cow::Borrowed(bytes)),
+        [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => Some((*d, end)),
+        _ => None,
     }
 }
 

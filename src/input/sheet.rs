@@ -34,6 +34,24 @@ pub fn column_letters(col: u32) -> String {
     String::from_utf8(out).unwrap_or_default()
 }
 
+/// A sheet's name as written in a cell address: as is when it is letters,
+/// digits and `_` only, otherwise in single quotes with inner quotes
+/// doubled (`'read me'`, `'Bob''s'`), as spreadsheet programs write it.
+pub fn quoted_name(name: &str) -> String {
+    if !name.is_empty() && name.chars().all(|c| c.is_alphanumeric() || c == '_') {
+        name.to_string()
+    } else {
+        format!("'{}'", name.replace('\'', "''"))
+    }
+}
+
+/// The address of the cell in 0-based column `col` and 1-based sheet row
+/// `row` of sheet `name`: `extraction!D14`, `'bad dose'!AB3`. The one place
+/// cell addresses are written.
+pub fn cell_address(name: &str, col: u32, row: u64) -> String {
+    format!("{}!{}{row}", quoted_name(name), column_letters(col))
+}
+
 /// A cell as the text a CSV export would hold.
 fn cell_text(d: &Data) -> String {
     match d {
@@ -48,20 +66,17 @@ fn cell_text(d: &Data) -> String {
     }
 }
 
-/// Reads sheet `sheet` (the first when None) of the workbook in `bytes` and
-/// keeps the requested columns.
+/// Opens the workbook in `bytes` and reads sheet `sheet` (matched exactly,
+/// else ignoring case; the first sheet when None): its name and used range.
 ///
 /// # Errors
 /// [`Error::Format`] when the bytes are not a workbook calamine can read,
-/// the sheet does not exist (the message lists the sheets), or the sheet
-/// has no header or no data rows; [`Error::MissingColumn`] when a required
-/// column is absent.
-pub fn parse_sheet(
+/// the sheet does not exist (the message lists the sheets) or cannot be read.
+fn open_sheet(
     source: &str,
     bytes: &[u8],
-    requests: &[ColumnRequest],
     sheet: Option<&str>,
-) -> Result<Table> {
+) -> Result<(String, calamine::Range<Data>)> {
     let mut book = open_workbook_auto_from_rs(Cursor::new(bytes)).map_err(|e| {
         format_error(
             source,
@@ -93,6 +108,24 @@ pub fn parse_sheet(
     let range = book
         .worksheet_range(&name)
         .map_err(|e| format_error(source, format!("sheet '{name}' cannot be read: {e}")))?;
+    Ok((name, range))
+}
+
+/// Reads sheet `sheet` (the first when None) of the workbook in `bytes` and
+/// keeps the requested columns.
+///
+/// # Errors
+/// [`Error::Format`] when the bytes are not a workbook calamine can read,
+/// the sheet does not exist (the message lists the sheets), or the sheet
+/// has no header or no data rows; [`Error::MissingColumn`] when a required
+/// column is absent.
+pub fn parse_sheet(
+    source: &str,
+    bytes: &[u8],
+    requests: &[ColumnRequest],
+    sheet: Option<&str>,
+) -> Result<Table> {
+    let (name, range) = open_sheet(source, bytes, sheet)?;
     let Some((row0, col0)) = range.start() else {
         return Err(format_error(
             source,
@@ -183,39 +216,10 @@ pub fn first_column(
     sheet: Option<&str>,
 ) -> Result<Vec<(String, String)>> {
     // A one-row sheet has no data rows for parse_sheet; read the cells directly.
-    let mut book = open_workbook_auto_from_rs(Cursor::new(bytes)).map_err(|e| {
-        format_error(
-            source,
-            format!("cannot be read as a spreadsheet ({e}); save it as .xlsx, .ods or CSV"),
-        )
-    })?;
-    let names = book.sheet_names();
-    let name = match sheet {
-        Some(s) => names
-            .iter()
-            .find(|n| n.as_str() == s)
-            .cloned()
-            .ok_or_else(|| {
-                format_error(
-                    source,
-                    format!(
-                        "has no sheet named '{s}'; its sheets are: {}",
-                        names.join(", ")
-                    ),
-                )
-            })?,
-        None => names
-            .first()
-            .cloned()
-            .ok_or_else(|| format_error(source, "the workbook has no sheets"))?,
-    };
-    let range = book
-        .worksheet_range(&name)
-        .map_err(|e| format_error(source, format!("sheet '{name}' cannot be read: {e}")))?;
+    let (name, range) = open_sheet(source, bytes, sheet)?;
     let Some((row0, col0)) = range.start() else {
         return Ok(Vec::new());
     };
-    let letters = column_letters(col0);
     Ok(range
         .rows()
         .enumerate()
@@ -224,7 +228,7 @@ pub fn first_column(
             let text = text.trim().to_string();
             (!text.is_empty()).then(|| {
                 (
-                    format!("{name}!{letters}{}", u64::from(row0) + 1 + k as u64),
+                    cell_address(&name, col0, u64::from(row0) + 1 + k as u64),
                     text,
                 )
             })
@@ -245,6 +249,46 @@ mod tests {
         assert_eq!(column_letters(27), "AB");
         assert_eq!(column_letters(701), "ZZ");
         assert_eq!(column_letters(702), "AAA");
+    }
+
+    #[test]
+    fn addresses() {
+        assert_eq!(cell_address("extraction", 3, 14), "extraction!D14");
+        assert_eq!(cell_address("extraction", 27, 18), "extraction!AB18");
+        assert_eq!(cell_address("bad dose", 0, 2), "'bad dose'!A2");
+        assert_eq!(cell_address("Bob's", 701, 1), "'Bob''s'!ZZ1");
+        assert_eq!(quoted_name("Tabelle_1"), "Tabelle_1");
+    }
+
+    #[test]
+    fn places_with_a_header_off_the_first_row_and_column() {
+        // A table whose header is in row 3 starting at column B: its first
+        // data row is sheet row 4 and its 27th column is AB.
+        let mut headers: Vec<String> = (0..27).map(|i| format!("h{i}")).collect();
+        headers[26] = "ctrl_events".into();
+        let table = Table {
+            source: "w.xlsx".into(),
+            delimiter: 0,
+            headers,
+            columns: Vec::new(),
+            lines: vec![4, 5],
+            blank_rows: 0,
+            sheet: Some(crate::input::SheetOrigin {
+                name: "shifted".into(),
+                first_column: 1,
+            }),
+            decimal: crate::input::DecimalChoice::POINT,
+        };
+        let places = table.places();
+        assert_eq!(
+            places.cell(5, "ctrl_events"),
+            "cell shifted!AB5 (column 'ctrl_events')"
+        );
+        assert_eq!(places.cell(4, "h0"), "cell shifted!B4 (column 'h0')");
+        assert_eq!(places.row(4), "shifted row 4");
+        let csv = crate::input::Places::csv();
+        assert_eq!(csv.cell(5, "dose"), "line 5, column 'dose'");
+        assert_eq!(csv.row(5), "line 5");
     }
 
     #[test]

@@ -3,6 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
+use crate::input::Places;
 use crate::support::flag::Flag;
 use crate::tolerance;
 use serde::Serialize;
@@ -45,11 +46,14 @@ impl RawModerator {
 ///
 /// # Errors
 /// [`Error::Usage`] when a column is mostly numbers but has a few cells that
-/// are not, which is far more often a typo than a categorical moderator.
+/// are not, which is far more often a typo than a categorical moderator; the
+/// message names those cells by line (CSV) or sheet address (spreadsheet)
+/// through `places`, `header` being the column's header as in the table.
 pub fn classify(
     spec: &ModeratorSpec,
     cells: &[&str],
     lines: &[u64],
+    (places, header): (&Places, &str),
     source: &str,
 ) -> Result<RawModerator> {
     let mut numeric = Vec::with_capacity(cells.len());
@@ -75,7 +79,7 @@ pub fn classify(
             let shown: Vec<String> = bad
                 .iter()
                 .take(5)
-                .map(|&i| format!("line {} ('{}')", lines[i], cells[i]))
+                .map(|&i| format!("{} ('{}')", places.at(lines[i], header), cells[i]))
                 .collect();
             return Err(Error::usage(
                 Flag::Moderator,
@@ -553,16 +557,67 @@ mod tests {
     #[test]
     fn type_detection() {
         let lines = [2, 3, 4, 5];
-        let r = classify(&spec("a"), &["1", "2", "", "3.5"], &lines, "f").unwrap();
+        let r = classify(
+            &spec("a"),
+            &["1", "2", "", "3.5"],
+            &lines,
+            (&Places::csv(), "a"),
+            "f",
+        )
+        .unwrap();
         assert!(matches!(r, RawModerator::Numeric(ref v) if v[2].is_none() && v[3] == Some(3.5)));
-        let r = classify(&spec("a"), &["x", "y", "NA", "x"], &lines, "f").unwrap();
+        let r = classify(
+            &spec("a"),
+            &["x", "y", "NA", "x"],
+            &lines,
+            (&Places::csv(), "a"),
+            "f",
+        )
+        .unwrap();
         assert!(matches!(r, RawModerator::Text(_)));
-        let e = classify(&spec("a"), &["1", "2", "1O", "3"], &lines, "f").unwrap_err();
+        let e = classify(
+            &spec("a"),
+            &["1", "2", "1O", "3"],
+            &lines,
+            (&Places::csv(), "a"),
+            "f",
+        )
+        .unwrap_err();
         assert!(e.to_string().contains("line 4 ('1O')"), "{e}");
+        let sheet = crate::input::Table {
+            source: "f.ods".into(),
+            delimiter: 0,
+            headers: vec!["study".into(), "a".into()],
+            columns: Vec::new(),
+            lines: lines.to_vec(),
+            blank_rows: 0,
+            sheet: Some(crate::input::SheetOrigin {
+                name: "bad dose".into(),
+                first_column: 0,
+            }),
+            decimal: crate::input::DecimalChoice::POINT,
+        }
+        .places();
+        let e = classify(
+            &spec("a"),
+            &["1", "2", "1O", "3"],
+            &lines,
+            (&sheet, "a"),
+            "f",
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("cell 'bad dose'!B4 ('1O')"), "{e}");
         let mut s = spec("a");
         s.categorical = true;
         assert!(matches!(
-            classify(&s, &["1", "2", "1O", "3"], &lines, "f").unwrap(),
+            classify(
+                &s,
+                &["1", "2", "1O", "3"],
+                &lines,
+                (&Places::csv(), "a"),
+                "f"
+            )
+            .unwrap(),
             RawModerator::Text(_)
         ));
     }

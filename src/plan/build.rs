@@ -2,6 +2,7 @@
 //! power at the planned k, the k or n needed, the table over k, and the
 //! notes and cautions that go with them).
 
+use super::simulate::{within_budget, MAX_SIMULATED_SITE_EFFECTS};
 use super::{
     confirm_k, no_progress, power_ceiling_in_n, simulate, solve_k, solve_n, ModeratorDesign, Plan,
 };
@@ -93,7 +94,13 @@ pub fn build_with_progress(
     let mut notes = req.input_notes.clone();
     notes.extend(repetition_notes(plan));
     let simulation = match req.simulations {
-        Some(n) => Some(simulate_planned(plan, n, req.seed, progress, &mut notes)?),
+        Some(n) if within_budget(plan.k, n) => {
+            Some(simulate_planned(plan, n, req.seed, progress, &mut notes)?)
+        }
+        Some(n) => {
+            notes.push(beyond_budget_note(plan.k, n, "the power at this k"));
+            None
+        }
         None => None,
     };
     let power_analytic = plan.quick_power().filter(|p| p.is_finite());
@@ -105,7 +112,7 @@ pub fn build_with_progress(
     let (power, power_method, f_approx) = match (plan.test, &simulation) {
         (PlanTest::Kh, Some(sim)) => (sim.power, simulation_words(plan, sim), power_analytic),
         _ => (
-            plan.z_power().unwrap_or(f64::NAN),
+            power_analytic.unwrap_or(f64::NAN),
             power_analytic_method.clone(),
             None,
         ),
@@ -222,6 +229,17 @@ fn simulate_planned(
     Ok(sim)
 }
 
+/// Why a simulation was not run: `k` sites × `simulations` data sets is
+/// beyond [`MAX_SIMULATED_SITE_EFFECTS`]; `what` is what it would have
+/// checked.
+fn beyond_budget_note(k: usize, simulations: usize, what: &str) -> String {
+    format!(
+        "{what} is not checked by simulation: {simulations} data sets of {k} sites is more than the {} million simulated site effects pondus simulates at one k. With this many sites the Knapp–Hartung test is practically the z test, and the noncentral F approximation shown is close to exact; to simulate anyway, lower {} so that k × N stays within that number",
+        MAX_SIMULATED_SITE_EFFECTS / 1_000_000,
+        Flag::Simulate
+    )
+}
+
 /// How a simulated power was obtained, in words.
 fn simulation_words(plan: &Plan, s: &Simulated) -> String {
     format!(
@@ -299,6 +317,14 @@ fn confirm_needed_k(
     // Start from the approximation's k, or from the planned k when it
     // found none (or could not be computed).
     let start = k_needed.unwrap_or(plan.k);
+    if !within_budget(start.clamp(3, req.max_k), n) {
+        notes.push(if start == plan.k && !within_budget(plan.k, n) {
+            "the k needed is not checked by simulation either, for the same reason".to_string()
+        } else {
+            beyond_budget_note(start, n, "the k needed")
+        });
+        return Ok(None);
+    }
     let c = confirm_k(plan, target, start, req.max_k, n, req.seed, progress)?;
     match (c.k, c.bracketed) {
         // The answer and its check are the report's `k_needed_answer`.

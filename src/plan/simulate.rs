@@ -116,6 +116,21 @@ pub fn no_progress(_: u64) {}
 /// Most values of k simulated when confirming the k needed.
 pub const MAX_SIMULATED_K: usize = 10;
 
+/// The most simulated site effects (k × data sets) at one value of k: a
+/// bound on the work of one simulation (each data set is a REML fit over
+/// k sites), so that a target needing 100,000 sites is answered in
+/// seconds instead of running for many minutes. At that many sites the
+/// Knapp–Hartung t has so many degrees of freedom, and its scale factor is
+/// so close to 1, that the test is the z test in all but name and the
+/// noncentral F approximation is close to exact.
+pub const MAX_SIMULATED_SITE_EFFECTS: usize = 20_000_000;
+
+/// Whether simulating `simulations` data sets of `k` sites is within
+/// [`MAX_SIMULATED_SITE_EFFECTS`].
+pub fn within_budget(k: usize, simulations: usize) -> bool {
+    k.saturating_mul(simulations) <= MAX_SIMULATED_SITE_EFFECTS
+}
+
 /// Confirms by simulation the k needed for `target`, starting from the k
 /// `start` proposed by the approximation: simulate there (same seed, so
 /// common random numbers where the streams overlap); if the power reaches
@@ -140,6 +155,9 @@ pub fn confirm_k(
             return Ok(Some(e.power >= target));
         }
         if evaluated.len() >= MAX_SIMULATED_K {
+            return Ok(None);
+        }
+        if !within_budget(k, simulations) {
             return Ok(None);
         }
         let p = plan.with_k(k);

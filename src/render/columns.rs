@@ -41,16 +41,36 @@ pub fn text(measure: Measure) -> String {
          'computed_from' in the JSON and the per-study table.\n",
         Flag::Col
     ));
+    out.push_str(&spreadsheets());
     out
+}
+
+/// How a spreadsheet FILE is read, in words (the same for every measure).
+fn spreadsheets() -> String {
+    format!(
+        "
+Spreadsheets: a FILE ending in .xlsx, .xlsm, .xls or .ods is read directly, the first \
+         sheet or the one named with {}. Its first non-empty row is the header, wherever the \
+         table starts. Every cell is read as a CSV export would hold it, so numbers stored as \
+         text, empty cells and the missing marks (NA, N/A, ., -) behave as in CSV; a formula \
+         cell gives the value last saved with it. Messages name the sheet and the cell \
+         (cell extraction!D14) instead of the line and column.\n",
+        Flag::Sheet
+    )
 }
 
 /// The listing of every measure, one after another.
 pub fn all() -> String {
     Measure::ALL
         .iter()
-        .map(|&m| text(m))
+        .map(|&m| {
+            let t = text(m);
+            // The spreadsheet note once, at the end.
+            t.strip_suffix(&spreadsheets()).unwrap_or(&t).to_string()
+        })
         .collect::<Vec<_>>()
         .join("\n")
+        + &spreadsheets()
 }
 
 #[cfg(test)]
@@ -78,5 +98,7 @@ mod tests {
             at += pos + needle.len();
         }
         assert!(t.contains("Wan et al. (2014)") && t.contains("only with --convert"));
+        assert!(t.contains(".xlsm, .xls or .ods") && t.contains("cell extraction!D14"));
+        assert_eq!(all().matches("Spreadsheets:").count(), 1);
     }
 }

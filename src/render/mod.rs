@@ -3,7 +3,8 @@
 //!
 //! - the terminal report of a fit: [`text`] assembles it from a list of
 //!   sections, each `fn(&FitReport, &layout::Ctx, &mut String)`, written in
-//!   [`text`], [`multilevel`], [`interpret`], [`answers`] and [`diagnostics`]; the
+//!   [`text`], [`multilevel`], [`interpret`], [`answers`], [`spread`] and
+//!   [`diagnostics`]; the
 //!   column and wrapping helpers they share are in [`layout`];
 //! - [`json`] and the per-study CSV ([`table`]);
 //! - the self-contained HTML pages ([`html`], one file per group of sections);
@@ -26,5 +27,6 @@ pub mod plan;
 pub mod sensitivity;
 pub mod sites;
 pub mod sites_effects;
+pub mod spread;
 pub mod table;
 pub mod text;

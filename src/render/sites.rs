@@ -87,18 +87,32 @@ pub fn render_at(r: &SitesReport, width: usize) -> String {
 }
 
 /// What was read and how each site's slope was estimated.
+/// "; N blank rows skipped" when the reader skipped wholly blank rows.
+fn blank_rows_text(n: u64) -> String {
+    match n {
+        0 => String::new(),
+        1 => "; 1 blank row skipped".into(),
+        n => format!("; {n} blank rows skipped"),
+    }
+}
+
 fn run_lines(o: &mut String, r: &SitesReport, width: usize) {
     let m = &r.model;
     title(o, "per-site regressions", width);
     let data = if r.input.kind == SitesInputKind::Moments {
         format!(
-            "{} (a per-site moments table, {} rows)",
-            r.input.file, r.input.rows
+            "{} (a per-site moments table, {} rows{})",
+            r.input.file,
+            r.input.rows,
+            blank_rows_text(r.input.blank_rows)
         )
     } else {
         format!(
-            "{} ({} rows read, {} left out for missing values)",
-            r.input.file, r.input.rows, r.input.missing_rows
+            "{} ({} rows read, {} left out for missing values{})",
+            r.input.file,
+            r.input.rows,
+            r.input.missing_rows,
+            blank_rows_text(r.input.blank_rows)
         )
     };
     fact(o, "Data", &data, width);

@@ -6,7 +6,7 @@ use super::layout::{
     bullets, clip, fact, lpad, pad, title, trim_lines, width, Ctx, Section, MAX_LISTED_STUDIES,
     TEXT_WIDTH,
 };
-use super::{answers, diagnostics, interpret, multilevel, sensitivity};
+use super::{answers, diagnostics, interpret, multilevel, sensitivity, spread};
 use crate::effect::Measure;
 use crate::result::{AtValue, Estimate, FitReport, MeasureId, ModeratorKind, Reading};
 use crate::support::flag::Flag;
@@ -58,6 +58,7 @@ const SECTIONS: &[Section] = &[
     moderator_answer,
     coefficients,
     heterogeneity,
+    spread::section,
     multilevel::dependent_effects,
     average,
     predictions,
@@ -205,7 +206,12 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         Some(_) => " (log scale)",
         None => "",
     };
-    let _ = writeln!(o, "Coefficients{scale}");
+    let from = if r.spread.is_some() {
+        " — location-scale model, Wald z"
+    } else {
+        ""
+    };
+    let _ = writeln!(o, "Coefficients{scale}{from}");
     let tw = r
         .coefficients
         .iter()
@@ -441,7 +447,13 @@ fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
     }
     let _ = writeln!(o, "Left out");
     for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
-        let _ = writeln!(o, "  line {}  {}: {}", e.line, e.study, e.reason);
+        let _ = writeln!(
+            o,
+            "  {}  {}: {}",
+            r.input.row_place(e.line),
+            e.study,
+            e.reason
+        );
     }
     if r.excluded.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(

@@ -32,6 +32,7 @@ mod predict;
 mod routes;
 mod sensitivity;
 mod sites;
+mod spread;
 
 pub use answers::*;
 pub use clusters::*;
@@ -43,6 +44,7 @@ pub use predict::*;
 pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
+pub use spread::*;
 
 use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
@@ -147,6 +149,12 @@ pub struct FitReport {
     /// omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub model_set: Option<ModelSet>,
+    /// The location-scale model: how the spread of the true effects depends
+    /// on the `--spread-by` characteristics (omitted otherwise). `coefficients`
+    /// then come from this model (Wald z), `tau2` and `heterogeneity` from
+    /// the model with one τ².
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub spread: Option<Spread>,
 }
 
 /// Tool name and version.
@@ -175,6 +183,27 @@ pub struct InputInfo {
     /// SHA-256 of the input bytes exactly as read, lowercase hex (FIPS 180-4),
     /// so a reader can check that a result belongs to a file.
     pub sha256: String,
+}
+
+impl InputInfo {
+    /// How a row of the input is named: `line 14` for CSV, `extraction row
+    /// 14` for a spreadsheet (`line` holds the sheet's row number there).
+    pub fn row_place(&self, line: u64) -> String {
+        match &self.sheet {
+            Some(name) => format!("{} row {line}", crate::input::sheet::quoted_name(name)),
+            None => format!("line {line}"),
+        }
+    }
+
+    /// The heading of a column of input row numbers: `line`, or `sheet row`
+    /// for a spreadsheet.
+    pub fn row_heading(&self) -> &'static str {
+        if self.sheet.is_some() {
+            "sheet row"
+        } else {
+            "line"
+        }
+    }
 }
 
 /// The effect measure.
@@ -225,7 +254,7 @@ display_by_id!(MeasureId);
 pub struct Excluded {
     /// Study label.
     pub study: String,
-    /// Line in the file.
+    /// Line in the file (for a spreadsheet, the sheet's row number).
     pub line: u64,
     /// Why it was left out.
     pub reason: String,
@@ -236,7 +265,7 @@ pub struct Excluded {
 pub struct Study {
     /// Label.
     pub study: String,
-    /// Line in the file.
+    /// Line in the file (for a spreadsheet, the sheet's row number).
     pub line: u64,
     /// Effect on the analysis scale.
     pub effect: f64,

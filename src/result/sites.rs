@@ -83,6 +83,9 @@ pub struct SitesInput {
     pub missing_rows: u64,
     /// Lines of the first of those rows.
     pub missing_lines: Vec<u64>,
+    /// Rows skipped because every cell was empty or blank (not counted in
+    /// `rows`).
+    pub blank_rows: u64,
     /// Passes over the file: 1, or 2 with HC3 standard errors.
     pub passes: u32,
 }

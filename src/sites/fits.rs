@@ -34,6 +34,14 @@ fn problem_text(p: &OlsProblem, names: &[String], what: &str) -> String {
         OlsProblem::ExactFit => format!(
             "the {what} fits this site's rows exactly (no residual variation), so it has no standard error"
         ),
+        OlsProblem::TooLarge(i) => format!(
+            "{} has values too large for double precision once squared (the {what}'s sums of squares or variances overflow); rescale the column (divide it by a power of ten) and scale the slopes back",
+            names[*i]
+        ),
+        OlsProblem::TooSmall(i) => format!(
+            "{} has values too small for double precision once squared (its squared deviations fall to zero, so it would look constant); rescale the column (multiply it by a power of ten) and scale the slopes back",
+            names[*i]
+        ),
     }
 }
 

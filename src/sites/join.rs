@@ -127,8 +127,11 @@ pub fn join(
                 column: key_header.clone(),
                 value: id.to_string(),
                 message: format!(
-                    "site '{id}' already has a row on line {}; give each site one row (merge or delete the repeated one)",
-                    table.lines[first]
+                    "site '{id}' already has a row on {}; give each site one row (merge or delete the repeated one)",
+                    match table.cell_address(first, ids) {
+                        Some(cell) => format!("cell {cell}"),
+                        None => format!("line {}", table.lines[first]),
+                    }
                 ),
                 cell: table.cell_address(i, ids),
             });

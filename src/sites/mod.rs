@@ -103,6 +103,7 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         rows: pass.rows,
         missing_rows: pass.missing_rows,
         missing_lines: pass.missing_lines.clone(),
+        blank_rows: pass.blank_rows,
         passes: if robust.is_some() { 2 } else { 1 },
     };
     let mut report = usable(
@@ -143,6 +144,7 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         rows: table.rows,
         missing_rows: 0,
         missing_lines: vec![],
+        blank_rows: table.blank_rows,
         passes: 1,
     };
     let mut report = usable(

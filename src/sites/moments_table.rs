@@ -25,6 +25,8 @@ pub struct MomentsTable {
     pub rows: u64,
     /// The decimal mark the numbers were read with, and why.
     pub decimal: crate::input::DecimalChoice,
+    /// Wholly blank rows skipped.
+    pub blank_rows: u64,
 }
 
 /// The layout a moments table's header describes: the covariates
@@ -202,6 +204,7 @@ pub fn read_moments(
         delimiter: table.delimiter,
         rows: table.len() as u64,
         decimal: table.decimal.clone(),
+        blank_rows: table.blank_rows as u64,
     })
 }
 

@@ -23,6 +23,35 @@ pub enum OlsProblem {
     /// The predictors reproduce the response exactly (RSS is rounding), so
     /// the slopes have no standard error.
     ExactFit,
+    /// A variable (its index in the moment vector) has values so large that
+    /// its sums of squares, or the slopes' variances, overflow double
+    /// precision.
+    TooLarge(usize),
+    /// A variable (its index in the moment vector) has values so small that
+    /// its squared deviations underflow to zero, so it would look constant.
+    TooSmall(usize),
+}
+
+/// Values below this size in absolute value (about 1e-150) have squares
+/// that fall to the subnormal range or to zero in double precision
+/// (the smallest normal number is about 2.2e-308; IEEE 754).
+const TINY: f64 = 1e-150;
+
+/// The range problem of variable `i`, if any: a co-moment that is not
+/// finite (the squares overflowed), or one that is zero or subnormal while
+/// the variable's mean is not zero but smaller than [`TINY`] (the squares
+/// underflowed; a truly constant column of such values is out of range
+/// as well).
+fn range_problem(m: &Moments, i: usize) -> Option<OlsProblem> {
+    let c = m.comoment(i, i);
+    let mean = m.mean(i).abs();
+    if !c.is_finite() || !mean.is_finite() {
+        return Some(OlsProblem::TooLarge(i));
+    }
+    if c < f64::MIN_POSITIVE && mean > 0.0 && mean < TINY {
+        return Some(OlsProblem::TooSmall(i));
+    }
+    None
 }
 
 /// An OLS fit with an intercept, from moments.
@@ -66,6 +95,10 @@ impl OlsFit {
 /// S is factored by Cholesky; a predictor whose part not explained by the
 /// earlier ones has a squared norm below [`tolerance::COLLINEAR`] of its
 /// own is reported as collinear, one with zero co-moment as constant.
+/// Before that, a variable whose squares overflow or underflow double
+/// precision is reported as out of range (not as constant or as an exact
+/// fit, which is what the overflowed or vanished sums would suggest), and
+/// so is a fit whose slopes or variances are not finite numbers.
 ///
 /// # Errors
 /// [`OlsProblem`] naming the offending variable.
@@ -74,6 +107,13 @@ pub fn fit(m: &Moments, predictors: &[usize], response: usize) -> Result<OlsFit,
     let need = p as u64 + 2;
     if m.n() < need {
         return Err(OlsProblem::TooFewRows { n: m.n(), need });
+    }
+    if let Some(problem) = predictors
+        .iter()
+        .chain(std::iter::once(&response))
+        .find_map(|&i| range_problem(m, i))
+    {
+        return Err(problem);
     }
     let mut s = vec![0.0; p * p];
     for (a, &i) in predictors.iter().enumerate() {
@@ -140,7 +180,7 @@ pub fn fit(m: &Moments, predictors: &[usize], response: usize) -> Result<OlsFit,
     if rss <= tolerance::EXACT_FIT_RSS * syy {
         return Err(OlsProblem::ExactFit);
     }
-    Ok(OlsFit {
+    let fit = OlsFit {
         predictors: predictors.to_vec(),
         response,
         beta,
@@ -148,7 +188,11 @@ pub fn fit(m: &Moments, predictors: &[usize], response: usize) -> Result<OlsFit,
         rss,
         df: m.n() as f64 - p as f64 - 1.0,
         n: m.n(),
-    })
+    };
+    if (0..p).any(|j| !fit.beta[j].is_finite() || !fit.se(j).is_finite()) {
+        return Err(OlsProblem::TooLarge(response));
+    }
+    Ok(fit)
 }
 
 /// The HC3 variance of one slope, summed over a site's rows in a second pass.

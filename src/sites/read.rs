@@ -6,7 +6,7 @@ use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, Cell, DecimalMark};
 use crate::input::DecimalChoice;
 use crate::input::{check_unique, format_error, read_headers};
-use crate::input::{detect_delimiter, find_header};
+use crate::input::{detect_delimiter, find_header, separator_text};
 use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
@@ -173,7 +173,15 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
             "the file is empty; it needs a header row and one row per participant",
         ));
     }
-    let delimiter = detect_delimiter(head);
+    // A first line `sep=X` names the delimiter; its text is skipped and its
+    // line break kept, so line numbers stay those of the file.
+    let delimiter = match separator_text(head) {
+        Some((d, text)) => {
+            buffered.consume(text);
+            d
+        }
+        None => detect_delimiter(head),
+    };
     let counter = BreakCounter {
         inner: buffered,
         offset: 0,

@@ -59,6 +59,7 @@ flags! {
     Reference => "--reference", ["fit"];
     Interaction => "--interaction", ["fit"];
     Center => "--center", ["fit"];
+    SpreadBy => "--spread-by", ["fit"];
     Tau2 => "--tau2", ["fit", "plan", "sites"];
     Inference => "--inference", ["fit", "sites"];
     Level => "--level", ["fit", "sites"];

@@ -27,6 +27,8 @@ pub(crate) struct Case {
 const PLAIN: &[u8] =
     b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.015,3\nd,0.25,0.01,4\n";
 
+const SPREAD: &[u8] = b"study,effect,variance,c,g\ns1,0.1,0.01,1,a\ns2,0.5,0.02,1,a\ns3,0.2,0.01,1,b\ns4,0.9,0.03,1,b\ns5,0.3,0.02,1,c\ns6,0.7,0.01,1,b\n";
+
 pub(crate) const CASES: &[Case] = &[
     Case { id: "missing-file", what: "the input file does not exist", args: "fit {dir}/nope.csv", input: None, stdin: b"", code: 2, words: &["nope.csv"] },
     Case { id: "directory", what: "the input path is a folder", args: "fit {dir}", input: None, stdin: b"", code: 2, words: &["directory"] },
@@ -70,6 +72,13 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "shrink-three-level", what: "--shrink under the three-level model", args: "fit {in} --cluster lab --shrink", input: Some(b"study,lab,effect,variance\na,L1,0.1,0.01\nb,L1,0.3,0.02\nc,L2,0.2,0.01\nd,L2,0.25,0.01\ne,L3,0.4,0.02\n"), stdin: b"", code: 2, words: &["--shrink", "--cluster"] },
     Case { id: "all-subsets-too-few-studies", what: "--all-subsets with too few studies for AICc", args: "fit {in} --moderator m --all-subsets", input: Some(b"study,effect,variance,m\na,0.1,0.01,1\nb,0.3,0.02,2\nc,0.2,0.01,3\nd,0.25,0.01,4\n"), stdin: b"", code: 2, words: &["--all-subsets", "too few"] },
     Case { id: "all-subsets-no-moderators", what: "--all-subsets without moderators", args: "fit {in} --all-subsets", input: Some(PLAIN), stdin: b"", code: 2, words: &["--all-subsets", "--moderator"] },
+    Case { id: "spread-by-unknown-column", what: "a --spread-by name that is not a column", args: "fit {in} --spread-by lab", input: Some(PLAIN), stdin: b"", code: 2, words: &["lab", "--spread-by"] },
+    Case { id: "spread-by-constant", what: "a spread characteristic with the same value in every study", args: "fit {in} --spread-by c", input: Some(SPREAD), stdin: b"", code: 2, words: &["'c'", "same value"] },
+    Case { id: "spread-by-single-study-level", what: "a level of a spread characteristic with one study", args: "fit {in} --spread-by g", input: Some(SPREAD), stdin: b"", code: 2, words: &["level 'c'", "single study"] },
+    Case { id: "spread-by-too-few-studies", what: "too few studies for the mean and spread terms", args: "fit {in} --moderator m --spread-by m", input: Some(PLAIN), stdin: b"", code: 2, words: &["too few", "at least 5"] },
+    Case { id: "spread-by-estimator", what: "--spread-by with a moment estimator of τ²", args: "fit {in} --spread-by m --tau2 dl", input: Some(PLAIN), stdin: b"", code: 2, words: &["--tau2", "reml"] },
+    Case { id: "spread-by-kh", what: "--spread-by with Knapp–Hartung tests", args: "fit {in} --spread-by m --inference kh", input: Some(PLAIN), stdin: b"", code: 2, words: &["--inference", "Wald z"] },
+    Case { id: "spread-by-cluster", what: "--spread-by with clustered effects", args: "fit {in} --spread-by m --cluster study", input: Some(PLAIN), stdin: b"", code: 2, words: &["--cluster", "--spread-by"] },
     Case { id: "stdin-empty", what: "an empty standard input", args: "fit -", input: None, stdin: b"", code: 2, words: &["empty"] },
     Case { id: "sites-missing-id", what: "a participant row without a site id", args: "sites {in} --site site --x x --y y --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\n,2,3\ns1,3,5\n"), stdin: b"", code: 2, words: &["line 3", "site"] },
     Case { id: "sites-duplicate-ids", what: "a site table with the same id twice", args: "sites {in} --site site --x x --y y --info {dir}/info.csv --out {dir}/e.csv", input: Some(b"site,x,y\ns1,1,2\ns1,2,3\ns1,3,5\ns1,4,4\ns1,5,7\n"), stdin: b"", code: 2, words: &["line 3", "already has a row on line 2"] },
@@ -80,6 +89,11 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "selection-thin-interval", what: "a p-value interval with fewer than 3 studies", args: "fit {in} --selection 0.025", input: Some(PLAIN), stdin: b"", code: 2, words: &["--selection", "only 2 studies", "--selection-force"] },
     Case { id: "favoured-without-selection", what: "--favoured without --selection", args: "fit {in} --favoured negative", input: Some(PLAIN), stdin: b"", code: 2, words: &["--favoured", "--selection"] },
     Case { id: "plan-negative-tau2", what: "a negative τ² in a plan", args: "plan --measure r --k 20 --n 50 --tau2=-0.1 --moderator-effect 0.1 --moderator-sd 1", input: None, stdin: b"", code: 2, words: &["--tau2"] },
+    Case { id: "sheet-bad-cell", what: "a bad cell in a spreadsheet whose table starts at B3 (column AB)", args: "fit {repo}/tests/data/routes/smd-routes.xlsx --measure smd --sheet shifted", input: None, stdin: b"", code: 2, words: &["cell shifted!AB18", "'ctrl_events'", "2 5"] },
+    Case { id: "sheet-moderator-typo", what: "a text typo among numeric moderator values in a spreadsheet", args: "fit {repo}/tests/data/routes/cells.ods --moderator dose --sheet 'bad dose'", input: None, stdin: b"", code: 2, words: &["cell 'bad dose'!D12", "2.5O"] },
+    Case { id: "sheet-unknown", what: "--sheet names no sheet of the workbook", args: "fit {repo}/tests/data/routes/smd-routes.xls --sheet nope", input: None, stdin: b"", code: 2, words: &["no sheet named 'nope'", "extraction, typos, shifted"] },
+    Case { id: "sheet-on-csv", what: "--sheet with a CSV file", args: "fit {in} --sheet extraction", input: Some(PLAIN), stdin: b"", code: 2, words: &["--sheet", "not a spreadsheet"] },
+    Case { id: "sheet-not-a-workbook", what: "a CSV file saved under a .xlsx name", args: "fit {in.xlsx}", input: Some(PLAIN), stdin: b"", code: 2, words: &["cannot be read as a spreadsheet"] },
 ];
 
 /// The site table of `sites-duplicate-ids`.
@@ -88,17 +102,25 @@ const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
 /// Runs one case; returns the exit code and stderr.
 pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("input.csv");
+    let named_xlsx = case.args.contains("{in.xlsx}");
+    let input = dir.path().join(if named_xlsx {
+        "input.xlsx"
+    } else {
+        "input.csv"
+    });
     if let Some(bytes) = case.input {
         std::fs::write(&input, bytes).unwrap();
     }
+    let root = repo("").display().to_string();
+    let root = root.trim_end_matches('/').to_string();
     std::fs::write(dir.path().join("info.csv"), INFO_DUPLICATE).unwrap();
-    let args: Vec<String> = case
-        .args
-        .split_whitespace()
+    let args: Vec<String> = split_args(case.args)
+        .iter()
         .map(|a| {
-            a.replace("{in}", &input.display().to_string())
+            a.replace("{in.xlsx}", &input.display().to_string())
+                .replace("{in}", &input.display().to_string())
                 .replace("{dir}", &dir.path().display().to_string())
+                .replace("{repo}", &root)
         })
         .collect();
     let o = Command::cargo_bin("pondus")
@@ -108,9 +130,37 @@ pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
         .output()
         .unwrap();
     let err = String::from_utf8_lossy(&o.stderr).into_owned();
-    // The scratch folder's name differs from run to run.
-    let err = err.replace(&dir.path().display().to_string(), "DIR");
+    // The scratch folder's name differs from run to run, the repository's
+    // from machine to machine.
+    let err = err
+        .replace(&dir.path().display().to_string(), "DIR")
+        .replace(&format!("{root}/"), "");
     (o.status.code(), err)
+}
+
+/// Splits a case's command at blanks; a part in single quotes ('bad dose')
+/// is one argument, without its quotes.
+fn split_args(args: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut quoted: Option<String> = None;
+    for part in args.split_whitespace() {
+        match quoted.as_mut() {
+            Some(q) => {
+                q.push(' ');
+                q.push_str(part.trim_end_matches('\''));
+                if part.ends_with('\'') {
+                    out.push(quoted.take().unwrap_or_default());
+                }
+            }
+            None if part.starts_with('\'') && !(part.len() > 1 && part.ends_with('\'')) => {
+                quoted = Some(part.trim_start_matches('\'').to_string());
+            }
+            None if part.starts_with('\'') => out.push(part.trim_matches('\'').to_string()),
+            None => out.push(part.to_string()),
+        }
+    }
+    out.extend(quoted);
+    out
 }
 
 /// The first line of a message, as the catalogue shows it; for a list of

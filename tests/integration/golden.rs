@@ -63,9 +63,10 @@ const CASES: &[Case] = &[
     Case { id: "hiring-range-check", steps: &["fit data-examples/hiring-validity.csv --measure r --moderator range_ratio --reliability-x rel_exercise --reliability-y rel_rating --range-ratio range_ratio"] },
     // Predictions and the shareable report (tutorial, part C and D).
     Case { id: "programme-predictions", steps: &["fit data-examples/programme-sites.csv --measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=40,delivery=volunteer --at dosage_hours=20,delivery=volunteer --probe dosage_hours --report programme.html --forest forest.png --json out.json"] },
-    // Heterogeneity as an answer (tutorial B5 and C3, methods §17).
+    // Heterogeneity as an answer (tutorial B5, B6 and C3, methods §17).
     Case { id: "programme-threshold-shrink", steps: &["fit data-examples/programme-sites.csv --measure smd --moderator dosage_hours --moderator delivery --at dosage_hours=20,delivery=volunteer --at dosage_hours=60,delivery=staff --beyond 0.2 --shrink --json out.json --table table.csv --report report.html --forest sites.svg"] },
     Case { id: "consortium-all-subsets", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --moderator mode --all-subsets --json out.json --report report.html"] },
+    Case { id: "consortium-spread-by", steps: &["fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes --spread-by mode --json out.json --report report.html --forest forest.svg --bubble bubble.svg"] },
     // Effects from whatever each study reports, straight from the spreadsheet (tutorial, part E).
     Case { id: "classroom-routes", steps: &[
         "columns --measure smd",

@@ -23,4 +23,5 @@ mod routes;
 mod safety;
 mod selection;
 mod sites;
+mod spread;
 mod util;

@@ -449,6 +449,43 @@ fn fit_json_into_a_fifo_writes_through_it_and_keeps_the_fifo() {
     );
 }
 
+/// `--json /dev/full` replaced the device with a regular file and exited
+/// 0. A device is now written directly and its error (ENOSPC) is a
+/// failure that names the flag. The device here is a private node made
+/// with `mknod` inside a temporary folder (the same device numbers as
+/// `/dev/full`, 1:7), so the machine's own `/dev/full` is never touched;
+/// where making a node is not allowed (not root), the test says so and
+/// checks nothing.
+#[test]
+fn fit_json_into_a_full_device_fails_and_keeps_the_device() {
+    use std::os::unix::fs::FileTypeExt;
+    let dir = scratch_with_effects();
+    let full = dir.path().join("full.json");
+    let made = std::process::Command::new("mknod")
+        .arg(&full)
+        .args(["c", "1", "7"])
+        .status()
+        .is_ok_and(|s| s.success());
+    if !made {
+        eprintln!("mknod is not allowed here: the ENOSPC check did not run");
+        return;
+    }
+    let out = fit_in(dir.path(), &["--json", "full.json", "--table", "t.csv"])
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(err.contains("--json") && err.contains("full.json"), "{err}");
+    assert!(err.contains("No space left on device"), "{err}");
+    let kind = std::fs::symlink_metadata(&full).unwrap().file_type();
+    assert!(kind.is_char_device(), "the device was replaced: {kind:?}");
+    // All or nothing: the table waiting beside it was not put in place.
+    assert_eq!(
+        names_in(dir.path()),
+        ["full.json", "precomputed-effects.csv"]
+    );
+}
+
 /// `--json` naming a symbolic link replaced the link with a regular file
 /// and left the file it pointed to as it was. The link is now followed:
 /// its target gets the output (written and renamed in the target's

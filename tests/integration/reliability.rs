@@ -611,3 +611,167 @@ fn site_ids_that_match_only_ignoring_case_get_a_hint() {
         "{notes}"
     );
 }
+
+/// Participant rows of three sites with outcomes scaled by `scale`
+/// (invented rows: y = 0.5·x plus a fixed wobble).
+fn scaled_sites(scale: f64) -> String {
+    let mut csv = String::from("s,x,y\n");
+    for site in ["A", "B", "C"] {
+        for i in 0..8 {
+            let wobble = [0.3, -0.2, 0.1, -0.4, 0.25, 0.05, -0.15, 0.2][i];
+            let y = (0.5 * i as f64 + wobble) * scale;
+            csv.push_str(&format!("{site},{i},{y:e}\n"));
+        }
+    }
+    csv
+}
+
+const SITES_ARGS: [&str; 10] = [
+    "sites",
+    "input.csv",
+    "--site",
+    "s",
+    "--x",
+    "x",
+    "--y",
+    "y",
+    "--json",
+    "-",
+];
+
+#[test]
+fn sites_with_outcomes_near_1e155_get_the_range_reason_not_an_exact_fit() {
+    // y² near 1e310 overflows: the sums of squares were infinite, RSS came
+    // out as zero and every site "fit exactly".
+    let (code, _, err) = run(&scaled_sites(1e155), &SITES_ARGS);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("too large for double precision") && err.contains("rescale"),
+        "{err}"
+    );
+    assert!(!err.contains("fits this site's rows exactly"), "{err}");
+    // The same rows at a representable scale fit, with slopes near 0.5.
+    let j = json(&scaled_sites(1e100), &SITES_ARGS);
+    let slope = j["sites"][0]["slope"].as_f64().unwrap();
+    assert!((slope / 1e100 - 0.5).abs() < 0.1, "{slope}");
+}
+
+#[test]
+fn sites_with_outcomes_near_1e_200_get_the_range_reason_not_constant() {
+    // Squared deviations near 1e-400 underflow to zero: every site looked
+    // constant in y.
+    let (code, _, err) = run(&scaled_sites(1e-200), &SITES_ARGS);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("too small for double precision") && err.contains("rescale"),
+        "{err}"
+    );
+    assert!(!err.contains("is constant in this site"), "{err}");
+    // A truly constant outcome keeps its own reason.
+    let constant: String = scaled_sites(1.0)
+        .lines()
+        .map(|l| match l.rsplit_once(',') {
+            Some((head, _)) if !l.starts_with('s') => format!("{head},3\n"),
+            _ => format!("{l}\n"),
+        })
+        .collect();
+    let (code, _, err) = run(&constant, &SITES_ARGS);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("is constant in this site"), "{err}");
+}
+
+#[test]
+fn whitespace_only_rows_are_counted_when_skipped() {
+    // Sites: a row of blanks after each site's rows.
+    let csv: String = scaled_sites(1.0)
+        .lines()
+        .map(|l| {
+            if l.ends_with(&format!("{:e}", (0.5 * 7.0 + 0.2))) {
+                format!("{l}\n   \n")
+            } else {
+                format!("{l}\n")
+            }
+        })
+        .collect();
+    assert_eq!(csv.lines().filter(|l| l.trim().is_empty()).count(), 3);
+    let j = json(&csv, &SITES_ARGS);
+    assert_eq!(j["input"]["blank_rows"], 3, "{j}");
+    assert_eq!(j["input"]["rows"], 24, "{j}");
+    let text_args = &SITES_ARGS[..8];
+    let (code, out, err) = run(&csv, &[text_args, &["--out", "e.csv"]].concat());
+    assert_eq!(code, Some(0), "{err}");
+    assert!(out.contains("3 blank rows skipped"), "{out}");
+    // Fit: one blank row, counted in the singular.
+    let effects = "study,effect,variance\na,0.1,0.01\n  \t \nb,0.2,0.02\nc,0.3,0.01\n";
+    let (code, out, err) = run(effects, &["fit", "input.csv", "--measure", "effect"]);
+    assert_eq!(code, Some(0), "{err}");
+    assert!(out.contains("1 blank row was skipped."), "{out}");
+}
+
+#[test]
+fn a_sep_first_line_names_the_delimiter_in_the_streaming_sites_reader() {
+    // The same participant rows, semicolon-separated behind a `sep=;` line
+    // (which the streaming reader took for the header).
+    let rows = scaled_sites(1.0).replace(',', ";");
+    let j = json(&format!("sep=;\n{rows}"), &SITES_ARGS);
+    assert_eq!(j["input"]["rows"], 24, "{j}");
+    assert_eq!(j["input"]["delimiter"], "semicolon", "{j}");
+    assert_eq!(j["sites"].as_array().unwrap().len(), 3, "{j}");
+    // Line numbers stay those of the file: a bad value on line 4.
+    let mut lines: Vec<String> = format!("sep=;\n{rows}").lines().map(String::from).collect();
+    lines[3] = "A;2;oops".into();
+    let (code, _, err) = run(&(lines.join("\n") + "\n"), &SITES_ARGS);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("line 4"), "{err}");
+}
+
+#[test]
+fn plan_with_a_huge_max_k_answers_without_simulating_beyond_its_budget() {
+    // A tiny effect: no k up to 100,000 reaches the target. The search and
+    // the power at the proposed k ran simulations of 2,000 data sets of up
+    // to 100,000 sites each (minutes of silence); now they are bounded by
+    // k × data sets ≤ 20 million and the note says so.
+    let args = [
+        "plan",
+        "--measure",
+        "r",
+        "--n",
+        "30",
+        "--tau2",
+        "0.02",
+        "--moderator-sd",
+        "1",
+        "--moderator-effect",
+        "0.002",
+        "--target-power",
+        "0.99",
+        "--max-k",
+        "100000",
+        "--json",
+        "-",
+    ];
+    let j = json("", &args);
+    assert!(j["simulation"].is_null(), "{j}");
+    assert!(
+        j["k_needed"].is_null() && j["k_needed_simulated"].is_null(),
+        "{j}"
+    );
+    let notes = j["notes"].to_string();
+    assert!(notes.contains("not checked by simulation"), "{notes}");
+    // The power shown is the F approximation's, labelled as such.
+    assert_eq!(j["power"], j["power_analytic"], "{j}");
+    assert!(
+        j["power_method"]
+            .as_str()
+            .unwrap()
+            .contains("F approximation"),
+        "{j}"
+    );
+    // Within the budget the simulation still runs (100 data sets × 2,000 sites).
+    let mut small = args.to_vec();
+    small.extend(["--k", "2000", "--simulate", "100"]);
+    small.retain(|a| *a != "--target-power" && *a != "0.99");
+    small.retain(|a| *a != "--max-k" && *a != "100000");
+    let j = json("", &small);
+    assert_eq!(j["simulation"]["simulations"], 100, "{j}");
+}

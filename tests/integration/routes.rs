@@ -177,7 +177,7 @@ fn spreadsheets_give_the_same_json_as_the_csv() {
             (v.to_string(), input)
         };
         let (csv, _) = strip(fit_json(&repo("tests/data/routes/smd-routes.csv"), &args));
-        for ext in ["xlsx", "ods"] {
+        for ext in SHEET_FORMATS {
             let file = repo(&format!("tests/data/routes/smd-routes.{ext}"));
             let (sheet, input) = strip(fit_json(&file, &args));
             // Everything but the input record (file name, its SHA-256, the
@@ -189,9 +189,126 @@ fn spreadsheets_give_the_same_json_as_the_csv() {
     }
 }
 
+/// Every spreadsheet format of the fixtures: .xlsx and .xlsm by openpyxl
+/// 3.1.5, .xls (BIFF8) by xlwt 1.3.0, .ods by odfpy 1.4.1
+/// (tests/reference/spreadsheets.py).
+const SHEET_FORMATS: [&str; 4] = ["xlsx", "xlsm", "xls", "ods"];
+
+/// Runs `pondus fit ARGS` and returns (exit code, stdout, stderr).
+fn fit_run(file: &Path, args: &[&str]) -> (i32, String, String) {
+    let out = pondus().arg("fit").arg(file).args(args).output().unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).to_string(),
+        String::from_utf8_lossy(&out.stderr).to_string(),
+    )
+}
+
+/// cells.csv holds a number stored as text (B's effect), one with blanks
+/// around it (C's se, " 0.18 "), an empty cell and the missing marks NA, ".",
+/// "-" and N/A; the workbooks store the same cells (the two numbers as text
+/// cells). Each behaves as in the CSV, in every format.
+#[test]
+fn text_numbers_empty_cells_and_missing_marks_behave_as_in_csv() {
+    let args = ["--moderator", "dose", "--moderator", "setting"];
+    let csv = fit_json(&repo("tests/data/routes/cells.csv"), &args);
+    // What the CSV gives, checked on its own first.
+    let study = |v: &Value, name: &str| -> Value {
+        v["studies"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|s| s["study"] == name)
+            .cloned()
+            .unwrap_or_else(|| panic!("{name} not included"))
+    };
+    assert_eq!(study(&csv, "number as text B")["effect"], 0.31);
+    close(
+        "C's variance",
+        study(&csv, "number with blanks C")["variance"]
+            .as_f64()
+            .unwrap(),
+        0.18 * 0.18,
+        1e-12,
+        0.0,
+    );
+    let reasons: Vec<(String, String)> = csv["excluded"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| {
+            (
+                e["study"].as_str().unwrap().to_string(),
+                e["reason"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect();
+    for who in ["empty dose D", "NA dose E", "dot dose F", "dash dose G"] {
+        assert!(
+            reasons
+                .iter()
+                .any(|(s, r)| s == who && r == "missing moderator dose"),
+            "{who}: {reasons:?}"
+        );
+    }
+    assert!(
+        reasons
+            .iter()
+            .any(|(s, r)| s == "N/A effect H" && r.contains("missing effect")),
+        "{reasons:?}"
+    );
+    assert_eq!(reasons.len(), 5);
+    let strip = |mut v: Value| {
+        v.as_object_mut().unwrap().remove("input");
+        v.to_string()
+    };
+    let want = strip(csv);
+    for ext in SHEET_FORMATS {
+        let file = repo(&format!("tests/data/routes/cells.{ext}"));
+        assert_eq!(strip(fit_json(&file, &args)), want, "{ext}");
+        // The terminal report names the left-out rows by sheet and row.
+        let (code, out, err) = fit_run(&file, &args);
+        assert_eq!(code, 0, "{err}");
+        assert!(
+            out.contains("  cells row 5  empty dose D: missing moderator dose"),
+            "{ext}\n{out}"
+        );
+    }
+}
+
+#[test]
+fn moderator_and_shifted_cells_are_named_by_their_address() {
+    for ext in SHEET_FORMATS {
+        let file = repo(&format!("tests/data/routes/cells.{ext}"));
+        let (code, _, err) = fit_run(&file, &["--sheet", "bad dose", "--moderator", "dose"]);
+        assert_eq!(code, 2, "{ext}: {err}");
+        assert!(err.contains("cell 'bad dose'!D12 ('2.5O')"), "{ext}: {err}");
+        // The table of sheet "shifted" starts at B3, so its 27th column is
+        // AB and study O (the 15th data row) is on row 18.
+        let file = repo(&format!("tests/data/routes/smd-routes.{ext}"));
+        let (code, _, err) = fit_run(&file, &["--sheet", "shifted", "--measure", "smd"]);
+        assert_eq!(code, 2, "{ext}: {err}");
+        assert!(
+            err.contains("cell shifted!AB18, column 'ctrl_events' (value '2 5')"),
+            "{ext}: {err}"
+        );
+        assert!(err.contains("1 problem"), "{ext}: {err}");
+    }
+    // The CSV variant of the moderator message keeps line numbers.
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("bad.csv");
+    let text = std::fs::read_to_string(repo("tests/data/routes/cells.csv"))
+        .unwrap()
+        .replace("plain K,0.35,0.13,2.5,", "plain K,0.35,0.13,2.5O,");
+    std::fs::write(&f, text).unwrap();
+    let (code, _, err) = fit_run(&f, &["--moderator", "dose"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("line 12 ('2.5O')"), "{err}");
+}
+
 #[test]
 fn bad_cells_are_named_by_their_address() {
-    for ext in ["xlsx", "ods"] {
+    for ext in SHEET_FORMATS {
         let file = repo(&format!("tests/data/routes/smd-routes.{ext}"));
         let out = pondus()
             .args(["fit", "--measure", "smd", "--sheet", "typos", "--quiet"])
@@ -341,6 +458,29 @@ fn plan_moderator_values_read_a_spreadsheet() {
             v.to_string()
         };
         assert_eq!(strip(&got), strip(&want), "{ext}");
+        let out = pondus()
+            .args([
+                "plan",
+                "--measure",
+                "smd",
+                "--tau2",
+                "0.02",
+                "--k",
+                "8",
+                "--n",
+                "40",
+            ])
+            .args(["--moderator-effect", "0.01", "--sheet", "typo"])
+            .arg("--moderator-values")
+            .arg(repo(&format!("tests/data/routes/planned-values.{ext}")))
+            .assert()
+            .code(2);
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(
+            err.contains("cell typo!A5: '4O' is not a finite number")
+                && err.contains("one number per cell of the first column"),
+            "{ext}: {err}"
+        );
     }
 }
 
@@ -371,4 +511,72 @@ fn columns_lists_the_routes_of_each_measure() {
     let out = pondus().args(["columns"]).assert().success();
     let all = String::from_utf8_lossy(&out.get_output().stdout).to_string();
     assert!(all.contains("--measure log-or") && all.contains("ratio-ci"));
+}
+
+/// The median-range SD of pondus against the published values: Wan et al.
+/// (2014, BMC Med Res Methodol 14:135) Table 1 prints ξ(n), the expected
+/// range of n standard normal values, so that SD ≈ (max − min)/ξ(n);
+/// tests/reference/medians.py copies the table, confirms it by integration
+/// (scipy 1.16.3) and records it in tests/data/reference/medians/. pondus's
+/// SD from a range of 1 must be 1/ξ(n) up to the approximation's gap.
+/// The same file's simulation (numpy 2.3.5, seeded) is checked here too:
+/// every estimator nearly unbiased for normal data, as the papers found.
+#[test]
+fn median_routes_against_wan_table_1_and_the_simulation() {
+    use pondus::effect::smd_routes::{mean_sd_from_iqr, mean_sd_from_range};
+    use pondus::tolerance::WAN_RANGE_DIVISOR_REL;
+    let text = std::fs::read_to_string(repo("tests/data/reference/medians/medians.json")).unwrap();
+    let fx: Value = serde_json::from_str(&text).unwrap();
+    let rows = fx["wan_table_1"].as_array().unwrap();
+    assert_eq!(rows.len(), 49);
+    let mut worst: f64 = 0.0;
+    for row in rows {
+        let n = row["n"].as_f64().unwrap();
+        if n < 10.0 {
+            continue;
+        }
+        let published = row["published"].as_f64().unwrap();
+        let (mean, sd) = mean_sd_from_range(0.0, -0.5, 0.5, n);
+        assert!(mean.abs() < 1e-15);
+        let gap = (1.0 / sd) / published - 1.0;
+        worst = worst.max(gap.abs());
+        assert!(gap.abs() <= WAN_RANGE_DIVISOR_REL, "n = {n}: gap {gap}");
+    }
+    assert!(worst > 0.0);
+    for row in fx["simulation"].as_array().unwrap() {
+        // pondus computes the simulated formulas: the first samples' estimates.
+        let n = row["n"].as_f64().unwrap();
+        for s in row["samples"].as_array().unwrap() {
+            let g = |k: &str| s[k].as_f64().unwrap();
+            let (mean, sd) = mean_sd_from_iqr(g("median"), g("q1"), g("q3"), n);
+            close(
+                "iqr mean",
+                mean,
+                g("iqr_mean"),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+            close("iqr sd", sd, g("iqr_sd"), REFERENCE_REL, REFERENCE_ABS);
+            let (mean, sd) = mean_sd_from_range(g("median"), g("min"), g("max"), n);
+            close(
+                "range mean",
+                mean,
+                g("range_mean"),
+                REFERENCE_REL,
+                REFERENCE_ABS,
+            );
+            close("range sd", sd, g("range_sd"), REFERENCE_REL, REFERENCE_ABS);
+        }
+        for route in ["median-iqr", "median-range"] {
+            let r = &row[route];
+            assert!(
+                r["mean_error_in_sd"].as_f64().unwrap().abs() < 0.01,
+                "{row}"
+            );
+            assert!(
+                r["sd_rel_error_vs_sigma"].as_f64().unwrap().abs() < 0.01,
+                "{row}"
+            );
+        }
+    }
 }

@@ -76,6 +76,9 @@ trap 'rm -rf "$tmp"' EXIT
 # Effect-size routes of issue 15 (tests/reference/routes.py -> tests/data/reference/routes/)
 "$venv/bin/python" "$here/routes.py" "$tmp/routes" > "$tmp/routes.log" 2>&1 || { cat "$tmp/routes.log" >&2; die "routes.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/routes" "$tmp/routes" || die "routes fixtures differ; regenerate with: $venv/bin/python tests/reference/routes.py tests/data/reference/routes"
+# Median routes of issue 15: Wan et al. (2014) Table 1 and the seeded unbiasedness simulation (tests/reference/medians.py -> tests/data/reference/medians/)
+"$venv/bin/python" "$here/medians.py" "$tmp/medians" > "$tmp/medians.log" 2>&1 || { cat "$tmp/medians.log" >&2; die "medians.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/medians" "$tmp/medians" || die "medians fixtures differ; regenerate with: $venv/bin/python tests/reference/medians.py tests/data/reference/medians"
 # Selection model (scipy maximisation) and PET/PEESE (statsmodels WLS) (tests/reference/selection.py -> tests/data/reference/selection/)
 "$venv/bin/python" "$here/selection.py" "$tmp/selection" > "$tmp/selection.log" 2>&1 || { cat "$tmp/selection.log" >&2; die "selection.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/selection" "$tmp/selection" || die "selection fixtures differ; regenerate with: $venv/bin/python tests/reference/selection.py tests/data/reference/selection"

@@ -39,6 +39,7 @@ impl AnswerArgs {
             shrink: self.shrink,
             beyond: self.beyond,
             all_subsets: self.all_subsets,
+            spread_by: Vec::new(),
         })
     }
 }

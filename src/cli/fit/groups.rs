@@ -9,7 +9,7 @@ use clap::{Args, ValueEnum};
 use pondus::effect::Measure;
 use pondus::error::{Error, Result};
 use pondus::model::design::ModeratorSpec;
-use pondus::model::FitOptions;
+use pondus::model::{FitOptions, Inference};
 use std::collections::BTreeMap;
 use std::path::PathBuf;
 
@@ -114,12 +114,15 @@ pub struct ModelArgs {
     /// Subtract the studies' mean from a numeric moderator before fitting (repeatable).
     #[arg(long, value_name = "NAME")]
     pub center: Vec<String>,
+    /// Let the spread of the true effects (ln τ²) depend on this characteristic: the location-scale model, REML or ML, Wald z tests (repeatable; numeric or categorical, coded like moderators).
+    #[arg(long = "spread-by", value_name = "NAME")]
+    pub spread_by: Vec<String>,
     /// Estimator of the between-study variance τ².
     #[arg(long, value_enum, default_value_t = Tau2Arg::Reml)]
     pub tau2: Tau2Arg,
-    /// Tests and intervals for the coefficients.
-    #[arg(long, value_enum, default_value_t = InferenceArg::Kh)]
-    pub inference: InferenceArg,
+    /// Tests and intervals for the coefficients [default: kh; z with --spread-by].
+    #[arg(long, value_enum)]
+    pub inference: Option<InferenceArg>,
     /// Confidence level of every interval.
     #[arg(long, default_value_t = 0.95)]
     pub level: f64,
@@ -139,9 +142,24 @@ pub struct CheckedModel {
     pub options: FitOptions,
     /// Points to predict at, as (name, value) pairs.
     pub predictions: Vec<Vec<(String, String)>>,
+    /// The `--spread-by` characteristics with their coding.
+    pub spread_by: Vec<ModeratorSpec>,
 }
 
 impl ModelArgs {
+    /// An error unless `name` is given with `--moderator` or `--spread-by`
+    /// (the flags that code a column: `--categorical`, `--reference`, `--center`).
+    ///
+    /// # Errors
+    /// [`Error::Usage`] on `flag`, telling to add the moderator.
+    fn known_coded(&self, flag: &str, name: &str) -> Result<()> {
+        if self.spread_by.iter().any(|m| m == name) {
+            Ok(())
+        } else {
+            self.known(flag, name)
+        }
+    }
+
     /// An error unless `name` is given with `--moderator`.
     ///
     /// # Errors
@@ -183,7 +201,7 @@ impl ModelArgs {
         let mut references = BTreeMap::new();
         for r in &self.reference {
             let (name, level) = split_pair("--reference", r, "NAME=LEVEL")?;
-            self.known("--reference", name)?;
+            self.known_coded("--reference", name)?;
             if let Some(before) = references.insert(name.to_string(), level.to_string()) {
                 return Err(Error::usage(
                     "--reference",
@@ -194,21 +212,25 @@ impl ModelArgs {
             }
         }
         for n in &self.categorical {
-            self.known("--categorical", n)?;
+            self.known_coded("--categorical", n)?;
         }
         for n in &self.center {
-            self.known("--center", n)?;
+            self.known_coded("--center", n)?;
         }
-        let moderators = self
-            .moderators
-            .iter()
-            .map(|name| ModeratorSpec {
-                name: name.clone(),
-                categorical: self.categorical.contains(name) || references.contains_key(name),
-                reference: references.get(name).cloned(),
-                center: self.center.contains(name),
-            })
-            .collect();
+        let mut seen = std::collections::HashSet::new();
+        for m in &self.spread_by {
+            if !seen.insert(m.as_str()) {
+                return Err(Error::usage("--spread-by", format!("'{m}' is given twice")));
+            }
+        }
+        let spec = |name: &String| ModeratorSpec {
+            name: name.clone(),
+            categorical: self.categorical.contains(name) || references.contains_key(name),
+            reference: references.get(name).cloned(),
+            center: self.center.contains(name),
+        };
+        let moderators = self.moderators.iter().map(spec).collect();
+        let spread_by = self.spread_by.iter().map(spec).collect();
         let mut interactions = Vec::new();
         for i in &self.interaction {
             let parts: Vec<&str> = i.split(',').map(str::trim).collect();
@@ -243,10 +265,15 @@ impl ModelArgs {
             interactions,
             options: FitOptions {
                 method: self.tau2.into(),
-                inference: self.inference.into(),
+                inference: match self.inference {
+                    Some(i) => i.into(),
+                    None if self.spread_by.is_empty() => Inference::Kh,
+                    None => Inference::Z,
+                },
                 level: self.level,
             },
             predictions,
+            spread_by,
         })
     }
 }

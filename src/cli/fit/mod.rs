@@ -20,7 +20,7 @@ use super::outputs::{self, Outputs, Target};
 use super::{invocation, io_err, json_bytes, with_progress};
 use clap::Args;
 use pondus::error::Result;
-use pondus::fit::{self, FitSettings};
+use pondus::fit::{self, AnswerSettings, FitSettings};
 use pondus::input::Source;
 use pondus::render;
 use pondus::render::figure;
@@ -168,7 +168,10 @@ impl FitArgs {
                 interpret: self.interpretation.check(&self.model, self.input.measure)?,
                 diagnostics: self.diagnostics.check(&self.model)?,
                 dependence: self.clusters.check(&self.diagnostics)?,
-                answers: self.answers.check()?,
+                answers: AnswerSettings {
+                    spread_by: model.spread_by,
+                    ..self.answers.check()?
+                },
             },
             json,
             table,

@@ -114,11 +114,31 @@ fn caption(report: &FitReport, j: usize) -> Vec<String> {
             .map(|g| g.held.clone())
             .unwrap_or_default()
     };
-    if numeric {
+    let bars = report.spread.as_ref().map(|s| {
+        format!(
+            "pale bar through a study: the {lv} band for a new study's true effect with that \
+             study's characteristics, from its own τ², which depends on {} (location-scale model).",
+            s.spread_by.join(", ")
+        )
+    });
+    if let Some(bars) = &bars {
+        let level = if numeric {
+            format!("solid line: fitted mean effect; shaded: its {lv} confidence band")
+        } else {
+            format!(
+                "◆ the model's predicted mean effect for the level with its {lv} CI (solid bar)"
+            )
+        };
+        caption.push(format!(
+            "○ study (area proportional to its weight); {level}; {bars}"
+        ));
+    } else if numeric {
         caption.push(format!(
             "○ study (area proportional to its weight); solid line: fitted mean effect; shaded: \
              its {lv} confidence band; dashed lines: {lv} prediction band for a new study's true effect."
         ));
+    }
+    if numeric {
         if report.model.interactions.is_empty() {
             if let Some(c) = report.coefficients.iter().find(|c| &c.term == name) {
                 let d = decimals_for(c.contrast.ci.ci_high - c.contrast.ci.ci_low).max(2);
@@ -140,7 +160,7 @@ fn caption(report: &FitReport, j: usize) -> Vec<String> {
                 ));
             }
         }
-    } else {
+    } else if bars.is_none() {
         caption.push(format!(
             "○ study (area proportional to its weight); ◆ the model's predicted mean effect for \
              the level with its {lv} CI (solid bar); dashed bar: {lv} prediction interval."
@@ -152,7 +172,7 @@ fn caption(report: &FitReport, j: usize) -> Vec<String> {
     if numeric {
         caption.extend(super::regions::caption(report, name, &lv));
     }
-    if report.tau2.estimate == 0.0 {
+    if report.tau2.estimate == 0.0 && bars.is_none() {
         caption.push(
             "τ² is estimated as 0, so the prediction band coincides with the confidence band."
                 .into(),
@@ -175,7 +195,12 @@ fn y_axis(report: &FitReport, j: usize) -> Axis {
     let curve = report.curves.iter().find(|c| &c.moderator == name);
     let mut ys: Vec<f64> = studies.iter().map(|s| tp(s.effect)).collect();
     ys.push(0.0);
-    if numeric {
+    if let Some(s) = &report.spread {
+        // Under the location-scale model the bands are each study's own.
+        for b in &s.studies {
+            ys.extend([tp(b.pi_low), tp(b.pi_high)]);
+        }
+    } else if numeric {
         if let Some(c) = curve {
             for p in &c.points {
                 ys.extend([tp(p.pi.pi_low), tp(p.pi.pi_high)]);
@@ -261,6 +286,24 @@ impl<'a> Bubbles<'a> {
         (self.r_max * (w / self.w_max).sqrt()).max(2.0)
     }
 
+    /// The pale vertical bar of study `i`'s band at pixel column `x`
+    /// (`--spread-by`; nothing otherwise), with end ticks.
+    fn band_bar(&self, sc: &mut Scene, i: usize, x: f64) {
+        let Some(b) = self.report.spread.as_ref().and_then(|s| s.studies.get(i)) else {
+            return;
+        };
+        let (lo, hi) = (self.row(b.pi_low), self.row(b.pi_high));
+        let w = 3.0;
+        sc.poly(
+            vec![(x - w, lo), (x + w, lo), (x + w, hi), (x - w, hi)],
+            Some((PREDICT, 0.3)),
+            None,
+        );
+        for y in [lo, hi] {
+            sc.line(vec![(x - w - 2.0, y), (x + w + 2.0, y)], PREDICT, 1);
+        }
+    }
+
     /// A numeric moderator: the region of significance, the confidence
     /// band, the prediction band, the bubbles and the fitted line.
     fn along_numbers(&self, sc: &mut Scene) {
@@ -283,7 +326,8 @@ impl<'a> Bubbles<'a> {
                     .map(|p| (f.x(p.x), self.row(p.ci.ci_low))),
             );
             sc.poly(band, Some((FIT, 0.2)), None);
-            let has_pi = c.points.iter().all(|p| !p.pi.pi_low.is_nan());
+            // One τ² for all: not drawn when the spread depends on characteristics.
+            let has_pi = report.spread.is_none() && c.points.iter().all(|p| !p.pi.pi_low.is_nan());
             for pick in [|p: &CurvePoint| p.pi.pi_low, |p: &CurvePoint| p.pi.pi_high] {
                 if !has_pi {
                     break;
@@ -301,6 +345,7 @@ impl<'a> Bubbles<'a> {
             let AtValue::Number(x) = s.moderators[j] else {
                 continue;
             };
+            self.band_bar(sc, i, f.x(x));
             sc.circle(
                 (f.x(x), self.row(s.effect)),
                 self.radius(s.weight),
@@ -338,6 +383,7 @@ impl<'a> Bubbles<'a> {
                 let s = &studies[i];
                 // Deterministic spread: golden-ratio offsets in the left part of the band.
                 let off = ((n as f64 * 0.618_034).fract() - 0.5) * 0.34 * band_w;
+                self.band_bar(sc, i, cx - 0.12 * band_w + off);
                 sc.circle(
                     (cx - 0.12 * band_w + off, self.row(s.effect)),
                     self.radius(s.weight),
@@ -356,7 +402,7 @@ impl<'a> Bubbles<'a> {
             if let Some(lvl) = group.and_then(|g| g.levels.iter().find(|x| &x.level == level)) {
                 let p = &lvl.predicted;
                 let x = cx + 0.24 * band_w;
-                if !p.mean.pi.pi_low.is_nan() {
+                if !p.mean.pi.pi_low.is_nan() && report.spread.is_none() {
                     let (pl, ph) = (self.row(p.mean.pi.pi_low), self.row(p.mean.pi.pi_high));
                     sc.dashed(vec![(x + 10.0, pl), (x + 10.0, ph)], PREDICT, 2, (6.0, 4.0));
                     sc.line(vec![(x + 5.0, pl), (x + 15.0, pl)], PREDICT, 2);

@@ -38,7 +38,7 @@ pub(super) fn data(page: &mut Page, cx: &FitCtx) {
             .collect();
         page.table(
             "Rows left out of the model, with the reason",
-            &["study", "line", "reason"],
+            &["study", report.input.row_heading(), "reason"],
             &rows,
         );
     }

@@ -6,14 +6,14 @@ use super::page::{Page, Provenance};
 use super::section::{always, body, contents, FitCtx, Section};
 use super::{
     answers, data, dependence, diagnostics, estimates, figures, interpretation, moderators,
-    question, reproduce, sensitivity, studies,
+    question, reproduce, sensitivity, spread, studies,
 };
 use crate::render::figure::PageFigure;
 use crate::result::FitReport;
 
 /// The sections after the contents, in order; the contents list the
 /// present ones.
-fn sections<'a>() -> [Section<FitCtx<'a>>; 12] {
+fn sections<'a>() -> [Section<FitCtx<'a>>; 13] {
     [
         Section {
             id: "data",
@@ -40,6 +40,12 @@ fn sections<'a>() -> [Section<FitCtx<'a>>; 12] {
             title: "Moderators",
             present: always,
             render: moderators::moderators,
+        },
+        Section {
+            id: "spread",
+            title: "Spread of the true effects",
+            present: spread::has_spread,
+            render: spread::spread,
         },
         Section {
             id: "dependence",

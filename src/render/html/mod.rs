@@ -30,6 +30,7 @@ mod reproduce;
 mod section;
 mod sensitivity;
 mod sites;
+mod spread;
 mod studies;
 
 pub use fit::fit_page;

@@ -9,7 +9,7 @@ pub(super) fn studies(page: &mut Page, cx: &FitCtx) {
     let (report, lv, mods) = (cx.report, &cx.lv, &cx.mods);
     let mut head: Vec<String> = [
         "study",
-        "line",
+        report.input.row_heading(),
         "effect",
         "variance",
         &format!("{lv} CI"),

@@ -152,6 +152,7 @@ impl Forest<'_> {
                 Align::Right,
             );
         }
+        self.band_bar(sc, i, y);
         self.study_marks(sc, s, y);
         self.shrunken_marks(sc, s, y);
         sc.text(

@@ -390,6 +390,7 @@ impl<'a> Forest<'a> {
         if self.show_fitted {
             caption.push("△ fitted value of the meta-regression for that study.".into());
         }
+        caption.extend(super::band::caption(report, lv));
         if report.studies.iter().any(|s| s.shrunken.is_some()) {
             caption.push(super::shrunken::caption(lv));
         }

@@ -11,6 +11,7 @@
 //! the caption and the row height (`layout::Forest::new`), then draw the
 //! header, the backdrop, each row, the axis and the caption (`draw`).
 
+mod band;
 mod draw;
 mod layout;
 mod shrunken;
