@@ -547,12 +547,12 @@ fn read_moderator_values(
             .filter(|(_, c)| !c.is_empty())
             .collect()
     };
-    let (mark, note) = values_decimal(&name, &cells, decimal)?;
     let unit = if pondus::input::sheet::is_spreadsheet(&name) {
         "cell of the first column"
     } else {
         "line"
     };
+    let (mark, note) = values_decimal(&name, &cells, decimal)?;
     let mut values = Vec::new();
     for (i, (place, cell)) in cells.iter().enumerate() {
         match pondus::input::number::normalise(cell, mark).parse::<f64>() {

@@ -273,11 +273,14 @@ mod tests {
             columns: Vec::new(),
             lines: vec![4, 5],
             blank_rows: 0,
+            decimal: crate::input::DecimalChoice {
+                mark: crate::input::number::DecimalMark::Point,
+                how: crate::input::DecimalHow::Default,
+            },
             sheet: Some(crate::input::SheetOrigin {
                 name: "shifted".into(),
                 first_column: 1,
             }),
-            decimal: crate::input::DecimalChoice::POINT,
         };
         let places = table.places();
         assert_eq!(

@@ -591,11 +591,14 @@ mod tests {
             columns: Vec::new(),
             lines: lines.to_vec(),
             blank_rows: 0,
+            decimal: crate::input::DecimalChoice {
+                mark: crate::input::number::DecimalMark::Point,
+                how: crate::input::DecimalHow::Default,
+            },
             sheet: Some(crate::input::SheetOrigin {
                 name: "bad dose".into(),
                 first_column: 0,
             }),
-            decimal: crate::input::DecimalChoice::POINT,
         }
         .places();
         let e = classify(

@@ -169,20 +169,45 @@ pub fn clip(s: &str, w: usize) -> String {
     format!("{}…{}", start.trim_end(), end.trim_start())
 }
 
+/// Whether a word is a lone relation or operator sign (`<`, `=`, `+`, …),
+/// which stays on the line of the words on both sides of it when text is
+/// wrapped ("p < 0.0001" is never split after "<").
+fn is_operator(word: &str) -> bool {
+    matches!(
+        word,
+        "<" | ">" | "=" | "≤" | "≥" | "≈" | "+" | "-" | "−" | "×" | "·" | "/" | "±"
+    )
+}
+
 /// `text` wrapped at word boundaries into lines of at most `width`
-/// characters, each line starting with `indent` and ending in a newline.
+/// characters (a longer unbreakable run gets a line of its own), each line
+/// starting with `indent` and ending in a newline. A lone operator sign is
+/// kept together with the words on both sides of it.
 pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
+    let mut units: Vec<String> = Vec::new();
+    let mut glue = false;
+    for word in text.split_whitespace() {
+        let op = is_operator(word);
+        match units.last_mut() {
+            Some(last) if glue || op => {
+                last.push(' ');
+                last.push_str(word);
+            }
+            _ => units.push(word.to_string()),
+        }
+        glue = op;
+    }
     let mut out = String::new();
     let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+    for unit in &units {
+        if !line.is_empty() && line.chars().count() + 1 + unit.chars().count() > width {
             let _ = writeln!(out, "{indent}{line}");
             line.clear();
         }
         if !line.is_empty() {
             line.push(' ');
         }
-        line.push_str(word);
+        line.push_str(unit);
     }
     if !line.is_empty() {
         let _ = writeln!(out, "{indent}{line}");
@@ -231,5 +256,8 @@ mod tests {
     fn wrapping_keeps_words_whole_and_indents_every_line() {
         assert_eq!(wrap("one two three", "  ", 7), "  one two\n  three\n");
         assert_eq!(wrap("", "  ", 7), "");
+        // A relation sign stays with both of its sides.
+        assert_eq!(wrap("so p < 0.0001 here", "", 8), "so\np < 0.0001\nhere\n");
+        assert_eq!(wrap("1/(v + τ²) ok", "", 6), "1/(v + τ²)\nok\n");
     }
 }

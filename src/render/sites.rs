@@ -86,7 +86,6 @@ pub fn render_at(r: &SitesReport, width: usize) -> String {
     trim_lines(&o)
 }
 
-/// What was read and how each site's slope was estimated.
 /// "; N blank rows skipped" when the reader skipped wholly blank rows.
 fn blank_rows_text(n: u64) -> String {
     match n {
@@ -96,6 +95,7 @@ fn blank_rows_text(n: u64) -> String {
     }
 }
 
+/// What was read and how each site's slope was estimated.
 fn run_lines(o: &mut String, r: &SitesReport, width: usize) {
     let m = &r.model;
     title(o, "per-site regressions", width);

@@ -2,7 +2,7 @@
 //! does the spread differ with each characteristic, and by how much on the
 //! τ scale; shared by the terminal report and the HTML page.
 
-use super::layout::{lpad, pad, width, wrap, Ctx};
+use super::layout::{lpad, pad, width, Ctx};
 use crate::result::{FitReport, Spread, SpreadCoefficient, Tau2At};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
@@ -138,7 +138,7 @@ pub fn section(r: &FitReport, cx: &Ctx, o: &mut String) {
         s.spread_by.join(", ")
     );
     for line in answer_lines(r, s) {
-        o.push_str(&wrap(&line, "  ", cx.width - 2));
+        o.push_str(&cx.para(&line));
     }
     let _ = writeln!(o);
     let _ = writeln!(
@@ -180,7 +180,7 @@ pub fn section(r: &FitReport, cx: &Ctx, o: &mut String) {
         num(s.log_likelihood),
         num(s.log_likelihood_one_tau2)
     );
-    o.push_str(&wrap(&spread_note(), "  ", cx.width - 2));
-    o.push_str(&wrap(SPREAD_CAUTION, "  ", cx.width - 2));
+    o.push_str(&cx.para(&spread_note()));
+    o.push_str(&cx.para(SPREAD_CAUTION));
     let _ = writeln!(o);
 }

@@ -1,6 +1,6 @@
 //! Joining the site-characteristics table to the per-site effects by site id.
 
-use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::error::{CellProblems, Error, Result};
 use crate::input::{self, ColumnRequest};
 use crate::render::sites_effects::COLUMNS;
 use crate::result::{SiteJoin, SitesReport};
@@ -77,8 +77,9 @@ fn headers_of(
 ///
 /// # Errors
 /// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
-/// missing or repeated id (with both lines); [`Error::Format`] when a
-/// characteristic would shadow an effects column.
+/// missing or repeated id (with both lines, or both cells of a
+/// spreadsheet); [`Error::Format`] when a characteristic would shadow an
+/// effects column.
 pub fn join(
     report: &mut SitesReport,
     source: &str,
@@ -112,29 +113,23 @@ pub fn join(
     for i in 0..table.len() {
         let id = ids.get(i);
         if id.is_empty() {
-            problems.push(CellProblem {
-                line: table.lines[i],
-                column: key_header.clone(),
-                value: String::new(),
-                message: "the site id is missing; give every row of the site table its id".into(),
-                cell: table.cell_address(i, ids),
-            });
+            let why = "the site id is missing; give every row of the site table its id";
+            problems.push(table.problem(i, ids, why));
             continue;
         }
         if let Some(&first) = rows.get(id) {
-            problems.push(CellProblem {
-                line: table.lines[i],
-                column: key_header.clone(),
-                value: id.to_string(),
-                message: format!(
-                    "site '{id}' already has a row on {}; give each site one row (merge or delete the repeated one)",
-                    match table.cell_address(first, ids) {
-                        Some(cell) => format!("cell {cell}"),
-                        None => format!("line {}", table.lines[first]),
-                    }
+            let before = match table.cell_address(first, ids) {
+                Some(cell) => format!("at cell {cell}"),
+                None => format!("on line {}", table.lines[first]),
+            };
+            problems.push(table.problem(
+                i,
+                ids,
+                format!(
+                    "site '{id}' already has a row {before}; give each site one row (merge or \
+                     delete the repeated one)"
                 ),
-                cell: table.cell_address(i, ids),
-            });
+            ));
             continue;
         }
         rows.insert(id, i);

@@ -23,10 +23,10 @@ pub struct MomentsTable {
     pub delimiter: u8,
     /// Data rows.
     pub rows: u64,
-    /// The decimal mark the numbers were read with, and why.
-    pub decimal: crate::input::DecimalChoice,
     /// Wholly blank rows skipped.
     pub blank_rows: u64,
+    /// The decimal mark the numbers were read with, and why.
+    pub decimal: crate::input::DecimalChoice,
 }
 
 /// The layout a moments table's header describes: the covariates
@@ -203,8 +203,8 @@ pub fn read_moments(
         layout,
         delimiter: table.delimiter,
         rows: table.len() as u64,
-        decimal: table.decimal.clone(),
         blank_rows: table.blank_rows as u64,
+        decimal: table.decimal.clone(),
     })
 }
 

@@ -422,10 +422,11 @@ fn bad_answers_are_refused_with_exit_2() {
     assert!(e.contains("too few"), "{e}");
 }
 
-/// The location-scale model of the library (`model::location_scale::fit`;
-/// no flag yet) against scipy maximising the likelihood directly: α to
-/// 1e-4, α's SEs to 1e-2 (numerical Hessians on both sides), β and its SEs,
-/// the log-likelihood and the LR test against one τ².
+/// The location-scale model of the library (`model::location_scale::fit`,
+/// which `--spread-by` runs; `spread.rs` checks the binary) against scipy
+/// maximising the likelihood directly: α to 1e-4, α's SEs to 1e-2
+/// (numerical Hessians on both sides), β and its SEs, the log-likelihood
+/// and the LR test against one τ².
 #[test]
 fn location_scale_model_matches_scipy() {
     use pondus::model::location_scale;

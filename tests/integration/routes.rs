@@ -415,6 +415,24 @@ fn sites_info_reads_a_spreadsheet() {
         };
         assert_eq!(strip(&sheet), strip(&csv), "{ext}");
         assert!(sheet.to_string().contains("conductor_years"));
+        // A repeated site id is named by both cells.
+        let dir = tempfile::tempdir().unwrap();
+        let out = pondus()
+            .args(base)
+            .arg(repo("data-examples/choir-participants.csv"))
+            .arg("--info")
+            .arg(repo(&format!("tests/data/routes/choir-sites.{ext}")))
+            .args(["--sheet", "repeated", "--json"])
+            .arg(dir.path().join("s.json"))
+            .assert()
+            .code(2);
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(
+            err.contains("cell repeated!A4, column 'choir'")
+                && err.contains("already has a row at cell repeated!A3"),
+            "{ext}: {err}"
+        );
+        assert!(!dir.path().join("s.json").exists());
     }
 }
 

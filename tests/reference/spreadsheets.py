@@ -31,7 +31,8 @@ Workbooks (all data invented):
   (letter O, D12) for the moderator message.
 - data-examples/classroom-extraction.{xlsx,ods}: sheet "extraction" (the
   tutorial's invented extraction sheet), after a first sheet "read me".
-- tests/data/routes/choir-sites.{xlsx,ods}: sheet "sites" = data-examples/choir-sites.csv.
+- tests/data/routes/choir-sites.{xlsx,ods}: sheet "sites" = data-examples/choir-sites.csv;
+  sheet "repeated", the same with the id of A3 repeated in A4.
 - tests/data/routes/planned-values.{xlsx,ods}: sheet "values", a header and
   eight planned moderator values in column A; sheet "typo", the same with A5
   typed "4O".
@@ -184,7 +185,10 @@ def main():
         ("read me", readme, set()),
         ("extraction", read_csv("data-examples/classroom-extraction.csv"), set()),
     ])
-    both("tests/data/routes/choir-sites", [("sites", read_csv("data-examples/choir-sites.csv"), set())])
+    sites = read_csv("data-examples/choir-sites.csv")
+    repeated = [list(r) for r in sites]
+    repeated[3][0] = repeated[2][0]  # A4 repeats the id of A3
+    both("tests/data/routes/choir-sites", [("sites", sites, set()), ("repeated", repeated, set())])
     values = [["planned_minutes"]] + [[str(v)] for v in (10, 20, 30, 40, 50, 60, 15, 45)]
     typo = [list(r) for r in values]
     typo[4][0] = "4O"  # A5: 40 typed with a letter O
