@@ -231,6 +231,8 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         .max(width(&format!("{level_pct} CI")));
     let ratio_name = r.measure.reading_name.as_deref().unwrap_or("ratio");
     let has_ratio = r.coefficients.iter().any(|c| c.ratio.is_some());
+    // The p column is as wide as "< 0.0001" and two blanks before the ratio.
+    let pw = if has_ratio { 10 } else { 8 };
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}  {}{}",
@@ -239,7 +241,7 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         lpad("SE", 9),
         pad(&format!("{level_pct} CI"), cw),
         lpad(stat, 7),
-        pad("p", 8),
+        pad("p", pw),
         if has_ratio { "exp(estimate) [CI]" } else { "" }
     );
     let est_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.estimate));
@@ -256,7 +258,7 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
                 cw
             ),
             lpad(&format!("{:.2}", c.contrast.test.statistic), 7),
-            pad(fmt::p(c.contrast.test.p).trim_start_matches("= "), 8),
+            pad(fmt::p(c.contrast.test.p).trim_start_matches("= "), pw),
             c.ratio
                 .as_ref()
                 .map(|x| format!(
