@@ -347,6 +347,7 @@ fn coefficient(
         robust_se: None,
         robust_df: None,
         robust_p: None,
+        robust_ci: None,
     }
 }
 

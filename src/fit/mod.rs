@@ -81,7 +81,13 @@ pub fn run_with_progress(
     )?;
     let clusters = clusters::additions(&settings.dependence, source, &design, &model, &studies)?;
     let robust = clusters.as_ref().and_then(|c| c.robust.as_ref());
-    let summary = summarise::summarise(&design, &model.fit, null_fit, robust, studies.scale);
+    let summary = summarise::summarise(
+        &design,
+        &model.fit,
+        null_fit,
+        (robust, settings.options.level),
+        studies.scale,
+    );
     let interpretation = interpret::interpret(
         &design,
         &model.fit,

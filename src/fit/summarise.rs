@@ -30,12 +30,13 @@ pub struct Summary {
 }
 
 /// Summarises the fit; `null` is the intercept-only fit (None when the
-/// model has no moderators), `robust` the cluster-robust inference.
+/// model has no moderators), `robust` the cluster-robust inference with the
+/// confidence level of its intervals.
 pub fn summarise(
     design: &Design,
     fit: &ModelFit,
     null: Option<ModelFit>,
-    robust: Option<&Robust>,
+    (robust, level): (Option<&Robust>, f64),
     scale: ReadingScale,
 ) -> Summary {
     let robust_coefs = robust.map(|r| r.coefficients.as_slice());
@@ -44,7 +45,7 @@ pub fn summarise(
         .enumerate()
         .map(|(j, c)| {
             let r = robust_coefs.and_then(|rc| rc.get(j));
-            coefficient(&design.terms[j].name, c, r, scale)
+            coefficient(&design.terms[j].name, c, r.map(|r| (r, level)), scale)
         })
         .collect();
     let names: Vec<&str> = design.moderators.iter().map(|m| m.name.as_str()).collect();
@@ -123,13 +124,25 @@ fn floored_check(
     })
 }
 
-/// One row of the coefficient table.
+/// One row of the coefficient table; `robust` the coefficient's
+/// cluster-robust inference and the confidence level.
+///
+/// # Formula
+/// The robust interval is β̂ ± t_{df, 1−(1−level)/2} · SE_CR2, with df the
+/// Satterthwaite degrees of freedom of the CR2 t test (the interval that
+/// inverts that test; Tipton 2015, Psychol. Methods 20:375; Pustejovsky &
+/// Tipton 2018, J. Bus. Econ. Stat. 36:672).
 fn coefficient(
     term: &str,
     c: &CoefInference,
-    robust: Option<&RobustCoef>,
+    robust: Option<(&RobustCoef, f64)>,
     scale: ReadingScale,
 ) -> Coefficient {
+    let robust_ci = robust.map(|(r, level)| {
+        let half = crate::dist::t_quantile(0.5 + level / 2.0, r.df) * r.se;
+        Interval::new(c.estimate - half, c.estimate + half)
+    });
+    let robust = robust.map(|(r, _)| r);
     Coefficient {
         term: term.to_string(),
         contrast: contrast_test(c),
@@ -140,6 +153,7 @@ fn coefficient(
         robust_se: robust.map(|r| r.se),
         robust_df: robust.map(|r| r.df),
         robust_p: robust.map(|r| r.p),
+        robust_ci,
     }
 }
 

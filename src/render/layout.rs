@@ -215,6 +215,34 @@ pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
     out
 }
 
+/// What the coefficient table shows for one coefficient: the cluster-robust
+/// SE, interval, t and p under `--robust`, the model's otherwise.
+pub(crate) struct Shown {
+    pub(crate) se: f64,
+    pub(crate) ci: crate::result::Interval,
+    pub(crate) statistic: f64,
+    pub(crate) p: f64,
+}
+
+impl Shown {
+    pub(crate) fn of(c: &crate::result::Coefficient) -> Shown {
+        match (c.robust_se, c.robust_ci, c.robust_p) {
+            (Some(se), Some(ci), Some(p)) => Shown {
+                se,
+                ci,
+                statistic: c.contrast.estimate / se,
+                p,
+            },
+            _ => Shown {
+                se: c.contrast.se,
+                ci: c.contrast.ci,
+                statistic: c.contrast.test.statistic,
+                p: c.contrast.test.p,
+            },
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

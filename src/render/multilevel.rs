@@ -84,21 +84,27 @@ pub fn dependent_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
         o.push_str(&wrap(text, "  ", cx.width - 2));
         let _ = writeln!(
             o,
-            "  {}  {}  {}  {}  p",
+            "  {}  {}  {}  {}  {}  {}  p",
             pad("term", 22),
             lpad("estimate", 10),
+            lpad("model SE", 9),
             lpad("robust SE", 10),
             lpad("df", 6),
+            pad(&format!("{} CI", cx.level_pct), 20),
         );
         for k in &r.coefficients {
-            if let (Some(se), Some(df), Some(p)) = (k.robust_se, k.robust_df, k.robust_p) {
+            if let (Some(se), Some(df), Some(p), Some(ci)) =
+                (k.robust_se, k.robust_df, k.robust_p, k.robust_ci)
+            {
                 let _ = writeln!(
                     o,
-                    "  {}  {}  {}  {}  {}",
+                    "  {}  {}  {}  {}  {}  {}  {}",
                     pad(&k.term, 22),
                     lpad(&num(k.contrast.estimate), 10),
+                    lpad(&num(k.contrast.se), 9),
                     lpad(&num(se), 10),
                     lpad(&format!("{df:.1}"), 6),
+                    pad(&fmt::interval(ci.ci_low, ci.ci_high), 20),
                     fmt::p(p).trim_start_matches("= ")
                 );
             }

@@ -3,8 +3,8 @@
 //! terminal reports is described in [`super::layout`].
 
 use super::layout::{
-    bullets, clip, fact, lpad, pad, title, trim_lines, width, Ctx, Section, MAX_LISTED_STUDIES,
-    TEXT_WIDTH,
+    bullets, clip, fact, lpad, pad, title, trim_lines, width, Ctx, Section, Shown,
+    MAX_LISTED_STUDIES, TEXT_WIDTH,
 };
 use super::{answers, diagnostics, interpret, multilevel, sensitivity, spread};
 use crate::effect::Measure;
@@ -208,8 +208,11 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         Some(_) => " (log scale)",
         None => "",
     };
+    let robust = r.coefficients.iter().any(|c| c.robust_se.is_some());
     let from = if r.spread.is_some() {
         " — location-scale model, Wald z"
+    } else if robust {
+        " — cluster-robust (CR2)"
     } else {
         ""
     };
@@ -222,10 +225,10 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         .unwrap_or(4)
         .clamp(9, 28);
     let stat = if r.model.inference.uses_t() { "t" } else { "z" };
-    let cw = r
-        .coefficients
+    let rows: Vec<Shown> = r.coefficients.iter().map(Shown::of).collect();
+    let cw = rows
         .iter()
-        .map(|c| width(&fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high)))
+        .map(|s| width(&fmt::interval(s.ci.ci_low, s.ci.ci_high)))
         .max()
         .unwrap_or(10)
         .max(width(&format!("{level_pct} CI")));
@@ -245,31 +248,34 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         if has_ratio { "exp(estimate) [CI]" } else { "" }
     );
     let est_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.estimate));
-    let se_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.se));
-    for c in &r.coefficients {
+    let se_d = fmt::column_decimals(rows.iter().map(|s| s.se));
+    for (c, s) in r.coefficients.iter().zip(&rows) {
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
             lpad(&fmt::fixed(c.contrast.estimate, est_d), 10),
-            lpad(&fmt::fixed(c.contrast.se, se_d), 9),
-            pad(
-                &fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
-                cw
-            ),
-            lpad(&format!("{:.2}", c.contrast.test.statistic), 7),
-            pad(fmt::p(c.contrast.test.p).trim_start_matches("= "), pw),
+            lpad(&fmt::fixed(s.se, se_d), 9),
+            pad(&fmt::interval(s.ci.ci_low, s.ci.ci_high), cw),
+            lpad(&format!("{:.2}", s.statistic), 7),
+            pad(fmt::p(s.p).trim_start_matches("= "), pw),
             c.ratio
                 .as_ref()
                 .map(|x| format!(
                     "{} {}",
                     num(x.estimate),
-                    fmt::interval(x.ci.ci_low, x.ci.ci_high)
+                    fmt::interval(s.ci.ci_low.exp(), s.ci.ci_high.exp())
                 ))
                 .unwrap_or_default()
         );
     }
-    if let Some(c) = r.coefficients.first() {
+    if robust {
+        o.push_str(&cx.para(
+            "(cluster-robust CR2 standard errors; each term's t test and interval on its own \
+             Satterthwaite degrees of freedom, shown with the model-based standard errors under \
+             Cluster-robust inference)",
+        ));
+    } else if let Some(c) = r.coefficients.first() {
         if let Some(df) = c.contrast.test.df {
             let _ = writeln!(o, "  (t tests on {df} degrees of freedom)");
         }

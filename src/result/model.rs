@@ -220,6 +220,10 @@ pub struct Coefficient {
     /// Two-sided p-value of the robust t test (`--robust`; omitted otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub robust_p: Option<f64>,
+    /// The interval of the robust t test: estimate ± t(robust_df) × robust_se
+    /// at the confidence level (`--robust`; omitted otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub robust_ci: Option<Interval>,
 }
 
 /// The reference distribution of the omnibus moderator test.

@@ -142,6 +142,16 @@ fn check(fixture: &str, csv: &str, cluster: &str, moderators: &[&str]) {
                             0.0,
                         );
                     }
+                    for (key, bound) in [("robust_ci_low", "ci_low"), ("robust_ci_high", "ci_high")]
+                    {
+                        close(
+                            &format!("{what} {key}{j}"),
+                            num(&c["robust_ci"][bound]),
+                            num(&rc[key]),
+                            MULTILEVEL_REF_REL,
+                            1e-12,
+                        );
+                    }
                 }
             }
             if method == "reml" {
@@ -196,6 +206,15 @@ fn check(fixture: &str, csv: &str, cluster: &str, moderators: &[&str]) {
                 num(&r["coefficients"][j][key]),
                 MULTILEVEL_REF_REL,
                 0.0,
+            );
+        }
+        for (key, bound) in [("robust_ci_low", "ci_low"), ("robust_ci_high", "ci_high")] {
+            close(
+                &format!("two-level {key}{j}"),
+                num(&c["robust_ci"][bound]),
+                num(&r["coefficients"][j][key]),
+                MULTILEVEL_REF_REL,
+                1e-12,
             );
         }
     }
@@ -439,4 +458,50 @@ fn terminal_report_of_the_invented_example_shows_the_cluster_section() {
         assert!(text.contains(part), "missing '{part}' in:\n{text}");
     }
     assert!(!text.contains("fixed by the common-effect model"), "{text}");
+}
+
+/// Issue 22: with `--robust` the main coefficient table shows one p per
+/// term, the cluster-robust one, with the robust SE and interval; the
+/// model-based SE stays visible in the cluster-robust table beside them.
+#[test]
+fn robust_main_table_shows_the_robust_inference_once() {
+    let args = [
+        "fit",
+        "data-examples/lab-conditions.csv",
+        "--cluster",
+        "lab",
+        "--moderator",
+        "lab_years",
+        "--moderator",
+        "session_minutes",
+        "--robust",
+    ];
+    let data = repo("data-examples/lab-conditions.csv");
+    let mut json_args = args[1..].to_vec();
+    json_args[0] = data.to_str().unwrap();
+    let got = pondus_json(&json_args);
+    let out = Command::cargo_bin("pondus")
+        .unwrap()
+        .current_dir(repo(""))
+        .args(args)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    let main = text
+        .split("Coefficients — cluster-robust (CR2)")
+        .nth(1)
+        .and_then(|t| t.split("\n\n").next())
+        .unwrap_or_else(|| panic!("no robust coefficient table:\n{text}"));
+    for c in got["coefficients"].as_array().unwrap() {
+        let term = c["term"].as_str().unwrap();
+        let row = main
+            .lines()
+            .find(|l| l.trim_start().starts_with(&format!("{term} ")))
+            .unwrap_or_else(|| panic!("{term} missing:\n{main}"));
+        let se = format!("{:.4}", c["robust_se"].as_f64().unwrap());
+        let p = format!("{:.4}", c["robust_p"].as_f64().unwrap());
+        let model_p = format!("{:.4}", c["p"].as_f64().unwrap());
+        assert!(row.contains(&se) && row.ends_with(&p), "{row}");
+        assert!(!row.contains(&model_p) || model_p == p, "{row}");
+    }
 }

@@ -172,8 +172,11 @@ def cr2(y, v, X, cl, sb, sw):
         Om = G @ V @ G.T
         df = np.trace(Om) ** 2 / np.sum(Om ** 2)
         se = math.sqrt(VR[j, j])
+        half = float(stats.t.ppf(0.975, df)) * se
         coefs.append({"estimate": float(beta[j]), "robust_se": se, "robust_df": float(df),
-                      "robust_p": float(2 * stats.t.sf(abs(beta[j] / se), df))})
+                      "robust_p": float(2 * stats.t.sf(abs(beta[j] / se), df)),
+                      "robust_ci_low": float(beta[j]) - half,
+                      "robust_ci_high": float(beta[j]) + half})
     test = None
     if p > 1:
         q = p - 1

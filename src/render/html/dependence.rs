@@ -107,10 +107,14 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
                     c.robust_df
                         .map(|d| format!("{d:.1}"))
                         .unwrap_or_else(|| "—".into()),
+                    c.robust_ci
+                        .map(|i| fmt::interval(i.ci_low, i.ci_high))
+                        .unwrap_or_else(|| "—".into()),
                     fmt::opt_p_cell(c.robust_p),
                 ]
             })
             .collect();
+        let robust_ci_head = format!("robust {lv} CI");
         page.table(
             "Cluster-robust (CR2) standard errors with Satterthwaite degrees of freedom",
             &[
@@ -119,6 +123,7 @@ pub(super) fn dependence(page: &mut Page, cx: &FitCtx) {
                 "model SE",
                 "robust SE",
                 "robust df",
+                robust_ci_head.as_str(),
                 "robust p",
             ],
             &rows,

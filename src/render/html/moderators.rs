@@ -74,19 +74,19 @@ fn coefficients(page: &mut Page, cx: &FitCtx) {
         .coefficients
         .iter()
         .map(|c| {
+            // Under --robust the cluster-robust SE, interval, t and p.
+            let s = crate::render::layout::Shown::of(c);
             let mut r = vec![
                 c.term.clone(),
                 num(c.contrast.estimate),
-                num(c.contrast.se),
-                fmt::interval(c.contrast.ci.ci_low, c.contrast.ci.ci_high),
-                format!("{:.2}", c.contrast.test.statistic),
-                fmt::p(c.contrast.test.p)
-                    .trim_start_matches("= ")
-                    .to_string(),
+                num(s.se),
+                fmt::interval(s.ci.ci_low, s.ci.ci_high),
+                format!("{:.2}", s.statistic),
+                fmt::p(s.p).trim_start_matches("= ").to_string(),
             ];
             if let Some(q) = &c.ratio {
                 r.push(num(q.estimate));
-                r.push(fmt::interval(q.ci.ci_low, q.ci.ci_high));
+                r.push(fmt::interval(s.ci.ci_low.exp(), s.ci.ci_high.exp()));
             } else if ratio {
                 r.push("—".into());
                 r.push("—".into());
@@ -94,12 +94,19 @@ fn coefficients(page: &mut Page, cx: &FitCtx) {
             r
         })
         .collect();
-    let df_note = report
-        .coefficients
-        .first()
-        .and_then(|c| c.contrast.test.df)
-        .map(|d| format!(" (t tests on {} degrees of freedom)", fmt::df(d)))
-        .unwrap_or_default();
+    let robust = report.coefficients.iter().any(|c| c.robust_se.is_some());
+    let df_note = if robust {
+        " — cluster-robust (CR2) standard errors, each term's t test and interval on its own \
+         Satterthwaite degrees of freedom (model-based standard errors under Dependent effects)"
+            .to_string()
+    } else {
+        report
+            .coefficients
+            .first()
+            .and_then(|c| c.contrast.test.df)
+            .map(|d| format!(" (t tests on {} degrees of freedom)", fmt::df(d)))
+            .unwrap_or_default()
+    };
     page.table(
         &format!("Coefficients on the analysis scale{df_note}"),
         &head,
