@@ -74,7 +74,7 @@ impl DecimalChoice {
 /// no cell has a decimal point.
 ///
 /// # Errors
-/// [`Error::Format`] naming the file, the cells and `--decimal` when the
+/// [`Error::Format`](crate::error::Error::Format) naming the file, the cells and `--decimal` when the
 /// file has both decimal commas and decimal points, or only commas that
 /// may separate thousands (`1,234`).
 pub fn choose_decimal(
