@@ -73,9 +73,13 @@ pub fn assert_finite(r: &FitReport) {
         r.average.mean.se,
         r.average.mean.ci.ci_low,
         r.average.mean.ci.ci_high,
-        r.average.mean.pi.pi_low,
-        r.average.mean.pi.pi_high,
     ];
+    // A prediction interval is absent (NaN, null in JSON) by design when
+    // k − p − 1 < 1; otherwise both ends are finite.
+    let pi = &r.average.mean.pi;
+    if !(pi.pi_low.is_nan() && pi.pi_high.is_nan()) {
+        xs.extend([pi.pi_low, pi.pi_high]);
+    }
     xs.extend(r.tau2.ci.ci_low);
     xs.extend(r.tau2.ci.ci_high);
     for c in &r.coefficients {

@@ -31,11 +31,19 @@ fn estimate_lines(out: &mut String, e: &Estimate, level_pct: &str, reading_name:
         fmt::interval(e.mean.ci.ci_low, e.mean.ci.ci_high),
         num(e.mean.se)
     );
-    let _ = writeln!(
-        out,
-        "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
-        fmt::pi_interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
-    );
+    if e.mean.pi.pi_low.is_nan() && e.mean.pi.pi_high.is_nan() {
+        let _ = writeln!(
+            out,
+            "  no prediction interval for a new study: too few studies for its t distribution \
+             (k − p − 1 < 1)"
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "  a new study's true effect is expected in {} ({level_pct} prediction interval)",
+            fmt::pi_interval(e.mean.pi.pi_low, e.mean.pi.pi_high)
+        );
+    }
     if let (Some(r), Some(name)) = (&e.reading, reading_name) {
         let _ = writeln!(out, "  {}", reading_line(r, name));
     }

@@ -775,3 +775,18 @@ fn plan_with_a_huge_max_k_answers_without_simulating_beyond_its_budget() {
     let j = json("", &small);
     assert_eq!(j["simulation"]["simulations"], 100, "{j}");
 }
+
+#[test]
+fn two_studies_say_there_is_no_prediction_interval_instead_of_none() {
+    // Found by the fit_dependent fuzz target (kept in fuzz/regressions): with
+    // k − p − 1 < 1 the interval is absent by design, and the report said
+    // "a new study's true effect is expected in none".
+    let csv = "study,effect,variance\na,0.1,0.01\nb,0.3,0.02\n";
+    let (code, out, err) = run(csv, &["fit", "input.csv", "--measure", "effect"]);
+    assert_eq!(code, Some(0), "{err}");
+    assert!(
+        out.contains("no prediction interval for a new study"),
+        "{out}"
+    );
+    assert!(!out.contains("expected in none"), "{out}");
+}

@@ -57,12 +57,20 @@ pub(super) fn start(cx: &FitCtx) -> Page {
         Some(t) => t.answer.clone(),
         None => {
             let a = &report.average;
+            let new_study = if a.mean.pi.pi_low.is_nan() && a.mean.pi.pi_high.is_nan() {
+                "there are too few studies for a prediction interval for a new study \
+                 (k − p − 1 < 1)"
+                    .to_string()
+            } else {
+                format!(
+                    "a new study's true effect is expected in {} ({lv} prediction interval)",
+                    fmt::pi_interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
+                )
+            };
             format!(
-                "The average effect is {} ({lv} CI {}); a new study's true effect is expected in {} \
-                 ({lv} prediction interval).",
+                "The average effect is {} ({lv} CI {}); {new_study}.",
                 num(a.mean.estimate),
                 fmt::interval(a.mean.ci.ci_low, a.mean.ci.ci_high),
-                fmt::pi_interval(a.mean.pi.pi_low, a.mean.pi.pi_high)
             )
         }
     };
