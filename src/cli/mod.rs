@@ -43,19 +43,19 @@ pub struct Cli {
 #[allow(clippy::large_enum_variant)]
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Pool per-study effects and test whether study characteristics (moderators) change them.
+    /// Pool study effects and test whether study characteristics (moderators) change them.
     Fit(fit::FitArgs),
-    /// Plan a study: the power of a moderator test before the data exist, and the sites needed.
+    /// Plan: the power of a moderator test before the data exist, and the sites needed.
     Plan(plan::PlanArgs),
-    /// Per-site regressions from participant rows of many sites, streamed; the effects file for `fit`.
+    /// Per-site regressions from participant rows, streamed: the effects file for `fit`.
     Sites(sites::SitesArgs),
-    /// Print a SQL query that computes the per-site moments inside a database (for `sites --moments`).
+    /// Print SQL computing the per-site moments in a database (for `sites --moments`).
     Sql(sql::SqlArgs),
-    /// List the columns each effect measure reads, route by route, with the sources of the formulas.
+    /// List the columns each measure reads, route by route, with the sources of the formulas.
     Columns(columns::ColumnsArgs),
     /// Print a completion script for a shell (bash, zsh, fish, powershell, elvish).
     Completions(completions::CompletionsArgs),
-    /// Print the manual page (roff) of pondus or of one subcommand, or write every page with --out-dir.
+    /// Print the roff manual of pondus or a subcommand; --out-dir writes them all.
     Manual(manual::ManualArgs),
 }
 

@@ -2,9 +2,11 @@
 //! the sources of their formulas, in words (from [`route::catalogue`], the
 //! table the computation itself follows).
 
+use super::layout::{width, wrap, TEXT_WIDTH};
 use crate::effect::route::{self, Derivation};
 use crate::effect::Measure;
 use crate::support::flag::Flag;
+use std::fmt::Write as _;
 
 /// The listing of one measure's routes, in the order they are tried.
 pub fn text(measure: Measure) -> String {
@@ -16,10 +18,12 @@ pub fn text(measure: Measure) -> String {
     );
     let routes = route::catalogue(measure);
     if routes.len() > 1 {
-        out.push_str(
+        out.push_str(&wrap(
             "Each row uses the first route whose columns are all filled in; the other complete \
-             routes are computed too, as a check.\n",
-        );
+             routes are computed too, as a check.",
+            "",
+            TEXT_WIDTH,
+        ));
     }
     for (i, info) in routes.iter().enumerate() {
         let when = match (info.needs_convert, info.route.derivation()) {
@@ -27,19 +31,27 @@ pub fn text(measure: Measure) -> String {
             (false, Derivation::Approximated) => " (approximated)".to_string(),
             _ => String::new(),
         };
-        out.push_str(&format!(
-            "\n{}. {}{when}\n   columns: {}\n   computes: {}\n   source: {}\n",
-            i + 1,
-            info.route,
-            info.columns.join(", "),
-            info.formula,
-            info.source
-        ));
+        let _ = writeln!(out, "\n{}. {}{when}", i + 1, info.route);
+        for (what, text) in [
+            ("columns:", info.columns.join(", ")),
+            ("computes:", info.formula.to_string()),
+            ("source:", info.source.to_string()),
+        ] {
+            // Each item's further lines hang under its text.
+            let hang = " ".repeat(4 + width(what));
+            let body = wrap(&text, &hang, TEXT_WIDTH - hang.len());
+            let _ = write!(out, "   {what} {}", body.trim_start());
+        }
     }
-    out.push_str(&format!(
-        "\nColumn names are the defaults; map others with {} ROLE=HEADER. The route taken is \
-         'computed_from' in the JSON and the per-study table.\n",
-        Flag::Col
+    out.push('\n');
+    out.push_str(&wrap(
+        &format!(
+            "Column names are the defaults; map others with {} ROLE=HEADER. The route taken is \
+             'computed_from' in the JSON and the per-study table.",
+            Flag::Col
+        ),
+        "",
+        TEXT_WIDTH,
     ));
     out.push_str(&spreadsheets());
     out
@@ -47,16 +59,16 @@ pub fn text(measure: Measure) -> String {
 
 /// How a spreadsheet FILE is read, in words (the same for every measure).
 fn spreadsheets() -> String {
-    format!(
-        "
-Spreadsheets: a FILE ending in .xlsx, .xlsm, .xls or .ods is read directly, the first \
+    let text = format!(
+        "Spreadsheets: a FILE ending in .xlsx, .xlsm, .xls or .ods is read directly, the first \
          sheet or the one named with {}. Its first non-empty row is the header, wherever the \
          table starts. Every cell is read as a CSV export would hold it, so numbers stored as \
          text, empty cells and the missing marks (NA, N/A, ., -) behave as in CSV; a formula \
          cell gives the value last saved with it. Messages name the sheet and the cell \
-         (cell extraction!D14) instead of the line and column.\n",
+         (cell extraction!D14) instead of the line and column.",
         Flag::Sheet
-    )
+    );
+    format!("\n{}", wrap(&text, "", TEXT_WIDTH))
 }
 
 /// The listing of every measure, one after another.

@@ -2,8 +2,13 @@
 //! `--permutations`, `--small-study`, `--cumulative-by`), rendered from the
 //! public result only.
 
-use super::layout::{clip, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
-use crate::result::{AtValue, ConclusionChange, ConclusionKind, FitReport, InfluenceFlag};
+use super::layout::{
+    clip, fit_columns, head_with_text, last_column_room, lpad, pad, row_with_text, width, wrap,
+    Ctx, MAX_LISTED_STUDIES,
+};
+use crate::result::{
+    AtValue, ConclusionChange, ConclusionKind, FitReport, InfluenceFlag, LeaveOneOut,
+};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -45,9 +50,22 @@ pub(crate) fn average_header(r: &FitReport) -> String {
 /// leave-one-out and influence tables (`--json` and `--table` have all).
 const MAX_TERM_COLUMNS: usize = 3;
 
+/// The longest coefficient name in a column header of those tables; a
+/// longer one is shortened in the middle.
+const MAX_TERM_HEADER: usize = 16;
+
+/// "1 more coefficient is" / "3 more coefficients are": the columns a
+/// narrow terminal leaves out.
+fn more_coefficients(n: usize) -> String {
+    if n == 1 {
+        "1 more coefficient is".into()
+    } else {
+        format!("{n} more coefficients are")
+    }
+}
+
 /// Leave-one-out (`--loo`): the model refitted without each study.
 pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
-    let alpha = 1.0 - r.model.level;
     let has_mods = r.model.terms.len() > 1;
     let Some(loo) = &r.leave_one_out else {
         return;
@@ -65,31 +83,62 @@ pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
     };
     let flagged = loo.iter().filter(|l| !l.changes.is_empty()).count();
     let list_all = loo.len() <= MAX_LISTED_STUDIES;
-    let lw = label_width(loo.iter().map(|l| width(&l.study)));
+    let listed = |l: &&LeaveOneOut| list_all || !l.changes.is_empty() || l.problem.is_some();
     let avg_head = average_header(r);
     let aw = width(&avg_head).max(9);
-    let tw: Vec<usize> = terms.iter().map(|t| width(t).max(9)).collect();
+    let heads: Vec<String> = terms.iter().map(|t| clip(t, MAX_TERM_HEADER)).collect();
+    let tw: Vec<usize> = heads.iter().map(|t| width(t).max(9)).collect();
+    let tested = if has_mods { "test p" } else { "p" };
+    // τ² and p columns as wide as their widest cell.
+    let tau_cells: Vec<String> = loo.iter().map(|l| fmt::opt_num(l.tau2)).collect();
+    let p_cells: Vec<String> = loo
+        .iter()
+        .map(|l| {
+            l.moderator_p
+                .or(l.average_p)
+                .map(fmt::p_cell)
+                .unwrap_or("—".into())
+        })
+        .collect();
+    let widest = |cells: &[String], head: &str| {
+        cells
+            .iter()
+            .map(|c| width(c))
+            .max()
+            .unwrap_or(0)
+            .max(width(head))
+    };
+    let (zw, pw) = (widest(&tau_cells, "τ²"), widest(&p_cells, tested));
+    // Cells besides the label and the terms: the label's and the average's
+    // blanks and the average, τ², I², p and the blanks before the text.
+    let fixed = 2 + 2 + aw + (2 + zw) + (2 + 6) + (2 + pw) + 2;
+    let with_blanks: Vec<usize> = tw.iter().map(|w| w + 2).collect();
+    let wanted = label_width(loo.iter().map(|l| width(&l.study)));
+    // The header's words must fit beside the row; a longer text of a row
+    // goes below it.
+    let last = last_column_room("conclusion changed");
+    let (lw, shown) = fit_columns(wanted, fixed, &with_blanks, last, cx.width);
     let mut head = format!("  {}  {}", pad("without", lw), lpad(&avg_head, aw));
-    for (t, w) in terms.iter().zip(&tw) {
+    for (t, w) in heads.iter().zip(&tw).take(shown) {
         let _ = write!(head, "  {}", lpad(t, *w));
     }
-    let tested = if has_mods { "test p" } else { "p" };
     let _ = write!(
         head,
-        "  {}  {}  {}  conclusion changed",
-        lpad("τ²", 9),
+        "  {}  {}  {}  ",
+        lpad("τ²", zw),
         lpad("I²", 6),
-        lpad(tested, 8)
+        lpad(tested, pw)
     );
-    let _ = writeln!(o, "{head}");
+    o.push_str(&head_with_text(&head, "conclusion changed", cx.width));
     let first = usize::from(has_mods);
-    for l in loo {
-        if !list_all && l.changes.is_empty() && l.problem.is_none() {
-            continue;
-        }
+    for l in loo.iter().filter(listed) {
         let mut line = format!("  {}", pad(&clip(&l.study, lw), lw));
         if let Some(why) = &l.problem {
-            let _ = writeln!(o, "{line}  no answer: {why}");
+            o.push_str(&row_with_text(
+                &format!("{line}  "),
+                &format!("no answer: {why}"),
+                cx.width,
+            ));
             continue;
         }
         let _ = write!(
@@ -97,20 +146,19 @@ pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
             "  {}",
             lpad(&fmt::opt_num(l.average_reading.or(l.average)), aw)
         );
-        for (j, w) in tw.iter().enumerate() {
+        for (j, w) in tw.iter().enumerate().take(shown) {
             let c = l.coefficients.get(first + j).copied();
             let _ = write!(line, "  {}", lpad(&fmt::opt_num(c), *w));
         }
         let p = l.moderator_p.or(l.average_p);
         let _ = write!(
             line,
-            "  {}  {}  {}  {}",
-            lpad(&fmt::opt_num(l.tau2), 9),
+            "  {}  {}  {}  ",
+            lpad(&fmt::opt_num(l.tau2), zw),
             lpad(&l.i2.map(fmt::percent).unwrap_or("—".into()), 6),
-            lpad(&p.map(fmt::p_cell).unwrap_or("—".into()), 8),
-            changes_text(&l.changes)
+            lpad(&p.map(fmt::p_cell).unwrap_or("—".into()), pw),
         );
-        let _ = writeln!(o, "{}", line.trim_end());
+        o.push_str(&row_with_text(&line, &changes_text(&l.changes), cx.width));
     }
     if !list_all {
         let _ = writeln!(
@@ -121,10 +169,20 @@ pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
             loo.len()
         );
     }
-    let more = r.model.terms.len().saturating_sub(1 + MAX_TERM_COLUMNS);
+    o.push_str(&loo_words(r, cx, flagged, loo.len(), shown));
+    let _ = writeln!(o);
+}
+
+/// The paragraph under the leave-one-out table: the flagging rule, what the
+/// average is, and the coefficients a narrow table left out.
+fn loo_words(r: &FitReport, cx: &Ctx, flagged: usize, k: usize, shown: usize) -> String {
+    let alpha = 1.0 - r.model.level;
+    let has_mods = r.model.terms.len() > 1;
+    let more = r.model.terms.len().saturating_sub(1 + shown);
     let hidden = if more > 0 {
         format!(
-            " {more} more coefficients are in {} and {}.",
+            " {} in {} and {}.",
+            more_coefficients(more),
             Flag::Json,
             Flag::Table
         )
@@ -151,18 +209,17 @@ pub fn leave_one_out(r: &FitReport, cx: &Ctx, o: &mut String) {
     } else {
         "The average is the model's own"
     };
-    o.push_str(&wrap(
+    wrap(
         &format!(
             "{flagged} of {} removals change a conclusion ({rule}); \"lost\" means it no longer \
              holds without the study, \"gained\" that it holds only without it.{sign} {avg}, \
              shown on the reading scale where the measure has one.{hidden} A flagged study is \
              a reason to check its data and design, not to drop it.",
-            loo.len()
+            k
         ),
         "  ",
-        70,
-    ));
-    let _ = writeln!(o);
+        cx.width - 2,
+    )
 }
 
 /// An influence flag in a few words.
@@ -240,31 +297,41 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
     };
     let first = usize::from(has_mods);
     let list_all = inf.len() <= MAX_LISTED_STUDIES;
-    let lw = label_width(inf.iter().map(|l| width(&l.study)));
     let ah = format!("Δ {}", average_header(r));
     let aw = width(&ah).max(9);
     // Each moderator coefficient's move in its standard errors; without
     // moderators, the average's (the quantity its flag reads).
     let heads: Vec<String> = if has_mods {
-        terms.iter().map(|t| format!("Δ {t}")).collect()
+        terms
+            .iter()
+            .map(|t| format!("Δ {}", clip(t, MAX_TERM_HEADER)))
+            .collect()
     } else {
         vec!["Δ in SE".to_string()]
     };
     let tw: Vec<usize> = heads.iter().map(|h| width(h).max(8)).collect();
+    // Cells besides the label and the terms: blanks, the average's move,
+    // p without (with moderators), residual, leverage, blanks before flags.
+    let fixed = 2 + 2 + aw + if has_mods { 2 + 9 } else { 0 } + (2 + 8) + (2 + 8) + 2;
+    let with_blanks: Vec<usize> = tw.iter().map(|w| w + 2).collect();
+    let wanted = label_width(inf.iter().map(|l| width(&l.study)));
+    let last = last_column_room("flags");
+    let (lw, shown) = if has_mods {
+        fit_columns(wanted, fixed, &with_blanks, last, cx.width)
+    } else {
+        // Without moderators the one Δ-in-SE column always stays.
+        let (lw, _) = fit_columns(wanted, fixed + with_blanks[0], &[], last, cx.width);
+        (lw, 1)
+    };
     let mut head = format!("  {}  {}", pad("study", lw), lpad(&ah, aw));
-    for (h, w) in heads.iter().zip(&tw) {
+    for (h, w) in heads.iter().zip(&tw).take(shown) {
         let _ = write!(head, "  {}", lpad(h, *w));
     }
     if has_mods {
         let _ = write!(head, "  {}", lpad("p without", 9));
     }
-    let _ = write!(
-        head,
-        "  {}  {}  flags",
-        lpad("residual", 8),
-        lpad("leverage", 8)
-    );
-    let _ = writeln!(o, "{head}");
+    let _ = write!(head, "  {}  {}  ", lpad("residual", 8), lpad("leverage", 8));
+    o.push_str(&head_with_text(&head, "flags", cx.width));
     for s in inf {
         if !list_all && s.flags.is_empty() && s.problem.is_none() {
             continue;
@@ -274,14 +341,11 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
         let shift = shift.map(|x| fmt::fixed(x, 4)).unwrap_or("—".into());
         let _ = write!(line, "  {}", lpad(&shift, aw));
         if let Some(why) = &s.problem {
-            let _ = writeln!(
-                o,
-                "{line}  leverage {}; no refit: {why}",
-                fmt::fixed(s.leverage, 3)
-            );
+            let text = format!("leverage {}; no refit: {why}", fmt::fixed(s.leverage, 3));
+            o.push_str(&row_with_text(&format!("{line}  "), &text, cx.width));
             continue;
         }
-        for (j, w) in tw.iter().enumerate() {
+        for (j, w) in tw.iter().enumerate().take(shown) {
             let c = s.coefficient_shifts_se.get(first + j).copied();
             let _ = write!(
                 line,
@@ -298,7 +362,7 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
         }
         let _ = write!(
             line,
-            "  {}  {}  {}",
+            "  {}  {}  ",
             lpad(
                 &s.deleted_residual
                     .map(|x| fmt::fixed(x, 2))
@@ -306,9 +370,12 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
                 8
             ),
             lpad(&fmt::fixed(s.leverage, 3), 8),
-            flags_text(&s.flags, has_mods)
         );
-        let _ = writeln!(o, "{}", line.trim_end());
+        o.push_str(&row_with_text(
+            &line,
+            &flags_text(&s.flags, has_mods),
+            cx.width,
+        ));
     }
     if !list_all {
         let _ = writeln!(
@@ -319,6 +386,15 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
             inf.len()
         );
     }
+    o.push_str(&cx.para(&influence_words(r, shown)));
+    let _ = writeln!(o);
+}
+
+/// The paragraph under the influence table: what Δ, the residual and the
+/// leverage are, the flagging rules, and the coefficients a narrow table left out.
+fn influence_words(r: &FitReport, shown: usize) -> String {
+    let inf = r.influence.as_deref().unwrap_or_default();
+    let has_mods = r.model.terms.len() > 1;
     let n = inf.iter().filter(|s| !s.flags.is_empty()).count();
     let reading = if r.measure.reading_name.is_some() {
         " on the reading scale"
@@ -334,9 +410,22 @@ pub fn influence(r: &FitReport, cx: &Ctx, o: &mut String) {
         inf.len()
     );
     words.push_str(&influence_rules_text(r).unwrap_or_default());
+    let more = r.model.terms.len().saturating_sub(1 + shown);
+    if has_mods && more > 0 {
+        let _ = write!(
+            words,
+            " The {} in {} and {}.",
+            if more == 1 {
+                "move of 1 more coefficient is".to_string()
+            } else {
+                format!("moves of {more} more coefficients are")
+            },
+            Flag::Json,
+            Flag::Table
+        );
+    }
     words.push_str(" A flagged study deserves a second look at its data and design, not removal.");
-    o.push_str(&cx.para(&words));
-    let _ = writeln!(o);
+    words
 }
 
 /// The permutation test of the moderators (`--permutations`).

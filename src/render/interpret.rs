@@ -1,7 +1,7 @@
 //! The terminal sections of `--probe`, `--compare-levels`, `--regions` and
 //! the artifact corrections (part of the text report; pure function of the result).
 
-use super::layout::{pad_apart as pad, wrap, Ctx, MAX_LISTED_STUDIES};
+use super::layout::{item, pad_apart as pad, wrap, Ctx, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, ContrastTest, FitReport, QuantityKind};
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -65,10 +65,11 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
     let (it, lv) = (&r.interpretation, &cx.level_pct);
     let reading = r.measure.reading_name.as_deref();
     if !it.conditional_effects.is_empty() {
-        let _ = writeln!(
-            o,
-            "Conditional effects (mean effect at chosen moderator values; {lv} CI; new study = {lv} prediction interval)"
-        );
+        let _ = writeln!(o, "Conditional effects");
+        o.push_str(&cx.para(&format!(
+            "(the mean effect at chosen moderator values; {lv} CI; new study = {lv} prediction \
+             interval)"
+        )));
         let mut last = None;
         for e in &it.conditional_effects {
             if last != Some((&e.moderator, &e.held)) {
@@ -123,10 +124,11 @@ pub fn conditional_effects(r: &FitReport, cx: &Ctx, o: &mut String) {
 pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
     let (it, lv) = (&r.interpretation, &cx.level_pct);
     if !it.simple_slopes.is_empty() {
-        let _ = writeln!(
-            o,
-            "Simple slopes (how the partner in a product term changes the effect, at each probed value; {lv} CI)"
-        );
+        let _ = writeln!(o, "Simple slopes");
+        o.push_str(&cx.para(&format!(
+            "(how the partner in a product term changes the effect, at each probed value; {lv} \
+             CI)"
+        )));
         for s in &it.simple_slopes {
             let what = match s.quantity_kind {
                 QuantityKind::LevelDifference => format!("difference {}", s.of),
@@ -134,16 +136,19 @@ pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
                     format!("slope of {} (per unit)", s.of)
                 }
             };
-            let _ = writeln!(
+            item(
                 o,
-                "  {what} at {} = {} ({}): {}  CI {}  SE {}  {}",
-                s.moderator,
-                at(&s.at),
-                s.point,
-                num(s.test.estimate),
-                fmt::interval(s.test.ci.ci_low, s.test.ci.ci_high),
-                num(s.test.se),
-                test_text(&s.test)
+                &format!(
+                    "{what} at {} = {} ({}): {}  CI {}  SE {}  {}",
+                    s.moderator,
+                    at(&s.at),
+                    s.point,
+                    num(s.test.estimate),
+                    fmt::interval(s.test.ci.ci_low, s.test.ci.ci_high),
+                    num(s.test.se),
+                    test_text(&s.test)
+                ),
+                cx.width,
             );
         }
         if let Some(s) = it.simple_slopes.first() {
@@ -159,21 +164,25 @@ pub fn simple_slopes(r: &FitReport, cx: &Ctx, o: &mut String) {
 pub fn level_contrasts(r: &FitReport, cx: &Ctx, o: &mut String) {
     let (it, lv) = (&r.interpretation, &cx.level_pct);
     if !it.level_contrasts.is_empty() {
-        let _ = writeln!(
-            o,
-            "Level contrasts (difference between two levels; {lv} CI; Holm-adjusted p over the pairs of each moderator)"
-        );
+        let _ = writeln!(o, "Level contrasts");
+        o.push_str(&cx.para(&format!(
+            "(the difference between two levels; {lv} CI; Holm-adjusted p over the pairs of each \
+             moderator)"
+        )));
         for c in &it.level_contrasts {
-            let _ = writeln!(
+            item(
                 o,
-                "  {}: {} − {}: {}  CI {}  {}, Holm p {}",
-                c.moderator,
-                c.level,
-                c.minus,
-                num(c.test.estimate),
-                fmt::interval(c.test.ci.ci_low, c.test.ci.ci_high),
-                test_text(&c.test),
-                fmt::p(c.p_holm)
+                &format!(
+                    "{}: {} − {}: {}  CI {}  {}, Holm p {}",
+                    c.moderator,
+                    c.level,
+                    c.minus,
+                    num(c.test.estimate),
+                    fmt::interval(c.test.ci.ci_low, c.test.ci.ci_high),
+                    test_text(&c.test),
+                    fmt::p(c.p_holm)
+                ),
+                cx.width,
             );
         }
         if let Some(c) = it.level_contrasts.first() {
@@ -203,9 +212,8 @@ pub fn regions(r: &FitReport, cx: &Ctx, o: &mut String) {
                         .join(" and ")
                 )
             };
-            let _ = writeln!(
-                o,
-                "  {} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
+            let line = format!(
+                "{} along {}: {bounds} (significant {}); observed range {} to {}: {}{}",
                 match g.quantity_kind {
                     QuantityKind::MeanEffect => "mean effect".to_string(),
                     QuantityKind::LevelDifference => format!("difference {}", g.quantity),
@@ -229,6 +237,7 @@ pub fn regions(r: &FitReport, cx: &Ctx, o: &mut String) {
                     )
                 }
             );
+            item(o, &line, cx.width);
             o.push_str(&wrap(&g.words, "    ", cx.width - 4));
             if !g.held.is_empty() {
                 let _ = writeln!(o, "    held: {}", g.held);

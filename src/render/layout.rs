@@ -9,7 +9,9 @@
 //! lines, headings without a colon on a line of their own, the content
 //! indented by two blanks, lists as `  - item` with wrapped lines hanging
 //! under the item's first word, every line at most [`Ctx::width`]
-//! characters where it can be broken (tables keep their rows whole), and
+//! characters (tables fit it too: number columns as wide as their cells, a
+//! free-text last column wrapped under itself or moved below its row, label
+//! and term columns giving way with a note), and
 //! the cautions once, at the end.
 
 use crate::result::FitReport;
@@ -96,6 +98,41 @@ pub fn bullets(o: &mut String, head: &str, items: &[String], width: usize) {
         let _ = write!(o, "  - {}", w.trim_start());
     }
     let _ = writeln!(o);
+}
+
+/// One line of a list under a heading: `text` indented by two blanks and
+/// wrapped at `width`, its further lines indented by four. The text's
+/// fields (parts separated by two blanks, such as "CI [0.1, 0.2]  SE 0.04")
+/// are kept whole where they fit a line, so a line breaks between fields;
+/// a field wider than a line is wrapped at its words.
+pub fn item(o: &mut String, text: &str, width: usize) {
+    let room = width.saturating_sub(4).max(20);
+    let mut line = String::new();
+    let mut lines: Vec<String> = Vec::new();
+    for field in text.split("  ").filter(|f| !f.trim().is_empty()) {
+        let field = field.trim();
+        if !line.is_empty() && self::width(&line) + 2 + self::width(field) <= room {
+            line.push_str("  ");
+            line.push_str(field);
+            continue;
+        }
+        if !line.is_empty() {
+            lines.push(std::mem::take(&mut line));
+        }
+        if self::width(field) <= room {
+            line = field.to_string();
+        } else {
+            let mut parts: Vec<String> = wrap(field, "", room).lines().map(String::from).collect();
+            line = parts.pop().unwrap_or_default();
+            lines.extend(parts);
+        }
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    for (i, l) in lines.iter().enumerate() {
+        let _ = writeln!(o, "{}{l}", if i == 0 { "  " } else { "    " });
+    }
 }
 
 /// Every line of `o` without trailing blanks (padding of a last column).
@@ -215,6 +252,83 @@ pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
     out
 }
 
+/// One row of a table whose last column is free text: `fixed` (the cells
+/// before it, each followed by its two blanks) and then `text`.
+/// When the text does not fit beside the row on one line, it goes on the
+/// lines below, indented by four (and wrapped at `width`). Ends in a newline; no trailing blanks.
+pub(super) fn row_with_text(fixed: &str, text: &str, width: usize) -> String {
+    let at = self::width(fixed);
+    if text.trim().is_empty() {
+        return format!("{}\n", fixed.trim_end());
+    }
+    // Below the row when the text does not fit beside it on one line.
+    if at + last_column_room(text).max(self::width(text)) > width {
+        let rest = wrap(text, "    ", width.saturating_sub(4).max(20));
+        return format!("{}\n{rest}", fixed.trim_end());
+    }
+    let lines = wrap(text, &" ".repeat(at), width - at);
+    format!("{fixed}{}", lines.trim_start())
+}
+
+/// The header row of such a table: like [`row_with_text`], but a header
+/// too long for the room is stacked word by word inside its column (the
+/// room always holds its longest word when [`fit_columns`] laid the table
+/// out), so that it stays above its column.
+pub(super) fn head_with_text(fixed: &str, text: &str, width: usize) -> String {
+    let at = self::width(fixed);
+    if at + last_column_room(text) > width {
+        return row_with_text(fixed, text, width);
+    }
+    let lines = wrap(text, &" ".repeat(at), width - at);
+    format!("{fixed}{}", lines.trim_start())
+}
+
+/// The fewest characters a free-text last column is given before its text
+/// moves to the lines below the row.
+pub(super) const MIN_LAST_COLUMN: usize = 8;
+
+/// The room a free-text cell needs at least: its longest word, and never
+/// less than [`MIN_LAST_COLUMN`].
+pub(super) fn last_column_room(text: &str) -> usize {
+    text.split_whitespace()
+        .map(self::width)
+        .max()
+        .unwrap_or(0)
+        .max(MIN_LAST_COLUMN)
+}
+
+/// The narrowest a label column is made before term columns give way.
+const MIN_LABEL_COLUMN: usize = 14;
+
+/// How a table with a label column, optional term columns and a free-text
+/// last column fits `width`: the label column's width and how many of the
+/// term columns are shown. `label` is the width the labels want, `fixed`
+/// the width of the other cells (with their separating blanks, the label's
+/// two included), `terms` each term column's width with its two blanks.
+/// The label column gives way first (down to [`MIN_LABEL_COLUMN`]
+/// characters), then term columns are left out from the end.
+pub(super) fn fit_columns(
+    label: usize,
+    fixed: usize,
+    terms: &[usize],
+    last: usize,
+    width: usize,
+) -> (usize, usize) {
+    let mut shown = terms.len();
+    loop {
+        let used: usize = fixed + terms[..shown].iter().sum::<usize>() + last;
+        let room = width.saturating_sub(used);
+        if room >= label {
+            return (label, shown);
+        }
+        let floor = MIN_LABEL_COLUMN.min(label);
+        if room >= floor || shown == 0 {
+            return (room.max(floor), shown);
+        }
+        shown -= 1;
+    }
+}
+
 /// What the coefficient table shows for one coefficient: the cluster-robust
 /// SE, interval, t and p under `--robust`, the model's otherwise.
 pub(crate) struct Shown {
@@ -287,5 +401,38 @@ mod tests {
         // A relation sign stays with both of its sides.
         assert_eq!(wrap("so p < 0.0001 here", "", 8), "so\np < 0.0001\nhere\n");
         assert_eq!(wrap("1/(v + τ²) ok", "", 6), "1/(v + τ²)\nok\n");
+    }
+
+    #[test]
+    fn a_free_text_last_column_stays_beside_its_row_or_goes_below() {
+        // Room enough: beside the row.
+        let row = row_with_text("  lab A  0.12  ", "high leverage", 36);
+        assert_eq!(row, "  lab A  0.12  high leverage\n");
+        // Too long for the room: on its own lines below, wrapped at the width.
+        let row = row_with_text("  lab A  0.12  ", "moves a coefficient, high leverage", 36);
+        assert_eq!(
+            row,
+            "  lab A  0.12\n    moves a coefficient, high\n    leverage\n"
+        );
+        for line in row.lines() {
+            assert!(width(line) <= 36);
+        }
+        assert_eq!(row_with_text("  a  1  ", "", 36), "  a  1\n");
+        // A header stacks its words inside the column instead.
+        let head = head_with_text("  study  Δ  ", "conclusion changed", 24);
+        assert_eq!(head, "  study  Δ  conclusion\n            changed\n");
+    }
+
+    #[test]
+    fn columns_give_way_label_first_then_terms() {
+        // Everything fits (the free-text column keeps 12).
+        assert_eq!(fit_columns(20, 40, &[11, 11], 12, 100), (20, 2));
+        // The label shrinks to what is left.
+        assert_eq!(fit_columns(28, 48, &[11, 11], 12, 100), (18, 2));
+        // Then the last term column goes, then the next.
+        assert_eq!(fit_columns(28, 56, &[11, 11], 12, 100), (21, 1));
+        assert_eq!(fit_columns(28, 66, &[11, 11], 12, 100), (22, 0));
+        // Nothing left to drop: the label keeps its floor.
+        assert_eq!(fit_columns(28, 90, &[], 12, 100), (14, 0));
     }
 }

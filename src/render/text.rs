@@ -244,28 +244,50 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
     let has_ratio = r.coefficients.iter().any(|c| c.ratio.is_some());
     // The p column is as wide as "< 0.0001" and two blanks before the ratio.
     let pw = if has_ratio { 10 } else { 8 };
+    let est_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.estimate));
+    let se_d = fmt::column_decimals(rows.iter().map(|s| s.se));
+    let ests: Vec<String> = r
+        .coefficients
+        .iter()
+        .map(|c| fmt::fixed(c.contrast.estimate, est_d))
+        .collect();
+    let ses: Vec<String> = rows.iter().map(|s| fmt::fixed(s.se, se_d)).collect();
+    let stats: Vec<String> = rows.iter().map(|s| format!("{:.2}", s.statistic)).collect();
+    // Number columns as wide as their widest cell or header (a blank more
+    // for the estimate, whose sign would otherwise touch the term).
+    let column = |cells: &[String], head: &str| {
+        cells
+            .iter()
+            .map(|c| width(c))
+            .max()
+            .unwrap_or(0)
+            .max(width(head))
+    };
+    let (ew, sw, zw) = (
+        column(&ests, "estimate") + 1,
+        column(&ses, "SE"),
+        column(&stats, stat),
+    );
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}  {}{}",
         pad("term", tw),
-        lpad("estimate", 10),
-        lpad("SE", 9),
+        lpad("estimate", ew),
+        lpad("SE", sw),
         pad(&format!("{level_pct} CI"), cw),
-        lpad(stat, 7),
+        lpad(stat, zw),
         pad("p", pw),
         if has_ratio { "exp(estimate) [CI]" } else { "" }
     );
-    let est_d = fmt::column_decimals(r.coefficients.iter().map(|c| c.contrast.estimate));
-    let se_d = fmt::column_decimals(rows.iter().map(|s| s.se));
-    for (c, s) in r.coefficients.iter().zip(&rows) {
+    for (i, (c, s)) in r.coefficients.iter().zip(&rows).enumerate() {
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}  {}{}",
             pad(&clip(&c.term, tw), tw),
-            lpad(&fmt::fixed(c.contrast.estimate, est_d), 10),
-            lpad(&fmt::fixed(s.se, se_d), 9),
+            lpad(&ests[i], ew),
+            lpad(&ses[i], sw),
             pad(&fmt::interval(s.ci.ci_low, s.ci.ci_high), cw),
-            lpad(&format!("{:.2}", s.statistic), 7),
+            lpad(&stats[i], zw),
             pad(fmt::p(s.p).trim_start_matches("= "), pw),
             c.ratio
                 .as_ref()
@@ -481,19 +503,14 @@ fn obtained(r: &FitReport, _: &Ctx, o: &mut String) {
 }
 
 /// The rows left out of the model, with the reason.
-fn left_out(r: &FitReport, _: &Ctx, o: &mut String) {
+fn left_out(r: &FitReport, cx: &Ctx, o: &mut String) {
     if r.excluded.is_empty() {
         return;
     }
     let _ = writeln!(o, "Left out");
     for e in r.excluded.iter().take(MAX_LISTED_STUDIES) {
-        let _ = writeln!(
-            o,
-            "  {}  {}: {}",
-            r.input.row_place(e.line),
-            e.study,
-            e.reason
-        );
+        let text = format!("{}  {}: {}", r.input.row_place(e.line), e.study, e.reason);
+        super::layout::item(o, &text, cx.width);
     }
     if r.excluded.len() > MAX_LISTED_STUDIES {
         let _ = writeln!(

@@ -404,3 +404,46 @@ fn sites_fit_without_w_gives_a_complete_answer() {
     );
     assert!(answer.contains("prediction interval"), "{answer}");
 }
+
+/// The terminal output of every bundled example (the stdout and stderr of
+/// each command in `tests/golden/`) stays within 100 columns: paragraphs
+/// wrap, list items hang, and the tables with free-text columns (leave-one-
+/// out, influence) fit by wrapping that text and leaving out term columns.
+/// Not checked: the JSON and SQL printed on standard output (data, not a
+/// report), clap's usage line, and the error cases of the catalogue (one
+/// message per line, so that it can be searched for).
+#[test]
+fn every_bundled_example_prints_within_100_columns() {
+    let mut checked = 0;
+    let mut too_wide = Vec::new();
+    for entry in std::fs::read_dir(repo("tests/golden")).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().and_then(|e| e.to_str()) != Some("txt") {
+            continue;
+        }
+        let text = std::fs::read_to_string(&path).unwrap();
+        let (mut command, mut terminal) = (String::new(), false);
+        for line in text.lines() {
+            if let Some(head) = line.strip_prefix("━━━━ ") {
+                if let Some(c) = head.strip_prefix("command: ") {
+                    command = c.to_string();
+                }
+                if head.starts_with("case: ") {
+                    command.clear();
+                }
+                let data = command.contains("--json -") || command.starts_with("pondus sql");
+                terminal = !command.is_empty() && !data && (head == "stdout" || head == "stderr");
+                continue;
+            }
+            if !terminal || line.starts_with("Usage: ") {
+                continue;
+            }
+            checked += 1;
+            if line.chars().count() > 100 {
+                too_wide.push(format!("{}: {line}", path.display()));
+            }
+        }
+    }
+    assert!(checked > 1000, "only {checked} lines checked");
+    assert!(too_wide.is_empty(), "{}", too_wide.join("\n"));
+}
