@@ -13,6 +13,7 @@
 
 use super::plan::PlanReport;
 use super::{FitReport, SitesReport};
+use crate::support::flag::Flag;
 use schemars::generate::SchemaSettings;
 use schemars::JsonSchema;
 use serde_json::Value;
@@ -86,9 +87,12 @@ pub fn fit() -> Value {
 pub fn sites() -> Value {
     root::<SitesReport>(
         JsonOutput::Sites,
-        "The result of `pondus sites`: one regression per site from participant rows (or a \
-         moments table), the sites left out, the join with the site table, and with `--fit` \
-         the second-stage answers, each a complete `pondus fit` result.",
+        &format!(
+            "The result of `pondus sites`: one regression per site from participant rows (or a \
+             moments table), the sites left out, the join with the site table, and with `{}` \
+             the second-stage answers, each a complete `pondus fit` result.",
+            Flag::Fit
+        ),
     )
 }
 
@@ -119,7 +123,7 @@ fn root<T: JsonSchema>(which: JsonOutput, description: &str) -> Value {
     );
     object.insert(
         "title".into(),
-        Value::from(format!("pondus {} --json", which.id())),
+        Value::from(format!("pondus {} {}", which.id(), Flag::Json)),
     );
     object.insert("description".into(), Value::from(description));
     value

@@ -353,3 +353,56 @@ fn closing_a_schema_reaches_nested_and_referenced_objects() {
         .get("additionalProperties")
         .is_none());
 }
+
+/// Runs `pondus ARGS --json -` in the repository and parses its output.
+fn json_of(args: &str) -> Value {
+    let out = Command::cargo_bin("pondus")
+        .unwrap()
+        .current_dir(repo(""))
+        .args(args.split_whitespace())
+        .args(["--json", "-"])
+        .write_stdin(Vec::new())
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "pondus {args}");
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// The golden outputs never hold the types below (or only as null); these
+/// runs do, and they validate strictly too.
+#[test]
+fn outputs_beyond_the_golden_cases_validate_too() {
+    let cases = [
+        // Shrunken estimates with a reading scale (ShrunkenReading), and a
+        // prediction outside the moderator's range (Prediction.outside_range).
+        (
+            JsonOutput::Fit,
+            "fit data-examples/consortium-correlations.csv --measure r --moderator session_minutes \
+             --moderator mode --shrink --at session_minutes=500,mode=online",
+            ["/studies/0/shrunken/reading", "/predictions/0/outside_range/0"],
+        ),
+        // The Knapp–Hartung k confirmed by simulation (SimulatedK, KPower).
+        (
+            JsonOutput::Plan,
+            "plan --measure r --k 20 --n 50 --tau2 0.02 --share 0.5 --moderator-effect 0.2 \
+             --target-power 0.8",
+            ["/k_needed_simulated/evaluated/0/power", "/k_needed_answer/check_k"],
+        ),
+        // Participants per site that differ (n_sites).
+        (
+            JsonOutput::Plan,
+            "plan --measure smd --k 12 --n 40,60,80 --tau2 0.02 --share 0.5 \
+             --moderator-effect 0.3 --test z",
+            ["/n_sites/2", "/table/0/power"],
+        ),
+    ];
+    for (which, args, pointers) in cases {
+        let doc = json_of(args);
+        for p in pointers {
+            let v = doc.pointer(p);
+            assert!(v.is_some_and(|v| !v.is_null()), "{args}: nothing at {p}");
+        }
+        let e = errors(&validator(&strict(which)), &doc);
+        assert!(e.is_empty(), "{args}:\n  {}", e.join("\n  "));
+    }
+}
