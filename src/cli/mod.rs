@@ -9,6 +9,7 @@ pub mod fit;
 pub mod manual;
 pub mod outputs;
 pub mod plan;
+pub mod schema;
 pub mod sites;
 pub mod sql;
 pub mod style;
@@ -57,6 +58,8 @@ pub enum Command {
     Completions(completions::CompletionsArgs),
     /// Print the roff manual of pondus or a subcommand; --out-dir writes them all.
     Manual(manual::ManualArgs),
+    /// Print the JSON Schema (draft 2020-12) of the --json output of fit, sites or plan.
+    Schema(schema::SchemaArgs),
 }
 
 /// Checks the flags of the parsed command and runs it.
@@ -74,6 +77,7 @@ pub fn run(cli: &Cli) -> Result<()> {
         Command::Columns(args) => columns::run_columns(args),
         Command::Completions(args) => completions::run_completions(args),
         Command::Manual(args) => manual::run_manual(args),
+        Command::Schema(args) => schema::run_schema(args),
     }
 }
 

@@ -21,7 +21,7 @@ use serde::Serialize;
 use std::collections::BTreeMap;
 
 /// How each row becomes an effect and a sampling variance.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Measure {
     /// A precomputed effect with its variance, SE or 95% CI.
@@ -43,7 +43,7 @@ pub enum Measure {
 }
 
 /// How analysis-scale values are shown back to readers.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum ReadingScale {
     /// Shown as analysed.

@@ -11,7 +11,7 @@ use super::Measure;
 use serde::Serialize;
 
 /// The group of reported numbers a study's effect was computed from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub enum Route {
     /// Group means, SDs and sizes.
     #[serde(rename = "means")]
@@ -68,7 +68,7 @@ pub enum Route {
 
 /// Whether an effect was computed as reported, approximated, or converted
 /// from another family of effect sizes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Derivation {
     /// Computed from what was reported (up to its rounding).

@@ -198,7 +198,7 @@ impl Table {
 }
 
 /// A detected delimiter, as named in the results.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Delimiter {
     /// `,` (also the fallback).

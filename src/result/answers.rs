@@ -7,7 +7,7 @@ use serde::Serialize;
 use std::collections::BTreeMap;
 
 /// The chance that a new study's true effect exceeds a value (`--beyond`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Beyond {
     /// The value as given, on the reading scale.
     pub value: f64,
@@ -23,7 +23,7 @@ pub struct Beyond {
 }
 
 /// The probability at one `--at` point.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct BeyondAt {
     /// The moderator values of the point.
     pub at: BTreeMap<String, AtValue>,
@@ -32,7 +32,7 @@ pub struct BeyondAt {
 }
 
 /// A study's empirical-Bayes (shrunken) estimate of its own true effect.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Shrunken {
     /// x_i'β̂ + B_i·(y_i − x_i'β̂), analysis scale.
     pub estimate: f64,
@@ -49,7 +49,7 @@ pub struct Shrunken {
 }
 
 /// A shrunken estimate on the reading scale.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct ShrunkenReading {
     /// The estimate.
     pub estimate: f64,
@@ -59,7 +59,7 @@ pub struct ShrunkenReading {
 }
 
 /// Every subset of the candidate moderators ranked by AICc (`--all-subsets`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ModelSet {
     /// The candidates: each moderator, then each product term (`a×b`).
     pub candidates: Vec<String>,
@@ -72,7 +72,7 @@ pub struct ModelSet {
 }
 
 /// One model of the set.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct RankedModel {
     /// Its candidates (empty: the intercept-only model).
     pub terms: Vec<String>,
@@ -89,7 +89,7 @@ pub struct RankedModel {
 }
 
 /// A candidate's importance.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Importance {
     /// The moderator (or product term).
     pub moderator: String,
@@ -98,7 +98,7 @@ pub struct Importance {
 }
 
 /// A model-averaged coefficient.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct AveragedCoefficient {
     /// The term, as in `coefficients`.
     pub term: String,

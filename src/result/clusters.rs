@@ -5,7 +5,7 @@ use super::estimate::Interval;
 use serde::Serialize;
 
 /// A level of the three-level model.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum ClusterLevel {
     /// Between clusters.
@@ -25,7 +25,7 @@ impl ClusterLevel {
 }
 
 /// The working model of clustered effects.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum ClusterModel {
     /// Cluster effects and effects within clusters.
@@ -45,7 +45,7 @@ impl ClusterModel {
 }
 
 /// One variance component of the three-level model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct VarianceComponent {
     /// "between" (σ² of the cluster effects) or "within" (σ² of the effects within a cluster).
     pub level: ClusterLevel,
@@ -61,7 +61,7 @@ pub struct VarianceComponent {
 }
 
 /// What the cluster structure adds to the report.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ClusterReport {
     /// The cluster column's header.
     pub column: String,
@@ -82,7 +82,7 @@ pub struct ClusterReport {
 }
 
 /// A likelihood-ratio test that one variance component is 0.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ComponentTest {
     /// "within" (against the model without σ²_within) or "between" (against
     /// the usual two-level model with independent effects).
@@ -96,7 +96,7 @@ pub struct ComponentTest {
 }
 
 /// The level at which a design term varies.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct TermLevel {
     /// Term label, as in `coefficients`.
     pub term: String,

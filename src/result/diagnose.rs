@@ -5,7 +5,7 @@ use super::estimate::{AtValue, Interval, RatioCoefficient};
 use serde::Serialize;
 
 /// A rule of the influence view that a study meets.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum InfluenceFlag {
     /// Leaving it out reverses a conclusion (the rule of `--loo`).
@@ -42,7 +42,7 @@ impl InfluenceFlag {
 }
 
 /// The side of the funnel on which trim-and-fill sought missing studies.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Side {
     /// Below the pooled effect.
@@ -62,7 +62,7 @@ impl Side {
 }
 
 /// How the ordering column of the cumulative meta-analysis was sorted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum SortOrder {
     /// As numbers, ascending.
@@ -82,7 +82,7 @@ impl SortOrder {
 }
 
 /// What kind of conclusion a removal reverses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum ConclusionKind {
     /// The omnibus moderator test (p < α or not).
@@ -105,7 +105,7 @@ impl ConclusionKind {
 }
 
 /// One conclusion that leaving a study out reverses.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ConclusionChange {
     /// "moderator_test", "coefficient" or "average".
     pub kind: ConclusionKind,
@@ -119,7 +119,7 @@ pub struct ConclusionChange {
 
 /// One leave-one-out refit (`--loo`): the model fitted without one study,
 /// with the same estimator, inference and level.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct LeaveOneOut {
     /// The study left out.
     pub study: String,
@@ -154,7 +154,7 @@ pub struct LeaveOneOut {
 
 /// How much one study moves the answer, how unusual it is and how much
 /// pull it has (`--influence`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Influence {
     /// The study.
     pub study: String,
@@ -208,7 +208,7 @@ impl Influence {
 
 /// The cut-offs of the influence flags for this k and p, and the answer
 /// with every study that the shifts are measured from.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct InfluenceRules {
     /// `moves_coefficient`: |shift| above 2/√k standard errors, the
     /// size-adjusted cut-off of Belsley, Kuh & Welsch (1980, Regression
@@ -232,7 +232,7 @@ pub struct InfluenceRules {
 }
 
 /// The permutation test of the moderators (`--permutations`; Higgins & Thompson 2004).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Permutation {
     /// Arrangements evaluated (random permutations, or every distinct
     /// arrangement when `exact`), the observed one included under `exact`.
@@ -255,7 +255,7 @@ pub struct Permutation {
 }
 
 /// Small-study effects (`--small-study`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SmallStudy {
     /// Regression test for funnel-plot asymmetry (Egger et al. 1997).
     pub asymmetry_test: AsymmetryTest,
@@ -275,7 +275,7 @@ pub struct SmallStudy {
 }
 
 /// The regression test for funnel-plot asymmetry.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct AsymmetryTest {
     /// t statistic of the standard-error coefficient.
     pub statistic: f64,
@@ -292,7 +292,7 @@ pub struct AsymmetryTest {
 }
 
 /// The rank-correlation test.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct RankTest {
     /// Kendall's τ_b between the standardised deviates and the sampling variances.
     pub tau: f64,
@@ -301,7 +301,7 @@ pub struct RankTest {
 }
 
 /// Trim-and-fill.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct TrimFill {
     /// Number of studies filled in (the L0 estimate).
     pub filled: usize,
@@ -323,7 +323,7 @@ pub struct TrimFill {
 }
 
 /// A study filled in by trim-and-fill.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct FilledStudy {
     /// Mirrored effect 2θ̂ − y_i (analysis scale).
     pub effect: f64,
@@ -332,7 +332,7 @@ pub struct FilledStudy {
 }
 
 /// How the cumulative meta-analysis was ordered.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct CumulativeOrder {
     /// The ordering column.
     pub column: String,
@@ -343,7 +343,7 @@ pub struct CumulativeOrder {
 
 /// One step of the cumulative meta-analysis (`--cumulative-by`): the average
 /// effect of the studies so far, from the model without moderators.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct CumulativeStep {
     /// The study added at this step.
     pub study: String,

@@ -9,7 +9,7 @@ use serde::Serialize;
 
 /// A confidence interval `{ci_low, ci_high}`; `T = Option<f64>` where an end
 /// may be missing.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Interval<T = f64> {
     /// Lower confidence limit.
     pub ci_low: T,
@@ -32,7 +32,7 @@ impl Interval {
 }
 
 /// A prediction interval for a new study's true effect `{pi_low, pi_high}`.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct PredictionInterval {
     /// Lower end.
     pub pi_low: f64,
@@ -53,7 +53,7 @@ impl PredictionInterval {
 }
 
 /// A test of one quantity against 0 `{statistic, df, p}`.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Test {
     /// t (kh) or z statistic.
     pub statistic: f64,
@@ -65,7 +65,7 @@ pub struct Test {
 
 /// A linear contrast c'β̂ with its test (no prediction interval); a
 /// coefficient is the contrast that picks it out.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct ContrastTest {
     /// Estimate c'β̂ (analysis scale).
     pub estimate: f64,
@@ -81,7 +81,7 @@ pub struct ContrastTest {
 
 /// A predicted mean effect with its standard error, confidence interval and
 /// prediction interval, on the analysis scale.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct MeanEffect {
     /// Estimate on the analysis scale.
     pub estimate: f64,
@@ -96,7 +96,7 @@ pub struct MeanEffect {
 }
 
 /// An estimate with confidence and prediction intervals.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Estimate {
     /// Estimate, standard error, confidence and prediction intervals on the analysis scale.
     #[serde(flatten)]
@@ -106,7 +106,7 @@ pub struct Estimate {
 }
 
 /// Values on the reading scale (r or a ratio).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Reading {
     /// Estimate.
     pub estimate: f64,
@@ -131,7 +131,7 @@ impl Reading {
 }
 
 /// A log-ratio coefficient shown as a ratio.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct RatioCoefficient {
     /// exp(estimate).
     pub estimate: f64,
@@ -141,7 +141,7 @@ pub struct RatioCoefficient {
 }
 
 /// A moderator value in a prediction: a number or a level.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 #[serde(untagged)]
 pub enum AtValue {
     /// A numeric moderator's value (original scale).

@@ -7,7 +7,7 @@ use serde::Serialize;
 
 /// What `--probe`, `--compare-levels` and `--regions` report: the model read
 /// at chosen moderator values (see docs/interpretation.md).
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, schemars::JsonSchema)]
 pub struct Interpretation {
     /// Predicted mean effect at each probed value of each probed moderator.
     pub conditional_effects: Vec<ConditionalEffect>,
@@ -25,7 +25,7 @@ pub struct Interpretation {
 }
 
 /// Where a probed value comes from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub enum ProbePoint {
     /// Given on the command line.
     #[serde(rename = "given")]
@@ -58,7 +58,7 @@ impl ProbePoint {
 }
 
 /// The predicted mean effect at one value of one moderator.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ConditionalEffect {
     /// The probed moderator.
     pub moderator: String,
@@ -84,7 +84,7 @@ pub struct ConditionalEffect {
 }
 
 /// The conditional effect of one moderator at a value of another it interacts with.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SimpleSlope {
     /// What changes: a numeric moderator's name (the slope per unit), or
     /// "NAME: LEVEL − REFERENCE" for a level of a categorical moderator.
@@ -107,7 +107,7 @@ pub struct SimpleSlope {
 }
 
 /// The difference between two levels of a categorical moderator.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct LevelContrast {
     /// The moderator.
     pub moderator: String,
@@ -124,7 +124,7 @@ pub struct LevelContrast {
 }
 
 /// Where the Johnson–Neyman inequality holds.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Region {
     /// Significant for every value.
@@ -156,7 +156,7 @@ impl Region {
 }
 
 /// What kind of quantity a region of significance or a simple slope is about.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum QuantityKind {
     /// The conditional mean effect (regions only).
@@ -181,7 +181,7 @@ impl QuantityKind {
 }
 
 /// A Johnson–Neyman region of significance along one numeric moderator.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct RegionOfSignificance {
     /// The numeric moderator along which the quantity changes.
     pub moderator: String,
@@ -223,7 +223,7 @@ pub struct RegionOfSignificance {
 }
 
 /// How the picture changes once the moderators are in the model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct PictureChange {
     /// Pooled effect without moderators.
     pub pooled: Estimate,
@@ -244,7 +244,7 @@ pub struct PictureChange {
 }
 
 /// Hunter–Schmidt artifact corrections applied to the correlations.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ArtifactReport {
     /// Which corrections were applied, in the order applied.
     pub corrections: Vec<String>,
@@ -259,7 +259,7 @@ pub struct ArtifactReport {
 }
 
 /// One study's artifact correction.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ArtifactStudy {
     /// Label.
     pub study: String,

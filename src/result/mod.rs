@@ -30,6 +30,7 @@ mod model;
 pub mod plan;
 mod predict;
 mod routes;
+pub mod schema;
 mod sensitivity;
 mod sites;
 mod spread;
@@ -52,7 +53,7 @@ use crate::input::Delimiter;
 use serde::Serialize;
 
 /// Everything `pondus fit` reports.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct FitReport {
     /// Tool name and version.
     pub tool: ToolInfo,
@@ -163,7 +164,7 @@ pub struct FitReport {
 }
 
 /// Tool name and version.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ToolInfo {
     /// Always "pondus".
     pub name: String,
@@ -172,7 +173,7 @@ pub struct ToolInfo {
 }
 
 /// Where the data came from.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct InputInfo {
     /// File name as given (`<stdin>` for standard input).
     pub file: String,
@@ -212,7 +213,7 @@ impl InputInfo {
 }
 
 /// The effect measure.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct MeasureInfo {
     /// Command-line name, e.g. "r" or "log-or" ("r-corrected" after artifact corrections).
     pub id: MeasureId,
@@ -252,10 +253,33 @@ impl Serialize for MeasureId {
     }
 }
 
+/// Written by hand, as its `Serialize` is: a string, one of the measures'
+/// ids or `r-corrected`.
+impl schemars::JsonSchema for MeasureId {
+    fn schema_name() -> std::borrow::Cow<'static, str> {
+        "MeasureId".into()
+    }
+
+    fn json_schema(_: &mut schemars::SchemaGenerator) -> schemars::Schema {
+        let ids: Vec<&str> = Measure::ALL
+            .iter()
+            .map(|m| MeasureId::Measure(*m))
+            .chain([MeasureId::RCorrected])
+            .map(MeasureId::id)
+            .collect();
+        schemars::json_schema!({
+            "description": "The measure's command-line name, or \"r-corrected\" for \
+                            artifact-corrected correlations.",
+            "type": "string",
+            "enum": ids,
+        })
+    }
+}
+
 display_by_id!(MeasureId);
 
 /// Which studies the average effect of a moderator model pools.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct AverageBasis {
     /// Studies pooled: the k studies complete for the moderator model.
     pub studies: usize,
@@ -266,7 +290,7 @@ pub struct AverageBasis {
 }
 
 /// A row left out of the model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Excluded {
     /// Study label.
     pub study: String,
@@ -277,7 +301,7 @@ pub struct Excluded {
 }
 
 /// One included study.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Study {
     /// Label.
     pub study: String,

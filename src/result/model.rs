@@ -6,7 +6,7 @@ use super::estimate::{ContrastTest, Interval, RatioCoefficient};
 use serde::Serialize;
 
 /// Which τ² estimator.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Tau2Method {
     /// Restricted maximum likelihood.
@@ -54,7 +54,7 @@ impl Tau2Method {
 }
 
 /// How coefficients are tested.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Inference {
     /// Knapp & Hartung (2003): t and F with the covariance scaled by the
@@ -96,7 +96,7 @@ impl Inference {
 }
 
 /// How the τ² estimate was reached.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Ending {
     /// A closed-form estimate, positive.
@@ -112,7 +112,7 @@ pub enum Ending {
 }
 
 /// The kind of a moderator, as found in the data.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 #[serde(tag = "type", rename_all = "lowercase")]
 pub enum ModeratorKind {
     /// A number per study.
@@ -144,7 +144,7 @@ pub enum ModeratorKind {
 }
 
 /// A moderator as used in the model.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Moderator {
     /// Column header.
     pub name: String,
@@ -153,7 +153,7 @@ pub struct Moderator {
 }
 
 /// The model that was fitted.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ModelInfo {
     /// τ² estimator id ("reml", "ml", "dl", "pm", "he", "sj", "none").
     pub tau2_method: Tau2Method,
@@ -181,7 +181,7 @@ pub struct ModelInfo {
 }
 
 /// Residual between-study variance.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Tau2Report {
     /// Estimator id.
     pub method: Tau2Method,
@@ -199,7 +199,7 @@ pub struct Tau2Report {
 }
 
 /// One coefficient.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Coefficient {
     /// Term label.
     pub term: String,
@@ -227,7 +227,7 @@ pub struct Coefficient {
 }
 
 /// The reference distribution of the omnibus moderator test.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub enum TestDistribution {
     /// F (kh, and the robust test).
     #[serde(rename = "F")]
@@ -248,7 +248,7 @@ impl TestDistribution {
 }
 
 /// A moderator test other than the model-based one.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 pub enum RobustTestMethod {
     /// The CR2 approximate Hotelling T² test (`--robust`).
     #[serde(rename = "CR2 approximate Hotelling T² (HTZ)")]
@@ -265,7 +265,7 @@ impl RobustTestMethod {
 }
 
 /// The omnibus moderator test.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ModeratorTest {
     /// F (kh) or chi-square (z).
     pub statistic: f64,
@@ -290,7 +290,7 @@ pub struct ModeratorTest {
 /// The answer with the Knapp–Hartung scale factor floored at 1 (what
 /// `--inference kh-floor` gives), reported beside the chosen answer whenever
 /// a raw factor s² is below 1, under any inference.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct FlooredCheck {
     /// Raw factor s² of the model with moderators (null without moderators).
     pub scale_factor: Option<f64>,
@@ -309,7 +309,7 @@ pub struct FlooredCheck {
 }
 
 /// The moderator test under the floored factor.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct FlooredTest {
     /// F statistic.
     pub statistic: f64,
@@ -324,7 +324,7 @@ pub struct FlooredTest {
 }
 
 /// The average effect under the floored factor (analysis scale).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct FlooredAverage {
     /// Standard error with the floored factor.
     pub se: f64,
@@ -336,7 +336,7 @@ pub struct FlooredAverage {
 }
 
 /// Residual heterogeneity.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Heterogeneity {
     /// Cochran's Q on the residuals with common-effect weights.
     pub q: f64,

@@ -5,7 +5,7 @@
 use serde::Serialize;
 
 /// The test of the moderator coefficient.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum PlanTest {
     /// Wald z test with τ² taken as known: power from the noncentral chi-square.
@@ -15,7 +15,7 @@ pub enum PlanTest {
 }
 
 /// One row of the power table.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct PowerRow {
     /// Number of sites.
     pub k: usize,
@@ -25,7 +25,7 @@ pub struct PowerRow {
 }
 
 /// The result of a power simulation.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct Simulated {
     /// Share of the usable simulated data sets with p < α.
     pub power: f64,
@@ -40,7 +40,7 @@ pub struct Simulated {
 }
 
 /// The simulated check of the k proposed by the noncentral F approximation.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct SimulatedK {
     /// Smallest k whose simulated power reached the target among those
     /// simulated (null when none did within the bound).
@@ -58,7 +58,7 @@ pub struct SimulatedK {
 /// The one answer for the number of sites needed (`k_needed_answer`): the
 /// k the report stands by, the method it comes from, and the other
 /// method's k shown beside it as a check.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct KNeeded {
     /// The k needed (null when the target is not reached within `max_k`,
     /// or by the simulated values of k).
@@ -77,7 +77,7 @@ pub struct KNeeded {
 }
 
 /// One simulated k.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, schemars::JsonSchema)]
 pub struct KPower {
     /// Number of sites.
     pub k: usize,
@@ -88,7 +88,7 @@ pub struct KPower {
 }
 
 /// The answer of `pondus plan`.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct PlanReport {
     /// Measure (`r`, `smd`, `slope`, `effect`).
     pub measure: &'static str,

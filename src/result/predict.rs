@@ -7,7 +7,7 @@ use serde::Serialize;
 use std::collections::BTreeMap;
 
 /// A predicted effect at given moderator values.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Prediction {
     /// Moderator values.
     pub at: BTreeMap<String, AtValue>,
@@ -23,7 +23,7 @@ pub struct Prediction {
 
 /// Per-level summaries of one categorical moderator (for grouped forest
 /// plots and per-level bubble plots).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Subgroups {
     /// The moderator's name.
     pub moderator: String,
@@ -34,7 +34,7 @@ pub struct Subgroups {
 }
 
 /// One level of a categorical moderator.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct LevelSummary {
     /// The level.
     pub level: String,
@@ -53,7 +53,7 @@ pub struct LevelSummary {
 }
 
 /// The fitted meta-regression line along one numeric moderator.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Curve {
     /// The moderator's name.
     pub moderator: String,
@@ -64,7 +64,7 @@ pub struct Curve {
 }
 
 /// One point of a [`Curve`], on the analysis scale.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct CurvePoint {
     /// The moderator's value.
     pub x: f64,

@@ -5,7 +5,7 @@ use crate::effect::route::{Derivation, Route};
 use serde::Serialize;
 
 /// The studies whose effects came from one route.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct RouteCount {
     /// The route, as in `studies[].computed_from`.
     pub computed_from: Route,

@@ -8,7 +8,7 @@ use super::model::Coefficient;
 use serde::Serialize;
 
 /// The direction of effect that the selection favours (`--favoured`).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Favoured {
     /// Positive effects are the "significant" ones: p_i = 1 − Φ(y_i/√v_i).
@@ -29,7 +29,7 @@ impl Favoured {
 }
 
 /// The step-function selection model (`--selection`; Vevea & Hedges 1995).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SelectionModel {
     /// The one-sided p-value cut points, ascending.
     pub cutpoints: Vec<f64>,
@@ -58,7 +58,7 @@ pub struct SelectionModel {
 }
 
 /// The weight of one p-value interval.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SelectionWeight {
     /// Lower end of the one-sided p interval (inclusive).
     pub from: f64,
@@ -77,7 +77,7 @@ pub struct SelectionWeight {
 }
 
 /// A likelihood-ratio test.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct LikelihoodRatio {
     /// 2(ℓ₁ − ℓ₀).
     pub statistic: f64,
@@ -90,7 +90,7 @@ pub struct LikelihoodRatio {
 /// One meta-regression of PET or PEESE: the intercept (the effect of a
 /// study with no sampling error) and the slope on the standard error (PET)
 /// or the variance (PEESE), each with a t test on k − p − 1 df.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct PrecisionRegression {
     /// The intercept (with moderators: at every moderator 0, the model's reference).
     pub intercept: ContrastTest,
@@ -103,7 +103,7 @@ pub struct PrecisionRegression {
 }
 
 /// Which of PET and PEESE the conditional estimate takes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum PetPeeseChoice {
     /// PET's intercept (its test did not reject 0 at two-sided α = 0.10).
@@ -123,7 +123,7 @@ impl PetPeeseChoice {
 }
 
 /// The conditional PET-PEESE estimate (Stanley & Doucouliagos 2014).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ConditionalEstimate {
     /// Which intercept was used.
     pub used: PetPeeseChoice,
@@ -133,7 +133,7 @@ pub struct ConditionalEstimate {
 }
 
 /// An adjustment (a row of the sensitivity view).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Adjustment {
     /// The model as fitted.
@@ -174,7 +174,7 @@ impl Adjustment {
 
 /// What an adjustment does to the unadjusted conclusion about a quantity
 /// (significance at the model's level, and sign).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Verdict {
     /// Different from 0 before and after, with the same sign.
@@ -203,7 +203,7 @@ impl Verdict {
 }
 
 /// One row of the sensitivity view.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SensitivityRow {
     /// The adjustment.
     pub adjustment: Adjustment,
@@ -223,7 +223,7 @@ pub struct SensitivityRow {
 }
 
 /// A row's estimate and interval on the reading scale.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct ReadingRow {
     /// Estimate.
     pub estimate: f64,
@@ -233,7 +233,7 @@ pub struct ReadingRow {
 }
 
 /// One quantity of the sensitivity view: the average effect or a moderator coefficient.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SensitivityQuantity {
     /// "average effect" or the coefficient's term label.
     pub quantity: String,
@@ -244,7 +244,7 @@ pub struct SensitivityQuantity {
 }
 
 /// The sensitivity view (with `--small-study` or `--selection`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Sensitivity {
     /// The average effect first, then each moderator coefficient in model order.
     pub quantities: Vec<SensitivityQuantity>,

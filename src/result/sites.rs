@@ -6,7 +6,7 @@ use crate::input::Delimiter;
 use serde::Serialize;
 
 /// What kind of table `pondus sites` read.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum SitesInputKind {
     /// Participant rows.
@@ -26,7 +26,7 @@ impl SitesInputKind {
 }
 
 /// The standard errors of the per-site slopes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum SeType {
     /// The classical OLS standard errors.
@@ -48,7 +48,7 @@ impl SeType {
 /// The result of `pondus sites`: per-site effects from participant rows (or
 /// from a per-site moments table), the join with the site table, and, with
 /// `--fit`, the two second-stage answers.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SitesReport {
     /// Program name and version.
     pub tool: ToolInfo,
@@ -69,7 +69,7 @@ pub struct SitesReport {
 }
 
 /// What `pondus sites` read.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SitesInput {
     /// File name as given (`<stdin>` for standard input).
     pub file: String,
@@ -91,7 +91,7 @@ pub struct SitesInput {
 }
 
 /// The per-site models.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SitesModel {
     /// Column of the site ids.
     pub site: String,
@@ -110,7 +110,7 @@ pub struct SitesModel {
 }
 
 /// One site's estimates: the row of the effects file.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SiteEffect {
     /// Site id.
     pub study: String,
@@ -137,7 +137,7 @@ pub struct SiteEffect {
 }
 
 /// A site without an estimate.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ExcludedSite {
     /// Site id.
     pub study: String,
@@ -148,7 +148,7 @@ pub struct ExcludedSite {
 }
 
 /// The join with the site-characteristics table.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SiteJoin {
     /// The site table.
     pub file: String,
@@ -163,7 +163,7 @@ pub struct SiteJoin {
 }
 
 /// Both second-stage answers of `pondus sites --fit`.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct TwoStage {
     /// Random-effects pooling of the per-site product terms (within-site moderation; null without `--w`).
     pub within: Option<FitReport>,

@@ -8,7 +8,7 @@ use super::Tau2Method;
 use serde::Serialize;
 
 /// The location-scale model's answer about the spread (`--spread-by`).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Spread {
     /// The characteristics named with `--spread-by`, in the order given.
     pub spread_by: Vec<String>,
@@ -34,7 +34,7 @@ pub struct Spread {
 }
 
 /// One coefficient of ln τ² (log τ² scale).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SpreadCoefficient {
     /// `intercept`, a numeric term's name, or `name=level` of a dummy.
     pub term: String,
@@ -52,7 +52,7 @@ pub struct SpreadCoefficient {
 }
 
 /// The likelihood-ratio test of the spread terms.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct SpreadTest {
     /// 2(ℓ_location-scale − ℓ_one τ²).
     pub statistic: f64,
@@ -63,7 +63,7 @@ pub struct SpreadTest {
 }
 
 /// τ² at one value of one spread term.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Tau2At {
     /// The spread term (the column's name).
     pub term: String,
@@ -81,7 +81,7 @@ pub struct Tau2At {
 }
 
 /// A study under the location-scale model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct SpreadStudy {
     /// The study's label.
     pub study: String,

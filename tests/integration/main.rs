@@ -21,6 +21,7 @@ mod reliability;
 mod report;
 mod routes;
 mod safety;
+mod schema;
 mod selection;
 mod sites;
 mod spread;
