@@ -123,6 +123,7 @@ flags! {
     Y => "--y", ["sites", "sql"];
     W => "--w", ["sites", "sql"];
     Covariate => "--covariate", ["sites", "sql"];
+    Engine => "--engine", ["sql"];
     Moments => "--moments", ["sites"];
     Info => "--info", ["sites"];
     InfoKey => "--info-key", ["sites"];

@@ -94,6 +94,8 @@ const CASES: &[Case] = &[
     Case { id: "sql-query", steps: &[
         "sql --table choir_rows --site choir --x rehearsal_hours --y breath_hold_s --w age",
         "sql --table lab.rows --site site --x dose --y outcome --covariate sex --covariate age",
+        "sql --table choir_rows --site choir --x rehearsal_hours --y breath_hold_s --w age --engine sqlite",
+        "sql --table lab.rows --site site --x dose --y outcome --covariate sex --engine spark",
     ] },
     // Help texts: the flags and their wording are part of what the CLI prints.
     Case { id: "help", steps: &["--help", "fit --help", "plan --help", "sites --help", "sql --help"] },
