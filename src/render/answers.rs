@@ -2,7 +2,7 @@
 //! the chance that a new study's true effect exceeds a value (`--beyond`)
 //! and the shrunken estimates (`--shrink`).
 
-use super::layout::{clip, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
+use super::layout::{clip, column_width, lpad, pad, width, wrap, Ctx, MAX_LISTED_STUDIES};
 use crate::result::{AtValue, FitReport};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
@@ -87,13 +87,7 @@ pub fn shrunken(r: &FitReport, cx: &Ctx, o: &mut String) {
         "Shrunken estimates of each study's true effect{}",
         reading.map(|n| format!(" (as {n})")).unwrap_or_default()
     );
-    let lw = r
-        .studies
-        .iter()
-        .map(|s| width(&s.study))
-        .max()
-        .unwrap_or(5)
-        .clamp(5, 30);
+    let lw = column_width(r.studies.iter().map(|s| width(&s.study)), 5, 30);
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}",
@@ -205,13 +199,7 @@ pub fn model_set(r: &FitReport, cx: &Ctx, o: &mut String) {
         .collect();
     let _ = writeln!(o, "  Importance (summed Akaike weight): {}", imp.join(", "));
     let _ = writeln!(o, "  Model-averaged coefficients (unconditional SE):");
-    let cw = ms
-        .averaged
-        .iter()
-        .map(|a| width(&a.term))
-        .max()
-        .unwrap_or(5)
-        .clamp(5, 30);
+    let cw = column_width(ms.averaged.iter().map(|a| width(&a.term)), 5, 30);
     for a in &ms.averaged {
         let _ = writeln!(
             o,

@@ -3,8 +3,8 @@
 //! public result only.
 
 use super::layout::{
-    clip, fit_columns, head_with_text, last_column_room, lpad, pad, row_with_text, width, wrap,
-    Ctx, MAX_LISTED_STUDIES,
+    clip, column_width, fit_columns, head_with_text, last_column_room, lpad, pad, row_with_text,
+    width, wrap, Ctx, MAX_LISTED_STUDIES,
 };
 use crate::result::{
     AtValue, ConclusionChange, ConclusionKind, FitReport, InfluenceFlag, LeaveOneOut,
@@ -14,7 +14,7 @@ use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
 fn label_width(labels: impl Iterator<Item = usize>) -> usize {
-    labels.max().unwrap_or(5).clamp(5, 28)
+    column_width(labels, 5, 28)
 }
 
 /// A reversed conclusion in a few words: "moderator test lost",
@@ -617,12 +617,7 @@ pub fn cumulative(r: &FitReport, cx: &Ctx, o: &mut String) {
             }
         );
         let lw = label_width(steps.iter().map(|s| width(&s.study)));
-        let vw = steps
-            .iter()
-            .map(|s| width(&value_text(&s.value)))
-            .max()
-            .unwrap_or(5)
-            .clamp(5, 16);
+        let vw = column_width(steps.iter().map(|s| width(&value_text(&s.value))), 5, 16);
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}  {}  {}",

@@ -154,6 +154,12 @@ pub(super) fn width(s: &str) -> usize {
     s.chars().count()
 }
 
+/// The width of a column of cells of these widths: the widest, kept
+/// within `min..=max` (`min` when there is no cell).
+pub(super) fn column_width(widths: impl Iterator<Item = usize>, min: usize, max: usize) -> usize {
+    widths.max().unwrap_or(min).clamp(min, max)
+}
+
 /// `s` followed by blanks up to `w` characters (unchanged when wider).
 pub(super) fn pad(s: &str, w: usize) -> String {
     let n = width(s);

@@ -2,7 +2,8 @@
 //! [`SitesReport`].
 
 use super::layout::{
-    bullets, clip, fact, heading, pad, title, trim_lines, width, MIN_TEXT_WIDTH, TEXT_WIDTH,
+    bullets, clip, column_width, fact, heading, pad, title, trim_lines, width, MIN_TEXT_WIDTH,
+    TEXT_WIDTH,
 };
 use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
 use crate::support::flag::Flag;
@@ -218,13 +219,7 @@ fn site_table(o: &mut String, r: &SitesReport) {
         return;
     }
     let with_w = m.w.is_some();
-    let lw = r
-        .sites
-        .iter()
-        .map(|s| width(&s.study))
-        .max()
-        .unwrap_or(4)
-        .clamp(4, 28);
+    let lw = column_width(r.sites.iter().map(|s| width(&s.study)), 4, 28);
     let dec = |xs: &mut dyn Iterator<Item = f64>| fmt::column_decimals(xs);
     let (slope_d, se_d) = (
         dec(&mut r.sites.iter().map(|s| s.slope)),

@@ -2,7 +2,7 @@
 //! does the spread differ with each characteristic, and by how much on the
 //! τ scale; shared by the terminal report and the HTML page.
 
-use super::layout::{lpad, pad, width, Ctx};
+use super::layout::{column_width, lpad, pad, width, Ctx};
 use crate::result::{FitReport, Spread, SpreadCoefficient, Tau2At};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
@@ -146,13 +146,7 @@ pub fn section(r: &FitReport, cx: &Ctx, o: &mut String) {
         "Spread coefficients (ln τ², location-scale model by {}; Wald z)",
         s.method.id().to_uppercase()
     );
-    let tw = s
-        .coefficients
-        .iter()
-        .map(|c| width(&c.term))
-        .max()
-        .unwrap_or(4)
-        .clamp(9, 28);
+    let tw = column_width(s.coefficients.iter().map(|c| width(&c.term)), 9, 28);
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}  p",

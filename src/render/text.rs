@@ -3,7 +3,7 @@
 //! terminal reports is described in [`super::layout`].
 
 use super::layout::{
-    bullets, clip, fact, lpad, pad, title, trim_lines, width, Ctx, Section, Shown,
+    bullets, clip, column_width, fact, lpad, pad, title, trim_lines, width, Ctx, Section, Shown,
     MAX_LISTED_STUDIES, TEXT_WIDTH,
 };
 use super::{answers, diagnostics, interpret, multilevel, sensitivity, spread};
@@ -225,13 +225,7 @@ fn coefficients(r: &FitReport, cx: &Ctx, o: &mut String) {
         ""
     };
     let _ = writeln!(o, "Coefficients{scale}{from}");
-    let tw = r
-        .coefficients
-        .iter()
-        .map(|c| width(&c.term))
-        .max()
-        .unwrap_or(4)
-        .clamp(9, 28);
+    let tw = column_width(r.coefficients.iter().map(|c| width(&c.term)), 9, 28);
     let stat = if r.model.inference.uses_t() { "t" } else { "z" };
     let rows: Vec<Shown> = r.coefficients.iter().map(Shown::of).collect();
     let cw = rows
@@ -409,11 +403,19 @@ pub(crate) fn average_basis_text(r: &FitReport) -> Option<String> {
     (dropped > 0).then(|| {
         format!(
             "pools {} of {} studies, those complete for the moderators: {dropped} {} with an \
-             effect but a missing moderator value {} left out of both models, so this average \
+             effect but a missing {} {} left out of both models, so this average \
              can differ from one fitted to all {}.",
             b.studies,
             b.with_effect,
             if dropped == 1 { "row" } else { "rows" },
+            if r.spread.is_some() {
+                format!(
+                    "moderator or spread-characteristic ({}) value",
+                    Flag::SpreadBy
+                )
+            } else {
+                "moderator value".to_string()
+            },
             if dropped == 1 { "is" } else { "are" },
             b.with_effect
         )
@@ -456,13 +458,7 @@ fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
         return;
     }
     let _ = writeln!(o, "Studies");
-    let lw = r
-        .studies
-        .iter()
-        .map(|s| width(&s.study))
-        .max()
-        .unwrap_or(5)
-        .clamp(5, 30);
+    let lw = column_width(r.studies.iter().map(|s| width(&s.study)), 5, 30);
     let _ = writeln!(
         o,
         "  {}  {}  {}  {}  {}",

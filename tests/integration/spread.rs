@@ -292,3 +292,47 @@ fn spread_by_with_shrink_uses_each_studys_tau2() {
         );
     }
 }
+
+/// A row left out for a missing `--spread-by` value is said as such in the
+/// average's "pools N of M" sentence, not as a missing moderator value.
+#[test]
+fn a_missing_spread_value_is_named_in_what_the_average_pools() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(repo("data-examples/consortium-correlations.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    // The third lab's mode (the last column) left empty.
+    let cut = lines[3].rfind(',').unwrap();
+    lines[3].truncate(cut + 1);
+    let path = write(
+        dir.path(),
+        "one-mode-missing.csv",
+        &(lines.join("\n") + "\n"),
+    );
+    let out = Command::cargo_bin("pondus")
+        .unwrap()
+        .args([
+            "fit",
+            &path,
+            "--measure",
+            "r",
+            "--moderator",
+            "session_minutes",
+        ])
+        .args(["--spread-by", "mode"])
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout)
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(stdout.contains("pools 23 of 24 studies"), "{stdout}");
+    assert!(
+        stdout.contains("missing moderator or spread-characteristic (--spread-by) value"),
+        "{stdout}"
+    );
+}
