@@ -62,12 +62,19 @@ pub fn t_two_sided_p(t: f64, df: f64) -> f64 {
 }
 
 /// Upper-tail probability P(X > x) of chi-square with `df` degrees of freedom.
+///
+/// An x so small that x/2 underflows to 0 (below about 1e-323) gives 1, and
+/// x = +∞ gives 0, without calling `statrs`: its incomplete gamma function
+/// panics on a zero argument (found by the `fit_numbers` fuzz target, a
+/// residual Q of 5e-324).
 pub fn chi2_sf(x: f64, df: f64) -> f64 {
     if x.is_nan() {
         return f64::NAN;
     }
     match ChiSquared::new(df) {
-        Ok(d) => d.sf(x.max(0.0)),
+        Ok(_) if x / 2.0 <= 0.0 => 1.0,
+        Ok(_) if x.is_infinite() => 0.0,
+        Ok(d) => d.sf(x),
         Err(_) => f64::NAN,
     }
 }
@@ -78,7 +85,9 @@ pub fn f_sf(x: f64, df1: f64, df2: f64) -> f64 {
         return f64::NAN;
     }
     match FisherSnedecor::new(df1, df2) {
-        Ok(d) => d.sf(x.max(0.0)),
+        Ok(_) if x <= 0.0 => 1.0,
+        Ok(_) if x.is_infinite() => 0.0,
+        Ok(d) => d.sf(x),
         Err(_) => f64::NAN,
     }
 }
@@ -196,5 +205,23 @@ mod tests {
         assert!((t_two_sided_p(2.228_138_851_964_938, 10.0) - 0.05).abs() < 1e-10);
         assert!((chi2_sf(3.841_458_820_694_124, 1.0) - 0.05).abs() < 1e-12);
         assert!(t_two_sided_p(0.0, 5.0) == 1.0);
+    }
+
+    #[test]
+    fn tails_at_the_ends_of_the_range_do_not_panic() {
+        // statrs' incomplete gamma panics when x/2 underflows to 0.
+        assert_eq!(chi2_sf(5e-324, 3.0), 1.0);
+        assert_eq!(chi2_sf(0.0, 3.0), 1.0);
+        assert_eq!(chi2_sf(-1.0, 3.0), 1.0);
+        assert_eq!(chi2_sf(f64::INFINITY, 3.0), 0.0);
+        assert!((chi2_sf(1e-300, 1.0) - 1.0).abs() < 1e-12);
+        assert_eq!(f_sf(5e-324, 2.0, 5.0), 1.0);
+        assert_eq!(f_sf(f64::INFINITY, 2.0, 5.0), 0.0);
+        assert!(chi2_sf(f64::NAN, 3.0).is_nan());
+        // Siblings: the t and normal tails at the same ends.
+        assert_eq!(t_two_sided_p(f64::INFINITY, 5.0), 0.0);
+        assert_eq!(t_two_sided_p(5e-324, 5.0), 1.0);
+        assert_eq!(normal_two_sided_p(f64::INFINITY), 0.0);
+        assert_eq!(normal_two_sided_p(5e-324), 1.0);
     }
 }

@@ -72,7 +72,8 @@ pub fn ncx2_sf(x: f64, df: f64, lambda: f64) -> f64 {
     if !(df > 0.0 && (0.0..=NONCENTRAL_LAMBDA_MAX).contains(&lambda)) || x.is_nan() {
         return f64::NAN;
     }
-    if x <= 0.0 {
+    // x/2 underflowing to 0 counts as 0: statrs' incomplete gamma panics on it.
+    if x / 2.0 <= 0.0 {
         return 1.0;
     }
     poisson_mixture(lambda / 2.0, |j| gamma_ur(df / 2.0 + j as f64, x / 2.0)).clamp(0.0, 1.0)
@@ -88,7 +89,7 @@ pub fn ncx2_cdf(x: f64, df: f64, lambda: f64) -> f64 {
     if !(df > 0.0 && (0.0..=NONCENTRAL_LAMBDA_MAX).contains(&lambda)) || x.is_nan() {
         return f64::NAN;
     }
-    if x <= 0.0 {
+    if x / 2.0 <= 0.0 {
         return 0.0;
     }
     poisson_mixture(lambda / 2.0, |j| gamma_lr(df / 2.0 + j as f64, x / 2.0)).clamp(0.0, 1.0)
