@@ -66,7 +66,7 @@ pub fn t_two_sided_p(t: f64, df: f64) -> f64 {
 /// An x so small that x/2 underflows to 0 (below about 1e-323) gives 1, and
 /// x = +∞ gives 0, without calling `statrs`: its incomplete gamma function
 /// panics on a zero argument (found by the `fit_numbers` fuzz target, a
-/// residual Q of 5e-324).
+/// residual Q below about 1e-323).
 pub fn chi2_sf(x: f64, df: f64) -> f64 {
     if x.is_nan() {
         return f64::NAN;
