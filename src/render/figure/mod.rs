@@ -86,18 +86,45 @@ pub enum SortKey {
     Effect,
     /// Most precise (smallest variance) first.
     Precision,
-    /// By a moderator's value (numbers ascending, levels in their order).
-    Moderator(String),
+    /// By a moderator's value (numbers ascending, levels in their order) or
+    /// by another column of the data carried in each study's
+    /// [`cells`](crate::result::Study::cells) (numbers ascending when every
+    /// cell is a number, else text in alphabetical order; empty cells last).
+    Column(String),
 }
 
 impl SortKey {
-    /// Parses `effect`, `precision`, `input` or a moderator name.
+    /// Parses `effect`, `precision`, `input` or a column's name.
     pub fn parse(text: &str) -> SortKey {
         match text {
             "input" => SortKey::Input,
             "effect" => SortKey::Effect,
             "precision" => SortKey::Precision,
-            name => SortKey::Moderator(name.to_string()),
+            name => SortKey::Column(name.to_string()),
+        }
+    }
+}
+
+/// How the rows of a forest plot are grouped.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub enum GroupBy {
+    /// By the first categorical moderator, with each level's own average.
+    #[default]
+    Auto,
+    /// Not grouped.
+    Off,
+    /// By a column: a categorical moderator (with each level's own average)
+    /// or any column carried in each study's
+    /// [`cells`](crate::result::Study::cells).
+    Column(String),
+}
+
+impl GroupBy {
+    /// Parses `none` or a column's name.
+    pub fn parse(text: &str) -> GroupBy {
+        match text {
+            "none" => GroupBy::Off,
+            name => GroupBy::Column(name.to_string()),
         }
     }
 }
@@ -123,6 +150,14 @@ pub struct PlotOptions {
     pub title: Option<String>,
     /// The forest plot's value-axis title (None: the reading scale in words).
     pub x_label: Option<String>,
+    /// Columns of the data drawn as text columns beside the forest plot's
+    /// labels (each carried in the studies' [`cells`](crate::result::Study::cells)).
+    pub columns: Vec<String>,
+    /// How the forest plot's rows are grouped.
+    pub group_by: GroupBy,
+    /// Size of the forest plot's row text in points (None: from the row
+    /// height); its other text keeps its proportions to it.
+    pub font_size: Option<f64>,
 }
 
 impl Default for PlotOptions {
@@ -137,6 +172,9 @@ impl Default for PlotOptions {
             contours: false,
             title: None,
             x_label: None,
+            columns: Vec::new(),
+            group_by: GroupBy::Auto,
+            font_size: None,
         }
     }
 }

@@ -1,6 +1,7 @@
 //! Drawing the laid-out forest plot: the header, the backdrop (bands and
 //! guides), each kind of row, the axis and the caption, in that order.
 
+use super::columns::GAP;
 use super::layout::{Forest, Row};
 use crate::effect::route::Derivation;
 use crate::render::figure::palette::*;
@@ -57,14 +58,15 @@ impl Forest<'_> {
         let hy = 70.0;
         let head = self.fs_max.min(13.0);
         sc.text((margin, hy), "Study", head, INK, Align::Left);
-        if let Some(col) = &self.sort_col {
-            sc.text(
-                (margin + self.label_w, hy),
-                col.head.clone(),
-                head,
-                INK,
-                Align::Right,
-            );
+        let mut x = margin + self.name_w;
+        for col in &self.cols {
+            let (at, align) = if col.right {
+                (x + col.width, Align::Right)
+            } else {
+                (x + GAP, Align::Left)
+            };
+            sc.text((at, hy), col.head.clone(), head, INK, align);
+            x += col.width;
         }
         sc.text(
             (self.ci_right(), hy),
@@ -143,14 +145,23 @@ impl Forest<'_> {
             INK,
             Align::Left,
         );
-        if let Some(col) = &self.sort_col {
+        let mut x = margin + self.name_w;
+        for col in &self.cols {
+            let (at, align) = if col.right {
+                (x + col.width, Align::Right)
+            } else {
+                (x + GAP, Align::Left)
+            };
+            let ink = if col.muted { MUTED } else { INK };
             sc.text(
-                (margin + self.label_w, y),
-                fit_text(&col.values[i], fs, col.width - 12.0),
+                (at, y),
+                // Half a pixel of slack: the width was measured on these very cells.
+                fit_text(&col.values[i], fs, col.width - GAP + 0.5),
                 fs,
-                MUTED,
-                Align::Right,
+                ink,
+                align,
             );
+            x += col.width;
         }
         self.band_bar(sc, i, y);
         self.study_marks(sc, s, y);
