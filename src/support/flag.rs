@@ -82,6 +82,7 @@ flags! {
     XLabel => "--x-label", ["fit"];
     Columns => "--columns", ["fit"];
     GroupBy => "--group-by", ["fit"];
+    FontSize => "--font-size", ["fit"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];

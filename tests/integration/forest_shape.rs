@@ -252,3 +252,77 @@ fn rows_sort_by_any_column_numbers_numerically_and_text_in_order() {
         ]
     );
 }
+
+/// The `font-size` attribute of the first text element reading `t`.
+fn size_of(svg: &[Element], t: &str) -> f64 {
+    text_at(svg, t)[0].num("font-size")
+}
+
+#[test]
+fn font_size_sets_the_row_text_in_points_and_scales_the_rest_with_room() {
+    let (_dir, file) = data();
+    let (json, small) = plot(&file, "--forest OUT --font-size 10 --columns n", "a.svg");
+    let (_, large) = plot(&file, "--forest OUT --font-size 20 --columns n", "b.svg");
+    let (a, b) = (parse_svg(&small), parse_svg(&large));
+    assert_eq!(count(&b, "circle", "fill", STUDY), k(&json));
+    // 10 points are 13.33 pixels; the SVG's font-size attribute is the
+    // em size, 1/1.24 of the text size pondus lays out with (font.rs).
+    let em = |pt: f64| pt * 96.0 / 72.0 / 1.24;
+    for (svg, pt) in [(&a, 10.0), (&b, 20.0)] {
+        for label in ["Abel 2009", "120.50"] {
+            assert!(
+                (size_of(svg, label) - em(pt)).abs() < 0.01,
+                "{label} at {pt} pt"
+            );
+        }
+    }
+    // The title, the column header and the axis title double with the rows' text.
+    for t in ["Study effects and their average", "n", "Study"] {
+        let ratio = size_of(&b, t) / size_of(&a, t);
+        assert!((ratio - 2.0).abs() < 0.01, "{t}: {ratio}");
+    }
+    // Rows make room: the distance between two rows' labels doubles, and
+    // the page grows taller.
+    let pitch = |svg: &[Element]| {
+        text_at(svg, "Borg 2015")[0].num("y") - text_at(svg, "Abel 2009")[0].num("y")
+    };
+    assert!((pitch(&b) / pitch(&a) - 2.0).abs() < 0.01);
+    assert!(pitch(&b) > 1.5 * size_of(&b, "Abel 2009"));
+    let height = |svg: &[Element]| svg[0].num("height");
+    assert!(height(&b) > 1.8 * height(&a));
+}
+
+#[test]
+fn bad_font_sizes_are_refused_and_nothing_is_written() {
+    let (dir, file) = data();
+    let out = dir.path().join("f.png");
+    for bad in ["0", "-2", "4.9", "31", "1000", "NaN", "inf"] {
+        let o = pondus(
+            &file,
+            &format!("--forest {} --font-size {bad}", out.display()),
+        )
+        .output()
+        .unwrap();
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{bad}: {err}");
+        assert!(
+            err.contains("--font-size") && err.contains("5 to 30"),
+            "{bad}: {err}"
+        );
+        assert!(!out.exists(), "{bad}: nothing written");
+    }
+    // Text too large for the rows a fixed --height leaves.
+    let o = pondus(
+        &file,
+        &format!("--forest {} --font-size 30 --height 900", out.display()),
+    )
+    .output()
+    .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("--font-size") && err.contains("--height"),
+        "{err}"
+    );
+    assert!(!out.exists());
+}

@@ -32,6 +32,9 @@ pub struct PlotArgs {
     /// Group the forest plot's rows by this column, with a heading per group (a categorical moderator's groups also get their own averages), or none [default: the first categorical moderator].
     #[arg(long, value_name = "COL")]
     pub group_by: Option<String>,
+    /// Size of the forest plot's row text in points (1/72 inch at the figure's 96 pixels per inch; 5 to 30) [default: 10, smaller with many rows]; titles, axis and caption keep their proportions to it and the rows grow to fit it.
+    #[arg(long, value_name = "PT", allow_negative_numbers = true)]
+    pub font_size: Option<f64>,
     /// Mark each study's fitted value (from the moderators) in the forest plot.
     #[arg(long)]
     pub show_fitted: bool,
@@ -115,6 +118,19 @@ impl PlotArgs {
         let forest = self.forest.is_some() || report;
         needs("--columns", !self.columns.is_empty(), "--forest", forest)?;
         needs("--group-by", self.group_by.is_some(), "--forest", forest)?;
+        needs("--font-size", self.font_size.is_some(), "--forest", forest)?;
+        if let Some(pt) = self.font_size {
+            let (lo, hi) = figure::FONT_PT_RANGE;
+            if !(lo..=hi).contains(&pt) {
+                return Err(Error::usage(
+                    "--font-size",
+                    format!(
+                        "{pt} points is outside {lo} to {hi}; journals commonly ask for 7 to 12 \
+                         point text at the printed size"
+                    ),
+                ));
+            }
+        }
         for (n, c) in self.columns.iter().enumerate() {
             if c.trim().is_empty() {
                 return Err(Error::usage(
@@ -232,7 +248,7 @@ impl PlotArgs {
                 .as_deref()
                 .map(figure::GroupBy::parse)
                 .unwrap_or_default(),
-            font_size: None,
+            font_size: self.font_size,
         }
     }
 

@@ -186,6 +186,9 @@ pub const SIZE_RANGE: (u32, u32) = (200, 30_000);
 /// in draft prints; journals commonly ask for 300 to 600).
 pub const DEFAULT_DPI: u32 = 150;
 
+/// Smallest and largest accepted `--font-size`, in points.
+pub const FONT_PT_RANGE: (f64, f64) = (5.0, 30.0);
+
 /// Smallest and largest accepted `--dpi`.
 pub const DPI_RANGE: (u32, u32) = (36, 1200);
 
@@ -399,21 +402,33 @@ pub fn page_figures(
 /// The title (shortened to fit) and the subtitle naming the measure and the
 /// input file, at the top left of every plot.
 pub(crate) fn heading(sc: &mut Scene, report: &FitReport, title: &str, width: f64, margin: f64) {
+    heading_scaled(sc, report, title, (width, margin), 1.0);
+}
+
+/// [`heading`] with its text sizes and positions times `scale` (`--font-size`).
+pub(crate) fn heading_scaled(
+    sc: &mut Scene,
+    report: &FitReport,
+    title: &str,
+    (width, margin): (f64, f64),
+    scale: f64,
+) {
     let fit = |text: &str, size: f64| scene::fit_text(text, size, width - 2.0 * margin);
+    let (title_fs, small) = (size::TITLE * scale, size::SMALL * scale);
     sc.text(
-        (margin, 20.0),
-        fit(title, size::TITLE),
-        size::TITLE,
+        (margin, 20.0 * scale),
+        fit(title, title_fs),
+        title_fs,
         palette::INK,
         Align::Left,
     );
     sc.text(
-        (margin, 44.0),
+        (margin, 44.0 * scale),
         fit(
             &format!("{} · {}", report.measure.description, report.input.file),
-            size::SMALL,
+            small,
         ),
-        size::SMALL,
+        small,
         palette::MUTED,
         Align::Left,
     );
@@ -507,16 +522,26 @@ fn capitalised(text: &str) -> String {
 }
 
 /// Draws caption lines at the left margin, 17 pixels apart, the first at `cy`.
-pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, mut cy: f64) {
+pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, cy: f64) {
+    caption_scaled(sc, lines, (margin, cy), 1.0);
+}
+
+/// [`caption`] with its text size and line spacing times `scale` (`--font-size`).
+pub(crate) fn caption_scaled(
+    sc: &mut Scene,
+    lines: &[String],
+    (margin, mut cy): (f64, f64),
+    scale: f64,
+) {
     for line in lines {
         sc.text(
             (margin, cy),
             line.clone(),
-            size::SMALL,
+            size::SMALL * scale,
             palette::MUTED,
             Align::Left,
         );
-        cy += 17.0;
+        cy += 17.0 * scale;
     }
 }
 

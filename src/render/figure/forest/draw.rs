@@ -7,7 +7,9 @@ use crate::effect::route::Derivation;
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::Rgb;
 use crate::render::figure::scene::{fit_middle, fit_text};
-use crate::render::figure::{caption, heading, label_step, measure_name, size, Align, Scene};
+use crate::render::figure::{
+    caption_scaled, heading_scaled, label_step, measure_name, size, Align, Scene,
+};
 use crate::result::{Estimate, LevelSummary, Study};
 use crate::support::format as fmt;
 
@@ -22,7 +24,7 @@ impl Forest<'_> {
             match row {
                 Row::Gap => {}
                 Row::GroupHead(text) => {
-                    let fs = self.fs + 0.5;
+                    let fs = self.fs + 0.5 * self.scale;
                     sc.text(
                         (self.margin, y),
                         fit_text(text, fs, self.px0 - self.margin - 8.0 + self.ci_w),
@@ -54,9 +56,9 @@ impl Forest<'_> {
     /// Title, subtitle and the column headers.
     fn header(&self, sc: &mut Scene) {
         let (margin, width) = (self.margin, self.width);
-        heading(sc, self.report, &self.title, width, margin);
-        let hy = 70.0;
-        let head = self.fs_max.min(13.0);
+        heading_scaled(sc, self.report, &self.title, (width, margin), self.scale);
+        let hy = 70.0 * self.scale;
+        let head = self.fs_max.min(13.0 * self.scale);
         sc.text((margin, hy), "Study", head, INK, Align::Left);
         let mut x = margin + self.name_w;
         for col in &self.cols {
@@ -373,30 +375,25 @@ impl Forest<'_> {
 
     /// The value axis with its ticks and title, then the caption.
     fn axis_and_caption(&self, sc: &mut Scene) {
-        let (px0, px1) = (self.px0, self.px1);
+        let (px0, px1, k) = (self.px0, self.px1, self.scale);
+        let (small, label) = (size::SMALL * k, size::LABEL * k);
         let ay = self.rows_bottom() + 6.0;
         sc.line(vec![(px0, ay), (px1, ay)], INK, 1);
         let xs: Vec<f64> = self.axis.ticks.iter().map(|t| self.x_of(t.0)).collect();
-        let step = label_step(&xs, &self.axis.ticks, size::SMALL, true);
-        for (i, ((_, label), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
-            sc.line(vec![(*x, ay), (*x, ay + 5.0)], INK, 1);
+        let step = label_step(&xs, &self.axis.ticks, small, true);
+        for (i, ((_, text), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, ay), (*x, ay + 5.0 * k)], INK, 1);
             if i % step == 0 {
-                sc.text(
-                    (*x, ay + 15.0),
-                    label.clone(),
-                    size::SMALL,
-                    INK,
-                    Align::Center,
-                );
+                sc.text((*x, ay + 15.0 * k), text.clone(), small, INK, Align::Center);
             }
         }
         sc.text(
-            ((px0 + px1) / 2.0, ay + 36.0),
-            fit_text(&self.x_label, size::LABEL, px1 - px0 + 2.0 * self.margin),
-            size::LABEL,
+            ((px0 + px1) / 2.0, ay + 36.0 * k),
+            fit_text(&self.x_label, label, px1 - px0 + 2.0 * self.margin),
+            label,
             INK,
             Align::Center,
         );
-        caption(sc, &self.cap_lines, self.margin, ay + 62.0);
+        caption_scaled(sc, &self.cap_lines, (self.margin, ay + 62.0 * k), k);
     }
 }

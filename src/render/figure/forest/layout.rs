@@ -115,6 +115,10 @@ pub(super) struct Forest<'a> {
     pub height: u32,
     /// Text size in the rows.
     pub fs: f64,
+    /// The rows' text size fixed by `--font-size`, in pixels.
+    pub row_fs: Option<f64>,
+    /// Scale of the other text and the vertical spacing (`--font-size`; 1 without).
+    pub scale: f64,
     /// Number of rows.
     pub n_rows: usize,
     /// The largest study weight (the disc of that study is the largest).
@@ -215,7 +219,8 @@ impl<'a> Forest<'a> {
     /// # Errors
     /// [`Error::Usage`] naming `--width` when the columns leave less than
     /// 140 pixels for the plot area, or `--height` when a row would be
-    /// lower than 4 pixels.
+    /// lower than 4 pixels, or `--font-size` when its text does not fit the
+    /// rows `--height` leaves.
     pub fn new(
         report: &'a FitReport,
         opts: &PlotOptions,
@@ -223,14 +228,19 @@ impl<'a> Forest<'a> {
         n_rows: usize,
         axis: Axis,
     ) -> Result<Forest<'a>> {
-        let auto_rh = auto_row_height(n_rows);
+        // --font-size fixes the rows' text (points to pixels at 96 per
+        // inch); everything else scales with it from the default row text,
+        // rows included (a row is as high for its text as by default).
+        let row_fs = opts.font_size.map(|pt| pt * 96.0 / 72.0);
+        let scale = row_fs.map_or(1.0, |f| f / font(24.0));
+        let auto_rh = row_fs.map_or_else(|| auto_row_height(n_rows), |f| f / 0.56);
         let margin = 18.0;
-        let fs_max = font(auto_rh).max(12.0);
+        let fs_max = row_fs.unwrap_or_else(|| font(auto_rh).max(12.0));
         let cols = text_columns(
             report,
             (&opts.columns, &opts.sort),
             fs_max,
-            fs_max.min(13.0),
+            fs_max.min(13.0 * scale),
         )?;
         let cols_w: f64 = cols.iter().map(|c| c.width).sum();
         // Without --width the page widens by the text columns, so the plot
@@ -262,7 +272,7 @@ impl<'a> Forest<'a> {
             ci_w: 0.0,
             weight_w: text_width("Weight", fs_max).max(text_width("100.0%", fs_max)) + 12.0,
             label_w: 0.0,
-            name_w: (0.27 * (width - cols_w)).clamp(120.0, 340.0),
+            name_w: (0.27 * (width - cols_w)).clamp(120.0, 340.0 * scale.max(1.0)),
             cols,
             px0: 0.0,
             px1: 0.0,
@@ -273,10 +283,12 @@ impl<'a> Forest<'a> {
                 "Random-effects average"
             },
             cap_lines: Vec::new(),
-            top: 86.0, // title, subtitle, column headers
+            top: 86.0 * scale, // title, subtitle, column headers
             rh: auto_rh,
             height: 0,
             fs: 0.0,
+            row_fs,
+            scale,
             n_rows,
             w_max: report.studies.iter().map(|s| s.weight).fold(0.0, f64::max),
         };
@@ -382,7 +394,7 @@ impl<'a> Forest<'a> {
         }
         caption
             .iter()
-            .flat_map(|c| wrap(c, size::SMALL, self.width - 2.0 * self.margin))
+            .flat_map(|c| wrap(c, size::SMALL * self.scale, self.width - 2.0 * self.margin))
             .collect()
     }
 
@@ -390,7 +402,7 @@ impl<'a> Forest<'a> {
     /// the page grows with them.
     fn row_height(&mut self, height: Option<u32>) -> Result<()> {
         let (top, n_rows) = (self.top, self.n_rows);
-        let bottom = 62.0 + 17.0 * self.cap_lines.len() as f64; // axis + caption
+        let bottom = (62.0 + 17.0 * self.cap_lines.len() as f64) * self.scale; // axis + caption
         let (rh, height) = match height {
             Some(h) => {
                 let rh = (f64::from(h) - top - bottom) / n_rows as f64;
@@ -405,6 +417,21 @@ impl<'a> Forest<'a> {
                         ),
                     ));
                 }
+                if let Some(f) = self.row_fs.filter(|&f| rh < 1.1 * f) {
+                    return Err(Error::usage(
+                        Flag::FontSize,
+                        format!(
+                            "text of {:.1} points needs rows of at least {:.0} pixels, and {h} \
+                             pixels of {} leave {rh:.1} for each of {n_rows} rows; use a smaller \
+                             size, a larger {}, or leave {} out",
+                            f * 72.0 / 96.0,
+                            1.1 * f,
+                            Flag::Height,
+                            Flag::Height,
+                            Flag::Height
+                        ),
+                    ));
+                }
                 (rh, h)
             }
             None => (
@@ -414,7 +441,7 @@ impl<'a> Forest<'a> {
         };
         self.rh = rh;
         self.height = height;
-        self.fs = font(rh);
+        self.fs = self.row_fs.unwrap_or_else(|| font(rh));
         Ok(())
     }
 
