@@ -326,3 +326,48 @@ fn bad_font_sizes_are_refused_and_nothing_is_written() {
     );
     assert!(!out.exists());
 }
+
+#[test]
+fn long_labels_wrap_onto_two_lines_in_a_taller_row() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("long.csv");
+    let long = "Laboratory for Cognitive Science at the University of Dunmarrow 2019a";
+    std::fs::write(
+        &file,
+        format!("study,effect,variance\nShort 2001,0.5,0.03\n{long},0.3,0.02\nShort 2002,0.1,0.05\nShort 2003,0.2,0.04\n"),
+    )
+    .unwrap();
+    let (json, bytes) = plot(&file, "--forest OUT", "w.svg");
+    let svg = parse_svg(&bytes);
+    assert_eq!(count(&svg, "circle", "fill", STUDY), k(&json));
+    let at = svg
+        .iter()
+        .position(|e| e.tag == "text" && e.text.starts_with("Laboratory"))
+        .unwrap();
+    let (one, two) = (&svg[at], &svg[at + 1]);
+    // Every word is kept, split at a space, the lines one above the other.
+    assert_eq!(format!("{} {}", one.text, two.text), long);
+    assert_eq!(one.num("x"), two.num("x"));
+    let gap = two.num("y") - one.num("y");
+    assert!(
+        gap > one.num("font-size"),
+        "the lines do not overlap: {gap}"
+    );
+    // The row is taller by the distance between the lines: the distances
+    // from the row above and to the row below grow by half of it each.
+    let y = |t: &str| text_at(&svg, t)[0].num("y");
+    let mid = (one.num("y") + two.num("y")) / 2.0;
+    let plain = y("Short 2003") - y("Short 2002");
+    assert!(((mid - y("Short 2001")) - (plain + gap / 2.0)).abs() < 0.01);
+    assert!(((y("Short 2002") - mid) - (plain + gap / 2.0)).abs() < 0.01);
+    // Its disc sits on the row's middle, between the two lines.
+    let disc_y: Vec<f64> = svg
+        .iter()
+        .filter(|e| e.tag == "circle" && e.attr("fill") == Some(STUDY))
+        .map(|e| e.num("cy"))
+        .collect();
+    assert!(
+        disc_y.iter().any(|&c| (c - mid).abs() < 5.0),
+        "{disc_y:?} vs {mid}"
+    );
+}

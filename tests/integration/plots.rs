@@ -440,24 +440,29 @@ fn ratio_forest_uses_a_log_axis_with_the_no_effect_line_at_one() {
 
 #[test]
 fn long_labels_are_shortened_and_never_reach_the_plot_area() {
-    let long = "An extremely long study label that would run straight into the intervals if it were drawn in full";
+    // Too long even for two lines (see forest_shape.rs for labels that wrap whole).
+    let long = "An extremely long study label that would run straight into the intervals if it were drawn in full and then some more words so that two lines cannot hold it ending in full";
     let csv = format!("study,effect,variance\n{long},0.3,0.02\nB,0.1,0.05\nC,0.5,0.03\n");
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("in.csv");
     std::fs::write(&input, csv).unwrap();
     let (_, bytes) = plot(&input, "--forest OUT", "l.svg");
     let svg = parse_svg(&bytes);
-    let label = svg
+    let at = svg
         .iter()
-        .find(|e| e.tag == "text" && e.text.starts_with("An extremely"))
+        .position(|e| e.tag == "text" && e.text.starts_with("An extremely"))
         .unwrap();
-    // Both ends are kept, the middle gives way.
+    let (label, rest) = (&svg[at], &svg[at + 1]);
+    // Both ends are kept on two lines, the middle gives way.
+    assert!(label.text.ends_with('…'), "{}", label.text);
     assert!(
-        label.text.contains(" … ") && label.text.ends_with("in full"),
+        rest.text.starts_with("… ") && rest.text.ends_with("ending in full"),
         "{}",
-        label.text
+        rest.text
     );
-    assert!(label.text.chars().count() < long.chars().count());
+    assert_eq!(label.num("x"), rest.num("x"));
+    assert!(rest.num("y") > label.num("y"));
+    assert!(label.text.chars().count() + rest.text.chars().count() < long.chars().count());
     // Every CI line starts right of the label column's text start plus its width budget.
     let x_label = label.num("x");
     let min_ci_x = svg

@@ -20,7 +20,7 @@ impl Forest<'_> {
         self.header(&mut sc);
         self.backdrop(&mut sc, rows);
         for (r, row) in rows.iter().enumerate() {
-            let y = self.top + self.rh * (r as f64 + 0.5);
+            let y = self.row_mid(r);
             match row {
                 Row::Gap => {}
                 Row::GroupHead(text) => {
@@ -45,7 +45,7 @@ impl Forest<'_> {
 
     /// Bottom of the last row.
     fn rows_bottom(&self) -> f64 {
-        self.top + self.rh * self.n_rows as f64
+        self.row_top(self.n_rows)
     }
 
     /// Right edge of the "effect [CI]" column.
@@ -88,14 +88,14 @@ impl Forest<'_> {
     /// Zebra bands behind alternate study rows, the no-effect line and the
     /// dotted guide at the average (behind everything else).
     fn backdrop(&self, sc: &mut Scene, rows: &[Row]) {
-        let (top, rh, axis) = (self.top, self.rh, &self.axis);
+        let (top, axis) = (self.top, &self.axis);
         let rows_bottom = self.rows_bottom();
         let mut band = false;
         for (r, row) in rows.iter().enumerate() {
             if let Row::Study(_) = row {
                 if band {
-                    let y = top + rh * r as f64;
-                    sc.rect(self.margin, y, self.width - self.margin, y + rh, BAND);
+                    let (y0, y1) = (self.row_top(r), self.row_top(r + 1));
+                    sc.rect(self.margin, y0, self.width - self.margin, y1, BAND);
                 }
                 band = !band;
             } else {
@@ -139,14 +139,18 @@ impl Forest<'_> {
     fn study(&self, sc: &mut Scene, i: usize, y: f64) {
         let s = &self.report.studies[i];
         let (margin, fs) = (self.margin, self.fs);
-        let indent = if self.group.is_some() { 10.0 } else { 0.0 };
-        sc.text(
-            (margin + indent, y),
-            fit_middle(&s.study, fs, self.name_w - indent),
-            fs,
-            INK,
-            Align::Left,
-        );
+        let indent = self.indent();
+        let lines = &self.label_lines[i];
+        let first = y - self.line_gap / 2.0 * (lines.len() - 1) as f64;
+        for (n, line) in lines.iter().enumerate() {
+            sc.text(
+                (margin + indent, first + self.line_gap * n as f64),
+                fit_middle(line, fs, self.name_w - indent),
+                fs,
+                INK,
+                Align::Left,
+            );
+        }
         let mut x = margin + self.name_w;
         for col in &self.cols {
             let (at, align) = if col.right {
@@ -304,7 +308,7 @@ impl Forest<'_> {
     fn overall(&self, sc: &mut Scene, r: usize, y: f64) {
         let (margin, fs, width) = (self.margin, self.fs, self.width);
         let (report, avg) = (self.report, &self.report.average);
-        let y0 = self.top + self.rh * r as f64;
+        let y0 = self.row_top(r);
         sc.line(vec![(margin, y0), (width - margin, y0)], GUIDE, 1);
         sc.text(
             (margin, y),

@@ -119,6 +119,12 @@ pub(super) struct Forest<'a> {
     pub row_fs: Option<f64>,
     /// Scale of the other text and the vertical spacing (`--font-size`; 1 without).
     pub scale: f64,
+    /// Each study's label on one or two lines (by index into the studies).
+    pub label_lines: Vec<Vec<String>>,
+    /// Top of each row, and the bottom of the last.
+    row_top: Vec<f64>,
+    /// Distance between the two lines of a two-line label.
+    pub line_gap: f64,
     /// Number of rows.
     pub n_rows: usize,
     /// The largest study weight (the disc of that study is the largest).
@@ -214,7 +220,7 @@ fn decimals(report: &FitReport) -> usize {
 }
 
 impl<'a> Forest<'a> {
-    /// Lays out the plot of `n_rows` rows on `axis`.
+    /// Lays out the plot of `rows` on `axis`.
     ///
     /// # Errors
     /// [`Error::Usage`] naming `--width` when the columns leave less than
@@ -225,9 +231,10 @@ impl<'a> Forest<'a> {
         report: &'a FitReport,
         opts: &PlotOptions,
         group: Option<&'a Grouping<'a>>,
-        n_rows: usize,
+        rows: &[Row],
         axis: Axis,
     ) -> Result<Forest<'a>> {
+        let n_rows = rows.len();
         // --font-size fixes the rows' text (points to pixels at 96 per
         // inch); everything else scales with it from the default row text,
         // rows included (a row is as high for its text as by default).
@@ -289,12 +296,16 @@ impl<'a> Forest<'a> {
             fs: 0.0,
             row_fs,
             scale,
+            label_lines: Vec::new(),
+            row_top: Vec::new(),
+            line_gap: 0.0,
             n_rows,
             w_max: report.studies.iter().map(|s| s.weight).fold(0.0, f64::max),
         };
         f.columns()?;
+        f.wrap_labels();
         f.cap_lines = f.caption();
-        f.row_height(opts.height)?;
+        f.row_height(rows, opts.height)?;
         Ok(f)
     }
 
@@ -398,21 +409,34 @@ impl<'a> Forest<'a> {
             .collect()
     }
 
-    /// The row height and the page height: the rows share `--height`, or
-    /// the page grows with them.
-    fn row_height(&mut self, height: Option<u32>) -> Result<()> {
+    /// The row height, the page height and each row's top: the rows share
+    /// `--height`, or the page grows with them. A study whose label takes
+    /// two lines gets a row taller by the distance between the lines.
+    fn row_height(&mut self, rows: &[Row], height: Option<u32>) -> Result<()> {
         let (top, n_rows) = (self.top, self.n_rows);
         let bottom = (62.0 + 17.0 * self.cap_lines.len() as f64) * self.scale; // axis + caption
-        let (rh, height) = match height {
+        let two = |r: &Row| matches!(r, Row::Study(i) if self.label_lines[*i].len() > 1);
+        let n2 = rows.iter().filter(|r| two(r)).count() as f64;
+        let n = n_rows as f64;
+        // Lines of a two-line label are 1.2 text sizes apart; the text is
+        // 0.56 of the row height unless --font-size fixes it.
+        let (rh, height, gap) = match height {
             Some(h) => {
-                let rh = (f64::from(h) - top - bottom) / n_rows as f64;
+                let avail = f64::from(h) - top - bottom;
+                let (rh, gap) = match self.row_fs {
+                    Some(f) => ((avail - n2 * 1.2 * f) / n, 1.2 * f),
+                    None => {
+                        let rh = avail / (n + 0.672 * n2);
+                        (rh, 0.672 * rh)
+                    }
+                };
                 if rh < 4.0 {
                     return Err(Error::usage(
                         Flag::Height,
                         format!(
                             "{h} pixels are too few for {n_rows} rows; use at least {:.0} (or leave \
                              {} out for an automatic height)",
-                            top + bottom + 4.0 * n_rows as f64,
+                            top + bottom + 4.0 * (n + 0.672 * n2),
                             Flag::Height
                         ),
                     ));
@@ -432,17 +456,58 @@ impl<'a> Forest<'a> {
                         ),
                     ));
                 }
-                (rh, h)
+                (rh, h, gap)
             }
-            None => (
-                self.rh,
-                (top + bottom + self.rh * n_rows as f64).ceil() as u32,
-            ),
+            None => {
+                let gap = 1.2 * self.row_fs.unwrap_or_else(|| font(self.rh));
+                let h = top + bottom + self.rh * n + gap * n2;
+                (self.rh, h.ceil() as u32, gap)
+            }
         };
         self.rh = rh;
         self.height = height;
         self.fs = self.row_fs.unwrap_or_else(|| font(rh));
+        self.line_gap = gap;
+        let mut y = top;
+        self.row_top = Vec::with_capacity(rows.len() + 1);
+        for r in rows {
+            self.row_top.push(y);
+            y += if two(r) { rh + gap } else { rh };
+        }
+        self.row_top.push(y);
         Ok(())
+    }
+
+    /// The lines of every study's label, wrapped to the names' width at
+    /// the rows' text size (the automatic size when `--height` will change it).
+    fn wrap_labels(&mut self) {
+        let fs = self.row_fs.unwrap_or_else(|| font(self.rh));
+        let max = self.name_w - self.indent();
+        self.label_lines = self
+            .report
+            .studies
+            .iter()
+            .map(|s| super::labels::lines(&s.study, fs, max))
+            .collect();
+    }
+
+    /// How far study labels are indented (under a group's heading).
+    pub fn indent(&self) -> f64 {
+        if self.group.is_some() {
+            10.0
+        } else {
+            0.0
+        }
+    }
+
+    /// Top of row `r` (`r` = the number of rows: the bottom of the last).
+    pub fn row_top(&self, r: usize) -> f64 {
+        self.row_top[r]
+    }
+
+    /// Vertical centre of row `r`.
+    pub fn row_mid(&self, r: usize) -> f64 {
+        (self.row_top[r] + self.row_top[r + 1]) / 2.0
     }
 
     /// An analysis-scale value in plot space.

@@ -1,20 +1,25 @@
 //! The forest plot: one row per study, subgroup and overall averages, the
 //! prediction interval on its own dashed row.
 //!
-//! Layout, left to right: label column, plot area, "effect \[CI\]" column,
-//! weight column. Rows are 24, 19 or 15 pixels high depending on how many
-//! there are (or share `--height`); labels are shortened with an ellipsis to
-//! their column, so they never reach the plot area.
+//! Layout, left to right: label column, the text columns (`--columns`, the
+//! sort column), plot area, "effect \[CI\]" column, weight column. Rows are
+//! 24, 19 or 15 pixels high depending on how many there are (or share
+//! `--height`, or follow `--font-size`); a label too long for its column
+//! wraps onto two lines in a taller row (`labels`), so it never reaches the
+//! plot area. Rows are grouped by a categorical moderator or any column
+//! (`group`).
 //!
-//! The steps: check the options, order the studies, lay out the rows
-//! (`layout::rows`), the value axis (`layout::value_axis`), the text columns,
-//! the caption and the row height (`layout::Forest::new`), then draw the
-//! header, the backdrop, each row, the axis and the caption (`draw`).
+//! The steps: check the options, order the studies, group them, lay out
+//! the rows (`layout::rows`), the value axis (`layout::value_axis`), the
+//! text columns, the labels' lines, the caption and the row heights
+//! (`layout::Forest::new`), then draw the header, the backdrop, each row,
+//! the axis and the caption (`draw`).
 
 mod band;
 mod columns;
 mod draw;
 mod group;
+mod labels;
 mod layout;
 mod shrunken;
 
@@ -38,7 +43,7 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let group = group::grouping(report, &opts.group_by)?;
     let rows = layout::rows(report, &ordered, group.as_ref());
     let axis = layout::value_axis(report, group.as_ref());
-    let forest = layout::Forest::new(report, opts, group.as_ref(), rows.len(), axis)?;
+    let forest = layout::Forest::new(report, opts, group.as_ref(), &rows, axis)?;
     Ok(forest.draw(&rows))
 }
 
