@@ -3,7 +3,9 @@
 //! any column (`--sort`), the text size (`--font-size`) and long labels
 //! wrapped onto two lines. Each through the binary, checked in the SVG.
 
-use crate::plots::{count, has_text, k, parse_svg, plot, pondus, texts, Element, GROUP, STUDY};
+use crate::plots::{
+    count, has_text, k, parse_svg, pdf_text, plot, pondus, texts, Element, GROUP, STUDY,
+};
 use std::path::PathBuf;
 
 /// Invented data for these tests: sizes written with trailing zeros and a
@@ -370,4 +372,30 @@ fn long_labels_wrap_onto_two_lines_in_a_taller_row() {
         disc_y.iter().any(|&c| (c - mid).abs() < 5.0),
         "{disc_y:?} vs {mid}"
     );
+}
+
+#[test]
+fn the_pdf_and_png_hold_the_columns_and_groups_too() {
+    let (_dir, file) = data();
+    let args = "--forest OUT --columns n,country --group-by country --font-size 8";
+    let (json, svg) = plot(&file, args, "f.svg");
+    let (_, pdf) = plot(&file, args, "f.pdf");
+    let (_, png) = plot(&file, args, "f.png");
+    // The PNG decodes (its size follows the SVG's at 150 dpi).
+    let svg = parse_svg(&svg);
+    let (w, _) = crate::plots::png_size(&png);
+    assert_eq!(f64::from(w), (svg[0].num("width") * 150.0 / 96.0).round());
+    assert_eq!(count(&svg, "circle", "fill", STUDY), k(&json));
+    if let Some(text) = pdf_text(&pdf) {
+        for t in [
+            "120.50",
+            "080",
+            "Norway",
+            "country = Chile",
+            "Abel 2009",
+            "n",
+        ] {
+            assert!(text.contains(t), "{t} in the PDF's text layer");
+        }
+    }
 }

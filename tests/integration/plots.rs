@@ -561,7 +561,7 @@ fn png_plots_decode_and_have_the_requested_size_at_the_requested_dpi() {
 
 /// The text layer of a PDF (Poppler's `pdftotext`), or None without it
 /// (then `PONDUS_REQUIRE_PDFTOPPM` turns the absence into a failure).
-fn pdf_text(bytes: &[u8]) -> Option<String> {
+pub(crate) fn pdf_text(bytes: &[u8]) -> Option<String> {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("p.pdf");
     std::fs::write(&path, bytes).unwrap();

@@ -32,7 +32,7 @@ pub struct PlotArgs {
     /// Group the forest plot's rows by this column, with a heading per group (a categorical moderator's groups also get their own averages), or none [default: the first categorical moderator].
     #[arg(long, value_name = "COL")]
     pub group_by: Option<String>,
-    /// Size of the forest plot's row text in points (1/72 inch at the figure's 96 pixels per inch; 5 to 30) [default: 10, smaller with many rows]; titles, axis and caption keep their proportions to it and the rows grow to fit it.
+    /// Size of the forest plot's row text in points (1/72 inch at the figure's 96 pixels per inch; 5 to 30) [default: 10, smaller with many rows]; the rows, titles, headers, axis and caption keep their proportions to it.
     #[arg(long, value_name = "PT", allow_negative_numbers = true)]
     pub font_size: Option<f64>,
     /// Mark each study's fitted value (from the moderators) in the forest plot.
