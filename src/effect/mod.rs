@@ -423,6 +423,7 @@ pub struct ColumnMap {
     reading: EffectReading,
     sheet: Option<String>,
     decimal: Option<crate::input::number::DecimalMark>,
+    shown: Vec<(String, Flag)>,
 }
 
 impl ColumnMap {
@@ -449,6 +450,7 @@ impl ColumnMap {
             reading: EffectReading::default(),
             sheet: None,
             decimal: None,
+            shown: Vec::new(),
         })
     }
 
@@ -468,6 +470,19 @@ impl ColumnMap {
     /// The decimal mark forced with `--decimal` (None: chosen from the file).
     pub fn decimal(&self) -> Option<crate::input::number::DecimalMark> {
         self.decimal
+    }
+
+    /// The same map also carrying the columns `shown` (each with the flag
+    /// that asks for it) into every study's
+    /// [`cells`](crate::result::Study::cells), as written in the file, for
+    /// the plots (`--columns`, `--group-by`, `--sort`). Each must exist.
+    pub fn with_shown(self, shown: Vec<(String, Flag)>) -> Self {
+        ColumnMap { shown, ..self }
+    }
+
+    /// The columns carried for the plots, with the flag naming each.
+    pub fn shown(&self) -> &[(String, Flag)] {
+        &self.shown
     }
 
     /// The sheet to read from a spreadsheet (None: the first).

@@ -251,6 +251,7 @@ fn records(
         routes,
         raw,
         excluded,
+        mut shown,
         ..
     } = studies;
     let total_w: f64 = fit.weights.iter().sum();
@@ -280,6 +281,10 @@ fn records(
             note,
             shrunken: shrunken.as_ref().map(|s| s[pos]),
             computed_from: routes[pos],
+            cells: shown
+                .iter_mut()
+                .map(|(name, c)| (name.clone(), std::mem::take(&mut c[pos])))
+                .collect(),
         });
     }
     (out, excluded)

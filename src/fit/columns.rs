@@ -27,6 +27,9 @@ pub struct Columns {
     pub order: Option<usize>,
     /// Index of the `--cluster` column, when asked.
     pub cluster: Option<usize>,
+    /// Index of the first column carried for the plots (one per
+    /// [`crate::effect::ColumnMap::shown`] entry, in order).
+    pub first_shown: usize,
 }
 
 /// Requests the columns of `settings` and reads the table.
@@ -80,7 +83,24 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
         requests.push(named(h, "the cluster ids", Flag::Cluster));
         requests.len() - 1
     });
+    let first_shown = requests.len();
+    for (name, flag) in settings.columns.shown() {
+        let mut req = named(name, shown_purpose(*flag), *flag);
+        if *flag == Flag::Sort {
+            req.hint = format!(
+                "Check the spelling of {flag}, which takes a column's name or effect, precision or \
+                 input; headers are matched exactly, or ignoring case when unique."
+            );
+        } else if *flag == Flag::GroupBy {
+            req.hint = format!(
+                "Check the spelling of {flag}, which takes a column's name or none; headers are \
+                 matched exactly, or ignoring case when unique."
+            );
+        }
+        requests.push(req);
+    }
     Ok(Columns {
+        first_shown,
         table: input::read_table(
             source,
             bytes,
@@ -108,5 +128,14 @@ fn named(header: &str, what: &str, flag: Flag) -> ColumnRequest {
         hint: format!(
             "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
         ),
+    }
+}
+
+/// Why a column carried for the plots is needed, by the flag that asks for it.
+fn shown_purpose(flag: Flag) -> &'static str {
+    match flag {
+        Flag::Sort => "the order of the forest plot's rows",
+        Flag::GroupBy => "the groups of the forest plot's rows",
+        _ => "a column shown in the forest plot",
     }
 }

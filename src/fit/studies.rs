@@ -42,6 +42,9 @@ pub struct Studies {
     pub order: Option<(String, Vec<String>)>,
     /// The `--cluster` header and its (trimmed) id per study.
     pub cluster_ids: Option<(String, Vec<String>)>,
+    /// The columns carried for the plots: each name as asked and its
+    /// (trimmed) cell per study.
+    pub shown: Vec<(String, Vec<String>)>,
     /// Every moderator's values over all table rows, typed.
     pub raw: Vec<RawModerator>,
     /// Every `--spread-by` characteristic's values over all table rows, typed.
@@ -95,6 +98,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         spread,
         order,
         cluster,
+        first_shown,
     } = columns;
     let cluster_cells = cluster.map(|j| cells(&table, j, true));
     let order_cells = order.map(|j| cells(&table, j, false));
@@ -193,6 +197,16 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         corrections: included.iter().map(|&i| corrections[i]).collect(),
         order: order_cells.map(|(h, c)| (h, pick(c, &included))),
         cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
+        shown: settings
+            .columns
+            .shown()
+            .iter()
+            .enumerate()
+            .map(|(n, (name, _))| {
+                let (_, c) = cells(&table, first_shown + n, true);
+                (name.clone(), pick(c, &included))
+            })
+            .collect(),
         raw,
         spread_raw,
         excluded,

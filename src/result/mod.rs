@@ -51,6 +51,7 @@ use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
 use crate::input::Delimiter;
 use serde::Serialize;
+use std::collections::BTreeMap;
 
 /// Everything `pondus fit` reports.
 #[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
@@ -336,6 +337,13 @@ pub struct Study {
     /// "counts", "ratio-ci", "log-se", "variance", "se", "ci", or a
     /// conversion: "r-to-d", "counts-to-d", "d-to-r").
     pub computed_from: Route,
+    /// Cells of further columns of the study's row, keyed by the column's
+    /// name as asked, each as written in the file (trimmed): the columns a
+    /// plot shows or orders or groups the rows by (`--columns`,
+    /// `--group-by`, `--sort` naming a column that is not a moderator).
+    /// Omitted when none was asked for.
+    #[serde(skip_serializing_if = "BTreeMap::is_empty")]
+    pub cells: BTreeMap<String, String>,
 }
 
 #[cfg(test)]

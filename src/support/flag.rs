@@ -80,6 +80,9 @@ flags! {
     Dpi => "--dpi", ["fit", "plan"];
     Title => "--title", ["fit"];
     XLabel => "--x-label", ["fit"];
+    Columns => "--columns", ["fit"];
+    GroupBy => "--group-by", ["fit"];
+    FontSize => "--font-size", ["fit"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];

@@ -6,6 +6,7 @@ mod cli;
 mod conventions;
 mod determinism;
 mod diagnose;
+mod forest_shape;
 mod fuzz_corpus;
 mod golden;
 mod heterogeneity;

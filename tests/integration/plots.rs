@@ -12,9 +12,9 @@ use assert_cmd::Command;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 
-const STUDY: &str = "#0072B2";
+pub(crate) const STUDY: &str = "#0072B2";
 const POOLED: &str = "#D55E00";
-const GROUP: &str = "#E69F00";
+pub(crate) const GROUP: &str = "#E69F00";
 const FIT: &str = "#009E73";
 const PREDICT: &str = "#CC79A7";
 
@@ -22,7 +22,7 @@ fn example(name: &str) -> PathBuf {
     repo(&format!("data-examples/{name}"))
 }
 
-fn pondus(file: &Path, args: &str) -> Command {
+pub(crate) fn pondus(file: &Path, args: &str) -> Command {
     let mut c = Command::cargo_bin("pondus").expect("the pondus binary is built");
     c.arg("fit").arg(file).args(args.split_whitespace());
     c
@@ -30,7 +30,7 @@ fn pondus(file: &Path, args: &str) -> Command {
 
 /// Runs pondus with `args` (where `OUT` stands for `dir/name`) and returns
 /// the JSON result and the bytes of `dir/name`.
-fn plot(file: &Path, args: &str, name: &str) -> (Value, Vec<u8>) {
+pub(crate) fn plot(file: &Path, args: &str, name: &str) -> (Value, Vec<u8>) {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join(name);
     let args = args.replace("OUT", &out.display().to_string());
@@ -45,7 +45,7 @@ fn plot(file: &Path, args: &str, name: &str) -> (Value, Vec<u8>) {
 }
 
 /// Runs pondus expecting exit code 2; returns stderr.
-fn usage_error(file: &Path, args: &str) -> String {
+pub(crate) fn usage_error(file: &Path, args: &str) -> String {
     let o = pondus(file, args).output().unwrap();
     assert_eq!(o.status.code(), Some(2), "pondus {args} should exit 2");
     String::from_utf8_lossy(&o.stderr).into_owned()
@@ -53,25 +53,25 @@ fn usage_error(file: &Path, args: &str) -> String {
 
 /// One SVG element: its tag, attributes and the text inside it.
 #[derive(Debug)]
-struct Element {
-    tag: String,
+pub(crate) struct Element {
+    pub(crate) tag: String,
     attrs: Vec<(String, String)>,
-    text: String,
+    pub(crate) text: String,
 }
 
 impl Element {
-    fn attr(&self, name: &str) -> Option<&str> {
+    pub(crate) fn attr(&self, name: &str) -> Option<&str> {
         self.attrs
             .iter()
             .find(|(n, _)| n == name)
             .map(|(_, v)| v.as_str())
     }
-    fn num(&self, name: &str) -> f64 {
+    pub(crate) fn num(&self, name: &str) -> f64 {
         self.attr(name)
             .and_then(|v| v.parse().ok())
             .unwrap_or_else(|| panic!("{} has no numeric {name}", self.tag))
     }
-    fn points(&self) -> Vec<(f64, f64)> {
+    pub(crate) fn points(&self) -> Vec<(f64, f64)> {
         self.attr("points")
             .unwrap_or("")
             .split_whitespace()
@@ -85,7 +85,7 @@ impl Element {
 
 /// A small parser for the flat SVG that plotters writes (no nesting beyond
 /// the root, attributes in double quotes).
-fn parse_svg(bytes: &[u8]) -> Vec<Element> {
+pub(crate) fn parse_svg(bytes: &[u8]) -> Vec<Element> {
     let s = std::str::from_utf8(bytes).expect("SVG is UTF-8");
     assert!(s.starts_with("<svg"), "not an SVG document");
     assert!(s.trim_end().ends_with("</svg>"), "SVG is not closed");
@@ -122,24 +122,24 @@ fn unescape(text: &str) -> String {
         .replace("&amp;", "&")
 }
 
-fn count(svg: &[Element], tag: &str, attr: &str, value: &str) -> usize {
+pub(crate) fn count(svg: &[Element], tag: &str, attr: &str, value: &str) -> usize {
     svg.iter()
         .filter(|e| e.tag == tag && e.attr(attr) == Some(value))
         .count()
 }
 
-fn texts(svg: &[Element]) -> Vec<&str> {
+pub(crate) fn texts(svg: &[Element]) -> Vec<&str> {
     svg.iter()
         .filter(|e| e.tag == "text")
         .map(|e| e.text.as_str())
         .collect()
 }
 
-fn has_text(svg: &[Element], needle: &str) -> bool {
+pub(crate) fn has_text(svg: &[Element], needle: &str) -> bool {
     texts(svg).iter().any(|t| t.contains(needle))
 }
 
-fn k(json: &Value) -> usize {
+pub(crate) fn k(json: &Value) -> usize {
     json["k"].as_u64().unwrap() as usize
 }
 
@@ -440,24 +440,29 @@ fn ratio_forest_uses_a_log_axis_with_the_no_effect_line_at_one() {
 
 #[test]
 fn long_labels_are_shortened_and_never_reach_the_plot_area() {
-    let long = "An extremely long study label that would run straight into the intervals if it were drawn in full";
+    // Too long even for two lines (see forest_shape.rs for labels that wrap whole).
+    let long = "An extremely long study label that would run straight into the intervals if it were drawn in full and then some more words so that two lines cannot hold it ending in full";
     let csv = format!("study,effect,variance\n{long},0.3,0.02\nB,0.1,0.05\nC,0.5,0.03\n");
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("in.csv");
     std::fs::write(&input, csv).unwrap();
     let (_, bytes) = plot(&input, "--forest OUT", "l.svg");
     let svg = parse_svg(&bytes);
-    let label = svg
+    let at = svg
         .iter()
-        .find(|e| e.tag == "text" && e.text.starts_with("An extremely"))
+        .position(|e| e.tag == "text" && e.text.starts_with("An extremely"))
         .unwrap();
-    // Both ends are kept, the middle gives way.
+    let (label, rest) = (&svg[at], &svg[at + 1]);
+    // Both ends are kept on two lines, the middle gives way.
+    assert!(label.text.ends_with('…'), "{}", label.text);
     assert!(
-        label.text.contains(" … ") && label.text.ends_with("in full"),
+        rest.text.starts_with("… ") && rest.text.ends_with("ending in full"),
         "{}",
-        label.text
+        rest.text
     );
-    assert!(label.text.chars().count() < long.chars().count());
+    assert_eq!(label.num("x"), rest.num("x"));
+    assert!(rest.num("y") > label.num("y"));
+    assert!(label.text.chars().count() + rest.text.chars().count() < long.chars().count());
     // Every CI line starts right of the label column's text start plus its width budget.
     let x_label = label.num("x");
     let min_ci_x = svg
@@ -514,7 +519,7 @@ fn png_info(bytes: &[u8]) -> (u32, u32, f64) {
     (info.width, info.height, f64::from(dims.xppu) * 0.0254)
 }
 
-fn png_size(bytes: &[u8]) -> (u32, u32) {
+pub(crate) fn png_size(bytes: &[u8]) -> (u32, u32) {
     let (w, h, _) = png_info(bytes);
     (w, h)
 }
@@ -556,7 +561,7 @@ fn png_plots_decode_and_have_the_requested_size_at_the_requested_dpi() {
 
 /// The text layer of a PDF (Poppler's `pdftotext`), or None without it
 /// (then `PONDUS_REQUIRE_PDFTOPPM` turns the absence into a failure).
-fn pdf_text(bytes: &[u8]) -> Option<String> {
+pub(crate) fn pdf_text(bytes: &[u8]) -> Option<String> {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("p.pdf");
     std::fs::write(&path, bytes).unwrap();

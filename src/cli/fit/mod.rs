@@ -114,6 +114,8 @@ impl FitArgs {
     pub fn check(&self) -> Result<FitRun> {
         let (measure, columns) = self.input.columns()?;
         let model = self.model.check()?;
+        let moderator_names: Vec<&str> = model.moderators.iter().map(|m| m.name.as_str()).collect();
+        let columns = columns.with_shown(self.plots.shown(&moderator_names));
         let source = Source::from_arg(&self.input.file);
         let (json, table) = self.output.targets();
         let mut outs: Vec<(&str, &Target)> = Vec::new();

@@ -7,6 +7,7 @@ use crate::cli::outputs::Target;
 use clap::Args;
 use pondus::error::{Error, Result};
 use pondus::render::figure;
+use pondus::support::flag::Flag;
 use std::path::PathBuf;
 
 /// The plots and their settings.
@@ -16,7 +17,7 @@ pub struct PlotArgs {
     /// Draw a forest plot into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     pub forest: Option<PathBuf>,
-    /// Order of the forest plot's rows: input, effect, precision, or a moderator's name.
+    /// Order of the forest plot's rows: input, effect, precision, or any column's name (numbers ascending, text in alphabetical order, a categorical moderator's levels in their order).
     #[arg(long, value_name = "KEY")]
     pub sort: Option<String>,
     /// Title of the forest plot [default: what its rows show].
@@ -25,6 +26,15 @@ pub struct PlotArgs {
     /// Title of the forest plot's value axis [default: the reading scale in words, for example "Odds ratio (log scale)"].
     #[arg(long, value_name = "TEXT")]
     pub x_label: Option<String>,
+    /// Columns of the data shown as text beside the forest plot's labels, as written in the file (for example n,year,country); headed by their names.
+    #[arg(long, value_name = "COL,COL", value_delimiter = ',')]
+    pub columns: Vec<String>,
+    /// Group the forest plot's rows by this column, with a heading per group (a categorical moderator's groups also get their own averages), or none [default: the first categorical moderator].
+    #[arg(long, value_name = "COL")]
+    pub group_by: Option<String>,
+    /// Size of the forest plot's row text in points (1/72 inch at the figure's 96 pixels per inch; 5 to 30) [default: 10, smaller with many rows]; the rows, titles, headers, axis and caption keep their proportions to it.
+    #[arg(long, value_name = "PT", allow_negative_numbers = true)]
+    pub font_size: Option<f64>,
     /// Mark each study's fitted value (from the moderators) in the forest plot.
     #[arg(long)]
     pub show_fitted: bool,
@@ -105,6 +115,46 @@ impl PlotArgs {
             "--forest",
             self.forest.is_some() || report,
         )?;
+        let forest = self.forest.is_some() || report;
+        needs("--columns", !self.columns.is_empty(), "--forest", forest)?;
+        needs("--group-by", self.group_by.is_some(), "--forest", forest)?;
+        needs("--font-size", self.font_size.is_some(), "--forest", forest)?;
+        if let Some(pt) = self.font_size {
+            let (lo, hi) = figure::FONT_PT_RANGE;
+            if !(lo..=hi).contains(&pt) {
+                return Err(Error::usage(
+                    "--font-size",
+                    format!(
+                        "{pt} points is outside {lo} to {hi}; journals commonly ask for 7 to 12 \
+                         point text at the printed size"
+                    ),
+                ));
+            }
+        }
+        for (n, c) in self.columns.iter().enumerate() {
+            if c.trim().is_empty() {
+                return Err(Error::usage(
+                    "--columns",
+                    "give column names separated by commas, without empty names (for example n,year)",
+                ));
+            }
+            if self.columns[..n].contains(c) {
+                return Err(Error::usage(
+                    "--columns",
+                    format!("'{c}' is given twice; name each column once"),
+                ));
+            }
+        }
+        if self
+            .group_by
+            .as_deref()
+            .is_some_and(|g| g.trim().is_empty())
+        {
+            return Err(Error::usage(
+                "--group-by",
+                "give a column's name, or none for no groups",
+            ));
+        }
         for (flag, text) in [("--title", &self.title), ("--x-label", &self.x_label)] {
             needs(
                 flag,
@@ -192,7 +242,44 @@ impl PlotArgs {
             contours: self.contours,
             title: self.title.clone(),
             x_label: self.x_label.clone(),
+            columns: self.columns.clone(),
+            group_by: self
+                .group_by
+                .as_deref()
+                .map(figure::GroupBy::parse)
+                .unwrap_or_default(),
+            font_size: self.font_size,
         }
+    }
+
+    /// The columns the plots need carried from the data (each with the
+    /// flag naming it): `--columns`, and the `--group-by` and `--sort`
+    /// columns that are not among `moderators` (whose values the result
+    /// holds already), each once.
+    pub fn shown(&self, moderators: &[&str]) -> Vec<(String, Flag)> {
+        let mut out: Vec<(String, Flag)> = self
+            .columns
+            .iter()
+            .map(|c| (c.clone(), Flag::Columns))
+            .collect();
+        for (v, flag, words) in [
+            (&self.group_by, Flag::GroupBy, &["none"][..]),
+            (
+                &self.sort,
+                Flag::Sort,
+                &["input", "effect", "precision"][..],
+            ),
+        ] {
+            if let Some(v) = v {
+                if !words.contains(&v.as_str())
+                    && !moderators.contains(&v.as_str())
+                    && !out.iter().any(|(c, _)| c == v)
+                {
+                    out.push((v.clone(), flag));
+                }
+            }
+        }
+        out
     }
 }
 

@@ -86,18 +86,45 @@ pub enum SortKey {
     Effect,
     /// Most precise (smallest variance) first.
     Precision,
-    /// By a moderator's value (numbers ascending, levels in their order).
-    Moderator(String),
+    /// By a moderator's value (numbers ascending, levels in their order) or
+    /// by another column of the data carried in each study's
+    /// [`cells`](crate::result::Study::cells) (numbers ascending when every
+    /// cell is a number, else text in alphabetical order; empty cells last).
+    Column(String),
 }
 
 impl SortKey {
-    /// Parses `effect`, `precision`, `input` or a moderator name.
+    /// Parses `effect`, `precision`, `input` or a column's name.
     pub fn parse(text: &str) -> SortKey {
         match text {
             "input" => SortKey::Input,
             "effect" => SortKey::Effect,
             "precision" => SortKey::Precision,
-            name => SortKey::Moderator(name.to_string()),
+            name => SortKey::Column(name.to_string()),
+        }
+    }
+}
+
+/// How the rows of a forest plot are grouped.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub enum GroupBy {
+    /// By the first categorical moderator, with each level's own average.
+    #[default]
+    Auto,
+    /// Not grouped.
+    Off,
+    /// By a column: a categorical moderator (with each level's own average)
+    /// or any column carried in each study's
+    /// [`cells`](crate::result::Study::cells).
+    Column(String),
+}
+
+impl GroupBy {
+    /// Parses `none` or a column's name.
+    pub fn parse(text: &str) -> GroupBy {
+        match text {
+            "none" => GroupBy::Off,
+            name => GroupBy::Column(name.to_string()),
         }
     }
 }
@@ -123,6 +150,14 @@ pub struct PlotOptions {
     pub title: Option<String>,
     /// The forest plot's value-axis title (None: the reading scale in words).
     pub x_label: Option<String>,
+    /// Columns of the data drawn as text columns beside the forest plot's
+    /// labels (each carried in the studies' [`cells`](crate::result::Study::cells)).
+    pub columns: Vec<String>,
+    /// How the forest plot's rows are grouped.
+    pub group_by: GroupBy,
+    /// Size of the forest plot's row text in points (None: from the row
+    /// height); its other text keeps its proportions to it.
+    pub font_size: Option<f64>,
 }
 
 impl Default for PlotOptions {
@@ -137,6 +172,9 @@ impl Default for PlotOptions {
             contours: false,
             title: None,
             x_label: None,
+            columns: Vec::new(),
+            group_by: GroupBy::Auto,
+            font_size: None,
         }
     }
 }
@@ -147,6 +185,9 @@ pub const SIZE_RANGE: (u32, u32) = (200, 30_000);
 /// The PNG resolution when `--dpi` is not given (150: sharp on screens and
 /// in draft prints; journals commonly ask for 300 to 600).
 pub const DEFAULT_DPI: u32 = 150;
+
+/// Smallest and largest accepted `--font-size`, in points.
+pub const FONT_PT_RANGE: (f64, f64) = (5.0, 30.0);
 
 /// Smallest and largest accepted `--dpi`.
 pub const DPI_RANGE: (u32, u32) = (36, 1200);
@@ -361,21 +402,33 @@ pub fn page_figures(
 /// The title (shortened to fit) and the subtitle naming the measure and the
 /// input file, at the top left of every plot.
 pub(crate) fn heading(sc: &mut Scene, report: &FitReport, title: &str, width: f64, margin: f64) {
+    heading_scaled(sc, report, title, (width, margin), 1.0);
+}
+
+/// [`heading`] with its text sizes and positions times `scale` (`--font-size`).
+pub(crate) fn heading_scaled(
+    sc: &mut Scene,
+    report: &FitReport,
+    title: &str,
+    (width, margin): (f64, f64),
+    scale: f64,
+) {
     let fit = |text: &str, size: f64| scene::fit_text(text, size, width - 2.0 * margin);
+    let (title_fs, small) = (size::TITLE * scale, size::SMALL * scale);
     sc.text(
-        (margin, 20.0),
-        fit(title, size::TITLE),
-        size::TITLE,
+        (margin, 20.0 * scale),
+        fit(title, title_fs),
+        title_fs,
         palette::INK,
         Align::Left,
     );
     sc.text(
-        (margin, 44.0),
+        (margin, 44.0 * scale),
         fit(
             &format!("{} · {}", report.measure.description, report.input.file),
-            size::SMALL,
+            small,
         ),
-        size::SMALL,
+        small,
         palette::MUTED,
         Align::Left,
     );
@@ -469,16 +522,26 @@ fn capitalised(text: &str) -> String {
 }
 
 /// Draws caption lines at the left margin, 17 pixels apart, the first at `cy`.
-pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, mut cy: f64) {
+pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, cy: f64) {
+    caption_scaled(sc, lines, (margin, cy), 1.0);
+}
+
+/// [`caption`] with its text size and line spacing times `scale` (`--font-size`).
+pub(crate) fn caption_scaled(
+    sc: &mut Scene,
+    lines: &[String],
+    (margin, mut cy): (f64, f64),
+    scale: f64,
+) {
     for line in lines {
         sc.text(
             (margin, cy),
             line.clone(),
-            size::SMALL,
+            size::SMALL * scale,
             palette::MUTED,
             Align::Left,
         );
-        cy += 17.0;
+        cy += 17.0 * scale;
     }
 }
 

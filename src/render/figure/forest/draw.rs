@@ -1,12 +1,15 @@
 //! Drawing the laid-out forest plot: the header, the backdrop (bands and
 //! guides), each kind of row, the axis and the caption, in that order.
 
+use super::columns::GAP;
 use super::layout::{Forest, Row};
 use crate::effect::route::Derivation;
 use crate::render::figure::palette::*;
 use crate::render::figure::scene::Rgb;
 use crate::render::figure::scene::{fit_middle, fit_text};
-use crate::render::figure::{caption, heading, label_step, measure_name, size, Align, Scene};
+use crate::render::figure::{
+    caption_scaled, heading_scaled, label_step, measure_name, size, Align, Scene,
+};
 use crate::result::{Estimate, LevelSummary, Study};
 use crate::support::format as fmt;
 
@@ -17,11 +20,11 @@ impl Forest<'_> {
         self.header(&mut sc);
         self.backdrop(&mut sc, rows);
         for (r, row) in rows.iter().enumerate() {
-            let y = self.top + self.rh * (r as f64 + 0.5);
+            let y = self.row_mid(r);
             match row {
                 Row::Gap => {}
                 Row::GroupHead(text) => {
-                    let fs = self.fs + 0.5;
+                    let fs = self.fs + 0.5 * self.scale;
                     sc.text(
                         (self.margin, y),
                         fit_text(text, fs, self.px0 - self.margin - 8.0 + self.ci_w),
@@ -42,7 +45,7 @@ impl Forest<'_> {
 
     /// Bottom of the last row.
     fn rows_bottom(&self) -> f64 {
-        self.top + self.rh * self.n_rows as f64
+        self.row_top(self.n_rows)
     }
 
     /// Right edge of the "effect [CI]" column.
@@ -53,18 +56,19 @@ impl Forest<'_> {
     /// Title, subtitle and the column headers.
     fn header(&self, sc: &mut Scene) {
         let (margin, width) = (self.margin, self.width);
-        heading(sc, self.report, &self.title, width, margin);
-        let hy = 70.0;
-        let head = self.fs_max.min(13.0);
+        heading_scaled(sc, self.report, &self.title, (width, margin), self.scale);
+        let hy = 70.0 * self.scale;
+        let head = self.fs_max.min(13.0 * self.scale);
         sc.text((margin, hy), "Study", head, INK, Align::Left);
-        if let Some(col) = &self.sort_col {
-            sc.text(
-                (margin + self.label_w, hy),
-                col.head.clone(),
-                head,
-                INK,
-                Align::Right,
-            );
+        let mut x = margin + self.name_w;
+        for col in &self.cols {
+            let (at, align) = if col.right {
+                (x + col.width, Align::Right)
+            } else {
+                (x + GAP, Align::Left)
+            };
+            sc.text((at, hy), col.head.clone(), head, INK, align);
+            x += col.width;
         }
         sc.text(
             (self.ci_right(), hy),
@@ -84,14 +88,14 @@ impl Forest<'_> {
     /// Zebra bands behind alternate study rows, the no-effect line and the
     /// dotted guide at the average (behind everything else).
     fn backdrop(&self, sc: &mut Scene, rows: &[Row]) {
-        let (top, rh, axis) = (self.top, self.rh, &self.axis);
+        let (top, axis) = (self.top, &self.axis);
         let rows_bottom = self.rows_bottom();
         let mut band = false;
         for (r, row) in rows.iter().enumerate() {
             if let Row::Study(_) = row {
                 if band {
-                    let y = top + rh * r as f64;
-                    sc.rect(self.margin, y, self.width - self.margin, y + rh, BAND);
+                    let (y0, y1) = (self.row_top(r), self.row_top(r + 1));
+                    sc.rect(self.margin, y0, self.width - self.margin, y1, BAND);
                 }
                 band = !band;
             } else {
@@ -135,22 +139,35 @@ impl Forest<'_> {
     fn study(&self, sc: &mut Scene, i: usize, y: f64) {
         let s = &self.report.studies[i];
         let (margin, fs) = (self.margin, self.fs);
-        let indent = if self.group.is_some() { 10.0 } else { 0.0 };
-        sc.text(
-            (margin + indent, y),
-            fit_middle(&s.study, fs, self.name_w - indent),
-            fs,
-            INK,
-            Align::Left,
-        );
-        if let Some(col) = &self.sort_col {
+        let indent = self.indent();
+        let lines = &self.label_lines[i];
+        let first = y - self.line_gap / 2.0 * (lines.len() - 1) as f64;
+        for (n, line) in lines.iter().enumerate() {
             sc.text(
-                (margin + self.label_w, y),
-                fit_text(&col.values[i], fs, col.width - 12.0),
+                (margin + indent, first + self.line_gap * n as f64),
+                fit_middle(line, fs, self.name_w - indent),
                 fs,
-                MUTED,
-                Align::Right,
+                INK,
+                Align::Left,
             );
+        }
+        let mut x = margin + self.name_w;
+        for col in &self.cols {
+            let (at, align) = if col.right {
+                (x + col.width, Align::Right)
+            } else {
+                (x + GAP, Align::Left)
+            };
+            let ink = if col.muted { MUTED } else { INK };
+            sc.text(
+                (at, y),
+                // Half a pixel of slack: the width was measured on these very cells.
+                fit_text(&col.values[i], fs, col.width - GAP + 0.5),
+                fs,
+                ink,
+                align,
+            );
+            x += col.width;
         }
         self.band_bar(sc, i, y);
         self.study_marks(sc, s, y);
@@ -291,7 +308,7 @@ impl Forest<'_> {
     fn overall(&self, sc: &mut Scene, r: usize, y: f64) {
         let (margin, fs, width) = (self.margin, self.fs, self.width);
         let (report, avg) = (self.report, &self.report.average);
-        let y0 = self.top + self.rh * r as f64;
+        let y0 = self.row_top(r);
         sc.line(vec![(margin, y0), (width - margin, y0)], GUIDE, 1);
         sc.text(
             (margin, y),
@@ -362,30 +379,25 @@ impl Forest<'_> {
 
     /// The value axis with its ticks and title, then the caption.
     fn axis_and_caption(&self, sc: &mut Scene) {
-        let (px0, px1) = (self.px0, self.px1);
+        let (px0, px1, k) = (self.px0, self.px1, self.scale);
+        let (small, label) = (size::SMALL * k, size::LABEL * k);
         let ay = self.rows_bottom() + 6.0;
         sc.line(vec![(px0, ay), (px1, ay)], INK, 1);
         let xs: Vec<f64> = self.axis.ticks.iter().map(|t| self.x_of(t.0)).collect();
-        let step = label_step(&xs, &self.axis.ticks, size::SMALL, true);
-        for (i, ((_, label), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
-            sc.line(vec![(*x, ay), (*x, ay + 5.0)], INK, 1);
+        let step = label_step(&xs, &self.axis.ticks, small, true);
+        for (i, ((_, text), x)) in self.axis.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, ay), (*x, ay + 5.0 * k)], INK, 1);
             if i % step == 0 {
-                sc.text(
-                    (*x, ay + 15.0),
-                    label.clone(),
-                    size::SMALL,
-                    INK,
-                    Align::Center,
-                );
+                sc.text((*x, ay + 15.0 * k), text.clone(), small, INK, Align::Center);
             }
         }
         sc.text(
-            ((px0 + px1) / 2.0, ay + 36.0),
-            fit_text(&self.x_label, size::LABEL, px1 - px0 + 2.0 * self.margin),
-            size::LABEL,
+            ((px0 + px1) / 2.0, ay + 36.0 * k),
+            fit_text(&self.x_label, label, px1 - px0 + 2.0 * self.margin),
+            label,
             INK,
             Align::Center,
         );
-        caption(sc, &self.cap_lines, self.margin, ay + 62.0);
+        caption_scaled(sc, &self.cap_lines, (self.margin, ay + 62.0 * k), k);
     }
 }

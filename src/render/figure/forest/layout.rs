@@ -1,15 +1,16 @@
 //! The forest plot's layout: the rows, the value axis, the text columns,
 //! the caption and the row height, computed before anything is drawn.
 
+use super::columns::{text_columns, TextColumn};
+use super::group::Grouping;
 use crate::effect::route::Derivation;
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
-use crate::render::figure::scene::{fit_text, text_width};
+use crate::render::figure::scene::text_width;
 use crate::render::figure::{
     decimals_for, effect_axis_title, measure_name, model_line, size, wrap, Axis, PlotOptions,
-    SortKey,
 };
-use crate::result::{AtValue, FitReport, LevelSummary, ModeratorKind, Subgroups, Tau2Method};
+use crate::result::{FitReport, LevelSummary, Tau2Method};
 use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
@@ -23,50 +24,39 @@ pub(super) enum Row<'a> {
     Gap,
 }
 
-/// The rows are grouped by this moderator (its index and its levels).
-pub(super) type Grouping<'a> = Option<(usize, &'a Subgroups)>;
-
-/// The first categorical moderator with subgroup results, if any.
-pub(super) fn grouping(report: &FitReport) -> Grouping<'_> {
-    report
-        .model
-        .moderators
-        .iter()
-        .enumerate()
-        .find_map(|(j, m)| {
-            matches!(m.kind, ModeratorKind::Categorical { .. })
-                .then(|| {
-                    report
-                        .subgroups
-                        .iter()
-                        .find(|g| g.moderator == m.name)
-                        .map(|g| (j, g))
-                })
-                .flatten()
-        })
-}
-
-/// The rows: the studies in `ordered` order (under a head and above an
-/// average per level when grouped), then the overall average and the
-/// prediction interval.
-pub(super) fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a>) -> Vec<Row<'a>> {
+/// The rows: the studies in `ordered` order (under a head per group, and
+/// above the group's own average when it has one), then the overall
+/// average and the prediction interval.
+pub(super) fn rows<'a>(
+    report: &FitReport,
+    ordered: &[usize],
+    group: Option<&Grouping<'a>>,
+) -> Vec<Row<'a>> {
     let studies = &report.studies;
     let mut rows: Vec<Row> = Vec::new();
     match group {
-        Some((j, g)) => {
-            for lv in &g.levels {
+        Some(g) => {
+            let mut of = vec![usize::MAX; studies.len()];
+            for (n, grp) in g.groups.iter().enumerate() {
+                for &i in &grp.members {
+                    of[i] = n;
+                }
+            }
+            for (n, grp) in g.groups.iter().enumerate() {
                 rows.push(Row::GroupHead(format!(
                     "{} = {}  (k = {})",
-                    g.moderator, lv.level, lv.k
+                    g.column,
+                    grp.value,
+                    grp.members.len()
                 )));
                 let mut w = 0.0;
-                for &i in ordered {
-                    if matches!(&studies[i].moderators[j], AtValue::Level(l) if *l == lv.level) {
-                        rows.push(Row::Study(i));
-                        w += studies[i].weight;
-                    }
+                for &i in ordered.iter().filter(|&&i| of[i] == n) {
+                    rows.push(Row::Study(i));
+                    w += studies[i].weight;
                 }
-                rows.push(Row::GroupAverage(lv, w));
+                if let Some(lv) = grp.summary {
+                    rows.push(Row::GroupAverage(lv, w));
+                }
                 rows.push(Row::Gap);
             }
         }
@@ -80,7 +70,8 @@ pub(super) fn rows<'a>(report: &FitReport, ordered: &[usize], group: Grouping<'a
 /// Where things go: everything the drawing steps need.
 pub(super) struct Forest<'a> {
     pub report: &'a FitReport,
-    pub group: Grouping<'a>,
+    /// The rows' grouping (None: not grouped).
+    pub group: Option<&'a Grouping<'a>>,
     /// The title (`--title`, or one saying what the rows are).
     pub title: String,
     /// The value axis title (`--x-label`, or the reading scale in words).
@@ -100,10 +91,10 @@ pub(super) struct Forest<'a> {
     pub ci_w: f64,
     /// Width of the weight column.
     pub weight_w: f64,
-    /// Width of the label column (study names and the sort column).
+    /// Width of the label area (study names and the text columns).
     pub label_w: f64,
-    /// The sort column (with `--sort` by a moderator).
-    pub sort_col: Option<SortColumn>,
+    /// The text columns after the names (`--columns`, the sort column).
+    pub cols: Vec<TextColumn>,
     /// Width of the study names.
     pub name_w: f64,
     /// Left and right end of the plot area.
@@ -124,22 +115,24 @@ pub(super) struct Forest<'a> {
     pub height: u32,
     /// Text size in the rows.
     pub fs: f64,
+    /// The rows' text size fixed by `--font-size`, in pixels.
+    pub row_fs: Option<f64>,
+    /// Scale of the other text and the vertical spacing (`--font-size`; 1 without).
+    pub scale: f64,
+    /// Each study's label on one or two lines (by index into the studies).
+    pub label_lines: Vec<Vec<String>>,
+    /// Top of each row, and the bottom of the last.
+    row_top: Vec<f64>,
+    /// Distance between the two lines of a two-line label.
+    pub line_gap: f64,
     /// Number of rows.
     pub n_rows: usize,
     /// The largest study weight (the disc of that study is the largest).
     pub w_max: f64,
 }
 
-/// The column of the moderator the rows are sorted by: its heading, each
-/// study's value and the column's width.
-pub(super) struct SortColumn {
-    pub head: String,
-    pub values: Vec<String>,
-    pub width: f64,
-}
-
 /// The value range (plot space) and the clip limits of long intervals.
-pub(super) fn value_axis(report: &FitReport, group: Grouping) -> Axis {
+pub(super) fn value_axis(report: &FitReport, group: Option<&Grouping>) -> Axis {
     let scale = report.measure.reading_scale;
     let tp = |y: f64| Axis::to_plot(scale, y);
     let studies = &report.studies;
@@ -151,8 +144,8 @@ pub(super) fn value_axis(report: &FitReport, group: Grouping) -> Axis {
             .into_iter()
             .filter(|v| !v.is_nan()),
     );
-    if let Some((_, g)) = group {
-        for lv in &g.levels {
+    if let Some(g) = group {
+        for lv in g.groups.iter().filter_map(|g| g.summary) {
             if let Some(p) = &lv.pooled {
                 core.extend([tp(p.mean.ci.ci_low), tp(p.mean.ci.ci_high)]);
             }
@@ -226,67 +219,40 @@ fn decimals(report: &FitReport) -> usize {
     }
 }
 
-/// Sorting by a moderator shows its values in a column after the labels.
-fn sort_column(
-    report: &FitReport,
-    sort: &SortKey,
-    fs_max: f64,
-    label_w: f64,
-) -> Option<SortColumn> {
-    let SortKey::Moderator(name) = sort else {
-        return None;
-    };
-    let j = report
-        .model
-        .moderators
-        .iter()
-        .position(|m| &m.name == name)?;
-    let values: Vec<String> = report
-        .studies
-        .iter()
-        .map(|s| match &s.moderators[j] {
-            AtValue::Number(x) => {
-                let t = fmt::plot_num(*x, 3);
-                if t.contains('.') {
-                    t.trim_end_matches('0').trim_end_matches('.').to_string()
-                } else {
-                    t
-                }
-            }
-            AtValue::Level(l) => l.clone(),
-        })
-        .collect();
-    let head = fit_text(name, fs_max.min(13.0), 0.4 * label_w);
-    let w = values
-        .iter()
-        .map(|v| text_width(v, fs_max))
-        .fold(text_width(&head, fs_max.min(13.0)), f64::max)
-        .min(0.4 * label_w);
-    Some(SortColumn {
-        head,
-        values,
-        width: w + 12.0,
-    })
-}
-
 impl<'a> Forest<'a> {
-    /// Lays out the plot of `n_rows` rows on `axis`.
+    /// Lays out the plot of `rows` on `axis`.
     ///
     /// # Errors
     /// [`Error::Usage`] naming `--width` when the columns leave less than
     /// 140 pixels for the plot area, or `--height` when a row would be
-    /// lower than 4 pixels.
+    /// lower than 4 pixels, or `--font-size` when its text does not fit the
+    /// rows `--height` leaves.
     pub fn new(
         report: &'a FitReport,
         opts: &PlotOptions,
-        group: Grouping<'a>,
-        n_rows: usize,
+        group: Option<&'a Grouping<'a>>,
+        rows: &[Row],
         axis: Axis,
     ) -> Result<Forest<'a>> {
-        let width = f64::from(opts.width.unwrap_or(1000));
-        let auto_rh = auto_row_height(n_rows);
+        let n_rows = rows.len();
+        // --font-size fixes the rows' text (points to pixels at 96 per
+        // inch); everything else scales with it from the default row text,
+        // rows included (a row is as high for its text as by default).
+        let row_fs = opts.font_size.map(|pt| pt * 96.0 / 72.0);
+        let scale = row_fs.map_or(1.0, |f| f / font(24.0));
+        let auto_rh = row_fs.map_or_else(|| auto_row_height(n_rows), |f| f / 0.56);
         let margin = 18.0;
-        let fs_max = font(auto_rh).max(12.0);
+        let fs_max = row_fs.unwrap_or_else(|| font(auto_rh).max(12.0));
+        let cols = text_columns(
+            report,
+            (&opts.columns, &opts.sort),
+            fs_max,
+            fs_max.min(13.0 * scale),
+        )?;
+        let cols_w: f64 = cols.iter().map(|c| c.width).sum();
+        // Without --width the page widens by the text columns, so the plot
+        // area keeps its width.
+        let width = opts.width.map_or(1000.0 + cols_w, f64::from);
         // The zeros are filled in by the three steps below, in order: the
         // columns, the caption (which needs the axis limits), the row height
         // (which needs the caption's height).
@@ -294,7 +260,7 @@ impl<'a> Forest<'a> {
             report,
             group,
             title: opts.title.clone().unwrap_or_else(|| {
-                if group.is_some() {
+                if group.is_some_and(Grouping::averaged) {
                     "Study effects, subgroup averages and the overall average".into()
                 } else {
                     "Study effects and their average".into()
@@ -312,9 +278,9 @@ impl<'a> Forest<'a> {
             dec: decimals(report),
             ci_w: 0.0,
             weight_w: text_width("Weight", fs_max).max(text_width("100.0%", fs_max)) + 12.0,
-            label_w: (0.27 * width).clamp(120.0, 340.0),
-            sort_col: None,
-            name_w: 0.0,
+            label_w: 0.0,
+            name_w: (0.27 * (width - cols_w)).clamp(120.0, 340.0 * scale.max(1.0)),
+            cols,
             px0: 0.0,
             px1: 0.0,
             lv: fmt::level_pct(report.model.level),
@@ -324,21 +290,27 @@ impl<'a> Forest<'a> {
                 "Random-effects average"
             },
             cap_lines: Vec::new(),
-            top: 86.0, // title, subtitle, column headers
+            top: 86.0 * scale, // title, subtitle, column headers
             rh: auto_rh,
             height: 0,
             fs: 0.0,
+            row_fs,
+            scale,
+            label_lines: Vec::new(),
+            row_top: Vec::new(),
+            line_gap: 0.0,
             n_rows,
             w_max: report.studies.iter().map(|s| s.weight).fold(0.0, f64::max),
         };
-        f.columns(&opts.sort)?;
+        f.columns()?;
+        f.wrap_labels();
         f.cap_lines = f.caption();
-        f.row_height(opts.height)?;
+        f.row_height(rows, opts.height)?;
         Ok(f)
     }
 
     /// The widths of the text columns and the plot area between them.
-    fn columns(&mut self, sort: &SortKey) -> Result<()> {
+    fn columns(&mut self) -> Result<()> {
         let (report, fs_max, width, margin) = (self.report, self.fs_max, self.width, self.margin);
         self.ci_w = report
             .studies
@@ -352,8 +324,12 @@ impl<'a> Forest<'a> {
                 f64::max,
             )
             + 14.0;
-        self.sort_col = sort_column(report, sort, fs_max, self.label_w);
-        self.name_w = self.label_w - self.sort_col.as_ref().map_or(0.0, |c| c.width);
+        let cols_w: f64 = self.cols.iter().map(|c| c.width).sum();
+        // The names give way (down to 100 pixels) before the plot area
+        // shrinks below 140 pixels.
+        let room = width - 2.0 * margin - self.weight_w - self.ci_w - 26.0 - 140.0 - cols_w;
+        self.name_w = self.name_w.min(room).max(100.0);
+        self.label_w = self.name_w + cols_w;
         self.px0 = margin + self.label_w + 14.0;
         self.px1 = width - margin - self.weight_w - self.ci_w - 12.0;
         if self.px1 - self.px0 < 140.0 {
@@ -381,11 +357,18 @@ impl<'a> Forest<'a> {
             ),
             model_line(report),
         ];
-        if let Some((_, g)) = self.group {
-            caption.push(format!(
-                "Rows are grouped by {}; each lighter ◇ averages that group's studies alone (with its own τ²).",
-                g.moderator
-            ));
+        if let Some(g) = self.group {
+            caption.push(if g.averaged() {
+                format!(
+                    "Rows are grouped by {}; each lighter ◇ averages that group's studies alone (with its own τ²).",
+                    g.column
+                )
+            } else {
+                format!(
+                    "Rows are grouped by {} (no group averages: it is not a categorical moderator of the model).",
+                    g.column
+                )
+            });
         }
         if self.show_fitted {
             caption.push("△ fitted value of the meta-regression for that study.".into());
@@ -422,40 +405,109 @@ impl<'a> Forest<'a> {
         }
         caption
             .iter()
-            .flat_map(|c| wrap(c, size::SMALL, self.width - 2.0 * self.margin))
+            .flat_map(|c| wrap(c, size::SMALL * self.scale, self.width - 2.0 * self.margin))
             .collect()
     }
 
-    /// The row height and the page height: the rows share `--height`, or
-    /// the page grows with them.
-    fn row_height(&mut self, height: Option<u32>) -> Result<()> {
+    /// The row height, the page height and each row's top: the rows share
+    /// `--height`, or the page grows with them. A study whose label takes
+    /// two lines gets a row taller by the distance between the lines.
+    fn row_height(&mut self, rows: &[Row], height: Option<u32>) -> Result<()> {
         let (top, n_rows) = (self.top, self.n_rows);
-        let bottom = 62.0 + 17.0 * self.cap_lines.len() as f64; // axis + caption
-        let (rh, height) = match height {
+        let bottom = (62.0 + 17.0 * self.cap_lines.len() as f64) * self.scale; // axis + caption
+        let two = |r: &Row| matches!(r, Row::Study(i) if self.label_lines[*i].len() > 1);
+        let n2 = rows.iter().filter(|r| two(r)).count() as f64;
+        let n = n_rows as f64;
+        // Lines of a two-line label are 1.2 text sizes apart; the text is
+        // 0.56 of the row height unless --font-size fixes it.
+        let (rh, height, gap) = match height {
             Some(h) => {
-                let rh = (f64::from(h) - top - bottom) / n_rows as f64;
+                let avail = f64::from(h) - top - bottom;
+                let (rh, gap) = match self.row_fs {
+                    Some(f) => ((avail - n2 * 1.2 * f) / n, 1.2 * f),
+                    None => {
+                        let rh = avail / (n + 0.672 * n2);
+                        (rh, 0.672 * rh)
+                    }
+                };
                 if rh < 4.0 {
                     return Err(Error::usage(
                         Flag::Height,
                         format!(
                             "{h} pixels are too few for {n_rows} rows; use at least {:.0} (or leave \
                              {} out for an automatic height)",
-                            top + bottom + 4.0 * n_rows as f64,
+                            top + bottom + 4.0 * (n + 0.672 * n2),
                             Flag::Height
                         ),
                     ));
                 }
-                (rh, h)
+                if let Some(f) = self.row_fs.filter(|&f| rh < 1.1 * f) {
+                    return Err(Error::usage(
+                        Flag::FontSize,
+                        format!(
+                            "text of {:.1} points needs rows of at least {:.0} pixels, and {h} \
+                             pixels of {} leave {rh:.1} for each of {n_rows} rows; use a smaller \
+                             size, a larger {}, or leave {} out",
+                            f * 72.0 / 96.0,
+                            1.1 * f,
+                            Flag::Height,
+                            Flag::Height,
+                            Flag::Height
+                        ),
+                    ));
+                }
+                (rh, h, gap)
             }
-            None => (
-                self.rh,
-                (top + bottom + self.rh * n_rows as f64).ceil() as u32,
-            ),
+            None => {
+                let gap = 1.2 * self.row_fs.unwrap_or_else(|| font(self.rh));
+                let h = top + bottom + self.rh * n + gap * n2;
+                (self.rh, h.ceil() as u32, gap)
+            }
         };
         self.rh = rh;
         self.height = height;
-        self.fs = font(rh);
+        self.fs = self.row_fs.unwrap_or_else(|| font(rh));
+        self.line_gap = gap;
+        let mut y = top;
+        self.row_top = Vec::with_capacity(rows.len() + 1);
+        for r in rows {
+            self.row_top.push(y);
+            y += if two(r) { rh + gap } else { rh };
+        }
+        self.row_top.push(y);
         Ok(())
+    }
+
+    /// The lines of every study's label, wrapped to the names' width at
+    /// the rows' text size (the automatic size when `--height` will change it).
+    fn wrap_labels(&mut self) {
+        let fs = self.row_fs.unwrap_or_else(|| font(self.rh));
+        let max = self.name_w - self.indent();
+        self.label_lines = self
+            .report
+            .studies
+            .iter()
+            .map(|s| super::labels::lines(&s.study, fs, max))
+            .collect();
+    }
+
+    /// How far study labels are indented (under a group's heading).
+    pub fn indent(&self) -> f64 {
+        if self.group.is_some() {
+            10.0
+        } else {
+            0.0
+        }
+    }
+
+    /// Top of row `r` (`r` = the number of rows: the bottom of the last).
+    pub fn row_top(&self, r: usize) -> f64 {
+        self.row_top[r]
+    }
+
+    /// Vertical centre of row `r`.
+    pub fn row_mid(&self, r: usize) -> f64 {
+        (self.row_top[r] + self.row_top[r + 1]) / 2.0
     }
 
     /// An analysis-scale value in plot space.

@@ -1,18 +1,25 @@
 //! The forest plot: one row per study, subgroup and overall averages, the
 //! prediction interval on its own dashed row.
 //!
-//! Layout, left to right: label column, plot area, "effect \[CI\]" column,
-//! weight column. Rows are 24, 19 or 15 pixels high depending on how many
-//! there are (or share `--height`); labels are shortened with an ellipsis to
-//! their column, so they never reach the plot area.
+//! Layout, left to right: label column, the text columns (`--columns`, the
+//! sort column), plot area, "effect \[CI\]" column, weight column. Rows are
+//! 24, 19 or 15 pixels high depending on how many there are (or share
+//! `--height`, or follow `--font-size`); a label too long for its column
+//! wraps onto two lines in a taller row (`labels`), so it never reaches the
+//! plot area. Rows are grouped by a categorical moderator or any column
+//! (`group`).
 //!
-//! The steps: check the options, order the studies, lay out the rows
-//! (`layout::rows`), the value axis (`layout::value_axis`), the text columns,
-//! the caption and the row height (`layout::Forest::new`), then draw the
-//! header, the backdrop, each row, the axis and the caption (`draw`).
+//! The steps: check the options, order the studies, group them, lay out
+//! the rows (`layout::rows`), the value axis (`layout::value_axis`), the
+//! text columns, the labels' lines, the caption and the row heights
+//! (`layout::Forest::new`), then draw the header, the backdrop, each row,
+//! the axis and the caption (`draw`).
 
 mod band;
+mod columns;
 mod draw;
+mod group;
+mod labels;
 mod layout;
 mod shrunken;
 
@@ -27,15 +34,16 @@ pub const MAX_STUDIES: usize = 20_000;
 /// Builds the forest plot.
 ///
 /// # Errors
-/// [`Error::Usage`] for `--sort` naming no moderator, `--show-fitted`
+/// [`Error::Usage`] for `--sort`, `--group-by` or `--columns` naming a
+/// column neither a moderator nor carried in the studies' cells, `--show-fitted`
 /// without moderators, or a width too small for the columns.
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     check(report, opts)?;
     let ordered = order(report, &opts.sort)?;
-    let group = layout::grouping(report);
-    let rows = layout::rows(report, &ordered, group);
-    let axis = layout::value_axis(report, group);
-    let forest = layout::Forest::new(report, opts, group, rows.len(), axis)?;
+    let group = group::grouping(report, &opts.group_by)?;
+    let rows = layout::rows(report, &ordered, group.as_ref());
+    let axis = layout::value_axis(report, group.as_ref());
+    let forest = layout::Forest::new(report, opts, group.as_ref(), &rows, axis)?;
     Ok(forest.draw(&rows))
 }
 
@@ -72,45 +80,42 @@ fn order(report: &FitReport, sort: &SortKey) -> Result<Vec<usize>> {
         SortKey::Input => {}
         SortKey::Effect => idx.sort_by(|&a, &b| s[a].effect.total_cmp(&s[b].effect)),
         SortKey::Precision => idx.sort_by(|&a, &b| s[a].variance.total_cmp(&s[b].variance)),
-        SortKey::Moderator(name) => {
-            let Some(j) = report.model.moderators.iter().position(|m| &m.name == name) else {
-                let names: Vec<&str> = report
-                    .model
-                    .moderators
-                    .iter()
-                    .map(|m| m.name.as_str())
-                    .collect();
-                return Err(Error::usage(
-                    Flag::Sort,
-                    format!(
-                        "'{name}' is not effect, precision, input or a moderator of this model{}",
-                        if names.is_empty() {
-                            String::new()
-                        } else {
-                            format!(" (moderators: {})", names.join(", "))
-                        }
-                    ),
-                ));
-            };
-            let key = |i: usize| match &s[i].moderators[j] {
-                AtValue::Number(x) => (0usize, *x, String::new()),
-                AtValue::Level(l) => {
-                    let pos = match &report.model.moderators[j].kind {
-                        ModeratorKind::Categorical { levels, .. } => {
-                            levels.iter().position(|x| x == l).unwrap_or(0)
-                        }
-                        _ => 0,
-                    };
-                    (pos, 0.0, l.clone())
-                }
-            };
-            idx.sort_by(|&a, &b| {
-                let (ka, kb) = (key(a), key(b));
-                ka.0.cmp(&kb.0)
-                    .then(ka.1.total_cmp(&kb.1))
-                    .then(ka.2.cmp(&kb.2))
-            });
-        }
+        SortKey::Column(name) => match report.model.moderators.iter().position(|m| &m.name == name)
+        {
+            Some(j) if s.iter().all(|st| !st.cells.contains_key(name)) => {
+                let key = |i: usize| match &s[i].moderators[j] {
+                    AtValue::Number(x) => (0usize, *x, String::new()),
+                    AtValue::Level(l) => {
+                        let pos = match &report.model.moderators[j].kind {
+                            ModeratorKind::Categorical { levels, .. } => {
+                                levels.iter().position(|x| x == l).unwrap_or(0)
+                            }
+                            _ => 0,
+                        };
+                        (pos, 0.0, l.clone())
+                    }
+                };
+                idx.sort_by(|&a, &b| {
+                    let (ka, kb) = (key(a), key(b));
+                    ka.0.cmp(&kb.0)
+                        .then(ka.1.total_cmp(&kb.1))
+                        .then(ka.2.cmp(&kb.2))
+                });
+            }
+            _ => sort_by_cells(&mut idx, &columns::cells(report, name, Flag::Sort)?),
+        },
     }
     Ok(idx)
+}
+
+/// Sorts study indices by a column's cells: numbers ascending when every
+/// cell is a number, else text in order; empty cells last (stable).
+fn sort_by_cells(idx: &mut [usize], cells: &[String]) {
+    let empty = |i: usize| cells[i].trim().is_empty();
+    if columns::numeric(cells) {
+        let num = |i: usize| cells[i].trim().parse::<f64>().unwrap_or(f64::INFINITY);
+        idx.sort_by(|&a, &b| empty(a).cmp(&empty(b)).then(num(a).total_cmp(&num(b))));
+    } else {
+        idx.sort_by(|&a, &b| empty(a).cmp(&empty(b)).then(cells[a].cmp(&cells[b])));
+    }
 }
