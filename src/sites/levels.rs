@@ -111,17 +111,23 @@ impl Coding {
     /// it holds anything but 0 and 1 and no level was named.
     pub fn check(&self, column: &str) -> Result<String> {
         let (col_flag, flag) = (self.column_flag(), self.level_flag);
-        let what = if flag == Flag::Treat {
-            "a group column needs exactly two values (treatment and control)"
+        let (what, keep) = if flag == Flag::Treat {
+            (
+                "a group column needs exactly two values (treatment and control)",
+                "Keep the rows of two groups only",
+            )
         } else {
-            "a binary outcome needs exactly two values (event and no event)"
+            (
+                "a binary outcome needs exactly two values (event and no event)",
+                "Leave out the rows with any other value",
+            )
         };
         if self.seen.len() > 2 {
             return Err(Error::usage(
                 col_flag,
                 format!(
-                    "column '{column}' has more than two values: {}; {what}. Keep the rows of two \
-                     groups only (or recode the column) and run again",
+                    "column '{column}' has more than two values: {}; {what}. {keep} (or \
+                     recode the column) and run again",
                     self.found()
                 ),
             ));

@@ -181,9 +181,8 @@ fn check_effect(s: &SitesSettings, moments: bool) -> Result<()> {
         return Err(Error::usage(
             Flag::Treat,
             format!(
-                "{} names the treatment group of x, which is read as two groups only with {effect} \
-                 smd or {effect} log-or",
-                Flag::Treat
+                "names the treatment group of x, which is read as two groups only with {effect} \
+                 smd or {effect} log-or"
             ),
         ));
     }
@@ -191,9 +190,8 @@ fn check_effect(s: &SitesSettings, moments: bool) -> Result<()> {
         return Err(Error::usage(
             Flag::Event,
             format!(
-                "{} names the event of a binary outcome y, which is read as two outcomes only \
-                 with {effect} log-or",
-                Flag::Event
+                "names the event of a binary outcome y, which is read as two outcomes only with \
+                 {effect} log-or"
             ),
         ));
     }
