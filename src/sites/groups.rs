@@ -98,7 +98,8 @@ pub fn smd(m: &Moments) -> Result<(SiteSmd, f64, f64), String> {
     let diff = cxy / cxx;
     let within = (cyy - cxy * cxy / cxx).max(0.0);
     let s2 = within / (n - 2.0);
-    if !(s2 > crate::tolerance::EXACT_FIT_RSS * cyy.max(f64::MIN_POSITIVE)) || !s2.is_finite() {
+    // As in the slope route: a residual that is rounding of C_yy is no spread.
+    if within <= crate::tolerance::EXACT_FIT_RSS * cyy || s2 <= 0.0 || !s2.is_finite() {
         return Err(
             "y does not vary within the groups, so there is no SD to standardise by".into(),
         );
