@@ -31,6 +31,10 @@ pub struct Coding {
     seen: Vec<(String, u64)>,
     /// Whether more than [`MAX_SEEN`] distinct values occurred.
     more: bool,
+    /// Cells already coded, as their trimmed bytes, with the code: a
+    /// column repeats a few spellings, so most cells are found here
+    /// without building their key.
+    cache: Vec<(Vec<u8>, f64)>,
 }
 
 /// The comparison key of a cell: a number in its shortest form (so `1`,
@@ -57,6 +61,7 @@ impl Coding {
             level_text: level.map(|l| l.trim().to_string()),
             seen: Vec::new(),
             more: false,
+            cache: Vec::new(),
         }
     }
 
@@ -73,6 +78,20 @@ impl Coding {
     /// other value, None for an empty cell or missing mark.
     #[inline]
     pub fn code(&mut self, cell: &[u8], line: u64) -> Option<f64> {
+        let trimmed = cell.trim_ascii();
+        if let Some((_, v)) = self.cache.iter().find(|(c, _)| c == trimmed) {
+            return Some(*v);
+        }
+        let v = self.code_new(cell, line)?;
+        if self.cache.len() < MAX_SEEN {
+            self.cache.push((trimmed.to_vec(), v));
+        }
+        Some(v)
+    }
+
+    /// [`Coding::code`] for a spelling not in the cache: its key, the
+    /// value it is coded as, and the record of a new value.
+    fn code_new(&mut self, cell: &[u8], line: u64) -> Option<f64> {
         let text = String::from_utf8_lossy(cell);
         let k = key(&text)?;
         let one = match &self.level {

@@ -299,3 +299,113 @@ fn sites_without_both_groups_are_listed() {
     );
     assert!(out.contains("'c' (n = 2): too few rows"), "{out}");
 }
+
+/// A text --x on the slope route: one message, however many rows hold
+/// text (issue 18 asked for this instead of one message per row).
+#[test]
+fn text_x_gives_one_message() {
+    let dir = TempDir::new().unwrap();
+    let mut text = String::from("site,arm,y\n");
+    for i in 0..60 {
+        let arm = if i % 2 == 0 { "control" } else { "treatment" };
+        text.push_str(&format!("s{},{arm},{}\n", i % 3, i as f64 * 0.5));
+    }
+    let path = dir.path().join("rows.csv");
+    std::fs::write(&path, text).unwrap();
+    let o = pondus()
+        .arg("sites")
+        .arg(&path)
+        .args(["--site", "site", "--x", "arm", "--y", "y"])
+        .arg("--out")
+        .arg(dir.path().join("e.csv"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains("'control' on line 2") && err.contains("--effect smd"),
+        "{err}"
+    );
+    // The same rows as groups work.
+    let (got, _) = sites(
+        &dir,
+        &[
+            path.to_str().unwrap(),
+            "--site",
+            "site",
+            "--x",
+            "arm",
+            "--y",
+            "y",
+            "--effect",
+            "smd",
+            "--treat",
+            "treatment",
+        ],
+    );
+    assert_eq!(got.len(), 3);
+}
+
+/// A moments table is coded in the database: --treat is refused with the
+/// reason, and a table with w columns cannot give a group comparison.
+#[test]
+fn moments_route_refusals() {
+    let dir = TempDir::new().unwrap();
+    let m = repo(&format!("{DIR}/moments.csv"));
+    let o = pondus()
+        .arg("sites")
+        .args(["--moments", m.to_str().unwrap(), "--effect", "smd"])
+        .args(["--treat", "treatment", "--out"])
+        .arg(dir.path().join("e.csv"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("--treat") && err.contains("coded 0/1"),
+        "{err}"
+    );
+    // A table with w columns (one made-up site; the layout is what counts).
+    let names = ["x", "w", "xw", "y"];
+    let mut header = vec!["site".to_string(), "n".into()];
+    header.extend(names.iter().map(|n| format!("mean_{n}")));
+    for i in 0..4 {
+        for j in i..4 {
+            header.push(format!("cov_{}_{}", names[i], names[j]));
+        }
+    }
+    let row = std::iter::once("a".to_string())
+        .chain(std::iter::repeat_n("1".to_string(), header.len() - 1))
+        .collect::<Vec<_>>()
+        .join(",");
+    let with_w = dir.path().join("with-w.csv");
+    std::fs::write(&with_w, format!("{}\n{row}\n", header.join(","))).unwrap();
+    let o = pondus()
+        .arg("sites")
+        .args([
+            "--moments",
+            with_w.to_str().unwrap(),
+            "--effect",
+            "smd",
+            "--out",
+        ])
+        .arg(dir.path().join("e.csv"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("w or covariate columns"), "{err}");
+    let w = repo("tests/golden/inputs/moments.csv");
+    // A table whose x is not 0/1 (the slope data of the golden case):
+    // every site left out with the reason, so the run stops.
+    let o = pondus()
+        .arg("sites")
+        .args(["--moments", w.to_str().unwrap(), "--effect", "smd", "--out"])
+        .arg(dir.path().join("e.csv"))
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success(), "{err}");
+    assert!(err.contains("not coded 0/1"), "{err}");
+}
