@@ -112,11 +112,24 @@ pub fn run(
         );
     }
     if !characteristics.is_empty() {
-        answers.push(
-            "Site characteristics: the meta-regression of the site slopes on them is an across-site \
-             comparison too, with the same limits."
-                .into(),
-        );
+        answers.push(match report.model.effect {
+            SiteMeasure::Slope => {
+                "Site characteristics: the meta-regression of the site slopes on \
+                                   them is an across-site comparison too, with the same limits."
+                    .into()
+            }
+            effect => format!(
+                "Site characteristics: the meta-regression of the site {} on them compares \
+                 sites, so anything else that differs between those sites can produce it; even \
+                 when every site randomised its groups, it does not show what happens to an \
+                 individual.",
+                if effect == SiteMeasure::Smd {
+                    "standardised mean differences"
+                } else {
+                    "log odds ratios"
+                }
+            ),
+        });
     }
     let k = report.sites.len();
     let mut cautions = vec![
