@@ -85,6 +85,9 @@ fn main() {
         robust: false,
         center_within: false,
         decimal: None,
+        effect: Default::default(),
+        treat: None,
+        event: None,
     };
     let t = Instant::now();
     let report = from_rows("raw.csv", RowInput::File(&path), &settings).expect("runs");

@@ -153,27 +153,52 @@ pub fn sites_csv(data: &[u8]) {
     let Some((&sel, csv)) = data.split_first() else {
         return;
     };
+    // Bits 3 and 4 choose a group comparison (x as two groups, y as two
+    // outcomes with log-or), which takes no w or covariates.
+    let effect = match (sel >> 3) & 3 {
+        1 => pondus::result::SiteMeasure::Smd,
+        2 => pondus::result::SiteMeasure::LogOr,
+        _ => pondus::result::SiteMeasure::Slope,
+    };
+    let groups = effect != pondus::result::SiteMeasure::Slope;
     let settings = pondus::sites::SitesSettings {
         site: "site".into(),
         x: "x".into(),
         y: "y".into(),
-        w: (sel & 1 != 0).then(|| "w".into()),
-        covariates: if sel & 2 != 0 {
+        w: (sel & 1 != 0 && !groups).then(|| "w".into()),
+        covariates: if sel & 2 != 0 && !groups {
             vec!["c".into()]
         } else {
             vec![]
         },
         robust: false,
-        center_within: sel & 4 != 0,
+        center_within: sel & 4 != 0 && !groups,
         decimal: None,
+        effect,
+        treat: (sel & 32 != 0).then(|| "b".into()),
+        event: (sel & 64 != 0 && effect == pondus::result::SiteMeasure::LogOr).then(|| "b".into()),
     };
     let input = pondus::sites::RowInput::Stream(Box::new(csv));
     if let Ok(r) = pondus::sites::from_rows("fuzz.csv", input, &settings) {
         for s in &r.sites {
             assert!(
-                s.slope.is_finite() && s.se.is_finite() && s.se > 0.0,
+                s.slope.is_finite() && s.se.is_finite() && (s.se > 0.0 || s.log_or.is_some()),
                 "{s:?}"
             );
+            if let Some(g) = &s.smd {
+                assert!(
+                    g.g.is_finite() && g.var_g > 0.0 && g.var_g.is_finite(),
+                    "{s:?}"
+                );
+                assert!(g.treat_n >= 2 && g.ctrl_n >= 2, "{s:?}");
+            }
+            if let Some(t) = &s.log_or {
+                assert!(t.log_or.is_finite() && t.var_log_or > 0.0, "{s:?}");
+                assert!(
+                    t.treat_events <= t.treat_n && t.ctrl_events <= t.ctrl_n,
+                    "{s:?}"
+                );
+            }
             assert!(s.r.is_finite() && (-1.0..=1.0).contains(&s.r), "{s:?}");
             assert!(s.mean_x.is_finite(), "{s:?}");
             if let (Some(b), Some(se)) = (s.interaction, s.interaction_se) {

@@ -53,6 +53,16 @@ pub struct SitesArgs {
         value_name = "COL"
     )]
     pub covariates: Vec<String>,
+    /// The per-site effect: the slope of y on x; Hedges' g between the two groups of x (smd); or the log
+    /// odds ratio of a binary y between them (log-or).
+    #[arg(help_heading = "Per-site regressions", long, value_enum, default_value_t = EffectArg::Slope, value_name = "EFFECT")]
+    pub effect: EffectArg,
+    /// The value of x that marks the treatment group (with --effect smd or log-or; default: 1 in a 0/1 column).
+    #[arg(help_heading = "Per-site regressions", long, value_name = "LEVEL")]
+    pub treat: Option<String>,
+    /// The value of y that marks an event (with --effect log-or; default: 1 in a 0/1 column).
+    #[arg(help_heading = "Per-site regressions", long, value_name = "LEVEL")]
+    pub event: Option<String>,
     /// Read a per-site moments table (the result of `pondus sql`'s query) instead of participant rows
     /// (--site, --x, --y, --w and --covariate may be repeated from the query: they are checked against
     /// the table and name its variables in the output).
@@ -124,6 +134,27 @@ pub struct SitesArgs {
     /// Write one self-contained HTML page (sites, exclusions, join, both stages, plots, cautions) into this .html file ('-' for standard output).
     #[arg(help_heading = "Outputs", long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+}
+
+/// The per-site effects `--effect` names.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum EffectArg {
+    /// The OLS slope of y on x
+    Slope,
+    /// Hedges' g of y between the two groups of x
+    Smd,
+    /// The log odds ratio of a binary y between the two groups of x
+    LogOr,
+}
+
+impl From<EffectArg> for pondus::result::SiteMeasure {
+    fn from(e: EffectArg) -> Self {
+        match e {
+            EffectArg::Slope => Self::Slope,
+            EffectArg::Smd => Self::Smd,
+            EffectArg::LogOr => Self::LogOr,
+        }
+    }
 }
 
 /// Where `pondus sites` reads from.
@@ -266,6 +297,9 @@ impl SitesArgs {
                 robust: self.robust,
                 center_within: self.center_within,
                 decimal: self.decimal,
+                effect: self.effect.into(),
+                treat: self.treat.clone(),
+                event: self.event.clone(),
             },
             info: self.info.clone().map(|p| (p, info_key)),
             info_sheet: self.sheet.clone(),

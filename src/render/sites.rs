@@ -5,7 +5,9 @@ use super::layout::{
     bullets, clip, column_width, fact, heading, pad, title, trim_lines, width, MIN_TEXT_WIDTH,
     TEXT_WIDTH,
 };
-use crate::result::{Coefficient, FitReport, SeType, SitesInputKind, SitesReport, TwoStage};
+use crate::result::{
+    Coefficient, FitReport, SeType, SiteMeasure, SitesInputKind, SitesReport, TwoStage,
+};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -117,6 +119,10 @@ fn run_lines(o: &mut String, r: &SitesReport, width: usize) {
         )
     };
     fact(o, "Data", &data, width);
+    if m.effect != SiteMeasure::Slope {
+        group_lines(o, r, width);
+        return;
+    }
     let mut slope = format!("{} on {}", m.y, m.x);
     if !m.covariates.is_empty() {
         let _ = write!(slope, ", adjusted for {}", m.covariates.join(", "));
@@ -152,6 +158,85 @@ fn run_lines(o: &mut String, r: &SitesReport, width: usize) {
         &format!("{} estimated, {} left out", r.sites.len(), r.excluded.len()),
         width,
     );
+    let _ = writeln!(o);
+}
+
+/// What a group comparison estimated in each site.
+fn group_lines(o: &mut String, r: &SitesReport, width: usize) {
+    let m = &r.model;
+    let treat = m.treat.as_deref().unwrap_or("1");
+    let effect = if m.effect == SiteMeasure::Smd {
+        format!(
+            "Hedges' g of {} between the groups of {} ('{treat}' = treatment)",
+            m.y, m.x
+        )
+    } else {
+        format!(
+            "log odds ratio of {} = '{}' between the groups of {} ('{treat}' = treatment)",
+            m.y,
+            m.event.as_deref().unwrap_or("1"),
+            m.x
+        )
+    };
+    fact(o, "Effect", &effect, width);
+    fact(
+        o,
+        "Sites",
+        &format!("{} estimated, {} left out", r.sites.len(), r.excluded.len()),
+        width,
+    );
+    let _ = writeln!(o);
+}
+
+/// One line per site of a group comparison: the group sizes (and events)
+/// and the effect with its variance.
+fn group_table(o: &mut String, r: &SitesReport) {
+    let lw = r
+        .sites
+        .iter()
+        .map(|s| width(&s.study))
+        .max()
+        .unwrap_or(4)
+        .clamp(4, 28);
+    heading(o, "Site estimates");
+    let smd = r.model.effect == SiteMeasure::Smd;
+    let (a, b, e, v) = if smd {
+        ("treatment n", "control n", "g", "var(g)")
+    } else {
+        ("treatment", "control", "log OR", "variance")
+    };
+    let _ = writeln!(
+        o,
+        "  {}  {:>6}  {:>12}  {:>12}  {:>9}  {:>9}",
+        pad("site", lw),
+        "n",
+        a,
+        b,
+        e,
+        v
+    );
+    for s in &r.sites {
+        let (a, b, e, v) = match (&s.smd, &s.log_or) {
+            (Some(g), _) => (g.treat_n.to_string(), g.ctrl_n.to_string(), g.g, g.var_g),
+            (None, Some(t)) => (
+                format!("{}/{}", t.treat_events, t.treat_n),
+                format!("{}/{}", t.ctrl_events, t.ctrl_n),
+                t.log_or,
+                t.var_log_or,
+            ),
+            (None, None) => continue,
+        };
+        let _ = writeln!(
+            o,
+            "  {}  {:>6}  {:>12}  {:>12}  {:>9}  {:>9}",
+            pad(&clip(&s.study, lw), lw),
+            s.n,
+            a,
+            b,
+            fmt::fixed(e, 4),
+            fmt::fixed(v, 4)
+        );
+    }
     let _ = writeln!(o);
 }
 
@@ -216,6 +301,10 @@ fn exclusions_and_join(o: &mut String, r: &SitesReport, width: usize) {
 fn site_table(o: &mut String, r: &SitesReport) {
     let m = &r.model;
     if r.sites.is_empty() || r.sites.len() > MAX_LISTED_SITES {
+        return;
+    }
+    if m.effect != SiteMeasure::Slope {
+        group_table(o, r);
         return;
     }
     let with_w = m.w.is_some();
@@ -302,10 +391,14 @@ fn stages(o: &mut String, r: &SitesReport, st: &TwoStage, width: usize) {
     if let Some(f) = &st.characteristics {
         heading(
             o,
-            if f.model.moderators.is_empty() {
-                "The pooled slope across sites"
-            } else {
-                "Site slopes on the site characteristics"
+            match (
+                f.model.moderators.is_empty(),
+                m.effect == SiteMeasure::Slope,
+            ) {
+                (true, true) => "The pooled slope across sites",
+                (true, false) => "The pooled effect across sites",
+                (false, true) => "Site slopes on the site characteristics",
+                (false, false) => "Site effects on the site characteristics",
             },
         );
         for line in super::text::render_embedded(f, width - 2).lines() {

@@ -45,6 +45,30 @@ impl SeType {
     }
 }
 
+/// What each site's effect is (`--effect`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, schemars::JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum SiteMeasure {
+    /// The OLS slope of y on x.
+    #[default]
+    Slope,
+    /// Hedges' g of y between the two groups of x.
+    Smd,
+    /// The log odds ratio of a binary y between the two groups of x.
+    LogOr,
+}
+
+impl SiteMeasure {
+    /// The word used in the JSON and on the command line.
+    pub fn id(self) -> &'static str {
+        match self {
+            SiteMeasure::Slope => "slope",
+            SiteMeasure::Smd => "smd",
+            SiteMeasure::LogOr => "log-or",
+        }
+    }
+}
+
 /// The result of `pondus sites`: per-site effects from participant rows (or
 /// from a per-site moments table), the join with the site table, and, with
 /// `--fit`, the two second-stage answers.
@@ -107,6 +131,12 @@ pub struct SitesModel {
     pub se_type: SeType,
     /// Whether x and w were centred at their site means in the product-term model.
     pub center_within: bool,
+    /// The per-site effect: "slope", "smd" (x two groups) or "log-or" (x two groups, y binary).
+    pub effect: SiteMeasure,
+    /// The level of x coded 1 (the treatment group) with `smd` and `log-or`: the `--treat` level, or "1" for a 0/1 column; null for slopes.
+    pub treat: Option<String>,
+    /// The level of y coded 1 (the event) with `log-or`: the `--event` level, or "1" for a 0/1 column; null otherwise.
+    pub event: Option<String>,
 }
 
 /// One site's estimates: the row of the effects file.
@@ -134,6 +164,52 @@ pub struct SiteEffect {
     pub note: Option<String>,
     /// Joined site characteristics, in `join.columns` order (empty text when the site has no row there).
     pub characteristics: Vec<String>,
+    /// The two groups and Hedges' g (with `--effect smd`; null otherwise).
+    pub smd: Option<SiteSmd>,
+    /// The 2×2 table and the log odds ratio (with `--effect log-or`; null otherwise).
+    pub log_or: Option<SiteOdds>,
+}
+
+/// One site's standardised mean difference between the groups of x
+/// (`slope` is then the raw mean difference treatment − control).
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
+pub struct SiteSmd {
+    /// Rows in the treatment group (x coded 1).
+    pub treat_n: u64,
+    /// Rows in the control group (x coded 0).
+    pub ctrl_n: u64,
+    /// Mean of y in the treatment group.
+    pub treat_mean: f64,
+    /// Mean of y in the control group.
+    pub ctrl_mean: f64,
+    /// Pooled within-group SD of y (divisor n − 2).
+    pub sd_within: f64,
+    /// Independent-groups t statistic, (treat_mean − ctrl_mean)/(sd_within·√(1/treat_n + 1/ctrl_n)).
+    pub t: f64,
+    /// Hedges' g.
+    pub g: f64,
+    /// Its sampling variance (the formula `pondus fit --measure smd` uses).
+    pub var_g: f64,
+}
+
+/// One site's 2×2 table of group (x) by event (y) and its log odds ratio
+/// (`slope` is then the difference in proportions treatment − control).
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
+pub struct SiteOdds {
+    /// Events in the treatment group.
+    pub treat_events: u64,
+    /// Rows in the treatment group.
+    pub treat_n: u64,
+    /// Events in the control group.
+    pub ctrl_events: u64,
+    /// Rows in the control group.
+    pub ctrl_n: u64,
+    /// Log odds ratio, treatment versus control (0.5 added to every cell when one is zero).
+    pub log_or: f64,
+    /// Its sampling variance 1/a + 1/b + 1/c + 1/d (Woolf).
+    pub var_log_or: f64,
+    /// Whether a cell was zero, so 0.5 was added to every cell.
+    pub zero_cell: bool,
 }
 
 /// A site without an estimate.

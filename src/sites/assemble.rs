@@ -30,11 +30,22 @@ pub(super) fn assemble(
     s: &SitesSettings,
     layout: Layout,
     fitted: Vec<Fitted>,
-    mut excluded: Vec<ExcludedSite>,
+    excluded: Vec<ExcludedSite>,
     robust: Option<Vec<RobustSite>>,
 ) -> SitesReport {
+    let (sites, excluded) = slope_sites(layout, fitted, excluded, robust);
+    finish(input, s, layout, sites, excluded)
+}
+
+/// One effect per fitted site, from its slope fits (classical or HC3);
+/// a site whose HC3 variance is undefined joins `excluded`.
+fn slope_sites(
+    layout: Layout,
+    fitted: Vec<Fitted>,
+    mut excluded: Vec<ExcludedSite>,
+    robust: Option<Vec<RobustSite>>,
+) -> (Vec<SiteEffect>, Vec<ExcludedSite>) {
     let mut sites = Vec::with_capacity(fitted.len());
-    let mut notes = Vec::new();
     let mut robust = robust.map(|r| r.into_iter());
     for f in fitted {
         let m = &f.moments;
@@ -77,8 +88,23 @@ pub(super) fn assemble(
             mean_w: layout.with_w.then(|| m.mean(layout.w())),
             note,
             characteristics: vec![],
+            smd: None,
+            log_or: None,
         });
     }
+    (sites, excluded)
+}
+
+/// The report around the per-site effects: sorted by id, with the notes
+/// of the run.
+pub(super) fn finish(
+    input: SitesInput,
+    s: &SitesSettings,
+    layout: Layout,
+    mut sites: Vec<SiteEffect>,
+    mut excluded: Vec<ExcludedSite>,
+) -> SitesReport {
+    let mut notes = Vec::new();
     sort_ids(&mut sites, |e| e.study.as_str());
     sort_ids(&mut excluded, |e| e.study.as_str());
     if input.missing_rows > 0 {
@@ -94,6 +120,7 @@ pub(super) fn assemble(
                 .join(", ")
         ));
     }
+    notes.extend(super::groups::notes(s, &sites));
     if s.robust {
         notes.push("Standard errors are HC3 (heteroskedasticity-consistent, MacKinnon & White 1985); the file was read twice, the second time for each row's leverage and residual.".into());
     }
@@ -118,6 +145,9 @@ pub(super) fn assemble(
                 SeType::Classical
             },
             center_within: s.center_within,
+            effect: s.effect,
+            treat: s.treat.clone(),
+            event: s.event.clone(),
         },
         sites,
         excluded,

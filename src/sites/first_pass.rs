@@ -27,6 +27,10 @@ pub struct Summaries {
     pub layout: Layout,
     /// Counts of the pass.
     pub pass: PassSummary,
+    /// The level of x coded 1 (with a group comparison).
+    pub treat: Option<String>,
+    /// The level of y coded 1 (with `log-or`).
+    pub event: Option<String>,
 }
 
 /// Fills the moment vector from a row's values (x, covariates, [w], y).
@@ -86,6 +90,14 @@ pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Res
             pass.rows
         )));
     }
+    let mut levels = [None, None];
+    for (k, c) in pass.coded.iter().enumerate() {
+        if let Some(c) = c {
+            let (column, slot) = if k == 0 { (&s.x, 0) } else { (&s.y, 1) };
+            levels[slot] = Some(c.check(column)?);
+        }
+    }
+    let [treat, event] = levels;
     if !x_varies {
         return Err(Error::Model(format!(
             "{source}: x ('{}') is {} in every used row, so no site has a slope; check that {} names the predictor",
@@ -98,5 +110,7 @@ pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Res
         sites,
         layout,
         pass,
+        treat,
+        event,
     })
 }

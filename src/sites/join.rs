@@ -2,7 +2,7 @@
 
 use crate::error::{CellProblems, Error, Result};
 use crate::input::{self, ColumnRequest};
-use crate::render::sites_effects::COLUMNS;
+use crate::render::sites_effects::is_effects_column;
 use crate::result::{SiteJoin, SitesReport};
 use crate::support::flag::Flag;
 use std::collections::HashMap;
@@ -50,7 +50,7 @@ fn headers_of(
         .collect();
     for h in &others {
         // A characteristic may not be named like a column of the effects file.
-        if COLUMNS.contains(&h.to_lowercase().as_str()) {
+        if is_effects_column(&h.to_lowercase()) {
             return Err(Error::Format {
                 source_name: source.to_string(),
                 message: format!(

@@ -21,8 +21,10 @@ mod assemble;
 mod decimal;
 mod first_pass;
 mod fits;
+pub mod groups;
 mod index;
 pub mod join;
+pub mod levels;
 pub mod moments;
 pub mod moments_table;
 pub mod ols;
@@ -37,7 +39,7 @@ pub use settings::{Layout, SitesSettings};
 
 use crate::error::{Error, Result};
 use crate::input::Delimiter;
-use crate::result::{SitesInput, SitesInputKind, SitesReport};
+use crate::result::{SiteMeasure, SitesInput, SitesInputKind, SitesReport};
 use crate::support::flag::Flag;
 use assemble::assemble;
 use fits::fit_sites;
@@ -59,6 +61,7 @@ pub enum RowInput<'a> {
 /// Input errors with file, line and column; [`Error::Usage`] when HC3 is
 /// asked for on a stream that cannot be read twice.
 pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result<SitesReport> {
+    check_effect(s, false)?;
     let open = |p: &Path| open_rows(source, p);
     let path = match &input {
         RowInput::File(p) => Some(p.to_path_buf()),
@@ -91,21 +94,34 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         };
     let layout = summaries.layout;
     let pass = summaries.pass.clone();
+    if s.effect != SiteMeasure::Slope {
+        let coded = SitesSettings {
+            treat: summaries.treat.clone(),
+            event: summaries.event.clone(),
+            ..s.clone()
+        };
+        let (sites, excluded) = groups::group_sites(summaries.sites, s.effect);
+        let mut report = usable(
+            source,
+            assemble::finish(
+                rows_input(source, &pass, 1),
+                &coded,
+                layout,
+                sites,
+                excluded,
+            ),
+        )?;
+        if let Some(note) = pass.decimal.as_ref().and_then(|d| d.note(source)) {
+            report.notes.insert(0, note);
+        }
+        return Ok(report);
+    }
     let (fitted, excluded) = fit_sites(summaries.sites, layout, s);
     let robust = match (&path, s.robust) {
         (Some(p), true) => Some(robust_pass(source, open(p)?, s, layout, &fitted, &pass)?),
         _ => None,
     };
-    let input_info = SitesInput {
-        file: source.to_string(),
-        kind: SitesInputKind::Rows,
-        delimiter: Delimiter::of(pass.delimiter),
-        rows: pass.rows,
-        missing_rows: pass.missing_rows,
-        missing_lines: pass.missing_lines.clone(),
-        blank_rows: pass.blank_rows,
-        passes: if robust.is_some() { 2 } else { 1 },
-    };
+    let input_info = rows_input(source, &pass, if robust.is_some() { 2 } else { 1 });
     let mut report = usable(
         source,
         assemble(input_info, s, layout, fitted, excluded, robust),
@@ -116,12 +132,95 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
     Ok(report)
 }
 
+/// What a pass over participant rows read.
+fn rows_input(source: &str, pass: &read::PassSummary, passes: u32) -> SitesInput {
+    SitesInput {
+        file: source.to_string(),
+        kind: SitesInputKind::Rows,
+        delimiter: Delimiter::of(pass.delimiter),
+        rows: pass.rows,
+        missing_rows: pass.missing_rows,
+        missing_lines: pass.missing_lines.clone(),
+        blank_rows: pass.blank_rows,
+        passes,
+    }
+}
+
+/// Checks that the settings fit the per-site effect: a group comparison
+/// takes x and y only (no w, covariates or HC3), `--treat` needs a group
+/// comparison and `--event` the log odds ratio; on a moments table the
+/// columns are already coded 0/1, so neither level flag applies.
+///
+/// # Errors
+/// [`Error::Usage`] naming the flag.
+fn check_effect(s: &SitesSettings, moments: bool) -> Result<()> {
+    let groups = s.effect != SiteMeasure::Slope;
+    let effect = Flag::Effect;
+    if groups {
+        let extra = if s.w.is_some() {
+            Some(Flag::W)
+        } else if !s.covariates.is_empty() {
+            Some(Flag::Covariate)
+        } else if s.robust {
+            Some(Flag::Robust)
+        } else {
+            None
+        };
+        if let Some(flag) = extra {
+            return Err(Error::usage(
+                flag,
+                format!(
+                    "{effect} {} compares the two groups of x on y alone; {flag} applies to the \
+                     slope (drop {effect}, or drop {flag})",
+                    s.effect.id()
+                ),
+            ));
+        }
+    }
+    if s.treat.is_some() && !groups {
+        return Err(Error::usage(
+            Flag::Treat,
+            format!(
+                "names the treatment group of x, which is read as two groups only with {effect} \
+                 smd or {effect} log-or"
+            ),
+        ));
+    }
+    if s.event.is_some() && s.effect != SiteMeasure::LogOr {
+        return Err(Error::usage(
+            Flag::Event,
+            format!(
+                "names the event of a binary outcome y, which is read as two outcomes only with \
+                 {effect} log-or"
+            ),
+        ));
+    }
+    if moments {
+        if let Some(flag) = [(Flag::Treat, &s.treat), (Flag::Event, &s.event)]
+            .into_iter()
+            .find_map(|(f, v)| v.is_some().then_some(f))
+        {
+            return Err(Error::usage(
+                flag,
+                format!(
+                    "a moments table holds x and y as the query computed them, so they must \
+                     already be coded 0/1 in the database (1 = the treatment group, 1 = the \
+                     event); drop {flag}, and code the column in the query's table or a view \
+                     (CASE WHEN column = 'level' THEN 1 ELSE 0 END)"
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Runs the per-site stage on a per-site moments table (see
 /// [`moments_table`]).
 ///
 /// # Errors
 /// Input errors of the table with line and column.
 pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<SitesReport> {
+    check_effect(s, true)?;
     if s.robust {
         return Err(Error::usage(
             Flag::Robust,
@@ -136,16 +235,41 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
     let layout = table.layout;
     let (named, names_note) = moments_names(s, layout)?;
     let s = &named;
-    let (fitted, excluded) = fit_sites(table.sites, layout, s);
-    let input_info = SitesInput {
-        file: source.to_string(),
-        kind: SitesInputKind::Moments,
-        delimiter: Delimiter::of(table.delimiter),
-        rows: table.rows,
-        missing_rows: 0,
-        missing_lines: vec![],
-        blank_rows: table.blank_rows,
-        passes: 1,
+    let input_info = moments_input(source, &table);
+    let (fitted, excluded) = if s.effect == SiteMeasure::Slope {
+        fit_sites(table.sites, layout, s)
+    } else {
+        if layout.with_w || layout.covariates > 0 {
+            return Err(Error::usage(
+                Flag::Effect,
+                format!(
+                    "{} {} compares the two groups of x on y alone, and this moments table has \
+                     w or covariate columns; make the table with {}, {} and {} only",
+                    Flag::Effect,
+                    s.effect.id(),
+                    Flag::Site,
+                    Flag::X,
+                    Flag::Y
+                ),
+            ));
+        }
+        let (sites, excluded) = groups::group_sites(table.sites, s.effect);
+        let coded = SitesSettings {
+            treat: Some("1".into()),
+            event: (s.effect == SiteMeasure::LogOr).then(|| "1".into()),
+            ..s.clone()
+        };
+        let mut report = usable(
+            source,
+            assemble::finish(input_info, &coded, layout, sites, excluded),
+        )?;
+        if let Some(note) = table.decimal.note(source) {
+            report.notes.insert(0, note);
+        }
+        if let Some(note) = names_note {
+            report.notes.insert(0, note);
+        }
+        return Ok(report);
     };
     let mut report = usable(
         source,
@@ -158,6 +282,20 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         report.notes.insert(0, note);
     }
     Ok(report)
+}
+
+/// What a moments table held.
+fn moments_input(source: &str, table: &moments_table::MomentsTable) -> SitesInput {
+    SitesInput {
+        file: source.to_string(),
+        kind: SitesInputKind::Moments,
+        delimiter: Delimiter::of(table.delimiter),
+        rows: table.rows,
+        missing_rows: 0,
+        missing_lines: vec![],
+        blank_rows: table.blank_rows,
+        passes: 1,
+    }
 }
 
 /// The settings of a moments run: the table names its variables by role
@@ -216,6 +354,9 @@ fn moments_names(s: &SitesSettings, layout: Layout) -> Result<(SitesSettings, Op
         robust: false,
         center_within: s.center_within,
         decimal: s.decimal,
+        effect: s.effect,
+        treat: s.treat.clone(),
+        event: s.event.clone(),
     };
     let mut pairs = Vec::new();
     for (role, name) in [("site", &named.site), ("x", &named.x), ("y", &named.y)] {
@@ -295,6 +436,9 @@ mod tests {
             robust: false,
             center_within: false,
             decimal: None,
+            effect: SiteMeasure::Slope,
+            treat: None,
+            event: None,
         }
     }
 

@@ -2,6 +2,7 @@
 //! own line numbers.
 
 use super::decimal::StreamDecimal;
+use super::levels::Coding;
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, Cell, DecimalMark};
 use crate::input::DecimalChoice;
@@ -75,6 +76,14 @@ pub struct RowColumns {
     pub numeric: Vec<(String, Flag)>,
     /// The decimal mark forced with `--decimal` (None: chosen on the way).
     pub decimal: Option<DecimalMark>,
+    /// For each numeric column, its two-level coding when it is a group or
+    /// a binary outcome (read as labels and coded 0/1), else None. Empty:
+    /// every column numeric.
+    pub coded: Vec<Option<Coding>>,
+    /// Whether a text cell in the `--x` column stops the pass at once with
+    /// the advice to code the groups 0/1 or compare them as groups (one
+    /// message instead of one per row).
+    pub text_x_advice: bool,
 }
 
 /// What a pass saw besides the rows it handed on.
@@ -92,6 +101,9 @@ pub struct PassSummary {
     pub blank_rows: u64,
     /// The decimal mark the numbers were read with, and why.
     pub decimal: Option<DecimalChoice>,
+    /// The two-level codings after the pass, with the values they met
+    /// (in the order of [`RowColumns::coded`]).
+    pub coded: Vec<Option<Coding>>,
 }
 
 /// Parses a numeric cell: a plain number directly (the common case), anything
@@ -268,17 +280,32 @@ fn check_row(
     (site_ix, num_ix): (usize, &[usize]),
     headers: &[String],
     values: &mut [f64],
-    (problems, dec): (&mut Problems, &mut StreamDecimal),
+    (problems, dec, coded, advice): (
+        &mut Problems,
+        &mut StreamDecimal,
+        &mut [Option<Coding>],
+        Option<usize>,
+    ),
 ) -> Result<RowCheck> {
     let site = record[site_ix].trim_ascii();
     let mut bad = false;
     let mut missing = false;
     for (k, &i) in num_ix.iter().enumerate() {
         let cell = &record[i];
+        if let Some(Some(c)) = coded.get_mut(k) {
+            match c.code(cell, line) {
+                Some(v) => values[k] = v,
+                None => missing = true,
+            }
+            continue;
+        }
         let parsed = parse_number(cell, dec, (source, line, &headers[i]))?;
         match parsed {
             Cell::Value(v) => values[k] = v,
             Cell::Missing => missing = true,
+            Cell::Invalid if advice == Some(k) => {
+                return Err(text_x(&headers[i], cell, line));
+            }
             Cell::Invalid => {
                 bad = true;
                 let text = String::from_utf8_lossy(cell);
@@ -326,6 +353,26 @@ fn check_row(
     })
 }
 
+/// The one message for a text cell in the x column of a slope run.
+fn text_x(header: &str, cell: &[u8], line: u64) -> Error {
+    let text: String = String::from_utf8_lossy(cell)
+        .trim()
+        .chars()
+        .take(40)
+        .collect();
+    Error::usage(
+        Flag::X,
+        format!(
+            "column '{header}' holds text ('{text}' on line {line}), and a slope needs numbers. To \
+             compare two groups, code them 0/1 (1 = treatment), or add {} smd (Hedges' g) or {} \
+             log-or (a binary outcome) with {} LEVEL naming the treatment group",
+            Flag::Effect,
+            Flag::Effect,
+            Flag::Treat
+        ),
+    )
+}
+
 /// Reads CSV rows from `input` and hands each usable row to `row` as
 /// (line, site id bytes, numeric values in `cols.numeric` order).
 ///
@@ -354,6 +401,11 @@ pub fn for_each_row<R: Read>(
         delimiter,
         ..PassSummary::default()
     };
+    let mut coded = cols.coded.clone();
+    let advice = cols
+        .text_x_advice
+        .then(|| cols.numeric.iter().position(|(_, f)| *f == Flag::X))
+        .flatten();
     let mut problems = Problems::default();
     let mut dec = StreamDecimal::new(cols.decimal, delimiter);
     let mut record = csv::ByteRecord::new();
@@ -389,7 +441,7 @@ pub fn for_each_row<R: Read>(
             (site_ix, &num_ix),
             &headers,
             &mut values,
-            (&mut problems, &mut dec),
+            (&mut problems, &mut dec, &mut coded, advice),
         )?;
         match check {
             RowCheck::Blank => {
@@ -424,6 +476,7 @@ pub fn for_each_row<R: Read>(
         ));
     }
     summary.decimal = Some(dec.choice());
+    summary.coded = coded;
     Ok(summary)
 }
 
@@ -436,6 +489,8 @@ mod tests {
             site: "site".into(),
             numeric: vec![("x".into(), Flag::X), ("y".into(), Flag::Y)],
             decimal: None,
+            coded: vec![],
+            text_x_advice: false,
         }
     }
 

@@ -1,7 +1,9 @@
 //! The settings of the per-site stage, and the layout of each site's moment
 //! vector that follows from them.
 
+use super::levels::Coding;
 use super::read::RowColumns;
+use crate::result::SiteMeasure;
 use crate::support::flag::Flag;
 
 /// Checked settings of the per-site stage.
@@ -25,6 +27,14 @@ pub struct SitesSettings {
     /// table and the site table (None: the point, or a decimal comma
     /// detected in a semicolon- or tab-separated file).
     pub decimal: Option<crate::input::number::DecimalMark>,
+    /// The per-site effect: the slope, or with x as two groups Hedges' g or
+    /// (y binary) the log odds ratio.
+    pub effect: SiteMeasure,
+    /// The level of x that is the treatment group (`--treat`; None: a 0/1
+    /// column, 1 = treatment).
+    pub treat: Option<String>,
+    /// The level of y that is the event (`--event`; None: a 0/1 column).
+    pub event: Option<String>,
 }
 
 /// Positions of the variables in each site's moment vector
@@ -78,8 +88,16 @@ impl Layout {
 }
 
 /// The columns the row passes read: the site id, then x, the covariates,
-/// [w] and y as numbers.
+/// [w] and y as numbers; x as two groups with `smd` and `log-or`, y as
+/// two outcomes with `log-or` (coded 0/1, see [`Coding`]).
 pub(super) fn row_columns(s: &SitesSettings) -> RowColumns {
+    let groups = s.effect != SiteMeasure::Slope;
+    let mut coded = vec![groups.then(|| Coding::new(Flag::Treat, s.treat.clone()))];
+    coded.extend(s.covariates.iter().map(|_| None));
+    if s.w.is_some() {
+        coded.push(None);
+    }
+    coded.push((s.effect == SiteMeasure::LogOr).then(|| Coding::new(Flag::Event, s.event.clone())));
     let mut numeric = vec![(s.x.clone(), Flag::X)];
     numeric.extend(s.covariates.iter().map(|c| (c.clone(), Flag::Covariate)));
     if let Some(w) = &s.w {
@@ -90,5 +108,7 @@ pub(super) fn row_columns(s: &SitesSettings) -> RowColumns {
         site: s.site.clone(),
         numeric,
         decimal: s.decimal,
+        coded,
+        text_x_advice: !groups,
     }
 }

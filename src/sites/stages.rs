@@ -10,7 +10,7 @@ use crate::error::Result;
 use crate::fit::{self, FitSettings};
 use crate::model::design::ModeratorSpec;
 use crate::model::FitOptions;
-use crate::result::{FitReport, SitesReport, TwoStage};
+use crate::result::{FitReport, SiteMeasure, SitesReport, TwoStage};
 use std::collections::BTreeMap;
 
 fn numeric(name: &str) -> ModeratorSpec {
@@ -78,12 +78,15 @@ pub fn run(
     } else {
         (None, None)
     };
+    // The site effects: slopes, or with a group comparison the counts or t
+    // columns that `fit` reads for g or the log odds ratio.
+    let measure = match report.model.effect {
+        SiteMeasure::Slope => Measure::Slope,
+        SiteMeasure::Smd => Measure::Smd,
+        SiteMeasure::LogOr => Measure::LogOr,
+    };
     let chars = if !characteristics.is_empty() || !with_w {
-        Some(fit(
-            Measure::Slope,
-            BTreeMap::new(),
-            characteristics.to_vec(),
-        )?)
+        Some(fit(measure, BTreeMap::new(), characteristics.to_vec())?)
     } else {
         None
     };
@@ -109,11 +112,24 @@ pub fn run(
         );
     }
     if !characteristics.is_empty() {
-        answers.push(
-            "Site characteristics: the meta-regression of the site slopes on them is an across-site \
-             comparison too, with the same limits."
-                .into(),
-        );
+        answers.push(match report.model.effect {
+            SiteMeasure::Slope => {
+                "Site characteristics: the meta-regression of the site slopes on \
+                                   them is an across-site comparison too, with the same limits."
+                    .into()
+            }
+            effect => format!(
+                "Site characteristics: the meta-regression of the site {} on them compares \
+                 sites, so anything else that differs between those sites can produce it; even \
+                 when every site randomised its groups, it does not show what happens to an \
+                 individual.",
+                if effect == SiteMeasure::Smd {
+                    "standardised mean differences"
+                } else {
+                    "log odds ratios"
+                }
+            ),
+        });
     }
     let k = report.sites.len();
     let mut cautions = vec![

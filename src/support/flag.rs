@@ -126,6 +126,9 @@ flags! {
     Y => "--y", ["sites", "sql"];
     W => "--w", ["sites", "sql"];
     Covariate => "--covariate", ["sites", "sql"];
+    Effect => "--effect", ["sites"];
+    Treat => "--treat", ["sites"];
+    Event => "--event", ["sites"];
     Engine => "--engine", ["sql"];
     Moments => "--moments", ["sites"];
     Info => "--info", ["sites"];

@@ -91,6 +91,16 @@ const CASES: &[Case] = &[
     ] },
     Case { id: "sites-robust-centred", steps: &["sites data-examples/choir-participants.csv --site choir --x rehearsal_hours --y breath_hold_s --w age --robust --center-within --out effects.csv --json sites.json"] },
     Case { id: "sites-moments", steps: &["sites --moments inputs/moments.csv --out effects.csv --json sites.json"] },
+    // Two groups in every site (docs/sites.md): Hedges' g and log odds ratios.
+    Case { id: "sites-choir-smd", steps: &[
+        "sites data-examples/choir-participants.csv --site choir --x wind --y breath_hold_s --effect smd --info data-examples/choir-sites.csv --out wind-effects.csv --fit --moderator conductor_years --json sites.json --report wind.html",
+        "fit wind-effects.csv --measure smd --moderator conductor_years",
+    ] },
+    Case { id: "sites-log-or", steps: &[
+        "sites inputs/group-rows.csv --site lab --x arm --y passed --effect log-or --treat treatment --event yes --out effects.csv --fit --json sites.json",
+        "fit effects.csv --measure log-or",
+        "sites --moments inputs/group-moments-binary.csv --effect log-or --out moments-effects.csv --json moments.json",
+    ] },
     Case { id: "sql-query", steps: &[
         "sql --table choir_rows --site choir --x rehearsal_hours --y breath_hold_s --w age",
         "sql --table lab.rows --site site --x dose --y outcome --covariate sex --covariate age",

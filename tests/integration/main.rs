@@ -24,6 +24,7 @@ mod routes;
 mod safety;
 mod schema;
 mod selection;
+mod site_groups;
 mod sites;
 mod spread;
 mod util;

@@ -43,6 +43,9 @@ fn settings(w: bool, covariates: &[&str], robust: bool) -> SitesSettings {
         robust,
         center_within: false,
         decimal: None,
+        effect: Default::default(),
+        treat: None,
+        event: None,
     }
 }
 

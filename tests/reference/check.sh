@@ -70,6 +70,9 @@ trap 'rm -rf "$tmp"' EXIT
 # pondus sites: per-site OLS and HC3 with statsmodels (tests/reference/sites.py -> tests/data/reference/sites/)
 "$venv/bin/python" "$here/sites.py" "$tmp/sites" > "$tmp/sites.log" 2>&1 || { cat "$tmp/sites.log" >&2; die "sites.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/sites" "$tmp/sites" || die "sites fixtures differ; regenerate with: $venv/bin/python tests/reference/sites.py tests/data/reference/sites"
+# pondus sites --effect smd / log-or: g and log OR per site with statsmodels (tests/reference/site_groups.py -> tests/data/reference/site_groups/)
+"$venv/bin/python" "$here/site_groups.py" "$tmp/site_groups" > "$tmp/site_groups.log" 2>&1 || { cat "$tmp/site_groups.log" >&2; die "site_groups.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" "$committed/site_groups" "$tmp/site_groups" || die "site_groups fixtures differ; regenerate with: $venv/bin/python tests/reference/site_groups.py tests/data/reference/site_groups"
 # Three-level model and CR2 robust inference (tests/reference/multilevel.py -> tests/data/reference/multilevel/)
 "$venv/bin/python" "$here/multilevel.py" "$tmp/multilevel" > "$tmp/multilevel.log" 2>&1 || { cat "$tmp/multilevel.log" >&2; die "multilevel.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" "$committed/multilevel" "$tmp/multilevel" || die "multilevel fixtures differ; regenerate with: $venv/bin/python tests/reference/multilevel.py tests/data/reference/multilevel"

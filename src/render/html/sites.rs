@@ -5,7 +5,7 @@ use super::page::{esc, words_and, Page, Provenance};
 use super::section::{always, body, Section, SitesCtx};
 use super::{figures, reproduce};
 use crate::render::figure::PageFigure;
-use crate::result::{FitReport, SitesReport};
+use crate::result::{FitReport, SiteMeasure, SitesReport};
 use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
@@ -72,12 +72,15 @@ pub fn sites_page(
             "Does {w} change the {} → {} slope, within sites or across them?",
             m.x, m.y
         ),
-        None => format!(
-            "The {} → {} slope in {} sites",
-            m.x,
-            m.y,
-            report.sites.len()
-        ),
+        None => match group_effect(m) {
+            Some(effect) => format!("{effect} in {} sites", report.sites.len()),
+            None => format!(
+                "The {} → {} slope in {} sites",
+                m.x,
+                m.y,
+                report.sites.len()
+            ),
+        },
     };
     let mut page = Page::new(&format!("{title} — pondus report"));
     page.header(
@@ -93,19 +96,58 @@ pub fn sites_page(
     page.finish(prov)
 }
 
+/// The per-site effect of a group comparison in words (None for slopes).
+fn group_effect(m: &crate::result::SitesModel) -> Option<String> {
+    let treat = m.treat.as_deref().unwrap_or("1");
+    match m.effect {
+        SiteMeasure::Slope => None,
+        SiteMeasure::Smd => Some(format!(
+            "Hedges' g of {} between the groups of {} ('{treat}' versus the other)",
+            m.y, m.x
+        )),
+        SiteMeasure::LogOr => Some(format!(
+            "The log odds ratio of {} = '{}' between the groups of {} ('{treat}' versus the other)",
+            m.y,
+            m.event.as_deref().unwrap_or("1"),
+            m.x
+        )),
+    }
+}
+
 /// The question in words, the answers of the second stage and their cautions.
 fn question(page: &mut Page, cx: &SitesCtx) {
     let (report, m) = (cx.report, &cx.report.model);
-    let mut q = format!(
-        "In every site, how does {} change with {}{}?",
-        m.y,
-        m.x,
-        if m.covariates.is_empty() {
-            String::new()
-        } else {
-            format!(" (adjusted for {})", words_and(&m.covariates))
-        }
-    );
+    let mut q = match m.effect {
+        SiteMeasure::Slope => String::new(),
+        effect => format!(
+            "In every site, how different is {} in the '{}' group of {} from the other group? \
+             Each site gives its {}.",
+            m.y,
+            m.treat.as_deref().unwrap_or("1"),
+            m.x,
+            if effect == SiteMeasure::Smd {
+                "Hedges' g (the standardised mean difference)".to_string()
+            } else {
+                format!(
+                    "log odds ratio of {} = '{}'",
+                    m.y,
+                    m.event.as_deref().unwrap_or("1")
+                )
+            }
+        ),
+    };
+    if q.is_empty() {
+        q = format!(
+            "In every site, how does {} change with {}{}?",
+            m.y,
+            m.x,
+            if m.covariates.is_empty() {
+                String::new()
+            } else {
+                format!(" (adjusted for {})", words_and(&m.covariates))
+            }
+        );
+    }
     if let Some(w) = &m.w {
         q.push_str(&format!(
             " Does that slope depend on a participant's own {w} (within sites), and do sites with a \
@@ -171,6 +213,35 @@ fn question(page: &mut Page, cx: &SitesCtx) {
 fn characteristics_answer(page: &mut Page, f: &FitReport, m: &crate::result::SitesModel) {
     let lv = fmt::level_pct(f.model.level);
     let a = &f.average.mean;
+    if m.effect != SiteMeasure::Slope {
+        let what = if m.effect == SiteMeasure::Smd {
+            "Hedges' g"
+        } else {
+            "log odds ratio"
+        };
+        let _ =
+            write!(
+            page.out,
+            "<p><strong>Average effect</strong>: across {} sites, the average {what} ('{}' versus \
+             the other group of {}) is {} ({lv} CI {}, SE {}); a new site's effect is expected in \
+             {} ({lv} prediction interval).</p>",
+            f.k,
+            esc(m.treat.as_deref().unwrap_or("1")),
+            esc(&m.x),
+            esc(&fmt::true_minus(&num(a.estimate))),
+            esc(&fmt::true_minus(&fmt::interval(a.ci.ci_low, a.ci.ci_high))),
+            esc(&num(a.se)),
+            esc(&fmt::true_minus(&fmt::pi_interval(a.pi.pi_low, a.pi.pi_high)))
+        );
+        if let Some(t) = &f.moderator_test {
+            let _ = write!(
+                page.out,
+                "<p><strong>Site characteristics</strong>: {}</p>",
+                esc(&t.answer)
+            );
+        }
+        return;
+    }
     let _ =
         write!(
         page.out,
@@ -305,10 +376,12 @@ fn stages(page: &mut Page, cx: &SitesCtx) {
         stage_block(page, "Across sites: the slopes on the site mean", f, None);
     }
     if let Some(f) = &st.characteristics {
-        let title = if f.model.moderators.is_empty() {
-            "The pooled slope"
-        } else {
-            "Across sites: the slopes on the site characteristics"
+        let slope = m.effect == SiteMeasure::Slope;
+        let title = match (f.model.moderators.is_empty(), slope) {
+            (true, true) => "The pooled slope",
+            (true, false) => "The pooled effect",
+            (false, true) => "Across sites: the slopes on the site characteristics",
+            (false, false) => "Across sites: the effects on the site characteristics",
         };
         stage_block(page, title, f, None);
     }
@@ -364,9 +437,65 @@ fn stage_block(page: &mut Page, title: &str, fit: &FitReport, intercept_label: O
     }
 }
 
+/// The per-site group comparisons: group sizes (and events) and the effect.
+fn group_sites(page: &mut Page, cx: &SitesCtx) {
+    let (report, m) = (cx.report, &cx.report.model);
+    let smd = m.effect == SiteMeasure::Smd;
+    let head: &[&str] = if smd {
+        &[
+            "site",
+            "n",
+            "treatment n",
+            "control n",
+            "g",
+            "variance of g",
+        ]
+    } else {
+        &[
+            "site",
+            "n",
+            "treatment events / n",
+            "control events / n",
+            "log OR",
+            "variance",
+            "zero cell",
+        ]
+    };
+    let rows: Vec<Vec<String>> = report
+        .sites
+        .iter()
+        .map(|e| match (&e.smd, &e.log_or) {
+            (Some(g), _) => vec![
+                e.study.clone(),
+                e.n.to_string(),
+                g.treat_n.to_string(),
+                g.ctrl_n.to_string(),
+                num(g.g),
+                num(g.var_g),
+            ],
+            (None, Some(t)) => vec![
+                e.study.clone(),
+                e.n.to_string(),
+                format!("{} / {}", t.treat_events, t.treat_n),
+                format!("{} / {}", t.ctrl_events, t.ctrl_n),
+                num(t.log_or),
+                num(t.var_log_or),
+                if t.zero_cell { "yes (0.5 added)" } else { "no" }.to_string(),
+            ],
+            (None, None) => vec![e.study.clone(), e.n.to_string()],
+        })
+        .collect();
+    let title = group_effect(m).unwrap_or_default();
+    page.table(&format!("Per-site effects: {title}"), head, &rows);
+}
+
 /// The per-site regressions.
 fn sites(page: &mut Page, cx: &SitesCtx) {
     let (report, m) = (cx.report, &cx.report.model);
+    if m.effect != SiteMeasure::Slope {
+        group_sites(page, cx);
+        return;
+    }
     let with_w = m.w.is_some();
     let mut head = vec!["site", "n", "slope", "SE", "r", "mean x"];
     if with_w {
