@@ -974,7 +974,12 @@ fn issue22_consortium_leave_one_out_flags_only_reversed_conclusions() {
         .unwrap();
     // The header may stack "conclusion changed" in its column to stay
     // within 100 columns; every coefficient keeps its column here.
-    let header = section.lines().skip(1).take(2).collect::<Vec<_>>().join("\n");
+    let header = section
+        .lines()
+        .skip(1)
+        .take(2)
+        .collect::<Vec<_>>()
+        .join("\n");
     for col in [
         "average (r)",
         "session_minutes",
@@ -984,7 +989,10 @@ fn issue22_consortium_leave_one_out_flags_only_reversed_conclusions() {
     ] {
         assert!(header.contains(col), "{col} not in {header}");
     }
-    assert!(section.lines().all(|l| l.chars().count() <= 100), "{section}");
+    assert!(
+        section.lines().all(|l| l.chars().count() <= 100),
+        "{section}"
+    );
     assert!(!section.contains('…'), "{section}");
     assert!(
         !section

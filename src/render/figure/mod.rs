@@ -15,6 +15,7 @@ pub mod font;
 pub mod forest;
 pub mod funnel;
 pub mod influence;
+mod marks;
 pub mod power;
 mod regions;
 pub mod scene;
