@@ -418,10 +418,12 @@ fn power_curve_marks_the_solved_k_on_the_target_line_and_no_simulation_when_none
     use crate::plots::parse_svg;
     let dir = TempDir::new().unwrap();
     let out = dir.path().join("power.svg");
-    let o = plan(&format!("{BASE} --test z --target-power 0.8 --json - --curve"))
-        .arg(&out)
-        .output()
-        .unwrap();
+    let o = plan(&format!(
+        "{BASE} --test z --target-power 0.8 --json - --curve"
+    ))
+    .arg(&out)
+    .output()
+    .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let v: Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["k_needed"].as_u64(), Some(K_NEEDED));

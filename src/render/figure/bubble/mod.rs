@@ -260,7 +260,13 @@ fn caption(report: &FitReport, view: &View<'_>) -> Vec<String> {
         caption.push(format!("Other moderators are held {held}."));
     }
     if continuous {
-        caption.extend(super::regions::caption(report, name, &lv));
+        if let Some(region) = super::regions::caption(report, name, &lv) {
+            caption.push(region);
+            // The region belongs to the main line, whose level is not drawn alone.
+            if let (Some(_), Some(c)) = (&view.split, curve) {
+                caption.push(format!("The region is that of the line {}.", c.held));
+            }
+        }
     }
     if report.tau2.estimate == 0.0 && pi_drawn {
         caption.push(
