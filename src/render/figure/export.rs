@@ -128,7 +128,7 @@ fn png_in_strips(
         });
         let mut header = enc.write_header().map_err(drawing_error)?;
         let mut writer = header.stream_writer().map_err(drawing_error)?;
-        let mut rgb = Vec::with_capacity(w as usize * strip as usize * 3);
+        let mut rgb = vec![0u8; w as usize * strip as usize * 3];
         for top in (0..h).step_by(strip as usize) {
             let rows = strip.min(h - top) as usize;
             pixmap.fill(resvg::tiny_skia::Color::WHITE);
@@ -138,13 +138,15 @@ fn png_in_strips(
                 &mut pixmap.as_mut(),
             );
             // The background is opaque, so the premultiplied RGBA is plain RGB.
-            rgb.clear();
-            rgb.extend(
-                pixmap.data()[..rows * w as usize * 4]
-                    .chunks_exact(4)
-                    .flat_map(|p| [p[0], p[1], p[2]]),
-            );
-            std::io::Write::write_all(&mut writer, &rgb).map_err(drawing_error)?;
+            let n = rows * w as usize;
+            for (d, p) in rgb[..n * 3]
+                .chunks_exact_mut(3)
+                .zip(pixmap.data()[..n * 4].chunks_exact(4))
+            {
+                d.copy_from_slice(&p[..3]);
+            }
+            std::io::Write::write_all(&mut writer, &rgb[..rows * w as usize * 3])
+                .map_err(drawing_error)?;
         }
         writer.finish().map_err(drawing_error)?;
     }
