@@ -6,7 +6,7 @@
 //! there, its confidence interval and prediction interval.
 //!
 //! When the model also has a categorical moderator of at most
-//! [`marks::LEVELS`](super::marks) levels beside the numeric one on the x
+//! 5 levels (`marks.rs`) beside the numeric one on the x
 //! axis, its levels are told apart by marker shape, colour and line style
 //! (see `marks.rs`), with a legend, and the fitted line is drawn per level
 //! (the report's `level_curves`).
