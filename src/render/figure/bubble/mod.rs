@@ -116,6 +116,13 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     Ok(sc)
 }
 
+/// The categorical moderator whose levels mark the studies of the bubble
+/// plot of `report` (None when there is none, or the plot cannot be drawn).
+pub(crate) fn marked_by<'a>(report: &'a FitReport, opts: &PlotOptions) -> Option<&'a str> {
+    let j = moderator(report, opts).ok()?;
+    view(report, j).split.map(|s| s.name)
+}
+
 /// The view of moderator `j`: whether it holds only 0 and 1, and the
 /// categorical moderator its studies are marked by (the first with 2 to
 /// [`marks::LEVELS`] levels that has fitted lines along `j`).
