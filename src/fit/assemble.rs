@@ -146,6 +146,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         studies: records,
         subgroups: readout.subgroups,
         curves: readout.curves,
+        level_curves: readout.level_curves,
         warnings: messages.warnings,
         cautions: messages.cautions,
         notes: messages.notes,

@@ -11,7 +11,8 @@ use crate::error::{Error, Result};
 use crate::model::design::{self, Design, ModeratorKind, RawModerator, Value};
 use crate::model::{self, inference, FitOptions, ModelFit};
 use crate::result::{
-    AtValue, Curve, CurvePoint, Interval, LevelSummary, Prediction, PredictionInterval, Subgroups,
+    AtValue, Curve, CurvePoint, Interval, LevelCurve, LevelSummary, Prediction, PredictionInterval,
+    Subgroups,
 };
 use crate::support::flag::Flag;
 use crate::support::format as fmt;
@@ -32,6 +33,9 @@ pub struct ReadOut {
     pub subgroups: Vec<Subgroups>,
     /// The fitted line along each numeric moderator.
     pub curves: Vec<Curve>,
+    /// The fitted line along each numeric moderator at each level of each
+    /// categorical moderator.
+    pub level_curves: Vec<LevelCurve>,
 }
 
 /// Predictions, subgroups and curves of the fitted model.
@@ -64,6 +68,7 @@ pub fn read_out(
         prediction_rows,
         subgroups: subgroups(design, &model.fit, studies, pooled, scale)?,
         curves: curves(design, &model.fit)?,
+        level_curves: level_curves(design, &model.fit)?,
     })
 }
 
@@ -319,24 +324,67 @@ fn curves(design: &Design, fit: &ModelFit) -> Result<Vec<Curve>> {
             continue;
         };
         let (mut values, named) = held(design, &[j]);
-        let mut points = Vec::with_capacity(CURVE_POINTS);
-        for s in 0..CURVE_POINTS {
-            let x = min + (max - min) * s as f64 / (CURVE_POINTS - 1) as f64;
-            values[j] = Value::Number(x);
-            let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
-            let p = inference::predict(fit, &x0);
-            points.push(CurvePoint {
-                x,
-                estimate: p.estimate,
-                ci: Interval::new(p.ci_low, p.ci_high),
-                pi: PredictionInterval::new(p.pi_low, p.pi_high),
-            });
-        }
+        let points = line_points(design, fit, &mut values, j, (min, max))?;
         out.push(Curve {
             moderator: m.name.clone(),
             held: held_grouped(&named),
             points,
         });
+    }
+    Ok(out)
+}
+
+/// [`CURVE_POINTS`] predictions evenly spaced from `range.0` to `range.1`
+/// of numeric moderator `j`, the others at `values`.
+fn line_points(
+    design: &Design,
+    fit: &ModelFit,
+    values: &mut [Value],
+    j: usize,
+    (min, max): (f64, f64),
+) -> Result<Vec<CurvePoint>> {
+    let mut points = Vec::with_capacity(CURVE_POINTS);
+    for s in 0..CURVE_POINTS {
+        let x = min + (max - min) * s as f64 / (CURVE_POINTS - 1) as f64;
+        values[j] = Value::Number(x);
+        let x0 = design::design_row(&design.moderators, &design.interactions, values)?;
+        let p = inference::predict(fit, &x0);
+        points.push(CurvePoint {
+            x,
+            estimate: p.estimate,
+            ci: Interval::new(p.ci_low, p.ci_high),
+            pi: PredictionInterval::new(p.pi_low, p.pi_high),
+        });
+    }
+    Ok(points)
+}
+
+/// The fitted line along every numeric moderator at every level of every
+/// categorical moderator: as in [`curves`], with the categorical moderator
+/// set to the level instead of its reference (with an interaction between
+/// the two, the lines have their own slopes).
+fn level_curves(design: &Design, fit: &ModelFit) -> Result<Vec<LevelCurve>> {
+    let mut out = Vec::new();
+    for (j, m) in design.moderators.iter().enumerate() {
+        let ModeratorKind::Numeric { min, max, .. } = m.kind else {
+            continue;
+        };
+        for (g, by) in design.moderators.iter().enumerate() {
+            let ModeratorKind::Categorical { levels, .. } = &by.kind else {
+                continue;
+            };
+            let (mut values, named) = held(design, &[j, g]);
+            for level in levels {
+                values[g] = Value::Label(level.clone());
+                out.push(LevelCurve {
+                    moderator: m.name.clone(),
+                    by: by.name.clone(),
+                    level: level.clone(),
+                    held: held_grouped(&named),
+                    points: line_points(design, fit, &mut values, j, (min, max))?,
+                });
+            }
+        }
     }
     Ok(out)
 }

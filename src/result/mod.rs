@@ -97,6 +97,11 @@ pub struct FitReport {
     pub subgroups: Vec<Subgroups>,
     /// The fitted line with its bands along each numeric moderator, in moderator order.
     pub curves: Vec<Curve>,
+    /// The fitted line along each numeric moderator at each level of each
+    /// categorical moderator (numeric moderators first, then categorical ones,
+    /// levels in order); omitted when the model lacks either kind.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub level_curves: Vec<LevelCurve>,
     /// Things that may make a result unreliable.
     pub warnings: Vec<String>,
     /// How to read the results responsibly.

@@ -77,3 +77,20 @@ pub struct CurvePoint {
     #[serde(flatten)]
     pub pi: PredictionInterval,
 }
+
+/// The fitted line along one numeric moderator at one level of a
+/// categorical moderator (one per level, for each pair of a numeric and a
+/// categorical moderator): the bubble plot draws a line per level.
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
+pub struct LevelCurve {
+    /// The numeric moderator along the line.
+    pub moderator: String,
+    /// The categorical moderator whose level is fixed.
+    pub by: String,
+    /// The level.
+    pub level: String,
+    /// Where the remaining moderators are held, in words (empty when there are none).
+    pub held: String,
+    /// Predictions at the same values as the moderator's [`Curve`].
+    pub points: Vec<CurvePoint>,
+}

@@ -1,6 +1,7 @@
 //! The integration test binary: reference checks, CLI tests, property tests.
 
 mod browser;
+mod bubble;
 mod catalogue;
 mod cli;
 mod conventions;

@@ -412,3 +412,57 @@ fn each_bad_value_exits_2_naming_its_flag() {
     // The same plan with good values runs.
     assert!(json(ok)["power"].is_number());
 }
+
+#[test]
+fn power_curve_marks_the_solved_k_on_the_target_line_and_no_simulation_when_none_ran() {
+    use crate::plots::parse_svg;
+    let dir = TempDir::new().unwrap();
+    let out = dir.path().join("power.svg");
+    let o = plan(&format!(
+        "{BASE} --test z --target-power 0.8 --json - --curve"
+    ))
+    .arg(&out)
+    .output()
+    .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["k_needed"].as_u64(), Some(K_NEEDED));
+    let svg = parse_svg(&std::fs::read(&out).unwrap());
+    // The curve's points: one filled dot per row of the table, in k order.
+    let dots: Vec<(f64, f64)> = svg
+        .iter()
+        .filter(|e| e.tag == "circle" && e.attr("fill") == Some("#0072B2"))
+        .map(|e| (e.num("cx"), e.num("cy")))
+        .collect();
+    let table = v["table"].as_array().unwrap();
+    assert_eq!(dots.len(), table.len());
+    let at = |k: u64| {
+        let i = table
+            .iter()
+            .position(|r| r["k"].as_u64() == Some(k))
+            .unwrap();
+        (dots[i], num(&table[i], "power"))
+    };
+    // The diamond: centred at the solved k's column, on the target power's row
+    // (the power axis is linear: read it off two points of the curve).
+    let diamond = svg
+        .iter()
+        .find(|e| e.tag == "polygon" && e.attr("fill") == Some("#D55E00"))
+        .expect("the solved k is marked")
+        .points();
+    let cx = diamond.iter().map(|p| p.0).sum::<f64>() / 4.0;
+    let cy = diamond.iter().map(|p| p.1).sum::<f64>() / 4.0;
+    let ((p1, pow1), (p2, pow2)) = (at(3), at(K_NEEDED));
+    assert!((cx - p2.0).abs() < 0.01, "{cx} vs {}", p2.0);
+    let y_target = p1.1 + (0.8 - pow1) / (pow2 - pow1) * (p2.1 - p1.1);
+    assert!((cy - y_target).abs() < 0.05, "{cy} vs {y_target}");
+    assert!(crate::plots::has_text(
+        &svg,
+        &format!("k needed = {K_NEEDED}")
+    ));
+    // Nothing was simulated: no open circles and no key entry for them.
+    assert!(!svg
+        .iter()
+        .any(|e| e.tag == "circle" && e.attr("stroke") == Some("#009E73")));
+    assert!(!crate::plots::has_text(&svg, "simulated"));
+}

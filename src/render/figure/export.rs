@@ -17,8 +17,15 @@ use std::sync::{Arc, OnceLock};
 /// CSS pixels per inch: `--width`/`--height` are measured in these.
 pub const CSS_DPI: f64 = 96.0;
 
-/// The largest PNG drawn, in pixels (4 bytes each in memory while drawing).
-pub const MAX_PNG_PIXELS: u64 = 120_000_000;
+/// The largest PNG drawn, in pixels: every figure of the default width up
+/// to the largest height (30,000 CSS pixels) at 300 dpi. The picture is
+/// drawn in strips of at most 16 megapixels, so memory does not grow
+/// with it; the limit bounds the time and the file instead.
+pub const MAX_PNG_PIXELS: u64 = 300_000_000;
+
+/// Pixels drawn at once (4 bytes each): a PNG is rasterised strip by strip
+/// and each strip's rows are compressed before the next is drawn.
+const STRIP_PIXELS: u64 = 16_000_000;
 
 /// Pixel count above which PNGs are compressed fast rather than small.
 const LARGE_PIXELS: u64 = 4_000_000;
@@ -69,16 +76,26 @@ pub fn png_size(width: u32, height: u32, dpi: u32) -> (u32, u32) {
 /// [`Error::Usage`] naming `flag` when the picture would exceed
 /// [`MAX_PNG_PIXELS`]; [`Error::Io`] (action "drawing") when parsing or encoding fails.
 pub(crate) fn png(svg: &str, width: u32, height: u32, dpi: u32, flag: Flag) -> Result<Vec<u8>> {
+    png_in_strips(svg, (width, height), dpi, flag, STRIP_PIXELS)
+}
+
+/// [`png`], drawing at most `strip_pixels` pixels at a time.
+fn png_in_strips(
+    svg: &str,
+    (width, height): (u32, u32),
+    dpi: u32,
+    flag: Flag,
+    strip_pixels: u64,
+) -> Result<Vec<u8>> {
     let (w, h) = png_size(width, height, dpi);
     let pixels = u64::from(w) * u64::from(h);
     if pixels > MAX_PNG_PIXELS {
         return Err(Error::Usage {
             option: flag.into(),
             message: format!(
-                "a {w} × {h} PNG ({width} × {height} at {dpi} dpi) would need {} MB of memory (the \
-                 limit is {} megapixels); write an .svg or .pdf instead, or give a smaller {}, {} \
-                 or {}",
-                pixels * 4 / 1_000_000,
+                "a {w} × {h} PNG ({width} × {height} at {dpi} dpi) would be {} megapixels (the \
+                 limit is {}); write an .svg or .pdf instead, or give a smaller {}, {} or {}",
+                pixels / 1_000_000,
                 MAX_PNG_PIXELS / 1_000_000,
                 Flag::Dpi,
                 Flag::Width,
@@ -87,21 +104,10 @@ pub(crate) fn png(svg: &str, width: u32, height: u32, dpi: u32, flag: Flag) -> R
         });
     }
     let tree = tree(svg)?;
-    let mut pixmap = resvg::tiny_skia::Pixmap::new(w, h)
+    let strip = (strip_pixels / u64::from(w)).clamp(1, u64::from(h)) as u32;
+    let mut pixmap = resvg::tiny_skia::Pixmap::new(w, strip)
         .ok_or_else(|| drawing_error("the picture has no pixels"))?;
-    pixmap.fill(resvg::tiny_skia::Color::WHITE);
     let s = (f64::from(dpi) / CSS_DPI) as f32;
-    resvg::render(
-        &tree,
-        resvg::tiny_skia::Transform::from_scale(s, s),
-        &mut pixmap.as_mut(),
-    );
-    // The background is opaque, so the premultiplied RGBA is plain RGB.
-    let rgb: Vec<u8> = pixmap
-        .data()
-        .chunks_exact(4)
-        .flat_map(|p| [p[0], p[1], p[2]])
-        .collect();
     let mut out = Vec::new();
     {
         let mut enc = png::Encoder::new(&mut out, w, h);
@@ -120,8 +126,29 @@ pub(crate) fn png(svg: &str, width: u32, height: u32, dpi: u32, flag: Flag) -> R
         } else {
             png::Compression::Default
         });
-        let mut writer = enc.write_header().map_err(drawing_error)?;
-        writer.write_image_data(&rgb).map_err(drawing_error)?;
+        let mut header = enc.write_header().map_err(drawing_error)?;
+        let mut writer = header.stream_writer().map_err(drawing_error)?;
+        let mut rgb = vec![0u8; w as usize * strip as usize * 3];
+        for top in (0..h).step_by(strip as usize) {
+            let rows = strip.min(h - top) as usize;
+            pixmap.fill(resvg::tiny_skia::Color::WHITE);
+            resvg::render(
+                &tree,
+                resvg::tiny_skia::Transform::from_scale(s, s).post_translate(0.0, -(top as f32)),
+                &mut pixmap.as_mut(),
+            );
+            // The background is opaque, so the premultiplied RGBA is plain RGB.
+            let n = rows * w as usize;
+            for (d, p) in rgb[..n * 3]
+                .chunks_exact_mut(3)
+                .zip(pixmap.data()[..n * 4].chunks_exact(4))
+            {
+                d.copy_from_slice(&p[..3]);
+            }
+            std::io::Write::write_all(&mut writer, &rgb[..rows * w as usize * 3])
+                .map_err(drawing_error)?;
+        }
+        writer.finish().map_err(drawing_error)?;
     }
     Ok(out)
 }
@@ -141,4 +168,74 @@ pub(crate) fn pdf(svg: &str) -> Result<Vec<u8>> {
         },
     )
     .map_err(drawing_error)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::figure::scene::{Align, Rgb, Scene};
+
+    fn pixels(png_bytes: &[u8]) -> Vec<u8> {
+        let mut reader = png::Decoder::new(std::io::Cursor::new(png_bytes))
+            .read_info()
+            .unwrap();
+        let mut buf = vec![0; reader.output_buffer_size()];
+        let info = reader.next_frame(&mut buf).unwrap();
+        buf.truncate(info.buffer_size());
+        buf
+    }
+
+    #[test]
+    fn a_png_drawn_in_strips_has_the_pixels_of_one_drawn_at_once() {
+        let mut sc = Scene::new(300, 400);
+        for i in 0..20 {
+            let y = 10.0 + 19.3 * f64::from(i);
+            sc.circle(
+                (40.0 + 11.0 * f64::from(i), y),
+                7.5,
+                Some((Rgb(0, 90, 160), 0.4)),
+                None,
+            );
+            sc.line(vec![(5.0, y), (295.0, y + 3.0)], Rgb(200, 80, 0), 1);
+            sc.text(
+                (60.0, y),
+                "Study 1, 0.25 [−0.10, 0.60]",
+                12.0,
+                Rgb(0, 0, 0),
+                Align::Left,
+            );
+        }
+        let svg = super::super::svg::standalone(&sc).unwrap();
+        let whole = png_in_strips(&svg, (300, 400), 150, Flag::Forest, u64::MAX).unwrap();
+        // 469 × 625 pixels at 150 dpi: strips of 21 rows (10,000 pixels)
+        // cut through discs, lines and letters.
+        let strips = png_in_strips(&svg, (300, 400), 150, Flag::Forest, 10_000).unwrap();
+        let (a, b) = (pixels(&whole), pixels(&strips));
+        assert_eq!(a.len(), b.len());
+        let diff: Vec<(usize, u8)> = a
+            .iter()
+            .zip(&b)
+            .enumerate()
+            .filter(|(_, (x, y))| x != y)
+            .map(|(i, (x, y))| (i, x.abs_diff(*y)))
+            .collect();
+        // Antialiased edges cut by a strip's top are stepped from another
+        // row, so their coverage may differ slightly; a shape drawn in the
+        // wrong place would differ by far more, at every edge.
+        assert!(
+            diff.len() * 100 < a.len(),
+            "{} of {} values differ",
+            diff.len(),
+            a.len()
+        );
+        assert!(
+            diff.iter().all(|d| d.1 <= 64),
+            "{:?}",
+            diff.iter().map(|d| d.1).max()
+        );
+        assert!(
+            pixels(&whole).iter().any(|&v| v < 100),
+            "something is drawn"
+        );
+    }
 }

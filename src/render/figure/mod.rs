@@ -15,6 +15,7 @@ pub mod font;
 pub mod forest;
 pub mod funnel;
 pub mod influence;
+mod marks;
 pub mod power;
 mod regions;
 pub mod scene;
@@ -346,10 +347,17 @@ pub fn page_figures(
             figures.push(PageFigure {
                 kind: "bubble",
                 title: format!("Effect against {name}"),
-                description: format!(
-                    "Bubble plot: each study's effect against its value of {name}, circle area by \
-                     weight, with the fitted meta-regression and its bands."
-                ),
+                description: match bubble::marked_by(report, opts) {
+                    Some(by) => format!(
+                        "Bubble plot: each study's effect against its value of {name}, marker area \
+                         by weight and marker shape by its level of {by} (see the legend), with \
+                         the fitted meta-regression at each level and its confidence band."
+                    ),
+                    None => format!(
+                        "Bubble plot: each study's effect against its value of {name}, circle area \
+                         by weight, with the fitted meta-regression and its bands."
+                    ),
+                },
                 svg: encode_inline(&sc),
             });
         }
