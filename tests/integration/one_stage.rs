@@ -6,7 +6,9 @@
 
 use crate::util::{close, repo};
 use assert_cmd::Command;
-use pondus::tolerance::{ONE_STAGE_REF_REL, REFERENCE_ABS, SQL_ROUTE_REL};
+use pondus::tolerance::{
+    ONE_STAGE_REF_REL, ONE_STAGE_STATSMODELS_REL, REFERENCE_ABS, SQL_ROUTE_REL,
+};
 use serde_json::Value;
 use tempfile::TempDir;
 
@@ -82,7 +84,7 @@ fn check(os: &Value, model: &str) {
         close(&what, f(&g["estimate"]), f(&dense["estimate"][i]), ONE_STAGE_REF_REL, REFERENCE_ABS);
         close(&format!("{what} se"), f(&g["se"]), f(&dense["se"][i]), ONE_STAGE_REF_REL, REFERENCE_ABS);
         if let Some(sm) = e.get("statsmodels") {
-            close(&format!("{what} (statsmodels)"), f(&g["estimate"]), f(&sm["beta"][i]), 1e-4, 1e-9);
+            close(&format!("{what} (statsmodels)"), f(&g["estimate"]), f(&sm["beta"][i]), ONE_STAGE_STATSMODELS_REL, 1e-9);
         }
     }
     let var = &os["variance"];
@@ -92,7 +94,7 @@ fn check(os: &Value, model: &str) {
         close(&format!("{model} {key} ci_low"), f(&ours["ci_low"]), f(&ci[0]), ONE_STAGE_REF_REL, REFERENCE_ABS);
         close(&format!("{model} {key} ci_high"), f(&ours["ci_high"]), f(&ci[1]), ONE_STAGE_REF_REL, REFERENCE_ABS);
         if let Some(sm) = e.get("statsmodels") {
-            close(&format!("{model} {key} (statsmodels)"), f(&ours["estimate"]), f(&sm[key]), 1e-3, 1e-9);
+            close(&format!("{model} {key} (statsmodels)"), f(&ours["estimate"]), f(&sm[key]), ONE_STAGE_STATSMODELS_REL, 1e-9);
         }
     }
 }

@@ -380,3 +380,66 @@ fn upper_root(h: &dyn Fn(f64) -> f64, from: f64, start: f64) -> Result<f64> {
     }
     Ok(brent_root(h, from, hi, SEARCH)?.0)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Three invented sites of (x, y) with one within-site predictor (x).
+    fn problem() -> Problem {
+        let data: [&[(f64, f64)]; 3] = [
+            &[(0.0, 1.0), (1.0, 2.5), (2.0, 2.9), (3.0, 4.8), (1.5, 2.0)],
+            &[(0.5, 0.2), (1.0, 0.1), (2.5, 1.9), (3.5, 1.2)],
+            &[(1.0, 3.0), (2.0, 5.1), (3.0, 6.8), (4.0, 9.5), (0.0, 1.1), (2.2, 5.0)],
+        ];
+        let sites = data
+            .iter()
+            .map(|rows| {
+                let n = rows.len() as f64;
+                let mx = rows.iter().map(|r| r.0).sum::<f64>() / n;
+                let my = rows.iter().map(|r| r.1).sum::<f64>() / n;
+                let s = |f: &dyn Fn(&(f64, f64)) -> f64| rows.iter().map(f).sum::<f64>();
+                let sxx = s(&|r| (r.0 - mx).powi(2));
+                let sxy = s(&|r| (r.0 - mx) * (r.1 - my));
+                SiteStats {
+                    sxx,
+                    sxy,
+                    syy: s(&|r| (r.1 - my).powi(2)),
+                    szz: DMatrix::from_element(1, 1, sxx),
+                    szx: DVector::from_element(1, sxx),
+                    szy: DVector::from_element(1, sxy),
+                }
+            })
+            .collect();
+        Problem {
+            sites,
+            df: 15.0 - 3.0 - 1.0,
+            scale: 1.0,
+        }
+    }
+
+    /// The analytic derivative D(γ) against central differences of −2ℓ_P.
+    #[test]
+    fn score_matches_finite_differences() {
+        let p = problem();
+        for g in [0.01, 0.1, 0.7, 3.0] {
+            let h = 1e-6 * g;
+            let fd = (p.crit(g + h) - p.crit(g - h)) / (2.0 * h);
+            let d = p.score(g);
+            assert!((fd - d).abs() <= 1e-5 * d.abs().max(1.0), "γ = {g}: {d} vs {fd}");
+        }
+    }
+
+    /// The profiled criterion is the full one at σ̂² = R/ν, and no σ² does better.
+    #[test]
+    fn profiled_criterion_is_the_minimum_over_sigma2() {
+        let p = problem();
+        let opt = p.optimum().unwrap();
+        let c = p.full(opt.gamma, opt.sigma2);
+        assert!((c - opt.crit).abs() < 1e-12 * c.abs());
+        for f in [0.9, 1.1] {
+            assert!(p.full(opt.gamma, opt.sigma2 * f) > c);
+        }
+        assert!(p.crit(opt.gamma * 1.01) >= opt.crit && p.crit(opt.gamma * 0.99) >= opt.crit);
+    }
+}

@@ -4,6 +4,7 @@
 
 use super::{Characteristics, SiteMoments};
 use crate::result::{Coefficient, OneStage, SitesReport, ZTerm};
+use crate::support::flag::Flag;
 use crate::support::format::{self as fmt, num};
 
 /// The model with the column names.
@@ -51,10 +52,20 @@ fn describe_two(c: &Coefficient) -> String {
     )
 }
 
-/// Whether two answers disagree: on which side of 0 their intervals put
-/// the effect (one excludes 0 and the other does not, or they exclude it on
-/// opposite sides), or by more than the larger standard error.
-fn differ(one: &ZTerm, two: &Coefficient) -> bool {
+/// How two answers compare.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Comparison {
+    /// Close estimates (apart by no more than the larger SE) and intervals
+    /// on the same side of 0.
+    Agree,
+    /// Close estimates, but one interval excludes 0 and the other does not
+    /// (or they exclude it on opposite sides).
+    Verdict,
+    /// Estimates apart by more than the larger standard error.
+    Apart,
+}
+
+fn compare(one: &ZTerm, two: &Coefficient) -> Comparison {
     let side = |lo: f64, hi: f64| {
         if lo > 0.0 {
             1
@@ -65,8 +76,25 @@ fn differ(one: &ZTerm, two: &Coefficient) -> bool {
         }
     };
     let t = &two.contrast;
-    side(one.ci.ci_low, one.ci.ci_high) != side(t.ci.ci_low, t.ci.ci_high)
-        || (one.estimate - t.estimate).abs() > one.se.max(t.se)
+    if (one.estimate - t.estimate).abs() > one.se.max(t.se) {
+        Comparison::Apart
+    } else if side(one.ci.ci_low, one.ci.ci_high) != side(t.ci.ci_low, t.ci.ci_high) {
+        Comparison::Verdict
+    } else {
+        Comparison::Agree
+    }
+}
+
+/// The sentence for close estimates whose intervals disagree about 0.
+fn verdict(side: &str, what: &str, c: &Coefficient) -> String {
+    format!(
+        "{side}, the estimates are close but only one interval excludes 0: the two-stage {what} gives \
+         {}. The one-stage z test treats τ² and σ² as known, the two-stage test uses Knapp–Hartung t (or \
+         the test chosen with {}) with its own between-site variance and weights; near the edge of \
+         significance such differences decide, so neither verdict is firm.",
+        describe_two(c),
+        Flag::Inference
+    )
 }
 
 /// Fills the answers, notes and cautions of `r`.
@@ -95,9 +123,11 @@ pub(super) fn fill(r: &mut OneStage, report: &SitesReport, moments: &SiteMoments
                 .as_ref()
                 .and_then(|f| f.coefficients.iter().find(|c| c.term == "mean_w"));
             if let Some(c) = two_within {
-                answers.push(if differ(&within, c) {
+                answers.push(match compare(&within, c) {
+                    Comparison::Verdict => verdict("Within sites", "pooled product term", c),
+                    Comparison::Apart => {
                     format!(
-                        "Within sites, the two answers differ: the two-stage pooled product term is {}. They \
+                        "Within sites, the two answers differ by more than a standard error: the two-stage pooled product term is {}. They \
                          can differ because they weight the sites differently (the two-stage answer weights \
                          each site's own product term by its precision and a between-site variance of \
                          product terms; the one-stage model pools every row with weights from σ² and τ²), \
@@ -106,17 +136,23 @@ pub(super) fn fill(r: &mut OneStage, report: &SitesReport, moments: &SiteMoments
                          two-stage answer but stay in the one-stage model.",
                         describe_two(c)
                     )
-                } else {
-                    format!(
+                    }
+                    Comparison::Agree => format!(
                         "Within sites, the two answers agree: the two-stage pooled product term is {}.",
                         describe_two(c)
-                    )
+                    ),
                 });
             }
             if let Some(c) = two_across {
-                answers.push(if differ(&across, c) {
+                answers.push(match compare(&across, c) {
+                    Comparison::Verdict => verdict(
+                        "Across sites",
+                        &format!("regression of the site slopes on the site mean of {w}"),
+                        c,
+                    ),
+                    Comparison::Apart => {
                     format!(
-                        "Across sites, the two answers differ: the two-stage regression of the site slopes on \
+                        "Across sites, the two answers differ by more than a standard error: the two-stage regression of the site slopes on \
                          the site mean of {w} gives {}. The site slopes of that regression come from models \
                          without {w}, so when the within-site interaction is not 0 and a site's slope depends \
                          on how its {x} and {w} go together (and that changes with the site mean of {w}), \
@@ -126,12 +162,12 @@ pub(super) fn fill(r: &mut OneStage, report: &SitesReport, moments: &SiteMoments
                          part too.",
                         describe_two(c)
                     )
-                } else {
-                    format!(
+                    }
+                    Comparison::Agree => format!(
                         "Across sites, the two answers agree: the two-stage regression of the site slopes on \
                          the site mean of {w} gives {}.",
                         describe_two(c)
-                    )
+                    ),
                 });
             }
         }
