@@ -86,9 +86,12 @@ fn replicate(rng: &mut Xoshiro256StarStar, sc: Scenario) -> Option<[f64; 4]> {
         treat: None,
         event: None,
     };
-    let (mut report, moments) =
-        sites::from_rows_with_moments("sim", RowInput::Stream(Box::new(data.as_bytes())), &settings)
-            .ok()?;
+    let (mut report, moments) = sites::from_rows_with_moments(
+        "sim",
+        RowInput::Stream(Box::new(data.as_bytes())),
+        &settings,
+    )
+    .ok()?;
     let options = FitOptions {
         method: Tau2Method::Reml,
         inference: Inference::Kh,
@@ -124,7 +127,11 @@ fn main() {
     println!("| --- | --- | --- |");
     for (name, sc, seed) in [
         ("across only", Scenario::Across, 20261203u64),
-        ("within only, x and w related in sites", Scenario::Within, 20261204u64),
+        (
+            "within only, x and w related in sites",
+            Scenario::Within,
+            20261204u64,
+        ),
     ] {
         let mut rng = Xoshiro256StarStar::seed_from_u64(seed);
         let mut hits = [0usize; 4];

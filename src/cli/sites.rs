@@ -251,25 +251,7 @@ impl SitesArgs {
                 "must lie between 0 and 1, e.g. 0.95",
             ));
         }
-        if self.one_stage && self.effect != EffectArg::Slope {
-            return Err(Error::usage(
-                "--one-stage",
-                "the one-stage model is a linear model of y on x, so it takes the slope: drop --effect \
-                 (for a 0/1 group x and a numeric y the slope is the mean difference)",
-            ));
-        }
-        if !self.moderators.is_empty() && !self.fit && !self.one_stage {
-            return Err(Error::usage(
-                "--moderator",
-                "site characteristics are used by the second stage or the one-stage model; add --fit or --one-stage",
-            ));
-        }
-        if self.level != 0.95 && !self.fit && !self.one_stage {
-            return Err(Error::usage(
-                "--level",
-                "sets the confidence level of the second stage or the one-stage model; add --fit or --one-stage",
-            ));
-        }
+        self.check_stage_flags()?;
         if !self.moderators.is_empty() && self.info.is_none() {
             return Err(Error::usage(
                 "--moderator",
@@ -361,6 +343,39 @@ impl SitesArgs {
             report,
             invocation: invocation(),
         })
+    }
+}
+
+impl SitesArgs {
+    /// The flags that need `--fit` or `--one-stage`, and the effect the
+    /// one-stage model takes.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag.
+    fn check_stage_flags(&self) -> Result<()> {
+        let stage = self.fit || self.one_stage;
+        if self.one_stage && self.effect != EffectArg::Slope {
+            return Err(Error::usage(
+                "--one-stage",
+                "the one-stage model is a linear model of y on x, so it takes the slope: drop \
+                 --effect (for a 0/1 group x and a numeric y the slope is the mean difference)",
+            ));
+        }
+        if !self.moderators.is_empty() && !stage {
+            return Err(Error::usage(
+                "--moderator",
+                "site characteristics are used by the second stage or the one-stage model; add \
+                 --fit or --one-stage",
+            ));
+        }
+        if self.level != 0.95 && !stage {
+            return Err(Error::usage(
+                "--level",
+                "sets the confidence level of the second stage or the one-stage model; add --fit \
+                 or --one-stage",
+            ));
+        }
+        Ok(())
     }
 }
 
@@ -486,7 +501,11 @@ fn one_stage_characteristics(
     rows: std::collections::HashMap<String, Vec<String>>,
     source: String,
 ) -> Result<pondus::sites::one_stage::Characteristics> {
-    let columns = report.join.as_ref().map(|j| j.columns.clone()).unwrap_or_default();
+    let columns = report
+        .join
+        .as_ref()
+        .map(|j| j.columns.clone())
+        .unwrap_or_default();
     let mut index = Vec::new();
     for name in &os.characteristics {
         match columns.iter().position(|c| c == name) {

@@ -81,20 +81,62 @@ fn check(os: &Value, model: &str) {
     let dense = &e["dense"];
     for (i, (g, n)) in got.iter().zip(&names).enumerate() {
         let what = format!("{model} {n}");
-        close(&what, f(&g["estimate"]), f(&dense["estimate"][i]), ONE_STAGE_REF_REL, REFERENCE_ABS);
-        close(&format!("{what} se"), f(&g["se"]), f(&dense["se"][i]), ONE_STAGE_REF_REL, REFERENCE_ABS);
+        close(
+            &what,
+            f(&g["estimate"]),
+            f(&dense["estimate"][i]),
+            ONE_STAGE_REF_REL,
+            REFERENCE_ABS,
+        );
+        close(
+            &format!("{what} se"),
+            f(&g["se"]),
+            f(&dense["se"][i]),
+            ONE_STAGE_REF_REL,
+            REFERENCE_ABS,
+        );
         if let Some(sm) = e.get("statsmodels") {
-            close(&format!("{what} (statsmodels)"), f(&g["estimate"]), f(&sm["beta"][i]), ONE_STAGE_STATSMODELS_REL, 1e-9);
+            close(
+                &format!("{what} (statsmodels)"),
+                f(&g["estimate"]),
+                f(&sm["beta"][i]),
+                ONE_STAGE_STATSMODELS_REL,
+                1e-9,
+            );
         }
     }
     let var = &os["variance"];
     for (key, ours) in [("tau2", &var["slope"]), ("sigma2", &var["residual"])] {
-        close(&format!("{model} {key}"), f(&ours["estimate"]), f(&dense[key]), ONE_STAGE_REF_REL, REFERENCE_ABS);
+        close(
+            &format!("{model} {key}"),
+            f(&ours["estimate"]),
+            f(&dense[key]),
+            ONE_STAGE_REF_REL,
+            REFERENCE_ABS,
+        );
         let ci = &dense[format!("{key}_ci")];
-        close(&format!("{model} {key} ci_low"), f(&ours["ci_low"]), f(&ci[0]), ONE_STAGE_REF_REL, REFERENCE_ABS);
-        close(&format!("{model} {key} ci_high"), f(&ours["ci_high"]), f(&ci[1]), ONE_STAGE_REF_REL, REFERENCE_ABS);
+        close(
+            &format!("{model} {key} ci_low"),
+            f(&ours["ci_low"]),
+            f(&ci[0]),
+            ONE_STAGE_REF_REL,
+            REFERENCE_ABS,
+        );
+        close(
+            &format!("{model} {key} ci_high"),
+            f(&ours["ci_high"]),
+            f(&ci[1]),
+            ONE_STAGE_REF_REL,
+            REFERENCE_ABS,
+        );
         if let Some(sm) = e.get("statsmodels") {
-            close(&format!("{model} {key} (statsmodels)"), f(&ours["estimate"]), f(&sm[key]), ONE_STAGE_STATSMODELS_REL, 1e-9);
+            close(
+                &format!("{model} {key} (statsmodels)"),
+                f(&ours["estimate"]),
+                f(&sm[key]),
+                ONE_STAGE_STATSMODELS_REL,
+                1e-9,
+            );
         }
     }
 }
@@ -104,7 +146,20 @@ fn one_stage_with_a_covariate_matches_the_references() {
     let dir = TempDir::new().unwrap();
     let (v, _) = run(
         &dir,
-        &["rows.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w", "--covariate", "c", "--one-stage"],
+        &[
+            "rows.csv",
+            "--site",
+            "site",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--w",
+            "w",
+            "--covariate",
+            "c",
+            "--one-stage",
+        ],
     );
     check(&v["one_stage"], "w_cov");
 }
@@ -115,15 +170,28 @@ fn one_stage_with_a_site_characteristic_matches_the_references() {
     let (v, out) = run(
         &dir,
         &[
-            "rows.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w", "--info", "sites.csv",
-            "--moderator", "s", "--one-stage", "--fit",
+            "rows.csv",
+            "--site",
+            "site",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--w",
+            "w",
+            "--info",
+            "sites.csv",
+            "--moderator",
+            "s",
+            "--one-stage",
+            "--fit",
         ],
     );
     check(&v["one_stage"], "w_char");
     // Beside the two-stage answers, in words.
     assert!(out.contains("One-stage model"), "{out}");
     assert!(out.contains("Within sites, the two answers"), "{out}");
-    assert!(out.contains("Across sites, the two answers"), "{out}");
+    assert!(out.contains("Across sites, the estimates are close"), "{out}");
     // The smallest sites have too few rows for a per-site product term,
     // but stay in the one-stage model, and the output says so.
     let notes = v["one_stage"]["notes"].to_string();
@@ -133,7 +201,21 @@ fn one_stage_with_a_site_characteristic_matches_the_references() {
 #[test]
 fn slopes_that_do_not_vary_put_tau2_at_zero() {
     let dir = TempDir::new().unwrap();
-    let (v, _) = run(&dir, &["flat.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w", "--one-stage"]);
+    let (v, _) = run(
+        &dir,
+        &[
+            "flat.csv",
+            "--site",
+            "site",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--w",
+            "w",
+            "--one-stage",
+        ],
+    );
     let os = &v["one_stage"];
     check(os, "flat");
     assert_eq!(os["variance"]["slope"]["estimate"], 0.0);
@@ -150,15 +232,50 @@ fn rows_and_moments_table_give_the_same_one_stage_fit() {
     let dir = TempDir::new().unwrap();
     let (a, _) = run(
         &dir,
-        &["rows.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w", "--covariate", "c", "--one-stage"],
+        &[
+            "rows.csv",
+            "--site",
+            "site",
+            "--x",
+            "x",
+            "--y",
+            "y",
+            "--w",
+            "w",
+            "--covariate",
+            "c",
+            "--one-stage",
+        ],
     );
-    let (b, _) = run(&dir, &["--moments", "moments.csv", "--w", "w", "--covariate", "c", "--one-stage"]);
+    let (b, _) = run(
+        &dir,
+        &[
+            "--moments",
+            "moments.csv",
+            "--w",
+            "w",
+            "--covariate",
+            "c",
+            "--one-stage",
+        ],
+    );
     let (a, b) = (&a["one_stage"], &b["one_stage"]);
     assert_eq!(a["sites"], b["sites"]);
     assert_eq!(a["rows"], b["rows"]);
-    for key in ["slope", "w_within", "within_interaction", "across_interaction"] {
+    for key in [
+        "slope",
+        "w_within",
+        "within_interaction",
+        "across_interaction",
+    ] {
         for field in ["estimate", "se", "ci_low", "ci_high", "statistic", "p"] {
-            close(&format!("{key} {field}"), f(&b[key][field]), f(&a[key][field]), SQL_ROUTE_REL, REFERENCE_ABS);
+            close(
+                &format!("{key} {field}"),
+                f(&b[key][field]),
+                f(&a[key][field]),
+                SQL_ROUTE_REL,
+                REFERENCE_ABS,
+            );
         }
     }
     for key in ["slope", "residual"] {
@@ -172,7 +289,13 @@ fn rows_and_moments_table_give_the_same_one_stage_fit() {
             );
         }
     }
-    close("covariate", f(&b["covariates"][0]["estimate"]), f(&a["covariates"][0]["estimate"]), SQL_ROUTE_REL, REFERENCE_ABS);
+    close(
+        "covariate",
+        f(&b["covariates"][0]["estimate"]),
+        f(&a["covariates"][0]["estimate"]),
+        SQL_ROUTE_REL,
+        REFERENCE_ABS,
+    );
 }
 
 /// Without --one-stage the JSON has no `one_stage` key (the existing
@@ -180,6 +303,11 @@ fn rows_and_moments_table_give_the_same_one_stage_fit() {
 #[test]
 fn without_the_flag_there_is_no_one_stage_key() {
     let dir = TempDir::new().unwrap();
-    let (v, _) = run(&dir, &["rows.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w"]);
+    let (v, _) = run(
+        &dir,
+        &[
+            "rows.csv", "--site", "site", "--x", "x", "--y", "y", "--w", "w",
+        ],
+    );
     assert!(v.get("one_stage").is_none());
 }

@@ -3,7 +3,7 @@
 
 use super::page::Page;
 use super::section::SitesCtx;
-use crate::result::{ZTerm, ProfiledVariance};
+use crate::result::{ProfiledVariance, ZTerm};
 use crate::support::format::{self as fmt, num};
 
 fn row(label: &str, t: &ZTerm) -> Vec<String> {

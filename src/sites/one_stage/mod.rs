@@ -30,8 +30,8 @@ use crate::dist;
 use crate::error::{Error, Result};
 use crate::input::number::{parse_cell, Cell};
 use crate::result::{
-    Interval, NamedZTerm, OneStage, OneStageSearch, OneStageVariance, SiteMeasure, SitesReport,
-    ProfiledVariance, ZTerm,
+    Interval, NamedZTerm, OneStage, OneStageSearch, OneStageVariance, ProfiledVariance,
+    SiteMeasure, SitesReport, ZTerm,
 };
 use crate::support::flag::Flag;
 use crate::tolerance;
@@ -131,13 +131,9 @@ pub fn fit(
     let opt = problem.optimum()?;
     let cut = dist::chi2_quantile(1.0 - level, 1.0, dist::Tail::Upper);
     let [tau_ci, sig_ci] = problem.intervals(&opt, cut)?;
-    let cov = opt
-        .eval
-        .m
-        .clone()
-        .try_inverse()
-        .ok_or_else(|| Error::Model("the one-stage model's information matrix is singular".into()))?
-        * opt.sigma2;
+    let cov = opt.eval.m.clone().try_inverse().ok_or_else(|| {
+        Error::Model("the one-stage model's information matrix is singular".into())
+    })? * opt.sigma2;
     let z = dist::normal_quantile(0.5 + level / 2.0);
     let term = |i: usize| z_term(opt.eval.beta[i], cov[(i, i)].sqrt(), z);
     let nc = layout.covariates;
@@ -214,7 +210,11 @@ fn term_names(report: &SitesReport, layout: Layout, ch: &Characteristics) -> Vec
         v.push(format!("{} × ({w} − site mean of {w})", m.x));
         v.push(format!("{} × site mean of {w}", m.x));
     }
-    v.extend(ch.names.iter().map(|c| format!("{} × site characteristic '{c}'", m.x)));
+    v.extend(
+        ch.names
+            .iter()
+            .map(|c| format!("{} × site characteristic '{c}'", m.x)),
+    );
     v
 }
 

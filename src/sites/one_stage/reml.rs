@@ -248,12 +248,22 @@ impl Problem {
             |t| f(self.gamma_of(t)),
             lo,
             hi,
-            (tolerance::MULTILEVEL_LINE_REL, tolerance::MULTILEVEL_LINE_ABS),
+            (
+                tolerance::MULTILEVEL_LINE_REL,
+                tolerance::MULTILEVEL_LINE_ABS,
+            ),
             SEARCH,
         )?;
         let g = self.gamma_of(tb);
         // The scan's best point stands if the local search did not improve on it.
-        Ok((if f(g) <= vals[best] { g } else { self.gamma_of(t[best]) }, evals))
+        Ok((
+            if f(g) <= vals[best] {
+                g
+            } else {
+                self.gamma_of(t[best])
+            },
+            evals,
+        ))
     }
 
     /// The REML estimates: γ̂ by [`Problem::minimise`] on −2ℓ_P and its
@@ -290,7 +300,10 @@ impl Problem {
             f,
             c - SPAN,
             c + SPAN,
-            (tolerance::MULTILEVEL_LINE_REL, tolerance::MULTILEVEL_LINE_ABS),
+            (
+                tolerance::MULTILEVEL_LINE_REL,
+                tolerance::MULTILEVEL_LINE_ABS,
+            ),
             SEARCH,
         )?;
         Ok(f(u))
@@ -390,7 +403,14 @@ mod tests {
         let data: [&[(f64, f64)]; 3] = [
             &[(0.0, 1.0), (1.0, 2.5), (2.0, 2.9), (3.0, 4.8), (1.5, 2.0)],
             &[(0.5, 0.2), (1.0, 0.1), (2.5, 1.9), (3.5, 1.2)],
-            &[(1.0, 3.0), (2.0, 5.1), (3.0, 6.8), (4.0, 9.5), (0.0, 1.1), (2.2, 5.0)],
+            &[
+                (1.0, 3.0),
+                (2.0, 5.1),
+                (3.0, 6.8),
+                (4.0, 9.5),
+                (0.0, 1.1),
+                (2.2, 5.0),
+            ],
         ];
         let sites = data
             .iter()
@@ -426,7 +446,10 @@ mod tests {
             let h = 1e-6 * g;
             let fd = (p.crit(g + h) - p.crit(g - h)) / (2.0 * h);
             let d = p.score(g);
-            assert!((fd - d).abs() <= 1e-5 * d.abs().max(1.0), "γ = {g}: {d} vs {fd}");
+            assert!(
+                (fd - d).abs() <= 1e-5 * d.abs().max(1.0),
+                "γ = {g}: {d} vs {fd}"
+            );
         }
     }
 

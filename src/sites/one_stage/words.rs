@@ -98,12 +98,19 @@ fn verdict(side: &str, what: &str, c: &Coefficient) -> String {
 }
 
 /// Fills the answers, notes and cautions of `r`.
-pub(super) fn fill(r: &mut OneStage, report: &SitesReport, moments: &SiteMoments, chars: &[Vec<f64>]) {
+pub(super) fn fill(
+    r: &mut OneStage,
+    report: &SitesReport,
+    moments: &SiteMoments,
+    chars: &[Vec<f64>],
+) {
     let m = &report.model;
     let (x, y) = (&m.x, &m.y);
     let level = r.level;
     let mut answers = Vec::new();
-    if let (Some(w), Some(within), Some(across)) = (&m.w, r.within_interaction, r.across_interaction) {
+    if let (Some(w), Some(within), Some(across)) =
+        (&m.w, r.within_interaction, r.across_interaction)
+    {
         answers.push(format!(
             "Within sites (one-stage b3): {}. The {x}→{y} slope changes by this much per unit of a \
              participant's own {w} above the mean of their site. It compares participants of the same \
@@ -196,7 +203,12 @@ pub(super) fn fill(r: &mut OneStage, report: &SitesReport, moments: &SiteMoments
     r.cautions = cautions(r);
 }
 
-fn notes(r: &OneStage, report: &SitesReport, moments: &SiteMoments, chars: &[Vec<f64>]) -> Vec<String> {
+fn notes(
+    r: &OneStage,
+    report: &SitesReport,
+    moments: &SiteMoments,
+    chars: &[Vec<f64>],
+) -> Vec<String> {
     let mut notes = Vec::new();
     let m = &report.model;
     let two = report.sites.len();
