@@ -191,7 +191,10 @@ fn one_stage_with_a_site_characteristic_matches_the_references() {
     // Beside the two-stage answers, in words.
     assert!(out.contains("One-stage model"), "{out}");
     assert!(out.contains("Within sites, the two answers"), "{out}");
-    assert!(out.contains("Across sites, the estimates are close"), "{out}");
+    assert!(
+        out.contains("Across sites, the estimates are close"),
+        "{out}"
+    );
     // The smallest sites have too few rows for a per-site product term,
     // but stay in the one-stage model, and the output says so.
     let notes = v["one_stage"]["notes"].to_string();

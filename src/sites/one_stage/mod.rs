@@ -282,7 +282,10 @@ fn site_stats(
         let m = &site.moments;
         let sxx = m.comoment(x, x);
         let xbar = m.mean(x);
-        if m.n() < 2 || !(sxx > m.n() as f64 * (tolerance::ONE_STAGE_CONSTANT_X * xbar).powi(2)) {
+        let spread_floor = m.n() as f64 * (tolerance::ONE_STAGE_CONSTANT_X * xbar).powi(2);
+        // NaN counts as no spread.
+        let varies = sxx.partial_cmp(&spread_floor) == Some(std::cmp::Ordering::Greater);
+        if m.n() < 2 || !varies {
             return Err(Error::Model(format!(
                 "{}: x ('{}') {} in site '{}', so its rows say nothing about the x slope and the one-stage \
                  model cannot use them; remove the site's rows (or drop {})",
