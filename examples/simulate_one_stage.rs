@@ -4,7 +4,7 @@
 //! interaction tests in two invented scenarios.
 //!
 //! Not a test and not run by CI: `cargo run --release --example
-//! simulate_one_stage [REPLICATIONS]` (default 500 per scenario). Each
+//! simulate_one_stage [REPLICATIONS]` (default 2000 per scenario; about 1 minute). Each
 //! replication draws K = 20 sites of 20 to 80 rows (uniform), site means of
 //! w w̄_j ~ N(0, 1), w_ij = w̄_j + N(0, 1), a random slope u_j ~ N(0, 0.15²)
 //! and errors N(0, 1), and runs the library exactly as `pondus sites --w w
@@ -122,7 +122,7 @@ fn main() {
     let reps: usize = std::env::args()
         .nth(1)
         .and_then(|a| a.parse().ok())
-        .unwrap_or(500);
+        .unwrap_or(2000);
     println!("| scenario | test | rejection rate (MC SE) |");
     println!("| --- | --- | --- |");
     for (name, sc, seed) in [
