@@ -154,5 +154,6 @@ pub(super) fn finish(
         join: None,
         notes,
         stages: None,
+        one_stage: None,
     }
 }

@@ -96,3 +96,6 @@ trap 'rm -rf "$tmp"' EXIT
 # (tests/reference/heterogeneity.py -> tests/data/reference/heterogeneity/)
 "$venv/bin/python" "$here/heterogeneity.py" "$tmp/heterogeneity" > "$tmp/heterogeneity.log" 2>&1 || { cat "$tmp/heterogeneity.log" >&2; die "heterogeneity.py failed (see above)"; }
 "$venv/bin/python" "$here/compare.py" --rtol 1e-5 "$committed/heterogeneity" "$tmp/heterogeneity" || die "heterogeneity fixtures differ; regenerate with: $venv/bin/python tests/reference/heterogeneity.py tests/data/reference/heterogeneity"
+# The one-stage model of pondus sites --one-stage: dense numpy REML and statsmodels MixedLM (tests/reference/one_stage.py -> tests/data/reference/one_stage/)
+"$venv/bin/python" "$here/one_stage.py" "$tmp/one_stage" > "$tmp/one_stage.log" 2>&1 || { cat "$tmp/one_stage.log" >&2; die "one_stage.py failed (see above)"; }
+"$venv/bin/python" "$here/compare.py" --rtol 1e-6 "$committed/one_stage" "$tmp/one_stage" || die "one_stage fixtures differ; regenerate with: $venv/bin/python tests/reference/one_stage.py tests/data/reference/one_stage"
