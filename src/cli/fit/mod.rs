@@ -200,13 +200,25 @@ impl FitArgs {
 /// Any library error.
 pub fn run_fit(run: &FitRun) -> Result<()> {
     let bytes = run.source.read_all()?;
+    // Nothing is written or printed (`--quiet` without outputs): the
+    // per-study records would never be read.
+    let nothing_shown = run.json.is_none()
+        && run.table.is_none()
+        && run.plots.is_empty()
+        && run.report.is_none()
+        && !run.text;
+    let detail = if nothing_shown {
+        fit::Detail::Summary
+    } else {
+        fit::Detail::Full
+    };
     let report = with_progress(
         run.settings
             .diagnostics
             .permutations
             .map(|p| p.permutations as u64),
         "permuting {bar:30} {pos}/{len} arrangements ({eta})",
-        |tick| fit::run_with_progress(&run.settings, &run.source.name(), &bytes, tick),
+        |tick| fit::run_with_detail(&run.settings, &run.source.name(), &bytes, tick, detail),
     )?;
     // Every output is rendered before any is placed (see `Outputs`: the
     // streamed ones into their temporary files), so an output the model
