@@ -17,12 +17,16 @@ server, which tests/sql/check.sh starts).
 3. Runs `pondus sites --moments` on it and `pondus sites` on the raw CSV,
    and asserts that both effects files have the same sites, columns and
    empty cells, and numbers agreeing to 1e-9 relative (or 1e-12 absolute).
+4. Runs `pondus sites --one-stage` on the rows and on each engine's moments
+   and asserts the same of every number of the one-stage model's answer
+   (coefficients, their SEs, intervals, z and p, τ², σ² and their intervals).
 
 Prints one line per engine, "N passed, 0 failed" on success; exits 1 with
 the differences otherwise.
 """
 
 import csv
+import json
 import math
 import os
 import random
@@ -200,6 +204,11 @@ def check_engine(binary, work, engine, raw, header, role_args, streamed):
             wr.writerow(["" if v is None else (repr(v) if isinstance(v, float) else str(v)) for v in row])
     a_path = os.path.join(work, f"from-{engine}.csv")
     pondus(binary, "sites", "--moments", moments, "--out", a_path, "--quiet")
+    # The one-stage model from this engine's moments, against the one from the rows.
+    j_path = os.path.join(work, f"one-stage-{engine}.json")
+    pondus(binary, "sites", "--moments", moments, "--one-stage", "--json", j_path, "--quiet")
+    with open(j_path, encoding="utf-8") as f:
+        one_stage = one_stage_numbers(json.load(f))
     a = list(csv.reader(open(a_path, encoding="utf-8")))
     b = streamed
     problems = []
@@ -222,11 +231,52 @@ def check_engine(binary, work, engine, raw, header, role_args, streamed):
             checked += 1
             if not (abs(fa - fb) <= ATOL or abs(fa - fb) <= RTOL * max(abs(fa), abs(fb))):
                 problems.append(f"{ra[0]} {h}: {fa!r} via SQL, {fb!r} streamed")
+    streamed_one_stage = STREAMED_ONE_STAGE[0]
+    if set(one_stage) != set(streamed_one_stage):
+        problems.append(f"one-stage keys differ: {sorted(set(one_stage) ^ set(streamed_one_stage))}")
+    for k in sorted(set(one_stage) & set(streamed_one_stage)):
+        fa, fb = one_stage[k], streamed_one_stage[k]
+        checked += 1
+        if not (abs(fa - fb) <= ATOL or abs(fa - fb) <= RTOL * max(abs(fa), abs(fb))):
+            problems.append(f"one_stage{k}: {fa!r} via SQL, {fb!r} from the rows")
     for p in problems[:50]:
         print("  " + p)
-    print(f"sql check {engine} ({version}, {len(result)} site groups, {checked} numbers): "
+    print(f"sql check {engine} ({version}, {len(result)} site groups, {checked} numbers "
+          f"with the one-stage model's {len(one_stage)}): "
           f"{checked if not problems else 0} passed, {len(problems)} failed")
     return not problems
+
+
+# The one-stage model's numbers from the raw rows (filled in by main).
+STREAMED_ONE_STAGE = [{}]
+
+# Parts of `one_stage` in the JSON whose numbers are the model's answer.
+ONE_STAGE_PARTS = ("sites", "rows", "slope", "w_within", "within_interaction",
+                   "across_interaction", "covariates", "characteristics", "variance")
+
+
+def one_stage_numbers(doc):
+    """Every number of the one-stage model's answer, keyed by its JSON path."""
+    out = {}
+
+    def walk(path, v):
+        if isinstance(v, bool) or v is None or isinstance(v, str):
+            return
+        if isinstance(v, (int, float)):
+            out[path] = float(v)
+        elif isinstance(v, dict):
+            for k, x in v.items():
+                walk(f"{path}.{k}", x)
+        elif isinstance(v, list):
+            for i, x in enumerate(v):
+                walk(f"{path}[{i}]", x)
+
+    model = doc.get("one_stage")
+    if not isinstance(model, dict):
+        sys.exit("pondus sites --one-stage wrote no one_stage object")
+    for part in ONE_STAGE_PARTS:
+        walk(f".{part}", model.get(part))
+    return out
 
 
 def available(engine):
@@ -247,6 +297,13 @@ def main(binary, work, engines):
     pondus(binary, "sites", raw, *role_args, "--out", b_path, "--quiet")
     streamed = list(csv.reader(open(b_path, encoding="utf-8")))
     ok = True
+    j_path = os.path.join(work, "one-stage-rows.json")
+    pondus(binary, "sites", raw, *role_args, "--one-stage", "--json", j_path, "--quiet")
+    with open(j_path, encoding="utf-8") as f:
+        STREAMED_ONE_STAGE[0] = one_stage_numbers(json.load(f))
+    if len(STREAMED_ONE_STAGE[0]) < 20:
+        print(f"  the one-stage model gave only {len(STREAMED_ONE_STAGE[0])} numbers")
+        ok = False
     # The data were built with one site too small and one without a product term.
     if len(streamed) - 1 != 39:
         print(f"  expected 39 estimated sites, got {len(streamed) - 1}")
