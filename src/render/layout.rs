@@ -425,7 +425,10 @@ mod tests {
         }
         // Every piece but the last ends at a separator; nothing is lost.
         let joined: String = w.lines().map(str::trim).collect::<Vec<_>>().join(" ");
-        assert!(joined.starts_with("/work/a-checkout-with-a-long-name/"), "{w}");
+        assert!(
+            joined.starts_with("/work/a-checkout-with-a-long-name/"),
+            "{w}"
+        );
         assert_eq!(joined.replace("/ ", "/"), format!("{path} (427 rows read)"));
         // A word without separators is cut at the width.
         assert_eq!(wrap("abcdefghij", "", 4), "abcd\nefgh\nij\n");

@@ -18,7 +18,7 @@
 //! x(w − w̄_j) = x·w − w̄_j·x, x·w̄_j = w̄_j·x, x·s_j = s_j·x, w − w̄_j = w − const.
 //! With B_j the d × p matrix of those coefficients and C_j the site's
 //! co-moment matrix of v, the centred co-moments are S_ZZ = B_j'C_jB_j,
-//! S_Zx = B_j'C_j e_x, S_Zy = B_j'C_j e_y, which is all [`reml`] needs:
+//! S_Zx = B_j'C_j e_x, S_Zy = B_j'C_j e_y, which is all the `reml` module needs:
 //! memory and time proportional to the number of sites.
 
 mod reml;
