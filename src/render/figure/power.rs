@@ -3,7 +3,7 @@
 //! dashed line and the planned k marked.
 
 use super::axis::ChartPage;
-use super::scene::{fit_text, text_width, Align, Scene};
+use super::scene::{text_width, Align, Scene};
 use super::{encode, encode_inline, palette, size, wrap_or_fit, Axis, Format, Frame, PageFigure};
 use crate::error::Result;
 use crate::result::plan::{PlanReport, PlanTest};
@@ -93,17 +93,20 @@ pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
         )
     };
     // The key shares the line of the y title when both fit, else it gets
-    // a line of its own above it.
+    // lines of its own above it (wrapped to the width).
     let top = 90.0 * k + head_extra;
     let (mut frame, mut h) = frame_at(top)?;
-    let key_w = fit_text(&key, size::SMALL * k, w - 2.0 * margin);
-    let beside = frame.x0 - 8.0
-        + text_width("power", size::LABEL * k)
-        + 16.0 * k
-        + text_width(&key_w, size::SMALL * k)
-        <= frame.x1;
+    let small = size::SMALL * k;
+    let beside =
+        frame.x0 - 8.0 + text_width("power", size::LABEL * k) + 16.0 * k + text_width(&key, small)
+            <= frame.x1;
+    let key_lines = if beside {
+        vec![key]
+    } else {
+        wrap_or_fit(&key, small, w - 2.0 * margin)
+    };
     if !beside {
-        (frame, h) = frame_at(top + 17.0 * k)?;
+        (frame, h) = frame_at(top + 17.0 * k * key_lines.len() as f64)?;
     }
     let mut sc = Scene::new(w as u32, h as u32);
     sc.rect(0.0, 0.0, w, h, palette::PAPER);
@@ -170,18 +173,16 @@ pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
         Align::Left,
     );
     solved_and_simulated(&mut sc, r, &frame, &sims);
-    let key_y = if beside {
-        frame.y0 - 16.0 * k
-    } else {
-        frame.y0 - 18.0 * k - 17.0 * k
-    };
-    sc.text(
-        (frame.x1, key_y),
-        key_w,
-        size::SMALL * k,
-        palette::MUTED,
-        Align::Right,
-    );
+    let n = key_lines.len();
+    for (i, line) in key_lines.into_iter().enumerate() {
+        let (x, y, align) = if beside {
+            (frame.x1, frame.y0 - 16.0 * k, Align::Right)
+        } else {
+            let up = 18.0 * k + 17.0 * k * (n - i) as f64;
+            (margin, frame.y0 - up, Align::Left)
+        };
+        sc.text((x, y), line, small, palette::MUTED, align);
+    }
     frame.axes(&mut sc);
     Ok(sc)
 }
