@@ -146,6 +146,14 @@ pub struct PlanArgs {
     /// Resolution of a .png curve in dots per inch [default: 150]; 300 or 600 for print.
     #[arg(help_heading = "Outputs", long, value_name = "N")]
     pub dpi: Option<u32>,
+    /// Size of the curve's ordinary text (tick labels, key) in points, the em at the figure's physical size of 96 pixels per inch (5 to 30) [default: about 7.6]; the title and axis titles keep their proportions to it, and the figure grows taller when the text needs the room. Applies to --curve and the curve in --report.
+    #[arg(
+        help_heading = "Outputs",
+        long,
+        value_name = "PT",
+        allow_negative_numbers = true
+    )]
+    pub font_size: Option<f64>,
     /// Write the result as JSON ('-' for standard output).
     #[arg(help_heading = "Outputs", long, value_name = "PATH")]
     pub json: Option<PathBuf>,
@@ -168,6 +176,8 @@ pub struct PlanRun {
     pub curve: Option<(Target, figure::Format)>,
     /// Resolution of a PNG curve.
     pub dpi: u32,
+    /// `--font-size` of the curve, in points.
+    pub font_size: Option<f64>,
     /// Whether to print the terminal report.
     pub text: bool,
     /// The HTML report's target.
@@ -272,6 +282,13 @@ impl PlanArgs {
         let (json, curve, report) = self.targets()?;
         let formats: Vec<figure::Format> = curve.iter().map(|(_, f)| *f).collect();
         crate::cli::fit::check_dpi(self.dpi, &formats)?;
+        if self.font_size.is_some() && curve.is_none() && report.is_none() {
+            return Err(Error::usage(
+                "--font-size",
+                "applies to the power curve; add --curve FILE.svg (or .png, .pdf) or --report FILE.html",
+            ));
+        }
+        crate::cli::fit::check_font_size(self.font_size)?;
         let mut plan = Plan {
             measure,
             k: self.k.unwrap_or(3),
@@ -314,6 +331,7 @@ impl PlanArgs {
             json,
             curve,
             dpi: self.dpi.unwrap_or(figure::DEFAULT_DPI),
+            font_size: self.font_size,
             report,
             invocation: invocation(),
         })
@@ -651,13 +669,17 @@ pub fn run_plan(run: &PlanRun) -> Result<()> {
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
     if let Some((t, f)) = &run.curve {
-        out.add("--curve", t, figure::power::plot(&report, *f, run.dpi)?);
+        out.add(
+            "--curve",
+            t,
+            figure::power::plot(&report, *f, run.dpi, run.font_size)?,
+        );
     }
     if let Some(t) = &run.json {
         out.add("--json", t, json_bytes(&report)?);
     }
     if let Some(t) = &run.report {
-        let figure = figure::power::page_figure(&report)?;
+        let figure = figure::power::page_figure(&report, run.font_size)?;
         let prov = render::html::Provenance {
             command: run.invocation.clone(),
             version: env!("CARGO_PKG_VERSION").to_string(),

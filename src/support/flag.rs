@@ -82,7 +82,7 @@ flags! {
     XLabel => "--x-label", ["fit"];
     Columns => "--columns", ["fit"];
     GroupBy => "--group-by", ["fit"];
-    FontSize => "--font-size", ["fit"];
+    FontSize => "--font-size", ["fit", "plan"];
     Quiet => "--quiet", ["fit", "plan", "sites"];
     Report => "--report", ["fit", "plan", "sites"];
     Probe => "--probe", ["fit"];

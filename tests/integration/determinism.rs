@@ -93,3 +93,35 @@ fn a_report_without_per_study_records_differs_only_there() {
         serde_json::to_string(&summary).unwrap()
     );
 }
+
+/// A PNG is drawn in strips on all threads (`src/render/figure/export.rs`):
+/// the same bytes with 1, 2 and 3 threads, for a picture of several strips
+/// (300 studies at 300 dpi: about 3,125 × 15,000 pixels, 6 strips).
+#[test]
+fn png_is_byte_identical_whatever_the_thread_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("t.csv");
+    std::fs::write(&csv, table(300)).unwrap();
+    let png = |threads: &str| {
+        let out = dir.path().join(format!("forest-{threads}.png"));
+        let o = Command::cargo_bin("pondus")
+            .unwrap()
+            .env("RAYON_NUM_THREADS", threads)
+            .arg("fit")
+            .arg(&csv)
+            .args(["--moderator", "dose", "--dpi", "300", "-q", "--forest"])
+            .arg(&out)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        std::fs::read(&out).unwrap()
+    };
+    let one = png("1");
+    let height = u32::from_be_bytes(one[20..24].try_into().unwrap());
+    assert!(
+        u64::from(height) * 3125 > 3 * 8_000_000,
+        "several strips: {height} rows"
+    );
+    assert_eq!(one, png("2"));
+    assert_eq!(one, png("3"));
+}

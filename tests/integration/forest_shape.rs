@@ -267,9 +267,9 @@ fn font_size_sets_the_row_text_in_points_and_scales_the_rest_with_room() {
     let (_, large) = plot(&file, "--forest OUT --font-size 20 --columns n", "b.svg");
     let (a, b) = (parse_svg(&small), parse_svg(&large));
     assert_eq!(count(&b, "circle", "fill", STUDY), k(&json));
-    // 10 points are 13.33 pixels; the SVG's font-size attribute is the
-    // em size, 1/1.24 of the text size pondus lays out with (font.rs).
-    let em = |pt: f64| pt * 96.0 / 72.0 / 1.24;
+    // The size is the em: 10 points are 13.33 pixels at 96 per inch, the
+    // SVG's font-size attribute (and the size a PDF reader reports).
+    let em = |pt: f64| pt * 96.0 / 72.0;
     for (svg, pt) in [(&a, 10.0), (&b, 20.0)] {
         for label in ["Abel 2009", "120.50"] {
             assert!(

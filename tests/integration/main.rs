@@ -7,6 +7,7 @@ mod cli;
 mod conventions;
 mod determinism;
 mod diagnose;
+mod font_size;
 mod forest_shape;
 mod fuzz_corpus;
 mod golden;

@@ -300,7 +300,7 @@ impl OutputArgs {
     }
 }
 
-pub use super::plots::{check_dpi, PlotArgs};
+pub use super::plots::{check_dpi, check_font_size, PlotArgs};
 
 /// The terminal report and the HTML page.
 #[derive(Debug, Args)]

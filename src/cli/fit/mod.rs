@@ -6,7 +6,7 @@
 mod answers;
 pub(crate) mod groups;
 mod plots;
-pub(crate) use groups::check_dpi;
+pub(crate) use groups::{check_dpi, check_font_size};
 mod reading;
 
 use groups::{

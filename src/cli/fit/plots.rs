@@ -32,7 +32,7 @@ pub struct PlotArgs {
     /// Group the forest plot's rows by this column, with a heading per group (a categorical moderator's groups also get their own averages), or none [default: the first categorical moderator].
     #[arg(long, value_name = "COL")]
     pub group_by: Option<String>,
-    /// Size of the forest plot's row text in points (1/72 inch at the figure's 96 pixels per inch; 5 to 30) [default: 10, smaller with many rows]; the rows, titles, headers, axis and caption keep their proportions to it.
+    /// Size of every plot's ordinary text in points, the em at the figure's physical size of 96 pixels per inch (5 to 30): the forest plot's row text, the other plots' tick labels, legends and captions [default: about 8, smaller in a forest plot of many rows]. Titles, headers and axis titles keep their proportions to it, and the layout makes room.
     #[arg(long, value_name = "PT", allow_negative_numbers = true)]
     pub font_size: Option<f64>,
     /// Mark each study's fitted value (from the moderators) in the forest plot.
@@ -118,19 +118,18 @@ impl PlotArgs {
         let forest = self.forest.is_some() || report;
         needs("--columns", !self.columns.is_empty(), "--forest", forest)?;
         needs("--group-by", self.group_by.is_some(), "--forest", forest)?;
-        needs("--font-size", self.font_size.is_some(), "--forest", forest)?;
-        if let Some(pt) = self.font_size {
-            let (lo, hi) = figure::FONT_PT_RANGE;
-            if !(lo..=hi).contains(&pt) {
-                return Err(Error::usage(
-                    "--font-size",
-                    format!(
-                        "{pt} points is outside {lo} to {hi}; journals commonly ask for 7 to 12 \
-                         point text at the printed size"
-                    ),
-                ));
-            }
-        }
+        let any_plot = forest
+            || self.bubble.is_some()
+            || self.funnel.is_some()
+            || self.sensitivity_plot.is_some()
+            || self.influence_plot.is_some();
+        needs(
+            "--font-size",
+            self.font_size.is_some(),
+            "--forest, --bubble, --funnel, --sensitivity-plot, --influence-plot or --report",
+            any_plot,
+        )?;
+        check_font_size(self.font_size)?;
         for (n, c) in self.columns.iter().enumerate() {
             if c.trim().is_empty() {
                 return Err(Error::usage(
@@ -304,6 +303,28 @@ pub fn check_dpi(dpi: Option<u32>, formats: &[figure::Format]) -> Result<()> {
             "--dpi",
             format!(
                 "{dpi} dots per inch is outside {lo} to {hi}; journals commonly ask for 300 to 600"
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Checks a `--font-size` value: within [`figure::FONT_PT_RANGE`] (which
+/// also refuses NaN and infinities).
+///
+/// # Errors
+/// [`Error::Usage`] naming `--font-size`.
+pub fn check_font_size(font_size: Option<f64>) -> Result<()> {
+    let Some(pt) = font_size else {
+        return Ok(());
+    };
+    let (lo, hi) = figure::FONT_PT_RANGE;
+    if !(lo..=hi).contains(&pt) {
+        return Err(Error::usage(
+            "--font-size",
+            format!(
+                "{pt} points is outside {lo} to {hi}; journals commonly ask for 7 to 12 point \
+                 text at the printed size"
             ),
         ));
     }

@@ -6,6 +6,8 @@ use super::palette;
 use super::scene::{self, Align, Scene};
 use super::size;
 use crate::effect::ReadingScale;
+use crate::error::{Error, Result};
+use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
 /// A value axis: a data range in plot space and its ticks.
@@ -148,6 +150,33 @@ fn log_ticks(lo: f64, hi: f64, target: usize) -> Vec<(f64, String)> {
         .collect()
 }
 
+/// The page around a chart's plot area: its size, what is reserved above
+/// and below the plot area, and the text scale.
+pub(crate) struct ChartPage {
+    /// The plot's name in messages ("bubble plot").
+    pub plot: &'static str,
+    /// Width in pixels.
+    pub width: f64,
+    /// `--height` (None: `default_height`, taller when larger text needs
+    /// the room: the plot area keeps half of it).
+    pub height: Option<u32>,
+    /// The height without `--height`.
+    pub default_height: f64,
+    /// Margin at the sides.
+    pub margin: f64,
+    /// Room above the plot area (title, legend, one line of y title).
+    pub top: f64,
+    /// Room below it (tick labels, one line of x title, caption).
+    pub bottom: f64,
+    /// The smallest left edge of the plot area (0: from the tick labels).
+    pub min_left: f64,
+    /// Text scale ([`super::text_scale`]).
+    pub k: f64,
+}
+
+/// The smallest plot area drawn, in pixels (height, width).
+const MIN_PLOT: (f64, f64) = (120.0, 140.0);
+
 /// A rectangular chart area with an x and a y axis.
 pub(crate) struct Frame {
     /// Left edge in pixels.
@@ -164,37 +193,108 @@ pub(crate) struct Frame {
     pub ya: Axis,
     /// Whether the y axis grows downwards (the funnel plot's standard error).
     pub y_down: bool,
+    /// Text scale.
+    pub k: f64,
+    /// The page's width (tick labels stay inside it).
+    page_width: f64,
+    /// The x axis title's lines.
+    x_title: Vec<String>,
+    /// The y axis title's lines.
+    y_title: Vec<String>,
 }
 
 impl Frame {
-    /// The plot area of a page `width` × `height` pixels: `margin` at the
-    /// sides, `top` and `bottom` reserved (title, axis title, caption), and
-    /// room on the left for the widest y tick label.
-    #[allow(clippy::too_many_arguments)]
+    /// The plot area of `page` and the page's height: `margin` at the
+    /// sides, `top` and `bottom` reserved, room on the left for the widest
+    /// y tick label, and room for the axis titles (`titles`: x, y), which
+    /// wrap onto more lines when too wide.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming `--height` or `--width` when the page leaves
+    /// less than 120 × 140 pixels for the plot area (naming `--font-size`
+    /// too when it is given).
     pub(crate) fn in_page(
-        width: f64,
-        height: f64,
-        margin: f64,
-        top: f64,
-        bottom: f64,
+        page: &ChartPage,
         xa: Axis,
         ya: Axis,
         y_down: bool,
-    ) -> Frame {
+        (x_title, y_title): (&str, &str),
+    ) -> Result<(Frame, f64)> {
+        let k = page.k;
         let y_label_w = ya
             .ticks
             .iter()
-            .map(|t| scene::text_width(&t.1, size::SMALL))
+            .map(|t| scene::text_width(&t.1, size::SMALL * k))
             .fold(0.0, f64::max);
-        Frame {
-            x0: margin + y_label_w + 14.0,
+        let x0 = (page.margin + y_label_w + 14.0).max(page.min_left);
+        let x1 = page.width - page.margin - 10.0;
+        let larger = if k == 1.0 {
+            String::new()
+        } else {
+            format!(" at this {}", Flag::FontSize)
+        };
+        if x1 - x0 < MIN_PLOT.1 {
+            return Err(Error::usage(
+                Flag::Width,
+                format!(
+                    "{} pixels leave no room for the {}{larger}; use at least {:.0}",
+                    page.width,
+                    page.plot,
+                    page.width + MIN_PLOT.1 - (x1 - x0)
+                ),
+            ));
+        }
+        let x_title = super::wrap_or_fit(x_title, size::LABEL * k, x1 - x0);
+        let y_title = super::wrap_or_fit(y_title, size::LABEL * k, x1 + 10.0 - (x0 - 8.0));
+        let line = 17.0 * k;
+        let top = page.top + line * (y_title.len() - 1) as f64;
+        let bottom = page.bottom + line * (x_title.len() - 1) as f64;
+        let need = top + bottom + MIN_PLOT.0;
+        let height = match page.height {
+            Some(h) if f64::from(h) < need => {
+                return Err(Error::usage(
+                    Flag::Height,
+                    format!(
+                        "{h} pixels leave no room for the {}{larger}; use at least {need:.0}",
+                        page.plot
+                    ),
+                ))
+            }
+            Some(h) => f64::from(h),
+            // Larger text: the page grows so that the plot area keeps at
+            // least half the default page's height.
+            None => {
+                let plot = if k > 1.0 {
+                    0.5 * page.default_height
+                } else {
+                    0.0
+                };
+                page.default_height
+                    .max(need)
+                    .max(top + bottom + plot)
+                    .ceil()
+            }
+        };
+        let frame = Frame {
+            x0,
             y0: top,
-            x1: width - margin - 10.0,
+            x1,
             y1: height - bottom,
             xa,
             ya,
             y_down,
-        }
+            k,
+            page_width: page.width,
+            x_title,
+            y_title,
+        };
+        Ok((frame, height))
+    }
+
+    /// Where the room below the plot area (after the tick labels and the
+    /// x title) begins: the legend or caption starts here.
+    pub fn below(&self) -> f64 {
+        self.y1 + 64.0 * self.k + 17.0 * self.k * (self.x_title.len() - 1) as f64
     }
 
     /// Pixel column of an x value (plot space).
@@ -220,53 +320,65 @@ impl Frame {
         }
     }
 
-    /// Axis lines, ticks, tick labels and titles (the y title sits above the axis, horizontally).
-    pub fn axes(&self, sc: &mut Scene, x_title: &str, y_title: &str) {
+    /// Axis lines, ticks, tick labels and titles (the y title sits above
+    /// the axis, horizontally; a title of several lines grows away from
+    /// the plot area).
+    pub fn axes(&self, sc: &mut Scene) {
         use palette::INK;
+        let (k, small) = (self.k, size::SMALL * self.k);
         sc.line(vec![(self.x0, self.y1), (self.x1, self.y1)], INK, 1);
         sc.line(vec![(self.x0, self.y0), (self.x0, self.y1)], INK, 1);
         let xs: Vec<f64> = self.xa.ticks.iter().map(|t| self.x(t.0)).collect();
-        let x_step = label_step(&xs, &self.xa.ticks, size::SMALL, true);
+        let x_step = label_step(&xs, &self.xa.ticks, small, true);
         for (i, ((_, label), x)) in self.xa.ticks.iter().zip(&xs).enumerate() {
             sc.line(vec![(*x, self.y1), (*x, self.y1 + 5.0)], INK, 1);
             if i % x_step == 0 {
+                // A label at the right end moves left to stay on the page.
+                let half = scene::text_width(label, small) / 2.0;
+                let x = x.min(self.page_width - half - 2.0);
                 sc.text(
-                    (*x, self.y1 + 15.0),
+                    (x, self.y1 + 5.0 + 10.0 * k),
                     label.clone(),
-                    size::SMALL,
+                    small,
                     INK,
                     Align::Center,
                 );
             }
         }
         let ys: Vec<f64> = self.ya.ticks.iter().map(|t| self.y(t.0)).collect();
-        let y_step = label_step(&ys, &self.ya.ticks, size::SMALL, false);
+        let y_step = label_step(&ys, &self.ya.ticks, small, false);
         for (i, ((_, label), y)) in self.ya.ticks.iter().zip(&ys).enumerate() {
             sc.line(vec![(self.x0 - 5.0, *y), (self.x0, *y)], INK, 1);
             if i % y_step == 0 {
-                sc.text(
-                    (self.x0 - 8.0, *y),
-                    label.clone(),
-                    size::SMALL,
-                    INK,
-                    Align::Right,
-                );
+                sc.text((self.x0 - 8.0, *y), label.clone(), small, INK, Align::Right);
             }
         }
-        sc.text(
-            ((self.x0 + self.x1) / 2.0, self.y1 + 38.0),
-            x_title,
-            size::LABEL,
-            INK,
-            Align::Center,
-        );
-        sc.text(
-            (self.x0 - 8.0, self.y0 - 18.0),
-            y_title,
-            size::LABEL,
-            INK,
-            Align::Left,
-        );
+        let line = 17.0 * k;
+        for (i, t) in self.x_title.iter().enumerate() {
+            sc.text(
+                (
+                    (self.x0 + self.x1) / 2.0,
+                    self.y1 + 5.0 + 33.0 * k + line * i as f64,
+                ),
+                t.clone(),
+                size::LABEL * k,
+                INK,
+                Align::Center,
+            );
+        }
+        let n = self.y_title.len();
+        for (i, t) in self.y_title.iter().enumerate() {
+            sc.text(
+                (
+                    self.x0 - 8.0,
+                    self.y0 - 18.0 * k - line * (n - 1 - i) as f64,
+                ),
+                t.clone(),
+                size::LABEL * k,
+                INK,
+                Align::Left,
+            );
+        }
     }
 }
 

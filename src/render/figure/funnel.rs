@@ -3,13 +3,15 @@
 //! pseudo-confidence region around the estimate (around 0 for residuals),
 //! and optional significance contours around no effect.
 
+use super::axis::ChartPage;
 use super::palette::*;
-use super::{measure_name, model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene};
+use super::{
+    measure_name, model_line, size, wrap, Align, Axis, Frame, Heading, PlotOptions, Scene,
+};
 use crate::effect::ReadingScale;
 use crate::error::Result;
 use crate::render::figure::scene::Rgb;
 use crate::result::FitReport;
-use crate::support::flag::Flag;
 use crate::support::format as fmt;
 
 /// The contour levels (two-sided p) and their fills, lightest first.
@@ -81,12 +83,18 @@ impl Funnel {
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let fu = Funnel::of(report);
     let (residuals, ratio_axis, z, centre) = (fu.residuals, fu.ratio_axis, fu.z, fu.centre);
+    let k = super::text_scale(opts.font_size);
     let width = f64::from(opts.width.unwrap_or(820));
-    let height = f64::from(opts.height.unwrap_or(640));
     let margin = 18.0;
+    let title = if residuals {
+        "Residuals against their standard error"
+    } else {
+        "Effects against their standard error"
+    };
+    let heading = Heading::new(report, title, (width, margin), k);
     let cap_lines: Vec<String> = caption(report, opts, &fu)
         .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .flat_map(|c| wrap(c, size::SMALL * k, width - 2.0 * margin))
         .collect();
 
     // x range: the studies, the region at the largest SE, and 0.
@@ -100,26 +108,27 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     hi = hi.max(centre + z * se_bottom).max(0.0);
     let pad = 0.04 * (hi - lo).max(1e-6);
     let xa = Axis::new(lo - pad, hi + pad, ratio_axis, 8).snapped();
-    let top = 92.0;
-    let legend_h = if opts.contours { 24.0 } else { 0.0 };
-    let bottom = 70.0 + legend_h + 17.0 * cap_lines.len() as f64;
-    if height - top - bottom < 120.0 {
-        return Err(crate::error::Error::usage(
-            Flag::Height,
-            format!(
-                "{height} pixels leave no room for the funnel plot; use at least {:.0}",
-                top + bottom + 120.0
-            ),
-        ));
-    }
-    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, true);
-    let mut sc = Scene::new(width as u32, height as u32);
-    let title = if residuals {
-        "Residuals against their standard error"
+    let legend_rows = if opts.contours {
+        legend_rows(width - 2.0 * margin, k)
     } else {
-        "Effects against their standard error"
+        Vec::new()
     };
-    super::heading(&mut sc, report, title, width, margin);
+    let legend_h = 24.0 * k * legend_rows.len() as f64;
+    let page = ChartPage {
+        plot: "funnel plot",
+        width,
+        height: opts.height,
+        default_height: 640.0,
+        margin,
+        top: 92.0 * k + heading.extra(),
+        bottom: (70.0 + 17.0 * cap_lines.len() as f64) * k + legend_h,
+        min_left: 0.0,
+        k,
+    };
+    let x_title = x_title(report, &fu);
+    let (f, height) = Frame::in_page(&page, xa, ya, true, (&x_title, "standard error"))?;
+    let mut sc = Scene::new(width as u32, height as u32);
+    heading.draw(&mut sc);
     if opts.contours {
         contours(&mut sc, &f);
     } else {
@@ -127,13 +136,13 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     }
     region(&mut sc, &f, &fu, opts.contours);
     points(&mut sc, &f, &fu);
-    f.axes(&mut sc, &x_title(report, &fu), "standard error");
-    let mut cy = f.y1 + 64.0;
+    f.axes(&mut sc);
+    let mut cy = f.below();
     if opts.contours {
-        legend(&mut sc, margin, cy);
+        legend(&mut sc, &legend_rows, (margin, cy), k);
         cy += legend_h;
     }
-    super::caption(&mut sc, &cap_lines, margin, cy);
+    super::caption_scaled(&mut sc, &cap_lines, (margin, cy), k);
     Ok(sc)
 }
 
@@ -300,23 +309,66 @@ fn points(sc: &mut Scene, f: &Frame, fu: &Funnel) {
     }
 }
 
-/// The legend of the contours: one swatch and p-value range per band.
-fn legend(sc: &mut Scene, margin: f64, cy: f64) {
-    let mut x = margin;
-    for (_, fill, label) in CONTOURS {
-        sc.rect(x, cy - 7.0, x + 22.0, cy + 7.0, fill);
-        sc.poly(
-            vec![
-                (x, cy - 7.0),
-                (x + 22.0, cy - 7.0),
-                (x + 22.0, cy + 7.0),
-                (x, cy + 7.0),
-            ],
-            None,
-            Some((MUTED, 1)),
-        );
-        sc.text((x + 28.0, cy), label, size::SMALL, INK, Align::Left);
-        x += 40.0 + super::scene::text_width(label, size::SMALL);
+/// The legend's entries: a swatch and p-value range per band, then the
+/// white area's (None for no swatch).
+fn legend_entries() -> Vec<(Option<Rgb>, &'static str)> {
+    CONTOURS
+        .iter()
+        .map(|(_, fill, label)| (Some(*fill), *label))
+        .chain([(None, "white: p ≥ 0.10")])
+        .collect()
+}
+
+/// Width of an entry: a swatch entry's swatch, its text and the gap after it.
+fn entry_width(e: &(Option<Rgb>, &str), k: f64) -> f64 {
+    let text = super::scene::text_width(e.1, size::SMALL * k);
+    match e.0 {
+        Some(_) => 40.0 * k + text,
+        None => text,
     }
-    sc.text((x, cy), "white: p ≥ 0.10", size::SMALL, INK, Align::Left);
+}
+
+/// The legend's entries (indices into [`legend_entries`]) in rows no wider than `max`.
+fn legend_rows(max: f64, k: f64) -> Vec<Vec<usize>> {
+    let mut rows: Vec<Vec<usize>> = vec![Vec::new()];
+    let mut used = 0.0;
+    for (i, e) in legend_entries().iter().enumerate() {
+        let w = entry_width(e, k);
+        let row = rows.last_mut().expect("one row at least");
+        if !row.is_empty() && used + w > max {
+            rows.push(vec![i]);
+            used = w;
+        } else {
+            row.push(i);
+            used += w;
+        }
+    }
+    rows
+}
+
+/// The legend of the contours: one swatch and p-value range per band, in
+/// `rows` 24 pixels apart (times `k`), the first centred at `cy`.
+fn legend(sc: &mut Scene, rows: &[Vec<usize>], (margin, mut cy): (f64, f64), k: f64) {
+    let entries = legend_entries();
+    let small = size::SMALL * k;
+    for row in rows {
+        let mut x = margin;
+        for &i in row {
+            let e = entries[i];
+            if let Some(fill) = e.0 {
+                let (h, w) = (7.0 * k, 22.0 * k);
+                sc.rect(x, cy - h, x + w, cy + h, fill);
+                sc.poly(
+                    vec![(x, cy - h), (x + w, cy - h), (x + w, cy + h), (x, cy + h)],
+                    None,
+                    Some((MUTED, 1)),
+                );
+                sc.text((x + 28.0 * k, cy), e.1, small, INK, Align::Left);
+            } else {
+                sc.text((x, cy), e.1, small, INK, Align::Left);
+            }
+            x += entry_width(&e, k);
+        }
+        cy += 24.0 * k;
+    }
 }

@@ -6,8 +6,9 @@
 //! corner inside both is shaded. Flagged studies are drawn in the accent
 //! colour and named.
 
+use super::axis::ChartPage;
 use super::palette::*;
-use super::{model_line, size, wrap, Align, Axis, Frame, PlotOptions, Scene};
+use super::{model_line, size, wrap, Align, Axis, Frame, Heading, PlotOptions, Scene};
 use crate::error::{Error, Result};
 use crate::result::FitReport;
 use crate::support::flag::Flag;
@@ -47,12 +48,18 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             })
         })
         .collect();
+    let k = super::text_scale(opts.font_size);
     let width = f64::from(opts.width.unwrap_or(820));
-    let height = f64::from(opts.height.unwrap_or(620));
     let margin = 18.0;
+    let title = if has_mods {
+        "How far each study moves the moderator coefficients, against its pull"
+    } else {
+        "How far each study moves the average, against its pull"
+    };
+    let heading = Heading::new(report, title, (width, margin), k);
     let cap_lines: Vec<String> = caption(report, inf.len() - points.len())
         .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .flat_map(|c| wrap(c, size::SMALL * k, width - 2.0 * margin))
         .collect();
     let cut_y = rules.coefficient_shift_se;
     let cut_x = rules.leverage;
@@ -60,25 +67,26 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let y_hi = points.iter().map(|p| p.shift.abs()).fold(cut_y, f64::max) * 1.15;
     let xa = Axis::new(0.0, x_hi, false, 6).snapped();
     let ya = Axis::new(-y_hi, y_hi, false, 6).snapped();
-    let top = 92.0;
-    let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
-    if height - top - bottom < 120.0 {
-        return Err(Error::usage(
-            Flag::Height,
-            format!(
-                "{height} pixels leave no room for the influence plot; use at least {:.0}",
-                top + bottom + 120.0
-            ),
-        ));
-    }
-    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, false);
-    let mut sc = Scene::new(width as u32, height as u32);
-    let title = if has_mods {
-        "How far each study moves the moderator coefficients, against its pull"
-    } else {
-        "How far each study moves the average, against its pull"
+    let page = ChartPage {
+        plot: "influence plot",
+        width,
+        height: opts.height,
+        default_height: 620.0,
+        margin,
+        top: 92.0 * k + heading.extra(),
+        bottom: (70.0 + 17.0 * cap_lines.len() as f64) * k,
+        min_left: 0.0,
+        k,
     };
-    super::heading(&mut sc, report, title, width, margin);
+    let y_title = if has_mods {
+        "largest move of a moderator coefficient when left out (standard errors)"
+    } else {
+        "move of the average when left out (standard errors)"
+    };
+    let titles = ("leverage (pull on its own fitted value)", y_title);
+    let (f, height) = Frame::in_page(&page, xa, ya, false, titles)?;
+    let mut sc = Scene::new(width as u32, height as u32);
+    heading.draw(&mut sc);
     f.grid(&mut sc);
     // The quiet corner: little pull and little move.
     sc.rect(
@@ -115,7 +123,23 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             Some((PAPER, 1)),
         );
     }
-    for p in points.iter().filter(|p| p.flagged) {
+    let flagged: Vec<&Point> = points.iter().filter(|p| p.flagged).collect();
+    flagged_points(&mut sc, &f, &flagged, margin);
+    f.axes(&mut sc);
+    super::caption_scaled(&mut sc, &cap_lines, (margin, f.below()), k);
+    Ok(sc)
+}
+
+/// The flagged studies `flagged`: each a diamond with its name beside it, to
+/// the right when it fits inside the plot area, else to the left, moved up
+/// or down by up to six lines (with a leader to its point) when that place
+/// is taken by a name already placed; a name too long for its side is shortened
+/// keeping both ends.
+fn flagged_points(sc: &mut Scene, f: &Frame, flagged: &[&Point], margin: f64) {
+    let small = size::SMALL * f.k;
+    let line = super::font::em(small) * 1.3;
+    let mut placed: Vec<(f64, f64, f64, f64)> = Vec::new();
+    for p in flagged {
         let at = (f.x(p.leverage), f.y(p.shift));
         sc.poly(
             vec![
@@ -127,23 +151,50 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             Some((POOLED, 1.0)),
             Some((PAPER, 1)),
         );
-        let label = super::scene::fit_middle(&p.label, size::SMALL, 180.0);
-        let right = at.0 + 10.0 + super::scene::text_width(&label, size::SMALL) < f.x1;
-        let (x, align) = if right {
-            (at.0 + 10.0, Align::Left)
-        } else {
-            (at.0 - 10.0, Align::Right)
+        // At most 180 pixels (times the text scale), and no wider than the
+        // room on the wider side of the point.
+        let room = (f.x1 - at.0).max(at.0 - margin) - 10.0;
+        let label = super::scene::fit_middle(&p.label, small, (180.0 * f.k).min(room));
+        let w = super::scene::text_width(&label, small);
+        let right = at.0 + 10.0 + w < f.x1;
+        let sides: &[bool] = if right { &[true, false] } else { &[false] };
+        let box_at = |right: bool, dy: f64| {
+            let (x0, x1) = if right {
+                (at.0 + 10.0, at.0 + 10.0 + w)
+            } else {
+                (at.0 - 10.0 - w, at.0 - 10.0)
+            };
+            let y = at.1 + dy;
+            (x0, y - line / 2.0, x1, y + line / 2.0)
         };
-        sc.text((x, at.1), label, size::SMALL, INK, align);
+        let free = |b: (f64, f64, f64, f64)| {
+            b.0 >= margin
+                && b.1 >= f.y0
+                && b.3 <= f.y1
+                && placed
+                    .iter()
+                    .all(|q| b.2 <= q.0 || q.2 <= b.0 || b.3 <= q.1 || q.3 <= b.1)
+        };
+        // Up and down by up to six lines, nearest first.
+        let choice = (0..13)
+            .map(|i: i32| f64::from(if i % 2 == 1 { -(i + 1) / 2 } else { i / 2 }))
+            .flat_map(|d| sides.iter().map(move |&r| (r, d * line)))
+            .find(|&(r, dy)| free(box_at(r, dy)))
+            .unwrap_or((right, 0.0));
+        let (r, dy) = choice;
+        let b = box_at(r, dy);
+        placed.push(b);
+        let (x, align) = if r {
+            (b.0, Align::Left)
+        } else {
+            (b.2, Align::Right)
+        };
+        if dy != 0.0 {
+            let end = if r { b.0 - 2.0 } else { b.2 + 2.0 };
+            sc.line(vec![at, (end, at.1 + dy)], MUTED, 1);
+        }
+        sc.text((x, at.1 + dy), label, small, INK, align);
     }
-    let y_title = if has_mods {
-        "largest move of a moderator coefficient when left out (standard errors)"
-    } else {
-        "move of the average when left out (standard errors)"
-    };
-    f.axes(&mut sc, "leverage (pull on its own fitted value)", y_title);
-    super::caption(&mut sc, &cap_lines, margin, f.y1 + 64.0);
-    Ok(sc)
 }
 
 /// The caption's sentences (before wrapping).

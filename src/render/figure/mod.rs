@@ -156,8 +156,11 @@ pub struct PlotOptions {
     pub columns: Vec<String>,
     /// How the forest plot's rows are grouped.
     pub group_by: GroupBy,
-    /// Size of the forest plot's row text in points (None: from the row
-    /// height); its other text keeps its proportions to it.
+    /// Size of every figure's ordinary text in points, the em at the
+    /// figure's physical size (None: the default sizes; see [`text_scale`]):
+    /// the forest plot's row text, the other figures' tick labels, legends
+    /// and captions. Titles, axis titles and headers keep their proportions
+    /// to it, and the layouts make room for it.
     pub font_size: Option<f64>,
 }
 
@@ -200,11 +203,12 @@ pub const DPI_RANGE: (u32, u32) = (36, 1200);
 /// encoding fails; [`Error::Usage`] naming `flag` for a PNG of more than
 /// [`export::MAX_PNG_PIXELS`] pixels.
 pub fn encode(scene: &Scene, format: Format, dpi: u32, flag: Flag) -> Result<Vec<u8>> {
-    let svg = svg::standalone(scene)?;
     match format {
-        Format::Svg => Ok(svg.into_bytes()),
-        Format::Png => export::png(&svg, scene.width, scene.height, dpi, flag),
-        Format::Pdf => export::pdf(&svg),
+        Format::Svg => Ok(svg::standalone(scene)?.into_bytes()),
+        // The PNG is drawn strip by strip from the scene's SVG, each strip
+        // from the elements that reach it (see `export::png`).
+        Format::Png => export::png(scene, dpi, flag),
+        Format::Pdf => export::pdf(&svg::standalone(scene)?),
     }
 }
 
@@ -407,39 +411,106 @@ pub fn page_figures(
 
 // ------------------------------------------------------------- shared look
 
-/// The title (shortened to fit) and the subtitle naming the measure and the
-/// input file, at the top left of every plot.
-pub(crate) fn heading(sc: &mut Scene, report: &FitReport, title: &str, width: f64, margin: f64) {
-    heading_scaled(sc, report, title, (width, margin), 1.0);
+/// The title and the subtitle naming the measure and the input file, at
+/// the top left of every plot, each wrapped to the page's width (a title
+/// line every 24 pixels, a subtitle line every 17, times the text scale).
+pub(crate) struct Heading {
+    title: Vec<String>,
+    subtitle: Vec<String>,
+    margin: f64,
+    k: f64,
 }
 
-/// [`heading`] with its text sizes and positions times `scale` (`--font-size`).
-pub(crate) fn heading_scaled(
-    sc: &mut Scene,
-    report: &FitReport,
-    title: &str,
-    (width, margin): (f64, f64),
-    scale: f64,
-) {
-    let fit = |text: &str, size: f64| scene::fit_text(text, size, width - 2.0 * margin);
-    let (title_fs, small) = (size::TITLE * scale, size::SMALL * scale);
-    sc.text(
-        (margin, 20.0 * scale),
-        fit(title, title_fs),
-        title_fs,
-        palette::INK,
-        Align::Left,
-    );
-    sc.text(
-        (margin, 44.0 * scale),
-        fit(
-            &format!("{} · {}", report.measure.description, report.input.file),
-            small,
-        ),
-        small,
-        palette::MUTED,
-        Align::Left,
-    );
+impl Heading {
+    /// The heading of a page `width` wide with side margins `margin`, its
+    /// text sizes and positions times `k` ([`text_scale`]).
+    pub(crate) fn new(
+        report: &FitReport,
+        title: &str,
+        (width, margin): (f64, f64),
+        k: f64,
+    ) -> Heading {
+        let max = width - 2.0 * margin;
+        let subtitle = format!("{} · {}", report.measure.description, report.input.file);
+        Heading {
+            title: wrap_or_fit(title, size::TITLE * k, max),
+            subtitle: wrap_or_fit(&subtitle, size::SMALL * k, max),
+            margin,
+            k,
+        }
+    }
+
+    /// How much taller than one title line and one subtitle line it is.
+    pub(crate) fn extra(&self) -> f64 {
+        let k = self.k;
+        24.0 * k * (self.title.len() - 1) as f64 + 17.0 * k * (self.subtitle.len() - 1) as f64
+    }
+
+    /// Draws it.
+    pub(crate) fn draw(&self, sc: &mut Scene) {
+        let (k, margin) = (self.k, self.margin);
+        let mut y = 20.0 * k;
+        for line in &self.title {
+            sc.text(
+                (margin, y),
+                line.clone(),
+                size::TITLE * k,
+                palette::INK,
+                Align::Left,
+            );
+            y += 24.0 * k;
+        }
+        let mut y = 44.0 * k + 24.0 * k * (self.title.len() - 1) as f64;
+        for line in &self.subtitle {
+            sc.text(
+                (margin, y),
+                line.clone(),
+                size::SMALL * k,
+                palette::MUTED,
+                Align::Left,
+            );
+            y += 17.0 * k;
+        }
+    }
+}
+
+/// `text` wrapped to lines no wider than `max` at `size`, a word wider
+/// than `max` shortened in the middle (keeping both ends, such as a file
+/// path's folder and name); at least one line.
+pub(crate) fn wrap_or_fit(text: &str, size: f64, max: f64) -> Vec<String> {
+    let mut lines: Vec<String> = wrap(text, size, max)
+        .into_iter()
+        .map(|l| scene::fit_middle(&l, size, max))
+        .collect();
+    if lines.is_empty() {
+        lines.push(String::new());
+    }
+    lines
+}
+
+/// The em of the figures' ordinary text (tick labels, legends, captions)
+/// when `--font-size` is not given, in points: [`size::SMALL`] / 1.24
+/// pixels at 96 pixels per inch, 72 points per inch, so 7.56 points.
+pub const DEFAULT_TEXT_PT: f64 = size::SMALL / 1.24 * 72.0 / 96.0;
+
+/// The factor by which a figure's text sizes (and the room around its
+/// text) are multiplied for `--font-size PT`: PT is the em, in points at
+/// the figure's physical size, of its ordinary text (the forest plot's row
+/// text, the other figures' tick labels, legends and captions), so the
+/// factor is PT / [`DEFAULT_TEXT_PT`]; 1 without `--font-size`.
+pub fn text_scale(font_size: Option<f64>) -> f64 {
+    font_size.map_or(1.0, |pt| pt / DEFAULT_TEXT_PT)
+}
+
+/// The scene text size (a line height in pixels; the em is `size / 1.24`,
+/// see [`font::em`]) of text whose em is `pt` points at 96 pixels per inch.
+pub(crate) fn size_of_pt(pt: f64) -> f64 {
+    pt * export::CSS_DPI / 72.0 * 1.24
+}
+
+/// The em in points of text of scene size `size` (inverse of [`size_of_pt`]).
+pub(crate) fn pt_of_size(size: f64) -> f64 {
+    size / 1.24 * 72.0 / export::CSS_DPI
 }
 
 /// The palette (Okabe & Ito's colour-blind-safe set, plus greys). Every
@@ -527,11 +598,6 @@ fn capitalised(text: &str) -> String {
         Some(c) => c.to_uppercase().chain(chars).collect(),
         None => String::new(),
     }
-}
-
-/// Draws caption lines at the left margin, 17 pixels apart, the first at `cy`.
-pub(crate) fn caption(sc: &mut Scene, lines: &[String], margin: f64, cy: f64) {
-    caption_scaled(sc, lines, (margin, cy), 1.0);
 }
 
 /// [`caption`] with its text size and line spacing times `scale` (`--font-size`).

@@ -2,26 +2,28 @@
 //! the number of sites (the report's table), with the target power as a
 //! dashed line and the planned k marked.
 
-use super::scene::{fit_text, Align, Scene};
-use super::{encode, encode_inline, palette, size, Axis, Format, Frame, PageFigure};
+use super::axis::ChartPage;
+use super::scene::{text_width, Align, Scene};
+use super::{encode, encode_inline, palette, size, wrap_or_fit, Axis, Format, Frame, PageFigure};
 use crate::error::Result;
 use crate::result::plan::{PlanReport, PlanTest};
 use crate::support::flag::Flag;
 
 /// The power curve over k (from the report's table) as SVG, PNG (at `dpi`)
-/// or PDF, with the target power as a dashed line and the planned k marked.
+/// or PDF, with the target power as a dashed line and the planned k marked;
+/// `font_size` as `--font-size` ([`super::text_scale`]).
 ///
 /// # Errors
 /// Drawing errors.
-pub fn plot(r: &PlanReport, format: Format, dpi: u32) -> Result<Vec<u8>> {
-    encode(&scene(r), format, dpi, Flag::Curve)
+pub fn plot(r: &PlanReport, format: Format, dpi: u32, font_size: Option<f64>) -> Result<Vec<u8>> {
+    encode(&scene(r, font_size)?, format, dpi, Flag::Curve)
 }
 
 /// The power curve as an inline SVG figure for the HTML report.
 ///
 /// # Errors
 /// Drawing errors.
-pub fn page_figure(r: &PlanReport) -> Result<PageFigure> {
+pub fn page_figure(r: &PlanReport, font_size: Option<f64>) -> Result<PageFigure> {
     Ok(PageFigure {
         kind: "power",
         title: "Power of the moderator test by number of sites".into(),
@@ -31,56 +33,106 @@ pub fn page_figure(r: &PlanReport) -> Result<PageFigure> {
             r.table.last().map_or(r.k, |p| p.k),
             r.k
         ),
-        svg: encode_inline(&scene(r)),
+        svg: encode_inline(&scene(r, font_size)?),
     })
 }
 
-/// The power curve as a scene.
-pub fn scene(r: &PlanReport) -> Scene {
-    let (w, h) = (720u32, 460u32);
-    let mut sc = Scene::new(w, h);
-    sc.rect(0.0, 0.0, w as f64, h as f64, palette::PAPER);
+/// The power curve as a scene, its text sizes times
+/// [`super::text_scale`]`(font_size)`: 720 × 460 pixels, taller when
+/// larger text needs the room.
+///
+/// # Errors
+/// [`crate::error::Error::Usage`] naming `--width` when text this large
+/// leaves no room for the plot area (not at any accepted `--font-size`).
+pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
+    let k = super::text_scale(font_size);
+    let w = 720.0;
+    let margin = 20.0;
+    let fit = |text: &str, size: f64| wrap_or_fit(text, size, w - 2.0 * margin);
+    let title = fit(
+        "Power of the moderator test by number of sites",
+        size::TITLE * k,
+    );
+    let subtitle = fit(
+        match r.test {
+            PlanTest::Z => "z test: exact power from the noncentral chi-square",
+            PlanTest::Kh if r.simulation.is_some() || r.k_needed_simulated.is_some() => {
+                "Knapp–Hartung test: curve from the noncentral F approximation; circles simulated"
+            }
+            PlanTest::Kh => {
+                "Knapp–Hartung test: noncentral F approximation (a quick estimate, not simulated)"
+            }
+        },
+        size::SMALL * k,
+    );
+    let title_lines = title.len();
+    let head_extra = 24.0 * k * (title_lines - 1) as f64 + 17.0 * k * (subtitle.len() - 1) as f64;
     let kmin = r.table.first().map_or(3, |p| p.k) as f64;
     let kmax = r.table.last().map_or(10, |p| p.k) as f64;
-    let frame = Frame {
-        x0: 80.0,
-        y0: 90.0,
-        x1: w as f64 - 30.0,
-        y1: h as f64 - 70.0,
-        xa: Axis::new(kmin, kmax, false, 8).snapped(),
-        ya: Axis::new(0.0, 1.0, false, 5).snapped(),
-        y_down: false,
+    let xa = Axis::new(kmin, kmax, false, 8).snapped();
+    let sims = simulated(r, (xa.lo, xa.hi));
+    let key = key_text(&sims);
+    let frame_at = |top: f64| {
+        let page = ChartPage {
+            plot: "power curve",
+            width: w,
+            height: None,
+            default_height: 460.0,
+            margin,
+            top,
+            bottom: 70.0 * k,
+            min_left: 80.0,
+            k,
+        };
+        Frame::in_page(
+            &page,
+            xa.clone(),
+            Axis::new(0.0, 1.0, false, 5).snapped(),
+            false,
+            ("number of sites k", "power"),
+        )
     };
+    // The key shares the line of the y title when both fit, else it gets
+    // lines of its own above it (wrapped to the width).
+    let top = 90.0 * k + head_extra;
+    let (mut frame, mut h) = frame_at(top)?;
+    let small = size::SMALL * k;
+    let beside =
+        frame.x0 - 8.0 + text_width("power", size::LABEL * k) + 16.0 * k + text_width(&key, small)
+            <= frame.x1;
+    let key_lines = if beside {
+        vec![key]
+    } else {
+        wrap_or_fit(&key, small, w - 2.0 * margin)
+    };
+    if !beside {
+        (frame, h) = frame_at(top + 17.0 * k * key_lines.len() as f64)?;
+    }
+    let mut sc = Scene::new(w as u32, h as u32);
+    sc.rect(0.0, 0.0, w, h, palette::PAPER);
     frame.grid(&mut sc);
-    let fit = |text: &str, size: f64| fit_text(text, size, w as f64 - 2.0 * 20.0);
-    sc.text(
-        (20.0, 20.0),
-        fit(
-            "Power of the moderator test by number of sites",
-            size::TITLE,
-        ),
-        size::TITLE,
-        palette::INK,
-        Align::Left,
-    );
-    sc.text(
-        (20.0, 44.0),
-        fit(
-            match r.test {
-                PlanTest::Z => "z test: exact power from the noncentral chi-square",
-                PlanTest::Kh if r.simulation.is_some() || r.k_needed_simulated.is_some() => {
-                    "Knapp–Hartung test: curve from the noncentral F approximation; circles simulated"
-                }
-                PlanTest::Kh => {
-                    "Knapp–Hartung test: noncentral F approximation (a quick estimate, not simulated)"
-                }
-            },
-            size::SMALL,
-        ),
-        size::SMALL,
-        palette::MUTED,
-        Align::Left,
-    );
+    let mut y = 20.0 * k;
+    for line in title {
+        sc.text(
+            (margin, y),
+            line,
+            size::TITLE * k,
+            palette::INK,
+            Align::Left,
+        );
+        y += 24.0 * k;
+    }
+    let mut y = 44.0 * k + 24.0 * k * (title_lines - 1) as f64;
+    for line in subtitle {
+        sc.text(
+            (margin, y),
+            line,
+            size::SMALL * k,
+            palette::MUTED,
+            Align::Left,
+        );
+        y += 17.0 * k;
+    }
     if let Some(t) = r.target_power {
         let y = frame.y(t);
         sc.dashed(
@@ -90,9 +142,9 @@ pub fn scene(r: &PlanReport) -> Scene {
             (6.0, 4.0),
         );
         sc.text(
-            (frame.x1, y - 10.0),
+            (frame.x1, y - 10.0 * k),
             format!("target {t}"),
-            size::SMALL,
+            size::SMALL * k,
             palette::MUTED,
             Align::Right,
         );
@@ -114,21 +166,30 @@ pub fn scene(r: &PlanReport) -> Scene {
         (3.0, 3.0),
     );
     sc.text(
-        (x + 4.0, frame.y1 - 12.0),
+        (x + 4.0, frame.y1 - 12.0 * k),
         format!("planned k = {}", r.k),
-        size::SMALL,
+        size::SMALL * k,
         palette::POOLED,
         Align::Left,
     );
-    solved_and_simulated(&mut sc, r, &frame);
-    frame.axes(&mut sc, "number of sites k", "power");
-    sc
+    solved_and_simulated(&mut sc, r, &frame, &sims);
+    let n = key_lines.len();
+    for (i, line) in key_lines.into_iter().enumerate() {
+        let (x, y, align) = if beside {
+            (frame.x1, frame.y0 - 16.0 * k, Align::Right)
+        } else {
+            let up = 18.0 * k + 17.0 * k * (n - i) as f64;
+            (margin, frame.y0 - up, Align::Left)
+        };
+        sc.text((x, y), line, small, palette::MUTED, align);
+    }
+    frame.axes(&mut sc);
+    Ok(sc)
 }
 
-/// The solved k (a diamond on the target line) and the simulated powers
-/// (open circles with ±1.96 Monte-Carlo SE bars), with a key when there are any.
-fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame) {
-    let inside = |k: usize| (frame.xa.lo..=frame.xa.hi).contains(&(k as f64));
+/// The simulated powers inside the axis's range `lo..=hi` of k: k, power
+/// and its Monte-Carlo standard error.
+fn simulated(r: &PlanReport, (lo, hi): (f64, f64)) -> Vec<(usize, f64, f64)> {
     let mut sims: Vec<(usize, f64, f64)> = Vec::new();
     if let Some(s) = &r.simulation {
         sims.push((r.k, s.power, s.monte_carlo_se));
@@ -140,8 +201,24 @@ fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame) {
                 .map(|e| (e.k, e.power, e.monte_carlo_se)),
         );
     }
-    sims.retain(|s| inside(s.0));
-    for &(k, p, se) in &sims {
+    sims.retain(|s| (lo..=hi).contains(&(s.0 as f64)));
+    sims
+}
+
+/// The key above the plot.
+fn key_text(sims: &[(usize, f64, f64)]) -> String {
+    let mut key = "● curve: closed-form power by k".to_string();
+    if !sims.is_empty() {
+        key.push_str("   ○ simulated power (bar: ±1.96 Monte-Carlo SE)");
+    }
+    key
+}
+
+/// The solved k (a diamond on the target line) and the simulated powers
+/// `sims` (open circles with ±1.96 Monte-Carlo SE bars).
+fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame, sims: &[(usize, f64, f64)]) {
+    let inside = |k: usize| (frame.xa.lo..=frame.xa.hi).contains(&(k as f64));
+    for &(k, p, se) in sims {
         let x = frame.x(k as f64);
         let (lo, hi) = ((p - 1.96 * se).max(0.0), (p + 1.96 * se).min(1.0));
         sc.line(vec![(x, frame.y(lo)), (x, frame.y(hi))], palette::FIT, 2);
@@ -162,24 +239,12 @@ fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame) {
                 Some((palette::INK, 1)),
             );
             sc.text(
-                (x + 9.0, y + 12.0),
+                (x + 9.0, y + 12.0 * frame.k),
                 format!("k needed = {kn}"),
-                size::SMALL,
+                size::SMALL * frame.k,
                 palette::POOLED,
                 Align::Left,
             );
         }
     }
-    let key_y = frame.y0 - 16.0;
-    let mut key = "● curve: closed-form power by k".to_string();
-    if !sims.is_empty() {
-        key.push_str("   ○ simulated power (bar: ±1.96 Monte-Carlo SE)");
-    }
-    sc.text(
-        (frame.x1, key_y),
-        key,
-        size::SMALL,
-        palette::MUTED,
-        Align::Right,
-    );
 }

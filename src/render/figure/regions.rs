@@ -68,9 +68,9 @@ pub(crate) fn shade(sc: &mut Scene, f: &Frame, report: &FitReport, name: &str) {
         let x = f.x(*b);
         sc.dashed(vec![(x, f.y0), (x, f.y1)], GROUP, 2, (2.0, 3.0));
         sc.text(
-            (x, f.y0 - 6.0),
+            (x, f.y0 - 6.0 * f.k),
             crate::support::format::short(*b),
-            size::SMALL,
+            size::SMALL * f.k,
             MUTED,
             Align::Center,
         );

@@ -59,6 +59,34 @@ pub(crate) enum Shape {
     },
 }
 
+impl Shape {
+    /// The rows (CSS pixels, top and bottom) the shape can paint,
+    /// generously: strokes with their joins (a miter reaches at most twice
+    /// the line width from a corner), text a whole line height (`size`)
+    /// above and below its centre, plus 2 pixels for antialiasing.
+    pub(crate) fn rows(&self) -> (f64, f64) {
+        let span = |pts: &[(f64, f64)], reach: f64| {
+            let (lo, hi) = pts
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
+                    (lo.min(p.1), hi.max(p.1))
+                });
+            (lo - reach - 2.0, hi + reach + 2.0)
+        };
+        match self {
+            Shape::Line { pts, width, .. } => span(pts, 2.0 * f64::from(*width)),
+            Shape::Poly { pts, stroke, .. } => {
+                span(pts, 2.0 * stroke.map_or(0.0, |s| f64::from(s.1)))
+            }
+            Shape::Circle { c, r, stroke, .. } => {
+                let reach = r.max(0.5) + stroke.map_or(0.0, |s| f64::from(s.1));
+                (c.1 - reach - 2.0, c.1 + reach + 2.0)
+            }
+            Shape::Text { at, size, .. } => (at.1 - size - 2.0, at.1 + size + 2.0),
+        }
+    }
+}
+
 /// A picture: its size and its shapes, drawn in order.
 #[derive(Debug, Clone)]
 pub struct Scene {

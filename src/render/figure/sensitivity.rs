@@ -6,8 +6,11 @@
 //! to the conclusion, and the verdict is written at its right.
 
 use super::palette::*;
+use super::scene::text_width;
 use super::scene::Rgb;
-use super::{model_line, size, wrap, Align, Axis, PlotOptions, Scene};
+use super::{
+    label_step, model_line, size, wrap, wrap_or_fit, Align, Axis, Heading, PlotOptions, Scene,
+};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{Adjustment, FitReport, SensitivityQuantity, SensitivityRow, Verdict};
@@ -66,19 +69,70 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
             ),
         ));
     };
-    let width = f64::from(opts.width.unwrap_or(860));
+    let k = super::text_scale(opts.font_size);
     let margin = 18.0;
+    let small = size::SMALL * k;
+    // The rung labels and verdicts are measured at the text's size; the
+    // plot area between them keeps at least 140 pixels.
+    let widest = |texts: &mut dyn Iterator<Item = &str>| {
+        texts.map(|t| text_width(t, small)).fold(0.0, f64::max)
+    };
+    let rows = || view.quantities.iter().flat_map(|q| &q.rows);
+    let label_w = LABEL_W.max(widest(&mut rows().map(|r| r.adjustment.label())) + 14.0);
+    let verdict_w = VERDICT_W.max(widest(&mut rows().map(|r| verdict_look(r.verdict).1)) + 16.0);
+    let need_w = 2.0 * margin + label_w + verdict_w + 140.0;
+    let width = match opts.width {
+        Some(w) if f64::from(w) < need_w => {
+            return Err(Error::usage(
+                Flag::Width,
+                format!(
+                    "{w} pixels leave no room for the sensitivity plot{}; use at least {need_w:.0}",
+                    if k == 1.0 {
+                        String::new()
+                    } else {
+                        format!(" at this {}", Flag::FontSize)
+                    }
+                ),
+            ))
+        }
+        Some(w) => f64::from(w),
+        None => 860f64.max(need_w.ceil()),
+    };
+    let lay = Ladder {
+        k,
+        margin,
+        x0: margin + label_w,
+        x1: width - margin - verdict_w,
+    };
+    let heading = Heading::new(
+        report,
+        "Estimates under each adjustment for small-study effects and selection",
+        (width, margin),
+        k,
+    );
     let cap: Vec<String> = caption(report)
         .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .flat_map(|c| wrap(c, small, width - 2.0 * margin))
+        .collect();
+    let titles: Vec<Vec<String>> = view
+        .quantities
+        .iter()
+        .map(|q| {
+            wrap_or_fit(
+                &panel_title(report, q),
+                size::LABEL * k,
+                width - 2.0 * margin,
+            )
+        })
         .collect();
     let panels_h: f64 = view
         .quantities
         .iter()
-        .map(|q| PANEL_EXTRA + RUNG * q.rows.len() as f64)
+        .zip(&titles)
+        .map(|(q, t)| lay.panel_height(q, t.len()))
         .sum();
-    let top = 78.0;
-    let need = top + panels_h + 20.0 + 17.0 * cap.len() as f64;
+    let top = 78.0 * k + heading.extra();
+    let need = top + panels_h + (20.0 + 17.0 * cap.len() as f64) * k;
     let height = match opts.height {
         Some(h) if f64::from(h) < need => {
             return Err(Error::usage(
@@ -92,54 +146,19 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         None => need.ceil(),
     };
     let mut sc = Scene::new(width as u32, height as u32);
-    super::heading(
-        &mut sc,
-        report,
-        "Estimates under each adjustment for small-study effects and selection",
-        width,
-        margin,
-    );
+    heading.draw(&mut sc);
     let mut y = top;
-    for q in &view.quantities {
-        y = panel(&mut sc, report, q, y, width, margin);
+    for (q, t) in view.quantities.iter().zip(&titles) {
+        y = lay.panel(&mut sc, report, q, t, y);
     }
-    super::caption(&mut sc, &cap, margin, y + 14.0);
+    super::caption_scaled(&mut sc, &cap, (margin, y + 14.0 * k), k);
     Ok(sc)
 }
 
-/// One panel; returns the y below it.
-fn panel(
-    sc: &mut Scene,
-    report: &FitReport,
-    q: &SensitivityQuantity,
-    y0: f64,
-    width: f64,
-    margin: f64,
-) -> f64 {
+/// The title of a panel.
+fn panel_title(report: &FitReport, q: &SensitivityQuantity) -> String {
     let ratio = report.measure.reading_scale == ReadingScale::Ratio && q.rows[0].reading.is_some();
-    let mut vals: Vec<Option<(f64, f64, f64)>> =
-        q.rows.iter().map(|r| plot_values(r, ratio)).collect();
-    let span = |vals: &[Option<(f64, f64, f64)>], null: f64| {
-        vals.iter()
-            .flatten()
-            .fold((null, null), |(lo, hi), (_, a, b)| (lo.min(*a), hi.max(*b)))
-    };
-    let (lo, hi) = span(&vals, 0.0);
-    // A narrow range of ratios (within a factor of about 1.5) reads better on
-    // a linear axis of the ratios themselves: a log axis would have one tick.
-    let log_axis = ratio && hi - lo > LOG_AXIS_MIN_SPAN;
-    let null: f64 = if ratio && !log_axis { 1.0 } else { 0.0 };
-    if ratio && !log_axis {
-        for v in vals.iter_mut().flatten() {
-            *v = (v.0.exp(), v.1.exp(), v.2.exp());
-        }
-    }
-    let (lo, hi) = span(&vals, null);
-    let pad = 0.05 * (hi - lo).max(1e-9);
-    let xa = Axis::new(lo - pad, hi + pad, log_axis, 6).snapped();
-    let (x0, x1) = (margin + LABEL_W, width - margin - VERDICT_W);
-    let px = |v: f64| x0 + (v - xa.lo) / (xa.hi - xa.lo) * (x1 - x0);
-    let title = if q.moderator {
+    if q.moderator {
         format!(
             "{}{}",
             q.quantity,
@@ -151,67 +170,134 @@ fn panel(
         )
     } else {
         format!("average effect ({})", super::measure_name(report))
-    };
-    sc.text((margin, y0 + 10.0), title, size::LABEL, INK, Align::Left);
-    let rows_top = y0 + 26.0;
-    let rows_bottom = rows_top + RUNG * q.rows.len() as f64;
-    if let Some((_, a, b)) = vals[0] {
-        sc.rect(px(a), rows_top, px(b), rows_bottom, BAND);
     }
-    if (xa.lo..=xa.hi).contains(&null) {
-        sc.dashed(
-            vec![(px(null), rows_top), (px(null), rows_bottom)],
-            MUTED,
-            1,
-            (2.0, 3.0),
-        );
+}
+
+/// The horizontal layout of the panels and the text scale.
+struct Ladder {
+    k: f64,
+    margin: f64,
+    /// Left and right ends of the value axis.
+    x0: f64,
+    x1: f64,
+}
+
+impl Ladder {
+    /// Height of a panel of `q` whose title has `title_lines` lines.
+    fn panel_height(&self, q: &SensitivityQuantity, title_lines: usize) -> f64 {
+        let k = self.k;
+        (PANEL_EXTRA + RUNG * q.rows.len() as f64 + 17.0 * (title_lines - 1) as f64) * k
     }
-    for (i, (row, v)) in q.rows.iter().zip(&vals).enumerate() {
-        let cy = rows_top + RUNG * (i as f64 + 0.5);
-        sc.text(
-            (x0 - 10.0, cy),
-            row.adjustment.label(),
-            size::SMALL,
-            INK,
-            Align::Right,
-        );
-        let (colour, words) = verdict_look(row.verdict);
-        match v {
-            Some((e, a, b)) => {
-                let clamp = |x: f64| px(x.clamp(xa.lo, xa.hi));
-                sc.line(vec![(clamp(*a), cy), (clamp(*b), cy)], colour, 2);
-                if row.adjustment == Adjustment::Unadjusted {
-                    let c = clamp(*e);
-                    sc.rect(c - 5.0, cy - 5.0, c + 5.0, cy + 5.0, INK);
-                } else {
-                    sc.circle((clamp(*e), cy), 5.0, Some((colour, 1.0)), Some((PAPER, 1)));
-                }
-                sc.text((x1 + 12.0, cy), words, size::SMALL, colour, Align::Left);
+
+    /// One panel with its title's lines `title`; returns the y below it.
+    fn panel(
+        &self,
+        sc: &mut Scene,
+        report: &FitReport,
+        q: &SensitivityQuantity,
+        title: &[String],
+        y0: f64,
+    ) -> f64 {
+        let (k, x0, x1) = (self.k, self.x0, self.x1);
+        let small = size::SMALL * k;
+        let ratio =
+            report.measure.reading_scale == ReadingScale::Ratio && q.rows[0].reading.is_some();
+        let mut vals: Vec<Option<(f64, f64, f64)>> =
+            q.rows.iter().map(|r| plot_values(r, ratio)).collect();
+        let span = |vals: &[Option<(f64, f64, f64)>], null: f64| {
+            vals.iter()
+                .flatten()
+                .fold((null, null), |(lo, hi), (_, a, b)| (lo.min(*a), hi.max(*b)))
+        };
+        let (lo, hi) = span(&vals, 0.0);
+        // A narrow range of ratios (within a factor of about 1.5) reads better on
+        // a linear axis of the ratios themselves: a log axis would have one tick.
+        let log_axis = ratio && hi - lo > LOG_AXIS_MIN_SPAN;
+        let null: f64 = if ratio && !log_axis { 1.0 } else { 0.0 };
+        if ratio && !log_axis {
+            for v in vals.iter_mut().flatten() {
+                *v = (v.0.exp(), v.1.exp(), v.2.exp());
             }
-            None => {
+        }
+        let (lo, hi) = span(&vals, null);
+        let pad = 0.05 * (hi - lo).max(1e-9);
+        let xa = Axis::new(lo - pad, hi + pad, log_axis, 6).snapped();
+        let px = |v: f64| x0 + (v - xa.lo) / (xa.hi - xa.lo) * (x1 - x0);
+        let extra = 17.0 * k * (title.len() - 1) as f64;
+        for (i, line) in title.iter().enumerate() {
+            let y = y0 + 10.0 * k + 17.0 * k * i as f64;
+            sc.text(
+                (self.margin, y),
+                line.clone(),
+                size::LABEL * k,
+                INK,
+                Align::Left,
+            );
+        }
+        let rows_top = y0 + 26.0 * k + extra;
+        let rung = RUNG * k;
+        let rows_bottom = rows_top + rung * q.rows.len() as f64;
+        if let Some((_, a, b)) = vals[0] {
+            sc.rect(px(a), rows_top, px(b), rows_bottom, BAND);
+        }
+        if (xa.lo..=xa.hi).contains(&null) {
+            sc.dashed(
+                vec![(px(null), rows_top), (px(null), rows_bottom)],
+                MUTED,
+                1,
+                (2.0, 3.0),
+            );
+        }
+        for (i, (row, v)) in q.rows.iter().zip(&vals).enumerate() {
+            let cy = rows_top + rung * (i as f64 + 0.5);
+            sc.text(
+                (x0 - 10.0, cy),
+                row.adjustment.label(),
+                small,
+                INK,
+                Align::Right,
+            );
+            let (colour, words) = verdict_look(row.verdict);
+            match v {
+                Some((e, a, b)) => {
+                    let clamp = |x: f64| px(x.clamp(xa.lo, xa.hi));
+                    sc.line(vec![(clamp(*a), cy), (clamp(*b), cy)], colour, 2);
+                    if row.adjustment == Adjustment::Unadjusted {
+                        let c = clamp(*e);
+                        sc.rect(c - 5.0, cy - 5.0, c + 5.0, cy + 5.0, INK);
+                    } else {
+                        sc.circle((clamp(*e), cy), 5.0, Some((colour, 1.0)), Some((PAPER, 1)));
+                    }
+                    sc.text((x1 + 12.0, cy), words, small, colour, Align::Left);
+                }
+                None => {
+                    sc.text(
+                        ((x0 + x1) / 2.0, cy),
+                        "not available",
+                        small,
+                        MUTED,
+                        Align::Center,
+                    );
+                }
+            }
+        }
+        sc.line(vec![(x0, rows_bottom), (x1, rows_bottom)], INK, 1);
+        let xs: Vec<f64> = xa.ticks.iter().map(|t| px(t.0)).collect();
+        let step = label_step(&xs, &xa.ticks, small, true);
+        for (i, ((_, label), x)) in xa.ticks.iter().zip(&xs).enumerate() {
+            sc.line(vec![(*x, rows_bottom), (*x, rows_bottom + 5.0)], INK, 1);
+            if i % step == 0 {
                 sc.text(
-                    ((x0 + x1) / 2.0, cy),
-                    "not available",
-                    size::SMALL,
-                    MUTED,
+                    (*x, rows_bottom + 5.0 + 10.0 * k),
+                    label.clone(),
+                    small,
+                    INK,
                     Align::Center,
                 );
             }
         }
+        rows_bottom + (PANEL_EXTRA - 26.0) * k
     }
-    sc.line(vec![(x0, rows_bottom), (x1, rows_bottom)], INK, 1);
-    for (v, label) in &xa.ticks {
-        let x = px(*v);
-        sc.line(vec![(x, rows_bottom), (x, rows_bottom + 5.0)], INK, 1);
-        sc.text(
-            (x, rows_bottom + 15.0),
-            label.clone(),
-            size::SMALL,
-            INK,
-            Align::Center,
-        );
-    }
-    rows_bottom + PANEL_EXTRA - 26.0
 }
 
 /// The caption's sentences (before wrapping).

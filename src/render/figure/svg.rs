@@ -36,13 +36,24 @@ pub(crate) fn standalone(scene: &Scene) -> Result<String> {
             font::font_face_rule(&chars)?
         )
     };
-    Ok(document(scene, true, &defs))
+    Ok(document(scene, true, &defs, None))
+}
+
+/// The scene as a standalone SVG document holding only the shapes that can
+/// paint rows `y0..y1` (CSS pixels, see `Shape::rows`), for drawing a PNG
+/// strip by strip: the same canvas, elements and attributes as
+/// [`standalone`], in the same order, without the font subset (the
+/// rasteriser has the whole bundled font), without the paper (the strip is
+/// cleared to it) and without the shapes that cannot reach those rows, so
+/// every strip reads only its own share.
+pub(crate) fn rows_only(scene: &Scene, (y0, y1): (f64, f64)) -> String {
+    document(scene, true, "", Some((y0, y1)))
 }
 
 /// The scene as an `<svg>` element for an HTML page: no namespace attribute
 /// (inline SVG in HTML needs none) and no font (the page carries it once).
 pub(crate) fn inline(scene: &Scene) -> String {
-    document(scene, false, "")
+    document(scene, false, "", None)
 }
 
 /// A number for an attribute: two decimals at most, no trailing zeros.
@@ -93,7 +104,7 @@ fn stroke_attrs(stroke: &Option<(Rgb, u32)>) -> String {
     }
 }
 
-fn document(scene: &Scene, namespace: bool, defs: &str) -> String {
+fn document(scene: &Scene, namespace: bool, defs: &str, rows: Option<(f64, f64)>) -> String {
     let (w, h) = (scene.width, scene.height);
     let mut out = String::with_capacity(200 + scene.shapes.len() * 120);
     let _ = writeln!(
@@ -106,12 +117,21 @@ fn document(scene: &Scene, namespace: bool, defs: &str) -> String {
         }
     );
     out.push_str(defs);
-    let _ = writeln!(
-        out,
-        "<rect x=\"0\" y=\"0\" width=\"{w}\" height=\"{h}\" fill=\"{}\"/>",
-        super::palette::PAPER.hex()
-    );
+    // The paper (a strip of a PNG is cleared to it before it is drawn).
+    if rows.is_none() {
+        let _ = writeln!(
+            out,
+            "<rect x=\"0\" y=\"0\" width=\"{w}\" height=\"{h}\" fill=\"{}\"/>",
+            super::palette::PAPER.hex()
+        );
+    }
     for s in &scene.shapes {
+        if let Some((y0, y1)) = rows {
+            let (top, bottom) = s.rows();
+            if bottom < y0 || top > y1 {
+                continue;
+            }
+        }
         shape(&mut out, s);
     }
     out.push_str("</svg>\n");

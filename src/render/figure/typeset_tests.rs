@@ -145,14 +145,7 @@ fn label_text_is_typeset_by_the_font_metrics_in_svg_png_and_pdf() {
     let sc = scene();
     let svg_text = svg::standalone(&sc).unwrap();
     // SVG and PNG: the same SVG rasterised by resvg (the PNG path).
-    let png_bytes = export::png(
-        &svg_text,
-        sc.width,
-        sc.height,
-        DPI,
-        crate::support::flag::Flag::Forest,
-    )
-    .unwrap();
+    let png_bytes = export::png(&sc, DPI, crate::support::flag::Flag::Forest).unwrap();
     let r = decode(&png_bytes);
     assert_eq!((r.w, r.h), (656, 156), "420 × 100 CSS pixels at 150 dpi");
     check("PNG", &r);

@@ -4,7 +4,7 @@
 
 use super::super::marks::{self, LevelMark};
 use super::super::palette::*;
-use super::super::scene::Rgb;
+use super::super::scene::{fit_middle, Rgb};
 use super::super::{size, Align, Axis, Frame, Scene};
 use super::View;
 use crate::result::{AtValue, CurvePoint, FitReport};
@@ -270,7 +270,16 @@ impl<'a> Bubbles<'a> {
             self.band_bar(sc, i, cx - 0.12 * band_w + off);
             self.study(sc, i, cx - 0.12 * band_w + off);
         }
-        sc.text((cx, f.y1 + 15.0), label, size::SMALL, INK, Align::Center);
+        // Each column's label keeps to its column (both ends kept when shortened).
+        let small = size::SMALL * f.k;
+        let label = fit_middle(label, small, band_w - 6.0);
+        sc.text(
+            (cx, f.y1 + 5.0 + 10.0 * f.k),
+            label,
+            small,
+            INK,
+            Align::Center,
+        );
         let gap = (0.2 * band_w / fits.len().max(1) as f64).min(28.0);
         for (n, fit) in fits.iter().enumerate() {
             let x = cx + 0.24 * band_w + gap * (n as f64 - (fits.len() as f64 - 1.0) / 2.0);

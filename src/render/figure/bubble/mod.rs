@@ -14,9 +14,10 @@
 mod draw;
 mod legend;
 
+use super::axis::ChartPage;
 use super::marks;
 use super::{decimals_for, effect_axis_title, model_line, size, wrap, Axis, Frame, PlotOptions};
-use super::{palette::GUIDE, Scene};
+use super::{palette::GUIDE, Heading, Scene};
 use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::result::{AtValue, FitReport, LevelCurve, ModeratorKind};
@@ -67,37 +68,48 @@ impl Split<'_> {
 pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
     let view = view(report, moderator(report, opts)?);
     let j = view.j;
+    let k = super::text_scale(opts.font_size);
     let width = f64::from(opts.width.unwrap_or(900));
-    let height = f64::from(opts.height.unwrap_or(620));
     let name = &report.model.moderators[j].name;
 
-    // Caption and legend first: their heights fix the plot area.
+    // Heading, caption and legend first: their heights fix the plot area.
     let margin = 18.0;
+    let heading = Heading::new(report, &format!("Effect by {name}"), (width, margin), k);
     let cap_lines: Vec<String> = caption(report, &view)
         .iter()
-        .flat_map(|c| wrap(c, size::SMALL, width - 2.0 * margin))
+        .flat_map(|c| wrap(c, size::SMALL * k, width - 2.0 * margin))
         .collect();
     let legend_rows = view
         .split
         .as_ref()
-        .map_or(Vec::new(), |s| legend::rows(s, width - 2.0 * margin));
-    let top = 92.0 + 20.0 * legend_rows.len() as f64;
-    let bottom = 70.0 + 17.0 * cap_lines.len() as f64;
-    if height - top - bottom < 120.0 {
-        return Err(Error::usage(
-            Flag::Height,
-            format!(
-                "{height} pixels leave no room for the bubble plot; use at least {:.0}",
-                top + bottom + 120.0
-            ),
-        ));
-    }
+        .map_or(Vec::new(), |s| legend::rows(s, width - 2.0 * margin, k));
+    let legend_y = 70.0 * k + heading.extra();
+    let top = 92.0 * k + heading.extra() + 20.0 * k * legend_rows.len() as f64;
+    let page = ChartPage {
+        plot: "bubble plot",
+        width,
+        height: opts.height,
+        default_height: 620.0,
+        margin,
+        top,
+        bottom: (70.0 + 17.0 * cap_lines.len() as f64) * k,
+        min_left: 0.0,
+        k,
+    };
     let (xa, ya) = (x_axis(report, &view), y_axis(report, &view));
-    let f = Frame::in_page(width, height, margin, top, bottom, xa, ya, false);
+    let y_title = effect_axis_title(report);
+    let (f, height) = Frame::in_page(&page, xa, ya, false, (name, &y_title))?;
     let mut sc = Scene::new(width as u32, height as u32);
-    super::heading(&mut sc, report, &format!("Effect by {name}"), width, margin);
+    heading.draw(&mut sc);
     if let Some(s) = &view.split {
-        legend::draw(&mut sc, s, &legend_rows, margin, 70.0);
+        legend::draw(
+            &mut sc,
+            s,
+            &legend_rows,
+            (margin, legend_y),
+            k,
+            width - 2.0 * margin,
+        );
     }
     f.grid(&mut sc);
     if (f.ya.lo..=f.ya.hi).contains(&0.0) {
@@ -111,8 +123,8 @@ pub fn scene(report: &FitReport, opts: &PlotOptions) -> Result<Scene> {
         ModeratorKind::Categorical { levels, .. } => bubbles.by_level(&mut sc, levels),
     }
     let f = &bubbles.f;
-    f.axes(&mut sc, name, &effect_axis_title(report));
-    super::caption(&mut sc, &cap_lines, margin, f.y1 + 64.0);
+    f.axes(&mut sc);
+    super::caption_scaled(&mut sc, &cap_lines, (margin, f.below()), k);
     Ok(sc)
 }
 

@@ -8,7 +8,7 @@ use crate::render::figure::palette::*;
 use crate::render::figure::scene::Rgb;
 use crate::render::figure::scene::{fit_middle, fit_text};
 use crate::render::figure::{
-    caption_scaled, heading_scaled, label_step, measure_name, size, Align, Scene,
+    caption_scaled, label_step, measure_name, size, Align, Heading, Scene,
 };
 use crate::result::{Estimate, LevelSummary, Study};
 use crate::support::format as fmt;
@@ -56,8 +56,8 @@ impl Forest<'_> {
     /// Title, subtitle and the column headers.
     fn header(&self, sc: &mut Scene) {
         let (margin, width) = (self.margin, self.width);
-        heading_scaled(sc, self.report, &self.title, (width, margin), self.scale);
-        let hy = 70.0 * self.scale;
+        Heading::new(self.report, &self.title, (width, margin), self.scale).draw(sc);
+        let hy = 70.0 * self.scale + self.head_extra;
         let head = self.fs_max.min(13.0 * self.scale);
         sc.text((margin, hy), "Study", head, INK, Align::Left);
         let mut x = margin + self.name_w;
@@ -391,13 +391,17 @@ impl Forest<'_> {
                 sc.text((*x, ay + 15.0 * k), text.clone(), small, INK, Align::Center);
             }
         }
-        sc.text(
-            ((px0 + px1) / 2.0, ay + 36.0 * k),
-            fit_text(&self.x_label, label, px1 - px0 + 2.0 * self.margin),
-            label,
-            INK,
-            Align::Center,
-        );
-        caption_scaled(sc, &self.cap_lines, (self.margin, ay + 62.0 * k), k);
+        for (i, line) in self.x_lines.iter().enumerate() {
+            let y = ay + 36.0 * k + 17.0 * k * i as f64;
+            sc.text(
+                ((px0 + px1) / 2.0, y),
+                line.clone(),
+                label,
+                INK,
+                Align::Center,
+            );
+        }
+        let extra = 17.0 * k * (self.x_lines.len() - 1) as f64;
+        caption_scaled(sc, &self.cap_lines, (self.margin, ay + 62.0 * k + extra), k);
     }
 }

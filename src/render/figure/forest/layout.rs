@@ -8,7 +8,8 @@ use crate::effect::ReadingScale;
 use crate::error::{Error, Result};
 use crate::render::figure::scene::text_width;
 use crate::render::figure::{
-    decimals_for, effect_axis_title, measure_name, model_line, size, wrap, Axis, PlotOptions,
+    decimals_for, effect_axis_title, measure_name, model_line, pt_of_size, size, size_of_pt, wrap,
+    wrap_or_fit, Axis, Heading, PlotOptions,
 };
 use crate::result::{FitReport, LevelSummary, Tau2Method};
 use crate::support::flag::Flag;
@@ -109,6 +110,10 @@ pub(super) struct Forest<'a> {
     pub cap_lines: Vec<String>,
     /// Top of the first row.
     pub top: f64,
+    /// How much taller than two lines the title and subtitle are.
+    pub head_extra: f64,
+    /// The value axis title's lines.
+    pub x_lines: Vec<String>,
     /// Row height.
     pub rh: f64,
     /// Page height in pixels.
@@ -235,10 +240,10 @@ impl<'a> Forest<'a> {
         axis: Axis,
     ) -> Result<Forest<'a>> {
         let n_rows = rows.len();
-        // --font-size fixes the rows' text (points to pixels at 96 per
-        // inch); everything else scales with it from the default row text,
+        // --font-size fixes the em of the rows' text (points at 96 pixels
+        // per inch); everything else scales with it from the default row text,
         // rows included (a row is as high for its text as by default).
-        let row_fs = opts.font_size.map(|pt| pt * 96.0 / 72.0);
+        let row_fs = opts.font_size.map(size_of_pt);
         let scale = row_fs.map_or(1.0, |f| f / font(24.0));
         let auto_rh = row_fs.map_or_else(|| auto_row_height(n_rows), |f| f / 0.56);
         let margin = 18.0;
@@ -251,21 +256,26 @@ impl<'a> Forest<'a> {
         )?;
         let cols_w: f64 = cols.iter().map(|c| c.width).sum();
         // Without --width the page widens by the text columns, so the plot
-        // area keeps its width.
-        let width = opts.width.map_or(1000.0 + cols_w, f64::from);
-        // The zeros are filled in by the three steps below, in order: the
-        // columns, the caption (which needs the axis limits), the row height
-        // (which needs the caption's height).
+        // area keeps its width, and with text larger than the default it
+        // widens with the text, so the labels and the plot keep their shares.
+        let width = opts
+            .width
+            .map_or(1000.0 * scale.max(1.0) + cols_w, f64::from);
+        // The zeros are filled in by the steps below, in order: the
+        // columns (which may widen the page), the heading's height, the
+        // caption (which needs the axis limits), the row height (which needs
+        // the caption's height).
+        let title = opts.title.clone().unwrap_or_else(|| {
+            if group.is_some_and(Grouping::averaged) {
+                "Study effects, subgroup averages and the overall average".into()
+            } else {
+                "Study effects and their average".into()
+            }
+        });
         let mut f = Forest {
             report,
             group,
-            title: opts.title.clone().unwrap_or_else(|| {
-                if group.is_some_and(Grouping::averaged) {
-                    "Study effects, subgroup averages and the overall average".into()
-                } else {
-                    "Study effects and their average".into()
-                }
-            }),
+            title,
             x_label: opts
                 .x_label
                 .clone()
@@ -290,7 +300,9 @@ impl<'a> Forest<'a> {
                 "Random-effects average"
             },
             cap_lines: Vec::new(),
-            top: 86.0 * scale, // title, subtitle, column headers
+            top: 0.0,
+            head_extra: 0.0,
+            x_lines: Vec::new(),
             rh: auto_rh,
             height: 0,
             fs: 0.0,
@@ -302,7 +314,15 @@ impl<'a> Forest<'a> {
             n_rows,
             w_max: report.studies.iter().map(|s| s.weight).fold(0.0, f64::max),
         };
-        f.columns()?;
+        f.columns(opts.width.is_none())?;
+        // Title, subtitle (wrapped to the final width) and column headers.
+        f.head_extra = Heading::new(report, &f.title, (f.width, margin), scale).extra();
+        f.top = 86.0 * scale + f.head_extra;
+        f.x_lines = wrap_or_fit(
+            &f.x_label,
+            size::LABEL * scale,
+            f.px1 - f.px0 + 2.0 * margin,
+        );
         f.wrap_labels();
         f.cap_lines = f.caption();
         f.row_height(rows, opts.height)?;
@@ -310,7 +330,7 @@ impl<'a> Forest<'a> {
     }
 
     /// The widths of the text columns and the plot area between them.
-    fn columns(&mut self) -> Result<()> {
+    fn columns(&mut self, auto_width: bool) -> Result<()> {
         let (report, fs_max, width, margin) = (self.report, self.fs_max, self.width, self.margin);
         self.ci_w = report
             .studies
@@ -332,6 +352,12 @@ impl<'a> Forest<'a> {
         self.label_w = self.name_w + cols_w;
         self.px0 = margin + self.label_w + 14.0;
         self.px1 = width - margin - self.weight_w - self.ci_w - 12.0;
+        if self.px1 - self.px0 < 140.0 && auto_width {
+            // Without --width the page widens until the plot area keeps
+            // 140 pixels (large --font-size text).
+            self.width += 140.0 - (self.px1 - self.px0);
+            self.px1 = self.width - margin - self.weight_w - self.ci_w - 12.0;
+        }
         if self.px1 - self.px0 < 140.0 {
             let need = width + 140.0 - (self.px1 - self.px0);
             return Err(Error::usage(
@@ -414,7 +440,9 @@ impl<'a> Forest<'a> {
     /// two lines gets a row taller by the distance between the lines.
     fn row_height(&mut self, rows: &[Row], height: Option<u32>) -> Result<()> {
         let (top, n_rows) = (self.top, self.n_rows);
-        let bottom = (62.0 + 17.0 * self.cap_lines.len() as f64) * self.scale; // axis + caption
+        // Axis, its title, caption.
+        let bottom =
+            (62.0 + 17.0 * (self.cap_lines.len() + self.x_lines.len() - 1) as f64) * self.scale;
         let two = |r: &Row| matches!(r, Row::Study(i) if self.label_lines[*i].len() > 1);
         let n2 = rows.iter().filter(|r| two(r)).count() as f64;
         let n = n_rows as f64;
@@ -430,31 +458,34 @@ impl<'a> Forest<'a> {
                         (rh, 0.672 * rh)
                     }
                 };
-                if rh < 4.0 {
-                    return Err(Error::usage(
-                        Flag::Height,
-                        format!(
-                            "{h} pixels are too few for {n_rows} rows; use at least {:.0} (or leave \
-                             {} out for an automatic height)",
-                            top + bottom + 4.0 * (n + 0.672 * n2),
-                            Flag::Height
-                        ),
-                    ));
-                }
-                if let Some(f) = self.row_fs.filter(|&f| rh < 1.1 * f) {
-                    return Err(Error::usage(
-                        Flag::FontSize,
-                        format!(
-                            "text of {:.1} points needs rows of at least {:.0} pixels, and {h} \
-                             pixels of {} leave {rh:.1} for each of {n_rows} rows; use a smaller \
-                             size, a larger {}, or leave {} out",
-                            f * 72.0 / 96.0,
-                            1.1 * f,
+                // Rows of at least 4 pixels, and 1.1 times --font-size's text.
+                let min_rh = self.row_fs.map_or(4.0, |f| (1.1 * f).max(4.0));
+                if rh < min_rh {
+                    let gap = self.row_fs.map_or(0.672 * min_rh, |f| 1.2 * f);
+                    let need = top + bottom + min_rh * n + gap * n2;
+                    return Err(match self.row_fs {
+                        None => Error::usage(
                             Flag::Height,
-                            Flag::Height,
-                            Flag::Height
+                            format!(
+                                "{h} pixels are too few for {n_rows} rows; use at least {need:.0} \
+                                 (or leave {} out for an automatic height)",
+                                Flag::Height
+                            ),
                         ),
-                    ));
+                        Some(f) => Error::usage(
+                            Flag::FontSize,
+                            format!(
+                                "text of {:.1} points needs rows of at least {min_rh:.0} pixels, \
+                                 and {h} pixels of {} leave {:.1} for each of {n_rows} rows; use \
+                                 a smaller size, at least {need:.0} pixels of {}, or leave {} out",
+                                pt_of_size(f),
+                                Flag::Height,
+                                rh.max(0.0),
+                                Flag::Height,
+                                Flag::Height
+                            ),
+                        ),
+                    });
                 }
                 (rh, h, gap)
             }
