@@ -222,8 +222,7 @@ pub enum Delimiter {
     Tab,
     /// None: the table was read from a spreadsheet (delimiter byte 0).
     Sheet,
-    /// None: the table was read from a Parquet file (delimiter byte
-    /// [`PARQUET`]).
+    /// None: the table was read from a Parquet file (delimiter byte 1).
     Parquet,
 }
 

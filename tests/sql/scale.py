@@ -145,6 +145,22 @@ def main():
         times.append(time.perf_counter() - t)
     report("pondus sites --moments (two-stage, --fit on size)", times)
 
+    # The same moments as a Parquet file written by DuckDB: pondus must give
+    # the same effects file as from the CSV.
+    mpq = os.path.join(a.work, "moments.parquet")
+    con.execute(f"COPY ({query.rstrip().rstrip(';')}) TO '{mpq}' (FORMAT parquet)")
+    out = os.path.join(a.work, "effects-pq.csv")
+    subprocess.run(
+        [a.pondus, "sites", "--moments", mpq, "--site", "site", "--x", "x", "--y", "y",
+         "--w", "w", "--out", out, "--quiet"], check=True)
+    subprocess.run(
+        [a.pondus, "sites", "--moments", moments, "--site", "site", "--x", "x", "--y", "y",
+         "--w", "w", "--out", out + ".csv", "--quiet"], check=True)
+    same = open(out, encoding="utf-8").read() == open(out + ".csv", encoding="utf-8").read()
+    print(f"moments as Parquet (DuckDB COPY) give the same effects file as the CSV: {same}",
+          flush=True)
+    assert same
+
     if a.spark:
         spark_route(a, con, result)
 
