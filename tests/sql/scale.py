@@ -101,6 +101,9 @@ def main():
     ap.add_argument("--sites", type=int, default=10_000)
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--spark", action="store_true")
+    ap.add_argument("--stream", type=int, default=0,
+                    help="also time the streaming pass of pondus sites on the first N rows, "
+                         "as Parquet and as CSV (exported by DuckDB), with its peak memory")
     ap.add_argument("--keep", action="store_true", help="reuse the database if present")
     a = ap.parse_args()
     os.makedirs(a.work, exist_ok=True)
@@ -148,7 +151,10 @@ def main():
     # The same moments as a Parquet file written by DuckDB: pondus must give
     # the same effects file as from the CSV.
     mpq = os.path.join(a.work, "moments.parquet")
-    con.execute(f"COPY ({query.rstrip().rstrip(';')}) TO '{mpq}' (FORMAT parquet)")
+    # (From the CSV just written: DuckDB's parallel sums can differ in the last
+    # digit from one execution of the query to the next.)
+    con.execute(f"COPY (SELECT * FROM read_csv('{moments}', header = true, "
+                f"types = {{'site': 'VARCHAR'}})) TO '{mpq}' (FORMAT parquet)")
     out = os.path.join(a.work, "effects-pq.csv")
     subprocess.run(
         [a.pondus, "sites", "--moments", mpq, "--site", "site", "--x", "x", "--y", "y",
@@ -161,8 +167,37 @@ def main():
           flush=True)
     assert same
 
+    if a.stream:
+        stream_route(a, con)
     if a.spark:
         spark_route(a, con, result)
+
+
+def stream_route(a, con):
+    """`pondus sites` reading N participant rows itself, from Parquet and from CSV."""
+    base = os.path.join(a.work, f"head{a.stream}")
+    if not os.path.exists(base + ".parquet"):
+        con.execute(f"COPY (SELECT * FROM rows LIMIT {a.stream}) TO '{base}.parquet' "
+                    "(FORMAT parquet, COMPRESSION snappy, ROW_GROUP_SIZE 1000000)")
+        con.execute(f"COPY (SELECT * FROM rows LIMIT {a.stream}) TO '{base}.csv' (HEADER)")
+    for ext in ("parquet", "csv"):
+        f = f"{base}.{ext}"
+        times, peaks = [], []
+        for k in range(a.runs):
+            out = os.path.join(a.work, f"stream-{ext}{k}.csv")
+            t = time.perf_counter()
+            r = subprocess.run(
+                ["/usr/bin/time", "-f", "%M", a.pondus, "sites", f, "--site", "site", "--x", "x",
+                 "--y", "y", "--w", "w", "--out", out, "--quiet"],
+                check=True, capture_output=True, text=True)
+            times.append(time.perf_counter() - t)
+            peaks.append(int(r.stderr.strip().splitlines()[-1]) / 1024)
+        report(f"pondus sites on {a.stream:,} rows from {ext.upper()} "
+               f"({os.path.getsize(f) / 1e6:.0f} MB; peak memory "
+               f"{min(peaks):.1f}-{max(peaks):.1f} MB)", times)
+    same = (open(os.path.join(a.work, "stream-parquet0.csv"), encoding="utf-8").read()
+            == open(os.path.join(a.work, "stream-csv0.csv"), encoding="utf-8").read())
+    print(f"effects file from the Parquet rows = from the CSV rows: {same}", flush=True)
 
 
 def spark_route(a, con, duck):
