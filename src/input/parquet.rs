@@ -10,7 +10,8 @@
 //! binary columns and nested columns are refused, naming the column and its
 //! type. Rows are numbered 1, 2, ... within the file (messages say
 //! `row 14`), and are read in batches of at most [`BATCH_ROWS`] per column,
-//! so memory is bounded by a batch, not by a row group or the file.
+//! so memory is bounded by a batch and the page being decoded in each needed
+//! column (at most that column's chunk of one row group), not by the file.
 
 use super::{check_unique, find_header, format_error, Column, ColumnRequest, Table};
 use crate::error::{Error, Result};
