@@ -137,6 +137,24 @@ pub const TRIM_FILL_MAX_ITERS: usize = 100;
 /// by (1 − hᵢ)², is undefined for its site (rounding in hᵢ is a few ε).
 pub const LEVERAGE_ONE: f64 = 1e-10;
 
+/// A site's x counts as constant for the one-stage model when its
+/// Σ(x − x̄)² is at most n·(this·x̄)²: the spread of x is then below about
+/// 1e-12 of its level, rounding rather than variation (a truly constant x
+/// gives 0 exactly; the one-stage model needs every site's x to vary).
+pub const ONE_STAGE_CONSTANT_X: f64 = 1e-12;
+
+/// Test tolerance of the one-stage model (fixed effects, SEs, τ², σ² and
+/// their profile intervals) against the dense-matrix numpy REML of
+/// tests/reference/one_stage.py: that route stops scipy's bounded
+/// minimiser on γ = τ²/σ² (accurate to about the square root of the
+/// criterion's precision), so agreement is limited to a few parts in 1e7.
+pub const ONE_STAGE_REF_REL: f64 = 1e-6;
+
+/// Test tolerance of the one-stage model's fixed effects, τ² and σ²
+/// against statsmodels 0.14.6 MixedLM (BFGS stopped at gtol 1e-8): observed
+/// agreement is 1.5e-7 relative or better on the fixtures.
+pub const ONE_STAGE_STATSMODELS_REL: f64 = 1e-5;
+
 /// Test tolerance between the two routes to per-site effects (streaming
 /// rows in Rust, aggregates in a SQL engine): both compute the same
 /// moments in double precision by different stable algorithms.

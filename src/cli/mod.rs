@@ -237,6 +237,25 @@ fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
     pondus::render::json::to_bytes(value).map_err(|e| io_err("JSON", std::io::Error::other(e)))
 }
 
+/// Writes any result as [`json_bytes`] renders it (pretty-printed JSON and
+/// a newline, the same bytes) straight into `w`, for
+/// [`outputs::Outputs::add_streamed`]. An error of serde itself (not of
+/// the writer) is marked as a rendering failure.
+///
+/// # Errors
+/// The writer's error, or the wrapped serde error.
+fn stream_json<T: serde::Serialize>(value: &T, w: &mut outputs::Sink<'_>) -> std::io::Result<()> {
+    use std::io::Write;
+    serde_json::to_writer_pretty(&mut *w, value).map_err(|e| {
+        if e.is_io() {
+            std::io::Error::from(e)
+        } else {
+            outputs::RenderFailure::wrap("JSON", std::io::Error::other(e))
+        }
+    })?;
+    w.write_all(b"\n")
+}
+
 /// An error of rendering an output in memory.
 fn io_err(what: &str, source: std::io::Error) -> Error {
     Error::Io {

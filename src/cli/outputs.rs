@@ -1,7 +1,9 @@
 //! Writing output files safely: never over an input, always atomically, and
 //! all of a run's outputs or none of them.
 //!
-//! A run renders every output in memory and hands it to an [`Outputs`];
+//! A run hands every output to an [`Outputs`], either rendered in memory or
+//! as a renderer that writes it ([`Outputs::add_streamed`]: large outputs,
+//! written through a buffered writer straight into their temporary file);
 //! [`Outputs::write`] puts each file first into a temporary file next to its
 //! destination and renames them into place only when all are complete.
 
@@ -214,8 +216,23 @@ fn check_folder(dest: &Path) -> io::Result<()> {
 
 /// The error of writing the output of `flag` to `path` (as the user gave
 /// it). A broken pipe (a FIFO whose reader went away) is a failure here,
-/// not the quiet end that it is for standard output, so it is wrapped.
+/// not the quiet end that it is for standard output, so it is wrapped. A
+/// streamed output's renderer failing is reported as a rendering error
+/// (`<JSON output>: rendering failed: ...`), as for an output rendered in
+/// memory.
 fn write_error(flag: &str, path: &Path, source: io::Error) -> Error {
+    let source = match source.get_ref().map(|e| e.is::<RenderFailure>()) {
+        Some(true) => {
+            let inner = source.into_inner().expect("checked above");
+            let failure = inner.downcast::<RenderFailure>().expect("checked above");
+            return Error::Io {
+                path: format!("<{} output>", failure.what),
+                action: "rendering",
+                source: failure.source,
+            };
+        }
+        _ => source,
+    };
     let source = if source.kind() == io::ErrorKind::BrokenPipe {
         io::Error::other(source)
     } else {
@@ -250,16 +267,17 @@ enum Prepared {
 }
 
 impl Prepared {
-    /// Gets `bytes` ready for `path`: its symbolic links followed, its
+    /// Gets `content` ready for `path`: its symbolic links followed, its
     /// folder checked, and (unless the destination is a special file) the
-    /// bytes written to a temporary file next to the destination, flushed to
-    /// disk, carrying the permission bits and owner of the file it replaces.
+    /// content written to a temporary file next to the destination (a
+    /// streamed one through a buffered writer), flushed to disk, carrying
+    /// the permission bits and owner of the file it replaces.
     ///
     /// # Errors
     /// [`io::Error`] when a link cannot be read, the folder is missing or is
     /// not a folder, the destination is a folder, or the temporary file
-    /// cannot be written; no temporary file is left.
-    fn new(path: &Path, bytes: &[u8]) -> io::Result<Self> {
+    /// cannot be written or its renderer fails; no temporary file is left.
+    fn new(path: &Path, content: &Content<'_>) -> io::Result<Self> {
         let dest = follow_links(path)?;
         let existing = match std::fs::metadata(&dest) {
             Ok(m) if m.is_dir() => {
@@ -288,7 +306,14 @@ impl Prepared {
             if let Some(m) = &existing {
                 keep_owner_and_mode(&file, m)?;
             }
-            file.write_all(bytes)?;
+            match content {
+                Content::Bytes(bytes) => file.write_all(bytes)?,
+                Content::Streamed(render) => {
+                    let mut sink: Sink<'_> = io::BufWriter::with_capacity(STREAM_BUFFER, &mut file);
+                    render(&mut sink)?;
+                    sink.flush()?;
+                }
+            }
             file.sync_all()
         })();
         match result {
@@ -300,14 +325,16 @@ impl Prepared {
         }
     }
 
-    /// Writes a special file directly; a staged file waits for [`Prepared::place`].
+    /// Writes a special file directly (its content rendered in memory
+    /// first); a staged file waits for [`Prepared::place`].
     ///
     /// # Errors
     /// The error of opening or writing the special file (ENOSPC, EPIPE, ...).
-    fn write_direct(&self, bytes: &[u8]) -> io::Result<()> {
+    fn write_direct(&self, content: &Content<'_>) -> io::Result<()> {
         if let Prepared::Direct(path) = self {
+            let bytes = content.render()?;
             let mut f = std::fs::OpenOptions::new().write(true).open(path)?;
-            f.write_all(bytes)?;
+            f.write_all(&bytes)?;
             f.flush()?;
         }
         Ok(())
@@ -354,15 +381,90 @@ fn keep_owner_and_mode(file: &std::fs::File, old: &std::fs::Metadata) -> io::Res
     file.set_permissions(old.permissions())
 }
 
-/// Every output of one run, rendered in memory, written together by
-/// [`Outputs::write`] once the run has rendered all of them.
-#[derive(Debug, Default)]
-pub struct Outputs {
-    /// The outputs in the order they were added, each with its flag.
-    pending: Vec<(&'static str, Target, Vec<u8>)>,
+/// The size of the buffered writer a streamed output is written through.
+const STREAM_BUFFER: usize = 1 << 20;
+
+/// What a streamed output is written to: a buffered writer, a concrete type
+/// so that a renderer's many small writes are plain copies into the buffer
+/// (only the buffer's flushes go through the `dyn` writer).
+pub type Sink<'w> = io::BufWriter<&'w mut dyn Write>;
+
+/// A renderer of a streamed output: writes the whole output to the sink.
+/// Its own failures (not the writer's) are wrapped in a [`RenderFailure`].
+pub type Render<'a> = Box<dyn Fn(&mut Sink<'_>) -> io::Result<()> + 'a>;
+
+/// A renderer's own failure, carried through [`io::Error`] so that it is
+/// reported as a rendering error (as an output rendered in memory is), not
+/// as an error of writing the file.
+#[derive(Debug)]
+pub struct RenderFailure {
+    /// What was being rendered ("JSON", "table").
+    pub what: &'static str,
+    /// The renderer's error.
+    pub source: io::Error,
 }
 
-impl Outputs {
+impl std::fmt::Display for RenderFailure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        self.source.fmt(f)
+    }
+}
+
+impl std::error::Error for RenderFailure {}
+
+impl RenderFailure {
+    /// Wraps a renderer's failure in an [`io::Error`].
+    pub fn wrap(what: &'static str, source: io::Error) -> io::Error {
+        io::Error::other(RenderFailure { what, source })
+    }
+}
+
+/// An output's content: rendered in memory, or rendered while it is written.
+enum Content<'a> {
+    /// The bytes.
+    Bytes(Vec<u8>),
+    /// The renderer (see [`Outputs::add_streamed`]).
+    Streamed(Render<'a>),
+}
+
+impl std::fmt::Debug for Content<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Content::Bytes(b) => write!(f, "Bytes({} bytes)", b.len()),
+            Content::Streamed(_) => f.write_str("Streamed"),
+        }
+    }
+}
+
+impl Content<'_> {
+    /// The content in memory (a streamed one rendered into a buffer).
+    ///
+    /// # Errors
+    /// The renderer's error.
+    fn render(&self) -> io::Result<std::borrow::Cow<'_, [u8]>> {
+        match self {
+            Content::Bytes(b) => Ok(std::borrow::Cow::Borrowed(b)),
+            Content::Streamed(render) => {
+                let mut buf = Vec::new();
+                let mut sink: Sink<'_> = io::BufWriter::new(&mut buf);
+                render(&mut sink)?;
+                sink.flush()?;
+                drop(sink);
+                Ok(std::borrow::Cow::Owned(buf))
+            }
+        }
+    }
+}
+
+/// Every output of one run, rendered in memory or by a renderer that
+/// writes it, written together by [`Outputs::write`].
+#[derive(Debug, Default)]
+pub struct Outputs<'a> {
+    /// The outputs in the order they were added, each with its flag.
+    pending: Vec<(&'static str, Target, Content<'a>)>,
+}
+
+impl<'a> Outputs<'a> {
     /// No outputs yet.
     pub fn new() -> Self {
         Self::default()
@@ -370,7 +472,25 @@ impl Outputs {
 
     /// Adds one rendered output, asked for by `flag` (named in its errors).
     pub fn add(&mut self, flag: &'static str, target: &Target, bytes: impl Into<Vec<u8>>) {
-        self.pending.push((flag, target.clone(), bytes.into()));
+        self.pending
+            .push((flag, target.clone(), Content::Bytes(bytes.into())));
+    }
+
+    /// Adds one output, asked for by `flag`, that `render` writes when the
+    /// outputs are written: into the temporary file of its destination
+    /// through a buffered writer, so that a large output is never held in
+    /// memory whole. Standard output and special files get it rendered in
+    /// memory first (they cannot be taken back when the renderer fails), so
+    /// the guarantees of [`Outputs::write`] hold as for [`Outputs::add`]: a
+    /// renderer that fails leaves no output placed.
+    pub fn add_streamed(
+        &mut self,
+        flag: &'static str,
+        target: &Target,
+        render: impl Fn(&mut Sink<'_>) -> io::Result<()> + 'a,
+    ) {
+        self.pending
+            .push((flag, target.clone(), Content::Streamed(Box::new(render))));
     }
 
     /// Adds the terminal report, printed on standard output. Labels in it
@@ -389,23 +509,33 @@ impl Outputs {
         self.add("", &Target::Stdout, shown);
     }
 
-    /// Writes every output. First each file is prepared (see
-    /// [`Prepared::new`]): its folder checked and its bytes written to a
-    /// temporary file next to it, flushed to disk; when one cannot be, every
-    /// temporary file is removed and no output is touched. Then special
-    /// files (FIFOs, devices) are written directly; then the temporary files
-    /// are renamed over their destinations (in the order they were added);
-    /// then standard output is written.
+    /// Writes every output. First standard output's content is rendered in
+    /// memory; then each file is prepared (see [`Prepared::new`]): its
+    /// folder checked and its content written to a temporary file next to
+    /// it, flushed to disk; when one cannot be (or its renderer fails),
+    /// every temporary file is removed and no output is touched. Then
+    /// special files (FIFOs, devices) are written directly; then the
+    /// temporary files are renamed over their destinations (in the order
+    /// they were added); then standard output is written.
     ///
     /// # Errors
     /// [`Error::Io`] naming the flag and the path of the first file that
     /// cannot be written or renamed, or the write error of standard output.
     pub fn write(self) -> Result<()> {
+        let mut stdout = Vec::new();
+        for (flag, target, content) in &self.pending {
+            if *target == Target::Stdout {
+                let bytes = content
+                    .render()
+                    .map_err(|e| write_error(flag, Path::new("<stdout>"), e))?;
+                stdout.push(bytes);
+            }
+        }
         let mut prepared = Vec::new();
-        for (flag, target, bytes) in &self.pending {
+        for (flag, target, content) in &self.pending {
             if let Target::File(p) = target {
-                match Prepared::new(p, bytes) {
-                    Ok(x) => prepared.push((*flag, p, bytes, x)),
+                match Prepared::new(p, content) {
+                    Ok(x) => prepared.push((*flag, p, content, x)),
                     Err(e) => {
                         prepared.into_iter().for_each(|(.., x)| x.discard());
                         return Err(write_error(flag, p, e));
@@ -415,7 +545,9 @@ impl Outputs {
         }
         let direct = prepared
             .iter()
-            .map(|(flag, p, bytes, x)| x.write_direct(bytes).map_err(|e| write_error(flag, p, e)))
+            .map(|(flag, p, content, x)| {
+                x.write_direct(content).map_err(|e| write_error(flag, p, e))
+            })
             .collect::<Result<Vec<()>>>();
         if let Err(e) = direct {
             prepared.into_iter().for_each(|(.., x)| x.discard());
@@ -428,10 +560,8 @@ impl Outputs {
                 return Err(write_error(flag, p, e));
             }
         }
-        for (_, target, bytes) in &self.pending {
-            if *target == Target::Stdout {
-                emit(target, bytes)?;
-            }
+        for bytes in stdout {
+            emit(&Target::Stdout, &bytes)?;
         }
         Ok(())
     }
@@ -512,6 +642,54 @@ mod tests {
         let e = some.write().unwrap_err();
         assert!(e.to_string().contains("missing"), "{e}");
         assert_eq!(std::fs::read(&a).unwrap(), b"one");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 2);
+    }
+
+    #[test]
+    fn a_streamed_output_is_written_and_a_failing_renderer_places_nothing() {
+        let _lock = one_at_a_time();
+        let dir = tempfile::tempdir().unwrap();
+        let a = dir.path().join("a.json");
+        let b = dir.path().join("b.csv");
+        std::fs::write(&a, "old").unwrap();
+        let mut all = Outputs::new();
+        all.add("--a", &Target::File(b.clone()), "first");
+        all.add_streamed("--json", &Target::File(a.clone()), |w| {
+            // Larger than the buffer, so that the writer flushes in between.
+            for _ in 0..(STREAM_BUFFER / 4 + 10) {
+                w.write_all(b"abc\n")?;
+            }
+            Ok(())
+        });
+        all.write().unwrap();
+        assert_eq!(
+            std::fs::read(&a).unwrap().len(),
+            4 * (STREAM_BUFFER / 4 + 10)
+        );
+        assert_eq!(std::fs::read(&b).unwrap(), b"first");
+
+        // A renderer that fails after writing part of its output: neither
+        // output is placed, no temporary is left, and the error is a
+        // rendering error.
+        let mut some = Outputs::new();
+        some.add("--a", &Target::File(b.clone()), "second");
+        some.add_streamed("--json", &Target::File(a.clone()), |w| {
+            w.write_all(b"partial")?;
+            Err(RenderFailure::wrap(
+                "JSON",
+                io::Error::other("cannot render"),
+            ))
+        });
+        let e = format!("{:#}", anyhow::Error::from(some.write().unwrap_err()));
+        assert!(
+            e.contains("<JSON output>") && e.contains("cannot render"),
+            "{e}"
+        );
+        assert_eq!(
+            std::fs::read(&a).unwrap().len(),
+            4 * (STREAM_BUFFER / 4 + 10)
+        );
+        assert_eq!(std::fs::read(&b).unwrap(), b"first");
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 2);
     }
 

@@ -103,12 +103,12 @@ pub struct SitesArgs {
     /// Also run the second stage: pooled product term (within sites) beside the slope-on-mean-w meta-regression (across sites).
     #[arg(help_heading = "Second stage (--fit)", long)]
     pub fit: bool,
-    /// A site characteristic (a column of --info) to regress the site slopes on (repeatable; with --fit).
+    /// A site characteristic (a column of --info) to regress the site slopes on (repeatable; with --fit
+    /// or --one-stage).
     #[arg(
         help_heading = "Second stage (--fit)",
         long = "moderator",
-        value_name = "NAME",
-        requires = "fit"
+        value_name = "NAME"
     )]
     pub moderators: Vec<String>,
     /// Estimator of the between-site variance τ² in the second stage.
@@ -117,14 +117,14 @@ pub struct SitesArgs {
     /// Tests and intervals of the second stage.
     #[arg(help_heading = "Second stage (--fit)", long, value_enum, default_value_t = InferenceArg::Kh, requires = "fit")]
     pub inference: InferenceArg,
-    /// Confidence level of the second stage's intervals.
-    #[arg(
-        help_heading = "Second stage (--fit)",
-        long,
-        default_value_t = 0.95,
-        requires = "fit"
-    )]
+    /// Confidence level of the second stage's (and the one-stage model's) intervals.
+    #[arg(help_heading = "Second stage (--fit)", long, default_value_t = 0.95)]
     pub level: f64,
+    /// Also fit the one-stage model: all rows in one linear mixed model with a fixed intercept per site and
+    /// a random x slope (REML, from the per-site summaries), within- and across-site interactions of w
+    /// kept apart, x times each --moderator as an across-site slope term.
+    #[arg(help_heading = "One-stage model", long)]
+    pub one_stage: bool,
     /// Write the whole result (sites, exclusions, join, second stage) as JSON ('-' for standard output).
     #[arg(help_heading = "Outputs", long, value_name = "PATH")]
     pub json: Option<PathBuf>,
@@ -166,6 +166,15 @@ pub enum SitesInputArg {
     Moments(PathBuf),
 }
 
+/// Settings of the one-stage model.
+#[derive(Debug, Clone)]
+pub struct OneStageRun {
+    /// Confidence level.
+    pub level: f64,
+    /// The site characteristics (`--moderator`) whose product with x enters the model.
+    pub characteristics: Vec<String>,
+}
+
 /// Checked settings of a `sites` run.
 #[derive(Debug, Clone)]
 pub struct SitesRun {
@@ -183,6 +192,8 @@ pub struct SitesRun {
     pub json: Option<Target>,
     /// Second stage: options and site characteristics.
     pub fit: Option<(FitOptions, Vec<ModeratorSpec>)>,
+    /// The one-stage model (`--one-stage`).
+    pub one_stage: Option<OneStageRun>,
     /// Whether to print the terminal summary.
     pub text: bool,
     /// The HTML report's target.
@@ -240,6 +251,7 @@ impl SitesArgs {
                 "must lie between 0 and 1, e.g. 0.95",
             ));
         }
+        self.check_stage_flags()?;
         if !self.moderators.is_empty() && self.info.is_none() {
             return Err(Error::usage(
                 "--moderator",
@@ -253,7 +265,7 @@ impl SitesArgs {
             .as_deref()
             .map(|p| report_target("--report", p))
             .transpose()?;
-        if out.is_none() && json.is_none() && report.is_none() && !self.fit {
+        if out.is_none() && json.is_none() && report.is_none() && !self.fit && !self.one_stage {
             return Err(Error::usage(
                 "--out",
                 "nothing to do: add --out EFFECTS.csv (and/or --fit, --json)",
@@ -305,6 +317,10 @@ impl SitesArgs {
             info_sheet: self.sheet.clone(),
             out,
             json,
+            one_stage: self.one_stage.then(|| OneStageRun {
+                level: self.level,
+                characteristics: self.moderators.clone(),
+            }),
             fit: self.fit.then(|| {
                 (
                     FitOptions {
@@ -330,30 +346,69 @@ impl SitesArgs {
     }
 }
 
+impl SitesArgs {
+    /// The flags that need `--fit` or `--one-stage`, and the effect the
+    /// one-stage model takes.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] naming the flag.
+    fn check_stage_flags(&self) -> Result<()> {
+        let stage = self.fit || self.one_stage;
+        if self.one_stage && self.effect != EffectArg::Slope {
+            return Err(Error::usage(
+                "--one-stage",
+                "the one-stage model is a linear model of y on x, so it takes the slope: drop \
+                 --effect (for a 0/1 group x and a numeric y the slope is the mean difference)",
+            ));
+        }
+        if !self.moderators.is_empty() && !stage {
+            return Err(Error::usage(
+                "--moderator",
+                "site characteristics are used by the second stage or the one-stage model; add \
+                 --fit or --one-stage",
+            ));
+        }
+        if self.level != 0.95 && !stage {
+            return Err(Error::usage(
+                "--level",
+                "sets the confidence level of the second stage or the one-stage model; add --fit \
+                 or --one-stage",
+            ));
+        }
+        Ok(())
+    }
+}
+
 /// Runs a checked `sites`: summarise, estimate, join, second stage, write.
 ///
 /// # Errors
 /// Any library error.
 pub fn run_sites(run: &SitesRun) -> Result<()> {
     use pondus::sites::{self, RowInput};
-    let mut report = match &run.input {
-        SitesInputArg::Rows(Source::File(p)) => {
-            sites::from_rows(&p.display().to_string(), RowInput::File(p), &run.settings)?
-        }
-        SitesInputArg::Rows(Source::Stdin) => sites::from_rows(
+    let keep = run.one_stage.is_some();
+    let (mut report, moments) = match &run.input {
+        SitesInputArg::Rows(Source::File(p)) => sites::from_rows_with_moments(
+            &p.display().to_string(),
+            RowInput::File(p),
+            &run.settings,
+        )?,
+        SitesInputArg::Rows(Source::Stdin) => sites::from_rows_with_moments(
             "<stdin>",
             RowInput::Stream(Box::new(std::io::stdin().lock())),
             &run.settings,
         )?,
         SitesInputArg::Moments(p) => {
             let src = Source::File(p.clone());
-            sites::from_moments(&src.name(), &src.read_all()?, &run.settings)?
+            sites::from_moments_keeping(&src.name(), &src.read_all()?, &run.settings)?
         }
     };
+    let mut site_rows = Default::default();
+    let mut info_name = String::new();
     if let Some((path, key)) = &run.info {
         let src = Source::File(path.clone());
         let sheet = run.info_sheet.as_deref();
-        sites::join::join(
+        info_name = src.name();
+        site_rows = sites::join::join(
             &mut report,
             &src.name(),
             &src.read_all()?,
@@ -364,6 +419,15 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
     }
     if let Some((options, chars)) = &run.fit {
         report.stages = Some(sites::stages::run(&report, *options, chars)?);
+    }
+    if let (Some(os), true) = (&run.one_stage, keep) {
+        let characteristics = one_stage_characteristics(&report, os, site_rows, info_name)?;
+        report.one_stage = Some(sites::one_stage::fit(
+            &report,
+            &moments,
+            &characteristics,
+            os.level,
+        )?);
     }
     // Every output is rendered before any is written (see `Outputs`).
     let mut out = Outputs::new();
@@ -424,4 +488,45 @@ pub fn run_sites(run: &SitesRun) -> Result<()> {
         eprint!("{}", pondus::support::text::terminal(&text));
     }
     Ok(())
+}
+
+/// The `--moderator` columns of the site table for the one-stage model:
+/// each site's cells of those columns.
+///
+/// # Errors
+/// [`Error::Usage`] when a `--moderator` is not a column of the site table.
+fn one_stage_characteristics(
+    report: &pondus::result::SitesReport,
+    os: &OneStageRun,
+    rows: std::collections::HashMap<String, Vec<String>>,
+    source: String,
+) -> Result<pondus::sites::one_stage::Characteristics> {
+    let columns = report
+        .join
+        .as_ref()
+        .map(|j| j.columns.clone())
+        .unwrap_or_default();
+    let mut index = Vec::new();
+    for name in &os.characteristics {
+        match columns.iter().position(|c| c == name) {
+            Some(i) => index.push(i),
+            None => {
+                return Err(Error::usage(
+                    "--moderator",
+                    format!(
+                        "'{name}' is not a column of the site table {source} (its columns: {})",
+                        columns.join(", ")
+                    ),
+                ))
+            }
+        }
+    }
+    Ok(pondus::sites::one_stage::Characteristics {
+        names: os.characteristics.clone(),
+        values: rows
+            .into_iter()
+            .map(|(id, cells)| (id, index.iter().map(|&i| cells[i].clone()).collect()))
+            .collect(),
+        source,
+    })
 }

@@ -28,8 +28,10 @@ pub struct Parts<'a> {
     pub settings: &'a FitSettings,
     /// The input's name.
     pub source: &'a str,
-    /// The input's bytes (for their hash).
-    pub bytes: &'a [u8],
+    /// The SHA-256 of the input's bytes, as lowercase hex.
+    pub sha256: String,
+    /// Whether the per-study records are built.
+    pub detail: super::Detail,
     /// The studies.
     pub studies: Studies,
     /// The model's terms, intercept first.
@@ -68,7 +70,8 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
     let Parts {
         settings,
         source,
-        bytes,
+        sha256,
+        detail,
         studies,
         terms,
         moderators,
@@ -96,11 +99,18 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         sheet: studies.table.sheet.clone(),
         rows: studies.table.rows,
         label_column: studies.table.label_column.clone(),
-        sha256: crate::support::hash::sha256_hex(bytes),
+        sha256,
     };
     let k = studies.y.len();
     let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
-    let (records, excluded) = records(studies, fit, settings.options.level, answers.shrunken);
+    // Without per-study records only the excluded rows are kept; with
+    // shrunken estimates the records are built anyway, as their numbers
+    // are checked below.
+    let (records, excluded) = if detail == super::Detail::Summary && answers.shrunken.is_none() {
+        (Vec::new(), studies.excluded)
+    } else {
+        records(studies, fit, settings.options.level, answers.shrunken)
+    };
     let (variance_components, clustering) = match clusters {
         Some(c) => (c.variance_components, Some(c.report)),
         None => (None, None),

@@ -52,6 +52,21 @@ pub fn run(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<FitRepo
     run_with_progress(settings, source, bytes, &|_| {})
 }
 
+/// How much of the report a caller reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Detail {
+    /// The whole report.
+    #[default]
+    Full,
+    /// Everything but the per-study records ([`FitReport::studies`] is
+    /// left empty; the excluded rows are kept), for a caller that shows
+    /// nothing per study: the command line when it writes no output at
+    /// all (`--quiet` without output files). Every check still runs; with
+    /// shrunken estimates the records are built anyway (their numbers are
+    /// checked).
+    Summary,
+}
+
 /// [`run`], calling `progress` with the number of permuted arrangements of
 /// each finished block of the permutation test (for a progress bar).
 ///
@@ -62,6 +77,42 @@ pub fn run_with_progress(
     source: &str,
     bytes: &[u8],
     progress: &(dyn Fn(u64) + Sync),
+) -> Result<FitReport> {
+    run_with_detail(settings, source, bytes, progress, Detail::Full)
+}
+
+/// [`run_with_progress`], building the report to `detail`.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_with_detail(
+    settings: &FitSettings,
+    source: &str,
+    bytes: &[u8],
+    progress: &(dyn Fn(u64) + Sync),
+    detail: Detail,
+) -> Result<FitReport> {
+    // The input's SHA-256 (for the report's reproducibility record) is
+    // computed on a thread of its own while the table is read and fitted.
+    std::thread::scope(|scope| {
+        let hash = scope.spawn(|| crate::support::hash::sha256_hex(bytes));
+        let sha256 = move || {
+            hash.join()
+                .unwrap_or_else(|_| crate::support::hash::sha256_hex(bytes))
+        };
+        stages(settings, source, bytes, progress, sha256, detail)
+    })
+}
+
+/// The stages of [`run_with_detail`]; `sha256` gives the input's hash
+/// when the report is assembled.
+fn stages(
+    settings: &FitSettings,
+    source: &str,
+    bytes: &[u8],
+    progress: &(dyn Fn(u64) + Sync),
+    sha256: impl FnOnce() -> String,
+    detail: Detail,
 ) -> Result<FitReport> {
     spread::check(settings)?;
     let columns = columns::read(settings, source, bytes)?;
@@ -124,7 +175,8 @@ pub fn run_with_progress(
     assemble::assemble(assemble::Parts {
         settings,
         source,
-        bytes,
+        sha256: sha256(),
+        detail,
         studies,
         terms: design.terms,
         moderators: design.moderators,

@@ -222,10 +222,28 @@ fn is_operator(word: &str) -> bool {
     )
 }
 
+/// A word longer than `width` cut into pieces of at most `width`
+/// characters: after the last path separator (`/` or `\\`) that fits, so a
+/// long file path breaks between its folders, or else at `width` itself.
+fn split_long(word: &str, width: usize) -> Vec<String> {
+    let width = width.max(1);
+    let mut rest: Vec<char> = word.chars().collect();
+    let mut pieces = Vec::new();
+    while rest.len() > width {
+        let cut = rest[..width]
+            .iter()
+            .rposition(|&c| c == '/' || c == '\\')
+            .map_or(width, |i| i + 1);
+        pieces.push(rest.drain(..cut).collect());
+    }
+    pieces.push(rest.into_iter().collect());
+    pieces
+}
+
 /// `text` wrapped at word boundaries into lines of at most `width`
-/// characters (a longer unbreakable run gets a line of its own), each line
-/// starting with `indent` and ending in a newline. A lone operator sign is
-/// kept together with the words on both sides of it.
+/// characters, each line starting with `indent` and ending in a newline.
+/// A word longer than a line (a long file path) is cut by [`split_long`].
+/// A lone operator sign is kept together with the words on both sides of it.
 pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
     let mut units: Vec<String> = Vec::new();
     let mut glue = false;
@@ -240,6 +258,17 @@ pub(super) fn wrap(text: &str, indent: &str, width: usize) -> String {
         }
         glue = op;
     }
+    let units: Vec<String> = units
+        .iter()
+        .flat_map(|u| {
+            // A unit glued around a relation sign ("p < 0.0001") stays whole.
+            if u.chars().count() > width && !u.contains(' ') {
+                split_long(u, width)
+            } else {
+                vec![u.clone()]
+            }
+        })
+        .collect();
     let mut out = String::new();
     let mut line = String::new();
     for unit in &units {
@@ -385,6 +414,24 @@ mod tests {
             "Laboratory…rrow 2019"
         );
         assert_eq!(clip("abcdef", 2), "a…");
+    }
+
+    #[test]
+    fn a_path_longer_than_a_line_breaks_between_folders() {
+        let path = "/work/a-checkout-with-a-long-name/pondus/data-examples/choir-participants.csv";
+        let w = wrap(&format!("{path} (427 rows read)"), "  ", 40);
+        for line in w.lines() {
+            assert!(line.chars().count() <= 42, "{w}");
+        }
+        // Every piece but the last ends at a separator; nothing is lost.
+        let joined: String = w.lines().map(str::trim).collect::<Vec<_>>().join(" ");
+        assert!(
+            joined.starts_with("/work/a-checkout-with-a-long-name/"),
+            "{w}"
+        );
+        assert_eq!(joined.replace("/ ", "/"), format!("{path} (427 rows read)"));
+        // A word without separators is cut at the width.
+        assert_eq!(wrap("abcdefghij", "", 4), "abcd\nefgh\nij\n");
     }
 
     #[test]

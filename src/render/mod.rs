@@ -23,6 +23,7 @@ pub mod json;
 pub mod layout;
 pub mod multilevel;
 pub mod obtained;
+pub mod one_stage;
 pub mod plan;
 pub mod sensitivity;
 pub mod sites;

@@ -86,6 +86,9 @@ pub fn render_at(r: &SitesReport, width: usize) -> String {
     if let Some(st) = &r.stages {
         stages(&mut o, r, st, width);
     }
+    if let Some(os) = &r.one_stage {
+        super::one_stage::render(&mut o, os, width);
+    }
     trim_lines(&o)
 }
 

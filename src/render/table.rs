@@ -80,11 +80,14 @@ fn most_moved(report: &FitReport, i: &crate::result::Influence) -> (String, Opti
 /// Writes one row per input row (included and excluded, in file order).
 /// Numbers are written with full precision (shortest round-trip form).
 ///
+/// Rows are written one at a time as they are built (the table is never
+/// held in memory): the order is decided first from the line numbers
+/// alone, a stable sort of the included rows followed by the excluded ones.
+///
 /// # Errors
 /// Any error of the writer.
 pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
     let mut w = csv::Writer::from_writer(out);
-    let art = report.artifacts.as_ref();
     let mut header: Vec<&str> = HEADER.to_vec();
     if report.leave_one_out.is_some() {
         header.extend(LOO_COLUMNS);
@@ -97,95 +100,108 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
         header.extend(SHRINK_COLUMNS);
     }
     // With artifact corrections, two columns more: the observed r and the SE factor.
-    if art.is_some() {
+    if report.artifacts.is_some() {
         header.extend(["observed_r", "se_factor"]);
     }
     let extra = header.len() - HEADER.len();
     w.write_record(&header)?;
-    let mut rows: Vec<(u64, Vec<String>)> = Vec::new();
-    for (n, s) in report.studies.iter().enumerate() {
-        let mut more = Vec::with_capacity(extra);
-        if let Some(l) = report.leave_one_out.as_ref().and_then(|x| x.get(n)) {
-            let changes: Vec<String> = l
-                .changes
-                .iter()
-                .map(|c| {
-                    let what = c.term.clone().unwrap_or_else(|| c.kind.id().into());
-                    let how = if c.significant_without {
-                        "gained"
-                    } else {
-                        "lost"
-                    };
-                    format!("{what}:{how}")
-                })
-                .collect();
-            more.extend([
-                opt(l.average),
-                opt(l.average_reading),
-                opt(l.tau2),
-                opt(l.moderator_p.or(l.average_p)),
-                cell(&changes.join(";")),
+    // (line, index): indices below the number of studies are included rows,
+    // the rest excluded ones; the sort is stable, as the old in-memory one was.
+    let studies = report.studies.len();
+    let mut order: Vec<(u64, usize)> = report
+        .studies
+        .iter()
+        .map(|s| s.line)
+        .chain(report.excluded.iter().map(|e| e.line))
+        .enumerate()
+        .map(|(i, line)| (line, i))
+        .collect();
+    order.sort_by_key(|r| r.0);
+    let mut row = Vec::with_capacity(header.len());
+    for (_, i) in order {
+        row.clear();
+        if i < studies {
+            study_row(report, i, shrink, &mut row);
+        } else {
+            let e = &report.excluded[i - studies];
+            row.extend([
+                cell(&e.study),
+                e.line.to_string(),
+                "no".into(),
+                cell(&e.reason),
             ]);
+            row.extend(std::iter::repeat_n(String::new(), 8 + extra));
         }
-        if let Some(i) = report.influence.as_ref().and_then(|x| x.get(n)) {
-            let (term, shift) = most_moved(report, i);
-            more.extend([
-                opt(i.average_without),
-                opt(i.average_shift),
-                opt(i.average_shift_reading),
-                cell(&term),
-                opt(shift),
-                opt(i.moderator_p_without),
-                opt(i.deleted_residual),
-                i.leverage.to_string(),
-                i.flags.iter().map(|f| f.id()).collect::<Vec<_>>().join(";"),
-            ]);
-        }
-        if let Some(sh) = s.shrunken.as_ref().filter(|_| shrink) {
-            more.extend([
-                sh.estimate.to_string(),
-                sh.se.to_string(),
-                sh.ci.ci_low.to_string(),
-                sh.ci.ci_high.to_string(),
-                sh.own_weight.to_string(),
-            ]);
-        }
-        let mut row = vec![
-            cell(&s.study),
-            s.line.to_string(),
-            "yes".into(),
-            String::new(),
-            s.effect.to_string(),
-            s.variance.to_string(),
-            s.weight.to_string(),
-            s.fitted.to_string(),
-            s.residual.to_string(),
-            s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
-            cell(s.note.as_deref().unwrap_or_default()),
-            s.computed_from.to_string(),
-        ];
-        row.extend(more);
-        rows.push((s.line, row));
-    }
-    if let Some(a) = art {
-        for (row, s) in rows.iter_mut().zip(&a.studies) {
-            row.1
-                .extend([s.observed_r.to_string(), s.se_factor.to_string()]);
-        }
-    }
-    for e in &report.excluded {
-        let mut row = vec![
-            cell(&e.study),
-            e.line.to_string(),
-            "no".into(),
-            cell(&e.reason),
-        ];
-        row.extend(std::iter::repeat_n(String::new(), 8 + extra));
-        rows.push((e.line, row));
-    }
-    rows.sort_by_key(|r| r.0);
-    for (_, r) in rows {
-        w.write_record(&r)?;
+        w.write_record(&row)?;
     }
     w.flush()
+}
+
+/// The cells of included study `n`: the fixed columns, then those of
+/// `--loo`, `--influence`, `--shrink` (when `shrink`) and the artifact
+/// corrections, as far as the report holds them.
+fn study_row(report: &FitReport, n: usize, shrink: bool, row: &mut Vec<String>) {
+    let s = &report.studies[n];
+    row.extend([
+        cell(&s.study),
+        s.line.to_string(),
+        "yes".into(),
+        String::new(),
+        s.effect.to_string(),
+        s.variance.to_string(),
+        s.weight.to_string(),
+        s.fitted.to_string(),
+        s.residual.to_string(),
+        s.std_residual.map(|r| r.to_string()).unwrap_or_default(),
+        cell(s.note.as_deref().unwrap_or_default()),
+        s.computed_from.to_string(),
+    ]);
+    if let Some(l) = report.leave_one_out.as_ref().and_then(|x| x.get(n)) {
+        let changes: Vec<String> = l
+            .changes
+            .iter()
+            .map(|c| {
+                let what = c.term.clone().unwrap_or_else(|| c.kind.id().into());
+                let how = if c.significant_without {
+                    "gained"
+                } else {
+                    "lost"
+                };
+                format!("{what}:{how}")
+            })
+            .collect();
+        row.extend([
+            opt(l.average),
+            opt(l.average_reading),
+            opt(l.tau2),
+            opt(l.moderator_p.or(l.average_p)),
+            cell(&changes.join(";")),
+        ]);
+    }
+    if let Some(i) = report.influence.as_ref().and_then(|x| x.get(n)) {
+        let (term, shift) = most_moved(report, i);
+        row.extend([
+            opt(i.average_without),
+            opt(i.average_shift),
+            opt(i.average_shift_reading),
+            cell(&term),
+            opt(shift),
+            opt(i.moderator_p_without),
+            opt(i.deleted_residual),
+            i.leverage.to_string(),
+            i.flags.iter().map(|f| f.id()).collect::<Vec<_>>().join(";"),
+        ]);
+    }
+    if let Some(sh) = s.shrunken.as_ref().filter(|_| shrink) {
+        row.extend([
+            sh.estimate.to_string(),
+            sh.se.to_string(),
+            sh.ci.ci_low.to_string(),
+            sh.ci.ci_high.to_string(),
+            sh.own_weight.to_string(),
+        ]);
+    }
+    if let Some(a) = report.artifacts.as_ref().and_then(|a| a.studies.get(n)) {
+        row.extend([a.observed_r.to_string(), a.se_factor.to_string()]);
+    }
 }

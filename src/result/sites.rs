@@ -90,6 +90,9 @@ pub struct SitesReport {
     pub notes: Vec<String>,
     /// The second stage (null without `--fit`).
     pub stages: Option<TwoStage>,
+    /// The one-stage model (present only with `--one-stage`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub one_stage: Option<super::OneStage>,
 }
 
 /// What `pondus sites` read.

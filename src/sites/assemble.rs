@@ -159,5 +159,6 @@ pub(super) fn finish(
         join: None,
         notes,
         stages: None,
+        one_stage: None,
     }
 }

@@ -75,6 +75,10 @@ fn headers_of(
 /// characteristics; table ids without an estimated site are listed. Both
 /// lists go into [`SiteJoin`]; nothing is dropped silently.
 ///
+/// Returns every row of the site table: id → its characteristics' cells in
+/// `join.columns` order (for the one-stage model, which also uses sites
+/// without a per-site estimate).
+///
 /// # Errors
 /// [`Error::MissingColumn`] when `key` is absent; [`Error::Cells`] for a
 /// missing or repeated id (with both lines, or both cells of a
@@ -87,7 +91,7 @@ pub fn join(
     key: &str,
     sheet: Option<&str>,
     decimal: Option<crate::input::number::DecimalMark>,
-) -> Result<()> {
+) -> Result<HashMap<String, Vec<String>>> {
     let (key_header, others) = headers_of(source, bytes, key, sheet)?;
     let mut requests = vec![ColumnRequest {
         header: key_header.clone(),
@@ -183,6 +187,15 @@ pub fn join(
             case_only.join(", ")
         ));
     }
+    let all = rows
+        .iter()
+        .map(|(id, &i)| {
+            let cells = (1..requests.len())
+                .map(|c| table.column(c).expect("required").get(i).to_string())
+                .collect();
+            (id.to_string(), cells)
+        })
+        .collect();
     report.join = Some(SiteJoin {
         file: source.to_string(),
         key: key_header,
@@ -190,5 +203,5 @@ pub fn join(
         without_info,
         info_only,
     });
-    Ok(())
+    Ok(all)
 }

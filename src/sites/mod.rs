@@ -28,6 +28,7 @@ pub mod levels;
 pub mod moments;
 pub mod moments_table;
 pub mod ols;
+pub mod one_stage;
 pub mod read;
 mod robust;
 mod settings;
@@ -35,6 +36,7 @@ pub mod stages;
 
 pub use assemble::sort_ids;
 pub use first_pass::{summarise_rows, SiteSummary, Summaries};
+pub use one_stage::SiteMoments;
 pub use settings::{Layout, SitesSettings};
 
 use crate::error::{Error, Result};
@@ -61,6 +63,30 @@ pub enum RowInput<'a> {
 /// Input errors with file, line and column; [`Error::Usage`] when HC3 is
 /// asked for on a stream that cannot be read twice.
 pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result<SitesReport> {
+    Ok(rows_keeping(source, input, s, false)?.0)
+}
+
+/// [`from_rows`], also returning every site's moments for the one-stage
+/// model ([`one_stage::fit`]).
+///
+/// # Errors
+/// Those of [`from_rows`].
+pub fn from_rows_with_moments(
+    source: &str,
+    input: RowInput<'_>,
+    s: &SitesSettings,
+) -> Result<(SitesReport, SiteMoments)> {
+    rows_keeping(source, input, s, true)
+}
+
+/// The per-site stage on participant rows; with `keep`, the sites' moments too
+/// (else an empty list).
+fn rows_keeping(
+    source: &str,
+    input: RowInput<'_>,
+    s: &SitesSettings,
+    keep: bool,
+) -> Result<(SitesReport, SiteMoments)> {
     check_effect(s, false)?;
     let open = |p: &Path| open_rows(source, p);
     let path = match &input {
@@ -94,6 +120,14 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         };
     let layout = summaries.layout;
     let pass = summaries.pass.clone();
+    let kept = SiteMoments {
+        layout,
+        sites: if keep {
+            summaries.sites.clone()
+        } else {
+            vec![]
+        },
+    };
     if s.effect != SiteMeasure::Slope {
         let coded = SitesSettings {
             treat: summaries.treat.clone(),
@@ -114,7 +148,7 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
         if let Some(note) = pass.decimal.as_ref().and_then(|d| d.note(source)) {
             report.notes.insert(0, note);
         }
-        return Ok(report);
+        return Ok((report, kept));
     }
     let (fitted, excluded) = fit_sites(summaries.sites, layout, s);
     let robust = match (&path, s.robust) {
@@ -129,7 +163,7 @@ pub fn from_rows(source: &str, input: RowInput<'_>, s: &SitesSettings) -> Result
     if let Some(note) = pass.decimal.as_ref().and_then(|d| d.note(source)) {
         report.notes.insert(0, note);
     }
-    Ok(report)
+    Ok((report, kept))
 }
 
 /// What a pass over participant rows read.
@@ -220,6 +254,19 @@ fn check_effect(s: &SitesSettings, moments: bool) -> Result<()> {
 /// # Errors
 /// Input errors of the table with line and column.
 pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<SitesReport> {
+    Ok(from_moments_keeping(source, bytes, s)?.0)
+}
+
+/// [`from_moments`], also returning every site's moments for the one-stage
+/// model ([`one_stage::fit`]).
+///
+/// # Errors
+/// Those of [`from_moments`].
+pub fn from_moments_keeping(
+    source: &str,
+    bytes: &[u8],
+    s: &SitesSettings,
+) -> Result<(SitesReport, SiteMoments)> {
     check_effect(s, true)?;
     if s.robust {
         return Err(Error::usage(
@@ -236,6 +283,10 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
     let (named, names_note) = moments_names(s, layout)?;
     let s = &named;
     let input_info = moments_input(source, &table);
+    let kept = SiteMoments {
+        layout,
+        sites: table.sites.clone(),
+    };
     let (fitted, excluded) = if s.effect == SiteMeasure::Slope {
         fit_sites(table.sites, layout, s)
     } else {
@@ -269,7 +320,7 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
         if let Some(note) = names_note {
             report.notes.insert(0, note);
         }
-        return Ok(report);
+        return Ok((report, kept));
     };
     let mut report = usable(
         source,
@@ -281,7 +332,7 @@ pub fn from_moments(source: &str, bytes: &[u8], s: &SitesSettings) -> Result<Sit
     if let Some(note) = names_note {
         report.notes.insert(0, note);
     }
-    Ok(report)
+    Ok((report, kept))
 }
 
 /// What a moments table held.

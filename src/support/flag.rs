@@ -136,6 +136,7 @@ flags! {
     Out => "--out", ["sites"];
     CenterWithin => "--center-within", ["sites"];
     Fit => "--fit", ["sites"];
+    OneStage => "--one-stage", ["sites"];
     OutDir => "--out-dir", ["manual"];
 }
 

@@ -105,7 +105,17 @@ fn colour_only_when_asked_or_on_a_terminal_without_no_color() {
 
 #[test]
 fn reports_share_one_look_and_stay_within_100_columns() {
-    let choir = repo("data-examples/choir-participants.csv");
+    // The data file sits in a folder whose path alone is wider than a line,
+    // as a deep checkout or a shared drive gives: the Data line must still
+    // wrap (between folders) within 100 columns.
+    let dir = TempDir::new().unwrap();
+    let deep = dir
+        .path()
+        .join("a-folder-name-long-enough-to-push-the-data-line-past-one-hundred-columns")
+        .join("and-one-more-level");
+    std::fs::create_dir_all(&deep).unwrap();
+    let choir = deep.join("choir-participants.csv");
+    std::fs::copy(repo("data-examples/choir-participants.csv"), &choir).unwrap();
     let sites = stdout(pondus().args([
         "sites",
         choir.to_str().unwrap(),

@@ -62,3 +62,34 @@ fn fit_json_is_byte_identical_with_one_and_two_threads() {
         );
     }
 }
+
+/// Issue 20: without per-study records (`Detail::Summary`, what the command
+/// line asks for when it writes nothing) the report is the full one with
+/// its `studies` left empty: every other number, message and excluded row
+/// is the same.
+#[test]
+fn a_report_without_per_study_records_differs_only_there() {
+    use pondus::fit::{run_with_detail, Detail};
+    use pondus::model::{tau2::Tau2Method, Inference};
+    let mut csv = table(300);
+    csv.push_str("s-missing,,0.1,1.0,a\n");
+    let s = crate::util::settings(
+        pondus::effect::Measure::Effect,
+        &["dose", "arm"],
+        Tau2Method::Reml,
+        Inference::Kh,
+    );
+    let mut s = s;
+    s.moderators[1].categorical = true;
+    let run = |d| run_with_detail(&s, "t.csv", csv.as_bytes(), &|_| {}, d).unwrap();
+    let mut full = run(Detail::Full);
+    let summary = run(Detail::Summary);
+    assert_eq!(full.studies.len(), 300);
+    assert!(summary.studies.is_empty());
+    assert_eq!(summary.excluded.len(), 1);
+    full.studies.clear();
+    assert_eq!(
+        serde_json::to_string(&full).unwrap(),
+        serde_json::to_string(&summary).unwrap()
+    );
+}

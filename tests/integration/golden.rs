@@ -89,6 +89,7 @@ const CASES: &[Case] = &[
         "fit choir-effects.csv --measure slope --moderator conductor_years",
         "fit choir-effects.csv --measure r --moderator conductor_years --json r.json",
     ] },
+    Case { id: "sites-choir-one-stage", steps: &["sites data-examples/choir-participants.csv --site choir --x rehearsal_hours --y breath_hold_s --w age --covariate wind --fit --one-stage --json sites.json --report choir.html"] },
     Case { id: "sites-robust-centred", steps: &["sites data-examples/choir-participants.csv --site choir --x rehearsal_hours --y breath_hold_s --w age --robust --center-within --out effects.csv --json sites.json"] },
     Case { id: "sites-moments", steps: &["sites --moments inputs/moments.csv --out effects.csv --json sites.json"] },
     // Two groups in every site (docs/sites.md): Hedges' g and log odds ratios.

@@ -14,6 +14,7 @@ mod heterogeneity;
 mod interpret;
 mod layout;
 mod multilevel;
+mod one_stage;
 mod parquet;
 mod plan;
 mod plots;

@@ -17,7 +17,7 @@ use groups::{
 use answers::AnswerArgs;
 
 use super::outputs::{self, Outputs, Target};
-use super::{invocation, io_err, json_bytes, with_progress};
+use super::{invocation, stream_json, with_progress};
 use clap::Args;
 use pondus::error::Result;
 use pondus::fit::{self, AnswerSettings, FitSettings};
@@ -200,16 +200,29 @@ impl FitArgs {
 /// Any library error.
 pub fn run_fit(run: &FitRun) -> Result<()> {
     let bytes = run.source.read_all()?;
+    // Nothing is written or printed (`--quiet` without outputs): the
+    // per-study records would never be read.
+    let nothing_shown = run.json.is_none()
+        && run.table.is_none()
+        && run.plots.is_empty()
+        && run.report.is_none()
+        && !run.text;
+    let detail = if nothing_shown {
+        fit::Detail::Summary
+    } else {
+        fit::Detail::Full
+    };
     let report = with_progress(
         run.settings
             .diagnostics
             .permutations
             .map(|p| p.permutations as u64),
         "permuting {bar:30} {pos}/{len} arrangements ({eta})",
-        |tick| fit::run_with_progress(&run.settings, &run.source.name(), &bytes, tick),
+        |tick| fit::run_with_detail(&run.settings, &run.source.name(), &bytes, tick, detail),
     )?;
-    // Every output is rendered before any is written (see `Outputs`), so an
-    // output the model cannot support leaves no partial set behind.
+    // Every output is rendered before any is placed (see `Outputs`: the
+    // streamed ones into their temporary files), so an output the model
+    // cannot support leaves no partial set behind.
     let mut drawn = Vec::with_capacity(run.plots.len());
     for p in &run.plots {
         let o = &run.plot_options;
@@ -229,13 +242,13 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
         drawn.push((flag, &p.target, bytes));
     }
     let mut out = Outputs::new();
+    // The JSON document and the per-study table grow with the studies:
+    // they are written straight into their temporary files.
     if let Some(t) = &run.json {
-        out.add("--json", t, json_bytes(&report)?);
+        out.add_streamed("--json", t, |w| stream_json(&report, w));
     }
     if let Some(t) = &run.table {
-        let mut buf = Vec::new();
-        render::table::write(&report, &mut buf).map_err(|e| io_err("table", e))?;
-        out.add("--table", t, buf);
+        out.add_streamed("--table", t, |w| render::table::write(&report, w));
     }
     for (flag, target, bytes) in drawn {
         out.add(flag, target, bytes);

@@ -23,6 +23,7 @@ mod figures;
 mod fit;
 mod interpretation;
 mod moderators;
+mod one_stage;
 mod page;
 mod plan;
 mod question;

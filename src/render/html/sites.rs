@@ -11,7 +11,7 @@ use crate::support::format::{self as fmt, num};
 use std::fmt::Write as _;
 
 /// The sections of the page, in order.
-fn sections<'a>() -> [Section<SitesCtx<'a>>; 6] {
+fn sections<'a>() -> [Section<SitesCtx<'a>>; 7] {
     [
         Section {
             id: "question",
@@ -30,6 +30,12 @@ fn sections<'a>() -> [Section<SitesCtx<'a>>; 6] {
             title: "Second stage",
             present: |cx| cx.report.stages.is_some(),
             render: stages,
+        },
+        Section {
+            id: "one-stage",
+            title: "One-stage model",
+            present: |cx| cx.report.one_stage.is_some(),
+            render: super::one_stage::one_stage,
         },
         Section {
             id: "plots",
