@@ -17,16 +17,17 @@ pub struct CellProblem {
     pub value: String,
     /// What is wrong and how to fix it.
     pub message: String,
-    /// The cell's spreadsheet address (`extraction!D14`); None for CSV.
+    /// Where the cell is when not on a CSV line: `cell extraction!D14` in
+    /// a spreadsheet, `row 14` in a Parquet file; None for CSV.
     pub cell: Option<String>,
 }
 
 impl fmt::Display for CellProblem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match &self.cell {
-            Some(cell) => write!(
+            Some(place) => write!(
                 f,
-                "cell {cell}, column '{}' (value '{}'): {}",
+                "{place}, column '{}' (value '{}'): {}",
                 self.column, self.value, self.message
             ),
             None => write!(

@@ -275,9 +275,7 @@ pub fn apply(
                             column: header.clone(),
                             value: shorten(text),
                             message: format!("{} for the {role} ({flag})", invalid_hint(text)),
-                            cell: table
-                                .column(first + j)
-                                .and_then(|c| table.cell_address(i, c)),
+                            cell: table.column(first + j).and_then(|c| table.cell_place(i, c)),
                         });
                     }
                     bad = true;
@@ -342,13 +340,7 @@ pub fn apply(
                 };
                 let (column, value, cell) = table
                     .column(col)
-                    .map(|c| {
-                        (
-                            c.header.clone(),
-                            shorten(c.get(i)),
-                            table.cell_address(i, c),
-                        )
-                    })
+                    .map(|c| (c.header.clone(), shorten(c.get(i)), table.cell_place(i, c)))
                     .unwrap_or_default();
                 total += 1;
                 if problems.len() < CellProblems::MAX_LISTED {

@@ -587,7 +587,7 @@ pub fn compute(
                             column: col.header.clone(),
                             value: shorten(text),
                             message: format!("{} for {}", invalid_hint(text), r.name),
-                            cell: table.cell_address(row, col),
+                            cell: table.cell_place(row, col),
                         },
                         &mut total,
                     );
@@ -607,7 +607,7 @@ pub fn compute(
                     Some(c) => (
                         c.header.clone(),
                         shorten(c.get(row)),
-                        table.cell_address(row, c),
+                        table.cell_place(row, c),
                     ),
                     None => (map.header(p.role), String::new(), None),
                 };

@@ -289,7 +289,11 @@ fn pick(mut all: Vec<String>, included: &[usize]) -> Vec<String> {
 /// The label of every row: the label cell, or "line N" when it (or the
 /// column) is missing ("row N" in a spreadsheet, N being the sheet's row).
 fn labels(table: &Table) -> Vec<String> {
-    let word = if table.sheet.is_some() { "row" } else { "line" };
+    let word = if table.sheet.is_some() || table.delimiter == crate::input::PARQUET {
+        "row"
+    } else {
+        "line"
+    };
     let number = |i: usize| format!("{word} {}", table.lines[i]);
     match table.column(0) {
         Some(c) => (0..table.len())

@@ -6,6 +6,7 @@
 
 mod decimal;
 pub mod number;
+pub mod parquet;
 mod places;
 pub mod sheet;
 
@@ -119,7 +120,8 @@ impl Column {
 pub struct Table {
     /// Name of the source, for messages.
     pub source: String,
-    /// The detected delimiter (0 for a spreadsheet).
+    /// The detected delimiter (0 for a spreadsheet, [`PARQUET`] for a
+    /// Parquet file).
     pub delimiter: u8,
     /// All headers of the file, trimmed.
     pub headers: Vec<String>,
@@ -176,11 +178,22 @@ impl Table {
         ))
     }
 
+    /// Where a cell is when messages name it other than by its CSV line:
+    /// `cell extraction!D14` in a spreadsheet, `row 14` in a Parquet file
+    /// (None for CSV).
+    pub fn cell_place(&self, row: usize, column: &Column) -> Option<String> {
+        if self.delimiter == PARQUET {
+            return Some(format!("row {}", self.lines[row]));
+        }
+        self.cell_address(row, column).map(|a| format!("cell {a}"))
+    }
+
     /// How messages about this table name its rows and cells.
     pub fn places(&self) -> Places {
         Places {
             sheet: self.sheet.clone(),
             headers: self.headers.clone(),
+            parquet: self.delimiter == PARQUET,
         }
     }
 
@@ -192,7 +205,7 @@ impl Table {
             column: column.header.clone(),
             value: crate::effect::shorten(column.get(row)),
             message: message.into(),
-            cell: self.cell_address(row, column),
+            cell: self.cell_place(row, column),
         }
     }
 }
@@ -209,16 +222,22 @@ pub enum Delimiter {
     Tab,
     /// None: the table was read from a spreadsheet (delimiter byte 0).
     Sheet,
+    /// None: the table was read from a Parquet file (delimiter byte 1).
+    Parquet,
 }
 
+/// The delimiter byte that marks a table read from a Parquet file.
+pub const PARQUET: u8 = 1;
+
 impl Delimiter {
-    /// The delimiter of the byte `b` (comma for any byte but `;`, tab and 0,
-    /// which marks a spreadsheet).
+    /// The delimiter of the byte `b` (comma for any byte but `;`, tab, 0,
+    /// which marks a spreadsheet, and [`PARQUET`]).
     pub fn of(b: u8) -> Self {
         match b {
             b';' => Delimiter::Semicolon,
             b'\t' => Delimiter::Tab,
             0 => Delimiter::Sheet,
+            PARQUET => Delimiter::Parquet,
             _ => Delimiter::Comma,
         }
     }
@@ -230,6 +249,7 @@ impl Delimiter {
             Delimiter::Semicolon => "semicolon",
             Delimiter::Tab => "tab",
             Delimiter::Sheet => "sheet",
+            Delimiter::Parquet => "parquet",
         }
     }
 }
@@ -448,12 +468,14 @@ pub fn parse_table_with(
     })
 }
 
-/// Reads a table from CSV bytes, or from a spreadsheet when the source's
+/// Reads a table from CSV bytes, from a spreadsheet when the source's
 /// name ends in `.xlsx`, `.xlsm`, `.xls` or `.ods` (sheet `sheet`, else the
-/// first), keeping the requested columns.
+/// first), or from a Parquet file when it ends in `.parquet`, keeping the
+/// requested columns.
 ///
 /// # Errors
-/// Those of [`parse_table`] and [`sheet::parse_sheet`].
+/// Those of [`parse_table`], [`sheet::parse_sheet`] and
+/// [`parquet::parse_parquet`].
 pub fn read_table(
     source: &str,
     bytes: &[u8],
@@ -463,6 +485,8 @@ pub fn read_table(
 ) -> Result<Table> {
     if sheet::is_spreadsheet(source) {
         sheet::parse_sheet(source, bytes, requests, sheet)
+    } else if parquet::is_parquet(source) {
+        parquet::parse_parquet(source, bytes, requests)
     } else {
         parse_table_with(source, bytes, requests, decimal)
     }

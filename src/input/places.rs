@@ -12,6 +12,8 @@ use super::{sheet, SheetOrigin};
 pub struct Places {
     pub(super) sheet: Option<SheetOrigin>,
     pub(super) headers: Vec<String>,
+    /// Whether the table is a Parquet file's (rows numbered 1, 2, ...).
+    pub(super) parquet: bool,
 }
 
 impl Places {
@@ -20,10 +22,12 @@ impl Places {
         Places::default()
     }
 
-    /// A row: `line 14`, or `extraction row 14` in a spreadsheet.
+    /// A row: `line 14`, `extraction row 14` in a spreadsheet, `row 14` in
+    /// a Parquet file.
     pub fn row(&self, line: u64) -> String {
         match &self.sheet {
             Some(s) => format!("{} row {line}", sheet::quoted_name(&s.name)),
+            None if self.parquet => format!("row {line}"),
             None => format!("line {line}"),
         }
     }
@@ -40,7 +44,7 @@ impl Places {
                 ),
                 None => format!("{}, column '{header}'", self.row(line)),
             },
-            None => format!("line {line}, column '{header}'"),
+            None => format!("{}, column '{header}'", self.row(line)),
         }
     }
 

@@ -185,7 +185,7 @@ pub struct ToolInfo {
 pub struct InputInfo {
     /// File name as given (`<stdin>` for standard input).
     pub file: String,
-    /// Detected delimiter: "comma", "semicolon" or "tab"; "sheet" for a spreadsheet.
+    /// Detected delimiter: "comma", "semicolon" or "tab"; "sheet" for a spreadsheet, "parquet" for a Parquet file.
     pub delimiter: Delimiter,
     /// The sheet read from a spreadsheet (omitted for CSV).
     #[serde(skip_serializing_if = "Option::is_none")]

@@ -102,7 +102,7 @@ pub struct SitesInput {
     pub file: String,
     /// "rows" (participant rows) or "moments" (a per-site moments table).
     pub kind: SitesInputKind,
-    /// Detected delimiter: "comma", "semicolon" or "tab".
+    /// Detected delimiter: "comma", "semicolon" or "tab"; "parquet" for a Parquet file.
     pub delimiter: Delimiter,
     /// Data rows read (participants, or sites for a moments table).
     pub rows: u64,

@@ -109,9 +109,14 @@ pub(super) fn finish(
     sort_ids(&mut excluded, |e| e.study.as_str());
     if input.missing_rows > 0 {
         notes.push(format!(
-            "{} row{} left out for an empty or missing-mark value in a needed column (first lines: {}).",
+            "{} row{} left out for an empty or missing-mark value in a needed column (first {}: {}).",
             input.missing_rows,
             if input.missing_rows == 1 { "" } else { "s" },
+            if input.delimiter == crate::input::Delimiter::Parquet {
+                "rows"
+            } else {
+                "lines"
+            },
             input
                 .missing_lines
                 .iter()

@@ -51,7 +51,11 @@ fn moment_vector(layout: Layout, values: &[f64], v: &mut [f64]) {
 /// # Errors
 /// Input errors from [`read::for_each_row`]; [`Error::Model`] when x takes
 /// one value in every row of the file.
-pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Result<Summaries> {
+pub fn summarise_rows<R: Read>(
+    source: &str,
+    input: read::RowStream<R>,
+    s: &SitesSettings,
+) -> Result<Summaries> {
     let layout = Layout {
         covariates: s.covariates.len(),
         with_w: s.w.is_some(),
@@ -68,7 +72,7 @@ pub fn summarise_rows<R: Read>(source: &str, input: R, s: &SitesSettings) -> Res
     let mut v = vec![0.0; layout.dim()];
     let mut first_x: Option<f64> = None;
     let mut x_varies = false;
-    let pass = read::for_each_row(source, input, &cols, |_, id, values| {
+    let pass = read::for_each(source, input, &cols, |_, id, values| {
         let ix = index.find_or_insert(id, |id| {
             sites.push(SiteSummary {
                 id: String::from_utf8_lossy(id).into_owned(),

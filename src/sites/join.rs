@@ -124,7 +124,7 @@ pub fn join(
         if let Some(&first) = rows.get(id) {
             let before = match table.cell_address(first, ids) {
                 Some(cell) => format!("at cell {cell}"),
-                None => format!("on line {}", table.lines[first]),
+                None => format!("on {}", table.places().row(table.lines[first])),
             };
             problems.push(table.problem(
                 i,

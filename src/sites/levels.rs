@@ -35,6 +35,9 @@ pub struct Coding {
     /// column repeats a few spellings, so most cells are found here
     /// without building their key.
     cache: Vec<(Vec<u8>, f64)>,
+    /// How the places in [`Coding::seen`] are named: "line" (CSV) or "row"
+    /// (Parquet).
+    place_word: &'static str,
 }
 
 /// The comparison key of a cell: a number in its shortest form (so `1`,
@@ -62,7 +65,14 @@ impl Coding {
             seen: Vec::new(),
             more: false,
             cache: Vec::new(),
+            place_word: "line",
         }
+    }
+
+    /// Names the places of the values met as rows (a Parquet file's row
+    /// numbers) instead of lines.
+    pub fn in_rows(&mut self) {
+        self.place_word = "row";
     }
 
     /// The column's own flag: `--x` for the group, `--y` for the outcome.
@@ -113,7 +123,7 @@ impl Coding {
         let mut s = self
             .seen
             .iter()
-            .map(|(v, l)| format!("'{v}' (line {l})"))
+            .map(|(v, l)| format!("'{v}' ({} {l})", self.place_word))
             .collect::<Vec<_>>()
             .join(", ");
         if self.more {

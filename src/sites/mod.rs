@@ -116,7 +116,7 @@ fn rows_keeping(
                  second time, and standard input cannot be read twice; save the data to a file and \
                  give its path",
             )),
-            RowInput::Stream(r) => summarise_rows(source, r, s)?,
+            RowInput::Stream(r) => summarise_rows(source, read::RowStream::Csv(r), s)?,
         };
     let layout = summaries.layout;
     let pass = summaries.pass.clone();
@@ -433,11 +433,27 @@ fn moments_names(s: &SitesSettings, layout: Layout) -> Result<(SitesSettings, Op
     Ok((named, note))
 }
 
-/// Opens the row file for one pass.
+/// Opens the row file for one pass: as Parquet when its name ends in
+/// `.parquet`, else as CSV.
 ///
 /// # Errors
 /// [`Error::Format`] for a directory; [`Error::Io`] when it cannot be opened.
-fn open_rows(source: &str, p: &Path) -> Result<std::fs::File> {
+fn open_rows(source: &str, p: &Path) -> Result<read::RowStream<std::fs::File>> {
+    let file = open_file(source, p)?;
+    Ok(
+        if crate::input::parquet::is_parquet(&p.display().to_string()) {
+            read::RowStream::Parquet(file)
+        } else {
+            read::RowStream::Csv(file)
+        },
+    )
+}
+
+/// Opens a file for reading.
+///
+/// # Errors
+/// [`Error::Format`] for a directory; [`Error::Io`] when it cannot be opened.
+fn open_file(source: &str, p: &Path) -> Result<std::fs::File> {
     if p.is_dir() {
         return Err(Error::Format {
             source_name: source.to_string(),

@@ -91,10 +91,10 @@ pub fn read_moments(
     bytes: &[u8],
     decimal: Option<crate::input::number::DecimalMark>,
 ) -> Result<MomentsTable> {
-    let layout = layout_of(&input::parse_table(source, bytes, &[])?.headers);
+    let layout = layout_of(&input::read_table(source, bytes, &[], None, None)?.headers);
     let d = layout.dim();
     let reqs = column_requests(layout);
-    let table = input::parse_table_with(source, bytes, &reqs, decimal)?;
+    let table = input::read_table(source, bytes, &reqs, None, decimal)?;
     let mut problems = Vec::new();
     let mut total = 0usize;
     let mut push = |p: CellProblem| {
@@ -109,6 +109,7 @@ pub fn read_moments(
         let line = table.lines[row];
         let cell = |c: usize| table.column(c).expect("required").get(row);
         let header = |c: usize| table.column(c).expect("required").header.clone();
+        let place = |c: usize| table.column(c).and_then(|col| table.cell_place(row, col));
         let id = cell(0).to_string();
         if id.is_empty() {
             push(CellProblem {
@@ -116,7 +117,7 @@ pub fn read_moments(
                 column: header(0),
                 value: String::new(),
                 message: "the site id is missing (a NULL site in the source table); give those rows a site id, or filter them out, and run the query again".into(),
-                cell: None,
+                cell: place(0),
             });
             continue;
         }
@@ -125,8 +126,8 @@ pub fn read_moments(
                 line,
                 column: header(0),
                 value: id.clone(),
-                message: format!("site '{id}' already has a row on line {first}; the query groups by site, so each site has one row"),
-                cell: None,
+                message: format!("site '{id}' already has a row on {}; the query groups by site, so each site has one row", table.places().row(first)),
+                cell: place(0),
             });
             continue;
         }
@@ -142,7 +143,7 @@ pub fn read_moments(
                         column: header(c),
                         value: cell(c).chars().take(40).collect(),
                         message: "not a finite number; the moments table holds numbers only".into(),
-                        cell: None,
+                        cell: place(c),
                     });
                 }
             }
@@ -157,7 +158,7 @@ pub fn read_moments(
                 column: header(1),
                 value: cell(1).to_string(),
                 message: "the row count must be a positive whole number".into(),
-                cell: None,
+                cell: place(1),
             });
             continue;
         }
@@ -182,7 +183,7 @@ pub fn read_moments(
                 column: header(c),
                 value: cell(c).to_string(),
                 message: "a variance cannot be negative".into(),
-                cell: None,
+                cell: place(c),
             });
             continue;
         }

@@ -5,6 +5,7 @@ use super::decimal::StreamDecimal;
 use super::levels::Coding;
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, Cell, DecimalMark};
+use crate::input::parquet as parquet_input;
 use crate::input::DecimalChoice;
 use crate::input::{check_unique, format_error, read_headers};
 use crate::input::{detect_delimiter, find_header, separator_text};
@@ -276,7 +277,7 @@ enum RowCheck {
 #[inline]
 fn check_row(
     record: &csv::ByteRecord,
-    (source, line): (&str, u64),
+    (source, line, word): (&str, u64, &'static str),
     (site_ix, num_ix): (usize, &[usize]),
     headers: &[String],
     values: &mut [f64],
@@ -304,7 +305,7 @@ fn check_row(
             Cell::Value(v) => values[k] = v,
             Cell::Missing => missing = true,
             Cell::Invalid if advice == Some(k) => {
-                return Err(text_x(&headers[i], cell, line));
+                return Err(text_x(&headers[i], cell, (word, line)));
             }
             Cell::Invalid => {
                 bad = true;
@@ -354,7 +355,7 @@ fn check_row(
 }
 
 /// The one message for a text cell in the x column of a slope run.
-fn text_x(header: &str, cell: &[u8], line: u64) -> Error {
+fn text_x(header: &str, cell: &[u8], (word, line): (&str, u64)) -> Error {
     let text: String = String::from_utf8_lossy(cell)
         .trim()
         .chars()
@@ -363,7 +364,7 @@ fn text_x(header: &str, cell: &[u8], line: u64) -> Error {
     Error::usage(
         Flag::X,
         format!(
-            "column '{header}' holds text ('{text}' on line {line}), and a slope needs numbers. To \
+            "column '{header}' holds text ('{text}' on {word} {line}), and a slope needs numbers. To \
              compare two groups, code them 0/1 (1 = treatment), or add {} smd (Hedges' g) or {} \
              log-or (a binary outcome) with {} LEVEL naming the treatment group",
             Flag::Effect,
@@ -371,6 +372,141 @@ fn text_x(header: &str, cell: &[u8], line: u64) -> Error {
             Flag::Treat
         ),
     )
+}
+
+/// Where a pass reads its rows from.
+pub enum RowStream<R> {
+    /// CSV text (a file or standard input).
+    Csv(R),
+    /// A Parquet file (read by position, so a file only).
+    Parquet(std::fs::File),
+}
+
+/// [`for_each_row`] or [`for_each_parquet_row`], as `input` is.
+///
+/// # Errors
+/// Those of the two.
+pub fn for_each<R: Read>(
+    source: &str,
+    input: RowStream<R>,
+    cols: &RowColumns,
+    row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<PassSummary> {
+    match input {
+        RowStream::Csv(r) => for_each_row(source, r, cols, row),
+        RowStream::Parquet(f) => for_each_parquet_row(source, f, cols, row),
+    }
+}
+
+/// A source of records for a pass: CSV rows, or a Parquet file's rows.
+trait Records {
+    /// Every column name of the file, trimmed.
+    fn headers(&self) -> &[String];
+    /// The delimiter byte (see [`crate::input::Delimiter::of`]).
+    fn delimiter(&self) -> u8;
+    /// Starts reading the columns at header positions `ix`; returns the
+    /// position of each in the records handed out and the column name of
+    /// every record position.
+    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)>;
+    /// Reads the next record; its line (row) number, None at the end.
+    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>>;
+    /// How a problem's place is named besides its line (None: `line N`).
+    fn place(&self, line: u64) -> Option<String>;
+    /// The word for a place in messages: "line" or "row".
+    fn word(&self) -> &'static str;
+}
+
+/// CSV rows through the line-break counter.
+struct CsvRecords<R: Read> {
+    source: String,
+    reader: RowReader<R>,
+    headers: Vec<String>,
+    delimiter: u8,
+}
+
+impl<R: Read> Records for CsvRecords<R> {
+    fn headers(&self) -> &[String] {
+        &self.headers
+    }
+    fn delimiter(&self) -> u8 {
+        self.delimiter
+    }
+    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)> {
+        Ok((ix.to_vec(), self.headers.clone()))
+    }
+    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>> {
+        if !next_record(&self.source, &mut self.reader, record)? {
+            return Ok(None);
+        }
+        Ok(Some(match record.position() {
+            Some(p) => self.reader.get_mut().line_at(p.byte()),
+            None => 0,
+        }))
+    }
+    fn place(&self, _line: u64) -> Option<String> {
+        None
+    }
+    fn word(&self) -> &'static str {
+        "line"
+    }
+}
+
+/// A Parquet file's rows, batch by batch ([`crate::input::parquet`]).
+struct ParquetRecords {
+    headers: Vec<String>,
+    file: Option<parquet_input::ParquetFile<std::fs::File>>,
+    batches: Option<parquet_input::Batches<std::fs::File>>,
+    batch: parquet_input::Batch,
+    at: usize,
+    width: usize,
+}
+
+impl Records for ParquetRecords {
+    fn headers(&self) -> &[String] {
+        &self.headers
+    }
+    fn delimiter(&self) -> u8 {
+        crate::input::PARQUET
+    }
+    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)> {
+        let mut wanted = ix.to_vec();
+        wanted.sort_unstable();
+        wanted.dedup();
+        let positions = ix
+            .iter()
+            .map(|i| wanted.iter().position(|w| w == i).unwrap_or(0))
+            .collect();
+        let names = wanted.iter().map(|&i| self.headers[i].clone()).collect();
+        if let Some(file) = self.file.take() {
+            self.batches = Some(file.batches(&wanted)?);
+        }
+        self.width = wanted.len();
+        Ok((positions, names))
+    }
+    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>> {
+        let Some(batches) = self.batches.as_mut() else {
+            return Ok(None);
+        };
+        if self.at >= self.batch.len {
+            if !batches.next(&mut self.batch)? {
+                return Ok(None);
+            }
+            self.at = 0;
+        }
+        record.clear();
+        for k in 0..self.width {
+            record.push_field(self.batch.cell(k, self.at));
+        }
+        let row = self.batch.first_row + self.at as u64;
+        self.at += 1;
+        Ok(Some(row))
+    }
+    fn place(&self, line: u64) -> Option<String> {
+        Some(format!("row {line}"))
+    }
+    fn word(&self) -> &'static str {
+        "row"
+    }
 }
 
 /// Reads CSV rows from `input` and hands each usable row to `row` as
@@ -388,20 +524,68 @@ pub fn for_each_row<R: Read>(
     source: &str,
     input: R,
     cols: &RowColumns,
-    mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+    row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
 ) -> Result<PassSummary> {
     let (mut reader, delimiter) = open(source, input)?;
     let headers = read_headers(source, &mut reader)?;
-    let site_ix = locate(source, &headers, &cols.site, Flag::Site)?;
-    let mut num_ix = Vec::with_capacity(cols.numeric.len());
+    let records = CsvRecords {
+        source: source.to_string(),
+        reader,
+        headers,
+        delimiter,
+    };
+    pass(source, records, cols, row)
+}
+
+/// [`for_each_row`] for a Parquet file: the rows are numbered 1, 2, ...
+/// within the file, nulls are missing values, and the needed columns are
+/// read batch by batch ([`crate::input::parquet`]).
+///
+/// # Errors
+/// Those of [`for_each_row`]; [`Error::Format`] for a file that is not
+/// readable Parquet or a needed column of a type pondus does not read.
+pub fn for_each_parquet_row(
+    source: &str,
+    file: std::fs::File,
+    cols: &RowColumns,
+    row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<PassSummary> {
+    let file = parquet_input::ParquetFile::open(source, file)?;
+    let records = ParquetRecords {
+        headers: file.headers().to_vec(),
+        file: Some(file),
+        batches: None,
+        batch: parquet_input::Batch::default(),
+        at: 0,
+        width: 0,
+    };
+    pass(source, records, cols, row)
+}
+
+/// One pass over the records of `records` (see [`for_each_row`]).
+fn pass(
+    source: &str,
+    mut records: impl Records,
+    cols: &RowColumns,
+    mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<PassSummary> {
+    let delimiter = records.delimiter();
+    let headers = records.headers().to_vec();
+    let mut wanted = vec![locate(source, &headers, &cols.site, Flag::Site)?];
     for (h, flag) in &cols.numeric {
-        num_ix.push(locate(source, &headers, h, *flag)?);
+        wanted.push(locate(source, &headers, h, *flag)?);
     }
+    let (positions, names) = records.select(&wanted)?;
+    let site_ix = positions[0];
+    let num_ix = &positions[1..];
     let mut summary = PassSummary {
         delimiter,
         ..PassSummary::default()
     };
     let mut coded = cols.coded.clone();
+    if records.word() == "row" {
+        coded.iter_mut().flatten().for_each(Coding::in_rows);
+    }
     let advice = cols
         .text_x_advice
         .then(|| cols.numeric.iter().position(|(_, f)| *f == Flag::X))
@@ -410,12 +594,8 @@ pub fn for_each_row<R: Read>(
     let mut dec = StreamDecimal::new(cols.decimal, delimiter);
     let mut record = csv::ByteRecord::new();
     let mut values = vec![0.0; num_ix.len()];
-    let width = headers.len();
-    while next_record(source, &mut reader, &mut record)? {
-        let line = match record.position() {
-            Some(p) => reader.get_mut().line_at(p.byte()),
-            None => 0,
-        };
+    let width = names.len();
+    while let Some(line) = records.next(&mut record)? {
         if record.len() != width {
             if record
                 .iter()
@@ -435,14 +615,20 @@ pub fn for_each_row<R: Read>(
             ));
         }
         summary.rows += 1;
+        let before = problems.list.len();
         let check = check_row(
             &record,
-            (source, line),
-            (site_ix, &num_ix),
-            &headers,
+            (source, line, records.word()),
+            (site_ix, num_ix),
+            &names,
             &mut values,
             (&mut problems, &mut dec, &mut coded, advice),
         )?;
+        if let Some(place) = records.place(line) {
+            for p in &mut problems.list[before..] {
+                p.cell = Some(place.clone());
+            }
+        }
         match check {
             RowCheck::Blank => {
                 summary.rows -= 1;

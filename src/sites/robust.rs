@@ -22,7 +22,7 @@ pub(super) struct RobustSite {
 /// The second pass: HC3 sums for every fitted site.
 pub(super) fn robust_pass<R: Read>(
     source: &str,
-    input: R,
+    input: read::RowStream<R>,
     s: &SitesSettings,
     layout: Layout,
     fitted: &[Fitted],
@@ -51,7 +51,7 @@ pub(super) fn robust_pass<R: Read>(
     let k = layout.covariates;
     let mut z = vec![0.0; layout.dim()];
     let center = s.center_within;
-    let pass = read::for_each_row(source, input, &row_columns(s), |_, id, values| {
+    let pass = read::for_each(source, input, &row_columns(s), |_, id, values| {
         let ix = index.find_or_insert(id, |id| {
             std::str::from_utf8(id)
                 .ok()

@@ -111,7 +111,18 @@ pub(crate) const CASES: &[Case] = &[
     Case { id: "sheet-unknown", what: "--sheet names no sheet of the workbook", args: "fit {repo}/tests/data/routes/smd-routes.xls --sheet nope", input: None, stdin: b"", code: 2, words: &["no sheet named 'nope'", "extraction, typos, shifted"] },
     Case { id: "sheet-on-csv", what: "--sheet with a CSV file", args: "fit {in} --sheet extraction", input: Some(PLAIN), stdin: b"", code: 2, words: &["--sheet", "not a spreadsheet"] },
     Case { id: "sheet-not-a-workbook", what: "a CSV file saved under a .xlsx name", args: "fit {in.xlsx}", input: Some(PLAIN), stdin: b"", code: 2, words: &["cannot be read as a spreadsheet"] },
+    Case { id: "parquet-bad-cells", what: "a Parquet file with a null site id and text in a numeric column", args: "sites {repo}/tests/data/parquet/bad-cells.parquet --site site --x y --y x --out {dir}/e.csv", input: None, stdin: b"", code: 2, words: &["bad-cells.parquet", "row 7, column 'site'", "row 23, column 'x' (value 'abc')"] },
+    Case { id: "parquet-date-column", what: "a Parquet date column given as a number", args: "sites {repo}/tests/data/parquet/bad-types.parquet --site site --x when --y y --out {dir}/e.csv", input: None, stdin: b"", code: 2, words: &["column 'when'", "Parquet type date"] },
+    Case { id: "parquet-nested-column", what: "a Parquet list column given as a number", args: "sites {repo}/tests/data/parquet/bad-types.parquet --site site --x tags --y y --out {dir}/e.csv", input: None, stdin: b"", code: 2, words: &["column 'tags'", "nested"] },
+    Case { id: "parquet-codec", what: "a Parquet file compressed with zstd", args: "sites {repo}/tests/data/parquet/participants-zstd.parquet --site site --x x --y y --out {dir}/e.csv", input: None, stdin: b"", code: 2, words: &["zstd", "Snappy"] },
+    Case { id: "parquet-cut-short", what: "a Parquet file cut short (its footer lost)", args: "sites {in.parquet} --site site --x x --y y --out {dir}/e.csv", input: Some(PARQUET_CUT), stdin: b"", code: 2, words: &["cannot be read as Parquet", "written completely"] },
+    Case { id: "parquet-not-parquet", what: "a CSV file saved under a .parquet name", args: "fit {in.parquet}", input: Some(PLAIN), stdin: b"", code: 2, words: &["cannot be read as Parquet"] },
 ];
+
+/// The first 30,000 bytes of the participant-rows Parquet fixture.
+const PARQUET_CUT: &[u8] = include_bytes!("../data/parquet/participants.parquet")
+    .split_at(30_000)
+    .0;
 
 /// The site table of `sites-duplicate-ids`.
 const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
@@ -119,9 +130,10 @@ const INFO_DUPLICATE: &[u8] = b"site,size\ns1,10\ns1,12\n";
 /// Runs one case; returns the exit code and stderr.
 pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
-    let named_xlsx = case.args.contains("{in.xlsx}");
-    let input = dir.path().join(if named_xlsx {
+    let input = dir.path().join(if case.args.contains("{in.xlsx}") {
         "input.xlsx"
+    } else if case.args.contains("{in.parquet}") {
+        "input.parquet"
     } else {
         "input.csv"
     });
@@ -135,6 +147,7 @@ pub(crate) fn run(case: &Case) -> (Option<i32>, String) {
         .iter()
         .map(|a| {
             a.replace("{in.xlsx}", &input.display().to_string())
+                .replace("{in.parquet}", &input.display().to_string())
                 .replace("{in}", &input.display().to_string())
                 .replace("{dir}", &dir.path().display().to_string())
                 .replace("{repo}", &root)

@@ -16,6 +16,7 @@ mod interpret;
 mod layout;
 mod multilevel;
 mod one_stage;
+mod parquet;
 mod plan;
 mod plots;
 mod properties;
