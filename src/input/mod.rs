@@ -521,8 +521,8 @@ pub fn read_headers<R: std::io::Read>(
 }
 
 /// The header index of each requested column (None for an optional column
-/// that is absent).
-fn match_requests(
+/// that is absent), the same for every format (CSV, spreadsheets, Parquet).
+pub(crate) fn match_requests(
     source: &str,
     headers: &[String],
     requests: &[ColumnRequest],

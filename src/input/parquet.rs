@@ -13,7 +13,7 @@
 //! so memory is bounded by a batch and the page being decoded in each needed
 //! column (at most that column's chunk of one row group), not by the file.
 
-use super::{check_unique, find_header, format_error, Column, ColumnRequest, Table};
+use super::{find_header, format_error, Column, ColumnRequest, Table};
 use crate::error::{Error, Result};
 use parquet::basic::{Compression, ConvertedType, LogicalType, Type as Physical};
 use parquet::column::reader::ColumnReader;
@@ -513,25 +513,7 @@ fn decimal_text(t: &mut Vec<u8>, unscaled: i128, scale: i32) {
 pub fn parse_parquet(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> Result<Table> {
     let file = ParquetFile::open(source, bytes::Bytes::copy_from_slice(bytes))?;
     let headers = file.headers().to_vec();
-    let mut indices = Vec::with_capacity(requests.len());
-    for req in requests {
-        match file.find(&req.header) {
-            Some(i) => {
-                check_unique(source, &headers, i)?;
-                indices.push(Some(i));
-            }
-            None if req.required => {
-                return Err(Error::MissingColumn {
-                    source_name: source.to_string(),
-                    column: req.header.clone(),
-                    purpose: req.purpose.clone(),
-                    available: headers.join(", "),
-                    hint: req.hint.clone(),
-                })
-            }
-            None => indices.push(None),
-        }
-    }
+    let indices = super::match_requests(source, &headers, requests)?;
     // Each distinct column is read once; `slot` maps a request to it.
     let mut wanted: Vec<usize> = indices.iter().flatten().copied().collect();
     wanted.sort_unstable();

@@ -5,8 +5,8 @@
 //! and the missing marks behave exactly as in CSV. Row numbers are the
 //! sheet's own, and messages name cells as `sheet!D14`.
 
-use super::{find_header, format_error, Column, ColumnRequest, SheetOrigin, Table};
-use crate::error::{Error, Result};
+use super::{format_error, Column, ColumnRequest, SheetOrigin, Table};
+use crate::error::Result;
 use calamine::{open_workbook_auto_from_rs, Data, Reader};
 use std::io::Cursor;
 
@@ -138,25 +138,7 @@ pub fn parse_sheet(
         .iter()
         .map(|d| cell_text(d).trim().to_string())
         .collect();
-    let mut indices = Vec::with_capacity(requests.len());
-    for req in requests {
-        match find_header(&headers, &req.header) {
-            Some(i) => {
-                super::check_unique(source, &headers, i)?;
-                indices.push(Some(i));
-            }
-            None if req.required => {
-                return Err(Error::MissingColumn {
-                    source_name: source.to_string(),
-                    column: req.header.clone(),
-                    purpose: req.purpose.clone(),
-                    available: headers.join(", "),
-                    hint: req.hint.clone(),
-                })
-            }
-            None => indices.push(None),
-        }
-    }
+    let indices = super::match_requests(source, &headers, requests)?;
     let mut columns: Vec<Option<Column>> = indices
         .iter()
         .map(|ix| {
