@@ -115,9 +115,9 @@ fn open_sheet(
 /// keeps the requested columns.
 ///
 /// # Errors
-/// [`Error::Format`] when the bytes are not a workbook calamine can read,
+/// [`Error::Format`](crate::error::Error::Format) when the bytes are not a workbook calamine can read,
 /// the sheet does not exist (the message lists the sheets), or the sheet
-/// has no header or no data rows; [`Error::MissingColumn`] when a required
+/// has no header or no data rows; [`Error::MissingColumn`](crate::error::Error::MissingColumn) when a required
 /// column is absent.
 pub fn parse_sheet(
     source: &str,

@@ -21,7 +21,7 @@ pub const CSS_DPI: f64 = 96.0;
 
 /// The largest PNG drawn, in pixels: every figure of the default width up
 /// to the largest height (30,000 CSS pixels) at 300 dpi. The picture is
-/// drawn in strips of at most [`STRIP_PIXELS`] pixels, so memory does not
+/// drawn in strips of at most 8 megapixels (`STRIP_PIXELS`), so memory does not
 /// grow with it; the limit bounds the time and the file instead.
 pub const MAX_PNG_PIXELS: u64 = 300_000_000;
 

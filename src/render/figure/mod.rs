@@ -489,7 +489,7 @@ pub(crate) fn wrap_or_fit(text: &str, size: f64, max: f64) -> Vec<String> {
 }
 
 /// The em of the figures' ordinary text (tick labels, legends, captions)
-/// when `--font-size` is not given, in points: [`size::SMALL`] / 1.24
+/// when `--font-size` is not given, in points: `size::SMALL` / 1.24
 /// pixels at 96 pixels per inch, 72 points per inch, so 7.56 points.
 pub const DEFAULT_TEXT_PT: f64 = size::SMALL / 1.24 * 72.0 / 96.0;
 
