@@ -69,6 +69,15 @@ fn figures() -> Vec<Figure> {
                 .into(),
             ordinary: "",
         },
+        // The solved k (33) near the largest k shown (42): its label must
+        // not run off the right edge at a large size.
+        Figure {
+            name: "power curve, k needed near the right edge",
+            args: "plan --measure r --k 20 --n 50 --tau2 0.02 --share 0.5 \
+                   --moderator-effect 0.2 --test z --target-power 0.8 -q --curve OUT"
+                .into(),
+            ordinary: "",
+        },
     ]
 }
 

@@ -141,12 +141,21 @@ pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
             1,
             (6.0, 4.0),
         );
+        // Power grows with k, so the curve usually runs below the target on
+        // the left and above it on the right: the label goes where the line
+        // is clear of the curve (left end when the curve starts below it).
+        let starts_below = r.table.first().is_some_and(|p| p.power < t);
+        let (at, align) = if starts_below {
+            ((frame.x0 + 6.0 * k, y - 10.0 * k), Align::Left)
+        } else {
+            ((frame.x1, y - 10.0 * k), Align::Right)
+        };
         sc.text(
-            (frame.x1, y - 10.0 * k),
+            at,
             format!("target {t}"),
             size::SMALL * k,
             palette::MUTED,
-            Align::Right,
+            align,
         );
     }
     let pts: Vec<(f64, f64)> = r
@@ -238,13 +247,23 @@ fn solved_and_simulated(sc: &mut Scene, r: &PlanReport, frame: &Frame, sims: &[(
                 Some((palette::POOLED, 1.0)),
                 Some((palette::INK, 1)),
             );
-            sc.text(
-                (x + 9.0, y + 12.0 * frame.k),
-                format!("k needed = {kn}"),
-                size::SMALL * frame.k,
-                palette::POOLED,
-                Align::Left,
-            );
+            // Below the line right of the marker; when that would run past
+            // the plot's right edge (a solved k near the largest k shown),
+            // above the line left of it, where the rising curve is below the
+            // line, unless the target's label (left end, above) is in the way.
+            let k = frame.k;
+            let label = format!("k needed = {kn}");
+            let sz = size::SMALL * k;
+            let w = text_width(&label, sz);
+            let target_end = frame.x0 + 6.0 * k + text_width(&format!("target {t}"), sz);
+            let (at, align) = if x + 9.0 + w <= frame.x1 {
+                ((x + 9.0, y + 12.0 * k), Align::Left)
+            } else if x - 9.0 - w > target_end + 6.0 * k {
+                ((x - 9.0, y - 10.0 * k), Align::Right)
+            } else {
+                ((x - 9.0, y + 12.0 * k), Align::Right)
+            };
+            sc.text(at, label, sz, palette::POOLED, align);
         }
     }
 }
