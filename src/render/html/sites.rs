@@ -92,7 +92,12 @@ pub fn sites_page(
     page.header(
         &title,
         &format!(
-            "two-stage analysis of participant rows · {} sites estimated · {} · made by pondus {}",
+            "{} of participant rows · {} sites estimated · {} · made by pondus {}",
+            if report.one_stage.is_some() {
+                "two-stage and one-stage analysis"
+            } else {
+                "two-stage analysis"
+            },
             report.sites.len(),
             esc(&report.input.file),
             esc(&prov.version)
