@@ -133,31 +133,7 @@ pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
         );
         y += 17.0 * k;
     }
-    if let Some(t) = r.target_power {
-        let y = frame.y(t);
-        sc.dashed(
-            vec![(frame.x0, y), (frame.x1, y)],
-            palette::MUTED,
-            1,
-            (6.0, 4.0),
-        );
-        // Power grows with k, so the curve usually runs below the target on
-        // the left and above it on the right: the label goes where the line
-        // is clear of the curve (left end when the curve starts below it).
-        let starts_below = r.table.first().is_some_and(|p| p.power < t);
-        let (at, align) = if starts_below {
-            ((frame.x0 + 6.0 * k, y - 10.0 * k), Align::Left)
-        } else {
-            ((frame.x1, y - 10.0 * k), Align::Right)
-        };
-        sc.text(
-            at,
-            format!("target {t}"),
-            size::SMALL * k,
-            palette::MUTED,
-            align,
-        );
-    }
+    target_line(&mut sc, r, &frame, k);
     let pts: Vec<(f64, f64)> = r
         .table
         .iter()
@@ -194,6 +170,35 @@ pub fn scene(r: &PlanReport, font_size: Option<f64>) -> Result<Scene> {
     }
     frame.axes(&mut sc);
     Ok(sc)
+}
+
+/// The dashed line at the target power and its label, `k` the text scale.
+fn target_line(sc: &mut Scene, r: &PlanReport, frame: &Frame, k: f64) {
+    if let Some(t) = r.target_power {
+        let y = frame.y(t);
+        sc.dashed(
+            vec![(frame.x0, y), (frame.x1, y)],
+            palette::MUTED,
+            1,
+            (6.0, 4.0),
+        );
+        // Power grows with k, so the curve usually runs below the target on
+        // the left and above it on the right: the label goes where the line
+        // is clear of the curve (left end when the curve starts below it).
+        let starts_below = r.table.first().is_some_and(|p| p.power < t);
+        let (at, align) = if starts_below {
+            ((frame.x0 + 6.0 * k, y - 10.0 * k), Align::Left)
+        } else {
+            ((frame.x1, y - 10.0 * k), Align::Right)
+        };
+        sc.text(
+            at,
+            format!("target {t}"),
+            size::SMALL * k,
+            palette::MUTED,
+            align,
+        );
+    }
 }
 
 /// The simulated powers inside the axis's range `lo..=hi` of k: k, power
