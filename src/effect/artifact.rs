@@ -22,7 +22,7 @@
 //! Without `--range-ratio` step (2) is skipped and r_xx,a = r_xx.
 
 use super::route::Route;
-use super::{shorten, EffectColumn, Measure, RowEffect, RowProblem};
+use super::{shorten, EffectColumn, Measure, RowProblem};
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{ColumnRequest, Table};
@@ -228,7 +228,8 @@ pub fn requests(settings: &ArtifactSettings, measure: Measure) -> Result<Vec<Col
 /// effect becomes the corrected r with its corrected variance (see the
 /// module documentation). Rows missing an artifact value are excluded with
 /// the reason; `first` is the request index of the first artifact column,
-/// `r_col` and `n_col` those of r and n.
+/// `r_col` and `n_col` those of r and n. Returns one entry per row, or none
+/// at all when no correction is asked for.
 ///
 /// # Errors
 /// [`Error::Cells`] listing every artifact cell that is not a number or is
@@ -242,10 +243,10 @@ pub fn apply(
     effects: &mut EffectColumn,
 ) -> Result<Vec<Option<Corrected>>> {
     let cols = settings.columns();
-    let mut out = vec![None; table.len()];
     if cols.is_empty() {
-        return Ok(out);
+        return Ok(Vec::new());
     }
+    let mut out = vec![None; table.len()];
     let mut problems = Vec::new();
     let mut total = 0usize;
     let number = |col: usize, row: usize| match table.column(col) {
@@ -253,7 +254,7 @@ pub fn apply(
         None => Cell::Missing,
     };
     for (i, slot) in out.iter_mut().enumerate() {
-        if !matches!(effects.rows[i], RowEffect::Value { .. }) {
+        if !effects.is_value(i) {
             continue;
         }
         let mut a = Artifacts::default();
@@ -289,39 +290,35 @@ pub fn apply(
             }
         }
         if bad {
-            effects.rows[i] = RowEffect::Excluded("invalid value".into());
+            effects.exclude(i, "invalid value".into());
             continue;
         }
         if let Some(reason) = missing {
-            effects.rows[i] = RowEffect::Excluded(reason);
+            effects.exclude(i, reason);
             continue;
         }
         // The observed r: the r cell for rows reporting r, else the r of
         // the row's effect (t or p routes, which also have n).
-        let (from, check, y) = match &effects.rows[i] {
-            RowEffect::Value { from, check, y, .. } => (*from, check.clone(), *y),
-            RowEffect::Excluded(_) => continue,
-        };
+        let (from, y) = (effects.from[i], effects.y[i]);
         let r = match (from, number(r_col, i)) {
             (Route::R, Cell::Value(r)) => r,
             (Route::R, _) => continue,
             _ => y.tanh(),
         };
         let Cell::Value(n) = number(n_col, i) else {
-            effects.rows[i] = RowEffect::Excluded(format!(
-                "artifact corrections need n (this row's r comes from route {from})"
-            ));
+            effects.exclude(
+                i,
+                format!("artifact corrections need n (this row's r comes from route {from})"),
+            );
             continue;
         };
         match correct(r, n, a) {
             Ok(c) => {
-                effects.rows[i] = RowEffect::Value {
-                    y: c.r,
-                    v: c.v,
-                    note: None,
-                    from,
-                    check,
-                };
+                // The corrected effect keeps the row's route and check;
+                // a note on the uncorrected effect no longer applies.
+                effects.y[i] = c.r;
+                effects.v[i] = c.v;
+                effects.notes.remove(&i);
                 *slot = Some(c);
             }
             Err(p) => {
@@ -356,7 +353,7 @@ pub fn apply(
                         cell,
                     });
                 }
-                effects.rows[i] = RowEffect::Excluded("invalid value".into());
+                effects.exclude(i, "invalid value".into());
             }
         }
     }

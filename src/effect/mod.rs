@@ -6,6 +6,7 @@
 
 pub mod artifact;
 pub mod binary;
+mod column;
 pub mod correlation;
 pub mod generic;
 pub mod route;
@@ -16,6 +17,7 @@ use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, parse_cell, Cell};
 use crate::input::{ColumnRequest, Table};
 use crate::support::flag::Flag;
+pub use column::EffectColumn;
 use route::{EffectReading, Route, RouteInfo};
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -535,13 +537,6 @@ impl ColumnMap {
     }
 }
 
-/// Effects of every row of a table.
-#[derive(Debug, Clone)]
-pub struct EffectColumn {
-    /// One entry per table row.
-    pub rows: Vec<RowEffect>,
-}
-
 /// Computes effects for every row. `first` is the index of the first measure
 /// column in the table's requests (the measure's roles are consecutive).
 ///
@@ -556,7 +551,7 @@ pub fn compute(
 ) -> Result<EffectColumn> {
     let roles = measure.roles();
     check_route_columns(measure, map, table, first)?;
-    let mut rows = Vec::with_capacity(table.len());
+    let mut rows = EffectColumn::with_capacity(table.len());
     let mut problems = Vec::new();
     let mut total = 0usize;
     let mut values = vec![None; roles.len()];
@@ -632,7 +627,7 @@ pub fn compute(
             total,
         }));
     }
-    Ok(EffectColumn { rows })
+    Ok(rows)
 }
 
 /// Whether a cell's text is a p-value written as an inequality

@@ -102,7 +102,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         sha256,
     };
     let k = studies.y.len();
-    let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
+    let effects_obtained = crate::result::count_routes(&studies.routes, studies.labels.iter());
     // Without per-study records only the excluded rows are kept; with
     // shrunken estimates the records are built anyway, as their numbers
     // are checked below.
@@ -268,12 +268,13 @@ fn records(
     let total_w: f64 = fit.weights.iter().sum();
     let z = crate::dist::normal_quantile(1.0 - (1.0 - level) / 2.0);
     let mut out = Vec::with_capacity(y.len());
-    let rows = included.iter().zip(labels).zip(notes).enumerate();
-    for (pos, ((&i, study), note)) in rows {
+    let mut notes = notes.into_iter().peekable();
+    for (pos, (&i, study)) in included.iter().zip(labels.iter()).enumerate() {
+        let note = notes.next_if(|(at, _)| *at == pos).map(|(_, n)| n);
         let (yi, vi) = (y[pos], v[pos]);
         let half = z * vi.sqrt();
         out.push(Study {
-            study,
+            study: study.to_string(),
             line: lines[pos],
             effect: yi,
             variance: vi,
@@ -285,7 +286,7 @@ fn records(
             moderators: raw
                 .iter()
                 .map(|r| match r {
-                    RawModerator::Numeric(x) => AtValue::Number(x[i].unwrap_or(f64::NAN)),
+                    RawModerator::Numeric(x) => AtValue::Number(x.get(i).unwrap_or(f64::NAN)),
                     RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
                 })
                 .collect(),

@@ -6,7 +6,7 @@
 use super::FitSettings;
 use crate::effect::artifact;
 use crate::error::Result;
-use crate::input::{self, ColumnRequest, Table};
+use crate::input::{self, ColumnRequest, Table, TableBytes};
 use crate::support::flag::Flag;
 
 /// The table with the requested columns, and where each group of requests starts.
@@ -38,7 +38,7 @@ pub struct Columns {
 /// [`crate::Error::Usage`] for artifact corrections with a measure other
 /// than r; any error of [`input::read_table`] (a missing required column,
 /// unreadable text, ragged rows).
-pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Columns> {
+pub fn read(settings: &FitSettings, source: &str, bytes: TableBytes<'_>) -> Result<Columns> {
     let measure = settings.measure;
     let mut requests = vec![ColumnRequest {
         header: settings.label.0.clone(),
@@ -101,7 +101,7 @@ pub fn read(settings: &FitSettings, source: &str, bytes: &[u8]) -> Result<Column
     }
     Ok(Columns {
         first_shown,
-        table: input::read_table(
+        table: input::read_table_from(
             source,
             bytes,
             &requests,

@@ -83,7 +83,7 @@ fn check_moderator_scale(
         let RawModerator::Numeric(x) = r else {
             continue;
         };
-        let vals: Vec<f64> = included.iter().filter_map(|&i| x[i]).collect();
+        let vals: Vec<f64> = included.iter().filter_map(|&i| x.get(i)).collect();
         let lo = vals.iter().copied().fold(f64::INFINITY, f64::min);
         let hi = vals.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         let big = lo.abs().max(hi.abs());

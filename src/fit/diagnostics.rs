@@ -47,7 +47,7 @@ pub fn run(
         &settings.diagnostics,
         &data,
         fit,
-        &studies.labels,
+        &studies.labels.to_vec(),
         terms,
         &studies.lines,
         order.as_ref(),

@@ -578,10 +578,10 @@ pub fn artifact_report(settings: &ArtifactSettings, studies: &Studies) -> Option
     }
     let (applied, method) = artifact::describe(settings);
     let mut rows = Vec::with_capacity(studies.corrections.len());
-    for (c, label) in studies.corrections.iter().zip(&studies.labels) {
+    for (c, label) in studies.corrections.iter().zip(studies.labels.iter()) {
         let c = (*c)?;
         rows.push(ArtifactStudy {
-            study: label.clone(),
+            study: label.to_string(),
             observed_r: c.r_obs,
             corrected_r: c.r,
             observed_variance: c.v_obs,

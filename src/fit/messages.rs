@@ -15,6 +15,7 @@ use crate::model::Inference;
 use crate::result::{Estimate, FlooredCheck, Interpretation, ModeratorTest};
 use crate::support::flag::Flag;
 use crate::support::format::{interval, num, p as p_txt};
+use crate::support::texts::Texts;
 
 /// Minimum studies per moderator term below which the output cautions
 /// (Cochrane Handbook for Systematic Reviews of Interventions, section 10.11.5.1:
@@ -124,9 +125,7 @@ fn data_notes(settings: &FitSettings, studies: &Studies) -> Vec<String> {
     let corrected: Vec<&str> = studies
         .notes
         .iter()
-        .zip(&studies.labels)
-        .filter(|(n, _)| n.is_some())
-        .map(|(_, l)| l.as_str())
+        .map(|(at, _)| studies.labels.get(*at))
         .collect();
     if !corrected.is_empty() {
         let one = corrected.len() == 1;
@@ -311,9 +310,9 @@ fn artifact_messages(settings: &FitSettings, studies: &Studies, m: &mut Messages
     let over: Vec<&str> = studies
         .y
         .iter()
-        .zip(&studies.labels)
+        .zip(studies.labels.iter())
         .filter(|(y, _)| y.abs() > 1.0)
-        .map(|(_, l)| l.as_str())
+        .map(|(_, l)| l)
         .collect();
     if !over.is_empty() {
         m.warnings.push(format!(
@@ -476,7 +475,7 @@ fn fnv1a(text: &str) -> u64 {
 }
 
 /// The warning about labels used by more than one study (none when every label is distinct).
-fn duplicate_label_warnings(labels: &[String]) -> Vec<String> {
+fn duplicate_label_warnings(labels: &Texts) -> Vec<String> {
     // Sort (hash, position) pairs: equal labels have equal hashes and end up
     // adjacent; labels are compared exactly within a run of equal hashes.
     let mut keyed: Vec<(u64, usize)> = labels
@@ -495,7 +494,7 @@ fn duplicate_label_warnings(labels: &[String]) -> Vec<String> {
         if end - start > 1 {
             let mut run: Vec<&str> = keyed[start..end]
                 .iter()
-                .map(|&(_, i)| labels[i].as_str())
+                .map(|&(_, i)| labels.get(i))
                 .collect();
             run.sort_unstable();
             let mut a = 0;

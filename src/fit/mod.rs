@@ -92,30 +92,83 @@ pub fn run_with_detail(
     progress: &(dyn Fn(u64) + Sync),
     detail: Detail,
 ) -> Result<FitReport> {
-    // The input's SHA-256 (for the report's reproducibility record) is
-    // computed on a thread of its own while the table is read and fitted.
-    std::thread::scope(|scope| {
-        let hash = scope.spawn(|| crate::support::hash::sha256_hex(bytes));
-        let sha256 = move || {
-            hash.join()
-                .unwrap_or_else(|_| crate::support::hash::sha256_hex(bytes))
-        };
-        stages(settings, source, bytes, progress, sha256, detail)
-    })
+    spread::check(settings)?;
+    let (columns, sha256) = read_and_hash(settings, source, bytes);
+    stages(settings, source, columns?, progress, sha256, detail)
 }
 
-/// The stages of [`run_with_detail`]; `sha256` gives the input's hash
-/// when the report is assembled.
-fn stages(
+/// [`run_with_detail`] on the CSV file, spreadsheet or Parquet file at
+/// `path` (named `source` in messages): a CSV file is read in pieces and
+/// never held whole in memory; its SHA-256 is computed on a thread of its
+/// own, which reads the file again while the table is read.
+///
+/// # Errors
+/// As [`run`]; [`Error::Io`] when the file cannot be read.
+pub fn run_file(
     settings: &FitSettings,
     source: &str,
-    bytes: &[u8],
+    path: &std::path::Path,
     progress: &(dyn Fn(u64) + Sync),
-    sha256: impl FnOnce() -> String,
     detail: Detail,
 ) -> Result<FitReport> {
     spread::check(settings)?;
-    let columns = columns::read(settings, source, bytes)?;
+    let (columns, sha256) = std::thread::scope(|scope| {
+        let hash = scope.spawn(|| crate::support::hash::sha256_file(path));
+        let columns = columns::read(settings, source, crate::input::TableBytes::File(path));
+        let sha256 = hash
+            .join()
+            .unwrap_or_else(|_| crate::support::hash::sha256_file(path));
+        (columns, sha256)
+    });
+    let columns = columns?;
+    stages(settings, source, columns, progress, sha256?, detail)
+}
+
+/// [`run_with_detail`] on bytes it owns: they are freed as soon as the
+/// table is read and hashed, so a large file is not held in memory while
+/// the studies are collected and the model is fitted.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_owned(
+    settings: &FitSettings,
+    source: &str,
+    bytes: Vec<u8>,
+    progress: &(dyn Fn(u64) + Sync),
+    detail: Detail,
+) -> Result<FitReport> {
+    spread::check(settings)?;
+    let (columns, sha256) = read_and_hash(settings, source, &bytes);
+    drop(bytes);
+    stages(settings, source, columns?, progress, sha256, detail)
+}
+
+/// Stage 1 with the input's SHA-256 (for the report's reproducibility
+/// record) computed on a thread of its own while the table is read.
+fn read_and_hash(
+    settings: &FitSettings,
+    source: &str,
+    bytes: &[u8],
+) -> (Result<columns::Columns>, String) {
+    use crate::support::hash::sha256_hex;
+    std::thread::scope(|scope| {
+        let hash = scope.spawn(|| sha256_hex(bytes));
+        let columns = columns::read(settings, source, crate::input::TableBytes::Memory(bytes));
+        let sha256 = hash.join().unwrap_or_else(|_| sha256_hex(bytes));
+        (columns, sha256)
+    })
+}
+
+/// The stages of [`run_with_detail`] after the table is read; `sha256` is
+/// the input's hash.
+fn stages(
+    settings: &FitSettings,
+    source: &str,
+    columns: columns::Columns,
+    progress: &(dyn Fn(u64) + Sync),
+    sha256: String,
+    detail: Detail,
+) -> Result<FitReport> {
     let studies = studies::collect(settings, source, columns)?;
     let design = design::build(settings, source, &studies)?;
     let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
@@ -175,7 +228,7 @@ fn stages(
     assemble::assemble(assemble::Parts {
         settings,
         source,
-        sha256: sha256(),
+        sha256,
         detail,
         studies,
         terms: design.terms,

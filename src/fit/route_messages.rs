@@ -9,18 +9,17 @@ use crate::effect::route::{Derivation, Route};
 
 /// Adds the route warnings and cautions of `studies` to `m`.
 pub fn add(studies: &Studies, m: &mut Messages) {
-    for (label, check) in studies.labels.iter().zip(&studies.checks) {
-        if let Some(c) = check {
-            m.warnings.push(format!("Study '{label}': {c}."));
-        }
+    for (at, c) in &studies.checks {
+        m.warnings
+            .push(format!("Study '{}': {c}.", studies.labels.get(*at)));
     }
     let named = |d: Derivation| -> Vec<&str> {
         studies
             .routes
             .iter()
-            .zip(&studies.labels)
+            .zip(studies.labels.iter())
             .filter(|(r, _)| r.derivation() == d)
-            .map(|(_, l)| l.as_str())
+            .map(|(_, l)| l)
             .collect()
     };
     let approximated = named(Derivation::Approximated);

@@ -172,7 +172,7 @@ fn check_terms(
         let name = &spec.name;
         match r {
             RawModerator::Numeric(v) => {
-                let mut vals = included.iter().filter_map(|&i| v[i]);
+                let mut vals = included.iter().filter_map(|&i| v.get(i));
                 let first = vals.next().unwrap_or(f64::NAN);
                 if vals.all(|x| x == first) {
                     return Err(Error::Model(format!(
@@ -261,7 +261,7 @@ fn report(
             let var = (x.transpose() * &ls.beta_cov * &x)[(0, 0)].max(0.0);
             let half = crit * (var + ls.tau2[i]).sqrt();
             SpreadStudy {
-                study: studies.labels[i].clone(),
+                study: studies.labels[i].to_string(),
                 tau2: ls.tau2[i],
                 fitted,
                 pi_low: fitted - half,

@@ -8,12 +8,15 @@ use super::columns::Columns;
 use super::FitSettings;
 use crate::effect::artifact::{self, Corrected};
 use crate::effect::route::Route;
-use crate::effect::{self, ReadingScale, RowEffect};
+use crate::effect::{self, EffectColumn, ReadingScale};
 use crate::error::{Error, Result};
 use crate::input::{Delimiter, Places, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
+use crate::support::texts::Texts;
+use std::borrow::Cow;
+use std::collections::BTreeMap;
 
 /// The studies of the job. Fields "per study" hold the included rows in
 /// file order; [`Studies::raw`] holds every table row (the design builder
@@ -27,16 +30,19 @@ pub struct Studies {
     /// Sampling variance per study.
     pub v: Vec<f64>,
     /// Label per study (its line when the label cell or column is missing).
-    pub labels: Vec<String>,
+    pub labels: Texts,
     /// Line in the file per study.
     pub lines: Vec<u64>,
-    /// Adjustment made to the study's effect, in words (a zero-cell correction).
-    pub notes: Vec<Option<String>>,
+    /// Adjustments made to a study's effect, in words (a zero-cell
+    /// correction), with the study's position; in study order, few or none.
+    pub notes: Vec<(usize, String)>,
     /// The route each study's effect was computed from.
     pub routes: Vec<Route>,
-    /// A disagreement between a study's routes, or asymmetric limits, in words.
-    pub checks: Vec<Option<String>>,
-    /// Artifact correction per study (None without corrections).
+    /// Disagreements between a study's routes, or asymmetric limits, in
+    /// words, with the study's position; in study order, few or none.
+    pub checks: Vec<(usize, String)>,
+    /// Artifact correction per study (None for a study without one); empty
+    /// when no correction is asked for.
     pub corrections: Vec<Option<Corrected>>,
     /// The `--cumulative-by` header and its cell per study.
     pub order: Option<(String, Vec<String>)>,
@@ -84,14 +90,15 @@ pub struct TableFacts {
 }
 
 /// Computes the effects, applies artifact corrections, types the moderators
-/// and decides which rows the model uses.
+/// and decides which rows the model uses. Each of the table's columns is
+/// freed as soon as what later stages need has been taken from it.
 ///
 /// # Errors
 /// Errors of [`effect::compute`], [`artifact::apply`] and
 /// [`design::classify`]; [`Error::Model`] when no row, or only one, is usable.
 pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result<Studies> {
     let Columns {
-        table,
+        mut table,
         first_measure,
         first_moderator,
         first_artifact,
@@ -100,8 +107,8 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         cluster,
         first_shown,
     } = columns;
-    let cluster_cells = cluster.map(|j| cells(&table, j, true));
-    let order_cells = order.map(|j| cells(&table, j, false));
+    let facts = table_facts(settings, &table);
+    let places = table.places();
     let mut effects = effect::compute(settings.measure, &settings.columns, &table, first_measure)?;
     let artifacts = &settings.interpret.artifacts;
     let corrections = artifact::apply(
@@ -112,99 +119,52 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         first_artifact,
         &mut effects,
     )?;
-    let labels = labels(&table);
-    let places = table.places();
-    let mut raw = Vec::with_capacity(settings.moderators.len());
-    for (j, spec) in settings.moderators.iter().enumerate() {
-        let col = table
-            .column(first_moderator + j)
-            .expect("required column present");
-        // Two spellings of one header (`--moderator m --moderator M`, the
-        // second matched ignoring case) are one moderator given twice.
-        if let Some(before) = settings.moderators[..j]
-            .iter()
-            .enumerate()
-            .find_map(|(i, m)| {
-                let c = table.column(first_moderator + i)?;
-                (c.header == col.header).then_some(&m.name)
-            })
-        {
-            return Err(Error::usage(
-                Flag::Moderator,
-                format!(
-                    "'{before}' and '{}' both name the column '{}' (headers match ignoring case \
-                     when unique); give the moderator once",
-                    spec.name, col.header
-                ),
-            ));
-        }
-        let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
-        raw.push(design::classify(
-            spec,
-            &cells,
-            &table.lines,
-            (&places, &col.header),
-            source,
-        )?);
-    }
-    let spread_raw = spread_columns(settings, &table, &spread, &raw, &places, source)?;
-    let (included, excluded) = include(
-        settings,
-        &effects.rows,
-        (&raw, &spread_raw),
-        &labels,
-        &table.lines,
+    let artifact_columns = artifacts.columns().len();
+    release(&mut table, first_measure..first_moderator);
+    release(
+        &mut table,
+        first_artifact..first_artifact + artifact_columns,
     );
-    let missing_moderator = effects.rows.len()
-        - included.len()
-        - effects
-            .rows
-            .iter()
-            .filter(|r| matches!(r, RowEffect::Excluded(_)))
-            .count();
-    check_count(source, &included, &excluded, &places)?;
-    let mut y = Vec::with_capacity(included.len());
-    let mut v = Vec::with_capacity(included.len());
-    let mut notes = Vec::with_capacity(included.len());
-    let mut routes = Vec::with_capacity(included.len());
-    let mut checks = Vec::with_capacity(included.len());
-    for &i in &included {
-        let (yi, vi, note, from, check) = match &mut effects.rows[i] {
-            RowEffect::Value {
-                y,
-                v,
-                note,
-                from,
-                check,
-            } => (*y, *v, note.take(), *from, check.take()),
-            RowEffect::Excluded(_) => (f64::NAN, f64::NAN, None, Route::Means, None),
-        };
-        y.push(yi);
-        v.push(vi);
-        notes.push(note);
-        routes.push(from);
-        checks.push(check);
+    let raw = moderators(settings, source, &mut table, first_moderator, &places)?;
+    let spread_raw = spread_columns(settings, &table, &spread, &raw, &places, source)?;
+    for j in spread.iter().flatten() {
+        release(&mut table, *j..*j + 1);
     }
+    let (included, excluded) = include(settings, &effects, (&raw, &spread_raw), &table);
+    let missing_moderator = effects.len() - included.len() - effects.excluded.len();
+    check_count(source, &included, &excluded, &places)?;
+    let (y, v) = (
+        pick_f64(effects.y, &included),
+        pick_f64(effects.v, &included),
+    );
     check_range(source, &y, &v, &included, (&table.lines, &places))?;
+    let labels: Texts = included.iter().map(|&i| label(&table, i)).collect();
+    release(&mut table, 0..1);
     Ok(Studies {
         y,
         v,
-        notes,
-        routes,
-        checks,
-        labels: pick(labels, &included),
+        notes: by_study(effects.notes, &included),
+        routes: included.iter().map(|&i| effects.from[i]).collect(),
+        checks: by_study(effects.checks, &included),
+        labels,
         lines: included.iter().map(|&i| table.lines[i]).collect(),
-        corrections: included.iter().map(|&i| corrections[i]).collect(),
-        order: order_cells.map(|(h, c)| (h, pick(c, &included))),
-        cluster_ids: cluster_cells.map(|(h, c)| (h, pick(c, &included))),
+        corrections: if corrections.is_empty() {
+            Vec::new()
+        } else {
+            included.iter().map(|&i| corrections[i]).collect()
+        },
+        order: order.map(|j| cells(&table, j, false, &included)),
+        cluster_ids: cluster.map(|j| cells(&table, j, true, &included)),
         shown: settings
             .columns
             .shown()
             .iter()
             .enumerate()
             .map(|(n, (name, _))| {
-                let (_, c) = cells(&table, first_shown + n, true);
-                (name.clone(), pick(c, &included))
+                (
+                    name.clone(),
+                    cells(&table, first_shown + n, true, &included).1,
+                )
             })
             .collect(),
         raw,
@@ -216,21 +176,81 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         } else {
             settings.measure.reading_scale()
         },
-        table: TableFacts {
-            delimiter: Delimiter::of(table.delimiter),
-            sheet: table.sheet.as_ref().map(|s| s.name.clone()),
-            rows: table.len(),
-            blank_rows: table.blank_rows,
-            decimal_note: table.decimal.note(&table.source),
-            label_column: table.column(0).map(|c| c.header.clone()),
-            label_found: table
-                .headers
-                .iter()
-                .any(|h| h.eq_ignore_ascii_case(&settings.label.0)),
-        },
+        table: facts,
         included,
         places,
     })
+}
+
+/// What the report says about `table`.
+fn table_facts(settings: &FitSettings, table: &Table) -> TableFacts {
+    TableFacts {
+        delimiter: Delimiter::of(table.delimiter),
+        sheet: table.sheet.as_ref().map(|s| s.name.clone()),
+        rows: table.len(),
+        blank_rows: table.blank_rows,
+        decimal_note: table.decimal.note(&table.source),
+        label_column: table.column(0).map(|c| c.header.clone()),
+        label_found: table
+            .headers
+            .iter()
+            .any(|h| h.eq_ignore_ascii_case(&settings.label.0)),
+    }
+}
+
+/// Frees the table's columns `range` (their cells are no longer needed).
+fn release(table: &mut Table, range: std::ops::Range<usize>) {
+    for c in table.columns.iter_mut().take(range.end).skip(range.start) {
+        *c = None;
+    }
+}
+
+/// Every moderator's values over all table rows, typed; each column is
+/// freed once typed.
+///
+/// # Errors
+/// [`Error::Usage`] for a moderator given twice; those of [`design::classify`].
+fn moderators(
+    settings: &FitSettings,
+    source: &str,
+    table: &mut Table,
+    first_moderator: usize,
+    places: &Places,
+) -> Result<Vec<RawModerator>> {
+    let headers: Vec<String> = (0..settings.moderators.len())
+        .map(|j| {
+            let col = table.column(first_moderator + j);
+            col.expect("required column present").header.clone()
+        })
+        .collect();
+    let mut raw = Vec::with_capacity(settings.moderators.len());
+    for (j, spec) in settings.moderators.iter().enumerate() {
+        let header = &headers[j];
+        // Two spellings of one header (`--moderator m --moderator M`, the
+        // second matched ignoring case) are one moderator given twice.
+        if let Some(i) = headers[..j].iter().position(|h| h == header) {
+            return Err(Error::usage(
+                Flag::Moderator,
+                format!(
+                    "'{}' and '{}' both name the column '{header}' (headers match ignoring case \
+                     when unique); give the moderator once",
+                    settings.moderators[i].name, spec.name
+                ),
+            ));
+        }
+        let col = table
+            .column(first_moderator + j)
+            .expect("required column present");
+        raw.push(design::classify_cells(
+            spec,
+            (table.len(), |i| col.get(i)),
+            &table.lines,
+            (places, header),
+            source,
+        )?);
+        release(table, first_moderator + j..first_moderator + j + 1);
+    }
+    Ok(raw)
 }
 
 /// The `--spread-by` characteristics' values, typed like moderators: a
@@ -253,8 +273,13 @@ fn spread_columns(
         .map(|(spec, col)| match col {
             Some(j) => {
                 let col = table.column(*j).expect("required column present");
-                let cells: Vec<&str> = (0..table.len()).map(|i| col.get(i)).collect();
-                design::classify(spec, &cells, &table.lines, (places, &col.header), source)
+                design::classify_cells(
+                    spec,
+                    (table.len(), |i| col.get(i)),
+                    &table.lines,
+                    (places, &col.header),
+                    source,
+                )
             }
             None => {
                 let m = settings
@@ -268,45 +293,50 @@ fn spread_columns(
         .collect()
 }
 
-/// A requested column's header and cells (one per table row), trimmed or as read.
-fn cells(table: &Table, j: usize, trim: bool) -> (String, Vec<String>) {
+/// A requested column's header and the cells of the included rows,
+/// trimmed or as read.
+fn cells(table: &Table, j: usize, trim: bool, included: &[usize]) -> (String, Vec<String>) {
     let col = table.column(j).expect("required column present");
-    let cell = |i: usize| {
+    let cell = |&i: &usize| {
         let c = col.get(i);
         if trim { c.trim() } else { c }.to_string()
     };
-    (col.header.clone(), (0..table.len()).map(cell).collect())
+    (col.header.clone(), included.iter().map(cell).collect())
 }
 
-/// The entries of the included rows, taken out of a per-row list.
-fn pick(mut all: Vec<String>, included: &[usize]) -> Vec<String> {
-    included
-        .iter()
-        .map(|&i| std::mem::take(&mut all[i]))
+/// The entries of the included rows, moved to the front of a per-row list
+/// (`included` ascends, so each entry moves down or stays).
+fn pick_f64(mut all: Vec<f64>, included: &[usize]) -> Vec<f64> {
+    for (to, &from) in included.iter().enumerate() {
+        all[to] = all[from];
+    }
+    all.truncate(included.len());
+    all.shrink_to_fit();
+    all
+}
+
+/// Texts kept by table row, renumbered by position among the included
+/// rows (rows left out drop theirs).
+fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, String)> {
+    by_row
+        .into_iter()
+        .filter_map(|(row, text)| included.binary_search(&row).ok().map(|pos| (pos, text)))
         .collect()
 }
 
-/// The label of every row: the label cell, or "line N" when it (or the
+/// The label of row `i`: the label cell, or "line N" when it (or the
 /// column) is missing ("row N" in a spreadsheet, N being the sheet's row).
-fn labels(table: &Table) -> Vec<String> {
-    let word = if table.sheet.is_some() || table.delimiter == crate::input::PARQUET {
-        "row"
-    } else {
-        "line"
-    };
-    let number = |i: usize| format!("{word} {}", table.lines[i]);
-    match table.column(0) {
-        Some(c) => (0..table.len())
-            .map(|i| {
-                let l = c.get(i);
-                if l.is_empty() {
-                    number(i)
-                } else {
-                    l.to_string()
-                }
-            })
-            .collect(),
-        None => (0..table.len()).map(number).collect(),
+fn label(table: &Table, i: usize) -> Cow<'_, str> {
+    match table.column(0).map(|c| c.get(i)).filter(|l| !l.is_empty()) {
+        Some(l) => Cow::Borrowed(l),
+        None => {
+            let word = if table.sheet.is_some() || table.delimiter == crate::input::PARQUET {
+                "row"
+            } else {
+                "line"
+            };
+            Cow::Owned(format!("{word} {}", table.lines[i]))
+        }
     }
 }
 
@@ -314,17 +344,16 @@ fn labels(table: &Table) -> Vec<String> {
 /// effect, or a missing moderator or spread value), in file order.
 fn include(
     settings: &FitSettings,
-    rows: &[RowEffect],
+    effects: &EffectColumn,
     (raw, spread_raw): (&[RawModerator], &[RawModerator]),
-    labels: &[String],
-    lines: &[u64],
+    table: &Table,
 ) -> (Vec<usize>, Vec<Excluded>) {
-    let mut included = Vec::new();
+    let mut included = Vec::with_capacity(effects.len() - effects.excluded.len());
     let mut excluded = Vec::new();
-    for (i, row) in rows.iter().enumerate() {
-        let reason = match row {
-            RowEffect::Excluded(why) => Some(why.clone()),
-            RowEffect::Value { .. } => settings
+    for i in 0..effects.len() {
+        let reason = match effects.excluded.get(&i) {
+            Some(why) => Some(why.clone()),
+            None => settings
                 .moderators
                 .iter()
                 .zip(raw)
@@ -342,8 +371,8 @@ fn include(
         };
         match reason {
             Some(reason) => excluded.push(Excluded {
-                study: labels[i].clone(),
-                line: lines[i],
+                study: label(table, i).into_owned(),
+                line: table.lines[i],
                 reason,
             }),
             None => included.push(i),

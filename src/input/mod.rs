@@ -9,6 +9,7 @@ pub mod number;
 pub mod parquet;
 mod places;
 pub mod sheet;
+mod stream;
 
 pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
 pub use places::Places;
@@ -42,6 +43,28 @@ impl Source {
         match self {
             Source::File(p) => p.display().to_string(),
             Source::Stdin => "<stdin>".to_string(),
+        }
+    }
+
+    /// Checks that a file source opens for reading (standard input: nothing
+    /// to check), with the error [`Source::read_all`] would give.
+    ///
+    /// # Errors
+    /// As [`Source::read_all`].
+    pub fn check_opens(&self) -> Result<()> {
+        match self {
+            Source::File(p) if p.is_dir() => Err(Error::Format {
+                source_name: self.name(),
+                message: "is a directory, not a CSV file".into(),
+            }),
+            Source::File(p) => std::fs::File::open(p)
+                .map(drop)
+                .map_err(|source| Error::Io {
+                    path: self.name(),
+                    action: "reading",
+                    source,
+                }),
+            Source::Stdin => Ok(()),
         }
     }
 
@@ -98,20 +121,17 @@ pub struct Column {
     pub header: String,
     /// Its position in the header row (0-based).
     pub index: usize,
-    text: String,
-    ends: Vec<usize>,
+    cells: crate::support::texts::Texts,
 }
 
 impl Column {
     /// The cell of data row `row` (0-based).
     pub fn get(&self, row: usize) -> &str {
-        let start = if row == 0 { 0 } else { self.ends[row - 1] };
-        &self.text[start..self.ends[row]]
+        self.cells.get(row)
     }
 
     pub(crate) fn push(&mut self, cell: &str) {
-        self.text.push_str(cell);
-        self.ends.push(self.text.len());
+        self.cells.push(cell);
     }
 }
 
@@ -388,38 +408,35 @@ pub fn parse_table_with(
     requests: &[ColumnRequest],
     decimal: Option<DecimalMark>,
 ) -> Result<Table> {
-    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
-    if is_utf16(bytes) {
-        return Err(format_error(
-            source,
-            "this file is UTF-16 (two bytes per character); save it as UTF-8 (in a spreadsheet, \
-             choose CSV UTF-8) and run again",
-        ));
-    }
-    if bytes.iter().all(|b| b.is_ascii_whitespace()) {
-        return Err(format_error(
-            source,
-            "the file is empty; it needs a header row and one row per study",
-        ));
-    }
-    let (hinted, bytes) = separator_line(bytes);
-    let bytes = &bytes[..];
-    if let Some(line) = unclosed_quote(bytes) {
-        return Err(format_error(
-            source,
-            format!(
-                "line {line}: a value opened with '\"' is never closed, so the rest of the file \
-                 would be read as part of it; add the closing '\"' (a '\"' inside a quoted \
-                 value is written twice: \"\")"
-            ),
-        ));
-    }
-    let delimiter = hinted.unwrap_or_else(|| detect_delimiter(bytes));
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(true)
-        .flexible(true)
-        .from_reader(bytes);
+    parse_csv(source, || Ok(bytes), requests, decimal)
+}
+
+/// [`parse_table_with`] reading the file at `path` in pieces, so that the
+/// file is never held whole in memory (it is read twice: see [`stream`]).
+///
+/// # Errors
+/// Those of [`parse_table`]; [`Error::Io`] when the file cannot be read.
+pub fn parse_table_file(
+    source: &str,
+    path: &Path,
+    requests: &[ColumnRequest],
+    decimal: Option<DecimalMark>,
+) -> Result<Table> {
+    let open = || std::fs::File::open(path).map_err(|e| stream::io_error(source, e));
+    parse_csv(source, open, requests, decimal)
+}
+
+/// [`parse_table_with`] over the bytes that `open` gives (called twice,
+/// for the two passes of [`stream`]).
+fn parse_csv<R: Read>(
+    source: &str,
+    open: impl Fn() -> Result<R>,
+    requests: &[ColumnRequest],
+    decimal: Option<DecimalMark>,
+) -> Result<Table> {
+    let head = stream::first_pass(source, open()?)?;
+    let delimiter = head.delimiter;
+    let mut reader = stream::parser(source, open()?, head)?;
     let headers = read_headers(source, &mut reader)?;
     let indices = match_requests(source, &headers, requests)?;
     let mut columns: Vec<Option<Column>> = indices
@@ -434,7 +451,6 @@ pub fn parse_table_with(
         .collect();
     let rows = read_rows(
         source,
-        bytes,
         delimiter,
         &mut reader,
         &headers,
@@ -489,6 +505,38 @@ pub fn read_table(
         parquet::parse_parquet(source, bytes, requests)
     } else {
         parse_table_with(source, bytes, requests, decimal)
+    }
+}
+
+/// Where a table's bytes are.
+#[derive(Debug, Clone, Copy)]
+pub enum TableBytes<'a> {
+    /// In memory (standard input, or a file read whole).
+    Memory(&'a [u8]),
+    /// A file on disk: a CSV file is read in pieces ([`parse_table_file`]),
+    /// a spreadsheet or Parquet file whole.
+    File(&'a Path),
+}
+
+/// [`read_table`] from bytes in memory or from a file on disk; `source`
+/// names the file in messages.
+///
+/// # Errors
+/// Those of [`read_table`]; [`Error::Io`] when the file cannot be read.
+pub fn read_table_from(
+    source: &str,
+    input: TableBytes<'_>,
+    requests: &[ColumnRequest],
+    sheet: Option<&str>,
+    decimal: Option<DecimalMark>,
+) -> Result<Table> {
+    match input {
+        TableBytes::Memory(bytes) => read_table(source, bytes, requests, sheet, decimal),
+        TableBytes::File(path) if sheet::is_spreadsheet(source) || parquet::is_parquet(source) => {
+            let bytes = std::fs::read(path).map_err(|e| stream::io_error(source, e))?;
+            read_table(source, &bytes, requests, sheet, decimal)
+        }
+        TableBytes::File(path) => parse_table_file(source, path, requests, decimal),
     }
 }
 
@@ -567,42 +615,6 @@ pub(crate) fn check_unique(source: &str, headers: &[String], i: usize) -> Result
     Ok(())
 }
 
-/// Line numbers from byte offsets. The csv crate's own line count skips
-/// blank lines and miscounts CRLF files, and its offset points at the line
-/// breaks before a record, which are skipped here.
-struct LineCounter<'a> {
-    bytes: &'a [u8],
-    counted_to: usize,
-    line_no: u64,
-}
-
-impl<'a> LineCounter<'a> {
-    fn new(bytes: &'a [u8]) -> Self {
-        LineCounter {
-            bytes,
-            counted_to: 0,
-            line_no: 1,
-        }
-    }
-
-    /// The 1-based line of the record starting at `offset`.
-    fn line_at(&mut self, offset: usize) -> u64 {
-        let bytes = self.bytes;
-        let mut end = offset.min(bytes.len());
-        while end < bytes.len() && (bytes[end] == b'\n' || bytes[end] == b'\r') {
-            end += 1;
-        }
-        if end > self.counted_to {
-            self.line_no += bytes[self.counted_to..end]
-                .iter()
-                .filter(|&&b| b == b'\n')
-                .count() as u64;
-            self.counted_to = end;
-        }
-        self.line_no
-    }
-}
-
 /// What the row loop found besides the cells.
 struct Rows {
     lines: Vec<u64>,
@@ -611,11 +623,10 @@ struct Rows {
 
 /// Reads every data row into the requested columns; blank rows are
 /// counted and skipped.
-fn read_rows(
+fn read_rows<R: Read>(
     source: &str,
-    bytes: &[u8],
     delimiter: u8,
-    reader: &mut csv::Reader<&[u8]>,
+    reader: &mut csv::Reader<stream::LineCounter<R>>,
     headers: &[String],
     indices: &[Option<usize>],
     columns: &mut [Option<Column>],
@@ -623,7 +634,6 @@ fn read_rows(
     let mut lines = Vec::new();
     let mut blank_rows = 0;
     let mut record = csv::ByteRecord::new();
-    let mut counter = LineCounter::new(bytes);
     loop {
         match reader.read_byte_record(&mut record) {
             Ok(false) => break,
@@ -631,8 +641,14 @@ fn read_rows(
             Err(e) => {
                 let line = e
                     .position()
-                    .map(|p| counter.line_at(p.byte() as usize))
+                    .map(|p| reader.get_mut().line_at(p.byte()))
                     .unwrap_or(0);
+                if let csv::ErrorKind::Io(_) = e.kind() {
+                    let csv::ErrorKind::Io(inner) = e.into_kind() else {
+                        unreachable!("matched above")
+                    };
+                    return Err(stream::io_error(source, inner));
+                }
                 return Err(format_error(
                     source,
                     format!("line {line} cannot be read as CSV: {e}"),
@@ -641,7 +657,7 @@ fn read_rows(
         }
         let line = record
             .position()
-            .map(|p| counter.line_at(p.byte() as usize))
+            .map(|p| reader.get_mut().line_at(p.byte()))
             .unwrap_or(0);
         if record
             .iter()

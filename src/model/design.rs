@@ -26,8 +26,8 @@ pub use crate::result::{Moderator, ModeratorKind};
 /// The per-row raw values of one moderator (all rows of the table).
 #[derive(Debug, Clone)]
 pub enum RawModerator {
-    /// Every non-missing value parsed as a number (None = missing).
-    Numeric(Vec<Option<f64>>),
+    /// Every non-missing value parsed as a number.
+    Numeric(Numbers),
     /// Labels (None = missing).
     Text(Vec<Option<String>>),
 }
@@ -36,9 +36,39 @@ impl RawModerator {
     /// Whether row `i` has a value.
     pub fn present(&self, i: usize) -> bool {
         match self {
-            RawModerator::Numeric(v) => v[i].is_some(),
+            RawModerator::Numeric(v) => v.get(i).is_some(),
             RawModerator::Text(v) => v[i].is_some(),
         }
+    }
+}
+
+/// A numeric moderator's values, one per table row, 8 bytes each: a
+/// missing value is kept as NaN, which no value read can be (cells are
+/// parsed with [`parse_cell`], which refuses non-finite numbers).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Numbers(Vec<f64>);
+
+impl Numbers {
+    /// The value of row `i` (None when missing).
+    pub fn get(&self, i: usize) -> Option<f64> {
+        let x = self.0[i];
+        (!x.is_nan()).then_some(x)
+    }
+
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.0.len()
+    }
+
+    /// Whether there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.0.is_empty()
+    }
+}
+
+impl From<Vec<Option<f64>>> for Numbers {
+    fn from(v: Vec<Option<f64>>) -> Self {
+        Numbers(v.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
     }
 }
 
@@ -56,20 +86,41 @@ pub fn classify(
     (places, header): (&Places, &str),
     source: &str,
 ) -> Result<RawModerator> {
-    let mut numeric = Vec::with_capacity(cells.len());
+    classify_cells(
+        spec,
+        (cells.len(), |i| cells[i]),
+        lines,
+        (places, header),
+        source,
+    )
+}
+
+/// [`classify`] over `rows` cells that `cell(i)` gives (a table's column
+/// read in place, without a list of its cells).
+///
+/// # Errors
+/// As [`classify`].
+pub fn classify_cells<'a>(
+    spec: &ModeratorSpec,
+    (rows, cell): (usize, impl Fn(usize) -> &'a str),
+    lines: &[u64],
+    (places, header): (&Places, &str),
+    source: &str,
+) -> Result<RawModerator> {
+    let mut numeric = Vec::with_capacity(rows);
     let mut bad: Vec<usize> = Vec::new();
     let mut present = 0usize;
-    for (i, c) in cells.iter().enumerate() {
-        match parse_cell(c) {
-            Cell::Missing => numeric.push(None),
+    for i in 0..rows {
+        match parse_cell(cell(i)) {
+            Cell::Missing => numeric.push(f64::NAN),
             Cell::Value(x) => {
                 present += 1;
-                numeric.push(Some(x));
+                numeric.push(x);
             }
             Cell::Invalid => {
                 present += 1;
                 bad.push(i);
-                numeric.push(None);
+                numeric.push(f64::NAN);
             }
         }
     }
@@ -79,7 +130,7 @@ pub fn classify(
             let shown: Vec<String> = bad
                 .iter()
                 .take(5)
-                .map(|&i| format!("{} ('{}')", places.at(lines[i], header), cells[i]))
+                .map(|&i| format!("{} ('{}')", places.at(lines[i], header), cell(i)))
                 .collect();
             return Err(Error::usage(
                 Flag::Moderator,
@@ -93,13 +144,15 @@ pub fn classify(
                 ),
             ));
         }
-        let text = cells
-            .iter()
-            .map(|c| (!is_missing(c)).then(|| c.trim().to_string()))
+        let text = (0..rows)
+            .map(|i| {
+                let c = cell(i);
+                (!is_missing(c)).then(|| c.trim().to_string())
+            })
             .collect();
         return Ok(RawModerator::Text(text));
     }
-    Ok(RawModerator::Numeric(numeric))
+    Ok(RawModerator::Numeric(Numbers(numeric)))
 }
 
 /// A term of the model.
@@ -319,7 +372,7 @@ pub fn build(
     let mut spans = Vec::with_capacity(moderators.len());
     for &i in included {
         let value = |j: usize| match (&raw[j], &codes[j]) {
-            (RawModerator::Numeric(v), _) => Coded::Number(v[i].unwrap_or(f64::NAN)),
+            (RawModerator::Numeric(v), _) => Coded::Number(v.0[i]),
             (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
             (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
         };
@@ -340,13 +393,9 @@ pub fn build(
 ///
 /// # Errors
 /// [`Error::Model`] when it has one value in every included study.
-fn numeric_kind(
-    spec: &ModeratorSpec,
-    v: &[Option<f64>],
-    included: &[usize],
-) -> Result<ModeratorKind> {
+fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &[usize]) -> Result<ModeratorKind> {
     let k = included.len();
-    let xs: Vec<f64> = included.iter().map(|&i| v[i].unwrap_or(f64::NAN)).collect();
+    let xs: Vec<f64> = included.iter().map(|&i| v.0[i]).collect();
     let mean = xs.iter().sum::<f64>() / k as f64;
     let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
     let min = xs.iter().copied().fold(f64::INFINITY, f64::min);
@@ -566,7 +615,9 @@ mod tests {
             "f",
         )
         .unwrap();
-        assert!(matches!(r, RawModerator::Numeric(ref v) if v[2].is_none() && v[3] == Some(3.5)));
+        assert!(
+            matches!(r, RawModerator::Numeric(ref v) if v.get(2).is_none() && v.get(3) == Some(3.5))
+        );
         let r = classify(
             &spec("a"),
             &["x", "y", "NA", "x"],
@@ -629,7 +680,9 @@ mod tests {
     #[test]
     fn dummy_coding_and_interaction() {
         let raw = vec![
-            RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0), Some(5.0)]),
+            RawModerator::Numeric(
+                vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0), Some(5.0)].into(),
+            ),
             RawModerator::Text(
                 ["b", "a", "c", "a", "b"]
                     .iter()
@@ -649,12 +702,12 @@ mod tests {
 
     #[test]
     fn constant_and_collinear_moderators() {
-        let raw = vec![RawModerator::Numeric(vec![Some(2.0); 4])];
+        let raw = vec![RawModerator::Numeric(vec![Some(2.0); 4].into())];
         let e = build(&[spec("c")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
         assert!(e.to_string().contains("same value"), "{e}");
         let raw = vec![
-            RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0)]),
-            RawModerator::Numeric(vec![Some(2.0), Some(4.0), Some(6.0), Some(8.0)]),
+            RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0)].into()),
+            RawModerator::Numeric(vec![Some(2.0), Some(4.0), Some(6.0), Some(8.0)].into()),
         ];
         let e = build(&[spec("a"), spec("b")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
         assert!(

@@ -304,12 +304,33 @@ pub fn predict(fit: &ModelFit, x0: &[f64]) -> PredictionInference {
 
 /// The fit as `--inference kh-floor` would test it: the model-based
 /// covariance scaled by max(1, s²) and t tests, everything else unchanged
-/// (the floored answer shown beside the chosen one when s² < 1).
+/// (the floored answer shown beside the chosen one when s² < 1). The
+/// per-study arrays (weights, fitted values, residuals) are left
+/// empty: the tests and intervals of the coefficients do not read them, and
+/// with a million studies a copy would cost tens of megabytes.
 pub fn floored(fit: &ModelFit) -> ModelFit {
-    let mut f = fit.clone();
     let scale = fit.scale_factor.max(1.0);
-    f.cov = &fit.cov_model * scale;
-    f.kh_scale = Some(scale);
-    f.options.inference = Inference::KhFloor;
-    f
+    ModelFit {
+        tau2: fit.tau2,
+        tau2_ci: fit.tau2_ci,
+        beta: fit.beta.clone(),
+        cov: &fit.cov_model * scale,
+        cov_model: fit.cov_model.clone(),
+        kh_scale: Some(scale),
+        scale_factor: fit.scale_factor,
+        term_df: fit.term_df.clone(),
+        pi_df: fit.pi_df,
+        k: fit.k,
+        p: fit.p,
+        weights: Vec::new(),
+        fitted: Vec::new(),
+        std_resid: Vec::new(),
+        q_e: fit.q_e,
+        v_typical: fit.v_typical,
+        log_likelihood: fit.log_likelihood,
+        options: super::FitOptions {
+            inference: Inference::KhFloor,
+            ..fit.options
+        },
+    }
 }

@@ -18,16 +18,20 @@ pub struct RouteCount {
     pub labels: Vec<String>,
 }
 
-/// Counts the routes of the included studies, in the order of [`Route::ALL`].
-pub fn count_routes(routes: &[Route], labels: &[String]) -> Vec<RouteCount> {
+/// Counts the routes of the included studies, in the order of [`Route::ALL`]
+/// (`labels` gives the studies' labels in the order of `routes`).
+pub fn count_routes<'a>(
+    routes: &[Route],
+    labels: impl Iterator<Item = &'a str> + Clone,
+) -> Vec<RouteCount> {
     Route::ALL
         .iter()
         .filter_map(|&r| {
             let labels: Vec<String> = routes
                 .iter()
-                .zip(labels)
+                .zip(labels.clone())
                 .filter(|(x, _)| **x == r)
-                .map(|(_, l)| l.clone())
+                .map(|(_, l)| l.to_string())
                 .collect();
             (!labels.is_empty()).then(|| RouteCount {
                 computed_from: r,

@@ -199,7 +199,15 @@ impl FitArgs {
 /// # Errors
 /// Any library error.
 pub fn run_fit(run: &FitRun) -> Result<()> {
-    let bytes = run.source.read_all()?;
+    // A regular file is read by the library in pieces (a CSV file is never
+    // held whole); standard input, pipes and the like are read whole here.
+    let bytes = match &run.source {
+        Source::File(p) if p.is_file() => {
+            run.source.check_opens()?;
+            None
+        }
+        _ => Some(run.source.read_all()?),
+    };
     // Nothing is written or printed (`--quiet` without outputs): the
     // per-study records would never be read.
     let nothing_shown = run.json.is_none()
@@ -218,7 +226,18 @@ pub fn run_fit(run: &FitRun) -> Result<()> {
             .permutations
             .map(|p| p.permutations as u64),
         "permuting {bar:30} {pos}/{len} arrangements ({eta})",
-        |tick| fit::run_with_detail(&run.settings, &run.source.name(), &bytes, tick, detail),
+        |tick| match (bytes, &run.source) {
+            (None, Source::File(path)) => {
+                fit::run_file(&run.settings, &run.source.name(), path, tick, detail)
+            }
+            (bytes, _) => fit::run_owned(
+                &run.settings,
+                &run.source.name(),
+                bytes.unwrap_or_default(),
+                tick,
+                detail,
+            ),
+        },
     )?;
     // Every output is rendered before any is placed (see `Outputs`: the
     // streamed ones into their temporary files), so an output the model

@@ -1,0 +1,145 @@
+//! Many short texts in one allocation: the cells of a table's column, the
+//! labels of a million studies. One `String` holds them back to back and
+//! one list holds where each ends (4 bytes a text while the whole is under
+//! 4 GiB, 8 bytes beyond), instead of a `String` of its own per text (24
+//! bytes plus a heap block each).
+
+use std::ops::Index;
+
+/// Texts stored back to back; `get(i)` is the `i`-th pushed.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Texts {
+    text: String,
+    ends: Ends,
+}
+
+/// Where each text ends in [`Texts::text`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+enum Ends {
+    /// While the text is under 4 GiB.
+    Narrow(Vec<u32>),
+    /// Beyond.
+    Wide(Vec<usize>),
+}
+
+impl Default for Ends {
+    fn default() -> Self {
+        Ends::Narrow(Vec::new())
+    }
+}
+
+impl Texts {
+    /// An empty list with room for `n` texts.
+    pub fn with_capacity(n: usize) -> Self {
+        Texts {
+            text: String::new(),
+            ends: Ends::Narrow(Vec::with_capacity(n)),
+        }
+    }
+
+    /// Appends `s`.
+    pub fn push(&mut self, s: &str) {
+        self.text.push_str(s);
+        let end = self.text.len();
+        match &mut self.ends {
+            Ends::Narrow(e) => match u32::try_from(end) {
+                Ok(end) => e.push(end),
+                Err(_) => {
+                    let mut wide: Vec<usize> = e.iter().map(|&x| x as usize).collect();
+                    wide.push(end);
+                    self.ends = Ends::Wide(wide);
+                }
+            },
+            Ends::Wide(e) => e.push(end),
+        }
+    }
+
+    /// Number of texts.
+    pub fn len(&self) -> usize {
+        match &self.ends {
+            Ends::Narrow(e) => e.len(),
+            Ends::Wide(e) => e.len(),
+        }
+    }
+
+    /// Whether there are none.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The `i`-th text.
+    ///
+    /// # Panics
+    /// When `i` is not below [`Texts::len`].
+    pub fn get(&self, i: usize) -> &str {
+        let (start, end) = match &self.ends {
+            Ends::Narrow(e) => (if i == 0 { 0 } else { e[i - 1] as usize }, e[i] as usize),
+            Ends::Wide(e) => (if i == 0 { 0 } else { e[i - 1] }, e[i]),
+        };
+        &self.text[start..end]
+    }
+
+    /// The texts in order.
+    pub fn iter(&self) -> impl ExactSizeIterator<Item = &str> + Clone + '_ {
+        (0..self.len()).map(|i| self.get(i))
+    }
+
+    /// The texts as owned strings (for callers that need a slice of them).
+    pub fn to_vec(&self) -> Vec<String> {
+        self.iter().map(String::from).collect()
+    }
+
+    /// Frees the spare capacity.
+    pub fn shrink_to_fit(&mut self) {
+        self.text.shrink_to_fit();
+        match &mut self.ends {
+            Ends::Narrow(e) => e.shrink_to_fit(),
+            Ends::Wide(e) => e.shrink_to_fit(),
+        }
+    }
+}
+
+impl Index<usize> for Texts {
+    type Output = str;
+
+    fn index(&self, i: usize) -> &str {
+        self.get(i)
+    }
+}
+
+impl<S: AsRef<str>> FromIterator<S> for Texts {
+    fn from_iter<I: IntoIterator<Item = S>>(iter: I) -> Self {
+        let iter = iter.into_iter();
+        let mut t = Texts::with_capacity(iter.size_hint().0);
+        for s in iter {
+            t.push(s.as_ref());
+        }
+        t
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn texts_come_back_as_pushed() {
+        let t: Texts = ["a", "", "ccc", "é"].into_iter().collect();
+        assert_eq!(t.len(), 4);
+        assert_eq!(t.iter().collect::<Vec<_>>(), ["a", "", "ccc", "é"]);
+        assert_eq!(&t[2], "ccc");
+        assert_eq!(t.to_vec()[3], "é");
+        assert!(Texts::default().is_empty());
+    }
+
+    #[test]
+    fn wide_ends_keep_the_texts() {
+        // The switch from 4-byte to 8-byte ends, forced on a small list.
+        let mut t: Texts = ["ab", "c"].into_iter().collect();
+        if let Ends::Narrow(e) = &t.ends {
+            t.ends = Ends::Wide(e.iter().map(|&x| x as usize).collect());
+        }
+        t.push("de");
+        assert_eq!(t.iter().collect::<Vec<_>>(), ["ab", "c", "de"]);
+    }
+}
