@@ -287,7 +287,9 @@ fn records(
                 .iter()
                 .map(|r| match r {
                     RawModerator::Numeric(x) => AtValue::Number(x.get(i).unwrap_or(f64::NAN)),
-                    RawModerator::Text(x) => AtValue::Level(x[i].clone().unwrap_or_default()),
+                    RawModerator::Text(x) => {
+                        AtValue::Level(x.get(i).unwrap_or_default().to_string())
+                    }
                 })
                 .collect(),
             note,

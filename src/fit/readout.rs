@@ -270,7 +270,7 @@ fn subgroups(
             let own = pooled.and_then(|options| {
                 let (mut yl, mut vl) = (Vec::new(), Vec::new());
                 for (pos, &i) in studies.included.iter().enumerate() {
-                    if cells[i].as_deref() == Some(level.as_str()) {
+                    if cells.get(i) == Some(level.as_str()) {
                         yl.push(studies.y[pos]);
                         vl.push(studies.v[pos]);
                     }

@@ -187,7 +187,7 @@ fn check_terms(
             RawModerator::Text(v) => {
                 let mut tally = std::collections::BTreeMap::new();
                 for &i in included {
-                    if let Some(l) = v[i].as_deref() {
+                    if let Some(l) = v.get(i) {
                         *tally.entry(l).or_insert(0usize) += 1;
                     }
                 }

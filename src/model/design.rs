@@ -22,14 +22,17 @@ pub struct ModeratorSpec {
 }
 
 pub use crate::result::{Moderator, ModeratorKind};
+pub use values::{Categories, Numbers};
+
+mod values;
 
 /// The per-row raw values of one moderator (all rows of the table).
 #[derive(Debug, Clone)]
 pub enum RawModerator {
     /// Every non-missing value parsed as a number.
     Numeric(Numbers),
-    /// Labels (None = missing).
-    Text(Vec<Option<String>>),
+    /// Labels.
+    Text(Categories),
 }
 
 impl RawModerator {
@@ -37,38 +40,8 @@ impl RawModerator {
     pub fn present(&self, i: usize) -> bool {
         match self {
             RawModerator::Numeric(v) => v.get(i).is_some(),
-            RawModerator::Text(v) => v[i].is_some(),
+            RawModerator::Text(v) => v.get(i).is_some(),
         }
-    }
-}
-
-/// A numeric moderator's values, one per table row, 8 bytes each: a
-/// missing value is kept as NaN, which no value read can be (cells are
-/// parsed with [`parse_cell`], which refuses non-finite numbers).
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct Numbers(Vec<f64>);
-
-impl Numbers {
-    /// The value of row `i` (None when missing).
-    pub fn get(&self, i: usize) -> Option<f64> {
-        let x = self.0[i];
-        (!x.is_nan()).then_some(x)
-    }
-
-    /// Number of rows.
-    pub fn len(&self) -> usize {
-        self.0.len()
-    }
-
-    /// Whether there are no rows.
-    pub fn is_empty(&self) -> bool {
-        self.0.is_empty()
-    }
-}
-
-impl From<Vec<Option<f64>>> for Numbers {
-    fn from(v: Vec<Option<f64>>) -> Self {
-        Numbers(v.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
     }
 }
 
@@ -147,7 +120,7 @@ pub fn classify_cells<'a>(
         let text = (0..rows)
             .map(|i| {
                 let c = cell(i);
-                (!is_missing(c)).then(|| c.trim().to_string())
+                (!is_missing(c)).then(|| c.trim())
             })
             .collect();
         return Ok(RawModerator::Text(text));
@@ -431,7 +404,7 @@ pub const MAX_LEVELS: usize = 200;
 /// [`Error::Model`] when only one level is present.
 fn categorical_kind(
     spec: &ModeratorSpec,
-    v: &[Option<String>],
+    v: &Categories,
     included: &[usize],
 ) -> Result<ModeratorKind> {
     if spec.center {
@@ -447,7 +420,7 @@ fn categorical_kind(
     // once: counted in one pass over the rows, then sorted.
     let mut tally: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
     for &i in included {
-        if let Some(l) = v[i].as_deref() {
+        if let Some(l) = v.get(i) {
             *tally.entry(l).or_insert(0) += 1;
         }
     }
@@ -508,12 +481,8 @@ fn level_codes(raw: &[RawModerator], moderators: &[Moderator]) -> Vec<Option<Vec
                     .map(|(i, l)| (l.as_str(), i))
                     .collect();
                 Some(
-                    v.iter()
-                        .map(|l| {
-                            l.as_deref()
-                                .and_then(|l| index.get(l).copied())
-                                .unwrap_or(0)
-                        })
+                    (0..v.len())
+                        .map(|i| v.get(i).and_then(|l| index.get(l).copied()).unwrap_or(0))
                         .collect(),
                 )
             }
