@@ -412,7 +412,8 @@ pub fn parse_table_with(
 }
 
 /// [`parse_table_with`] reading the file at `path` in pieces, so that the
-/// file is never held whole in memory (it is read twice: see [`stream`]).
+/// file is never held whole in memory: a first pass checks the encoding, an
+/// empty file, an open quote and the delimiter, a second parses the rows.
 ///
 /// # Errors
 /// Those of [`parse_table`]; [`Error::Io`] when the file cannot be read.
