@@ -293,7 +293,7 @@ fn records(
                 })
                 .collect(),
             note,
-            shrunken: shrunken.as_ref().map(|s| s[pos]),
+            shrunken: shrunken.as_ref().map(|s| Box::new(s[pos])),
             computed_from: routes[pos],
             cells: shown
                 .iter_mut()

@@ -169,8 +169,13 @@ fn stages(
     sha256: String,
     detail: Detail,
 ) -> Result<FitReport> {
-    let studies = studies::collect(settings, source, columns)?;
+    let mut studies = studies::collect(settings, source, columns)?;
     let design = design::build(settings, source, &studies)?;
+    if detail == Detail::Summary && !settings.answers.shrink {
+        // No per-study record will be built: the design now holds all
+        // that later stages read of the numeric moderators.
+        studies.release_numeric_moderators();
+    }
     let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
     let spread = spread::fit(settings, source, &studies, &design, &mut model)?;
     let readout = readout::read_out(settings, &design, &model, &studies)?;

@@ -51,7 +51,9 @@ pub struct Studies {
     /// The columns carried for the plots: each name as asked and its
     /// (trimmed) cell per study.
     pub shown: Vec<(String, Vec<String>)>,
-    /// Every moderator's values over all table rows, typed.
+    /// Every moderator's values over all table rows, typed. A numeric
+    /// moderator's values are emptied once the design is built when no
+    /// per-study record will be ([`Studies::release_numeric_moderators`]).
     pub raw: Vec<RawModerator>,
     /// Every `--spread-by` characteristic's values over all table rows, typed.
     pub spread_raw: Vec<RawModerator>,
@@ -68,6 +70,19 @@ pub struct Studies {
     /// How messages name the table's rows and cells (lines, or sheet
     /// addresses).
     pub places: Places,
+}
+
+impl Studies {
+    /// Frees the values of the numeric moderators (left empty), for a job
+    /// that builds no per-study record: after the design is built only the
+    /// records read them (the subgroups read the categorical ones).
+    pub fn release_numeric_moderators(&mut self) {
+        for r in &mut self.raw {
+            if let RawModerator::Numeric(v) = r {
+                *v = Default::default();
+            }
+        }
+    }
 }
 
 /// What the report says about the table read.

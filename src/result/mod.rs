@@ -337,8 +337,10 @@ pub struct Study {
     pub note: Option<String>,
     /// The study's empirical-Bayes estimate of its own true effect
     /// (`--shrink`; omitted otherwise).
+    // Boxed: a study record without it is 64 bytes smaller, which counts
+    // with a million studies (the JSON and its schema are the same).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub shrunken: Option<Shrunken>,
+    pub shrunken: Option<Box<Shrunken>>,
     /// The group of reported numbers the effect was computed from ("means",
     /// "means-se", "t", "f", "p", "median-iqr", "median-range", "r",
     /// "counts", "ratio-ci", "log-se", "variance", "se", "ci", or a
