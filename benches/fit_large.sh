@@ -6,6 +6,9 @@
 #   json   the same with --json OUT (OUT in a temporary folder)
 #   csv    benches/csv_pass: one single-threaded csv-crate pass parsing
 #          every numeric field with str::parse::<f64> (the yardstick)
+#   numpy  benches/reml_numpy.py (with NUMPY_PYTHON=a python that has numpy,
+#          scipy and pandas): the competing general-purpose script
+#   cat    with CATEGORICAL=1: `quiet` with --categorical m3 (p = 6)
 # Each run's wall time, user and system CPU time and peak memory come from
 # /usr/bin/time; the summary gives min and median per command. On a shared
 # machine the CPU times are the steadier figures (wall time includes waiting
@@ -32,6 +35,8 @@ log="$dir/times.txt"
 # BASE_BIN: an earlier binary timed in the same session (base-quiet, base-json).
 kinds=(quiet json csv)
 [ -z "${BASE_BIN:-}" ] || kinds=(base-quiet base-json quiet json csv)
+[ -z "${CATEGORICAL:-}" ] || kinds+=(cat)
+[ -z "${NUMPY_PYTHON:-}" ] || kinds+=(numpy)
 for run in $(seq "$runs"); do
   for what in "${kinds[@]}"; do
     case $what in
@@ -40,6 +45,8 @@ for run in $(seq "$runs"); do
       quiet) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --quiet) ;;
       json) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --quiet --json "$dir/out.json") ;;
       csv) cmd=("$pass" "$dir/data.csv") ;;
+      cat) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --categorical m3 --quiet) ;;
+      numpy) cmd=("$NUMPY_PYTHON" benches/reml_numpy.py "$dir/data.csv") ;;
     esac
     /usr/bin/time -o "$dir/t" -f "%e %U %S %M" "${cmd[@]}" > /dev/null
     read -r wall user sys rss < "$dir/t"
@@ -51,6 +58,13 @@ echo "summary (min / median of wall, user and user + sys seconds; max RSS MB):"
 if [ -n "${BASE_BIN:-}" ]; then
   cmp -s "$dir/base.json" "$dir/out.json" && echo "JSON identical to the base binary's" \
     || echo "JSON DIFFERS from the base binary's"
+fi
+if [ -n "${NUMPY_PYTHON:-}" ]; then
+  # The script's numbers against pondus's JSON of the same file.
+  "$NUMPY_PYTHON" benches/reml_numpy.py "$dir/data.csv" "$dir/out.json" | python3 -c '
+import json, sys
+d = json.load(sys.stdin)
+print("numpy script", d["versions"], "largest relative difference from pondus: %.1e" % d["max_rel_diff_from_pondus"])'
 fi
 for what in "${kinds[@]}"; do
   grep "^$what " "$log" | python3 -c '
