@@ -35,6 +35,7 @@ pub mod schema;
 mod sensitivity;
 mod sites;
 mod spread;
+mod study_list;
 
 pub use answers::*;
 pub use clusters::*;
@@ -48,6 +49,7 @@ pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
 pub use spread::*;
+pub use study_list::StudyList;
 
 use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
@@ -90,8 +92,9 @@ pub struct FitReport {
     pub floored: Option<FlooredCheck>,
     /// Predicted effects at the `--at` values.
     pub predictions: Vec<Prediction>,
+    // Kept column by column, written as an array of `Study` (see `StudyList`).
     /// One entry per included study, in input order.
-    pub studies: Vec<Study>,
+    pub studies: StudyList,
     /// How the effects were obtained: one entry per route that any included
     /// study took (`studies[].computed_from`), in a fixed order.
     pub effects_obtained: Vec<RouteCount>,
