@@ -11,6 +11,13 @@ pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
 /// times long before that).
 pub const ROOT_MAX_ITERS: u64 = 500;
 
+/// A sum corrected from the residuals of earlier coefficients (the one-pass
+/// fits of `model::near`: Q = Σw r₀² − δ'X'Wr₀, and Σw²r² likewise) is kept
+/// only when the parts subtracted are at most this multiple of the result,
+/// so at most two bits cancel; otherwise a second pass sums the residuals
+/// at β̂.
+pub const ONE_PASS_MAX_CANCEL: f64 = 4.0;
+
 /// Intervals of the scan of the likelihood score over [0, hi] (so one more
 /// point than this) that brackets the (restricted) likelihood's maxima
 /// before the root search. A scan rather than one local search, so that a
