@@ -6,6 +6,16 @@
 /// REML/ML score, Paule–Mandel, Q-profile bounds): a few machine epsilons.
 pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
 
+/// A Newton step on a τ² equation (the likelihood score, Q(τ²) = target)
+/// of at most this share of τ², after steps that shrank quadratically
+/// ([`NEWTON_SHRINK`]), ends the search: the error left after it is of the
+/// order of the step squared (about 1e-20 relative), far below the
+/// rounding of the function itself, where further steps only chase noise.
+pub const NEWTON_STEP_REL: f64 = 1e-10;
+
+/// That last step must be at most this share of the step before it.
+pub const NEWTON_SHRINK: f64 = 1e-3;
+
 /// Iteration limit of each root search; Brent's method needs far fewer
 /// (it converges superlinearly, and bisection alone halves a bracket 1,000
 /// times long before that).

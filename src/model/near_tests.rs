@@ -206,3 +206,47 @@ fn many_columns_use_the_general_loop_and_agree() {
     assert!(rel(fixed.0, fixed.1) < 1e-13);
     assert!(curv.y_pppy.is_finite() && curv.tr_pp > 0.0);
 }
+
+/// Invented data shaped like the benchmark file of benches/make_large_csv.py
+/// (three moderators, τ² ≈ 0.01), from a deterministic scramble.
+fn benchmark_like(k: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    let mut y = Vec::with_capacity(k);
+    let mut v = Vec::with_capacity(k);
+    let mut x = Vec::with_capacity(4 * k);
+    let unit = |i: usize, s: usize| ((i * s + 17) % 1009) as f64 / 1009.0;
+    for i in 0..k {
+        let (m1, m2, m3) = (unit(i, 7919) - 0.5, 10.0 * unit(i, 104_729), (i % 4) as f64);
+        let vi = 0.01 + 0.2 * unit(i, 15_485_863);
+        let noise =
+            (unit(i, 32_452_843) - 0.5) * 0.5 + (unit(i, 49_979_687) - 0.5) * 3.464 * vi.sqrt();
+        x.extend([1.0, m1, m2, m3]);
+        v.push(vi);
+        y.push(0.2 + 0.1 * m1 - 0.02 * m2 + 0.05 * m3 + noise);
+    }
+    (y, v, x)
+}
+
+#[test]
+fn a_reml_fit_with_its_interval_takes_few_passes() {
+    use crate::model::{fit, tau2::Tau2Method, FitOptions, Inference};
+    let (y, v, x) = benchmark_like(3000);
+    let before = passes();
+    let f = fit(
+        &y,
+        &v,
+        &x,
+        4,
+        FitOptions {
+            method: Tau2Method::Reml,
+            inference: Inference::Kh,
+            level: 0.95,
+        },
+    )
+    .unwrap();
+    let used = passes() - before;
+    eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
+    // One pass per evaluation (26 when written: REML 15 evaluations, the
+    // two Q-profile bounds 8, the OLS scale 2, one guard pass), where two
+    // passes per evaluation would be at least 2 × 23.
+    assert!(used <= 30, "{used} passes");
+}

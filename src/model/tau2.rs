@@ -236,8 +236,12 @@ fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Resul
 /// is replaced by bisection (the safeguard of *rtsafe* in Press et al.,
 /// *Numerical Recipes*, 3rd ed., 2007, §9.4; cited from memory); while no
 /// point right of the root is known, such a step doubles τ² (from at least
-/// `hint`). Stops when a Newton step moves τ² by at most
-/// [`tolerance::ROOT_REL`] of itself, or the bracket is that narrow.
+/// `hint`). Stops after a Newton step of at most
+/// [`tolerance::NEWTON_STEP_REL`] of τ² that is also at most
+/// [`tolerance::NEWTON_SHRINK`] of the step before (so the steps converge
+/// quadratically, and the error left is of the order of the step squared),
+/// or of at most [`tolerance::ROOT_REL`] of τ² (rounding), or when the
+/// bracket is that narrow.
 ///
 /// # Errors
 /// [`Error::NoConvergence`] when f cannot be evaluated or no root is found
@@ -283,7 +287,9 @@ fn newton_root_in<F: Fn(f64) -> Result<(f64, f64)>>(
         let closed = hi.is_finite();
         let fast = !closed || step.abs() <= 0.5 * step_before.abs();
         let next = if newton > lo && newton < hi && fast {
-            if step.abs() <= tolerance::ROOT_REL * newton.abs() {
+            let small = step.abs() <= tolerance::NEWTON_STEP_REL * newton.abs();
+            let shrinking = step.abs() <= tolerance::NEWTON_SHRINK * step_before.abs();
+            if (small && shrinking) || step.abs() <= tolerance::ROOT_REL * newton.abs() {
                 return Ok(newton);
             }
             newton
