@@ -2,8 +2,10 @@
 //!
 //! Solver settings first, then the tolerances the tests compare with.
 
-/// Relative accuracy asked of every one-dimensional root search (τ² by
-/// REML/ML score, Paule–Mandel, Q-profile bounds): a few machine epsilons.
+/// Relative accuracy asked of every one-dimensional Brent root search, and
+/// the rounding-level step (or bracket) that also stops the Newton searches
+/// for τ² (REML/ML score, Paule–Mandel, Q-profile bounds): a few machine
+/// epsilons.
 pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
 
 /// A Newton step on a τ² equation (the likelihood score, Q(τ²) = target)
