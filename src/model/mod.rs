@@ -221,7 +221,7 @@ pub fn fit_parts(
     let tau2_ci = match options.method {
         Tau2Method::None => None,
         _ if !with_ci => None,
-        _ => Some(tau2::q_profile_with(&ev, options.level, hint)?),
+        _ => Some(tau2::q_profile_with(&ev, options.level, hint, t)?),
     };
     let log_likelihood = match options.method {
         Tau2Method::Reml | Tau2Method::Ml => {

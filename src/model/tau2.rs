@@ -214,6 +214,18 @@ pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
 /// 1/Q is concave by the Cauchy–Schwarz inequality, and the steps from the
 /// left of the root then never pass it. Safeguarded by [`newton_root`].
 fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Result<(f64, u64)> {
+    solve_q_from(ev, target, hint, 0.0, what)
+}
+
+/// [`solve_q_with`], with the Newton steps started at `from` (when > 0;
+/// an earlier estimate near the root, already fitted) instead of at 0.
+fn solve_q_from(
+    ev: &Evaluator<'_>,
+    target: f64,
+    hint: f64,
+    from: f64,
+    what: &str,
+) -> Result<(f64, u64)> {
     let start = ev.evaluations();
     let at = |t: f64| -> Result<(f64, f64)> {
         let f = wls(ev, t, Want::Q)?;
@@ -224,7 +236,14 @@ fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Resul
     if q0 <= 0.0 {
         return Ok((0.0, ev.evaluations() - start));
     }
-    let t = newton_root(0.0, (q0, step0), hint, at, what)?;
+    let t = if from > 0.0 && from.is_finite() {
+        let (f, step) = at(from)?;
+        // From the right of the root the bracket is [0, from].
+        let hi = if f < 0.0 { from } else { f64::INFINITY };
+        newton_root_in(0.0, hi, from, (f, step), hint, at, what)?
+    } else {
+        newton_root(0.0, (q0, step0), hint, at, what)?
+    };
     Ok((t.max(0.0), ev.evaluations() - start))
 }
 
@@ -442,22 +461,36 @@ pub fn q_profile(data: &Data<'_>, level: f64) -> Result<(f64, f64)> {
 /// # Errors
 /// As [`q_profile`].
 pub fn q_profile_hinted(data: &Data<'_>, level: f64, hint: f64) -> Result<(f64, f64)> {
-    q_profile_with(&Evaluator::new(data.clone()), level, hint)
+    q_profile_with(&Evaluator::new(data.clone()), level, hint, 0.0)
 }
 
-/// [`q_profile_hinted`] through `ev`.
+/// [`q_profile_hinted`] through `ev`, each bound's Newton steps started at
+/// `from` (the τ² estimate, when > 0: both bounds are usually near it, and
+/// `ev` has fitted it already) instead of at 0.
 ///
 /// # Errors
 /// As [`q_profile`].
-pub fn q_profile_with(ev: &Evaluator<'_>, level: f64, hint: f64) -> Result<(f64, f64)> {
+pub fn q_profile_with(ev: &Evaluator<'_>, level: f64, hint: f64, from: f64) -> Result<(f64, f64)> {
     use crate::dist::{chi2_quantile, Tail};
     let data = ev.data();
     let df = (data.k() - data.p) as f64;
     let alpha = 1.0 - level;
     let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
     let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
-    let (lo, _) = solve_q_with(ev, upper_point, hint, "the lower Q-profile bound for τ²")?;
-    let (hi, _) = solve_q_with(ev, lower_point, hint, "the upper Q-profile bound for τ²")?;
+    let (lo, _) = solve_q_from(
+        ev,
+        upper_point,
+        hint,
+        from,
+        "the lower Q-profile bound for τ²",
+    )?;
+    let (hi, _) = solve_q_from(
+        ev,
+        lower_point,
+        hint,
+        from,
+        "the upper Q-profile bound for τ²",
+    )?;
     Ok((lo, hi))
 }
 
