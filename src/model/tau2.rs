@@ -604,4 +604,44 @@ mod tests {
         assert!((q_lo - chi2_quantile(0.025, 6.0, Tail::Upper)).abs() < 1e-9);
         assert!((q_hi - chi2_quantile(0.025, 6.0, Tail::Lower)).abs() < 1e-9);
     }
+
+    #[test]
+    fn newton_roots_agree_with_brent_on_the_two_pass_functions() {
+        // Invented data (a deterministic scramble): 40 studies, a moderator.
+        use super::super::solve::brent_root;
+        use super::super::wls::fit_with;
+        let k = 40;
+        let z: Vec<f64> = (0..k).map(|i| ((i * 37) % 23) as f64 / 23.0).collect();
+        let v: Vec<f64> = (0..k)
+            .map(|i| 0.005 + ((i * 11) % 7) as f64 / 50.0)
+            .collect();
+        let y: Vec<f64> = (0..k)
+            .map(|i| 0.2 + 0.5 * z[i] + (((i * 53) % 29) as f64 / 29.0 - 0.5) * 0.9)
+            .collect();
+        let x: Vec<f64> = z.iter().flat_map(|z| [1.0, *z]).collect();
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 2,
+        };
+        let s = search("a test root");
+        for method in [Tau2Method::Reml, Tau2Method::Ml] {
+            let restricted = method == Tau2Method::Reml;
+            let f = estimate(&d, method).unwrap();
+            assert!(f.estimate > 0.0, "{f:?}");
+            let score = |t: f64| score(&fit_with(&d, t, Want::SCORE).unwrap(), restricted);
+            let (root, _) = brent_root(score, 0.5 * f.estimate, 2.0 * f.estimate, s).unwrap();
+            assert!(
+                (f.estimate - root).abs() <= 1e-12 * root,
+                "{method:?}: {} vs {root}",
+                f.estimate
+            );
+        }
+        // Paule–Mandel: Q(τ²) = k − p.
+        let pm = estimate(&d, Tau2Method::Pm).unwrap().estimate;
+        let q = |t: f64| fit_with(&d, t, Want::Q).unwrap().q - (k - 2) as f64;
+        let (root, _) = brent_root(q, 0.0, 10.0 * pm, s).unwrap();
+        assert!((pm - root).abs() <= 1e-12 * root, "PM {pm} vs {root}");
+    }
 }
