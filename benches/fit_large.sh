@@ -14,6 +14,7 @@
 # machine the CPU times are the steadier figures (wall time includes waiting
 # for a core; system time is mostly page faults of fresh memory).
 # Usage: bash benches/fit_large.sh [N] [RUNS]   (defaults: 1000000 5)
+# (QUIET_ONLY=1 leaves out the --json runs.)
 set -euo pipefail
 cd "$(dirname "$0")/.."
 n=${1:-1000000}
@@ -35,6 +36,11 @@ log="$dir/times.txt"
 # BASE_BIN: an earlier binary timed in the same session (base-quiet, base-json).
 kinds=(quiet json csv)
 [ -z "${BASE_BIN:-}" ] || kinds=(base-quiet base-json quiet json csv)
+# QUIET_ONLY=1: no --json runs (each writes a ~450 MB file; for short disks).
+if [ -n "${QUIET_ONLY:-}" ]; then
+  kinds=(quiet csv)
+  [ -z "${BASE_BIN:-}" ] || kinds=(base-quiet quiet csv)
+fi
 [ -z "${CATEGORICAL:-}" ] || kinds+=(cat)
 [ -z "${NUMPY_PYTHON:-}" ] || kinds+=(numpy)
 for run in $(seq "$runs"); do
@@ -55,12 +61,14 @@ for run in $(seq "$runs"); do
   done
 done
 echo "summary (min / median of wall, user and user + sys seconds; max RSS MB):"
-if [ -n "${BASE_BIN:-}" ]; then
+if [ -n "${BASE_BIN:-}" ] && [ -z "${QUIET_ONLY:-}" ]; then
   cmp -s "$dir/base.json" "$dir/out.json" && echo "JSON identical to the base binary's" \
     || echo "JSON DIFFERS from the base binary's"
 fi
 if [ -n "${NUMPY_PYTHON:-}" ]; then
   # The script's numbers against pondus's JSON of the same file.
+  [ -f "$dir/out.json" ] || "$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 \
+    --quiet --json "$dir/out.json"
   "$NUMPY_PYTHON" benches/reml_numpy.py "$dir/data.csv" "$dir/out.json" | python3 -c '
 import json, sys
 d = json.load(sys.stdin)
