@@ -3,7 +3,7 @@
 
 use super::index::SiteIndex;
 use super::moments::{self, Moments};
-use super::read::{self, PassSummary};
+use super::read::{self, PassSummary, RowSink};
 use super::settings::{row_columns, Layout, SitesSettings};
 use crate::error::{Error, Result};
 use crate::support::flag::Flag;
@@ -46,7 +46,76 @@ fn moment_vector(layout: Layout, values: &[f64], v: &mut [f64]) {
     v[layout.y()] = values[values.len() - 1];
 }
 
-/// The first pass: every row read once, per-site moments updated in place.
+/// The per-site moments of one stretch of rows (a piece of the file, or all
+/// of it), sites in order of first appearance.
+struct SiteSums {
+    layout: Layout,
+    index: SiteIndex,
+    sites: Vec<SiteSummary>,
+    /// x of the first row, and whether any later row has another x.
+    first_x: Option<f64>,
+    x_varies: bool,
+    v: Vec<f64>,
+}
+
+impl SiteSums {
+    fn new(layout: Layout) -> Self {
+        SiteSums {
+            layout,
+            index: SiteIndex::new(),
+            sites: Vec::new(),
+            first_x: None,
+            x_varies: false,
+            v: vec![0.0; layout.dim()],
+        }
+    }
+
+    /// The index of site `id`, added (with empty moments) when new.
+    #[inline]
+    fn site(&mut self, id: &[u8]) -> usize {
+        let (sites, dim) = (&mut self.sites, self.layout.dim());
+        self.index.find_or_insert(id, |id| {
+            sites.push(SiteSummary {
+                id: String::from_utf8_lossy(id).into_owned(),
+                moments: Moments::new(dim),
+            });
+            sites.len() - 1
+        })
+    }
+
+    /// Adds the sums of the rows that follow these in the file: each site's
+    /// moments merged (Chan et al. 1983, see [`Moments::merge`]), new sites
+    /// appended in their order of first appearance.
+    fn absorb(&mut self, next: SiteSums) {
+        for s in next.sites {
+            let ix = self.site(s.id.as_bytes());
+            self.sites[ix].moments.merge(&s.moments);
+        }
+        match (self.first_x, next.first_x) {
+            (None, f) => self.first_x = f,
+            (Some(a), Some(b)) => self.x_varies |= a != b,
+            (Some(_), None) => {}
+        }
+        self.x_varies |= next.x_varies;
+    }
+}
+
+impl RowSink for SiteSums {
+    #[inline]
+    fn row(&mut self, id: &[u8], values: &[f64]) {
+        let ix = self.site(id);
+        match self.first_x {
+            None => self.first_x = Some(values[0]),
+            Some(f) => self.x_varies |= f != values[0],
+        }
+        moment_vector(self.layout, values, &mut self.v);
+        self.sites[ix].moments.push(&self.v);
+    }
+}
+
+/// The first pass: every row read once, per-site moments updated in place
+/// (on a CSV file, in pieces on all threads, merged in file order: the
+/// result does not depend on the number of threads).
 ///
 /// # Errors
 /// Input errors from [`read::for_each_row`]; [`Error::Model`] when x takes
@@ -67,27 +136,20 @@ pub fn summarise_rows<R: Read>(
         ));
     }
     let cols = row_columns(s);
-    let mut sites: Vec<SiteSummary> = Vec::new();
-    let mut index = SiteIndex::new();
-    let mut v = vec![0.0; layout.dim()];
-    let mut first_x: Option<f64> = None;
-    let mut x_varies = false;
-    let pass = read::for_each(source, input, &cols, |_, id, values| {
-        let ix = index.find_or_insert(id, |id| {
-            sites.push(SiteSummary {
-                id: String::from_utf8_lossy(id).into_owned(),
-                moments: Moments::new(layout.dim()),
-            });
-            sites.len() - 1
-        });
-        match first_x {
-            None => first_x = Some(values[0]),
-            Some(f) => x_varies |= f != values[0],
-        }
-        moment_vector(layout, values, &mut v);
-        sites[ix].moments.push(&v);
-        Ok(())
-    })?;
+    let mut all = SiteSums::new(layout);
+    let pass = read::for_each(
+        source,
+        input,
+        &cols,
+        || SiteSums::new(layout),
+        |piece| all.absorb(piece),
+    )?;
+    let SiteSums {
+        sites,
+        first_x,
+        x_varies,
+        ..
+    } = all;
     if sites.is_empty() {
         return Err(Error::Model(format!(
             "{source}: every row has a missing value in a needed column ({} rows read); no site can be estimated",
