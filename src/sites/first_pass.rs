@@ -46,12 +46,16 @@ fn moment_vector(layout: Layout, values: &[f64], v: &mut [f64]) {
     v[layout.y()] = values[values.len() - 1];
 }
 
-/// The per-site moments of one stretch of rows (a piece of the file, or all
-/// of it), sites in order of first appearance.
+/// The per-site moments of one piece of the file (or all of it), sites in
+/// order of first appearance, kept in flat arrays (each site's means and
+/// co-moments side by side, so a row touches one place in memory).
 struct SiteSums {
     layout: Layout,
     index: SiteIndex,
-    sites: Vec<SiteSummary>,
+    ids: Vec<String>,
+    counts: Vec<u64>,
+    /// Per site: d means, then the d(d+1)/2 co-moments.
+    sums: Vec<f64>,
     /// x of the first row, and whether any later row has another x.
     first_x: Option<f64>,
     x_varies: bool,
@@ -63,53 +67,77 @@ impl SiteSums {
         SiteSums {
             layout,
             index: SiteIndex::new(),
-            sites: Vec::new(),
+            ids: Vec::new(),
+            counts: Vec::new(),
+            sums: Vec::new(),
             first_x: None,
             x_varies: false,
             v: vec![0.0; layout.dim()],
         }
     }
 
-    /// The index of site `id`, added (with empty moments) when new.
-    #[inline]
-    fn site(&mut self, id: &[u8]) -> usize {
-        let (sites, dim) = (&mut self.sites, self.layout.dim());
-        self.index.find_or_insert(id, |id| {
-            sites.push(SiteSummary {
-                id: String::from_utf8_lossy(id).into_owned(),
-                moments: Moments::new(dim),
-            });
-            sites.len() - 1
-        })
-    }
-
-    /// Adds the sums of the rows that follow these in the file: each site's
-    /// moments merged (Chan et al. 1983, see [`Moments::merge`]), new sites
-    /// appended in their order of first appearance.
-    fn absorb(&mut self, next: SiteSums) {
-        for s in next.sites {
-            let ix = self.site(s.id.as_bytes());
-            self.sites[ix].moments.merge(&s.moments);
-        }
-        match (self.first_x, next.first_x) {
-            (None, f) => self.first_x = f,
-            (Some(a), Some(b)) => self.x_varies |= a != b,
-            (Some(_), None) => {}
-        }
-        self.x_varies |= next.x_varies;
+    /// Length of one site's block of `sums`.
+    fn stride(&self) -> usize {
+        let d = self.layout.dim();
+        d + d * (d + 1) / 2
     }
 }
 
 impl RowSink for SiteSums {
     #[inline]
     fn row(&mut self, id: &[u8], values: &[f64]) {
-        let ix = self.site(id);
+        let stride = self.stride();
+        let (ids, counts, sums) = (&mut self.ids, &mut self.counts, &mut self.sums);
+        let ix = self.index.find_or_insert(id, |id| {
+            ids.push(String::from_utf8_lossy(id).into_owned());
+            counts.push(0);
+            sums.resize(sums.len() + stride, 0.0);
+            ids.len() - 1
+        });
         match self.first_x {
             None => self.first_x = Some(values[0]),
             Some(f) => self.x_varies |= f != values[0],
         }
         moment_vector(self.layout, values, &mut self.v);
-        self.sites[ix].moments.push(&self.v);
+        let d = self.layout.dim();
+        let (mean, c) = self.sums[ix * stride..(ix + 1) * stride].split_at_mut(d);
+        moments::push_raw(&mut self.counts[ix], mean, c, &self.v);
+    }
+}
+
+/// The sites' moments of the pieces merged so far.
+struct Merged {
+    index: SiteIndex,
+    sites: Vec<SiteSummary>,
+    first_x: Option<f64>,
+    x_varies: bool,
+}
+
+impl Merged {
+    /// Adds the sums of the piece that follows in the file: each site's
+    /// moments merged (Chan et al. 1983, see [`Moments::merge`]), new sites
+    /// appended in their order of first appearance.
+    fn absorb(&mut self, piece: SiteSums) {
+        let (stride, d) = (piece.stride(), piece.layout.dim());
+        for (k, id) in piece.ids.into_iter().enumerate() {
+            let block = &piece.sums[k * stride..(k + 1) * stride];
+            let m = Moments::from_raw(piece.counts[k], &block[..d], &block[d..]);
+            let sites = &mut self.sites;
+            let ix = self.index.find_or_insert(id.as_bytes(), |_| {
+                sites.push(SiteSummary {
+                    id: id.clone(),
+                    moments: Moments::new(d),
+                });
+                sites.len() - 1
+            });
+            self.sites[ix].moments.merge(&m);
+        }
+        match (self.first_x, piece.first_x) {
+            (None, f) => self.first_x = f,
+            (Some(a), Some(b)) => self.x_varies |= a != b,
+            (Some(_), None) => {}
+        }
+        self.x_varies |= piece.x_varies;
     }
 }
 
@@ -136,7 +164,12 @@ pub fn summarise_rows<R: Read>(
         ));
     }
     let cols = row_columns(s);
-    let mut all = SiteSums::new(layout);
+    let mut all = Merged {
+        index: SiteIndex::new(),
+        sites: Vec::new(),
+        first_x: None,
+        x_varies: false,
+    };
     let pass = read::for_each(
         source,
         input,
@@ -144,7 +177,7 @@ pub fn summarise_rows<R: Read>(
         || SiteSums::new(layout),
         |piece| all.absorb(piece),
     )?;
-    let SiteSums {
+    let Merged {
         sites,
         first_x,
         x_varies,

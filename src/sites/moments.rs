@@ -97,31 +97,21 @@ impl Moments {
         self.c[tri(self.dim(), i, j)]
     }
 
+    /// A summary from its count, means and upper-triangle co-moments in the
+    /// order [`Moments::push`] keeps them (`c` of length d(d+1)/2).
+    pub(crate) fn from_raw(n: u64, mean: &[f64], c: &[f64]) -> Self {
+        debug_assert_eq!(c.len(), mean.len() * (mean.len() + 1) / 2);
+        Moments {
+            n,
+            mean: mean.to_vec(),
+            c: c.to_vec(),
+        }
+    }
+
     /// Adds one row (Welford's update; see the type's documentation).
     #[inline]
     pub fn push(&mut self, v: &[f64]) {
-        let d = self.mean.len();
-        debug_assert_eq!(v.len(), d);
-        self.n += 1;
-        let inv = 1.0 / self.n as f64;
-        // δ with the old mean, then the new mean; at most 16 components are
-        // used by the command line, so both fit on the stack.
-        let mut delta = [0.0f64; MAX_DIM];
-        let mut after = [0.0f64; MAX_DIM];
-        for i in 0..d {
-            let dl = v[i] - self.mean[i];
-            delta[i] = dl;
-            self.mean[i] += dl * inv;
-            after[i] = v[i] - self.mean[i];
-        }
-        let mut k = 0;
-        for i in 0..d {
-            let di = delta[i];
-            for a in &after[i..d] {
-                self.c[k] += di * a;
-                k += 1;
-            }
-        }
+        push_raw(&mut self.n, &mut self.mean, &mut self.c, v);
     }
 
     /// Adds the rows summarised by `other` (Chan et al. 1983, eq. 2.1b).
@@ -172,6 +162,34 @@ impl Moments {
             .map(|i| (0..d).map(|k| a[i * d + k] * self.mean[k]).sum::<f64>() + b[i])
             .collect();
         Moments::from_parts(self.n, mean, &out)
+    }
+}
+
+/// [`Moments::push`] on a summary kept as its parts: count `n`, means
+/// `mean` (length d ≤ [`MAX_DIM`]) and upper-triangle co-moments `c`.
+#[inline]
+pub(crate) fn push_raw(n: &mut u64, mean: &mut [f64], c: &mut [f64], v: &[f64]) {
+    let d = mean.len();
+    debug_assert_eq!(v.len(), d);
+    *n += 1;
+    let inv = 1.0 / *n as f64;
+    // δ with the old mean, then the new mean; at most 16 components are
+    // used by the command line, so both fit on the stack.
+    let mut delta = [0.0f64; MAX_DIM];
+    let mut after = [0.0f64; MAX_DIM];
+    for i in 0..d {
+        let dl = v[i] - mean[i];
+        delta[i] = dl;
+        mean[i] += dl * inv;
+        after[i] = v[i] - mean[i];
+    }
+    let mut k = 0;
+    for i in 0..d {
+        let di = delta[i];
+        for a in &after[i..d] {
+            c[k] += di * a;
+            k += 1;
+        }
     }
 }
 

@@ -74,7 +74,7 @@ impl PieceReader<'_> {
     /// Fills the buffer with the file's bytes `from..to` (`to` ≤ length).
     fn load(&mut self, from: u64, to: u64) -> std::io::Result<()> {
         self.at = from;
-        self.buf.clear();
+        // Only the growth is zeroed: the bytes kept are overwritten below.
         self.buf.resize((to - from) as usize, 0);
         read_exact_at(self.file, &mut self.buf, from)
     }
@@ -237,6 +237,31 @@ struct Job<'a> {
     size: u64,
     pieces: u64,
     ahead: u64,
+}
+
+/// What a field of a row is read as, in a row read in one sweep.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Role {
+    /// The site id.
+    Site,
+    /// The k-th numeric value.
+    Number(usize),
+    /// Not needed.
+    Other,
+}
+
+/// The role of every field, when each needed column is a field of its own
+/// (None when one field is needed twice: those rows are split first).
+fn roles(plan: &Plan) -> Option<Vec<Role>> {
+    let mut roles = vec![Role::Other; plan.names.len()];
+    roles[plan.site_ix] = Role::Site;
+    for (k, &i) in plan.num_ix.iter().enumerate() {
+        if roles[i] != Role::Other {
+            return None;
+        }
+        roles[i] = Role::Number(k);
+    }
+    Some(roles)
 }
 
 /// A thread's buffers, reused from piece to piece.
@@ -492,6 +517,7 @@ fn run_piece<S: RowSink>(
     let plan = job.plan;
     let delimiter = plan.delimiter;
     let plain_numbers = scratch.state.dec.reads_points();
+    let sweep = roles(plan).filter(|_| plain_numbers);
     let mut tally = Tally::default();
     let (mut newlines, mut pos) = (0u64, 0usize);
     while pos < bytes.len() {
@@ -506,6 +532,14 @@ fn run_piece<S: RowSink>(
                 continue;
             }
             _ => {}
+        }
+        if let Some(roles) = &sweep {
+            let values = &mut scratch.state.values;
+            if let Some(end) = plain_line((roles, delimiter), bytes, pos, values, sink) {
+                tally.rows += 1;
+                pos = end;
+                continue;
+            }
         }
         let fields = &mut scratch.fields;
         fields.clear();
@@ -573,4 +607,51 @@ fn plain_row<S: RowSink>(
     }
     sink.row(site, values);
     true
+}
+
+/// Reads the line at `bytes[pos..]` in one sweep when it is a plain row
+/// (see [`plain_row`]): each number read where its field starts
+/// ([`plain::parse_prefix`]) and required to end at the delimiter (at the
+/// line's end for the last field). Returns the position of the line's end
+/// after handing the row to `sink`; None for any other line (nothing handed
+/// on), which then goes the general way.
+#[inline]
+fn plain_line<S: RowSink>(
+    (roles, delimiter): (&[Role], u8),
+    bytes: &[u8],
+    pos: usize,
+    values: &mut [f64],
+    sink: &mut S,
+) -> Option<usize> {
+    let last = roles.len() - 1;
+    let (mut i, mut site) = (pos, (pos, pos));
+    for (f, role) in roles.iter().enumerate() {
+        if let Role::Number(k) = *role {
+            let (v, n) = plain::parse_prefix(&bytes[i..])?;
+            values[k] = v;
+            i += n;
+        } else {
+            let from = i;
+            while let Some(&b) = bytes.get(i) {
+                if b == delimiter || b == b'\n' || b == b'\r' {
+                    break;
+                }
+                i += 1;
+            }
+            if *role == Role::Site {
+                site = (from, i);
+            }
+        }
+        match bytes.get(i) {
+            Some(&b) if b == delimiter && f < last => i += 1,
+            Some(b'\n' | b'\r') | None if f == last => {}
+            _ => return None,
+        }
+    }
+    let site = bytes[site.0..site.1].trim_ascii();
+    if site.is_empty() || !(site.is_ascii() || std::str::from_utf8(site).is_ok()) {
+        return None;
+    }
+    sink.row(site, values);
+    Some(i)
 }

@@ -58,6 +58,120 @@ fn digits(cell: &[u8], i: &mut usize, m: &mut u64, significant: &mut u32) -> usi
 /// ```
 #[inline]
 pub(super) fn parse(cell: &[u8]) -> Option<f64> {
+    match parse_prefix(cell) {
+        Some((v, n)) if n == cell.len() => Some(v),
+        _ => None,
+    }
+}
+
+/// The plain number at the start of `bytes` ([`parse`]) and its length in
+/// bytes; the byte after it, if any, is not part of a plain number (the
+/// caller checks that it ends the cell).
+///
+/// The common short form (`[-]ddd[.ddd]`, at most 7 digits on either side of
+/// the point, no exponent) is read eight bytes at a time ([`short`]); any
+/// other goes digit by digit ([`long`]). Both give the same result.
+#[inline(always)]
+pub(super) fn parse_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
+    short(bytes).or_else(|| long(bytes))
+}
+
+/// Eight bytes from `bytes[i..]` as a little-endian number, zero bytes past
+/// the end.
+#[inline(always)]
+fn load8(bytes: &[u8], i: usize) -> u64 {
+    match bytes.get(i..i + 8) {
+        Some(b) => u64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]),
+        None => {
+            let mut b = [0u8; 8];
+            let rest = bytes.get(i..).unwrap_or(&[]);
+            b[..rest.len()].copy_from_slice(rest);
+            u64::from_le_bytes(b)
+        }
+    }
+}
+
+/// The number of leading ASCII digits in the eight bytes of `v` (first byte
+/// lowest), and the bytes minus `'0'` (valid for those digits).
+///
+/// # Formula
+/// Per byte x: x − 0x30 has its top bit set when x < `'0'`, x + 0x46 when
+/// x > `'9'`, and x itself when x ≥ 0x80. A borrow or carry crosses into a
+/// byte only from a byte below it, and every byte below the first non-digit
+/// is a digit (no borrow, no carry), so the lowest flagged byte is the first
+/// non-digit (the SWAR digit test of Lemire's fast_float and simdjson).
+#[inline(always)]
+fn leading_digits(v: u64) -> (u32, u64) {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    let a = v.wrapping_sub(0x30 * ONES);
+    let b = v.wrapping_add(0x46 * ONES);
+    let flags = (a | b | v) & (0x80 * ONES);
+    (flags.trailing_zeros() / 8, a)
+}
+
+/// The value of the first `n` (1 to 7) digits of `a` (digit values, first
+/// digit in the lowest byte).
+///
+/// # Formula
+/// The n digits are moved to the top bytes (zeros before them) and the eight
+/// digits combined in three multiplications: pairs (×10), quadruples (×100)
+/// and the two halves (×10⁴) (Lemire's fast_float, `parse_eight_digits_unrolled`).
+#[inline(always)]
+fn digits_value(a: u64, n: u32) -> u64 {
+    const MASK: u64 = 0x0000_00FF_0000_00FF;
+    const MUL1: u64 = 100 + (1_000_000 << 32);
+    const MUL2: u64 = 1 + (10_000 << 32);
+    let v = a << (8 * (8 - n));
+    let v = v.wrapping_mul(10).wrapping_add(v >> 8);
+    (v & MASK)
+        .wrapping_mul(MUL1)
+        .wrapping_add(((v >> 16) & MASK).wrapping_mul(MUL2))
+        >> 32
+}
+
+/// [`parse_prefix`] for `[-]ddd[.ddd]` with 1–7 digits before the point and
+/// 1–7 after it (if there is a point), followed by anything but a digit, a
+/// point or an exponent; None for any other form.
+///
+/// # Formula
+/// m = integer digits · 10^f + fraction digits (< 10¹⁴ < 2⁵³) and the value
+/// m / 10^f, one correctly rounded division of two exact doubles (the fast
+/// path of [`long`]).
+#[inline(always)]
+fn short(bytes: &[u8]) -> Option<(f64, usize)> {
+    let negative = bytes.first() == Some(&b'-');
+    let mut i = usize::from(negative);
+    let (n, a) = leading_digits(load8(bytes, i));
+    if !(1..8).contains(&n) {
+        return None;
+    }
+    let mut m = digits_value(a, n);
+    i += n as usize;
+    let mut scale = 0;
+    if bytes.get(i) == Some(&b'.') {
+        let (f, a) = leading_digits(load8(bytes, i + 1));
+        if !(1..8).contains(&f) {
+            return None;
+        }
+        m = m * POW10_INT[f as usize] + digits_value(a, f);
+        scale = f as usize;
+        i += 1 + f as usize;
+    }
+    if bytes.get(i).is_some_and(|&b| b | 0x20 == b'e' || b == b'.') {
+        return None;
+    }
+    let v = m as f64 / POW10[scale];
+    Some((if negative { -v } else { v }, i))
+}
+
+/// 10⁰ … 10⁷ as integers.
+const POW10_INT: [u64; 8] = [1, 10, 100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000];
+
+/// [`parse_prefix`] digit by digit, for every plain form.
+#[cold]
+#[inline(never)]
+fn long(bytes: &[u8]) -> Option<(f64, usize)> {
+    let cell = bytes;
     let mut i = 0;
     let negative = match cell.first()? {
         b'-' => {
@@ -83,10 +197,7 @@ pub(super) fn parse(cell: &[u8]) -> Option<f64> {
         }
         scale = -(n as i64);
     }
-    if let Some(&b) = cell.get(i) {
-        if b | 0x20 != b'e' {
-            return None;
-        }
+    if cell.get(i).is_some_and(|&b| b | 0x20 == b'e') {
         i += 1;
         let exp_negative = match cell.get(i) {
             Some(b'-') => {
@@ -104,7 +215,7 @@ pub(super) fn parse(cell: &[u8]) -> Option<f64> {
         while let Some(&b) = cell.get(i) {
             let d = b.wrapping_sub(b'0');
             if d > 9 {
-                return None;
+                break;
             }
             e = (e * 10 + i64::from(d)).min(1 << 40);
             i += 1;
@@ -121,11 +232,11 @@ pub(super) fn parse(cell: &[u8]) -> Option<f64> {
         } else {
             v * POW10[scale as usize]
         };
-        return Some(if negative { -v } else { v });
+        return Some((if negative { -v } else { v }, i));
     }
-    // The cell is ASCII (checked above), so always UTF-8.
-    let v: f64 = std::str::from_utf8(cell).ok()?.parse().ok()?;
-    v.is_finite().then_some(v)
+    // The number is ASCII (checked above), so always UTF-8.
+    let v: f64 = std::str::from_utf8(&cell[..i]).ok()?.parse().ok()?;
+    v.is_finite().then_some((v, i))
 }
 
 #[cfg(test)]
@@ -189,6 +300,34 @@ mod tests {
             let got = parse(t.as_bytes());
             assert!(got.is_some(), "{t}");
             assert_eq!(got.map(f64::to_bits), std_reading(&t).map(f64::to_bits), "{t}");
+        }
+    }
+
+    #[test]
+    fn a_number_is_read_up_to_the_end_of_its_cell() {
+        for (t, v, n) in [
+            ("12.5,3", 12.5, 4),
+            ("-7;x", -7.0, 2),
+            ("0.1234567\n", 0.1234567, 9),
+            ("12345678.5,", 12345678.5, 10),
+            ("1.5e3,", 1500.0, 5),
+            ("3 ", 3.0, 1),
+            ("4.25.1", 4.25, 4),
+        ] {
+            assert_eq!(super::parse_prefix(t.as_bytes()), Some((v, n)), "{t}");
+        }
+        // The eight-byte path and the digit-by-digit path agree wherever the
+        // first one reads.
+        let mut r = Rng(7);
+        let alphabet = b"0123456789.-e,";
+        for _ in 0..200_000 {
+            let len = 1 + r.below(18) as usize;
+            let bytes: Vec<u8> = (0..len)
+                .map(|_| alphabet[r.below(alphabet.len() as u64) as usize])
+                .collect();
+            if let Some(got) = super::short(&bytes) {
+                assert_eq!(Some(got), super::long(&bytes), "{bytes:?}");
+            }
         }
     }
 
