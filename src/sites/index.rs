@@ -1,11 +1,13 @@
-//! Finding a row's site fast: a hash map of site ids with a fast hasher,
-//! and the previous row's site tried first.
+//! Finding a row's site fast: a hash map of site ids with a fast hasher
+//! (short ids packed into one number), and the previous row's site tried
+//! first.
 
 use std::collections::HashMap;
 
 /// A fast multiplicative hash of site ids (the rotate-xor-multiply step of
-/// the hash used inside the Rust compiler, with its final rotation). Not collision-resistant against
-/// crafted ids, which can only slow a run down, never change its result.
+/// the hash used inside the Rust compiler, with its final rotation). Not
+/// collision-resistant against crafted ids, which can only slow a run down,
+/// never change its result.
 #[derive(Default, Clone, Copy)]
 struct IdHasher(u64);
 
@@ -119,7 +121,14 @@ mod tests {
         let mut ix = SiteIndex::new();
         let mut n = 0;
         let ids: [&[u8]; 8] = [
-            b"a", b"a\0", b"", b"abcdefg", b"abcdefgh", b"abcdefgh-long", b"b", b"\xff\xff",
+            b"a",
+            b"a\0",
+            b"",
+            b"abcdefg",
+            b"abcdefgh",
+            b"abcdefgh-long",
+            b"b",
+            b"\xff\xff",
         ];
         let mut got = Vec::new();
         for round in 0..3 {

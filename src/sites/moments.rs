@@ -250,7 +250,10 @@ mod tests {
     #[test]
     fn reciprocal_table_is_the_division() {
         for (n, r) in RECIPROCALS.iter().enumerate().skip(1) {
-            assert_eq!(r.to_bits(), (1.0 / std::hint::black_box(n) as f64).to_bits());
+            assert_eq!(
+                r.to_bits(),
+                (1.0 / std::hint::black_box(n) as f64).to_bits()
+            );
         }
     }
 

@@ -149,7 +149,11 @@ impl PieceReader<'_> {
 /// What reading one piece gave.
 enum Piece<S> {
     /// Its rows' sink, counts and line breaks.
-    Done { sink: S, tally: Tally, newlines: u64 },
+    Done {
+        sink: S,
+        tally: Tally,
+        newlines: u64,
+    },
     /// It holds a quote: the rest of the file is read as a stream.
     Quoted { start: u64 },
     /// It stopped with an error (lines numbered within the piece).
@@ -348,7 +352,11 @@ pub(super) fn for_each_piece_of<S: RowSink>(
             end,
             line,
             error,
-        }) => return Err(rerun(&job, (start, end), line, &make).err().unwrap_or(error)),
+        }) => {
+            return Err(rerun(&job, (start, end), line, &make)
+                .err()
+                .unwrap_or(error))
+        }
         Some(Stop::Tail { start, line }) => {
             let (sink, rest) = tail(&job, start, line, &make)?;
             tally.absorb(rest, 0);

@@ -84,7 +84,11 @@ fn invented(seed: u64, rows: usize, odd: u64) -> (Vec<u8>, u8) {
         } else {
             sites[r.below(sites.len() as u64) as usize]
         };
-        let (x, w, y) = (number(&mut r, odd), number(&mut r, odd), number(&mut r, odd));
+        let (x, w, y) = (
+            number(&mut r, odd),
+            number(&mut r, odd),
+            number(&mut r, odd),
+        );
         let note = if r.chance(odd) { "x\"y" } else { "ok" };
         write!(s, "{site}{d}{x}{d}{note}{d}{w}{d}{y}{end}").unwrap();
     }
@@ -149,8 +153,12 @@ fn pieces_give_what_the_stream_gives() {
         let odd = [0, 0, 1, 3, 10, 40][(seed % 6) as usize];
         let (data, _) = invented(seed, 5 + (seed as usize * 7) % 120, odd);
         std::fs::write(&path, &data).unwrap();
-        let decimal = [None, None, Some(DecimalMark::Point), Some(DecimalMark::Comma)]
-            [(seed % 4) as usize];
+        let decimal = [
+            None,
+            None,
+            Some(DecimalMark::Point),
+            Some(DecimalMark::Comma),
+        ][(seed % 4) as usize];
         let cols = columns(decimal, seed % 3 == 0);
         let want = streamed(&data, &cols);
         match &want {

@@ -262,17 +262,47 @@ mod tests {
     #[test]
     fn plain_numbers_read_bit_for_bit_as_std_reads_them() {
         let edge = [
-            "0", "-0", "+0", "0.0", "-0.0", "1", "-1", "12.5", "007", "1e5", "1E-5", "1e+5",
-            "9007199254740992", "9007199254740993", "9007199254740993e-3", "123456789012345678",
-            "1234567890123456789012", "0.1", "0.3", "2.2250738585072014e-308", "1e22", "1e23",
-            "1e-22", "1e-23", "4.9e-324", "1.7976931348623157e308", "0.000000000000000000000001",
-            "3.14159265358979323846264338327950288", "1e-400", "100000000000000000000000e-2",
-            "0.00000000000000000000000000000000000000000000000000001e60", "123.456e-300",
+            "0",
+            "-0",
+            "+0",
+            "0.0",
+            "-0.0",
+            "1",
+            "-1",
+            "12.5",
+            "007",
+            "1e5",
+            "1E-5",
+            "1e+5",
+            "9007199254740992",
+            "9007199254740993",
+            "9007199254740993e-3",
+            "123456789012345678",
+            "1234567890123456789012",
+            "0.1",
+            "0.3",
+            "2.2250738585072014e-308",
+            "1e22",
+            "1e23",
+            "1e-22",
+            "1e-23",
+            "4.9e-324",
+            "1.7976931348623157e308",
+            "0.000000000000000000000001",
+            "3.14159265358979323846264338327950288",
+            "1e-400",
+            "100000000000000000000000e-2",
+            "0.00000000000000000000000000000000000000000000000000001e60",
+            "123.456e-300",
         ];
         for t in edge {
             let got = parse(t.as_bytes());
             assert!(got.is_some(), "{t}");
-            assert_eq!(got.map(f64::to_bits), std_reading(t).map(f64::to_bits), "{t}");
+            assert_eq!(
+                got.map(f64::to_bits),
+                std_reading(t).map(f64::to_bits),
+                "{t}"
+            );
         }
         // A seeded stream of plain numbers: 1–22 digits, the point anywhere,
         // exponents from −40 to 40 on a third of them.
@@ -299,7 +329,11 @@ mod tests {
             }
             let got = parse(t.as_bytes());
             assert!(got.is_some(), "{t}");
-            assert_eq!(got.map(f64::to_bits), std_reading(&t).map(f64::to_bits), "{t}");
+            assert_eq!(
+                got.map(f64::to_bits),
+                std_reading(&t).map(f64::to_bits),
+                "{t}"
+            );
         }
     }
 
@@ -350,7 +384,11 @@ mod tests {
                 .collect();
             if let Some(v) = parse(&bytes) {
                 let text = std::str::from_utf8(&bytes).unwrap();
-                assert_eq!(Some(v.to_bits()), std_reading(text).map(f64::to_bits), "{text}");
+                assert_eq!(
+                    Some(v.to_bits()),
+                    std_reading(text).map(f64::to_bits),
+                    "{text}"
+                );
             }
         }
     }

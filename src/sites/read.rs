@@ -348,7 +348,7 @@ pub enum RowStream<R> {
     /// CSV text from standard input or another one-time stream.
     Csv(R),
     /// A CSV file: read in pieces on all of rayon's threads when it is a
-    /// regular file ([`super::pieces`]), else as a stream.
+    /// regular file (`sites::pieces`), else as a stream.
     CsvFile(std::fs::File),
     /// A Parquet file (read by position, so a file only).
     Parquet(std::fs::File),
@@ -380,7 +380,9 @@ pub fn for_each<R: Read, S: RowSink>(
 ) -> Result<PassSummary> {
     let mut sink = make();
     let summary = match input {
-        RowStream::CsvFile(f) => return super::pieces::for_each_piece(source, f, cols, make, merge),
+        RowStream::CsvFile(f) => {
+            return super::pieces::for_each_piece(source, f, cols, make, merge)
+        }
         RowStream::Csv(r) => for_each_row(source, r, cols, |_, id, v| {
             sink.row(id, v);
             Ok(())

@@ -146,7 +146,8 @@ fn sites_json_is_byte_identical_whatever_the_thread_count() {
     for i in 0..120_000u64 {
         let site = (i * 7919) % 37;
         let (x, w) = (10.0 * next(), 5.0 * next());
-        let y = 1.0 + 0.3 * x + 0.2 * w + 0.05 * x * w + (next() - 0.5) * (1.0 + site as f64 / 10.0);
+        let y =
+            1.0 + 0.3 * x + 0.2 * w + 0.05 * x * w + (next() - 0.5) * (1.0 + site as f64 / 10.0);
         if i % 9973 == 5 {
             text.push_str(&format!("s{site},{x:.5},NA,{y:.5}\n\n"));
         } else {
@@ -174,8 +175,16 @@ fn sites_json_is_byte_identical_whatever_the_thread_count() {
     };
     // With --robust the second pass (HC3 sums) is read in pieces too.
     let one = run("1", &["--robust"]);
-    assert_eq!(one, run("2", &["--robust"]), "JSON differs between 1 and 2 threads");
-    assert_eq!(one, run("4", &["--robust"]), "JSON differs between 1 and 4 threads");
+    assert_eq!(
+        one,
+        run("2", &["--robust"]),
+        "JSON differs between 1 and 2 threads"
+    );
+    assert_eq!(
+        one,
+        run("4", &["--robust"]),
+        "JSON differs between 1 and 4 threads"
+    );
     let one = run("1", &[]);
     assert_eq!(one, run("2", &[]), "JSON differs between 1 and 2 threads");
     let o = Command::cargo_bin("pondus")
@@ -190,7 +199,10 @@ fn sites_json_is_byte_identical_whatever_the_thread_count() {
     let b: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(a["input"]["rows"], 120_000);
     assert_eq!(a["input"]["missing_rows"], b["input"]["missing_rows"]);
-    let (sa, sb) = (a["sites"].as_array().unwrap(), b["sites"].as_array().unwrap());
+    let (sa, sb) = (
+        a["sites"].as_array().unwrap(),
+        b["sites"].as_array().unwrap(),
+    );
     assert_eq!(sa.len(), 37);
     assert_eq!(sa.len(), sb.len());
     for (p, q) in sa.iter().zip(sb) {
