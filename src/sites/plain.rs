@@ -160,7 +160,8 @@ fn short(bytes: &[u8]) -> Option<(f64, usize)> {
     if bytes.get(i).is_some_and(|&b| b | 0x20 == b'e' || b == b'.') {
         return None;
     }
-    let v = m as f64 / POW10[scale];
+    // m < 10¹⁴: the signed conversion is exact and one instruction.
+    let v = m as i64 as f64 / POW10[scale];
     Some((if negative { -v } else { v }, i))
 }
 
@@ -226,7 +227,7 @@ fn long(bytes: &[u8]) -> Option<(f64, usize)> {
         scale += if exp_negative { -e } else { e };
     }
     if significant <= 19 && m <= 1 << 53 && (-22..=22).contains(&scale) {
-        let v = m as f64;
+        let v = m as i64 as f64; // m ≤ 2⁵³: exact
         let v = if scale < 0 {
             v / POW10[(-scale) as usize]
         } else {
