@@ -6,11 +6,15 @@
 #   json   the same with --json OUT (OUT in a temporary folder)
 #   csv    benches/csv_pass: one single-threaded csv-crate pass parsing
 #          every numeric field with str::parse::<f64> (the yardstick)
+#   numpy  benches/reml_numpy.py (with NUMPY_PYTHON=a python that has numpy,
+#          scipy and pandas): the competing general-purpose script
+#   cat    with CATEGORICAL=1: `quiet` with --categorical m3 (p = 6)
 # Each run's wall time, user and system CPU time and peak memory come from
 # /usr/bin/time; the summary gives min and median per command. On a shared
 # machine the CPU times are the steadier figures (wall time includes waiting
 # for a core; system time is mostly page faults of fresh memory).
 # Usage: bash benches/fit_large.sh [N] [RUNS]   (defaults: 1000000 5)
+# (QUIET_ONLY=1 leaves out the --json runs.)
 set -euo pipefail
 cd "$(dirname "$0")/.."
 n=${1:-1000000}
@@ -32,6 +36,13 @@ log="$dir/times.txt"
 # BASE_BIN: an earlier binary timed in the same session (base-quiet, base-json).
 kinds=(quiet json csv)
 [ -z "${BASE_BIN:-}" ] || kinds=(base-quiet base-json quiet json csv)
+# QUIET_ONLY=1: no --json runs (each writes a ~450 MB file; for short disks).
+if [ -n "${QUIET_ONLY:-}" ]; then
+  kinds=(quiet csv)
+  [ -z "${BASE_BIN:-}" ] || kinds=(base-quiet quiet csv)
+fi
+[ -z "${CATEGORICAL:-}" ] || kinds+=(cat)
+[ -z "${NUMPY_PYTHON:-}" ] || kinds+=(numpy)
 for run in $(seq "$runs"); do
   for what in "${kinds[@]}"; do
     case $what in
@@ -40,6 +51,8 @@ for run in $(seq "$runs"); do
       quiet) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --quiet) ;;
       json) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --quiet --json "$dir/out.json") ;;
       csv) cmd=("$pass" "$dir/data.csv") ;;
+      cat) cmd=("$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 --categorical m3 --quiet) ;;
+      numpy) cmd=("$NUMPY_PYTHON" benches/reml_numpy.py "$dir/data.csv") ;;
     esac
     /usr/bin/time -o "$dir/t" -f "%e %U %S %M" "${cmd[@]}" > /dev/null
     read -r wall user sys rss < "$dir/t"
@@ -48,9 +61,18 @@ for run in $(seq "$runs"); do
   done
 done
 echo "summary (min / median of wall, user and user + sys seconds; max RSS MB):"
-if [ -n "${BASE_BIN:-}" ]; then
+if [ -n "${BASE_BIN:-}" ] && [ -z "${QUIET_ONLY:-}" ]; then
   cmp -s "$dir/base.json" "$dir/out.json" && echo "JSON identical to the base binary's" \
     || echo "JSON DIFFERS from the base binary's"
+fi
+if [ -n "${NUMPY_PYTHON:-}" ]; then
+  # The script's numbers against pondus's JSON of the same file.
+  [ -f "$dir/out.json" ] || "$bin" fit "$dir/data.csv" --moderator m1 --moderator m2 --moderator m3 \
+    --quiet --json "$dir/out.json"
+  "$NUMPY_PYTHON" benches/reml_numpy.py "$dir/data.csv" "$dir/out.json" | python3 -c '
+import json, sys
+d = json.load(sys.stdin)
+print("numpy script", d["versions"], "largest relative difference from pondus: %.1e" % d["max_rel_diff_from_pondus"])'
 fi
 for what in "${kinds[@]}"; do
   grep "^$what " "$log" | python3 -c '

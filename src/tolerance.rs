@@ -2,14 +2,33 @@
 //!
 //! Solver settings first, then the tolerances the tests compare with.
 
-/// Relative accuracy asked of every one-dimensional root search (τ² by
-/// REML/ML score, Paule–Mandel, Q-profile bounds): a few machine epsilons.
+/// Relative accuracy asked of every one-dimensional Brent root search, and
+/// the rounding-level step (or bracket) that also stops the Newton searches
+/// for τ² (REML/ML score, Paule–Mandel, Q-profile bounds): a few machine
+/// epsilons.
 pub const ROOT_REL: f64 = 4.0 * f64::EPSILON;
+
+/// A Newton step on a τ² equation (the likelihood score, Q(τ²) = target)
+/// of at most this share of τ², after steps that shrank quadratically
+/// ([`NEWTON_SHRINK`]), ends the search: the error left after it is of the
+/// order of the step squared (about 1e-20 relative), far below the
+/// rounding of the function itself, where further steps only chase noise.
+pub const NEWTON_STEP_REL: f64 = 1e-10;
+
+/// That last step must be at most this share of the step before it.
+pub const NEWTON_SHRINK: f64 = 1e-3;
 
 /// Iteration limit of each root search; Brent's method needs far fewer
 /// (it converges superlinearly, and bisection alone halves a bracket 1,000
 /// times long before that).
 pub const ROOT_MAX_ITERS: u64 = 500;
+
+/// A sum corrected from the residuals of earlier coefficients (the one-pass
+/// fits of `model::near`: Q = Σw r₀² − δ'X'Wr₀, and Σw²r² likewise) is kept
+/// only when the parts subtracted are at most this multiple of the result,
+/// so at most two bits cancel; otherwise a second pass sums the residuals
+/// at β̂.
+pub const ONE_PASS_MAX_CANCEL: f64 = 4.0;
 
 /// Intervals of the scan of the likelihood score over [0, hi] (so one more
 /// point than this) that brackets the (restricted) likelihood's maxima

@@ -100,7 +100,7 @@ pub fn assert_finite(r: &FitReport) {
         xs.push(t.statistic);
         assert!((0.0..=1.0).contains(&t.p), "omnibus p = {}", t.p);
     }
-    for s in &r.studies {
+    for s in r.studies.iter() {
         xs.extend([s.effect, s.variance, s.weight, s.fitted, s.residual]);
     }
     for (i, x) in xs.iter().enumerate() {

@@ -17,7 +17,7 @@ use crate::model::tau2::Tau2Method;
 use crate::model::ModelFit;
 use crate::result::{
     ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
-    MeasureInfo, ModelInfo, Shrunken, Spread, Study, Tau2Report, ToolInfo,
+    MeasureInfo, ModelInfo, Shrunken, Spread, Study, StudyList, Tau2Report, ToolInfo,
 };
 use crate::support::flag::Flag;
 
@@ -107,7 +107,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
     // shrunken estimates the records are built anyway, as their numbers
     // are checked below.
     let (records, excluded) = if detail == super::Detail::Summary && answers.shrunken.is_none() {
-        (Vec::new(), studies.excluded)
+        (StudyList::new(), studies.excluded)
     } else {
         records(studies, fit, settings.options.level, answers.shrunken)
     };
@@ -251,7 +251,7 @@ fn records(
     fit: &ModelFit,
     level: f64,
     shrunken: Option<Vec<Shrunken>>,
-) -> (Vec<Study>, Vec<Excluded>) {
+) -> (StudyList, Vec<Excluded>) {
     let Studies {
         included,
         y,
@@ -267,7 +267,7 @@ fn records(
     } = studies;
     let total_w: f64 = fit.weights.iter().sum();
     let z = crate::dist::normal_quantile(1.0 - (1.0 - level) / 2.0);
-    let mut out = Vec::with_capacity(y.len());
+    let mut out = StudyList::new();
     let mut notes = notes.into_iter().peekable();
     for (pos, (&i, study)) in included.iter().zip(labels.iter()).enumerate() {
         let note = notes.next_if(|(at, _)| *at == pos).map(|(_, n)| n);
@@ -293,7 +293,7 @@ fn records(
                 })
                 .collect(),
             note,
-            shrunken: shrunken.as_ref().map(|s| Box::new(s[pos])),
+            shrunken: shrunken.as_ref().map(|s| s[pos]),
             computed_from: routes[pos],
             cells: shown
                 .iter_mut()
@@ -344,7 +344,8 @@ fn check_finite(r: &FitReport) -> Result<()> {
         check("prediction".into(), p.mean.estimate);
         check("prediction SE".into(), p.mean.se);
     }
-    for st in &r.studies {
+    let shrunken = r.studies.any_shrunken().then(|| r.studies.iter());
+    for st in shrunken.into_iter().flatten() {
         if let Some(sh) = &st.shrunken {
             check(format!("shrunken estimate of {}", st.study), sh.estimate);
             check(format!("shrunken SE of {}", st.study), sh.se);

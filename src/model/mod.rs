@@ -6,6 +6,7 @@ pub mod design;
 pub mod inference;
 pub mod location_scale;
 pub mod multilevel;
+pub mod near;
 pub mod probe;
 pub mod selection;
 pub mod shrink;
@@ -17,7 +18,7 @@ pub mod wls;
 use crate::error::{Error, Result};
 use nalgebra::{DMatrix, DVector};
 use tau2::{Tau2Fit, Tau2Method};
-use wls::{fit_with, Data, Want};
+use wls::{Data, Want};
 
 pub use crate::result::Inference;
 
@@ -180,14 +181,17 @@ pub fn fit_parts(
     let st = standardise(x, k, p);
     let data = Data { y, v, x: &st.x, p };
     let hint = tau2::scale_hint(&data);
-    let tau2 = tau2::estimate_hinted(&data, options.method, hint)?;
+    // Every fit below goes through one evaluator: one pass each, around the
+    // coefficients of the fit before, and none repeated.
+    let ev = near::Evaluator::new(data.clone());
+    let tau2 = tau2::estimate_with(&ev, options.method, hint)?;
     let t = tau2.estimate;
     let singular = || {
         Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
     };
     let likelihood = matches!(options.method, Tau2Method::Reml | Tau2Method::Ml);
     let want = if likelihood { Want::ALL } else { Want::Q };
-    let f = fit_with(&data, t, want).ok_or_else(singular)?;
+    let f = ev.at(t, want).ok_or_else(singular)?;
     let df = (k - p) as f64;
     let scale_factor = kh_scale(f.q, df, y, v, t);
     let kh_scale = applied_scale(options.inference, scale_factor);
@@ -212,12 +216,12 @@ pub fn fit_parts(
                 .then(|| (y[i] - fi) / var_r.sqrt()),
         );
     }
-    let fe = fit_with(&data, 0.0, Want::Q).ok_or_else(singular)?;
-    let v_typical = df / wls::trace_p(&data, 0.0).ok_or_else(singular)?;
+    let fe = ev.at(0.0, Want::Q).ok_or_else(singular)?;
+    let v_typical = df / wls::trace_p_with(&data, 0.0, &fe.m_inv);
     let tau2_ci = match options.method {
         Tau2Method::None => None,
         _ if !with_ci => None,
-        _ => Some(tau2::q_profile_hinted(&data, options.level, hint)?),
+        _ => Some(tau2::q_profile_with(&ev, options.level, hint, t)?),
     };
     let log_likelihood = match options.method {
         Tau2Method::Reml | Tau2Method::Ml => {

@@ -1,11 +1,16 @@
 //! Estimators of the between-study variance τ², and the Q-profile interval.
 //!
 //! Likelihood estimators maximise over τ² ≥ 0 by solving the score
-//! equation with argmin's Brent root finder inside brackets found by a scan;
-//! moment estimators are the meta-regression (residual-based) forms.
+//! equation with safeguarded Newton steps (the exact second derivative of
+//! [`super::near`]) inside brackets found by a scan; Q(τ²) = target
+//! (Paule–Mandel, the Q-profile bounds) is solved by safeguarded Newton
+//! steps on 1/Q. Every evaluation is one pass over the studies
+//! ([`Evaluator`]). Moment estimators are the meta-regression
+//! (residual-based) forms.
 
-use super::solve::{brent_root, Search};
-use super::wls::{fit_with, ols, Data, Want, Wls};
+use super::near::Evaluator;
+use super::solve::Search;
+use super::wls::{ols, Data, Want, Wls};
 use crate::error::{Error, Result};
 use crate::support::flag::Flag;
 use crate::tolerance;
@@ -42,10 +47,12 @@ fn search(what: &str) -> Search<'_> {
     }
 }
 
-fn wls(data: &Data<'_>, tau2: f64, want: Want) -> Result<Wls> {
-    fit_with(data, tau2, want).ok_or_else(|| {
-        Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
-    })
+fn singular() -> Error {
+    Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
+}
+
+fn wls(ev: &Evaluator<'_>, tau2: f64, want: Want) -> Result<Wls> {
+    ev.at(tau2, want).ok_or_else(singular)
 }
 
 /// A starting scale for τ² brackets: the OLS residual variance (or the mean
@@ -60,36 +67,6 @@ pub fn scale_hint(data: &Data<'_>) -> f64 {
         s
     } else {
         mean_v.max(f64::MIN_POSITIVE)
-    }
-}
-
-/// Remembers the values of an expensive function of τ², so that a root
-/// search does not recompute the bracket ends the scan already evaluated.
-struct Memo<F: Fn(f64) -> f64> {
-    f: F,
-    seen: std::cell::RefCell<Vec<(f64, f64)>>,
-}
-
-impl<F: Fn(f64) -> f64> Memo<F> {
-    fn new(f: F) -> Self {
-        Memo {
-            f,
-            seen: std::cell::RefCell::new(Vec::new()),
-        }
-    }
-
-    fn call(&self, t: f64) -> f64 {
-        if let Some(&(_, v)) = self
-            .seen
-            .borrow()
-            .iter()
-            .find(|(x, _)| x.to_bits() == t.to_bits())
-        {
-            return v;
-        }
-        let v = (self.f)(t);
-        self.seen.borrow_mut().push((t, v));
-        v
     }
 }
 
@@ -119,6 +96,16 @@ pub fn estimate(data: &Data<'_>, method: Tau2Method) -> Result<Tau2Fit> {
 /// # Errors
 /// As [`estimate`].
 pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
+    estimate_with(&Evaluator::new(data.clone()), method, hint)
+}
+
+/// [`estimate_hinted`] with the fits made through `ev` (which remembers
+/// them, for the fits that follow at the estimate).
+///
+/// # Errors
+/// As [`estimate`].
+pub fn estimate_with(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
+    let data = ev.data();
     let k = data.k() as f64;
     let df = (data.k() - data.p) as f64;
     let closed = |t: f64| Tau2Fit {
@@ -142,7 +129,7 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
         // Valentine, *The Handbook of Research Synthesis and Meta-Analysis*, 2nd ed., ch. 16):
         // τ² = (Q_E − (k − p)) / tr P₀, with P₀ at the common-effect weights.
         Tau2Method::Dl => {
-            let fe = wls(data, 0.0, Want::SCORE)?;
+            let fe = wls(ev, 0.0, Want::SCORE)?;
             Ok(closed((fe.q - df) / fe.tr_p))
         }
         // Hedges (1983) / Raudenbush (2009) OLS-based estimator:
@@ -184,13 +171,12 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
             if t0 <= tolerance::EXACT_FIT_REL * mean_y2 {
                 return Ok(closed(0.0));
             }
-            let f = wls(data, t0, Want::Q)?;
+            let f = wls(ev, t0, Want::Q)?;
             Ok(closed(t0 * f.q / df))
         }
         // Paule & Mandel (1982); meta-regression form: Q(τ²) = k − p.
         Tau2Method::Pm => {
-            let (t, evaluations) =
-                solve_q_hinted(data, df, hint, "the Paule–Mandel estimate of τ²")?;
+            let (t, evaluations) = solve_q_with(ev, df, hint, "the Paule–Mandel estimate of τ²")?;
             Ok(Tau2Fit {
                 estimate: t,
                 method,
@@ -202,7 +188,7 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
                 evaluations,
             })
         }
-        Tau2Method::Reml | Tau2Method::Ml => maximise_likelihood(data, method, hint),
+        Tau2Method::Reml | Tau2Method::Ml => maximise_likelihood(ev, method, hint),
     }
 }
 
@@ -212,25 +198,136 @@ pub fn estimate_hinted(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
 /// # Errors
 /// [`Error::NoConvergence`] when no bracket or root is found.
 pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
-    solve_q_hinted(data, target, scale_hint(data), what)
+    solve_q_with(
+        &Evaluator::new(data.clone()),
+        target,
+        scale_hint(data),
+        what,
+    )
 }
 
-fn solve_q_hinted(data: &Data<'_>, target: f64, hint: f64, what: &str) -> Result<(f64, u64)> {
-    let memo =
-        Memo::new(|t: f64| fit_with(data, t, Want::Q).map(|f| f.q).unwrap_or(f64::NAN) - target);
-    let q = |t: f64| memo.call(t);
-    let q0 = q(0.0);
-    if q0.is_nan() {
-        return Err(Error::Model(
-            "the weighted design matrix is singular; the moderators are collinear".into(),
-        ));
-    }
+/// [`solve_q`] through `ev`, with the scale `hint` for a first step when
+/// Q is flat. Newton steps on 1/Q(τ²) = 1/target: with S = Σ w_i² r_i² =
+/// −dQ/dτ² (see [`super::near`]), the step from τ² is Q(Q − target)/(target·S).
+/// 1/Q is close to linear in τ² (exactly so when all v_i are equal), so the
+/// steps converge in a few fits; for Q(τ²) = Σ a_i/(b_i + τ²) (fixed β),
+/// 1/Q is concave by the Cauchy–Schwarz inequality, and the steps from the
+/// left of the root then never pass it. Safeguarded by [`newton_root`].
+fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Result<(f64, u64)> {
+    solve_q_from(ev, target, hint, 0.0, what)
+}
+
+/// [`solve_q_with`], with the Newton steps started at `from` (when > 0;
+/// an earlier estimate near the root, already fitted) instead of at 0.
+fn solve_q_from(
+    ev: &Evaluator<'_>,
+    target: f64,
+    hint: f64,
+    from: f64,
+    what: &str,
+) -> Result<(f64, u64)> {
+    let start = ev.evaluations();
+    let at = |t: f64| -> Result<(f64, f64)> {
+        let f = wls(ev, t, Want::Q)?;
+        // Q − target > 0 left of the root, and the Newton step on 1/Q.
+        Ok((f.q - target, f.q * (f.q - target) / (target * f.sum_w2r2)))
+    };
+    let (q0, step0) = at(0.0)?;
     if q0 <= 0.0 {
-        return Ok((0.0, 1));
+        return Ok((0.0, ev.evaluations() - start));
     }
-    let hi = bracket_above(&q, hint, what)?;
-    let (t, iters) = brent_root(q, 0.0, hi, search(what))?;
-    Ok((t.max(0.0), iters))
+    let t = if from > 0.0 && from.is_finite() {
+        let (f, step) = at(from)?;
+        // From the right of the root the bracket is [0, from].
+        let hi = if f < 0.0 { from } else { f64::INFINITY };
+        newton_root_in(0.0, hi, from, (f, step), hint, at, what)?
+    } else {
+        newton_root(0.0, (q0, step0), hint, at, what)?
+    };
+    Ok((t.max(0.0), ev.evaluations() - start))
+}
+
+/// A root of f on [lo, ∞) with f(lo) > 0 (and f < 0 to its right), by
+/// Newton steps kept inside the bracket the evaluations so far give:
+/// `at(t)` returns f(t) and the Newton step −f(t)/f'(t) (or the step of
+/// another function with the same root). A step that leaves the bracket,
+/// or, once the bracket is closed, that does not halve the step before it,
+/// is replaced by bisection (the safeguard of *rtsafe* in Press et al.,
+/// *Numerical Recipes*, 3rd ed., 2007, §9.4; cited from memory); while no
+/// point right of the root is known, such a step doubles τ² (from at least
+/// `hint`). Stops after a Newton step of at most
+/// [`tolerance::NEWTON_STEP_REL`] of τ² that is also at most
+/// [`tolerance::NEWTON_SHRINK`] of the step before (so the steps converge
+/// quadratically, and the error left is of the order of the step squared),
+/// or of at most [`tolerance::ROOT_REL`] of τ² (rounding), or when the
+/// bracket is that narrow.
+///
+/// # Errors
+/// [`Error::NoConvergence`] when f cannot be evaluated or no root is found
+/// in [`tolerance::ROOT_MAX_ITERS`] steps; the errors of `at`.
+fn newton_root<F: Fn(f64) -> Result<(f64, f64)>>(
+    lo: f64,
+    first: (f64, f64),
+    hint: f64,
+    at: F,
+    what: &str,
+) -> Result<f64> {
+    newton_root_in(lo, f64::INFINITY, lo, first, hint, at, what)
+}
+
+/// [`newton_root`] in the bracket [lo, hi] (hi may be ∞), from `t`, where
+/// f and the step are `first`.
+#[allow(clippy::too_many_arguments)]
+fn newton_root_in<F: Fn(f64) -> Result<(f64, f64)>>(
+    mut lo: f64,
+    mut hi: f64,
+    mut t: f64,
+    first: (f64, f64),
+    hint: f64,
+    at: F,
+    what: &str,
+) -> Result<f64> {
+    let (mut f, mut step) = first;
+    let mut step_before = f64::INFINITY;
+    for _ in 0..tolerance::ROOT_MAX_ITERS {
+        if f.is_nan() {
+            return Err(
+                search(what).fail(format!("the function could not be evaluated at τ² = {t:e}"))
+            );
+        }
+        if f > 0.0 {
+            lo = lo.max(t);
+        } else if f < 0.0 {
+            hi = hi.min(t);
+        } else {
+            return Ok(t);
+        }
+        let newton = t + step;
+        let closed = hi.is_finite();
+        let fast = !closed || step.abs() <= 0.5 * step_before.abs();
+        let next = if newton > lo && newton < hi && fast {
+            let small = step.abs() <= tolerance::NEWTON_STEP_REL * newton.abs();
+            let shrinking = step.abs() <= tolerance::NEWTON_SHRINK * step_before.abs();
+            if (small && shrinking) || step.abs() <= tolerance::ROOT_REL * newton.abs() {
+                return Ok(newton);
+            }
+            newton
+        } else if closed {
+            0.5 * (lo + hi)
+        } else {
+            (2.0 * t).max(hint)
+        };
+        if closed && hi - lo <= tolerance::ROOT_REL * hi {
+            return Ok(next);
+        }
+        step_before = next - t;
+        t = next;
+        (f, step) = at(t)?;
+    }
+    Err(search(what).fail(format!(
+        "no root found in {} steps",
+        tolerance::ROOT_MAX_ITERS
+    )))
 }
 
 /// Restricted (REML) or ordinary (ML) log-likelihood at τ², up to the
@@ -250,28 +347,37 @@ fn score(f: &Wls, restricted: bool) -> f64 {
     0.5 * (f.sum_w2r2 - t)
 }
 
-fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
+/// Derivative in τ² of [`score`] (a fit with [`Want::CURVATURE`]):
+/// REML −y'PPPy + ½ tr(PP), ML −y'PPPy + ½ Σ w_i² (derived in
+/// [`super::near`]).
+fn score_slope(f: &Wls, restricted: bool) -> f64 {
+    let t = if restricted { f.tr_pp } else { f.sum_w2 };
+    -f.y_pppy + 0.5 * t
+}
+
+fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
     let restricted = method == Tau2Method::Reml;
     let what = if restricted {
         "the REML estimate of τ²"
     } else {
         "the ML estimate of τ²"
     };
-    let evals = std::cell::Cell::new(0u64);
-    let at = |t: f64, want: Want| {
-        evals.set(evals.get() + 1);
-        fit_with(data, t, want)
-    };
-    let score_memo = Memo::new(|t: f64| {
-        at(t, Want::SCORE)
+    let start = ev.evaluations();
+    let s = |t: f64| {
+        ev.at(t, Want::SCORE)
             .map(|f| score(&f, restricted))
             .unwrap_or(f64::NAN)
-    });
-    let s = |t: f64| score_memo.call(t);
+    };
     let ll = |t: f64| {
-        at(t, Want::ALL)
+        ev.at(t, Want::ALL)
             .map(|f| log_likelihood(&f, restricted))
             .unwrap_or(f64::NAN)
+    };
+    // Newton steps on the score, with its exact derivative.
+    let newton = |t: f64| -> Result<(f64, f64)> {
+        let f = wls(ev, t, Want::CURVATURE)?;
+        let sc = score(&f, restricted);
+        Ok((sc, -sc / score_slope(&f, restricted)))
     };
 
     let s0 = s(0.0);
@@ -314,7 +420,10 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
             let root = if s2 == 0.0 {
                 t2
             } else {
-                brent_root(s, t1, t2, search(what))?.0
+                // Started at the secant point of the bracket's ends.
+                let t = t1 + (t2 - t1) * s1 / (s1 - s2);
+                let t = if t > t1 && t < t2 { t } else { 0.5 * (t1 + t2) };
+                newton_root_in(t1, t2, t, newton(t)?, hint, newton, what)?
             };
             candidates.push((root, ll(root)));
         }
@@ -333,7 +442,7 @@ fn maximise_likelihood(data: &Data<'_>, method: Tau2Method, hint: f64) -> Result
         } else {
             Ending::Converged
         },
-        evaluations: evals.get(),
+        evaluations: ev.evaluations() - start,
     })
 }
 
@@ -352,13 +461,36 @@ pub fn q_profile(data: &Data<'_>, level: f64) -> Result<(f64, f64)> {
 /// # Errors
 /// As [`q_profile`].
 pub fn q_profile_hinted(data: &Data<'_>, level: f64, hint: f64) -> Result<(f64, f64)> {
+    q_profile_with(&Evaluator::new(data.clone()), level, hint, 0.0)
+}
+
+/// [`q_profile_hinted`] through `ev`, each bound's Newton steps started at
+/// `from` (the τ² estimate, when > 0: both bounds are usually near it, and
+/// `ev` has fitted it already) instead of at 0.
+///
+/// # Errors
+/// As [`q_profile`].
+pub fn q_profile_with(ev: &Evaluator<'_>, level: f64, hint: f64, from: f64) -> Result<(f64, f64)> {
     use crate::dist::{chi2_quantile, Tail};
+    let data = ev.data();
     let df = (data.k() - data.p) as f64;
     let alpha = 1.0 - level;
     let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
     let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
-    let (lo, _) = solve_q_hinted(data, upper_point, hint, "the lower Q-profile bound for τ²")?;
-    let (hi, _) = solve_q_hinted(data, lower_point, hint, "the upper Q-profile bound for τ²")?;
+    let (lo, _) = solve_q_from(
+        ev,
+        upper_point,
+        hint,
+        from,
+        "the lower Q-profile bound for τ²",
+    )?;
+    let (hi, _) = solve_q_from(
+        ev,
+        lower_point,
+        hint,
+        from,
+        "the upper Q-profile bound for τ²",
+    )?;
     Ok((lo, hi))
 }
 
@@ -471,5 +603,45 @@ mod tests {
         let q_hi = super::super::wls::fit_at(&d, hi, false).unwrap().q;
         assert!((q_lo - chi2_quantile(0.025, 6.0, Tail::Upper)).abs() < 1e-9);
         assert!((q_hi - chi2_quantile(0.025, 6.0, Tail::Lower)).abs() < 1e-9);
+    }
+
+    #[test]
+    fn newton_roots_agree_with_brent_on_the_two_pass_functions() {
+        // Invented data (a deterministic scramble): 40 studies, a moderator.
+        use super::super::solve::brent_root;
+        use super::super::wls::fit_with;
+        let k = 40;
+        let z: Vec<f64> = (0..k).map(|i| ((i * 37) % 23) as f64 / 23.0).collect();
+        let v: Vec<f64> = (0..k)
+            .map(|i| 0.005 + ((i * 11) % 7) as f64 / 50.0)
+            .collect();
+        let y: Vec<f64> = (0..k)
+            .map(|i| 0.2 + 0.5 * z[i] + (((i * 53) % 29) as f64 / 29.0 - 0.5) * 0.9)
+            .collect();
+        let x: Vec<f64> = z.iter().flat_map(|z| [1.0, *z]).collect();
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 2,
+        };
+        let s = search("a test root");
+        for method in [Tau2Method::Reml, Tau2Method::Ml] {
+            let restricted = method == Tau2Method::Reml;
+            let f = estimate(&d, method).unwrap();
+            assert!(f.estimate > 0.0, "{f:?}");
+            let score = |t: f64| score(&fit_with(&d, t, Want::SCORE).unwrap(), restricted);
+            let (root, _) = brent_root(score, 0.5 * f.estimate, 2.0 * f.estimate, s).unwrap();
+            assert!(
+                (f.estimate - root).abs() <= 1e-12 * root,
+                "{method:?}: {} vs {root}",
+                f.estimate
+            );
+        }
+        // Paule–Mandel: Q(τ²) = k − p.
+        let pm = estimate(&d, Tau2Method::Pm).unwrap().estimate;
+        let q = |t: f64| fit_with(&d, t, Want::Q).unwrap().q - (k - 2) as f64;
+        let (root, _) = brent_root(q, 0.0, 10.0 * pm, s).unwrap();
+        assert!((pm - root).abs() <= 1e-12 * root, "PM {pm} vs {root}");
     }
 }

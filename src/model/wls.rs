@@ -53,6 +53,12 @@ pub struct Wls {
     pub sum_log_vt: f64,
     /// ln det M (NaN unless asked for).
     pub logdet_m: f64,
+    /// y'PPPy (NaN unless the curvature is asked for; see [`super::near`]).
+    pub y_pppy: f64,
+    /// tr(PP) (NaN unless the curvature is asked for).
+    pub tr_pp: f64,
+    /// Σ w_i² (NaN unless the curvature is asked for).
+    pub sum_w2: f64,
 }
 
 /// Which optional parts of a weighted fit to compute.
@@ -62,6 +68,9 @@ pub struct Want {
     pub trace: bool,
     /// Σ ln(v_i + τ²) and ln det M (a logarithm per study).
     pub log_terms: bool,
+    /// y'PPPy and tr(PP), for the second derivative of the likelihood
+    /// (only the one-pass fits of [`super::near`] compute them).
+    pub curvature: bool,
 }
 
 impl Want {
@@ -69,16 +78,25 @@ impl Want {
     pub const Q: Want = Want {
         trace: false,
         log_terms: false,
+        curvature: false,
     };
     /// Enough for the likelihood score.
     pub const SCORE: Want = Want {
         trace: true,
         log_terms: false,
+        curvature: false,
     };
     /// Everything.
     pub const ALL: Want = Want {
         trace: true,
         log_terms: true,
+        curvature: false,
+    };
+    /// The score and its derivative in τ² (Newton steps on the score).
+    pub const CURVATURE: Want = Want {
+        trace: true,
+        log_terms: false,
+        curvature: true,
     };
 }
 
@@ -93,6 +111,7 @@ pub fn fit_at(data: &Data<'_>, tau2: f64, trace: bool) -> Option<Wls> {
         Want {
             trace,
             log_terms: true,
+            curvature: false,
         },
     )
 }
@@ -110,13 +129,32 @@ struct Sums {
 /// Rows per chunk of the parallel sums. The chunking depends on k only,
 /// never on the number of threads, and chunk sums are added in chunk
 /// order, so results are identical whatever the thread count.
-const CHUNK_ROWS: usize = 16_384;
+pub(super) const CHUNK_ROWS: usize = 16_384;
 
 /// Below this many studies the sums run on one thread.
-const PARALLEL_MIN_ROWS: usize = 4 * CHUNK_ROWS;
+pub(super) const PARALLEL_MIN_ROWS: usize = 4 * CHUNK_ROWS;
+
+thread_local! {
+    /// Passes over the studies started from this thread (each sweep of
+    /// [`accumulate`], of the residual sums and of the one-pass sums of
+    /// [`super::near`] counts once, whatever the threads doing it).
+    static PASSES: std::cell::Cell<u64> = const { std::cell::Cell::new(0) };
+}
+
+/// Counts one pass over the studies (see [`passes`]).
+pub(super) fn count_pass() {
+    PASSES.with(|c| c.set(c.get() + 1));
+}
+
+/// The passes over the studies that weighted fits started from the calling
+/// thread have made so far: what the tests and benchmarks of the τ² search
+/// count (a pass's own worker threads do not count separately).
+pub fn passes() -> u64 {
+    PASSES.with(std::cell::Cell::get)
+}
 
 /// Splits the data into fixed chunks of rows.
-fn chunks<'a>(data: &Data<'a>) -> Vec<Data<'a>> {
+pub(super) fn chunks<'a>(data: &Data<'a>) -> Vec<Data<'a>> {
     let p = data.p;
     data.y
         .chunks(CHUNK_ROWS)
@@ -128,6 +166,7 @@ fn chunks<'a>(data: &Data<'a>) -> Vec<Data<'a>> {
 
 fn accumulate(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
     use rayon::prelude::*;
+    count_pass();
     if data.k() < PARALLEL_MIN_ROWS {
         return accumulate_serial(data, tau2, want);
     }
@@ -163,8 +202,9 @@ fn accumulate(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
 }
 
 /// Σ w r² and Σ w² r² at β̂, over fixed chunks in parallel for large k.
-fn residual_sums(data: &Data<'_>, tau2: f64, beta: &DVector<f64>) -> (f64, f64) {
+pub(super) fn residual_sums(data: &Data<'_>, tau2: f64, beta: &DVector<f64>) -> (f64, f64) {
     use rayon::prelude::*;
+    count_pass();
     let b = beta.as_slice();
     let serial = |d: &Data<'_>| match d.p {
         1 => residual_serial::<1>(d, tau2, b),
@@ -397,6 +437,9 @@ pub fn fit_with(data: &Data<'_>, tau2: f64, want: Want) -> Option<Wls> {
         tr_p,
         sum_log_vt: if want.log_terms { sum_log_vt } else { f64::NAN },
         logdet_m,
+        y_pppy: f64::NAN,
+        tr_pp: f64::NAN,
+        sum_w2: f64::NAN,
     })
 }
 
@@ -415,11 +458,16 @@ pub fn fit_with(data: &Data<'_>, tau2: f64, want: Want) -> Option<Wls> {
 /// Returns `None` when X'WX is not positive definite.
 pub fn trace_p(data: &Data<'_>, tau2: f64) -> Option<f64> {
     let f = fit_with(data, tau2, Want::Q)?;
+    Some(trace_p_with(data, tau2, &f.m_inv))
+}
+
+/// [`trace_p`] with M⁻¹ = (X'WX)⁻¹ at `tau2` already computed.
+pub fn trace_p_with(data: &Data<'_>, tau2: f64, m_inv: &DMatrix<f64>) -> f64 {
     let (k, p) = (data.k(), data.p);
     let mut total = 0.0;
     for i in 0..k {
         let w = 1.0 / (data.v[i] + tau2);
-        let h = w * quad_form(data, &f.m_inv, i);
+        let h = w * quad_form(data, m_inv, i);
         if h < 0.5 {
             total += w * (1.0 - h);
             continue;
@@ -441,7 +489,7 @@ pub fn trace_p(data: &Data<'_>, tau2: f64) -> Option<f64> {
             }
         }
     }
-    Some(total)
+    total
 }
 
 /// Fitted value x_i'β̂ of study i.

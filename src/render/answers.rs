@@ -97,7 +97,7 @@ pub fn shrunken(r: &FitReport, cx: &Ctx, o: &mut String) {
         pad(&format!("{} interval", cx.level_pct), 20),
         lpad("own weight", 10)
     );
-    for s in &r.studies {
+    for s in r.studies.iter() {
         let Some(sh) = &s.shrunken else {
             continue;
         };

@@ -141,7 +141,7 @@ pub fn write<W: Write>(report: &FitReport, out: W) -> std::io::Result<()> {
 /// `--loo`, `--influence`, `--shrink` (when `shrink`) and the artifact
 /// corrections, as far as the report holds them.
 fn study_row(report: &FitReport, n: usize, shrink: bool, row: &mut Vec<String>) {
-    let s = &report.studies[n];
+    let s = &report.studies.get(n);
     row.extend([
         cell(&s.study),
         s.line.to_string(),

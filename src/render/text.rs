@@ -470,7 +470,7 @@ fn studies(r: &FitReport, _: &Ctx, o: &mut String) {
     );
     let eff_d = fmt::column_decimals(r.studies.iter().map(|s| s.effect));
     let var_d = fmt::column_decimals(r.studies.iter().map(|s| s.variance));
-    for s in &r.studies {
+    for s in r.studies.iter() {
         let _ = writeln!(
             o,
             "  {}  {}  {}  {}  {}{}",

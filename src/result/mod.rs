@@ -35,6 +35,7 @@ pub mod schema;
 mod sensitivity;
 mod sites;
 mod spread;
+mod study_list;
 
 pub use answers::*;
 pub use clusters::*;
@@ -48,6 +49,7 @@ pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
 pub use spread::*;
+pub use study_list::StudyList;
 
 use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};
@@ -90,8 +92,9 @@ pub struct FitReport {
     pub floored: Option<FlooredCheck>,
     /// Predicted effects at the `--at` values.
     pub predictions: Vec<Prediction>,
+    // Kept column by column, written as an array of `Study` (see `StudyList`).
     /// One entry per included study, in input order.
-    pub studies: Vec<Study>,
+    pub studies: StudyList,
     /// How the effects were obtained: one entry per route that any included
     /// study took (`studies[].computed_from`), in a fixed order.
     pub effects_obtained: Vec<RouteCount>,
@@ -337,10 +340,8 @@ pub struct Study {
     pub note: Option<String>,
     /// The study's empirical-Bayes estimate of its own true effect
     /// (`--shrink`; omitted otherwise).
-    // Boxed: a study record without it is 64 bytes smaller, which counts
-    // with a million studies (the JSON and its schema are the same).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub shrunken: Option<Box<Shrunken>>,
+    pub shrunken: Option<Shrunken>,
     /// The group of reported numbers the effect was computed from ("means",
     /// "means-se", "t", "f", "p", "median-iqr", "median-range", "r",
     /// "counts", "ratio-ci", "log-se", "variance", "se", "ci", or a

@@ -109,6 +109,20 @@ impl StreamDecimal {
         !(point_matters && text.contains('.'))
     }
 
+    /// Whether the reading of a cell never depends on the cells before it
+    /// (no decimal comma to detect), so that pieces of the file can be read
+    /// in any order ([`super::pieces`]).
+    pub(super) fn is_stateless(&self) -> bool {
+        !self.detect
+    }
+
+    /// Whether a plain number with a decimal point (`-12.5e3`) reads as the
+    /// number parser reads it: stateless, and the point not a thousands
+    /// separator.
+    pub(super) fn reads_points(&self) -> bool {
+        self.is_stateless() && self.forced != Some(DecimalMark::Comma)
+    }
+
     /// The choice the pass made.
     pub(super) fn choice(&self) -> DecimalChoice {
         match (self.forced, &self.commas) {

@@ -3,7 +3,7 @@
 
 use super::index::SiteIndex;
 use super::moments::{self, Moments};
-use super::read::{self, PassSummary};
+use super::read::{self, PassSummary, RowSink};
 use super::settings::{row_columns, Layout, SitesSettings};
 use crate::error::{Error, Result};
 use crate::support::flag::Flag;
@@ -46,7 +46,104 @@ fn moment_vector(layout: Layout, values: &[f64], v: &mut [f64]) {
     v[layout.y()] = values[values.len() - 1];
 }
 
-/// The first pass: every row read once, per-site moments updated in place.
+/// The per-site moments of one piece of the file (or all of it), sites in
+/// order of first appearance, kept in flat arrays (each site's means and
+/// co-moments side by side, so a row touches one place in memory).
+struct SiteSums {
+    layout: Layout,
+    index: SiteIndex,
+    ids: Vec<String>,
+    counts: Vec<u64>,
+    /// Per site: d means, then the d(d+1)/2 co-moments.
+    sums: Vec<f64>,
+    /// x of the first row, and whether any later row has another x.
+    first_x: Option<f64>,
+    x_varies: bool,
+    v: Vec<f64>,
+}
+
+impl SiteSums {
+    fn new(layout: Layout) -> Self {
+        SiteSums {
+            layout,
+            index: SiteIndex::new(),
+            ids: Vec::new(),
+            counts: Vec::new(),
+            sums: Vec::new(),
+            first_x: None,
+            x_varies: false,
+            v: vec![0.0; layout.dim()],
+        }
+    }
+
+    /// Length of one site's block of `sums`.
+    fn stride(&self) -> usize {
+        let d = self.layout.dim();
+        d + d * (d + 1) / 2
+    }
+}
+
+impl RowSink for SiteSums {
+    #[inline]
+    fn row(&mut self, id: &[u8], values: &[f64]) {
+        let stride = self.stride();
+        let (ids, counts, sums) = (&mut self.ids, &mut self.counts, &mut self.sums);
+        let ix = self.index.find_or_insert(id, |id| {
+            ids.push(String::from_utf8_lossy(id).into_owned());
+            counts.push(0);
+            sums.resize(sums.len() + stride, 0.0);
+            ids.len() - 1
+        });
+        match self.first_x {
+            None => self.first_x = Some(values[0]),
+            Some(f) => self.x_varies |= f != values[0],
+        }
+        moment_vector(self.layout, values, &mut self.v);
+        let d = self.layout.dim();
+        let (mean, c) = self.sums[ix * stride..(ix + 1) * stride].split_at_mut(d);
+        moments::push_raw(&mut self.counts[ix], mean, c, &self.v);
+    }
+}
+
+/// The sites' moments of the pieces merged so far.
+struct Merged {
+    index: SiteIndex,
+    sites: Vec<SiteSummary>,
+    first_x: Option<f64>,
+    x_varies: bool,
+}
+
+impl Merged {
+    /// Adds the sums of the piece that follows in the file: each site's
+    /// moments merged (Chan et al. 1983, see [`Moments::merge`]), new sites
+    /// appended in their order of first appearance.
+    fn absorb(&mut self, piece: SiteSums) {
+        let (stride, d) = (piece.stride(), piece.layout.dim());
+        for (k, id) in piece.ids.into_iter().enumerate() {
+            let block = &piece.sums[k * stride..(k + 1) * stride];
+            let m = Moments::from_raw(piece.counts[k], &block[..d], &block[d..]);
+            let sites = &mut self.sites;
+            let ix = self.index.find_or_insert(id.as_bytes(), |_| {
+                sites.push(SiteSummary {
+                    id: id.clone(),
+                    moments: Moments::new(d),
+                });
+                sites.len() - 1
+            });
+            self.sites[ix].moments.merge(&m);
+        }
+        match (self.first_x, piece.first_x) {
+            (None, f) => self.first_x = f,
+            (Some(a), Some(b)) => self.x_varies |= a != b,
+            (Some(_), None) => {}
+        }
+        self.x_varies |= piece.x_varies;
+    }
+}
+
+/// The first pass: every row read once, per-site moments updated in place
+/// (on a CSV file, in pieces on all threads, merged in file order: the
+/// result does not depend on the number of threads).
 ///
 /// # Errors
 /// Input errors from [`read::for_each_row`]; [`Error::Model`] when x takes
@@ -67,27 +164,25 @@ pub fn summarise_rows<R: Read>(
         ));
     }
     let cols = row_columns(s);
-    let mut sites: Vec<SiteSummary> = Vec::new();
-    let mut index = SiteIndex::new();
-    let mut v = vec![0.0; layout.dim()];
-    let mut first_x: Option<f64> = None;
-    let mut x_varies = false;
-    let pass = read::for_each(source, input, &cols, |_, id, values| {
-        let ix = index.find_or_insert(id, |id| {
-            sites.push(SiteSummary {
-                id: String::from_utf8_lossy(id).into_owned(),
-                moments: Moments::new(layout.dim()),
-            });
-            sites.len() - 1
-        });
-        match first_x {
-            None => first_x = Some(values[0]),
-            Some(f) => x_varies |= f != values[0],
-        }
-        moment_vector(layout, values, &mut v);
-        sites[ix].moments.push(&v);
-        Ok(())
-    })?;
+    let mut all = Merged {
+        index: SiteIndex::new(),
+        sites: Vec::new(),
+        first_x: None,
+        x_varies: false,
+    };
+    let pass = read::for_each(
+        source,
+        input,
+        &cols,
+        || SiteSums::new(layout),
+        |piece| all.absorb(piece),
+    )?;
+    let Merged {
+        sites,
+        first_x,
+        x_varies,
+        ..
+    } = all;
     if sites.is_empty() {
         return Err(Error::Model(format!(
             "{source}: every row has a missing value in a needed column ({} rows read); no site can be estimated",

@@ -29,7 +29,12 @@ pub mod moments;
 pub mod moments_table;
 pub mod ols;
 pub mod one_stage;
+mod pieces;
+#[cfg(test)]
+mod pieces_tests;
+mod plain;
 pub mod read;
+mod records;
 mod robust;
 mod settings;
 pub mod stages;
@@ -444,7 +449,7 @@ fn open_rows(source: &str, p: &Path) -> Result<read::RowStream<std::fs::File>> {
         if crate::input::parquet::is_parquet(&p.display().to_string()) {
             read::RowStream::Parquet(file)
         } else {
-            read::RowStream::Csv(file)
+            read::RowStream::CsvFile(file)
         },
     )
 }

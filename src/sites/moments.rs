@@ -97,31 +97,21 @@ impl Moments {
         self.c[tri(self.dim(), i, j)]
     }
 
+    /// A summary from its count, means and upper-triangle co-moments in the
+    /// order [`Moments::push`] keeps them (`c` of length d(d+1)/2).
+    pub(crate) fn from_raw(n: u64, mean: &[f64], c: &[f64]) -> Self {
+        debug_assert_eq!(c.len(), mean.len() * (mean.len() + 1) / 2);
+        Moments {
+            n,
+            mean: mean.to_vec(),
+            c: c.to_vec(),
+        }
+    }
+
     /// Adds one row (Welford's update; see the type's documentation).
     #[inline]
     pub fn push(&mut self, v: &[f64]) {
-        let d = self.mean.len();
-        debug_assert_eq!(v.len(), d);
-        self.n += 1;
-        let inv = 1.0 / self.n as f64;
-        // δ with the old mean, then the new mean; at most 16 components are
-        // used by the command line, so both fit on the stack.
-        let mut delta = [0.0f64; MAX_DIM];
-        let mut after = [0.0f64; MAX_DIM];
-        for i in 0..d {
-            let dl = v[i] - self.mean[i];
-            delta[i] = dl;
-            self.mean[i] += dl * inv;
-            after[i] = v[i] - self.mean[i];
-        }
-        let mut k = 0;
-        for i in 0..d {
-            let di = delta[i];
-            for a in &after[i..d] {
-                self.c[k] += di * a;
-                k += 1;
-            }
-        }
+        push_raw(&mut self.n, &mut self.mean, &mut self.c, v);
     }
 
     /// Adds the rows summarised by `other` (Chan et al. 1983, eq. 2.1b).
@@ -175,6 +165,51 @@ impl Moments {
     }
 }
 
+/// 1/n for n = 0 … 1023 (entry 0 unused), each the correctly rounded
+/// quotient that `1.0 / n as f64` gives at run time (IEEE division, evaluated
+/// the same way at compile time): a table look-up instead of a division in
+/// most updates of a piece's sums, with bit-identical results.
+static RECIPROCALS: [f64; 1024] = {
+    let mut t = [0.0; 1024];
+    let mut i = 1;
+    while i < t.len() {
+        t[i] = 1.0 / i as f64;
+        i += 1;
+    }
+    t
+};
+
+/// [`Moments::push`] on a summary kept as its parts: count `n`, means
+/// `mean` (length d ≤ [`MAX_DIM`]) and upper-triangle co-moments `c`.
+#[inline]
+pub(crate) fn push_raw(n: &mut u64, mean: &mut [f64], c: &mut [f64], v: &[f64]) {
+    let d = mean.len();
+    debug_assert_eq!(v.len(), d);
+    *n += 1;
+    let inv = match RECIPROCALS.get(*n as usize) {
+        Some(&r) => r,
+        None => 1.0 / *n as f64,
+    };
+    // δ with the old mean, then the new mean; at most 16 components are
+    // used by the command line, so both fit on the stack.
+    let mut delta = [0.0f64; MAX_DIM];
+    let mut after = [0.0f64; MAX_DIM];
+    for i in 0..d {
+        let dl = v[i] - mean[i];
+        delta[i] = dl;
+        mean[i] += dl * inv;
+        after[i] = v[i] - mean[i];
+    }
+    let mut k = 0;
+    for i in 0..d {
+        let di = delta[i];
+        for a in &after[i..d] {
+            c[k] += di * a;
+            k += 1;
+        }
+    }
+}
+
 /// Longest vector [`Moments::push`] accepts: x, w, x·w, y and up to 12 covariates.
 pub const MAX_DIM: usize = 16;
 
@@ -210,6 +245,16 @@ mod tests {
                 vec![x, y, (t * 0.11).cos()]
             })
             .collect()
+    }
+
+    #[test]
+    fn reciprocal_table_is_the_division() {
+        for (n, r) in RECIPROCALS.iter().enumerate().skip(1) {
+            assert_eq!(
+                r.to_bits(),
+                (1.0 / std::hint::black_box(n) as f64).to_bits()
+            );
+        }
     }
 
     #[test]

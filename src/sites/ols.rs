@@ -235,6 +235,23 @@ impl Hc3 {
     /// Adds one row: predictor values `z` (in the fit's order) and response `y`.
     #[inline]
     pub fn add(&mut self, z: &[f64], y: f64) {
+        match self.term(z, y) {
+            Some(t) => self.sum += t,
+            None => self.leverage_one = true,
+        }
+    }
+
+    /// Adds the sum of the terms of other rows ([`Hc3::term`]) and whether
+    /// one of them had leverage 1.
+    pub fn absorb(&mut self, sum: f64, leverage_one: bool) {
+        self.sum += sum;
+        self.leverage_one |= leverage_one;
+    }
+
+    /// One row's term of the sum, (aⱼᵀ(zᵢ − z̄))² eᵢ²/(1 − hᵢ)² (see the
+    /// type's formula), or None when its leverage is 1.
+    #[inline]
+    pub fn term(&self, z: &[f64], y: f64) -> Option<f64> {
         let p = self.beta.len();
         let mut zc = [0.0f64; super::moments::MAX_DIM];
         let mut e = y - self.y_mean;
@@ -257,11 +274,10 @@ impl Hc3 {
         }
         let one_minus = 1.0 - h;
         if one_minus <= tolerance::LEVERAGE_ONE {
-            self.leverage_one = true;
-            return;
+            return None;
         }
         let u = a * e / one_minus;
-        self.sum += u * u;
+        Some(u * u)
     }
 
     /// The HC3 standard error, or `None` when a row had leverage 1 (it alone

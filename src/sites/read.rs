@@ -3,6 +3,7 @@
 
 use super::decimal::StreamDecimal;
 use super::levels::Coding;
+use super::records::{BreakCounter, CsvRecords, ParquetRecords, Records};
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, Cell, DecimalMark};
 use crate::input::parquet as parquet_input;
@@ -12,60 +13,6 @@ use crate::input::{detect_delimiter, find_header, separator_text};
 use crate::support::flag::Flag;
 use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
-
-/// A reader that notes the byte offsets of every line break it passes on,
-/// so that a record's line number can be found from its byte offset.
-///
-/// The csv crate's own line count skips blank lines and miscounts CRLF
-/// files (see `crate::input::parse_table`, which counts from byte offsets
-/// in memory). Here the bytes stream through, so the offsets of `\n` and
-/// `\r` are queued as they pass and dropped once the parser is beyond
-/// them: memory stays within the parser's look-ahead buffer.
-struct BreakCounter<R> {
-    inner: R,
-    offset: u64,
-    /// Offsets of line-break bytes not yet counted, shifted left by one; the
-    /// low bit is 1 for `\n`, 0 for `\r`.
-    breaks: VecDeque<u64>,
-    line: u64,
-}
-
-impl<R: Read> Read for BreakCounter<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let got = self.inner.read(buf)?;
-        for (i, &b) in buf[..got].iter().enumerate() {
-            if b == b'\n' || b == b'\r' {
-                self.breaks
-                    .push_back(((self.offset + i as u64) << 1) | u64::from(b == b'\n'));
-            }
-        }
-        self.offset += got as u64;
-        Ok(got)
-    }
-}
-
-impl<R> BreakCounter<R> {
-    /// The 1-based line of a record that the parser says starts at byte
-    /// `offset`: line breaks before it are counted, and so are the breaks
-    /// right at `offset` (the parser's offset can point at the terminators
-    /// of blank lines before the record).
-    fn line_at(&mut self, offset: u64) -> u64 {
-        let mut end = offset;
-        while let Some(&b) = self.breaks.front() {
-            let at = b >> 1;
-            if at <= end {
-                if at == end {
-                    end += 1;
-                }
-                self.line += b & 1;
-                self.breaks.pop_front();
-            } else {
-                break;
-            }
-        }
-        self.line
-    }
-}
 
 /// The columns a pass needs, by header.
 #[derive(Debug, Clone)]
@@ -131,9 +78,11 @@ fn parse_number(
 /// The cell problems of a pass: the first [`CellProblems::MAX_LISTED`] kept,
 /// all counted.
 #[derive(Default)]
-struct Problems {
-    list: Vec<CellProblem>,
-    total: usize,
+pub(super) struct Problems {
+    /// The problems kept.
+    pub(super) list: Vec<CellProblem>,
+    /// All problems found.
+    pub(super) total: usize,
 }
 
 impl Problems {
@@ -157,9 +106,9 @@ impl Problems {
 pub const MISSING_LINES_KEPT: usize = 20;
 
 /// The CSV reader of a pass, over the line-break counter.
-type RowReader<R> = csv::Reader<BreakCounter<BufReader<R>>>;
+pub(super) type RowReader<R> = csv::Reader<BreakCounter<BufReader<R>>>;
 
-fn io_error(source: &str, e: std::io::Error) -> Error {
+pub(super) fn io_error(source: &str, e: std::io::Error) -> Error {
     Error::Io {
         path: source.to_string(),
         action: "reading",
@@ -167,12 +116,13 @@ fn io_error(source: &str, e: std::io::Error) -> Error {
     }
 }
 
-/// The CSV reader over `input` (a byte-order mark skipped) and the
-/// delimiter detected from the first buffer.
+/// The CSV reader over `input` (a byte-order mark skipped), the
+/// delimiter detected from the first buffer, and the number of bytes
+/// skipped before the reader's stream (the mark, a `sep=` line's text).
 ///
 /// # Errors
 /// [`Error::Format`] for an empty file; [`Error::Io`] when reading fails.
-fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
+fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8, u64)> {
     let mut buffered = BufReader::with_capacity(1 << 16, input);
     let head = buffered.fill_buf().map_err(|e| io_error(source, e))?;
     let bom = head.starts_with(b"\xEF\xBB\xBF");
@@ -188,9 +138,11 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
     }
     // A first line `sep=X` names the delimiter; its text is skipped and its
     // line break kept, so line numbers stay those of the file.
+    let mut skipped = if bom { 3 } else { 0 };
     let delimiter = match separator_text(head) {
         Some((d, text)) => {
             buffered.consume(text);
+            skipped += text as u64;
             d
         }
         None => detect_delimiter(head),
@@ -207,7 +159,24 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8)> {
         .flexible(true)
         .buffer_capacity(1 << 16)
         .from_reader(counter);
-    Ok((reader, delimiter))
+    Ok((reader, delimiter, skipped))
+}
+
+/// The CSV reader over `input`, which starts at a record boundary on line
+/// `line` of a file whose header was read already.
+pub(super) fn reader_at<R: Read>(input: R, delimiter: u8, line: u64) -> RowReader<R> {
+    let counter = BreakCounter {
+        inner: BufReader::with_capacity(1 << 16, input),
+        offset: 0,
+        breaks: VecDeque::new(),
+        line,
+    };
+    csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(false)
+        .flexible(true)
+        .buffer_capacity(1 << 16)
+        .from_reader(counter)
 }
 
 /// The position of the column `wanted` (given as `flag`) in `headers`.
@@ -234,7 +203,7 @@ fn locate(source: &str, headers: &[String], wanted: &str, flag: Flag) -> Result<
 /// # Errors
 /// [`Error::Io`] when reading fails; [`Error::Format`] naming the line
 /// for a record that is not CSV.
-fn next_record<R: Read>(
+pub(super) fn next_record<R: Read>(
     source: &str,
     reader: &mut RowReader<R>,
     record: &mut csv::ByteRecord,
@@ -376,137 +345,55 @@ fn text_x(header: &str, cell: &[u8], (word, line): (&str, u64)) -> Error {
 
 /// Where a pass reads its rows from.
 pub enum RowStream<R> {
-    /// CSV text (a file or standard input).
+    /// CSV text from standard input or another one-time stream.
     Csv(R),
+    /// A CSV file: read in pieces on all of rayon's threads when it is a
+    /// regular file (`sites::pieces`), else as a stream.
+    CsvFile(std::fs::File),
     /// A Parquet file (read by position, so a file only).
     Parquet(std::fs::File),
 }
 
-/// [`for_each_row`] or [`for_each_parquet_row`], as `input` is.
+/// Where each usable row goes: the per-site sums of one piece of the file
+/// (or of the whole file when it is read as a stream). Sums of pieces are
+/// merged in file order, whatever thread read them.
+pub trait RowSink: Send {
+    /// Takes one usable row: its site id and its values in
+    /// [`RowColumns::numeric`] order.
+    fn row(&mut self, id: &[u8], values: &[f64]);
+}
+
+/// One pass over the rows of `input`: every usable row handed to a sink
+/// made by `make`, and each sink handed to `merge` in file order (one sink
+/// for a stream or a Parquet file, one per piece for a CSV file read in
+/// pieces). What reaches `merge`, and in which order, does not depend on the
+/// number of threads.
 ///
 /// # Errors
-/// Those of the two.
-pub fn for_each<R: Read>(
+/// Those of [`for_each_row`] and [`for_each_parquet_row`].
+pub fn for_each<R: Read, S: RowSink>(
     source: &str,
     input: RowStream<R>,
     cols: &RowColumns,
-    row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+    make: impl Fn() -> S + Sync,
+    mut merge: impl FnMut(S) + Send,
 ) -> Result<PassSummary> {
-    match input {
-        RowStream::Csv(r) => for_each_row(source, r, cols, row),
-        RowStream::Parquet(f) => for_each_parquet_row(source, f, cols, row),
-    }
-}
-
-/// A source of records for a pass: CSV rows, or a Parquet file's rows.
-trait Records {
-    /// Every column name of the file, trimmed.
-    fn headers(&self) -> &[String];
-    /// The delimiter byte (see [`crate::input::Delimiter::of`]).
-    fn delimiter(&self) -> u8;
-    /// Starts reading the columns at header positions `ix`; returns the
-    /// position of each in the records handed out and the column name of
-    /// every record position.
-    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)>;
-    /// Reads the next record; its line (row) number, None at the end.
-    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>>;
-    /// How a problem's place is named besides its line (None: `line N`).
-    fn place(&self, line: u64) -> Option<String>;
-    /// The word for a place in messages: "line" or "row".
-    fn word(&self) -> &'static str;
-}
-
-/// CSV rows through the line-break counter.
-struct CsvRecords<R: Read> {
-    source: String,
-    reader: RowReader<R>,
-    headers: Vec<String>,
-    delimiter: u8,
-}
-
-impl<R: Read> Records for CsvRecords<R> {
-    fn headers(&self) -> &[String] {
-        &self.headers
-    }
-    fn delimiter(&self) -> u8 {
-        self.delimiter
-    }
-    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)> {
-        Ok((ix.to_vec(), self.headers.clone()))
-    }
-    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>> {
-        if !next_record(&self.source, &mut self.reader, record)? {
-            return Ok(None);
+    let mut sink = make();
+    let summary = match input {
+        RowStream::CsvFile(f) => {
+            return super::pieces::for_each_piece(source, f, cols, make, merge)
         }
-        Ok(Some(match record.position() {
-            Some(p) => self.reader.get_mut().line_at(p.byte()),
-            None => 0,
-        }))
-    }
-    fn place(&self, _line: u64) -> Option<String> {
-        None
-    }
-    fn word(&self) -> &'static str {
-        "line"
-    }
-}
-
-/// A Parquet file's rows, batch by batch ([`crate::input::parquet`]).
-struct ParquetRecords {
-    headers: Vec<String>,
-    file: Option<parquet_input::ParquetFile<std::fs::File>>,
-    batches: Option<parquet_input::Batches<std::fs::File>>,
-    batch: parquet_input::Batch,
-    at: usize,
-    width: usize,
-}
-
-impl Records for ParquetRecords {
-    fn headers(&self) -> &[String] {
-        &self.headers
-    }
-    fn delimiter(&self) -> u8 {
-        crate::input::PARQUET
-    }
-    fn select(&mut self, ix: &[usize]) -> Result<(Vec<usize>, Vec<String>)> {
-        let mut wanted = ix.to_vec();
-        wanted.sort_unstable();
-        wanted.dedup();
-        let positions = ix
-            .iter()
-            .map(|i| wanted.iter().position(|w| w == i).unwrap_or(0))
-            .collect();
-        let names = wanted.iter().map(|&i| self.headers[i].clone()).collect();
-        if let Some(file) = self.file.take() {
-            self.batches = Some(file.batches(&wanted)?);
-        }
-        self.width = wanted.len();
-        Ok((positions, names))
-    }
-    fn next(&mut self, record: &mut csv::ByteRecord) -> Result<Option<u64>> {
-        let Some(batches) = self.batches.as_mut() else {
-            return Ok(None);
-        };
-        if self.at >= self.batch.len {
-            if !batches.next(&mut self.batch)? {
-                return Ok(None);
-            }
-            self.at = 0;
-        }
-        record.clear();
-        for k in 0..self.width {
-            record.push_field(self.batch.cell(k, self.at));
-        }
-        let row = self.batch.first_row + self.at as u64;
-        self.at += 1;
-        Ok(Some(row))
-    }
-    fn place(&self, line: u64) -> Option<String> {
-        Some(format!("row {line}"))
-    }
-    fn word(&self) -> &'static str {
-        "row"
-    }
+        RowStream::Csv(r) => for_each_row(source, r, cols, |_, id, v| {
+            sink.row(id, v);
+            Ok(())
+        }),
+        RowStream::Parquet(f) => for_each_parquet_row(source, f, cols, |_, id, v| {
+            sink.row(id, v);
+            Ok(())
+        }),
+    }?;
+    merge(sink);
+    Ok(summary)
 }
 
 /// Reads CSV rows from `input` and hands each usable row to `row` as
@@ -526,7 +413,18 @@ pub fn for_each_row<R: Read>(
     cols: &RowColumns,
     row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
 ) -> Result<PassSummary> {
-    let (mut reader, delimiter) = open(source, input)?;
+    let (mut records, _) = csv_records(source, input)?;
+    let plan = Plan::new(source, &mut records, cols)?;
+    pass(source, &plan, records, cols, row)
+}
+
+/// The CSV records of `input` with its header read, and the number of bytes
+/// before the records' stream (a byte-order mark, a `sep=` line's text).
+///
+/// # Errors
+/// Those of [`open`] and [`read_headers`].
+pub(super) fn csv_records<R: Read>(source: &str, input: R) -> Result<(CsvRecords<R>, u64)> {
+    let (mut reader, delimiter, skipped) = open(source, input)?;
     let headers = read_headers(source, &mut reader)?;
     let records = CsvRecords {
         source: source.to_string(),
@@ -534,7 +432,7 @@ pub fn for_each_row<R: Read>(
         headers,
         delimiter,
     };
-    pass(source, records, cols, row)
+    Ok((records, skipped))
 }
 
 /// [`for_each_row`] for a Parquet file: the rows are numbered 1, 2, ...
@@ -551,121 +449,245 @@ pub fn for_each_parquet_row(
     row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
 ) -> Result<PassSummary> {
     let file = parquet_input::ParquetFile::open(source, file)?;
-    let records = ParquetRecords {
-        headers: file.headers().to_vec(),
-        file: Some(file),
-        batches: None,
-        batch: parquet_input::Batch::default(),
-        at: 0,
-        width: 0,
-    };
-    pass(source, records, cols, row)
+    let mut records = ParquetRecords::new(file);
+    let plan = Plan::new(source, &mut records, cols)?;
+    pass(source, &plan, records, cols, row)
 }
 
-/// One pass over the records of `records` (see [`for_each_row`]).
-fn pass(
+/// What a pass reads where: found from the header once.
+pub(super) struct Plan {
+    /// Record position of the site id.
+    pub(super) site_ix: usize,
+    /// Record positions of the numeric columns.
+    pub(super) num_ix: Vec<usize>,
+    /// Column name of every record position.
+    pub(super) names: Vec<String>,
+    /// Position in `num_ix` of x when a text x stops the pass at once.
+    advice: Option<usize>,
+    /// The delimiter byte.
+    pub(super) delimiter: u8,
+    /// "line" (CSV) or "row" (Parquet).
+    word: &'static str,
+}
+
+impl Plan {
+    /// Finds the columns of `cols` in the header of `records` and starts
+    /// reading them.
+    ///
+    /// # Errors
+    /// Those of [`locate`] and [`Records::select`].
+    pub(super) fn new(source: &str, records: &mut impl Records, cols: &RowColumns) -> Result<Self> {
+        let headers = records.headers().to_vec();
+        let mut wanted = vec![locate(source, &headers, &cols.site, Flag::Site)?];
+        for (h, flag) in &cols.numeric {
+            wanted.push(locate(source, &headers, h, *flag)?);
+        }
+        let (positions, names) = records.select(&wanted)?;
+        Ok(Plan {
+            site_ix: positions[0],
+            num_ix: positions[1..].to_vec(),
+            names,
+            advice: cols
+                .text_x_advice
+                .then(|| cols.numeric.iter().position(|(_, f)| *f == Flag::X))
+                .flatten(),
+            delimiter: records.delimiter(),
+            word: records.word(),
+        })
+    }
+}
+
+/// The running state of a pass (or of one piece) besides its counts.
+pub(super) struct RowState {
+    /// The decimal mark.
+    pub(super) dec: StreamDecimal,
+    /// The two-level codings (see [`RowColumns::coded`]).
+    pub(super) coded: Vec<Option<Coding>>,
+    /// The numeric values of the current row.
+    pub(super) values: Vec<f64>,
+}
+
+impl RowState {
+    /// The state at the start of a pass.
+    pub(super) fn new(plan: &Plan, cols: &RowColumns) -> Self {
+        let mut coded = cols.coded.clone();
+        if plan.word == "row" {
+            coded.iter_mut().flatten().for_each(Coding::in_rows);
+        }
+        RowState {
+            dec: StreamDecimal::new(cols.decimal, plan.delimiter),
+            coded,
+            values: vec![0.0; plan.num_ix.len()],
+        }
+    }
+}
+
+/// The counts of a pass, or of one piece of it.
+#[derive(Default)]
+pub(super) struct Tally {
+    /// Data rows read.
+    pub(super) rows: u64,
+    /// Rows left out for a missing value.
+    pub(super) missing_rows: u64,
+    /// The first [`MISSING_LINES_KEPT`] of their lines.
+    pub(super) missing_lines: Vec<u64>,
+    /// Blank rows skipped.
+    pub(super) blank_rows: u64,
+    /// Cell problems.
+    pub(super) problems: Problems,
+}
+
+impl Tally {
+    /// Adds the counts of the next stretch of the file, whose lines are
+    /// numbered from `shift` + 1 on.
+    pub(super) fn absorb(&mut self, next: Tally, shift: u64) {
+        self.rows += next.rows;
+        self.missing_rows += next.missing_rows;
+        self.blank_rows += next.blank_rows;
+        let room = MISSING_LINES_KEPT.saturating_sub(self.missing_lines.len());
+        self.missing_lines
+            .extend(next.missing_lines.iter().take(room).map(|l| l + shift));
+        self.problems.total += next.problems.total;
+        let room = CellProblems::MAX_LISTED.saturating_sub(self.problems.list.len());
+        self.problems
+            .list
+            .extend(next.problems.list.into_iter().take(room).map(|mut p| {
+                p.line += shift;
+                p
+            }));
+    }
+}
+
+/// Takes one record on line `line`: a blank row or a row of the wrong width,
+/// a row with problems or a missing value (counted), or a usable row handed
+/// to `row`.
+///
+/// # Errors
+/// [`Error::Format`] for a row of the wrong width; those of [`check_row`].
+pub(super) fn take_record(
+    (source, plan): (&str, &Plan),
+    (state, tally): (&mut RowState, &mut Tally),
+    record: &csv::ByteRecord,
+    line: u64,
+    row: &mut impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<()> {
+    let width = plan.names.len();
+    if record.len() != width {
+        if record
+            .iter()
+            .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
+        {
+            tally.blank_rows += 1;
+            return Ok(());
+        }
+        return Err(format_error(
+            source,
+            format!(
+                "line {line} has {} fields but the header has {width}; check for a missing \
+                 value or an unquoted '{}' inside a value",
+                record.len(),
+                plan.delimiter as char
+            ),
+        ));
+    }
+    tally.rows += 1;
+    let before = tally.problems.list.len();
+    let check = check_row(
+        record,
+        (source, line, plan.word),
+        (plan.site_ix, &plan.num_ix),
+        &plan.names,
+        &mut state.values,
+        (
+            &mut tally.problems,
+            &mut state.dec,
+            &mut state.coded,
+            plan.advice,
+        ),
+    )?;
+    if plan.word == "row" {
+        for p in &mut tally.problems.list[before..] {
+            p.cell = Some(format!("row {line}"));
+        }
+    }
+    match check {
+        RowCheck::Blank => {
+            tally.rows -= 1;
+            tally.blank_rows += 1;
+        }
+        RowCheck::Problem => {}
+        RowCheck::Missing => {
+            tally.missing_rows += 1;
+            if tally.missing_lines.len() < MISSING_LINES_KEPT {
+                tally.missing_lines.push(line);
+            }
+        }
+        RowCheck::Usable => {
+            if tally.problems.total == 0 {
+                row(line, record[plan.site_ix].trim_ascii(), &state.values)?;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The summary of a finished pass.
+///
+/// # Errors
+/// [`Error::Cells`] when cell problems were found; [`Error::Format`] when
+/// the file has no data rows.
+pub(super) fn finish(
     source: &str,
-    mut records: impl Records,
-    cols: &RowColumns,
-    mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+    tally: Tally,
+    state: RowState,
+    delimiter: u8,
 ) -> Result<PassSummary> {
-    let delimiter = records.delimiter();
-    let headers = records.headers().to_vec();
-    let mut wanted = vec![locate(source, &headers, &cols.site, Flag::Site)?];
-    for (h, flag) in &cols.numeric {
-        wanted.push(locate(source, &headers, h, *flag)?);
-    }
-    let (positions, names) = records.select(&wanted)?;
-    let site_ix = positions[0];
-    let num_ix = &positions[1..];
-    let mut summary = PassSummary {
-        delimiter,
-        ..PassSummary::default()
-    };
-    let mut coded = cols.coded.clone();
-    if records.word() == "row" {
-        coded.iter_mut().flatten().for_each(Coding::in_rows);
-    }
-    let advice = cols
-        .text_x_advice
-        .then(|| cols.numeric.iter().position(|(_, f)| *f == Flag::X))
-        .flatten();
-    let mut problems = Problems::default();
-    let mut dec = StreamDecimal::new(cols.decimal, delimiter);
-    let mut record = csv::ByteRecord::new();
-    let mut values = vec![0.0; num_ix.len()];
-    let width = names.len();
-    while let Some(line) = records.next(&mut record)? {
-        if record.len() != width {
-            if record
-                .iter()
-                .all(|f| f.iter().all(|b| b.is_ascii_whitespace()))
-            {
-                summary.blank_rows += 1;
-                continue;
-            }
-            return Err(format_error(
-                source,
-                format!(
-                    "line {line} has {} fields but the header has {width}; check for a missing \
-                     value or an unquoted '{}' inside a value",
-                    record.len(),
-                    delimiter as char
-                ),
-            ));
-        }
-        summary.rows += 1;
-        let before = problems.list.len();
-        let check = check_row(
-            &record,
-            (source, line, records.word()),
-            (site_ix, num_ix),
-            &names,
-            &mut values,
-            (&mut problems, &mut dec, &mut coded, advice),
-        )?;
-        if let Some(place) = records.place(line) {
-            for p in &mut problems.list[before..] {
-                p.cell = Some(place.clone());
-            }
-        }
-        match check {
-            RowCheck::Blank => {
-                summary.rows -= 1;
-                summary.blank_rows += 1;
-            }
-            RowCheck::Problem => {}
-            RowCheck::Missing => {
-                summary.missing_rows += 1;
-                if summary.missing_lines.len() < MISSING_LINES_KEPT {
-                    summary.missing_lines.push(line);
-                }
-            }
-            RowCheck::Usable => {
-                if problems.total == 0 {
-                    row(line, record[site_ix].trim_ascii(), &values)?;
-                }
-            }
-        }
-    }
-    if problems.total > 0 {
+    if tally.problems.total > 0 {
         return Err(Error::Cells(CellProblems {
             source: source.to_string(),
-            problems: problems.list,
-            total: problems.total,
+            problems: tally.problems.list,
+            total: tally.problems.total,
         }));
     }
-    if summary.rows == 0 {
+    if tally.rows == 0 {
         return Err(format_error(
             source,
             "the file has a header row but no data rows; add one row per participant",
         ));
     }
-    summary.decimal = Some(dec.choice());
-    summary.coded = coded;
-    Ok(summary)
+    Ok(PassSummary {
+        delimiter,
+        rows: tally.rows,
+        missing_rows: tally.missing_rows,
+        missing_lines: tally.missing_lines,
+        blank_rows: tally.blank_rows,
+        decimal: Some(state.dec.choice()),
+        coded: state.coded,
+    })
 }
 
+/// One pass over the records of `records` (see [`for_each_row`]).
+pub(super) fn pass(
+    source: &str,
+    plan: &Plan,
+    mut records: impl Records,
+    cols: &RowColumns,
+    mut row: impl FnMut(u64, &[u8], &[f64]) -> Result<()>,
+) -> Result<PassSummary> {
+    let mut state = RowState::new(plan, cols);
+    let mut tally = Tally::default();
+    let mut record = csv::ByteRecord::new();
+    while let Some(line) = records.next(&mut record)? {
+        take_record(
+            (source, plan),
+            (&mut state, &mut tally),
+            &record,
+            line,
+            &mut row,
+        )?;
+    }
+    finish(source, tally, state, plan.delimiter)
+}
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -87,7 +87,7 @@ fn a_report_without_per_study_records_differs_only_there() {
     assert_eq!(full.studies.len(), 300);
     assert!(summary.studies.is_empty());
     assert_eq!(summary.excluded.len(), 1);
-    full.studies.clear();
+    full.studies = pondus::result::StudyList::new();
     assert_eq!(
         serde_json::to_string(&full).unwrap(),
         serde_json::to_string(&summary).unwrap()
@@ -124,4 +124,93 @@ fn png_is_byte_identical_whatever_the_thread_count() {
     );
     assert_eq!(one, png("2"));
     assert_eq!(one, png("3"));
+}
+
+/// `pondus sites` reads a CSV file in pieces of 1 MiB on all threads and
+/// merges the pieces' per-site moments and HC3 sums in file order: the JSON
+/// is byte-identical with 1, 2 and 4 threads, and within 1e-10 of the same
+/// rows read as one stream from standard input (the pieces' moments are
+/// merged by Chan et al.'s exact formulas, so only the rounding differs).
+/// About 3.4 MB of seeded invented rows (4 pieces), with a few missing
+/// values and blank lines.
+#[test]
+fn sites_json_is_byte_identical_whatever_the_thread_count() {
+    let mut state: u64 = 0x2545_F491_4F6C_DD1D;
+    let mut next = || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        ((state >> 11) as f64) / ((1u64 << 53) as f64)
+    };
+    let mut text = String::from("site,x,w,y\n");
+    for i in 0..120_000u64 {
+        let site = (i * 7919) % 37;
+        let (x, w) = (10.0 * next(), 5.0 * next());
+        let y =
+            1.0 + 0.3 * x + 0.2 * w + 0.05 * x * w + (next() - 0.5) * (1.0 + site as f64 / 10.0);
+        if i % 9973 == 5 {
+            text.push_str(&format!("s{site},{x:.5},NA,{y:.5}\n\n"));
+        } else {
+            text.push_str(&format!("s{site},{x:.5},{w:.4},{y:.6}\n"));
+        }
+    }
+    assert!(text.len() > 3 << 20, "{} bytes", text.len());
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("rows.csv");
+    std::fs::write(&csv, &text).unwrap();
+    let base = [
+        "sites", "--site", "site", "--x", "x", "--y", "y", "--w", "w", "--json", "-", "-q",
+    ];
+    let run = |threads: &str, extra: &[&str]| {
+        let o = Command::cargo_bin("pondus")
+            .unwrap()
+            .env("RAYON_NUM_THREADS", threads)
+            .args(base)
+            .arg(&csv)
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        o.stdout
+    };
+    // With --robust the second pass (HC3 sums) is read in pieces too.
+    let one = run("1", &["--robust"]);
+    assert_eq!(
+        one,
+        run("2", &["--robust"]),
+        "JSON differs between 1 and 2 threads"
+    );
+    assert_eq!(
+        one,
+        run("4", &["--robust"]),
+        "JSON differs between 1 and 4 threads"
+    );
+    let one = run("1", &[]);
+    assert_eq!(one, run("2", &[]), "JSON differs between 1 and 2 threads");
+    let o = Command::cargo_bin("pondus")
+        .unwrap()
+        .args(base)
+        .arg("-")
+        .write_stdin(text.clone())
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let a: serde_json::Value = serde_json::from_slice(&one).unwrap();
+    let b: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(a["input"]["rows"], 120_000);
+    assert_eq!(a["input"]["missing_rows"], b["input"]["missing_rows"]);
+    let (sa, sb) = (
+        a["sites"].as_array().unwrap(),
+        b["sites"].as_array().unwrap(),
+    );
+    assert_eq!(sa.len(), 37);
+    assert_eq!(sa.len(), sb.len());
+    for (p, q) in sa.iter().zip(sb) {
+        assert_eq!(p["study"], q["study"]);
+        assert_eq!(p["n"], q["n"]);
+        for key in ["slope", "se", "interaction", "interaction_se"] {
+            let (x, y) = (p[key].as_f64().unwrap(), q[key].as_f64().unwrap());
+            assert!((x - y).abs() <= 1e-10 * y.abs(), "{key}: {x} vs {y}");
+        }
+    }
 }

@@ -693,7 +693,8 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
         e * ea.mean.pi.pi_high,
         eb.mean.se,
     );
-    let by_label: HashMap<&str, _> = a.studies.iter().map(|s| (s.study.as_str(), s)).collect();
+    let a_studies: Vec<_> = a.studies.iter().collect();
+    let by_label: HashMap<&str, _> = a_studies.iter().map(|s| (s.study.as_str(), s)).collect();
     let x = d.design();
     let t = a.tau2.estimate;
     let f = gls(&d.y, &d.v, &x, t);
@@ -705,7 +706,7 @@ fn assert_changed(what: &str, d: &Dataset, a: &FitReport, b: &FitReport, ch: &Ch
             )
         })
         .collect();
-    for sb in &b.studies {
+    for sb in b.studies.iter() {
         let sa = by_label[sb.study.as_str()];
         let sd = sb.variance.sqrt();
         let l = &sb.study;
@@ -744,9 +745,15 @@ proptest! {
         // Labels follow their rows: relabel so that the same study has the same label.
         let relabel = |r: FitReport| {
             let mut r = r;
-            for (s, &i) in r.studies.iter_mut().zip(&order) {
-                s.study = format!("s{i}");
-            }
+            r.studies = r
+                .studies
+                .iter()
+                .zip(&order)
+                .map(|(mut s, &i)| {
+                    s.study = format!("s{i}");
+                    s
+                })
+                .collect();
             r
         };
         for m in ESTIMATORS {

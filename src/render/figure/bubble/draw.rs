@@ -49,7 +49,7 @@ impl<'a> Bubbles<'a> {
         let w_max = studies.iter().map(|s| s.weight).fold(0.0, f64::max);
         let r_max = ((f.y1 - f.y0).min(f.x1 - f.x0) * 0.045).clamp(8.0, 30.0);
         let mut by_weight: Vec<usize> = (0..studies.len()).collect();
-        by_weight.sort_by(|&a, &b| studies[b].weight.total_cmp(&studies[a].weight));
+        by_weight.sort_by(|&a, &b| studies.weights()[b].total_cmp(&studies.weights()[a]));
         Bubbles {
             report,
             view,
@@ -77,7 +77,7 @@ impl<'a> Bubbles<'a> {
 
     /// Study `i`'s marker at pixel column `x`: a disc, or its level's mark.
     fn study(&self, sc: &mut Scene, i: usize, x: f64) {
-        let s = &self.report.studies[i];
+        let s = &self.report.studies.get(i);
         let (c, r) = ((x, self.row(s.effect)), self.radius(s.weight));
         let level = self
             .view
@@ -164,7 +164,7 @@ impl<'a> Bubbles<'a> {
             }
         }
         for &i in &self.by_weight {
-            let AtValue::Number(x) = report.studies[i].moderators[j] else {
+            let AtValue::Number(x) = report.studies.moderator(i, j) else {
                 continue;
             };
             self.band_bar(sc, i, f.x(x));
@@ -212,7 +212,9 @@ impl<'a> Bubbles<'a> {
                 .by_weight
                 .iter()
                 .copied()
-                .filter(|&i| matches!(report.studies[i].moderators[j], AtValue::Number(x) if x == value))
+                .filter(
+                    |&i| matches!(report.studies.moderator(i, j), AtValue::Number(x) if x == value),
+                )
                 .collect();
             let label = format!("{name} = {col} (k = {})", members.len());
             self.column(sc, col, &label, &members, &fits);
@@ -230,7 +232,9 @@ impl<'a> Bubbles<'a> {
                 .by_weight
                 .iter()
                 .copied()
-                .filter(|&i| matches!(&report.studies[i].moderators[j], AtValue::Level(v) if v == level))
+                .filter(
+                    |&i| matches!(&report.studies.moderator(i, j), AtValue::Level(v) if v == level),
+                )
                 .collect();
             let fits: Vec<ColumnFit> = group
                 .and_then(|g| g.levels.iter().find(|x| &x.level == level))

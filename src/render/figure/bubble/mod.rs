@@ -52,7 +52,7 @@ struct Split<'a> {
 impl Split<'_> {
     /// The index of study `i`'s level.
     fn level_of(&self, report: &FitReport, i: usize) -> Option<usize> {
-        match &report.studies[i].moderators[self.g] {
+        match &report.studies.moderator(i, self.g) {
             AtValue::Level(v) => self.levels.iter().position(|(l, _)| l == v),
             AtValue::Number(_) => None,
         }

@@ -50,10 +50,11 @@ pub(super) fn cells(report: &FitReport, name: &str, flag: Flag) -> Result<Vec<St
         .iter()
         .map(|s| {
             s.cells.get(name).cloned().ok_or_else(|| {
-                let carried: Vec<&str> = report
+                let carried: Vec<String> = report
                     .studies
-                    .first()
-                    .map(|s| s.cells.keys().map(String::as_str).collect())
+                    .iter()
+                    .next()
+                    .map(|s| s.cells.into_keys().collect())
                     .unwrap_or_default();
                 Error::usage(
                     flag,

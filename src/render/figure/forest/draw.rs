@@ -137,7 +137,7 @@ impl Forest<'_> {
     /// A study's row: label, sort value, interval, marker, fitted value,
     /// "effect [CI]" and weight.
     fn study(&self, sc: &mut Scene, i: usize, y: f64) {
-        let s = &self.report.studies[i];
+        let s = &self.report.studies.get(i);
         let (margin, fs) = (self.margin, self.fs);
         let indent = self.indent();
         let lines = &self.label_lines[i];

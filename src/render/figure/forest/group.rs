@@ -49,7 +49,7 @@ fn moderator_groups<'a>(report: &'a FitReport, name: &str) -> Option<Grouping<'a
             value: lv.level.clone(),
             members: (0..report.studies.len())
                 .filter(|&i| {
-                    matches!(&report.studies[i].moderators[j],
+                    matches!(&report.studies.moderator(i, j),
                         crate::result::AtValue::Level(l) if *l == lv.level)
                 })
                 .collect(),

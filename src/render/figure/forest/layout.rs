@@ -53,7 +53,7 @@ pub(super) fn rows<'a>(
                 let mut w = 0.0;
                 for &i in ordered.iter().filter(|&&i| of[i] == n) {
                     rows.push(Row::Study(i));
-                    w += studies[i].weight;
+                    w += studies.weights()[i];
                 }
                 if let Some(lv) = grp.summary {
                     rows.push(Row::GroupAverage(lv, w));

@@ -78,12 +78,12 @@ fn order(report: &FitReport, sort: &SortKey) -> Result<Vec<usize>> {
     let s = &report.studies;
     match sort {
         SortKey::Input => {}
-        SortKey::Effect => idx.sort_by(|&a, &b| s[a].effect.total_cmp(&s[b].effect)),
-        SortKey::Precision => idx.sort_by(|&a, &b| s[a].variance.total_cmp(&s[b].variance)),
+        SortKey::Effect => idx.sort_by(|&a, &b| s.effects()[a].total_cmp(&s.effects()[b])),
+        SortKey::Precision => idx.sort_by(|&a, &b| s.variances()[a].total_cmp(&s.variances()[b])),
         SortKey::Column(name) => match report.model.moderators.iter().position(|m| &m.name == name)
         {
             Some(j) if s.iter().all(|st| !st.cells.contains_key(name)) => {
-                let key = |i: usize| match &s[i].moderators[j] {
+                let key = |i: usize| match &s.moderator(i, j) {
                     AtValue::Number(x) => (0usize, *x, String::new()),
                     AtValue::Level(l) => {
                         let pos = match &report.model.moderators[j].kind {

@@ -1,0 +1,399 @@
+//! One pass over the studies per weighted fit: the sums at τ² are taken
+//! around coefficients β₀ from an earlier fit (usually at a nearby τ²), and
+//! everything at the new β̂ follows from them without a second pass over
+//! the residuals.
+//!
+//! # The identities
+//! With w_i = 1/(v_i + τ²), W = diag(w), M = X'WX, r₀ = y − Xβ₀ and
+//! g = X'Wr₀, the normal equations X'W(y − Xβ̂) = 0 read M(β̂ − β₀) = g, so
+//! β̂ = β₀ + δ with δ = M⁻¹g. The residuals are r = y − Xβ̂ = r₀ − Xδ, and
+//! for any diagonal D, expanding the quadratic form,
+//!
+//!   r'Dr = r₀'Dr₀ − 2δ'X'Dr₀ + δ'X'DXδ.
+//!
+//! D = W gives Q = Σw r₀² − 2δ'g + δ'Mδ = Σw r₀² − δ'g (Mδ = g);
+//! D = W² gives Σw²r² = Σw²r₀² − 2δ'X'W²r₀ + δ'X'W²Xδ;
+//! D = W³ gives Σw³r² = Σw³r₀² − 2δ'X'W³r₀ + δ'X'W³Xδ; and
+//! X'W²r = X'W²r₀ − X'W²Xδ. This is the residual correction of iterative
+//! refinement for least squares (Golub & Van Loan, *Matrix Computations*,
+//! 4th ed., 2013, §5.3 and §3.5.3; cited from memory), taken from the
+//! coefficients of the previous τ² instead of a second pass.
+//!
+//! The subtractions cancel when β₀ is far from β̂ (Σw r₀² ≫ Q). Each
+//! corrected sum is kept only when the parts subtracted are at most
+//! [`tolerance::ONE_PASS_MAX_CANCEL`] times the result (at most two bits
+//! lost); otherwise a second pass sums the residuals at β̂ exactly as
+//! [`super::wls::fit_with`] does. Near the end of a τ² search β₀ is the
+//! previous iterate's and the corrections are of second order.
+//!
+//! # The curvature of the likelihood
+//! With P = W − WXM⁻¹X'W, dP/dτ² = −PP (Harville 1977, *J. Am. Stat.
+//! Assoc.* 72:320, cited from memory; it follows from dW/dτ² = −W² and
+//! dM⁻¹/dτ² = M⁻¹X'W²XM⁻¹). Py = Wr, so y'PPy = Σw²r² and
+//! y'PPPy = (Wr)'P(Wr) = Σw³r² − u'M⁻¹u with u = X'W²r; and
+//! tr(PP) = Σw² − 2 tr(M⁻¹X'W³X) + tr((M⁻¹X'W²X)²). The REML score
+//! ½[y'PPy − tr P] then has the derivative −y'PPPy + ½ tr(PP), the ML score
+//! ½[y'PPy − Σw] the derivative −y'PPPy + ½ Σw², and dQ/dτ² = −y'PPy.
+
+use super::wls::{chunks, count_pass, residual_sums, Data, Want, Wls, PARALLEL_MIN_ROWS};
+use crate::tolerance;
+use nalgebra::{DMatrix, DVector};
+use std::cell::{Cell, RefCell};
+
+/// The sums of one pass at τ² around β₀ (p × p matrices row-major, upper
+/// triangle filled): M = X'WX, N₂ = X'W²X, N₃ = X'W³X (curvature), g = X'Wr₀,
+/// h = X'W²r₀, h₃ = X'W³r₀ (curvature) and the scalar sums.
+#[derive(Debug, Clone, Default)]
+struct Sums {
+    m: Vec<f64>,
+    n2: Vec<f64>,
+    n3: Vec<f64>,
+    g: Vec<f64>,
+    h: Vec<f64>,
+    h3: Vec<f64>,
+    sum_w: f64,
+    sum_w2: f64,
+    sum_wr2: f64,
+    sum_w2r2: f64,
+    sum_w3r2: f64,
+    sum_log_vt: f64,
+}
+
+impl Sums {
+    fn add(&mut self, o: &Sums) {
+        let pairs = [
+            (&mut self.m, &o.m),
+            (&mut self.n2, &o.n2),
+            (&mut self.n3, &o.n3),
+            (&mut self.g, &o.g),
+            (&mut self.h, &o.h),
+            (&mut self.h3, &o.h3),
+        ];
+        for (t, x) in pairs {
+            if t.is_empty() {
+                t.clone_from(x);
+            } else {
+                for (a, b) in t.iter_mut().zip(x) {
+                    *a += b;
+                }
+            }
+        }
+        self.sum_w += o.sum_w;
+        self.sum_w2 += o.sum_w2;
+        self.sum_wr2 += o.sum_wr2;
+        self.sum_w2r2 += o.sum_w2r2;
+        self.sum_w3r2 += o.sum_w3r2;
+        self.sum_log_vt += o.sum_log_vt;
+    }
+}
+
+/// The sums over fixed chunks of rows, added in chunk order (so the result
+/// does not depend on the number of threads), in parallel for large k.
+fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+    use rayon::prelude::*;
+    count_pass();
+    if data.k() < PARALLEL_MIN_ROWS {
+        return serial(data, tau2, want, beta0);
+    }
+    let parts: Vec<Sums> = chunks(data)
+        .par_iter()
+        .map(|d| serial(d, tau2, want, beta0))
+        .collect();
+    let mut total = Sums::default();
+    for part in &parts {
+        total.add(part);
+    }
+    total
+}
+
+fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+    macro_rules! fixed {
+        ($p:literal) => {
+            match (want.log_terms, want.curvature) {
+                (false, false) => fixed::<$p, false, false>(data, tau2, beta0),
+                (true, false) => fixed::<$p, true, false>(data, tau2, beta0),
+                (false, true) => fixed::<$p, false, true>(data, tau2, beta0),
+                (true, true) => fixed::<$p, true, true>(data, tau2, beta0),
+            }
+        };
+    }
+    match data.p {
+        1 => fixed!(1),
+        2 => fixed!(2),
+        3 => fixed!(3),
+        4 => fixed!(4),
+        5 => fixed!(5),
+        6 => fixed!(6),
+        7 => fixed!(7),
+        8 => fixed!(8),
+        _ => general(data, tau2, want, beta0),
+    }
+}
+
+/// The sums for `P` columns; `LOG` and `CURV` choose the optional parts at
+/// compile time, so the loop has no branches.
+fn fixed<const P: usize, const LOG: bool, const CURV: bool>(
+    data: &Data<'_>,
+    tau2: f64,
+    beta0: &[f64],
+) -> Sums {
+    let b0: &[f64; P] = beta0.try_into().expect("p coefficients");
+    let mut m = [[0.0f64; P]; P];
+    let mut n2 = [[0.0f64; P]; P];
+    let mut n3 = [[0.0f64; P]; P];
+    let (mut g, mut h, mut h3) = ([0.0f64; P], [0.0f64; P], [0.0f64; P]);
+    let mut s = Sums::default();
+    for ((xi, &vi), &yi) in data.x.chunks_exact(P).zip(data.v).zip(data.y) {
+        let xi: &[f64; P] = xi.try_into().expect("rows have p entries");
+        let vt = vi + tau2;
+        let w = 1.0 / vt;
+        if LOG {
+            s.sum_log_vt += vt.ln();
+        }
+        let mut fit = 0.0;
+        for a in 0..P {
+            fit += xi[a] * b0[a];
+        }
+        let r = yi - fit;
+        let (w2, wr) = (w * w, w * r);
+        let w2r = w * wr;
+        s.sum_w += w;
+        s.sum_wr2 += wr * r;
+        s.sum_w2r2 += w2r * r;
+        for a in 0..P {
+            let (wxa, w2xa) = (w * xi[a], w2 * xi[a]);
+            g[a] += xi[a] * wr;
+            h[a] += xi[a] * w2r;
+            for c in a..P {
+                m[a][c] += wxa * xi[c];
+                n2[a][c] += w2xa * xi[c];
+            }
+        }
+        if CURV {
+            let (w3, w3r) = (w2 * w, w * w2r);
+            s.sum_w2 += w2;
+            s.sum_w3r2 += w3r * r;
+            for a in 0..P {
+                let w3xa = w3 * xi[a];
+                h3[a] += xi[a] * w3r;
+                for c in a..P {
+                    n3[a][c] += w3xa * xi[c];
+                }
+            }
+        }
+    }
+    let flat = |a: &[[f64; P]; P]| a.iter().flatten().copied().collect::<Vec<f64>>();
+    s.m = flat(&m);
+    s.n2 = flat(&n2);
+    s.g = g.to_vec();
+    s.h = h.to_vec();
+    if CURV {
+        s.n3 = flat(&n3);
+        s.h3 = h3.to_vec();
+    }
+    s
+}
+
+/// [`fixed`] for any number of columns.
+fn general(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+    let p = data.p;
+    let curv = want.curvature;
+    let mut s = Sums {
+        m: vec![0.0; p * p],
+        n2: vec![0.0; p * p],
+        n3: if curv { vec![0.0; p * p] } else { Vec::new() },
+        g: vec![0.0; p],
+        h: vec![0.0; p],
+        h3: if curv { vec![0.0; p] } else { Vec::new() },
+        ..Sums::default()
+    };
+    for ((xi, &vi), &yi) in data.x.chunks_exact(p).zip(data.v).zip(data.y) {
+        let vt = vi + tau2;
+        let w = 1.0 / vt;
+        if want.log_terms {
+            s.sum_log_vt += vt.ln();
+        }
+        let fit: f64 = xi.iter().zip(beta0).map(|(x, b)| x * b).sum();
+        let r = yi - fit;
+        let (w2, wr) = (w * w, w * r);
+        let (w2r, w3) = (w * wr, w2 * w);
+        let w3r = w * w2r;
+        s.sum_w += w;
+        s.sum_wr2 += wr * r;
+        s.sum_w2r2 += w2r * r;
+        if curv {
+            s.sum_w2 += w2;
+            s.sum_w3r2 += w3r * r;
+        }
+        for a in 0..p {
+            s.g[a] += xi[a] * wr;
+            s.h[a] += xi[a] * w2r;
+            for c in a..p {
+                s.m[a * p + c] += w * xi[a] * xi[c];
+                s.n2[a * p + c] += w2 * xi[a] * xi[c];
+            }
+            if curv {
+                s.h3[a] += xi[a] * w3r;
+                for c in a..p {
+                    s.n3[a * p + c] += w3 * xi[a] * xi[c];
+                }
+            }
+        }
+    }
+    s
+}
+
+/// A symmetric p × p matrix from its row-major upper triangle.
+fn symmetric(upper: &[f64], p: usize) -> DMatrix<f64> {
+    DMatrix::from_fn(p, p, |a, c| upper[a.min(c) * p + a.max(c)])
+}
+
+/// tr(AB) for p × p matrices.
+fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
+    a.component_mul(&b.transpose()).sum()
+}
+
+/// The weighted fit at `tau2` from one pass around `beta0` (see the module
+/// documentation for the identities), with the parts in `want` (the others
+/// NaN). A corrected sum that cancels too much is recomputed by a second
+/// pass at β̂.
+///
+/// Returns `None` when X'WX is not positive definite (collinear design).
+pub fn fit_near(data: &Data<'_>, tau2: f64, want: Want, beta0: &DVector<f64>) -> Option<Wls> {
+    let p = data.p;
+    let s = accumulate(data, tau2, want, beta0.as_slice());
+    let chol = symmetric(&s.m, p).cholesky()?;
+    let logdet_m = if want.log_terms {
+        2.0 * chol
+            .l_dirty()
+            .diagonal()
+            .iter()
+            .map(|d| d.ln())
+            .sum::<f64>()
+    } else {
+        f64::NAN
+    };
+    let g = DVector::from_column_slice(&s.g);
+    let delta = chol.solve(&g);
+    let beta = beta0 + &delta;
+    if !beta.iter().all(|x| x.is_finite()) {
+        return None;
+    }
+    let m_inv = chol.inverse();
+    let n2 = symmetric(&s.n2, p);
+    let h = DVector::from_column_slice(&s.h);
+    let n2d = &n2 * &delta;
+    let (dh, dn2d) = (delta.dot(&h), delta.dot(&n2d));
+    let q = s.sum_wr2 - delta.dot(&g);
+    let w2r2 = s.sum_w2r2 - 2.0 * dh + dn2d;
+    let limit = tolerance::ONE_PASS_MAX_CANCEL;
+    let kept = q * limit >= s.sum_wr2 && w2r2 * limit >= s.sum_w2r2 + 2.0 * dh.abs() + dn2d;
+    let (q, sum_w2r2) = if kept {
+        (q, w2r2)
+    } else {
+        residual_sums(data, tau2, &beta)
+    };
+    let tr_p = if want.trace {
+        s.sum_w - trace_of_product(&m_inv, &n2)
+    } else {
+        f64::NAN
+    };
+    let (y_pppy, tr_pp) = if want.curvature {
+        let n3 = symmetric(&s.n3, p);
+        let h3 = DVector::from_column_slice(&s.h3);
+        let w3r2 = s.sum_w3r2 - 2.0 * delta.dot(&h3) + delta.dot(&(&n3 * &delta));
+        let u = h - n2d;
+        let y_pppy = w3r2 - u.dot(&(&m_inv * &u));
+        let a = &m_inv * &n2;
+        let tr_pp = s.sum_w2 - 2.0 * trace_of_product(&m_inv, &n3) + trace_of_product(&a, &a);
+        (y_pppy, tr_pp)
+    } else {
+        (f64::NAN, f64::NAN)
+    };
+    Some(Wls {
+        tau2,
+        beta,
+        m_inv,
+        q,
+        sum_w: s.sum_w,
+        sum_w2r2,
+        tr_p,
+        sum_log_vt: if want.log_terms {
+            s.sum_log_vt
+        } else {
+            f64::NAN
+        },
+        logdet_m,
+        y_pppy,
+        tr_pp,
+        sum_w2: if want.curvature { s.sum_w2 } else { f64::NAN },
+    })
+}
+
+/// Whether a fit made with `had` holds everything `want` asks for.
+fn covers(had: Want, want: Want) -> bool {
+    (had.trace || !want.trace)
+        && (had.log_terms || !want.log_terms)
+        && (had.curvature || !want.curvature)
+}
+
+/// Weighted fits of one data set at the τ² values a search asks for: each
+/// is one pass around the coefficients of the previous fit ([`fit_near`];
+/// the first around β₀ = 0), and a τ² already fitted with at least the
+/// parts asked for is not fitted again.
+#[derive(Debug)]
+pub struct Evaluator<'a> {
+    data: Data<'a>,
+    last: RefCell<Option<DVector<f64>>>,
+    seen: RefCell<Vec<(Want, Wls)>>,
+    evaluations: Cell<u64>,
+}
+
+impl<'a> Evaluator<'a> {
+    /// An evaluator of `data` that has fitted nothing yet.
+    pub fn new(data: Data<'a>) -> Self {
+        Evaluator {
+            data,
+            last: RefCell::new(None),
+            seen: RefCell::new(Vec::new()),
+            evaluations: Cell::new(0),
+        }
+    }
+
+    /// The data.
+    pub fn data(&self) -> &Data<'a> {
+        &self.data
+    }
+
+    /// Fits made so far (fits found among the earlier ones not counted).
+    pub fn evaluations(&self) -> u64 {
+        self.evaluations.get()
+    }
+
+    /// The fit at `tau2` with the parts in `want`; `None` for a collinear
+    /// design.
+    pub fn at(&self, tau2: f64, want: Want) -> Option<Wls> {
+        if let Some((_, f)) = self
+            .seen
+            .borrow()
+            .iter()
+            .find(|(had, f)| f.tau2.to_bits() == tau2.to_bits() && covers(*had, want))
+        {
+            return Some(f.clone());
+        }
+        self.evaluations.set(self.evaluations.get() + 1);
+        let beta0 = self
+            .last
+            .borrow()
+            .clone()
+            .unwrap_or_else(|| DVector::zeros(self.data.p));
+        let f = fit_near(&self.data, tau2, want, &beta0)?;
+        *self.last.borrow_mut() = Some(f.beta.clone());
+        self.seen.borrow_mut().push((want, f.clone()));
+        Some(f)
+    }
+}
+
+#[cfg(test)]
+#[path = "near_tests.rs"]
+mod tests;

@@ -1,0 +1,252 @@
+//! Tests of the one-pass fits: against the two-pass fit of
+//! [`super::super::wls::fit_with`], the derivatives against central
+//! differences, and the evaluator's bookkeeping.
+
+use super::*;
+use crate::model::wls::{fit_with, passes};
+
+/// Invented data: k studies, an intercept, a calendar year (values near
+/// 2000, so X'WX is badly conditioned) and a second moderator; sampling
+/// variances from 1e-4 to 10 (a deterministic scramble, no randomness).
+fn invented(k: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    let mut y = Vec::with_capacity(k);
+    let mut v = Vec::with_capacity(k);
+    let mut x = Vec::with_capacity(3 * k);
+    for i in 0..k {
+        let u = ((i * 7919) % 101) as f64 / 101.0;
+        let z = ((i * 104_729) % 89) as f64 / 89.0 - 0.5;
+        let year = 1990.0 + (i % 30) as f64;
+        v.push(1e-4 * 10f64.powf(5.0 * u));
+        x.extend([1.0, year, z]);
+        y.push(0.3 + 0.01 * (year - 2000.0) - 0.4 * z + 0.5 * (u - 0.5) + 0.2 * z * z);
+    }
+    (y, v, x)
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b.abs().max(f64::MIN_POSITIVE)
+}
+
+#[test]
+fn one_pass_agrees_with_two_passes_on_an_ill_conditioned_design() {
+    let (y, v, x) = invented(500);
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 3,
+    };
+    for (from, to) in [(0.05, 0.06), (0.0, 1e-3), (2.0, 1.5), (0.3, 0.3)] {
+        let beta0 = fit_with(&d, from, Want::Q).unwrap().beta;
+        let exact = fit_with(&d, to, Want::ALL).unwrap();
+        let one = fit_near(&d, to, Want::ALL, &beta0).unwrap();
+        assert!(
+            rel(one.q, exact.q) < 1e-12,
+            "{from}→{to}: Q {} vs {}",
+            one.q,
+            exact.q
+        );
+        assert!(
+            rel(one.sum_w2r2, exact.sum_w2r2) < 1e-12,
+            "{from}→{to}: Σw²r²"
+        );
+        assert!(rel(one.tr_p, exact.tr_p) < 1e-12, "{from}→{to}: tr P");
+        assert!(
+            rel(one.logdet_m, exact.logdet_m) < 1e-12,
+            "{from}→{to}: ln det M"
+        );
+        for a in 0..3 {
+            assert!(
+                (one.beta[a] - exact.beta[a]).abs() <= 1e-9 * exact.beta[a].abs().max(1e-3),
+                "{from}→{to}: β{a} {} vs {}",
+                one.beta[a],
+                exact.beta[a]
+            );
+        }
+    }
+}
+
+#[test]
+fn far_coefficients_take_the_second_pass_and_stay_exact() {
+    // From β₀ = 0 the effects (mean 0.3 + 0.01·(year − 2000)) are far from
+    // the fit: Σw y² ≫ Q, so the corrected Q would cancel; the guard must
+    // sum the residuals again.
+    let (y, v, x) = invented(300);
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 3,
+    };
+    let zero = DVector::zeros(3);
+    let before = passes();
+    let one = fit_near(&d, 0.01, Want::SCORE, &zero).unwrap();
+    assert_eq!(
+        passes() - before,
+        2,
+        "the guard should have taken a second pass"
+    );
+    let exact = fit_with(&d, 0.01, Want::SCORE).unwrap();
+    assert!(rel(one.q, exact.q) < 1e-12);
+    // Near coefficients need one pass.
+    let before = passes();
+    fit_near(&d, 0.011, Want::SCORE, &one.beta).unwrap();
+    assert_eq!(passes() - before, 1);
+}
+
+/// REML or ML score at τ² from a two-pass fit.
+fn score_at(d: &Data<'_>, t: f64, restricted: bool) -> f64 {
+    let f = fit_with(d, t, Want::SCORE).unwrap();
+    let trace = if restricted { f.tr_p } else { f.sum_w };
+    0.5 * (f.sum_w2r2 - trace)
+}
+
+#[test]
+fn curvature_matches_central_differences() {
+    let (y, v, x) = invented(200);
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 3,
+    };
+    for t in [0.002, 0.05, 0.7] {
+        let beta0 = fit_with(&d, t * 1.1, Want::Q).unwrap().beta;
+        let f = fit_near(&d, t, Want::CURVATURE, &beta0).unwrap();
+        let hstep = t * 1e-4;
+        for restricted in [true, false] {
+            let fd = (score_at(&d, t + hstep, restricted) - score_at(&d, t - hstep, restricted))
+                / (2.0 * hstep);
+            let trace = if restricted { f.tr_pp } else { f.sum_w2 };
+            let exact = -f.y_pppy + 0.5 * trace;
+            assert!(
+                rel(exact, fd) < 1e-6,
+                "τ² = {t}, REML {restricted}: {exact} vs {fd}"
+            );
+        }
+        // dQ/dτ² = −Σw²r².
+        let q = |s: f64| fit_with(&d, s, Want::Q).unwrap().q;
+        let fd = (q(t + hstep) - q(t - hstep)) / (2.0 * hstep);
+        assert!(
+            rel(-f.sum_w2r2, fd) < 1e-6,
+            "τ² = {t}: dQ {} vs {fd}",
+            -f.sum_w2r2
+        );
+    }
+}
+
+#[test]
+fn the_evaluator_fits_each_point_once_and_counts() {
+    let (y, v, x) = invented(100);
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 3,
+    };
+    let ev = Evaluator::new(d.clone());
+    let a = ev.at(0.1, Want::ALL).unwrap();
+    // Q only: the fit with everything serves.
+    let b = ev.at(0.1, Want::Q).unwrap();
+    assert_eq!(a.q.to_bits(), b.q.to_bits());
+    assert_eq!(ev.evaluations(), 1);
+    // The curvature was not computed: a new fit.
+    let c = ev.at(0.1, Want::CURVATURE).unwrap();
+    assert_eq!(ev.evaluations(), 2);
+    assert!(c.y_pppy.is_finite() && a.y_pppy.is_nan());
+}
+
+#[test]
+fn many_columns_use_the_general_loop_and_agree() {
+    // p = 10 (beyond the fixed sizes).
+    let k = 80;
+    let p = 10;
+    let mut x = Vec::with_capacity(k * p);
+    let mut y = Vec::with_capacity(k);
+    let mut v = Vec::with_capacity(k);
+    for i in 0..k {
+        x.push(1.0);
+        for j in 1..p {
+            x.push((((i + 3) * (j + 5) * 7919) % 97) as f64 / 97.0);
+        }
+        y.push(((i * 31) % 17) as f64 / 17.0);
+        v.push(0.01 + ((i * 13) % 7) as f64 / 70.0);
+    }
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p,
+    };
+    let beta0 = fit_with(&d, 0.02, Want::Q).unwrap().beta;
+    let one = fit_near(&d, 0.03, Want::ALL, &beta0).unwrap();
+    let exact = fit_with(&d, 0.03, Want::ALL).unwrap();
+    assert!(rel(one.q, exact.q) < 1e-12);
+    assert!(rel(one.tr_p, exact.tr_p) < 1e-12);
+    let curv = fit_near(&d, 0.03, Want::CURVATURE, &beta0).unwrap();
+    let fixed = {
+        // The same sums through a fixed-size loop: the first 8 columns.
+        let x8: Vec<f64> = x.chunks(p).flat_map(|r| r[..8].to_vec()).collect();
+        let d8 = Data {
+            y: &y,
+            v: &v,
+            x: &x8,
+            p: 8,
+        };
+        let b8 = fit_with(&d8, 0.02, Want::Q).unwrap().beta;
+        let general = {
+            let s = general(&d8, 0.03, Want::CURVATURE, b8.as_slice());
+            s.sum_w3r2
+        };
+        (
+            fixed::<8, false, true>(&d8, 0.03, b8.as_slice()).sum_w3r2,
+            general,
+        )
+    };
+    assert!(rel(fixed.0, fixed.1) < 1e-13);
+    assert!(curv.y_pppy.is_finite() && curv.tr_pp > 0.0);
+}
+
+/// Invented data shaped like the benchmark file of benches/make_large_csv.py
+/// (three moderators, τ² ≈ 0.01), from a deterministic scramble.
+fn benchmark_like(k: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+    let mut y = Vec::with_capacity(k);
+    let mut v = Vec::with_capacity(k);
+    let mut x = Vec::with_capacity(4 * k);
+    let unit = |i: usize, s: usize| ((i * s + 17) % 1009) as f64 / 1009.0;
+    for i in 0..k {
+        let (m1, m2, m3) = (unit(i, 7919) - 0.5, 10.0 * unit(i, 104_729), (i % 4) as f64);
+        let vi = 0.01 + 0.2 * unit(i, 15_485_863);
+        let noise =
+            (unit(i, 32_452_843) - 0.5) * 0.5 + (unit(i, 49_979_687) - 0.5) * 3.464 * vi.sqrt();
+        x.extend([1.0, m1, m2, m3]);
+        v.push(vi);
+        y.push(0.2 + 0.1 * m1 - 0.02 * m2 + 0.05 * m3 + noise);
+    }
+    (y, v, x)
+}
+
+#[test]
+fn a_reml_fit_with_its_interval_takes_few_passes() {
+    use crate::model::{fit, tau2::Tau2Method, FitOptions, Inference};
+    let (y, v, x) = benchmark_like(3000);
+    let before = passes();
+    let f = fit(
+        &y,
+        &v,
+        &x,
+        4,
+        FitOptions {
+            method: Tau2Method::Reml,
+            inference: Inference::Kh,
+            level: 0.95,
+        },
+    )
+    .unwrap();
+    let used = passes() - before;
+    eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
+    // One pass per evaluation (24 when written: REML 15 evaluations, the
+    // two Q-profile bounds 6 started at τ̂, the OLS scale 2, one guard
+    // pass), where two passes per evaluation would be at least 2 × 21.
+    assert!(used <= 28, "{used} passes");
+}
