@@ -58,7 +58,7 @@ pub fn lines(r: &FitReport) -> Vec<String> {
                 c.computed_from
             );
             if c.derivation != Derivation::Direct {
-                let _ = write!(line, ": {}", c.labels.join(", "));
+                let _ = write!(line, ": {}", c.labels.iter().collect::<Vec<_>>().join(", "));
             }
             line
         })

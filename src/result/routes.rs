@@ -2,6 +2,7 @@
 //! (`computed_from`), with the names of the studies behind each.
 
 use crate::effect::route::{Derivation, Route};
+use crate::support::texts::Texts;
 use serde::Serialize;
 
 /// The studies whose effects came from one route.
@@ -15,7 +16,7 @@ pub struct RouteCount {
     /// How many included studies took this route.
     pub studies: usize,
     /// Their labels, in input order.
-    pub labels: Vec<String>,
+    pub labels: Texts,
 }
 
 /// Counts the routes of the included studies, in the order of [`Route::ALL`]
@@ -27,11 +28,11 @@ pub fn count_routes<'a>(
     Route::ALL
         .iter()
         .filter_map(|&r| {
-            let labels: Vec<String> = routes
+            let labels: Texts = routes
                 .iter()
                 .zip(labels.clone())
                 .filter(|(x, _)| **x == r)
-                .map(|(_, l)| l.to_string())
+                .map(|(_, l)| l)
                 .collect();
             (!labels.is_empty()).then(|| RouteCount {
                 computed_from: r,

@@ -118,9 +118,42 @@ impl<S: AsRef<str>> FromIterator<S> for Texts {
     }
 }
 
+/// Written as a JSON array of strings, exactly as a `Vec<String>` of the
+/// same texts.
+impl serde::Serialize for Texts {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        serializer.collect_seq(self.iter())
+    }
+}
+
+/// The schema of a `Vec<String>`, which is what the JSON holds.
+impl schemars::JsonSchema for Texts {
+    fn schema_name() -> std::borrow::Cow<'static, str> {
+        <Vec<String> as schemars::JsonSchema>::schema_name()
+    }
+
+    fn inline_schema() -> bool {
+        <Vec<String> as schemars::JsonSchema>::inline_schema()
+    }
+
+    fn json_schema(generator: &mut schemars::SchemaGenerator) -> schemars::Schema {
+        <Vec<String> as schemars::JsonSchema>::json_schema(generator)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn texts_serialise_as_a_vector_of_strings() {
+        let v = ["a", "", "b\"c", "é"];
+        let t: Texts = v.into_iter().collect();
+        assert_eq!(
+            serde_json::to_string(&t).unwrap(),
+            serde_json::to_string(&v).unwrap()
+        );
+    }
 
     #[test]
     fn texts_come_back_as_pushed() {
