@@ -248,9 +248,17 @@ fn symmetric(upper: &[f64], p: usize) -> DMatrix<f64> {
     DMatrix::from_fn(p, p, |a, c| upper[a.min(c) * p + a.max(c)])
 }
 
-/// tr(AB) for p × p matrices.
+/// tr(AB) = Σ_ij a_ij b_ji for p × p matrices, summed column by column of
+/// A (without the two temporary matrices of an element-wise product).
 fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
-    a.component_mul(&b.transpose()).sum()
+    let p = a.nrows();
+    let mut total = 0.0;
+    for j in 0..p {
+        for i in 0..p {
+            total += a[(i, j)] * b[(j, i)];
+        }
+    }
+    total
 }
 
 /// The weighted fit at `tau2` from one pass around `beta0` (see the module
@@ -382,13 +390,20 @@ impl<'a> Evaluator<'a> {
             return Some(f.clone());
         }
         self.evaluations.set(self.evaluations.get() + 1);
-        let beta0 = self
-            .last
-            .borrow()
-            .clone()
-            .unwrap_or_else(|| DVector::zeros(self.data.p));
-        let f = fit_near(&self.data, tau2, want, &beta0)?;
-        *self.last.borrow_mut() = Some(f.beta.clone());
+        let f = {
+            let last = self.last.borrow();
+            match last.as_ref() {
+                Some(beta0) => fit_near(&self.data, tau2, want, beta0)?,
+                None => fit_near(&self.data, tau2, want, &DVector::zeros(self.data.p))?,
+            }
+        };
+        {
+            let mut last = self.last.borrow_mut();
+            match last.as_mut() {
+                Some(b) => b.copy_from(&f.beta),
+                None => *last = Some(f.beta.clone()),
+            }
+        }
         self.seen.borrow_mut().push((want, f.clone()));
         Some(f)
     }
