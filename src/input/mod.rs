@@ -135,6 +135,22 @@ impl Column {
     }
 }
 
+/// One empty column per request: `None` for a request not found (an
+/// optional column), else a column named by its header at its position in
+/// the header row, ready for the rows to be pushed.
+pub(crate) fn empty_columns(headers: &[String], indices: &[Option<usize>]) -> Vec<Option<Column>> {
+    indices
+        .iter()
+        .map(|ix| {
+            ix.map(|i| Column {
+                header: headers[i].clone(),
+                index: i,
+                ..Column::default()
+            })
+        })
+        .collect()
+}
+
 /// The requested columns of a CSV table.
 #[derive(Debug, Clone)]
 pub struct Table {
@@ -440,16 +456,7 @@ fn parse_csv<R: Read>(
     let mut reader = stream::parser(source, open()?, head)?;
     let headers = read_headers(source, &mut reader)?;
     let indices = match_requests(source, &headers, requests)?;
-    let mut columns: Vec<Option<Column>> = indices
-        .iter()
-        .map(|ix| {
-            ix.map(|i| Column {
-                header: headers[i].clone(),
-                index: i,
-                ..Column::default()
-            })
-        })
-        .collect();
+    let mut columns = empty_columns(&headers, &indices);
     let rows = read_rows(
         source,
         delimiter,

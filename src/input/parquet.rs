@@ -13,7 +13,7 @@
 //! so memory is bounded by a batch and the page being decoded in each needed
 //! column (at most that column's chunk of one row group), not by the file.
 
-use super::{find_header, format_error, Column, ColumnRequest, Table};
+use super::{find_header, format_error, ColumnRequest, Table};
 use crate::error::{Error, Result};
 use parquet::basic::{Compression, ConvertedType, LogicalType, Type as Physical};
 use parquet::column::reader::ColumnReader;
@@ -522,16 +522,7 @@ pub fn parse_parquet(source: &str, bytes: &[u8], requests: &[ColumnRequest]) -> 
         .iter()
         .map(|ix| ix.and_then(|i| wanted.iter().position(|&w| w == i)))
         .collect();
-    let mut columns: Vec<Option<Column>> = indices
-        .iter()
-        .map(|ix| {
-            ix.map(|i| Column {
-                header: headers[i].clone(),
-                index: i,
-                ..Column::default()
-            })
-        })
-        .collect();
+    let mut columns = super::empty_columns(&headers, &indices);
     let mut lines = Vec::new();
     let mut blank_rows = 0;
     if wanted.is_empty() {

@@ -5,7 +5,7 @@
 //! and the missing marks behave exactly as in CSV. Row numbers are the
 //! sheet's own, and messages name cells as `sheet!D14`.
 
-use super::{format_error, Column, ColumnRequest, SheetOrigin, Table};
+use super::{format_error, ColumnRequest, SheetOrigin, Table};
 use crate::error::Result;
 use calamine::{open_workbook_auto_from_rs, Data, Reader};
 use std::io::Cursor;
@@ -139,16 +139,7 @@ pub fn parse_sheet(
         .map(|d| cell_text(d).trim().to_string())
         .collect();
     let indices = super::match_requests(source, &headers, requests)?;
-    let mut columns: Vec<Option<Column>> = indices
-        .iter()
-        .map(|ix| {
-            ix.map(|i| Column {
-                header: headers[i].clone(),
-                index: i,
-                ..Column::default()
-            })
-        })
-        .collect();
+    let mut columns = super::empty_columns(&headers, &indices);
     let mut lines = Vec::new();
     let mut blank_rows = 0;
     for (k, row) in rows.enumerate() {
