@@ -2,7 +2,7 @@
 //!
 //! A report of a million studies would hold a million [`Study`] values of
 //! about 330 bytes each (a label `String`, a moderator `Vec`, a cell map);
-//! kept as columns — labels back to back in one text, numbers in one vector
+//! kept as columns — labels back to back in one text ([`Texts`]), numbers in one vector
 //! per field, moderator levels as indices into the levels seen, notes and
 //! cells only where there are any — the same records take about 140 bytes
 //! a study. A [`Study`] is built when it is read ([`StudyList::get`],
@@ -11,6 +11,7 @@
 //! schema are exactly those of a `Vec<Study>`.
 
 use super::{AtValue, Interval, Route, Shrunken, Study};
+use crate::support::texts::Texts;
 use serde::{Serialize, Serializer};
 use std::collections::{BTreeMap, HashMap};
 
@@ -25,9 +26,7 @@ enum Cell {
 /// The included studies' records, in input order (see the module docs).
 #[derive(Debug, Clone, Default)]
 pub struct StudyList {
-    /// The labels back to back; study `i`'s ends at `label_ends[i]`.
-    labels: String,
-    label_ends: Vec<usize>,
+    labels: Texts,
     lines: Vec<u64>,
     effect: Vec<f64>,
     variance: Vec<f64>,
@@ -73,8 +72,7 @@ impl StudyList {
     /// Adds a study at the end.
     pub fn push(&mut self, s: Study) {
         let n = self.len();
-        self.labels.push_str(&s.study);
-        self.label_ends.push(self.labels.len());
+        self.labels.push(&s.study);
         self.lines.push(s.line);
         self.effect.push(s.effect);
         self.variance.push(s.variance);
@@ -122,8 +120,7 @@ impl StudyList {
     /// # Panics
     /// When `i` is not below [`StudyList::len`].
     pub fn label(&self, i: usize) -> &str {
-        let start = if i == 0 { 0 } else { self.label_ends[i - 1] };
-        &self.labels[start..self.label_ends[i]]
+        self.labels.get(i)
     }
 
     /// Every study's effect, in order.
@@ -157,13 +154,22 @@ impl StudyList {
     /// # Panics
     /// When `i` or `j` is out of range.
     pub fn moderator(&self, i: usize, j: usize) -> AtValue {
+        self.value(self.cells_of(i)[j])
+    }
+
+    /// Study `i`'s moderator values.
+    fn cells_of(&self, i: usize) -> &[Cell] {
         let start = if i == 0 {
             0
         } else {
             self.moderator_ends[i - 1]
         };
-        let cells = &self.moderators[start..self.moderator_ends[i]];
-        match cells[j] {
+        &self.moderators[start..self.moderator_ends[i]]
+    }
+
+    /// A stored moderator value as reported.
+    fn value(&self, c: Cell) -> AtValue {
+        match c {
             Cell::Number(x) => AtValue::Number(x),
             Cell::Level(l) => AtValue::Level(self.levels[l as usize].clone()),
         }
@@ -174,18 +180,7 @@ impl StudyList {
     /// # Panics
     /// When `i` is not below [`StudyList::len`].
     pub fn get(&self, i: usize) -> Study {
-        let start = if i == 0 {
-            0
-        } else {
-            self.moderator_ends[i - 1]
-        };
-        let moderators = self.moderators[start..self.moderator_ends[i]]
-            .iter()
-            .map(|c| match *c {
-                Cell::Number(x) => AtValue::Number(x),
-                Cell::Level(l) => AtValue::Level(self.levels[l as usize].clone()),
-            })
-            .collect();
+        let moderators = self.cells_of(i).iter().map(|&c| self.value(c)).collect();
         let note = self
             .notes
             .binary_search_by_key(&i, |(n, _)| *n)
