@@ -352,7 +352,6 @@ fn covers(had: Want, want: Want) -> bool {
 #[derive(Debug)]
 pub struct Evaluator<'a> {
     data: Data<'a>,
-    last: RefCell<Option<DVector<f64>>>,
     seen: RefCell<Vec<(Want, Wls)>>,
     evaluations: Cell<u64>,
 }
@@ -362,7 +361,6 @@ impl<'a> Evaluator<'a> {
     pub fn new(data: Data<'a>) -> Self {
         Evaluator {
             data,
-            last: RefCell::new(None),
             seen: RefCell::new(Vec::new()),
             evaluations: Cell::new(0),
         }
@@ -390,20 +388,12 @@ impl<'a> Evaluator<'a> {
             return Some(f.clone());
         }
         self.evaluations.set(self.evaluations.get() + 1);
-        let f = {
-            let last = self.last.borrow();
-            match last.as_ref() {
-                Some(beta0) => fit_near(&self.data, tau2, want, beta0)?,
-                None => fit_near(&self.data, tau2, want, &DVector::zeros(self.data.p))?,
-            }
+        // Around the coefficients of the fit made last (the last one
+        // remembered), or β₀ = 0 for the first.
+        let f = match self.seen.borrow().last() {
+            Some((_, before)) => fit_near(&self.data, tau2, want, &before.beta)?,
+            None => fit_near(&self.data, tau2, want, &DVector::zeros(self.data.p))?,
         };
-        {
-            let mut last = self.last.borrow_mut();
-            match last.as_mut() {
-                Some(b) => b.copy_from(&f.beta),
-                None => *last = Some(f.beta.clone()),
-            }
-        }
         self.seen.borrow_mut().push((want, f.clone()));
         Some(f)
     }
