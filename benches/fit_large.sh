@@ -74,12 +74,4 @@ import json, sys
 d = json.load(sys.stdin)
 print("numpy script", d["versions"], "largest relative difference from pondus: %.1e" % d["max_rel_diff_from_pondus"])'
 fi
-for what in "${kinds[@]}"; do
-  grep "^$what " "$log" | python3 -c '
-import statistics, sys
-rows = [l.split() for l in sys.stdin]
-w = [float(r[1]) for r in rows]; u = [float(r[2]) for r in rows]
-c = [float(r[2]) + float(r[3]) for r in rows]; m = [int(r[4]) for r in rows]
-print(f"  {rows[0][0]:10} wall {min(w):.2f} / {statistics.median(w):.2f}   user {min(u):.2f} / {statistics.median(u):.2f}"
-      f"   user+sys {min(c):.2f} / {statistics.median(c):.2f}   RSS {max(m)/1024:.0f} MB")'
-done
+python3 benches/summarise_times.py "$log" "${kinds[@]}"
