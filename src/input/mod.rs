@@ -13,6 +13,7 @@ mod stream;
 
 pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
 pub use places::Places;
+pub(crate) use stream::LineCounter;
 
 use crate::error::{CellProblem, Error, Result};
 use number::DecimalMark;

@@ -174,11 +174,16 @@ pub(crate) struct LineCounter<R> {
 impl<R> LineCounter<R> {
     /// Counts the lines of `inner`, whose first byte is on line 1.
     pub(crate) fn new(inner: R) -> Self {
+        Self::starting_at(inner, 1)
+    }
+
+    /// Counts the lines of `inner`, whose first byte is on line `line`.
+    pub(crate) fn starting_at(inner: R, line: u64) -> Self {
         LineCounter {
             inner,
             offset: 0,
             breaks: VecDeque::new(),
-            line: 1,
+            line,
         }
     }
 

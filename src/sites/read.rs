@@ -3,15 +3,14 @@
 
 use super::decimal::StreamDecimal;
 use super::levels::Coding;
-use super::records::{BreakCounter, CsvRecords, ParquetRecords, Records};
+use super::records::{CsvRecords, ParquetRecords, Records};
 use crate::error::{CellProblem, CellProblems, Error, Result};
 use crate::input::number::{invalid_hint, Cell, DecimalMark};
 use crate::input::parquet as parquet_input;
-use crate::input::DecimalChoice;
 use crate::input::{check_unique, format_error, read_headers};
 use crate::input::{detect_delimiter, find_header, separator_text};
+use crate::input::{DecimalChoice, LineCounter};
 use crate::support::flag::Flag;
-use std::collections::VecDeque;
 use std::io::{BufRead, BufReader, Read};
 
 /// The columns a pass needs, by header.
@@ -106,7 +105,7 @@ impl Problems {
 pub const MISSING_LINES_KEPT: usize = 20;
 
 /// The CSV reader of a pass, over the line-break counter.
-pub(super) type RowReader<R> = csv::Reader<BreakCounter<BufReader<R>>>;
+pub(super) type RowReader<R> = csv::Reader<LineCounter<BufReader<R>>>;
 
 pub(super) fn io_error(source: &str, e: std::io::Error) -> Error {
     Error::Io {
@@ -147,12 +146,7 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8, u64)> {
         }
         None => detect_delimiter(head),
     };
-    let counter = BreakCounter {
-        inner: buffered,
-        offset: 0,
-        breaks: VecDeque::new(),
-        line: 1,
-    };
+    let counter = LineCounter::new(buffered);
     let reader = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(true)
@@ -165,12 +159,7 @@ fn open<R: Read>(source: &str, input: R) -> Result<(RowReader<R>, u8, u64)> {
 /// The CSV reader over `input`, which starts at a record boundary on line
 /// `line` of a file whose header was read already.
 pub(super) fn reader_at<R: Read>(input: R, delimiter: u8, line: u64) -> RowReader<R> {
-    let counter = BreakCounter {
-        inner: BufReader::with_capacity(1 << 16, input),
-        offset: 0,
-        breaks: VecDeque::new(),
-        line,
-    };
+    let counter = LineCounter::starting_at(BufReader::with_capacity(1 << 16, input), line);
     csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(false)

@@ -1,65 +1,11 @@
 //! Where a pass's records come from: CSV rows through the line-break
-//! counter, or a Parquet file's rows batch by batch.
+//! counter ([`crate::input::LineCounter`]), or a Parquet file's rows batch
+//! by batch.
 
 use super::read::{next_record, RowReader};
 use crate::error::Result;
 use crate::input::parquet as parquet_input;
-use std::collections::VecDeque;
 use std::io::Read;
-
-/// A reader that notes the byte offsets of every line break it passes on,
-/// so that a record's line number can be found from its byte offset.
-///
-/// The csv crate's own line count skips blank lines and miscounts CRLF
-/// files (see `crate::input::parse_table`, which counts from byte offsets
-/// in memory). Here the bytes stream through, so the offsets of `\n` and
-/// `\r` are queued as they pass and dropped once the parser is beyond
-/// them: memory stays within the parser's look-ahead buffer.
-pub(super) struct BreakCounter<R> {
-    pub(super) inner: R,
-    pub(super) offset: u64,
-    /// Offsets of line-break bytes not yet counted, shifted left by one; the
-    /// low bit is 1 for `\n`, 0 for `\r`.
-    pub(super) breaks: VecDeque<u64>,
-    pub(super) line: u64,
-}
-
-impl<R: Read> Read for BreakCounter<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let got = self.inner.read(buf)?;
-        for (i, &b) in buf[..got].iter().enumerate() {
-            if b == b'\n' || b == b'\r' {
-                self.breaks
-                    .push_back(((self.offset + i as u64) << 1) | u64::from(b == b'\n'));
-            }
-        }
-        self.offset += got as u64;
-        Ok(got)
-    }
-}
-
-impl<R> BreakCounter<R> {
-    /// The 1-based line of a record that the parser says starts at byte
-    /// `offset`: line breaks before it are counted, and so are the breaks
-    /// right at `offset` (the parser's offset can point at the terminators
-    /// of blank lines before the record).
-    pub(super) fn line_at(&mut self, offset: u64) -> u64 {
-        let mut end = offset;
-        while let Some(&b) = self.breaks.front() {
-            let at = b >> 1;
-            if at <= end {
-                if at == end {
-                    end += 1;
-                }
-                self.line += b & 1;
-                self.breaks.pop_front();
-            } else {
-                break;
-            }
-        }
-        self.line
-    }
-}
 
 /// A source of records for a pass: CSV rows, or a Parquet file's rows.
 pub(super) trait Records {
