@@ -170,13 +170,14 @@ fn stages(
     detail: Detail,
 ) -> Result<FitReport> {
     let mut studies = studies::collect(settings, source, columns)?;
-    let design = design::build(settings, source, &studies)?;
+    let mut design = design::build(settings, source, &studies)?;
     if detail == Detail::Summary && !settings.answers.shrink {
         // No per-study record will be built: the design now holds all
         // that later stages read of the numeric moderators.
         studies.release_numeric_moderators();
     }
-    let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
+    let keep = estimate::Keep::for_job(settings, detail);
+    let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &mut design, keep)?;
     let spread = spread::fit(settings, source, &studies, &design, &mut model)?;
     let readout = readout::read_out(settings, &design, &model, &studies)?;
     let answers = answers::answer(
