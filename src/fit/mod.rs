@@ -6,7 +6,10 @@
 //! 2. [`studies`]: collect the studies (effects, artifact corrections,
 //!    moderator types, inclusion); the table ends here;
 //! 3. [`design`]: build the design (product terms, scale check);
-//! 4. [`estimate`]: fit the working model and the intercept-only model;
+//! 4. [`estimate`]: fit the working model and the intercept-only model
+//!    (a job that builds no per-study record and reads the design matrix
+//!    no more hands the matrix to the fit: it ends here, see
+//!    [`estimate::Keep`]);
 //!    [`spread`]: with `--spread-by`, the location-scale model in its place;
 //! 5. [`readout`]: `--at` predictions, subgroups, fitted lines;
 //!    [`answers`]: `--beyond` and `--shrink`;
