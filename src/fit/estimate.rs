@@ -5,12 +5,13 @@
 //! the average effect and the τ² without moderators.
 
 use super::studies::Studies;
-use super::{in_file, FitSettings};
+use super::{in_file, Detail, FitSettings};
 use crate::error::{Error, Result};
 use crate::model::design::Design;
 use crate::model::multilevel::{self, Clusters, Levels, ThreeLevel};
 use crate::model::{self, FitOptions, ModelFit};
 use crate::support::flag::Flag;
+use std::borrow::Cow;
 
 /// The working model: how the effects are assumed to depend on each other.
 #[derive(Debug, Clone)]
@@ -52,8 +53,47 @@ pub struct Fitted {
     pub tau2_each: Option<Vec<f64>>,
 }
 
+/// What the stages after the estimate read of the working fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Keep {
+    /// The design matrix and the fit's per-study arrays (weights, fitted
+    /// values, standardised residuals): the per-study records, the
+    /// diagnostics, `--cluster`, `--spread-by`, `--shrink` and
+    /// `--all-subsets` read them.
+    Everything,
+    /// Only the fit's summary numbers: the design matrix is handed to the
+    /// fit, standardised in place there and freed (`design.x` is left
+    /// empty), and no per-study array is computed.
+    Summary,
+}
+
+impl Keep {
+    /// What a job reads after the estimate: [`Keep::Summary`] when it builds
+    /// no per-study record ([`Detail::Summary`]) and asks for nothing that
+    /// reads the design matrix again (the readers are listed at
+    /// [`Keep::Everything`]); the predictions, subgroups, fitted lines and
+    /// probes read the design's terms and moderators only.
+    pub fn for_job(settings: &FitSettings, detail: Detail) -> Keep {
+        let answers = &settings.answers;
+        let summary_only = detail == Detail::Summary
+            && !answers.shrink
+            && !answers.all_subsets
+            && answers.spread_by.is_empty()
+            && settings.dependence.cluster.is_none()
+            && !settings.diagnostics.any();
+        if summary_only {
+            Keep::Summary
+        } else {
+            Keep::Everything
+        }
+    }
+}
+
 /// Fits the model, and the intercept-only model when there are moderators
-/// (None without: the model is then its own null model).
+/// (None without: the model is then its own null model). Under
+/// [`Keep::Summary`] the design matrix is moved into the fit and
+/// `design.x` is left empty. The intercept-only model keeps only its
+/// summary numbers (its per-study arrays are empty: nothing reads them).
 ///
 /// # Errors
 /// [`Error::Model`] for a missing cluster id or a fit whose Knapp–Hartung
@@ -63,7 +103,8 @@ pub fn estimate(
     settings: &FitSettings,
     source: &str,
     studies: &Studies,
-    design: &Design,
+    design: &mut Design,
+    keep: Keep,
 ) -> Result<(Fitted, Option<ModelFit>)> {
     let clusters = match &studies.cluster_ids {
         Some(ids) => Some(clusters(ids, (&studies.lines, &studies.places), source)?),
@@ -72,17 +113,23 @@ pub fn estimate(
     let levels = settings.dependence.levels;
     let options = settings.options;
     let (y, v) = (&studies.y, &studies.v);
-    let (fit, three) = fit_working(
-        y,
-        v,
-        &design.x,
-        design.p,
-        clusters.as_ref(),
-        levels,
-        options,
-        true,
-    )
-    .map_err(|e| in_file(source, e))?;
+    let (fit, three) = match (keep, &clusters) {
+        (Keep::Summary, None) => {
+            let x = Cow::Owned(std::mem::take(&mut design.x));
+            let fit = model::fit_summary(y, v, x, design.p, options, true);
+            (fit.map_err(|e| in_file(source, e))?, None)
+        }
+        _ => fit_working(
+            y,
+            v,
+            &design.x,
+            design.p,
+            clusters.as_ref(),
+            levels,
+            options,
+        )
+        .map_err(|e| in_file(source, e))?,
+    };
     if fit.kh_scale == Some(0.0) {
         return Err(Error::Model(format!(
             "{source}: the model fits every effect exactly (residual Q = 0 up to rounding, for \
@@ -99,11 +146,7 @@ pub fn estimate(
     let null = if design.p == 1 {
         None
     } else {
-        let ones = vec![1.0; y.len()];
-        let cl = working.clusters();
-        let (null, _) = fit_working(y, v, &ones, 1, cl, levels, options, false)
-            .map_err(|e| in_file(source, e))?;
-        Some(null)
+        Some(null_fit(y, v, working.clusters(), levels, options).map_err(|e| in_file(source, e))?)
     };
     let null_scale_factor = null.as_ref().unwrap_or(&fit).scale_factor;
     Ok((
@@ -156,12 +199,38 @@ fn clusters(
     Ok(clusters)
 }
 
-/// The model under the dependence settings: the usual fit without clusters
-/// or with `--levels 2`, the three-level fit otherwise.
+/// The intercept-only model under the same working model, its summary
+/// numbers only: the usual fit needs no per-study array and no copy of its
+/// column of ones; the three-level fit's per-study arrays are dropped.
+///
+/// # Errors
+/// As [`model::fit_summary`] and [`multilevel::fit`].
+fn null_fit(
+    y: &[f64],
+    v: &[f64],
+    clusters: Option<&Clusters>,
+    levels: Levels,
+    options: FitOptions,
+) -> Result<ModelFit> {
+    let ones = vec![1.0; y.len()];
+    match clusters {
+        Some(cl) if levels == Levels::Three => {
+            let (mut f, _) = multilevel::fit(y, v, &ones, 1, cl, options, false)?;
+            f.weights = Vec::new();
+            f.fitted = Vec::new();
+            f.std_resid = Vec::new();
+            Ok(f)
+        }
+        _ => model::fit_summary(y, v, Cow::Borrowed(&ones), 1, options, false),
+    }
+}
+
+/// The model under the dependence settings, with the τ² interval and the
+/// per-study arrays: the usual fit without clusters or with `--levels 2`,
+/// the three-level fit otherwise.
 ///
 /// # Errors
 /// As [`model::fit_parts`] and [`multilevel::fit`].
-#[allow(clippy::too_many_arguments)]
 fn fit_working(
     y: &[f64],
     v: &[f64],
@@ -170,13 +239,12 @@ fn fit_working(
     clusters: Option<&Clusters>,
     levels: Levels,
     options: FitOptions,
-    with_ci: bool,
 ) -> Result<(ModelFit, Option<ThreeLevel>)> {
     match clusters {
         Some(cl) if levels == Levels::Three => {
-            let (f, t) = multilevel::fit(y, v, x, p, cl, options, with_ci)?;
+            let (f, t) = multilevel::fit(y, v, x, p, cl, options, true)?;
             Ok((f, Some(t)))
         }
-        _ => Ok((model::fit_parts(y, v, x, p, options, with_ci)?, None)),
+        _ => Ok((model::fit_parts(y, v, x, p, options, true)?, None)),
     }
 }

@@ -6,7 +6,10 @@
 //! 2. [`studies`]: collect the studies (effects, artifact corrections,
 //!    moderator types, inclusion); the table ends here;
 //! 3. [`design`]: build the design (product terms, scale check);
-//! 4. [`estimate`]: fit the working model and the intercept-only model;
+//! 4. [`estimate`]: fit the working model and the intercept-only model
+//!    (a job that builds no per-study record and reads the design matrix
+//!    no more hands the matrix to the fit: it ends here, see
+//!    [`estimate::Keep`]);
 //!    [`spread`]: with `--spread-by`, the location-scale model in its place;
 //! 5. [`readout`]: `--at` predictions, subgroups, fitted lines;
 //!    [`answers`]: `--beyond` and `--shrink`;
@@ -170,13 +173,14 @@ fn stages(
     detail: Detail,
 ) -> Result<FitReport> {
     let mut studies = studies::collect(settings, source, columns)?;
-    let design = design::build(settings, source, &studies)?;
+    let mut design = design::build(settings, source, &studies)?;
     if detail == Detail::Summary && !settings.answers.shrink {
         // No per-study record will be built: the design now holds all
         // that later stages read of the numeric moderators.
         studies.release_numeric_moderators();
     }
-    let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &design)?;
+    let keep = estimate::Keep::for_job(settings, detail);
+    let (mut model, null_fit) = estimate::estimate(settings, source, &studies, &mut design, keep)?;
     let spread = spread::fit(settings, source, &studies, &design, &mut model)?;
     let readout = readout::read_out(settings, &design, &model, &studies)?;
     let answers = answers::answer(

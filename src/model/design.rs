@@ -5,7 +5,6 @@ use crate::error::{Error, Result};
 use crate::input::number::{is_missing, parse_cell, Cell};
 use crate::input::Places;
 use crate::support::flag::Flag;
-use crate::tolerance;
 use serde::Serialize;
 
 /// What the user asked for one moderator.
@@ -24,6 +23,7 @@ pub struct ModeratorSpec {
 pub use crate::result::{Moderator, ModeratorKind};
 pub use values::{Categories, Numbers};
 
+mod rank;
 mod values;
 
 /// The per-row raw values of one moderator (all rows of the table).
@@ -351,7 +351,7 @@ pub fn build(
         };
         encode_row(&moderators, interactions, value, &mut spans, &mut x);
     }
-    check_rank(&x, k, p, &terms)?;
+    rank::check_rank(&x, k, p, &terms)?;
     Ok(Design {
         x,
         p,
@@ -506,58 +506,6 @@ fn sort_levels(levels: &mut [String]) {
     } else {
         levels.sort();
     }
-}
-
-/// Modified Gram–Schmidt over the columns: a column whose remainder after
-/// projecting out the earlier ones keeps less than [`tolerance::COLLINEAR`]
-/// of its squared norm is a linear combination of them.
-fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
-    let mut q: Vec<Vec<f64>> = Vec::with_capacity(p);
-    for j in 0..p {
-        let mut col: Vec<f64> = (0..k).map(|i| x[i * p + j]).collect();
-        // Every column but the intercept is centred first: the span of
-        // [1, X] is that of [1, X − x̄], and a large offset with a small
-        // spread (m = 1e6 + i, dates as Unix times) then keeps its digits
-        // instead of looking collinear with the intercept.
-        if j > 0 {
-            let mean = col.iter().sum::<f64>() / k as f64;
-            if mean.is_finite() {
-                for c in &mut col {
-                    *c -= mean;
-                }
-            }
-        }
-        // Scaling a column does not change the rank; scaling it to a largest
-        // magnitude of 1 keeps the squares below from underflowing (values
-        // near 1e-300) or overflowing (near 1e300).
-        let scale = col.iter().fold(0.0f64, |m, c| m.max(c.abs()));
-        if scale > 0.0 && scale.is_finite() {
-            for c in &mut col {
-                *c /= scale;
-            }
-        }
-        let norm0: f64 = col.iter().map(|c| c * c).sum();
-        for b in &q {
-            let dot: f64 = col.iter().zip(b).map(|(c, b)| c * b).sum();
-            for (c, b) in col.iter_mut().zip(b) {
-                *c -= dot * b;
-            }
-        }
-        let norm: f64 = col.iter().map(|c| c * c).sum();
-        if norm.is_nan() || norm <= tolerance::COLLINEAR * norm0 {
-            let earlier: Vec<&str> = terms[..j].iter().map(|t| t.name.as_str()).collect();
-            return Err(Error::Model(format!(
-                "term '{}' is a linear combination of the terms before it ({}) in the included \
-                 studies (collinear moderators), so the coefficients cannot be separated; drop one \
-                 of the moderators involved",
-                terms[j].name,
-                earlier.join(", ")
-            )));
-        }
-        let n = norm.sqrt();
-        q.push(col.into_iter().map(|c| c / n).collect());
-    }
-    Ok(())
 }
 
 #[cfg(test)]

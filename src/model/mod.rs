@@ -17,6 +17,7 @@ pub mod wls;
 
 use crate::error::{Error, Result};
 use nalgebra::{DMatrix, DVector};
+use std::borrow::Cow;
 use tau2::{Tau2Fit, Tau2Method};
 use wls::{Data, Want};
 
@@ -65,7 +66,8 @@ pub struct ModelFit {
     pub k: usize,
     /// Number of coefficients.
     pub p: usize,
-    /// Random-effects weights 1/(v_i + τ̂²).
+    /// Random-effects weights 1/(v_i + τ̂²) (this and the next two per-study
+    /// arrays are empty for a fit made by [`fit_summary`]).
     pub weights: Vec<f64>,
     /// Fitted values x_i'β̂.
     pub fitted: Vec<f64>,
@@ -96,13 +98,26 @@ pub(crate) struct Standardised {
 }
 
 pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
+    let mut xs = x.to_vec();
+    let (a, log_det_a) = standardise_in_place(&mut xs, k, p);
+    Standardised {
+        x: xs,
+        a,
+        log_det_a,
+    }
+}
+
+/// [`standardise`] writing X̃ over X (no second k × p matrix): returns A and
+/// ln|det A|. Each column is read whole (mean, largest deviation, sum of
+/// squares) before it is overwritten, and no column reads another, so the
+/// values are the same bits as those of a copy.
+pub(crate) fn standardise_in_place(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.
     let has_intercept = p > 0 && (0..k).all(|i| x[i * p] == 1.0);
     let first = usize::from(has_intercept);
     let mut a = DMatrix::identity(p, p);
-    let mut xs = x.to_vec();
     let mut log_det_a = 0.0;
     for j in first..p {
         let mean = if has_intercept {
@@ -123,7 +138,7 @@ pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
         };
         let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
         for i in 0..k {
-            xs[i * p + j] = (x[i * p + j] - mean) / sd;
+            x[i * p + j] = (x[i * p + j] - mean) / sd;
         }
         a[(j, j)] = 1.0 / sd;
         if has_intercept {
@@ -131,11 +146,7 @@ pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
         }
         log_det_a -= sd.ln();
     }
-    Standardised {
-        x: xs,
-        a,
-        log_det_a,
-    }
+    (a, log_det_a)
 }
 
 /// The Knapp–Hartung factor applied under `inference`: s² under `kh`,
@@ -171,15 +182,85 @@ pub fn fit_parts(
     options: FitOptions,
     with_ci: bool,
 ) -> Result<ModelFit> {
+    check_size(y.len(), p)?;
+    let st = standardise(x, y.len(), p);
+    let scaled = Scaled {
+        x: &st.x,
+        a: &st.a,
+        log_det_a: st.log_det_a,
+    };
+    let (mut fit, m_inv) = fit_scaled(y, v, &scaled, options, with_ci)?;
+    per_study(&mut fit, (y, v, x), &scaled, &m_inv);
+    Ok(fit)
+}
+
+/// [`fit_parts`] without the per-study arrays ([`ModelFit::weights`],
+/// [`ModelFit::fitted`] and [`ModelFit::std_resid`] are left empty), for a
+/// caller that reads only the model's summary numbers. A design matrix
+/// given owned is standardised in place, so the fit holds no second k × p
+/// matrix; a borrowed one is copied only when a column needs scaling (not
+/// for the intercept-only design, a column of ones). Every number is the
+/// same as [`fit_parts`]'s: the same standardised values, the same passes.
+///
+/// # Errors
+/// As [`fit`].
+pub fn fit_summary(
+    y: &[f64],
+    v: &[f64],
+    x: Cow<'_, [f64]>,
+    p: usize,
+    options: FitOptions,
+    with_ci: bool,
+) -> Result<ModelFit> {
     let k = y.len();
+    check_size(k, p)?;
+    let ones_only = p == 1 && (0..k).all(|i| x[i] == 1.0);
+    let (x, a, log_det_a) = if ones_only {
+        // Nothing to centre or scale: X̃ = X, A = I.
+        (x, DMatrix::identity(1, 1), 0.0)
+    } else {
+        let mut x = x.into_owned();
+        let (a, log_det_a) = standardise_in_place(&mut x, k, p);
+        (Cow::Owned(x), a, log_det_a)
+    };
+    let scaled = Scaled {
+        x: &x,
+        a: &a,
+        log_det_a,
+    };
+    Ok(fit_scaled(y, v, &scaled, options, with_ci)?.0)
+}
+
+/// Refuses a fit of `p` coefficients to `k` ≤ `p` studies.
+fn check_size(k: usize, p: usize) -> Result<()> {
     if k <= p {
         return Err(Error::Model(format!(
             "{k} studies cannot support {p} coefficients; at least {} are needed",
             p + 1
         )));
     }
-    let st = standardise(x, k, p);
-    let data = Data { y, v, x: &st.x, p };
+    Ok(())
+}
+
+/// A standardised design X̃ = XA (row-major k × p) with A and ln|det A|
+/// (see [`standardise`]).
+struct Scaled<'a> {
+    x: &'a [f64],
+    a: &'a DMatrix<f64>,
+    log_det_a: f64,
+}
+
+/// The fit on the standardised design, with the per-study arrays left
+/// empty, and (X̃'WX̃)⁻¹ at τ̂² (standardised) for [`per_study`].
+fn fit_scaled(
+    y: &[f64],
+    v: &[f64],
+    st: &Scaled<'_>,
+    options: FitOptions,
+    with_ci: bool,
+) -> Result<(ModelFit, DMatrix<f64>)> {
+    let (k, p) = (y.len(), st.a.nrows());
+    let data = Data { y, v, x: st.x, p };
     let hint = tau2::scale_hint(&data);
     // Every fit below goes through one evaluator: one pass each, around the
     // coefficients of the fit before, and none repeated.
@@ -195,27 +276,12 @@ pub fn fit_parts(
     let df = (k - p) as f64;
     let scale_factor = kh_scale(f.q, df, y, v, t);
     let kh_scale = applied_scale(options.inference, scale_factor);
-    let beta = &st.a * &f.beta;
-    let cov_model = &st.a * &f.m_inv * st.a.transpose();
+    let beta = st.a * &f.beta;
+    let cov_model = st.a * &f.m_inv * st.a.transpose();
     let cov = match kh_scale {
         Some(s2) => &cov_model * s2,
         None => cov_model.clone(),
     };
-    let orig = Data { y, v, x, p };
-    let mut weights = Vec::with_capacity(k);
-    let mut fitted = Vec::with_capacity(k);
-    let mut std_resid = Vec::with_capacity(k);
-    for i in 0..k {
-        let w = 1.0 / (v[i] + t);
-        let fi = wls::fitted(&orig, &beta, i);
-        let var_r = 1.0 / w - wls::quad_form(&data, &f.m_inv, i);
-        weights.push(w);
-        fitted.push(fi);
-        std_resid.push(
-            (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
-                .then(|| (y[i] - fi) / var_r.sqrt()),
-        );
-    }
     let fe = ev.at(0.0, Want::Q).ok_or_else(singular)?;
     let v_typical = df / wls::trace_p_with(&data, 0.0, &fe.m_inv);
     let tau2_ci = match options.method {
@@ -238,7 +304,7 @@ pub fn fit_parts(
         }
         _ => None,
     };
-    Ok(ModelFit {
+    let fit = ModelFit {
         tau2,
         tau2_ci,
         beta,
@@ -250,14 +316,44 @@ pub fn fit_parts(
         pi_df: df - 1.0,
         k,
         p,
-        weights,
-        fitted,
-        std_resid,
+        weights: Vec::new(),
+        fitted: Vec::new(),
+        std_resid: Vec::new(),
         q_e: fe.q,
         v_typical,
         log_likelihood,
         options,
-    })
+    };
+    Ok((fit, f.m_inv))
+}
+
+/// Fills the per-study arrays of `fit`: w_i = 1/(v_i + τ̂²), the fitted
+/// value x_i'β̂ (original design) and the standardised residual
+/// r_i / √(1/w_i − x̃_i'M̃⁻¹x̃_i) with M̃⁻¹ = `m_inv` = (X̃'WX̃)⁻¹ on the
+/// standardised design (the same leverage as in the original one).
+fn per_study(
+    fit: &mut ModelFit,
+    (y, v, x): (&[f64], &[f64], &[f64]),
+    st: &Scaled<'_>,
+    m_inv: &DMatrix<f64>,
+) {
+    let (k, p, t) = (y.len(), fit.p, fit.tau2.estimate);
+    let data = Data { y, v, x: st.x, p };
+    let orig = Data { y, v, x, p };
+    fit.weights = Vec::with_capacity(k);
+    fit.fitted = Vec::with_capacity(k);
+    fit.std_resid = Vec::with_capacity(k);
+    for i in 0..k {
+        let w = 1.0 / (v[i] + t);
+        let fi = wls::fitted(&orig, &fit.beta, i);
+        let var_r = 1.0 / w - wls::quad_form(&data, m_inv, i);
+        fit.weights.push(w);
+        fit.fitted.push(fi);
+        fit.std_resid.push(
+            (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
+                .then(|| (y[i] - fi) / var_r.sqrt()),
+        );
+    }
 }
 
 /// The Knapp–Hartung scale s² = Q/(k − p) (Knapp & Hartung 2003, *Stat.
@@ -299,6 +395,49 @@ mod tests {
         let den: f64 = (0..4).map(|i| x[i] * x[i] / v[i]).sum();
         assert!((f.beta[0] - num / den).abs() < 1e-14);
         assert!((f.cov[(0, 0)] - 1.0 / den).abs() < 1e-14);
+    }
+
+    /// The fit without per-study arrays is the same fit: every summary
+    /// number equal to the last bit, whether the matrix is given owned
+    /// (standardised in place) or borrowed (copied, or not at all for a
+    /// column of ones), with and without an intercept.
+    #[test]
+    fn summary_fit_equals_the_full_fit_bit_for_bit() {
+        let y = [0.1, 0.4, 0.35, 0.8, 0.7, 1.1, 0.2, 0.95];
+        let v = [0.02, 0.03, 0.01, 0.05, 0.02, 0.04, 0.03, 0.06];
+        let t: Vec<f64> = (0..8).map(|i| 2000.0 + i as f64 * 1.5).collect();
+        let with_intercept: Vec<f64> = t.iter().flat_map(|t| [1.0, *t, t * t]).collect();
+        let without: Vec<f64> = t.iter().flat_map(|t| [*t, (t - 2003.0).abs()]).collect();
+        let ones = vec![1.0; 8];
+        let cases: [(&[f64], usize); 3] = [(&with_intercept, 3), (&without, 2), (&ones, 1)];
+        for method in [
+            Tau2Method::Reml,
+            Tau2Method::Ml,
+            Tau2Method::Dl,
+            Tau2Method::None,
+        ] {
+            for (x, p) in cases {
+                let full = fit_parts(&y, &v, x, p, opts(method), true).unwrap();
+                let owned = fit_summary(&y, &v, Cow::Owned(x.to_vec()), p, opts(method), true);
+                let borrowed = fit_summary(&y, &v, Cow::Borrowed(x), p, opts(method), true);
+                for s in [owned.unwrap(), borrowed.unwrap()] {
+                    assert_eq!(s.tau2.estimate.to_bits(), full.tau2.estimate.to_bits());
+                    assert_eq!(s.tau2_ci, full.tau2_ci);
+                    assert_eq!(s.beta, full.beta);
+                    assert_eq!(s.cov, full.cov);
+                    assert_eq!(s.cov_model, full.cov_model);
+                    assert_eq!(s.scale_factor.to_bits(), full.scale_factor.to_bits());
+                    assert_eq!(s.q_e.to_bits(), full.q_e.to_bits());
+                    assert_eq!(s.v_typical.to_bits(), full.v_typical.to_bits());
+                    assert_eq!(
+                        s.log_likelihood.map(f64::to_bits),
+                        full.log_likelihood.map(f64::to_bits)
+                    );
+                    assert!(s.weights.is_empty() && s.fitted.is_empty() && s.std_resid.is_empty());
+                }
+                assert_eq!(full.weights.len(), 8);
+            }
+        }
     }
 
     #[test]

@@ -14,6 +14,7 @@ mod golden;
 mod heterogeneity;
 mod interpret;
 mod layout;
+mod memory;
 mod multilevel;
 mod one_stage;
 mod parquet;
