@@ -163,6 +163,9 @@ fn read_piece(
         return Outcome::Stop(());
     }
     let delimiter = shape.delimiter;
+    // A piece that is UTF-8 as a whole (the usual case) is checked once:
+    // its fields end at ASCII bytes, so each is UTF-8 too.
+    let text = std::str::from_utf8(bytes).ok();
     let mut cells = PieceCells {
         columns: vec![Texts::default(); shape.wanted.len()],
         rows: Vec::new(),
@@ -188,10 +191,14 @@ fn read_piece(
         }
         for (texts, &i) in cells.columns.iter_mut().zip(shape.wanted) {
             let (a, b) = fields[i];
-            let Ok(text) = std::str::from_utf8(&bytes[a..b]) else {
-                return Outcome::Stop(());
+            let cell = match text {
+                Some(text) => &text[a..b],
+                None => match std::str::from_utf8(&bytes[a..b]) {
+                    Ok(cell) => cell,
+                    Err(_) => return Outcome::Stop(()),
+                },
             };
-            texts.push(text.trim());
+            texts.push(trim(cell));
         }
         cells.rows.push(newlines);
     }
@@ -201,11 +208,20 @@ fn read_piece(
     }
 }
 
+/// `cell.trim()`, without its scan when the cell starts and ends with a
+/// visible ASCII character (`!` to `~`), which is never white space.
+#[inline]
+pub(super) fn trim(cell: &str) -> &str {
+    match cell.as_bytes() {
+        [first, .., last] if first.is_ascii_graphic() && last.is_ascii_graphic() => cell,
+        [only] if only.is_ascii_graphic() => cell,
+        _ => cell.trim(),
+    }
+}
+
 impl Column {
     /// Appends the cells of `texts`, in order.
     fn append(&mut self, texts: &Texts) {
-        for text in texts.iter() {
-            self.cells.push(text);
-        }
+        self.cells.append(texts);
     }
 }

@@ -51,7 +51,9 @@ fn cell(r: &mut Rng, (mark, quotes): (char, bool), odd: u64) -> Vec<u8> {
         1 => format!("-{}{mark}{:03}", r.below(50), r.below(1000)),
         2 => format!("{}{mark}{}", r.below(9), r.below(100)),
         3 => format!(" {} ", r.below(9)),
-        4 => "\u{a0}7\u{3000}".to_string(),
+        4 => r
+            .pick(&["\u{a0}7\u{3000}", "\u{b}8\u{c}", "9\u{85}"])
+            .to_string(),
         5 => r.pick(&["", "NA", "Łódź", "Zürich", "a b"]).to_string(),
         6 => format!("{}e-{}", r.below(9) + 1, r.below(5)),
         _ => format!("s{}", r.below(1000)),
@@ -307,4 +309,22 @@ fn utf16_and_blank_files_are_left_to_the_stream() {
             assert!(in_pieces.is_none());
         }
     }
+}
+
+/// The shortcut trim is `str::trim`, for every character up to U+3100
+/// alone, before and after a letter, and on both sides.
+#[test]
+fn the_shortcut_trim_is_str_trim() {
+    for c in ('\0'..='\u{3100}').chain(['\u{feff}', '\u{10ffff}']) {
+        for s in [
+            format!("{c}"),
+            format!("{c}a"),
+            format!("a{c}"),
+            format!("{c}a{c}"),
+            format!("{c}{c}"),
+        ] {
+            assert_eq!(table_pieces::trim(&s), s.trim(), "{:?}", s);
+        }
+    }
+    assert_eq!(table_pieces::trim(""), "");
 }
