@@ -432,7 +432,7 @@ pub fn parse_table_with(
 
 /// [`parse_table_with`] reading the file at `path` without holding it
 /// whole in memory: a file without any `"` is read in pieces on all of
-/// rayon's threads ([`table_pieces`]); any other (and any file whose pieces
+/// rayon's threads (`input::table_pieces`); any other (and any file whose pieces
 /// meet a problem, so that the message is the one described here) as a
 /// stream, in two passes: a first checks the encoding, an empty file, an
 /// open quote and the delimiter, a second parses the rows.

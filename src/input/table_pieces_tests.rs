@@ -255,7 +255,7 @@ fn plain_files_are_read_in_pieces() {
             if i % 97 == 0 {
                 data.extend_from_slice(b" ,\t,\r\n\n");
             }
-            write!(data, "s{i}, {} ,{}.{}\n", i % 7, seed, i).unwrap();
+            writeln!(data, "s{i}, {} ,{}.{}", i % 7, seed, i).unwrap();
         }
         std::fs::write(&path, &data).unwrap();
         let mut r = Rng(seed);
