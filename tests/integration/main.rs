@@ -17,6 +17,7 @@ mod layout;
 mod multilevel;
 mod one_stage;
 mod parquet;
+mod pieces;
 mod plan;
 mod plots;
 mod properties;
