@@ -39,6 +39,12 @@ pub(super) fn read(
     requests: &[ColumnRequest],
     size: u64,
 ) -> Option<CsvCells> {
+    // Anything but a regular file (a pipe, a device) is not even opened
+    // here: opening a pipe would wait for a writer, and reading it would
+    // take its bytes from the stream.
+    if !std::fs::metadata(path).ok()?.is_file() {
+        return None;
+    }
     let file = File::open(path).ok()?;
     let meta = file.metadata().ok()?;
     if !meta.is_file() {
