@@ -24,6 +24,7 @@ use crate::support::texts::Texts;
 use std::fs::File;
 use std::io::{Seek, SeekFrom};
 use std::path::Path;
+use std::sync::{Mutex, PoisonError};
 
 /// How many bytes at the start of the file the encoding, a `sep=X` line and
 /// the delimiter are read from (as the first pass of the streamed reading
@@ -68,17 +69,28 @@ pub(super) fn read(
         wanted: &wanted,
     };
     let (mut lines, mut blank_rows) = (Vec::new(), 0);
-    let mut merge = |piece: PieceCells, line: u64| {
+    // Merged pieces' lists, emptied, for the pieces still to read: their
+    // memory is taken once, not once per piece.
+    let spare = Mutex::new(Vec::new());
+    let mut merge = |mut piece: PieceCells, line: u64| {
         for (column, texts) in columns.iter_mut().flatten().zip(&piece.columns) {
             column.append(texts);
         }
         lines.extend(piece.rows.iter().map(|r| line + r));
         blank_rows += piece.blank_rows;
+        piece.clear();
+        spare
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .push(piece);
     };
     let stopped = pieces::read_in_pieces(
         &layout,
         Vec::new,
-        |fields, bytes| read_piece(&shape, bytes, fields),
+        |fields, bytes| {
+            let cells = spare.lock().unwrap_or_else(PoisonError::into_inner).pop();
+            read_piece(&shape, bytes, fields, cells)
+        },
         &mut merge,
     );
     if stopped.is_some() {
@@ -155,15 +167,25 @@ struct PieceCells {
     blank_rows: usize,
 }
 
-/// Reads the rows of one piece into cells of its own, as
-/// `super::read_rows` reads them: a row of blanks (and delimiters) counted
-/// and skipped, every cell of a requested column checked as UTF-8 and
-/// trimmed. Stops at a `"` in the piece, a row whose width is not the
+impl PieceCells {
+    /// Empties the lists, keeping their room.
+    fn clear(&mut self) {
+        self.columns.iter_mut().for_each(Texts::clear);
+        self.rows.clear();
+        self.blank_rows = 0;
+    }
+}
+
+/// Reads the rows of one piece into `cells` (emptied lists, or None for new
+/// ones), as `super::read_rows` reads them: a row of blanks (and
+/// delimiters) counted and skipped, every cell of a requested column
+/// checked as UTF-8 and trimmed. Stops at a `"` in the piece, a row whose width is not the
 /// header's and a cell that is not UTF-8.
 fn read_piece(
     shape: &Shape<'_>,
     bytes: &[u8],
     fields: &mut Vec<(usize, usize)>,
+    cells: Option<PieceCells>,
 ) -> Outcome<PieceCells, ()> {
     if bytes.contains(&b'"') {
         return Outcome::Stop(());
@@ -172,11 +194,11 @@ fn read_piece(
     // A piece that is UTF-8 as a whole (the usual case) is checked once:
     // its fields end at ASCII bytes, so each is UTF-8 too.
     let text = std::str::from_utf8(bytes).ok();
-    let mut cells = PieceCells {
+    let mut cells = cells.unwrap_or_else(|| PieceCells {
         columns: vec![Texts::default(); shape.wanted.len()],
         rows: Vec::new(),
         blank_rows: 0,
-    };
+    });
     let (mut newlines, mut pos) = (0u64, 0usize);
     loop {
         pos = pieces::skip_breaks(bytes, pos, &mut newlines);

@@ -78,6 +78,16 @@ impl Texts {
         }
     }
 
+    /// Removes every text, keeping the room they took (for a list that is
+    /// filled again).
+    pub fn clear(&mut self) {
+        self.text.clear();
+        match &mut self.ends {
+            Ends::Narrow(e) => e.clear(),
+            Ends::Wide(_) => self.ends = Ends::default(),
+        }
+    }
+
     /// Number of texts.
     pub fn len(&self) -> usize {
         match &self.ends {
@@ -212,6 +222,13 @@ mod tests {
         );
         let back: Vec<&str> = b.into_iter().chain(a).collect();
         assert_eq!(narrow.iter().collect::<Vec<_>>(), back);
+        // Cleared lists are empty, and filled again as new ones.
+        for mut t in [wide, narrow] {
+            t.clear();
+            assert!(t.is_empty());
+            t.append(&b.into_iter().collect());
+            assert_eq!(t, b.into_iter().collect());
+        }
     }
 
     #[test]
