@@ -101,9 +101,11 @@ pub fn run_with_detail(
 }
 
 /// [`run_with_detail`] on the CSV file, spreadsheet or Parquet file at
-/// `path` (named `source` in messages): a CSV file is read in pieces and
-/// never held whole in memory; its SHA-256 is computed on a thread of its
-/// own, which reads the file again while the table is read.
+/// `path` (named `source` in messages): a CSV file is never held whole in
+/// memory (one without quotes is read in pieces on all of rayon's threads,
+/// any other as a stream, see [`crate::input::parse_table_file`]); its
+/// SHA-256 is computed on a thread of its own, which reads the file again
+/// while the table is read.
 ///
 /// # Errors
 /// As [`run`]; [`Error::Io`] when the file cannot be read.

@@ -7,9 +7,11 @@
 mod decimal;
 pub mod number;
 pub mod parquet;
+pub(crate) mod pieces;
 mod places;
 pub mod sheet;
 mod stream;
+mod table_pieces;
 
 pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
 pub use places::Places;
@@ -428,9 +430,12 @@ pub fn parse_table_with(
     parse_csv(source, || Ok(bytes), requests, decimal)
 }
 
-/// [`parse_table_with`] reading the file at `path` in pieces, so that the
-/// file is never held whole in memory: a first pass checks the encoding, an
-/// empty file, an open quote and the delimiter, a second parses the rows.
+/// [`parse_table_with`] reading the file at `path` without holding it
+/// whole in memory: a file without any `"` is read in pieces on all of
+/// rayon's threads (`input::table_pieces`); any other (and any file whose pieces
+/// meet a problem, so that the message is the one described here) as a
+/// stream, in two passes: a first checks the encoding, an empty file, an
+/// open quote and the delimiter, a second parses the rows.
 ///
 /// # Errors
 /// Those of [`parse_table`]; [`Error::Io`] when the file cannot be read.
@@ -440,8 +445,35 @@ pub fn parse_table_file(
     requests: &[ColumnRequest],
     decimal: Option<DecimalMark>,
 ) -> Result<Table> {
+    parse_table_file_in(source, path, requests, decimal, pieces::PIECE)
+}
+
+/// [`parse_table_file`] with pieces of `size` bytes (≥ 1).
+///
+/// # Errors
+/// As [`parse_table_file`].
+pub(crate) fn parse_table_file_in(
+    source: &str,
+    path: &Path,
+    requests: &[ColumnRequest],
+    decimal: Option<DecimalMark>,
+    size: u64,
+) -> Result<Table> {
+    if let Some(cells) = table_pieces::read(source, path, requests, size) {
+        return finish_table(source, requests, decimal, cells);
+    }
     let open = || std::fs::File::open(path).map_err(|e| stream::io_error(source, e));
     parse_csv(source, open, requests, decimal)
+}
+
+/// The requested cells of a CSV table, before the decimal mark is chosen.
+struct CsvCells {
+    delimiter: u8,
+    headers: Vec<String>,
+    columns: Vec<Option<Column>>,
+    /// File line of each data row.
+    lines: Vec<u64>,
+    blank_rows: usize,
 }
 
 /// [`parse_table_with`] over the bytes that `open` gives (called twice,
@@ -466,7 +498,25 @@ fn parse_csv<R: Read>(
         &indices,
         &mut columns,
     )?;
-    if rows.lines.is_empty() {
+    let cells = CsvCells {
+        delimiter,
+        headers,
+        columns,
+        lines: rows.lines,
+        blank_rows: rows.blank_rows,
+    };
+    finish_table(source, requests, decimal, cells)
+}
+
+/// The table of a CSV file's cells: refuses a file without data rows and
+/// chooses the decimal mark ([`choose_decimal`]).
+fn finish_table(
+    source: &str,
+    requests: &[ColumnRequest],
+    decimal: Option<DecimalMark>,
+    mut cells: CsvCells,
+) -> Result<Table> {
+    if cells.lines.is_empty() {
         return Err(format_error(
             source,
             "the file has a header row but no data rows; add one row per study",
@@ -475,19 +525,19 @@ fn parse_csv<R: Read>(
     let labels: Vec<bool> = requests.iter().map(|r| r.label).collect();
     let decimal = choose_decimal(
         source,
-        delimiter,
+        cells.delimiter,
         decimal,
-        &mut columns,
+        &mut cells.columns,
         &labels,
-        &rows.lines,
+        &cells.lines,
     )?;
     Ok(Table {
         source: source.to_string(),
-        delimiter,
-        headers,
-        columns,
-        lines: rows.lines,
-        blank_rows: rows.blank_rows,
+        delimiter: cells.delimiter,
+        headers: cells.headers,
+        columns: cells.columns,
+        lines: cells.lines,
+        blank_rows: cells.blank_rows,
         sheet: None,
         decimal,
     })
@@ -716,5 +766,7 @@ fn read_rows<R: Read>(
     Ok(Rows { lines, blank_rows })
 }
 
+#[cfg(test)]
+mod table_pieces_tests;
 #[cfg(test)]
 mod tests;

@@ -1,4 +1,6 @@
-//! A CSV file of participant rows read in pieces on all of rayon's threads.
+//! A CSV file of participant rows read in pieces on all of rayon's threads,
+//! with the machinery that the table reader of `pondus fit` shares
+//! ([`crate::input::pieces`]).
 //!
 //! The data after the header is cut into pieces of [`PIECE`] bytes, each
 //! boundary moved on to the next line break, so the pieces depend on the file
@@ -29,204 +31,17 @@ use super::plain;
 use super::read::{self, PassSummary, Plan, RowColumns, RowSink, RowState, Tally};
 use super::records::{CsvRecords, Records};
 use crate::error::{Error, Result};
-use std::collections::BTreeMap;
+use crate::input::pieces::{self, read_exact_at, Halt, Layout, Outcome, Stopped, PIECE};
 use std::fs::File;
 use std::io::{Seek, SeekFrom};
-use std::sync::{Condvar, Mutex, PoisonError};
 
-/// Bytes per piece (before the boundary moves on to a line break): large
-/// enough that merging a piece's per-site sums (1,000 sites: tens of
-/// microseconds) is negligible next to reading it, small enough that the
-/// buffer stays in a core's cache and two threads share the work evenly.
-pub const PIECE: u64 = 1 << 20;
-
-/// How many pieces past the next one to merge a thread may start: bounds the
-/// sums waiting to be merged when one thread falls behind.
-const AHEAD_PER_THREAD: usize = 4;
-
-/// Reads `buf.len()` bytes of `file` from `offset`.
-fn read_exact_at(file: &File, buf: &mut [u8], offset: u64) -> std::io::Result<()> {
-    #[cfg(unix)]
-    {
-        std::os::unix::fs::FileExt::read_exact_at(file, buf, offset)
-    }
-    #[cfg(not(unix))]
-    {
-        use std::io::Read;
-        let mut f = file;
-        f.seek(SeekFrom::Start(offset))?;
-        f.read_exact(buf)
-    }
-}
-
-/// The bytes of a file around one piece, in a buffer reused across pieces.
-struct PieceReader<'a> {
-    file: &'a File,
-    len: u64,
-    /// Bytes per piece ([`PIECE`]).
-    size: u64,
-    buf: Vec<u8>,
-    /// File offset of `buf[0]`.
-    at: u64,
-}
-
-impl PieceReader<'_> {
-    /// Fills the buffer with the file's bytes `from..to` (`to` ≤ length).
-    fn load(&mut self, from: u64, to: u64) -> std::io::Result<()> {
-        self.at = from;
-        // Only the growth is zeroed: the bytes kept are overwritten below.
-        self.buf.resize((to - from) as usize, 0);
-        read_exact_at(self.file, &mut self.buf, from)
-    }
-
-    /// The byte at `pos` (≥ the loaded start), reading on when needed; None
-    /// past the end of the file.
-    fn byte(&mut self, pos: u64) -> std::io::Result<Option<u8>> {
-        if pos >= self.len {
-            return Ok(None);
-        }
-        let end = self.at + self.buf.len() as u64;
-        if pos >= end {
-            let to = (pos + 1).max(end + (1 << 16)).min(self.len);
-            let old = self.buf.len();
-            self.buf.resize((to - self.at) as usize, 0);
-            read_exact_at(self.file, &mut self.buf[old..], end)?;
-        }
-        Ok(Some(self.buf[(pos - self.at) as usize]))
-    }
-
-    /// The first line start at or after `t` (≥ 1): a position right after
-    /// `\n`, or after a `\r` not followed by `\n`; the file's length if none.
-    fn boundary(&mut self, t: u64) -> std::io::Result<u64> {
-        let mut b = t;
-        while b < self.len {
-            match self.byte(b - 1)? {
-                Some(b'\n') => return Ok(b),
-                Some(b'\r') if self.byte(b)? != Some(b'\n') => return Ok(b),
-                _ => b += 1,
-            }
-        }
-        Ok(self.len)
-    }
-
-    /// Loads piece `j` of a file whose data start at `data_start`; returns
-    /// its file offsets.
-    fn piece(&mut self, j: u64, data_start: u64) -> std::io::Result<(u64, u64)> {
-        let size = self.size;
-        let from = if j == 0 {
-            data_start.min(size - 1)
-        } else {
-            j * size - 1
-        };
-        self.load(from, ((j + 1) * size + 1).min(self.len).max(from))?;
-        let start = if j == 0 {
-            data_start
-        } else {
-            self.boundary(j * size)?.max(data_start)
-        };
-        let end = if (j + 1) * size >= self.len {
-            self.len
-        } else {
-            self.boundary((j + 1) * size)?.max(data_start)
-        };
-        if end > start {
-            // Reads on to the end of the piece when it lies beyond the
-            // bytes loaded (a header longer than a piece).
-            self.byte(end - 1)?;
-        }
-        Ok((start, end.max(start)))
-    }
-
-    /// The loaded bytes at file offsets `start..end`.
-    fn bytes(&self, start: u64, end: u64) -> &[u8] {
-        if end <= start {
-            return &[];
-        }
-        &self.buf[(start - self.at) as usize..(end - self.at) as usize]
-    }
-}
-
-/// What reading one piece gave.
-enum Piece<S> {
-    /// Its rows' sink, counts and line breaks.
-    Done {
-        sink: S,
-        tally: Tally,
-        newlines: u64,
-    },
-    /// It holds a quote: the rest of the file is read as a stream.
-    Quoted { start: u64 },
-    /// It stopped with an error (lines numbered within the piece).
-    Failed { start: u64, end: u64, error: Error },
-    /// Reading it failed.
-    Io(Error),
-}
-
-/// Why the parallel reading stopped before the end.
+/// Why a piece stopped the reading in pieces.
 enum Stop {
-    /// A piece with a quote, starting at `start` on line `line`.
-    Tail { start: u64, line: u64 },
-    /// A piece that failed, read again with its first line known.
-    Rerun {
-        start: u64,
-        end: u64,
-        line: u64,
-        error: Error,
-    },
-    /// An error that needs no line.
-    Error(Error),
-}
-
-/// What the threads share: the next piece to start and to merge, the pieces
-/// waiting to be merged, and the merged counts.
-struct Shared<S, M> {
-    next_take: u64,
-    next_merge: u64,
-    pending: BTreeMap<u64, Piece<S>>,
-    stop: Option<Stop>,
-    tally: Tally,
-    /// The line the piece `next_merge` starts on.
-    line: u64,
-    merge: M,
-}
-
-impl<S, M: FnMut(S)> Shared<S, M> {
-    /// Merges the pieces that are next in file order.
-    fn drain(&mut self) {
-        while self.stop.is_none() {
-            let Some(piece) = self.pending.remove(&self.next_merge) else {
-                return;
-            };
-            match piece {
-                Piece::Done {
-                    sink,
-                    tally,
-                    newlines,
-                } => {
-                    self.tally.absorb(tally, self.line);
-                    (self.merge)(sink);
-                    self.line += newlines;
-                    self.next_merge += 1;
-                }
-                Piece::Quoted { start } => {
-                    self.stop = Some(Stop::Tail {
-                        start,
-                        line: self.line,
-                    })
-                }
-                Piece::Failed { start, end, error } => {
-                    self.stop = Some(Stop::Rerun {
-                        start,
-                        end,
-                        line: self.line,
-                        error,
-                    })
-                }
-                Piece::Io(e) => self.stop = Some(Stop::Error(e)),
-            }
-        }
-        self.pending.clear();
-    }
+    /// It holds a quote: the rest of the file is read as a stream.
+    Quoted,
+    /// It stopped with an error (lines numbered within the piece): it is
+    /// read again with its first line known.
+    Failed(Error),
 }
 
 /// What every thread reads with.
@@ -235,12 +50,6 @@ struct Job<'a> {
     plan: &'a Plan,
     cols: &'a RowColumns,
     file: &'a File,
-    len: u64,
-    data_start: u64,
-    /// Bytes per piece, and the number of pieces.
-    size: u64,
-    pieces: u64,
-    ahead: u64,
 }
 
 /// What a field of a row is read as, in a row read in one sweep.
@@ -296,7 +105,7 @@ pub(super) fn for_each_piece_of<S: RowSink>(
     (file, size): (File, u64),
     cols: &RowColumns,
     make: impl Fn() -> S + Sync,
-    merge: impl FnMut(S) + Send,
+    mut merge: impl FnMut(S) + Send,
 ) -> Result<PassSummary> {
     let io = |e| read::io_error(source, e);
     let meta = file.metadata().map_err(io)?;
@@ -314,53 +123,52 @@ pub(super) fn for_each_piece_of<S: RowSink>(
     drop(records);
     let mut head = vec![0; data_start as usize];
     read_exact_at(&file, &mut head, 0).map_err(io)?;
-    let first_line = 1 + head.iter().filter(|&&b| b == b'\n').count() as u64;
-    let threads = rayon::current_num_threads().max(1);
+    let layout = Layout {
+        file: &file,
+        len: meta.len(),
+        data_start,
+        first_line: 1 + pieces::newlines(&head),
+        size,
+    };
     let job = Job {
         source,
         plan: &plan,
         cols,
         file: &file,
-        len: meta.len(),
-        data_start,
-        size,
-        pieces: meta.len().div_ceil(size),
-        ahead: (AHEAD_PER_THREAD * threads) as u64,
     };
-    let shared = Mutex::new(Shared {
-        next_take: 0,
-        next_merge: 0,
-        pending: BTreeMap::new(),
-        stop: None,
-        tally: Tally::default(),
-        line: first_line,
-        merge,
-    });
-    let turn = Condvar::new();
-    rayon::scope(|s| {
-        for _ in 0..threads {
-            s.spawn(|_| worker(&job, &shared, &turn, &make));
-        }
-    });
-    let shared = shared.into_inner().unwrap_or_else(PoisonError::into_inner);
-    let (mut tally, mut merge) = (shared.tally, shared.merge);
-    match shared.stop {
-        None => {}
-        Some(Stop::Error(e)) => return Err(e),
-        Some(Stop::Rerun {
-            start,
-            end,
-            line,
-            error,
-        }) => {
-            return Err(rerun(&job, (start, end), line, &make)
-                .err()
-                .unwrap_or(error))
-        }
-        Some(Stop::Tail { start, line }) => {
-            let (sink, rest) = tail(&job, start, line, &make)?;
-            tally.absorb(rest, 0);
-            merge(sink);
+    let mut tally = Tally::default();
+    let mut merge_piece = |(sink, piece): (S, Tally), line: u64| {
+        tally.absorb(piece, line);
+        merge(sink);
+    };
+    let stopped = pieces::read_in_pieces(
+        &layout,
+        || Scratch {
+            state: RowState::new(&plan, cols),
+            record: csv::ByteRecord::new(),
+            fields: Vec::new(),
+        },
+        |scratch, bytes| read_piece(&job, bytes, scratch, &make),
+        &mut merge_piece,
+    );
+    if let Some(Stopped {
+        start,
+        end,
+        line,
+        why,
+    }) = stopped
+    {
+        match why {
+            Halt::Io(e) => return Err(io(e)),
+            Halt::Piece(Stop::Failed(error)) => {
+                return Err(rerun(&job, (start, end), line, &make)
+                    .err()
+                    .unwrap_or(error))
+            }
+            Halt::Piece(Stop::Quoted) => {
+                let (sink, rest) = tail(&job, start, line, &make)?;
+                merge_piece((sink, rest), 0);
+            }
         }
     }
     read::finish(source, tally, RowState::new(&plan, cols), plan.delimiter)
@@ -383,73 +191,24 @@ fn streamed<S: RowSink>(
     Ok(summary)
 }
 
-/// One thread: takes the next piece, reads it, hands it in for merging,
-/// until the pieces run out or the reading stopped.
-fn worker<S: RowSink, M: FnMut(S) + Send>(
-    job: &Job<'_>,
-    shared: &Mutex<Shared<S, M>>,
-    turn: &Condvar,
-    make: &(impl Fn() -> S + Sync),
-) {
-    let mut reader = PieceReader {
-        file: job.file,
-        len: job.len,
-        size: job.size,
-        buf: Vec::new(),
-        at: 0,
-    };
-    let mut scratch = Scratch {
-        state: RowState::new(job.plan, job.cols),
-        record: csv::ByteRecord::new(),
-        fields: Vec::new(),
-    };
-    loop {
-        let j = {
-            let mut g = shared.lock().unwrap_or_else(PoisonError::into_inner);
-            loop {
-                if g.stop.is_some() || g.next_take >= job.pieces {
-                    return;
-                }
-                if g.next_take < g.next_merge + job.ahead {
-                    g.next_take += 1;
-                    break g.next_take - 1;
-                }
-                g = turn.wait(g).unwrap_or_else(PoisonError::into_inner);
-            }
-        };
-        let piece = read_piece(job, j, &mut reader, &mut scratch, make);
-        let mut g = shared.lock().unwrap_or_else(PoisonError::into_inner);
-        g.pending.insert(j, piece);
-        g.drain();
-        drop(g);
-        turn.notify_all();
-    }
-}
-
-/// Reads piece `j` (its lines numbered from 0).
+/// Reads one piece's bytes (its lines numbered from 0) into a sink of its
+/// own; stops at a piece that holds a quote or a row in error.
 fn read_piece<S: RowSink>(
     job: &Job<'_>,
-    j: u64,
-    reader: &mut PieceReader<'_>,
+    bytes: &[u8],
     scratch: &mut Scratch,
     make: &impl Fn() -> S,
-) -> Piece<S> {
-    let (start, end) = match reader.piece(j, job.data_start) {
-        Ok(r) => r,
-        Err(e) => return Piece::Io(read::io_error(job.source, e)),
-    };
-    let bytes = reader.bytes(start, end);
+) -> Outcome<(S, Tally), Stop> {
     if bytes.contains(&b'"') {
-        return Piece::Quoted { start };
+        return Outcome::Stop(Stop::Quoted);
     }
     let mut sink = make();
     match run_piece(job, bytes, 0, &mut sink, scratch) {
-        Ok((tally, newlines)) => Piece::Done {
-            sink,
-            tally,
+        Ok((tally, newlines)) => Outcome::Done {
+            sink: (sink, tally),
             newlines,
         },
-        Err(error) => Piece::Failed { start, end, error },
+        Err(error) => Outcome::Stop(Stop::Failed(error)),
     }
 }
 
@@ -528,18 +287,10 @@ fn run_piece<S: RowSink>(
     let sweep = roles(plan).filter(|_| plain_numbers);
     let mut tally = Tally::default();
     let (mut newlines, mut pos) = (0u64, 0usize);
-    while pos < bytes.len() {
-        match bytes[pos] {
-            b'\n' => {
-                newlines += 1;
-                pos += 1;
-                continue;
-            }
-            b'\r' => {
-                pos += 1;
-                continue;
-            }
-            _ => {}
+    loop {
+        pos = pieces::skip_breaks(bytes, pos, &mut newlines);
+        if pos >= bytes.len() {
+            break;
         }
         if let Some(roles) = &sweep {
             let values = &mut scratch.state.values;
@@ -550,18 +301,7 @@ fn run_piece<S: RowSink>(
             }
         }
         let fields = &mut scratch.fields;
-        fields.clear();
-        let mut from = pos;
-        while let Some(&b) = bytes.get(pos) {
-            if b == delimiter {
-                fields.push((from, pos));
-                from = pos + 1;
-            } else if b == b'\n' || b == b'\r' {
-                break;
-            }
-            pos += 1;
-        }
-        fields.push((from, pos));
+        pos = pieces::split_line(bytes, pos, delimiter, fields);
         if plain_numbers && plain_row(plan, bytes, fields, &mut scratch.state.values, sink) {
             tally.rows += 1;
             continue;

@@ -54,6 +54,40 @@ impl Texts {
         }
     }
 
+    /// Appends the texts of `other`, in order (one copy of its text and
+    /// of its ends, moved by the text already here).
+    pub fn append(&mut self, other: &Texts) {
+        let shift = self.text.len();
+        self.text.push_str(&other.text);
+        let wide = |e: &[u32]| e.iter().map(|&x| x as usize + shift).collect::<Vec<_>>();
+        match (&mut self.ends, &other.ends) {
+            (Ends::Narrow(e), Ends::Narrow(o)) if u32::try_from(self.text.len()).is_ok() => {
+                // Every moved end is at most the new length, which fits.
+                e.extend(o.iter().map(|&x| x + shift as u32));
+            }
+            (Ends::Wide(e), Ends::Narrow(o)) => e.extend(wide(o)),
+            (Ends::Wide(e), Ends::Wide(o)) => e.extend(o.iter().map(|&x| x + shift)),
+            (Ends::Narrow(e), o) => {
+                let mut all: Vec<usize> = e.iter().map(|&x| x as usize).collect();
+                match o {
+                    Ends::Narrow(o) => all.extend(wide(o)),
+                    Ends::Wide(o) => all.extend(o.iter().map(|&x| x + shift)),
+                }
+                self.ends = Ends::Wide(all);
+            }
+        }
+    }
+
+    /// Removes every text, keeping the room they took (for a list that is
+    /// filled again).
+    pub fn clear(&mut self) {
+        self.text.clear();
+        match &mut self.ends {
+            Ends::Narrow(e) => e.clear(),
+            Ends::Wide(_) => self.ends = Ends::default(),
+        }
+    }
+
     /// Number of texts.
     pub fn len(&self) -> usize {
         match &self.ends {
@@ -163,6 +197,38 @@ mod tests {
         assert_eq!(&t[2], "ccc");
         assert_eq!(t.to_vec()[3], "é");
         assert!(Texts::default().is_empty());
+    }
+
+    #[test]
+    fn appended_texts_come_back_as_pushed() {
+        let a = ["ab", "", "c"];
+        let b = ["", "dé", "f", ""];
+        let mut t: Texts = a.into_iter().collect();
+        t.append(&b.into_iter().collect());
+        t.append(&Texts::default());
+        let pushed: Texts = a.into_iter().chain(b).collect();
+        assert_eq!(t, pushed);
+        // Appending to and from wide ends.
+        let mut wide: Texts = a.into_iter().collect();
+        if let Ends::Narrow(e) = &wide.ends {
+            wide.ends = Ends::Wide(e.iter().map(|&x| x as usize).collect());
+        }
+        let mut narrow: Texts = b.into_iter().collect();
+        narrow.append(&wide);
+        wide.append(&b.into_iter().collect());
+        assert_eq!(
+            wide.iter().collect::<Vec<_>>(),
+            pushed.iter().collect::<Vec<_>>()
+        );
+        let back: Vec<&str> = b.into_iter().chain(a).collect();
+        assert_eq!(narrow.iter().collect::<Vec<_>>(), back);
+        // Cleared lists are empty, and filled again as new ones.
+        for mut t in [wide, narrow] {
+            t.clear();
+            assert!(t.is_empty());
+            t.append(&b.into_iter().collect());
+            assert_eq!(t, b.into_iter().collect());
+        }
     }
 
     #[test]

@@ -18,6 +18,7 @@ mod memory;
 mod multilevel;
 mod one_stage;
 mod parquet;
+mod pieces;
 mod plan;
 mod plots;
 mod properties;

@@ -1,0 +1,109 @@
+//! The table of a CSV file read in pieces on all threads (issue 20) is the
+//! streamed reading's: the same report and the same messages through the
+//! command line, on a file of more than two 1 MiB pieces.
+
+use assert_cmd::Command;
+
+/// Invented rows (for this test only): `n` studies over more than one
+/// 1 MiB piece, with CRLF line ends, a blank line now and then and no line
+/// break after the last row.
+fn invented_large_csv(n: usize) -> String {
+    let mut s = String::from("study,effect,variance,m\r\n");
+    for i in 0..n {
+        if i % 997 == 0 {
+            s.push_str(" , ,,\r\n");
+        }
+        let x = (i as f64 * 0.37).sin();
+        s.push_str(&format!(
+            "study number {i:06} of an invented set,{:.6},{:.6},{:.4}\r\n",
+            0.2 + 0.1 * x + 0.05 * (i as f64 * 1.3).cos(),
+            0.01 + 0.005 * (1.0 + x),
+            x
+        ));
+    }
+    s.truncate(s.len() - 2);
+    s
+}
+
+/// `pondus fit` on the file `csv` (read in pieces on all threads when it
+/// holds no quote) and on the same bytes from standard input (read as a
+/// stream): the JSON without the file's name, or the message with the
+/// file's name as standard input's.
+fn fit_json_both_ways(csv: &[u8]) -> [Result<serde_json::Value, String>; 2] {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("data.csv");
+    std::fs::write(&path, csv).unwrap();
+    let run = |input: &str, out: &str| {
+        let out = dir.path().join(out);
+        let o = Command::cargo_bin("pondus")
+            .unwrap()
+            .arg("fit")
+            .arg(input)
+            .args(["--moderator", "m", "--quiet", "--json"])
+            .arg(&out)
+            .write_stdin(csv.to_vec())
+            .output()
+            .unwrap();
+        let stderr = String::from_utf8_lossy(&o.stderr).replace(path.to_str().unwrap(), "<stdin>");
+        if !o.status.success() {
+            return Err(stderr);
+        }
+        let mut v: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out).unwrap()).unwrap();
+        v["input"]["file"] = serde_json::Value::Null;
+        Ok(v)
+    };
+    [
+        run(path.to_str().unwrap(), "file.json"),
+        run("-", "stdin.json"),
+    ]
+}
+
+/// The file line (1-based) of the byte at `at`.
+fn line_of(bytes: &[u8], at: usize) -> usize {
+    1 + bytes[..at].iter().filter(|&&b| b == b'\n').count()
+}
+
+/// Issue 20: a CSV file without quotes is read in pieces on all threads;
+/// its report, and its messages for a ragged row or a label that is not
+/// UTF-8 far into the file, are those of the streamed reading.
+#[test]
+fn issue_20_a_file_read_in_pieces_reports_as_the_stream() {
+    let csv = invented_large_csv(40_000).into_bytes();
+    assert!(csv.len() > 2 << 20, "more than two pieces");
+    let [file, stdin] = fit_json_both_ways(&csv);
+    let file = file.unwrap();
+    assert_eq!(file["input"]["rows"], 40_000);
+    assert_eq!(Ok(file), stdin);
+    let row = |i: usize| {
+        let label = format!("study number {i:06} of an invented set,");
+        csv.windows(label.len())
+            .position(|w| w == label.as_bytes())
+            .unwrap()
+    };
+    // A delimiter lost far into the file.
+    let mut ragged = csv.clone();
+    let at = row(25_003) + 38;
+    assert_eq!(ragged[at], b',');
+    ragged[at] = b';';
+    let [file, stdin] = fit_json_both_ways(&ragged);
+    let message = file.unwrap_err();
+    let want = format!(
+        "line {} has 3 fields but the header has 4",
+        line_of(&csv, at)
+    );
+    assert!(message.contains(&want), "{message}");
+    assert_eq!(Err(message), stdin);
+    // A label byte that is not UTF-8, later still.
+    let mut bad = csv.clone();
+    let at = row(38_000) + 4;
+    bad[at] = 0xff;
+    let [file, stdin] = fit_json_both_ways(&bad);
+    let message = file.unwrap_err();
+    let want = format!(
+        "line {}, column 'study' is not valid UTF-8",
+        line_of(&csv, at)
+    );
+    assert!(message.contains(&want), "{message}");
+    assert_eq!(Err(message), stdin);
+}
