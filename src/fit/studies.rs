@@ -14,6 +14,7 @@ use crate::input::{Delimiter, Places, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
+use crate::support::pieces;
 use crate::support::texts::Texts;
 use std::borrow::Cow;
 use std::collections::BTreeMap;
@@ -153,7 +154,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         pick_f64(effects.v, &included),
     );
     check_range(source, &y, &v, &included, (&table.lines, &places))?;
-    let labels: Texts = included.iter().map(|&i| label(&table, i)).collect();
+    let labels = labels(&table, &included);
     release(&mut table, 0..1);
     Ok(Studies {
         y,
@@ -337,6 +338,26 @@ fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, 
         .into_iter()
         .filter_map(|(row, text)| included.binary_search(&row).ok().map(|pos| (pos, text)))
         .collect()
+}
+
+/// The labels of the `included` rows, made in the fixed pieces of
+/// [`pieces`] on every core and joined in row order.
+fn labels(table: &Table, included: &[usize]) -> Texts {
+    let mut parts = pieces::map(included.len(), |rows| {
+        included[rows]
+            .iter()
+            .map(|&i| label(table, i))
+            .collect::<Texts>()
+    });
+    if parts.len() == 1 {
+        return parts.pop().unwrap_or_default();
+    }
+    let mut all = Texts::default();
+    all.reserve(included.len(), parts.iter().map(Texts::bytes).sum());
+    for part in &parts {
+        all.append(part);
+    }
+    all
 }
 
 /// The label of row `i`: the label cell, or "line N" when it (or the

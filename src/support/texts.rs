@@ -40,7 +40,45 @@ impl Texts {
     /// Appends `s`.
     pub fn push(&mut self, s: &str) {
         self.text.push_str(s);
-        let end = self.text.len();
+        self.push_end(self.text.len());
+    }
+
+    /// Appends every text of `other`, in order.
+    pub fn append(&mut self, other: &Texts) {
+        let offset = self.text.len();
+        self.text.push_str(&other.text);
+        match (&mut self.ends, &other.ends) {
+            // Both narrow and the joined text still under 4 GiB: every end
+            // moves by the same offset, which fits in 4 bytes.
+            (Ends::Narrow(mine), Ends::Narrow(theirs))
+                if u32::try_from(self.text.len()).is_ok() =>
+            {
+                let offset = offset as u32;
+                mine.extend(theirs.iter().map(|&end| end + offset));
+            }
+            (_, Ends::Narrow(e)) => e
+                .iter()
+                .for_each(|&end| self.push_end(offset + end as usize)),
+            (_, Ends::Wide(e)) => e.iter().for_each(|&end| self.push_end(offset + end)),
+        }
+    }
+
+    /// Makes room for `texts` more texts of `bytes` bytes in all.
+    pub fn reserve(&mut self, texts: usize, bytes: usize) {
+        self.text.reserve(bytes);
+        match &mut self.ends {
+            Ends::Narrow(e) => e.reserve(texts),
+            Ends::Wide(e) => e.reserve(texts),
+        }
+    }
+
+    /// The bytes of all the texts together.
+    pub fn bytes(&self) -> usize {
+        self.text.len()
+    }
+
+    /// Records the end of the text just appended.
+    fn push_end(&mut self, end: usize) {
         match &mut self.ends {
             Ends::Narrow(e) => match u32::try_from(end) {
                 Ok(end) => e.push(end),
@@ -174,5 +212,31 @@ mod tests {
         }
         t.push("de");
         assert_eq!(t.iter().collect::<Vec<_>>(), ["ab", "c", "de"]);
+    }
+
+    #[test]
+    fn appended_texts_equal_the_texts_pushed_one_by_one() {
+        let (a, b) = (["x", "", "yz"], ["é", "", "uvw", "q"]);
+        let mut joined: Texts = a.into_iter().collect();
+        let second: Texts = b.into_iter().collect();
+        joined.reserve(second.len(), second.bytes());
+        joined.append(&second);
+        let pushed: Texts = a.into_iter().chain(b).collect();
+        assert_eq!(joined, pushed);
+        assert_eq!(joined.bytes(), 3 + 2 + 3 + 1);
+        // Wide ends on either side.
+        let mut wide = second.clone();
+        if let Ends::Narrow(e) = &wide.ends {
+            wide.ends = Ends::Wide(e.iter().map(|&x| x as usize).collect());
+        }
+        let mut joined: Texts = a.into_iter().collect();
+        joined.append(&wide);
+        assert_eq!(
+            joined.iter().collect::<Vec<_>>(),
+            pushed.iter().collect::<Vec<_>>()
+        );
+        wide.append(&second);
+        assert_eq!(wide.len(), 8);
+        assert_eq!(&wide[7], "q");
     }
 }
