@@ -227,10 +227,9 @@ impl<'a> Coder<'a> {
                     out[start] = if *centered { x - mean } else { x };
                 }
                 (ModeratorKind::Categorical { levels, .. }, Coded::Level(code)) => {
-                    let mut c = start;
-                    for l in (0..levels.len()).filter(|&l| l != self.references[j]) {
-                        out[c] = if l == code { 1.0 } else { 0.0 };
-                        c += 1;
+                    let dummies = (0..levels.len()).filter(|&l| l != self.references[j]);
+                    for (o, l) in out[start..end].iter_mut().zip(dummies) {
+                        *o = if l == code { 1.0 } else { 0.0 };
                     }
                 }
                 // A number for a categorical moderator or a level for a
