@@ -40,45 +40,7 @@ impl Texts {
     /// Appends `s`.
     pub fn push(&mut self, s: &str) {
         self.text.push_str(s);
-        self.push_end(self.text.len());
-    }
-
-    /// Appends every text of `other`, in order.
-    pub fn append(&mut self, other: &Texts) {
-        let offset = self.text.len();
-        self.text.push_str(&other.text);
-        match (&mut self.ends, &other.ends) {
-            // Both narrow and the joined text still under 4 GiB: every end
-            // moves by the same offset, which fits in 4 bytes.
-            (Ends::Narrow(mine), Ends::Narrow(theirs))
-                if u32::try_from(self.text.len()).is_ok() =>
-            {
-                let offset = offset as u32;
-                mine.extend(theirs.iter().map(|&end| end + offset));
-            }
-            (_, Ends::Narrow(e)) => e
-                .iter()
-                .for_each(|&end| self.push_end(offset + end as usize)),
-            (_, Ends::Wide(e)) => e.iter().for_each(|&end| self.push_end(offset + end)),
-        }
-    }
-
-    /// Makes room for `texts` more texts of `bytes` bytes in all.
-    pub fn reserve(&mut self, texts: usize, bytes: usize) {
-        self.text.reserve(bytes);
-        match &mut self.ends {
-            Ends::Narrow(e) => e.reserve(texts),
-            Ends::Wide(e) => e.reserve(texts),
-        }
-    }
-
-    /// The bytes of all the texts together.
-    pub fn bytes(&self) -> usize {
-        self.text.len()
-    }
-
-    /// Records the end of the text just appended.
-    fn push_end(&mut self, end: usize) {
+        let end = self.text.len();
         match &mut self.ends {
             Ends::Narrow(e) => match u32::try_from(end) {
                 Ok(end) => e.push(end),
@@ -89,6 +51,40 @@ impl Texts {
                 }
             },
             Ends::Wide(e) => e.push(end),
+        }
+    }
+
+    /// Appends the texts of `other`, in order (one copy of its text and
+    /// of its ends, moved by the text already here).
+    pub fn append(&mut self, other: &Texts) {
+        let shift = self.text.len();
+        self.text.push_str(&other.text);
+        let wide = |e: &[u32]| e.iter().map(|&x| x as usize + shift).collect::<Vec<_>>();
+        match (&mut self.ends, &other.ends) {
+            (Ends::Narrow(e), Ends::Narrow(o)) if u32::try_from(self.text.len()).is_ok() => {
+                // Every moved end is at most the new length, which fits.
+                e.extend(o.iter().map(|&x| x + shift as u32));
+            }
+            (Ends::Wide(e), Ends::Narrow(o)) => e.extend(wide(o)),
+            (Ends::Wide(e), Ends::Wide(o)) => e.extend(o.iter().map(|&x| x + shift)),
+            (Ends::Narrow(e), o) => {
+                let mut all: Vec<usize> = e.iter().map(|&x| x as usize).collect();
+                match o {
+                    Ends::Narrow(o) => all.extend(wide(o)),
+                    Ends::Wide(o) => all.extend(o.iter().map(|&x| x + shift)),
+                }
+                self.ends = Ends::Wide(all);
+            }
+        }
+    }
+
+    /// Removes every text, keeping the room they took (for a list that is
+    /// filled again).
+    pub fn clear(&mut self) {
+        self.text.clear();
+        match &mut self.ends {
+            Ends::Narrow(e) => e.clear(),
+            Ends::Wide(_) => self.ends = Ends::default(),
         }
     }
 
@@ -204,6 +200,38 @@ mod tests {
     }
 
     #[test]
+    fn appended_texts_come_back_as_pushed() {
+        let a = ["ab", "", "c"];
+        let b = ["", "dé", "f", ""];
+        let mut t: Texts = a.into_iter().collect();
+        t.append(&b.into_iter().collect());
+        t.append(&Texts::default());
+        let pushed: Texts = a.into_iter().chain(b).collect();
+        assert_eq!(t, pushed);
+        // Appending to and from wide ends.
+        let mut wide: Texts = a.into_iter().collect();
+        if let Ends::Narrow(e) = &wide.ends {
+            wide.ends = Ends::Wide(e.iter().map(|&x| x as usize).collect());
+        }
+        let mut narrow: Texts = b.into_iter().collect();
+        narrow.append(&wide);
+        wide.append(&b.into_iter().collect());
+        assert_eq!(
+            wide.iter().collect::<Vec<_>>(),
+            pushed.iter().collect::<Vec<_>>()
+        );
+        let back: Vec<&str> = b.into_iter().chain(a).collect();
+        assert_eq!(narrow.iter().collect::<Vec<_>>(), back);
+        // Cleared lists are empty, and filled again as new ones.
+        for mut t in [wide, narrow] {
+            t.clear();
+            assert!(t.is_empty());
+            t.append(&b.into_iter().collect());
+            assert_eq!(t, b.into_iter().collect());
+        }
+    }
+
+    #[test]
     fn wide_ends_keep_the_texts() {
         // The switch from 4-byte to 8-byte ends, forced on a small list.
         let mut t: Texts = ["ab", "c"].into_iter().collect();
@@ -212,31 +240,5 @@ mod tests {
         }
         t.push("de");
         assert_eq!(t.iter().collect::<Vec<_>>(), ["ab", "c", "de"]);
-    }
-
-    #[test]
-    fn appended_texts_equal_the_texts_pushed_one_by_one() {
-        let (a, b) = (["x", "", "yz"], ["é", "", "uvw", "q"]);
-        let mut joined: Texts = a.into_iter().collect();
-        let second: Texts = b.into_iter().collect();
-        joined.reserve(second.len(), second.bytes());
-        joined.append(&second);
-        let pushed: Texts = a.into_iter().chain(b).collect();
-        assert_eq!(joined, pushed);
-        assert_eq!(joined.bytes(), 3 + 2 + 3 + 1);
-        // Wide ends on either side.
-        let mut wide = second.clone();
-        if let Ends::Narrow(e) = &wide.ends {
-            wide.ends = Ends::Wide(e.iter().map(|&x| x as usize).collect());
-        }
-        let mut joined: Texts = a.into_iter().collect();
-        joined.append(&wide);
-        assert_eq!(
-            joined.iter().collect::<Vec<_>>(),
-            pushed.iter().collect::<Vec<_>>()
-        );
-        wide.append(&second);
-        assert_eq!(wide.len(), 8);
-        assert_eq!(&wide[7], "q");
     }
 }
