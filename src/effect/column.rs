@@ -1,7 +1,14 @@
-//! The effects of every row of a table, kept column by column.
+//! The effects of every row of a table, kept column by column, and their
+//! computation from the table's cells.
 
+use super::cells::read_number;
 use super::route::Route;
-use super::RowEffect;
+use super::{check_route_columns, compute_row, is_inequality, shorten};
+use super::{ColumnMap, Measure, RowEffect, RowValues};
+use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::input::number::{invalid_hint, Cell};
+use crate::input::{Column, Table};
+use crate::support::pieces;
 use std::collections::BTreeMap;
 
 /// Effects of every row of a table, column by column: every row has an
@@ -101,5 +108,184 @@ impl EffectColumn {
                 check: self.checks.get(&i).cloned(),
             },
         }
+    }
+}
+
+/// Computes effects for every row. `first` is the index of the first measure
+/// column in the table's requests (the measure's roles are consecutive).
+/// The rows are worked in the fixed pieces of [`pieces`] on every core and
+/// merged in row order, so the result and the problems listed are those
+/// of one pass in row order, whatever the number of threads.
+///
+/// # Errors
+/// [`Error::MissingColumn`] when `effect` has none of its precision columns;
+/// [`Error::Cells`] listing every cell that is not a number or is out of range.
+pub fn compute(
+    measure: Measure,
+    map: &ColumnMap,
+    table: &Table,
+    first: usize,
+) -> Result<EffectColumn> {
+    use rayon::prelude::*;
+    check_route_columns(measure, map, table, first)?;
+    let cells = Cells {
+        measure,
+        map,
+        table,
+        columns: (0..measure.roles().len())
+            .map(|j| table.column(first + j))
+            .collect(),
+    };
+    let n = table.len();
+    let mut out = EffectColumn {
+        y: vec![0.0; n],
+        v: vec![0.0; n],
+        from: vec![Route::Means; n],
+        ..EffectColumn::default()
+    };
+    let rare: Vec<Rare> = if n <= pieces::ROWS {
+        vec![cells.piece(0, &mut out.y, &mut out.v, &mut out.from)]
+    } else {
+        let step = pieces::ROWS;
+        out.y
+            .par_chunks_mut(step)
+            .zip(out.v.par_chunks_mut(step))
+            .zip(out.from.par_chunks_mut(step))
+            .enumerate()
+            .map(|(c, ((y, v), from))| cells.piece(c * step, y, v, from))
+            .collect()
+    };
+    let mut problems = Vec::new();
+    let mut total = 0usize;
+    for r in rare {
+        out.excluded.extend(r.excluded);
+        out.notes.extend(r.notes);
+        out.checks.extend(r.checks);
+        total += r.total;
+        let room = CellProblems::MAX_LISTED - problems.len();
+        problems.extend(r.problems.into_iter().take(room));
+    }
+    if total > 0 {
+        return Err(Error::Cells(CellProblems {
+            source: table.source.clone(),
+            problems,
+            total,
+        }));
+    }
+    Ok(out)
+}
+
+/// What [`compute`] reads: the measure, the map of its columns and the
+/// table with the measure's columns (None for one not in the file).
+struct Cells<'a> {
+    measure: Measure,
+    map: &'a ColumnMap,
+    table: &'a Table,
+    columns: Vec<Option<&'a Column>>,
+}
+
+/// The rare parts of a piece of rows, by table row: rows left out, notes,
+/// checks, the first [`CellProblems::MAX_LISTED`] cell problems and their
+/// count.
+#[derive(Default)]
+struct Rare {
+    excluded: Vec<(usize, String)>,
+    notes: Vec<(usize, String)>,
+    checks: Vec<(usize, String)>,
+    problems: Vec<CellProblem>,
+    total: usize,
+}
+
+impl Rare {
+    fn problem(&mut self, p: CellProblem) {
+        self.total += 1;
+        if self.problems.len() < CellProblems::MAX_LISTED {
+            self.problems.push(p);
+        }
+    }
+}
+
+impl Cells<'_> {
+    /// The effects of the rows `first..first + y.len()` into `y`, `v` and
+    /// `from` (as [`EffectColumn::push`] would store them).
+    fn piece(&self, first: usize, y: &mut [f64], v: &mut [f64], from: &mut [Route]) -> Rare {
+        let roles = self.measure.roles();
+        let table = self.table;
+        let mut rare = Rare::default();
+        let mut values = vec![None; roles.len()];
+        for n in 0..y.len() {
+            let row = first + n;
+            let mut bad = false;
+            let mut inequality = None;
+            for (j, r) in roles.iter().enumerate() {
+                values[j] = None;
+                let Some(col) = self.columns[j] else {
+                    continue;
+                };
+                let text = col.get(row);
+                match read_number(text) {
+                    Cell::Missing => {}
+                    Cell::Value(x) => values[j] = Some(x),
+                    Cell::Invalid if r.name == "p" && is_inequality(text) => {
+                        inequality = Some(text)
+                    }
+                    Cell::Invalid => {
+                        bad = true;
+                        rare.problem(CellProblem {
+                            line: table.lines[row],
+                            column: col.header.clone(),
+                            value: shorten(text),
+                            message: format!("{} for {}", invalid_hint(text), r.name),
+                            cell: table.cell_place(row, col),
+                        });
+                    }
+                }
+            }
+            let effect = if bad {
+                RowEffect::Excluded("invalid value".into())
+            } else {
+                let view = RowValues::new(roles, &values).with_inequality(inequality);
+                match compute_row(self.measure, self.map.reading(), view) {
+                    Ok(e) => e,
+                    Err(p) => {
+                        let j = roles.iter().position(|r| r.name == p.role).unwrap_or(0);
+                        let (column, value, cell) = match self.columns[j] {
+                            Some(c) => (
+                                c.header.clone(),
+                                shorten(c.get(row)),
+                                table.cell_place(row, c),
+                            ),
+                            None => (self.map.header(p.role), String::new(), None),
+                        };
+                        rare.problem(CellProblem {
+                            line: table.lines[row],
+                            column,
+                            value,
+                            message: p.message,
+                            cell,
+                        });
+                        RowEffect::Excluded("invalid value".into())
+                    }
+                }
+            };
+            match effect {
+                RowEffect::Value {
+                    y: ey,
+                    v: ev,
+                    note,
+                    from: route,
+                    check,
+                } => {
+                    (y[n], v[n], from[n]) = (ey, ev, route);
+                    rare.notes.extend(note.map(|t| (row, t)));
+                    rare.checks.extend(check.map(|t| (row, t)));
+                }
+                RowEffect::Excluded(why) => {
+                    (y[n], v[n], from[n]) = (f64::NAN, f64::NAN, Route::Means);
+                    rare.excluded.push((row, why));
+                }
+            }
+        }
+        rare
     }
 }

@@ -6,6 +6,7 @@
 
 pub mod artifact;
 pub mod binary;
+pub mod cells;
 mod column;
 pub mod correlation;
 pub mod generic;
@@ -13,11 +14,10 @@ pub mod route;
 pub mod smd;
 pub mod smd_routes;
 
-use crate::error::{CellProblem, CellProblems, Error, Result};
-use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::error::{Error, Result};
 use crate::input::{ColumnRequest, Table};
 use crate::support::flag::Flag;
-pub use column::EffectColumn;
+pub use column::{compute, EffectColumn};
 use route::{EffectReading, Route, RouteInfo};
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -537,99 +537,6 @@ impl ColumnMap {
     }
 }
 
-/// Computes effects for every row. `first` is the index of the first measure
-/// column in the table's requests (the measure's roles are consecutive).
-///
-/// # Errors
-/// [`Error::MissingColumn`] when `effect` has none of its precision columns;
-/// [`Error::Cells`] listing every cell that is not a number or is out of range.
-pub fn compute(
-    measure: Measure,
-    map: &ColumnMap,
-    table: &Table,
-    first: usize,
-) -> Result<EffectColumn> {
-    let roles = measure.roles();
-    check_route_columns(measure, map, table, first)?;
-    let mut rows = EffectColumn::with_capacity(table.len());
-    let mut problems = Vec::new();
-    let mut total = 0usize;
-    let mut values = vec![None; roles.len()];
-    let mut push_problem = |p: CellProblem, total: &mut usize| {
-        *total += 1;
-        if problems.len() < CellProblems::MAX_LISTED {
-            problems.push(p);
-        }
-    };
-    for row in 0..table.len() {
-        let mut bad = false;
-        let mut inequality = None;
-        for (j, r) in roles.iter().enumerate() {
-            values[j] = None;
-            let Some(col) = table.column(first + j) else {
-                continue;
-            };
-            let text = col.get(row);
-            match parse_cell(text) {
-                Cell::Missing => {}
-                Cell::Value(x) => values[j] = Some(x),
-                Cell::Invalid if r.name == "p" && is_inequality(text) => inequality = Some(text),
-                Cell::Invalid => {
-                    bad = true;
-                    push_problem(
-                        CellProblem {
-                            line: table.lines[row],
-                            column: col.header.clone(),
-                            value: shorten(text),
-                            message: format!("{} for {}", invalid_hint(text), r.name),
-                            cell: table.cell_place(row, col),
-                        },
-                        &mut total,
-                    );
-                }
-            }
-        }
-        if bad {
-            rows.push(RowEffect::Excluded("invalid value".into()));
-            continue;
-        }
-        let view = RowValues::new(roles, &values).with_inequality(inequality);
-        match compute_row(measure, map.reading(), view) {
-            Ok(e) => rows.push(e),
-            Err(p) => {
-                let j = roles.iter().position(|r| r.name == p.role).unwrap_or(0);
-                let (column, value, cell) = match table.column(first + j) {
-                    Some(c) => (
-                        c.header.clone(),
-                        shorten(c.get(row)),
-                        table.cell_place(row, c),
-                    ),
-                    None => (map.header(p.role), String::new(), None),
-                };
-                push_problem(
-                    CellProblem {
-                        line: table.lines[row],
-                        column,
-                        value,
-                        message: p.message,
-                        cell,
-                    },
-                    &mut total,
-                );
-                rows.push(RowEffect::Excluded("invalid value".into()));
-            }
-        }
-    }
-    if total > 0 {
-        return Err(Error::Cells(CellProblems {
-            source: table.source.clone(),
-            problems,
-            total,
-        }));
-    }
-    Ok(rows)
-}
-
 /// Whether a cell's text is a p-value written as an inequality
 /// (`< 0.05`, `<.001`, `> 0.1`, `≤ 0.01`, `p < 0.05`).
 pub(crate) fn is_inequality(text: &str) -> bool {
@@ -654,7 +561,7 @@ pub(crate) fn is_inequality(text: &str) -> bool {
 /// # Errors
 /// [`Error::MissingColumn`] naming the first absent column of the measure's
 /// first route, with the other routes in the hint.
-fn check_route_columns(
+pub(super) fn check_route_columns(
     measure: Measure,
     map: &ColumnMap,
     table: &Table,

@@ -79,13 +79,27 @@ fn check_moderator_scale(
     included: &[usize],
 ) -> Result<()> {
     use crate::tolerance::MODERATOR_MAGNITUDE;
-    for (spec, r) in specs.iter().zip(raw) {
-        let RawModerator::Numeric(x) = r else {
+    use rayon::prelude::*;
+    // Each moderator's range (in row order, as one pass would find it), the
+    // moderators side by side on every core.
+    let ranges: Vec<Option<(f64, f64)>> = raw
+        .par_iter()
+        .map(|r| {
+            let RawModerator::Numeric(x) = r else {
+                return None;
+            };
+            let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+            for &v in x.of_rows(included).iter().filter(|v| !v.is_nan()) {
+                lo = lo.min(v);
+                hi = hi.max(v);
+            }
+            Some((lo, hi))
+        })
+        .collect();
+    for (spec, range) in specs.iter().zip(ranges) {
+        let Some((lo, hi)) = range else {
             continue;
         };
-        let vals: Vec<f64> = included.iter().filter_map(|&i| x.get(i)).collect();
-        let lo = vals.iter().copied().fold(f64::INFINITY, f64::min);
-        let hi = vals.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         let big = lo.abs().max(hi.abs());
         let spread = hi - lo;
         if big > MODERATOR_MAGNITUDE || (spread > 0.0 && spread < 1.0 / MODERATOR_MAGNITUDE) {

@@ -1,10 +1,13 @@
 //! From moderator columns to a design matrix: type detection, dummy coding,
 //! centring, product terms, and the checks that the model can be estimated.
 
+use crate::effect::cells::read_number;
 use crate::error::{Error, Result};
-use crate::input::number::{is_missing, parse_cell, Cell};
+use crate::input::number::{is_missing, Cell};
 use crate::input::Places;
 use crate::support::flag::Flag;
+use crate::support::pieces;
+use rayon::prelude::*;
 use serde::Serialize;
 
 /// What the user asked for one moderator.
@@ -69,34 +72,42 @@ pub fn classify(
 }
 
 /// [`classify`] over `rows` cells that `cell(i)` gives (a table's column
-/// read in place, without a list of its cells).
+/// read in place, without a list of its cells). The cells are parsed in
+/// the fixed pieces of [`pieces`] on every core; the values and the cells
+/// that are not numbers come back in row order.
 ///
 /// # Errors
 /// As [`classify`].
 pub fn classify_cells<'a>(
     spec: &ModeratorSpec,
-    (rows, cell): (usize, impl Fn(usize) -> &'a str),
+    (rows, cell): (usize, impl Fn(usize) -> &'a str + Sync),
     lines: &[u64],
     (places, header): (&Places, &str),
     source: &str,
 ) -> Result<RawModerator> {
-    let mut numeric = Vec::with_capacity(rows);
-    let mut bad: Vec<usize> = Vec::new();
-    let mut present = 0usize;
-    for i in 0..rows {
-        match parse_cell(cell(i)) {
-            Cell::Missing => numeric.push(f64::NAN),
-            Cell::Value(x) => {
-                present += 1;
-                numeric.push(x);
-            }
-            Cell::Invalid => {
-                present += 1;
-                bad.push(i);
-                numeric.push(f64::NAN);
-            }
+    let mut numeric = vec![0.0; rows];
+    // Per piece: the cells present and the rows of those that are not numbers.
+    let parts = pieces::fill(&mut numeric, |first, out| {
+        let mut present = 0usize;
+        let mut bad = Vec::new();
+        for (n, x) in out.iter_mut().enumerate() {
+            *x = match read_number(cell(first + n)) {
+                Cell::Missing => f64::NAN,
+                Cell::Value(v) => {
+                    present += 1;
+                    v
+                }
+                Cell::Invalid => {
+                    present += 1;
+                    bad.push(first + n);
+                    f64::NAN
+                }
+            };
         }
-    }
+        (present, bad)
+    });
+    let present: usize = parts.iter().map(|p| p.0).sum();
+    let bad: Vec<usize> = parts.into_iter().flat_map(|p| p.1).collect();
     if spec.categorical || !bad.is_empty() {
         let good = present - bad.len();
         if !spec.categorical && good * 2 > present {
@@ -158,50 +169,81 @@ enum Coded {
     Level(usize),
 }
 
-/// Appends one design row to `out`: 1, each moderator's columns (a centred
-/// or plain number, or dummies against the reference level), then the
-/// products of the paired moderators' columns. `spans` is scratch space.
-fn encode_row(
-    mods: &[Moderator],
-    interactions: &[(usize, usize)],
-    value: impl Fn(usize) -> Coded,
-    spans: &mut Vec<(usize, usize)>,
-    out: &mut Vec<f64>,
-) {
-    let base = out.len();
-    out.push(1.0);
-    spans.clear();
-    for (j, m) in mods.iter().enumerate() {
-        let start = out.len() - base;
-        match (&m.kind, value(j)) {
-            (ModeratorKind::Numeric { mean, centered, .. }, Coded::Number(x)) => {
-                out.push(if *centered { x - mean } else { x });
-            }
-            (
+/// How the moderators' values become a design row: each moderator's
+/// columns (their first and one-past-last position in the row) and, for a
+/// categorical one, the position of its reference level among its levels.
+struct Coder<'a> {
+    mods: &'a [Moderator],
+    interactions: &'a [(usize, usize)],
+    spans: Vec<(usize, usize)>,
+    references: Vec<usize>,
+    width: usize,
+}
+
+impl<'a> Coder<'a> {
+    fn new(mods: &'a [Moderator], interactions: &'a [(usize, usize)]) -> Self {
+        let mut spans = Vec::with_capacity(mods.len());
+        let mut references = Vec::with_capacity(mods.len());
+        let mut width = 1;
+        for m in mods {
+            let (columns, reference) = match &m.kind {
+                ModeratorKind::Numeric { .. } => (1, 0),
                 ModeratorKind::Categorical {
                     levels, reference, ..
-                },
-                Coded::Level(code),
-            ) => {
-                for (l, name) in levels.iter().enumerate() {
-                    if name != reference {
-                        out.push(if l == code { 1.0 } else { 0.0 });
+                } => {
+                    let r = levels.iter().position(|l| l == reference);
+                    (
+                        levels.len() - usize::from(r.is_some()),
+                        r.unwrap_or(usize::MAX),
+                    )
+                }
+            };
+            spans.push((width, width + columns));
+            references.push(reference);
+            width += columns;
+        }
+        for &(a, b) in interactions {
+            width += (spans[a].1 - spans[a].0) * (spans[b].1 - spans[b].0);
+        }
+        Coder {
+            mods,
+            interactions,
+            spans,
+            references,
+            width,
+        }
+    }
+
+    /// Writes one design row into `out` (`width` entries): 1, each
+    /// moderator's columns (a centred or plain number, or dummies against
+    /// the reference level), then the products of the paired moderators'
+    /// columns.
+    fn encode(&self, value: impl Fn(usize) -> Coded, out: &mut [f64]) {
+        out[0] = 1.0;
+        for (j, m) in self.mods.iter().enumerate() {
+            let (start, end) = self.spans[j];
+            match (&m.kind, value(j)) {
+                (ModeratorKind::Numeric { mean, centered, .. }, Coded::Number(x)) => {
+                    out[start] = if *centered { x - mean } else { x };
+                }
+                (ModeratorKind::Categorical { levels, .. }, Coded::Level(code)) => {
+                    let dummies = (0..levels.len()).filter(|&l| l != self.references[j]);
+                    for (o, l) in out[start..end].iter_mut().zip(dummies) {
+                        *o = if l == code { 1.0 } else { 0.0 };
                     }
                 }
+                // A number for a categorical moderator or a level for a
+                // numeric one cannot be built by the callers below.
+                _ => out[start..end].fill(f64::NAN),
             }
-            // A number for a categorical moderator or a level for a numeric
-            // one cannot be built by the callers below.
-            _ => out.push(f64::NAN),
         }
-        spans.push((start, out.len() - base));
-    }
-    for &(a, b) in interactions {
-        let (sa, ea) = spans[a];
-        let (sb, eb) = spans[b];
-        for ia in sa..ea {
-            for ib in sb..eb {
-                let prod = out[base + ia] * out[base + ib];
-                out.push(prod);
+        let mut c = self.spans.last().map_or(1, |s| s.1);
+        for &(a, b) in self.interactions {
+            for ia in self.spans[a].0..self.spans[a].1 {
+                for ib in self.spans[b].0..self.spans[b].1 {
+                    out[c] = out[ia] * out[ib];
+                    c += 1;
+                }
             }
         }
     }
@@ -273,14 +315,9 @@ pub fn design_row(
             }
         });
     }
-    let mut row = Vec::new();
-    encode_row(
-        design_mods,
-        interactions,
-        |j| coded[j],
-        &mut Vec::new(),
-        &mut row,
-    );
+    let coder = Coder::new(design_mods, interactions);
+    let mut row = vec![0.0; coder.width];
+    coder.encode(|j| coded[j], &mut row);
     Ok(row)
 }
 
@@ -296,8 +333,10 @@ pub fn build(
     interactions: &[(usize, usize)],
 ) -> Result<Design> {
     let k = included.len();
+    // The moderators side by side on every core; the first error in
+    // moderator order is the one reported.
     let moderators = specs
-        .iter()
+        .par_iter()
         .zip(raw)
         .map(|(spec, r)| {
             let kind = match r {
@@ -309,6 +348,8 @@ pub fn build(
                 kind,
             })
         })
+        .collect::<Vec<Result<_>>>()
+        .into_iter()
         .collect::<Result<Vec<_>>>()?;
 
     let mut terms = vec![Term {
@@ -341,16 +382,22 @@ pub fn build(
         )));
     }
     let codes = level_codes(raw, &moderators);
-    let mut x = Vec::with_capacity(k * p);
-    let mut spans = Vec::with_capacity(moderators.len());
-    for &i in included {
-        let value = |j: usize| match (&raw[j], &codes[j]) {
-            (RawModerator::Numeric(v), _) => Coded::Number(v.0[i]),
-            (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
-            (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
-        };
-        encode_row(&moderators, interactions, value, &mut spans, &mut x);
-    }
+    let coder = Coder::new(&moderators, interactions);
+    debug_assert_eq!(coder.width, p);
+    // Row by row in fixed pieces on every core; each row is written in
+    // place, so the matrix is the same whatever the number of threads.
+    let mut x = vec![0.0; k * p];
+    pieces::fill_wide(&mut x, p, |first, out| {
+        for (n, row) in out.chunks_exact_mut(p).enumerate() {
+            let i = included[first + n];
+            let value = |j: usize| match (&raw[j], &codes[j]) {
+                (RawModerator::Numeric(v), _) => Coded::Number(v.0[i]),
+                (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
+                (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
+            };
+            coder.encode(value, row);
+        }
+    });
     rank::check_rank(&x, k, p, &terms)?;
     Ok(Design {
         x,
@@ -368,7 +415,7 @@ pub fn build(
 /// [`Error::Model`] when it has one value in every included study.
 fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &[usize]) -> Result<ModeratorKind> {
     let k = included.len();
-    let xs: Vec<f64> = included.iter().map(|&i| v.0[i]).collect();
+    let xs = v.of_rows(included);
     let mean = xs.iter().sum::<f64>() / k as f64;
     let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
     let min = xs.iter().copied().fold(f64::INFINITY, f64::min);

@@ -324,7 +324,7 @@ fn fit_scaled(
         log_likelihood,
         options,
     };
-    Ok((fit, f.m_inv))
+    Ok((fit, f.m_inv.clone()))
 }
 
 /// Fills the per-study arrays of `fit`: w_i = 1/(v_i + τ̂²), the fitted

@@ -39,6 +39,7 @@ use super::wls::{chunks, count_pass, residual_sums, Data, Want, Wls, PARALLEL_MI
 use crate::tolerance;
 use nalgebra::{DMatrix, DVector};
 use std::cell::{Cell, RefCell};
+use std::rc::Rc;
 
 /// The sums of one pass at τ² around β₀ (p × p matrices row-major, upper
 /// triangle filled): M = X'WX, N₂ = X'W²X, N₃ = X'W³X (curvature), g = X'Wr₀,
@@ -60,6 +61,26 @@ struct Sums {
 }
 
 impl Sums {
+    /// Empties the sums, keeping the buffers' capacity.
+    fn clear(&mut self) {
+        for t in [
+            &mut self.m,
+            &mut self.n2,
+            &mut self.n3,
+            &mut self.g,
+            &mut self.h,
+            &mut self.h3,
+        ] {
+            t.clear();
+        }
+        self.sum_w = 0.0;
+        self.sum_w2 = 0.0;
+        self.sum_wr2 = 0.0;
+        self.sum_w2r2 = 0.0;
+        self.sum_w3r2 = 0.0;
+        self.sum_log_vt = 0.0;
+    }
+
     fn add(&mut self, o: &Sums) {
         let pairs = [
             (&mut self.m, &o.m),
@@ -88,32 +109,37 @@ impl Sums {
 }
 
 /// The sums over fixed chunks of rows, added in chunk order (so the result
-/// does not depend on the number of threads), in parallel for large k.
-fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+/// does not depend on the number of threads), in parallel for large k,
+/// written into `out` (whose buffers are reused: a serial pass allocates
+/// nothing once they have their size).
+fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
     use rayon::prelude::*;
     count_pass();
     if data.k() < PARALLEL_MIN_ROWS {
-        return serial(data, tau2, want, beta0);
+        return serial(data, tau2, want, beta0, out);
     }
     let parts: Vec<Sums> = chunks(data)
         .par_iter()
-        .map(|d| serial(d, tau2, want, beta0))
+        .map(|d| {
+            let mut s = Sums::default();
+            serial(d, tau2, want, beta0, &mut s);
+            s
+        })
         .collect();
-    let mut total = Sums::default();
+    out.clear();
     for part in &parts {
-        total.add(part);
+        out.add(part);
     }
-    total
 }
 
-fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
     macro_rules! fixed {
         ($p:literal) => {
             match (want.log_terms, want.curvature) {
-                (false, false) => fixed::<$p, false, false>(data, tau2, beta0),
-                (true, false) => fixed::<$p, true, false>(data, tau2, beta0),
-                (false, true) => fixed::<$p, false, true>(data, tau2, beta0),
-                (true, true) => fixed::<$p, true, true>(data, tau2, beta0),
+                (false, false) => fixed::<$p, false, false>(data, tau2, beta0, out),
+                (true, false) => fixed::<$p, true, false>(data, tau2, beta0, out),
+                (false, true) => fixed::<$p, false, true>(data, tau2, beta0, out),
+                (true, true) => fixed::<$p, true, true>(data, tau2, beta0, out),
             }
         };
     }
@@ -126,23 +152,25 @@ fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
         6 => fixed!(6),
         7 => fixed!(7),
         8 => fixed!(8),
-        _ => general(data, tau2, want, beta0),
+        _ => general(data, tau2, want, beta0, out),
     }
 }
 
-/// The sums for `P` columns; `LOG` and `CURV` choose the optional parts at
-/// compile time, so the loop has no branches.
+/// The sums for `P` columns, into `out`; `LOG` and `CURV` choose the
+/// optional parts at compile time, so the loop has no branches.
 fn fixed<const P: usize, const LOG: bool, const CURV: bool>(
     data: &Data<'_>,
     tau2: f64,
     beta0: &[f64],
-) -> Sums {
+    out: &mut Sums,
+) {
     let b0: &[f64; P] = beta0.try_into().expect("p coefficients");
     let mut m = [[0.0f64; P]; P];
     let mut n2 = [[0.0f64; P]; P];
     let mut n3 = [[0.0f64; P]; P];
     let (mut g, mut h, mut h3) = ([0.0f64; P], [0.0f64; P], [0.0f64; P]);
-    let mut s = Sums::default();
+    out.clear();
+    let s = out;
     for ((xi, &vi), &yi) in data.x.chunks_exact(P).zip(data.v).zip(data.y) {
         let xi: &[f64; P] = xi.try_into().expect("rows have p entries");
         let vt = vi + tau2;
@@ -182,31 +210,30 @@ fn fixed<const P: usize, const LOG: bool, const CURV: bool>(
             }
         }
     }
-    let flat = |a: &[[f64; P]; P]| a.iter().flatten().copied().collect::<Vec<f64>>();
-    s.m = flat(&m);
-    s.n2 = flat(&n2);
-    s.g = g.to_vec();
-    s.h = h.to_vec();
+    s.m.extend(m.iter().flatten());
+    s.n2.extend(n2.iter().flatten());
+    s.g.extend(g);
+    s.h.extend(h);
     if CURV {
-        s.n3 = flat(&n3);
-        s.h3 = h3.to_vec();
+        s.n3.extend(n3.iter().flatten());
+        s.h3.extend(h3);
     }
-    s
 }
 
 /// [`fixed`] for any number of columns.
-fn general(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
+fn general(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
     let p = data.p;
     let curv = want.curvature;
-    let mut s = Sums {
-        m: vec![0.0; p * p],
-        n2: vec![0.0; p * p],
-        n3: if curv { vec![0.0; p * p] } else { Vec::new() },
-        g: vec![0.0; p],
-        h: vec![0.0; p],
-        h3: if curv { vec![0.0; p] } else { Vec::new() },
-        ..Sums::default()
-    };
+    out.clear();
+    let s = out;
+    s.m.resize(p * p, 0.0);
+    s.n2.resize(p * p, 0.0);
+    s.g.resize(p, 0.0);
+    s.h.resize(p, 0.0);
+    if curv {
+        s.n3.resize(p * p, 0.0);
+        s.h3.resize(p, 0.0);
+    }
     for ((xi, &vi), &yi) in data.x.chunks_exact(p).zip(data.v).zip(data.y) {
         let vt = vi + tau2;
         let w = 1.0 / vt;
@@ -240,12 +267,19 @@ fn general(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64]) -> Sums {
             }
         }
     }
-    s
 }
 
-/// A symmetric p × p matrix from its row-major upper triangle.
-fn symmetric(upper: &[f64], p: usize) -> DMatrix<f64> {
-    DMatrix::from_fn(p, p, |a, c| upper[a.min(c) * p + a.max(c)])
+/// Fills `out` (resized to p × p when it is not) with the symmetric matrix
+/// whose row-major upper triangle is `upper`.
+fn fill_symmetric(out: &mut DMatrix<f64>, upper: &[f64], p: usize) {
+    if out.shape() != (p, p) {
+        *out = DMatrix::zeros(p, p);
+    }
+    for c in 0..p {
+        for a in 0..p {
+            out[(a, c)] = upper[a.min(c) * p + a.max(c)];
+        }
+    }
 }
 
 /// tr(AB) = Σ_ij a_ij b_ji for p × p matrices, summed column by column of
@@ -261,6 +295,52 @@ fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
     total
 }
 
+/// The buffers of one-pass fits, reused from one fit to the next: at small
+/// k the allocations of the temporaries had cost more than the pass itself
+/// (a fit now allocates only the β̂ and M⁻¹ it returns). Every product is
+/// the same nalgebra operation as before (`mul_to` is what `*` calls, and
+/// `solve_mut` what `solve` calls on a copy), so results are unchanged bit
+/// for bit.
+#[derive(Debug)]
+struct Work {
+    sums: Sums,
+    /// M, then its Cholesky factor.
+    m: DMatrix<f64>,
+    n2: DMatrix<f64>,
+    n3: DMatrix<f64>,
+    /// M⁻¹N₂.
+    m_inv_n2: DMatrix<f64>,
+    g: DVector<f64>,
+    h: DVector<f64>,
+    h3: DVector<f64>,
+    delta: DVector<f64>,
+    n2d: DVector<f64>,
+    n3d: DVector<f64>,
+    u: DVector<f64>,
+    m_inv_u: DVector<f64>,
+}
+
+impl Work {
+    fn new(p: usize) -> Self {
+        let (mat, vec) = (|| DMatrix::zeros(p, p), || DVector::zeros(p));
+        Work {
+            sums: Sums::default(),
+            m: mat(),
+            n2: mat(),
+            n3: mat(),
+            m_inv_n2: mat(),
+            g: vec(),
+            h: vec(),
+            h3: vec(),
+            delta: vec(),
+            n2d: vec(),
+            n3d: vec(),
+            u: vec(),
+            m_inv_u: vec(),
+        }
+    }
+}
+
 /// The weighted fit at `tau2` from one pass around `beta0` (see the module
 /// documentation for the identities), with the parts in `want` (the others
 /// NaN). A corrected sum that cancels too much is recomputed by a second
@@ -268,9 +348,38 @@ fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
 ///
 /// Returns `None` when X'WX is not positive definite (collinear design).
 pub fn fit_near(data: &Data<'_>, tau2: f64, want: Want, beta0: &DVector<f64>) -> Option<Wls> {
+    fit_near_in(&mut Work::new(data.p), data, tau2, want, beta0)
+}
+
+/// [`fit_near`] with the temporaries in `work`.
+fn fit_near_in(
+    work: &mut Work,
+    data: &Data<'_>,
+    tau2: f64,
+    want: Want,
+    beta0: &DVector<f64>,
+) -> Option<Wls> {
     let p = data.p;
-    let s = accumulate(data, tau2, want, beta0.as_slice());
-    let chol = symmetric(&s.m, p).cholesky()?;
+    accumulate(data, tau2, want, beta0.as_slice(), &mut work.sums);
+    let Work {
+        sums: s,
+        m,
+        n2,
+        n3,
+        m_inv_n2,
+        g,
+        h,
+        h3,
+        delta,
+        n2d,
+        n3d,
+        u,
+        m_inv_u,
+    } = work;
+    fill_symmetric(m, &s.m, p);
+    // The factorisation takes the matrix; it is given back below (or
+    // rebuilt by `fill_symmetric` after a failure).
+    let chol = std::mem::replace(m, DMatrix::zeros(0, 0)).cholesky()?;
     let logdet_m = if want.log_terms {
         2.0 * chol
             .l_dirty()
@@ -281,18 +390,21 @@ pub fn fit_near(data: &Data<'_>, tau2: f64, want: Want, beta0: &DVector<f64>) ->
     } else {
         f64::NAN
     };
-    let g = DVector::from_column_slice(&s.g);
-    let delta = chol.solve(&g);
-    let beta = beta0 + &delta;
+    g.copy_from_slice(&s.g);
+    delta.copy_from(g);
+    chol.solve_mut(delta);
+    let beta = beta0 + &*delta;
     if !beta.iter().all(|x| x.is_finite()) {
+        *m = chol.unpack_dirty();
         return None;
     }
     let m_inv = chol.inverse();
-    let n2 = symmetric(&s.n2, p);
-    let h = DVector::from_column_slice(&s.h);
-    let n2d = &n2 * &delta;
-    let (dh, dn2d) = (delta.dot(&h), delta.dot(&n2d));
-    let q = s.sum_wr2 - delta.dot(&g);
+    *m = chol.unpack_dirty();
+    fill_symmetric(n2, &s.n2, p);
+    h.copy_from_slice(&s.h);
+    n2.mul_to(delta, n2d);
+    let (dh, dn2d) = (delta.dot(h), delta.dot(n2d));
+    let q = s.sum_wr2 - delta.dot(g);
     let w2r2 = s.sum_w2r2 - 2.0 * dh + dn2d;
     let limit = tolerance::ONE_PASS_MAX_CANCEL;
     let kept = q * limit >= s.sum_wr2 && w2r2 * limit >= s.sum_w2r2 + 2.0 * dh.abs() + dn2d;
@@ -302,18 +414,23 @@ pub fn fit_near(data: &Data<'_>, tau2: f64, want: Want, beta0: &DVector<f64>) ->
         residual_sums(data, tau2, &beta)
     };
     let tr_p = if want.trace {
-        s.sum_w - trace_of_product(&m_inv, &n2)
+        s.sum_w - trace_of_product(&m_inv, n2)
     } else {
         f64::NAN
     };
     let (y_pppy, tr_pp) = if want.curvature {
-        let n3 = symmetric(&s.n3, p);
-        let h3 = DVector::from_column_slice(&s.h3);
-        let w3r2 = s.sum_w3r2 - 2.0 * delta.dot(&h3) + delta.dot(&(&n3 * &delta));
-        let u = h - n2d;
-        let y_pppy = w3r2 - u.dot(&(&m_inv * &u));
-        let a = &m_inv * &n2;
-        let tr_pp = s.sum_w2 - 2.0 * trace_of_product(&m_inv, &n3) + trace_of_product(&a, &a);
+        fill_symmetric(n3, &s.n3, p);
+        h3.copy_from_slice(&s.h3);
+        n3.mul_to(delta, n3d);
+        let w3r2 = s.sum_w3r2 - 2.0 * delta.dot(h3) + delta.dot(n3d);
+        // u = h − N₂δ.
+        u.copy_from(h);
+        *u -= &*n2d;
+        m_inv.mul_to(u, m_inv_u);
+        let y_pppy = w3r2 - u.dot(m_inv_u);
+        m_inv.mul_to(n2, m_inv_n2);
+        let a = m_inv_n2;
+        let tr_pp = s.sum_w2 - 2.0 * trace_of_product(&m_inv, n3) + trace_of_product(a, a);
         (y_pppy, tr_pp)
     } else {
         (f64::NAN, f64::NAN)
@@ -349,19 +466,26 @@ fn covers(had: Want, want: Want) -> bool {
 /// is one pass around the coefficients of the previous fit ([`fit_near`];
 /// the first around β₀ = 0), and a τ² already fitted with at least the
 /// parts asked for is not fitted again.
+///
+/// Fits are shared ([`Rc`]), not copied, when asked for again, and the
+/// temporaries of each fit are reused from the one before.
 #[derive(Debug)]
 pub struct Evaluator<'a> {
     data: Data<'a>,
-    seen: RefCell<Vec<(Want, Wls)>>,
+    seen: RefCell<Vec<(Want, Rc<Wls>)>>,
+    work: RefCell<Work>,
     evaluations: Cell<u64>,
 }
 
 impl<'a> Evaluator<'a> {
     /// An evaluator of `data` that has fitted nothing yet.
     pub fn new(data: Data<'a>) -> Self {
+        // A REML fit with its Q-profile interval makes about 25 fits.
+        const USUAL_FITS: usize = 32;
         Evaluator {
+            work: RefCell::new(Work::new(data.p)),
             data,
-            seen: RefCell::new(Vec::new()),
+            seen: RefCell::new(Vec::with_capacity(USUAL_FITS)),
             evaluations: Cell::new(0),
         }
     }
@@ -378,23 +502,25 @@ impl<'a> Evaluator<'a> {
 
     /// The fit at `tau2` with the parts in `want`; `None` for a collinear
     /// design.
-    pub fn at(&self, tau2: f64, want: Want) -> Option<Wls> {
+    pub fn at(&self, tau2: f64, want: Want) -> Option<Rc<Wls>> {
         if let Some((_, f)) = self
             .seen
             .borrow()
             .iter()
             .find(|(had, f)| f.tau2.to_bits() == tau2.to_bits() && covers(*had, want))
         {
-            return Some(f.clone());
+            return Some(Rc::clone(f));
         }
         self.evaluations.set(self.evaluations.get() + 1);
         // Around the coefficients of the fit made last (the last one
         // remembered), or β₀ = 0 for the first.
-        let f = match self.seen.borrow().last() {
-            Some((_, before)) => fit_near(&self.data, tau2, want, &before.beta)?,
-            None => fit_near(&self.data, tau2, want, &DVector::zeros(self.data.p))?,
-        };
-        self.seen.borrow_mut().push((want, f.clone()));
+        let before = self.seen.borrow().last().map(|(_, f)| Rc::clone(f));
+        let work = &mut self.work.borrow_mut();
+        let f = Rc::new(match before {
+            Some(before) => fit_near_in(work, &self.data, tau2, want, &before.beta)?,
+            None => fit_near_in(work, &self.data, tau2, want, &DVector::zeros(self.data.p))?,
+        });
+        self.seen.borrow_mut().push((want, Rc::clone(&f)));
         Some(f)
     }
 }

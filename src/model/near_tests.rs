@@ -194,14 +194,11 @@ fn many_columns_use_the_general_loop_and_agree() {
             p: 8,
         };
         let b8 = fit_with(&d8, 0.02, Want::Q).unwrap().beta;
-        let general = {
-            let s = general(&d8, 0.03, Want::CURVATURE, b8.as_slice());
-            s.sum_w3r2
-        };
-        (
-            fixed::<8, false, true>(&d8, 0.03, b8.as_slice()).sum_w3r2,
-            general,
-        )
+        let mut s = Sums::default();
+        general(&d8, 0.03, Want::CURVATURE, b8.as_slice(), &mut s);
+        let general = s.sum_w3r2;
+        fixed::<8, false, true>(&d8, 0.03, b8.as_slice(), &mut s);
+        (s.sum_w3r2, general)
     };
     assert!(rel(fixed.0, fixed.1) < 1e-13);
     assert!(curv.y_pppy.is_finite() && curv.tr_pp > 0.0);

@@ -14,6 +14,7 @@ use super::wls::{ols, Data, Want, Wls};
 use crate::error::{Error, Result};
 use crate::support::flag::Flag;
 use crate::tolerance;
+use std::rc::Rc;
 use std::sync::LazyLock;
 
 pub use crate::result::{Ending, Tau2Method};
@@ -51,7 +52,7 @@ fn singular() -> Error {
     Error::Model("the weighted design matrix is singular; the moderators are collinear".into())
 }
 
-fn wls(ev: &Evaluator<'_>, tau2: f64, want: Want) -> Result<Wls> {
+fn wls(ev: &Evaluator<'_>, tau2: f64, want: Want) -> Result<Rc<Wls>> {
     ev.at(tau2, want).ok_or_else(singular)
 }
 

@@ -2,12 +2,14 @@
 //! that library messages mention ([`flag`]), numbers as text ([`format`](mod@format)),
 //! hashing of inputs ([`hash`]), text made safe for terminals, XML and
 //! spreadsheets ([`text`]), many short texts in one allocation
-//! ([`texts`]) and the seeded random-number generator of
-//! the simulations and permutations ([`rng`]).
+//! ([`texts`]), the seeded random-number generator of the simulations and
+//! permutations ([`rng`]) and work over a table's rows in fixed pieces on
+//! every core ([`pieces`]).
 
 pub mod flag;
 pub mod format;
 pub mod hash;
+pub mod pieces;
 pub mod rng;
 pub mod text;
 pub mod texts;

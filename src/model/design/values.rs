@@ -26,6 +26,17 @@ impl Numbers {
     pub fn is_empty(&self) -> bool {
         self.0.is_empty()
     }
+
+    /// The values of the rows `rows` (ascending, each at most once), in
+    /// that order: the values themselves, not a copy, when `rows` is every
+    /// row (the usual case, which then costs no pass and no memory).
+    pub fn of_rows(&self, rows: &[usize]) -> std::borrow::Cow<'_, [f64]> {
+        if rows.len() == self.0.len() {
+            std::borrow::Cow::Borrowed(&self.0)
+        } else {
+            std::borrow::Cow::Owned(rows.iter().map(|&i| self.0[i]).collect())
+        }
+    }
 }
 
 impl From<Vec<Option<f64>>> for Numbers {
@@ -114,6 +125,16 @@ mod tests {
         let back: Vec<Option<&str>> = (0..4).map(|i| c.get(i)).collect();
         assert_eq!(back, [Some("b"), None, Some("a"), Some("b")]);
         assert_eq!(c.names.len(), 2);
+    }
+
+    #[test]
+    fn rows_of_numbers_are_those_asked_for() {
+        let n: Numbers = vec![Some(1.5), None, Some(-0.0), Some(4.0)].into();
+        assert_eq!(&*n.of_rows(&[0, 2]), &[1.5, -0.0]);
+        let all = n.of_rows(&[0, 1, 2, 3]);
+        assert!(matches!(all, std::borrow::Cow::Borrowed(_)));
+        assert_eq!(all.len(), 4);
+        assert_eq!(n.of_rows(&[]).len(), 0);
     }
 
     #[test]
