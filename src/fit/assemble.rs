@@ -267,7 +267,7 @@ fn records(
     } = studies;
     let total_w: f64 = fit.weights.iter().sum();
     let z = crate::dist::normal_quantile(1.0 - (1.0 - level) / 2.0);
-    let mut out = StudyList::new();
+    let mut out = StudyList::with_capacity(included.len(), labels.byte_len(), raw.len());
     let mut notes = notes.into_iter().peekable();
     for (pos, (&i, study)) in included.iter().zip(labels.iter()).enumerate() {
         let note = notes.next_if(|(at, _)| *at == pos).map(|(_, n)| n);

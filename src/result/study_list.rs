@@ -59,6 +59,31 @@ impl StudyList {
         Self::default()
     }
 
+    /// An empty list with room for `n` studies with labels of
+    /// `label_bytes` bytes in all and `width` moderator values each: the
+    /// per-study columns are allocated once, at their final size (growing
+    /// them by doubling would leave freed blocks of up to half their size
+    /// each, which the allocator keeps; at a million studies that was most
+    /// of the memory `--json` took beyond the report's own).
+    pub fn with_capacity(n: usize, label_bytes: usize, width: usize) -> Self {
+        StudyList {
+            labels: Texts::with_capacity_bytes(n, label_bytes),
+            lines: Vec::with_capacity(n),
+            effect: Vec::with_capacity(n),
+            variance: Vec::with_capacity(n),
+            ci_low: Vec::with_capacity(n),
+            ci_high: Vec::with_capacity(n),
+            weight: Vec::with_capacity(n),
+            fitted: Vec::with_capacity(n),
+            residual: Vec::with_capacity(n),
+            std_residual: Vec::with_capacity(n),
+            moderators: Vec::with_capacity(n.saturating_mul(width)),
+            moderator_ends: Vec::with_capacity(n),
+            routes: Vec::with_capacity(n),
+            ..Self::default()
+        }
+    }
+
     /// Number of studies.
     pub fn len(&self) -> usize {
         self.lines.len()
@@ -315,6 +340,17 @@ mod tests {
         assert!(list.any_note());
         assert!(!list.any_shrunken());
         assert_eq!(list.effects()[3], 0.3);
+        // A list made with room for the records holds the same records.
+        let labels: usize = records.iter().map(|r| r.study.len()).sum();
+        let mut sized = StudyList::with_capacity(records.len(), labels, 2);
+        for r in &records {
+            sized.push(r.clone());
+        }
+        assert_eq!(
+            serde_json::to_string(&sized).unwrap(),
+            serde_json::to_string(&records).unwrap()
+        );
+        assert!(sized.lines.capacity() >= records.len());
     }
 
     #[test]

@@ -37,6 +37,21 @@ impl Texts {
         }
     }
 
+    /// An empty list with room for `n` texts of `bytes` bytes in all (a
+    /// list filled to a known size is then allocated once, without the
+    /// blocks that growing by doubling leaves behind).
+    pub fn with_capacity_bytes(n: usize, bytes: usize) -> Self {
+        Texts {
+            text: String::with_capacity(bytes),
+            ends: Ends::Narrow(Vec::with_capacity(n)),
+        }
+    }
+
+    /// The total length of the texts, in bytes.
+    pub fn byte_len(&self) -> usize {
+        self.text.len()
+    }
+
     /// Appends `s`.
     pub fn push(&mut self, s: &str) {
         self.text.push_str(s);
@@ -187,6 +202,17 @@ mod tests {
             serde_json::to_string(&t).unwrap(),
             serde_json::to_string(&v).unwrap()
         );
+    }
+
+    #[test]
+    fn texts_with_room_come_back_as_pushed() {
+        let v = ["ab", "", "cde"];
+        let mut t = Texts::with_capacity_bytes(3, 5);
+        for s in v {
+            t.push(s);
+        }
+        assert_eq!(t, v.into_iter().collect::<Texts>());
+        assert_eq!(t.byte_len(), 5);
     }
 
     #[test]
