@@ -8,22 +8,7 @@ use super::number::DecimalMark;
 use super::{parse_table_file_in, parse_table_with, table_pieces, ColumnRequest, Table};
 use std::io::Write;
 
-/// xorshift64* (Vigna 2016) with a fixed seed.
-struct Rng(u64);
-impl Rng {
-    fn below(&mut self, n: u64) -> u64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 33) % n
-    }
-    fn chance(&mut self, per_thousand: u64) -> bool {
-        self.below(1000) < per_thousand
-    }
-    fn pick<'a>(&mut self, items: &[&'a str]) -> &'a str {
-        items[self.below(items.len() as u64) as usize]
-    }
-}
+use crate::support::rng::TestDraws as Rng;
 
 /// A cell: numbers with the file's decimal mark `mark`, texts, blanks and
 /// spaces (Unicode ones too, which the reader trims), now and then a quoted

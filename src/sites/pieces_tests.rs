@@ -20,19 +20,7 @@ impl RowSink for Rows {
     }
 }
 
-/// xorshift64* (Vigna 2016) with a fixed seed.
-struct Rng(u64);
-impl Rng {
-    fn below(&mut self, n: u64) -> u64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 33) % n
-    }
-    fn chance(&mut self, per_thousand: u64) -> bool {
-        self.below(1000) < per_thousand
-    }
-}
+use crate::support::rng::TestDraws as Rng;
 
 /// A cell of a numeric column: mostly plain numbers, sometimes one of the
 /// forms the general reader handles (blank, missing mark, spaces, `.5`,

@@ -249,16 +249,7 @@ mod tests {
         t.parse::<f64>().ok().filter(|v| v.is_finite())
     }
 
-    /// xorshift64* (Vigna 2016) with a fixed seed.
-    struct Rng(u64);
-    impl Rng {
-        fn below(&mut self, n: u64) -> u64 {
-            self.0 ^= self.0 >> 12;
-            self.0 ^= self.0 << 25;
-            self.0 ^= self.0 >> 27;
-            (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 33) % n
-        }
-    }
+    use crate::support::rng::TestDraws as Rng;
 
     #[test]
     fn plain_numbers_read_bit_for_bit_as_std_reads_them() {

@@ -100,6 +100,34 @@ pub fn block_rng(seed: u64, block: u64) -> Xoshiro256StarStar {
     Xoshiro256StarStar::seed_from_u64(mixed ^ block)
 }
 
+/// xorshift64* (Vigna 2016, *ACM TOMS* 42:30; the multiplier of the
+/// paper), the small generator of the seeded property-style tests that draw
+/// invented files and numbers (`input::table_pieces`, `sites::pieces`,
+/// `sites::plain`): one stream for all of them, fixed by this file.
+#[cfg(test)]
+pub(crate) struct TestDraws(pub u64);
+
+#[cfg(test)]
+impl TestDraws {
+    /// A draw from 0..n (n > 0; the top 31 bits, reduced modulo n).
+    pub fn below(&mut self, n: u64) -> u64 {
+        self.0 ^= self.0 >> 12;
+        self.0 ^= self.0 << 25;
+        self.0 ^= self.0 >> 27;
+        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 33) % n
+    }
+
+    /// True with probability `per_thousand` / 1000.
+    pub fn chance(&mut self, per_thousand: u64) -> bool {
+        self.below(1000) < per_thousand
+    }
+
+    /// One of `items`, each as likely.
+    pub fn pick<'a>(&mut self, items: &[&'a str]) -> &'a str {
+        items[self.below(items.len() as u64) as usize]
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

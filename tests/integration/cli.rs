@@ -951,13 +951,7 @@ fn help_and_unknown_subcommand() {
 /// parallel chunks; the numbers are invented (a fixed linear congruential
 /// sequence) and serve only this test.
 fn large_csv() -> String {
-    let mut state: u64 = 12_345;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6_364_136_223_846_793_005)
-            .wrapping_add(1_442_695_040_888_963_407);
-        (state >> 11) as f64 / (1u64 << 53) as f64
-    };
+    let mut next = crate::util::uniform_draws(12_345);
     let mut csv = String::from("study,effect,variance,dose\n");
     for i in 0..70_000 {
         let dose = 10.0 * next();

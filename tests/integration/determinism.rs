@@ -9,13 +9,7 @@ use assert_cmd::Command;
 /// moderator (a small linear congruential generator, fixed seed; the
 /// numbers are arbitrary, for this test only).
 fn table(k: usize) -> String {
-    let mut state: u64 = 0x9E37_79B9_7F4A_7C15;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6_364_136_223_846_793_005)
-            .wrapping_add(1_442_695_040_888_963_407);
-        ((state >> 11) as f64) / ((1u64 << 53) as f64)
-    };
+    let mut next = crate::util::uniform_draws(0x9E37_79B9_7F4A_7C15);
     let mut s = String::from("study,effect,variance,dose,arm\n");
     for i in 0..k {
         let dose = 10.0 * next();
@@ -135,13 +129,7 @@ fn png_is_byte_identical_whatever_the_thread_count() {
 /// values and blank lines.
 #[test]
 fn sites_json_is_byte_identical_whatever_the_thread_count() {
-    let mut state: u64 = 0x2545_F491_4F6C_DD1D;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6_364_136_223_846_793_005)
-            .wrapping_add(1_442_695_040_888_963_407);
-        ((state >> 11) as f64) / ((1u64 << 53) as f64)
-    };
+    let mut next = crate::util::uniform_draws(0x2545_F491_4F6C_DD1D);
     let mut text = String::from("site,x,w,y\n");
     for i in 0..120_000u64 {
         let site = (i * 7919) % 37;

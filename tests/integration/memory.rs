@@ -15,13 +15,7 @@ use pondus::model::{tau2::Tau2Method, Inference};
 /// small linear congruential generator, fixed seed; invented numbers, for
 /// this test only).
 fn table(k: usize) -> String {
-    let mut state: u64 = 0x2545_F491_4F6C_DD1D;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6_364_136_223_846_793_005)
-            .wrapping_add(1_442_695_040_888_963_407);
-        ((state >> 11) as f64) / ((1u64 << 53) as f64)
-    };
+    let mut next = crate::util::uniform_draws(0x2545_F491_4F6C_DD1D);
     let mut s = String::from("study,effect,variance,dose,year,arm,lab\n");
     for i in 0..k {
         let dose = 10.0 * next();

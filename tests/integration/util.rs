@@ -61,3 +61,16 @@ pub fn close(what: &str, a: f64, b: f64, rel: f64, abs: f64) {
         a - b
     );
 }
+
+/// Uniform draws in [0, 1) from a 64-bit linear congruential generator
+/// seeded with `seed` (Knuth's MMIX multiplier and increment; the top 53
+/// bits of the state): the seeded invented tables of the tests.
+pub fn uniform_draws(seed: u64) -> impl FnMut() -> f64 {
+    let mut state = seed;
+    move || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        ((state >> 11) as f64) / ((1u64 << 53) as f64)
+    }
+}
