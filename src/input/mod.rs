@@ -136,6 +136,12 @@ impl Column {
     pub(crate) fn push(&mut self, cell: &str) {
         self.cells.push(cell);
     }
+
+    /// The cells themselves, the column given up (a list that becomes the
+    /// studies' labels is moved, not copied).
+    pub fn into_cells(self) -> crate::support::texts::Texts {
+        self.cells
+    }
 }
 
 /// One empty column per request: `None` for a request not found (an
