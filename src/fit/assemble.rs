@@ -16,8 +16,9 @@ use crate::model::design::{Moderator, RawModerator, Term};
 use crate::model::tau2::Tau2Method;
 use crate::model::ModelFit;
 use crate::result::{
-    ArtifactReport, AtValue, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
-    MeasureInfo, ModelInfo, Shrunken, Spread, Study, StudyList, Tau2Report, ToolInfo,
+    ArtifactReport, Excluded, FitReport, InputInfo, Interpretation, Interval, MeasureId,
+    MeasureInfo, ModelInfo, ModeratorColumn, Shrunken, Spread, StudyColumns, StudyList, Tau2Report,
+    ToolInfo,
 };
 use crate::support::flag::Flag;
 
@@ -245,7 +246,9 @@ fn model_info(
     }
 }
 
-/// One record per included study, in input order, and the rows left out.
+/// One record per included study, in input order, and the rows left out:
+/// the studies' own columns (labels, lines, effects, variances, routes,
+/// moderator values) are moved into the list, not copied.
 fn records(
     studies: Studies,
     fit: &ModelFit,
@@ -262,46 +265,54 @@ fn records(
         routes,
         raw,
         excluded,
-        mut shown,
+        shown,
         ..
     } = studies;
     let total_w: f64 = fit.weights.iter().sum();
     let z = crate::dist::normal_quantile(1.0 - (1.0 - level) / 2.0);
-    let mut out = StudyList::with_capacity(included.len(), labels.byte_len(), raw.len());
-    let mut notes = notes.into_iter().peekable();
-    for (pos, (&i, study)) in included.iter().zip(labels.iter()).enumerate() {
-        let note = notes.next_if(|(at, _)| *at == pos).map(|(_, n)| n);
-        let (yi, vi) = (y[pos], v[pos]);
-        let half = z * vi.sqrt();
-        out.push(Study {
-            study: study.to_string(),
-            line: lines[pos],
-            effect: yi,
-            variance: vi,
-            ci: Interval::new(yi - half, yi + half),
-            weight: 100.0 * fit.weights[pos] / total_w,
-            fitted: fit.fitted[pos],
-            residual: yi - fit.fitted[pos],
-            std_residual: fit.std_resid[pos],
-            moderators: raw
-                .iter()
-                .map(|r| match r {
-                    RawModerator::Numeric(x) => AtValue::Number(x.get(i).unwrap_or(f64::NAN)),
-                    RawModerator::Text(x) => {
-                        AtValue::Level(x.get(i).unwrap_or_default().to_string())
-                    }
-                })
-                .collect(),
-            note,
-            shrunken: shrunken.as_ref().map(|s| s[pos]),
-            computed_from: routes[pos],
-            cells: shown
-                .iter_mut()
-                .map(|(name, c)| (name.clone(), std::mem::take(&mut c[pos])))
-                .collect(),
-        });
-    }
-    (out, excluded)
+    let half = |vi: f64| z * vi.sqrt();
+    let cells = if shown.is_empty() {
+        Vec::new()
+    } else {
+        let mut shown = shown;
+        (0..y.len())
+            .map(|pos| {
+                shown
+                    .iter_mut()
+                    .map(|(name, c)| (name.clone(), std::mem::take(&mut c[pos])))
+                    .collect()
+            })
+            .collect()
+    };
+    let columns = StudyColumns {
+        ci_low: y.iter().zip(&v).map(|(yi, &vi)| yi - half(vi)).collect(),
+        ci_high: y.iter().zip(&v).map(|(yi, &vi)| yi + half(vi)).collect(),
+        weight: fit.weights.iter().map(|w| 100.0 * w / total_w).collect(),
+        fitted: fit.fitted.clone(),
+        residual: y.iter().zip(&fit.fitted).map(|(yi, f)| yi - f).collect(),
+        std_residual: fit.std_resid.clone(),
+        moderators: raw
+            .into_iter()
+            .map(|r| match r {
+                RawModerator::Numeric(x) => ModeratorColumn::Numbers(x.into_rows(&included)),
+                RawModerator::Text(x) => {
+                    let (names, codes) = x.into_rows(&included);
+                    ModeratorColumn::Levels { names, codes }
+                }
+            })
+            .collect(),
+        notes,
+        shrunken: shrunken
+            .map(|s| s.into_iter().map(Some).collect())
+            .unwrap_or_default(),
+        cells,
+        labels,
+        lines,
+        effect: y,
+        variance: v,
+        routes,
+    };
+    (columns.into(), excluded)
 }
 
 /// Refuses a report with a NaN or infinite number in a reported result: an

@@ -36,6 +36,7 @@ mod sensitivity;
 mod sites;
 mod spread;
 mod study_list;
+mod study_values;
 
 pub use answers::*;
 pub use clusters::*;
@@ -49,7 +50,7 @@ pub use routes::*;
 pub use sensitivity::*;
 pub use sites::*;
 pub use spread::*;
-pub use study_list::StudyList;
+pub use study_list::{ModeratorColumn, StudyColumns, StudyList};
 
 use crate::effect::route::Route;
 use crate::effect::{Measure, ReadingScale};

@@ -39,6 +39,19 @@ impl Numbers {
     }
 }
 
+impl Numbers {
+    /// The values of the rows `rows` (ascending, each at most once), in
+    /// that order, the list given up: moved, not copied, when `rows` is
+    /// every row.
+    pub fn into_rows(self, rows: &[usize]) -> Vec<f64> {
+        if rows.len() == self.0.len() {
+            self.0
+        } else {
+            rows.iter().map(|&i| self.0[i]).collect()
+        }
+    }
+}
+
 impl From<Vec<Option<f64>>> for Numbers {
     fn from(v: Vec<Option<f64>>) -> Self {
         Numbers(v.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
@@ -73,6 +86,23 @@ impl Categories {
     /// Whether there are no rows.
     pub fn is_empty(&self) -> bool {
         self.codes.is_empty()
+    }
+
+    /// The distinct labels and the codes of the rows `rows` (ascending,
+    /// each at most once, none with a missing label), the list given up:
+    /// the codes are moved, not copied, when `rows` is every row.
+    ///
+    /// # Panics
+    /// When one of `rows` has no label (the caller's rows are those with
+    /// every value present).
+    pub fn into_rows(self, rows: &[usize]) -> (Vec<String>, Vec<u32>) {
+        let codes = if rows.len() == self.codes.len() {
+            self.codes
+        } else {
+            rows.iter().map(|&i| self.codes[i]).collect()
+        };
+        assert!(!codes.contains(&MISSING), "every row asked for has a label");
+        (self.names, codes)
     }
 }
 
