@@ -103,7 +103,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         sha256,
     };
     let k = studies.y.len();
-    let effects_obtained = crate::result::count_routes(&studies.routes, studies.labels.iter());
+    let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
     // Without per-study records only the excluded rows are kept; with
     // shrunken estimates the records are built anyway, as their numbers
     // are checked below.

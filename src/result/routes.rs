@@ -20,26 +20,64 @@ pub struct RouteCount {
 }
 
 /// Counts the routes of the included studies, in the order of [`Route::ALL`]
-/// (`labels` gives the studies' labels in the order of `routes`).
-pub fn count_routes<'a>(
-    routes: &[Route],
-    labels: impl Iterator<Item = &'a str> + Clone,
-) -> Vec<RouteCount> {
+/// (`labels[i]` is the label of the study with `routes[i]`). The routes are
+/// counted in one pass; when every study took one route (the usual case)
+/// its labels are the list given, copied whole, else each route's labels
+/// are gathered in a pass of their own.
+pub fn count_routes(routes: &[Route], labels: &Texts) -> Vec<RouteCount> {
+    let mut counts = [0usize; Route::ALL.len()];
+    for r in routes {
+        if let Some(j) = Route::ALL.iter().position(|x| x == r) {
+            counts[j] += 1;
+        }
+    }
     Route::ALL
         .iter()
-        .filter_map(|&r| {
-            let labels: Texts = routes
-                .iter()
-                .zip(labels.clone())
-                .filter(|(x, _)| **x == r)
-                .map(|(_, l)| l)
-                .collect();
-            (!labels.is_empty()).then(|| RouteCount {
-                computed_from: r,
-                derivation: r.derivation(),
-                studies: labels.len(),
-                labels,
-            })
+        .zip(counts)
+        .filter(|&(_, n)| n > 0)
+        .map(|(&r, n)| RouteCount {
+            computed_from: r,
+            derivation: r.derivation(),
+            studies: n,
+            labels: if n == routes.len() {
+                labels.clone()
+            } else {
+                routes
+                    .iter()
+                    .zip(labels.iter())
+                    .filter(|(x, _)| **x == r)
+                    .map(|(_, l)| l)
+                    .collect()
+            },
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn routes_are_counted_with_their_studies_labels_in_order() {
+        let labels: Texts = ["s1", "s2", "s3", "s4"].into_iter().collect();
+        let mixed = count_routes(
+            &[Route::Counts, Route::Means, Route::Counts, Route::Means],
+            &labels,
+        );
+        let got: Vec<(Route, usize, Vec<String>)> = mixed
+            .iter()
+            .map(|c| (c.computed_from, c.studies, c.labels.to_vec()))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                (Route::Means, 2, vec!["s2".to_string(), "s4".to_string()]),
+                (Route::Counts, 2, vec!["s1".to_string(), "s3".to_string()]),
+            ]
+        );
+        let one = count_routes(&[Route::Counts; 4], &labels);
+        assert_eq!(one.len(), 1);
+        assert_eq!((one[0].studies, &one[0].labels), (4, &labels));
+        assert!(count_routes(&[], &Texts::default()).is_empty());
+    }
 }
