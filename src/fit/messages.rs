@@ -476,13 +476,34 @@ fn fnv1a(text: &str) -> u64 {
 
 /// The warning about labels used by more than one study (none when every label is distinct).
 fn duplicate_label_warnings(labels: &Texts) -> Vec<String> {
-    // Sort (hash, position) pairs: equal labels have equal hashes and end up
-    // adjacent; labels are compared exactly within a run of equal hashes.
-    let mut keyed: Vec<(u64, usize)> = labels
-        .iter()
-        .enumerate()
-        .map(|(i, l)| (fnv1a(l), i))
+    // Equal labels have equal hashes: the hashes alone are sorted (on every
+    // core) to find those that occur more than once, and only the labels
+    // with such a hash are then compared exactly, as (hash, position) pairs
+    // sorted so that equal hashes are adjacent. The pairs are distinct, so
+    // the order is the same whatever the number of threads.
+    use rayon::prelude::*;
+    let mut hashes: Vec<u64> = (0..labels.len())
+        .into_par_iter()
+        .map(|i| fnv1a(labels.get(i)))
         .collect();
+    hashes.par_sort_unstable();
+    let mut repeated: Vec<u64> = hashes
+        .windows(2)
+        .filter(|w| w[0] == w[1])
+        .map(|w| w[0])
+        .collect();
+    drop(hashes);
+    repeated.dedup();
+    let mut keyed: Vec<(u64, usize)> = if repeated.is_empty() {
+        Vec::new()
+    } else {
+        labels
+            .iter()
+            .enumerate()
+            .map(|(i, l)| (fnv1a(l), i))
+            .filter(|(h, _)| repeated.binary_search(h).is_ok())
+            .collect()
+    };
     keyed.sort_unstable();
     let mut counts: Vec<(&str, usize)> = Vec::new();
     let mut start = 0;
@@ -535,4 +556,27 @@ fn list<S: AsRef<str>>(items: &[S], max: usize) -> String {
         s.push_str(&format!(" and {} more", items.len() - max));
     }
     s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn repeated_labels_are_counted_exactly_and_listed_in_order() {
+        let labels: Texts = ["b", "a", "c", "a", "b", "a", "ab", "d"]
+            .into_iter()
+            .collect();
+        assert_eq!(
+            duplicate_label_warnings(&labels),
+            [
+                "Study labels used more than once: 'a' (3×), 'b' (2×). If these are the same \
+                 study entered twice, remove the copies; if they are separate samples, give them \
+                 distinct labels."
+            ]
+        );
+        let distinct: Texts = (0..5000).map(|i| format!("s{i}")).collect();
+        assert!(duplicate_label_warnings(&distinct).is_empty());
+        assert!(duplicate_label_warnings(&Texts::default()).is_empty());
+    }
 }

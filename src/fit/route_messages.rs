@@ -17,9 +17,9 @@ pub fn add(studies: &Studies, m: &mut Messages) {
         studies
             .routes
             .iter()
-            .zip(studies.labels.iter())
-            .filter(|(r, _)| r.derivation() == d)
-            .map(|(_, l)| l)
+            .enumerate()
+            .filter(|(_, r)| r.derivation() == d)
+            .map(|(i, _)| studies.labels.get(i))
             .collect()
     };
     let approximated = named(Derivation::Approximated);
