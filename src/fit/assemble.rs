@@ -307,7 +307,7 @@ fn records(
             .unwrap_or_default(),
         cells,
         labels,
-        lines,
+        lines: lines.into_vec(),
         effect: y,
         variance: v,
         routes,

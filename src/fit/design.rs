@@ -8,6 +8,7 @@ use super::{in_file, FitSettings};
 use crate::error::{Error, Result};
 use crate::model::design::{self, Design, ModeratorSpec, RawModerator};
 use crate::support::flag::Flag;
+use crate::support::rows::Rows;
 
 /// The design of the included studies.
 ///
@@ -76,7 +77,7 @@ fn check_moderator_scale(
     source: &str,
     specs: &[ModeratorSpec],
     raw: &[RawModerator],
-    included: &[usize],
+    included: &Rows,
 ) -> Result<()> {
     use crate::tolerance::MODERATOR_MAGNITUDE;
     use rayon::prelude::*;

@@ -37,10 +37,11 @@ pub fn run(
         p,
         options: settings.options,
     };
+    let lines = studies.lines.to_vec();
     let order = studies.order.as_ref().map(|(header, cells)| OrderColumn {
         header: header.clone(),
         cells: cells.clone(),
-        lines: studies.lines.clone(),
+        lines: lines.clone(),
         places: studies.places.clone(),
     });
     diagnose::run(
@@ -49,7 +50,7 @@ pub fn run(
         fit,
         &studies.labels.to_vec(),
         terms,
-        &studies.lines,
+        &lines,
         order.as_ref(),
         studies.scale,
         source,

@@ -167,7 +167,7 @@ pub fn estimate(
 /// with a missing id (empty or a missing-value mark).
 fn clusters(
     ids: &(String, Vec<String>),
-    (lines, places): (&[u64], &crate::input::Places),
+    (lines, places): (&crate::input::Lines, &crate::input::Places),
     source: &str,
 ) -> Result<Clusters> {
     let (header, ids) = ids;
@@ -179,7 +179,7 @@ fn clusters(
             "{source}: {}: the cluster id is missing ({} effect{} without \
              one). Every effect in the model needs the id of its study, lab or site; fill it in \
              (an effect that is alone in its cluster gets an id of its own) and run again",
-            places.cell(lines[first], header),
+            places.cell(lines.get(first), header),
             missing.len(),
             if missing.len() == 1 { "" } else { "s" }
         )));

@@ -269,7 +269,7 @@ fn subgroups(
         for (level, &count) in levels.iter().zip(counts) {
             let own = pooled.and_then(|options| {
                 let (mut yl, mut vl) = (Vec::new(), Vec::new());
-                for (pos, &i) in studies.included.iter().enumerate() {
+                for (pos, i) in studies.included.iter().enumerate() {
                     if cells.get(i) == Some(level.as_str()) {
                         yl.push(studies.y[pos]);
                         vl.push(studies.v[pos]);

@@ -17,6 +17,7 @@ use crate::model::tau2::Tau2Method;
 use crate::model::Inference;
 use crate::result::{Interval, Spread, SpreadCoefficient, SpreadStudy, SpreadTest, Tau2At};
 use crate::support::flag::Flag;
+use crate::support::rows::Rows;
 use nalgebra::DVector;
 
 /// Refuses `--spread-by` with an estimator other than REML or ML, with
@@ -166,13 +167,13 @@ fn check_terms(
     source: &str,
     specs: &[ModeratorSpec],
     raw: &[RawModerator],
-    included: &[usize],
+    included: &Rows,
 ) -> Result<()> {
     for (spec, r) in specs.iter().zip(raw) {
         let name = &spec.name;
         match r {
             RawModerator::Numeric(v) => {
-                let mut vals = included.iter().filter_map(|&i| v.get(i));
+                let mut vals = included.iter().filter_map(|i| v.get(i));
                 let first = vals.next().unwrap_or(f64::NAN);
                 if vals.all(|x| x == first) {
                     return Err(Error::Model(format!(
@@ -186,7 +187,7 @@ fn check_terms(
             }
             RawModerator::Text(v) => {
                 let mut tally = std::collections::BTreeMap::new();
-                for &i in included {
+                for i in included.iter() {
                     if let Some(l) = v.get(i) {
                         *tally.entry(l).or_insert(0usize) += 1;
                     }

@@ -10,10 +10,11 @@ use crate::effect::artifact::{self, Corrected};
 use crate::effect::route::Route;
 use crate::effect::{self, EffectColumn, ReadingScale};
 use crate::error::{Error, Result};
-use crate::input::{Column, Delimiter, Places, Table};
+use crate::input::{Column, Delimiter, Lines, Places, Table};
 use crate::model::design::{self, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
+use crate::support::rows::Rows;
 use crate::support::texts::Texts;
 use std::borrow::Cow;
 use std::collections::BTreeMap;
@@ -24,7 +25,7 @@ use std::collections::BTreeMap;
 #[derive(Debug)]
 pub struct Studies {
     /// Table rows the model uses, in file order.
-    pub included: Vec<usize>,
+    pub included: Rows,
     /// Effect per study, on the analysis scale.
     pub y: Vec<f64>,
     /// Sampling variance per study.
@@ -32,7 +33,7 @@ pub struct Studies {
     /// Label per study (its line when the label cell or column is missing).
     pub labels: Texts,
     /// Line in the file per study.
-    pub lines: Vec<u64>,
+    pub lines: Lines,
     /// Adjustments made to a study's effect, in words (a zero-cell
     /// correction), with the study's position; in study order, few or none.
     pub notes: Vec<(usize, String)>,
@@ -162,7 +163,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         routes: included.iter().map(|&i| effects.from[i]).collect(),
         checks: by_study(effects.checks, &included),
         labels,
-        lines: included.iter().map(|&i| table.lines[i]).collect(),
+        lines: Lines::of_rows(&table.lines, &included),
         corrections: if corrections.is_empty() {
             Vec::new()
         } else {
@@ -192,7 +193,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             settings.measure.reading_scale()
         },
         table: facts,
-        included,
+        included: Rows::new(included, table.lines.len()),
         places,
     })
 }

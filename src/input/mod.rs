@@ -5,6 +5,7 @@
 //! so a million-row file costs little more than its requested cells.
 
 mod decimal;
+mod lines;
 pub mod number;
 pub mod parquet;
 pub(crate) mod pieces;
@@ -14,6 +15,7 @@ mod stream;
 mod table_pieces;
 
 pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
+pub use lines::Lines;
 pub use places::Places;
 pub(crate) use stream::LineCounter;
 

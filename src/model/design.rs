@@ -7,6 +7,7 @@ use crate::input::number::{is_missing, Cell};
 use crate::input::Places;
 use crate::support::flag::Flag;
 use crate::support::pieces;
+use crate::support::rows::Rows;
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -329,7 +330,7 @@ pub fn design_row(
 pub fn build(
     specs: &[ModeratorSpec],
     raw: &[RawModerator],
-    included: &[usize],
+    included: &Rows,
     interactions: &[(usize, usize)],
 ) -> Result<Design> {
     let k = included.len();
@@ -389,7 +390,7 @@ pub fn build(
     let mut x = vec![0.0; k * p];
     pieces::fill_wide(&mut x, p, |first, out| {
         for (n, row) in out.chunks_exact_mut(p).enumerate() {
-            let i = included[first + n];
+            let i = included.get(first + n);
             let value = |j: usize| match (&raw[j], &codes[j]) {
                 (RawModerator::Numeric(v), _) => Coded::Number(v.0[i]),
                 (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
@@ -413,7 +414,7 @@ pub fn build(
 ///
 /// # Errors
 /// [`Error::Model`] when it has one value in every included study.
-fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &[usize]) -> Result<ModeratorKind> {
+fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &Rows) -> Result<ModeratorKind> {
     let k = included.len();
     let xs = v.of_rows(included);
     let mean = xs.iter().sum::<f64>() / k as f64;
@@ -452,7 +453,7 @@ pub const MAX_LEVELS: usize = 200;
 fn categorical_kind(
     spec: &ModeratorSpec,
     v: &Categories,
-    included: &[usize],
+    included: &Rows,
 ) -> Result<ModeratorKind> {
     if spec.center {
         return Err(Error::usage(
@@ -466,7 +467,7 @@ fn categorical_kind(
     // Levels are the labels as written (`1` and `01` are two levels), each
     // once: counted in one pass over the rows, then sorted.
     let mut tally: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
-    for &i in included {
+    for i in included.iter() {
         if let Some(l) = v.get(i) {
             *tally.entry(l).or_insert(0) += 1;
         }
@@ -655,25 +656,28 @@ mod tests {
             ),
         ];
         let specs = vec![spec("dose"), spec("arm")];
-        let d = build(&specs, &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        let d = build(&specs, &raw, &Rows::Every(5), &[]).unwrap();
+        // The same rows listed one by one give the same design.
+        let listed = build(&specs, &raw, &Rows::Listed(vec![0, 1, 2, 3, 4]), &[]).unwrap();
+        assert_eq!(listed.x, d.x);
         let names: Vec<&str> = d.terms.iter().map(|t| t.name.as_str()).collect();
         assert_eq!(names, ["intercept", "dose", "arm=b", "arm=c"]);
         assert_eq!(&d.x[0..4], &[1.0, 1.0, 1.0, 0.0]);
         assert_eq!(&d.x[8..12], &[1.0, 3.0, 0.0, 1.0]);
         // Five studies cannot carry an interaction on top (p = 6).
-        assert!(build(&specs, &raw, &[0, 1, 2, 3, 4], &[(0, 1)]).is_err());
+        assert!(build(&specs, &raw, &Rows::Every(5), &[(0, 1)]).is_err());
     }
 
     #[test]
     fn constant_and_collinear_moderators() {
         let raw = vec![RawModerator::Numeric(vec![Some(2.0); 4].into())];
-        let e = build(&[spec("c")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
+        let e = build(&[spec("c")], &raw, &Rows::Every(4), &[]).unwrap_err();
         assert!(e.to_string().contains("same value"), "{e}");
         let raw = vec![
             RawModerator::Numeric(vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0)].into()),
             RawModerator::Numeric(vec![Some(2.0), Some(4.0), Some(6.0), Some(8.0)].into()),
         ];
-        let e = build(&[spec("a"), spec("b")], &raw, &[0, 1, 2, 3], &[]).unwrap_err();
+        let e = build(&[spec("a"), spec("b")], &raw, &Rows::Every(4), &[]).unwrap_err();
         assert!(
             e.to_string().contains("term 'b' is a linear combination"),
             "{e}"
@@ -690,12 +694,12 @@ mod tests {
         )];
         let mut s = spec("g");
         s.categorical = true;
-        let d = build(std::slice::from_ref(&s), &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        let d = build(std::slice::from_ref(&s), &raw, &Rows::Every(5), &[]).unwrap();
         assert_eq!(d.terms[1].name, "g=3");
         s.reference = Some("10".into());
-        let d = build(std::slice::from_ref(&s), &raw, &[0, 1, 2, 3, 4], &[]).unwrap();
+        let d = build(std::slice::from_ref(&s), &raw, &Rows::Every(5), &[]).unwrap();
         assert_eq!(d.terms[1].name, "g=2");
         s.reference = Some("7".into());
-        assert!(build(&[s], &raw, &[0, 1, 2, 3, 4], &[]).is_err());
+        assert!(build(&[s], &raw, &Rows::Every(5), &[]).is_err());
     }
 }

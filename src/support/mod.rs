@@ -11,5 +11,6 @@ pub mod format;
 pub mod hash;
 pub mod pieces;
 pub mod rng;
+pub mod rows;
 pub mod text;
 pub mod texts;

@@ -2,6 +2,7 @@
 //! number a row for a numeric moderator, one small code a row for a
 //! categorical one (each label stored once).
 
+use crate::support::rows::Rows;
 use std::collections::HashMap;
 
 /// A numeric moderator's values, one per table row, 8 bytes each: a
@@ -30,11 +31,11 @@ impl Numbers {
     /// The values of the rows `rows` (ascending, each at most once), in
     /// that order: the values themselves, not a copy, when `rows` is every
     /// row (the usual case, which then costs no pass and no memory).
-    pub fn of_rows(&self, rows: &[usize]) -> std::borrow::Cow<'_, [f64]> {
+    pub fn of_rows(&self, rows: &Rows) -> std::borrow::Cow<'_, [f64]> {
         if rows.len() == self.0.len() {
             std::borrow::Cow::Borrowed(&self.0)
         } else {
-            std::borrow::Cow::Owned(rows.iter().map(|&i| self.0[i]).collect())
+            std::borrow::Cow::Owned(rows.iter().map(|i| self.0[i]).collect())
         }
     }
 }
@@ -43,11 +44,11 @@ impl Numbers {
     /// The values of the rows `rows` (ascending, each at most once), in
     /// that order, the list given up: moved, not copied, when `rows` is
     /// every row.
-    pub fn into_rows(self, rows: &[usize]) -> Vec<f64> {
+    pub fn into_rows(self, rows: &Rows) -> Vec<f64> {
         if rows.len() == self.0.len() {
             self.0
         } else {
-            rows.iter().map(|&i| self.0[i]).collect()
+            rows.iter().map(|i| self.0[i]).collect()
         }
     }
 }
@@ -95,11 +96,11 @@ impl Categories {
     /// # Panics
     /// When one of `rows` has no label (the caller's rows are those with
     /// every value present).
-    pub fn into_rows(self, rows: &[usize]) -> (Vec<String>, Vec<u32>) {
+    pub fn into_rows(self, rows: &Rows) -> (Vec<String>, Vec<u32>) {
         let codes = if rows.len() == self.codes.len() {
             self.codes
         } else {
-            rows.iter().map(|&i| self.codes[i]).collect()
+            rows.iter().map(|i| self.codes[i]).collect()
         };
         assert!(!codes.contains(&MISSING), "every row asked for has a label");
         (self.names, codes)
@@ -160,11 +161,13 @@ mod tests {
     #[test]
     fn rows_of_numbers_are_those_asked_for() {
         let n: Numbers = vec![Some(1.5), None, Some(-0.0), Some(4.0)].into();
-        assert_eq!(&*n.of_rows(&[0, 2]), &[1.5, -0.0]);
-        let all = n.of_rows(&[0, 1, 2, 3]);
+        assert_eq!(&*n.of_rows(&Rows::Listed(vec![0, 2])), &[1.5, -0.0]);
+        let all = n.of_rows(&Rows::Every(4));
         assert!(matches!(all, std::borrow::Cow::Borrowed(_)));
         assert_eq!(all.len(), 4);
-        assert_eq!(n.of_rows(&[]).len(), 0);
+        assert_eq!(n.of_rows(&Rows::Listed(Vec::new())).len(), 0);
+        assert_eq!(n.clone().into_rows(&Rows::Listed(vec![0, 3])), [1.5, 4.0]);
+        assert_eq!(n.into_rows(&Rows::Every(4)).len(), 4);
     }
 
     #[test]
