@@ -12,6 +12,9 @@ fn run() -> anyhow::Result<()> {
 }
 
 fn main() -> ExitCode {
+    // Large freed columns go back to the system instead of staying with
+    // the process (see the module).
+    cli::memory::return_freed_blocks();
     match run() {
         Ok(()) => ExitCode::SUCCESS,
         Err(err) => {

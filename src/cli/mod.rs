@@ -7,6 +7,7 @@ pub mod columns;
 pub mod completions;
 pub mod fit;
 pub mod manual;
+pub mod memory;
 pub mod outputs;
 pub mod plan;
 pub mod schema;
