@@ -164,15 +164,7 @@ pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
 /// (df1, df2) with df2 = k − p for the two-level model and the smallest
 /// between–within df of the tested terms for the three-level model.
 pub fn wald_test(fit: &ModelFit, terms: &[usize]) -> Option<OmnibusTest> {
-    let m = terms.len();
-    if m == 0 {
-        return None;
-    }
-    let b = DVector::from_iterator(m, terms.iter().map(|&j| fit.beta[j]));
-    let v = DMatrix::from_fn(m, m, |r, c| fit.cov[(terms[r], terms[c])]);
-    let chol = v.cholesky()?;
-    let x2 = b.dot(&chol.solve(&b));
-    let df1 = m as f64;
+    let (x2, df1) = wald_x2(fit, terms)?;
     Some(match fit.options.inference {
         Inference::Kh | Inference::KhFloor => {
             let df2 = terms
@@ -194,6 +186,39 @@ pub fn wald_test(fit: &ModelFit, terms: &[usize]) -> Option<OmnibusTest> {
             p: dist::chi2_sf(x2, df1),
         },
     })
+}
+
+/// X² = b' V⁻¹ b of [`wald_test`] and its df1 = |terms| (None for no terms
+/// or a covariance that is not positive definite).
+fn wald_x2(fit: &ModelFit, terms: &[usize]) -> Option<(f64, f64)> {
+    let m = terms.len();
+    if m == 0 {
+        return None;
+    }
+    let b = DVector::from_iterator(m, terms.iter().map(|&j| fit.beta[j]));
+    let v = DMatrix::from_fn(m, m, |r, c| fit.cov[(terms[r], terms[c])]);
+    let chol = v.cholesky()?;
+    Some((b.dot(&chol.solve(&b)), m as f64))
+}
+
+/// The statistic of [`omnibus`] alone, without its p-value (F = X²/df1
+/// under Knapp–Hartung, X² under z): what a permutation test compares, the
+/// same number bit for bit.
+pub fn omnibus_statistic(fit: &ModelFit) -> Option<f64> {
+    let terms: Vec<usize> = (1..fit.p).collect();
+    let (x2, df1) = wald_x2(fit, &terms)?;
+    Some(match fit.options.inference {
+        Inference::Kh | Inference::KhFloor => x2 / df1,
+        Inference::Z => x2,
+    })
+}
+
+/// The statistics of [`coefficients`] alone, β̂_j / SE_j, without their
+/// intervals and p-values (the same numbers bit for bit).
+pub fn coefficient_statistics(fit: &ModelFit) -> Vec<f64> {
+    (0..fit.p)
+        .map(|j| fit.beta[j] / fit.cov[(j, j)].max(0.0).sqrt())
+        .collect()
 }
 
 /// Test of every non-intercept coefficient (None for an intercept-only model).
@@ -332,5 +357,37 @@ pub fn floored(fit: &ModelFit) -> ModelFit {
             inference: Inference::KhFloor,
             ..fit.options
         },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{fit, tau2::Tau2Method, FitOptions};
+
+    /// The statistics without their p-values are the tests' statistics,
+    /// bit for bit, under both inferences (invented numbers).
+    #[test]
+    fn statistics_alone_equal_the_full_tests() {
+        let y = [0.12, 0.45, 0.31, 0.78, 0.05, 0.66, 0.29, 0.51];
+        let v = [0.02, 0.05, 0.03, 0.04, 0.06, 0.02, 0.05, 0.03];
+        let x: Vec<f64> = (0..8)
+            .flat_map(|i| [1.0, i as f64 * 0.7, ((i * 5) % 3) as f64])
+            .collect();
+        for inference in [Inference::Kh, Inference::Z] {
+            let options = FitOptions {
+                method: Tau2Method::Reml,
+                inference,
+                level: 0.95,
+            };
+            let f = fit(&y, &v, &x, 3, options).unwrap();
+            let full = omnibus(&f).unwrap().statistic;
+            assert_eq!(omnibus_statistic(&f).unwrap().to_bits(), full.to_bits());
+            let stats = coefficient_statistics(&f);
+            for (c, s) in coefficients(&f).iter().zip(&stats) {
+                assert_eq!(c.statistic.to_bits(), s.to_bits());
+            }
+            assert_eq!(stats.len(), 3);
+        }
     }
 }
