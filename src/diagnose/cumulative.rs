@@ -55,7 +55,7 @@ pub fn steps(
             let ys: Vec<f64> = order[..j].iter().map(|&i| y[i]).collect();
             let vs: Vec<f64> = order[..j].iter().map(|&i| v[i]).collect();
             let ones = vec![1.0; j];
-            if let Ok(f) = super::refit(&ys, &vs, &ones, 1, options) {
+            if let Ok(f) = super::refit(&ys, &vs, std::borrow::Cow::Borrowed(&ones), 1, options) {
                 let pr = inference::predict(&f, &[1.0]);
                 let c = inference::coefficients(&f);
                 if pr.se.is_finite() && c[0].p.is_finite() {

@@ -170,7 +170,7 @@ fn full_average(d: &ModelData<'_>, r: Refits<'_>) -> Option<f64> {
         return Some(r.full.beta[0]);
     }
     let ones = vec![1.0; d.k()];
-    super::refit(d.y, d.v, &ones, 1, d.options)
+    super::refit(d.y, d.v, std::borrow::Cow::Borrowed(&ones), 1, d.options)
         .ok()
         .map(|f| f.beta[0])
 }

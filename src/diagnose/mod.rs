@@ -113,7 +113,7 @@ pub fn deleted_fits(d: &ModelData<'_>) -> Vec<Deleted> {
                 v.push(d.v[j]);
                 x.extend_from_slice(d.row(j));
             }
-            refit(&y, &v, &x, p, d.options)
+            refit(&y, &v, std::borrow::Cow::Owned(x), p, d.options)
         })
         .collect()
 }
@@ -133,9 +133,18 @@ pub fn average_fits(d: &ModelData<'_>, deleted: &[Deleted]) -> Vec<Deleted> {
     })
 }
 
-/// One refit, with every failure turned into words.
-pub(crate) fn refit(y: &[f64], v: &[f64], x: &[f64], p: usize, options: FitOptions) -> Deleted {
-    match model::fit_parts(y, v, x, p, options, false) {
+/// One refit, with every failure turned into words: the model's summary
+/// numbers only ([`model::fit_summary`]; no diagnostic reads a refit's
+/// per-study arrays), with the design matrix standardised in place when it
+/// is given owned.
+pub(crate) fn refit(
+    y: &[f64],
+    v: &[f64],
+    x: std::borrow::Cow<'_, [f64]>,
+    p: usize,
+    options: FitOptions,
+) -> Deleted {
+    match model::fit_summary(y, v, x, p, options, false) {
         Ok(f) if f.kh_scale == Some(0.0) => Err(
             "the remaining studies fit the model exactly, so the Knapp–Hartung standard errors are 0"
                 .into(),

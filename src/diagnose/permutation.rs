@@ -24,7 +24,7 @@ const ARRANGEMENTS_MAX: u128 = 1_000_000_000_000_000_000;
 /// The test statistics of one fit: the omnibus statistic (F under
 /// Knapp–Hartung, chi-square under z) and |t| (or |z|) of each coefficient.
 fn statistics(y: &[f64], v: &[f64], x: &[f64], d: &ModelData<'_>) -> Option<(f64, Vec<f64>)> {
-    let f = model::fit_parts(y, v, x, d.p, d.options, false).ok()?;
+    let f = model::fit_summary(y, v, std::borrow::Cow::Borrowed(x), d.p, d.options, false).ok()?;
     if f.kh_scale == Some(0.0) {
         return None;
     }
