@@ -53,6 +53,24 @@ pub struct CellProblems {
 impl CellProblems {
     /// How many problems are kept for display.
     pub const MAX_LISTED: usize = 20;
+
+    /// Nothing when `total` is 0; else [`Error::Cells`] for `source` with
+    /// the first [`CellProblems::MAX_LISTED`] of `problems` (in file order)
+    /// and the count of all of them.
+    ///
+    /// # Errors
+    /// [`Error::Cells`] when `total` > 0.
+    pub fn check(source: &str, mut problems: Vec<CellProblem>, total: usize) -> Result<()> {
+        if total == 0 {
+            return Ok(());
+        }
+        problems.truncate(Self::MAX_LISTED);
+        Err(Error::Cells(CellProblems {
+            source: source.to_string(),
+            problems,
+            total,
+        }))
+    }
 }
 
 impl fmt::Display for CellProblems {

@@ -357,13 +357,7 @@ pub fn apply(
             }
         }
     }
-    if total > 0 {
-        return Err(Error::Cells(CellProblems {
-            source: table.source.clone(),
-            problems,
-            total,
-        }));
-    }
+    CellProblems::check(&table.source, problems, total)?;
     Ok(out)
 }
 

@@ -5,7 +5,7 @@ use super::cells::read_number;
 use super::route::Route;
 use super::{check_route_columns, compute_row, is_inequality, shorten};
 use super::{ColumnMap, Measure, RowEffect, RowValues};
-use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::error::{CellProblem, CellProblems, Result};
 use crate::input::number::{invalid_hint, Cell};
 use crate::input::{Column, Table};
 use crate::support::pieces;
@@ -165,13 +165,7 @@ pub fn compute(
         let room = CellProblems::MAX_LISTED - problems.len();
         problems.extend(r.problems.into_iter().take(room));
     }
-    if total > 0 {
-        return Err(Error::Cells(CellProblems {
-            source: table.source.clone(),
-            problems,
-            total,
-        }));
-    }
+    CellProblems::check(&table.source, problems, total)?;
     Ok(out)
 }
 

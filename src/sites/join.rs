@@ -138,15 +138,8 @@ pub fn join(
         }
         rows.insert(id, i);
     }
-    if !problems.is_empty() {
-        let total = problems.len();
-        problems.truncate(CellProblems::MAX_LISTED);
-        return Err(Error::Cells(CellProblems {
-            source: source.to_string(),
-            problems,
-            total,
-        }));
-    }
+    let total = problems.len();
+    CellProblems::check(source, problems, total)?;
     let mut without_info = Vec::new();
     let mut used = vec![false; table.len()];
     for site in &mut report.sites {

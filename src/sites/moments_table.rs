@@ -7,7 +7,7 @@
 use super::first_pass::SiteSummary;
 use super::moments::Moments;
 use super::settings::Layout;
-use crate::error::{CellProblem, CellProblems, Error, Result};
+use crate::error::{CellProblem, CellProblems, Result};
 use crate::input::number::{parse_cell, Cell};
 use crate::input::{self, ColumnRequest};
 use std::collections::HashMap;
@@ -192,13 +192,7 @@ pub fn read_moments(
             moments: Moments::from_parts(n as u64, mean, &full),
         });
     }
-    if total > 0 {
-        return Err(Error::Cells(CellProblems {
-            source: source.to_string(),
-            problems,
-            total,
-        }));
-    }
+    CellProblems::check(source, problems, total)?;
     Ok(MomentsTable {
         sites,
         layout,

@@ -631,13 +631,7 @@ pub(super) fn finish(
     state: RowState,
     delimiter: u8,
 ) -> Result<PassSummary> {
-    if tally.problems.total > 0 {
-        return Err(Error::Cells(CellProblems {
-            source: source.to_string(),
-            problems: tally.problems.list,
-            total: tally.problems.total,
-        }));
-    }
+    CellProblems::check(source, tally.problems.list, tally.problems.total)?;
     if tally.rows == 0 {
         return Err(format_error(
             source,
