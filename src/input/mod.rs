@@ -356,15 +356,14 @@ pub fn separator_line(bytes: &[u8]) -> (Option<u8>, std::borrow::Cow<'_, [u8]>) 
 }
 
 /// The delimiter a first line `sep=X` names and the length of that line's
-/// text (up to, not including, its `\n`), for readers that skip it in a
-/// stream (see [`separator_line`]).
+/// text (up to, not including, its line break: `\n`, `\r\n` or a lone
+/// `\r`), for readers that skip it in a stream (see [`separator_line`]).
 pub fn separator_text(bytes: &[u8]) -> Option<(u8, usize)> {
     let end = bytes
         .iter()
-        .position(|&b| b == b'\n')
+        .position(|&b| b == b'\n' || b == b'\r')
         .unwrap_or(bytes.len());
-    let first = bytes[..end].strip_suffix(b"\r").unwrap_or(&bytes[..end]);
-    match first {
+    match &bytes[..end] {
         [b's' | b'S', b'e' | b'E', b'p' | b'P', b'=', d @ (b',' | b';' | b'\t')] => Some((*d, end)),
         _ => None,
     }

@@ -110,6 +110,14 @@ fn a_sep_line_names_the_delimiter_and_is_not_the_header() {
     assert_eq!(t.lines, vec![3, 4]);
     let t = parse_table("x", b"SEP=,\r\na,b\r\n1,2\r\n", &[req("a", true)]).unwrap();
     assert_eq!((t.delimiter, t.lines.clone()), (b',', vec![3]));
+    // Lines ended by a lone carriage return (as old spreadsheet programs
+    // write them): the sep line ends at the first one.
+    let t = parse_table("x", b"sep=;\ra;b\r1,5;2\r3;4\r", &[req("b", true)]).unwrap();
+    assert_eq!(
+        (t.delimiter, t.headers.clone()),
+        (b';', vec!["a".to_string(), "b".to_string()])
+    );
+    assert_eq!(t.column(0).map(|c| c.get(1)), Some("4"));
 }
 
 #[test]
