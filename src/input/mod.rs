@@ -372,15 +372,19 @@ pub fn separator_text(bytes: &[u8]) -> Option<(u8, usize)> {
 /// The line on which a double quote opens a value that is never closed, if
 /// one does: in CSV a quote inside a quoted value is doubled, so the quotes
 /// of a well-formed file pair up and an odd count means one is left open.
+/// Lines end at `\n`, `\r\n` or a `\r` alone.
 pub fn unclosed_quote(bytes: &[u8]) -> Option<u64> {
     let mut open_at = None;
     let mut line = 1u64;
+    let mut after_cr = false;
     for &b in bytes {
         match b {
             b'"' => open_at = if open_at.is_some() { None } else { Some(line) },
-            b'\n' => line += 1,
+            b'\n' if after_cr => {}
+            b'\n' | b'\r' => line += 1,
             _ => {}
         }
+        after_cr = b == b'\r';
     }
     open_at
 }

@@ -17,8 +17,9 @@
 //! Line starts: a line break is `\n`, `\r\n` or a `\r` alone, as the csv
 //! crate splits records outside quotes; a boundary is therefore only a true
 //! record boundary when no quoted value spans it, which the callers ensure
-//! by stopping at the first piece that holds a `"`. Line numbers count `\n`
-//! bytes only, as [`super::LineCounter`] does.
+//! by stopping at the first piece that holds a `"`. Line numbers count the
+//! same line breaks, as [`super::LineCounter`] does: each `\n`, and each
+//! `\r` not followed by `\n`.
 
 use std::collections::BTreeMap;
 use std::fs::File;
@@ -52,21 +53,32 @@ pub(crate) fn read_exact_at(file: &File, buf: &mut [u8], offset: u64) -> std::io
     }
 }
 
-/// The number of `\n` bytes in `bytes` (the line count that
-/// [`super::LineCounter`] keeps).
-pub(crate) fn newlines(bytes: &[u8]) -> u64 {
-    bytes.iter().filter(|&&b| b == b'\n').count() as u64
+/// The number of line breaks in `bytes[..end]` (the line count that
+/// [`super::LineCounter`] keeps): each `\n`, and each `\r` whose next byte,
+/// looked up in `bytes` beyond `end` too, is not `\n` (a `\r` that ends
+/// `bytes` is a break of its own: `bytes` must run to the end of the file or
+/// at least one byte past `end`).
+pub(crate) fn line_breaks(bytes: &[u8], end: usize) -> u64 {
+    (0..end)
+        .filter(|&i| match bytes[i] {
+            b'\n' => true,
+            b'\r' => bytes.get(i + 1) != Some(&b'\n'),
+            _ => false,
+        })
+        .count() as u64
 }
 
-/// Skips the line breaks (`\n`, `\r`) at `bytes[pos..]`, adding the `\n`
-/// bytes to `count`; the position of the next line's first byte (or the
-/// end). Empty lines are skipped this way, as the csv crate skips them.
+/// Skips the line breaks (`\n`, `\r`) at `bytes[pos..]`, adding the
+/// breaks to `count` (each `\n`, and each `\r` not followed by `\n`: a
+/// piece never ends between the two bytes of a `\r\n`); the position of the
+/// next line's first byte (or the end). Empty lines are skipped this way,
+/// as the csv crate skips them.
 #[inline]
 pub(crate) fn skip_breaks(bytes: &[u8], mut pos: usize, count: &mut u64) -> usize {
     while let Some(&b) = bytes.get(pos) {
         match b {
             b'\n' => *count += 1,
-            b'\r' => {}
+            b'\r' => *count += u64::from(bytes.get(pos + 1) != Some(&b'\n')),
             _ => break,
         }
         pos += 1;

@@ -105,6 +105,9 @@ struct Scan {
     /// The line on which the quote now open was opened.
     open_at: Option<u64>,
     line: u64,
+    /// Whether the last byte fed was a `\r` (a `\n` right after it ends
+    /// the same line).
+    after_cr: bool,
     /// The header line (up to its first line break outside quotes).
     header: Vec<u8>,
     header_done: bool,
@@ -116,6 +119,7 @@ impl Default for Scan {
         Scan {
             open_at: None,
             line: 1,
+            after_cr: false,
             header: Vec::new(),
             header_done: false,
             quoted: false,
@@ -146,9 +150,11 @@ impl Scan {
                         Some(self.line)
                     }
                 }
-                b'\n' => self.line += 1,
+                b'\n' if self.after_cr => {}
+                b'\n' | b'\r' => self.line += 1,
                 _ => {}
             }
+            self.after_cr = b == b'\r';
         }
     }
 
@@ -190,7 +196,9 @@ impl<R> LineCounter<R> {
     /// The 1-based line of a record that the parser says starts at byte
     /// `offset`: the line breaks before it are counted, and so are those
     /// right at `offset` (the parser's offset points at the line breaks
-    /// of blank lines before the record).
+    /// of blank lines before the record). A break is a `\n`, or a `\r` not
+    /// followed by `\n` (the byte after a counted `\r` has been read: the
+    /// parser has read the record that starts after it).
     pub(crate) fn line_at(&mut self, offset: u64) -> u64 {
         let mut end = offset;
         while let Some(&b) = self.breaks.front() {
@@ -201,7 +209,9 @@ impl<R> LineCounter<R> {
             if at == end {
                 end += 1;
             }
-            self.line += b & 1;
+            let newline = b & 1 == 1;
+            let crlf = !newline && self.breaks.get(1) == Some(&(((at + 1) << 1) | 1));
+            self.line += u64::from(newline || !crlf);
             self.breaks.pop_front();
         }
         self.line

@@ -52,7 +52,12 @@ pub(super) fn read(
         return None;
     }
     let len = meta.len();
-    let (head, delimiter, headers, data_start) = header(source, &file, len)?;
+    let Header {
+        delimiter,
+        headers,
+        data_start,
+        first_line,
+    } = header(source, &file, len)?;
     let indices = match_requests(source, &headers, requests).ok()?;
     let mut columns = empty_columns(&headers, &indices);
     let wanted: Vec<usize> = indices.iter().flatten().copied().collect();
@@ -60,7 +65,7 @@ pub(super) fn read(
         file: &file,
         len,
         data_start,
-        first_line: 1 + pieces::newlines(&head),
+        first_line,
         size,
     };
     let shape = Shape {
@@ -105,10 +110,22 @@ pub(super) fn read(
     })
 }
 
-/// The bytes before the data (none holding a `"`), the delimiter, the
-/// header names and the offset where the data start, read as the streamed
-/// reading reads them; None when the file must be read as a stream.
-fn header(source: &str, file: &File, len: u64) -> Option<(Vec<u8>, u8, Vec<String>, u64)> {
+/// What the header row tells the piece-wise reading.
+struct Header {
+    delimiter: u8,
+    headers: Vec<String>,
+    /// The byte where the data rows start.
+    data_start: u64,
+    /// The line of that byte (for a `\r\n` that ends the header row, the
+    /// line of the `\r`: the `\n` starts the data and is counted there).
+    first_line: u64,
+}
+
+/// The delimiter, the header names, the offset where the data start and
+/// the line it is on, read as the streamed reading reads them; None when
+/// the file must be read as a stream (among other cases, when the bytes
+/// before the data hold a `"`).
+fn header(source: &str, file: &File, len: u64) -> Option<Header> {
     let mut head = vec![0; len.min(HEAD) as usize];
     read_exact_at(file, &mut head, 0).ok()?;
     let start = if head.starts_with(b"\xEF\xBB\xBF") {
@@ -138,15 +155,25 @@ fn header(source: &str, file: &File, len: u64) -> Option<(Vec<u8>, u8, Vec<Strin
     let headers = read_headers(source, &mut reader).ok()?;
     let data_start = (skip as u64 + reader.position().byte()).min(len);
     drop(reader);
-    head.resize(data_start as usize, 0);
-    if data_start > HEAD.min(len) {
+    // One byte past the header row, when the file has it: whether a `\r`
+    // that ends the row is a line break of its own or half of a `\r\n`.
+    let through = (data_start + 1).min(len);
+    head.resize(through as usize, 0);
+    if through > HEAD.min(len) {
         read_exact_at(file, &mut head, 0).ok()?;
     }
+    let first_line = 1 + pieces::line_breaks(&head, data_start as usize);
+    head.truncate(data_start as usize);
     let blank = head[start..].iter().all(u8::is_ascii_whitespace);
     if blank || head.contains(&b'"') {
         return None;
     }
-    Some((head, delimiter, headers, data_start))
+    Some(Header {
+        delimiter,
+        headers,
+        data_start,
+        first_line,
+    })
 }
 
 /// What every piece is read with.

@@ -91,6 +91,17 @@ fn line_numbers_with_crlf_and_quoted_newlines() {
 }
 
 #[test]
+fn line_numbers_with_lone_carriage_returns() {
+    // Lines ended by a `\r` alone, with blank lines, and mixed with the
+    // other two endings.
+    let t = parse_table("x", b"a,b\r1,2\r\r\r3,4\r", &[req("a", true)]).unwrap();
+    assert_eq!(t.lines, vec![2, 5]);
+    let t = parse_table("x", b"a,b\r\n1,2\r3,4\n5,6\r\n\r7,8", &[req("a", true)]).unwrap();
+    assert_eq!(t.lines, vec![2, 3, 4, 6]);
+    assert_eq!(unclosed_quote(b"a,b\r1,2\r\n3,\"x\r"), Some(3));
+}
+
+#[test]
 fn utf16_is_named_not_read_as_spaced_text() {
     let text = "study,effect\na,1\n";
     let le: Vec<u8> = text.encode_utf16().flat_map(|u| u.to_le_bytes()).collect();

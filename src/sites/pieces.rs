@@ -121,13 +121,15 @@ pub(super) fn for_each_piece_of<S: RowSink>(
     }
     let data_start = (skipped + records.reader.position().byte()).min(meta.len());
     drop(records);
-    let mut head = vec![0; data_start as usize];
+    // One byte past the header row, when the file has it: whether a `\r`
+    // that ends the row is a line break of its own or half of a `\r\n`.
+    let mut head = vec![0; (data_start + 1).min(meta.len()) as usize];
     read_exact_at(&file, &mut head, 0).map_err(io)?;
     let layout = Layout {
         file: &file,
         len: meta.len(),
         data_start,
-        first_line: 1 + pieces::newlines(&head),
+        first_line: 1 + pieces::line_breaks(&head, data_start as usize),
         size,
     };
     let job = Job {

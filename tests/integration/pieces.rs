@@ -107,3 +107,47 @@ fn issue_20_a_file_read_in_pieces_reports_as_the_stream() {
     assert!(message.contains(&want), "{message}");
     assert_eq!(Err(message), stdin);
 }
+
+/// Lines ended by a lone carriage return (the old Mac OS convention) or by
+/// `\n` alone are numbered as those ended by `\r\n`, in pieces and as a
+/// stream: a ragged row far into the file is named on the same line in all.
+#[test]
+fn lines_ended_by_a_lone_carriage_return_are_numbered() {
+    let csv = invented_large_csv(40_000).into_bytes();
+    let at = {
+        let label = "study number 030011 of an invented set,";
+        csv.windows(label.len())
+            .position(|w| w == label.as_bytes())
+            .unwrap()
+            + 38
+    };
+    let mut ragged = csv.clone();
+    assert_eq!(ragged[at], b',');
+    ragged[at] = b';';
+    let want = format!(
+        "line {} has 3 fields but the header has 4",
+        line_of(&csv, at)
+    );
+    // The file's `\r\n` made `\r` (or `\n`) alone.
+    let without = |bytes: &[u8], dropped: u8| -> Vec<u8> {
+        bytes.iter().copied().filter(|&b| b != dropped).collect()
+    };
+    for bytes in [without(&ragged, b'\n'), without(&ragged, b'\r')] {
+        let [file, stdin] = fit_json_both_ways(&bytes);
+        let message = file.unwrap_err();
+        assert!(message.contains(&want), "{message}");
+        assert_eq!(Err(message), stdin);
+    }
+    // The file without the ragged row, its lines ended by `\r` alone, gives
+    // the report of the `\r\n` file (but for the file's hash).
+    let unhashed = |r: Result<serde_json::Value, String>| {
+        r.map(|mut v| {
+            v["input"]["sha256"] = serde_json::Value::Null;
+            v
+        })
+    };
+    let [file, stdin] = fit_json_both_ways(&without(&csv, b'\n')).map(unhashed);
+    let [crlf, _] = fit_json_both_ways(&csv).map(unhashed);
+    assert_eq!(file, crlf);
+    assert_eq!(file, stdin);
+}
