@@ -6,9 +6,10 @@
 //! per field, one column per moderator (numbers, or level codes), notes and
 //! cells only where there are any — the same records take about 100 bytes
 //! a study with three numeric moderators. A fit hands its columns over
-//! whole ([`StudyColumns`], moved, not copied). A [`Study`] is built when it is read ([`StudyList::get`],
-//! [`StudyList::iter`]), and the JSON serialisation writes one after the
-//! other, so `--json` never holds them all as values. The JSON and its
+//! whole ([`StudyColumns`], moved, not copied). A [`Study`] is built when
+//! it is read ([`StudyList::get`], [`StudyList::iter`]), and the JSON
+//! serialisation writes one after the other, so `--json` never holds them
+//! all as values. The JSON and its
 //! schema are exactly those of a `Vec<Study>`.
 
 pub use super::study_values::ModeratorColumn;
@@ -47,28 +48,6 @@ impl StudyList {
     /// An empty list.
     pub fn new() -> Self {
         Self::default()
-    }
-
-    /// An empty list with room for `n` studies with labels of
-    /// `label_bytes` bytes in all: the per-study columns are allocated
-    /// once, at their final size (growing them by doubling would leave
-    /// freed blocks of up to half their size each, which the allocator
-    /// keeps).
-    pub fn with_capacity(n: usize, label_bytes: usize) -> Self {
-        StudyList {
-            labels: Texts::with_capacity_bytes(n, label_bytes),
-            lines: Vec::with_capacity(n),
-            effect: Vec::with_capacity(n),
-            variance: Vec::with_capacity(n),
-            ci_low: Vec::with_capacity(n),
-            ci_high: Vec::with_capacity(n),
-            weight: Vec::with_capacity(n),
-            fitted: Vec::with_capacity(n),
-            residual: Vec::with_capacity(n),
-            std_residual: Vec::with_capacity(n),
-            routes: Vec::with_capacity(n),
-            ..Self::default()
-        }
     }
 
     /// Number of studies.
@@ -391,17 +370,43 @@ mod tests {
         assert!(list.any_note());
         assert!(!list.any_shrunken());
         assert_eq!(list.effects()[3], 0.3);
-        // A list made with room for the records holds the same records.
-        let labels: usize = records.iter().map(|r| r.study.len()).sum();
-        let mut sized = StudyList::with_capacity(records.len(), labels);
-        for r in &records {
-            sized.push(r.clone());
+        // A list handed its columns whole holds the same records.
+        let column = |f: fn(&Study) -> f64| records.iter().map(f).collect::<Vec<f64>>();
+        let whole: StudyList = StudyColumns {
+            labels: records.iter().map(|r| r.study.as_str()).collect(),
+            lines: records.iter().map(|r| r.line).collect(),
+            effect: column(|r| r.effect),
+            variance: column(|r| r.variance),
+            ci_low: column(|r| r.ci.ci_low),
+            ci_high: column(|r| r.ci.ci_high),
+            weight: column(|r| r.weight),
+            fitted: column(|r| r.fitted),
+            residual: column(|r| r.residual),
+            std_residual: records.iter().map(|r| r.std_residual).collect(),
+            moderators: vec![
+                ModeratorColumn::Numbers(column(|r| match r.moderators[0] {
+                    AtValue::Number(x) => x,
+                    AtValue::Level(_) => f64::NAN,
+                })),
+                ModeratorColumn::Levels {
+                    names: vec!["a".into(), "b".into(), "none".into()],
+                    codes: (0..records.len() as u32).map(|n| n % 3).collect(),
+                },
+            ],
+            notes: records
+                .iter()
+                .enumerate()
+                .filter_map(|(i, r)| r.note.clone().map(|n| (i, n)))
+                .collect(),
+            shrunken: Vec::new(),
+            routes: records.iter().map(|r| r.computed_from).collect(),
+            cells: records.iter().map(|r| r.cells.clone()).collect(),
         }
+        .into();
         assert_eq!(
-            serde_json::to_string(&sized).unwrap(),
+            serde_json::to_string(&whole).unwrap(),
             serde_json::to_string(&records).unwrap()
         );
-        assert!(sized.lines.capacity() >= records.len());
     }
 
     #[test]
