@@ -154,7 +154,7 @@ pub fn coefficients(fit: &ModelFit) -> Vec<CoefInference> {
         .map(|j| {
             let mut c = vec![0.0; fit.p];
             c[j] = 1.0;
-            wald_of(fit, &c, fit.beta[j], fit.cov[(j, j)].max(0.0).sqrt())
+            wald_of(fit, &c, fit.beta[j], coefficient_se(fit, j))
         })
         .collect()
 }
@@ -217,8 +217,14 @@ pub fn omnibus_statistic(fit: &ModelFit) -> Option<f64> {
 /// intervals and p-values (the same numbers bit for bit).
 pub fn coefficient_statistics(fit: &ModelFit) -> Vec<f64> {
     (0..fit.p)
-        .map(|j| fit.beta[j] / fit.cov[(j, j)].max(0.0).sqrt())
+        .map(|j| fit.beta[j] / coefficient_se(fit, j))
         .collect()
+}
+
+/// SE_j = √max(Cov_jj, 0), the one definition [`coefficients`] and
+/// [`coefficient_statistics`] share.
+fn coefficient_se(fit: &ModelFit, j: usize) -> f64 {
+    fit.cov[(j, j)].max(0.0).sqrt()
 }
 
 /// Test of every non-intercept coefficient (None for an intercept-only model).
