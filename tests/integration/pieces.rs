@@ -59,6 +59,14 @@ fn fit_json_both_ways(csv: &[u8]) -> [Result<serde_json::Value, String>; 2] {
     ]
 }
 
+/// Where study `i`'s row starts in a file of [`invented_large_csv`].
+fn row_start(csv: &[u8], i: usize) -> usize {
+    let label = format!("study number {i:06} of an invented set,");
+    csv.windows(label.len())
+        .position(|w| w == label.as_bytes())
+        .unwrap()
+}
+
 /// The file line (1-based) of the byte at `at`.
 fn line_of(bytes: &[u8], at: usize) -> usize {
     1 + bytes[..at].iter().filter(|&&b| b == b'\n').count()
@@ -75,12 +83,7 @@ fn issue_20_a_file_read_in_pieces_reports_as_the_stream() {
     let file = file.unwrap();
     assert_eq!(file["input"]["rows"], 40_000);
     assert_eq!(Ok(file), stdin);
-    let row = |i: usize| {
-        let label = format!("study number {i:06} of an invented set,");
-        csv.windows(label.len())
-            .position(|w| w == label.as_bytes())
-            .unwrap()
-    };
+    let row = |i: usize| row_start(&csv, i);
     // A delimiter lost far into the file.
     let mut ragged = csv.clone();
     let at = row(25_003) + 38;
@@ -114,13 +117,7 @@ fn issue_20_a_file_read_in_pieces_reports_as_the_stream() {
 #[test]
 fn lines_ended_by_a_lone_carriage_return_are_numbered() {
     let csv = invented_large_csv(40_000).into_bytes();
-    let at = {
-        let label = "study number 030011 of an invented set,";
-        csv.windows(label.len())
-            .position(|w| w == label.as_bytes())
-            .unwrap()
-            + 38
-    };
+    let at = row_start(&csv, 30_011) + 38;
     let mut ragged = csv.clone();
     assert_eq!(ragged[at], b',');
     ragged[at] = b';';
