@@ -118,8 +118,10 @@ impl EffectColumn {
 /// of one pass in row order, whatever the number of threads.
 ///
 /// # Errors
-/// [`Error::MissingColumn`](crate::error::Error::MissingColumn) when `effect` has none of its precision columns;
-/// [`Error::Cells`](crate::error::Error::Cells) listing every cell that is not a number or is out of range.
+/// [`Error::MissingColumn`](crate::error::Error::MissingColumn) when
+/// `effect` has none of its precision columns;
+/// [`Error::Cells`](crate::error::Error::Cells) listing every cell that is
+/// not a number or is out of range.
 pub fn compute(
     measure: Measure,
     map: &ColumnMap,

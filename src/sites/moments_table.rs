@@ -83,7 +83,8 @@ fn column_requests(layout: Layout) -> Vec<ColumnRequest> {
 /// `mean_xw` the product-term model.
 ///
 /// # Errors
-/// [`Error::MissingColumn`](crate::error::Error::MissingColumn) for a column the layout needs; [`Error::Cells`](crate::error::Error::Cells)
+/// [`Error::MissingColumn`](crate::error::Error::MissingColumn) for a column
+/// the layout needs; [`Error::Cells`](crate::error::Error::Cells)
 /// for a missing site id, a repeated site, a count that is not a positive
 /// whole number, a non-numeric value or a negative variance.
 pub fn read_moments(

@@ -38,9 +38,7 @@ impl Numbers {
             std::borrow::Cow::Owned(rows.iter().map(|i| self.0[i]).collect())
         }
     }
-}
 
-impl Numbers {
     /// The values of the rows `rows` (ascending, each at most once), in
     /// that order, the list given up: moved, not copied, when `rows` is
     /// every row.
