@@ -1,0 +1,411 @@
+//! The sums of one pass over the studies at τ² around coefficients β₀
+//! (the identities that use them are in [`super`]): one running sum per
+//! entry for any number of columns, and for up to eight columns a kernel
+//! that adds rows in lanes, a block at a time.
+
+use crate::model::wls::{chunks, count_pass, Data, Want, PARALLEL_MIN_ROWS};
+
+/// The sums of one pass at τ² around β₀ (p × p matrices row-major, upper
+/// triangle filled): M = X'WX, N₂ = X'W²X, N₃ = X'W³X (curvature), g = X'Wr₀,
+/// h = X'W²r₀, h₃ = X'W³r₀ (curvature) and the scalar sums.
+#[derive(Debug, Clone, Default)]
+pub(super) struct Sums {
+    pub(super) m: Vec<f64>,
+    pub(super) n2: Vec<f64>,
+    pub(super) n3: Vec<f64>,
+    pub(super) g: Vec<f64>,
+    pub(super) h: Vec<f64>,
+    pub(super) h3: Vec<f64>,
+    pub(super) sum_w: f64,
+    pub(super) sum_w2: f64,
+    pub(super) sum_wr2: f64,
+    pub(super) sum_w2r2: f64,
+    pub(super) sum_w3r2: f64,
+    pub(super) sum_log_vt: f64,
+}
+
+impl Sums {
+    /// Empties the sums, keeping the buffers' capacity.
+    pub(super) fn clear(&mut self) {
+        for t in [
+            &mut self.m,
+            &mut self.n2,
+            &mut self.n3,
+            &mut self.g,
+            &mut self.h,
+            &mut self.h3,
+        ] {
+            t.clear();
+        }
+        self.sum_w = 0.0;
+        self.sum_w2 = 0.0;
+        self.sum_wr2 = 0.0;
+        self.sum_w2r2 = 0.0;
+        self.sum_w3r2 = 0.0;
+        self.sum_log_vt = 0.0;
+    }
+
+    fn add(&mut self, o: &Sums) {
+        let pairs = [
+            (&mut self.m, &o.m),
+            (&mut self.n2, &o.n2),
+            (&mut self.n3, &o.n3),
+            (&mut self.g, &o.g),
+            (&mut self.h, &o.h),
+            (&mut self.h3, &o.h3),
+        ];
+        for (t, x) in pairs {
+            if t.is_empty() {
+                t.clone_from(x);
+            } else {
+                for (a, b) in t.iter_mut().zip(x) {
+                    *a += b;
+                }
+            }
+        }
+        self.sum_w += o.sum_w;
+        self.sum_w2 += o.sum_w2;
+        self.sum_wr2 += o.sum_wr2;
+        self.sum_w2r2 += o.sum_w2r2;
+        self.sum_w3r2 += o.sum_w3r2;
+        self.sum_log_vt += o.sum_log_vt;
+    }
+}
+
+/// The sums over fixed chunks of rows, added in chunk order (so the result
+/// does not depend on the number of threads), in parallel for large k,
+/// written into `out` (whose buffers are reused: a serial pass allocates
+/// nothing once they have their size).
+pub(super) fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
+    use rayon::prelude::*;
+    count_pass();
+    if data.k() < PARALLEL_MIN_ROWS {
+        return serial(data, tau2, want, beta0, out);
+    }
+    let parts: Vec<Sums> = chunks(data)
+        .par_iter()
+        .map(|d| {
+            let mut s = Sums::default();
+            serial(d, tau2, want, beta0, &mut s);
+            s
+        })
+        .collect();
+    out.clear();
+    for part in &parts {
+        out.add(part);
+    }
+}
+
+fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
+    macro_rules! fixed {
+        ($p:literal) => {
+            match (want.log_terms, want.curvature) {
+                (false, false) => fixed::<$p, false, false>(data, tau2, beta0, out),
+                (true, false) => fixed::<$p, true, false>(data, tau2, beta0, out),
+                (false, true) => fixed::<$p, false, true>(data, tau2, beta0, out),
+                (true, true) => fixed::<$p, true, true>(data, tau2, beta0, out),
+            }
+        };
+    }
+    match data.p {
+        1 => fixed!(1),
+        2 => fixed!(2),
+        3 => fixed!(3),
+        4 => fixed!(4),
+        5 => fixed!(5),
+        6 => fixed!(6),
+        7 => fixed!(7),
+        8 => fixed!(8),
+        _ => general(data, tau2, want, beta0, out),
+    }
+}
+
+/// Rows summed side by side in [`fixed`]: each sum keeps `LANES` partial
+/// sums, row i of a chunk going to lane i mod `LANES`, and the lanes are
+/// added in lane order at the end. Every partial sum is a plain in-order
+/// sum, so the result depends only on the rows, never on the thread count;
+/// the independent lanes let the compiler use vector instructions (two or
+/// four rows per instruction) where one running sum per entry could not.
+const LANES: usize = 4;
+
+/// Rows per block: [`fixed`] copies a block's columns, weights and
+/// residuals into small arrays (a few kB, in the first-level cache) and then
+/// adds each group of sums in its own loop, so that group's partial sums
+/// stay in registers (all of them at once would not fit, and each row would
+/// store some thirty sums back to memory). A multiple of [`LANES`].
+const BLOCK: usize = 64;
+
+type Lane = [f64; LANES];
+type Column = [f64; BLOCK];
+
+/// Lane `g / LANES` of a block column: its rows g … g + LANES − 1.
+#[inline(always)]
+fn lane(column: &Column, g: usize) -> Lane {
+    column[g..g + LANES]
+        .try_into()
+        .expect("a lane lies inside its block")
+}
+
+/// `acc[l] += a[l] * b[l]` for every lane.
+#[inline(always)]
+fn add_product(acc: &mut Lane, a: &Lane, b: &Lane) {
+    for l in 0..LANES {
+        acc[l] += a[l] * b[l];
+    }
+}
+
+/// a[l] * b[l] for every lane.
+#[inline(always)]
+fn times(a: &Lane, b: &Lane) -> Lane {
+    std::array::from_fn(|l| a[l] * b[l])
+}
+
+/// The lanes of one partial sum added in lane order.
+fn total(lane: &Lane) -> f64 {
+    lane.iter().fold(0.0, |t, x| t + x)
+}
+
+/// Σ f·x_a·x_c over the block's first `n` rows (a multiple of [`LANES`])
+/// added to the upper triangle of `acc` (a ≤ c), the product taken as
+/// (f·x_a)·x_c; one row a at a time, so its P − a partial sums stay in
+/// registers.
+#[inline(always)]
+fn add_matrix<const P: usize>(acc: &mut [[Lane; P]; P], f: &Column, x: &[Column; P], n: usize) {
+    for a in 0..P {
+        let mut row = acc[a];
+        for g in (0..n).step_by(LANES) {
+            let fx = times(&lane(f, g), &lane(&x[a], g));
+            for c in a..P {
+                add_product(&mut row[c], &fx, &lane(&x[c], g));
+            }
+        }
+        acc[a] = row;
+    }
+}
+
+/// Σ x_a·f over the block's first `n` rows added to `acc[a]`, every a.
+#[inline(always)]
+fn add_vector<const P: usize>(acc: &mut [Lane; P], f: &Column, x: &[Column; P], n: usize) {
+    let mut t = *acc;
+    for g in (0..n).step_by(LANES) {
+        let fl = lane(f, g);
+        for a in 0..P {
+            add_product(&mut t[a], &lane(&x[a], g), &fl);
+        }
+    }
+    *acc = t;
+}
+
+/// Σ a·b over the block's first `n` rows added to `acc`.
+#[inline(always)]
+fn add_dot(acc: &mut Lane, a: &Column, b: &Column, n: usize) {
+    let mut t = *acc;
+    for g in (0..n).step_by(LANES) {
+        add_product(&mut t, &lane(a, g), &lane(b, g));
+    }
+    *acc = t;
+}
+
+/// One block's per-row values, column by column: the design columns x_a,
+/// and with w = 1/(v + τ²) and r = y − x'β₀ the products each sum needs.
+/// Rows past the block's end (up to a multiple of [`LANES`]) are 0, so
+/// they add only zeros.
+struct Block<const P: usize> {
+    x: [Column; P],
+    r: Column,
+    w: Column,
+    w2: Column,
+    w3: Column,
+    wr: Column,
+    w2r: Column,
+    w3r: Column,
+    ones: Column,
+}
+
+/// The partial sums of [`fixed`], one [`Lane`] per sum.
+struct LaneSums<const P: usize> {
+    m: [[Lane; P]; P],
+    n2: [[Lane; P]; P],
+    n3: [[Lane; P]; P],
+    g: [Lane; P],
+    h: [Lane; P],
+    h3: [Lane; P],
+    /// Σw, Σw², Σwr², Σw²r², Σw³r², Σ ln(v + τ²).
+    scalars: [Lane; 6],
+}
+
+impl<const P: usize> LaneSums<P> {
+    fn new() -> Self {
+        let z = [0.0; LANES];
+        LaneSums {
+            m: [[z; P]; P],
+            n2: [[z; P]; P],
+            n3: [[z; P]; P],
+            g: [z; P],
+            h: [z; P],
+            h3: [z; P],
+            scalars: [z; 6],
+        }
+    }
+
+    /// Adds the block's first `n` rows (a multiple of [`LANES`]).
+    #[inline(always)]
+    fn add_block<const CURV: bool>(&mut self, b: &Block<P>, n: usize) {
+        add_dot(&mut self.scalars[0], &b.w, &b.ones, n);
+        add_dot(&mut self.scalars[2], &b.wr, &b.r, n);
+        add_dot(&mut self.scalars[3], &b.w2r, &b.r, n);
+        add_vector(&mut self.g, &b.wr, &b.x, n);
+        add_vector(&mut self.h, &b.w2r, &b.x, n);
+        add_matrix(&mut self.m, &b.w, &b.x, n);
+        add_matrix(&mut self.n2, &b.w2, &b.x, n);
+        if CURV {
+            add_dot(&mut self.scalars[1], &b.w2, &b.ones, n);
+            add_dot(&mut self.scalars[4], &b.w3r, &b.r, n);
+            add_vector(&mut self.h3, &b.w3r, &b.x, n);
+            add_matrix(&mut self.n3, &b.w3, &b.x, n);
+        }
+    }
+}
+
+/// The sums for `P` columns, into `out`; `LOG` and `CURV` choose the
+/// optional parts at compile time, so the loops have no branches. Rows go
+/// [`BLOCK`] at a time, each block's sums [`LANES`] rows at a time.
+pub(super) fn fixed<const P: usize, const LOG: bool, const CURV: bool>(
+    data: &Data<'_>,
+    tau2: f64,
+    beta0: &[f64],
+    out: &mut Sums,
+) {
+    let b0: &[f64; P] = beta0.try_into().expect("p coefficients");
+    let mut acc = LaneSums::<P>::new();
+    let zero = [0.0; BLOCK];
+    let mut b = Block::<P> {
+        x: [zero; P],
+        r: zero,
+        w: zero,
+        w2: zero,
+        w3: zero,
+        wr: zero,
+        w2r: zero,
+        w3r: zero,
+        ones: [1.0; BLOCK],
+    };
+    let blocks = data
+        .x
+        .chunks(BLOCK * P)
+        .zip(data.v.chunks(BLOCK))
+        .zip(data.y.chunks(BLOCK));
+    for ((xs, vs), ys) in blocks {
+        for (i, xi) in xs.chunks_exact(P).enumerate() {
+            for (column, &xa) in b.x.iter_mut().zip(xi) {
+                column[i] = xa;
+            }
+        }
+        // Element by element (so in vector instructions): the weights,
+        // the residuals and their products.
+        for (i, (&vi, &yi)) in vs.iter().zip(ys).enumerate() {
+            let w = 1.0 / (vi + tau2);
+            let mut fit = 0.0;
+            for (column, &ba) in b.x.iter().zip(b0) {
+                fit += column[i] * ba;
+            }
+            let r = yi - fit;
+            let wr = w * r;
+            let w2r = w * wr;
+            (b.r[i], b.w[i], b.w2[i], b.wr[i], b.w2r[i]) = (r, w, w * w, wr, w2r);
+            if CURV {
+                (b.w3[i], b.w3r[i]) = (w * w * w, w * w2r);
+            }
+        }
+        if LOG {
+            for (i, &vi) in vs.iter().enumerate() {
+                acc.scalars[5][i % LANES] += (vi + tau2).ln();
+            }
+        }
+        // The last block's rows up to a whole lane are empty.
+        let n = ys.len().div_ceil(LANES) * LANES;
+        for i in ys.len()..n {
+            for col in b.x.iter_mut().chain([
+                &mut b.r, &mut b.w, &mut b.w2, &mut b.w3, &mut b.wr, &mut b.w2r, &mut b.w3r,
+            ]) {
+                col[i] = 0.0;
+            }
+        }
+        acc.add_block::<CURV>(&b, n);
+    }
+    out.clear();
+    let s = out;
+    let [sum_w, sum_w2, sum_wr2, sum_w2r2, sum_w3r2, sum_log_vt] = acc.scalars.map(|t| total(&t));
+    s.sum_w = sum_w;
+    s.sum_wr2 = sum_wr2;
+    s.sum_w2r2 = sum_w2r2;
+    if LOG {
+        s.sum_log_vt = sum_log_vt;
+    }
+    if CURV {
+        s.sum_w2 = sum_w2;
+        s.sum_w3r2 = sum_w3r2;
+    }
+    let upper = |t: &[[Lane; P]; P]| -> Vec<f64> {
+        (0..P)
+            .flat_map(|a| (0..P).map(move |c| if c >= a { total(&t[a][c]) } else { 0.0 }))
+            .collect()
+    };
+    s.m.extend(upper(&acc.m));
+    s.n2.extend(upper(&acc.n2));
+    s.g.extend(acc.g.iter().map(total));
+    s.h.extend(acc.h.iter().map(total));
+    if CURV {
+        s.n3.extend(upper(&acc.n3));
+        s.h3.extend(acc.h3.iter().map(total));
+    }
+}
+
+/// [`fixed`] for any number of columns.
+pub(super) fn general(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
+    let p = data.p;
+    let curv = want.curvature;
+    out.clear();
+    let s = out;
+    s.m.resize(p * p, 0.0);
+    s.n2.resize(p * p, 0.0);
+    s.g.resize(p, 0.0);
+    s.h.resize(p, 0.0);
+    if curv {
+        s.n3.resize(p * p, 0.0);
+        s.h3.resize(p, 0.0);
+    }
+    for ((xi, &vi), &yi) in data.x.chunks_exact(p).zip(data.v).zip(data.y) {
+        let vt = vi + tau2;
+        let w = 1.0 / vt;
+        if want.log_terms {
+            s.sum_log_vt += vt.ln();
+        }
+        let fit: f64 = xi.iter().zip(beta0).map(|(x, b)| x * b).sum();
+        let r = yi - fit;
+        let (w2, wr) = (w * w, w * r);
+        let (w2r, w3) = (w * wr, w2 * w);
+        let w3r = w * w2r;
+        s.sum_w += w;
+        s.sum_wr2 += wr * r;
+        s.sum_w2r2 += w2r * r;
+        if curv {
+            s.sum_w2 += w2;
+            s.sum_w3r2 += w3r * r;
+        }
+        for a in 0..p {
+            s.g[a] += xi[a] * wr;
+            s.h[a] += xi[a] * w2r;
+            for c in a..p {
+                s.m[a * p + c] += w * xi[a] * xi[c];
+                s.n2[a * p + c] += w2 * xi[a] * xi[c];
+            }
+            if curv {
+                s.h3[a] += xi[a] * w3r;
+                for c in a..p {
+                    s.n3[a * p + c] += w3 * xi[a] * xi[c];
+                }
+            }
+        }
+    }
+}
