@@ -108,43 +108,81 @@ pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
 }
 
 /// [`standardise`] writing X̃ over X (no second k × p matrix): returns A and
-/// ln|det A|. Each column is read whole (mean, largest deviation, sum of
-/// squares) before it is overwritten, and no column reads another, so the
-/// values are the same bits as those of a copy.
+/// ln|det A|. Each column's mean, largest deviation and sum of squares are
+/// read before any value is overwritten, and no column reads another, so
+/// the values are the same bits as those of a copy. The design is read row
+/// by row (four sweeps over the rows in all, each keeping one running value
+/// per column, every sum in row order).
 pub(crate) fn standardise_in_place(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
+    use rayon::prelude::*;
+    let rows = || x.chunks_exact(p.max(1)).take(k);
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.
-    let has_intercept = p > 0 && (0..k).all(|i| x[i * p] == 1.0);
+    let has_intercept = p > 0 && rows().all(|r| r[0] == 1.0);
     let first = usize::from(has_intercept);
+    let mean: Vec<f64> = if has_intercept {
+        let mut sum = vec![-0.0; p];
+        for r in rows() {
+            for (s, v) in sum.iter_mut().zip(r).skip(first) {
+                *s += v;
+            }
+        }
+        sum.iter().map(|s| s / k as f64).collect()
+    } else {
+        vec![0.0; p]
+    };
+    // The SD through the largest deviation, so the squares neither
+    // underflow (values near 1e-300) nor overflow (near 1e300).
+    let mut big = vec![0.0f64; p];
+    for r in rows() {
+        for ((b, v), m) in big.iter_mut().zip(r).zip(&mean).skip(first) {
+            *b = b.max((v - m).abs());
+        }
+    }
+    let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
+    let mut ss = vec![-0.0; p];
+    for r in rows() {
+        for (j, (s, v)) in ss.iter_mut().zip(r).enumerate().skip(first) {
+            if scalable[j] {
+                *s += ((v - mean[j]) / big[j]).powi(2);
+            }
+        }
+    }
+    let sd: Vec<f64> = (0..p)
+        .map(|j| {
+            let sd = if scalable[j] {
+                big[j] * (ss[j] / k as f64).sqrt()
+            } else {
+                0.0
+            };
+            if sd > 0.0 && sd.is_finite() {
+                sd
+            } else {
+                1.0
+            }
+        })
+        .collect();
+    let scale_row = |r: &mut [f64]| {
+        for j in first..p {
+            r[j] = (r[j] - mean[j]) / sd[j];
+        }
+    };
+    if p > 0 && first < p {
+        if k < wls::PARALLEL_MIN_ROWS {
+            x.chunks_exact_mut(p).take(k).for_each(scale_row);
+        } else {
+            x[..k * p].par_chunks_exact_mut(p).for_each(scale_row);
+        }
+    }
     let mut a = DMatrix::identity(p, p);
     let mut log_det_a = 0.0;
     for j in first..p {
-        let mean = if has_intercept {
-            (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64
-        } else {
-            0.0
-        };
-        // The SD through the largest deviation, so the squares neither
-        // underflow (values near 1e-300) nor overflow (near 1e300).
-        let big = (0..k).fold(0.0f64, |m, i| m.max((x[i * p + j] - mean).abs()));
-        let sd = if big > 0.0 && big.is_finite() {
-            let ss = (0..k)
-                .map(|i| ((x[i * p + j] - mean) / big).powi(2))
-                .sum::<f64>();
-            big * (ss / k as f64).sqrt()
-        } else {
-            0.0
-        };
-        let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
-        for i in 0..k {
-            x[i * p + j] = (x[i * p + j] - mean) / sd;
-        }
-        a[(j, j)] = 1.0 / sd;
+        a[(j, j)] = 1.0 / sd[j];
         if has_intercept {
-            a[(0, j)] = -mean / sd;
+            a[(0, j)] = -mean[j] / sd[j];
         }
-        log_det_a -= sd.ln();
+        log_det_a -= sd[j].ln();
     }
     (a, log_det_a)
 }
@@ -337,23 +375,41 @@ fn per_study(
     st: &Scaled<'_>,
     m_inv: &DMatrix<f64>,
 ) {
+    use rayon::prelude::*;
     let (k, p, t) = (y.len(), fit.p, fit.tau2.estimate);
     let data = Data { y, v, x: st.x, p };
     let orig = Data { y, v, x, p };
-    fit.weights = Vec::with_capacity(k);
-    fit.fitted = Vec::with_capacity(k);
-    fit.std_resid = Vec::with_capacity(k);
-    for i in 0..k {
+    let beta = &fit.beta;
+    // Each study's values depend on that study alone, so the rows can be
+    // shared among threads without changing a bit.
+    let study = |i: usize| {
         let w = 1.0 / (v[i] + t);
-        let fi = wls::fitted(&orig, &fit.beta, i);
+        let fi = wls::fitted(&orig, beta, i);
         let var_r = 1.0 / w - wls::quad_form(&data, m_inv, i);
-        fit.weights.push(w);
-        fit.fitted.push(fi);
-        fit.std_resid.push(
-            (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
-                .then(|| (y[i] - fi) / var_r.sqrt()),
-        );
+        let resid = (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
+            .then(|| (y[i] - fi) / var_r.sqrt());
+        (w, fi, resid)
+    };
+    let (mut weights, mut fitted, mut std_resid) = (vec![0.0; k], vec![0.0; k], vec![None; k]);
+    let fill = |first: usize, w: &mut [f64], f: &mut [f64], r: &mut [Option<f64>]| {
+        for (j, ((w, f), r)) in w.iter_mut().zip(f).zip(r).enumerate() {
+            (*w, *f, *r) = study(first + j);
+        }
+    };
+    if k < wls::PARALLEL_MIN_ROWS {
+        fill(0, &mut weights, &mut fitted, &mut std_resid);
+    } else {
+        let rows = wls::CHUNK_ROWS;
+        weights
+            .par_chunks_mut(rows)
+            .zip(fitted.par_chunks_mut(rows))
+            .zip(std_resid.par_chunks_mut(rows))
+            .enumerate()
+            .for_each(|(c, ((w, f), r))| fill(c * rows, w, f, r));
     }
+    fit.weights = weights;
+    fit.fitted = fitted;
+    fit.std_resid = std_resid;
 }
 
 /// The Knapp–Hartung scale s² = Q/(k − p) (Knapp & Hartung 2003, *Stat.
@@ -436,6 +492,77 @@ mod tests {
                     assert!(s.weights.is_empty() && s.fitted.is_empty() && s.std_resid.is_empty());
                 }
                 assert_eq!(full.weights.len(), 8);
+            }
+        }
+    }
+
+    /// The column-by-column standardisation [`standardise_in_place`] had
+    /// before it read the design row by row: the reference it must equal.
+    fn by_columns(x: &mut [f64], k: usize, p: usize) -> (Vec<f64>, f64) {
+        let has_intercept = p > 0 && (0..k).all(|i| x[i * p] == 1.0);
+        let mut a_flat = Vec::new();
+        let mut log_det_a = 0.0;
+        for j in usize::from(has_intercept)..p {
+            let mean = if has_intercept {
+                (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64
+            } else {
+                0.0
+            };
+            let big = (0..k).fold(0.0f64, |m, i| m.max((x[i * p + j] - mean).abs()));
+            let sd = if big > 0.0 && big.is_finite() {
+                let ss = (0..k)
+                    .map(|i| ((x[i * p + j] - mean) / big).powi(2))
+                    .sum::<f64>();
+                big * (ss / k as f64).sqrt()
+            } else {
+                0.0
+            };
+            let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
+            for i in 0..k {
+                x[i * p + j] = (x[i * p + j] - mean) / sd;
+            }
+            a_flat.extend([mean, sd]);
+            log_det_a -= sd.ln();
+        }
+        (a_flat, log_det_a)
+    }
+
+    #[test]
+    fn standardising_row_by_row_equals_the_column_by_column_values_bit_for_bit() {
+        // Invented columns: a calendar year, a wide-ranging one, a constant
+        // and tiny values; with and without an intercept; k small and past
+        // the parallel threshold.
+        for k in [7usize, wls::PARALLEL_MIN_ROWS + 101] {
+            for intercept in [true, false] {
+                let p = 5;
+                let x: Vec<f64> = (0..k)
+                    .flat_map(|i| {
+                        let u = ((i * 7919) % 1013) as f64 / 1013.0;
+                        let first = if intercept { 1.0 } else { u - 0.5 };
+                        [
+                            first,
+                            1990.0 + (i % 31) as f64,
+                            1e6 * u * u,
+                            3.0,
+                            1e-300 * u,
+                        ]
+                    })
+                    .collect();
+                let (mut rows, mut cols) = (x.clone(), x.clone());
+                let (a, log_det_a) = standardise_in_place(&mut rows, k, p);
+                let (mean_sd, log_det_ref) = by_columns(&mut cols, k, p);
+                assert!(rows
+                    .iter()
+                    .zip(&cols)
+                    .all(|(r, c)| r.to_bits() == c.to_bits()));
+                assert_eq!(log_det_a.to_bits(), log_det_ref.to_bits());
+                let first = usize::from(intercept);
+                for (j, pair) in (first..p).zip(mean_sd.chunks(2)) {
+                    assert_eq!(a[(j, j)].to_bits(), (1.0 / pair[1]).to_bits());
+                    if intercept {
+                        assert_eq!(a[(0, j)].to_bits(), (-pair[0] / pair[1]).to_bits());
+                    }
+                }
             }
         }
     }

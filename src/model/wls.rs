@@ -129,10 +129,10 @@ struct Sums {
 /// Rows per chunk of the parallel sums. The chunking depends on k only,
 /// never on the number of threads, and chunk sums are added in chunk
 /// order, so results are identical whatever the thread count.
-pub(super) const CHUNK_ROWS: usize = 16_384;
+pub(crate) const CHUNK_ROWS: usize = 16_384;
 
 /// Below this many studies the sums run on one thread.
-pub(super) const PARALLEL_MIN_ROWS: usize = 4 * CHUNK_ROWS;
+pub(crate) const PARALLEL_MIN_ROWS: usize = 4 * CHUNK_ROWS;
 
 thread_local! {
     /// Passes over the studies started from this thread (each sweep of
@@ -461,11 +461,33 @@ pub fn trace_p(data: &Data<'_>, tau2: f64) -> Option<f64> {
     Some(trace_p_with(data, tau2, &f.m_inv))
 }
 
-/// [`trace_p`] with M⁻¹ = (X'WX)⁻¹ at `tau2` already computed.
+/// [`trace_p`] with M⁻¹ = (X'WX)⁻¹ at `tau2` already computed. For large k
+/// the terms are summed over the fixed chunks of [`chunks`] in parallel and
+/// the chunk totals added in chunk order (the same for any thread count).
 pub fn trace_p_with(data: &Data<'_>, tau2: f64, m_inv: &DMatrix<f64>) -> f64 {
+    use rayon::prelude::*;
+    let k = data.k();
+    if k < PARALLEL_MIN_ROWS {
+        return trace_terms(data, 0..k, tau2, m_inv);
+    }
+    let starts: Vec<usize> = (0..k).step_by(CHUNK_ROWS).collect();
+    let parts: Vec<f64> = starts
+        .par_iter()
+        .map(|&s| trace_terms(data, s..(s + CHUNK_ROWS).min(k), tau2, m_inv))
+        .collect();
+    parts.iter().fold(0.0, |t, x| t + x)
+}
+
+/// The terms of [`trace_p`] for the studies in `rows`, summed in order.
+fn trace_terms(
+    data: &Data<'_>,
+    rows: std::ops::Range<usize>,
+    tau2: f64,
+    m_inv: &DMatrix<f64>,
+) -> f64 {
     let (k, p) = (data.k(), data.p);
     let mut total = 0.0;
-    for i in 0..k {
+    for i in rows {
         let w = 1.0 / (data.v[i] + tau2);
         let h = w * quad_form(data, m_inv, i);
         if h < 0.5 {
