@@ -4,6 +4,7 @@
 
 use super::Term;
 use crate::error::{Error, Result};
+use crate::model::wls::{CHUNK_ROWS, PARALLEL_MIN_ROWS};
 use crate::tolerance;
 
 /// Rows gathered below the triangle before each Householder step.
@@ -32,25 +33,8 @@ const BLOCK_ROWS: usize = 256;
 /// # Errors
 /// [`Error::Model`] naming the first collinear term and those before it.
 pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
-    let (shift, scale) = shifts_and_scales(x, k, p);
+    let (work, norm0) = triangle_of(x, k, p);
     let rows = p + BLOCK_ROWS;
-    // Column-major rows × p: R in the top p rows, a block of rows below.
-    let mut work = vec![0.0; rows * p];
-    let mut norm0 = vec![0.0; p];
-    let mut filled = p;
-    for row in x.chunks_exact(p).take(k) {
-        for j in 0..p {
-            let c = (row[j] - shift[j]) / scale[j];
-            norm0[j] += c * c;
-            work[j * rows + filled] = c;
-        }
-        filled += 1;
-        if filled == rows {
-            reduce(&mut work, rows, p, filled);
-            filled = p;
-        }
-    }
-    reduce(&mut work, rows, p, filled);
     for j in 0..p {
         let norm = work[j * rows + j].powi(2);
         if norm.is_nan() || norm <= tolerance::COLLINEAR * norm0[j] {
@@ -65,6 +49,90 @@ pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Resul
         }
     }
     Ok(())
+}
+
+/// R of the centred and scaled design (column-major (p + [`BLOCK_ROWS`]) × p,
+/// R in the top p rows) and each centred, scaled column's squared norm.
+fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
+    use rayon::prelude::*;
+    let (shift, scale) = shifts_and_scales(x, k, p);
+    // The triangle and the squared column norms of a run of rows.
+    let part = |rows: &[f64]| {
+        let mut t = Triangle::new(p);
+        let mut norm0 = vec![0.0; p];
+        let mut c = vec![0.0; p];
+        for row in rows.chunks_exact(p) {
+            for j in 0..p {
+                c[j] = (row[j] - shift[j]) / scale[j];
+                norm0[j] += c[j] * c[j];
+            }
+            t.push(&c);
+        }
+        (t.finish(), norm0)
+    };
+    let x = &x[..k * p];
+    let (work, norm0) = if k < PARALLEL_MIN_ROWS {
+        part(x)
+    } else {
+        // Fixed chunks of rows on all threads, then the chunks' triangles
+        // stacked and reduced in chunk order (the triangle of a stacked
+        // matrix, as for the blocks within a chunk): the same R, up to
+        // rounding, for any thread count, and the same bits for any.
+        let parts: Vec<(Vec<f64>, Vec<f64>)> = x.par_chunks(CHUNK_ROWS * p).map(part).collect();
+        let mut t = Triangle::new(p);
+        let mut norm0 = vec![0.0; p];
+        let mut r_row = vec![0.0; p];
+        for (r, n) in &parts {
+            for a in 0..p {
+                for (j, e) in r_row.iter_mut().enumerate() {
+                    *e = r[j * (p + BLOCK_ROWS) + a];
+                }
+                t.push(&r_row);
+            }
+            for (s, x) in norm0.iter_mut().zip(n) {
+                *s += x;
+            }
+        }
+        (t.finish(), norm0)
+    };
+    (work, norm0)
+}
+
+/// R of the rows pushed so far: column-major (p + [`BLOCK_ROWS`]) × p, R in
+/// the top p rows and up to [`BLOCK_ROWS`] rows gathered below it, reduced
+/// into R each time the block is full.
+struct Triangle {
+    work: Vec<f64>,
+    p: usize,
+    filled: usize,
+}
+
+impl Triangle {
+    fn new(p: usize) -> Self {
+        Triangle {
+            work: vec![0.0; (p + BLOCK_ROWS) * p],
+            p,
+            filled: p,
+        }
+    }
+
+    fn push(&mut self, row: &[f64]) {
+        let rows = self.p + BLOCK_ROWS;
+        for (j, &c) in row.iter().enumerate() {
+            self.work[j * rows + self.filled] = c;
+        }
+        self.filled += 1;
+        if self.filled == rows {
+            reduce(&mut self.work, rows, self.p, self.filled);
+            self.filled = self.p;
+        }
+    }
+
+    /// The matrix with every row reduced into R.
+    fn finish(mut self) -> Vec<f64> {
+        reduce(&mut self.work, self.p + BLOCK_ROWS, self.p, self.filled);
+        self.work
+    }
 }
 
 /// Each column's shift (its mean, for every column but the first, when
@@ -195,27 +263,23 @@ mod tests {
     }
 
     /// The triangle's R_jj² agrees with Gram–Schmidt's remainders (to
-    /// rounding relative to the column), for k across the block size.
+    /// rounding relative to the column), for k across the block size and
+    /// past the parallel threshold (chunks' triangles stacked).
     #[test]
     fn remainders_agree_with_gram_schmidt() {
-        for k in [5, 255, 256, 257, 1000, 5000] {
+        for k in [
+            5,
+            255,
+            256,
+            257,
+            1000,
+            5000,
+            PARALLEL_MIN_ROWS + 3 * CHUNK_ROWS / 2,
+        ] {
             for noise in [1.0, 1e-3] {
                 let x = design(k, noise);
-                let (shift, scale) = shifts_and_scales(&x, k, 4);
+                let (work, _) = triangle_of(&x, k, 4);
                 let rows = 4 + BLOCK_ROWS;
-                let mut work = vec![0.0; rows * 4];
-                let mut filled = 4;
-                for row in x.chunks_exact(4) {
-                    for j in 0..4 {
-                        work[j * rows + filled] = (row[j] - shift[j]) / scale[j];
-                    }
-                    filled += 1;
-                    if filled == rows {
-                        reduce(&mut work, rows, 4, filled);
-                        filled = 4;
-                    }
-                }
-                reduce(&mut work, rows, 4, filled);
                 for (j, (norm, norm0)) in gram_schmidt(&x, k, 4).into_iter().enumerate() {
                     let r = work[j * rows + j].powi(2);
                     assert!(
@@ -227,17 +291,20 @@ mod tests {
         }
     }
 
-    /// Clearly on either side of the tolerance: a remainder of 1e-6 of
+    /// Clearly on either side of the tolerance, for k below and past the
+    /// parallel threshold: a remainder of 1e-6 of
     /// the column's squared norm passes, an exact combination and one of
     /// 1e-14 are refused, naming the term.
     #[test]
     fn collinear_columns_are_named() {
-        let k = 600;
-        assert!(check_rank(&design(k, 1e-3), k, 4, &terms(4)).is_ok());
-        for noise in [0.0, 1e-7] {
-            let e = check_rank(&design(k, noise), k, 4, &terms(4)).unwrap_err();
-            assert!(e.to_string().contains("term 't3'"), "{e}");
+        for k in [600, PARALLEL_MIN_ROWS + 777] {
+            assert!(check_rank(&design(k, 1e-3), k, 4, &terms(4)).is_ok());
+            for noise in [0.0, 1e-7] {
+                let e = check_rank(&design(k, noise), k, 4, &terms(4)).unwrap_err();
+                assert!(e.to_string().contains("term 't3'"), "{e}");
+            }
         }
+        let k = 600;
         let mut x = design(k, 1.0);
         x[4 * 17 + 2] = f64::NAN;
         let e = check_rank(&x, k, 4, &terms(4)).unwrap_err();
