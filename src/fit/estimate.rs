@@ -113,23 +113,24 @@ pub fn estimate(
     let levels = settings.dependence.levels;
     let options = settings.options;
     let (y, v) = (&studies.y, &studies.v);
-    let (fit, three) = match (keep, &clusters) {
+    let p = design.p;
+    let mut working_fit = || match (keep, &clusters) {
         (Keep::Summary, None) => {
             let x = Cow::Owned(std::mem::take(&mut design.x));
-            let fit = model::fit_summary(y, v, x, design.p, options, true);
-            (fit.map_err(|e| in_file(source, e))?, None)
+            model::fit_summary(y, v, x, p, options, true).map(|f| (f, None))
         }
-        _ => fit_working(
-            y,
-            v,
-            &design.x,
-            design.p,
-            clusters.as_ref(),
-            levels,
-            options,
-        )
-        .map_err(|e| in_file(source, e))?,
+        _ => fit_working(y, v, &design.x, p, clusters.as_ref(), levels, options),
     };
+    // Without clusters the intercept-only model needs nothing from the
+    // working one, so the two are fitted side by side (each pass of each
+    // is shared among the threads too; the numbers are the same).
+    let (working_fit, early_null) = if p > 1 && clusters.is_none() {
+        let (w, n) = rayon::join(working_fit, || null_fit(y, v, None, levels, options));
+        (w, Some(n))
+    } else {
+        (working_fit(), None)
+    };
+    let (fit, three) = working_fit.map_err(|e| in_file(source, e))?;
     if fit.kh_scale == Some(0.0) {
         return Err(Error::Model(format!(
             "{source}: the model fits every effect exactly (residual Q = 0 up to rounding, for \
@@ -143,10 +144,12 @@ pub fn estimate(
         (None, Some(cl)) => WorkingModel::TwoLevel(cl),
         (None, None) => WorkingModel::Independent,
     };
-    let null = if design.p == 1 {
-        None
-    } else {
-        Some(null_fit(y, v, working.clusters(), levels, options).map_err(|e| in_file(source, e))?)
+    let null = match early_null {
+        Some(n) => Some(n.map_err(|e| in_file(source, e))?),
+        None if p == 1 => None,
+        None => Some(
+            null_fit(y, v, working.clusters(), levels, options).map_err(|e| in_file(source, e))?,
+        ),
     };
     let null_scale_factor = null.as_ref().unwrap_or(&fit).scale_factor;
     Ok((
