@@ -2,7 +2,7 @@
 //! [`super::super::wls::fit_with`], the derivatives against central
 //! differences, and the evaluator's bookkeeping.
 
-use super::sums::{fixed, general, Sums};
+use super::sums::{fixed, general, in_lanes, running, Sums};
 use super::*;
 use crate::model::wls::{fit_with, passes};
 
@@ -258,7 +258,8 @@ fn a_reml_fit_with_its_interval_takes_few_passes() {
     assert!(used <= 28, "{used} passes");
 }
 
-/// Every sum of the lane kernel against the one running sum per entry, for
+/// Every sum of the lane kernel and of the fixed-size running sums against
+/// the general running sums, for
 /// `P` columns, each pair of optional parts, and numbers of rows that fill
 /// no lane, part of a lane, whole blocks and a block and a bit (the padded
 /// rows must add nothing, and a block must not keep the last one's rows).
@@ -283,13 +284,19 @@ fn lanes_agree_with_running_sums<const P: usize>() {
                 curvature: curv,
                 ..Want::SCORE
             };
-            let (mut one, mut lanes) = (Sums::default(), Sums::default());
+            let (mut one, mut lanes, mut run) = (Sums::default(), Sums::default(), Sums::default());
             general(&d, 0.02, want, &beta0, &mut one);
             match (log, curv) {
-                (false, false) => fixed::<P, false, false>(&d, 0.02, &beta0, &mut lanes),
-                (true, false) => fixed::<P, true, false>(&d, 0.02, &beta0, &mut lanes),
-                (false, true) => fixed::<P, false, true>(&d, 0.02, &beta0, &mut lanes),
-                (true, true) => fixed::<P, true, true>(&d, 0.02, &beta0, &mut lanes),
+                (false, false) => in_lanes::<P, false, false>(&d, 0.02, &beta0, &mut lanes),
+                (true, false) => in_lanes::<P, true, false>(&d, 0.02, &beta0, &mut lanes),
+                (false, true) => in_lanes::<P, false, true>(&d, 0.02, &beta0, &mut lanes),
+                (true, true) => in_lanes::<P, true, true>(&d, 0.02, &beta0, &mut lanes),
+            }
+            match (log, curv) {
+                (false, false) => running::<P, false, false>(&d, 0.02, &beta0, &mut run),
+                (true, false) => running::<P, true, false>(&d, 0.02, &beta0, &mut run),
+                (false, true) => running::<P, false, true>(&d, 0.02, &beta0, &mut run),
+                (true, true) => running::<P, true, true>(&d, 0.02, &beta0, &mut run),
             }
             let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * a.abs().max(b.abs()).max(1e-300);
             let scalars = |s: &Sums| {
@@ -302,9 +309,6 @@ fn lanes_agree_with_running_sums<const P: usize>() {
                     s.sum_log_vt,
                 ]
             };
-            for (a, b) in scalars(&one).into_iter().zip(scalars(&lanes)) {
-                assert!(close(a, b), "P = {P}, k = {k}, {want:?}: {a} vs {b}");
-            }
             let vectors = |s: &Sums| {
                 [
                     s.m.clone(),
@@ -315,10 +319,15 @@ fn lanes_agree_with_running_sums<const P: usize>() {
                     s.h3.clone(),
                 ]
             };
-            for (a, b) in vectors(&one).iter().zip(&vectors(&lanes)) {
-                assert_eq!(a.len(), b.len(), "P = {P}, k = {k}, {want:?}");
-                for (s, t) in a.iter().zip(b) {
-                    assert!(close(*s, *t), "P = {P}, k = {k}, {want:?}: {s} vs {t}");
+            for other in [&lanes, &run] {
+                for (a, b) in scalars(&one).into_iter().zip(scalars(other)) {
+                    assert!(close(a, b), "P = {P}, k = {k}, {want:?}: {a} vs {b}");
+                }
+                for (a, b) in vectors(&one).iter().zip(&vectors(other)) {
+                    assert_eq!(a.len(), b.len(), "P = {P}, k = {k}, {want:?}");
+                    for (s, t) in a.iter().zip(b) {
+                        assert!(close(*s, *t), "P = {P}, k = {k}, {want:?}: {s} vs {t}");
+                    }
                 }
             }
         }
