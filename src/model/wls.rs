@@ -462,7 +462,7 @@ pub fn trace_p(data: &Data<'_>, tau2: f64) -> Option<f64> {
 }
 
 /// [`trace_p`] with M⁻¹ = (X'WX)⁻¹ at `tau2` already computed. For large k
-/// the terms are summed over the fixed chunks of [`chunks`] in parallel and
+/// the terms are summed over fixed chunks of rows in parallel and
 /// the chunk totals added in chunk order (the same for any thread count).
 pub fn trace_p_with(data: &Data<'_>, tau2: f64, m_inv: &DMatrix<f64>) -> f64 {
     use rayon::prelude::*;
