@@ -6,6 +6,8 @@
 //! docs/performance.md. Not a test: nothing here asserts a time. The data
 //! are simulated (invented) with the project's seeded generator.
 
+mod common;
+use common::best;
 use pondus::diagnose::{
     average_fits, deleted_fits, influence, loo, permutation, ModelData, PermutationSettings,
 };
@@ -13,19 +15,6 @@ use pondus::model::tau2::Tau2Method;
 use pondus::model::{self, FitOptions, Inference};
 use pondus::support::rng::block_rng;
 use std::hint::black_box;
-use std::time::{Duration, Instant};
-
-/// Best of `reps` runs.
-fn best(reps: usize, mut f: impl FnMut()) -> Duration {
-    (0..reps)
-        .map(|_| {
-            let t = Instant::now();
-            f();
-            t.elapsed()
-        })
-        .min()
-        .unwrap_or_default()
-}
 
 /// k studies: x uniform-ish on 0..10, v from 0.01 to 0.2, τ² = 0.05, slope 0.03.
 fn data(k: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<f64>) {

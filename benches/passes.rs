@@ -6,25 +6,14 @@
 //! recorded in docs/performance.md. Not a test: nothing here asserts a
 //! time. The data are invented (a seeded xorshift generator), for timing.
 
+mod common;
+use common::best;
 use nalgebra::DVector;
 use pondus::model::near::fit_near;
 use pondus::model::tau2::Tau2Method;
 use pondus::model::wls::{passes, Data, Want};
 use pondus::model::{fit, FitOptions, Inference};
 use std::hint::black_box;
-use std::time::{Duration, Instant};
-
-/// Best of `reps` runs.
-fn best(reps: usize, mut f: impl FnMut()) -> Duration {
-    (0..reps)
-        .map(|_| {
-            let t = Instant::now();
-            f();
-            t.elapsed()
-        })
-        .min()
-        .unwrap_or_default()
-}
 
 fn main() {
     let k = 1_000_000usize;

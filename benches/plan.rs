@@ -4,10 +4,11 @@
 //! `cargo bench --bench plan`; the results are recorded in
 //! docs/performance.md. Not a test: nothing here asserts a time.
 
+mod common;
+use common::best;
 use pondus::plan::{no_progress, simulate, ModeratorDesign, Plan, PlanMeasure};
 use pondus::result::plan::PlanTest;
 use std::hint::black_box;
-use std::time::{Duration, Instant};
 
 fn plan(test: PlanTest) -> Plan {
     Plan {
@@ -21,18 +22,6 @@ fn plan(test: PlanTest) -> Plan {
         alpha: 0.05,
         test,
     }
-}
-
-/// Best of `reps` runs.
-fn best(reps: usize, mut f: impl FnMut()) -> Duration {
-    (0..reps)
-        .map(|_| {
-            let t = Instant::now();
-            f();
-            t.elapsed()
-        })
-        .min()
-        .unwrap_or_default()
 }
 
 fn main() {
