@@ -120,7 +120,7 @@ fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums)
     }
 }
 
-/// Rows summed side by side in [`fixed`]: each sum keeps `LANES` partial
+/// Rows summed side by side in [`in_lanes`]: each sum keeps `LANES` partial
 /// sums, row i of a chunk going to lane i mod `LANES`, and the lanes are
 /// added in lane order at the end. Every partial sum is a plain in-order
 /// sum, so the result depends only on the rows, never on the thread count;
@@ -128,7 +128,7 @@ fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums)
 /// four rows per instruction) where one running sum per entry could not.
 const LANES: usize = 4;
 
-/// Rows per block: [`fixed`] copies a block's columns, weights and
+/// Rows per block: [`in_lanes`] copies a block's columns, weights and
 /// residuals into small arrays (a few kB, in the first-level cache) and then
 /// adds each group of sums in its own loop, so that group's partial sums
 /// stay in registers (all of them at once would not fit, and each row would
@@ -234,7 +234,7 @@ struct Block<const P: usize> {
     w3r: Column,
 }
 
-/// The partial sums of [`fixed`], one [`Lane`] per sum.
+/// The partial sums of [`in_lanes`], one [`Lane`] per sum.
 struct LaneSums<const P: usize> {
     m: [[Lane; P]; P],
     n2: [[Lane; P]; P],
