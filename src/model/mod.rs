@@ -2,6 +2,25 @@
 //! e ~ N(0, v) with v known: τ² estimation, coefficients, tests,
 //! heterogeneity, predictions.
 
+/// `$fixed!(P)` with P = `$p` when 1 ≤ p ≤ 8 (a loop the compiler unrolls
+/// for that many columns), `$general` for larger designs: the dispatch of
+/// the per-row sums of [`wls`] and [`near`].
+macro_rules! by_columns {
+    ($p:expr, $fixed:ident, $general:expr) => {
+        match $p {
+            1 => $fixed!(1),
+            2 => $fixed!(2),
+            3 => $fixed!(3),
+            4 => $fixed!(4),
+            5 => $fixed!(5),
+            6 => $fixed!(6),
+            7 => $fixed!(7),
+            8 => $fixed!(8),
+            _ => $general,
+        }
+    };
+}
+
 pub mod design;
 pub mod inference;
 pub mod location_scale;

@@ -107,17 +107,7 @@ fn serial(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums)
             }
         };
     }
-    match data.p {
-        1 => fixed!(1),
-        2 => fixed!(2),
-        3 => fixed!(3),
-        4 => fixed!(4),
-        5 => fixed!(5),
-        6 => fixed!(6),
-        7 => fixed!(7),
-        8 => fixed!(8),
-        _ => general(data, tau2, want, beta0, out),
-    }
+    by_columns!(data.p, fixed, general(data, tau2, want, beta0, out))
 }
 
 /// Rows summed side by side in [`in_lanes`]: each sum keeps `LANES` partial

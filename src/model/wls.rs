@@ -270,17 +270,7 @@ fn accumulate_serial(data: &Data<'_>, tau2: f64, want: Want) -> Sums {
             }
         };
     }
-    match data.p {
-        1 => fixed!(1),
-        2 => fixed!(2),
-        3 => fixed!(3),
-        4 => fixed!(4),
-        5 => fixed!(5),
-        6 => fixed!(6),
-        7 => fixed!(7),
-        8 => fixed!(8),
-        _ => accumulate_any(data, tau2, want),
-    }
+    by_columns!(data.p, fixed, accumulate_any(data, tau2, want))
 }
 
 /// The sums for a design with `P` columns; `TRACE` and `LOG` choose the
