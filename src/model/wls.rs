@@ -452,20 +452,17 @@ pub fn trace_p(data: &Data<'_>, tau2: f64) -> Option<f64> {
 }
 
 /// [`trace_p`] with M⁻¹ = (X'WX)⁻¹ at `tau2` already computed. For large k
-/// the terms are summed over fixed chunks of rows in parallel and
-/// the chunk totals added in chunk order (the same for any thread count).
+/// the terms are summed over the fixed pieces of [`crate::support::pieces`]
+/// in parallel and the piece totals added in piece order (the same for any
+/// thread count).
 pub fn trace_p_with(data: &Data<'_>, tau2: f64, m_inv: &DMatrix<f64>) -> f64 {
-    use rayon::prelude::*;
     let k = data.k();
     if k < PARALLEL_MIN_ROWS {
         return trace_terms(data, 0..k, tau2, m_inv);
     }
-    let starts: Vec<usize> = (0..k).step_by(CHUNK_ROWS).collect();
-    let parts: Vec<f64> = starts
-        .par_iter()
-        .map(|&s| trace_terms(data, s..(s + CHUNK_ROWS).min(k), tau2, m_inv))
-        .collect();
-    parts.iter().fold(0.0, |t, x| t + x)
+    crate::support::pieces::map(k, |rows| trace_terms(data, rows, tau2, m_inv))
+        .iter()
+        .fold(0.0, |t, x| t + x)
 }
 
 /// The terms of [`trace_p`] for the studies in `rows`, summed in order.
