@@ -160,25 +160,49 @@ fn by_columns(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
         // The SD through the largest deviation, so the squares neither
         // underflow (values near 1e-300) nor overflow (near 1e300).
         let big = (0..k).fold(0.0f64, |m, i| m.max((x[i * p + j] - mean).abs()));
-        let sd = if big > 0.0 && big.is_finite() {
-            let ss = (0..k)
+        let sd = column_sd(big, k, || {
+            (0..k)
                 .map(|i| ((x[i * p + j] - mean) / big).powi(2))
-                .sum::<f64>();
-            big * (ss / k as f64).sqrt()
-        } else {
-            0.0
-        };
-        let sd = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
+                .sum::<f64>()
+        });
         for i in 0..k {
             x[i * p + j] = (x[i * p + j] - mean) / sd;
         }
-        a[(j, j)] = 1.0 / sd;
-        if has_intercept {
-            a[(0, j)] = -mean / sd;
-        }
-        log_det_a -= sd.ln();
+        record_scaling((&mut a, &mut log_det_a), j, (mean, sd), has_intercept);
     }
     (a, log_det_a)
+}
+
+/// The SD a column is scaled by, from its largest deviation from the mean
+/// `big` and `ss()`, the sum of the squared deviations divided by `big`
+/// (not called when `big` is 0 or not finite): big·√(ss/k), or 1 when that
+/// is not a positive finite number (a constant column is left unscaled).
+fn column_sd(big: f64, k: usize, ss: impl FnOnce() -> f64) -> f64 {
+    let sd = if big > 0.0 && big.is_finite() {
+        big * (ss() / k as f64).sqrt()
+    } else {
+        0.0
+    };
+    if sd > 0.0 && sd.is_finite() {
+        sd
+    } else {
+        1.0
+    }
+}
+
+/// Column j's entries of A (x̃_j = (x_j − mean)/sd, so A_jj = 1/sd and,
+/// with an intercept, A_0j = −mean/sd) and its term −ln sd of ln|det A|.
+fn record_scaling(
+    (a, log_det_a): (&mut DMatrix<f64>, &mut f64),
+    j: usize,
+    (mean, sd): (f64, f64),
+    has_intercept: bool,
+) {
+    a[(j, j)] = 1.0 / sd;
+    if has_intercept {
+        a[(0, j)] = -mean / sd;
+    }
+    *log_det_a -= sd.ln();
 }
 
 /// [`standardise_in_place`] reading the design row by row: four sweeps
@@ -221,20 +245,7 @@ fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
             }
         }
     }
-    let sd: Vec<f64> = (0..p)
-        .map(|j| {
-            let sd = if scalable[j] {
-                big[j] * (ss[j] / k as f64).sqrt()
-            } else {
-                0.0
-            };
-            if sd > 0.0 && sd.is_finite() {
-                sd
-            } else {
-                1.0
-            }
-        })
-        .collect();
+    let sd: Vec<f64> = (0..p).map(|j| column_sd(big[j], k, || ss[j])).collect();
     let scale_row = |r: &mut [f64]| {
         for j in first..p {
             r[j] = (r[j] - mean[j]) / sd[j];
@@ -246,11 +257,7 @@ fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
     let mut a = DMatrix::identity(p, p);
     let mut log_det_a = 0.0;
     for j in first..p {
-        a[(j, j)] = 1.0 / sd[j];
-        if has_intercept {
-            a[(0, j)] = -mean[j] / sd[j];
-        }
-        log_det_a -= sd[j].ln();
+        record_scaling((&mut a, &mut log_det_a), j, (mean[j], sd[j]), has_intercept);
     }
     (a, log_det_a)
 }

@@ -71,7 +71,7 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
         (t.finish(), norm0)
     };
     let x = &x[..k * p];
-    let (work, norm0) = if k < PARALLEL_MIN_ROWS {
+    if k < PARALLEL_MIN_ROWS {
         part(x)
     } else {
         // Fixed chunks of rows on all threads, then the chunks' triangles
@@ -94,8 +94,7 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
             }
         }
         (t.finish(), norm0)
-    };
-    (work, norm0)
+    }
 }
 
 /// R of the rows pushed so far: column-major (p + [`BLOCK_ROWS`]) × p, R in
