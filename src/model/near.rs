@@ -40,7 +40,7 @@ use crate::tolerance;
 use nalgebra::{DMatrix, DVector};
 use std::cell::{Cell, RefCell};
 use std::rc::Rc;
-use sums::{accumulate, Sums};
+use sums::{accumulate, accumulate_many, Point, Sums};
 
 /// Fills `out` (resized to p × p when it is not) with the symmetric matrix
 /// whose row-major upper triangle is `upper`.
@@ -77,6 +77,8 @@ fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
 #[derive(Debug)]
 struct Work {
     sums: Sums,
+    /// The sums of a pass at several points ([`Evaluator::at_many`]).
+    many: Vec<Sums>,
     /// M, then its Cholesky factor.
     m: DMatrix<f64>,
     n2: DMatrix<f64>,
@@ -98,6 +100,7 @@ impl Work {
         let (mat, vec) = (|| DMatrix::zeros(p, p), || DVector::zeros(p));
         Work {
             sums: Sums::default(),
+            many: Vec::new(),
             m: mat(),
             n2: mat(),
             n3: mat(),
@@ -132,8 +135,20 @@ fn fit_near_in(
     want: Want,
     beta0: &DVector<f64>,
 ) -> Option<Wls> {
-    let p = data.p;
     accumulate(data, tau2, want, beta0.as_slice(), &mut work.sums);
+    finish(work, data, tau2, want, beta0)
+}
+
+/// The fit at `tau2` from the sums of one pass around `beta0` in
+/// `work.sums` (see [`fit_near_in`]).
+fn finish(
+    work: &mut Work,
+    data: &Data<'_>,
+    tau2: f64,
+    want: Want,
+    beta0: &DVector<f64>,
+) -> Option<Wls> {
+    let p = data.p;
     let Work {
         sums: s,
         m,
@@ -148,6 +163,7 @@ fn fit_near_in(
         n3d,
         u,
         m_inv_u,
+        many: _,
     } = work;
     fill_symmetric(m, &s.m, p);
     // The factorisation takes the matrix; it is given back below (or
@@ -295,6 +311,57 @@ impl<'a> Evaluator<'a> {
         });
         self.seen.borrow_mut().push((want, Rc::clone(&f)));
         Some(f)
+    }
+
+    /// The fits at each of `taus` not fitted yet (with the parts in
+    /// `want`), made in one pass over the studies that reads each design row
+    /// once for all of them, all around the coefficients of the fit made
+    /// last (or β₀ = 0), and remembered in the order of `taus`: afterwards
+    /// [`Evaluator::at`] finds them. Each fit is what a pass at its τ² alone
+    /// around those coefficients gives, bit for bit; against fits made one
+    /// after another (each around the one before) only the rounding
+    /// differs. A fit whose corrected sums cancel takes its second pass at
+    /// β̂ as in [`fit_near`]. A design the weights make singular is left to
+    /// [`Evaluator::at`] to report.
+    pub fn fit_many(&self, taus: &[f64], want: Want) {
+        let mut missing: Vec<f64> = Vec::with_capacity(taus.len());
+        for &t in taus {
+            let seen = self
+                .seen
+                .borrow()
+                .iter()
+                .any(|(had, f)| f.tau2.to_bits() == t.to_bits() && covers(*had, want));
+            if !seen && !missing.iter().any(|m| m.to_bits() == t.to_bits()) {
+                missing.push(t);
+            }
+        }
+        if missing.len() < 2 {
+            return;
+        }
+        let beta0 = match self.seen.borrow().last() {
+            Some((_, f)) => f.beta.clone(),
+            None => DVector::zeros(self.data.p),
+        };
+        let work = &mut self.work.borrow_mut();
+        let points: Vec<Point<'_>> = missing
+            .iter()
+            .map(|&tau2| Point {
+                tau2,
+                beta0: beta0.as_slice(),
+            })
+            .collect();
+        let mut many = std::mem::take(&mut work.many);
+        many.resize_with(points.len(), Sums::default);
+        accumulate_many(&self.data, &points, want, &mut many);
+        for (sums, &tau2) in many.iter_mut().zip(&missing) {
+            std::mem::swap(&mut work.sums, sums);
+            let Some(f) = finish(work, &self.data, tau2, want, &beta0) else {
+                break;
+            };
+            self.evaluations.set(self.evaluations.get() + 1);
+            self.seen.borrow_mut().push((want, Rc::new(f)));
+        }
+        work.many = many;
     }
 }
 

@@ -2,7 +2,7 @@
 //! [`super::super::wls::fit_with`], the derivatives against central
 //! differences, and the evaluator's bookkeeping.
 
-use super::sums::{fixed, general, in_lanes, running, Sums};
+use super::sums::{fixed_many, general, in_lanes, running, Point, Sums};
 use super::*;
 use crate::model::wls::{fit_with, passes};
 
@@ -167,6 +167,50 @@ fn the_evaluator_fits_each_point_once_and_counts() {
 }
 
 #[test]
+fn fits_at_several_points_take_one_pass_and_agree_with_fits_one_by_one() {
+    let (y, v, x) = invented(100);
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 3,
+    };
+    let together = Evaluator::new(d.clone());
+    together.at(0.0, Want::SCORE).unwrap();
+    // Close to 0: one pass, with no second pass at β̂ (see the module
+    // documentation).
+    let taus = [0.002, 0.0, 0.001, 0.002];
+    let before = passes();
+    together.fit_many(&taus, Want::SCORE);
+    // 0 was fitted already, 0.002 is asked for twice: two fits, one pass.
+    assert_eq!(passes() - before, 1);
+    assert_eq!(together.evaluations(), 3);
+    // Far from 0: the sums around β̂(0) cancel, and each point's sums are
+    // taken again at its own β̂.
+    together.fit_many(&[0.5, 3.0], Want::SCORE);
+    assert_eq!(together.evaluations(), 5);
+    let one_by_one = Evaluator::new(d.clone());
+    for tau2 in [0.0, 0.001, 0.002, 0.5, 3.0] {
+        let found = passes();
+        let a = together.at(tau2, Want::SCORE).unwrap();
+        // Found, not fitted again.
+        assert_eq!(passes(), found);
+        let b = one_by_one.at(tau2, Want::SCORE).unwrap();
+        let close = |s: f64, t: f64, tol: f64| (s - t).abs() <= tol * s.abs().max(t.abs());
+        for (s, t) in [(a.q, b.q), (a.tr_p, b.tr_p), (a.sum_w2r2, b.sum_w2r2)] {
+            assert!(close(s, t, 1e-12), "τ² = {tau2}: {s} vs {t}");
+        }
+        // The intercept of this unstandardised design (a column of years
+        // beside it) amplifies the rounding of δ = M⁻¹g: 2e-12 apart when
+        // written.
+        for (s, t) in a.beta.iter().zip(&b.beta) {
+            assert!(close(*s, *t, 1e-10), "τ² = {tau2}: β {s} vs {t}");
+        }
+    }
+    assert_eq!(together.evaluations(), 5);
+}
+
+#[test]
 fn many_columns_use_the_general_loop_and_agree() {
     // p = 10 (beyond the fixed sizes).
     let k = 80;
@@ -207,7 +251,14 @@ fn many_columns_use_the_general_loop_and_agree() {
         let mut s = Sums::default();
         general(&d8, 0.03, Want::CURVATURE, b8.as_slice(), &mut s);
         let general = s.sum_w3r2;
-        fixed::<8, false, true>(&d8, 0.03, b8.as_slice(), &mut s);
+        fixed_many::<8, false, true>(
+            &d8,
+            &[Point {
+                tau2: 0.03,
+                beta0: b8.as_slice(),
+            }],
+            std::slice::from_mut(&mut s),
+        );
         (s.sum_w3r2, general)
     };
     assert!(rel(fixed.0, fixed.1) < 1e-13);
@@ -258,6 +309,52 @@ fn a_reml_fit_with_its_interval_takes_few_passes() {
     assert!(used <= 28, "{used} passes");
 }
 
+/// The lane kernel built for AVX2 gives the very bits of the baseline
+/// build (`lanes`), where the processor has AVX2 (elsewhere it is never
+/// called, and there is nothing to compare).
+fn same_bits_with_avx2<const P: usize>(
+    d: &Data<'_>,
+    (log, curv): (bool, bool),
+    beta0: &[f64],
+    lanes: &Sums,
+) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        use super::sums::in_lanes_avx2;
+        let mut wide = Sums::default();
+        let (point, out) = (
+            [Point { tau2: 0.02, beta0 }],
+            std::slice::from_mut(&mut wide),
+        );
+        // SAFETY: AVX2 was detected on the line above.
+        unsafe {
+            match (log, curv) {
+                (false, false) => in_lanes_avx2::<P, false, false>(d, &point, out),
+                (true, false) => in_lanes_avx2::<P, true, false>(d, &point, out),
+                (false, true) => in_lanes_avx2::<P, false, true>(d, &point, out),
+                (true, true) => in_lanes_avx2::<P, true, true>(d, &point, out),
+            }
+        }
+        let bits = |s: &Sums| -> Vec<u64> {
+            let scalars = [
+                s.sum_w,
+                s.sum_w2,
+                s.sum_wr2,
+                s.sum_w2r2,
+                s.sum_w3r2,
+                s.sum_log_vt,
+            ];
+            [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
+                .into_iter()
+                .flatten()
+                .chain(&scalars)
+                .map(|x| x.to_bits())
+                .collect()
+        };
+        assert_eq!(bits(lanes), bits(&wide), "P = {P}, k = {}", d.k());
+    }
+}
+
 /// Every sum of the lane kernel and of the fixed-size running sums against
 /// the general running sums, for
 /// `P` columns, each pair of optional parts, and numbers of rows that fill
@@ -292,6 +389,7 @@ fn lanes_agree_with_running_sums<const P: usize>() {
                 (false, true) => in_lanes::<P, false, true>(&d, 0.02, &beta0, &mut lanes),
                 (true, true) => in_lanes::<P, true, true>(&d, 0.02, &beta0, &mut lanes),
             }
+            same_bits_with_avx2::<P>(&d, (log, curv), &beta0, &lanes);
             match (log, curv) {
                 (false, false) => running::<P, false, false>(&d, 0.02, &beta0, &mut run),
                 (true, false) => running::<P, true, false>(&d, 0.02, &beta0, &mut run),
@@ -344,4 +442,71 @@ fn the_lane_kernel_agrees_with_running_sums_for_every_size() {
     lanes_agree_with_running_sums::<6>();
     lanes_agree_with_running_sums::<7>();
     lanes_agree_with_running_sums::<8>();
+}
+
+/// The sums of one pass at several points are, point by point, the very
+/// bits of a pass at each point alone: below and above the block size and
+/// the parallel threshold, for the fixed-size kernels and the general one
+/// (p = 9), with and without the optional parts.
+#[test]
+fn a_pass_at_several_points_gives_each_point_s_own_sums() {
+    use super::sums::{accumulate, accumulate_many};
+    use crate::model::wls::PARALLEL_MIN_ROWS;
+    for (k, p) in [
+        (40usize, 3usize),
+        (300, 1),
+        (300, 4),
+        (300, 9),
+        (PARALLEL_MIN_ROWS + 77, 4),
+    ] {
+        let unit = |i: usize, s: usize| ((i * s + 13) % 1009) as f64 / 1009.0;
+        let v: Vec<f64> = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
+        let y: Vec<f64> = (0..k).map(|i| 3.0 * unit(i, 104_729) - 0.3).collect();
+        let x: Vec<f64> = (0..k)
+            .flat_map(|i| (0..p).map(move |a| if a == 0 { 1.0 } else { unit(i, 31 + 17 * a) }))
+            .collect();
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p,
+        };
+        let betas: Vec<Vec<f64>> = (0..3)
+            .map(|j| (0..p).map(|a| 0.1 * (a + j) as f64 - 0.05).collect())
+            .collect();
+        let points: Vec<Point<'_>> = [0.0, 0.3, 7.5]
+            .iter()
+            .zip(&betas)
+            .map(|(&tau2, b)| Point { tau2, beta0: b })
+            .collect();
+        for want in [Want::Q, Want::SCORE, Want::ALL, Want::CURVATURE] {
+            let mut together = vec![Sums::default(); points.len()];
+            accumulate_many(&d, &points, want, &mut together);
+            for (pt, got) in points.iter().zip(&together) {
+                let mut alone = Sums::default();
+                accumulate(&d, pt.tau2, want, pt.beta0, &mut alone);
+                let bits = |s: &Sums| -> Vec<u64> {
+                    [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
+                        .into_iter()
+                        .flatten()
+                        .chain(&[
+                            s.sum_w,
+                            s.sum_w2,
+                            s.sum_wr2,
+                            s.sum_w2r2,
+                            s.sum_w3r2,
+                            s.sum_log_vt,
+                        ])
+                        .map(|x| x.to_bits())
+                        .collect()
+                };
+                assert_eq!(
+                    bits(got),
+                    bits(&alone),
+                    "k = {k}, p = {p}, τ² = {}, {want:?}",
+                    pt.tau2
+                );
+            }
+        }
+    }
 }

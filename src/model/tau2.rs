@@ -356,6 +356,12 @@ fn score_slope(f: &Wls, restricted: bool) -> f64 {
     -f.y_pppy + 0.5 * t
 }
 
+/// From this many studies on, the points of the likelihood scan share one
+/// pass over the studies ([`Evaluator::fit_many`]): each pass reads the
+/// whole design from memory, and at this size the reading, not the
+/// arithmetic, takes the time (`cargo bench --bench passes`).
+const SCAN_IN_ONE_PASS_MIN_ROWS: usize = crate::model::wls::PARALLEL_MIN_ROWS;
+
 fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
     let restricted = method == Tau2Method::Reml;
     let what = if restricted {
@@ -406,6 +412,13 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
             (1..=tolerance::LIKELIHOOD_NEAR_ZERO_DECADES).map(|d| first * 10f64.powi(-(d as i32))),
         );
         points.sort_by(f64::total_cmp);
+    }
+    // With many studies the scan points are fitted in one pass (each
+    // around the fit at `hi`, not around the point before: the same score
+    // up to rounding); below, one pass each, as the fits of every golden
+    // output were made.
+    if ev.data().k() >= SCAN_IN_ONE_PASS_MIN_ROWS {
+        ev.fit_many(&points, Want::SCORE);
     }
     let grid: Vec<(f64, f64)> = points
         .iter()
@@ -608,10 +621,16 @@ mod tests {
 
     #[test]
     fn newton_roots_agree_with_brent_on_the_two_pass_functions() {
-        // Invented data (a deterministic scramble): 40 studies, a moderator.
+        // Below and above the size from which the scan takes one pass.
+        for k in [40, SCAN_IN_ONE_PASS_MIN_ROWS + 123] {
+            newton_roots_agree_with_brent(k);
+        }
+    }
+
+    fn newton_roots_agree_with_brent(k: usize) {
+        // Invented data (a deterministic scramble): k studies, a moderator.
         use super::super::solve::brent_root;
-        use super::super::wls::fit_with;
-        let k = 40;
+        use super::super::wls::{fit_with, passes};
         let z: Vec<f64> = (0..k).map(|i| ((i * 37) % 23) as f64 / 23.0).collect();
         let v: Vec<f64> = (0..k)
             .map(|i| 0.005 + ((i * 11) % 7) as f64 / 50.0)
@@ -629,13 +648,18 @@ mod tests {
         let s = search("a test root");
         for method in [Tau2Method::Reml, Tau2Method::Ml] {
             let restricted = method == Tau2Method::Reml;
+            let before = passes();
             let f = estimate(&d, method).unwrap();
             assert!(f.estimate > 0.0, "{f:?}");
+            // From the threshold on, the scan's points share a pass.
+            let used = passes() - before;
+            let shared = k >= SCAN_IN_ONE_PASS_MIN_ROWS;
+            assert_eq!(used < f.evaluations, shared, "{used} passes, {f:?}");
             let score = |t: f64| score(&fit_with(&d, t, Want::SCORE).unwrap(), restricted);
             let (root, _) = brent_root(score, 0.5 * f.estimate, 2.0 * f.estimate, s).unwrap();
             assert!(
                 (f.estimate - root).abs() <= 1e-12 * root,
-                "{method:?}: {} vs {root}",
+                "k = {k}, {method:?}: {} vs {root}",
                 f.estimate
             );
         }
