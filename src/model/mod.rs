@@ -374,10 +374,13 @@ fn fit_scaled(
 ) -> Result<(ModelFit, DMatrix<f64>)> {
     let (k, p) = (y.len(), st.a.nrows());
     let data = Data { y, v, x: st.x, p };
-    let hint = tau2::scale_hint(&data);
+    let (hint, ols_beta) = tau2::scale_hint_and_ols(&data);
     // Every fit below goes through one evaluator: one pass each, around the
     // coefficients of the fit before, and none repeated.
-    let ev = near::Evaluator::new(data.clone());
+    let ev = match ols_beta {
+        Some(b) if k >= near::FEWER_PASSES_MIN_ROWS => near::Evaluator::around(data.clone(), b),
+        _ => near::Evaluator::new(data.clone()),
+    };
     let tau2 = tau2::estimate_with(&ev, options.method, hint)?;
     let t = tau2.estimate;
     let singular = || {

@@ -251,9 +251,22 @@ fn covers(had: Want, want: Want) -> bool {
         && (had.curvature || !want.curvature)
 }
 
+/// From this many studies on, the τ² search saves passes over the studies in
+/// ways that change only the rounding of its fits: fits whose τ² are known
+/// together share one pass ([`Evaluator::fit_many`]: the points of the
+/// likelihood scan, the first Newton steps of the two Q-profile bounds), and
+/// the first fit is taken around the OLS coefficients
+/// ([`Evaluator::around`]), not around β₀ = 0, which takes a second pass.
+/// Each pass reads the whole design from memory, and at this size the
+/// reading, not the arithmetic, takes the time (`cargo bench --bench
+/// passes`). Below it every fit is its own pass, each around the fit
+/// before, as the fits of every golden output were made.
+pub(crate) const FEWER_PASSES_MIN_ROWS: usize = super::wls::PARALLEL_MIN_ROWS;
+
 /// Weighted fits of one data set at the τ² values a search asks for: each
 /// is one pass around the coefficients of the previous fit ([`fit_near`];
-/// the first around β₀ = 0), and a τ² already fitted with at least the
+/// the first around β₀ = 0 or the coefficients given to
+/// [`Evaluator::around`]), and a τ² already fitted with at least the
 /// parts asked for is not fitted again.
 ///
 /// Fits are shared ([`Rc`]), not copied, when asked for again, and the
@@ -262,6 +275,8 @@ fn covers(had: Want, want: Want) -> bool {
 pub struct Evaluator<'a> {
     data: Data<'a>,
     seen: RefCell<Vec<(Want, Rc<Wls>)>>,
+    /// The coefficients the first fit is taken around.
+    first: DVector<f64>,
     work: RefCell<Work>,
     evaluations: Cell<u64>,
 }
@@ -273,9 +288,21 @@ impl<'a> Evaluator<'a> {
         const USUAL_FITS: usize = 32;
         Evaluator {
             work: RefCell::new(Work::new(data.p)),
+            first: DVector::zeros(data.p),
             data,
             seen: RefCell::new(Vec::with_capacity(USUAL_FITS)),
             evaluations: Cell::new(0),
+        }
+    }
+
+    /// An evaluator of `data` whose first fit is taken around `beta0`
+    /// (coefficients near the fit's, such as the OLS ones: the sums around
+    /// them then need no second pass) instead of β₀ = 0.
+    pub fn around(data: Data<'a>, beta0: DVector<f64>) -> Self {
+        assert_eq!(beta0.len(), data.p, "one coefficient per column");
+        Evaluator {
+            first: beta0,
+            ..Evaluator::new(data)
         }
     }
 
@@ -302,12 +329,12 @@ impl<'a> Evaluator<'a> {
         }
         self.evaluations.set(self.evaluations.get() + 1);
         // Around the coefficients of the fit made last (the last one
-        // remembered), or β₀ = 0 for the first.
+        // remembered), or `first` for the first.
         let before = self.seen.borrow().last().map(|(_, f)| Rc::clone(f));
         let work = &mut self.work.borrow_mut();
         let f = Rc::new(match before {
             Some(before) => fit_near_in(work, &self.data, tau2, want, &before.beta)?,
-            None => fit_near_in(work, &self.data, tau2, want, &DVector::zeros(self.data.p))?,
+            None => fit_near_in(work, &self.data, tau2, want, &self.first)?,
         });
         self.seen.borrow_mut().push((want, Rc::clone(&f)));
         Some(f)
@@ -340,7 +367,7 @@ impl<'a> Evaluator<'a> {
         }
         let beta0 = match self.seen.borrow().last() {
             Some((_, f)) => f.beta.clone(),
-            None => DVector::zeros(self.data.p),
+            None => self.first.clone(),
         };
         let work = &mut self.work.borrow_mut();
         let points: Vec<Point<'_>> = missing

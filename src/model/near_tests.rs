@@ -309,6 +309,64 @@ fn a_reml_fit_with_its_interval_takes_few_passes() {
     assert!(used <= 28, "{used} passes");
 }
 
+/// From [`FEWER_PASSES_MIN_ROWS`] studies on, a REML fit with its interval
+/// starts around the OLS coefficients and shares passes among the scan's
+/// points and among the Q-profile bounds' first steps; its τ² is still the
+/// root of the score and its bounds the roots of Q(τ²) = target, both
+/// checked with fits of two passes each ([`fit_with`]: residuals at β̂).
+#[test]
+fn a_large_reml_fit_takes_fewer_passes_and_finds_the_same_roots() {
+    use crate::dist::{chi2_quantile, Tail};
+    use crate::model::{fit, tau2::Tau2Method, FitOptions, Inference};
+    let k = FEWER_PASSES_MIN_ROWS + 1000;
+    let (y, v, x) = benchmark_like(k);
+    let before = passes();
+    let f = fit(
+        &y,
+        &v,
+        &x,
+        4,
+        FitOptions {
+            method: Tau2Method::Reml,
+            inference: Inference::Kh,
+            level: 0.95,
+        },
+    )
+    .unwrap();
+    let used = passes() - before;
+    // 17 when written, against 24 for data of the same kind at 3,000
+    // studies (the test above).
+    eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
+    assert!(used <= 22, "{used} passes");
+    // The fit's τ², β and Q-profile bounds against two-pass fits of the
+    // same (unstandardised) design.
+    let d = Data {
+        y: &y,
+        v: &v,
+        x: &x,
+        p: 4,
+    };
+    let t = f.tau2.estimate;
+    assert!(t > 0.0);
+    let at = |tau2: f64| fit_with(&d, tau2, Want::SCORE).unwrap();
+    let score = |g: &Wls| 0.5 * (g.sum_w2r2 - g.tr_p);
+    // The score is 0 at τ̂ to within its change over the Newton tolerance.
+    let slope = (score(&at(1.001 * t)) - score(&at(0.999 * t))) / (0.002 * t);
+    assert!(score(&at(t)).abs() <= 1e-9 * t * slope.abs(), "score at τ̂");
+    for (a, b) in f.beta.iter().zip(at(t).beta.iter()) {
+        assert!(rel(*a, *b) < 1e-10, "β {a} vs {b}");
+    }
+    let (lo, hi) = f.tau2_ci.unwrap();
+    let df = (k - 4) as f64;
+    for (bound, target) in [
+        (lo, chi2_quantile(0.025, df, Tail::Upper)),
+        (hi, chi2_quantile(0.025, df, Tail::Lower)),
+    ] {
+        let q = fit_with(&d, bound, Want::Q).unwrap().q;
+        assert!(rel(q, target) < 1e-9, "Q({bound}) = {q}, target {target}");
+    }
+}
+
 /// The lane kernel built for AVX2 gives the very bits of the baseline
 /// build (`lanes`), where the processor has AVX2 (elsewhere it is never
 /// called, and there is nothing to compare).

@@ -8,12 +8,13 @@
 //! ([`Evaluator`]). Moment estimators are the meta-regression
 //! (residual-based) forms.
 
-use super::near::Evaluator;
+use super::near::{Evaluator, FEWER_PASSES_MIN_ROWS};
 use super::solve::Search;
 use super::wls::{ols, Data, Want, Wls};
 use crate::error::{Error, Result};
 use crate::support::flag::Flag;
 use crate::tolerance;
+use nalgebra::DVector;
 use std::rc::Rc;
 use std::sync::LazyLock;
 
@@ -59,16 +60,26 @@ fn wls(ev: &Evaluator<'_>, tau2: f64, want: Want) -> Result<Rc<Wls>> {
 /// A starting scale for τ² brackets: the OLS residual variance (or the mean
 /// sampling variance when the OLS fit is exact).
 pub fn scale_hint(data: &Data<'_>) -> f64 {
+    scale_hint_and_ols(data).0
+}
+
+/// [`scale_hint`] and the OLS coefficients it comes from (`None` when the
+/// OLS fit fails).
+pub fn scale_hint_and_ols(data: &Data<'_>) -> (f64, Option<DVector<f64>>) {
     let k = data.k() as f64;
     let df = (data.k() - data.p).max(1) as f64;
-    let rss = ols(data).map(|(_, _, rss)| rss).unwrap_or(0.0);
+    let (beta, rss) = match ols(data) {
+        Some((beta, _, rss)) => (Some(beta), rss),
+        None => (None, 0.0),
+    };
     let mean_v = data.v.iter().sum::<f64>() / k;
     let s = rss / df;
-    if s > 0.0 && s.is_finite() {
+    let hint = if s > 0.0 && s.is_finite() {
         s
     } else {
         mean_v.max(f64::MIN_POSITIVE)
-    }
+    };
+    (hint, beta)
 }
 
 /// Smallest `hi = start·2^j` with `f(hi) < 0`.
@@ -218,6 +229,12 @@ fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Resul
     solve_q_from(ev, target, hint, 0.0, what)
 }
 
+/// Q − target (> 0 left of the root) and the Newton step on 1/Q from the
+/// fit `f` (see [`solve_q_with`]).
+fn q_step(f: &Wls, target: f64) -> (f64, f64) {
+    (f.q - target, f.q * (f.q - target) / (target * f.sum_w2r2))
+}
+
 /// [`solve_q_with`], with the Newton steps started at `from` (when > 0;
 /// an earlier estimate near the root, already fitted) instead of at 0.
 fn solve_q_from(
@@ -228,11 +245,7 @@ fn solve_q_from(
     what: &str,
 ) -> Result<(f64, u64)> {
     let start = ev.evaluations();
-    let at = |t: f64| -> Result<(f64, f64)> {
-        let f = wls(ev, t, Want::Q)?;
-        // Q − target > 0 left of the root, and the Newton step on 1/Q.
-        Ok((f.q - target, f.q * (f.q - target) / (target * f.sum_w2r2)))
-    };
+    let at = |t: f64| -> Result<(f64, f64)> { Ok(q_step(&*wls(ev, t, Want::Q)?, target)) };
     let (q0, step0) = at(0.0)?;
     if q0 <= 0.0 {
         return Ok((0.0, ev.evaluations() - start));
@@ -356,12 +369,6 @@ fn score_slope(f: &Wls, restricted: bool) -> f64 {
     -f.y_pppy + 0.5 * t
 }
 
-/// From this many studies on, the points of the likelihood scan share one
-/// pass over the studies ([`Evaluator::fit_many`]): each pass reads the
-/// whole design from memory, and at this size the reading, not the
-/// arithmetic, takes the time (`cargo bench --bench passes`).
-const SCAN_IN_ONE_PASS_MIN_ROWS: usize = crate::model::wls::PARALLEL_MIN_ROWS;
-
 fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Result<Tau2Fit> {
     let restricted = method == Tau2Method::Reml;
     let what = if restricted {
@@ -415,9 +422,8 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
     }
     // With many studies the scan points are fitted in one pass (each
     // around the fit at `hi`, not around the point before: the same score
-    // up to rounding); below, one pass each, as the fits of every golden
-    // output were made.
-    if ev.data().k() >= SCAN_IN_ONE_PASS_MIN_ROWS {
+    // up to rounding).
+    if ev.data().k() >= FEWER_PASSES_MIN_ROWS {
         ev.fit_many(&points, Want::SCORE);
     }
     let grid: Vec<(f64, f64)> = points
@@ -491,6 +497,20 @@ pub fn q_profile_with(ev: &Evaluator<'_>, level: f64, hint: f64, from: f64) -> R
     let alpha = 1.0 - level;
     let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
     let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
+    // With many studies the first Newton step of each bound from `from`
+    // (both known from the fit there, which the τ² estimate made) are
+    // fitted in one pass; a point a bound's search does not take is
+    // merely not used.
+    if data.k() >= FEWER_PASSES_MIN_ROWS && from > 0.0 && from.is_finite() {
+        if let Some(f) = ev.at(from, Want::Q) {
+            let firsts: Vec<f64> = [upper_point, lower_point]
+                .iter()
+                .map(|&target| from + q_step(&f, target).1)
+                .filter(|t| *t > 0.0 && t.is_finite())
+                .collect();
+            ev.fit_many(&firsts, Want::Q);
+        }
+    }
     let (lo, _) = solve_q_from(
         ev,
         upper_point,
@@ -622,7 +642,7 @@ mod tests {
     #[test]
     fn newton_roots_agree_with_brent_on_the_two_pass_functions() {
         // Below and above the size from which the scan takes one pass.
-        for k in [40, SCAN_IN_ONE_PASS_MIN_ROWS + 123] {
+        for k in [40, FEWER_PASSES_MIN_ROWS + 123] {
             newton_roots_agree_with_brent(k);
         }
     }
@@ -653,7 +673,7 @@ mod tests {
             assert!(f.estimate > 0.0, "{f:?}");
             // From the threshold on, the scan's points share a pass.
             let used = passes() - before;
-            let shared = k >= SCAN_IN_ONE_PASS_MIN_ROWS;
+            let shared = k >= FEWER_PASSES_MIN_ROWS;
             assert_eq!(used < f.evaluations, shared, "{used} passes, {f:?}");
             let score = |t: f64| score(&fit_with(&d, t, Want::SCORE).unwrap(), restricted);
             let (root, _) = brent_root(score, 0.5 * f.estimate, 2.0 * f.estimate, s).unwrap();
