@@ -267,7 +267,10 @@ fn many_columns_use_the_general_loop_and_agree() {
 
 /// Invented data shaped like the benchmark file of benches/make_large_csv.py
 /// (three moderators, τ² ≈ 0.01), from a deterministic scramble.
-fn benchmark_like(k: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+/// The effects, variances and row-major design of invented data.
+type Columns = (Vec<f64>, Vec<f64>, Vec<f64>);
+
+fn benchmark_like(k: usize) -> Columns {
     let mut y = Vec::with_capacity(k);
     let mut v = Vec::with_capacity(k);
     let mut x = Vec::with_capacity(4 * k);
@@ -284,41 +287,10 @@ fn benchmark_like(k: usize) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
     (y, v, x)
 }
 
-#[test]
-fn a_reml_fit_with_its_interval_takes_few_passes() {
+/// Data like the benchmark's for k studies, a REML fit of them with
+/// Knapp–Hartung and the Q-profile interval, and the passes it took.
+fn reml_fit_counting_passes(k: usize) -> (Columns, crate::model::ModelFit, u64) {
     use crate::model::{fit, tau2::Tau2Method, FitOptions, Inference};
-    let (y, v, x) = benchmark_like(3000);
-    let before = passes();
-    let f = fit(
-        &y,
-        &v,
-        &x,
-        4,
-        FitOptions {
-            method: Tau2Method::Reml,
-            inference: Inference::Kh,
-            level: 0.95,
-        },
-    )
-    .unwrap();
-    let used = passes() - before;
-    eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
-    // One pass per evaluation (24 when written: REML 15 evaluations, the
-    // two Q-profile bounds 6 started at τ̂, the OLS scale 2, one guard
-    // pass), where two passes per evaluation would be at least 2 × 21.
-    assert!(used <= 28, "{used} passes");
-}
-
-/// From [`FEWER_PASSES_MIN_ROWS`] studies on, a REML fit with its interval
-/// starts around the OLS coefficients and shares passes among the scan's
-/// points and among the Q-profile bounds' first steps; its τ² is still the
-/// root of the score and its bounds the roots of Q(τ²) = target, both
-/// checked with fits of two passes each ([`fit_with`]: residuals at β̂).
-#[test]
-fn a_large_reml_fit_takes_fewer_passes_and_finds_the_same_roots() {
-    use crate::dist::{chi2_quantile, Tail};
-    use crate::model::{fit, tau2::Tau2Method, FitOptions, Inference};
-    let k = FEWER_PASSES_MIN_ROWS + 1000;
     let (y, v, x) = benchmark_like(k);
     let before = passes();
     let f = fit(
@@ -334,6 +306,29 @@ fn a_large_reml_fit_takes_fewer_passes_and_finds_the_same_roots() {
     )
     .unwrap();
     let used = passes() - before;
+    ((y, v, x), f, used)
+}
+
+#[test]
+fn a_reml_fit_with_its_interval_takes_few_passes() {
+    let (_, f, used) = reml_fit_counting_passes(3000);
+    eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
+    // One pass per evaluation (24 when written: REML 15 evaluations, the
+    // two Q-profile bounds 6 started at τ̂, the OLS scale 2, one guard
+    // pass), where two passes per evaluation would be at least 2 × 21.
+    assert!(used <= 28, "{used} passes");
+}
+
+/// From [`FEWER_PASSES_MIN_ROWS`] studies on, a REML fit with its interval
+/// starts around the OLS coefficients and shares passes among the scan's
+/// points and among the Q-profile bounds' first steps; its τ² is still the
+/// root of the score and its bounds the roots of Q(τ²) = target, both
+/// checked with fits of two passes each ([`fit_with`]: residuals at β̂).
+#[test]
+fn a_large_reml_fit_takes_fewer_passes_and_finds_the_same_roots() {
+    use crate::dist::{chi2_quantile, Tail};
+    let k = FEWER_PASSES_MIN_ROWS + 1000;
+    let ((y, v, x), f, used) = reml_fit_counting_passes(k);
     // 17 when written, against 24 for data of the same kind at 3,000
     // studies (the test above).
     eprintln!("passes {used}, REML evaluations {}", f.tau2.evaluations);
