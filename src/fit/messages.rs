@@ -545,7 +545,7 @@ fn duplicate_label_warnings(labels: &Texts) -> Vec<String> {
 }
 
 /// Up to `max` items joined by commas, with "and N more" for the rest.
-fn list<S: AsRef<str>>(items: &[S], max: usize) -> String {
+pub(super) fn list<S: AsRef<str>>(items: &[S], max: usize) -> String {
     let mut s = items
         .iter()
         .take(max)

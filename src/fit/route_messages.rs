@@ -3,7 +3,12 @@
 //! asymmetric about their effect, and the cautions that approximated
 //! (median-based) and converted effects carry.
 
-use super::messages::Messages;
+use super::messages::{list, Messages};
+
+/// The most study labels a caution names; the per-study output (and the
+/// report's section on how each effect was obtained) has every study's
+/// route.
+const NAMED: usize = 12;
 use super::studies::Studies;
 use crate::effect::route::{Derivation, Route};
 
@@ -29,7 +34,7 @@ pub fn add(studies: &Studies, m: &mut Messages) {
              assume roughly symmetric, near-normal data within each group; with skewed data \
              they can be far off.",
             count(approximated.len()),
-            approximated.join(", ")
+            list(&approximated, NAMED)
         ));
     }
     let converted = named(Derivation::Converted);
@@ -40,7 +45,7 @@ pub fn add(studies: &Studies, m: &mut Messages) {
              underlying continuous trait is roughly normal{}; they put different designs on \
              one scale, not make them the same.",
             count(converted.len()),
-            converted.join(", "),
+            list(&converted, NAMED),
             if from_counts {
                 " (for event counts, that the outcome is a cut-off on a logistic trait)"
             } else {

@@ -39,6 +39,10 @@ pub fn route_words(route: Route) -> &'static str {
     }
 }
 
+/// The most study labels named per route; the per-study output (`--json`,
+/// `--table`) gives every study's route.
+const NAMED: usize = 20;
+
 /// One line per route: "12 from group means, SDs and sizes (means)",
 /// "2 approximated from medians and quartiles (median-iqr): A, B", and
 /// the names of the studies for approximated and converted routes.
@@ -58,7 +62,15 @@ pub fn lines(r: &FitReport) -> Vec<String> {
                 c.computed_from
             );
             if c.derivation != Derivation::Direct {
-                let _ = write!(line, ": {}", c.labels.iter().collect::<Vec<_>>().join(", "));
+                let named: Vec<&str> = c.labels.iter().take(NAMED).collect();
+                let _ = write!(line, ": {}", named.join(", "));
+                if c.studies > named.len() {
+                    let _ = write!(
+                        line,
+                        " and {} more (every study's route is in the per-study output)",
+                        c.studies - named.len()
+                    );
+                }
             }
             line
         })

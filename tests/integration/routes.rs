@@ -598,3 +598,61 @@ fn median_routes_against_wan_table_1_and_the_simulation() {
         }
     }
 }
+
+#[test]
+fn cautions_and_the_route_section_name_a_few_studies_and_count_the_rest() {
+    // Invented data: 30 studies given as medians with quartiles.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("medians.csv");
+    let mut text = String::from(
+        "study,treat_n,ctrl_n,treat_median,treat_q1,treat_q3,ctrl_median,ctrl_q1,ctrl_q3\n",
+    );
+    for i in 0..30 {
+        let shift = (i % 7) as f64 * 0.4;
+        text.push_str(&format!(
+            "Site {i:02},{},{},{:.1},{:.1},{:.1},12.0,9.1,15.6\n",
+            30 + i,
+            28 + i % 5,
+            13.0 + shift,
+            10.0 + shift,
+            17.0 + shift
+        ));
+    }
+    std::fs::write(&file, text).unwrap();
+    let got = fit_json(&file, &["--measure", "smd"]);
+    let cautions: Vec<&str> = got["cautions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|c| c.as_str())
+        .filter(|c| c.contains("approximated from medians"))
+        .collect();
+    assert_eq!(cautions.len(), 1, "{cautions:?}");
+    let c = cautions[0];
+    assert!(
+        c.starts_with("30 studies' effects were approximated"),
+        "{c}"
+    );
+    assert!(
+        c.contains("Site 00, Site 01") && c.contains("Site 11 and 18 more"),
+        "{c}"
+    );
+    assert!(!c.contains("Site 12"), "{c}");
+    // The terminal's route section names twenty and points to the rest.
+    let out = pondus()
+        .arg("fit")
+        .arg(&file)
+        .args(["--measure", "smd"])
+        .assert()
+        .success();
+    let text = String::from_utf8_lossy(&out.get_output().stdout).to_string();
+    let line = text
+        .lines()
+        .find(|l| l.contains("30 approximated from medians and quartiles"))
+        .unwrap_or_else(|| panic!("{text}"));
+    assert!(
+        line.contains("Site 19 and 10 more (every study's route is in the per-study output)"),
+        "{line}"
+    );
+    assert!(!line.contains("Site 20"), "{line}");
+}
