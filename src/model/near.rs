@@ -254,7 +254,8 @@ fn covers(had: Want, want: Want) -> bool {
 /// From this many studies on, the τ² search saves passes over the studies in
 /// ways that change only the rounding of its fits: fits whose τ² are known
 /// together share one pass ([`Evaluator::fit_many`]: the points of the
-/// likelihood scan, the first Newton steps of the two Q-profile bounds), and
+/// likelihood scan, the steps of the two Q-profile bounds' searches, which
+/// go in lock step), and
 /// the first fit is taken around the OLS coefficients
 /// ([`Evaluator::around`]), not around β₀ = 0, which takes a second pass.
 /// Each pass reads the whole design from memory, and at this size the

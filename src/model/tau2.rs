@@ -293,55 +293,111 @@ fn newton_root<F: Fn(f64) -> Result<(f64, f64)>>(
 /// f and the step are `first`.
 #[allow(clippy::too_many_arguments)]
 fn newton_root_in<F: Fn(f64) -> Result<(f64, f64)>>(
-    mut lo: f64,
-    mut hi: f64,
-    mut t: f64,
+    lo: f64,
+    hi: f64,
+    t: f64,
     first: (f64, f64),
     hint: f64,
     at: F,
     what: &str,
 ) -> Result<f64> {
-    let (mut f, mut step) = first;
-    let mut step_before = f64::INFINITY;
-    for _ in 0..tolerance::ROOT_MAX_ITERS {
+    let mut search = Newton::new((lo, hi), t, first, hint, what);
+    loop {
+        match search.decide()? {
+            Move::Root(root) => return Ok(root),
+            Move::Fit(t) => search.take(at(t)?),
+        }
+    }
+}
+
+/// What a [`Newton`] search does next.
+enum Move {
+    /// Stop: the root.
+    Root(f64),
+    /// Evaluate f and the step at this τ² and [`Newton::take`] them.
+    Fit(f64),
+}
+
+/// The state of [`newton_root_in`]'s search between evaluations, so that
+/// two searches can go in lock step and share their passes
+/// ([`q_bounds_together`]).
+struct Newton<'w> {
+    lo: f64,
+    hi: f64,
+    t: f64,
+    f: f64,
+    step: f64,
+    step_before: f64,
+    hint: f64,
+    steps_left: u64,
+    what: &'w str,
+}
+
+impl<'w> Newton<'w> {
+    fn new((lo, hi): (f64, f64), t: f64, (f, step): (f64, f64), hint: f64, what: &'w str) -> Self {
+        Newton {
+            lo,
+            hi,
+            t,
+            f,
+            step,
+            step_before: f64::INFINITY,
+            hint,
+            steps_left: tolerance::ROOT_MAX_ITERS,
+            what,
+        }
+    }
+
+    /// The next move from f and the step at the current τ² (see
+    /// [`newton_root`] for the rules).
+    fn decide(&mut self) -> Result<Move> {
+        if self.steps_left == 0 {
+            return Err(search(self.what).fail(format!(
+                "no root found in {} steps",
+                tolerance::ROOT_MAX_ITERS
+            )));
+        }
+        self.steps_left -= 1;
+        let (t, f, step) = (self.t, self.f, self.step);
         if f.is_nan() {
-            return Err(
-                search(what).fail(format!("the function could not be evaluated at τ² = {t:e}"))
-            );
+            return Err(search(self.what)
+                .fail(format!("the function could not be evaluated at τ² = {t:e}")));
         }
         if f > 0.0 {
-            lo = lo.max(t);
+            self.lo = self.lo.max(t);
         } else if f < 0.0 {
-            hi = hi.min(t);
+            self.hi = self.hi.min(t);
         } else {
-            return Ok(t);
+            return Ok(Move::Root(t));
         }
+        let (lo, hi) = (self.lo, self.hi);
         let newton = t + step;
         let closed = hi.is_finite();
-        let fast = !closed || step.abs() <= 0.5 * step_before.abs();
+        let fast = !closed || step.abs() <= 0.5 * self.step_before.abs();
         let next = if newton > lo && newton < hi && fast {
             let small = step.abs() <= tolerance::NEWTON_STEP_REL * newton.abs();
-            let shrinking = step.abs() <= tolerance::NEWTON_SHRINK * step_before.abs();
+            let shrinking = step.abs() <= tolerance::NEWTON_SHRINK * self.step_before.abs();
             if (small && shrinking) || step.abs() <= tolerance::ROOT_REL * newton.abs() {
-                return Ok(newton);
+                return Ok(Move::Root(newton));
             }
             newton
         } else if closed {
             0.5 * (lo + hi)
         } else {
-            (2.0 * t).max(hint)
+            (2.0 * t).max(self.hint)
         };
         if closed && hi - lo <= tolerance::ROOT_REL * hi {
-            return Ok(next);
+            return Ok(Move::Root(next));
         }
-        step_before = next - t;
-        t = next;
-        (f, step) = at(t)?;
+        self.step_before = next - t;
+        self.t = next;
+        Ok(Move::Fit(next))
     }
-    Err(search(what).fail(format!(
-        "no root found in {} steps",
-        tolerance::ROOT_MAX_ITERS
-    )))
+
+    /// f and the step at the τ² of the last [`Move::Fit`].
+    fn take(&mut self, (f, step): (f64, f64)) {
+        (self.f, self.step) = (f, step);
+    }
 }
 
 /// Restricted (REML) or ordinary (ML) log-likelihood at τ², up to the
@@ -466,6 +522,55 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
     })
 }
 
+/// The two Q-profile bounds as [`solve_q_from`] finds each from `from`
+/// (> 0), the two searches in lock step: the τ² each asks for next are
+/// fitted in one pass ([`Evaluator::fit_many`]), so the pair takes as many
+/// passes as the longer search, not the sum of both. Each search makes the
+/// moves it would make alone; only the coefficients its fits are taken
+/// around differ (the fit made last, of either search), so the bounds
+/// differ by rounding.
+fn q_bounds_together(
+    ev: &Evaluator<'_>,
+    targets: [(f64, &str); 2],
+    hint: f64,
+    from: f64,
+) -> Result<[f64; 2]> {
+    let mut bounds = [0.0; 2];
+    let mut searches: Vec<(usize, f64, Newton<'_>)> = Vec::with_capacity(2);
+    for (i, &(target, what)) in targets.iter().enumerate() {
+        if q_step(&*wls(ev, 0.0, Want::Q)?, target).0 <= 0.0 {
+            continue;
+        }
+        let (f, step) = q_step(&*wls(ev, from, Want::Q)?, target);
+        // From the right of the root the bracket is [0, from].
+        let hi = if f < 0.0 { from } else { f64::INFINITY };
+        searches.push((
+            i,
+            target,
+            Newton::new((0.0, hi), from, (f, step), hint, what),
+        ));
+    }
+    while !searches.is_empty() {
+        let mut asked = Vec::with_capacity(2);
+        let mut going = Vec::with_capacity(2);
+        for (i, target, mut search) in searches {
+            match search.decide()? {
+                Move::Root(root) => bounds[i] = root.max(0.0),
+                Move::Fit(t) => {
+                    asked.push(t);
+                    going.push((i, target, search));
+                }
+            }
+        }
+        ev.fit_many(&asked, Want::Q);
+        for ((_, target, search), &t) in going.iter_mut().zip(&asked) {
+            search.take(q_step(&*wls(ev, t, Want::Q)?, *target));
+        }
+        searches = going;
+    }
+    Ok(bounds)
+}
+
 /// Q-profile confidence interval for τ² (Viechtbauer 2007, *Stat. Med.* 26:37):
 /// the τ² values where Q(τ²) equals the upper and the lower α/2 points of
 /// χ²(k − p). A bound is 0 when Q(0) is already below its target.
@@ -497,19 +602,17 @@ pub fn q_profile_with(ev: &Evaluator<'_>, level: f64, hint: f64, from: f64) -> R
     let alpha = 1.0 - level;
     let upper_point = chi2_quantile(alpha / 2.0, df, Tail::Upper);
     let lower_point = chi2_quantile(alpha / 2.0, df, Tail::Lower);
-    // With many studies the first Newton step of each bound from `from`
-    // (both known from the fit there, which the τ² estimate made) are
-    // fitted in one pass; a point a bound's search does not take is
-    // merely not used.
     if data.k() >= FEWER_PASSES_MIN_ROWS && from > 0.0 && from.is_finite() {
-        if let Some(f) = ev.at(from, Want::Q) {
-            let firsts: Vec<f64> = [upper_point, lower_point]
-                .iter()
-                .map(|&target| from + q_step(&f, target).1)
-                .filter(|t| *t > 0.0 && t.is_finite())
-                .collect();
-            ev.fit_many(&firsts, Want::Q);
-        }
+        let [lo, hi] = q_bounds_together(
+            ev,
+            [
+                (upper_point, "the lower Q-profile bound for τ²"),
+                (lower_point, "the upper Q-profile bound for τ²"),
+            ],
+            hint,
+            from,
+        )?;
+        return Ok((lo, hi));
     }
     let (lo, _) = solve_q_from(
         ev,
