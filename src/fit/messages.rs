@@ -546,16 +546,7 @@ fn duplicate_label_warnings(labels: &Texts) -> Vec<String> {
 
 /// Up to `max` items joined by commas, with "and N more" for the rest.
 pub(super) fn list<S: AsRef<str>>(items: &[S], max: usize) -> String {
-    let mut s = items
-        .iter()
-        .take(max)
-        .map(AsRef::as_ref)
-        .collect::<Vec<&str>>()
-        .join(", ");
-    if items.len() > max {
-        s.push_str(&format!(" and {} more", items.len() - max));
-    }
-    s
+    crate::support::listing::first_of(items, items.len(), max)
 }
 
 #[cfg(test)]

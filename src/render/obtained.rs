@@ -6,6 +6,7 @@
 
 use crate::effect::route::{Derivation, Route};
 use crate::result::FitReport;
+use crate::support::listing::first_of;
 use std::fmt::Write as _;
 
 /// Whether the report has something to say about how its effects were obtained.
@@ -62,14 +63,9 @@ pub fn lines(r: &FitReport) -> Vec<String> {
                 c.computed_from
             );
             if c.derivation != Derivation::Direct {
-                let named: Vec<&str> = c.labels.iter().take(NAMED).collect();
-                let _ = write!(line, ": {}", named.join(", "));
-                if c.studies > named.len() {
-                    let _ = write!(
-                        line,
-                        " and {} more (every study's route is in the per-study output)",
-                        c.studies - named.len()
-                    );
+                let _ = write!(line, ": {}", first_of(c.labels.iter(), c.studies, NAMED));
+                if c.studies > NAMED {
+                    line.push_str(" (every study's route is in the per-study output)");
                 }
             }
             line

@@ -16,16 +16,8 @@ use std::fmt::Write as _;
 pub const MAX_LISTED_SITES: usize = 40;
 
 fn list(items: &[String], max: usize) -> String {
-    let mut s = items
-        .iter()
-        .take(max)
-        .map(|i| format!("'{i}'"))
-        .collect::<Vec<_>>()
-        .join(", ");
-    if items.len() > max {
-        let _ = write!(s, " and {} more", items.len() - max);
-    }
-    s
+    let quoted = items.iter().map(|i| format!("'{i}'"));
+    crate::support::listing::first_of(quoted, items.len(), max)
 }
 
 fn coefficient_line(out: &mut String, label: &str, c: &Coefficient, level: f64) {

@@ -9,6 +9,7 @@
 pub mod flag;
 pub mod format;
 pub mod hash;
+pub mod listing;
 pub mod pieces;
 pub mod rng;
 pub mod rows;
