@@ -77,7 +77,7 @@ fn trace_of_product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
 #[derive(Debug)]
 struct Work {
     sums: Sums,
-    /// The sums of a pass at several points ([`Evaluator::at_many`]).
+    /// The sums of a pass at several points ([`Evaluator::fit_many`]).
     many: Vec<Sums>,
     /// M, then its Cholesky factor.
     m: DMatrix<f64>,
@@ -317,16 +317,21 @@ impl<'a> Evaluator<'a> {
         self.evaluations.get()
     }
 
-    /// The fit at `tau2` with the parts in `want`; `None` for a collinear
-    /// design.
-    pub fn at(&self, tau2: f64, want: Want) -> Option<Rc<Wls>> {
-        if let Some((_, f)) = self
-            .seen
+    /// The fit made earlier at exactly `tau2` with at least the parts in
+    /// `want`, if any.
+    fn found(&self, tau2: f64, want: Want) -> Option<Rc<Wls>> {
+        self.seen
             .borrow()
             .iter()
             .find(|(had, f)| f.tau2.to_bits() == tau2.to_bits() && covers(*had, want))
-        {
-            return Some(Rc::clone(f));
+            .map(|(_, f)| Rc::clone(f))
+    }
+
+    /// The fit at `tau2` with the parts in `want`; `None` for a collinear
+    /// design.
+    pub fn at(&self, tau2: f64, want: Want) -> Option<Rc<Wls>> {
+        if let Some(f) = self.found(tau2, want) {
+            return Some(f);
         }
         self.evaluations.set(self.evaluations.get() + 1);
         // Around the coefficients of the fit made last (the last one
@@ -344,7 +349,7 @@ impl<'a> Evaluator<'a> {
     /// The fits at each of `taus` not fitted yet (with the parts in
     /// `want`), made in one pass over the studies that reads each design row
     /// once for all of them, all around the coefficients of the fit made
-    /// last (or β₀ = 0), and remembered in the order of `taus`: afterwards
+    /// last (or those of the first fit), and remembered in the order of `taus`: afterwards
     /// [`Evaluator::at`] finds them. Each fit is what a pass at its τ² alone
     /// around those coefficients gives, bit for bit; against fits made one
     /// after another (each around the one before) only the rounding
@@ -354,11 +359,7 @@ impl<'a> Evaluator<'a> {
     pub fn fit_many(&self, taus: &[f64], want: Want) {
         let mut missing: Vec<f64> = Vec::with_capacity(taus.len());
         for &t in taus {
-            let seen = self
-                .seen
-                .borrow()
-                .iter()
-                .any(|(had, f)| f.tau2.to_bits() == t.to_bits() && covers(*had, want));
+            let seen = self.found(t, want).is_some();
             if !seen && !missing.iter().any(|m| m.to_bits() == t.to_bits()) {
                 missing.push(t);
             }

@@ -18,6 +18,10 @@ use nalgebra::DVector;
 use std::rc::Rc;
 use std::sync::LazyLock;
 
+#[path = "tau2_newton.rs"]
+mod newton;
+use newton::{newton_root_in, Move, Newton};
+
 pub use crate::result::{Ending, Tau2Method};
 
 /// A τ² estimate and how it was reached.
@@ -224,7 +228,7 @@ pub fn solve_q(data: &Data<'_>, target: f64, what: &str) -> Result<(f64, u64)> {
 /// 1/Q is close to linear in τ² (exactly so when all v_i are equal), so the
 /// steps converge in a few fits; for Q(τ²) = Σ a_i/(b_i + τ²) (fixed β),
 /// 1/Q is concave by the Cauchy–Schwarz inequality, and the steps from the
-/// left of the root then never pass it. Safeguarded by [`newton_root`].
+/// left of the root then never pass it. Safeguarded by [`newton_root_in`].
 fn solve_q_with(ev: &Evaluator<'_>, target: f64, hint: f64, what: &str) -> Result<(f64, u64)> {
     solve_q_from(ev, target, hint, 0.0, what)
 }
@@ -246,158 +250,37 @@ fn solve_q_from(
 ) -> Result<(f64, u64)> {
     let start = ev.evaluations();
     let at = |t: f64| -> Result<(f64, f64)> { Ok(q_step(&*wls(ev, t, Want::Q)?, target)) };
-    let (q0, step0) = at(0.0)?;
-    if q0 <= 0.0 {
-        return Ok((0.0, ev.evaluations() - start));
-    }
-    let t = if from > 0.0 && from.is_finite() {
-        let (f, step) = at(from)?;
-        // From the right of the root the bracket is [0, from].
-        let hi = if f < 0.0 { from } else { f64::INFINITY };
-        newton_root_in(0.0, hi, from, (f, step), hint, at, what)?
-    } else {
-        newton_root(0.0, (q0, step0), hint, at, what)?
+    let t = match q_search(ev, target, hint, from, what)? {
+        None => 0.0,
+        Some(search) => search.run(at)?,
     };
     Ok((t.max(0.0), ev.evaluations() - start))
 }
 
-/// A root of f on [lo, ∞) with f(lo) > 0 (and f < 0 to its right), by
-/// Newton steps kept inside the bracket the evaluations so far give:
-/// `at(t)` returns f(t) and the Newton step −f(t)/f'(t) (or the step of
-/// another function with the same root). A step that leaves the bracket,
-/// or, once the bracket is closed, that does not halve the step before it,
-/// is replaced by bisection (the safeguard of *rtsafe* in Press et al.,
-/// *Numerical Recipes*, 3rd ed., 2007, §9.4; cited from memory); while no
-/// point right of the root is known, such a step doubles τ² (from at least
-/// `hint`). Stops after a Newton step of at most
-/// [`tolerance::NEWTON_STEP_REL`] of τ² that is also at most
-/// [`tolerance::NEWTON_SHRINK`] of the step before (so the steps converge
-/// quadratically, and the error left is of the order of the step squared),
-/// or of at most [`tolerance::ROOT_REL`] of τ² (rounding), or when the
-/// bracket is that narrow.
-///
-/// # Errors
-/// [`Error::NoConvergence`] when f cannot be evaluated or no root is found
-/// in [`tolerance::ROOT_MAX_ITERS`] steps; the errors of `at`.
-fn newton_root<F: Fn(f64) -> Result<(f64, f64)>>(
-    lo: f64,
-    first: (f64, f64),
+/// The Newton search for Q(τ²) = `target` that [`solve_q_from`] makes:
+/// from `from` when > 0 (the bracket [0, from] when Q(from) is already
+/// below the target, else [0, ∞)), else from 0; `None` when Q(0) ≤ target
+/// (the root is 0).
+fn q_search<'w>(
+    ev: &Evaluator<'_>,
+    target: f64,
     hint: f64,
-    at: F,
-    what: &str,
-) -> Result<f64> {
-    newton_root_in(lo, f64::INFINITY, lo, first, hint, at, what)
-}
-
-/// [`newton_root`] in the bracket [lo, hi] (hi may be ∞), from `t`, where
-/// f and the step are `first`.
-#[allow(clippy::too_many_arguments)]
-fn newton_root_in<F: Fn(f64) -> Result<(f64, f64)>>(
-    lo: f64,
-    hi: f64,
-    t: f64,
-    first: (f64, f64),
-    hint: f64,
-    at: F,
-    what: &str,
-) -> Result<f64> {
-    let mut search = Newton::new((lo, hi), t, first, hint, what);
-    loop {
-        match search.decide()? {
-            Move::Root(root) => return Ok(root),
-            Move::Fit(t) => search.take(at(t)?),
-        }
-    }
-}
-
-/// What a [`Newton`] search does next.
-enum Move {
-    /// Stop: the root.
-    Root(f64),
-    /// Evaluate f and the step at this τ² and [`Newton::take`] them.
-    Fit(f64),
-}
-
-/// The state of [`newton_root_in`]'s search between evaluations, so that
-/// two searches can go in lock step and share their passes
-/// ([`q_bounds_together`]).
-struct Newton<'w> {
-    lo: f64,
-    hi: f64,
-    t: f64,
-    f: f64,
-    step: f64,
-    step_before: f64,
-    hint: f64,
-    steps_left: u64,
+    from: f64,
     what: &'w str,
-}
-
-impl<'w> Newton<'w> {
-    fn new((lo, hi): (f64, f64), t: f64, (f, step): (f64, f64), hint: f64, what: &'w str) -> Self {
-        Newton {
-            lo,
-            hi,
-            t,
-            f,
-            step,
-            step_before: f64::INFINITY,
-            hint,
-            steps_left: tolerance::ROOT_MAX_ITERS,
-            what,
-        }
+) -> Result<Option<Newton<'w>>> {
+    let at = |t: f64| -> Result<(f64, f64)> { Ok(q_step(&*wls(ev, t, Want::Q)?, target)) };
+    let (q0, step0) = at(0.0)?;
+    if q0 <= 0.0 {
+        return Ok(None);
     }
-
-    /// The next move from f and the step at the current τ² (see
-    /// [`newton_root`] for the rules).
-    fn decide(&mut self) -> Result<Move> {
-        if self.steps_left == 0 {
-            return Err(search(self.what).fail(format!(
-                "no root found in {} steps",
-                tolerance::ROOT_MAX_ITERS
-            )));
-        }
-        self.steps_left -= 1;
-        let (t, f, step) = (self.t, self.f, self.step);
-        if f.is_nan() {
-            return Err(search(self.what)
-                .fail(format!("the function could not be evaluated at τ² = {t:e}")));
-        }
-        if f > 0.0 {
-            self.lo = self.lo.max(t);
-        } else if f < 0.0 {
-            self.hi = self.hi.min(t);
-        } else {
-            return Ok(Move::Root(t));
-        }
-        let (lo, hi) = (self.lo, self.hi);
-        let newton = t + step;
-        let closed = hi.is_finite();
-        let fast = !closed || step.abs() <= 0.5 * self.step_before.abs();
-        let next = if newton > lo && newton < hi && fast {
-            let small = step.abs() <= tolerance::NEWTON_STEP_REL * newton.abs();
-            let shrinking = step.abs() <= tolerance::NEWTON_SHRINK * self.step_before.abs();
-            if (small && shrinking) || step.abs() <= tolerance::ROOT_REL * newton.abs() {
-                return Ok(Move::Root(newton));
-            }
-            newton
-        } else if closed {
-            0.5 * (lo + hi)
-        } else {
-            (2.0 * t).max(self.hint)
-        };
-        if closed && hi - lo <= tolerance::ROOT_REL * hi {
-            return Ok(Move::Root(next));
-        }
-        self.step_before = next - t;
-        self.t = next;
-        Ok(Move::Fit(next))
-    }
-
-    /// f and the step at the τ² of the last [`Move::Fit`].
-    fn take(&mut self, (f, step): (f64, f64)) {
-        (self.f, self.step) = (f, step);
-    }
+    Ok(Some(if from > 0.0 && from.is_finite() {
+        let (f, step) = at(from)?;
+        // From the right of the root the bracket is [0, from].
+        let hi = if f < 0.0 { from } else { f64::INFINITY };
+        Newton::new((0.0, hi), from, (f, step), hint, what)
+    } else {
+        Newton::new((0.0, f64::INFINITY), 0.0, (q0, step0), hint, what)
+    }))
 }
 
 /// Restricted (REML) or ordinary (ML) log-likelihood at τ², up to the
@@ -538,17 +421,9 @@ fn q_bounds_together(
     let mut bounds = [0.0; 2];
     let mut searches: Vec<(usize, f64, Newton<'_>)> = Vec::with_capacity(2);
     for (i, &(target, what)) in targets.iter().enumerate() {
-        if q_step(&*wls(ev, 0.0, Want::Q)?, target).0 <= 0.0 {
-            continue;
+        if let Some(search) = q_search(ev, target, hint, from, what)? {
+            searches.push((i, target, search));
         }
-        let (f, step) = q_step(&*wls(ev, from, Want::Q)?, target);
-        // From the right of the root the bracket is [0, from].
-        let hi = if f < 0.0 { from } else { f64::INFINITY };
-        searches.push((
-            i,
-            target,
-            Newton::new((0.0, hi), from, (f, step), hint, what),
-        ));
     }
     while !searches.is_empty() {
         let mut asked = Vec::with_capacity(2);
