@@ -24,7 +24,7 @@
 use super::route::Route;
 use super::{shorten, EffectColumn, Measure, RowProblem};
 use crate::error::{CellProblem, CellProblems, Error, Result};
-use crate::input::number::{invalid_hint, parse_cell, Cell};
+use crate::input::number::{invalid_hint, Cell};
 use crate::input::{ColumnRequest, Table};
 use crate::support::flag::Flag;
 
@@ -219,6 +219,7 @@ pub fn requests(settings: &ArtifactSettings, measure: Measure) -> Result<Vec<Col
             required: true,
             purpose: format!("the {role} of each study ({flag})"),
             label: false,
+            numbers: true,
             hint: format!("Check the column named in {flag}; headers are matched exactly, or ignoring case when unique."),
         })
         .collect())
@@ -250,7 +251,7 @@ pub fn apply(
     let mut problems = Vec::new();
     let mut total = 0usize;
     let number = |col: usize, row: usize| match table.column(col) {
-        Some(c) => parse_cell(c.get(row)),
+        Some(c) => c.number(row),
         None => Cell::Missing,
     };
     for (i, slot) in out.iter_mut().enumerate() {
@@ -268,14 +269,17 @@ pub fn apply(
                     continue;
                 }
                 Cell::Invalid => {
-                    let text = table.column(first + j).map(|c| c.get(i)).unwrap_or("");
+                    let text = table
+                        .column(first + j)
+                        .map(|c| c.text(i))
+                        .unwrap_or_default();
                     total += 1;
                     if problems.len() < CellProblems::MAX_LISTED {
                         problems.push(CellProblem {
                             line: table.lines[i],
                             column: header.clone(),
-                            value: shorten(text),
-                            message: format!("{} for the {role} ({flag})", invalid_hint(text)),
+                            value: shorten(&text),
+                            message: format!("{} for the {role} ({flag})", invalid_hint(&text)),
                             cell: table.column(first + j).and_then(|c| table.cell_place(i, c)),
                         });
                     }
@@ -337,7 +341,13 @@ pub fn apply(
                 };
                 let (column, value, cell) = table
                     .column(col)
-                    .map(|c| (c.header.clone(), shorten(c.get(i)), table.cell_place(i, c)))
+                    .map(|c| {
+                        (
+                            c.header.clone(),
+                            shorten(&c.text(i)),
+                            table.cell_place(i, c),
+                        )
+                    })
                     .unwrap_or_default();
                 total += 1;
                 if problems.len() < CellProblems::MAX_LISTED {

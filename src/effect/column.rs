@@ -1,7 +1,6 @@
 //! The effects of every row of a table, kept column by column, and their
 //! computation from the table's cells.
 
-use super::cells::read_number;
 use super::route::Route;
 use super::{check_route_columns, compute_row, is_inequality, shorten};
 use super::{ColumnMap, Measure, RowEffect, RowValues};
@@ -218,20 +217,20 @@ impl Cells<'_> {
                 let Some(col) = self.columns[j] else {
                     continue;
                 };
-                let text = col.get(row);
-                match read_number(text) {
+                match col.number(row) {
                     Cell::Missing => {}
                     Cell::Value(x) => values[j] = Some(x),
-                    Cell::Invalid if r.name == "p" && is_inequality(text) => {
-                        inequality = Some(text)
+                    Cell::Invalid if r.name == "p" && is_inequality(&col.text(row)) => {
+                        inequality = Some(col.text(row))
                     }
                     Cell::Invalid => {
+                        let text = col.text(row);
                         bad = true;
                         rare.problem(CellProblem {
                             line: table.lines[row],
                             column: col.header.clone(),
-                            value: shorten(text),
-                            message: format!("{} for {}", invalid_hint(text), r.name),
+                            value: shorten(&text),
+                            message: format!("{} for {}", invalid_hint(&text), r.name),
                             cell: table.cell_place(row, col),
                         });
                     }
@@ -240,7 +239,7 @@ impl Cells<'_> {
             let effect = if bad {
                 RowEffect::Excluded("invalid value".into())
             } else {
-                let view = RowValues::new(roles, &values).with_inequality(inequality);
+                let view = RowValues::new(roles, &values).with_inequality(inequality.as_deref());
                 match compute_row(self.measure, self.map.reading(), view) {
                     Ok(e) => e,
                     Err(p) => {
@@ -248,7 +247,7 @@ impl Cells<'_> {
                         let (column, value, cell) = match self.columns[j] {
                             Some(c) => (
                                 c.header.clone(),
-                                shorten(c.get(row)),
+                                shorten(&c.text(row)),
                                 table.cell_place(row, c),
                             ),
                             None => (self.map.header(p.role), String::new(), None),

@@ -6,7 +6,6 @@
 
 pub mod artifact;
 pub mod binary;
-pub mod cells;
 mod column;
 pub mod correlation;
 pub mod generic;
@@ -520,6 +519,7 @@ impl ColumnMap {
                 header: self.header(r.name),
                 required: r.required,
                 label: false,
+                numbers: true,
                 purpose: format!(
                     "{} ({}) with {} {}",
                     r.meaning,

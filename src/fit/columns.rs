@@ -45,13 +45,18 @@ pub fn read(settings: &FitSettings, source: &str, bytes: TableBytes<'_>) -> Resu
         required: settings.label.1,
         purpose: "study labels".into(),
         label: true,
+        numbers: false,
         hint: format!("Name the label column with {} <header>.", Flag::Label),
     }];
     let first_measure = requests.len();
     requests.extend(settings.columns.requests(measure));
     let first_moderator = requests.len();
     for m in &settings.moderators {
-        requests.push(named(&m.name, "a moderator", Flag::Moderator));
+        // A moderator typed as categories keeps its labels as written.
+        requests.push(ColumnRequest {
+            numbers: !m.categorical,
+            ..named(&m.name, "a moderator", Flag::Moderator)
+        });
     }
     let first_artifact = requests.len();
     requests.extend(artifact::requests(&settings.interpret.artifacts, measure)?);
@@ -125,6 +130,7 @@ fn named(header: &str, what: &str, flag: Flag) -> ColumnRequest {
         required: true,
         purpose: format!("{what} ({flag})"),
         label: false,
+        numbers: false,
         hint: format!(
             "Check the spelling of {flag}; headers are matched exactly, or ignoring case when unique."
         ),

@@ -11,7 +11,7 @@ use crate::effect::route::Route;
 use crate::effect::{self, EffectColumn, ReadingScale};
 use crate::error::{Error, Result};
 use crate::input::{Column, Delimiter, Lines, Places, Table};
-use crate::model::design::{self, RawModerator};
+use crate::model::design::{self, Numbers, RawModerator};
 use crate::result::Excluded;
 use crate::support::flag::Flag;
 use crate::support::rows::Rows;
@@ -254,12 +254,23 @@ fn moderators(
                 ),
             ));
         }
+        // A column read as numbers without an invalid cell is the
+        // moderator's values as they stand (NaN for a missing value).
+        let slot = table.columns[first_moderator + j].as_mut();
+        if let Some(values) = slot
+            .filter(|_| !spec.categorical)
+            .and_then(Column::take_numbers)
+        {
+            raw.push(RawModerator::Numeric(Numbers::from_values(values)));
+            release(table, first_moderator + j..first_moderator + j + 1);
+            continue;
+        }
         let col = table
             .column(first_moderator + j)
             .expect("required column present");
         raw.push(design::classify_cells(
             spec,
-            (table.len(), |i| col.get(i)),
+            (table.len(), |i| col.number(i), |i| col.text(i)),
             &table.lines,
             (places, header),
             source,
@@ -291,7 +302,7 @@ fn spread_columns(
                 let col = table.column(*j).expect("required column present");
                 design::classify_cells(
                     spec,
-                    (table.len(), |i| col.get(i)),
+                    (table.len(), |i| col.number(i), |i| col.text(i)),
                     &table.lines,
                     (places, &col.header),
                     source,
@@ -314,8 +325,8 @@ fn spread_columns(
 fn cells(table: &Table, j: usize, trim: bool, included: &[usize]) -> (String, Vec<String>) {
     let col = table.column(j).expect("required column present");
     let cell = |&i: &usize| {
-        let c = col.get(i);
-        if trim { c.trim() } else { c }.to_string()
+        let c = col.text(i);
+        if trim { c.trim() } else { &c }.to_string()
     };
     (col.header.clone(), included.iter().map(cell).collect())
 }
@@ -350,7 +361,7 @@ fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, 
 /// profile); otherwise the labels are copied into a list of their exact size.
 fn labels(table: &mut Table, included: &[usize]) -> Texts {
     let every_row = included.len() == table.lines.len();
-    let labelled = |c: &Column| (0..included.len()).all(|i| !c.get(i).is_empty());
+    let labelled = |c: &Column| (0..included.len()).all(|i| !c.text(i).is_empty());
     if let Some(slot) = table.columns.first_mut().filter(|_| every_row) {
         if slot.as_ref().is_some_and(labelled) {
             let mut cells = slot.take().map(Column::into_cells).unwrap_or_default();
@@ -369,8 +380,8 @@ fn labels(table: &mut Table, included: &[usize]) -> Texts {
 /// The label of row `i`: the label cell, or "line N" when it (or the
 /// column) is missing ("row N" in a spreadsheet, N being the sheet's row).
 fn label(table: &Table, i: usize) -> Cow<'_, str> {
-    match table.column(0).map(|c| c.get(i)).filter(|l| !l.is_empty()) {
-        Some(l) => Cow::Borrowed(l),
+    match table.column(0).map(|c| c.text(i)).filter(|l| !l.is_empty()) {
+        Some(l) => l,
         None => {
             let word = if table.sheet.is_some() || table.delimiter == crate::input::PARQUET {
                 "row"

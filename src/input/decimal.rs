@@ -97,7 +97,7 @@ pub fn choose_decimal(
             for (_, c) in columns.iter().enumerate().filter(|(i, _)| numeric(*i)) {
                 let Some(c) = c else { continue };
                 for (row, line) in lines.iter().enumerate() {
-                    d.see(c.get(row), *line, &c.header);
+                    d.see(&c.text(row), *line, &c.header);
                 }
             }
             match d.decide() {
@@ -143,13 +143,9 @@ pub fn choose_decimal(
             let Some(c) = c.as_mut().filter(|_| numeric(i)) else {
                 continue;
             };
-            let mut fresh = Column {
-                header: c.header.clone(),
-                index: c.index,
-                ..Column::default()
-            };
+            let mut fresh = Column::new(c.header.clone(), c.index);
             for row in 0..lines.len() {
-                fresh.push(&number::normalise(c.get(row), choice.mark));
+                fresh.push(&number::normalise(&c.text(row), choice.mark));
             }
             *c = fresh;
         }

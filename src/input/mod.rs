@@ -1,19 +1,26 @@
 //! Reading tables: CSV (delimiter detection, encoding checks) and
 //! spreadsheets ([`sheet`]), column lookup, cell addresses for messages.
 //!
-//! Only the columns an analysis asks for are kept, in a compact text arena,
-//! so a million-row file costs little more than its requested cells.
+//! Only the columns an analysis asks for are kept, in a compact text arena
+//! ([`Column`]), so a million-row file costs little more than its requested
+//! cells; a column of numbers in a file read in pieces is parsed straight
+//! from the bytes into doubles, keeping only the texts that are not their
+//! number's shortest form.
 
+pub mod cells;
+mod column;
 mod decimal;
 mod lines;
 pub mod number;
 pub mod parquet;
 pub(crate) mod pieces;
 mod places;
+pub(crate) mod plain;
 pub mod sheet;
 mod stream;
 mod table_pieces;
 
+pub use column::Column;
 pub use decimal::{choose_decimal, DecimalChoice, DecimalHow};
 pub use lines::Lines;
 pub use places::Places;
@@ -117,33 +124,10 @@ pub struct ColumnRequest {
     /// like a number): the decimal mark is neither chosen from it nor
     /// applied to it.
     pub label: bool,
-}
-
-/// One requested column's cells, stored back to back.
-#[derive(Debug, Clone, Default)]
-pub struct Column {
-    /// The header as written in the file.
-    pub header: String,
-    /// Its position in the header row (0-based).
-    pub index: usize,
-    cells: crate::support::texts::Texts,
-}
-
-impl Column {
-    /// The cell of data row `row` (0-based).
-    pub fn get(&self, row: usize) -> &str {
-        self.cells.get(row)
-    }
-
-    pub(crate) fn push(&mut self, cell: &str) {
-        self.cells.push(cell);
-    }
-
-    /// The cells themselves, the column given up (a list that becomes the
-    /// studies' labels is moved, not copied).
-    pub fn into_cells(self) -> crate::support::texts::Texts {
-        self.cells
-    }
+    /// Whether the column holds numbers: a file read in pieces then has its
+    /// cells parsed straight from the bytes ([`Column::number`]), their
+    /// texts still given back as written ([`Column::text`]).
+    pub numbers: bool,
 }
 
 /// One empty column per request: `None` for a request not found (an
@@ -152,13 +136,7 @@ impl Column {
 pub(crate) fn empty_columns(headers: &[String], indices: &[Option<usize>]) -> Vec<Option<Column>> {
     indices
         .iter()
-        .map(|ix| {
-            ix.map(|i| Column {
-                header: headers[i].clone(),
-                index: i,
-                ..Column::default()
-            })
-        })
+        .map(|ix| ix.map(|i| Column::new(headers[i].clone(), i)))
         .collect()
 }
 
@@ -250,7 +228,7 @@ impl Table {
         CellProblem {
             line: self.lines[row],
             column: column.header.clone(),
-            value: crate::effect::shorten(column.get(row)),
+            value: crate::effect::shorten(&column.text(row)),
             message: message.into(),
             cell: self.cell_place(row, column),
         }
@@ -470,7 +448,7 @@ pub(crate) fn parse_table_file_in(
     decimal: Option<DecimalMark>,
     size: u64,
 ) -> Result<Table> {
-    if let Some(cells) = table_pieces::read(source, path, requests, size) {
+    if let Some(cells) = table_pieces::read(source, path, requests, decimal.is_none(), size) {
         return finish_table(source, requests, decimal, cells);
     }
     let open = || std::fs::File::open(path).map_err(|e| stream::io_error(source, e));

@@ -14,6 +14,7 @@
 //! every error message is the streamed reading's own, with its line, and a
 //! problem the first pass finds later in the file keeps its precedence.
 
+use super::column::{Cells, NumberCells};
 use super::pieces::{self, read_exact_at, Layout, Outcome};
 use super::stream::{self, Head};
 use super::{
@@ -34,10 +35,17 @@ const HEAD: u64 = 1 << 16;
 /// The requested cells of the CSV file at `path`, read in pieces of `size`
 /// bytes; None when the file must be read as a stream (see the module
 /// documentation), which then gives the table or the error.
+///
+/// A column requested as numbers ([`ColumnRequest::numbers`]) is read as
+/// numbers straight from the bytes ([`super::column::NumberCells`]) when
+/// the decimal mark is the point without a doubt: `chosen` (not forced
+/// with `--decimal`) and a delimiter other than `;` and tab (only those
+/// files are searched for decimal commas, which needs every cell's text).
 pub(super) fn read(
     source: &str,
     path: &Path,
     requests: &[ColumnRequest],
+    chosen: bool,
     size: u64,
 ) -> Option<CsvCells> {
     // Anything but a regular file (a pipe, a device) is not even opened
@@ -59,7 +67,19 @@ pub(super) fn read(
         first_line,
     } = header(source, &file, len)?;
     let indices = match_requests(source, &headers, requests).ok()?;
+    let point = chosen && delimiter != b';' && delimiter != b'\t';
+    let numbers: Vec<bool> = requests
+        .iter()
+        .zip(&indices)
+        .filter(|(_, ix)| ix.is_some())
+        .map(|(r, _)| point && r.numbers && !r.label)
+        .collect();
     let mut columns = empty_columns(&headers, &indices);
+    for (column, &numbers) in columns.iter_mut().flatten().zip(&numbers) {
+        if numbers {
+            *column = Column::of_numbers(std::mem::take(&mut column.header), column.index);
+        }
+    }
     let wanted: Vec<usize> = indices.iter().flatten().copied().collect();
     let layout = Layout {
         file: &file,
@@ -72,14 +92,15 @@ pub(super) fn read(
         delimiter,
         width: headers.len(),
         wanted: &wanted,
+        numbers: &numbers,
     };
     let (mut lines, mut blank_rows) = (Vec::new(), 0);
     // Merged pieces' lists, emptied, for the pieces still to read: their
     // memory is taken once, not once per piece.
     let spare = Mutex::new(Vec::new());
     let mut merge = |mut piece: PieceCells, line: u64| {
-        for (column, texts) in columns.iter_mut().flatten().zip(&piece.columns) {
-            column.append(texts);
+        for (column, cells) in columns.iter_mut().flatten().zip(&piece.columns) {
+            column.append(cells);
         }
         lines.extend(piece.rows.iter().map(|r| line + r));
         blank_rows += piece.blank_rows;
@@ -183,12 +204,14 @@ struct Shape<'a> {
     width: usize,
     /// The field of each requested column found, in request order.
     wanted: &'a [usize],
+    /// Whether each is read as numbers.
+    numbers: &'a [bool],
 }
 
 /// The requested cells of one piece.
 struct PieceCells {
     /// One list of cells per requested column found, in request order.
-    columns: Vec<Texts>,
+    columns: Vec<Cells>,
     /// Per data row, the `\n` bytes in the piece before it.
     rows: Vec<u64>,
     blank_rows: usize,
@@ -197,7 +220,7 @@ struct PieceCells {
 impl PieceCells {
     /// Empties the lists, keeping their room.
     fn clear(&mut self) {
-        self.columns.iter_mut().for_each(Texts::clear);
+        self.columns.iter_mut().for_each(Cells::clear);
         self.rows.clear();
         self.blank_rows = 0;
     }
@@ -222,7 +245,17 @@ fn read_piece(
     // its fields end at ASCII bytes, so each is UTF-8 too.
     let text = std::str::from_utf8(bytes).ok();
     let mut cells = cells.unwrap_or_else(|| PieceCells {
-        columns: vec![Texts::default(); shape.wanted.len()],
+        columns: shape
+            .numbers
+            .iter()
+            .map(|&n| {
+                if n {
+                    Cells::Numbers(NumberCells::default())
+                } else {
+                    Cells::Text(Texts::default())
+                }
+            })
+            .collect(),
         rows: Vec::new(),
         blank_rows: 0,
     });
@@ -244,7 +277,7 @@ fn read_piece(
         if fields.len() != shape.width {
             return Outcome::Stop(());
         }
-        for (texts, &i) in cells.columns.iter_mut().zip(shape.wanted) {
+        for (column, &i) in cells.columns.iter_mut().zip(shape.wanted) {
             let (a, b) = fields[i];
             let cell = match text {
                 Some(text) => &text[a..b],
@@ -253,7 +286,14 @@ fn read_piece(
                     Err(_) => return Outcome::Stop(()),
                 },
             };
-            texts.push(trim(cell));
+            let trimmed = trim(cell);
+            match column {
+                // An untrimmed cell of numbers is read where it lies.
+                Cells::Numbers(n) if trimmed.len() == cell.len() && !cell.is_empty() => {
+                    n.push_within(bytes, a, cell);
+                }
+                _ => column.push(trimmed),
+            }
         }
         cells.rows.push(newlines);
     }
@@ -271,12 +311,5 @@ pub(super) fn trim(cell: &str) -> &str {
         [first, .., last] if first.is_ascii_graphic() && last.is_ascii_graphic() => cell,
         [only] if only.is_ascii_graphic() => cell,
         _ => cell.trim(),
-    }
-}
-
-impl Column {
-    /// Appends the cells of `texts`, in order.
-    fn append(&mut self, texts: &Texts) {
-        self.cells.append(texts);
     }
 }

@@ -7,6 +7,7 @@ fn req(h: &str, required: bool) -> ColumnRequest {
         required,
         purpose: "test".into(),
         label: false,
+        numbers: false,
         hint: String::new(),
     }
 }
@@ -31,9 +32,9 @@ fn bom_quotes_unicode_and_semicolons() {
     .unwrap();
     assert_eq!(t.delimiter, b';');
     let s = t.column(0).unwrap();
-    assert_eq!(s.get(0), "Lab Ø; Oslo");
-    assert_eq!(s.get(1), "Łódź");
-    assert_eq!(t.column(1).unwrap().get(1), "40");
+    assert_eq!(s.text(0), "Lab Ø; Oslo");
+    assert_eq!(s.text(1), "Łódź");
+    assert_eq!(t.column(1).unwrap().text(1), "40");
     assert_eq!(t.lines, vec![2, 3]);
 }
 
@@ -45,7 +46,7 @@ fn case_insensitive_and_optional() {
         &[req("study", true), req("se", false)],
     )
     .unwrap();
-    assert_eq!(t.column(0).unwrap().get(0), "a");
+    assert_eq!(t.column(0).unwrap().text(0), "a");
     assert!(t.column(1).is_none());
 }
 
@@ -87,7 +88,7 @@ fn line_numbers_with_crlf_and_quoted_newlines() {
     assert_eq!(t.lines, vec![2, 4]);
     let t = parse_table("x", b"a,b\n\"x\ny\",2\n3,4\n", &[req("a", true)]).unwrap();
     assert_eq!(t.lines, vec![2, 4]);
-    assert_eq!(t.column(0).unwrap().get(0), "x\ny");
+    assert_eq!(t.column(0).unwrap().text(0), "x\ny");
 }
 
 #[test]
@@ -128,7 +129,7 @@ fn a_sep_line_names_the_delimiter_and_is_not_the_header() {
         (t.delimiter, t.headers.clone()),
         (b';', vec!["a".to_string(), "b".to_string()])
     );
-    assert_eq!(t.column(0).map(|c| c.get(1)), Some("4"));
+    assert_eq!(t.column(0).map(|c| c.text(1)), Some("4".into()));
 }
 
 #[test]

@@ -1,8 +1,8 @@
 //! From moderator columns to a design matrix: type detection, dummy coding,
 //! centring, product terms, and the checks that the model can be estimated.
 
-use crate::effect::cells::read_number;
 use crate::error::{Error, Result};
+use crate::input::cells::read_number;
 use crate::input::number::{is_missing, Cell};
 use crate::input::Places;
 use crate::support::flag::Flag;
@@ -10,6 +10,7 @@ use crate::support::pieces;
 use crate::support::rows::Rows;
 use rayon::prelude::*;
 use serde::Serialize;
+use std::borrow::Cow;
 
 /// What the user asked for one moderator.
 #[derive(Debug, Clone, PartialEq)]
@@ -65,15 +66,20 @@ pub fn classify(
 ) -> Result<RawModerator> {
     classify_cells(
         spec,
-        (cells.len(), |i| cells[i]),
+        (
+            cells.len(),
+            |i| read_number(cells[i]),
+            |i| Cow::Borrowed(cells[i]),
+        ),
         lines,
         (places, header),
         source,
     )
 }
 
-/// [`classify`] over `rows` cells that `cell(i)` gives (a table's column
-/// read in place, without a list of its cells). The cells are parsed in
+/// [`classify`] over `rows` cells, cell i read as a number by `number(i)`
+/// (as [`read_number`] reads its text) and as text by `text(i)` (a table's
+/// column read in place, without a list of its cells). The cells are read in
 /// the fixed pieces of [`pieces`] on every core; the values and the cells
 /// that are not numbers come back in row order.
 ///
@@ -81,7 +87,11 @@ pub fn classify(
 /// As [`classify`].
 pub fn classify_cells<'a>(
     spec: &ModeratorSpec,
-    (rows, cell): (usize, impl Fn(usize) -> &'a str + Sync),
+    (rows, number, text): (
+        usize,
+        impl Fn(usize) -> Cell + Sync,
+        impl Fn(usize) -> Cow<'a, str>,
+    ),
     lines: &[u64],
     (places, header): (&Places, &str),
     source: &str,
@@ -92,7 +102,7 @@ pub fn classify_cells<'a>(
         let mut present = 0usize;
         let mut bad = Vec::new();
         for (n, x) in out.iter_mut().enumerate() {
-            *x = match read_number(cell(first + n)) {
+            *x = match number(first + n) {
                 Cell::Missing => f64::NAN,
                 Cell::Value(v) => {
                     present += 1;
@@ -115,7 +125,7 @@ pub fn classify_cells<'a>(
             let shown: Vec<String> = bad
                 .iter()
                 .take(5)
-                .map(|&i| format!("{} ('{}')", places.at(lines[i], header), cell(i)))
+                .map(|&i| format!("{} ('{}')", places.at(lines[i], header), text(i)))
                 .collect();
             return Err(Error::usage(
                 Flag::Moderator,
@@ -129,13 +139,16 @@ pub fn classify_cells<'a>(
                 ),
             ));
         }
-        let text = (0..rows)
+        let labels = (0..rows)
             .map(|i| {
-                let c = cell(i);
-                (!is_missing(c)).then(|| c.trim())
+                let c = text(i);
+                (!is_missing(&c)).then(|| match c {
+                    Cow::Borrowed(c) => Cow::Borrowed(c.trim()),
+                    Cow::Owned(c) => Cow::Owned(c.trim().to_string()),
+                })
             })
             .collect();
-        return Ok(RawModerator::Text(text));
+        return Ok(RawModerator::Text(labels));
     }
     Ok(RawModerator::Numeric(Numbers(numeric)))
 }

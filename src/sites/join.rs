@@ -28,6 +28,7 @@ fn headers_of(
             required: true,
             purpose: "the site ids of the site table".into(),
             label: true,
+            numbers: false,
             hint: format!(
                 "Name the id column with {} <header> (default: the {} column's name).",
                 Flag::InfoKey,
@@ -98,6 +99,7 @@ pub fn join(
         required: true,
         purpose: "site ids".into(),
         label: true,
+        numbers: false,
         hint: String::new(),
     }];
     requests.extend(others.iter().map(|h| ColumnRequest {
@@ -105,6 +107,7 @@ pub fn join(
         required: true,
         purpose: "a site characteristic".into(),
         label: false,
+        numbers: false,
         hint: String::new(),
     }));
     let table = input::read_table(source, bytes, &requests, sheet, decimal)?;
@@ -112,16 +115,16 @@ pub fn join(
         report.notes.push(note);
     }
     let ids = table.column(0).expect("required");
-    let mut rows: HashMap<&str, usize> = HashMap::new();
+    let mut rows: HashMap<std::borrow::Cow<'_, str>, usize> = HashMap::new();
     let mut problems = Vec::new();
     for i in 0..table.len() {
-        let id = ids.get(i);
+        let id = ids.text(i);
         if id.is_empty() {
             let why = "the site id is missing; give every row of the site table its id";
             problems.push(table.problem(i, ids, why));
             continue;
         }
-        if let Some(&first) = rows.get(id) {
+        if let Some(&first) = rows.get(id.as_ref()) {
             let before = match table.cell_address(first, ids) {
                 Some(cell) => format!("at cell {cell}"),
                 None => format!("on {}", table.places().row(table.lines[first])),
@@ -147,7 +150,7 @@ pub fn join(
             Some(&i) => {
                 used[i] = true;
                 site.characteristics = (1..requests.len())
-                    .map(|c| table.column(c).expect("required").get(i).to_string())
+                    .map(|c| table.column(c).expect("required").text(i).into_owned())
                     .collect();
             }
             None => {
@@ -157,8 +160,8 @@ pub fn join(
         }
     }
     let mut info_only: Vec<String> = (0..table.len())
-        .filter(|&i| !used[i] && !ids.get(i).is_empty())
-        .map(|i| ids.get(i).to_string())
+        .filter(|&i| !used[i] && !ids.text(i).is_empty())
+        .map(|i| ids.text(i).into_owned())
         .collect();
     super::sort_ids(&mut info_only, |s| s.as_str());
     // Ids are matched exactly; ids that differ only in case are named so
@@ -184,7 +187,7 @@ pub fn join(
         .iter()
         .map(|(id, &i)| {
             let cells = (1..requests.len())
-                .map(|c| table.column(c).expect("required").get(i).to_string())
+                .map(|c| table.column(c).expect("required").text(i).into_owned())
                 .collect();
             (id.to_string(), cells)
         })

@@ -32,7 +32,7 @@ pub mod one_stage;
 mod pieces;
 #[cfg(test)]
 mod pieces_tests;
-mod plain;
+
 pub mod read;
 mod records;
 mod robust;

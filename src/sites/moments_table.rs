@@ -71,6 +71,7 @@ fn column_requests(layout: Layout) -> Vec<ColumnRequest> {
             required: true,
             purpose: p.to_string(),
             label: h == "site",
+            numbers: false,
             hint: hint.into(),
         })
         .collect()
@@ -108,7 +109,7 @@ pub fn read_moments(
     let mut seen: HashMap<String, u64> = HashMap::new();
     for row in 0..table.len() {
         let line = table.lines[row];
-        let cell = |c: usize| table.column(c).expect("required").get(row);
+        let cell = |c: usize| table.column(c).expect("required").text(row);
         let header = |c: usize| table.column(c).expect("required").header.clone();
         let place = |c: usize| table.column(c).and_then(|col| table.cell_place(row, col));
         let id = cell(0).to_string();
@@ -135,7 +136,7 @@ pub fn read_moments(
         let mut numbers = Vec::with_capacity(reqs.len() - 1);
         let mut ok = true;
         for c in 1..reqs.len() {
-            match parse_cell(cell(c)) {
+            match parse_cell(&cell(c)) {
                 Cell::Value(v) => numbers.push(v),
                 _ => {
                     ok = false;

@@ -27,11 +27,11 @@
 //! cells before them (a decimal comma to detect, two-level codings) and
 //! anything but a regular file are read as a stream from the start.
 
-use super::plain;
 use super::read::{self, PassSummary, Plan, RowColumns, RowSink, RowState, Tally};
 use super::records::{CsvRecords, Records};
 use crate::error::{Error, Result};
 use crate::input::pieces::{self, read_exact_at, Halt, Layout, Outcome, Stopped, PIECE};
+use crate::input::plain;
 use std::fs::File;
 use std::io::{Seek, SeekFrom};
 

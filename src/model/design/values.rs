@@ -12,6 +12,12 @@ use std::collections::HashMap;
 pub struct Numbers(pub(super) Vec<f64>);
 
 impl Numbers {
+    /// Per row a finite value, or NaN for a missing one (as
+    /// [`crate::input::Column::take_numbers`] gives them).
+    pub fn from_values(values: Vec<f64>) -> Self {
+        Numbers(values)
+    }
+
     /// The value of row `i` (None when missing).
     pub fn get(&self, i: usize) -> Option<f64> {
         let x = self.0[i];

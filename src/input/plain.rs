@@ -1,12 +1,15 @@
 //! Plain decimal numbers read straight from a cell's bytes, bit for bit as
 //! Rust's `str::parse::<f64>` reads them.
 //!
-//! A participant-row file holds millions of short numbers (`12.375`,
-//! `-0.5`, `3e-4`); reading them is most of the work of `pondus sites`.
-//! [`parse`] accepts only the plain form `[+-]digits[.digits][(e|E)[+-]digits]`
-//! and declines anything else (blanks, missing marks, text, `.5`, `inf`), which
-//! then goes the general way (see `super::read`), so the set of cells read here
-//! never differs from what the general way would read as the same number.
+//! A participant-row file (`pondus sites`) and the numeric columns of a
+//! large study table (`pondus fit`, [`super::column::NumberCells`]) hold
+//! millions of short numbers (`12.375`, `-0.5`, `3e-4`); reading them is
+//! much of the work. [`parse`] accepts only the plain form
+//! `[+-]digits[.digits][(e|E)[+-]digits]` and declines anything else
+//! (blanks, missing marks, text, `.5`, `inf`), which then goes the general
+//! way (`str::parse` after trimming and the missing marks), so the set of
+//! cells read here never differs from what the general way would read as
+//! the same number.
 
 /// 10⁰ … 10²²: every power of ten that a double holds exactly
 /// (10²² = 2²² · 5²², and 5²² < 2⁵³).
@@ -57,7 +60,7 @@ fn digits(cell: &[u8], i: &mut usize, m: &mut u64, significant: &mut u32) -> usi
 /// parse(b"NA")      == None
 /// ```
 #[inline]
-pub(super) fn parse(cell: &[u8]) -> Option<f64> {
+pub(crate) fn parse(cell: &[u8]) -> Option<f64> {
     match parse_prefix(cell) {
         Some((v, n)) if n == cell.len() => Some(v),
         _ => None,
@@ -72,7 +75,7 @@ pub(super) fn parse(cell: &[u8]) -> Option<f64> {
 /// the point, no exponent) is read eight bytes at a time ([`short`]); any
 /// other goes digit by digit ([`long`]). Both give the same result.
 #[inline(always)]
-pub(super) fn parse_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
+pub(crate) fn parse_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
     short(bytes).or_else(|| long(bytes))
 }
 
@@ -139,6 +142,26 @@ fn digits_value(a: u64, n: u32) -> u64 {
 /// path of [`long`]).
 #[inline(always)]
 fn short(bytes: &[u8]) -> Option<(f64, usize)> {
+    short_parts(bytes).map(|(v, i, _)| (v, i))
+}
+
+/// [`short`]'s number, its length, and whether it is written in its
+/// shortest form: no leading zero before the point (but a lone `0`), no
+/// trailing zero after it. With at most 14 digits, no `+` and no exponent,
+/// that is the text Rust's `Display` writes for the number (see
+/// `super::column`'s `is_shortest_form`, which says why).
+#[inline(always)]
+pub(crate) fn short_in_shortest_form(bytes: &[u8]) -> Option<(f64, usize)> {
+    match short_parts(bytes) {
+        Some((v, i, true)) => Some((v, i)),
+        _ => None,
+    }
+}
+
+/// [`short`], with whether the number is in its shortest form (see
+/// [`short_in_shortest_form`]).
+#[inline(always)]
+fn short_parts(bytes: &[u8]) -> Option<(f64, usize, bool)> {
     let negative = bytes.first() == Some(&b'-');
     let mut i = usize::from(negative);
     let (n, a) = leading_digits(load8(bytes, i));
@@ -146,6 +169,7 @@ fn short(bytes: &[u8]) -> Option<(f64, usize)> {
         return None;
     }
     let mut m = digits_value(a, n);
+    let mut shortest = n == 1 || bytes[i] != b'0';
     i += n as usize;
     let mut scale = 0;
     if bytes.get(i) == Some(&b'.') {
@@ -156,13 +180,14 @@ fn short(bytes: &[u8]) -> Option<(f64, usize)> {
         m = m * POW10_INT[f as usize] + digits_value(a, f);
         scale = f as usize;
         i += 1 + f as usize;
+        shortest &= bytes[i - 1] != b'0';
     }
     if bytes.get(i).is_some_and(|&b| b | 0x20 == b'e' || b == b'.') {
         return None;
     }
     // m < 10¹⁴: the signed conversion is exact and one instruction.
     let v = m as i64 as f64 / POW10[scale];
-    Some((if negative { -v } else { v }, i))
+    Some((if negative { -v } else { v }, i, shortest))
 }
 
 /// 10⁰ … 10⁷ as integers.

@@ -1,7 +1,7 @@
 //! Numeric cells read fast: [`parse_cell`] with a shortcut for the cell
 //! almost every table is made of, a plain number with nothing around it.
 
-use crate::input::number::{parse_cell, Cell};
+use super::number::{parse_cell, Cell};
 
 /// [`parse_cell`], the same answer for every text, without its trimming
 /// and its missing-value comparisons when the text starts with a digit, a
@@ -18,7 +18,7 @@ use crate::input::number::{parse_cell, Cell};
 ///
 /// # Examples
 /// ```
-/// use pondus::effect::cells::read_number;
+/// use pondus::input::cells::read_number;
 /// use pondus::input::number::Cell;
 /// assert_eq!(read_number("0.25"), Cell::Value(0.25));
 /// assert_eq!(read_number(" 0.25 "), Cell::Value(0.25));

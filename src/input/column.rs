@@ -1,0 +1,436 @@
+//! One requested column's cells: as texts back to back, or, for a column
+//! that holds numbers and was read in pieces, as numbers parsed straight
+//! from the file's bytes ([`NumberCells`]) with every cell's text still
+//! given back exactly as written.
+
+use super::cells::read_number;
+use super::number::Cell;
+use super::plain;
+use crate::support::texts::Texts;
+use std::borrow::Cow;
+
+/// One requested column's cells.
+#[derive(Debug, Clone, Default)]
+pub struct Column {
+    /// The header as written in the file.
+    pub header: String,
+    /// Its position in the header row (0-based).
+    pub index: usize,
+    pub(super) cells: Cells,
+}
+
+/// How a column's cells are held.
+#[derive(Debug, Clone)]
+pub(super) enum Cells {
+    /// Every cell's text (trimmed).
+    Text(Texts),
+    /// Numbers, with the texts that are not their numbers' shortest form.
+    Numbers(NumberCells),
+}
+
+impl Default for Cells {
+    fn default() -> Self {
+        Cells::Text(Texts::default())
+    }
+}
+
+impl Cells {
+    /// Appends a cell's text (trimmed).
+    #[inline]
+    pub(super) fn push(&mut self, cell: &str) {
+        match self {
+            Cells::Text(t) => t.push(cell),
+            Cells::Numbers(n) => n.push(cell),
+        }
+    }
+
+    /// Empties the list, keeping its room.
+    pub(super) fn clear(&mut self) {
+        match self {
+            Cells::Text(t) => t.clear(),
+            Cells::Numbers(n) => n.clear(),
+        }
+    }
+}
+
+impl Column {
+    /// An empty column of texts named `header`, at `index` in the header row.
+    pub(crate) fn new(header: String, index: usize) -> Self {
+        Column {
+            header,
+            index,
+            cells: Cells::default(),
+        }
+    }
+
+    /// An empty column of numbers (see [`NumberCells`]).
+    pub(crate) fn of_numbers(header: String, index: usize) -> Self {
+        Column {
+            header,
+            index,
+            cells: Cells::Numbers(NumberCells::default()),
+        }
+    }
+
+    /// The text of the cell of data row `row` (0-based), trimmed, exactly as
+    /// written in the file.
+    pub fn text(&self, row: usize) -> Cow<'_, str> {
+        match &self.cells {
+            Cells::Text(t) => Cow::Borrowed(t.get(row)),
+            Cells::Numbers(n) => n.text(row),
+        }
+    }
+
+    /// The cell of data row `row` read as a number: what
+    /// [`read_number`] reads from [`Column::text`].
+    #[inline]
+    pub fn number(&self, row: usize) -> Cell {
+        match &self.cells {
+            Cells::Text(t) => read_number(t.get(row)),
+            Cells::Numbers(n) => n.number(row),
+        }
+    }
+
+    /// Appends a cell's text (to a column of texts; a column of numbers
+    /// reads it as [`NumberCells::push`] does).
+    pub(crate) fn push(&mut self, cell: &str) {
+        self.cells.push(cell);
+    }
+
+    /// Appends the cells of a piece read the same way (texts to texts,
+    /// numbers to numbers), in order.
+    pub(super) fn append(&mut self, cells: &Cells) {
+        match (&mut self.cells, cells) {
+            (Cells::Text(t), Cells::Text(o)) => t.append(o),
+            (Cells::Numbers(n), Cells::Numbers(o)) => n.append(o),
+            (mine, other) => {
+                // Not made by the readers; kept correct all the same.
+                let rows = match other {
+                    Cells::Text(o) => o.len(),
+                    Cells::Numbers(o) => o.values.len(),
+                };
+                for row in 0..rows {
+                    let text = match other {
+                        Cells::Text(o) => Cow::Borrowed(o.get(row)),
+                        Cells::Numbers(o) => o.text(row),
+                    };
+                    mine.push(&text);
+                }
+            }
+        }
+    }
+
+    /// The cells as numbers, NaN for a missing one, taken out of the column
+    /// (moved, not copied; the column is left empty) when it was read as
+    /// numbers and no cell is invalid ([`Column::number`] is never
+    /// [`Cell::Invalid`]); None, the column untouched, otherwise.
+    pub fn take_numbers(&mut self) -> Option<Vec<f64>> {
+        match &mut self.cells {
+            Cells::Numbers(n) if n.kept.iter().all(|t| read_number(t) != Cell::Invalid) => {
+                let values = std::mem::take(&mut n.values);
+                n.clear();
+                Some(values)
+            }
+            _ => None,
+        }
+    }
+
+    /// The cells' texts, the column given up (a list that becomes the
+    /// studies' labels is moved, not copied).
+    pub fn into_cells(self) -> Texts {
+        match self.cells {
+            Cells::Text(t) => t,
+            Cells::Numbers(n) => {
+                let mut t = Texts::with_capacity(n.values.len());
+                for row in 0..n.values.len() {
+                    t.push(&n.text(row));
+                }
+                t
+            }
+        }
+    }
+}
+
+/// A column of numbers read straight from the cells' bytes: one double a
+/// row, and the text of each cell whose text is not the shortest form of
+/// its number (`0.50`, `1e-3`, `NA`, `abc`), so that [`NumberCells::text`]
+/// gives back every cell as written and [`NumberCells::number`] reads
+/// every cell as [`read_number`] reads its text.
+///
+/// A row holds NaN when its cell is empty (text `""`, [`Cell::Missing`]) or
+/// is not a finite number (its text kept; [`read_number`] then says
+/// whether it is a missing mark or invalid). Any other row holds the
+/// number, and its text is kept only when it is not `format!("{x}")`.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct NumberCells {
+    values: Vec<f64>,
+    /// Rows whose text is kept, ascending.
+    kept_rows: Vec<usize>,
+    /// Their texts, in the same order.
+    kept: Texts,
+}
+
+impl NumberCells {
+    /// Appends a cell (trimmed text).
+    #[inline]
+    pub(crate) fn push(&mut self, cell: &str) {
+        if cell.is_empty() {
+            self.values.push(f64::NAN);
+            return;
+        }
+        match plain::parse(cell.as_bytes()) {
+            Some(x) if is_shortest_form(cell.as_bytes()) => self.values.push(x),
+            parsed => {
+                let x = match parsed {
+                    Some(x) => x,
+                    None => match read_number(cell) {
+                        Cell::Value(x) => x,
+                        Cell::Missing | Cell::Invalid => f64::NAN,
+                    },
+                };
+                self.kept_rows.push(self.values.len());
+                self.kept.push(cell);
+                self.values.push(x);
+            }
+        }
+    }
+
+    /// Appends the cell `cell`, which is `bytes[start..start + cell.len()]`:
+    /// as [`NumberCells::push`], the number read in place, where the bytes
+    /// after the cell let [`plain::parse_prefix`] load eight at a time
+    /// (a cell's own slice ends within eight bytes of its start, and
+    /// loading past its end goes byte by byte).
+    #[inline]
+    pub(crate) fn push_within(&mut self, bytes: &[u8], start: usize, cell: &str) {
+        match plain::short_in_shortest_form(&bytes[start..]) {
+            Some((x, n)) if n == cell.len() => self.values.push(x),
+            _ => self.push(cell),
+        }
+    }
+
+    /// The kept text of row `row`, if any.
+    fn kept_text(&self, row: usize) -> Option<&str> {
+        self.kept_rows
+            .binary_search(&row)
+            .ok()
+            .map(|k| self.kept.get(k))
+    }
+
+    /// See [`Column::number`].
+    #[inline]
+    fn number(&self, row: usize) -> Cell {
+        let x = self.values[row];
+        if !x.is_nan() {
+            return Cell::Value(x);
+        }
+        match self.kept_text(row) {
+            Some(t) => read_number(t),
+            None => Cell::Missing,
+        }
+    }
+
+    /// See [`Column::text`].
+    fn text(&self, row: usize) -> Cow<'_, str> {
+        if let Some(t) = self.kept_text(row) {
+            return Cow::Borrowed(t);
+        }
+        let x = self.values[row];
+        if x.is_nan() {
+            Cow::Borrowed("")
+        } else {
+            Cow::Owned(format!("{x}"))
+        }
+    }
+
+    /// Appends the rows of `other`, in order.
+    pub(crate) fn append(&mut self, other: &NumberCells) {
+        let shift = self.values.len();
+        self.values.extend_from_slice(&other.values);
+        self.kept_rows
+            .extend(other.kept_rows.iter().map(|r| r + shift));
+        self.kept.append(&other.kept);
+    }
+
+    /// Empties the column, keeping its room.
+    pub(crate) fn clear(&mut self) {
+        self.values.clear();
+        self.kept_rows.clear();
+        self.kept.clear();
+    }
+}
+
+/// Whether `cell`, a plain number that [`plain::parse`] read as x, is
+/// exactly `format!("{x}")`: an optional `-`, an integer part without
+/// leading zeros (or `0`), an optional point followed by digits of which
+/// the last is not `0`, no exponent, and at most 15 significant digits.
+///
+/// # Formula
+/// Rust's `Display` for `f64` writes the shortest digit string that reads
+/// back as x, in positional notation (never an exponent). Two different
+/// decimals of at most 15 significant digits never read as the same double
+/// (DBL_DIG = 15: every such decimal is recovered by rounding its double to
+/// 15 digits; IEEE 754-2019 §5.12.2, C11 §5.2.4.2.2), so no shorter string
+/// reads as x, and no other string of the same length does: the shortest
+/// form is this one's digits. Without a redundant sign, leading or trailing
+/// zero, point or exponent, `Display` writes them exactly as here.
+#[inline]
+fn is_shortest_form(cell: &[u8]) -> bool {
+    let body = match cell {
+        [b'-', rest @ ..] => rest,
+        _ => cell,
+    };
+    let point = body.iter().position(|&b| b == b'.');
+    let (int, frac) = match point {
+        Some(p) => (&body[..p], &body[p + 1..]),
+        None => (body, &body[..0]),
+    };
+    let digits = |s: &[u8]| s.iter().all(u8::is_ascii_digit);
+    if int.is_empty() || !digits(int) || !digits(frac) {
+        return false;
+    }
+    if int.len() > 1 && int[0] == b'0' {
+        return false;
+    }
+    if point.is_some() && frac.last().is_none_or(|&d| d == b'0') {
+        return false;
+    }
+    let significant = int.iter().chain(frac).skip_while(|&&d| d == b'0').count();
+    significant <= 15
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::support::rng::SplitMix64;
+
+    fn column(cells: &[&str]) -> NumberCells {
+        let mut c = NumberCells::default();
+        for t in cells {
+            c.push(t);
+        }
+        c
+    }
+
+    #[test]
+    fn every_cell_reads_and_prints_as_its_text() {
+        let cells = [
+            "0",
+            "-0",
+            "1",
+            "-1.5",
+            "0.25",
+            "0.50",
+            "2.0",
+            "-0.0",
+            "1e-3",
+            "1E5",
+            "+2",
+            ".5",
+            "5.",
+            "007",
+            "NA",
+            "n/a",
+            ".",
+            "-",
+            "abc",
+            "inf",
+            "1,5",
+            "123456789012345",
+            "1234567890123456",
+            "0.000000000000000000000123",
+            "9007199254740993",
+            "0.1",
+            "1e999",
+            "-12.345678901234",
+            "",
+        ];
+        let c = column(&cells);
+        for (row, t) in cells.iter().enumerate() {
+            assert_eq!(c.text(row), *t, "text of {t:?}");
+            assert_eq!(c.number(row), read_number(t), "number of {t:?}");
+        }
+        // Only the texts that are not their numbers' shortest form are kept.
+        let kept: Vec<&str> = c.kept.iter().collect();
+        assert_eq!(
+            kept,
+            [
+                "0.50",
+                "2.0",
+                "-0.0",
+                "1e-3",
+                "1E5",
+                "+2",
+                ".5",
+                "5.",
+                "007",
+                "NA",
+                "n/a",
+                ".",
+                "-",
+                "abc",
+                "inf",
+                "1,5",
+                "1234567890123456",
+                "9007199254740993",
+                "1e999"
+            ]
+        );
+    }
+
+    #[test]
+    fn random_decimals_read_bit_for_bit_and_print_as_written() {
+        // Decimals of 1 to 17 digits around a point anywhere, signs and
+        // trailing zeros: every one either kept as text or printed back as
+        // written, and read as `str::parse` reads it.
+        let mut rng = SplitMix64::new(20261204);
+        let mut c = NumberCells::default();
+        let mut texts = Vec::new();
+        for _ in 0..200_000 {
+            let n = 1 + (rng.next_u64() % 17) as usize;
+            let mut t = String::new();
+            if rng.next_u64() % 3 == 0 {
+                t.push('-');
+            }
+            let digits: String = (0..n)
+                .map(|_| char::from(b'0' + (rng.next_u64() % 10) as u8))
+                .collect();
+            let point = (rng.next_u64() % (n as u64 + 1)) as usize;
+            t.push_str(&digits[..point.max(1).min(n)]);
+            if point < n && point > 0 {
+                t.push('.');
+                t.push_str(&digits[point..]);
+            }
+            c.push(&t);
+            texts.push(t);
+        }
+        let mut shortest = 0;
+        for (row, t) in texts.iter().enumerate() {
+            assert_eq!(c.text(row), t.as_str());
+            let want = t.parse::<f64>().unwrap();
+            assert_eq!(c.number(row), Cell::Value(want), "{t}");
+            if let Cell::Value(x) = c.number(row) {
+                assert_eq!(x.to_bits(), want.to_bits(), "{t}");
+            }
+            if c.kept_text(row).is_none() {
+                assert_eq!(format!("{want}"), *t);
+                shortest += 1;
+            }
+        }
+        // Most are held as numbers alone.
+        assert!(shortest > 100_000, "{shortest}");
+    }
+
+    #[test]
+    fn pieces_append_in_order() {
+        let (a, b) = (["1", "x", "2.50"], ["", "y", "3"]);
+        let mut whole = column(&a);
+        whole.append(&column(&b));
+        for (row, t) in a.iter().chain(&b).enumerate() {
+            assert_eq!(whole.text(row), *t);
+        }
+        let mut col = Column::of_numbers("h".into(), 0);
+        col.push("0.5");
+        col.push("NA");
+        assert_eq!(col.into_cells().to_vec(), ["0.5", "NA"]);
+    }
+}
