@@ -195,6 +195,13 @@ impl NumberCells {
         }
     }
 
+    /// Appends a number read from a cell in its shortest form (see
+    /// [`plain::short_in_shortest_form`]).
+    #[inline]
+    pub(crate) fn push_value(&mut self, x: f64) {
+        self.values.push(x);
+    }
+
     /// Appends the cell `cell`, which is `bytes[start..start + cell.len()]`:
     /// as [`NumberCells::push`], the number read in place, where the bytes
     /// after the cell let [`plain::parse_prefix`] load eight at a time

@@ -124,7 +124,7 @@ pub(crate) fn split_line(
 /// flag of the three tests together is the first match (the zero-byte test
 /// of Hacker's Delight, Warren 2012, §6-1).
 #[inline(always)]
-fn next_stop(bytes: &[u8], mut pos: usize, delimiter: u8) -> usize {
+pub(crate) fn next_stop(bytes: &[u8], mut pos: usize, delimiter: u8) -> usize {
     const ONES: u64 = 0x0101_0101_0101_0101;
     const TOPS: u64 = 0x8080_8080_8080_8080;
     let zeros = |y: u64| y.wrapping_sub(ONES) & !y & TOPS;

@@ -16,6 +16,7 @@
 
 use super::column::{Cells, NumberCells};
 use super::pieces::{self, read_exact_at, Layout, Outcome};
+use super::plain;
 use super::stream::{self, Head};
 use super::{
     detect_delimiter, empty_columns, is_utf16, match_requests, read_headers, separator_text,
@@ -88,7 +89,12 @@ pub(super) fn read(
         first_line,
         size,
     };
+    let mut number_fields = vec![false; headers.len()];
+    for (&i, &n) in wanted.iter().zip(&numbers) {
+        number_fields[i] |= n;
+    }
     let shape = Shape {
+        number_fields,
         delimiter,
         width: headers.len(),
         wanted: &wanted,
@@ -199,6 +205,8 @@ fn header(source: &str, file: &File, len: u64) -> Option<Header> {
 
 /// What every piece is read with.
 struct Shape<'a> {
+    /// Per field of the header, whether a column of numbers reads it.
+    number_fields: Vec<bool>,
     delimiter: u8,
     /// The number of fields in the header.
     width: usize,
@@ -260,12 +268,18 @@ fn read_piece(
         blank_rows: 0,
     });
     let (mut newlines, mut pos) = (0u64, 0usize);
+    let mut parsed = vec![None; shape.width];
+    let numbers_read = shape.number_fields.contains(&true);
     loop {
         pos = pieces::skip_breaks(bytes, pos, &mut newlines);
         if pos >= bytes.len() {
             break;
         }
-        let end = pieces::split_line(bytes, pos, delimiter, fields);
+        let end = if numbers_read {
+            split_reading_numbers(bytes, pos, shape, fields, &mut parsed)
+        } else {
+            pieces::split_line(bytes, pos, delimiter, fields)
+        };
         let blank = bytes[pos..end]
             .iter()
             .all(|&b| b == delimiter || b.is_ascii_whitespace());
@@ -278,6 +292,10 @@ fn read_piece(
             return Outcome::Stop(());
         }
         for (column, &i) in cells.columns.iter_mut().zip(shape.wanted) {
+            if let (Cells::Numbers(n), Some(x)) = (&mut *column, parsed[i]) {
+                n.push_value(x);
+                continue;
+            }
             let (a, b) = fields[i];
             let cell = match text {
                 Some(text) => &text[a..b],
@@ -301,6 +319,58 @@ fn read_piece(
         sink: cells,
         newlines,
     }
+}
+
+/// [`pieces::split_line`], reading on the way each field of numbers
+/// (`shape.number_fields`) that starts with a number in its shortest form
+/// ending at the field's end ([`plain::short_in_shortest_form`]): its value
+/// in `parsed` (None for any other such field, read later from its text),
+/// the number's bytes swept once instead of twice.
+#[inline]
+fn split_reading_numbers(
+    bytes: &[u8],
+    mut pos: usize,
+    shape: &Shape<'_>,
+    fields: &mut Vec<(usize, usize)>,
+    parsed: &mut [Option<f64>],
+) -> usize {
+    let delimiter = shape.delimiter;
+    fields.clear();
+    let mut from = pos;
+    loop {
+        let f = fields.len();
+        let number = shape.number_fields.get(f) == Some(&true);
+        let read = if number {
+            plain::short_in_shortest_form(&bytes[pos..]).filter(|&(_, n)| {
+                matches!(bytes.get(pos + n), None | Some(b'\n' | b'\r'))
+                    || bytes[pos + n] == delimiter
+            })
+        } else {
+            None
+        };
+        match read {
+            Some((x, n)) => {
+                parsed[f] = Some(x);
+                pos += n;
+            }
+            None => {
+                if number {
+                    parsed[f] = None;
+                }
+                pos = pieces::next_stop(bytes, pos, delimiter);
+            }
+        }
+        match bytes.get(pos) {
+            Some(&b) if b == delimiter => {
+                fields.push((from, pos));
+                pos += 1;
+                from = pos;
+            }
+            _ => break,
+        }
+    }
+    fields.push((from, pos));
+    pos
 }
 
 /// `cell.trim()`, without its scan when the cell starts and ends with a
