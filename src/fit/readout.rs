@@ -265,18 +265,21 @@ fn subgroups(
             continue;
         };
         let (mut values, named) = held(design, &[j]);
-        let mut summaries = Vec::new();
-        for (level, &count) in levels.iter().zip(counts) {
-            let own = pooled.and_then(|options| {
-                let (mut yl, mut vl) = (Vec::new(), Vec::new());
-                for (pos, i) in studies.included.iter().enumerate() {
-                    if cells.get(i) == Some(level.as_str()) {
-                        yl.push(studies.y[pos]);
-                        vl.push(studies.v[pos]);
-                    }
+        // Each level's studies, in file order, found by the rows' codes
+        // in one sweep.
+        let mut own_studies = vec![(Vec::new(), Vec::new()); levels.len()];
+        if pooled.is_some() {
+            let by_code = cells.positions(levels);
+            for (pos, i) in studies.included.iter().enumerate() {
+                if let Some(l) = cells.code(i).and_then(|c| by_code[c]) {
+                    own_studies[l].0.push(studies.y[pos]);
+                    own_studies[l].1.push(studies.v[pos]);
                 }
-                level_fit(&yl, &vl, options)
-            });
+            }
+        }
+        let mut summaries = Vec::new();
+        for ((level, &count), (yl, vl)) in levels.iter().zip(counts).zip(&own_studies) {
+            let own = pooled.and_then(|options| level_fit(yl, vl, options));
             values[j] = Value::Label(level.clone());
             let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
             summaries.push(LevelSummary {

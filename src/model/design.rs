@@ -536,14 +536,10 @@ fn level_codes(raw: &[RawModerator], moderators: &[Moderator]) -> Vec<Option<Vec
         .zip(moderators)
         .map(|(r, m)| match (r, &m.kind) {
             (RawModerator::Text(v), ModeratorKind::Categorical { levels, .. }) => {
-                let index: std::collections::HashMap<&str, usize> = levels
-                    .iter()
-                    .enumerate()
-                    .map(|(i, l)| (l.as_str(), i))
-                    .collect();
+                let by_code = v.positions(levels);
                 Some(
                     (0..v.len())
-                        .map(|i| v.get(i).and_then(|l| index.get(l).copied()).unwrap_or(0))
+                        .map(|i| v.code(i).and_then(|c| by_code[c]).unwrap_or(0))
                         .collect(),
                 )
             }

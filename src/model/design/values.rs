@@ -83,6 +83,26 @@ impl Categories {
         }
     }
 
+    /// The code of row `i`'s label (its index among the distinct labels,
+    /// in order of first appearance; None when missing).
+    pub fn code(&self, i: usize) -> Option<usize> {
+        match self.codes[i] {
+            MISSING => None,
+            c => Some(c as usize),
+        }
+    }
+
+    /// Per code (see [`Categories::code`]), the position of its label in
+    /// `levels` (None when it is not one of them): each distinct label
+    /// looked up once, so rows are matched to levels by their codes
+    /// instead of by comparing or hashing their texts.
+    pub fn positions(&self, levels: &[String]) -> Vec<Option<usize>> {
+        self.names
+            .iter()
+            .map(|n| levels.iter().position(|l| l == n))
+            .collect()
+    }
+
     /// Number of rows.
     pub fn len(&self) -> usize {
         self.codes.len()
@@ -118,14 +138,24 @@ impl<S: AsRef<str>> FromIterator<Option<S>> for Categories {
             names: Vec::new(),
             codes: Vec::with_capacity(iter.size_hint().0),
         };
+        // The labels seen, looked up by comparing with each while there
+        // are few (a categorical moderator usually has a handful of levels,
+        // and comparing short texts costs less than hashing one), through
+        // a hash map from the seventeenth on.
+        const FEW: usize = 16;
         let mut index: HashMap<String, u32> = HashMap::new();
         for label in iter {
             let code = match label {
                 None => MISSING,
                 Some(l) => {
                     let l = l.as_ref();
-                    match index.get(l) {
-                        Some(&c) => c,
+                    let seen = if out.names.len() <= FEW {
+                        out.names.iter().position(|n| n == l).map(|c| c as u32)
+                    } else {
+                        index.get(l).copied()
+                    };
+                    match seen {
+                        Some(c) => c,
                         None => {
                             // At most one label a row, so codes stay below
                             // the row count; past 2^32 - 1 labels the rows
@@ -160,6 +190,36 @@ mod tests {
         let back: Vec<Option<&str>> = (0..4).map(|i| c.get(i)).collect();
         assert_eq!(back, [Some("b"), None, Some("a"), Some("b")]);
         assert_eq!(c.names.len(), 2);
+    }
+
+    #[test]
+    fn many_labels_keep_their_codes_past_the_few_compared() {
+        // 40 labels, each seen three times in a shuffled order: codes in
+        // order of first appearance whether a label is found by comparing
+        // (the first 16) or through the hash map.
+        let labels: Vec<Option<String>> = (0..120)
+            .map(|i| (i % 7 != 3).then(|| format!("L{}", (i * 37) % 40)))
+            .collect();
+        let c: Categories = labels.iter().map(|l| l.as_deref()).collect();
+        let mut first: Vec<&str> = Vec::new();
+        for (i, l) in labels.iter().enumerate() {
+            assert_eq!(c.get(i), l.as_deref());
+            if let Some(l) = l.as_deref() {
+                if !first.contains(&l) {
+                    first.push(l);
+                }
+                assert_eq!(c.code(i), first.iter().position(|f| *f == l));
+            } else {
+                assert_eq!(c.code(i), None);
+            }
+        }
+        assert!(first.len() > 16);
+        let levels = vec!["L5".to_string(), "none".to_string(), first[20].to_string()];
+        let by_code = c.positions(&levels);
+        for i in 0..labels.len() {
+            let want = c.get(i).and_then(|l| levels.iter().position(|v| v == l));
+            assert_eq!(c.code(i).and_then(|k| by_code[k]), want);
+        }
     }
 
     #[test]
