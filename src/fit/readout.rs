@@ -277,9 +277,17 @@ fn subgroups(
                 }
             }
         }
+        // The levels' own fits side by side (each the same whatever the
+        // number of threads).
+        let owns: Vec<_> = {
+            use rayon::prelude::*;
+            own_studies
+                .par_iter()
+                .map(|(yl, vl)| pooled.and_then(|options| level_fit(yl, vl, options)))
+                .collect()
+        };
         let mut summaries = Vec::new();
-        for ((level, &count), (yl, vl)) in levels.iter().zip(counts).zip(&own_studies) {
-            let own = pooled.and_then(|options| level_fit(yl, vl, options));
+        for ((level, &count), own) in levels.iter().zip(counts).zip(owns) {
             values[j] = Value::Label(level.clone());
             let x0 = design::design_row(&design.moderators, &design.interactions, &values)?;
             summaries.push(LevelSummary {
