@@ -92,14 +92,33 @@ pub(crate) fn skip_breaks(bytes: &[u8], mut pos: usize, count: &mut u64) -> usiz
 #[inline]
 pub(crate) fn split_line(
     bytes: &[u8],
+    pos: usize,
+    delimiter: u8,
+    fields: &mut Vec<(usize, usize)>,
+) -> usize {
+    split_line_reading(bytes, pos, delimiter, fields, |_, _| None)
+}
+
+/// [`split_line`], offering each field to `read` first: `read(f, pos)`
+/// is called where field f starts and returns where the field ends if it
+/// read the whole field (the byte there must be the delimiter, `\n`, `\r`
+/// or the end of `bytes`, as [`next_stop`] would have found), None to
+/// have its end found as usual.
+#[inline(always)]
+pub(crate) fn split_line_reading(
+    bytes: &[u8],
     mut pos: usize,
     delimiter: u8,
     fields: &mut Vec<(usize, usize)>,
+    mut read: impl FnMut(usize, usize) -> Option<usize>,
 ) -> usize {
     fields.clear();
     let mut from = pos;
     loop {
-        pos = next_stop(bytes, pos, delimiter);
+        pos = match read(fields.len(), pos) {
+            Some(end) => end,
+            None => next_stop(bytes, pos, delimiter),
+        };
         match bytes.get(pos) {
             Some(&b) if b == delimiter => {
                 fields.push((from, pos));

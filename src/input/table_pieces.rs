@@ -329,48 +329,22 @@ fn read_piece(
 #[inline]
 fn split_reading_numbers(
     bytes: &[u8],
-    mut pos: usize,
+    pos: usize,
     shape: &Shape<'_>,
     fields: &mut Vec<(usize, usize)>,
     parsed: &mut [Option<f64>],
 ) -> usize {
     let delimiter = shape.delimiter;
-    fields.clear();
-    let mut from = pos;
-    loop {
-        let f = fields.len();
-        let number = shape.number_fields.get(f) == Some(&true);
-        let read = if number {
-            plain::short_in_shortest_form(&bytes[pos..]).filter(|&(_, n)| {
-                matches!(bytes.get(pos + n), None | Some(b'\n' | b'\r'))
-                    || bytes[pos + n] == delimiter
-            })
-        } else {
-            None
-        };
-        match read {
-            Some((x, n)) => {
-                parsed[f] = Some(x);
-                pos += n;
-            }
-            None => {
-                if number {
-                    parsed[f] = None;
-                }
-                pos = pieces::next_stop(bytes, pos, delimiter);
-            }
+    pieces::split_line_reading(bytes, pos, delimiter, fields, |f, pos| {
+        if shape.number_fields.get(f) != Some(&true) {
+            return None;
         }
-        match bytes.get(pos) {
-            Some(&b) if b == delimiter => {
-                fields.push((from, pos));
-                pos += 1;
-                from = pos;
-            }
-            _ => break,
-        }
-    }
-    fields.push((from, pos));
-    pos
+        let read = plain::short_in_shortest_form(&bytes[pos..]).filter(|&(_, n)| {
+            matches!(bytes.get(pos + n), None | Some(b'\n' | b'\r')) || bytes[pos + n] == delimiter
+        });
+        parsed[f] = read.map(|(x, _)| x);
+        read.map(|(_, n)| pos + n)
+    })
 }
 
 /// `cell.trim()`, without its scan when the cell starts and ends with a
