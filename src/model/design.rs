@@ -90,12 +90,23 @@ pub fn classify_cells<'a>(
     (rows, number, text): (
         usize,
         impl Fn(usize) -> Cell + Sync,
-        impl Fn(usize) -> Cow<'a, str>,
+        impl Fn(usize) -> Cow<'a, str> + Sync,
     ),
     lines: &[u64],
     (places, header): (&Places, &str),
     source: &str,
 ) -> Result<RawModerator> {
+    // A label with its blanks trimmed, None when missing.
+    let label = |i: usize| {
+        let c = text(i);
+        (!is_missing(&c)).then(|| match c {
+            Cow::Borrowed(c) => Cow::Borrowed(c.trim()),
+            Cow::Owned(c) => Cow::Owned(c.trim().to_string()),
+        })
+    };
+    if spec.categorical {
+        return Ok(RawModerator::Text(Categories::from_rows(rows, label)));
+    }
     let mut numeric = vec![0.0; rows];
     // Per piece: the cells present and the rows of those that are not numbers.
     let parts = pieces::fill(&mut numeric, |first, out| {
@@ -119,9 +130,9 @@ pub fn classify_cells<'a>(
     });
     let present: usize = parts.iter().map(|p| p.0).sum();
     let bad: Vec<usize> = parts.into_iter().flat_map(|p| p.1).collect();
-    if spec.categorical || !bad.is_empty() {
+    if !bad.is_empty() {
         let good = present - bad.len();
-        if !spec.categorical && good * 2 > present {
+        if good * 2 > present {
             let shown: Vec<String> = bad
                 .iter()
                 .take(5)
@@ -139,16 +150,7 @@ pub fn classify_cells<'a>(
                 ),
             ));
         }
-        let labels = (0..rows)
-            .map(|i| {
-                let c = text(i);
-                (!is_missing(&c)).then(|| match c {
-                    Cow::Borrowed(c) => Cow::Borrowed(c.trim()),
-                    Cow::Owned(c) => Cow::Owned(c.trim().to_string()),
-                })
-            })
-            .collect();
-        return Ok(RawModerator::Text(labels));
+        return Ok(RawModerator::Text(Categories::from_rows(rows, label)));
     }
     Ok(RawModerator::Numeric(Numbers(numeric)))
 }

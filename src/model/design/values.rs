@@ -2,6 +2,7 @@
 //! number a row for a numeric moderator, one small code a row for a
 //! categorical one (each label stored once).
 
+use crate::support::pieces;
 use crate::support::rows::Rows;
 use std::collections::HashMap;
 
@@ -131,49 +132,80 @@ impl Categories {
     }
 }
 
+/// Codes labels in order of first appearance: looked up by comparing with
+/// each label seen while there are few (a categorical moderator usually has
+/// a handful of levels, and comparing short texts costs less than hashing
+/// one), through a hash map from the seventeenth on.
+#[derive(Default)]
+struct Coder {
+    names: Vec<String>,
+    index: HashMap<String, u32>,
+}
+
+impl Coder {
+    const FEW: usize = 16;
+
+    /// The code of `label`, a new one for a label not seen before.
+    fn code(&mut self, label: &str) -> u32 {
+        let seen = if self.names.len() <= Self::FEW {
+            self.names.iter().position(|n| n == label).map(|c| c as u32)
+        } else {
+            self.index.get(label).copied()
+        };
+        seen.unwrap_or_else(|| {
+            // At most one label a row, so codes stay below the row count;
+            // past 2^32 - 1 labels the rows would not fit in memory anyway.
+            let c = u32::try_from(self.names.len())
+                .ok()
+                .filter(|&c| c != MISSING)
+                .expect("fewer than 2^32 - 1 distinct labels");
+            self.names.push(label.to_string());
+            self.index.insert(label.to_string(), c);
+            c
+        })
+    }
+}
+
 impl<S: AsRef<str>> FromIterator<Option<S>> for Categories {
     fn from_iter<I: IntoIterator<Item = Option<S>>>(iter: I) -> Self {
         let iter = iter.into_iter();
-        let mut out = Categories {
-            names: Vec::new(),
-            codes: Vec::with_capacity(iter.size_hint().0),
-        };
-        // The labels seen, looked up by comparing with each while there
-        // are few (a categorical moderator usually has a handful of levels,
-        // and comparing short texts costs less than hashing one), through
-        // a hash map from the seventeenth on.
-        const FEW: usize = 16;
-        let mut index: HashMap<String, u32> = HashMap::new();
+        let mut codes = Vec::with_capacity(iter.size_hint().0);
+        let mut coder = Coder::default();
         for label in iter {
-            let code = match label {
-                None => MISSING,
-                Some(l) => {
-                    let l = l.as_ref();
-                    let seen = if out.names.len() <= FEW {
-                        out.names.iter().position(|n| n == l).map(|c| c as u32)
-                    } else {
-                        index.get(l).copied()
-                    };
-                    match seen {
-                        Some(c) => c,
-                        None => {
-                            // At most one label a row, so codes stay below
-                            // the row count; past 2^32 - 1 labels the rows
-                            // would not fit in memory anyway.
-                            let c = u32::try_from(out.names.len())
-                                .ok()
-                                .filter(|&c| c != MISSING)
-                                .expect("fewer than 2^32 - 1 distinct labels");
-                            out.names.push(l.to_string());
-                            index.insert(l.to_string(), c);
-                            c
-                        }
-                    }
-                }
-            };
-            out.codes.push(code);
+            codes.push(label.map_or(MISSING, |l| coder.code(l.as_ref())));
         }
-        out
+        Categories {
+            names: coder.names,
+            codes,
+        }
+    }
+}
+
+impl Categories {
+    /// The list of `rows` rows, row i's label `label(i)` (None when
+    /// missing), as [`FromIterator`] builds it from the labels in row order,
+    /// built in the fixed pieces of [`pieces`] on every core: each piece's
+    /// labels coded on their own, then each piece's codes renumbered, piece
+    /// after piece, into the codes of the whole (a label's code is its order
+    /// of first appearance in the whole, as in one sweep).
+    pub fn from_rows<S: AsRef<str>>(
+        rows: usize,
+        label: impl Fn(usize) -> Option<S> + Sync,
+    ) -> Self {
+        let parts: Vec<Categories> = pieces::map(rows, |r| r.map(&label).collect());
+        let mut coder = Coder::default();
+        let mut codes = Vec::with_capacity(rows);
+        for part in parts {
+            let renumbered: Vec<u32> = part.names.iter().map(|n| coder.code(n)).collect();
+            codes.extend(part.codes.iter().map(|&c| match c {
+                MISSING => MISSING,
+                c => renumbered[c as usize],
+            }));
+        }
+        Categories {
+            names: coder.names,
+            codes,
+        }
     }
 }
 
@@ -219,6 +251,25 @@ mod tests {
         for i in 0..labels.len() {
             let want = c.get(i).and_then(|l| levels.iter().position(|v| v == l));
             assert_eq!(c.code(i).and_then(|k| by_code[k]), want);
+        }
+    }
+
+    #[test]
+    fn labels_coded_in_pieces_are_coded_as_in_one_sweep() {
+        // Over several pieces of rows, labels first seen in later pieces,
+        // more than 16 of them, missing ones: the same codes and names as
+        // one sweep in row order, on 1, 2 and 4 threads.
+        let rows = 3 * pieces::ROWS + 123;
+        let label = |i: usize| (i % 11 != 5).then(|| format!("g{}", (i / 997 + (i * 7) % 3) % 60));
+        let want: Categories = (0..rows).map(label).collect();
+        assert!(want.names.len() > 16);
+        for threads in [1, 2, 4] {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            let got = pool.install(|| Categories::from_rows(rows, label));
+            assert_eq!(got, want);
         }
     }
 
