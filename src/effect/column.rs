@@ -220,11 +220,12 @@ impl Cells<'_> {
                 match col.number(row) {
                     Cell::Missing => {}
                     Cell::Value(x) => values[j] = Some(x),
-                    Cell::Invalid if r.name == "p" && is_inequality(&col.text(row)) => {
-                        inequality = Some(col.text(row))
-                    }
                     Cell::Invalid => {
                         let text = col.text(row);
+                        if r.name == "p" && is_inequality(&text) {
+                            inequality = Some(text);
+                            continue;
+                        }
                         bad = true;
                         rare.problem(CellProblem {
                             line: table.lines[row],

@@ -44,6 +44,22 @@ impl Cells {
         }
     }
 
+    /// The number of cells.
+    fn len(&self) -> usize {
+        match self {
+            Cells::Text(t) => t.len(),
+            Cells::Numbers(n) => n.values.len(),
+        }
+    }
+
+    /// See [`Column::text`].
+    fn text(&self, row: usize) -> Cow<'_, str> {
+        match self {
+            Cells::Text(t) => Cow::Borrowed(t.get(row)),
+            Cells::Numbers(n) => n.text(row),
+        }
+    }
+
     /// Empties the list, keeping its room.
     pub(super) fn clear(&mut self) {
         match self {
@@ -75,10 +91,7 @@ impl Column {
     /// The text of the cell of data row `row` (0-based), trimmed, exactly as
     /// written in the file.
     pub fn text(&self, row: usize) -> Cow<'_, str> {
-        match &self.cells {
-            Cells::Text(t) => Cow::Borrowed(t.get(row)),
-            Cells::Numbers(n) => n.text(row),
-        }
+        self.cells.text(row)
     }
 
     /// The cell of data row `row` read as a number: what
@@ -103,20 +116,8 @@ impl Column {
         match (&mut self.cells, cells) {
             (Cells::Text(t), Cells::Text(o)) => t.append(o),
             (Cells::Numbers(n), Cells::Numbers(o)) => n.append(o),
-            (mine, other) => {
-                // Not made by the readers; kept correct all the same.
-                let rows = match other {
-                    Cells::Text(o) => o.len(),
-                    Cells::Numbers(o) => o.values.len(),
-                };
-                for row in 0..rows {
-                    let text = match other {
-                        Cells::Text(o) => Cow::Borrowed(o.get(row)),
-                        Cells::Numbers(o) => o.text(row),
-                    };
-                    mine.push(&text);
-                }
-            }
+            // Not made by the readers; kept correct all the same.
+            (mine, other) => (0..other.len()).for_each(|row| mine.push(&other.text(row))),
         }
     }
 
@@ -140,11 +141,9 @@ impl Column {
     pub fn into_cells(self) -> Texts {
         match self.cells {
             Cells::Text(t) => t,
-            Cells::Numbers(n) => {
-                let mut t = Texts::with_capacity(n.values.len());
-                for row in 0..n.values.len() {
-                    t.push(&n.text(row));
-                }
+            cells => {
+                let mut t = Texts::with_capacity(cells.len());
+                (0..cells.len()).for_each(|row| t.push(&cells.text(row)));
                 t
             }
         }
@@ -200,19 +199,6 @@ impl NumberCells {
     #[inline]
     pub(crate) fn push_value(&mut self, x: f64) {
         self.values.push(x);
-    }
-
-    /// Appends the cell `cell`, which is `bytes[start..start + cell.len()]`:
-    /// as [`NumberCells::push`], the number read in place, where the bytes
-    /// after the cell let [`plain::parse_prefix`] load eight at a time
-    /// (a cell's own slice ends within eight bytes of its start, and
-    /// loading past its end goes byte by byte).
-    #[inline]
-    pub(crate) fn push_within(&mut self, bytes: &[u8], start: usize, cell: &str) {
-        match plain::short_in_shortest_form(&bytes[start..]) {
-            Some((x, n)) if n == cell.len() => self.values.push(x),
-            _ => self.push(cell),
-        }
     }
 
     /// The kept text of row `row`, if any.

@@ -304,14 +304,9 @@ fn read_piece(
                     Err(_) => return Outcome::Stop(()),
                 },
             };
-            let trimmed = trim(cell);
-            match column {
-                // An untrimmed cell of numbers is read where it lies.
-                Cells::Numbers(n) if trimmed.len() == cell.len() && !cell.is_empty() => {
-                    n.push_within(bytes, a, cell);
-                }
-                _ => column.push(trimmed),
-            }
+            // A cell of numbers not read while the row was split is not
+            // a short number in its shortest form: read from its text.
+            column.push(trim(cell));
         }
         cells.rows.push(newlines);
     }
