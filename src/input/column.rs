@@ -262,10 +262,12 @@ impl NumberCells {
 /// back as x, in positional notation (never an exponent). Two different
 /// decimals of at most 15 significant digits never read as the same double
 /// (DBL_DIG = 15: every such decimal is recovered by rounding its double to
-/// 15 digits; IEEE 754-2019 §5.12.2, C11 §5.2.4.2.2), so no shorter string
-/// reads as x, and no other string of the same length does: the shortest
-/// form is this one's digits. Without a redundant sign, leading or trailing
-/// zero, point or exponent, `Display` writes them exactly as here.
+/// 15 digits; IEEE 754-2019 §5.12.2, C11 §5.2.4.2.2, section numbers from
+/// memory), so no shorter string reads as x, and no other string of the
+/// same length does: the shortest form is this one's digits. Without a
+/// redundant sign, leading or trailing zero, point or exponent, `Display`
+/// writes them exactly as here. Checked here, not taken on trust: the unit
+/// test prints 200,000 random decimals back and compares them.
 #[inline]
 fn is_shortest_form(cell: &[u8]) -> bool {
     let body = match cell {
