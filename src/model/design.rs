@@ -432,10 +432,16 @@ pub fn build(
 fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &Rows) -> Result<ModeratorKind> {
     let k = included.len();
     let xs = v.of_rows(included);
-    let mean = xs.iter().sum::<f64>() / k as f64;
+    // The sum, smallest and largest value in one sweep (each the same
+    // running value in row order as a sweep of its own), then the squares.
+    let (mut sum, mut min, mut max) = (-0.0, f64::INFINITY, f64::NEG_INFINITY);
+    for &x in xs.iter() {
+        sum += x;
+        min = min.min(x);
+        max = max.max(x);
+    }
+    let mean = sum / k as f64;
     let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
-    let min = xs.iter().copied().fold(f64::INFINITY, f64::min);
-    let max = xs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     if min == max {
         return Err(Error::Model(format!(
             "moderator '{}' has the same value ({min}) in every included study, so its \
@@ -480,13 +486,8 @@ fn categorical_kind(
         ));
     }
     // Levels are the labels as written (`1` and `01` are two levels), each
-    // once: counted in one pass over the rows, then sorted.
-    let mut tally: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
-    for i in included.iter() {
-        if let Some(l) = v.get(i) {
-            *tally.entry(l).or_insert(0) += 1;
-        }
-    }
+    // once: counted in one pass over the rows' codes, then sorted.
+    let tally: std::collections::HashMap<&str, usize> = v.tally(included).into_iter().collect();
     if tally.len() > MAX_LEVELS {
         return Err(Error::Model(format!(
             "moderator '{}' has {} levels among the included studies; pondus codes at most \

@@ -205,37 +205,54 @@ fn record_scaling(
     *log_det_a -= sd.ln();
 }
 
-/// [`standardise_in_place`] reading the design row by row: four sweeps
-/// over the rows in all (means, largest deviations, sums of squares, each
+/// [`standardise_in_place`] reading the design row by row: three sweeps
+/// over the rows in all (whether column 0 is all ones with each column's
+/// running sum, smallest and largest value; the sums of squares, each
 /// keeping one running value per column in row order; then the scaling, on
-/// every core), the same bits as column by column.
+/// every core), the same bits as column by column. The largest deviation
+/// max_i |x_ij − m| is max(|max_i x_ij − m|, |min_i x_ij − m|) exactly: the
+/// rounded difference fl(x − m) does not decrease as x grows, so its
+/// magnitude is largest at one of the ends (NaN values are passed over by
+/// both, as by the running maximum).
 fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
     use rayon::prelude::*;
     let rows = || x.chunks_exact(p.max(1)).take(k);
+    let mut ones = p > 0;
+    let mut sum = vec![-0.0; p];
+    let mut lo = vec![f64::INFINITY; p];
+    let mut hi = vec![f64::NEG_INFINITY; p];
+    for r in rows() {
+        ones &= r[0] == 1.0;
+        for (j, &v) in r.iter().enumerate() {
+            sum[j] += v;
+            lo[j] = lo[j].min(v);
+            hi[j] = hi[j].max(v);
+        }
+    }
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.
-    let has_intercept = p > 0 && rows().all(|r| r[0] == 1.0);
+    let has_intercept = ones;
     let first = usize::from(has_intercept);
     let mean: Vec<f64> = if has_intercept {
-        let mut sum = vec![-0.0; p];
-        for r in rows() {
-            for (s, v) in sum.iter_mut().zip(r).skip(first) {
-                *s += v;
-            }
-        }
         sum.iter().map(|s| s / k as f64).collect()
     } else {
         vec![0.0; p]
     };
     // The SD through the largest deviation, so the squares neither
-    // underflow (values near 1e-300) nor overflow (near 1e300).
-    let mut big = vec![0.0f64; p];
-    for r in rows() {
-        for ((b, v), m) in big.iter_mut().zip(r).zip(&mean).skip(first) {
-            *b = b.max((v - m).abs());
-        }
-    }
+    // underflow (values near 1e-300) nor overflow (near 1e300); a column
+    // of NaN alone has none.
+    let big: Vec<f64> = (0..p)
+        .map(|j| {
+            if lo[j] > hi[j] {
+                0.0
+            } else {
+                0.0f64
+                    .max((hi[j] - mean[j]).abs())
+                    .max((lo[j] - mean[j]).abs())
+            }
+        })
+        .collect();
     let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
     let mut ss = vec![-0.0; p];
     for r in rows() {
@@ -453,41 +470,77 @@ fn per_study(
     st: &Scaled<'_>,
     m_inv: &DMatrix<f64>,
 ) {
-    use rayon::prelude::*;
     let (k, p, t) = (y.len(), fit.p, fit.tau2.estimate);
     let data = Data { y, v, x: st.x, p };
     let orig = Data { y, v, x, p };
-    let beta = &fit.beta;
-    // Each study's values depend on that study alone, so the rows can be
-    // shared among threads without changing a bit.
-    let study = |i: usize| {
-        let w = 1.0 / (v[i] + t);
-        let fi = wls::fitted(&orig, beta, i);
-        let var_r = 1.0 / w - wls::quad_form(&data, m_inv, i);
-        let resid = (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
-            .then(|| (y[i] - fi) / var_r.sqrt());
-        (w, fi, resid)
-    };
-    let (mut weights, mut fitted, mut std_resid) = (vec![0.0; k], vec![0.0; k], vec![None; k]);
-    let fill = |first: usize, w: &mut [f64], f: &mut [f64], r: &mut [Option<f64>]| {
-        for (j, ((w, f), r)) in w.iter_mut().zip(f).zip(r).enumerate() {
-            (*w, *f, *r) = study(first + j);
+    let arrays = wls::with_quad_form(
+        &data,
+        m_inv,
+        PerStudy {
+            y,
+            v,
+            orig: &orig,
+            beta: &fit.beta,
+            tau2: t,
+        },
+    );
+    debug_assert_eq!(arrays.0.len(), k);
+    (fit.weights, fit.fitted, fit.std_resid) = arrays;
+}
+
+/// The three arrays of [`per_study`], x̃_i'M̃⁻¹x̃_i from the quadratic form
+/// given.
+struct PerStudy<'d, 'a> {
+    y: &'d [f64],
+    v: &'d [f64],
+    orig: &'d Data<'a>,
+    beta: &'d DVector<f64>,
+    tau2: f64,
+}
+
+type StudyArrays = (Vec<f64>, Vec<f64>, Vec<Option<f64>>);
+
+impl wls::UseQuadForm for PerStudy<'_, '_> {
+    type Out = StudyArrays;
+    fn run(self, quad: impl Fn(usize) -> f64 + Sync) -> StudyArrays {
+        use rayon::prelude::*;
+        let PerStudy {
+            y,
+            v,
+            orig,
+            beta,
+            tau2: t,
+        } = self;
+        let k = y.len();
+        // Each study's values depend on that study alone, so the rows can be
+        // shared among threads without changing a bit.
+        let study = |i: usize| {
+            let w = 1.0 / (v[i] + t);
+            let fi = wls::fitted(orig, beta, i);
+            let var_r = 1.0 / w - quad(i);
+            let resid = (var_r > crate::tolerance::RESIDUAL_VARIANCE_FLOOR / w)
+                .then(|| (y[i] - fi) / var_r.sqrt());
+            (w, fi, resid)
+        };
+        let (mut weights, mut fitted, mut std_resid) = (vec![0.0; k], vec![0.0; k], vec![None; k]);
+        let fill = |first: usize, w: &mut [f64], f: &mut [f64], r: &mut [Option<f64>]| {
+            for (j, ((w, f), r)) in w.iter_mut().zip(f).zip(r).enumerate() {
+                (*w, *f, *r) = study(first + j);
+            }
+        };
+        if k < wls::PARALLEL_MIN_ROWS {
+            fill(0, &mut weights, &mut fitted, &mut std_resid);
+        } else {
+            let rows = wls::CHUNK_ROWS;
+            weights
+                .par_chunks_mut(rows)
+                .zip(fitted.par_chunks_mut(rows))
+                .zip(std_resid.par_chunks_mut(rows))
+                .enumerate()
+                .for_each(|(c, ((w, f), r))| fill(c * rows, w, f, r));
         }
-    };
-    if k < wls::PARALLEL_MIN_ROWS {
-        fill(0, &mut weights, &mut fitted, &mut std_resid);
-    } else {
-        let rows = wls::CHUNK_ROWS;
-        weights
-            .par_chunks_mut(rows)
-            .zip(fitted.par_chunks_mut(rows))
-            .zip(std_resid.par_chunks_mut(rows))
-            .enumerate()
-            .for_each(|(c, ((w, f), r))| fill(c * rows, w, f, r));
+        (weights, fitted, std_resid)
     }
-    fit.weights = weights;
-    fit.fitted = fitted;
-    fit.std_resid = std_resid;
 }
 
 /// The Knapp–Hartung scale s² = Q/(k − p) (Knapp & Hartung 2003, *Stat.
@@ -576,22 +629,30 @@ mod tests {
 
     #[test]
     fn standardising_row_by_row_equals_the_column_by_column_values_bit_for_bit() {
-        // Invented columns: a calendar year, a wide-ranging one, a constant
-        // and tiny values; with and without an intercept; k small and past
-        // the parallel threshold.
+        // Invented columns: a calendar year, a wide-ranging one, a constant,
+        // tiny values, one whose largest deviation is below its mean, NaN in
+        // some rows, one infinity, NaN in every row; with and without an
+        // intercept; k small and past the parallel threshold.
         for k in [7usize, wls::PARALLEL_MIN_ROWS + 101] {
             for intercept in [true, false] {
-                let p = 5;
+                let p = 9;
                 let x: Vec<f64> = (0..k)
                     .flat_map(|i| {
                         let u = ((i * 7919) % 1013) as f64 / 1013.0;
                         let first = if intercept { 1.0 } else { u - 0.5 };
+                        let some_nan = if i % 5 == 3 { f64::NAN } else { u };
+                        let one_inf = if i == k / 2 { f64::INFINITY } else { u };
                         [
                             first,
                             1990.0 + (i % 31) as f64,
                             1e6 * u * u,
                             3.0,
                             1e-300 * u,
+                            // The largest deviation below the mean.
+                            -1e3 * u * u * u,
+                            some_nan,
+                            one_inf,
+                            f64::NAN,
                         ]
                     })
                     .collect();

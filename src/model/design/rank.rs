@@ -136,12 +136,18 @@ impl Triangle {
 
 /// Each column's shift (its mean, for every column but the first, when
 /// finite; else 0) and scale (the largest |x − shift| when positive and
-/// finite; else 1).
+/// finite; else 1), in one sweep over the rows: the largest |x − shift| is
+/// that at the column's largest or smallest value (see
+/// [`crate::model`]'s `by_rows`, which argues the same).
 fn shifts_and_scales(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
     let mut sum = vec![0.0; p];
+    let mut lo = vec![f64::INFINITY; p];
+    let mut hi = vec![f64::NEG_INFINITY; p];
     for row in x.chunks_exact(p).take(k) {
-        for (s, v) in sum.iter_mut().zip(row) {
-            *s += v;
+        for (j, &v) in row.iter().enumerate() {
+            sum[j] += v;
+            lo[j] = lo[j].min(v);
+            hi[j] = hi[j].max(v);
         }
     }
     let shift: Vec<f64> = (0..p)
@@ -154,15 +160,21 @@ fn shifts_and_scales(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
             }
         })
         .collect();
-    let mut big = vec![0.0f64; p];
-    for row in x.chunks_exact(p).take(k) {
-        for j in 0..p {
-            big[j] = big[j].max((row[j] - shift[j]).abs());
-        }
-    }
-    let scale = big
-        .into_iter()
-        .map(|b| if b > 0.0 && b.is_finite() { b } else { 1.0 })
+    let scale = (0..p)
+        .map(|j| {
+            let b = if lo[j] > hi[j] {
+                0.0
+            } else {
+                0.0f64
+                    .max((hi[j] - shift[j]).abs())
+                    .max((lo[j] - shift[j]).abs())
+            };
+            if b > 0.0 && b.is_finite() {
+                b
+            } else {
+                1.0
+            }
+        })
         .collect();
     (shift, scale)
 }
@@ -308,5 +320,38 @@ mod tests {
         x[4 * 17 + 2] = f64::NAN;
         let e = check_rank(&x, k, 4, &terms(4)).unwrap_err();
         assert!(e.to_string().contains("term 't2'"), "{e}");
+    }
+
+    /// The one-sweep shifts and scales are those of the two sweeps they
+    /// replaced (the mean, then the running largest |x − shift|), bit for
+    /// bit, on invented columns whose largest deviation lies above or below
+    /// the mean, with NaN in some rows or all, and with an infinity.
+    #[test]
+    fn one_sweep_shifts_and_scales_are_the_two_sweeps_values() {
+        let (k, p) = (1001, 7);
+        let x: Vec<f64> = (0..k)
+            .flat_map(|i| {
+                let u = ((i * 7919) % 1013) as f64 / 1013.0;
+                [
+                    1.0,
+                    1e6 + u * u,
+                    -1e3 * u * u * u,
+                    if i % 5 == 3 { f64::NAN } else { u },
+                    if i == k / 2 { f64::INFINITY } else { u },
+                    f64::NAN,
+                    4.0,
+                ]
+            })
+            .collect();
+        let (shift, scale) = shifts_and_scales(&x, k, p);
+        for j in 0..p {
+            let col = || (0..k).map(|i| x[i * p + j]);
+            let mean = col().sum::<f64>() / k as f64;
+            let s = if j > 0 && mean.is_finite() { mean } else { 0.0 };
+            let b = col().fold(0.0f64, |m, v| m.max((v - s).abs()));
+            let b = if b > 0.0 && b.is_finite() { b } else { 1.0 };
+            assert_eq!(shift[j].to_bits(), s.to_bits(), "column {j}");
+            assert_eq!(scale[j].to_bits(), b.to_bits(), "column {j}");
+        }
     }
 }

@@ -104,6 +104,25 @@ impl Categories {
             .collect()
     }
 
+    /// The labels of the rows `rows`, each once with its number of rows
+    /// (missing labels left out), in order of first appearance in the
+    /// table: counted by code, one sweep over the codes.
+    pub fn tally(&self, rows: &Rows) -> Vec<(&str, usize)> {
+        let mut counts = vec![0usize; self.names.len()];
+        for i in rows.iter() {
+            match self.codes[i] {
+                MISSING => {}
+                c => counts[c as usize] += 1,
+            }
+        }
+        self.names
+            .iter()
+            .zip(counts)
+            .filter(|(_, n)| *n > 0)
+            .map(|(name, n)| (name.as_str(), n))
+            .collect()
+    }
+
     /// Number of rows.
     pub fn len(&self) -> usize {
         self.codes.len()
@@ -251,6 +270,36 @@ mod tests {
         for i in 0..labels.len() {
             let want = c.get(i).and_then(|l| levels.iter().position(|v| v == l));
             assert_eq!(c.code(i).and_then(|k| by_code[k]), want);
+        }
+    }
+
+    #[test]
+    fn the_tally_by_code_counts_each_label_of_the_rows() {
+        // 40 invented labels past the 16 compared, missing ones, every row
+        // and listed subsets: the counts of a count by label text.
+        let labels: Vec<Option<String>> = (0..300)
+            .map(|i| (i % 11 != 4).then(|| format!("L{}", (i * 37) % 40)))
+            .collect();
+        let c: Categories = labels.iter().map(|l| l.as_deref()).collect();
+        for rows in [
+            Rows::Every(300),
+            Rows::Listed((0..300).filter(|i| i % 3 != 0).collect()),
+            // Ten labels of the forty.
+            Rows::Listed((0..10).collect()),
+        ] {
+            let mut want: Vec<(&str, usize)> = Vec::new();
+            for i in rows.iter() {
+                if let Some(l) = labels[i].as_deref() {
+                    match want.iter_mut().find(|(w, _)| *w == l) {
+                        Some((_, n)) => *n += 1,
+                        None => want.push((l, 1)),
+                    }
+                }
+            }
+            let mut got = c.tally(&rows);
+            got.sort();
+            want.sort();
+            assert_eq!(got, want);
         }
     }
 
