@@ -18,6 +18,23 @@ pub const NEWTON_STEP_REL: f64 = 1e-10;
 /// That last step must be at most this share of the step before it.
 pub const NEWTON_SHRINK: f64 = 1e-3;
 
+/// With many studies (`model::near::FEWER_PASSES_MIN_ROWS`), a Newton fit
+/// for the likelihood's maximum at most this share of τ² from the one
+/// before also computes the log terms: after a step of 1e-7 the next is
+/// of the order of 1e-14 (quadratic convergence), so that fit is usually
+/// the last, and the likelihood at the root then needs no pass of its own
+/// (a performance setting, not an accuracy one).
+pub const NEWTON_NEAR_END_REL: f64 = 1e-7;
+
+/// With many studies, when the search for the likelihood's maximum ends
+/// with a step of at most this share of τ² from a fit that has its log
+/// terms, that fit's τ² is the estimate instead of τ² plus the step: a
+/// difference far below the 1e-10 to which results are compared, and of
+/// the order by which only reordering the sums of a million studies moves
+/// the estimate (up to 3e-14 relative, measured 2026-12-03, see
+/// docs/performance.md).
+pub const NEWTON_LAST_STEP_REL: f64 = 1e-13;
+
 /// Iteration limit of each root search; Brent's method needs far fewer
 /// (it converges superlinearly, and bisection alone halves a bracket 1,000
 /// times long before that).

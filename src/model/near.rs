@@ -253,11 +253,13 @@ fn covers(had: Want, want: Want) -> bool {
 
 /// From this many studies on, the τ² search saves passes over the studies in
 /// ways that change only the rounding of its fits: fits whose τ² are known
-/// together share one pass ([`Evaluator::fit_many`]: the points of the
-/// likelihood scan, the steps of the two Q-profile bounds' searches, which
-/// go in lock step), and
-/// the first fit is taken around the OLS coefficients
-/// ([`Evaluator::around`]), not around β₀ = 0, which takes a second pass.
+/// together share one pass ([`Evaluator::fit_many`]: τ² = 0, the first end
+/// tried for the likelihood's bracket and the points of its scan, the steps
+/// of the two Q-profile bounds' searches, which go in lock step), the
+/// first fit is taken around the OLS coefficients
+/// ([`Evaluator::around`]), not around β₀ = 0, which takes a second pass,
+/// and the Newton search's last fit takes the log terms of the likelihood
+/// ([`crate::tolerance::NEWTON_LAST_STEP_REL`]).
 /// Each pass reads the whole design from memory, and at this size the
 /// reading, not the arithmetic, takes the time (`cargo bench --bench
 /// passes`). Below it every fit is its own pass, each around the fit
@@ -278,6 +280,8 @@ pub struct Evaluator<'a> {
     seen: RefCell<Vec<(Want, Rc<Wls>)>>,
     /// The coefficients the first fit is taken around.
     first: DVector<f64>,
+    /// Whether `first` was given ([`Evaluator::around`]), not β₀ = 0.
+    given: bool,
     work: RefCell<Work>,
     evaluations: Cell<u64>,
 }
@@ -290,6 +294,7 @@ impl<'a> Evaluator<'a> {
         Evaluator {
             work: RefCell::new(Work::new(data.p)),
             first: DVector::zeros(data.p),
+            given: false,
             data,
             seen: RefCell::new(Vec::with_capacity(USUAL_FITS)),
             evaluations: Cell::new(0),
@@ -303,8 +308,16 @@ impl<'a> Evaluator<'a> {
         assert_eq!(beta0.len(), data.p, "one coefficient per column");
         Evaluator {
             first: beta0,
+            given: true,
             ..Evaluator::new(data)
         }
+    }
+
+    /// Whether the first fit is taken around coefficients given to
+    /// [`Evaluator::around`] (so fits at several τ² around them need no
+    /// second pass as a rule), not around β₀ = 0.
+    pub fn starts_around(&self) -> bool {
+        self.given
     }
 
     /// The data.

@@ -326,13 +326,55 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
             .map(|f| log_likelihood(&f, restricted))
             .unwrap_or(f64::NAN)
     };
-    // Newton steps on the score, with its exact derivative.
+    // Newton steps on the score, with its exact derivative. With many
+    // studies, a fit within [`tolerance::NEWTON_NEAR_END_REL`] of the one
+    // before is likely the search's last: it also takes the log terms, and
+    // when the step from it is at most [`tolerance::NEWTON_LAST_STEP_REL`]
+    // it is the root (see below), so the likelihood there needs no pass of
+    // its own.
+    let many = ev.data().k() >= FEWER_PASSES_MIN_ROWS;
+    let last = std::cell::Cell::new(None::<(f64, bool)>);
     let newton = |t: f64| -> Result<(f64, f64)> {
-        let f = wls(ev, t, Want::CURVATURE)?;
+        let near_end = many
+            && last
+                .get()
+                .is_some_and(|(b, _)| (t - b).abs() <= tolerance::NEWTON_NEAR_END_REL * t);
+        let want = Want {
+            log_terms: near_end,
+            ..Want::CURVATURE
+        };
+        last.set(Some((t, near_end)));
+        let f = wls(ev, t, want)?;
         let sc = score(&f, restricted);
         Ok((sc, -sc / score_slope(&f, restricted)))
     };
+    // The root the search gives is its last fit's τ² plus the last step;
+    // when that step is at most NEWTON_LAST_STEP_REL of τ² and the fit has
+    // its log terms, the fit's own τ² is taken instead.
+    let settled = |root: f64| match last.take() {
+        Some((b, true)) if (root - b).abs() <= tolerance::NEWTON_LAST_STEP_REL * root => b,
+        _ => root,
+    };
 
+    let g = tolerance::LIKELIHOOD_SCAN_POINTS;
+    let scan = |hi: f64| -> Vec<f64> {
+        (0..=g)
+            .map(|j| {
+                let u = j as f64 / g as f64;
+                hi * u * u
+            })
+            .collect()
+    };
+    // With many studies and a first fit around coefficients near the
+    // fit's (around β₀ = 0 most of these fits would take a second pass),
+    // τ² = 0, the first end tried for the bracket and the scan of the
+    // interval it closes (both among the scan's points) are fitted in one
+    // pass (each around those coefficients: the scores of the fits one by
+    // one up to rounding); the scan is fitted again below only when that
+    // end does not close the bracket.
+    if ev.data().k() >= FEWER_PASSES_MIN_ROWS && ev.starts_around() {
+        ev.fit_many(&scan(2.0 * hint), Want::SCORE);
+    }
     let s0 = s(0.0);
     if s0.is_nan() {
         return Err(Error::Model(
@@ -342,13 +384,7 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
     let hi = bracket_above(&s, 2.0 * hint, what)?;
     // Scan [0, hi] (points denser near 0) for sign changes of the score from + to −:
     // each brackets a local maximum.
-    let g = tolerance::LIKELIHOOD_SCAN_POINTS;
-    let mut points: Vec<f64> = (0..=g)
-        .map(|j| {
-            let u = j as f64 / g as f64;
-            hi * u * u
-        })
-        .collect();
+    let mut points = scan(hi);
     // When the score at 0 is not positive, 0 is a local maximum; a second,
     // higher one may hide close to 0, below the first quadratic point, so
     // that interval is also scanned on a log scale.
@@ -359,9 +395,10 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
         );
         points.sort_by(f64::total_cmp);
     }
-    // With many studies the scan points are fitted in one pass (each
-    // around the fit at `hi`, not around the point before: the same score
-    // up to rounding).
+    // With many studies the scan points not fitted above (those of a
+    // bracket closed further out, or near 0) are fitted in one pass (each
+    // around the fit made last, not around the point before: the same
+    // score up to rounding).
     if ev.data().k() >= FEWER_PASSES_MIN_ROWS {
         ev.fit_many(&points, Want::SCORE);
     }
@@ -382,7 +419,7 @@ fn maximise_likelihood(ev: &Evaluator<'_>, method: Tau2Method, hint: f64) -> Res
                 // Started at the secant point of the bracket's ends.
                 let t = t1 + (t2 - t1) * s1 / (s1 - s2);
                 let t = if t > t1 && t < t2 { t } else { 0.5 * (t1 + t2) };
-                newton_root_in(t1, t2, t, newton(t)?, hint, newton, what)?
+                settled(newton_root_in(t1, t2, t, newton(t)?, hint, newton, what)?)
             };
             candidates.push((root, ll(root)));
         }
