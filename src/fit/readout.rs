@@ -317,8 +317,9 @@ fn level_fit(
     if y.len() < 2 {
         return None;
     }
+    // Its summary numbers only: no per-study arrays, no copy of the ones.
     let ones = vec![1.0; y.len()];
-    model::fit_parts(y, v, &ones, 1, options, false)
+    model::fit_summary(y, v, std::borrow::Cow::Borrowed(&ones), 1, options, false)
         .ok()
         .filter(|f| f.kh_scale != Some(0.0))
         .map(|f| (inference::predict(&f, &[1.0]), f.tau2.estimate))
