@@ -434,13 +434,9 @@ fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &Rows) -> Result<Mo
     let xs = v.of_rows(included);
     // The sum, smallest and largest value in one sweep (each the same
     // running value in row order as a sweep of its own), then the squares.
-    let (mut sum, mut min, mut max) = (-0.0, f64::INFINITY, f64::NEG_INFINITY);
-    for &x in xs.iter() {
-        sum += x;
-        min = min.min(x);
-        max = max.max(x);
-    }
-    let mean = sum / k as f64;
+    let sweep = super::ColumnSweep::of(&xs, k, 1);
+    let (min, max) = (sweep.lo[0], sweep.hi[0]);
+    let mean = sweep.sum[0] / k as f64;
     let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
     if min == max {
         return Err(Error::Model(format!(

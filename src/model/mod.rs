@@ -205,53 +205,73 @@ fn record_scaling(
     *log_det_a -= sd.ln();
 }
 
+/// What one sweep over the first k rows of a row-major matrix of p columns
+/// gives: each column's running sum (in row order, from −0.0, as
+/// `Iterator::sum`), smallest and largest value (NaN passed over), and
+/// whether column 0 is all ones.
+pub(crate) struct ColumnSweep {
+    pub(crate) sum: Vec<f64>,
+    pub(crate) lo: Vec<f64>,
+    pub(crate) hi: Vec<f64>,
+    pub(crate) ones: bool,
+}
+
+impl ColumnSweep {
+    pub(crate) fn of(x: &[f64], k: usize, p: usize) -> Self {
+        let mut out = ColumnSweep {
+            sum: vec![-0.0; p],
+            lo: vec![f64::INFINITY; p],
+            hi: vec![f64::NEG_INFINITY; p],
+            ones: p > 0,
+        };
+        for r in x.chunks_exact(p.max(1)).take(k) {
+            out.ones &= r[0] == 1.0;
+            for (j, &v) in r.iter().enumerate() {
+                out.sum[j] += v;
+                out.lo[j] = out.lo[j].min(v);
+                out.hi[j] = out.hi[j].max(v);
+            }
+        }
+        out
+    }
+
+    /// Column j's largest |x − m|, NaN values passed over (0 for a
+    /// column of NaN alone): max(|max x − m|, |min x − m|) exactly, since
+    /// the rounded difference fl(x − m) does not decrease as x grows, so
+    /// its magnitude is largest at one of the ends.
+    pub(crate) fn largest_deviation(&self, j: usize, m: f64) -> f64 {
+        if self.lo[j] > self.hi[j] {
+            0.0
+        } else {
+            0.0f64
+                .max((self.hi[j] - m).abs())
+                .max((self.lo[j] - m).abs())
+        }
+    }
+}
+
 /// [`standardise_in_place`] reading the design row by row: three sweeps
-/// over the rows in all (whether column 0 is all ones with each column's
-/// running sum, smallest and largest value; the sums of squares, each
+/// over the rows in all (a [`ColumnSweep`]; the sums of squares, each
 /// keeping one running value per column in row order; then the scaling, on
-/// every core), the same bits as column by column. The largest deviation
-/// max_i |x_ij − m| is max(|max_i x_ij − m|, |min_i x_ij − m|) exactly: the
-/// rounded difference fl(x − m) does not decrease as x grows, so its
-/// magnitude is largest at one of the ends (NaN values are passed over by
-/// both, as by the running maximum).
+/// every core), the same bits as column by column.
 fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
     use rayon::prelude::*;
     let rows = || x.chunks_exact(p.max(1)).take(k);
-    let mut ones = p > 0;
-    let mut sum = vec![-0.0; p];
-    let mut lo = vec![f64::INFINITY; p];
-    let mut hi = vec![f64::NEG_INFINITY; p];
-    for r in rows() {
-        ones &= r[0] == 1.0;
-        for (j, &v) in r.iter().enumerate() {
-            sum[j] += v;
-            lo[j] = lo[j].min(v);
-            hi[j] = hi[j].max(v);
-        }
-    }
+    let sweep = ColumnSweep::of(x, k, p);
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.
-    let has_intercept = ones;
+    let has_intercept = sweep.ones;
     let first = usize::from(has_intercept);
     let mean: Vec<f64> = if has_intercept {
-        sum.iter().map(|s| s / k as f64).collect()
+        sweep.sum.iter().map(|s| s / k as f64).collect()
     } else {
         vec![0.0; p]
     };
     // The SD through the largest deviation, so the squares neither
-    // underflow (values near 1e-300) nor overflow (near 1e300); a column
-    // of NaN alone has none.
+    // underflow (values near 1e-300) nor overflow (near 1e300).
     let big: Vec<f64> = (0..p)
-        .map(|j| {
-            if lo[j] > hi[j] {
-                0.0
-            } else {
-                0.0f64
-                    .max((hi[j] - mean[j]).abs())
-                    .max((lo[j] - mean[j]).abs())
-            }
-        })
+        .map(|j| sweep.largest_deviation(j, mean[j]))
         .collect();
     let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
     let mut ss = vec![-0.0; p];

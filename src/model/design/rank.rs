@@ -5,6 +5,7 @@
 use super::Term;
 use crate::error::{Error, Result};
 use crate::model::wls::{CHUNK_ROWS, PARALLEL_MIN_ROWS};
+use crate::model::ColumnSweep;
 use crate::tolerance;
 
 /// Rows gathered below the triangle before each Householder step.
@@ -136,23 +137,12 @@ impl Triangle {
 
 /// Each column's shift (its mean, for every column but the first, when
 /// finite; else 0) and scale (the largest |x − shift| when positive and
-/// finite; else 1), in one sweep over the rows: the largest |x − shift| is
-/// that at the column's largest or smallest value (see
-/// [`crate::model`]'s `by_rows`, which argues the same).
+/// finite; else 1), from one sweep over the rows ([`ColumnSweep`]).
 fn shifts_and_scales(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
-    let mut sum = vec![0.0; p];
-    let mut lo = vec![f64::INFINITY; p];
-    let mut hi = vec![f64::NEG_INFINITY; p];
-    for row in x.chunks_exact(p).take(k) {
-        for (j, &v) in row.iter().enumerate() {
-            sum[j] += v;
-            lo[j] = lo[j].min(v);
-            hi[j] = hi[j].max(v);
-        }
-    }
+    let sweep = ColumnSweep::of(x, k, p);
     let shift: Vec<f64> = (0..p)
         .map(|j| {
-            let mean = sum[j] / k as f64;
+            let mean = sweep.sum[j] / k as f64;
             if j > 0 && mean.is_finite() {
                 mean
             } else {
@@ -162,13 +152,7 @@ fn shifts_and_scales(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
         .collect();
     let scale = (0..p)
         .map(|j| {
-            let b = if lo[j] > hi[j] {
-                0.0
-            } else {
-                0.0f64
-                    .max((hi[j] - shift[j]).abs())
-                    .max((lo[j] - shift[j]).abs())
-            };
+            let b = sweep.largest_deviation(j, shift[j]);
             if b > 0.0 && b.is_finite() {
                 b
             } else {
