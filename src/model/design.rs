@@ -483,7 +483,7 @@ fn categorical_kind(
     }
     // Levels are the labels as written (`1` and `01` are two levels), each
     // once: counted in one pass over the rows' codes, then sorted.
-    let tally: std::collections::HashMap<&str, usize> = v.tally(included).into_iter().collect();
+    let mut tally = v.tally(included);
     if tally.len() > MAX_LEVELS {
         return Err(Error::Model(format!(
             "moderator '{}' has {} levels among the included studies; pondus codes at most \
@@ -495,8 +495,8 @@ fn categorical_kind(
             Flag::Cluster
         )));
     }
-    let mut levels: Vec<String> = tally.keys().map(|l| l.to_string()).collect();
-    sort_levels(&mut levels);
+    sort_levels(&mut tally, |&(l, _)| l);
+    let levels: Vec<String> = tally.iter().map(|(l, _)| l.to_string()).collect();
     if levels.len() < 2 {
         return Err(Error::Model(format!(
             "moderator '{}' has only one level ('{}') among the included studies, so its \
@@ -505,7 +505,7 @@ fn categorical_kind(
             levels.first().cloned().unwrap_or_default()
         )));
     }
-    let counts = levels.iter().map(|l| tally[l.as_str()]).collect();
+    let counts = tally.iter().map(|&(_, n)| n).collect();
     let reference = match &spec.reference {
         Some(r) if levels.contains(r) => r.clone(),
         Some(r) => {
@@ -547,11 +547,13 @@ fn level_codes(raw: &[RawModerator], moderators: &[Moderator]) -> Vec<Option<Vec
         .collect()
 }
 
-/// Sorts levels: numerically when every level is a number, else by text.
-fn sort_levels(levels: &mut [String]) {
-    let all_numbers = levels.iter().all(|l| l.parse::<f64>().is_ok());
+/// Sorts levels, each named by `label`: numerically when every level is a
+/// number, else by text.
+fn sort_levels<T>(levels: &mut [T], label: impl Fn(&T) -> &str) {
+    let all_numbers = levels.iter().all(|l| label(l).parse::<f64>().is_ok());
     if all_numbers {
         levels.sort_by(|a, b| {
+            let (a, b) = (label(a), label(b));
             let (x, y) = (
                 a.parse::<f64>().unwrap_or(0.0),
                 b.parse::<f64>().unwrap_or(0.0),
@@ -560,7 +562,7 @@ fn sort_levels(levels: &mut [String]) {
             x.total_cmp(&y).then_with(|| a.cmp(b))
         });
     } else {
-        levels.sort();
+        levels.sort_by(|a, b| label(a).cmp(label(b)));
     }
 }
 
