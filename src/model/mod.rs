@@ -27,6 +27,7 @@ pub mod location_scale;
 pub mod multilevel;
 pub mod near;
 pub mod probe;
+mod scaling;
 pub mod selection;
 pub mod shrink;
 pub mod solve;
@@ -41,6 +42,7 @@ use tau2::{Tau2Fit, Tau2Method};
 use wls::{Data, Want};
 
 pub use crate::result::Inference;
+pub(crate) use scaling::{standardise, standardise_in_place, ColumnSweep};
 
 /// Options of one fit.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -104,199 +106,6 @@ pub struct ModelFit {
     pub log_likelihood: Option<f64>,
     /// The options used.
     pub options: FitOptions,
-}
-
-/// Internal standardisation of the design: X̃ = XA with every non-intercept
-/// column centred (when column 0 is the intercept) and scaled to unit SD, so the normal equations stay well
-/// conditioned (for example with a calendar year beside the intercept).
-/// The fit is invariant to this: β = Aβ̃, Cov(β) = A Cov(β̃) A'.
-pub(crate) struct Standardised {
-    pub(crate) x: Vec<f64>,
-    pub(crate) a: DMatrix<f64>,
-    pub(crate) log_det_a: f64,
-}
-
-pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
-    let mut xs = x.to_vec();
-    let (a, log_det_a) = standardise_in_place(&mut xs, k, p);
-    Standardised {
-        x: xs,
-        a,
-        log_det_a,
-    }
-}
-
-/// [`standardise`] writing X̃ over X (no second k × p matrix): returns A and
-/// ln|det A|. Each column's mean, largest deviation and sum of squares are
-/// read before any value is overwritten, and no column reads another, so
-/// the values are the same bits as those of a copy. Column by column below
-/// [`wls::PARALLEL_MIN_ROWS`] studies; above, row by row ([`by_rows`], the
-/// same bits, tested), which reads the design four times instead of four
-/// times per column.
-pub(crate) fn standardise_in_place(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
-    if k >= wls::PARALLEL_MIN_ROWS {
-        by_rows(x, k, p)
-    } else {
-        by_columns(x, k, p)
-    }
-}
-
-/// [`standardise_in_place`] column by column: each column read three
-/// times and written once.
-fn by_columns(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
-    // Centring needs a column of ones to move the means into; without one
-    // (a design without intercept, possible through the library) columns
-    // are only scaled.
-    let has_intercept = p > 0 && (0..k).all(|i| x[i * p] == 1.0);
-    let first = usize::from(has_intercept);
-    let mut a = DMatrix::identity(p, p);
-    let mut log_det_a = 0.0;
-    for j in first..p {
-        let mean = if has_intercept {
-            (0..k).map(|i| x[i * p + j]).sum::<f64>() / k as f64
-        } else {
-            0.0
-        };
-        // The SD through the largest deviation, so the squares neither
-        // underflow (values near 1e-300) nor overflow (near 1e300).
-        let big = (0..k).fold(0.0f64, |m, i| m.max((x[i * p + j] - mean).abs()));
-        let sd = column_sd(big, k, || {
-            (0..k)
-                .map(|i| ((x[i * p + j] - mean) / big).powi(2))
-                .sum::<f64>()
-        });
-        for i in 0..k {
-            x[i * p + j] = (x[i * p + j] - mean) / sd;
-        }
-        record_scaling((&mut a, &mut log_det_a), j, (mean, sd), has_intercept);
-    }
-    (a, log_det_a)
-}
-
-/// The SD a column is scaled by, from its largest deviation from the mean
-/// `big` and `ss()`, the sum of the squared deviations divided by `big`
-/// (not called when `big` is 0 or not finite): big·√(ss/k), or 1 when that
-/// is not a positive finite number (a constant column is left unscaled).
-fn column_sd(big: f64, k: usize, ss: impl FnOnce() -> f64) -> f64 {
-    let sd = if big > 0.0 && big.is_finite() {
-        big * (ss() / k as f64).sqrt()
-    } else {
-        0.0
-    };
-    if sd > 0.0 && sd.is_finite() {
-        sd
-    } else {
-        1.0
-    }
-}
-
-/// Column j's entries of A (x̃_j = (x_j − mean)/sd, so A_jj = 1/sd and,
-/// with an intercept, A_0j = −mean/sd) and its term −ln sd of ln|det A|.
-fn record_scaling(
-    (a, log_det_a): (&mut DMatrix<f64>, &mut f64),
-    j: usize,
-    (mean, sd): (f64, f64),
-    has_intercept: bool,
-) {
-    a[(j, j)] = 1.0 / sd;
-    if has_intercept {
-        a[(0, j)] = -mean / sd;
-    }
-    *log_det_a -= sd.ln();
-}
-
-/// What one sweep over the first k rows of a row-major matrix of p columns
-/// gives: each column's running sum (in row order, from −0.0, as
-/// `Iterator::sum`), smallest and largest value (NaN passed over), and
-/// whether column 0 is all ones.
-pub(crate) struct ColumnSweep {
-    pub(crate) sum: Vec<f64>,
-    pub(crate) lo: Vec<f64>,
-    pub(crate) hi: Vec<f64>,
-    pub(crate) ones: bool,
-}
-
-impl ColumnSweep {
-    pub(crate) fn of(x: &[f64], k: usize, p: usize) -> Self {
-        let mut out = ColumnSweep {
-            sum: vec![-0.0; p],
-            lo: vec![f64::INFINITY; p],
-            hi: vec![f64::NEG_INFINITY; p],
-            ones: p > 0,
-        };
-        for r in x.chunks_exact(p.max(1)).take(k) {
-            out.ones &= r[0] == 1.0;
-            for (j, &v) in r.iter().enumerate() {
-                out.sum[j] += v;
-                out.lo[j] = out.lo[j].min(v);
-                out.hi[j] = out.hi[j].max(v);
-            }
-        }
-        out
-    }
-
-    /// Column j's largest |x − m|, NaN values passed over (0 for a
-    /// column of NaN alone): max(|max x − m|, |min x − m|) exactly, since
-    /// the rounded difference fl(x − m) does not decrease as x grows, so
-    /// its magnitude is largest at one of the ends.
-    pub(crate) fn largest_deviation(&self, j: usize, m: f64) -> f64 {
-        if self.lo[j] > self.hi[j] {
-            0.0
-        } else {
-            0.0f64
-                .max((self.hi[j] - m).abs())
-                .max((self.lo[j] - m).abs())
-        }
-    }
-}
-
-/// [`standardise_in_place`] reading the design row by row: three sweeps
-/// over the rows in all (a [`ColumnSweep`]; the sums of squares, each
-/// keeping one running value per column in row order; then the scaling, on
-/// every core), the same bits as column by column.
-fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
-    use rayon::prelude::*;
-    let rows = || x.chunks_exact(p.max(1)).take(k);
-    let sweep = ColumnSweep::of(x, k, p);
-    // Centring needs a column of ones to move the means into; without one
-    // (a design without intercept, possible through the library) columns
-    // are only scaled.
-    let has_intercept = sweep.ones;
-    let first = usize::from(has_intercept);
-    let mean: Vec<f64> = if has_intercept {
-        sweep.sum.iter().map(|s| s / k as f64).collect()
-    } else {
-        vec![0.0; p]
-    };
-    // The SD through the largest deviation, so the squares neither
-    // underflow (values near 1e-300) nor overflow (near 1e300).
-    let big: Vec<f64> = (0..p)
-        .map(|j| sweep.largest_deviation(j, mean[j]))
-        .collect();
-    let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
-    let mut ss = vec![-0.0; p];
-    for r in rows() {
-        for (j, (s, v)) in ss.iter_mut().zip(r).enumerate().skip(first) {
-            if scalable[j] {
-                *s += ((v - mean[j]) / big[j]).powi(2);
-            }
-        }
-    }
-    let sd: Vec<f64> = (0..p).map(|j| column_sd(big[j], k, || ss[j])).collect();
-    let scale_row = |r: &mut [f64]| {
-        for j in first..p {
-            r[j] = (r[j] - mean[j]) / sd[j];
-        }
-    };
-    if p > 0 && first < p {
-        x[..k * p].par_chunks_exact_mut(p).for_each(scale_row);
-    }
-    let mut a = DMatrix::identity(p, p);
-    let mut log_det_a = 0.0;
-    for j in first..p {
-        record_scaling((&mut a, &mut log_det_a), j, (mean[j], sd[j]), has_intercept);
-    }
-    (a, log_det_a)
 }
 
 /// The Knapp–Hartung factor applied under `inference`: s² under `kh`,
@@ -643,51 +452,6 @@ mod tests {
                     assert!(s.weights.is_empty() && s.fitted.is_empty() && s.std_resid.is_empty());
                 }
                 assert_eq!(full.weights.len(), 8);
-            }
-        }
-    }
-
-    #[test]
-    fn standardising_row_by_row_equals_the_column_by_column_values_bit_for_bit() {
-        // Invented columns: a calendar year, a wide-ranging one, a constant,
-        // tiny values, one whose largest deviation is below its mean, NaN in
-        // some rows, one infinity, NaN in every row; with and without an
-        // intercept; k small and past the parallel threshold.
-        for k in [7usize, wls::PARALLEL_MIN_ROWS + 101] {
-            for intercept in [true, false] {
-                let p = 9;
-                let x: Vec<f64> = (0..k)
-                    .flat_map(|i| {
-                        let u = ((i * 7919) % 1013) as f64 / 1013.0;
-                        let first = if intercept { 1.0 } else { u - 0.5 };
-                        let some_nan = if i % 5 == 3 { f64::NAN } else { u };
-                        let one_inf = if i == k / 2 { f64::INFINITY } else { u };
-                        [
-                            first,
-                            1990.0 + (i % 31) as f64,
-                            1e6 * u * u,
-                            3.0,
-                            1e-300 * u,
-                            // The largest deviation below the mean.
-                            -1e3 * u * u * u,
-                            some_nan,
-                            one_inf,
-                            f64::NAN,
-                        ]
-                    })
-                    .collect();
-                let (mut rows, mut cols) = (x.clone(), x.clone());
-                let (a, log_det_a) = by_rows(&mut rows, k, p);
-                let (a_ref, log_det_ref) = by_columns(&mut cols, k, p);
-                assert!(rows
-                    .iter()
-                    .zip(&cols)
-                    .all(|(r, c)| r.to_bits() == c.to_bits()));
-                assert_eq!(log_det_a.to_bits(), log_det_ref.to_bits());
-                assert!(a
-                    .iter()
-                    .zip(a_ref.iter())
-                    .all(|(r, c)| r.to_bits() == c.to_bits()));
             }
         }
     }
