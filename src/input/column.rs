@@ -127,7 +127,7 @@ impl Column {
     /// [`Cell::Invalid`]); None, the column untouched, otherwise.
     pub fn take_numbers(&mut self) -> Option<Vec<f64>> {
         match &mut self.cells {
-            Cells::Numbers(n) if n.kept.iter().all(|t| read_number(t) != Cell::Invalid) => {
+            Cells::Numbers(n) if n.invalid == 0 => {
                 let values = std::mem::take(&mut n.values);
                 n.clear();
                 Some(values)
@@ -167,6 +167,10 @@ pub(crate) struct NumberCells {
     kept_rows: Vec<usize>,
     /// Their texts, in the same order.
     kept: Texts,
+    /// How many of them [`read_number`] reads as [`Cell::Invalid`]
+    /// (counted as they are pushed, so that [`Column::take_numbers`] need
+    /// not read the kept texts again).
+    invalid: usize,
 }
 
 impl NumberCells {
@@ -184,7 +188,11 @@ impl NumberCells {
                     Some(x) => x,
                     None => match read_number(cell) {
                         Cell::Value(x) => x,
-                        Cell::Missing | Cell::Invalid => f64::NAN,
+                        Cell::Missing => f64::NAN,
+                        Cell::Invalid => {
+                            self.invalid += 1;
+                            f64::NAN
+                        }
                     },
                 };
                 self.kept_rows.push(self.values.len());
@@ -242,6 +250,7 @@ impl NumberCells {
         self.kept_rows
             .extend(other.kept_rows.iter().map(|r| r + shift));
         self.kept.append(&other.kept);
+        self.invalid += other.invalid;
     }
 
     /// Empties the column, keeping its room.
@@ -249,6 +258,7 @@ impl NumberCells {
         self.values.clear();
         self.kept_rows.clear();
         self.kept.clear();
+        self.invalid = 0;
     }
 }
 
@@ -348,6 +358,21 @@ mod tests {
             assert_eq!(c.number(row), read_number(t), "number of {t:?}");
             assert_eq!(c.kept_text(row).is_some(), *kept, "{t:?} kept");
         }
+        // The invalid cells are counted as pushed (and when appended), as
+        // reading every kept text again counts them.
+        let invalid = |c: &NumberCells| {
+            c.kept
+                .iter()
+                .filter(|t| read_number(t) == Cell::Invalid)
+                .count()
+        };
+        assert!(c.invalid > 0);
+        assert_eq!(c.invalid, invalid(&c));
+        let mut twice = c.clone();
+        twice.append(&c);
+        assert_eq!(twice.invalid, 2 * invalid(&c));
+        twice.clear();
+        assert_eq!(twice.invalid, 0);
     }
 
     #[test]
