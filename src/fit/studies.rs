@@ -154,13 +154,18 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         pick_f64(effects.v, &included),
     );
     check_range(source, &y, &v, &included, (&table.lines, &places))?;
+    let every_row = included.len() == effects.from.len();
     let labels = labels(&mut table, &included);
     release(&mut table, 0..1);
     Ok(Studies {
         y,
         v,
         notes: by_study(effects.notes, &included),
-        routes: included.iter().map(|&i| effects.from[i]).collect(),
+        routes: if every_row {
+            effects.from
+        } else {
+            included.iter().map(|&i| effects.from[i]).collect()
+        },
         checks: by_study(effects.checks, &included),
         labels,
         lines: Lines::of_rows(&table.lines, &included),
@@ -334,6 +339,10 @@ fn cells(table: &Table, j: usize, trim: bool, included: &[usize]) -> (String, Ve
 /// The entries of the included rows, moved to the front of a per-row list
 /// (`included` ascends, so each entry moves down or stays).
 fn pick_f64(mut all: Vec<f64>, included: &[usize]) -> Vec<f64> {
+    if included.len() == all.len() {
+        // Every row, in order (the rows ascend, each at most once).
+        return all;
+    }
     for (to, &from) in included.iter().enumerate() {
         all[to] = all[from];
     }
@@ -361,7 +370,12 @@ fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, 
 /// profile); otherwise the labels are copied into a list of their exact size.
 fn labels(table: &mut Table, included: &[usize]) -> Texts {
     let every_row = included.len() == table.lines.len();
-    let labelled = |c: &Column| (0..included.len()).all(|i| !c.text(i).is_empty());
+    let labelled = |c: &Column| {
+        use rayon::prelude::*;
+        (0..included.len())
+            .into_par_iter()
+            .all(|i| !c.text(i).is_empty())
+    };
     if let Some(slot) = table.columns.first_mut().filter(|_| every_row) {
         if slot.as_ref().is_some_and(labelled) {
             let mut cells = slot.take().map(Column::into_cells).unwrap_or_default();
@@ -401,6 +415,10 @@ fn include(
     (raw, spread_raw): (&[RawModerator], &[RawModerator]),
     table: &Table,
 ) -> (Vec<usize>, Vec<Excluded>) {
+    // The usual case, every row complete, without a look at each row.
+    if effects.excluded.is_empty() && raw.iter().chain(spread_raw).all(RawModerator::all_present) {
+        return ((0..effects.len()).collect(), Vec::new());
+    }
     let mut included = Vec::with_capacity(effects.len() - effects.excluded.len());
     let mut excluded = Vec::new();
     for i in 0..effects.len() {

@@ -48,6 +48,15 @@ impl RawModerator {
             RawModerator::Text(v) => v.get(i).is_some(),
         }
     }
+
+    /// Whether every row has a value ([`RawModerator::present`] for each
+    /// row, in one scan that needs no branch per row).
+    pub fn all_present(&self) -> bool {
+        match self {
+            RawModerator::Numeric(v) => v.0.iter().fold(true, |all, x| all & !x.is_nan()),
+            RawModerator::Text(v) => v.all_present(),
+        }
+    }
 }
 
 /// Reads a moderator's cells and decides its type.

@@ -21,7 +21,10 @@ impl Rows {
     /// The rows `list` (ascending, each at most once) of a table of `total`
     /// rows: [`Rows::Every`] when they are all of them.
     pub fn new(list: Vec<usize>, total: usize) -> Rows {
-        if list.len() == total && list.iter().enumerate().all(|(n, &i)| n == i) {
+        // Rows that ascend, each at most once, below `total` are all of
+        // them when there are `total` of them.
+        debug_assert!(list.windows(2).all(|w| w[0] < w[1]));
+        if list.len() == total && list.last().is_none_or(|&i| i + 1 == total) {
             Rows::Every(total)
         } else {
             Rows::Listed(list)

@@ -76,6 +76,11 @@ pub struct Categories {
 const MISSING: u32 = u32::MAX;
 
 impl Categories {
+    /// Whether no row's label is missing.
+    pub fn all_present(&self) -> bool {
+        self.codes.iter().fold(true, |all, &c| all & (c != MISSING))
+    }
+
     /// The label of row `i` (None when missing).
     pub fn get(&self, i: usize) -> Option<&str> {
         match self.codes[i] {
