@@ -21,6 +21,7 @@ use crate::result::{
     ToolInfo,
 };
 use crate::support::flag::Flag;
+use std::borrow::Cow;
 
 /// The outputs of the stages, as the report takes them.
 #[derive(Debug)]
@@ -73,7 +74,7 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         source,
         sha256,
         detail,
-        studies,
+        mut studies,
         terms,
         moderators,
         interactions,
@@ -103,11 +104,18 @@ pub fn assemble(parts: Parts<'_>) -> Result<FitReport> {
         sha256,
     };
     let k = studies.y.len();
-    let effects_obtained = crate::result::count_routes(&studies.routes, &studies.labels);
     // Without per-study records only the excluded rows are kept; with
     // shrunken estimates the records are built anyway, as their numbers
-    // are checked below.
-    let (records, excluded) = if detail == super::Detail::Summary && answers.shrunken.is_none() {
+    // are checked below. Without records the labels move into the count
+    // of routes.
+    let summary_only = detail == super::Detail::Summary && answers.shrunken.is_none();
+    let labels = if summary_only {
+        Cow::Owned(std::mem::take(&mut studies.labels))
+    } else {
+        Cow::Borrowed(&studies.labels)
+    };
+    let effects_obtained = crate::result::count_routes(&studies.routes, labels);
+    let (records, excluded) = if summary_only {
         (StudyList::new(), studies.excluded)
     } else {
         records(studies, fit, settings.options.level, answers.shrunken)

@@ -4,6 +4,7 @@
 use crate::effect::route::{Derivation, Route};
 use crate::support::texts::Texts;
 use serde::Serialize;
+use std::borrow::Cow;
 
 /// The studies whose effects came from one route.
 #[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
@@ -22,33 +23,48 @@ pub struct RouteCount {
 /// Counts the routes of the included studies, in the order of [`Route::ALL`]
 /// (`labels[i]` is the label of the study with `routes[i]`). The routes are
 /// counted in one pass; when every study took one route (the usual case)
-/// its labels are the list given, copied whole, else each route's labels
-/// are gathered in a pass of their own.
-pub fn count_routes(routes: &[Route], labels: &Texts) -> Vec<RouteCount> {
+/// its labels are the list given (moved when given owned, else copied
+/// whole), else each route's labels are gathered in a pass of their own.
+pub fn count_routes(routes: &[Route], labels: Cow<'_, Texts>) -> Vec<RouteCount> {
     let mut counts = [0usize; Route::ALL.len()];
-    for r in routes {
-        if let Some(j) = Route::ALL.iter().position(|x| x == r) {
-            counts[j] += 1;
+    // Runs of one route (the usual case is a single run) are counted
+    // without looking the route up again.
+    let mut last: Option<(Route, usize)> = None;
+    for &r in routes {
+        match last {
+            Some((l, j)) if l == r => counts[j] += 1,
+            _ => {
+                if let Some(j) = Route::ALL.iter().position(|&x| x == r) {
+                    counts[j] += 1;
+                    last = Some((r, j));
+                }
+            }
         }
     }
-    Route::ALL
+    let used: Vec<(Route, usize)> = Route::ALL
         .iter()
         .zip(counts)
         .filter(|&(_, n)| n > 0)
-        .map(|(&r, n)| RouteCount {
-            computed_from: r,
-            derivation: r.derivation(),
-            studies: n,
-            labels: if n == routes.len() {
-                labels.clone()
-            } else {
-                routes
-                    .iter()
-                    .zip(labels.iter())
-                    .filter(|(x, _)| **x == r)
-                    .map(|(_, l)| l)
-                    .collect()
-            },
+        .map(|(&r, n)| (r, n))
+        .collect();
+    let count = |r: Route, n: usize, labels: Texts| RouteCount {
+        computed_from: r,
+        derivation: r.derivation(),
+        studies: n,
+        labels,
+    };
+    if let [(r, n)] = used[..] {
+        return vec![count(r, n, labels.into_owned())];
+    }
+    used.into_iter()
+        .map(|(r, n)| {
+            let picked = routes
+                .iter()
+                .zip(labels.iter())
+                .filter(|(x, _)| **x == r)
+                .map(|(_, l)| l)
+                .collect();
+            count(r, n, picked)
         })
         .collect()
 }
@@ -62,7 +78,7 @@ mod tests {
         let labels: Texts = ["s1", "s2", "s3", "s4"].into_iter().collect();
         let mixed = count_routes(
             &[Route::Counts, Route::Means, Route::Counts, Route::Means],
-            &labels,
+            Cow::Borrowed(&labels),
         );
         let got: Vec<(Route, usize, Vec<String>)> = mixed
             .iter()
@@ -75,9 +91,31 @@ mod tests {
                 (Route::Counts, 2, vec!["s1".to_string(), "s3".to_string()]),
             ]
         );
-        let one = count_routes(&[Route::Counts; 4], &labels);
+        let one = count_routes(&[Route::Counts; 4], Cow::Borrowed(&labels));
         assert_eq!(one.len(), 1);
         assert_eq!((one[0].studies, &one[0].labels), (4, &labels));
-        assert!(count_routes(&[], &Texts::default()).is_empty());
+        let moved = count_routes(&[Route::Counts; 4], Cow::Owned(labels.clone()));
+        assert_eq!((moved[0].studies, &moved[0].labels), (4, &labels));
+        // Runs of routes, owned labels.
+        let runs = count_routes(
+            &[Route::T, Route::T, Route::Means, Route::T],
+            Cow::Owned(labels.clone()),
+        );
+        let got: Vec<(Route, usize, Vec<String>)> = runs
+            .iter()
+            .map(|c| (c.computed_from, c.studies, c.labels.to_vec()))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                (Route::Means, 1, vec!["s3".to_string()]),
+                (
+                    Route::T,
+                    3,
+                    vec!["s1".to_string(), "s2".to_string(), "s4".to_string()]
+                ),
+            ]
+        );
+        assert!(count_routes(&[], Cow::Owned(Texts::default())).is_empty());
     }
 }
