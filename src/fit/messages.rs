@@ -477,49 +477,56 @@ fn fnv1a(text: &str) -> u64 {
 /// The hashes that occur more than once in `hashes` (a hash occurring n
 /// times is listed n − 1 times), ascending.
 ///
-/// The hashes are put in 2¹¹ buckets by their top 11 bits (one counting
-/// sweep, one sweep placing each hash in its bucket: the first step of a
-/// most-significant-digit radix sort, Knuth, TAOCP vol. 3, §5.2.5), then
-/// each bucket (about 500 hashes at a million studies, in the core's
+/// The hashes are put in 2¹¹ buckets by their top 11 bits (a counting
+/// sweep and a sweep placing each hash in its bucket: the first step of a
+/// most-significant-digit radix sort, Knuth, TAOCP vol. 3, §5.2.5), in
+/// fixed runs of rows on every core; then each bucket (its part of every
+/// run, in run order: about 500 hashes at a million studies, in the core's
 /// cache) is sorted on its own on every core. The buckets in order are the
 /// whole list sorted, so the answer does not depend on the thread count.
 fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
     use rayon::prelude::*;
     const BITS: u32 = 11;
+    const RUN: usize = 1 << 16;
     let bucket = |h: u64| (h >> (64 - BITS)) as usize;
-    let mut starts = vec![0usize; (1 << BITS) + 1];
-    for &h in &hashes {
-        starts[bucket(h) + 1] += 1;
-    }
-    for b in 1..starts.len() {
-        starts[b] += starts[b - 1];
-    }
-    let mut placed = vec![0u64; hashes.len()];
-    let mut next = starts.clone();
-    for &h in &hashes {
-        let b = bucket(h);
-        placed[next[b]] = h;
-        next[b] += 1;
-    }
+    // Each run's hashes placed by bucket, and where each bucket starts.
+    let runs: Vec<(Vec<u64>, Vec<usize>)> = hashes
+        .par_chunks(RUN)
+        .map(|run| {
+            let mut starts = vec![0usize; (1 << BITS) + 1];
+            for &h in run {
+                starts[bucket(h) + 1] += 1;
+            }
+            for b in 1..starts.len() {
+                starts[b] += starts[b - 1];
+            }
+            let mut placed = vec![0u64; run.len()];
+            let mut next = starts.clone();
+            for &h in run {
+                let b = bucket(h);
+                placed[next[b]] = h;
+                next[b] += 1;
+            }
+            (placed, starts)
+        })
+        .collect();
     drop(hashes);
-    let mut buckets = Vec::with_capacity(1 << BITS);
-    let mut rest = placed.as_mut_slice();
-    for w in starts.windows(2) {
-        let (head, tail) = rest.split_at_mut(w[1] - w[0]);
-        buckets.push(head);
-        rest = tail;
-    }
-    let runs: Vec<Vec<u64>> = buckets
+    let repeated: Vec<Vec<u64>> = (0..1usize << BITS)
         .into_par_iter()
         .map(|b| {
-            b.sort_unstable();
-            b.windows(2)
+            let mut all: Vec<u64> = runs
+                .iter()
+                .flat_map(|(placed, starts)| &placed[starts[b]..starts[b + 1]])
+                .copied()
+                .collect();
+            all.sort_unstable();
+            all.windows(2)
                 .filter(|w| w[0] == w[1])
                 .map(|w| w[0])
                 .collect()
         })
         .collect();
-    runs.concat()
+    repeated.concat()
 }
 
 /// The warning about labels used by more than one study (none when every label is distinct).
@@ -612,7 +619,7 @@ mod tests {
         assert!(duplicate_label_warnings(&distinct).is_empty());
         // The buckets give what one sort gives, hashes of every size.
         let mut rng = crate::support::rng::SplitMix64::new(7);
-        let mut hashes: Vec<u64> = (0..50_000).map(|_| rng.next_u64()).collect();
+        let mut hashes: Vec<u64> = (0..150_000).map(|_| rng.next_u64()).collect();
         for i in 0..3_000 {
             let h = hashes[i * 7];
             hashes.push(h);
