@@ -117,7 +117,9 @@ pub fn estimate(
     let mut working_fit = || match (keep, &clusters) {
         (Keep::Summary, None) => {
             let x = Cow::Owned(std::mem::take(&mut design.x));
-            model::fit_summary(y, v, x, p, options, true).map(|f| (f, None))
+            // The rank check's sweep over these rows, not made again.
+            let sweep = design.sweep.take();
+            model::fit_summary_swept(y, v, x, p, options, true, sweep).map(|f| (f, None))
         }
         _ => fit_working(y, v, &design.x, p, clusters.as_ref(), levels, options),
     };

@@ -184,6 +184,10 @@ pub struct Design {
     pub moderators: Vec<Moderator>,
     /// Interactions as moderator-index pairs.
     pub interactions: Vec<(usize, usize)>,
+    /// The sweep over the rows of `x` as built (each column's sum, ends
+    /// and whether column 0 is all ones), made by the rank check and read
+    /// again by the standardisation of the fit; None once taken.
+    pub(crate) sweep: Option<super::ColumnSweep>,
 }
 
 /// One study's value of one moderator, ready for coding: a number on the
@@ -423,8 +427,9 @@ pub fn build(
             coder.encode(value, row);
         }
     });
-    rank::check_rank(&x, k, p, &terms)?;
+    let sweep = rank::check_rank(&x, k, p, &terms)?;
     Ok(Design {
+        sweep: Some(sweep),
         x,
         p,
         terms,

@@ -33,6 +33,7 @@ pub mod shrink;
 pub mod solve;
 pub mod subsets;
 pub mod tau2;
+mod unit_weights;
 pub mod wls;
 
 use crate::error::{Error, Result};
@@ -42,7 +43,7 @@ use tau2::{Tau2Fit, Tau2Method};
 use wls::{Data, Want};
 
 pub use crate::result::Inference;
-pub(crate) use scaling::{standardise, standardise_in_place, ColumnSweep};
+pub(crate) use scaling::{standardise, standardise_swept, ColumnSweep};
 
 /// Options of one fit.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -171,6 +172,20 @@ pub fn fit_summary(
     options: FitOptions,
     with_ci: bool,
 ) -> Result<ModelFit> {
+    fit_summary_swept(y, v, x, p, options, with_ci, None)
+}
+
+/// [`fit_summary`] with, when known, the [`ColumnSweep`] of `x` (see
+/// [`standardise_swept`]).
+pub(crate) fn fit_summary_swept(
+    y: &[f64],
+    v: &[f64],
+    x: Cow<'_, [f64]>,
+    p: usize,
+    options: FitOptions,
+    with_ci: bool,
+    sweep: Option<ColumnSweep>,
+) -> Result<ModelFit> {
     let k = y.len();
     check_size(k, p)?;
     let ones_only = p == 1 && (0..k).all(|i| x[i] == 1.0);
@@ -179,7 +194,7 @@ pub fn fit_summary(
         (x, DMatrix::identity(1, 1), 0.0)
     } else {
         let mut x = x.into_owned();
-        let (a, log_det_a) = standardise_in_place(&mut x, k, p);
+        let (a, log_det_a) = standardise_swept(&mut x, k, p, sweep);
         (Cow::Owned(x), a, log_det_a)
     };
     let scaled = Scaled {

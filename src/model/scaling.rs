@@ -32,8 +32,21 @@ pub(crate) fn standardise(x: &[f64], k: usize, p: usize) -> Standardised {
 /// same bits, tested), which reads the design four times instead of four
 /// times per column.
 pub(crate) fn standardise_in_place(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
+    standardise_swept(x, k, p, None)
+}
+
+/// [`standardise_in_place`] with, when known, the [`ColumnSweep`] of the
+/// first k rows of `x` as given (the rank check's, so the rows are not
+/// swept again; it must be that of these values).
+pub(crate) fn standardise_swept(
+    x: &mut [f64],
+    k: usize,
+    p: usize,
+    sweep: Option<ColumnSweep>,
+) -> (DMatrix<f64>, f64) {
     if k >= super::wls::PARALLEL_MIN_ROWS {
-        by_rows(x, k, p)
+        let sweep = sweep.unwrap_or_else(|| ColumnSweep::of(x, k, p));
+        by_rows(x, k, p, sweep)
     } else {
         by_columns(x, k, p)
     }
@@ -107,6 +120,7 @@ fn record_scaling(
 /// gives: each column's running sum (in row order, from −0.0, as
 /// `Iterator::sum`), smallest and largest value (NaN passed over), and
 /// whether column 0 is all ones.
+#[derive(Debug, Clone)]
 pub(crate) struct ColumnSweep {
     pub(crate) sum: Vec<f64>,
     pub(crate) lo: Vec<f64>,
@@ -190,9 +204,8 @@ impl ColumnSweep {
 /// over the rows in all (a [`ColumnSweep`]; the sums of squares, each
 /// keeping one running value per column in row order; then the scaling, on
 /// every core), the same bits as column by column.
-fn by_rows(x: &mut [f64], k: usize, p: usize) -> (DMatrix<f64>, f64) {
+fn by_rows(x: &mut [f64], k: usize, p: usize, sweep: ColumnSweep) -> (DMatrix<f64>, f64) {
     use rayon::prelude::*;
-    let sweep = ColumnSweep::of(x, k, p);
     // Centring needs a column of ones to move the means into; without one
     // (a design without intercept, possible through the library) columns
     // are only scaled.
@@ -333,7 +346,8 @@ mod tests {
                         .flat_map(|r| pick.iter().map(|&j| r[j]))
                         .collect();
                     let (mut rows, mut cols) = (sub.clone(), sub);
-                    let (a, log_det_a) = by_rows(&mut rows, k, w);
+                    let sweep = ColumnSweep::of(&rows, k, w);
+                    let (a, log_det_a) = by_rows(&mut rows, k, w, sweep);
                     let (a_ref, log_det_ref) = by_columns(&mut cols, k, w);
                     assert!(rows
                         .iter()

@@ -33,8 +33,8 @@ const BLOCK_ROWS: usize = 256;
 ///
 /// # Errors
 /// [`Error::Model`] naming the first collinear term and those before it.
-pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
-    let (work, norm0) = triangle_of(x, k, p);
+pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<ColumnSweep> {
+    let (work, norm0, sweep) = triangle_of(x, k, p);
     let rows = p + BLOCK_ROWS;
     for j in 0..p {
         let norm = work[j * rows + j].powi(2);
@@ -49,14 +49,16 @@ pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Resul
             )));
         }
     }
-    Ok(())
+    Ok(sweep)
 }
 
 /// R of the centred and scaled design (column-major (p + [`BLOCK_ROWS`]) × p,
-/// R in the top p rows) and each centred, scaled column's squared norm.
-fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
+/// R in the top p rows), each centred, scaled column's squared norm, and
+/// the sweep over the rows the shifts and scales came from.
+fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>, ColumnSweep) {
     use rayon::prelude::*;
-    let (shift, scale) = shifts_and_scales(x, k, p);
+    let sweep = ColumnSweep::of(x, k, p);
+    let (shift, scale) = shifts_and_scales(&sweep, k, p);
     // The triangle and the squared column norms of a run of rows.
     let part = |rows: &[f64]| {
         let mut t = Triangle::new(p);
@@ -73,7 +75,8 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
     };
     let x = &x[..k * p];
     if k < PARALLEL_MIN_ROWS {
-        part(x)
+        let (t, norm0) = part(x);
+        (t, norm0, sweep)
     } else {
         // Fixed chunks of rows on all threads, then the chunks' triangles
         // stacked and reduced in chunk order (the triangle of a stacked
@@ -94,7 +97,7 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
                 *s += x;
             }
         }
-        (t.finish(), norm0)
+        (t.finish(), norm0, sweep)
     }
 }
 
@@ -138,8 +141,7 @@ impl Triangle {
 /// Each column's shift (its mean, for every column but the first, when
 /// finite; else 0) and scale (the largest |x − shift| when positive and
 /// finite; else 1), from one sweep over the rows ([`ColumnSweep`]).
-fn shifts_and_scales(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
-    let sweep = ColumnSweep::of(x, k, p);
+fn shifts_and_scales(sweep: &ColumnSweep, k: usize, p: usize) -> (Vec<f64>, Vec<f64>) {
     let shift: Vec<f64> = (0..p)
         .map(|j| {
             let mean = sweep.sum[j] / k as f64;
@@ -273,7 +275,7 @@ mod tests {
         ] {
             for noise in [1.0, 1e-3] {
                 let x = design(k, noise);
-                let (work, _) = triangle_of(&x, k, 4);
+                let (work, _, _) = triangle_of(&x, k, 4);
                 let rows = 4 + BLOCK_ROWS;
                 for (j, (norm, norm0)) in gram_schmidt(&x, k, 4).into_iter().enumerate() {
                     let r = work[j * rows + j].powi(2);
@@ -327,7 +329,7 @@ mod tests {
                 ]
             })
             .collect();
-        let (shift, scale) = shifts_and_scales(&x, k, p);
+        let (shift, scale) = shifts_and_scales(&ColumnSweep::of(&x, k, p), k, p);
         for j in 0..p {
             let col = || (0..k).map(|i| x[i * p + j]);
             let mean = col().sum::<f64>() / k as f64;
