@@ -590,6 +590,10 @@ pub fn quad_form(data: &Data<'_>, a: &DMatrix<f64>, i: usize) -> f64 {
 
 /// Ordinary least squares (all weights 1): returns (β̂, (X'X)⁻¹, residual sum of squares).
 pub fn ols(data: &Data<'_>) -> Option<(DVector<f64>, DMatrix<f64>, f64)> {
+    if (1..=8).contains(&data.p) {
+        // The same bits without a column of ones (see `unit_weights`).
+        return super::unit_weights::ols(data);
+    }
     let ones = vec![1.0; data.k()];
     // With v = 1 and τ² = 0 every weight is 1.
     let unit = Data {
