@@ -201,6 +201,25 @@ impl Rare {
 }
 
 impl Cells<'_> {
+    /// The effect and variance columns, when the measure is effects as
+    /// supplied on the scale analysed (no `--effect-scale log`) and they
+    /// are its only columns in the table (no se or interval to check them
+    /// against).
+    fn effects_and_variances(&self) -> Option<(&Column, &Column)> {
+        let roles = self.measure.roles();
+        let names: Vec<&str> = roles.iter().map(|r| r.name).collect();
+        if self.measure != Measure::Effect
+            || self.map.reading().log_scale
+            || names[..] != ["effect", "variance", "se", "ci_low", "ci_high"]
+        {
+            return None;
+        }
+        match self.columns[..] {
+            [Some(e), Some(v), None, None, None] => Some((e, v)),
+            _ => None,
+        }
+    }
+
     /// The effects of the rows `first..first + y.len()` into `y`, `v` and
     /// `from` (as [`EffectColumn::push`] would store them).
     fn piece(&self, first: usize, y: &mut [f64], v: &mut [f64], from: &mut [Route]) -> Rare {
@@ -208,8 +227,20 @@ impl Cells<'_> {
         let table = self.table;
         let mut rare = Rare::default();
         let mut values = vec![None; roles.len()];
+        let pair = self.effects_and_variances();
         for n in 0..y.len() {
             let row = first + n;
+            // The usual row of effects given with their variances: both
+            // numbers, the variance above 0, taken as they stand (what
+            // `compute_row` makes of such a row); any other row below.
+            if let Some((e, var)) = pair {
+                if let (Some(ey), Some(ev)) = (e.value(row), var.value(row)) {
+                    if ev > 0.0 {
+                        (y[n], v[n], from[n]) = (ey, ev, Route::Variance);
+                        continue;
+                    }
+                }
+            }
             let mut bad = false;
             let mut inequality = None;
             for (j, r) in roles.iter().enumerate() {
@@ -283,5 +314,131 @@ impl Cells<'_> {
             }
         }
         rare
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::input::{read_table_from, TableBytes};
+
+    /// Every row of effects with their variances gets what the general
+    /// per-row computation gives it, whether it takes the shortcut (both
+    /// numbers, the variance above 0) or not: zero, negative and missing
+    /// variances, missing marks, text, numbers not in their shortest form,
+    /// and the same rows with an se column beside (no shortcut at all).
+    #[test]
+    fn effects_with_variances_are_those_of_the_general_route() {
+        let rows = [
+            ("0.5", "0.04"),
+            ("-1.25", "0.10"),
+            ("0.30", "1e-2"),
+            ("0.2", "0"),
+            ("0.2", "-0.5"),
+            ("", "0.1"),
+            ("0.2", ""),
+            ("NA", "0.1"),
+            ("0.2", "NA"),
+            ("abc", "0.1"),
+            ("0.2", "x"),
+            ("1e400", "0.1"),
+            ("0.7", "3"),
+        ];
+        for with_se in [false, true] {
+            let mut csv = String::from(if with_se {
+                "effect,variance,se\n"
+            } else {
+                "effect,variance\n"
+            });
+            for (e, v) in rows {
+                csv.push_str(&format!("{e},{v}{}\n", if with_se { "," } else { "" }));
+            }
+            let map = ColumnMap::default();
+            let requests = map.requests(Measure::Effect);
+            // Read from a file, as the fit job reads one (its columns of
+            // numbers parsed as they are read).
+            let dir = tempfile::tempdir().unwrap();
+            let path = dir.path().join("t.csv");
+            std::fs::write(&path, &csv).unwrap();
+            let table =
+                read_table_from("t.csv", TableBytes::File(&path), &requests, None, None).unwrap();
+            let cells = Cells {
+                measure: Measure::Effect,
+                map: &map,
+                table: &table,
+                columns: (0..5).map(|j| table.column(j)).collect(),
+            };
+            assert_eq!(cells.effects_and_variances().is_some(), !with_se);
+            // The columns hold numbers, so the shortcut is taken.
+            assert_eq!(table.column(0).and_then(|c| c.value(0)), Some(0.5));
+            let n = table.len();
+            let (mut y, mut v, mut from) = (vec![0.0; n], vec![0.0; n], vec![Route::Means; n]);
+            let rare = cells.piece(0, &mut y, &mut v, &mut from);
+            // Row by row through the general route alone.
+            let general = Cells {
+                measure: Measure::Slope,
+                ..cells
+            };
+            assert!(general.effects_and_variances().is_none());
+            let roles = Measure::Effect.roles();
+            let mut problems = 0;
+            for row in 0..n {
+                let values: Vec<Option<f64>> = (0..5)
+                    .map(|j| match table.column(j).map(|c| c.number(row)) {
+                        Some(Cell::Value(x)) => Some(x),
+                        _ => None,
+                    })
+                    .collect();
+                let invalid = (0..5)
+                    .filter(|&j| {
+                        table
+                            .column(j)
+                            .is_some_and(|c| c.number(row) == Cell::Invalid)
+                    })
+                    .count();
+                let want = if invalid > 0 {
+                    problems += invalid;
+                    RowEffect::Excluded("invalid value".into())
+                } else {
+                    compute_row(
+                        Measure::Effect,
+                        map.reading(),
+                        RowValues::new(roles, &values),
+                    )
+                    .unwrap_or_else(|_| {
+                        problems += 1;
+                        RowEffect::Excluded("invalid value".into())
+                    })
+                };
+                let excluded = rare.excluded.iter().find(|(r, _)| *r == row);
+                match want {
+                    RowEffect::Value {
+                        y: wy,
+                        v: wv,
+                        from: wf,
+                        ..
+                    } => {
+                        assert!(excluded.is_none(), "row {row}");
+                        assert_eq!(
+                            (y[row].to_bits(), v[row].to_bits(), from[row]),
+                            (wy.to_bits(), wv.to_bits(), wf),
+                            "row {row}"
+                        );
+                    }
+                    RowEffect::Excluded(why) => {
+                        assert_eq!(
+                            excluded.map(|(_, w)| w.as_str()),
+                            Some(why.as_str()),
+                            "row {row}"
+                        );
+                        assert!(y[row].is_nan() && v[row].is_nan(), "row {row}");
+                    }
+                }
+            }
+            // The rows with a problem are listed (the cells that are not
+            // numbers, variances not above 0).
+            assert!(problems >= 4);
+            assert_eq!(rare.total, problems, "{with_se}");
+        }
     }
 }

@@ -104,6 +104,18 @@ impl Column {
         }
     }
 
+    /// The number stored for data row `row` of a column read as numbers:
+    /// Some(x) only when [`Column::number`] is `Cell::Value(x)` (None for
+    /// a column of texts and for a cell without a number), without a look
+    /// at any text.
+    #[inline]
+    pub fn value(&self, row: usize) -> Option<f64> {
+        match &self.cells {
+            Cells::Text(_) => None,
+            Cells::Numbers(n) => Some(n.values[row]).filter(|x| !x.is_nan()),
+        }
+    }
+
     /// Appends a cell's text (to a column of texts; a column of numbers
     /// reads it as [`NumberCells::push`] does).
     pub(crate) fn push(&mut self, cell: &str) {
