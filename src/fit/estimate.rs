@@ -117,9 +117,10 @@ pub fn estimate(
     let mut working_fit = || match (keep, &clusters) {
         (Keep::Summary, None) => {
             let x = Cow::Owned(std::mem::take(&mut design.x));
-            // The rank check's sweep over these rows, not made again.
-            let sweep = design.sweep.take();
-            model::fit_summary_swept(y, v, x, p, options, true, sweep).map(|f| (f, None))
+            // What the standardisation reads of these rows, made beside
+            // the rank check: the rows are not read again.
+            let swept = design.swept.take();
+            model::fit_summary_swept(y, v, x, p, options, true, swept).map(|f| (f, None))
         }
         _ => fit_working(y, v, &design.x, p, clusters.as_ref(), levels, options),
     };

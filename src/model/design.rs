@@ -53,7 +53,11 @@ impl RawModerator {
     /// row, in one scan that needs no branch per row).
     pub fn all_present(&self) -> bool {
         match self {
-            RawModerator::Numeric(v) => v.0.iter().fold(true, |all, x| all & !x.is_nan()),
+            RawModerator::Numeric(v) => {
+                use rayon::prelude::*;
+                v.0.par_chunks(1 << 16)
+                    .all(|c| c.iter().fold(true, |all, x| all & !x.is_nan()))
+            }
             RawModerator::Text(v) => v.all_present(),
         }
     }
@@ -184,10 +188,12 @@ pub struct Design {
     pub moderators: Vec<Moderator>,
     /// Interactions as moderator-index pairs.
     pub interactions: Vec<(usize, usize)>,
-    /// The sweep over the rows of `x` as built (each column's sum, ends
-    /// and whether column 0 is all ones), made by the rank check and read
-    /// again by the standardisation of the fit; None once taken.
-    pub(crate) sweep: Option<super::ColumnSweep>,
+    /// What the standardisation of the fit reads of the rows of `x` as
+    /// built ([`super::Swept`]: from the rank check's sweep, the squares
+    /// summed beside the rank check's triangle), for a design of
+    /// [`super::wls::PARALLEL_MIN_ROWS`] rows or more; None below, and
+    /// once taken.
+    pub(crate) swept: Option<super::Swept>,
 }
 
 /// One study's value of one moderator, ready for coding: a number on the
@@ -427,9 +433,16 @@ pub fn build(
             coder.encode(value, row);
         }
     });
-    let sweep = rank::check_rank(&x, k, p, &terms)?;
+    // The rank check's triangle on every core; beside it, on one, the sums
+    // of squares the standardisation will need (a sweep in row order).
+    let sweep = super::ColumnSweep::of(&x, k, p);
+    let (rank, swept) = rayon::join(
+        || rank::check_rank(&x, k, p, &terms, &sweep),
+        || (k >= super::wls::PARALLEL_MIN_ROWS).then(|| super::Swept::of(&x, k, p, &sweep)),
+    );
+    rank?;
     Ok(Design {
-        sweep: Some(sweep),
+        swept,
         x,
         p,
         terms,

@@ -43,7 +43,7 @@ use tau2::{Tau2Fit, Tau2Method};
 use wls::{Data, Want};
 
 pub use crate::result::Inference;
-pub(crate) use scaling::{standardise, standardise_swept, ColumnSweep};
+pub(crate) use scaling::{standardise, standardise_swept, ColumnSweep, Swept};
 
 /// Options of one fit.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -175,7 +175,7 @@ pub fn fit_summary(
     fit_summary_swept(y, v, x, p, options, with_ci, None)
 }
 
-/// [`fit_summary`] with, when known, the [`ColumnSweep`] of `x` (see
+/// [`fit_summary`] with, when known, the [`Swept`] values of `x` (see
 /// [`standardise_swept`]).
 pub(crate) fn fit_summary_swept(
     y: &[f64],
@@ -184,7 +184,7 @@ pub(crate) fn fit_summary_swept(
     p: usize,
     options: FitOptions,
     with_ci: bool,
-    sweep: Option<ColumnSweep>,
+    swept: Option<Swept>,
 ) -> Result<ModelFit> {
     let k = y.len();
     check_size(k, p)?;
@@ -194,7 +194,7 @@ pub(crate) fn fit_summary_swept(
         (x, DMatrix::identity(1, 1), 0.0)
     } else {
         let mut x = x.into_owned();
-        let (a, log_det_a) = standardise_swept(&mut x, k, p, sweep);
+        let (a, log_det_a) = standardise_swept(&mut x, k, p, swept);
         (Cow::Owned(x), a, log_det_a)
     };
     let scaled = Scaled {

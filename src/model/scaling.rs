@@ -35,18 +35,18 @@ pub(crate) fn standardise_in_place(x: &mut [f64], k: usize, p: usize) -> (DMatri
     standardise_swept(x, k, p, None)
 }
 
-/// [`standardise_in_place`] with, when known, the [`ColumnSweep`] of the
-/// first k rows of `x` as given (the rank check's, so the rows are not
-/// swept again; it must be that of these values).
+/// [`standardise_in_place`] with, when known, the [`Swept`] values of the
+/// first k rows of `x` as given (made beside the rank check, so the rows
+/// are not read again; they must be those of these values).
 pub(crate) fn standardise_swept(
     x: &mut [f64],
     k: usize,
     p: usize,
-    sweep: Option<ColumnSweep>,
+    swept: Option<Swept>,
 ) -> (DMatrix<f64>, f64) {
     if k >= super::wls::PARALLEL_MIN_ROWS {
-        let sweep = sweep.unwrap_or_else(|| ColumnSweep::of(x, k, p));
-        by_rows(x, k, p, sweep)
+        let swept = swept.unwrap_or_else(|| Swept::of(x, k, p, &ColumnSweep::of(x, k, p)));
+        by_rows(x, k, p, swept)
     } else {
         by_columns(x, k, p)
     }
@@ -200,37 +200,69 @@ impl ColumnSweep {
     }
 }
 
+/// What the standardisation of a large design reads from its rows before
+/// it writes any: the [`ColumnSweep`], and from it each column's mean (0
+/// without an intercept), largest deviation from it and, for each column
+/// that can be scaled, the sum of the squared deviations divided by that
+/// largest one (each a running sum from −0.0 in row order).
+#[derive(Debug, Clone)]
+pub(crate) struct Swept {
+    has_intercept: bool,
+    mean: Vec<f64>,
+    big: Vec<f64>,
+    squares: Vec<f64>,
+}
+
+impl Swept {
+    /// The values for the first k rows of `x`, whose sweep is `sweep`.
+    pub(crate) fn of(x: &[f64], k: usize, p: usize, sweep: &ColumnSweep) -> Self {
+        // Centring needs a column of ones to move the means into; without
+        // one (a design without intercept, possible through the library)
+        // columns are only scaled.
+        let has_intercept = sweep.ones;
+        let first = usize::from(has_intercept);
+        let mean: Vec<f64> = if has_intercept {
+            sweep.sum.iter().map(|s| s / k as f64).collect()
+        } else {
+            vec![0.0; p]
+        };
+        // The SD through the largest deviation, so the squares neither
+        // underflow (values near 1e-300) nor overflow (near 1e300).
+        let big: Vec<f64> = (0..p)
+            .map(|j| sweep.largest_deviation(j, mean[j]))
+            .collect();
+        let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
+        let squares = {
+            let (mean, big, scalable) = (&mean, &big, &scalable);
+            macro_rules! fixed {
+                ($n:literal) => {
+                    squares_fixed::<$n>(x, k, first, (mean, big, scalable))
+                };
+            }
+            by_columns!(p, fixed, squares(x, k, first, (mean, big, scalable)))
+        };
+        Swept {
+            has_intercept,
+            mean,
+            big,
+            squares,
+        }
+    }
+}
+
 /// [`standardise_in_place`] reading the design row by row: three sweeps
 /// over the rows in all (a [`ColumnSweep`]; the sums of squares, each
-/// keeping one running value per column in row order; then the scaling, on
-/// every core), the same bits as column by column.
-fn by_rows(x: &mut [f64], k: usize, p: usize, sweep: ColumnSweep) -> (DMatrix<f64>, f64) {
+/// keeping one running value per column in row order, both in [`Swept`];
+/// then the scaling, on every core), the same bits as column by column.
+fn by_rows(x: &mut [f64], k: usize, p: usize, swept: Swept) -> (DMatrix<f64>, f64) {
     use rayon::prelude::*;
-    // Centring needs a column of ones to move the means into; without one
-    // (a design without intercept, possible through the library) columns
-    // are only scaled.
-    let has_intercept = sweep.ones;
+    let Swept {
+        has_intercept,
+        mean,
+        big,
+        squares: ss,
+    } = swept;
     let first = usize::from(has_intercept);
-    let mean: Vec<f64> = if has_intercept {
-        sweep.sum.iter().map(|s| s / k as f64).collect()
-    } else {
-        vec![0.0; p]
-    };
-    // The SD through the largest deviation, so the squares neither
-    // underflow (values near 1e-300) nor overflow (near 1e300).
-    let big: Vec<f64> = (0..p)
-        .map(|j| sweep.largest_deviation(j, mean[j]))
-        .collect();
-    let scalable: Vec<bool> = big.iter().map(|b| *b > 0.0 && b.is_finite()).collect();
-    let ss = {
-        let (mean, big, scalable) = (&mean, &big, &scalable);
-        macro_rules! fixed {
-            ($n:literal) => {
-                squares_fixed::<$n>(x, k, first, (mean, big, scalable))
-            };
-        }
-        by_columns!(p, fixed, squares(x, k, first, (mean, big, scalable)))
-    };
     let sd: Vec<f64> = (0..p).map(|j| column_sd(big[j], k, || ss[j])).collect();
     let scale_row = |r: &mut [f64]| {
         for j in first..p {
@@ -346,8 +378,8 @@ mod tests {
                         .flat_map(|r| pick.iter().map(|&j| r[j]))
                         .collect();
                     let (mut rows, mut cols) = (sub.clone(), sub);
-                    let sweep = ColumnSweep::of(&rows, k, w);
-                    let (a, log_det_a) = by_rows(&mut rows, k, w, sweep);
+                    let swept = Swept::of(&rows, k, w, &ColumnSweep::of(&rows, k, w));
+                    let (a, log_det_a) = by_rows(&mut rows, k, w, swept);
                     let (a_ref, log_det_ref) = by_columns(&mut cols, k, w);
                     assert!(rows
                         .iter()

@@ -33,8 +33,14 @@ const BLOCK_ROWS: usize = 256;
 ///
 /// # Errors
 /// [`Error::Model`] naming the first collinear term and those before it.
-pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<ColumnSweep> {
-    let (work, norm0, sweep) = triangle_of(x, k, p);
+pub(super) fn check_rank(
+    x: &[f64],
+    k: usize,
+    p: usize,
+    terms: &[Term],
+    sweep: &ColumnSweep,
+) -> Result<()> {
+    let (work, norm0) = triangle_of(x, k, p, sweep);
     let rows = p + BLOCK_ROWS;
     for j in 0..p {
         let norm = work[j * rows + j].powi(2);
@@ -49,16 +55,15 @@ pub(super) fn check_rank(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Resul
             )));
         }
     }
-    Ok(sweep)
+    Ok(())
 }
 
 /// R of the centred and scaled design (column-major (p + [`BLOCK_ROWS`]) × p,
-/// R in the top p rows), each centred, scaled column's squared norm, and
-/// the sweep over the rows the shifts and scales came from.
-fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>, ColumnSweep) {
+/// R in the top p rows) and each centred, scaled column's squared norm;
+/// `sweep` is that of the first k rows of `x` ([`ColumnSweep::of`]).
+fn triangle_of(x: &[f64], k: usize, p: usize, sweep: &ColumnSweep) -> (Vec<f64>, Vec<f64>) {
     use rayon::prelude::*;
-    let sweep = ColumnSweep::of(x, k, p);
-    let (shift, scale) = shifts_and_scales(&sweep, k, p);
+    let (shift, scale) = shifts_and_scales(sweep, k, p);
     // The triangle and the squared column norms of a run of rows.
     let part = |rows: &[f64]| {
         let mut t = Triangle::new(p);
@@ -75,8 +80,7 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>, ColumnSwee
     };
     let x = &x[..k * p];
     if k < PARALLEL_MIN_ROWS {
-        let (t, norm0) = part(x);
-        (t, norm0, sweep)
+        part(x)
     } else {
         // Fixed chunks of rows on all threads, then the chunks' triangles
         // stacked and reduced in chunk order (the triangle of a stacked
@@ -97,7 +101,7 @@ fn triangle_of(x: &[f64], k: usize, p: usize) -> (Vec<f64>, Vec<f64>, ColumnSwee
                 *s += x;
             }
         }
-        (t.finish(), norm0, sweep)
+        (t.finish(), norm0)
     }
 }
 
@@ -275,7 +279,7 @@ mod tests {
         ] {
             for noise in [1.0, 1e-3] {
                 let x = design(k, noise);
-                let (work, _, _) = triangle_of(&x, k, 4);
+                let (work, _) = triangle_of(&x, k, 4, &ColumnSweep::of(&x, k, 4));
                 let rows = 4 + BLOCK_ROWS;
                 for (j, (norm, norm0)) in gram_schmidt(&x, k, 4).into_iter().enumerate() {
                     let r = work[j * rows + j].powi(2);
@@ -292,19 +296,24 @@ mod tests {
     /// parallel threshold: a remainder of 1e-6 of
     /// the column's squared norm passes, an exact combination and one of
     /// 1e-14 are refused, naming the term.
+    /// The rank check of `x` with its own sweep.
+    fn check(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
+        check_rank(x, k, p, terms, &ColumnSweep::of(x, k, p))
+    }
+
     #[test]
     fn collinear_columns_are_named() {
         for k in [600, PARALLEL_MIN_ROWS + 777] {
-            assert!(check_rank(&design(k, 1e-3), k, 4, &terms(4)).is_ok());
+            assert!(check(&design(k, 1e-3), k, 4, &terms(4)).is_ok());
             for noise in [0.0, 1e-7] {
-                let e = check_rank(&design(k, noise), k, 4, &terms(4)).unwrap_err();
+                let e = check(&design(k, noise), k, 4, &terms(4)).unwrap_err();
                 assert!(e.to_string().contains("term 't3'"), "{e}");
             }
         }
         let k = 600;
         let mut x = design(k, 1.0);
         x[4 * 17 + 2] = f64::NAN;
-        let e = check_rank(&x, k, 4, &terms(4)).unwrap_err();
+        let e = check(&x, k, 4, &terms(4)).unwrap_err();
         assert!(e.to_string().contains("term 't2'"), "{e}");
     }
 
