@@ -89,10 +89,12 @@ fn check_moderator_scale(
             let RawModerator::Numeric(x) = r else {
                 return None;
             };
+            // By comparison, which passes over NaN (it compares false) and
+            // needs no branch per row.
             let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-            for &v in x.of_rows(included).iter().filter(|v| !v.is_nan()) {
-                lo = lo.min(v);
-                hi = hi.max(v);
+            for &v in x.of_rows(included).iter() {
+                lo = if v < lo { v } else { lo };
+                hi = if v > hi { v } else { hi };
             }
             Some((lo, hi))
         })

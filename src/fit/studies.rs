@@ -476,8 +476,13 @@ fn check_range(
     included: &[usize],
     (lines, places): (&[u64], &Places),
 ) -> Result<()> {
+    use rayon::prelude::*;
     let bad = (0..y.len())
-        .find(|&i| y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE);
+        .into_par_iter()
+        .with_min_len(1 << 16)
+        .find_first(|&i| {
+            y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE
+        });
     let Some(i) = bad else {
         return Ok(());
     };
