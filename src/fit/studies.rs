@@ -370,12 +370,8 @@ fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, 
 /// profile); otherwise the labels are copied into a list of their exact size.
 fn labels(table: &mut Table, included: &[usize]) -> Texts {
     let every_row = included.len() == table.lines.len();
-    let labelled = |c: &Column| {
-        use rayon::prelude::*;
-        (0..included.len())
-            .into_par_iter()
-            .all(|i| !c.text(i).is_empty())
-    };
+    // Every row is a study here, so the column's cells are the labels.
+    let labelled = |c: &Column| !c.any_empty();
     if let Some(slot) = table.columns.first_mut().filter(|_| every_row) {
         if slot.as_ref().is_some_and(labelled) {
             let mut cells = slot.take().map(Column::into_cells).unwrap_or_default();
@@ -476,13 +472,20 @@ fn check_range(
     included: &[usize],
     (lines, places): (&[u64], &Places),
 ) -> Result<()> {
-    use rayon::prelude::*;
-    let bad = (0..y.len())
-        .into_par_iter()
-        .with_min_len(1 << 16)
-        .find_first(|&i| {
-            y[i].abs() > MAX_EFFECT || v[i] > MAX_VARIANCE || v[i] < 1.0 / MAX_VARIANCE
-        });
+    // Comparisons, not a range's `contains`: a NaN compares false on both
+    // sides and is not out of range here (as before; no included study
+    // has one).
+    #[allow(clippy::manual_range_contains)]
+    let out =
+        |y: f64, v: f64| (y.abs() > MAX_EFFECT) | (v > MAX_VARIANCE) | (v < 1.0 / MAX_VARIANCE);
+    // Whether any is out of range, without a branch per study; which one
+    // only then.
+    let any = y.iter().zip(v).fold(false, |any, (&y, &v)| any | out(y, v));
+    let bad = if any {
+        (0..y.len()).find(|&i| out(y[i], v[i]))
+    } else {
+        None
+    };
     let Some(i) = bad else {
         return Ok(());
     };

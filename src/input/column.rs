@@ -104,6 +104,15 @@ impl Column {
         }
     }
 
+    /// Whether any cell is empty, for a column of texts found from where
+    /// each text ends ([`Texts::any_empty`]), else cell by cell.
+    pub fn any_empty(&self) -> bool {
+        match &self.cells {
+            Cells::Text(t) => t.any_empty(),
+            Cells::Numbers(n) => (0..n.values.len()).any(|row| n.text(row).is_empty()),
+        }
+    }
+
     /// The number stored for data row `row` of a column read as numbers:
     /// Some(x) only when [`Column::number`] is `Cell::Value(x)` (None for
     /// a column of texts and for a cell without a number), without a look

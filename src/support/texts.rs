@@ -128,6 +128,20 @@ impl Texts {
         &self.text[start..end]
     }
 
+    /// Whether any text is empty: a text ends where the one before it
+    /// ended (the first at 0), found from the ends alone, without a branch
+    /// per text.
+    pub fn any_empty(&self) -> bool {
+        fn any<T: Copy + PartialEq + Default>(ends: &[T]) -> bool {
+            ends.first().is_some_and(|&e| e == T::default())
+                || ends.windows(2).fold(false, |any, w| any | (w[0] == w[1]))
+        }
+        match &self.ends {
+            Ends::Narrow(e) => any(e),
+            Ends::Wide(e) => any(e),
+        }
+    }
+
     /// The texts in order.
     pub fn iter(&self) -> impl ExactSizeIterator<Item = &str> + Clone + '_ {
         (0..self.len()).map(|i| self.get(i))
@@ -193,6 +207,34 @@ impl schemars::JsonSchema for Texts {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn empty_texts_are_found_from_the_ends() {
+        let cases: [&[&str]; 6] = [
+            &[],
+            &["a"],
+            &[""],
+            &["a", "bc", "d"],
+            &["a", "", "d"],
+            &["a", "b", ""],
+        ];
+        for texts in cases {
+            let t: Texts = texts.iter().copied().collect();
+            assert_eq!(
+                t.any_empty(),
+                texts.iter().any(|s| s.is_empty()),
+                "{texts:?}"
+            );
+        }
+        // Past 4 GiB of text the ends are held wide; the same answers.
+        let wide = |ends: Vec<usize>| Texts {
+            text: "abc".into(),
+            ends: Ends::Wide(ends),
+        };
+        assert!(wide(vec![1, 3, 3]).any_empty());
+        assert!(wide(vec![0, 2, 3]).any_empty());
+        assert!(!wide(vec![1, 2, 3]).any_empty());
+    }
 
     #[test]
     fn texts_serialise_as_a_vector_of_strings() {
