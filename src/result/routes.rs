@@ -21,55 +21,34 @@ pub struct RouteCount {
 }
 
 /// Counts the routes of the included studies, in the order of [`Route::ALL`]
-/// (`labels[i]` is the label of the study with `routes[i]`). The routes are
-/// counted in one pass; when every study took one route (the usual case)
-/// its labels are the list given (moved when given owned, else copied
-/// whole), else each route's labels are gathered in a pass of their own.
+/// (`labels[i]` is the label of the study with `routes[i]`). When every
+/// study took one route (the usual case, found with one comparison per
+/// study) its labels are the list given, moved when given owned, else
+/// copied whole; otherwise the routes are counted in one pass and each
+/// route's labels gathered in a pass of their own.
 pub fn count_routes(routes: &[Route], labels: Cow<'_, Texts>) -> Vec<RouteCount> {
-    // One route for every study (the usual case), found by a comparison
-    // of each with the first that needs no branch per study.
-    if let Some(&first) = routes.first() {
-        if routes.iter().filter(|&&r| r == first).count() == routes.len() {
-            return vec![RouteCount {
-                computed_from: first,
-                derivation: first.derivation(),
-                studies: routes.len(),
-                labels: labels.into_owned(),
-            }];
-        }
-    }
-    let mut counts = [0usize; Route::ALL.len()];
-    // Runs of one route (the usual case is a single run) are counted
-    // without looking the route up again.
-    let mut last: Option<(Route, usize)> = None;
-    for &r in routes {
-        match last {
-            Some((l, j)) if l == r => counts[j] += 1,
-            _ => {
-                if let Some(j) = Route::ALL.iter().position(|&x| x == r) {
-                    counts[j] += 1;
-                    last = Some((r, j));
-                }
-            }
-        }
-    }
-    let used: Vec<(Route, usize)> = Route::ALL
-        .iter()
-        .zip(counts)
-        .filter(|&(_, n)| n > 0)
-        .map(|(&r, n)| (r, n))
-        .collect();
     let count = |r: Route, n: usize, labels: Texts| RouteCount {
         computed_from: r,
         derivation: r.derivation(),
         studies: n,
         labels,
     };
-    if let [(r, n)] = used[..] {
-        return vec![count(r, n, labels.into_owned())];
+    if let Some(&first) = routes.first() {
+        if routes.iter().filter(|&&r| r == first).count() == routes.len() {
+            return vec![count(first, routes.len(), labels.into_owned())];
+        }
     }
-    used.into_iter()
-        .map(|(r, n)| {
+    let mut counts = [0usize; Route::ALL.len()];
+    for r in routes {
+        if let Some(j) = Route::ALL.iter().position(|x| x == r) {
+            counts[j] += 1;
+        }
+    }
+    Route::ALL
+        .iter()
+        .zip(counts)
+        .filter(|&(_, n)| n > 0)
+        .map(|(&r, n)| {
             let picked = routes
                 .iter()
                 .zip(labels.iter())
