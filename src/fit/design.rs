@@ -89,14 +89,10 @@ fn check_moderator_scale(
             let RawModerator::Numeric(x) = r else {
                 return None;
             };
-            // By comparison, which passes over NaN (it compares false) and
-            // needs no branch per row.
-            let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-            for &v in x.of_rows(included).iter() {
-                lo = if v < lo { v } else { lo };
-                hi = if v > hi { v } else { hi };
-            }
-            Some((lo, hi))
+            // The ends of the one-column sweep (NaN passed over).
+            let xs = x.of_rows(included);
+            let sweep = crate::model::ColumnSweep::of(&xs, xs.len(), 1);
+            Some((sweep.lo[0], sweep.hi[0]))
         })
         .collect();
     for (spec, range) in specs.iter().zip(ranges) {
