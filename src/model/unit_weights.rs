@@ -5,7 +5,7 @@
 //! and sum is the one `fit_with` forms, in the same order (w·x is x, w·y
 //! is y, w·r² is r·r exactly), so the results are the same bits (tested).
 
-use super::wls::{count_pass, Data, CHUNK_ROWS, PARALLEL_MIN_ROWS};
+use super::wls::{chunks, count_pass, Data, PARALLEL_MIN_ROWS};
 use nalgebra::{DMatrix, DVector};
 
 /// β̂ = (X'X)⁻¹X'y, (X'X)⁻¹ and the residual sum of squares, for a design
@@ -39,18 +39,18 @@ fn cross_products(data: &Data<'_>) -> (Vec<f64>, Vec<f64>) {
     use rayon::prelude::*;
     count_pass();
     let p = data.p;
-    let serial = |&(x, y): &(&[f64], &[f64])| {
+    let serial = |d: &Data<'_>| {
         macro_rules! fixed {
             ($n:literal) => {
-                cross_products_fixed::<$n>(x, y)
+                cross_products_fixed::<$n>(d.x, d.y)
             };
         }
         by_columns!(p, fixed, unreachable_width())
     };
     if data.k() < PARALLEL_MIN_ROWS {
-        return serial(&(data.x, data.y));
+        return serial(data);
     }
-    let parts: Vec<(Vec<f64>, Vec<f64>)> = runs(data).par_iter().map(serial).collect();
+    let parts: Vec<(Vec<f64>, Vec<f64>)> = chunks(data).par_iter().map(serial).collect();
     let (mut m, mut b) = (vec![0.0; p * p], vec![0.0; p]);
     for (pm, pb) in parts {
         for (t, x) in m.iter_mut().zip(&pm) {
@@ -88,18 +88,18 @@ fn residual_squares(data: &Data<'_>, beta: &[f64]) -> f64 {
     use rayon::prelude::*;
     count_pass();
     let p = data.p;
-    let serial = |&(x, y): &(&[f64], &[f64])| {
+    let serial = |d: &Data<'_>| {
         macro_rules! fixed {
             ($n:literal) => {
-                residual_squares_fixed::<$n>(x, y, beta)
+                residual_squares_fixed::<$n>(d.x, d.y, beta)
             };
         }
         by_columns!(p, fixed, f64::NAN)
     };
     if data.k() < PARALLEL_MIN_ROWS {
-        return serial(&(data.x, data.y));
+        return serial(data);
     }
-    let parts: Vec<f64> = runs(data).par_iter().map(serial).collect();
+    let parts: Vec<f64> = chunks(data).par_iter().map(serial).collect();
     parts.iter().fold(0.0, |acc, x| acc + x)
 }
 
@@ -117,24 +117,15 @@ fn residual_squares_fixed<const P: usize>(x: &[f64], y: &[f64], beta: &[f64]) ->
     q
 }
 
-/// The rows in the fixed chunks of [`super::wls`] (the variances left
-/// out: they are not read).
-fn runs<'a>(data: &Data<'a>) -> Vec<(&'a [f64], &'a [f64])> {
-    data.x
-        .chunks(CHUNK_ROWS * data.p)
-        .zip(data.y.chunks(CHUNK_ROWS))
-        .collect()
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::wls::{fit_with, Want};
+    use crate::model::wls::{fit_with, Want, CHUNK_ROWS};
 
     /// The same bits as `fit_with` with a column of ones for the
-    /// variances, at τ² = 0: invented designs of 1 to 8 columns (a
-    /// calendar year, tiny and wide values), small and past the parallel
-    /// threshold.
+    /// variances, at τ² = 0, whatever the data's own variances: invented
+    /// designs of 1 to 8 columns (a calendar year, tiny and wide values),
+    /// small and past the parallel threshold.
     #[test]
     fn unit_weights_are_the_weighted_fit_at_one_bit_for_bit() {
         for k in [12usize, PARALLEL_MIN_ROWS + CHUNK_ROWS / 3] {
@@ -155,9 +146,10 @@ mod tests {
                     .map(|i| 0.3 + ((i * 31) % 97) as f64 / 97.0 - 0.01 * (i % 7) as f64)
                     .collect();
                 let ones = vec![1.0; k];
+                let own: Vec<f64> = (0..k).map(|i| 0.05 + (i % 5) as f64).collect();
                 let data = Data {
                     y: &y,
-                    v: &[],
+                    v: &own,
                     x: &x,
                     p,
                 };
@@ -186,7 +178,7 @@ mod tests {
         let y = vec![0.0; 10];
         let d = Data {
             y: &y,
-            v: &[],
+            v: &[1.0; 10],
             x: &x,
             p: 9,
         };
