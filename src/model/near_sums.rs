@@ -191,20 +191,43 @@ fn total(lane: &Lane) -> f64 {
 
 /// Σ f·x_a·x_c over the block's first `n` rows (a multiple of [`LANES`])
 /// added to the upper triangle of `acc` (a ≤ c), the product taken as
-/// (f·x_a)·x_c; one row a at a time, so its P − a partial sums stay in
-/// registers.
+/// (f·x_a)·x_c; one row a at a time ([`add_matrix_row`]), so its P − a
+/// partial sums stay in registers.
 #[inline(always)]
 fn add_matrix<const P: usize>(acc: &mut [[Lane; P]; P], f: &Column, x: &[Column; P], n: usize) {
-    for a in 0..P {
-        let mut row = acc[a];
-        for g in (0..n).step_by(LANES) {
-            let fx = times(&lane(f, g), &lane(&x[a], g));
-            for c in a..P {
-                add_product(&mut row[c], &fx, &lane(&x[c], g));
-            }
-        }
-        acc[a] = row;
+    add_matrix_row::<P, 0>(acc, f, x, n);
+    add_matrix_row::<P, 1>(acc, f, x, n);
+    add_matrix_row::<P, 2>(acc, f, x, n);
+    add_matrix_row::<P, 3>(acc, f, x, n);
+    add_matrix_row::<P, 4>(acc, f, x, n);
+    add_matrix_row::<P, 5>(acc, f, x, n);
+    add_matrix_row::<P, 6>(acc, f, x, n);
+    add_matrix_row::<P, 7>(acc, f, x, n);
+}
+
+/// Row `A` of [`add_matrix`] (nothing when `A` ≥ `P`). Both bounds of the
+/// loop over c are constants, so the compiler unrolls it and keeps the row's
+/// partial sums in registers for the whole block (with `a` a loop variable
+/// it kept them in memory, a load and a store per product). Each partial sum
+/// gets the same additions in the same order as before, so the same bits.
+#[inline(always)]
+fn add_matrix_row<const P: usize, const A: usize>(
+    acc: &mut [[Lane; P]; P],
+    f: &Column,
+    x: &[Column; P],
+    n: usize,
+) {
+    if A >= P {
+        return;
     }
+    let mut row = acc[A];
+    for g in (0..n).step_by(LANES) {
+        let fx = times(&lane(f, g), &lane(&x[A], g));
+        for c in A..P {
+            add_product(&mut row[c], &fx, &lane(&x[c], g));
+        }
+    }
+    acc[A] = row;
 }
 
 /// Σ x_a·f over the block's first `n` rows added to `acc[a]`, every a.
