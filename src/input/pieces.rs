@@ -317,27 +317,33 @@ enum Read<S, X> {
 }
 
 /// What the threads share: the next piece to start and to merge, the pieces
-/// waiting to be merged, and the merge itself.
-struct Shared<'m, S, X, M> {
+/// waiting to be merged, and whether a thread is merging.
+struct Shared<S, X> {
     next_take: u64,
     next_merge: u64,
     pending: BTreeMap<u64, Read<S, X>>,
     stop: Option<Stopped<X>>,
     /// The line the piece `next_merge` starts on.
     line: u64,
-    merge: &'m mut M,
+    /// A thread is merging (outside the lock): the others leave the pieces
+    /// they finish to it.
+    merging: bool,
 }
 
-impl<S, X, M: FnMut(S, u64)> Shared<'_, S, X, M> {
-    /// Merges the pieces that are next in file order.
-    fn drain(&mut self) {
+impl<S, X> Shared<S, X> {
+    /// Takes the pieces that are next in file order, each with the line it
+    /// starts on, for the caller to merge (in that order); a piece that
+    /// stopped the reading ends the run, records the stop and drops every
+    /// piece after it.
+    fn take_ready(&mut self) -> Vec<(S, u64)> {
+        let mut ready = Vec::new();
         while self.stop.is_none() {
             let Some(piece) = self.pending.remove(&self.next_merge) else {
-                return;
+                break;
             };
             match piece {
                 Read::Done { sink, newlines } => {
-                    (self.merge)(sink, self.line);
+                    ready.push((sink, self.line));
                     self.line += newlines;
                     self.next_merge += 1;
                 }
@@ -347,7 +353,10 @@ impl<S, X, M: FnMut(S, u64)> Shared<'_, S, X, M> {
                 }
             }
         }
-        self.pending.clear();
+        if self.stop.is_some() {
+            self.pending.clear();
+        }
+        ready
     }
 }
 
@@ -370,8 +379,12 @@ pub(crate) fn read_in_pieces<W, S: Send, X: Send, M: FnMut(S, u64) + Send>(
         pending: BTreeMap::new(),
         stop: None,
         line: layout.first_line,
-        merge,
+        merging: false,
     });
+    // Held only by the thread that is merging (one at a time, by
+    // `Shared::merging`): the merge runs outside the shared lock, so the
+    // other threads go on taking and reading pieces meanwhile.
+    let merge = Mutex::new(merge);
     let turn = Condvar::new();
     rayon::scope(|s| {
         for _ in 0..threads {
@@ -387,9 +400,30 @@ pub(crate) fn read_in_pieces<W, S: Send, X: Send, M: FnMut(S, u64) + Send>(
                 let take = || next_piece(&shared, &turn, layout.pieces(), ahead);
                 while let Some(j) = take() {
                     let piece = read_piece(layout, j, &mut reader, &mut state, &read);
-                    let mut g = shared.lock().unwrap_or_else(PoisonError::into_inner);
+                    let lock = || shared.lock().unwrap_or_else(PoisonError::into_inner);
+                    let mut g = lock();
                     g.pending.insert(j, piece);
-                    g.drain();
+                    if g.merging {
+                        continue;
+                    }
+                    g.merging = true;
+                    // Merge what is ready, then look again (a piece the
+                    // others finished meanwhile was left to this thread).
+                    loop {
+                        let ready = g.take_ready();
+                        if ready.is_empty() {
+                            g.merging = false;
+                            break;
+                        }
+                        drop(g);
+                        turn.notify_all();
+                        let mut m = merge.lock().unwrap_or_else(PoisonError::into_inner);
+                        for (sink, line) in ready {
+                            (*m)(sink, line);
+                        }
+                        drop(m);
+                        g = lock();
+                    }
                     drop(g);
                     turn.notify_all();
                 }
@@ -402,8 +436,8 @@ pub(crate) fn read_in_pieces<W, S: Send, X: Send, M: FnMut(S, u64) + Send>(
 
 /// The next piece for a thread to read, waiting while it would run too far
 /// ahead of the merging; None when the pieces ran out or the reading stopped.
-fn next_piece<S, X, M>(
-    shared: &Mutex<Shared<'_, S, X, M>>,
+fn next_piece<S, X>(
+    shared: &Mutex<Shared<S, X>>,
     turn: &Condvar,
     pieces: u64,
     ahead: u64,
