@@ -6,9 +6,9 @@
 use super::studies::Studies;
 use super::{in_file, FitSettings};
 use crate::error::{Error, Result};
-use crate::model::design::{self, Design, ModeratorSpec, RawModerator};
+use crate::model::design::{self, Design, ModeratorSpec};
+use crate::model::ColumnSweep;
 use crate::support::flag::Flag;
-use crate::support::rows::Rows;
 
 /// The design of the included studies.
 ///
@@ -18,17 +18,16 @@ use crate::support::rows::Rows;
 /// scale leaves floating point, and the errors of [`design::build`].
 pub fn build(settings: &FitSettings, source: &str, studies: &Studies) -> Result<Design> {
     let pairs = interaction_pairs(&settings.moderators, &settings.interactions)?;
-    check_moderator_scale(
-        source,
-        &settings.moderators,
-        &studies.raw,
-        &studies.included,
-    )?;
-    design::build(
+    // One sweep of each numeric moderator for its scale check, its mean and
+    // range, and the design's own sweep.
+    let sweeps = design::moderator_sweeps(&studies.raw, &studies.included);
+    check_moderator_scale(source, &settings.moderators, &sweeps)?;
+    design::build_swept(
         &settings.moderators,
         &studies.raw,
         &studies.included,
         &pairs,
+        &sweeps,
     )
     .map_err(|e| in_file(source, e))
 }
@@ -76,27 +75,13 @@ fn interaction_pairs(
 fn check_moderator_scale(
     source: &str,
     specs: &[ModeratorSpec],
-    raw: &[RawModerator],
-    included: &Rows,
+    sweeps: &[Option<ColumnSweep>],
 ) -> Result<()> {
     use crate::tolerance::MODERATOR_MAGNITUDE;
-    use rayon::prelude::*;
-    // Each moderator's range (in row order, as one pass would find it), the
-    // moderators side by side on every core.
-    let ranges: Vec<Option<(f64, f64)>> = raw
-        .par_iter()
-        .map(|r| {
-            let RawModerator::Numeric(x) = r else {
-                return None;
-            };
-            // The ends of the one-column sweep (NaN passed over).
-            let xs = x.of_rows(included);
-            let sweep = crate::model::ColumnSweep::of(&xs, xs.len(), 1);
-            Some((sweep.lo[0], sweep.hi[0]))
-        })
-        .collect();
-    for (spec, range) in specs.iter().zip(ranges) {
-        let Some((lo, hi)) = range else {
+    // Each numeric moderator's range over the included rows: the ends of its
+    // one-column sweep (NaN passed over).
+    for (spec, sweep) in specs.iter().zip(sweeps) {
+        let Some((lo, hi)) = sweep.as_ref().map(|s| (s.lo[0], s.hi[0])) else {
             continue;
         };
         let big = lo.abs().max(hi.abs());

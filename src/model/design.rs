@@ -29,7 +29,10 @@ pub use crate::result::{Moderator, ModeratorKind};
 pub use values::{Categories, Numbers};
 
 mod rank;
+mod sweep;
 mod values;
+
+pub(crate) use sweep::moderator_sweeps;
 
 /// The per-row raw values of one moderator (all rows of the table).
 #[derive(Debug, Clone)]
@@ -367,15 +370,34 @@ pub fn build(
     included: &Rows,
     interactions: &[(usize, usize)],
 ) -> Result<Design> {
+    let sweeps = moderator_sweeps(raw, included);
+    build_swept(specs, raw, included, interactions, &sweeps)
+}
+
+/// [`build`] with each moderator's sweep over the included rows already
+/// made ([`moderator_sweeps`]).
+///
+/// # Errors
+/// Those of [`build`].
+pub(crate) fn build_swept(
+    specs: &[ModeratorSpec],
+    raw: &[RawModerator],
+    included: &Rows,
+    interactions: &[(usize, usize)],
+    sweeps: &[Option<super::ColumnSweep>],
+) -> Result<Design> {
     let k = included.len();
     // The moderators side by side on every core; the first error in
     // moderator order is the one reported.
     let moderators = specs
         .par_iter()
         .zip(raw)
-        .map(|(spec, r)| {
+        .enumerate()
+        .map(|(j, (spec, r))| {
             let kind = match r {
-                RawModerator::Numeric(v) => numeric_kind(spec, v, included)?,
+                RawModerator::Numeric(v) => {
+                    numeric_kind(spec, v, included, sweeps.get(j).and_then(Option::as_ref))?
+                }
                 RawModerator::Text(v) => categorical_kind(spec, v, included)?,
             };
             Ok(Moderator {
@@ -435,7 +457,16 @@ pub fn build(
     });
     // The rank check's triangle on every core; beside it, on one, the sums
     // of squares the standardisation will need (a sweep in row order).
-    let sweep = super::ColumnSweep::of(&x, k, p);
+    let sweep = match sweep::from_moderators(&coder, sweeps, k) {
+        Some(s) => {
+            debug_assert!(
+                sweep::same_bits(&s, &super::ColumnSweep::of(&x, k, p)),
+                "the design's sweep from the moderators' differs from a sweep of the design"
+            );
+            s
+        }
+        None => super::ColumnSweep::of(&x, k, p),
+    };
     let (rank, swept) = rayon::join(
         || rank::check_rank(&x, k, p, &terms, &sweep),
         || (k >= super::wls::PARALLEL_MIN_ROWS).then(|| super::Swept::of(&x, k, p, &sweep)),
@@ -456,12 +487,25 @@ pub fn build(
 ///
 /// # Errors
 /// [`Error::Model`] when it has one value in every included study.
-fn numeric_kind(spec: &ModeratorSpec, v: &Numbers, included: &Rows) -> Result<ModeratorKind> {
+fn numeric_kind(
+    spec: &ModeratorSpec,
+    v: &Numbers,
+    included: &Rows,
+    sweep: Option<&super::ColumnSweep>,
+) -> Result<ModeratorKind> {
     let k = included.len();
     let xs = v.of_rows(included);
     // The sum, smallest and largest value in one sweep (each the same
-    // running value in row order as a sweep of its own), then the squares.
-    let sweep = super::ColumnSweep::of(&xs, k, 1);
+    // running value in row order as a sweep of its own; made before when
+    // given), then the squares.
+    let made;
+    let sweep = match sweep {
+        Some(s) => s,
+        None => {
+            made = super::ColumnSweep::of(&xs, k, 1);
+            &made
+        }
+    };
     let (min, max) = (sweep.lo[0], sweep.hi[0]);
     let mean = sweep.sum[0] / k as f64;
     let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k as f64 - 1.0).max(1.0);
@@ -563,11 +607,14 @@ fn level_codes(raw: &[RawModerator], moderators: &[Moderator]) -> Vec<Option<Vec
         .map(|(r, m)| match (r, &m.kind) {
             (RawModerator::Text(v), ModeratorKind::Categorical { levels, .. }) => {
                 let by_code = v.positions(levels);
-                Some(
-                    (0..v.len())
-                        .map(|i| v.code(i).and_then(|c| by_code[c]).unwrap_or(0))
-                        .collect(),
-                )
+                // In fixed pieces on every core (each row on its own).
+                let mut codes = vec![0; v.len()];
+                pieces::fill(&mut codes, |first, out| {
+                    for (n, o) in out.iter_mut().enumerate() {
+                        *o = v.code(first + n).and_then(|c| by_code[c]).unwrap_or(0);
+                    }
+                });
+                Some(codes)
             }
             _ => None,
         })
