@@ -148,6 +148,7 @@ pub fn fit_parts(
         x: &st.x,
         a: &st.a,
         log_det_a: st.log_det_a,
+        ones: false,
     };
     let (mut fit, m_inv) = fit_scaled(y, v, &scaled, options, with_ci)?;
     per_study(&mut fit, (y, v, x), &scaled, &m_inv);
@@ -201,6 +202,7 @@ pub(crate) fn fit_summary_swept(
         x: &x,
         a: &a,
         log_det_a,
+        ones: ones_only,
     };
     Ok(fit_scaled(y, v, &scaled, options, with_ci)?.0)
 }
@@ -222,6 +224,8 @@ struct Scaled<'a> {
     x: &'a [f64],
     a: &'a DMatrix<f64>,
     log_det_a: f64,
+    /// X̃ is one column of ones (its passes need not read it).
+    ones: bool,
 }
 
 /// The fit on the standardised design, with the per-study arrays left
@@ -241,7 +245,8 @@ fn fit_scaled(
     let ev = match ols_beta {
         Some(b) if k >= near::FEWER_PASSES_MIN_ROWS => near::Evaluator::around(data.clone(), b),
         _ => near::Evaluator::new(data.clone()),
-    };
+    }
+    .of_ones(st.ones);
     let tau2 = tau2::estimate_with(&ev, options.method, hint)?;
     let t = tau2.estimate;
     let singular = || {

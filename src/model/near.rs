@@ -93,6 +93,8 @@ struct Work {
     n3d: DVector<f64>,
     u: DVector<f64>,
     m_inv_u: DVector<f64>,
+    /// The design is one column of ones ([`Evaluator::of_ones`]).
+    ones: bool,
 }
 
 impl Work {
@@ -113,6 +115,7 @@ impl Work {
             n3d: vec(),
             u: vec(),
             m_inv_u: vec(),
+            ones: false,
         }
     }
 }
@@ -135,7 +138,14 @@ fn fit_near_in(
     want: Want,
     beta0: &DVector<f64>,
 ) -> Option<Wls> {
-    accumulate(data, tau2, want, beta0.as_slice(), &mut work.sums);
+    accumulate(
+        data,
+        work.ones,
+        tau2,
+        want,
+        beta0.as_slice(),
+        &mut work.sums,
+    );
     finish(work, data, tau2, want, beta0)
 }
 
@@ -164,6 +174,7 @@ fn finish(
         u,
         m_inv_u,
         many: _,
+        ones: _,
     } = work;
     fill_symmetric(m, &s.m, p);
     // The factorisation takes the matrix; it is given back below (or
@@ -313,6 +324,15 @@ impl<'a> Evaluator<'a> {
         }
     }
 
+    /// The evaluator for a design known to be one column of ones (the
+    /// intercept-only model): its passes do not read the column (the same
+    /// sums, bit for bit). Any other design is evaluated as by `self`.
+    pub fn of_ones(self, ones: bool) -> Self {
+        let ones = ones && self.data.p == 1;
+        self.work.borrow_mut().ones = ones;
+        self
+    }
+
     /// Whether the first fit is taken around coefficients given to
     /// [`Evaluator::around`] (so fits at several τ² around them need no
     /// second pass as a rule), not around β₀ = 0.
@@ -394,7 +414,7 @@ impl<'a> Evaluator<'a> {
             .collect();
         let mut many = std::mem::take(&mut work.many);
         many.resize_with(points.len(), Sums::default);
-        accumulate_many(&self.data, &points, want, &mut many);
+        accumulate_many(&self.data, work.ones, &points, want, &mut many);
         for (sums, &tau2) in many.iter_mut().zip(&missing) {
             std::mem::swap(&mut work.sums, sums);
             let Some(f) = finish(work, &self.data, tau2, want, &beta0) else {

@@ -76,9 +76,17 @@ impl Sums {
 /// does not depend on the number of threads), in parallel for large k,
 /// written into `out` (whose buffers are reused: a serial pass allocates
 /// nothing once they have their size).
-pub(super) fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], out: &mut Sums) {
+pub(super) fn accumulate(
+    data: &Data<'_>,
+    ones: bool,
+    tau2: f64,
+    want: Want,
+    beta0: &[f64],
+    out: &mut Sums,
+) {
     accumulate_many(
         data,
+        ones,
         &[Point { tau2, beta0 }],
         want,
         std::slice::from_mut(out),
@@ -88,9 +96,12 @@ pub(super) fn accumulate(data: &Data<'_>, tau2: f64, want: Want, beta0: &[f64], 
 /// The sums at several points (τ², β₀) in one pass over the studies:
 /// `outs[j]` gets the very bits a pass at `points[j]` alone gives (the
 /// same chunks, blocks, lanes and order of additions; the design rows are
-/// only read once for all points).
+/// only read once for all points). With `ones` (the design is one column of
+/// ones: the intercept-only model) that column is not read at all
+/// ([`in_lanes_at`]).
 pub(super) fn accumulate_many(
     data: &Data<'_>,
+    ones: bool,
     points: &[Point<'_>],
     want: Want,
     outs: &mut [Sums],
@@ -98,13 +109,13 @@ pub(super) fn accumulate_many(
     use rayon::prelude::*;
     count_pass();
     if data.k() < PARALLEL_MIN_ROWS {
-        return serial_many(data, points, want, outs);
+        return serial_many(data, ones, points, want, outs);
     }
     let parts: Vec<Vec<Sums>> = chunks(data)
         .par_iter()
         .map(|d| {
             let mut s = vec![Sums::default(); points.len()];
-            serial_many(d, points, want, &mut s);
+            serial_many(d, ones, points, want, &mut s);
             s
         })
         .collect();
@@ -124,16 +135,22 @@ pub(super) struct Point<'a> {
     pub(super) beta0: &'a [f64],
 }
 
-fn serial_many(data: &Data<'_>, points: &[Point<'_>], want: Want, outs: &mut [Sums]) {
+fn serial_many(data: &Data<'_>, ones: bool, points: &[Point<'_>], want: Want, outs: &mut [Sums]) {
     macro_rules! fixed {
         ($p:literal) => {
+            fixed!($p, false)
+        };
+        ($p:literal, $ones:literal) => {
             match (want.log_terms, want.curvature) {
-                (false, false) => fixed_many::<$p, false, false>(data, points, outs),
-                (true, false) => fixed_many::<$p, true, false>(data, points, outs),
-                (false, true) => fixed_many::<$p, false, true>(data, points, outs),
-                (true, true) => fixed_many::<$p, true, true>(data, points, outs),
+                (false, false) => fixed_many::<$p, false, false, $ones>(data, points, outs),
+                (true, false) => fixed_many::<$p, true, false, $ones>(data, points, outs),
+                (false, true) => fixed_many::<$p, false, true, $ones>(data, points, outs),
+                (true, true) => fixed_many::<$p, true, true, $ones>(data, points, outs),
             }
         };
+    }
+    if ones && data.p == 1 {
+        return fixed!(1, true);
     }
     by_columns!(
         data.p,
@@ -361,6 +378,28 @@ impl<const P: usize> LaneSums<P> {
             add_matrix(&mut self.n3, &b.w3, &b.x, n);
         }
     }
+
+    /// [`LaneSums::add_block`] for a design of one column of ones (P = 1),
+    /// which is not read: each sum over f·x_a·x_c or x_a·f is the sum over f,
+    /// and since f·1 = f exactly, adding f gives the very bits the general
+    /// block gives with a column of ones (its rows past the end are 0 there
+    /// and f is 0 here: the same +0).
+    #[inline(always)]
+    fn add_block_ones<const CURV: bool>(&mut self, b: &Block<P>, n: usize) {
+        add_sum(&mut self.scalars[0], &b.w, n);
+        add_dot(&mut self.scalars[2], &b.wr, &b.r, n);
+        add_dot(&mut self.scalars[3], &b.w2r, &b.r, n);
+        add_sum(&mut self.g[0], &b.wr, n);
+        add_sum(&mut self.h[0], &b.w2r, n);
+        add_sum(&mut self.m[0][0], &b.w, n);
+        add_sum(&mut self.n2[0][0], &b.w2, n);
+        if CURV {
+            add_sum(&mut self.scalars[1], &b.w2, n);
+            add_dot(&mut self.scalars[4], &b.w3r, &b.r, n);
+            add_sum(&mut self.h3[0], &b.w3r, n);
+            add_sum(&mut self.n3[0][0], &b.w3, n);
+        }
+    }
 }
 
 /// The sums for `P` columns at each of `points` into `outs` (the design
@@ -370,7 +409,7 @@ impl<const P: usize> LaneSums<P> {
 /// ([`running`]) below (for the small fits of permutation tests and
 /// simulations, where the lanes' fixed costs per pass outweigh their gain:
 /// the permutation benchmark at k = 50 took 0.12-0.13 s against 0.09-0.10 s).
-pub(super) fn fixed_many<const P: usize, const LOG: bool, const CURV: bool>(
+pub(super) fn fixed_many<const P: usize, const LOG: bool, const CURV: bool, const ONES: bool>(
     data: &Data<'_>,
     points: &[Point<'_>],
     outs: &mut [Sums],
@@ -385,10 +424,10 @@ pub(super) fn fixed_many<const P: usize, const LOG: bool, const CURV: bool>(
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: `in_lanes_avx2` only needs the processor to have AVX2,
         // which was detected at run time on the line above.
-        unsafe { in_lanes_avx2::<P, LOG, CURV>(data, points, outs) };
+        unsafe { in_lanes_avx2::<P, LOG, CURV, ONES>(data, points, outs) };
         return;
     }
-    in_lanes_at::<P, LOG, CURV>(data, points, outs);
+    in_lanes_at::<P, LOG, CURV, ONES>(data, points, outs);
 }
 
 /// [`in_lanes_at`] compiled for processors with AVX2 (called only where it
@@ -402,12 +441,12 @@ pub(super) fn fixed_many<const P: usize, const LOG: bool, const CURV: bool>(
 /// baseline build in `near_tests`.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-pub(super) fn in_lanes_avx2<const P: usize, const LOG: bool, const CURV: bool>(
+pub(super) fn in_lanes_avx2<const P: usize, const LOG: bool, const CURV: bool, const ONES: bool>(
     data: &Data<'_>,
     points: &[Point<'_>],
     outs: &mut [Sums],
 ) {
-    in_lanes_at::<P, LOG, CURV>(data, points, outs);
+    in_lanes_at::<P, LOG, CURV, ONES>(data, points, outs);
 }
 
 /// The sums for `P` columns with one running sum per entry, rows in order.
@@ -483,16 +522,19 @@ pub(super) fn in_lanes<const P: usize, const LOG: bool, const CURV: bool>(
     beta0: &[f64],
     out: &mut Sums,
 ) {
-    in_lanes_at::<P, LOG, CURV>(data, &[Point { tau2, beta0 }], std::slice::from_mut(out));
+    in_lanes_at::<P, LOG, CURV, false>(data, &[Point { tau2, beta0 }], std::slice::from_mut(out));
 }
 
 /// [`in_lanes_at`] at each of `points` into `outs`: each block's design rows
 /// are copied once, then each point's weights, residuals and sums follow in
 /// turn (so every point's sums are those of a pass at that point alone). Always
 /// inlined, so that [`in_lanes_avx2`] compiles its body (and that of every
-/// helper, all inlined too) for AVX2.
+/// helper, all inlined too) for AVX2. With `ONES` (P = 1 and the design a
+/// column of ones) the design is not read: the block's column is ones, each
+/// fit x'β₀ is β₀ (1·β₀ exactly) and the sums are
+/// [`LaneSums::add_block_ones`], the same bits as the general block's.
 #[inline(always)]
-fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool>(
+fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool, const ONES: bool>(
     data: &Data<'_>,
     points: &[Point<'_>],
     outs: &mut [Sums],
@@ -500,7 +542,7 @@ fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool>(
     let mut accs: Vec<LaneSums<P>> = points.iter().map(|_| LaneSums::new()).collect();
     let zero = [0.0; BLOCK];
     let mut b = Block::<P> {
-        x: [zero; P],
+        x: [if ONES { [1.0; BLOCK] } else { zero }; P],
         r: zero,
         w: zero,
         w2: zero,
@@ -509,15 +551,15 @@ fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool>(
         w2r: zero,
         w3r: zero,
     };
-    let blocks = data
-        .x
-        .chunks(BLOCK * P)
-        .zip(data.v.chunks(BLOCK))
-        .zip(data.y.chunks(BLOCK));
-    for ((xs, vs), ys) in blocks {
-        for (i, xi) in xs.chunks_exact(P).enumerate() {
-            for (column, &xa) in b.x.iter_mut().zip(xi) {
-                column[i] = xa;
+    let x = if ONES { &[][..] } else { data.x };
+    let blocks = data.v.chunks(BLOCK).zip(data.y.chunks(BLOCK)).enumerate();
+    for (j, (vs, ys)) in blocks {
+        if !ONES {
+            let xs = &x[j * BLOCK * P..(j * BLOCK + ys.len()) * P];
+            for (i, xi) in xs.chunks_exact(P).enumerate() {
+                for (column, &xa) in b.x.iter_mut().zip(xi) {
+                    column[i] = xa;
+                }
             }
         }
         // The last block's rows up to a whole lane are empty (the rows
@@ -537,10 +579,16 @@ fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool>(
             // the residuals and their products.
             for (i, (&vi, &yi)) in vs.iter().zip(ys).enumerate() {
                 let w = 1.0 / (vi + tau2);
-                let mut fit = 0.0;
-                for (column, &ba) in b.x.iter().zip(b0) {
-                    fit += column[i] * ba;
-                }
+                // 0 + 1·β₀ is 0 + β₀ (a −0 turned +0, as the general sum does).
+                let fit = if ONES {
+                    0.0 + b0[0]
+                } else {
+                    let mut fit = 0.0;
+                    for (column, &ba) in b.x.iter().zip(b0) {
+                        fit += column[i] * ba;
+                    }
+                    fit
+                };
                 let r = yi - fit;
                 let wr = w * r;
                 let w2r = w * wr;
@@ -554,7 +602,11 @@ fn in_lanes_at<const P: usize, const LOG: bool, const CURV: bool>(
                     acc.scalars[5][i % LANES] += (vi + tau2).ln();
                 }
             }
-            acc.add_block::<CURV>(&b, n);
+            if ONES {
+                acc.add_block_ones::<CURV>(&b, n);
+            } else {
+                acc.add_block::<CURV>(&b, n);
+            }
         }
     }
     for (acc, out) in accs.iter().zip(outs) {

@@ -251,7 +251,7 @@ fn many_columns_use_the_general_loop_and_agree() {
         let mut s = Sums::default();
         general(&d8, 0.03, Want::CURVATURE, b8.as_slice(), &mut s);
         let general = s.sum_w3r2;
-        fixed_many::<8, false, true>(
+        fixed_many::<8, false, true, false>(
             &d8,
             &[Point {
                 tau2: 0.03,
@@ -386,10 +386,10 @@ fn same_bits_with_avx2<const P: usize>(
         // SAFETY: AVX2 was detected on the line above.
         unsafe {
             match (log, curv) {
-                (false, false) => in_lanes_avx2::<P, false, false>(d, &point, out),
-                (true, false) => in_lanes_avx2::<P, true, false>(d, &point, out),
-                (false, true) => in_lanes_avx2::<P, false, true>(d, &point, out),
-                (true, true) => in_lanes_avx2::<P, true, true>(d, &point, out),
+                (false, false) => in_lanes_avx2::<P, false, false, false>(d, &point, out),
+                (true, false) => in_lanes_avx2::<P, true, false, false>(d, &point, out),
+                (false, true) => in_lanes_avx2::<P, false, true, false>(d, &point, out),
+                (true, true) => in_lanes_avx2::<P, true, true, false>(d, &point, out),
             }
         }
         let bits = |s: &Sums| -> Vec<u64> {
@@ -538,10 +538,10 @@ fn a_pass_at_several_points_gives_each_point_s_own_sums() {
             .collect();
         for want in [Want::Q, Want::SCORE, Want::ALL, Want::CURVATURE] {
             let mut together = vec![Sums::default(); points.len()];
-            accumulate_many(&d, &points, want, &mut together);
+            accumulate_many(&d, false, &points, want, &mut together);
             for (pt, got) in points.iter().zip(&together) {
                 let mut alone = Sums::default();
-                accumulate(&d, pt.tau2, want, pt.beta0, &mut alone);
+                accumulate(&d, false, pt.tau2, want, pt.beta0, &mut alone);
                 let bits = |s: &Sums| -> Vec<u64> {
                     [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
                         .into_iter()
@@ -564,6 +564,84 @@ fn a_pass_at_several_points_gives_each_point_s_own_sums() {
                     pt.tau2
                 );
             }
+        }
+    }
+}
+
+/// The passes of a design of one column of ones that do not read it give the
+/// very bits of the passes that do: below the block size, with a last block
+/// and a last lane cut short, above the parallel threshold, at several
+/// points at once, with every optional part, and with −0 among the effects
+/// and the coefficients.
+#[test]
+fn passes_without_the_column_of_ones_give_its_bits() {
+    use super::sums::{accumulate, accumulate_many};
+    use crate::model::wls::PARALLEL_MIN_ROWS;
+    for k in [5usize, 63, 64, 130, 1027, PARALLEL_MIN_ROWS + 77] {
+        let unit = |i: usize, s: usize| ((i * s + 13) % 1009) as f64 / 1009.0;
+        let v: Vec<f64> = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
+        let y: Vec<f64> = (0..k)
+            .map(|i| {
+                if i % 11 == 0 {
+                    -0.0
+                } else {
+                    3.0 * unit(i, 104_729) - 0.3
+                }
+            })
+            .collect();
+        let x = vec![1.0; k];
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: 1,
+        };
+        let betas = [[-0.0], [0.25], [-1.5]];
+        let points: Vec<Point<'_>> = [0.0, 0.3, 7.5]
+            .iter()
+            .zip(&betas)
+            .map(|(&tau2, b)| Point { tau2, beta0: b })
+            .collect();
+        let bits = |s: &Sums| -> Vec<u64> {
+            [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
+                .into_iter()
+                .flatten()
+                .chain(&[
+                    s.sum_w,
+                    s.sum_w2,
+                    s.sum_wr2,
+                    s.sum_w2r2,
+                    s.sum_w3r2,
+                    s.sum_log_vt,
+                ])
+                .map(|x| x.to_bits())
+                .collect()
+        };
+        let (all, curvature_and_logs) = (
+            Want::ALL,
+            Want {
+                log_terms: true,
+                ..Want::CURVATURE
+            },
+        );
+        for want in [
+            Want::Q,
+            Want::SCORE,
+            all,
+            Want::CURVATURE,
+            curvature_and_logs,
+        ] {
+            let mut read = vec![Sums::default(); points.len()];
+            let mut unread = vec![Sums::default(); points.len()];
+            accumulate_many(&d, false, &points, want, &mut read);
+            accumulate_many(&d, true, &points, want, &mut unread);
+            for (j, (a, b)) in read.iter().zip(&unread).enumerate() {
+                assert_eq!(bits(a), bits(b), "k = {k}, point {j}, {want:?}");
+                assert!(!b.m.is_empty() && !b.g.is_empty());
+            }
+            let mut alone = Sums::default();
+            accumulate(&d, true, 0.3, want, &betas[1], &mut alone);
+            assert_eq!(bits(&alone), bits(&read[1]), "k = {k}, alone, {want:?}");
         }
     }
 }
