@@ -224,9 +224,19 @@ impl NumberCells {
     }
 
     /// Appends a number read from a cell in its shortest form (see
-    /// [`plain::short_in_shortest_form`]).
+    /// [`plain::short_with_form`]).
     #[inline]
     pub(crate) fn push_value(&mut self, x: f64) {
+        self.values.push(x);
+    }
+
+    /// Appends a number read from a cell of [`plain::short_with_form`]'s
+    /// form that is not its shortest form (`1.6430`), with the cell's text
+    /// (what [`NumberCells::push`] keeps for it, without reading it again).
+    #[inline]
+    pub(crate) fn push_kept(&mut self, x: f64, cell: &str) {
+        self.kept_rows.push(self.values.len());
+        self.kept.push(cell);
         self.values.push(x);
     }
 

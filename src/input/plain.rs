@@ -142,26 +142,19 @@ fn digits_value(a: u64, n: u32) -> u64 {
 /// path of [`long`]).
 #[inline(always)]
 fn short(bytes: &[u8]) -> Option<(f64, usize)> {
-    short_parts(bytes).map(|(v, i, _)| (v, i))
+    short_with_form(bytes).map(|(v, i, _)| (v, i))
 }
 
 /// [`short`]'s number, its length, and whether it is written in its
 /// shortest form: no leading zero before the point (but a lone `0`), no
 /// trailing zero after it. With at most 14 digits, no `+` and no exponent,
 /// that is the text Rust's `Display` writes for the number (see
-/// `super::column`'s `is_shortest_form`, which says why).
+/// `super::column`'s `is_shortest_form`, which says why). A cell of this
+/// form that is not its number's shortest (`1.6430`, `-0.0`, `007`) still
+/// has its value here, correctly rounded as [`parse`] gives it; only its
+/// text must be kept beside it.
 #[inline(always)]
-pub(crate) fn short_in_shortest_form(bytes: &[u8]) -> Option<(f64, usize)> {
-    match short_parts(bytes) {
-        Some((v, i, true)) => Some((v, i)),
-        _ => None,
-    }
-}
-
-/// [`short`], with whether the number is in its shortest form (see
-/// [`short_in_shortest_form`]).
-#[inline(always)]
-fn short_parts(bytes: &[u8]) -> Option<(f64, usize, bool)> {
+pub(crate) fn short_with_form(bytes: &[u8]) -> Option<(f64, usize, bool)> {
     let negative = bytes.first() == Some(&b'-');
     let mut i = usize::from(negative);
     let (n, a) = leading_digits(load8(bytes, i));

@@ -292,7 +292,7 @@ fn read_piece(
             return Outcome::Stop(());
         }
         for (column, &i) in cells.columns.iter_mut().zip(shape.wanted) {
-            if let (Cells::Numbers(n), Some(x)) = (&mut *column, parsed[i]) {
+            if let (Cells::Numbers(n), Some((x, true))) = (&mut *column, parsed[i]) {
                 n.push_value(x);
                 continue;
             }
@@ -304,6 +304,13 @@ fn read_piece(
                     Err(_) => return Outcome::Stop(()),
                 },
             };
+            // A short number not in its shortest form (`1.6430`): its value
+            // read while the row was split, its text (the whole field, with
+            // nothing to trim) kept beside it.
+            if let (Cells::Numbers(n), Some((x, false))) = (&mut *column, parsed[i]) {
+                n.push_kept(x, cell);
+                continue;
+            }
             // A cell of numbers not read while the row was split is not
             // a short number in its shortest form: read from its text.
             column.push(trim(cell));
@@ -317,28 +324,29 @@ fn read_piece(
 }
 
 /// [`pieces::split_line`], reading on the way each field of numbers
-/// (`shape.number_fields`) that starts with a number in its shortest form
-/// ending at the field's end ([`plain::short_in_shortest_form`]): its value
-/// in `parsed` (None for any other such field, read later from its text),
-/// the number's bytes swept once instead of twice.
+/// (`shape.number_fields`) that starts with a short plain number ending at
+/// the field's end ([`plain::short_with_form`]): its value and whether it is
+/// written in its shortest form in `parsed` (None for any other such field,
+/// read later from its text), the number's bytes swept once instead of
+/// twice.
 #[inline]
 fn split_reading_numbers(
     bytes: &[u8],
     pos: usize,
     shape: &Shape<'_>,
     fields: &mut Vec<(usize, usize)>,
-    parsed: &mut [Option<f64>],
+    parsed: &mut [Option<(f64, bool)>],
 ) -> usize {
     let delimiter = shape.delimiter;
     pieces::split_line_reading(bytes, pos, delimiter, fields, |f, pos| {
         if shape.number_fields.get(f) != Some(&true) {
             return None;
         }
-        let read = plain::short_in_shortest_form(&bytes[pos..]).filter(|&(_, n)| {
+        let read = plain::short_with_form(&bytes[pos..]).filter(|&(_, n, _)| {
             matches!(bytes.get(pos + n), None | Some(b'\n' | b'\r')) || bytes[pos + n] == delimiter
         });
-        parsed[f] = read.map(|(x, _)| x);
-        read.map(|(_, n)| pos + n)
+        parsed[f] = read.map(|(x, _, shortest)| (x, shortest));
+        read.map(|(_, n, _)| pos + n)
     })
 }
 
