@@ -482,8 +482,12 @@ fn fnv1a(text: &str) -> u64 {
 /// most-significant-digit radix sort, Knuth, TAOCP vol. 3, §5.2.5), in
 /// fixed runs of rows on every core; then each bucket (its part of every
 /// run, in run order: about 500 hashes at a million studies, in the core's
-/// cache) is sorted on its own on every core. The buckets in order are the
-/// whole list sorted, so the answer does not depend on the thread count.
+/// cache) is searched for repeats on its own on every core, each hash
+/// looked up in a table of the hashes seen before it in the bucket (open
+/// addressing with linear probing, Knuth §6.4 algorithm L; the slot from the
+/// top bits of the hash times 2⁶⁴/φ, Fibonacci hashing, §6.4), and the
+/// repeats, few as a rule, sorted. The buckets in order give the answer,
+/// which does not depend on the thread count.
 fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
     use rayon::prelude::*;
     const BITS: u32 = 11;
@@ -513,17 +517,43 @@ fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
     drop(hashes);
     let repeated: Vec<Vec<u64>> = (0..1usize << BITS)
         .into_par_iter()
-        .map(|b| {
-            let mut all: Vec<u64> = runs
+        .map_init(Vec::new, |table: &mut Vec<u64>, b| {
+            let n: usize = runs.iter().map(|(_, s)| s[b + 1] - s[b]).sum();
+            // At most half full; 0 marks an empty slot, so the hash 0 is
+            // counted apart.
+            let size = (2 * n).next_power_of_two().max(16);
+            let shift = 64 - size.trailing_zeros();
+            table.clear();
+            table.resize(size, 0);
+            let (mut zeros, mut found) = (0usize, Vec::new());
+            let hashes = runs
                 .iter()
-                .flat_map(|(placed, starts)| &placed[starts[b]..starts[b + 1]])
-                .copied()
-                .collect();
-            all.sort_unstable();
-            all.windows(2)
-                .filter(|w| w[0] == w[1])
-                .map(|w| w[0])
-                .collect()
+                .flat_map(|(placed, starts)| &placed[starts[b]..starts[b + 1]]);
+            for &h in hashes {
+                if h == 0 {
+                    zeros += 1;
+                    if zeros > 1 {
+                        found.push(0);
+                    }
+                    continue;
+                }
+                let mut slot = (h.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> shift) as usize;
+                loop {
+                    match table[slot] {
+                        0 => {
+                            table[slot] = h;
+                            break;
+                        }
+                        t if t == h => {
+                            found.push(h);
+                            break;
+                        }
+                        _ => slot = (slot + 1) & (size - 1),
+                    }
+                }
+            }
+            found.sort_unstable();
+            found
         })
         .collect();
     repeated.concat()
