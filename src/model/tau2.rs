@@ -76,11 +76,13 @@ pub fn scale_hint_and_ols(data: &Data<'_>) -> (f64, Option<DVector<f64>>) {
         Some((beta, _, rss)) => (Some(beta), rss),
         None => (None, 0.0),
     };
-    let mean_v = data.v.iter().sum::<f64>() / k;
     let s = rss / df;
+    // The mean sampling variance only when it is the hint (a sweep over
+    // the studies saved otherwise).
     let hint = if s > 0.0 && s.is_finite() {
         s
     } else {
+        let mean_v = data.v.iter().sum::<f64>() / k;
         mean_v.max(f64::MIN_POSITIVE)
     };
     (hint, beta)
