@@ -392,23 +392,7 @@ fn same_bits_with_avx2<const P: usize>(
                 (true, true) => in_lanes_avx2::<P, true, true, false>(d, &point, out),
             }
         }
-        let bits = |s: &Sums| -> Vec<u64> {
-            let scalars = [
-                s.sum_w,
-                s.sum_w2,
-                s.sum_wr2,
-                s.sum_w2r2,
-                s.sum_w3r2,
-                s.sum_log_vt,
-            ];
-            [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
-                .into_iter()
-                .flatten()
-                .chain(&scalars)
-                .map(|x| x.to_bits())
-                .collect()
-        };
-        assert_eq!(bits(lanes), bits(&wide), "P = {P}, k = {}", d.k());
+        assert_eq!(sums_bits(lanes), sums_bits(&wide), "P = {P}, k = {}", d.k());
     }
 }
 
@@ -454,16 +438,6 @@ fn lanes_agree_with_running_sums<const P: usize>() {
                 (true, true) => running::<P, true, true>(&d, 0.02, &beta0, &mut run),
             }
             let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * a.abs().max(b.abs()).max(1e-300);
-            let scalars = |s: &Sums| {
-                [
-                    s.sum_w,
-                    s.sum_w2,
-                    s.sum_wr2,
-                    s.sum_w2r2,
-                    s.sum_w3r2,
-                    s.sum_log_vt,
-                ]
-            };
             let vectors = |s: &Sums| {
                 [
                     s.m.clone(),
@@ -499,6 +473,28 @@ fn the_lane_kernel_agrees_with_running_sums_for_every_size() {
     lanes_agree_with_running_sums::<6>();
     lanes_agree_with_running_sums::<7>();
     lanes_agree_with_running_sums::<8>();
+}
+
+/// The scalar sums of a pass, in a fixed order.
+fn scalars(s: &Sums) -> [f64; 6] {
+    [
+        s.sum_w,
+        s.sum_w2,
+        s.sum_wr2,
+        s.sum_w2r2,
+        s.sum_w3r2,
+        s.sum_log_vt,
+    ]
+}
+
+/// Every sum of a pass, as bits (in a fixed order).
+fn sums_bits(s: &Sums) -> Vec<u64> {
+    [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
+        .into_iter()
+        .flatten()
+        .chain(&scalars(s))
+        .map(|x| x.to_bits())
+        .collect()
 }
 
 /// The sums of one pass at several points are, point by point, the very
@@ -542,24 +538,9 @@ fn a_pass_at_several_points_gives_each_point_s_own_sums() {
             for (pt, got) in points.iter().zip(&together) {
                 let mut alone = Sums::default();
                 accumulate(&d, false, pt.tau2, want, pt.beta0, &mut alone);
-                let bits = |s: &Sums| -> Vec<u64> {
-                    [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
-                        .into_iter()
-                        .flatten()
-                        .chain(&[
-                            s.sum_w,
-                            s.sum_w2,
-                            s.sum_wr2,
-                            s.sum_w2r2,
-                            s.sum_w3r2,
-                            s.sum_log_vt,
-                        ])
-                        .map(|x| x.to_bits())
-                        .collect()
-                };
                 assert_eq!(
-                    bits(got),
-                    bits(&alone),
+                    sums_bits(got),
+                    sums_bits(&alone),
                     "k = {k}, p = {p}, τ² = {}, {want:?}",
                     pt.tau2
                 );
@@ -602,21 +583,6 @@ fn passes_without_the_column_of_ones_give_its_bits() {
             .zip(&betas)
             .map(|(&tau2, b)| Point { tau2, beta0: b })
             .collect();
-        let bits = |s: &Sums| -> Vec<u64> {
-            [&s.m, &s.n2, &s.n3, &s.g, &s.h, &s.h3]
-                .into_iter()
-                .flatten()
-                .chain(&[
-                    s.sum_w,
-                    s.sum_w2,
-                    s.sum_wr2,
-                    s.sum_w2r2,
-                    s.sum_w3r2,
-                    s.sum_log_vt,
-                ])
-                .map(|x| x.to_bits())
-                .collect()
-        };
         let (all, curvature_and_logs) = (
             Want::ALL,
             Want {
@@ -636,12 +602,16 @@ fn passes_without_the_column_of_ones_give_its_bits() {
             accumulate_many(&d, false, &points, want, &mut read);
             accumulate_many(&d, true, &points, want, &mut unread);
             for (j, (a, b)) in read.iter().zip(&unread).enumerate() {
-                assert_eq!(bits(a), bits(b), "k = {k}, point {j}, {want:?}");
+                assert_eq!(sums_bits(a), sums_bits(b), "k = {k}, point {j}, {want:?}");
                 assert!(!b.m.is_empty() && !b.g.is_empty());
             }
             let mut alone = Sums::default();
             accumulate(&d, true, 0.3, want, &betas[1], &mut alone);
-            assert_eq!(bits(&alone), bits(&read[1]), "k = {k}, alone, {want:?}");
+            assert_eq!(
+                sums_bits(&alone),
+                sums_bits(&read[1]),
+                "k = {k}, alone, {want:?}"
+            );
         }
     }
 }
