@@ -324,3 +324,43 @@ fn the_shortcut_trim_is_str_trim() {
     }
     assert_eq!(table_pieces::trim(""), "");
 }
+
+/// Numbers read from the bytes while a row is split keep, when they are not
+/// written in their shortest form (a trailing zero, a leading zero, −0.0),
+/// their text beside their value: every cell gives back its text as
+/// written and the number `str::parse` gives, in pieces of any size.
+#[test]
+fn short_numbers_not_in_their_shortest_form_keep_their_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("f.csv");
+    let cells = [
+        "1.50", "-0.0", "007", "2.5", "-12.050", "0", "10", "0.000", "3.1416",
+    ];
+    let mut data = b"study,x\n".to_vec();
+    for (i, c) in cells.iter().cycle().take(90).enumerate() {
+        writeln!(data, "s{i},{c}").unwrap();
+    }
+    std::fs::write(&path, &data).unwrap();
+    let requests = [ColumnRequest {
+        header: "x".into(),
+        required: true,
+        purpose: "a test column".into(),
+        hint: "Name it.".into(),
+        label: false,
+        numbers: true,
+    }];
+    for size in [1, 16, 64, 4096] {
+        assert!(table_pieces::read("f.csv", &path, &requests, true, size).is_some());
+        let t = parse_table_file_in("f.csv", &path, &requests, None, size).unwrap();
+        let x = t.columns[0].as_ref().unwrap();
+        for (i, want) in cells.iter().cycle().take(90).enumerate() {
+            assert_eq!(x.text(i), *want, "row {i}, pieces of {size} bytes");
+            let n = want.parse::<f64>().unwrap();
+            assert!(
+                matches!(x.number(i), super::number::Cell::Value(v) if v.to_bits() == n.to_bits()),
+                "row {i}: {:?} against {n}",
+                x.number(i)
+            );
+        }
+    }
+}
