@@ -455,8 +455,8 @@ pub(crate) fn build_swept(
             coder.encode(value, row);
         }
     });
-    // The rank check's triangle on every core; beside it, on one, the sums
-    // of squares the standardisation will need (a sweep in row order).
+    // Each column's sum and ends, from the moderators' sweeps when they
+    // give them (checked against a sweep of the design in debug builds).
     let sweep = match sweep::from_moderators(&coder, sweeps, k) {
         Some(s) => {
             debug_assert!(
@@ -467,6 +467,8 @@ pub(crate) fn build_swept(
         }
         None => super::ColumnSweep::of(&x, k, p),
     };
+    // The rank check's triangle on every core; beside it, on one, the sums
+    // of squares the standardisation will need (a sweep in row order).
     let (rank, swept) = rayon::join(
         || rank::check_rank(&x, k, p, &terms, &sweep),
         || (k >= super::wls::PARALLEL_MIN_ROWS).then(|| super::Swept::of(&x, k, p, &sweep)),

@@ -212,6 +212,8 @@ fn total(lane: &Lane) -> f64 {
 /// partial sums stay in registers.
 #[inline(always)]
 fn add_matrix<const P: usize>(acc: &mut [[Lane; P]; P], f: &Column, x: &[Column; P], n: usize) {
+    // The rows below are those of the widest fixed kernel ([`by_columns!`]).
+    const { assert!(P <= 8, "add_matrix sums rows 0 to 7") };
     add_matrix_row::<P, 0>(acc, f, x, n);
     add_matrix_row::<P, 1>(acc, f, x, n);
     add_matrix_row::<P, 2>(acc, f, x, n);

@@ -292,15 +292,15 @@ mod tests {
         }
     }
 
-    /// Clearly on either side of the tolerance, for k below and past the
-    /// parallel threshold: a remainder of 1e-6 of
-    /// the column's squared norm passes, an exact combination and one of
-    /// 1e-14 are refused, naming the term.
     /// The rank check of `x` with its own sweep.
     fn check(x: &[f64], k: usize, p: usize, terms: &[Term]) -> Result<()> {
         check_rank(x, k, p, terms, &ColumnSweep::of(x, k, p))
     }
 
+    /// Clearly on either side of the tolerance, for k below and past the
+    /// parallel threshold: a remainder of 1e-6 of
+    /// the column's squared norm passes, an exact combination and one of
+    /// 1e-14 are refused, naming the term.
     #[test]
     fn collinear_columns_are_named() {
         for k in [600, PARALLEL_MIN_ROWS + 777] {
