@@ -28,6 +28,7 @@ pub struct ModeratorSpec {
 pub use crate::result::{Moderator, ModeratorKind};
 pub use values::{Categories, Numbers};
 
+mod fill;
 mod rank;
 mod sweep;
 mod values;
@@ -441,20 +442,7 @@ pub(crate) fn build_swept(
     let codes = level_codes(raw, &moderators);
     let coder = Coder::new(&moderators, interactions);
     debug_assert_eq!(coder.width, p);
-    // Row by row in fixed pieces on every core; each row is written in
-    // place, so the matrix is the same whatever the number of threads.
-    let mut x = vec![0.0; k * p];
-    pieces::fill_wide(&mut x, p, |first, out| {
-        for (n, row) in out.chunks_exact_mut(p).enumerate() {
-            let i = included.get(first + n);
-            let value = |j: usize| match (&raw[j], &codes[j]) {
-                (RawModerator::Numeric(v), _) => Coded::Number(v.0[i]),
-                (RawModerator::Text(_), Some(c)) => Coded::Level(c[i]),
-                (RawModerator::Text(_), None) => Coded::Number(f64::NAN),
-            };
-            coder.encode(value, row);
-        }
-    });
+    let x = fill::rows(&coder, raw, &codes, included);
     // Each column's sum and ends, from the moderators' sweeps when they
     // give them (checked against a sweep of the design in debug builds).
     let sweep = match sweep::from_moderators(&coder, sweeps, k) {
