@@ -154,7 +154,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         pick_f64(effects.v, &included),
     );
     check_range(source, &y, &v, &included, (&table.lines, &places))?;
-    let every_row = included.len() == effects.from.len();
+    let every_row = matches!(included, Rows::Every(_));
     let labels = labels(&mut table, &included);
     release(&mut table, 0..1);
     Ok(Studies {
@@ -164,15 +164,15 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
         routes: if every_row {
             effects.from
         } else {
-            included.iter().map(|&i| effects.from[i]).collect()
+            included.iter().map(|i| effects.from[i]).collect()
         },
         checks: by_study(effects.checks, &included),
         labels,
-        lines: Lines::of_rows(&table.lines, &included),
+        lines: Lines::of(&table.lines, &included),
         corrections: if corrections.is_empty() {
             Vec::new()
         } else {
-            included.iter().map(|&i| corrections[i]).collect()
+            included.iter().map(|i| corrections[i]).collect()
         },
         order: order.map(|j| cells(&table, j, false, &included)),
         cluster_ids: cluster.map(|j| cells(&table, j, true, &included)),
@@ -198,7 +198,7 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
             settings.measure.reading_scale()
         },
         table: facts,
-        included: Rows::new(included, table.lines.len()),
+        included,
         places,
     })
 }
@@ -327,9 +327,9 @@ fn spread_columns(
 
 /// A requested column's header and the cells of the included rows,
 /// trimmed or as read.
-fn cells(table: &Table, j: usize, trim: bool, included: &[usize]) -> (String, Vec<String>) {
+fn cells(table: &Table, j: usize, trim: bool, included: &Rows) -> (String, Vec<String>) {
     let col = table.column(j).expect("required column present");
-    let cell = |&i: &usize| {
+    let cell = |i: usize| {
         let c = col.text(i);
         if trim { c.trim() } else { &c }.to_string()
     };
@@ -338,11 +338,10 @@ fn cells(table: &Table, j: usize, trim: bool, included: &[usize]) -> (String, Ve
 
 /// The entries of the included rows, moved to the front of a per-row list
 /// (`included` ascends, so each entry moves down or stays).
-fn pick_f64(mut all: Vec<f64>, included: &[usize]) -> Vec<f64> {
-    if included.len() == all.len() {
-        // Every row, in order (the rows ascend, each at most once).
+fn pick_f64(mut all: Vec<f64>, included: &Rows) -> Vec<f64> {
+    let Rows::Listed(included) = included else {
         return all;
-    }
+    };
     for (to, &from) in included.iter().enumerate() {
         all[to] = all[from];
     }
@@ -353,10 +352,10 @@ fn pick_f64(mut all: Vec<f64>, included: &[usize]) -> Vec<f64> {
 
 /// Texts kept by table row, renumbered by position among the included
 /// rows (rows left out drop theirs).
-fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, String)> {
+fn by_study(by_row: BTreeMap<usize, String>, included: &Rows) -> Vec<(usize, String)> {
     by_row
         .into_iter()
-        .filter_map(|(row, text)| included.binary_search(&row).ok().map(|pos| (pos, text)))
+        .filter_map(|(row, text)| included.position(row).map(|pos| (pos, text)))
         .collect()
 }
 
@@ -368,8 +367,8 @@ fn by_study(by_row: BTreeMap<usize, String>, included: &[usize]) -> Vec<(usize, 
 /// column is the list itself, moved out of the table instead of copied (at
 /// a million studies the copy had taken ~9% of the job's CPU samples in a
 /// profile); otherwise the labels are copied into a list of their exact size.
-fn labels(table: &mut Table, included: &[usize]) -> Texts {
-    let every_row = included.len() == table.lines.len();
+fn labels(table: &mut Table, included: &Rows) -> Texts {
+    let every_row = matches!(included, Rows::Every(_));
     // Every row is a study here, so the column's cells are the labels.
     let labelled = |c: &Column| !c.any_empty();
     if let Some(slot) = table.columns.first_mut().filter(|_| every_row) {
@@ -379,9 +378,9 @@ fn labels(table: &mut Table, included: &[usize]) -> Texts {
             return cells;
         }
     }
-    let bytes = included.iter().map(|&i| label(table, i).len()).sum();
+    let bytes = included.iter().map(|i| label(table, i).len()).sum();
     let mut out = Texts::with_capacity_bytes(included.len(), bytes);
-    for &i in included {
+    for i in included.iter() {
         out.push(&label(table, i));
     }
     out
@@ -410,10 +409,11 @@ fn include(
     effects: &EffectColumn,
     (raw, spread_raw): (&[RawModerator], &[RawModerator]),
     table: &Table,
-) -> (Vec<usize>, Vec<Excluded>) {
-    // The usual case, every row complete, without a look at each row.
+) -> (Rows, Vec<Excluded>) {
+    // The usual case, every row complete, without a look at each row (and
+    // without a list of them).
     if effects.excluded.is_empty() && raw.iter().chain(spread_raw).all(RawModerator::all_present) {
-        return ((0..effects.len()).collect(), Vec::new());
+        return (Rows::Every(effects.len()), Vec::new());
     }
     let mut included = Vec::with_capacity(effects.len() - effects.excluded.len());
     let mut excluded = Vec::new();
@@ -445,7 +445,7 @@ fn include(
             None => included.push(i),
         }
     }
-    (included, excluded)
+    (Rows::new(included, effects.len()), excluded)
 }
 
 /// Refuses a job with no usable study, or only one.
@@ -469,7 +469,7 @@ fn check_range(
     source: &str,
     y: &[f64],
     v: &[f64],
-    included: &[usize],
+    included: &Rows,
     (lines, places): (&[u64], &Places),
 ) -> Result<()> {
     // Comparisons, not a range's `contains`: a NaN compares false on both
@@ -499,14 +499,14 @@ fn check_range(
          up to {MAX_EFFECT:e} in size, sampling variances from {:e} to {MAX_VARIANCE:e}); at \
          this scale the sums of the fit leave the range of floating-point numbers. Express the \
          effects in other units (divide or multiply the columns by a power of ten) and run again",
-        places.row(lines[included[i]]),
+        places.row(lines[included.get(i)]),
         1.0 / MAX_VARIANCE
     )))
 }
 
 fn check_count(
     source: &str,
-    included: &[usize],
+    included: &Rows,
     excluded: &[Excluded],
     places: &Places,
 ) -> Result<()> {

@@ -3,6 +3,8 @@
 //! on a line of its own and none left out: at ten million studies that is
 //! 80 MB not held), anything else line by line.
 
+use crate::support::rows::Rows;
+
 /// The lines of a list of rows, in order.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Lines {
@@ -46,6 +48,26 @@ impl Lines {
             }
         } else {
             Lines::Listed(rows.iter().map(|&i| all[i]).collect())
+        }
+    }
+
+    /// [`Lines::of_rows`] for rows held as [`Rows`]: every row of the
+    /// table read in order, without a list of them.
+    pub fn of(all: &[u64], rows: &Rows) -> Lines {
+        let n = match rows {
+            Rows::Listed(list) => return Lines::of_rows(all, list),
+            Rows::Every(n) => *n,
+        };
+        let Some(&first) = all.first().filter(|_| n > 0) else {
+            return Lines::default();
+        };
+        let run = all[..n].iter().enumerate().fold(true, |run, (i, &l)| {
+            run & (l.wrapping_sub(first) == i as u64)
+        });
+        if run {
+            Lines::Run { first, len: n }
+        } else {
+            Lines::Listed(all[..n].to_vec())
         }
     }
 
@@ -110,6 +132,34 @@ mod tests {
         // Lines that go down (rows of a sheet are never so, but the run
         // must not take them for one) stay a list.
         assert_eq!(Lines::of_rows(&[5, 4], &[0, 1]), Lines::Listed(vec![5, 4]));
+    }
+
+    #[test]
+    fn every_row_gives_the_lines_of_the_full_list() {
+        for all in [
+            vec![2, 3, 4, 5],
+            vec![2, 3, 5, 6],
+            vec![5, 4, 3],
+            vec![7],
+            vec![],
+        ] {
+            let n = all.len();
+            let list: Vec<usize> = (0..n).collect();
+            assert_eq!(
+                Lines::of(&all, &Rows::Every(n)),
+                Lines::of_rows(&all, &list),
+                "{all:?}"
+            );
+            if n > 1 {
+                let some = Rows::Listed(vec![0, n - 1]);
+                assert_eq!(Lines::of(&all, &some), Lines::of_rows(&all, &[0, n - 1]));
+            }
+        }
+        // Rows of a table whose first rows are the studies only.
+        assert_eq!(
+            Lines::of(&[2, 3, 9], &Rows::Every(2)),
+            Lines::Run { first: 2, len: 2 }
+        );
     }
 
     #[test]
