@@ -463,24 +463,59 @@ fn cluster_messages(i: &Inputs<'_>, c: &ClusterAdditions, m: &mut Messages) {
     ));
 }
 
-/// FNV-1a hash of a label (a fast, fixed hash: the duplicate check only
-/// needs equal labels to meet, and compares candidates exactly).
-fn fnv1a(text: &str) -> u64 {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    for b in text.bytes() {
-        h ^= u64::from(b);
-        h = h.wrapping_mul(0x0100_0000_01b3);
+/// A 64-bit hash of a label, read eight bytes at a time: h starts as the
+/// length mixed into a fixed seed, each word is mixed in as
+/// h = rotl((h ⊕ word)·K, 29) (K odd, so each step is one-to-one in the
+/// word), the last word overlapping the one before when the length is not
+/// a multiple of eight; shorter labels as one word of their first and last
+/// four bytes, or of their first, middle and last byte (every byte read,
+/// so labels of one length that differ get different words). The 64-bit
+/// finaliser of MurmurHash3 (Appleby 2011; shifts and multipliers cited
+/// from memory) then spreads every bit into the top bits, which pick the
+/// bucket. The duplicate check compares the labels behind equal hashes
+/// exactly, so the hash decides only how fast it is, never what it finds.
+fn label_hash(text: &str) -> u64 {
+    const K: u64 = 0x9E37_79B9_7F4A_7C15;
+    let mix = |h: u64, word: u64| (h ^ word).wrapping_mul(K).rotate_left(29);
+    let b = text.as_bytes();
+    let n = b.len();
+    let word = |i: usize| u64::from_le_bytes(b[i..i + 8].try_into().expect("eight bytes"));
+    let half = |i: usize| {
+        u64::from(u32::from_le_bytes(
+            b[i..i + 4].try_into().expect("four bytes"),
+        ))
+    };
+    let mut h = mix(0x243F_6A88_85A3_08D3, n as u64);
+    if n >= 8 {
+        let mut i = 0;
+        while i + 8 < n {
+            h = mix(h, word(i));
+            i += 8;
+        }
+        h = mix(h, word(n - 8));
+    } else if n >= 4 {
+        h = mix(h, (half(0) << 32) | half(n - 4));
+    } else if n > 0 {
+        h = mix(
+            h,
+            (u64::from(b[0]) << 16) | (u64::from(b[n / 2]) << 8) | u64::from(b[n - 1]),
+        );
     }
-    h
+    h ^= h >> 33;
+    h = h.wrapping_mul(0xff51_afd7_ed55_8ccd);
+    h ^= h >> 33;
+    h = h.wrapping_mul(0xc4ce_b9fe_1a85_ec53);
+    h ^ (h >> 33)
 }
 
-/// The hashes that occur more than once in `hashes` (a hash occurring n
-/// times is listed n − 1 times), ascending.
+/// The hashes that occur more than once among `hash(0)`, …, `hash(n − 1)`
+/// (a hash occurring n times is listed n − 1 times), ascending.
 ///
 /// The hashes are put in 2¹¹ buckets by their top 11 bits (a counting
 /// sweep and a sweep placing each hash in its bucket: the first step of a
 /// most-significant-digit radix sort, Knuth, TAOCP vol. 3, §5.2.5), in
-/// fixed runs of rows on every core; then each bucket (its part of every
+/// fixed runs of rows on every core, each run's hashes made into a list of
+/// the run's own (in the core's cache, no list of all of them); then each bucket (its part of every
 /// run, in run order: about 500 hashes at a million studies, in the core's
 /// cache) is searched for repeats on its own on every core, each hash
 /// looked up in a table of the hashes seen before it in the bucket (open
@@ -488,17 +523,18 @@ fn fnv1a(text: &str) -> u64 {
 /// top bits of the hash times 2⁶⁴/φ, Fibonacci hashing, §6.4), and the
 /// repeats, few as a rule, sorted. The buckets in order give the answer,
 /// which does not depend on the thread count.
-fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
+fn repeated_hashes(n: usize, hash: impl Fn(usize) -> u64 + Sync) -> Vec<u64> {
     use rayon::prelude::*;
     const BITS: u32 = 11;
     const RUN: usize = 1 << 16;
     let bucket = |h: u64| (h >> (64 - BITS)) as usize;
     // Each run's hashes placed by bucket, and where each bucket starts.
-    let runs: Vec<(Vec<u64>, Vec<usize>)> = hashes
-        .par_chunks(RUN)
-        .map(|run| {
+    let runs: Vec<(Vec<u64>, Vec<usize>)> = (0..n.div_ceil(RUN))
+        .into_par_iter()
+        .map(|r| {
+            let run: Vec<u64> = (r * RUN..n.min((r + 1) * RUN)).map(&hash).collect();
             let mut starts = vec![0usize; (1 << BITS) + 1];
-            for &h in run {
+            for &h in &run {
                 starts[bucket(h) + 1] += 1;
             }
             for b in 1..starts.len() {
@@ -506,7 +542,7 @@ fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
             }
             let mut placed = vec![0u64; run.len()];
             let mut next = starts.clone();
-            for &h in run {
+            for &h in &run {
                 let b = bucket(h);
                 placed[next[b]] = h;
                 next[b] += 1;
@@ -514,7 +550,6 @@ fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
             (placed, starts)
         })
         .collect();
-    drop(hashes);
     let repeated: Vec<Vec<u64>> = (0..1usize << BITS)
         .into_par_iter()
         .map_init(Vec::new, |table: &mut Vec<u64>, b| {
@@ -561,25 +596,20 @@ fn repeated_hashes(hashes: Vec<u64>) -> Vec<u64> {
 
 /// The warning about labels used by more than one study (none when every label is distinct).
 fn duplicate_label_warnings(labels: &Texts) -> Vec<String> {
-    // Equal labels have equal hashes: the hashes alone are sorted (on every
-    // core) to find those that occur more than once, and only the labels
-    // with such a hash are then compared exactly, as (hash, position) pairs
-    // sorted so that equal hashes are adjacent. The pairs are distinct, so
-    // the order is the same whatever the number of threads.
+    // Equal labels have equal hashes: the hashes that occur more than once
+    // are found first (on every core, [`repeated_hashes`]), and only the
+    // labels with such a hash are then compared exactly, as (hash, position)
+    // pairs sorted so that equal hashes are adjacent. The pairs are
+    // distinct, so the order is the same whatever the number of threads.
     use rayon::prelude::*;
-    let hashes: Vec<u64> = (0..labels.len())
-        .into_par_iter()
-        .map(|i| fnv1a(labels.get(i)))
-        .collect();
-    let mut repeated = repeated_hashes(hashes);
+    let mut repeated = repeated_hashes(labels.len(), |i| label_hash(labels.get(i)));
     repeated.dedup();
     let mut keyed: Vec<(u64, usize)> = if repeated.is_empty() {
         Vec::new()
     } else {
-        labels
-            .iter()
-            .enumerate()
-            .map(|(i, l)| (fnv1a(l), i))
+        (0..labels.len())
+            .into_par_iter()
+            .map(|i| (label_hash(labels.get(i)), i))
             .filter(|(h, _)| repeated.binary_search(h).is_ok())
             .collect()
     };
@@ -664,7 +694,59 @@ mod tests {
             .map(|w| w[0])
             .collect();
         assert!(want.len() > 3_000);
-        assert_eq!(repeated_hashes(hashes), want);
+        assert_eq!(repeated_hashes(hashes.len(), |i| hashes[i]), want);
         assert!(duplicate_label_warnings(&Texts::default()).is_empty());
+    }
+
+    #[test]
+    fn labels_of_every_length_that_differ_hash_apart() {
+        // Every label of up to three letters from a small alphabet, and
+        // labels of 4 to 20 bytes differing in one byte at each place.
+        let letters = ["", "a", "b", "é"];
+        let mut labels: Vec<String> = Vec::new();
+        for x in letters {
+            for y in letters {
+                for z in letters {
+                    labels.push(format!("{x}{y}{z}"));
+                }
+            }
+        }
+        labels.sort();
+        labels.dedup();
+        for n in 4..=20 {
+            let base = "x".repeat(n);
+            labels.push(base.clone());
+            for at in 0..n {
+                let mut other = base.clone().into_bytes();
+                other[at] = b'y';
+                labels.push(String::from_utf8(other).unwrap());
+            }
+        }
+        labels.push("s1234567".into());
+        labels.push("s1234567\0".into());
+        let mut hashes: Vec<u64> = labels.iter().map(|l| label_hash(l)).collect();
+        hashes.sort_unstable();
+        hashes.dedup();
+        assert_eq!(hashes.len(), labels.len());
+        // Repeats of every length class are found.
+        let texts: Texts = [
+            "abcdefghij",
+            "Smith 2019a",
+            "abcdefghij",
+            "ab",
+            "Smith 2019a",
+            "ab",
+            "abcd",
+        ]
+        .into_iter()
+        .collect();
+        assert_eq!(
+            duplicate_label_warnings(&texts),
+            [
+                "Study labels used more than once: 'Smith 2019a' (2×), 'ab' (2×), 'abcdefghij' \
+                 (2×). If these are the same study entered twice, remove the copies; if they \
+                 are separate samples, give them distinct labels."
+            ]
+        );
     }
 }
