@@ -2,14 +2,14 @@
 //! k = 1,000,000 studies and p = 4 columns, for each set of parts a τ²
 //! search asks for (score, curvature, everything with the log terms), and
 //! of the model fit and the intercept-only fit on the same data with the
-//! passes each makes. Run with `cargo bench --bench passes`; results are
+//! passes each makes, and of one pass at nine points (`Evaluator::fit_many`). Run with `cargo bench --bench passes`; results are
 //! recorded in docs/performance.md. Not a test: nothing here asserts a
 //! time. The data are invented (a seeded xorshift generator), for timing.
 
 mod common;
 use common::best;
 use nalgebra::DVector;
-use pondus::model::near::fit_near;
+use pondus::model::near::{fit_near, Evaluator};
 use pondus::model::tau2::Tau2Method;
 use pondus::model::wls::{passes, Data, Want};
 use pondus::model::{fit, FitOptions, Inference};
@@ -66,6 +66,20 @@ fn main() {
             t.as_secs_f64() * 1e3
         );
     }
+    // Nine points in one pass, as the τ² search's first look along its range.
+    let taus: Vec<f64> = (0..9).map(|j| 0.001 * 2f64.powi(j)).collect();
+    let before = passes();
+    let t = best(10, || {
+        let ev = Evaluator::around(d.clone(), beta.clone());
+        ev.fit_many(&taus, Want::SCORE);
+        black_box(&ev);
+    });
+    println!(
+        "  {:<22} {:>8.3} ms  ({} pass per call)",
+        "nine points (score)",
+        t.as_secs_f64() * 1e3,
+        (passes() - before) / 10
+    );
     let options = FitOptions {
         method: Tau2Method::Reml,
         inference: Inference::Kh,

@@ -527,14 +527,27 @@ fn a_pass_at_several_points_gives_each_point_s_own_sums() {
         let betas: Vec<Vec<f64>> = (0..3)
             .map(|j| (0..p).map(|a| 0.1 * (a + j) as f64 - 0.05).collect())
             .collect();
-        let points: Vec<Point<'_>> = [0.0, 0.3, 7.5]
+        // Each point around coefficients of its own, and every point
+        // around the same ones (as in a pass of `fit_many`, whose residuals
+        // are made once a block).
+        let own: Vec<Point<'_>> = [0.0, 0.3, 7.5]
             .iter()
             .zip(&betas)
             .map(|(&tau2, b)| Point { tau2, beta0: b })
             .collect();
-        for want in [Want::Q, Want::SCORE, Want::ALL, Want::CURVATURE] {
+        let shared: Vec<Point<'_>> = [0.0, 0.3, 7.5, 1e-9]
+            .iter()
+            .map(|&tau2| Point {
+                tau2,
+                beta0: &betas[1],
+            })
+            .collect();
+        for (points, want) in [&own, &shared]
+            .into_iter()
+            .flat_map(|pts| [Want::Q, Want::SCORE, Want::ALL, Want::CURVATURE].map(|w| (pts, w)))
+        {
             let mut together = vec![Sums::default(); points.len()];
-            accumulate_many(&d, false, &points, want, &mut together);
+            accumulate_many(&d, false, points, want, &mut together);
             for (pt, got) in points.iter().zip(&together) {
                 let mut alone = Sums::default();
                 accumulate(&d, false, pt.tau2, want, pt.beta0, &mut alone);
