@@ -170,6 +170,65 @@ pub fn compute(
     Ok(out)
 }
 
+/// [`compute`] for the usual large table of effects given with their
+/// variances (the measure's only columns, on the scale analysed) in which
+/// every row has both numbers and a variance above 0: the two columns'
+/// values are taken out of the table (moved, not copied, so no second
+/// 16 bytes a row exist beside them) and every row's route is the
+/// variance; the same values, routes and (no) notes [`compute`] gives such
+/// a table. None, the table untouched, for any other table.
+///
+/// # Errors
+/// Those of [`compute`] for a missing column.
+pub fn take_plain(
+    measure: Measure,
+    map: &ColumnMap,
+    table: &mut Table,
+    first: usize,
+) -> Result<Option<EffectColumn>> {
+    use rayon::prelude::*;
+    check_route_columns(measure, map, table, first)?;
+    let plain = {
+        let cells = Cells {
+            measure,
+            map,
+            table,
+            columns: (0..measure.roles().len())
+                .map(|j| table.column(first + j))
+                .collect(),
+        };
+        let numbers = cells
+            .effects_and_variances()
+            .and_then(|(e, v)| e.numbers().zip(v.numbers()));
+        numbers.is_some_and(|(y, v)| {
+            y.par_chunks(pieces::ROWS)
+                .zip(v.par_chunks(pieces::ROWS))
+                .all(|(y, v)| {
+                    y.iter()
+                        .zip(v)
+                        .fold(true, |all, (y, v)| all & !y.is_nan() & (*v > 0.0))
+                })
+        })
+    };
+    if !plain {
+        return Ok(None);
+    }
+    let n = table.len();
+    let mut take = |j: usize| {
+        table.columns[first + j]
+            .as_mut()
+            .and_then(Column::take_numbers)
+            .expect("a column of numbers without invalid cells, checked above")
+    };
+    let (y, v) = (take(0), take(1));
+    Ok(Some(EffectColumn {
+        y,
+        v,
+        from: vec![Route::Variance; n],
+        ..EffectColumn::default()
+    }))
+}
+
 /// What [`compute`] reads: the measure, the map of its columns and the
 /// table with the measure's columns (None for one not in the file).
 struct Cells<'a> {
@@ -439,6 +498,56 @@ mod tests {
             // numbers, variances not above 0).
             assert!(problems >= 4);
             assert_eq!(rare.total, problems, "{with_se}");
+        }
+    }
+
+    /// A table whose every row has an effect and a variance above 0 has
+    /// its two columns taken, with the values, routes and (no) notes that
+    /// [`compute`] gives; any other table is left to [`compute`], untouched.
+    #[test]
+    fn plain_effects_are_taken_as_compute_makes_them() {
+        let map = ColumnMap::default();
+        let requests = map.requests(Measure::Effect);
+        let dir = tempfile::tempdir().unwrap();
+        let read = |csv: &str| {
+            let path = dir.path().join("t.csv");
+            std::fs::write(&path, csv).unwrap();
+            read_table_from("t.csv", TableBytes::File(&path), &requests, None, None).unwrap()
+        };
+        let plain = "effect,variance\n0.5,0.04\n-1.25,0.10\n0.30,1e-2\n-0.0,3\n";
+        let want = compute(Measure::Effect, &map, &read(plain), 0).unwrap();
+        let mut table = read(plain);
+        let got = take_plain(Measure::Effect, &map, &mut table, 0)
+            .unwrap()
+            .expect("every row plain");
+        let bits = |x: &[f64]| x.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&got.y), bits(&want.y));
+        assert_eq!(bits(&got.v), bits(&want.v));
+        assert_eq!(got.from, want.from);
+        assert!(got.excluded.is_empty() && got.notes.is_empty() && got.checks.is_empty());
+        assert!(table
+            .column(0)
+            .and_then(Column::numbers)
+            .is_some_and(<[f64]>::is_empty));
+        // A variance of 0, a missing effect, text, or an se column beside:
+        // not taken, and the table still holds its cells.
+        for csv in [
+            "effect,variance\n0.5,0.04\n0.2,0\n",
+            "effect,variance\n0.5,0.04\n,0.1\n",
+            "effect,variance\n0.5,0.04\nabc,0.1\n",
+            "effect,variance,se\n0.5,0.04,0.2\n0.1,0.1,\n",
+        ] {
+            let mut table = read(csv);
+            assert!(
+                take_plain(Measure::Effect, &map, &mut table, 0)
+                    .unwrap()
+                    .is_none(),
+                "{csv}"
+            );
+            assert_eq!(
+                table.column(0).map(|c| c.text(0).into_owned()).as_deref(),
+                Some("0.5")
+            );
         }
     }
 }

@@ -16,7 +16,7 @@ pub mod smd_routes;
 use crate::error::{Error, Result};
 use crate::input::{ColumnRequest, Table};
 use crate::support::flag::Flag;
-pub use column::{compute, EffectColumn};
+pub use column::{compute, take_plain, EffectColumn};
 use route::{EffectReading, Route, RouteInfo};
 use serde::Serialize;
 use std::collections::BTreeMap;

@@ -125,8 +125,22 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
     } = columns;
     let facts = table_facts(settings, &table);
     let places = table.places();
-    let mut effects = effect::compute(settings.measure, &settings.columns, &table, first_measure)?;
     let artifacts = &settings.interpret.artifacts;
+    // Corrections for artifacts read the measure's columns again: only
+    // without them may the effects take those columns' values.
+    let taken = match artifacts.any() {
+        true => None,
+        false => effect::take_plain(
+            settings.measure,
+            &settings.columns,
+            &mut table,
+            first_measure,
+        )?,
+    };
+    let mut effects = match taken {
+        Some(effects) => effects,
+        None => effect::compute(settings.measure, &settings.columns, &table, first_measure)?,
+    };
     let corrections = artifact::apply(
         artifacts,
         &table,

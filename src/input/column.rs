@@ -142,6 +142,16 @@ impl Column {
         }
     }
 
+    /// The cells as numbers, NaN for a missing one, when the column was read
+    /// as numbers and no cell is invalid (what [`Column::take_numbers`]
+    /// would take); None otherwise.
+    pub fn numbers(&self) -> Option<&[f64]> {
+        match &self.cells {
+            Cells::Numbers(n) if n.invalid == 0 => Some(&n.values),
+            _ => None,
+        }
+    }
+
     /// The cells as numbers, NaN for a missing one, taken out of the column
     /// (moved, not copied; the column is left empty) when it was read as
     /// numbers and no cell is invalid ([`Column::number`] is never
