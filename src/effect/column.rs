@@ -129,14 +129,7 @@ pub fn compute(
 ) -> Result<EffectColumn> {
     use rayon::prelude::*;
     check_route_columns(measure, map, table, first)?;
-    let cells = Cells {
-        measure,
-        map,
-        table,
-        columns: (0..measure.roles().len())
-            .map(|j| table.column(first + j))
-            .collect(),
-    };
+    let cells = Cells::new(measure, map, table, first);
     let n = table.len();
     let mut out = EffectColumn {
         y: vec![0.0; n],
@@ -189,14 +182,7 @@ pub fn take_plain(
     use rayon::prelude::*;
     check_route_columns(measure, map, table, first)?;
     let plain = {
-        let cells = Cells {
-            measure,
-            map,
-            table,
-            columns: (0..measure.roles().len())
-                .map(|j| table.column(first + j))
-                .collect(),
-        };
+        let cells = Cells::new(measure, map, table, first);
         let numbers = cells
             .effects_and_variances()
             .and_then(|(e, v)| e.numbers().zip(v.numbers()));
@@ -259,7 +245,19 @@ impl Rare {
     }
 }
 
-impl Cells<'_> {
+impl<'a> Cells<'a> {
+    /// The measure's columns of `table`, the first at `first`.
+    fn new(measure: Measure, map: &'a ColumnMap, table: &'a Table, first: usize) -> Self {
+        Cells {
+            measure,
+            map,
+            table,
+            columns: (0..measure.roles().len())
+                .map(|j| table.column(first + j))
+                .collect(),
+        }
+    }
+
     /// The effect and variance columns, when the measure is effects as
     /// supplied on the scale analysed (no `--effect-scale log`) and they
     /// are its only columns in the table (no se or interval to check them

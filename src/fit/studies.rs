@@ -128,14 +128,15 @@ pub fn collect(settings: &FitSettings, source: &str, columns: Columns) -> Result
     let artifacts = &settings.interpret.artifacts;
     // Corrections for artifacts read the measure's columns again: only
     // without them may the effects take those columns' values.
-    let taken = match artifacts.any() {
-        true => None,
-        false => effect::take_plain(
+    let taken = if artifacts.any() {
+        None
+    } else {
+        effect::take_plain(
             settings.measure,
             &settings.columns,
             &mut table,
             first_measure,
-        )?,
+        )?
     };
     let mut effects = match taken {
         Some(effects) => effects,
