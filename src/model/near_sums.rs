@@ -206,62 +206,6 @@ fn total(lane: &Lane) -> f64 {
     lane.iter().fold(0.0, |t, x| t + x)
 }
 
-/// Σ f·x_a·x_c over the block's first `n` rows (a multiple of [`LANES`])
-/// added to the upper triangle of `acc` (a ≤ c), the product taken as
-/// (f·x_a)·x_c; one row a at a time ([`add_matrix_row`]), so its P − a
-/// partial sums stay in registers.
-#[inline(always)]
-fn add_matrix<const P: usize>(acc: &mut [[Lane; P]; P], f: &Column, x: &[Column; P], n: usize) {
-    // The rows below are those of the widest fixed kernel ([`by_columns!`]).
-    const { assert!(P <= 8, "add_matrix sums rows 0 to 7") };
-    add_matrix_row::<P, 0>(acc, f, x, n);
-    add_matrix_row::<P, 1>(acc, f, x, n);
-    add_matrix_row::<P, 2>(acc, f, x, n);
-    add_matrix_row::<P, 3>(acc, f, x, n);
-    add_matrix_row::<P, 4>(acc, f, x, n);
-    add_matrix_row::<P, 5>(acc, f, x, n);
-    add_matrix_row::<P, 6>(acc, f, x, n);
-    add_matrix_row::<P, 7>(acc, f, x, n);
-}
-
-/// Row `A` of [`add_matrix`] (nothing when `A` ≥ `P`). Both bounds of the
-/// loop over c are constants, so the compiler unrolls it and keeps the row's
-/// partial sums in registers for the whole block (with `a` a loop variable
-/// it kept them in memory, a load and a store per product). Each partial sum
-/// gets the same additions in the same order as before, so the same bits.
-#[inline(always)]
-fn add_matrix_row<const P: usize, const A: usize>(
-    acc: &mut [[Lane; P]; P],
-    f: &Column,
-    x: &[Column; P],
-    n: usize,
-) {
-    if A >= P {
-        return;
-    }
-    let mut row = acc[A];
-    for g in (0..n).step_by(LANES) {
-        let fx = times(&lane(f, g), &lane(&x[A], g));
-        for c in A..P {
-            add_product(&mut row[c], &fx, &lane(&x[c], g));
-        }
-    }
-    acc[A] = row;
-}
-
-/// Σ x_a·f over the block's first `n` rows added to `acc[a]`, every a.
-#[inline(always)]
-fn add_vector<const P: usize>(acc: &mut [Lane; P], f: &Column, x: &[Column; P], n: usize) {
-    let mut t = *acc;
-    for g in (0..n).step_by(LANES) {
-        let fl = lane(f, g);
-        for a in 0..P {
-            add_product(&mut t[a], &lane(&x[a], g), &fl);
-        }
-    }
-    *acc = t;
-}
-
 /// Σ a·b over the block's first `n` rows added to `acc`.
 #[inline(always)]
 fn add_dot(acc: &mut Lane, a: &Column, b: &Column, n: usize) {
@@ -369,16 +313,104 @@ impl<const P: usize> LaneSums<P> {
         add_sum(&mut self.scalars[0], &b.w, n);
         add_dot(&mut self.scalars[2], &b.wr, &b.r, n);
         add_dot(&mut self.scalars[3], &b.w2r, &b.r, n);
-        add_vector(&mut self.g, &b.wr, &b.x, n);
-        add_vector(&mut self.h, &b.w2r, &b.x, n);
-        add_matrix(&mut self.m, &b.w, &b.x, n);
-        add_matrix(&mut self.n2, &b.w2, &b.x, n);
+        self.add_weighted_rows(b, n);
         if CURV {
             add_sum(&mut self.scalars[1], &b.w2, n);
             add_dot(&mut self.scalars[4], &b.w3r, &b.r, n);
-            add_vector(&mut self.h3, &b.w3r, &b.x, n);
-            add_matrix(&mut self.n3, &b.w3, &b.x, n);
+            self.add_curvature_rows(b, n);
         }
+    }
+
+    /// The sums of [`LaneSums::add_block`] only the curvature needs:
+    /// Σ w³·x_a·x_c (the upper triangle of N₃) and Σ x_a·w³r, one row a at
+    /// a time ([`LaneSums::add_curvature_row`]).
+    #[inline(always)]
+    fn add_curvature_rows(&mut self, b: &Block<P>, n: usize) {
+        // The rows below are those of the widest fixed kernel ([`by_columns!`]).
+        const { assert!(P <= 8, "add_curvature_rows sums rows 0 to 7") };
+        self.add_curvature_row::<0>(b, n);
+        self.add_curvature_row::<1>(b, n);
+        self.add_curvature_row::<2>(b, n);
+        self.add_curvature_row::<3>(b, n);
+        self.add_curvature_row::<4>(b, n);
+        self.add_curvature_row::<5>(b, n);
+        self.add_curvature_row::<6>(b, n);
+        self.add_curvature_row::<7>(b, n);
+    }
+
+    /// Row `A` of N₃ and entry `A` of h₃ in one sweep (nothing when `A` ≥
+    /// `P`), each partial sum's additions in row order, as in
+    /// [`LaneSums::add_weighted_row`].
+    // The loop over c keeps its two constant bounds (see
+    // `add_weighted_row`): they are what lets the compiler unroll it.
+    #[allow(clippy::needless_range_loop)]
+    #[inline(always)]
+    fn add_curvature_row<const A: usize>(&mut self, b: &Block<P>, n: usize) {
+        if A >= P {
+            return;
+        }
+        let (mut n3, mut h3) = (self.n3[A], self.h3[A]);
+        for i in (0..n).step_by(LANES) {
+            let xa = lane(&b.x[A], i);
+            let fw3 = times(&lane(&b.w3, i), &xa);
+            for c in A..P {
+                add_product(&mut n3[c], &fw3, &lane(&b.x[c], i));
+            }
+            add_product(&mut h3, &xa, &lane(&b.w3r, i));
+        }
+        (self.n3[A], self.h3[A]) = (n3, h3);
+    }
+
+    /// The weighted cross products of [`LaneSums::add_block`] over the
+    /// block's first `n` rows (a multiple of [`LANES`]): Σ w·x_a·x_c and
+    /// Σ w²·x_a·x_c added to the upper triangles of M and N₂ (a ≤ c), each
+    /// product taken as (f·x_a)·x_c, and Σ x_a·wr and Σ x_a·w²r added to g
+    /// and h; one row a at a time ([`LaneSums::add_weighted_row`]), so its
+    /// partial sums stay in registers.
+    #[inline(always)]
+    fn add_weighted_rows(&mut self, b: &Block<P>, n: usize) {
+        // The rows below are those of the widest fixed kernel ([`by_columns!`]).
+        const { assert!(P <= 8, "add_weighted_rows sums rows 0 to 7") };
+        self.add_weighted_row::<0>(b, n);
+        self.add_weighted_row::<1>(b, n);
+        self.add_weighted_row::<2>(b, n);
+        self.add_weighted_row::<3>(b, n);
+        self.add_weighted_row::<4>(b, n);
+        self.add_weighted_row::<5>(b, n);
+        self.add_weighted_row::<6>(b, n);
+        self.add_weighted_row::<7>(b, n);
+    }
+
+    /// Row `A` of M and N₂ and entry `A` of g and h, in one sweep over the
+    /// block's lanes (nothing when `A` ≥ `P`). Both bounds of the loop over
+    /// c are constants, so the compiler unrolls it and keeps the row's
+    /// partial sums in registers for the whole block (with `a` a loop
+    /// variable it kept them in memory, a load and a store per product);
+    /// each x_c is loaded once for both matrices and x_A once for all four
+    /// sums (when M, N₂, g and h were summed in sweeps of their own, a pass
+    /// at p = 4 took 12% longer on one thread). Each partial sum gets its
+    /// additions in row order ((f·x_A)·x_c for the matrices, x_A·f for the
+    /// vectors), as in those sweeps, so the same bits; only the order in which
+    /// different sums are updated changed.
+    #[inline(always)]
+    fn add_weighted_row<const A: usize>(&mut self, b: &Block<P>, n: usize) {
+        if A >= P {
+            return;
+        }
+        let (mut m, mut n2, mut g, mut h) = (self.m[A], self.n2[A], self.g[A], self.h[A]);
+        for i in (0..n).step_by(LANES) {
+            let xa = lane(&b.x[A], i);
+            let fw = times(&lane(&b.w, i), &xa);
+            let fw2 = times(&lane(&b.w2, i), &xa);
+            for c in A..P {
+                let xc = lane(&b.x[c], i);
+                add_product(&mut m[c], &fw, &xc);
+                add_product(&mut n2[c], &fw2, &xc);
+            }
+            add_product(&mut g, &xa, &lane(&b.wr, i));
+            add_product(&mut h, &xa, &lane(&b.w2r, i));
+        }
+        (self.m[A], self.n2[A], self.g[A], self.h[A]) = (m, n2, g, h);
     }
 
     /// [`LaneSums::add_block`] for a design of one column of ones (P = 1),

@@ -475,6 +475,110 @@ fn the_lane_kernel_agrees_with_running_sums_for_every_size() {
     lanes_agree_with_running_sums::<8>();
 }
 
+/// The lane kernel's sums with every part, built the plain way: each sum
+/// in four running sums, row i going to sum i mod 4 in row order (the rows
+/// up to a whole lane adding +0), the four added in order, every term
+/// written as the kernel's comments write it ((f·x_a)·x_c, x_a·f, w·w·w).
+/// Pins the order of the kernel's additions, so a faster kernel that
+/// reorders them (and so moves the results' last bits) fails here.
+fn sums_in_lane_order<const P: usize>(d: &Data<'_>, tau2: f64, b0: &[f64]) -> Sums {
+    const L: usize = 4;
+    let zero = [0.0; L];
+    let (mut m, mut n2, mut n3) = ([[zero; P]; P], [[zero; P]; P], [[zero; P]; P]);
+    let (mut g, mut h, mut h3) = ([zero; P], [zero; P], [zero; P]);
+    let mut sc = [zero; 6];
+    for i in 0..d.k().div_ceil(L) * L {
+        let l = i % L;
+        let (x, terms) = if i < d.k() {
+            let x: [f64; P] = d.x[i * P..(i + 1) * P].try_into().unwrap();
+            let w = 1.0 / (d.v[i] + tau2);
+            let fit = x.iter().zip(b0).fold(0.0, |f, (xa, ba)| f + xa * ba);
+            let r = d.y[i] - fit;
+            let (wr, w2) = (w * r, w * w);
+            let w2r = w * wr;
+            sc[5][l] += (d.v[i] + tau2).ln();
+            (x, [w, w2, w * w * w, r, wr, w2r, w * w2r])
+        } else {
+            ([0.0; P], [0.0; 7])
+        };
+        let [w, w2, w3, r, wr, w2r, w3r] = terms;
+        sc[0][l] += w;
+        sc[1][l] += w2;
+        sc[2][l] += wr * r;
+        sc[3][l] += w2r * r;
+        sc[4][l] += w3r * r;
+        for a in 0..P {
+            for c in a..P {
+                m[a][c][l] += (w * x[a]) * x[c];
+                n2[a][c][l] += (w2 * x[a]) * x[c];
+                n3[a][c][l] += (w3 * x[a]) * x[c];
+            }
+            g[a][l] += x[a] * wr;
+            h[a][l] += x[a] * w2r;
+            h3[a][l] += x[a] * w3r;
+        }
+    }
+    let total = |t: &[f64; L]| t.iter().fold(0.0, |s, x| s + x);
+    let upper = |t: &[[[f64; L]; P]; P]| -> Vec<f64> {
+        (0..P)
+            .flat_map(|a| (0..P).map(move |c| if c >= a { total(&t[a][c]) } else { 0.0 }))
+            .collect()
+    };
+    let [sum_w, sum_w2, sum_wr2, sum_w2r2, sum_w3r2, sum_log_vt] = sc.map(|t| total(&t));
+    let mut s = Sums::default();
+    (s.sum_w, s.sum_w2, s.sum_wr2, s.sum_w2r2, s.sum_w3r2) =
+        (sum_w, sum_w2, sum_wr2, sum_w2r2, sum_w3r2);
+    s.sum_log_vt = sum_log_vt;
+    (s.m, s.n2, s.n3) = (upper(&m), upper(&n2), upper(&n3));
+    (s.g, s.h, s.h3) = (
+        g.iter().map(total).collect(),
+        h.iter().map(total).collect(),
+        h3.iter().map(total).collect(),
+    );
+    s
+}
+
+/// [`sums_in_lane_order`] against the kernel, bit for bit, at `P` columns.
+fn lanes_add_in_lane_order<const P: usize>() {
+    for k in [1usize, 5, 64, 131, 300] {
+        let unit = |i: usize, s: usize| ((i * s + 13) % 997) as f64 / 997.0;
+        let v: Vec<f64> = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
+        let y: Vec<f64> = (0..k).map(|i| unit(i, 104_729) - 0.3).collect();
+        let x: Vec<f64> = (0..k)
+            .flat_map(|i| {
+                (0..P).map(move |a| {
+                    if a == 0 {
+                        1.0
+                    } else {
+                        unit(i, 31 + 17 * a) - 0.4
+                    }
+                })
+            })
+            .collect();
+        let d = Data {
+            y: &y,
+            v: &v,
+            x: &x,
+            p: P,
+        };
+        let beta0: Vec<f64> = (0..P).map(|a| 0.1 * a as f64 - 0.05).collect();
+        let mut lanes = Sums::default();
+        in_lanes::<P, true, true>(&d, 0.02, &beta0, &mut lanes);
+        let plain = sums_in_lane_order::<P>(&d, 0.02, &beta0);
+        assert_eq!(sums_bits(&lanes), sums_bits(&plain), "P = {P}, k = {k}");
+    }
+}
+
+#[test]
+fn the_lane_kernel_adds_in_lane_order_bit_for_bit() {
+    lanes_add_in_lane_order::<1>();
+    lanes_add_in_lane_order::<2>();
+    lanes_add_in_lane_order::<3>();
+    lanes_add_in_lane_order::<4>();
+    lanes_add_in_lane_order::<6>();
+    lanes_add_in_lane_order::<8>();
+}
+
 /// The scalar sums of a pass, in a fixed order.
 fn scalars(s: &Sums) -> [f64; 6] {
     [
