@@ -396,6 +396,28 @@ fn same_bits_with_avx2<const P: usize>(
     }
 }
 
+/// Invented rows for the kernel tests (a deterministic scramble): k
+/// studies, p columns (the first of ones, the others in [shift, shift + 1)),
+/// variances in [0.01, 1.01) and coefficients to take the residuals around.
+fn scrambled(k: usize, p: usize, shift: f64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>) {
+    let unit = |i: usize, s: usize| ((i * s + 13) % 997) as f64 / 997.0;
+    let v = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
+    let y = (0..k).map(|i| unit(i, 104_729) - 0.3).collect();
+    let x = (0..k)
+        .flat_map(|i| {
+            (0..p).map(move |a| {
+                if a == 0 {
+                    1.0
+                } else {
+                    unit(i, 31 + 17 * a) + shift
+                }
+            })
+        })
+        .collect();
+    let beta0 = (0..p).map(|a| 0.1 * a as f64 - 0.05).collect();
+    (y, v, x, beta0)
+}
+
 /// Every sum of the lane kernel and of the fixed-size running sums against
 /// the general running sums, for
 /// `P` columns, each pair of optional parts, and numbers of rows that fill
@@ -403,19 +425,13 @@ fn same_bits_with_avx2<const P: usize>(
 /// rows must add nothing, and a block must not keep the last one's rows).
 fn lanes_agree_with_running_sums<const P: usize>() {
     for k in [1usize, 3, 4, 5, 63, 64, 65, 131, 300] {
-        let unit = |i: usize, s: usize| ((i * s + 13) % 997) as f64 / 997.0;
-        let v: Vec<f64> = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
-        let y: Vec<f64> = (0..k).map(|i| unit(i, 104_729) - 0.3).collect();
-        let x: Vec<f64> = (0..k)
-            .flat_map(|i| (0..P).map(move |a| if a == 0 { 1.0 } else { unit(i, 31 + 17 * a) }))
-            .collect();
+        let (y, v, x, beta0) = scrambled(k, P, 0.0);
         let d = Data {
             y: &y,
             v: &v,
             x: &x,
             p: P,
         };
-        let beta0: Vec<f64> = (0..P).map(|a| 0.1 * a as f64 - 0.05).collect();
         for (log, curv) in [(false, false), (true, false), (false, true), (true, true)] {
             let want = Want {
                 log_terms: log,
@@ -541,27 +557,13 @@ fn sums_in_lane_order<const P: usize>(d: &Data<'_>, tau2: f64, b0: &[f64]) -> Su
 /// [`sums_in_lane_order`] against the kernel, bit for bit, at `P` columns.
 fn lanes_add_in_lane_order<const P: usize>() {
     for k in [1usize, 5, 64, 131, 300] {
-        let unit = |i: usize, s: usize| ((i * s + 13) % 997) as f64 / 997.0;
-        let v: Vec<f64> = (0..k).map(|i| 0.01 + unit(i, 7919)).collect();
-        let y: Vec<f64> = (0..k).map(|i| unit(i, 104_729) - 0.3).collect();
-        let x: Vec<f64> = (0..k)
-            .flat_map(|i| {
-                (0..P).map(move |a| {
-                    if a == 0 {
-                        1.0
-                    } else {
-                        unit(i, 31 + 17 * a) - 0.4
-                    }
-                })
-            })
-            .collect();
+        let (y, v, x, beta0) = scrambled(k, P, -0.4);
         let d = Data {
             y: &y,
             v: &v,
             x: &x,
             p: P,
         };
-        let beta0: Vec<f64> = (0..P).map(|a| 0.1 * a as f64 - 0.05).collect();
         let mut lanes = Sums::default();
         in_lanes::<P, true, true>(&d, 0.02, &beta0, &mut lanes);
         let plain = sums_in_lane_order::<P>(&d, 0.02, &beta0);
